@@ -1,0 +1,29 @@
+//! pinflow: fixed-point data, second-order RG flows, phase diagrams and
+//! operator searches for coupled-wire and Luttinger-liquid models.
+//!
+//! Architecture (one module per concern; see DEVELOPERS.md):
+//! - [`model`]: reading and validating model files (two stages: raw serde
+//!   structs, then a checked [`model::Model`] with compiled expressions);
+//! - [`lattice`]: the dense realisation (all fields, every term translate, V
+//!   at a point);
+//! - [`exact`] and [`invariants`]: exact rational algebra and the data that
+//!   does not depend on V (filling, charges, spins, commutation, locality);
+//! - [`fixed_point`]: the scaling-dimension matrix D and velocities;
+//! - [`system`]: a model prepared once for evaluation at many points;
+//! - [`dims`]: the `pinflow dims` report;
+//! - [`output`]: text, JSON, CSV, Markdown and LaTeX exporters;
+//! - [`cli`]: the command line.
+//!
+//! The method is weak-coupling perturbation theory around a Gaussian fixed
+//! point; see the README for its limits.
+
+pub mod cli;
+pub mod dims;
+pub mod error;
+pub mod exact;
+pub mod fixed_point;
+pub mod invariants;
+pub mod lattice;
+pub mod model;
+pub mod output;
+pub mod system;

@@ -1,0 +1,111 @@
+//! Command-line interface: argument structs (clap derive) and the dispatch
+//! from a parsed command to the library. `main.rs` only calls [`run`].
+//!
+//! Exit codes: 0 success, 1 a run failed (numerics, I/O), 2 bad input
+//! (model file, flags, parameter point).
+
+use std::path::PathBuf;
+
+use clap::{Args, Parser, Subcommand};
+
+use crate::dims::DimsReport;
+use crate::error::{Error, InputError};
+use crate::output::{self, Format};
+use crate::system::System;
+
+/// Fixed-point data, RG flows and phase diagrams of coupled-wire and
+/// Luttinger-liquid models.
+#[derive(Debug, Parser)]
+#[command(name = "pinflow", version, about, long_about = None)]
+pub struct Cli {
+    /// What to do.
+    #[command(subcommand)]
+    pub command: Command,
+}
+
+/// The subcommands.
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// Exact and fixed-point data of every term of a model at one parameter point.
+    Dims(DimsArgs),
+}
+
+/// Options shared by commands that evaluate a model at one point.
+#[derive(Debug, Args)]
+pub struct PointArgs {
+    /// The model file (TOML).
+    pub model: PathBuf,
+    /// Override a parameter, e.g. `--set lambda=0.4` (repeatable).
+    #[arg(long = "set", value_name = "NAME=VALUE", value_parser = parse_assignment)]
+    pub set: Vec<(String, f64)>,
+}
+
+/// `pinflow dims`.
+#[derive(Debug, Args)]
+pub struct DimsArgs {
+    #[command(flatten)]
+    pub point: PointArgs,
+    /// Output format.
+    #[arg(long, value_enum, default_value_t = Format::Text)]
+    pub format: Format,
+    /// Write to this file instead of standard output (`-` is standard output).
+    #[arg(long, short = 'o', value_name = "FILE")]
+    pub output: Option<PathBuf>,
+}
+
+/// Parse `name=value`.
+pub fn parse_assignment(s: &str) -> Result<(String, f64), String> {
+    let (name, value) = s
+        .split_once('=')
+        .ok_or_else(|| format!("expected NAME=VALUE, found `{s}`"))?;
+    let name = name.trim();
+    if name.is_empty() {
+        return Err(format!("expected NAME=VALUE, found `{s}`"));
+    }
+    let x: f64 = value
+        .trim()
+        .parse()
+        .map_err(|_| format!("`{}` is not a number (in `{s}`)", value.trim()))?;
+    if !x.is_finite() {
+        return Err(format!("`{}` must be a finite number", value.trim()));
+    }
+    Ok((name.to_string(), x))
+}
+
+/// Run a parsed command.
+pub fn run(cli: Cli) -> Result<(), Error> {
+    match cli.command {
+        Command::Dims(args) => run_dims(args),
+    }
+}
+
+fn load_point(args: &PointArgs) -> Result<(System, Vec<f64>), Error> {
+    let sys = System::load(&args.model)?;
+    let point = sys.model.point_with(&args.set, "--set")?;
+    Ok((sys, point))
+}
+
+fn run_dims(args: DimsArgs) -> Result<(), Error> {
+    let (sys, point) = load_point(&args.point)?;
+    let report = DimsReport::build(&sys, &point)?;
+    let text = output::render(&report, args.format)?;
+    emit(args.output.as_deref(), &text)
+}
+
+/// Print to standard output, or write a file atomically.
+fn emit(path: Option<&std::path::Path>, text: &str) -> Result<(), Error> {
+    match path {
+        None => output::write_atomic(std::path::Path::new("-"), text.as_bytes()),
+        Some(p) => output::write_atomic(p, text.as_bytes()),
+    }
+}
+
+/// Turn an error into a user-facing message and exit code.
+pub fn report_error(e: &Error) -> (String, i32) {
+    (format!("error: {e}"), e.exit_code())
+}
+
+#[allow(dead_code)]
+fn input(file: &str, key: &str, msg: &str) -> Error {
+    Error::Input(InputError::new(file, key, msg))
+}

@@ -1,0 +1,91 @@
+//! Error types shared by the library.
+//!
+//! Every error that comes from what the user wrote is an [`InputError`]: it
+//! names the file, the key (a dotted path such as `array.V.1[0][1]` or
+//! `term "tunnel".particles`) and what was expected. Errors that come from a
+//! parameter point (a V that is not positive definite) name the point.
+//! The binary maps input errors to exit code 2 and everything else to 1.
+
+use std::fmt;
+
+/// A problem with the user's input: a model file, a flag or a parameter.
+#[derive(Debug, Clone, PartialEq)]
+pub struct InputError {
+    /// The file (or `command line`) the input came from.
+    pub file: String,
+    /// Where in the file: a dotted key path, or a flag name.
+    pub key: String,
+    /// What is wrong and what was expected.
+    pub message: String,
+}
+
+impl InputError {
+    /// Build an input error.
+    pub fn new(
+        file: impl Into<String>,
+        key: impl Into<String>,
+        message: impl Into<String>,
+    ) -> Self {
+        InputError {
+            file: file.into(),
+            key: key.into(),
+            message: message.into(),
+        }
+    }
+}
+
+impl fmt::Display for InputError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        if self.key.is_empty() {
+            write!(f, "{}: {}", self.file, self.message)
+        } else {
+            write!(f, "{}: {}: {}", self.file, self.key, self.message)
+        }
+    }
+}
+
+impl std::error::Error for InputError {}
+
+/// Any failure of a library call.
+#[derive(Debug, thiserror::Error)]
+pub enum Error {
+    /// Bad input (exit code 2).
+    #[error("{0}")]
+    Input(#[from] InputError),
+    /// A parameter point at which the theory is not defined (exit code 2 for
+    /// a single point; a scan records it as the outcome "unphysical").
+    #[error("{0}")]
+    Unphysical(#[from] crate::fixed_point::Unphysical),
+    /// A numerical failure (exit code 1).
+    #[error("{0}")]
+    Numerical(String),
+    /// Reading or writing a file failed (exit code 1).
+    #[error("{path}: {source}")]
+    Io {
+        /// The file concerned.
+        path: String,
+        /// The underlying error.
+        source: std::io::Error,
+    },
+}
+
+impl Error {
+    /// The process exit code for this error: 2 for bad input, 1 otherwise.
+    pub fn exit_code(&self) -> i32 {
+        match self {
+            Error::Input(_) | Error::Unphysical(_) => 2,
+            _ => 1,
+        }
+    }
+
+    /// Wrap an I/O error with the path it concerns.
+    pub fn io(path: impl AsRef<std::path::Path>, source: std::io::Error) -> Self {
+        Error::Io {
+            path: path.as_ref().display().to_string(),
+            source,
+        }
+    }
+}
+
+/// Result alias for library calls.
+pub type Result<T> = std::result::Result<T, Error>;

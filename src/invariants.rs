@@ -1,0 +1,183 @@
+//! Exact data that does not depend on V: filling, det K, signature, and for
+//! every term its particle content, charge, conformal spin, locality, null
+//! status and mutual phases with the other terms.
+//!
+//! Formulas [Wen, Adv. Phys. 44, 405 (1995); Haldane, PRL 74, 2090 (1995)]:
+//! nu = t^T K^-1 t; for O_l = exp(i l.phi), m = K^-1 l, Q = t.m,
+//! s = (1/2) l.m (+ a fixed extra spin), mutual phase l_a^T K^-1 l_b = m_a.l_b;
+//! O_l is local iff m is integral; a cosine can pin alone only if s = 0.
+//!
+//! Arrays: K is block diagonal, so m is computed wire by wire with the cell
+//! inverse and mutual phases are sums over shared wires. Two families
+//! commute when every pair of their translates does.
+
+use num_bigint::BigInt;
+use num_traits::Zero;
+
+use crate::error::InputError;
+use crate::exact::{self, Rational};
+use crate::lattice::{Family, Lattice, Translate};
+use crate::model::Model;
+
+/// Exact data of one term family (computed on its representative translate;
+/// charge, spin and locality are the same for every translate).
+#[derive(Debug, Clone)]
+pub struct TermInvariants {
+    /// Particle content m = K^-1 l of the representative (dense).
+    pub particles: Vec<Rational>,
+    /// Charge Q = t.m.
+    pub charge: Rational,
+    /// Conformal spin (1/2) l.m plus the term's extra spin.
+    pub spin: Rational,
+    /// m integral.
+    pub local: bool,
+    /// Spin zero.
+    pub null: bool,
+    /// Q equals the charge the term is allowed to carry.
+    pub charge_ok: bool,
+    /// The term commutes with all of its own translates.
+    pub self_commuting: bool,
+}
+
+/// Exact data of a whole model.
+#[derive(Debug, Clone)]
+pub struct Invariants {
+    /// det K of all fields.
+    pub det_k: BigInt,
+    /// Signature (n+, n-).
+    pub signature: (usize, usize),
+    /// Filling t^T K^-1 t.
+    pub filling: Rational,
+    /// Cell K^-1.
+    pub cell_inverse: Vec<Vec<Rational>>,
+    /// One entry per term.
+    pub terms: Vec<TermInvariants>,
+    /// Mutual phase of term a's representative with term b's translate at
+    /// the same anchor.
+    pub commutation: Vec<Vec<Rational>>,
+    /// Every translate of a commutes with every translate of b.
+    pub commutes: Vec<Vec<bool>>,
+}
+
+impl Invariants {
+    /// Compute the exact data; fails when K is singular.
+    pub fn compute(model: &Model, lat: &Lattice) -> Result<Invariants, InputError> {
+        let key = match model.structure {
+            crate::model::Structure::Explicit => "fields.K",
+            crate::model::Structure::Array { .. } => "array.K",
+        };
+        let (cell_det, cell_inverse) = exact::det_and_inverse(&model.cell_k).ok_or_else(|| {
+            InputError::new(
+                &model.file,
+                key,
+                "K is singular (det K = 0); K must be invertible",
+            )
+        })?;
+        let det_k = num_traits::pow(cell_det.clone(), lat.wires);
+        let cell_sig = exact::signature(&model.cell_k, &cell_det).ok_or_else(|| {
+            InputError::new(
+                &model.file,
+                key,
+                "cannot determine the signature of K reliably",
+            )
+        })?;
+        let signature = (cell_sig.0 * lat.wires, cell_sig.1 * lat.wires);
+        let t_cell = &model.cell_charge;
+        let cell_filling = exact::dot_int(&exact::solve_with(&cell_inverse, t_cell), t_cell);
+        let filling = cell_filling * exact::int(lat.wires as i64);
+        let ms: Vec<Vec<Vec<Rational>>> = lat
+            .families
+            .iter()
+            .map(|f| {
+                f.translates
+                    .iter()
+                    .map(|t| particles_of(lat, &cell_inverse, t))
+                    .collect()
+            })
+            .collect();
+        let terms = model
+            .terms
+            .iter()
+            .zip(&lat.families)
+            .zip(&ms)
+            .map(|((spec, fam), m)| term_invariants(lat, spec, fam, m))
+            .collect();
+        let nf = lat.families.len();
+        let mut commutation = vec![vec![Rational::zero(); nf]; nf];
+        let mut commutes = vec![vec![true; nf]; nf];
+        for a in 0..nf {
+            for b in 0..nf {
+                let fa = &lat.families[a];
+                let rep = fa.representative;
+                commutation[a][b] = same_anchor_phase(&ms[a][rep], fa.rep(), &lat.families[b]);
+                commutes[a][b] = families_commute(&ms[a], &lat.families[b]);
+            }
+        }
+        Ok(Invariants {
+            det_k,
+            signature,
+            filling,
+            cell_inverse,
+            terms,
+            commutation,
+            commutes,
+        })
+    }
+}
+
+/// m = K^-1 l of a translate, dense, computed wire by wire.
+pub fn particles_of(lat: &Lattice, cell_inverse: &[Vec<Rational>], t: &Translate) -> Vec<Rational> {
+    let mut m = vec![Rational::zero(); lat.n];
+    for w in 0..lat.wires {
+        let slice = &t.l[w * lat.cell..(w + 1) * lat.cell];
+        if slice.iter().all(|x| *x == 0) {
+            continue;
+        }
+        for (c, r) in exact::solve_with(cell_inverse, slice)
+            .into_iter()
+            .enumerate()
+        {
+            m[w * lat.cell + c] = r;
+        }
+    }
+    m
+}
+
+fn term_invariants(
+    lat: &Lattice,
+    spec: &crate::model::TermSpec,
+    fam: &Family,
+    ms: &[Vec<Rational>],
+) -> TermInvariants {
+    let rep = fam.representative;
+    let m = &ms[rep];
+    let l = &fam.rep().l;
+    let charge = exact::dot_int(m, &lat.charge);
+    let spin = exact::dot_int(m, l) / exact::int(2) + &spec.extra_spin;
+    TermInvariants {
+        local: exact::is_integral(m),
+        null: spin.is_zero(),
+        charge_ok: charge == spec.allowed_charge,
+        self_commuting: families_commute(ms, fam),
+        particles: m.clone(),
+        charge,
+        spin,
+    }
+}
+
+fn same_anchor_phase(m_a: &[Rational], ta: &Translate, fb: &Family) -> Rational {
+    let tb = fb
+        .translates
+        .iter()
+        .find(|t| t.anchor == ta.anchor)
+        .unwrap_or_else(|| fb.rep());
+    exact::dot_int(m_a, &tb.l)
+}
+
+fn families_commute(ms_a: &[Vec<Rational>], fb: &Family) -> bool {
+    ms_a.iter().all(|m| {
+        fb.translates
+            .iter()
+            .all(|t| exact::dot_int(m, &t.l).is_zero())
+    })
+}

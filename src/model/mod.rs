@@ -1,0 +1,472 @@
+//! Model files: reading, validating and evaluating them.
+//!
+//! Reading happens in two stages: [`raw::RawModel`] mirrors the TOML file,
+//! then [`Model::from_raw`] checks every key and builds a validated model
+//! whose matrices have checked sizes and whose expressions are compiled
+//! against the declared parameters. Every error names the file and the key.
+//!
+//! Invariants of a [`Model`]: the cell K is square, symmetric and integer
+//! (its determinant is checked in [`crate::lattice`]); every V block is
+//! `n_c x n_c` with compiled entries; every term has one integer vector per
+//! wire offset, each of length `n_c`; term names are unique.
+
+pub mod expr;
+pub mod raw;
+mod values;
+
+use std::collections::BTreeSet;
+use std::path::Path;
+
+use crate::error::InputError;
+use crate::exact::Rational;
+pub use expr::{ParamSet, Scalar};
+use raw::{RawArray, RawFields, RawModel, RawTerm};
+use values::Ctx;
+
+/// How the fields are organised.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Structure {
+    /// `[fields]`: the K matrix of the whole system is given.
+    Explicit,
+    /// `[array]`: a wire cell repeated over wires.
+    Array {
+        /// Number of wires.
+        wires: Wires,
+        /// Boundary condition.
+        boundary: Boundary,
+    },
+}
+
+/// Number of wires of an array.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Wires {
+    /// A finite array.
+    Finite(usize),
+    /// The thermodynamic limit (not yet supported by the dense code path).
+    Infinite,
+}
+
+/// Boundary condition of an array.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Boundary {
+    /// Wire W-1 couples to wire 0.
+    Periodic,
+    /// Two free ends.
+    Open,
+}
+
+/// How a term's integer vectors are to be read.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Content {
+    /// Particle content m; the lattice vector is l = K m.
+    Particles,
+    /// The lattice vector l itself.
+    Vector,
+}
+
+/// A validated candidate cosine term.
+#[derive(Debug, Clone)]
+pub struct TermSpec {
+    /// Unique name.
+    pub name: String,
+    /// How `parts` is to be read.
+    pub content: Content,
+    /// (wire offset, integer vector of length n_c); explicit models have the
+    /// single offset 0 and a vector over all fields.
+    pub parts: Vec<(usize, Vec<i64>)>,
+    /// Bare coupling y.
+    pub coupling: Scalar,
+    /// Phase chi (radians).
+    pub phase: Scalar,
+    /// Fixed extra scaling dimension delta.
+    pub extra_dimension: Scalar,
+    /// Fixed extra conformal spin sigma.
+    pub extra_spin: Rational,
+    /// The term the model is meant to realise.
+    pub target: bool,
+    /// Charge the term may carry without being flagged.
+    pub allowed_charge: Rational,
+}
+
+impl TermSpec {
+    /// Largest wire offset the term touches (0 for explicit models).
+    pub fn range(&self) -> usize {
+        self.parts.iter().map(|p| p.0).max().unwrap_or(0)
+    }
+}
+
+/// A validated model (see the module docs for its invariants).
+#[derive(Debug, Clone)]
+pub struct Model {
+    /// Free-text name.
+    pub name: String,
+    /// The file it was read from (for messages).
+    pub file: String,
+    /// Named parameters with defaults.
+    pub params: ParamSet,
+    /// Explicit or array.
+    pub structure: Structure,
+    /// K of the cell (explicit models: of the whole system).
+    pub cell_k: Vec<Vec<i64>>,
+    /// Charge vector of the cell.
+    pub cell_charge: Vec<i64>,
+    /// Forward-scattering blocks by wire separation (explicit: one block).
+    pub v_blocks: Vec<Vec<Vec<Scalar>>>,
+    /// Momentum per field of the cell (wire 0).
+    pub momentum: Option<Vec<Scalar>>,
+    /// Momentum added once per wire index.
+    pub momentum_per_wire: Option<Vec<Scalar>>,
+    /// Candidate terms.
+    pub terms: Vec<TermSpec>,
+    /// The `[flow]` table, checked by the flow module.
+    pub flow_table: Option<toml::Table>,
+    /// The `[scan]` table, checked by the scan module.
+    pub scan_table: Option<toml::Table>,
+}
+
+impl Model {
+    /// Read and validate a model file.
+    pub fn load(path: &Path) -> Result<Model, InputError> {
+        let file = path.display().to_string();
+        let text = std::fs::read_to_string(path)
+            .map_err(|e| InputError::new(&file, "", format!("cannot read the model file: {e}")))?;
+        Model::parse(&text, &file)
+    }
+
+    /// Parse and validate model text; `file` names it in messages.
+    pub fn parse(text: &str, file: &str) -> Result<Model, InputError> {
+        let raw: RawModel = toml::from_str(text).map_err(|e| {
+            InputError::new(
+                file,
+                "",
+                format!("not a valid model file: {}", e.to_string().trim_end()),
+            )
+        })?;
+        Model::from_raw(raw, file)
+    }
+
+    /// Second stage: check every key of the raw model.
+    pub fn from_raw(raw: RawModel, file: &str) -> Result<Model, InputError> {
+        let ctx = Ctx::new(file);
+        let params = read_params(&ctx, &raw.params)?;
+        let mut model = match (raw.fields, raw.array) {
+            (Some(fields), None) => read_explicit(&ctx, fields, params)?,
+            (None, Some(array)) => read_array(&ctx, array, params)?,
+            (Some(_), Some(_)) => {
+                return Err(ctx.err("", "give either [fields] or [array], not both"))
+            }
+            (None, None) => {
+                return Err(ctx.err(
+                    "",
+                    "missing [fields] (explicit K, charge, V) or [array] (a wire cell repeated over wires)",
+                ))
+            }
+        };
+        model.name = raw.name.unwrap_or_else(|| file.to_string());
+        model.terms = read_terms(&ctx, &model, &raw.term)?;
+        model.flow_table = raw.flow;
+        model.scan_table = raw.scan;
+        Ok(model)
+    }
+
+    /// Number of fields in one wire cell (all fields for explicit models).
+    pub fn cell_fields(&self) -> usize {
+        self.cell_k.len()
+    }
+
+    /// Parameter point from the defaults with `name=value` overrides.
+    /// `origin` names where the overrides came from (e.g. `--set`).
+    pub fn point_with(
+        &self,
+        overrides: &[(String, f64)],
+        origin: &str,
+    ) -> Result<Vec<f64>, InputError> {
+        let mut point = self.params.defaults().to_vec();
+        for (name, value) in overrides {
+            let slot = self.params.index(name).ok_or_else(|| {
+                let known = if self.params.is_empty() {
+                    "the model has no parameters".to_string()
+                } else {
+                    format!("known parameters: {}", self.params.names().join(", "))
+                };
+                InputError::new(
+                    "command line",
+                    origin,
+                    format!("unknown parameter `{name}` ({known})"),
+                )
+            })?;
+            if !value.is_finite() {
+                return Err(InputError::new(
+                    "command line",
+                    origin,
+                    format!("`{name}` must be a finite number"),
+                ));
+            }
+            point[slot] = *value;
+        }
+        Ok(point)
+    }
+
+    /// Index of the term marked as the target, if any.
+    pub fn target(&self) -> Option<usize> {
+        self.terms.iter().position(|t| t.target)
+    }
+}
+
+fn read_params(ctx: &Ctx, table: &toml::Table) -> Result<ParamSet, InputError> {
+    let mut pairs = Vec::new();
+    for (name, value) in table {
+        let key = format!("params.{name}");
+        if !values::is_identifier(name) {
+            return Err(ctx.err(
+                &key,
+                "a parameter name must start with a letter and use letters, digits and _",
+            ));
+        }
+        let x = values::number(ctx, value, &key)?;
+        pairs.push((name.clone(), x));
+    }
+    Ok(ParamSet::new(pairs))
+}
+
+fn read_explicit(ctx: &Ctx, f: RawFields, params: ParamSet) -> Result<Model, InputError> {
+    let k = values::int_matrix(ctx, &f.k, "fields.K")?;
+    values::check_symmetric_int(ctx, &k, "fields.K")?;
+    let n = k.len();
+    let charge = values::int_vector(ctx, &f.charge, "fields.charge", n, "one per field")?;
+    let v = values::scalar_matrix(ctx, &f.v, "fields.V", &params, n)?;
+    let momentum = f
+        .momentum
+        .as_ref()
+        .map(|m| values::scalar_vector(ctx, m, "fields.momentum", &params, n))
+        .transpose()?;
+    Ok(Model {
+        name: String::new(),
+        file: ctx.file.clone(),
+        params,
+        structure: Structure::Explicit,
+        cell_k: k,
+        cell_charge: charge,
+        v_blocks: vec![v],
+        momentum,
+        momentum_per_wire: None,
+        terms: Vec::new(),
+        flow_table: None,
+        scan_table: None,
+    })
+}
+
+fn read_array(ctx: &Ctx, a: RawArray, params: ParamSet) -> Result<Model, InputError> {
+    let wires = read_wires(ctx, &a.wires)?;
+    let boundary = match a.boundary.as_deref() {
+        None | Some("periodic") => Boundary::Periodic,
+        Some("open") => Boundary::Open,
+        Some(other) => {
+            return Err(ctx.err(
+                "array.boundary",
+                format!("expected \"periodic\" or \"open\", found \"{other}\""),
+            ))
+        }
+    };
+    let k = values::int_matrix(ctx, &a.k, "array.K")?;
+    values::check_symmetric_int(ctx, &k, "array.K")?;
+    let n = k.len();
+    let charge = values::int_vector(
+        ctx,
+        &a.charge,
+        "array.charge",
+        n,
+        "one per field of the wire cell",
+    )?;
+    let v_blocks = read_blocks(ctx, &a.v, &params, n)?;
+    let vec_opt = |v: &Option<toml::Value>, key: &str| {
+        v.as_ref()
+            .map(|m| values::scalar_vector(ctx, m, key, &params, n))
+            .transpose()
+    };
+    let momentum = vec_opt(&a.momentum, "array.momentum")?;
+    let momentum_per_wire = vec_opt(&a.momentum_per_wire, "array.momentum_per_wire")?;
+    if momentum_per_wire.is_some() && momentum.is_none() {
+        return Err(ctx.err(
+            "array.momentum_per_wire",
+            "needs array.momentum (the momenta of wire 0) too",
+        ));
+    }
+    if let Wires::Finite(w) = wires {
+        check_range_fits(
+            ctx,
+            w,
+            boundary,
+            v_blocks.len() - 1,
+            "array.V",
+            "interaction range",
+        )?;
+    }
+    Ok(Model {
+        name: String::new(),
+        file: ctx.file.clone(),
+        params,
+        structure: Structure::Array { wires, boundary },
+        cell_k: k,
+        cell_charge: charge,
+        v_blocks,
+        momentum,
+        momentum_per_wire,
+        terms: Vec::new(),
+        flow_table: None,
+        scan_table: None,
+    })
+}
+
+fn read_wires(ctx: &Ctx, v: &toml::Value) -> Result<Wires, InputError> {
+    match v {
+        toml::Value::Integer(w) if *w >= 1 => Ok(Wires::Finite(*w as usize)),
+        toml::Value::String(s) if s == "infinite" => Ok(Wires::Infinite),
+        other => Err(ctx.err(
+            "array.wires",
+            format!("expected a positive integer or \"infinite\", found {other}"),
+        )),
+    }
+}
+
+/// A periodic array needs W > 2 R so that every pair of wires is coupled by
+/// one block only; an open array needs W > R.
+fn check_range_fits(
+    ctx: &Ctx,
+    wires: usize,
+    boundary: Boundary,
+    range: usize,
+    key: &str,
+    what: &str,
+) -> Result<(), InputError> {
+    let (ok, need) = match boundary {
+        Boundary::Periodic => (wires > 2 * range || range == 0, 2 * range + 1),
+        Boundary::Open => (wires > range, range + 1),
+    };
+    if ok {
+        Ok(())
+    } else {
+        let b = if boundary == Boundary::Periodic {
+            "periodic"
+        } else {
+            "open"
+        };
+        Err(ctx.err(
+            key,
+            format!("{what} {range} does not fit a {b} array of {wires} wires (needs at least {need} wires)"),
+        ))
+    }
+}
+
+fn read_blocks(
+    ctx: &Ctx,
+    table: &toml::Table,
+    params: &ParamSet,
+    n: usize,
+) -> Result<Vec<Vec<Vec<Scalar>>>, InputError> {
+    let mut by_sep: Vec<Option<Vec<Vec<Scalar>>>> = Vec::new();
+    for (key, value) in table {
+        let full = format!("array.V.{key}");
+        let sep = values::offset_key(ctx, key, &full)?;
+        let block = values::scalar_matrix(ctx, value, &full, params, n)?;
+        if by_sep.len() <= sep {
+            by_sep.resize(sep + 1, None);
+        }
+        by_sep[sep] = Some(block);
+    }
+    if by_sep.first().is_none_or(|b| b.is_none()) {
+        return Err(ctx.err(
+            "array.V",
+            "missing block 0 (the intrawire forward scattering)",
+        ));
+    }
+    Ok(by_sep
+        .into_iter()
+        .map(|b| b.unwrap_or_else(|| vec![vec![Scalar::Const(0.0); n]; n]))
+        .collect())
+}
+
+fn read_terms(ctx: &Ctx, model: &Model, raw: &[RawTerm]) -> Result<Vec<TermSpec>, InputError> {
+    let mut names = BTreeSet::new();
+    let mut terms = Vec::with_capacity(raw.len());
+    for t in raw {
+        let key = format!("term \"{}\"", t.name);
+        if t.name.trim().is_empty() {
+            return Err(ctx.err("term.name", "a term needs a non-empty name"));
+        }
+        if !names.insert(t.name.clone()) {
+            return Err(ctx.err(&key, "duplicate term name (names must be unique)"));
+        }
+        terms.push(read_term(ctx, model, t, &key)?);
+    }
+    if terms.iter().filter(|t| t.target).count() > 1 {
+        return Err(ctx.err(
+            "term.target",
+            "at most one term may be marked as the target",
+        ));
+    }
+    Ok(terms)
+}
+
+fn read_term(ctx: &Ctx, model: &Model, t: &RawTerm, key: &str) -> Result<TermSpec, InputError> {
+    let (content, value, sub) = match (&t.particles, &t.vector) {
+        (Some(p), None) => (Content::Particles, p, "particles"),
+        (None, Some(v)) => (Content::Vector, v, "vector"),
+        (Some(_), Some(_)) => {
+            return Err(ctx.err(key, "give either `particles` or `vector`, not both"))
+        }
+        (None, None) => {
+            return Err(ctx.err(
+                key,
+                "missing `particles` (particle content m) or `vector` (lattice vector l)",
+            ))
+        }
+    };
+    let vkey = format!("{key}.{sub}");
+    let n = model.cell_fields();
+    let parts = match model.structure {
+        Structure::Explicit => vec![(
+            0,
+            values::int_vector(ctx, value, &vkey, n, "one per field")?,
+        )],
+        Structure::Array { .. } => values::offset_vectors(ctx, value, &vkey, n)?,
+    };
+    if parts.iter().all(|(_, v)| v.iter().all(|x| *x == 0)) {
+        return Err(ctx.err(&vkey, "the zero vector is not a cosine term"));
+    }
+    if let Structure::Array {
+        wires: Wires::Finite(w),
+        ..
+    } = model.structure
+    {
+        let range = parts.iter().map(|p| p.0).max().unwrap_or(0);
+        if w <= range {
+            return Err(ctx.err(
+                &vkey,
+                format!("the term reaches wire offset {range}, which does not fit an array of {w} wires"),
+            ));
+        }
+    }
+    let scalar =
+        |v: &Option<toml::Value>, name: &str, default: f64| -> Result<Scalar, InputError> {
+            match v {
+                None => Ok(Scalar::Const(default)),
+                Some(v) => values::scalar(ctx, v, &format!("{key}.{name}"), &model.params),
+            }
+        };
+    Ok(TermSpec {
+        name: t.name.clone(),
+        content,
+        parts,
+        coupling: scalar(&t.coupling, "coupling", 0.1)?,
+        phase: scalar(&t.phase, "phase", 0.0)?,
+        extra_dimension: scalar(&t.extra_dimension, "extra_dimension", 0.0)?,
+        extra_spin: values::rational_opt(ctx, t.extra_spin.as_ref(), &format!("{key}.extra_spin"))?,
+        target: t.target.unwrap_or(false),
+        allowed_charge: values::rational_opt(
+            ctx,
+            t.allowed_charge.as_ref(),
+            &format!("{key}.allowed_charge"),
+        )?,
+    })
+}

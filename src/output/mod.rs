@@ -1,0 +1,130 @@
+//! Output formats shared by every command.
+//!
+//! A command's result is one documented struct that implements [`Report`]
+//! (for the text-like formats) and `serde::Serialize` (for JSON). Each
+//! format is a small file here: [`text`] (aligned terminal tables),
+//! [`markdown`], [`latex`] (a table for a paper's appendix), [`csv`] (one
+//! table, machine-readable) and JSON via serde. Files are written with
+//! [`write_atomic`]: a temporary file in the target directory renamed into
+//! place, so a failure never leaves a half-written output.
+
+pub mod csv;
+pub mod latex;
+pub mod markdown;
+pub mod text;
+
+use std::io::Write;
+use std::path::Path;
+
+use serde::Serialize;
+
+use crate::error::Error;
+
+/// Output formats of the reporting commands.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum, Default)]
+pub enum Format {
+    /// Aligned tables for a terminal.
+    #[default]
+    Text,
+    /// JSON (every field of the result).
+    Json,
+    /// CSV (the main table).
+    Csv,
+    /// Markdown tables.
+    Markdown,
+    /// LaTeX tabular environments.
+    Latex,
+}
+
+/// A table of strings with a caption.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Table {
+    /// Caption.
+    pub caption: String,
+    /// Column headers.
+    pub headers: Vec<String>,
+    /// Rows (each as long as `headers`).
+    pub rows: Vec<Vec<String>>,
+}
+
+impl Table {
+    /// Empty table with the given headers.
+    pub fn new(caption: &str, headers: &[&str]) -> Table {
+        Table::with_headers(caption, headers.iter().map(|h| h.to_string()).collect())
+    }
+
+    /// Empty table with owned headers.
+    pub fn with_headers(caption: &str, headers: Vec<String>) -> Table {
+        Table {
+            caption: caption.to_string(),
+            headers,
+            rows: Vec::new(),
+        }
+    }
+
+    /// Append a row.
+    pub fn push(&mut self, row: Vec<String>) {
+        debug_assert_eq!(row.len(), self.headers.len());
+        self.rows.push(row);
+    }
+}
+
+/// What the text-like formats need from a result.
+pub trait Report {
+    /// One-line title.
+    fn title(&self) -> String;
+    /// Key facts printed above the tables.
+    fn facts(&self) -> Vec<(String, String)>;
+    /// Tables in order.
+    fn tables(&self) -> Vec<Table>;
+    /// The single table written as CSV.
+    fn csv_table(&self) -> Table;
+    /// Notes printed after the tables (limits of the method, warnings).
+    fn notes(&self) -> Vec<String>;
+}
+
+/// Render a result in a format.
+pub fn render<R: Report + Serialize>(report: &R, format: Format) -> Result<String, Error> {
+    Ok(match format {
+        Format::Text => text::render(report),
+        Format::Markdown => markdown::render(report),
+        Format::Latex => latex::render(report),
+        Format::Csv => csv::render(&report.csv_table())?,
+        Format::Json => to_json(report)?,
+    })
+}
+
+/// Pretty JSON with a trailing newline.
+pub fn to_json<T: Serialize>(value: &T) -> Result<String, Error> {
+    let mut s = serde_json::to_string_pretty(value)
+        .map_err(|e| Error::Numerical(format!("cannot write JSON: {e}")))?;
+    s.push('\n');
+    Ok(s)
+}
+
+/// Write bytes to `path` atomically: a temporary file beside it, then a
+/// rename. `-` means standard output.
+pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<(), Error> {
+    if path.as_os_str() == "-" {
+        let mut out = std::io::stdout().lock();
+        return out
+            .write_all(bytes)
+            .and_then(|_| out.flush())
+            .map_err(|e| Error::io("standard output", e));
+    }
+    let tmp = temp_path(path);
+    std::fs::write(&tmp, bytes).map_err(|e| Error::io(path, e))?;
+    std::fs::rename(&tmp, path).map_err(|e| {
+        let _ = std::fs::remove_file(&tmp);
+        Error::io(path, e)
+    })
+}
+
+/// The temporary name used by [`write_atomic`] for `path`.
+pub fn temp_path(path: &Path) -> std::path::PathBuf {
+    let name = path
+        .file_name()
+        .map(|n| n.to_string_lossy().to_string())
+        .unwrap_or_default();
+    path.with_file_name(format!(".{name}.partial"))
+}
