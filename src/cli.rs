@@ -10,6 +10,9 @@ use clap::{Args, Parser, Subcommand};
 
 use crate::dims::DimsReport;
 use crate::error::{Error, InputError};
+use crate::flow::options::FlowOverrides;
+use crate::flow::report::FlowReport;
+use crate::flow::{Flow, FlowOptions, Outcome};
 use crate::output::{self, Format};
 use crate::system::System;
 
@@ -28,6 +31,9 @@ pub struct Cli {
 pub enum Command {
     /// Exact and fixed-point data of every term of a model at one parameter point.
     Dims(DimsArgs),
+    /// Second-order RG flow of every term at one parameter point: which term
+    /// reaches strong coupling first, and at what scale.
+    Flow(FlowArgs),
 }
 
 /// Options shared by commands that evaluate a model at one point.
@@ -53,6 +59,21 @@ pub struct DimsArgs {
     pub output: Option<PathBuf>,
 }
 
+/// `pinflow flow`.
+#[derive(Debug, Args)]
+pub struct FlowArgs {
+    #[command(flatten)]
+    pub point: PointArgs,
+    #[command(flatten)]
+    pub flow: FlowOverrides,
+    /// Output format of the summary on standard output.
+    #[arg(long, value_enum, default_value_t = Format::Text)]
+    pub format: Format,
+    /// Also write summary.json, trajectory.csv, flow.png and flow.svg into this directory.
+    #[arg(long, value_name = "DIR")]
+    pub out: Option<PathBuf>,
+}
+
 /// Parse `name=value`.
 pub fn parse_assignment(s: &str) -> Result<(String, f64), String> {
     let (name, value) = s
@@ -76,6 +97,7 @@ pub fn parse_assignment(s: &str) -> Result<(String, f64), String> {
 pub fn run(cli: Cli) -> Result<(), Error> {
     match cli.command {
         Command::Dims(args) => run_dims(args),
+        Command::Flow(args) => run_flow(args),
     }
 }
 
@@ -92,6 +114,30 @@ fn run_dims(args: DimsArgs) -> Result<(), Error> {
     emit(args.output.as_deref(), &text)
 }
 
+fn run_flow(args: FlowArgs) -> Result<(), Error> {
+    let (sys, point) = load_point(&args.point)?;
+    let opts = FlowOptions::resolve(&sys.model, &args.flow)?;
+    let flow = Flow::new(&sys, opts.clone());
+    let result = flow.run(&point)?;
+    let unphysical = result.outcome == Outcome::Unphysical;
+    let report = FlowReport::new(
+        &sys.model.name,
+        sys.model.params.names(),
+        &point,
+        result,
+        opts,
+    );
+    if let Some(dir) = &args.out {
+        report.write_dir(dir)?;
+    }
+    emit(None, &output::render(&report, args.format)?)?;
+    if unphysical {
+        let msg = report.result.message.clone().unwrap_or_default();
+        return Err(Error::Input(InputError::new(&sys.model.file, "", msg)));
+    }
+    Ok(())
+}
+
 /// Print to standard output, or write a file atomically.
 fn emit(path: Option<&std::path::Path>, text: &str) -> Result<(), Error> {
     match path {
@@ -103,9 +149,4 @@ fn emit(path: Option<&std::path::Path>, text: &str) -> Result<(), Error> {
 /// Turn an error into a user-facing message and exit code.
 pub fn report_error(e: &Error) -> (String, i32) {
     (format!("error: {e}"), e.exit_code())
-}
-
-#[allow(dead_code)]
-fn input(file: &str, key: &str, msg: &str) -> Error {
-    Error::Input(InputError::new(file, key, msg))
 }

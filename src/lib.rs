@@ -22,6 +22,7 @@ pub mod dims;
 pub mod error;
 pub mod exact;
 pub mod fixed_point;
+pub mod flow;
 pub mod invariants;
 pub mod lattice;
 pub mod model;

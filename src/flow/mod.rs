@@ -1,0 +1,618 @@
+//! Second-order ("one-loop") RG flow of competing cosine couplings together
+//! with the renormalised fixed point, integrated with the Dormand-Prince
+//! 5(4) method of `ode_solvers`.
+//!
+//! Method and limits [physics reference section 3]: first order (the
+//! tree-level 2 - Delta) is exact for any V; the OPE and D-feedback terms
+//! are second order in the couplings and use a single reference velocity.
+//! Results are trustworthy while the couplings are small; "strong coupling"
+//! means the perturbative flow has left its domain (|y| reaches y_strong),
+//! and the gap estimate E ~ (u/alpha) e^{-ell*} is an order of magnitude.
+//!
+//! Organisation: [`channels`] builds the exact plan (which couplings can
+//! flow, OPE table), [`background`] stores D, [`rhs`] holds the equations
+//! and the stop hook, [`report`] turns a [`FlowResult`] into outputs. A
+//! term with momentum mismatch k flows only up to ell_k = ln(1/|k|); the
+//! integration restarts at each such breakpoint so the right-hand side is
+//! smooth within each segment.
+
+pub mod background;
+pub mod channels;
+pub mod options;
+pub mod report;
+pub mod rhs;
+
+use nalgebra::DVector;
+use num_traits::Zero;
+use ode_solvers::continuous_output_model::ContinuousOutputModel;
+use ode_solvers::dop_shared::OutputType;
+use ode_solvers::Dopri5;
+use serde::Serialize;
+
+use crate::error::{Error, InputError};
+use crate::exact::{self, fmt_rational};
+use crate::model::Boundary;
+use crate::system::System;
+use background::Background;
+use channels::{Channel, Origin, Plan};
+pub use options::{Closure, FlowOptions};
+use rhs::{FlowRhs, Sample, Stop};
+
+/// The outcome of one flow.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Outcome {
+    /// A null term reached strong coupling: it pins and opens a gap.
+    Strong,
+    /// A term with non-zero conformal spin reached strong coupling: the fixed
+    /// point is unstable, but this term cannot open a gap on its own.
+    Spinful,
+    /// Every coupling decayed with every dimension above 2.
+    Gapless,
+    /// ell_max reached otherwise (near-marginal flows).
+    Undecided,
+    /// V is not positive definite at the point.
+    Unphysical,
+    /// The integrator could not continue.
+    Failed,
+}
+
+impl Outcome {
+    /// The word used in every output.
+    pub fn word(self) -> &'static str {
+        match self {
+            Outcome::Strong => "strong",
+            Outcome::Spinful => "spinful",
+            Outcome::Gapless => "gapless",
+            Outcome::Undecided => "undecided",
+            Outcome::Unphysical => "unphysical",
+            Outcome::Failed => "failed",
+        }
+    }
+}
+
+/// Start and end of one channel's flow.
+#[derive(Debug, Clone, Serialize)]
+pub struct ChannelResult {
+    /// Name.
+    pub name: String,
+    /// "listed" or "generated".
+    pub origin: String,
+    /// For generated channels: how they were generated (e.g. "a+b").
+    pub parents: Option<String>,
+    /// Bare coupling y (as given; sign included).
+    pub coupling0: f64,
+    /// Bare phase chi.
+    pub phase0: f64,
+    /// Bare total dimension.
+    pub dimension0: f64,
+    /// |y| at the end of the flow.
+    pub coupling: f64,
+    /// Phase of the coupling at the end.
+    pub phase: f64,
+    /// Total dimension at the end of the flow.
+    pub dimension: f64,
+    /// Conformal spin (exact).
+    pub spin: String,
+    /// Charge (exact).
+    pub charge: String,
+    /// Momentum mismatch (units of 1/alpha), when momenta are given.
+    pub momentum: Option<f64>,
+    /// Scale at which a mismatched term stops flowing.
+    pub ell_k: Option<f64>,
+}
+
+/// The result of one flow.
+#[derive(Debug, Clone, Serialize)]
+pub struct FlowResult {
+    /// Outcome word.
+    pub outcome: Outcome,
+    /// Index of the winning channel.
+    #[serde(skip)]
+    pub winner_index: Option<usize>,
+    /// Name of the winning channel.
+    pub winner: Option<String>,
+    /// Scale at which the winner reached y_strong.
+    pub ell_star: Option<f64>,
+    /// Gap estimate relative to the bandwidth u/alpha: e^{-ell*}.
+    pub gap: Option<f64>,
+    /// Where the integration ended.
+    pub ell_end: f64,
+    /// Every channel that flowed (listed first).
+    pub terms: Vec<ChannelResult>,
+    /// Terms that commute with the winner (may pin together with it).
+    pub commuting_with_winner: Vec<String>,
+    /// Terms that do not commute with the winner (pinning suppresses them).
+    pub suppressed: Vec<String>,
+    /// Largest |D K D - K^-1| entry relative to |K^-1| at the end.
+    pub dkd_drift: f64,
+    /// Accepted integration steps.
+    pub steps: usize,
+    /// A message for unphysical or failed points.
+    pub message: Option<String>,
+    /// Trajectory (when recorded).
+    #[serde(skip)]
+    pub samples: Vec<Sample>,
+}
+
+/// A model prepared for many flows with the same options.
+pub struct Flow<'s> {
+    /// The system.
+    pub sys: &'s System,
+    /// Channels and OPE table.
+    pub plan: Plan,
+    /// Options.
+    pub opts: FlowOptions,
+    bg: Background,
+}
+
+impl<'s> Flow<'s> {
+    /// Prepare the plan (exact work done once).
+    pub fn new(sys: &'s System, opts: FlowOptions) -> Flow<'s> {
+        let plan = Plan::build(sys, opts.closure == Closure::Pairs);
+        let lat = &sys.lattice;
+        let bg = match lat.boundary {
+            Some(Boundary::Periodic) if lat.wires > 1 => Background::Circulant {
+                wires: lat.wires,
+                cell: lat.cell,
+            },
+            _ => Background::Dense { n: lat.n },
+        };
+        Flow {
+            sys,
+            plan,
+            opts,
+            bg,
+        }
+    }
+
+    /// Flow at one parameter point.
+    pub fn run(&self, point: &[f64]) -> Result<FlowResult, Error> {
+        let fp = match self.sys.fixed_point(point) {
+            Ok(fp) => fp,
+            Err(Error::Unphysical(u)) => {
+                return Ok(FlowResult::without_flow(Outcome::Unphysical, u.to_string()))
+            }
+            Err(e) => return Err(e),
+        };
+        let bare = self.bare_couplings(point)?;
+        let extra_listed = self.sys.extra_dimensions(point)?;
+        let mut d0 = vec![0.0; self.bg.len()];
+        self.bg.write(&fp.d, &mut d0);
+        let included = self.included(&d0);
+        let channels: Vec<&Channel> = included.iter().map(|&c| &self.plan.channels[c]).collect();
+        let extra: Vec<f64> = included
+            .iter()
+            .map(|&c| extra_of(&self.plan.channels[c], &extra_listed))
+            .collect();
+        let ope = remap_ope(&self.plan, &included);
+        let momenta = self.momenta(point, &included);
+        let mut rhs = FlowRhs::new(self.bg.clone(), channels, extra, ope);
+        rhs.y_strong = self.opts.y_strong;
+        rhs.floor = self.opts.floor;
+        rhs.record = self.opts.record;
+        let mut y0 = DVector::zeros(rhs.state_len());
+        for (i, &c) in included.iter().enumerate() {
+            if let Some((y, chi)) = bare.get(c).copied() {
+                y0[2 * i] = 0.5 * y * chi.cos();
+                y0[2 * i + 1] = 0.5 * y * chi.sin();
+            }
+        }
+        y0.as_mut_slice()[2 * included.len()..].copy_from_slice(&d0);
+        let y_start = y0.clone();
+        let ell_k: Vec<Option<f64>> = momenta.iter().map(|k| k.and_then(cutoff_scale)).collect();
+        let integrated = integrate(&mut rhs, y0, &ell_k, &self.opts);
+        Ok(self.summarise(
+            &rhs, &included, &bare, &y_start, &momenta, &ell_k, integrated,
+        ))
+    }
+
+    /// (y, chi) of every listed channel at a point.
+    fn bare_couplings(&self, point: &[f64]) -> Result<Vec<(f64, f64)>, Error> {
+        self.sys
+            .model
+            .terms
+            .iter()
+            .map(|t| {
+                let (y, chi) = (t.coupling.eval(point), t.phase.eval(point));
+                if !y.is_finite() || !chi.is_finite() {
+                    let what = if y.is_finite() { "phase" } else { "coupling" };
+                    return Err(Error::Input(InputError::new(
+                        &self.sys.model.file,
+                        format!("term \"{}\".{what}", t.name),
+                        format!(
+                            "must be a finite number, found {} at {}",
+                            if y.is_finite() { chi } else { y },
+                            self.sys.model.params.describe(point)
+                        ),
+                    )));
+                }
+                Ok((y, chi))
+            })
+            .collect()
+    }
+
+    /// Listed channels plus generated ones below the closure bound.
+    fn included(&self, d0: &[f64]) -> Vec<usize> {
+        (0..self.plan.channels.len())
+            .filter(|&c| {
+                c < self.plan.listed || {
+                    let ch = &self.plan.channels[c];
+                    self.bg
+                        .dimension(d0, &ch.l_sparse[ch.family.representative])
+                        < self.opts.closure_bound
+                }
+            })
+            .collect()
+    }
+
+    fn momenta(&self, point: &[f64], included: &[usize]) -> Vec<Option<f64>> {
+        let k = self.sys.lattice.momenta(&self.sys.model, point);
+        included
+            .iter()
+            .map(|&c| {
+                k.as_ref().map(|k| {
+                    self.plan.channels[c]
+                        .particles
+                        .iter()
+                        .zip(k)
+                        .map(|(m, p)| exact::to_f64(m) * p)
+                        .sum()
+                })
+            })
+            .collect()
+    }
+
+    #[allow(clippy::too_many_arguments)]
+    fn summarise(
+        &self,
+        rhs: &FlowRhs,
+        included: &[usize],
+        bare: &[(f64, f64)],
+        y_start: &DVector<f64>,
+        momenta: &[Option<f64>],
+        ell_k: &[Option<f64>],
+        integrated: Integrated,
+    ) -> FlowResult {
+        let y_end = integrated.state.as_slice();
+        let nc = included.len();
+        let terms = (0..nc)
+            .map(|i| {
+                let ch = &self.plan.channels[included[i]];
+                let (y0, chi0) = bare.get(included[i]).copied().unwrap_or((0.0, 0.0));
+                ChannelResult {
+                    name: ch.name.clone(),
+                    origin: if matches!(ch.origin, Origin::Listed(_)) {
+                        "listed"
+                    } else {
+                        "generated"
+                    }
+                    .to_string(),
+                    parents: parents_of(&self.plan, ch),
+                    coupling0: y0,
+                    phase0: chi0,
+                    dimension0: rhs.dimension(y_start.as_slice(), i),
+                    coupling: rhs.coupling(y_end, i),
+                    phase: y_end[2 * i + 1].atan2(y_end[2 * i]),
+                    dimension: rhs.dimension(y_end, i),
+                    spin: fmt_rational(&ch.spin),
+                    charge: fmt_rational(&ch.charge),
+                    momentum: momenta[i],
+                    ell_k: ell_k[i],
+                }
+            })
+            .collect();
+        let d_end = self.bg.dense(&y_end[2 * nc..]);
+        let mut result = FlowResult {
+            outcome: integrated.outcome,
+            winner_index: integrated.winner,
+            winner: integrated
+                .winner
+                .map(|w| self.plan.channels[included[w]].name.clone()),
+            ell_star: integrated.ell_star,
+            gap: integrated.ell_star.map(|l| (-l).exp()),
+            ell_end: integrated.ell_end,
+            terms,
+            commuting_with_winner: Vec::new(),
+            suppressed: Vec::new(),
+            dkd_drift: dkd_drift(&self.sys.k, &d_end),
+            steps: rhs.steps,
+            message: integrated.message,
+            samples: rhs.samples.clone(),
+        };
+        if let Some(w) = integrated.winner {
+            let win = &self.plan.channels[included[w]];
+            for (i, &c) in included.iter().enumerate() {
+                if i == w {
+                    continue;
+                }
+                let other = &self.plan.channels[c];
+                let commutes = other
+                    .family
+                    .translates
+                    .iter()
+                    .all(|t| exact::dot_int(&win.particles, &t.l).is_zero());
+                let list = if commutes {
+                    &mut result.commuting_with_winner
+                } else {
+                    &mut result.suppressed
+                };
+                list.push(other.name.clone());
+            }
+        }
+        result
+    }
+}
+
+impl FlowResult {
+    /// A result for a point that could not be flowed.
+    pub fn without_flow(outcome: Outcome, message: String) -> FlowResult {
+        FlowResult {
+            outcome,
+            winner_index: None,
+            winner: None,
+            ell_star: None,
+            gap: None,
+            ell_end: 0.0,
+            terms: Vec::new(),
+            commuting_with_winner: Vec::new(),
+            suppressed: Vec::new(),
+            dkd_drift: 0.0,
+            steps: 0,
+            message: Some(message),
+            samples: Vec::new(),
+        }
+    }
+}
+
+fn extra_of(ch: &Channel, extra_listed: &[f64]) -> f64 {
+    match ch.origin {
+        Origin::Listed(i) => extra_listed[i],
+        Origin::Generated { .. } => 0.0,
+    }
+}
+
+fn parents_of(plan: &Plan, ch: &Channel) -> Option<String> {
+    match ch.origin {
+        Origin::Listed(_) => None,
+        Origin::Generated { a, sign, b, shift } => {
+            let op = if sign > 0 { "+" } else { "-" };
+            let (na, nb) = (&plan.channels[a].name, &plan.channels[b].name);
+            Some(if shift == 0 {
+                format!("{na} {op} {nb}")
+            } else {
+                format!("{na} {op} {nb} shifted by {shift} wires")
+            })
+        }
+    }
+}
+
+/// OPE entries among included channels, with compact indices.
+fn remap_ope(plan: &Plan, included: &[usize]) -> Vec<channels::OpeEntry> {
+    let mut pos = vec![usize::MAX; plan.channels.len()];
+    for (i, &c) in included.iter().enumerate() {
+        pos[c] = i;
+    }
+    plan.ope
+        .iter()
+        .filter(|e| pos[e.target] != usize::MAX && pos[e.a] != usize::MAX && pos[e.b] != usize::MAX)
+        .map(|e| channels::OpeEntry {
+            target: pos[e.target],
+            a: pos[e.a],
+            b: pos[e.b],
+            ..*e
+        })
+        .collect()
+}
+
+/// ell_k = ln(1/|k|) for a mismatched term; None when k = 0 (within the
+/// tolerance of `dims`).
+pub fn cutoff_scale(k: f64) -> Option<f64> {
+    (k.abs() >= crate::dims::MOMENTUM_TOLERANCE).then(|| -(k.abs().ln()))
+}
+
+/// max |D K D - K^-1| / max |K^-1|.
+pub fn dkd_drift(k: &nalgebra::DMatrix<f64>, d: &nalgebra::DMatrix<f64>) -> f64 {
+    let Some(kinv) = k.clone().try_inverse() else {
+        return f64::NAN;
+    };
+    let diff = d * k * d - &kinv;
+    diff.amax() / kinv.amax()
+}
+
+/// What the integration produced.
+struct Integrated {
+    outcome: Outcome,
+    winner: Option<usize>,
+    ell_star: Option<f64>,
+    ell_end: f64,
+    state: DVector<f64>,
+    message: Option<String>,
+}
+
+/// Integrate segment by segment between the momentum cut-offs.
+fn integrate(
+    rhs: &mut FlowRhs,
+    mut y: DVector<f64>,
+    ell_k: &[Option<f64>],
+    opts: &FlowOptions,
+) -> Integrated {
+    let mut breaks: Vec<f64> = ell_k
+        .iter()
+        .flatten()
+        .copied()
+        .filter(|l| *l > 0.0 && *l < opts.ell_max)
+        .collect();
+    breaks.push(opts.ell_max);
+    breaks.sort_by(f64::total_cmp);
+    // Cut-offs closer than this are one breakpoint (their terms stop together).
+    breaks.dedup_by(|b, a| *b - *a < 1e-9);
+    let mut start = 0.0;
+    for end in breaks {
+        for (c, k) in ell_k.iter().enumerate() {
+            rhs.active[c] = k.is_none_or(|l| l > start + 1e-9);
+        }
+        if rhs.samples.is_empty() && rhs.record {
+            let y_s = y.clone();
+            rhs.samples.push(Sample {
+                ell: 0.0,
+                couplings: (0..rhs.channels.len())
+                    .map(|c| rhs.coupling(y_s.as_slice(), c))
+                    .collect(),
+                dimensions: (0..rhs.channels.len())
+                    .map(|c| rhs.dimension(y_s.as_slice(), c))
+                    .collect(),
+            });
+        }
+        if end <= start {
+            continue;
+        }
+        rhs.last_ell = start;
+        let seg = run_segment(rhs, y.clone(), start, end, opts);
+        match seg {
+            Err(ell) => {
+                return Integrated {
+                    outcome: Outcome::Failed,
+                    winner: None,
+                    ell_star: None,
+                    ell_end: ell,
+                    state: y,
+                    message: Some(format!("integration failed at ell = {ell:.6}")),
+                }
+            }
+            Ok((state, model)) => {
+                y = state;
+                match rhs.stop {
+                    Some(Stop::Strong {
+                        ell_before,
+                        ell_after,
+                    }) => return strong_result(rhs, &model, y, ell_before, ell_after),
+                    Some(Stop::Decayed { ell }) => {
+                        return Integrated {
+                            outcome: Outcome::Gapless,
+                            winner: None,
+                            ell_star: None,
+                            ell_end: ell,
+                            state: y,
+                            message: None,
+                        }
+                    }
+                    None => {}
+                }
+                if !y.iter().all(|x| x.is_finite()) {
+                    return Integrated {
+                        outcome: Outcome::Failed,
+                        winner: None,
+                        ell_star: None,
+                        ell_end: end,
+                        state: y,
+                        message: Some(format!(
+                            "non-finite values in the flow before ell = {end:.6}"
+                        )),
+                    };
+                }
+            }
+        }
+        start = end;
+    }
+    Integrated {
+        outcome: Outcome::Undecided,
+        winner: None,
+        ell_star: None,
+        ell_end: opts.ell_max,
+        state: y,
+        message: None,
+    }
+}
+
+type Dense = ContinuousOutputModel<f64, DVector<f64>>;
+
+/// One segment; returns the final state and the dense-output model, or the
+/// ell at which the integrator gave up.
+fn run_segment(
+    rhs: &mut FlowRhs,
+    y: DVector<f64>,
+    start: f64,
+    end: f64,
+    opts: &FlowOptions,
+) -> Result<(DVector<f64>, Dense), f64> {
+    let mut solver = Dopri5::from_param(
+        rhs,
+        start,
+        end,
+        0.0,
+        y,
+        opts.rtol,
+        opts.atol,
+        0.9,
+        0.04,
+        0.2,
+        10.0,
+        end - start,
+        0.0,
+        opts.max_steps,
+        u32::MAX,
+        OutputType::Continuous,
+    );
+    let mut model = Dense::default();
+    match solver.integrate_with_continuous_output_model(&mut model) {
+        Ok(_) => {
+            let last = solver.y_out().last().cloned().ok_or(start)?;
+            Ok((last, model))
+        }
+        Err(e) => Err(failure_ell(&e, start)),
+    }
+}
+
+fn failure_ell(e: &ode_solvers::dop_shared::IntegrationError, start: f64) -> f64 {
+    use ode_solvers::dop_shared::IntegrationError as E;
+    match e {
+        E::MaxNumStepReached { x, .. }
+        | E::StepSizeUnderflow { x }
+        | E::StiffnessDetected { x } => *x,
+        #[allow(unreachable_patterns)]
+        _ => start,
+    }
+}
+
+/// Locate ell* inside the last step by bisection on the dense output.
+fn strong_result(
+    rhs: &FlowRhs,
+    model: &Dense,
+    y_end: DVector<f64>,
+    lo: f64,
+    hi: f64,
+) -> Integrated {
+    let above = |ell: f64| -> Option<(usize, f64)> {
+        let y = model.evaluate(ell)?;
+        rhs.strongest(y.as_slice())
+    };
+    let (mut a, mut b) = (lo, hi);
+    for _ in 0..60 {
+        let mid = 0.5 * (a + b);
+        match above(mid) {
+            Some((_, g)) if g >= rhs.y_strong => b = mid,
+            Some(_) => a = mid,
+            None => break,
+        }
+        if b - a < 1e-12 * (1.0 + b.abs()) {
+            break;
+        }
+    }
+    let winner = above(b)
+        .or_else(|| rhs.strongest(y_end.as_slice()))
+        .map(|(c, _)| c);
+    let spinful = winner.is_some_and(|w| !rhs.channels[w].null());
+    Integrated {
+        outcome: if spinful {
+            Outcome::Spinful
+        } else {
+            Outcome::Strong
+        },
+        winner,
+        ell_star: Some(b),
+        ell_end: hi,
+        state: y_end,
+        message: None,
+    }
+}

@@ -1,0 +1,213 @@
+//! The `pinflow flow` report: summary in every format, the trajectory CSV
+//! and the output directory.
+
+use std::path::Path;
+
+use serde::Serialize;
+
+use super::{FlowOptions, FlowResult, Outcome};
+use crate::error::Error;
+use crate::output::{self, Report, Table};
+
+/// The limits of the method, stated with every flow result.
+pub const METHOD_NOTE: &str = "Second-order (one-loop) weak-coupling RG around a Gaussian fixed point with a single reference velocity; \"strong\" means |y| reached y_strong, where perturbation theory stops being reliable. The gap estimate e^-ell* is an order of magnitude.";
+
+/// Everything `pinflow flow` reports.
+#[derive(Debug, Clone, Serialize)]
+pub struct FlowReport {
+    /// Model name.
+    pub model: String,
+    /// Parameter point.
+    pub parameters: serde_json::Map<String, serde_json::Value>,
+    /// The result (flattened: `outcome`, `winner`, `ell_star`, `terms`, ...).
+    #[serde(flatten)]
+    pub result: FlowResult,
+    /// Options used.
+    pub options: FlowOptions,
+    /// Limits of the method.
+    pub notes: Vec<String>,
+}
+
+impl FlowReport {
+    /// Wrap a result.
+    pub fn new(
+        model: &str,
+        names: &[String],
+        point: &[f64],
+        result: FlowResult,
+        options: FlowOptions,
+    ) -> Self {
+        let parameters = names
+            .iter()
+            .cloned()
+            .zip(point.iter().map(|x| serde_json::json!(x)))
+            .collect();
+        let mut notes = vec![METHOD_NOTE.to_string()];
+        if result.dkd_drift > 1e-6 {
+            notes.push(format!(
+                "the flowing D drifted from D K D = K^-1 by {:.2e} (relative); tighten --rtol",
+                result.dkd_drift
+            ));
+        }
+        FlowReport {
+            model: model.to_string(),
+            parameters,
+            result,
+            options,
+            notes,
+        }
+    }
+
+    /// One sentence saying what happened.
+    pub fn headline(&self) -> String {
+        let r = &self.result;
+        match r.outcome {
+            Outcome::Strong => format!(
+                "{} reaches strong coupling first, at ell* = {:.4} (gap ~ {:.3e} of the bandwidth u/alpha)",
+                r.winner.as_deref().unwrap_or("?"),
+                r.ell_star.unwrap_or(f64::NAN),
+                r.gap.unwrap_or(f64::NAN)
+            ),
+            Outcome::Spinful => format!(
+                "{} (conformal spin != 0) reaches strong coupling at ell* = {:.4}: the fixed point is unstable, but this term alone opens no gap",
+                r.winner.as_deref().unwrap_or("?"),
+                r.ell_star.unwrap_or(f64::NAN)
+            ),
+            Outcome::Gapless => format!("every coupling decayed by ell = {:.4}: gapless (stable fixed point)", r.ell_end),
+            Outcome::Undecided => format!("no decision by ell_max = {} (near-marginal flow)", r.ell_end),
+            Outcome::Unphysical => format!("unphysical point: {}", r.message.as_deref().unwrap_or("")),
+            Outcome::Failed => r.message.clone().unwrap_or_else(|| "integration failed".into()),
+        }
+    }
+
+    /// Write `summary.json`, `trajectory.csv` and the figures into `dir`.
+    pub fn write_dir(&self, dir: &Path) -> Result<(), Error> {
+        std::fs::create_dir_all(dir).map_err(|e| Error::io(dir, e))?;
+        output::write_atomic(
+            &dir.join("trajectory.csv"),
+            self.trajectory_csv()?.as_bytes(),
+        )?;
+        crate::flow::report::figure::write(self, &dir.join("flow"))?;
+        output::write_atomic(&dir.join("summary.json"), output::to_json(self)?.as_bytes())
+    }
+
+    /// The trajectory as CSV: `ell`, then `y:<name>` and `dimension:<name>`
+    /// for every channel.
+    pub fn trajectory_csv(&self) -> Result<String, Error> {
+        let names: Vec<&str> = self.result.terms.iter().map(|t| t.name.as_str()).collect();
+        let mut headers = vec!["ell".to_string()];
+        headers.extend(names.iter().map(|n| format!("y:{n}")));
+        headers.extend(names.iter().map(|n| format!("dimension:{n}")));
+        let mut t = Table::with_headers("trajectory", headers);
+        for s in &self.result.samples {
+            let mut row = vec![format!("{}", s.ell)];
+            row.extend(s.couplings.iter().map(|x| format!("{x}")));
+            row.extend(s.dimensions.iter().map(|x| format!("{x}")));
+            t.push(row);
+        }
+        output::csv::render(&t)
+    }
+}
+
+impl Report for FlowReport {
+    fn title(&self) -> String {
+        format!("RG flow: {}", self.model)
+    }
+
+    fn facts(&self) -> Vec<(String, String)> {
+        let r = &self.result;
+        let params = self
+            .parameters
+            .iter()
+            .map(|(k, v)| format!("{k}={v}"))
+            .collect::<Vec<_>>()
+            .join(", ");
+        let mut f = vec![
+            (
+                "parameters".to_string(),
+                if params.is_empty() {
+                    "(none)".into()
+                } else {
+                    params
+                },
+            ),
+            ("outcome".to_string(), r.outcome.word().to_string()),
+            ("summary".to_string(), self.headline()),
+        ];
+        if !r.commuting_with_winner.is_empty() {
+            f.push((
+                "commute with winner".into(),
+                r.commuting_with_winner.join(", "),
+            ));
+        }
+        if !r.suppressed.is_empty() {
+            f.push(("suppressed by winner".into(), r.suppressed.join(", ")));
+        }
+        f.push((
+            "options".to_string(),
+            format!(
+                "ell_max={}, y_strong={}, closure={:?} (bound {}), rtol={:e}",
+                self.options.ell_max,
+                self.options.y_strong,
+                self.options.closure,
+                self.options.closure_bound,
+                self.options.rtol
+            ),
+        ));
+        f.push((
+            "steps".into(),
+            format!("{} (D K D drift {:.1e})", r.steps, r.dkd_drift),
+        ));
+        f
+    }
+
+    fn tables(&self) -> Vec<Table> {
+        vec![self.csv_table()]
+    }
+
+    fn csv_table(&self) -> Table {
+        let mut t = Table::new(
+            "terms (start -> end of the flow)",
+            &[
+                "term", "origin", "spin", "y0", "Delta0", "y", "Delta", "k", "ell_k",
+            ],
+        );
+        for c in &self.result.terms {
+            let mark = if self.result.winner.as_deref() == Some(c.name.as_str()) {
+                " (winner)"
+            } else {
+                ""
+            };
+            t.push(vec![
+                format!("{}{mark}", c.name),
+                c.parents
+                    .clone()
+                    .map_or(c.origin.clone(), |p| format!("{p}")),
+                c.spin.clone(),
+                format!("{:.4e}", c.coupling0),
+                format!("{:.6}", c.dimension0),
+                format!("{:.4e}", c.coupling),
+                format!("{:.6}", c.dimension),
+                c.momentum.map_or("-".into(), |k| format!("{k:.4}")),
+                c.ell_k.map_or("-".into(), |l| format!("{l:.3}")),
+            ]);
+        }
+        t
+    }
+
+    fn notes(&self) -> Vec<String> {
+        self.notes.clone()
+    }
+}
+
+/// The flow figure (filled in by the plotting module).
+pub mod figure {
+    use super::FlowReport;
+    use crate::error::Error;
+    use std::path::Path;
+
+    /// Write `<stem>.png` and `<stem>.svg`.
+    pub fn write(_report: &FlowReport, _stem: &Path) -> Result<(), Error> {
+        Ok(())
+    }
+}

@@ -1,0 +1,222 @@
+//! The right-hand side of the flow equations and the stop hook.
+//!
+//! State layout: `[Re w_0, Im w_0, ..., Re w_{C-1}, Im w_{C-1}, D...]` with
+//! D stored as the [`Background`] says. Equations [physics reference
+//! section 3]:
+//!
+//! ```text
+//! dw_c/dell = (2 - Delta_c - delta_c) w_c - (1/2) sum_OPE w_a w_b^(*)
+//! dD/dell   = -(1/8) sum_{null c} |y_c|^2 sum_t [D l l^T D - K^-1 l l^T K^-1]
+//! ```
+//!
+//! with y_c = 2 |w_c|. Channels past their momentum cut-off ell_k are
+//! inactive: they neither flow nor feed back. Evaluation allocates nothing:
+//! scratch space lives in a `RefCell` sized once.
+
+use std::cell::RefCell;
+
+use nalgebra::DVector;
+use ode_solvers::System;
+
+use super::background::Background;
+use super::channels::{Channel, OpeEntry};
+
+/// Why the integration stopped early.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Stop {
+    /// Some active |y| reached y_strong within the last step.
+    Strong {
+        /// Start of the step.
+        ell_before: f64,
+        /// End of the step.
+        ell_after: f64,
+    },
+    /// Every active coupling below the floor, every non-zero one irrelevant.
+    Decayed {
+        /// Where it was detected.
+        ell: f64,
+    },
+}
+
+/// One recorded point of the trajectory.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Sample {
+    /// ell.
+    pub ell: f64,
+    /// |y| of each channel.
+    pub couplings: Vec<f64>,
+    /// Total Delta of each channel.
+    pub dimensions: Vec<f64>,
+}
+
+/// The ODE system of one flow.
+pub struct FlowRhs<'a> {
+    /// D storage.
+    pub bg: Background,
+    /// Flowing channels.
+    pub channels: Vec<&'a Channel>,
+    /// Extra dimension of each channel.
+    pub extra: Vec<f64>,
+    /// OPE entries (indices into `channels`).
+    pub ope: Vec<OpeEntry>,
+    /// Channel flows in the current segment.
+    pub active: Vec<bool>,
+    /// Stop threshold.
+    pub y_strong: f64,
+    /// Decay floor.
+    pub floor: f64,
+    /// Record every accepted step.
+    pub record: bool,
+    /// Recorded trajectory.
+    pub samples: Vec<Sample>,
+    /// Set by the stop hook.
+    pub stop: Option<Stop>,
+    /// ell of the previous accepted step.
+    pub last_ell: f64,
+    /// Largest DKD drift seen is measured by the caller; steps counted here.
+    pub steps: usize,
+    scratch: RefCell<Vec<f64>>,
+}
+
+impl<'a> FlowRhs<'a> {
+    /// Build the system; scratch is sized once here.
+    pub fn new(
+        bg: Background,
+        channels: Vec<&'a Channel>,
+        extra: Vec<f64>,
+        ope: Vec<OpeEntry>,
+    ) -> Self {
+        let scratch = RefCell::new(vec![0.0; bg.scratch_len()]);
+        let n = channels.len();
+        FlowRhs {
+            bg,
+            channels,
+            extra,
+            ope,
+            active: vec![true; n],
+            y_strong: 1.0,
+            floor: 1e-6,
+            record: true,
+            samples: Vec::new(),
+            stop: None,
+            last_ell: 0.0,
+            steps: 0,
+            scratch,
+        }
+    }
+
+    /// Length of the state vector.
+    pub fn state_len(&self) -> usize {
+        2 * self.channels.len() + self.bg.len()
+    }
+
+    /// Total dimension of channel c in a state.
+    #[inline]
+    pub fn dimension(&self, y: &[f64], c: usize) -> f64 {
+        let d = &y[2 * self.channels.len()..];
+        let ch = self.channels[c];
+        self.bg.dimension(d, &ch.l_sparse[ch.family.representative]) + self.extra[c]
+    }
+
+    /// |y_c| = 2 |w_c|.
+    #[inline]
+    pub fn coupling(&self, y: &[f64], c: usize) -> f64 {
+        2.0 * y[2 * c].hypot(y[2 * c + 1])
+    }
+
+    /// Largest |y| among active channels, with its channel.
+    pub fn strongest(&self, y: &[f64]) -> Option<(usize, f64)> {
+        (0..self.channels.len())
+            .filter(|&c| self.active[c])
+            .map(|c| (c, self.coupling(y, c)))
+            .max_by(|a, b| a.1.total_cmp(&b.1))
+    }
+
+    fn decayed(&self, y: &[f64]) -> bool {
+        (0..self.channels.len())
+            .filter(|&c| self.active[c])
+            .all(|c| {
+                let g = self.coupling(y, c);
+                g < self.floor && (g == 0.0 || self.dimension(y, c) > 2.0)
+            })
+    }
+
+    fn record_sample(&mut self, ell: f64, y: &[f64]) {
+        let n = self.channels.len();
+        let couplings = (0..n).map(|c| self.coupling(y, c)).collect();
+        let dimensions = (0..n).map(|c| self.dimension(y, c)).collect();
+        self.samples.push(Sample {
+            ell,
+            couplings,
+            dimensions,
+        });
+    }
+}
+
+impl System<f64, DVector<f64>> for &mut FlowRhs<'_> {
+    fn system(&self, _ell: f64, y: &DVector<f64>, dy: &mut DVector<f64>) {
+        let rhs: &FlowRhs = self;
+        let nc = rhs.channels.len();
+        let (w, d) = y.as_slice().split_at(2 * nc);
+        let (dw, dd) = dy.as_mut_slice().split_at_mut(2 * nc);
+        dw.fill(0.0);
+        dd.fill(0.0);
+        for c in (0..nc).filter(|&c| rhs.active[c]) {
+            let rate = 2.0 - rhs.dimension(y.as_slice(), c);
+            dw[2 * c] = rate * w[2 * c];
+            dw[2 * c + 1] = rate * w[2 * c + 1];
+        }
+        for e in &rhs.ope {
+            if !(rhs.active[e.target] && rhs.active[e.a] && rhs.active[e.b]) {
+                continue;
+            }
+            let (ar, ai) = (w[2 * e.a], w[2 * e.a + 1]);
+            let (br, bi) = (
+                w[2 * e.b],
+                if e.b_conj {
+                    -w[2 * e.b + 1]
+                } else {
+                    w[2 * e.b + 1]
+                },
+            );
+            let (pr, pi) = (ar * br - ai * bi, ar * bi + ai * br);
+            let pi = if e.conj { -pi } else { pi };
+            dw[2 * e.target] -= 0.5 * pr;
+            dw[2 * e.target + 1] -= 0.5 * pi;
+        }
+        let mut scratch = rhs.scratch.borrow_mut();
+        for c in 0..nc {
+            if !rhs.active[c] || !rhs.channels[c].null() {
+                continue;
+            }
+            let weight = 4.0 * (w[2 * c] * w[2 * c] + w[2 * c + 1] * w[2 * c + 1]);
+            if weight > 0.0 {
+                rhs.bg
+                    .add_feedback(d, rhs.channels[c], weight, dd, &mut scratch);
+            }
+        }
+    }
+
+    fn solout(&mut self, ell: f64, y: &DVector<f64>, _dy: &DVector<f64>) -> bool {
+        let rhs: &mut FlowRhs = self;
+        rhs.steps += 1;
+        let ys = y.as_slice();
+        if rhs.record {
+            rhs.record_sample(ell, ys);
+        }
+        let before = rhs.last_ell;
+        rhs.last_ell = ell;
+        if rhs.strongest(ys).is_some_and(|(_, g)| g >= rhs.y_strong) {
+            rhs.stop = Some(Stop::Strong {
+                ell_before: before,
+                ell_after: ell,
+            });
+            return true;
+        }
+        if rhs.decayed(ys) {
+            rhs.stop = Some(Stop::Decayed { ell });
+            return true;
+        }
+        !ys.iter().all(|x| x.is_finite())
+    }
+}
