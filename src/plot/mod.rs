@@ -20,6 +20,7 @@
 //!   indices and similar problems come back as [`PlotError`]. Non-finite
 //!   values are skipped where a figure can do without them.
 
+mod contour;
 mod font;
 mod output;
 pub mod palette;
