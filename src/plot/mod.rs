@@ -22,10 +22,17 @@
 
 mod contour;
 mod font;
+mod layout;
+pub mod lines;
 mod output;
 pub mod palette;
 
 use std::path::{Path, PathBuf};
+
+pub use lines::{
+    dimension_line_figure, flow_figure, Band, DimensionSeries, FlowFigure, FlowSeries,
+    LineScanFigure,
+};
 
 /// Failure to produce a figure file.
 ///

@@ -1,0 +1,437 @@
+//! Line figures: the RG flow of couplings and scaling dimensions, and
+//! one-parameter scans of scaling dimensions with outcome bands.
+
+use std::path::Path;
+
+use plotters::coord::Shift;
+use plotters::prelude::*;
+use serde::{Deserialize, Serialize};
+
+use super::layout::{self, Axes, Chart, Dash, LegendEntry, REFERENCE};
+use super::output::{self, msg, Figure};
+use super::palette;
+use super::PlotError;
+
+/// Smallest plotted |y| relative to the largest one on the log axis.
+const LOG_FLOOR: f64 = 1e-8;
+/// Line width of ordinary terms and of the winning term.
+const THIN: u32 = 2;
+const THICK: u32 = 5;
+/// The marginal scaling dimension in 1+1 dimensions.
+const MARGINAL: f64 = 2.0;
+
+/// One cosine term followed along the flow.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct FlowSeries {
+    /// Legend name of the term.
+    pub name: String,
+    /// Coupling y(ℓ), one value per entry of [`FlowFigure::ell`].
+    pub coupling: Vec<f64>,
+    /// Scaling dimension Δ(ℓ), one value per entry of [`FlowFigure::ell`].
+    pub dimension: Vec<f64>,
+}
+
+/// Data of an RG-flow figure: |y| (log scale) and Δ against ℓ.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct FlowFigure {
+    /// Title above the panels.
+    pub title: String,
+    /// Flow parameter ℓ = ln(α/α₀) at each step.
+    pub ell: Vec<f64>,
+    /// The terms, each drawn in its own colour in both panels.
+    pub series: Vec<FlowSeries>,
+    /// Index into `series` of the term that wins (drawn thicker).
+    pub winner: Option<usize>,
+    /// Scale ℓ* at which the flow was stopped (dotted vertical line).
+    pub ell_star: Option<f64>,
+    /// Text under the figure, e.g. the limits of the method.
+    pub caption: String,
+}
+
+/// Scaling dimension of one term along a parameter scan.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct DimensionSeries {
+    /// Legend name of the term.
+    pub name: String,
+    /// Δ at each entry of [`LineScanFigure::xs`] (NaN where undefined).
+    pub dimension: Vec<f64>,
+}
+
+/// A parameter interval shaded by outcome.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Band {
+    /// Start of the interval.
+    pub x0: f64,
+    /// End of the interval.
+    pub x1: f64,
+    /// Outcome name (one legend entry per distinct label).
+    pub label: String,
+    /// Index into the categorical palette.
+    pub colour_index: usize,
+}
+
+/// Data of a one-parameter scan: every term's Δ against the parameter.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct LineScanFigure {
+    /// Title above the plot.
+    pub title: String,
+    /// Name of the scanned parameter (x-axis label).
+    pub x_name: String,
+    /// Parameter values.
+    pub xs: Vec<f64>,
+    /// One line per term.
+    pub series: Vec<DimensionSeries>,
+    /// Shaded outcome intervals drawn behind the lines.
+    pub bands: Vec<Band>,
+    /// Text under the figure.
+    pub caption: String,
+}
+
+/// Writes `<path_stem>.png` and `<path_stem>.svg` showing the flow: |y| on a
+/// log axis (top) and Δ with the marginal line Δ = 2 (bottom) against ℓ.
+///
+/// Zero or tiny couplings are drawn at 10⁻⁸ of the largest |y|; non-finite
+/// values are left out (the line is broken there).
+pub fn flow_figure(path_stem: &Path, data: &FlowFigure) -> Result<(), PlotError> {
+    check_flow(data).map_err(|m| PlotError::new(path_stem, m))?;
+    output::write_figure(path_stem, data)
+}
+
+/// Writes `<path_stem>.png` and `<path_stem>.svg` showing every term's Δ
+/// against the scanned parameter, the marginal line Δ = 2 and shaded bands.
+pub fn dimension_line_figure(path_stem: &Path, data: &LineScanFigure) -> Result<(), PlotError> {
+    check_scan(data).map_err(|m| PlotError::new(path_stem, m))?;
+    output::write_figure(path_stem, data)
+}
+
+fn check_flow(data: &FlowFigure) -> Result<(), String> {
+    let n = data.ell.len();
+    if n == 0 || data.series.is_empty() {
+        return Err("flow figure needs at least one ℓ value and one series".into());
+    }
+    for s in &data.series {
+        if s.coupling.len() != n || s.dimension.len() != n {
+            return Err(format!(
+                "series '{}' has {} couplings and {} dimensions for {} ℓ values",
+                s.name,
+                s.coupling.len(),
+                s.dimension.len(),
+                n
+            ));
+        }
+    }
+    match data.winner {
+        Some(w) if w >= data.series.len() => Err(format!(
+            "winner index {w} but only {} series",
+            data.series.len()
+        )),
+        _ => Ok(()),
+    }
+}
+
+fn check_scan(data: &LineScanFigure) -> Result<(), String> {
+    let n = data.xs.len();
+    if n == 0 {
+        return Err("scan figure needs at least one parameter value".into());
+    }
+    if let Some(s) = data.series.iter().find(|s| s.dimension.len() != n) {
+        return Err(format!(
+            "series '{}' has {} values for {} parameter values",
+            s.name,
+            s.dimension.len(),
+            n
+        ));
+    }
+    if data
+        .bands
+        .iter()
+        .any(|b| !b.x0.is_finite() || !b.x1.is_finite())
+    {
+        return Err("band limits must be finite".into());
+    }
+    Ok(())
+}
+
+/// Range of ℓ (or of the scanned parameter) shown.
+fn x_range(xs: &[f64]) -> (f64, f64) {
+    layout::padded_range(xs.iter().copied(), 0.0).unwrap_or((0.0, 1.0))
+}
+
+/// Δ range, always including the marginal value.
+fn dimension_range<'a>(columns: impl Iterator<Item = &'a [f64]>) -> (f64, f64) {
+    let values = columns.flatten().copied().chain(std::iter::once(MARGINAL));
+    layout::padded_range(values, 0.06).unwrap_or((1.0, 3.0))
+}
+
+/// log10 of |y| clipped below at `LOG_FLOOR` times the largest |y|, plus
+/// the floor's log10. Non-finite couplings stay NaN.
+fn log_couplings(series: &[FlowSeries]) -> (Vec<Vec<f64>>, f64) {
+    let max = series
+        .iter()
+        .flat_map(|s| s.coupling.iter())
+        .filter(|v| v.is_finite())
+        .fold(0.0f64, |m, v| m.max(v.abs()));
+    let reference = if max > 0.0 { max } else { 1.0 };
+    let floor = reference * LOG_FLOOR;
+    let logs = series
+        .iter()
+        .map(|s| {
+            s.coupling
+                .iter()
+                .map(|v| match v.is_finite() {
+                    true => v.abs().max(floor).log10(),
+                    false => f64::NAN,
+                })
+                .collect()
+        })
+        .collect();
+    (logs, floor.log10())
+}
+
+/// Whole decades enclosing the log values, at least one decade wide.
+fn decade_range(logs: &[Vec<f64>], floor: f64) -> (f64, f64) {
+    let (lo, hi) = layout::padded_range(logs.iter().flatten().copied(), 0.0)
+        .map(|(l, h)| (l.floor(), h.ceil()))
+        .unwrap_or((floor, floor + 1.0));
+    (lo, hi.max(lo + 1.0))
+}
+
+impl FlowFigure {
+    fn colour(&self, i: usize) -> RGBColor {
+        palette::categorical(i)
+    }
+
+    fn width(&self, i: usize) -> u32 {
+        if self.winner == Some(i) {
+            THICK
+        } else {
+            THIN
+        }
+    }
+
+    /// Indices in drawing order: the winner last so it lies on top.
+    fn order(&self) -> Vec<usize> {
+        let mut idx: Vec<usize> = (0..self.series.len())
+            .filter(|&i| self.winner != Some(i))
+            .collect();
+        idx.extend(self.winner);
+        idx
+    }
+
+    fn legend(&self) -> Vec<LegendEntry> {
+        let mut entries: Vec<LegendEntry> = self
+            .series
+            .iter()
+            .enumerate()
+            .map(|(i, s)| {
+                let label = match self.winner == Some(i) {
+                    true => format!("{} (winner)", s.name),
+                    false => s.name.clone(),
+                };
+                LegendEntry::line(label, self.colour(i), self.width(i), Dash::Solid)
+            })
+            .collect();
+        entries.push(marginal_entry());
+        if let Some(l) = self.ell_star.filter(|l| l.is_finite()) {
+            let label = format!("ℓ* = {}", layout::format_number(l));
+            entries.push(LegendEntry::line(label, REFERENCE, 2, Dash::Dotted));
+        }
+        entries
+    }
+
+    fn draw_couplings<DB: DrawingBackend>(
+        &self,
+        area: &DrawingArea<DB, Shift>,
+    ) -> Result<(), String> {
+        let (logs, floor) = log_couplings(&self.series);
+        let y = decade_range(&logs, floor);
+        let pad = 0.03 * (y.1 - y.0);
+        let mut chart = layout::chart(area, x_range(&self.ell), (y.0 - pad, y.1 + pad))?;
+        let format = |v: &f64| layout::power_of_ten(*v);
+        let decades = (y.1 - y.0).round() as usize;
+        let axes = Axes {
+            x_desc: ELL_LABEL,
+            y_desc: "|y|",
+            y_labels: (decades + 1).min(10),
+            y_format: Some(&format),
+            grid: true,
+        };
+        layout::draw_mesh(&mut chart, &axes)?;
+        for i in self.order() {
+            let points = self.ell.iter().copied().zip(logs[i].iter().copied());
+            self.draw_series(&mut chart, i, points)?;
+        }
+        self.draw_ell_star(&mut chart)
+    }
+
+    fn draw_dimensions<DB: DrawingBackend>(
+        &self,
+        area: &DrawingArea<DB, Shift>,
+    ) -> Result<(), String> {
+        let y = dimension_range(self.series.iter().map(|s| s.dimension.as_slice()));
+        let x = x_range(&self.ell);
+        let mut chart = layout::chart(area, x, y)?;
+        layout::draw_mesh(&mut chart, &dimension_axes(ELL_LABEL))?;
+        draw_marginal(&mut chart, x)?;
+        for i in self.order() {
+            let points = self.ell.iter().copied();
+            let points = points.zip(self.series[i].dimension.iter().copied());
+            self.draw_series(&mut chart, i, points)?;
+        }
+        self.draw_ell_star(&mut chart)
+    }
+
+    fn draw_series<DB: DrawingBackend>(
+        &self,
+        chart: &mut Chart<'_, DB>,
+        i: usize,
+        points: impl Iterator<Item = (f64, f64)>,
+    ) -> Result<(), String> {
+        for run in layout::finite_runs(points) {
+            layout::draw_line(chart, &run, self.colour(i), self.width(i), Dash::Solid)?;
+        }
+        Ok(())
+    }
+
+    fn draw_ell_star<DB: DrawingBackend>(&self, chart: &mut Chart<'_, DB>) -> Result<(), String> {
+        let Some(l) = self.ell_star.filter(|l| l.is_finite()) else {
+            return Ok(());
+        };
+        let (x, y) = (chart.x_range(), chart.y_range());
+        if !x.contains(&l) {
+            return Ok(());
+        }
+        let line = [(l, y.start), (l, y.end)];
+        layout::draw_line(chart, &line, REFERENCE, 2, Dash::Dotted)
+    }
+}
+
+/// Label of the flow-parameter axis.
+const ELL_LABEL: &str = "ℓ = ln(α/α₀)";
+
+fn dimension_axes(x_desc: &str) -> Axes<'_> {
+    Axes {
+        x_desc,
+        y_desc: "scaling dimension Δ",
+        y_labels: 8,
+        y_format: None,
+        grid: true,
+    }
+}
+
+fn marginal_entry() -> LegendEntry {
+    LegendEntry::line("Δ = 2 (marginal)", REFERENCE, 2, Dash::Dashed)
+}
+
+fn draw_marginal<DB: DrawingBackend>(
+    chart: &mut Chart<'_, DB>,
+    (x0, x1): (f64, f64),
+) -> Result<(), String> {
+    layout::draw_line(
+        chart,
+        &[(x0, MARGINAL), (x1, MARGINAL)],
+        REFERENCE,
+        2,
+        Dash::Dashed,
+    )
+}
+
+/// Splits the body into a plotting part and a legend column on the right.
+fn with_legend_column<DB: DrawingBackend>(
+    body: &DrawingArea<DB, Shift>,
+    entries: &[LegendEntry],
+) -> Result<(DrawingArea<DB, Shift>, DrawingArea<DB, Shift>), String> {
+    let (w, _) = body.dim_in_pixel();
+    let legend_w = layout::legend_width(body, entries, 220, (w as i32) * 2 / 5)?;
+    Ok(body.split_horizontally(w as i32 - legend_w))
+}
+
+impl Figure for FlowFigure {
+    fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> Result<(), String> {
+        let body = layout::frame(root, &self.title, &self.caption)?;
+        let entries = self.legend();
+        let (plots, legend) = with_legend_column(&body, &entries)?;
+        let (_, h) = plots.dim_in_pixel();
+        let (top, bottom) = plots.split_vertically(h as i32 / 2);
+        self.draw_couplings(&top)?;
+        self.draw_dimensions(&bottom)?;
+        layout::draw_legend(&legend, &entries, 12).map(|_| ())
+    }
+}
+
+/// Opacity of band fills.
+const BAND_ALPHA: f64 = 0.22;
+
+impl LineScanFigure {
+    /// Distinct band labels in first-seen order, with their palette index.
+    fn band_kinds(&self) -> Vec<(&str, usize)> {
+        let mut kinds: Vec<(&str, usize)> = Vec::new();
+        for b in &self.bands {
+            if !kinds.iter().any(|(l, _)| *l == b.label) {
+                kinds.push((&b.label, b.colour_index));
+            }
+        }
+        kinds
+    }
+
+    fn legend(&self) -> Vec<LegendEntry> {
+        let mut entries: Vec<LegendEntry> = self
+            .series
+            .iter()
+            .enumerate()
+            .map(|(i, s)| {
+                LegendEntry::line(&s.name, palette::categorical(i), THIN + 1, Dash::Solid)
+            })
+            .collect();
+        entries.push(marginal_entry());
+        for (label, c) in self.band_kinds() {
+            entries.push(LegendEntry::swatch(
+                label,
+                palette::categorical(c),
+                BAND_ALPHA,
+            ));
+        }
+        entries
+    }
+
+    fn draw_bands<DB: DrawingBackend>(&self, chart: &mut Chart<'_, DB>) -> Result<(), String> {
+        let (x, y) = (chart.x_range(), chart.y_range());
+        for b in &self.bands {
+            let (lo, hi) = (b.x0.min(b.x1).max(x.start), b.x0.max(b.x1).min(x.end));
+            if lo >= hi {
+                continue;
+            }
+            let colour = palette::categorical(b.colour_index).mix(BAND_ALPHA);
+            let rect = Rectangle::new([(lo, y.start), (hi, y.end)], colour.filled());
+            chart.draw_series(std::iter::once(rect)).map_err(msg)?;
+        }
+        Ok(())
+    }
+}
+
+impl Figure for LineScanFigure {
+    fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> Result<(), String> {
+        let body = layout::frame(root, &self.title, &self.caption)?;
+        let entries = self.legend();
+        let (plot, legend) = with_legend_column(&body, &entries)?;
+        let x = x_range(&self.xs);
+        let y = dimension_range(self.series.iter().map(|s| s.dimension.as_slice()));
+        let mut chart = layout::chart(&plot, x, y)?;
+        self.draw_bands(&mut chart)?;
+        layout::draw_mesh(&mut chart, &dimension_axes(&self.x_name))?;
+        draw_marginal(&mut chart, x)?;
+        for (i, s) in self.series.iter().enumerate() {
+            let points = self.xs.iter().copied().zip(s.dimension.iter().copied());
+            for run in layout::finite_runs(points) {
+                layout::draw_line(
+                    &mut chart,
+                    &run,
+                    palette::categorical(i),
+                    THIN + 1,
+                    Dash::Solid,
+                )?;
+            }
+        }
+        layout::draw_legend(&legend, &entries, 12).map(|_| ())
+    }
+}
