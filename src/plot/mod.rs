@@ -24,6 +24,7 @@ mod contour;
 mod font;
 mod layout;
 pub mod lines;
+pub mod map;
 mod output;
 pub mod palette;
 
@@ -33,6 +34,7 @@ pub use lines::{
     dimension_line_figure, flow_figure, Band, DimensionSeries, FlowFigure, FlowSeries,
     LineScanFigure,
 };
+pub use map::{contour_lines, heat_map, phase_diagram, Contour, HeatMap, PhaseMap};
 
 /// Failure to produce a figure file.
 ///
