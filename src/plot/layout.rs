@@ -13,6 +13,9 @@ use super::output::msg;
 /// A chart with linear f64 axes (log axes are drawn as log10 values).
 pub(crate) type Chart<'a, DB> = ChartContext<'a, DB, Cartesian2d<RangedCoordf64, RangedCoordf64>>;
 
+/// A page region in pixel coordinates.
+pub(crate) type Area<DB> = DrawingArea<DB, Shift>;
+
 /// Colour of text, axes and reference lines.
 pub(crate) const INK: RGBColor = RGBColor(30, 30, 30);
 /// Colour of caption text.
@@ -36,7 +39,7 @@ pub(crate) enum Dash {
     Solid,
     Dashed,
     Dotted,
-    LongDash,
+    Long,
 }
 
 impl Dash {
@@ -46,7 +49,7 @@ impl Dash {
             Dash::Solid => None,
             Dash::Dashed => Some((12, 8)),
             Dash::Dotted => Some((3, 7)),
-            Dash::LongDash => Some((26, 10)),
+            Dash::Long => Some((26, 10)),
         }
     }
 }
@@ -307,7 +310,9 @@ pub(crate) fn finite_runs(points: impl IntoIterator<Item = (f64, f64)>) -> Vec<V
     let mut runs = vec![Vec::new()];
     for (x, y) in points {
         if x.is_finite() && y.is_finite() {
-            runs.last_mut().map(|r| r.push((x, y)));
+            if let Some(run) = runs.last_mut() {
+                run.push((x, y));
+            }
         } else if runs.last().is_some_and(|r| !r.is_empty()) {
             runs.push(Vec::new());
         }

@@ -7,7 +7,7 @@ use plotters::coord::Shift;
 use plotters::prelude::*;
 use serde::{Deserialize, Serialize};
 
-use super::layout::{self, Axes, Chart, Dash, LegendEntry, REFERENCE};
+use super::layout::{self, Area, Axes, Chart, Dash, LegendEntry, REFERENCE};
 use super::output::{self, msg, Figure};
 use super::palette;
 use super::PlotError;
@@ -340,7 +340,7 @@ fn draw_marginal<DB: DrawingBackend>(
 fn with_legend_column<DB: DrawingBackend>(
     body: &DrawingArea<DB, Shift>,
     entries: &[LegendEntry],
-) -> Result<(DrawingArea<DB, Shift>, DrawingArea<DB, Shift>), String> {
+) -> Result<(Area<DB>, Area<DB>), String> {
     let (w, _) = body.dim_in_pixel();
     let legend_w = layout::legend_width(body, entries, 220, (w as i32) * 2 / 5)?;
     Ok(body.split_horizontally(w as i32 - legend_w))
@@ -433,5 +433,216 @@ impl Figure for LineScanFigure {
             }
         }
         layout::draw_legend(&legend, &entries, 12).map(|_| ())
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::plot::testutil::{
+        assert_deterministic, count_text, hex, read_outputs, sibling, svg_texts,
+    };
+
+    /// A flow with one relevant term, one irrelevant term, a zero term and
+    /// a NaN in the middle of one series.
+    fn sample_flow() -> FlowFigure {
+        let ell: Vec<f64> = (0..=80).map(|i| f64::from(i) * 0.1).collect();
+        let series = |name: &str, y0: f64, delta: f64| FlowSeries {
+            name: name.into(),
+            coupling: ell.iter().map(|l| y0 * ((2.0 - delta) * l).exp()).collect(),
+            dimension: ell.iter().map(|l| delta + 0.01 * l).collect(),
+        };
+        let mut s = vec![
+            series("tunnelling", 0.05, 1.5),
+            series("pairing", 0.2, 2.6),
+            series("umklapp", 0.0, 3.0),
+        ];
+        s[1].coupling[40] = f64::NAN;
+        FlowFigure {
+            title: "Two wires".into(),
+            ell,
+            series: s,
+            winner: Some(0),
+            ell_star: Some(5.99),
+            caption: "Second order in y; valid while |y| ≪ 1.".into(),
+        }
+    }
+
+    #[test]
+    fn flow_figure_writes_png_and_svg_with_legend() {
+        let dir = tempfile::tempdir().unwrap();
+        let stem = dir.path().join("flow.k0.8");
+        flow_figure(&stem, &sample_flow()).unwrap();
+        let (_, svg) = read_outputs(&stem);
+        for label in [
+            "tunnelling (winner)",
+            "pairing",
+            "umklapp",
+            "Δ = 2 (marginal)",
+            "ℓ* = 5.99",
+            "|y|",
+            "scaling dimension Δ",
+            "Two wires",
+        ] {
+            assert_eq!(count_text(&svg, label), 1, "legend/label '{label}'");
+        }
+        // Both panels carry the ℓ axis label.
+        assert_eq!(count_text(&svg, "ℓ = ln(α/α₀)"), 2);
+        // The winner is drawn thick in its colour, in both panels.
+        let thick = format!("stroke=\"{}\" stroke-width=\"{THICK}\"", hex(palette::BLUE));
+        assert!(svg.matches(&thick).count() >= 3, "winner not thick");
+        let thin = format!(
+            "stroke=\"{}\" stroke-width=\"{THIN}\"",
+            hex(palette::VERMILLION)
+        );
+        assert!(svg.contains(&thin), "other terms not thin");
+    }
+
+    #[test]
+    fn flow_log_axis_spans_whole_decades_and_clips_zero() {
+        let dir = tempfile::tempdir().unwrap();
+        let stem = dir.path().join("flow");
+        flow_figure(&stem, &sample_flow()).unwrap();
+        let (_, svg) = read_outputs(&stem);
+        let texts = svg_texts(&svg);
+        // Largest |y| is 0.05 e^4 ≈ 2.7, so the axis ends at 10¹; the zero
+        // coupling sits at the floor 10⁻⁸ × 2.7 and the axis reaches 10⁻⁸.
+        assert!(texts.iter().any(|t| t == "10¹"));
+        assert!(texts.iter().any(|t| t == "10⁻⁸"));
+        assert!(!texts.iter().any(|t| t == "10⁻⁹" || t == "10²"));
+    }
+
+    #[test]
+    fn all_zero_negative_and_nan_couplings_do_not_fail() {
+        let dir = tempfile::tempdir().unwrap();
+        let mut data = sample_flow();
+        data.series[0].coupling.iter_mut().for_each(|y| *y = 0.0);
+        data.series[1]
+            .coupling
+            .iter_mut()
+            .for_each(|y| *y = f64::NAN);
+        data.series[2].coupling.iter_mut().for_each(|y| *y = 0.0);
+        flow_figure(&dir.path().join("zero"), &data).unwrap();
+        let (_, svg) = read_outputs(&dir.path().join("zero"));
+        // Nothing positive: the axis shows the floor decade of a unit scale.
+        assert!(svg_texts(&svg).iter().any(|t| t == "10⁻⁸"));
+
+        data.series[0].coupling.iter_mut().for_each(|y| *y = -0.5);
+        data.winner = None;
+        data.ell_star = Some(f64::NAN);
+        flow_figure(&dir.path().join("neg"), &data).unwrap();
+        let (_, svg) = read_outputs(&dir.path().join("neg"));
+        assert!(svg_texts(&svg).iter().any(|t| t == "10⁰"));
+        assert_eq!(count_text(&svg, "tunnelling"), 1);
+        assert!(!svg_texts(&svg).iter().any(|t| t.starts_with("ℓ* =")));
+    }
+
+    #[test]
+    fn flow_figure_is_deterministic() {
+        let dir = tempfile::tempdir().unwrap();
+        let data = sample_flow();
+        assert_deterministic(dir.path(), |stem| flow_figure(stem, &data).unwrap());
+    }
+
+    #[test]
+    fn inconsistent_flow_data_is_an_error_and_writes_nothing() {
+        let dir = tempfile::tempdir().unwrap();
+        let stem = dir.path().join("bad");
+        let mut data = sample_flow();
+        data.series[2].dimension.pop();
+        let err = flow_figure(&stem, &data).unwrap_err();
+        assert_eq!(err.path, stem);
+        assert!(err.message.contains("umklapp"), "{}", err.message);
+
+        let mut data = sample_flow();
+        data.winner = Some(3);
+        assert!(flow_figure(&stem, &data).is_err());
+        let mut data = sample_flow();
+        data.ell.clear();
+        assert!(flow_figure(&stem, &data).is_err());
+        assert!(!sibling(&stem, "png").exists() && !sibling(&stem, "svg").exists());
+    }
+
+    fn sample_scan() -> LineScanFigure {
+        let xs: Vec<f64> = (0..=40).map(|i| 0.4 + f64::from(i) * 0.04).collect();
+        LineScanFigure {
+            title: "Dimensions against K".into(),
+            x_name: "Luttinger parameter K".into(),
+            series: vec![
+                DimensionSeries {
+                    name: "tunnelling".into(),
+                    dimension: xs.iter().map(|k| 1.0 / k).collect(),
+                },
+                DimensionSeries {
+                    name: "pairing".into(),
+                    dimension: xs.iter().map(|k| 2.0 * k).collect(),
+                },
+            ],
+            xs,
+            bands: vec![
+                Band {
+                    x0: 0.4,
+                    x1: 1.0,
+                    label: "pairing relevant".into(),
+                    colour_index: 1,
+                },
+                Band {
+                    x0: 1.0,
+                    x1: 1.5,
+                    label: "tunnelling relevant".into(),
+                    colour_index: 0,
+                },
+                Band {
+                    x0: 1.9,
+                    x1: 1.5, // reversed limits are accepted
+                    label: "pairing relevant".into(),
+                    colour_index: 1,
+                },
+                Band {
+                    x0: 5.0,
+                    x1: 6.0, // outside the scan: not drawn
+                    label: "never seen".into(),
+                    colour_index: 2,
+                },
+            ],
+            caption: "Tree level.".into(),
+        }
+    }
+
+    #[test]
+    fn scan_figure_has_one_legend_entry_per_band_label() {
+        let dir = tempfile::tempdir().unwrap();
+        let stem = dir.path().join("scan");
+        dimension_line_figure(&stem, &sample_scan()).unwrap();
+        let (_, svg) = read_outputs(&stem);
+        for label in [
+            "tunnelling",
+            "pairing",
+            "Δ = 2 (marginal)",
+            "pairing relevant",
+            "tunnelling relevant",
+            "never seen",
+            "Luttinger parameter K",
+        ] {
+            assert_eq!(count_text(&svg, label), 1, "label '{label}'");
+        }
+        // Three bands inside the range plus three legend swatches, all
+        // translucent; the band outside the range is skipped.
+        let translucent = format!("opacity=\"{BAND_ALPHA}\"");
+        assert_eq!(svg.matches(&translucent).count(), 6);
+    }
+
+    #[test]
+    fn scan_figure_is_deterministic_and_validates() {
+        let dir = tempfile::tempdir().unwrap();
+        let data = sample_scan();
+        assert_deterministic(dir.path(), |s| dimension_line_figure(s, &data).unwrap());
+
+        let mut bad = sample_scan();
+        bad.series[0].dimension.truncate(3);
+        assert!(dimension_line_figure(&dir.path().join("bad"), &bad).is_err());
+        let mut bad = sample_scan();
+        bad.bands[0].x1 = f64::INFINITY;
+        assert!(dimension_line_figure(&dir.path().join("bad"), &bad).is_err());
     }
 }

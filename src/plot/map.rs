@@ -202,7 +202,7 @@ fn draw_map_axes<DB: DrawingBackend>(
 const CONTOUR_STYLES: [(RGBColor, Dash); 4] = [
     (RGBColor(0, 0, 0), Dash::Solid),
     (RGBColor(0, 60, 130), Dash::Dashed),
-    (RGBColor(140, 40, 0), Dash::LongDash),
+    (RGBColor(140, 40, 0), Dash::Long),
     (RGBColor(60, 60, 60), Dash::Dotted),
 ];
 const CONTOUR_WIDTH: u32 = 3;
@@ -343,5 +343,200 @@ impl Figure for HeatMap {
             self.draw_missing_key(&column)?;
         }
         Ok(())
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::plot::testutil::{assert_deterministic, count_text, hex, read_outputs, sibling};
+
+    fn grid(n: usize, a: f64, b: f64) -> Vec<f64> {
+        (0..n)
+            .map(|i| a + (b - a) * i as f64 / (n - 1) as f64)
+            .collect()
+    }
+
+    /// Disc of category 0 in a background of 1, an unphysical strip (2) on
+    /// top, and the disc's boundary as a contour.
+    fn sample_phase() -> PhaseMap {
+        let (xs, ys) = (grid(30, -1.0, 1.0), grid(20, 0.0, 2.0));
+        let mut cells = Vec::new();
+        let mut field = Vec::new();
+        for &y in &ys {
+            for &x in &xs {
+                let r2 = x * x + (y - 1.0) * (y - 1.0);
+                field.push(r2);
+                cells.push(if y > 1.8 {
+                    2
+                } else if r2 < 0.25 {
+                    0
+                } else {
+                    1
+                });
+            }
+        }
+        let lines = vec![
+            Contour {
+                label: "Δ_tunnel = 2".into(),
+                points: contour_lines(&xs, &ys, &field, 0.25),
+            },
+            Contour {
+                label: "Δ_pair = 2".into(),
+                points: contour_lines(&xs, &ys, &field, 0.5),
+            },
+        ];
+        PhaseMap {
+            title: "Phases".into(),
+            x_name: "g / v".into(),
+            y_name: "K".into(),
+            xs,
+            ys,
+            cells,
+            categories: vec![
+                "tunnel wins".into(),
+                "gapless".into(),
+                "unphysical (V not positive definite)".into(),
+                "undecided".into(),
+            ],
+            category_colours: None,
+            lines,
+            caption: "Outcome at each grid point.".into(),
+        }
+    }
+
+    #[test]
+    fn cell_edges_are_midpoints_extended_by_half_a_step() {
+        assert_eq!(cell_edges(&[0.0, 1.0, 3.0]), vec![-0.5, 0.5, 2.0, 4.0]);
+        assert_eq!(cell_edges(&[2.0]), vec![1.5, 2.5]);
+    }
+
+    #[test]
+    fn phase_diagram_writes_files_with_full_legend() {
+        let dir = tempfile::tempdir().unwrap();
+        let stem = dir.path().join("phase");
+        phase_diagram(&stem, &sample_phase()).unwrap();
+        let (_, svg) = read_outputs(&stem);
+        for label in [
+            "tunnel wins",
+            "gapless",
+            "unphysical (V not positive definite)",
+            "undecided",
+            "Δ_tunnel = 2",
+            "Δ_pair = 2",
+            "g / v",
+            "K",
+            "Phases",
+        ] {
+            assert_eq!(count_text(&svg, label), 1, "label '{label}'");
+        }
+        // Contours: solid black and dashed dark blue, each also in the legend.
+        let (c0, _) = contour_style(0);
+        let (c1, _) = contour_style(1);
+        assert!(svg.contains(&format!("stroke=\"{}\" stroke-width=\"3\"", hex(c0))));
+        assert!(
+            svg.matches(&format!("stroke=\"{}\" stroke-width=\"3\"", hex(c1)))
+                .count()
+                > 10
+        );
+    }
+
+    #[test]
+    fn equal_neighbouring_cells_merge_into_one_rectangle_per_row() {
+        let dir = tempfile::tempdir().unwrap();
+        let stem = dir.path().join("uniform");
+        let mut data = sample_phase();
+        data.cells.iter_mut().for_each(|c| *c = 1);
+        data.category_colours = Some(vec![(10, 20, 30), (200, 100, 50), (1, 2, 3), (4, 5, 6)]);
+        phase_diagram(&stem, &data).unwrap();
+        let (_, svg) = read_outputs(&stem);
+        let fill = format!("fill=\"{}\"", hex(RGBColor(200, 100, 50)));
+        // 20 rows plus the legend swatch.
+        assert_eq!(svg.matches(&fill).count(), 21);
+    }
+
+    #[test]
+    fn phase_diagram_is_deterministic() {
+        let dir = tempfile::tempdir().unwrap();
+        let data = sample_phase();
+        assert_deterministic(dir.path(), |s| phase_diagram(s, &data).unwrap());
+    }
+
+    #[test]
+    fn invalid_phase_maps_are_errors_and_write_nothing() {
+        let dir = tempfile::tempdir().unwrap();
+        let stem = dir.path().join("bad");
+        let mut bad = sample_phase();
+        bad.cells[7] = 4;
+        let err = phase_diagram(&stem, &bad).unwrap_err();
+        assert!(err.message.contains("category index 4"), "{}", err.message);
+        let mut bad = sample_phase();
+        bad.cells.pop();
+        assert!(phase_diagram(&stem, &bad).is_err());
+        let mut bad = sample_phase();
+        bad.xs.swap(3, 4);
+        assert!(phase_diagram(&stem, &bad).is_err());
+        let mut bad = sample_phase();
+        bad.category_colours = Some(vec![(0, 0, 0)]);
+        assert!(phase_diagram(&stem, &bad).is_err());
+        assert!(!sibling(&stem, "png").exists() && !sibling(&stem, "svg").exists());
+    }
+
+    fn sample_heat(with_missing: bool) -> HeatMap {
+        let (xs, ys) = (grid(24, 0.0, 1.0), grid(16, 0.5, 1.5));
+        let values = ys
+            .iter()
+            .flat_map(|&y| xs.iter().map(move |&x| (x, y)))
+            .map(|(x, y)| match with_missing && x > 0.8 && y > 1.2 {
+                true => None,
+                false => Some(4.0 * x + y),
+            })
+            .collect();
+        HeatMap {
+            title: "Gap scale".into(),
+            x_name: "g / v".into(),
+            y_name: "K".into(),
+            xs,
+            ys,
+            values,
+            value_label: "ℓ* (gap ~ e^-ℓ*)".into(),
+            caption: "Grey: no flow result.".into(),
+        }
+    }
+
+    #[test]
+    fn heat_map_has_colour_bar_and_marks_missing_values() {
+        let dir = tempfile::tempdir().unwrap();
+        let stem = dir.path().join("heat");
+        heat_map(&stem, &sample_heat(true)).unwrap();
+        let (_, svg) = read_outputs(&stem);
+        assert_eq!(count_text(&svg, "ℓ* (gap ~ e^-ℓ*)"), 1);
+        assert_eq!(count_text(&svg, "no value"), 1);
+        // Values run from 0.5 to 5.5: the extreme cells take the ends of viridis.
+        assert!(svg.contains(&format!("fill=\"{}\"", hex(palette::viridis(0.0)))));
+        assert!(svg.contains(&format!("fill=\"{}\"", hex(palette::viridis(1.0)))));
+        assert!(svg.contains(&format!("fill=\"{}\"", hex(palette::MISSING))));
+
+        let complete = dir.path().join("complete");
+        heat_map(&complete, &sample_heat(false)).unwrap();
+        let (_, svg) = read_outputs(&complete);
+        assert_eq!(count_text(&svg, "no value"), 0);
+        assert!(!svg.contains(&format!("fill=\"{}\"", hex(palette::MISSING))));
+    }
+
+    #[test]
+    fn heat_map_is_deterministic_and_validates() {
+        let dir = tempfile::tempdir().unwrap();
+        let data = sample_heat(true);
+        assert_deterministic(dir.path(), |s| heat_map(s, &data).unwrap());
+        let mut bad = sample_heat(true);
+        bad.values.push(Some(1.0));
+        assert!(heat_map(&dir.path().join("bad"), &bad).is_err());
+        let mut all_missing = sample_heat(true);
+        all_missing
+            .values
+            .iter_mut()
+            .for_each(|v| *v = Some(f64::NAN));
+        heat_map(&dir.path().join("nan"), &all_missing).unwrap();
     }
 }

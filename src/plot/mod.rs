@@ -58,3 +58,66 @@ impl PlotError {
         }
     }
 }
+
+/// Helpers shared by the figure tests.
+#[cfg(test)]
+pub(crate) mod testutil {
+    use std::path::{Path, PathBuf};
+
+    /// The eight bytes every PNG file starts with.
+    const PNG_SIGNATURE: [u8; 8] = [0x89, b'P', b'N', b'G', 0x0d, 0x0a, 0x1a, 0x0a];
+
+    /// `<stem>.<ext>` without touching dots inside the stem.
+    pub fn sibling(stem: &Path, ext: &str) -> PathBuf {
+        PathBuf::from(format!("{}.{ext}", stem.display()))
+    }
+
+    /// Reads the PNG and SVG written for `stem`, checking the PNG header.
+    pub fn read_outputs(stem: &Path) -> (Vec<u8>, String) {
+        let png = std::fs::read(sibling(stem, "png")).expect("PNG written");
+        let svg = std::fs::read_to_string(sibling(stem, "svg")).expect("SVG written");
+        assert!(png.len() > 10_000, "PNG suspiciously small: {}", png.len());
+        assert_eq!(png[..8], PNG_SIGNATURE);
+        // IHDR: width and height, big-endian, right after the chunk header.
+        assert_eq!(&png[12..16], b"IHDR");
+        assert_eq!(u32::from_be_bytes(png[16..20].try_into().unwrap()), 1200);
+        assert_eq!(u32::from_be_bytes(png[20..24].try_into().unwrap()), 900);
+        assert!(svg.starts_with("<svg"), "not an SVG document");
+        assert!(svg.trim_end().ends_with("</svg>"), "SVG not closed");
+        (png, svg)
+    }
+
+    /// Contents of all `<text>` elements of an SVG, trimmed.
+    pub fn svg_texts(svg: &str) -> Vec<String> {
+        svg.split("<text")
+            .skip(1)
+            .filter_map(|part| {
+                let start = part.find('>')? + 1;
+                let end = part.find("</text>")?;
+                Some(part[start..end].trim().to_string())
+            })
+            .collect()
+    }
+
+    /// Number of `<text>` elements whose content is exactly `label`.
+    pub fn count_text(svg: &str, label: &str) -> usize {
+        svg_texts(svg).iter().filter(|t| *t == label).count()
+    }
+
+    /// Writes the figure twice and checks both files are byte-identical.
+    pub fn assert_deterministic(dir: &Path, write: impl Fn(&Path)) {
+        let (a, b) = (dir.join("first"), dir.join("second"));
+        write(&a);
+        write(&b);
+        for ext in ["png", "svg"] {
+            let x = std::fs::read(sibling(&a, ext)).unwrap();
+            let y = std::fs::read(sibling(&b, ext)).unwrap();
+            assert!(x == y, "{ext} output differs between two renders");
+        }
+    }
+
+    /// Hex colour as the SVG backend writes it.
+    pub fn hex(c: plotters::style::RGBColor) -> String {
+        format!("#{:02X}{:02X}{:02X}", c.0, c.1, c.2)
+    }
+}

@@ -123,10 +123,8 @@ mod tests {
 
     #[test]
     fn categorical_palette_is_distinct_and_keeps_black_last() {
-        for i in 0..8 {
-            for j in 0..i {
-                assert_ne!(CATEGORICAL[i], CATEGORICAL[j]);
-            }
+        for (i, a) in CATEGORICAL.iter().enumerate() {
+            assert!(CATEGORICAL[..i].iter().all(|b| b != a));
         }
         assert_eq!(CATEGORICAL[7], BLACK);
         assert_eq!(categorical(9), categorical(1));
