@@ -359,7 +359,13 @@ fn thin_out<DB: DrawingBackend>(chart: &Chart<'_, DB>, points: &[(f64, f64)]) ->
             let (dx, dy) = (i64::from(px.0 - q.0), i64::from(px.1 - q.1));
             dx * dx + dy * dy >= THICK_VERTEX_SPACING * THICK_VERTEX_SPACING
         });
-        if far || i + 1 == points.len() {
+        let last = i + 1 == points.len();
+        if last && !far && kept.len() > 1 {
+            // Too close to the previous vertex: move that vertex to the end
+            // instead of adding a stub segment.
+            kept.pop();
+        }
+        if far || last {
             kept.push(*p);
             last_px = Some(px);
         }

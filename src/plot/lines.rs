@@ -196,9 +196,21 @@ fn decade_range(logs: &[Vec<f64>], floor: f64) -> (f64, f64) {
     (lo, hi.max(lo + 1.0))
 }
 
+/// Colour of the `i`-th term.
+fn series_colour(i: usize) -> RGBColor {
+    palette::categorical(i)
+}
+
+/// Dash of the `i`-th term: solid for the first eight, then a new dash
+/// pattern each time the palette starts over, so no two terms look alike.
+fn series_dash(i: usize) -> Dash {
+    const CYCLE: [Dash; 4] = [Dash::Solid, Dash::Dashed, Dash::Long, Dash::Dotted];
+    CYCLE[(i / palette::CATEGORICAL.len()) % CYCLE.len()]
+}
+
 impl FlowFigure {
     fn colour(&self, i: usize) -> RGBColor {
-        palette::categorical(i)
+        series_colour(i)
     }
 
     fn width(&self, i: usize) -> u32 {
@@ -228,7 +240,7 @@ impl FlowFigure {
                     true => format!("{} (winner)", s.name),
                     false => s.name.clone(),
                 };
-                LegendEntry::line(label, self.colour(i), self.width(i), Dash::Solid)
+                LegendEntry::line(label, self.colour(i), self.width(i), series_dash(i))
             })
             .collect();
         entries.push(marginal_entry());
@@ -288,7 +300,7 @@ impl FlowFigure {
         points: impl Iterator<Item = (f64, f64)>,
     ) -> Result<(), String> {
         for run in layout::finite_runs(points) {
-            layout::draw_line(chart, &run, self.colour(i), self.width(i), Dash::Solid)?;
+            layout::draw_line(chart, &run, self.colour(i), self.width(i), series_dash(i))?;
         }
         Ok(())
     }
@@ -359,6 +371,8 @@ impl Figure for FlowFigure {
     }
 }
 
+/// Line width of the terms in a scan.
+const SCAN_WIDTH: u32 = 3;
 /// Opacity of band fills.
 const BAND_ALPHA: f64 = 0.22;
 
@@ -379,9 +393,7 @@ impl LineScanFigure {
             .series
             .iter()
             .enumerate()
-            .map(|(i, s)| {
-                LegendEntry::line(&s.name, palette::categorical(i), THIN + 1, Dash::Solid)
-            })
+            .map(|(i, s)| LegendEntry::line(&s.name, series_colour(i), SCAN_WIDTH, series_dash(i)))
             .collect();
         entries.push(marginal_entry());
         for (label, c) in self.band_kinds() {
@@ -426,9 +438,9 @@ impl Figure for LineScanFigure {
                 layout::draw_line(
                     &mut chart,
                     &run,
-                    palette::categorical(i),
-                    THIN + 1,
-                    Dash::Solid,
+                    series_colour(i),
+                    SCAN_WIDTH,
+                    series_dash(i),
                 )?;
             }
         }
@@ -535,6 +547,23 @@ mod tests {
         assert!(svg_texts(&svg).iter().any(|t| t == "10⁰"));
         assert_eq!(count_text(&svg, "tunnelling"), 1);
         assert!(!svg_texts(&svg).iter().any(|t| t.starts_with("ℓ* =")));
+    }
+
+    #[test]
+    fn terms_beyond_the_palette_get_a_new_dash_pattern() {
+        assert_eq!(series_dash(0), Dash::Solid);
+        assert_eq!(series_dash(7), Dash::Solid);
+        assert_eq!(series_dash(8), Dash::Dashed);
+        assert_eq!(series_colour(8), series_colour(0));
+        let styles: Vec<(RGBColor, Dash)> = (0..32)
+            .map(|i| (series_colour(i), series_dash(i)))
+            .collect();
+        for (i, a) in styles.iter().enumerate() {
+            assert!(
+                !styles[..i].contains(a),
+                "term {i} looks like an earlier one"
+            );
+        }
     }
 
     #[test]
