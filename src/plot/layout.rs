@@ -29,6 +29,8 @@ const GRID: RGBColor = RGBColor(225, 225, 225);
 const PAGE_MARGIN: i32 = 16;
 const TITLE_HEIGHT: i32 = 52;
 const CAPTION_LINE: i32 = 26;
+/// Longer captions are cut (with "…") so the plot keeps its room.
+const MAX_CAPTION_LINES: usize = 5;
 const LEGEND_ROW: i32 = 34;
 const LEGEND_SAMPLE: i32 = 46;
 const LEGEND_GAP: i32 = 12;
@@ -95,7 +97,12 @@ pub(crate) fn frame<DB: DrawingBackend>(
     let page = root.margin(PAGE_MARGIN, PAGE_MARGIN, PAGE_MARGIN, PAGE_MARGIN);
     let (w, h) = page.dim_in_pixel();
     let caption_style = font::style(size::CAPTION, CAPTION_INK);
-    let lines = wrap(&page, caption, &caption_style, w as i32)?;
+    let mut lines = wrap(&page, caption, &caption_style, w as i32)?;
+    if lines.len() > MAX_CAPTION_LINES {
+        lines.truncate(MAX_CAPTION_LINES);
+        let last = format!("{} …", lines[MAX_CAPTION_LINES - 1]);
+        lines[MAX_CAPTION_LINES - 1] = shorten_to_width(&page, &last, &caption_style, w as i32)?;
+    }
     let caption_h = if lines.is_empty() {
         0
     } else {
@@ -198,7 +205,7 @@ pub(crate) fn legend_width<DB: DrawingBackend>(
     for entry in entries {
         widest = widest.max(text_width(area, &entry.label, &style)?);
     }
-    Ok((LEGEND_SAMPLE + LEGEND_GAP + widest + 2 * LEGEND_GAP).clamp(min, max))
+    Ok((LEGEND_SAMPLE + LEGEND_GAP + widest + 2 * LEGEND_GAP).min(max).max(min))
 }
 
 /// Draws `entries` as rows from `top` down, inside `area` (labels that are

@@ -567,6 +567,25 @@ mod tests {
     }
 
     #[test]
+    fn overlong_title_caption_and_names_still_render() {
+        let dir = tempfile::tempdir().unwrap();
+        let mut data = sample_flow();
+        data.title = "a very long title ".repeat(20);
+        data.caption = "limits of the method ".repeat(200);
+        data.series[0].name = "cos(2φ₁ − 2φ₂ + 2θ₃) ".repeat(10);
+        flow_figure(&dir.path().join("long"), &data).unwrap();
+        let (_, svg) = read_outputs(&dir.path().join("long"));
+        let texts = svg_texts(&svg);
+        assert!(texts
+            .iter()
+            .any(|t| t.starts_with("a very long title") && t.ends_with('…')));
+        assert_eq!(
+            texts.iter().filter(|t| t.starts_with("limits of")).count(),
+            5
+        );
+    }
+
+    #[test]
     fn flow_figure_is_deterministic() {
         let dir = tempfile::tempdir().unwrap();
         let data = sample_flow();
