@@ -12,6 +12,7 @@
 //! - [`system`]: a model prepared once for evaluation at many points;
 //! - [`dims`]: the `pinflow dims` report;
 //! - [`output`]: text, JSON, CSV, Markdown and LaTeX exporters;
+//! - [`plot`]: figures (PNG and SVG, embedded font);
 //! - [`cli`]: the command line.
 //!
 //! The method is weak-coupling perturbation theory around a Gaussian fixed
@@ -27,4 +28,5 @@ pub mod invariants;
 pub mod lattice;
 pub mod model;
 pub mod output;
+pub mod plot;
 pub mod system;

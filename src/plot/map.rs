@@ -1,0 +1,542 @@
+//! Maps over two parameters: categorical phase diagrams with contour
+//! lines, and heat maps of a continuous value with a colour bar.
+
+use std::path::Path;
+
+use plotters::coord::Shift;
+use plotters::prelude::*;
+use serde::{Deserialize, Serialize};
+
+pub use super::contour::contour_lines;
+use super::font::{self, size};
+use super::layout::{self, Axes, Chart, Dash, LegendEntry, INK};
+use super::output::{self, msg, Figure};
+use super::palette;
+use super::PlotError;
+
+/// A labelled set of polylines drawn on top of a phase diagram.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Contour {
+    /// Legend label, e.g. "Δ_tunnel = 2".
+    pub label: String,
+    /// Polylines in data coordinates (e.g. from [`contour_lines`]).
+    pub points: Vec<Vec<(f64, f64)>>,
+}
+
+/// A phase diagram: one category per grid point.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct PhaseMap {
+    /// Title above the map.
+    pub title: String,
+    /// Name of the horizontal parameter.
+    pub x_name: String,
+    /// Name of the vertical parameter.
+    pub y_name: String,
+    /// Grid points along x (strictly increasing).
+    pub xs: Vec<f64>,
+    /// Grid points along y (strictly increasing).
+    pub ys: Vec<f64>,
+    /// Category index per grid point, row-major: `cells[iy * xs.len() + ix]`.
+    pub cells: Vec<usize>,
+    /// Legend label of each category.
+    pub categories: Vec<String>,
+    /// Fill colour per category; default: lightened Okabe–Ito colours.
+    pub category_colours: Option<Vec<(u8, u8, u8)>>,
+    /// Lines drawn on top of the cells, each with its own legend entry.
+    pub lines: Vec<Contour>,
+    /// Text under the figure.
+    pub caption: String,
+}
+
+/// A heat map of a continuous value over two parameters.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct HeatMap {
+    /// Title above the map.
+    pub title: String,
+    /// Name of the horizontal parameter.
+    pub x_name: String,
+    /// Name of the vertical parameter.
+    pub y_name: String,
+    /// Grid points along x (strictly increasing).
+    pub xs: Vec<f64>,
+    /// Grid points along y (strictly increasing).
+    pub ys: Vec<f64>,
+    /// Value per grid point, row-major; `None` (or non-finite) is drawn grey.
+    pub values: Vec<Option<f64>>,
+    /// Label of the colour bar, e.g. "ℓ* (gap ~ e^-ℓ*)".
+    pub value_label: String,
+    /// Text under the figure.
+    pub caption: String,
+}
+
+/// Writes `<path_stem>.png` and `<path_stem>.svg`: filled cells centred on
+/// the grid points, coloured by category, with the contour lines on top and
+/// the legend in a column to the right of the plot.
+pub fn phase_diagram(path_stem: &Path, data: &PhaseMap) -> Result<(), PlotError> {
+    check_phase(data).map_err(|m| PlotError::new(path_stem, m))?;
+    output::write_figure(path_stem, data)
+}
+
+/// Writes `<path_stem>.png` and `<path_stem>.svg`: cells coloured with
+/// viridis, a colour bar with ticks, and missing values in grey.
+pub fn heat_map(path_stem: &Path, data: &HeatMap) -> Result<(), PlotError> {
+    check_grid(&data.xs, &data.ys, data.values.len()).map_err(|m| PlotError::new(path_stem, m))?;
+    output::write_figure(path_stem, data)
+}
+
+fn check_grid(xs: &[f64], ys: &[f64], cells: usize) -> Result<(), String> {
+    for (axis, v) in [("x", xs), ("y", ys)] {
+        if v.is_empty() {
+            return Err(format!("no {axis} grid points"));
+        }
+        if v.iter().any(|t| !t.is_finite()) || v.windows(2).any(|w| w[1] <= w[0]) {
+            return Err(format!(
+                "{axis} grid must be finite and strictly increasing"
+            ));
+        }
+    }
+    if cells != xs.len() * ys.len() {
+        return Err(format!(
+            "{} cells for a {}×{} grid",
+            cells,
+            xs.len(),
+            ys.len()
+        ));
+    }
+    Ok(())
+}
+
+fn check_phase(data: &PhaseMap) -> Result<(), String> {
+    check_grid(&data.xs, &data.ys, data.cells.len())?;
+    let n = data.categories.len();
+    if let Some(c) = data.cells.iter().find(|&&c| c >= n) {
+        return Err(format!("category index {c} but only {n} categories"));
+    }
+    match &data.category_colours {
+        Some(colours) if colours.len() < n => Err(format!(
+            "{} category colours for {n} categories",
+            colours.len()
+        )),
+        _ => Ok(()),
+    }
+}
+
+/// Cell boundaries: midpoints between grid points, half a step beyond the
+/// ends (a single point gets a unit-wide cell).
+fn cell_edges(v: &[f64]) -> Vec<f64> {
+    if v.len() == 1 {
+        return vec![v[0] - 0.5, v[0] + 0.5];
+    }
+    let n = v.len();
+    let mut edges = Vec::with_capacity(n + 1);
+    edges.push(v[0] - 0.5 * (v[1] - v[0]));
+    edges.extend(v.windows(2).map(|w| 0.5 * (w[0] + w[1])));
+    edges.push(v[n - 1] + 0.5 * (v[n - 1] - v[n - 2]));
+    edges
+}
+
+/// Fills the grid cells, merging horizontal runs of equal colour into one
+/// rectangle (keeps the SVG small).
+fn draw_cells<DB: DrawingBackend>(
+    chart: &mut Chart<'_, DB>,
+    xs: &[f64],
+    ys: &[f64],
+    colour_of: impl Fn(usize) -> RGBColor,
+) -> Result<(), String> {
+    let (ex, ey) = (cell_edges(xs), cell_edges(ys));
+    let nx = xs.len();
+    let mut rects = Vec::new();
+    for iy in 0..ys.len() {
+        let mut start = 0;
+        while start < nx {
+            let colour = colour_of(iy * nx + start);
+            let mut end = start + 1;
+            while end < nx && colour_of(iy * nx + end) == colour {
+                end += 1;
+            }
+            let corners = [(ex[start], ey[iy]), (ex[end], ey[iy + 1])];
+            rects.push(Rectangle::new(corners, colour.filled()));
+            start = end;
+        }
+    }
+    chart.draw_series(rects).map_err(msg).map(|_| ())
+}
+
+/// Chart spanning the cells, with axes and labels but no grid lines
+/// (the cells would hide them).
+fn map_chart<'a, DB: DrawingBackend>(
+    area: &'a DrawingArea<DB, Shift>,
+    xs: &[f64],
+    ys: &[f64],
+) -> Result<Chart<'a, DB>, String> {
+    let (ex, ey) = (cell_edges(xs), cell_edges(ys));
+    layout::chart(area, (ex[0], ex[xs.len()]), (ey[0], ey[ys.len()]))
+}
+
+fn draw_map_axes<DB: DrawingBackend>(
+    chart: &mut Chart<'_, DB>,
+    x_name: &str,
+    y_name: &str,
+) -> Result<(), String> {
+    let axes = Axes {
+        x_desc: x_name,
+        y_desc: y_name,
+        y_labels: 8,
+        y_format: None,
+        grid: false,
+    };
+    layout::draw_mesh(chart, &axes)?;
+    // A frame around the plotting area, above the cells.
+    let (x, y) = (chart.x_range(), chart.y_range());
+    let frame = [
+        (x.start, y.start),
+        (x.end, y.start),
+        (x.end, y.end),
+        (x.start, y.end),
+        (x.start, y.start),
+    ];
+    layout::draw_line(chart, &frame, INK, 1, Dash::Solid)
+}
+
+/// Line colours and dash patterns of successive contours.
+const CONTOUR_STYLES: [(RGBColor, Dash); 4] = [
+    (RGBColor(0, 0, 0), Dash::Solid),
+    (RGBColor(0, 60, 130), Dash::Dashed),
+    (RGBColor(140, 40, 0), Dash::Long),
+    (RGBColor(60, 60, 60), Dash::Dotted),
+];
+const CONTOUR_WIDTH: u32 = 3;
+
+fn contour_style(i: usize) -> (RGBColor, Dash) {
+    CONTOUR_STYLES[i % CONTOUR_STYLES.len()]
+}
+
+impl PhaseMap {
+    fn colour(&self, category: usize) -> RGBColor {
+        match &self.category_colours {
+            Some(c) => RGBColor(c[category].0, c[category].1, c[category].2),
+            None => palette::lighten(palette::categorical(category), 0.35),
+        }
+    }
+
+    fn legend(&self) -> Vec<LegendEntry> {
+        let mut entries: Vec<LegendEntry> = self
+            .categories
+            .iter()
+            .enumerate()
+            .map(|(i, name)| LegendEntry::swatch(name, self.colour(i), 1.0))
+            .collect();
+        for (i, c) in self.lines.iter().enumerate() {
+            let (colour, dash) = contour_style(i);
+            entries.push(LegendEntry::line(&c.label, colour, CONTOUR_WIDTH, dash));
+        }
+        entries
+    }
+}
+
+impl Figure for PhaseMap {
+    fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> Result<(), String> {
+        let body = layout::frame(root, &self.title, &self.caption)?;
+        let entries = self.legend();
+        let (w, _) = body.dim_in_pixel();
+        let legend_w = layout::legend_width(&body, &entries, 240, w as i32 * 2 / 5)?;
+        let (plot, legend) = body.split_horizontally(w as i32 - legend_w);
+        let mut chart = map_chart(&plot, &self.xs, &self.ys)?;
+        draw_cells(&mut chart, &self.xs, &self.ys, |k| {
+            self.colour(self.cells[k])
+        })?;
+        draw_map_axes(&mut chart, &self.x_name, &self.y_name)?;
+        for (i, contour) in self.lines.iter().enumerate() {
+            let (colour, dash) = contour_style(i);
+            for line in &contour.points {
+                for run in layout::finite_runs(line.iter().copied()) {
+                    layout::draw_line(&mut chart, &run, colour, CONTOUR_WIDTH, dash)?;
+                }
+            }
+        }
+        layout::draw_legend(&legend, &entries, 12).map(|_| ())
+    }
+}
+
+/// Width of the colour-bar column of a heat map.
+const COLOUR_BAR_COLUMN: i32 = 230;
+/// Number of colour steps in the colour bar.
+const COLOUR_BAR_STEPS: usize = 128;
+
+impl HeatMap {
+    /// Finite value at cell `k`.
+    fn value(&self, k: usize) -> Option<f64> {
+        self.values[k].filter(|v| v.is_finite())
+    }
+
+    /// Value range mapped onto viridis.
+    fn range(&self) -> (f64, f64) {
+        let finite = (0..self.values.len()).filter_map(|k| self.value(k));
+        layout::padded_range(finite, 0.0).unwrap_or((0.0, 1.0))
+    }
+
+    fn colour(&self, k: usize, (lo, hi): (f64, f64)) -> RGBColor {
+        match self.value(k) {
+            Some(v) => palette::viridis((v - lo) / (hi - lo)),
+            None => palette::MISSING,
+        }
+    }
+
+    fn draw_colour_bar<DB: DrawingBackend>(
+        &self,
+        area: &DrawingArea<DB, Shift>,
+        (lo, hi): (f64, f64),
+    ) -> Result<(), String> {
+        let mut bar = ChartBuilder::on(area)
+            .margin(12)
+            .margin_left(20)
+            .x_label_area_size(64)
+            .right_y_label_area_size(110)
+            .build_cartesian_2d(0.0..1.0, lo..hi)
+            .map_err(msg)?;
+        let step = (hi - lo) / COLOUR_BAR_STEPS as f64;
+        let rects = (0..COLOUR_BAR_STEPS).map(|i| {
+            let y0 = lo + step * i as f64;
+            let colour = palette::viridis((i as f64 + 0.5) / COLOUR_BAR_STEPS as f64);
+            Rectangle::new([(0.0, y0), (1.0, y0 + step)], colour.filled())
+        });
+        bar.draw_series(rects).map_err(msg)?;
+        let border = Rectangle::new([(0.0, lo), (1.0, hi)], INK.stroke_width(1));
+        bar.draw_series(std::iter::once(border)).map_err(msg)?;
+        let format = |v: &f64| layout::format_number(*v);
+        bar.configure_mesh()
+            .disable_x_mesh()
+            .disable_y_mesh()
+            .disable_x_axis()
+            .y_labels(8)
+            .y_label_formatter(&format)
+            .y_desc(self.value_label.as_str())
+            .label_style(font::style(size::TICK, INK))
+            .axis_desc_style(font::style(size::AXIS, INK))
+            .axis_style(INK.stroke_width(1))
+            .draw()
+            .map_err(msg)
+    }
+
+    /// Grey "no value" key at the foot of the colour-bar column.
+    fn draw_missing_key<DB: DrawingBackend>(
+        &self,
+        column: &DrawingArea<DB, Shift>,
+    ) -> Result<(), String> {
+        let (_, h) = column.dim_in_pixel();
+        let entry = [LegendEntry::swatch("no value", palette::MISSING, 1.0)];
+        layout::draw_legend(column, &entry, h as i32 - 52).map(|_| ())
+    }
+}
+
+impl Figure for HeatMap {
+    fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> Result<(), String> {
+        let body = layout::frame(root, &self.title, &self.caption)?;
+        let (w, _) = body.dim_in_pixel();
+        let (plot, column) = body.split_horizontally(w as i32 - COLOUR_BAR_COLUMN);
+        let range = self.range();
+        let mut chart = map_chart(&plot, &self.xs, &self.ys)?;
+        draw_cells(&mut chart, &self.xs, &self.ys, |k| self.colour(k, range))?;
+        draw_map_axes(&mut chart, &self.x_name, &self.y_name)?;
+        self.draw_colour_bar(&column, range)?;
+        if (0..self.values.len()).any(|k| self.value(k).is_none()) {
+            self.draw_missing_key(&column)?;
+        }
+        Ok(())
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::plot::testutil::{assert_deterministic, count_text, hex, read_outputs, sibling};
+
+    fn grid(n: usize, a: f64, b: f64) -> Vec<f64> {
+        (0..n)
+            .map(|i| a + (b - a) * i as f64 / (n - 1) as f64)
+            .collect()
+    }
+
+    /// Disc of category 0 in a background of 1, an unphysical strip (2) on
+    /// top, and the disc's boundary as a contour.
+    fn sample_phase() -> PhaseMap {
+        let (xs, ys) = (grid(30, -1.0, 1.0), grid(20, 0.0, 2.0));
+        let mut cells = Vec::new();
+        let mut field = Vec::new();
+        for &y in &ys {
+            for &x in &xs {
+                let r2 = x * x + (y - 1.0) * (y - 1.0);
+                field.push(r2);
+                cells.push(if y > 1.8 {
+                    2
+                } else if r2 < 0.25 {
+                    0
+                } else {
+                    1
+                });
+            }
+        }
+        let lines = vec![
+            Contour {
+                label: "Δ_tunnel = 2".into(),
+                points: contour_lines(&xs, &ys, &field, 0.25),
+            },
+            Contour {
+                label: "Δ_pair = 2".into(),
+                points: contour_lines(&xs, &ys, &field, 0.5),
+            },
+        ];
+        PhaseMap {
+            title: "Phases".into(),
+            x_name: "g / v".into(),
+            y_name: "K".into(),
+            xs,
+            ys,
+            cells,
+            categories: vec![
+                "tunnel wins".into(),
+                "gapless".into(),
+                "unphysical (V not positive definite)".into(),
+                "undecided".into(),
+            ],
+            category_colours: None,
+            lines,
+            caption: "Outcome at each grid point.".into(),
+        }
+    }
+
+    #[test]
+    fn cell_edges_are_midpoints_extended_by_half_a_step() {
+        assert_eq!(cell_edges(&[0.0, 1.0, 3.0]), vec![-0.5, 0.5, 2.0, 4.0]);
+        assert_eq!(cell_edges(&[2.0]), vec![1.5, 2.5]);
+    }
+
+    #[test]
+    fn phase_diagram_writes_files_with_full_legend() {
+        let dir = tempfile::tempdir().unwrap();
+        let stem = dir.path().join("phase");
+        phase_diagram(&stem, &sample_phase()).unwrap();
+        let (_, svg) = read_outputs(&stem);
+        for label in [
+            "tunnel wins",
+            "gapless",
+            "unphysical (V not positive definite)",
+            "undecided",
+            "Δ_tunnel = 2",
+            "Δ_pair = 2",
+            "g / v",
+            "K",
+            "Phases",
+        ] {
+            assert_eq!(count_text(&svg, label), 1, "label '{label}'");
+        }
+        // Contours: solid black and dashed dark blue, each also in the legend.
+        let (c0, _) = contour_style(0);
+        let (c1, _) = contour_style(1);
+        assert!(svg.contains(&format!("stroke=\"{}\" stroke-width=\"3\"", hex(c0))));
+        assert!(
+            svg.matches(&format!("stroke=\"{}\" stroke-width=\"3\"", hex(c1)))
+                .count()
+                > 10
+        );
+    }
+
+    #[test]
+    fn equal_neighbouring_cells_merge_into_one_rectangle_per_row() {
+        let dir = tempfile::tempdir().unwrap();
+        let stem = dir.path().join("uniform");
+        let mut data = sample_phase();
+        data.cells.iter_mut().for_each(|c| *c = 1);
+        data.category_colours = Some(vec![(10, 20, 30), (200, 100, 50), (1, 2, 3), (4, 5, 6)]);
+        phase_diagram(&stem, &data).unwrap();
+        let (_, svg) = read_outputs(&stem);
+        let fill = format!("fill=\"{}\"", hex(RGBColor(200, 100, 50)));
+        // 20 rows plus the legend swatch.
+        assert_eq!(svg.matches(&fill).count(), 21);
+    }
+
+    #[test]
+    fn phase_diagram_is_deterministic() {
+        let dir = tempfile::tempdir().unwrap();
+        let data = sample_phase();
+        assert_deterministic(dir.path(), |s| phase_diagram(s, &data).unwrap());
+    }
+
+    #[test]
+    fn invalid_phase_maps_are_errors_and_write_nothing() {
+        let dir = tempfile::tempdir().unwrap();
+        let stem = dir.path().join("bad");
+        let mut bad = sample_phase();
+        bad.cells[7] = 4;
+        let err = phase_diagram(&stem, &bad).unwrap_err();
+        assert!(err.message.contains("category index 4"), "{}", err.message);
+        let mut bad = sample_phase();
+        bad.cells.pop();
+        assert!(phase_diagram(&stem, &bad).is_err());
+        let mut bad = sample_phase();
+        bad.xs.swap(3, 4);
+        assert!(phase_diagram(&stem, &bad).is_err());
+        let mut bad = sample_phase();
+        bad.category_colours = Some(vec![(0, 0, 0)]);
+        assert!(phase_diagram(&stem, &bad).is_err());
+        assert!(!sibling(&stem, "png").exists() && !sibling(&stem, "svg").exists());
+    }
+
+    fn sample_heat(with_missing: bool) -> HeatMap {
+        let (xs, ys) = (grid(24, 0.0, 1.0), grid(16, 0.5, 1.5));
+        let values = ys
+            .iter()
+            .flat_map(|&y| xs.iter().map(move |&x| (x, y)))
+            .map(|(x, y)| match with_missing && x > 0.8 && y > 1.2 {
+                true => None,
+                false => Some(4.0 * x + y),
+            })
+            .collect();
+        HeatMap {
+            title: "Gap scale".into(),
+            x_name: "g / v".into(),
+            y_name: "K".into(),
+            xs,
+            ys,
+            values,
+            value_label: "ℓ* (gap ~ e^-ℓ*)".into(),
+            caption: "Grey: no flow result.".into(),
+        }
+    }
+
+    #[test]
+    fn heat_map_has_colour_bar_and_marks_missing_values() {
+        let dir = tempfile::tempdir().unwrap();
+        let stem = dir.path().join("heat");
+        heat_map(&stem, &sample_heat(true)).unwrap();
+        let (_, svg) = read_outputs(&stem);
+        assert_eq!(count_text(&svg, "ℓ* (gap ~ e^-ℓ*)"), 1);
+        assert_eq!(count_text(&svg, "no value"), 1);
+        // Values run from 0.5 to 5.5: the extreme cells take the ends of viridis.
+        assert!(svg.contains(&format!("fill=\"{}\"", hex(palette::viridis(0.0)))));
+        assert!(svg.contains(&format!("fill=\"{}\"", hex(palette::viridis(1.0)))));
+        assert!(svg.contains(&format!("fill=\"{}\"", hex(palette::MISSING))));
+
+        let complete = dir.path().join("complete");
+        heat_map(&complete, &sample_heat(false)).unwrap();
+        let (_, svg) = read_outputs(&complete);
+        assert_eq!(count_text(&svg, "no value"), 0);
+        assert!(!svg.contains(&format!("fill=\"{}\"", hex(palette::MISSING))));
+    }
+
+    #[test]
+    fn heat_map_is_deterministic_and_validates() {
+        let dir = tempfile::tempdir().unwrap();
+        let data = sample_heat(true);
+        assert_deterministic(dir.path(), |s| heat_map(s, &data).unwrap());
+        let mut bad = sample_heat(true);
+        bad.values.push(Some(1.0));
+        assert!(heat_map(&dir.path().join("bad"), &bad).is_err());
+        let mut all_missing = sample_heat(true);
+        all_missing
+            .values
+            .iter_mut()
+            .for_each(|v| *v = Some(f64::NAN));
+        heat_map(&dir.path().join("nan"), &all_missing).unwrap();
+    }
+}
