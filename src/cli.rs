@@ -34,6 +34,11 @@ pub enum Command {
     /// Second-order RG flow of every term at one parameter point: which term
     /// reaches strong coupling first, and at what scale.
     Flow(FlowArgs),
+    /// Flow every point of a line or plane of parameters and draw the phase
+    /// diagram: which term wins where, and how fast.
+    Scan(ScanArgs),
+    /// Join the shard files of a scan (`scan --shard k/n`) into its full output.
+    Merge(MergeArgs),
 }
 
 /// Options shared by commands that evaluate a model at one point.
@@ -74,6 +79,58 @@ pub struct FlowArgs {
     pub out: Option<PathBuf>,
 }
 
+/// `pinflow scan`.
+#[derive(Debug, Args)]
+pub struct ScanArgs {
+    #[command(flatten)]
+    pub point: PointArgs,
+    /// First axis: NAME=MIN:MAX:N, or NAME=MIN:MAX:N:log for log spacing
+    /// [default: `x` of the model's [scan] table].
+    #[arg(long, value_name = "AXIS")]
+    pub x: Option<String>,
+    /// Second axis, as --x [default: `y` of the model's [scan] table, if any].
+    #[arg(long, value_name = "AXIS")]
+    pub y: Option<String>,
+    #[command(flatten)]
+    pub flow: FlowOverrides,
+    /// Output directory [default: out/<model file stem>].
+    #[arg(long, value_name = "DIR")]
+    pub out: Option<PathBuf>,
+    /// Compute only the K-th of N interleaved parts, into DIR/shard-K-of-N.csv
+    /// (join the parts with `pinflow merge`).
+    #[arg(long, value_name = "K/N", value_parser = crate::scan::parse_shard)]
+    pub shard: Option<(usize, usize)>,
+    /// Continue an interrupted scan without recomputing finished points.
+    #[arg(long)]
+    pub resume: bool,
+    /// Number of worker threads [default: all cores].
+    #[arg(long, value_name = "N")]
+    pub threads: Option<usize>,
+    /// No progress bar.
+    #[arg(long, short = 'q')]
+    pub quiet: bool,
+    /// Run grids larger than the safety limit.
+    #[arg(long)]
+    pub force: bool,
+    /// Format of the summary printed at the end.
+    #[arg(long, value_enum, default_value_t = Format::Text)]
+    pub format: Format,
+}
+
+/// `pinflow merge`.
+#[derive(Debug, Args)]
+pub struct MergeArgs {
+    /// The shard files (DIR/shard-K-of-N.csv), all N of them.
+    #[arg(required = true)]
+    pub shards: Vec<PathBuf>,
+    /// Output directory [default: the directory of the first shard].
+    #[arg(long, value_name = "DIR")]
+    pub out: Option<PathBuf>,
+    /// Format of the summary printed at the end.
+    #[arg(long, value_enum, default_value_t = Format::Text)]
+    pub format: Format,
+}
+
 /// Parse `name=value`.
 pub fn parse_assignment(s: &str) -> Result<(String, f64), String> {
     let (name, value) = s
@@ -98,10 +155,12 @@ pub fn run(cli: Cli) -> Result<(), Error> {
     match cli.command {
         Command::Dims(args) => run_dims(args),
         Command::Flow(args) => run_flow(args),
+        Command::Scan(args) => crate::scan::run::scan(args),
+        Command::Merge(args) => crate::scan::run::merge(args),
     }
 }
 
-fn load_point(args: &PointArgs) -> Result<(System, Vec<f64>), Error> {
+pub(crate) fn load_point(args: &PointArgs) -> Result<(System, Vec<f64>), Error> {
     let sys = System::load(&args.model)?;
     let point = sys.model.point_with(&args.set, "--set")?;
     Ok((sys, point))
@@ -139,7 +198,7 @@ fn run_flow(args: FlowArgs) -> Result<(), Error> {
 }
 
 /// Print to standard output, or write a file atomically.
-fn emit(path: Option<&std::path::Path>, text: &str) -> Result<(), Error> {
+pub(crate) fn emit(path: Option<&std::path::Path>, text: &str) -> Result<(), Error> {
     match path {
         None => output::write_atomic(std::path::Path::new("-"), text.as_bytes()),
         Some(p) => output::write_atomic(p, text.as_bytes()),

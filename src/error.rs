@@ -59,6 +59,9 @@ pub enum Error {
     /// A numerical failure (exit code 1).
     #[error("{0}")]
     Numerical(String),
+    /// A figure could not be written (exit code 1).
+    #[error("{0}")]
+    Plot(#[from] crate::plot::PlotError),
     /// Reading or writing a file failed (exit code 1).
     #[error("{path}: {source}")]
     Io {

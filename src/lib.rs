@@ -29,4 +29,5 @@ pub mod lattice;
 pub mod model;
 pub mod output;
 pub mod plot;
+pub mod scan;
 pub mod system;

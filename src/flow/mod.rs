@@ -199,6 +199,15 @@ impl<'s> Flow<'s> {
             }
         }
         y0.as_mut_slice()[2 * included.len()..].copy_from_slice(&d0);
+        for i in 0..included.len() {
+            // So irrelevant that the coupling vanishes within ell ~ 1/DECAYED_AT_ONCE:
+            // treating it as zero keeps the flow from becoming needlessly stiff.
+            if rhs.dimension(y0.as_slice(), i) > DECAYED_AT_ONCE {
+                rhs.frozen[i] = true;
+                y0[2 * i] = 0.0;
+                y0[2 * i + 1] = 0.0;
+            }
+        }
         let y_start = y0.clone();
         let ell_k: Vec<Option<f64>> = momenta.iter().map(|k| k.and_then(cutoff_scale)).collect();
         let integrated = integrate(&mut rhs, y0, &ell_k, &self.opts);
@@ -420,6 +429,10 @@ pub fn dkd_drift(k: &nalgebra::DMatrix<f64>, d: &nalgebra::DMatrix<f64>) -> f64 
     diff.amax() / kinv.amax()
 }
 
+/// Terms with a bare dimension above this are treated as decayed at once
+/// (their coupling shrinks by e^-(Delta-2) per unit of ell).
+pub const DECAYED_AT_ONCE: f64 = 40.0;
+
 /// What the integration produced.
 struct Integrated {
     outcome: Outcome,
@@ -450,7 +463,7 @@ fn integrate(
     let mut start = 0.0;
     for end in breaks {
         for (c, k) in ell_k.iter().enumerate() {
-            rhs.active[c] = k.is_none_or(|l| l > start + 1e-9);
+            rhs.active[c] = !rhs.frozen[c] && k.is_none_or(|l| l > start + 1e-9);
         }
         if rhs.samples.is_empty() && rhs.record {
             let y_s = y.clone();

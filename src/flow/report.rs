@@ -80,6 +80,28 @@ impl FlowReport {
         }
     }
 
+    /// A short outcome for figure titles.
+    pub fn headline_short(&self) -> String {
+        let r = &self.result;
+        match (r.outcome, &r.winner, r.ell_star) {
+            (Outcome::Strong, Some(w), Some(l)) => format!("{w} wins at ell* = {l:.3}"),
+            (Outcome::Spinful, Some(w), Some(l)) => {
+                format!("{w} (spinful) strong at ell* = {l:.3}")
+            }
+            (o, _, _) => o.word().to_string(),
+        }
+    }
+
+    /// The parameter point as `name = value` pairs.
+    pub fn point_text(&self) -> String {
+        let p: Vec<String> = self
+            .parameters
+            .iter()
+            .map(|(k, v)| format!("{k} = {v}"))
+            .collect();
+        format!("At {}.", p.join(", "))
+    }
+
     /// Write `summary.json`, `trajectory.csv` and the figures into `dir`.
     pub fn write_dir(&self, dir: &Path) -> Result<(), Error> {
         std::fs::create_dir_all(dir).map_err(|e| Error::io(dir, e))?;
@@ -200,14 +222,34 @@ impl Report for FlowReport {
     }
 }
 
-/// The flow figure (filled in by the plotting module).
+/// The flow figure: |y| (log axis) and Delta against ell.
 pub mod figure {
-    use super::FlowReport;
+    use super::{FlowReport, METHOD_NOTE};
     use crate::error::Error;
+    use crate::plot::{flow_figure, FlowFigure, FlowSeries};
     use std::path::Path;
 
     /// Write `<stem>.png` and `<stem>.svg`.
-    pub fn write(_report: &FlowReport, _stem: &Path) -> Result<(), Error> {
-        Ok(())
+    pub fn write(report: &FlowReport, stem: &Path) -> Result<(), Error> {
+        let r = &report.result;
+        let series = r
+            .terms
+            .iter()
+            .enumerate()
+            .map(|(i, t)| FlowSeries {
+                name: t.name.clone(),
+                coupling: r.samples.iter().map(|s| s.couplings[i]).collect(),
+                dimension: r.samples.iter().map(|s| s.dimensions[i]).collect(),
+            })
+            .collect();
+        let data = FlowFigure {
+            title: format!("{}: {}", report.model, report.headline_short()),
+            ell: r.samples.iter().map(|s| s.ell).collect(),
+            series,
+            winner: r.winner_index,
+            ell_star: r.ell_star,
+            caption: format!("{} {}", report.point_text(), METHOD_NOTE),
+        };
+        Ok(flow_figure(stem, &data)?)
     }
 }

@@ -61,6 +61,8 @@ pub struct FlowRhs<'a> {
     pub ope: Vec<OpeEntry>,
     /// Channel flows in the current segment.
     pub active: Vec<bool>,
+    /// Channel never flows (decayed at once).
+    pub frozen: Vec<bool>,
     /// Stop threshold.
     pub y_strong: f64,
     /// Decay floor.
@@ -94,6 +96,7 @@ impl<'a> FlowRhs<'a> {
             extra,
             ope,
             active: vec![true; n],
+            frozen: vec![false; n],
             y_strong: 1.0,
             floor: 1e-6,
             record: true,

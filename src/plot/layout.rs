@@ -205,7 +205,9 @@ pub(crate) fn legend_width<DB: DrawingBackend>(
     for entry in entries {
         widest = widest.max(text_width(area, &entry.label, &style)?);
     }
-    Ok((LEGEND_SAMPLE + LEGEND_GAP + widest + 2 * LEGEND_GAP).min(max).max(min))
+    Ok((LEGEND_SAMPLE + LEGEND_GAP + widest + 2 * LEGEND_GAP)
+        .min(max)
+        .max(min))
 }
 
 /// Draws `entries` as rows from `top` down, inside `area` (labels that are

@@ -1,0 +1,237 @@
+//! Phase diagrams over a line or a plane of parameters.
+//!
+//! Every grid point is one flow ([`crate::flow::Flow::run`], the same code
+//! as `pinflow flow`). Points are computed in parallel (rayon) a chunk at a
+//! time and appended to the partial file in index order, so the output
+//! bytes do not depend on the number of threads, an interrupted scan can be
+//! resumed, and shards of a scan can be merged. The summary and figures are
+//! built from the finished `points.csv` alone (see [`summary`]), which is
+//! why `merge` needs no model.
+//!
+//! Index order: x varies fastest; point i has x index i % nx and y index
+//! i / nx.
+
+pub mod axis;
+pub mod figures;
+pub mod run;
+pub mod store;
+pub mod summary;
+
+use std::path::{Path, PathBuf};
+
+use rayon::prelude::*;
+
+use crate::error::{Error, InputError};
+use crate::flow::{Flow, FlowOptions, FlowResult, Outcome};
+use crate::system::System;
+pub use axis::Axis;
+use store::{csv_line, Meta, RowFile};
+
+/// Points computed between two appends.
+const CHUNK: usize = 64;
+
+/// Largest grid run without `--force`.
+pub const MAX_POINTS: usize = 20_000_000;
+
+/// What to scan.
+#[derive(Debug, Clone)]
+pub struct ScanSpec {
+    /// One or two axes (x first).
+    pub axes: Vec<Axis>,
+    /// The fixed parameter point (defaults with `--set` overrides).
+    pub base: Vec<f64>,
+    /// Flow options.
+    pub options: FlowOptions,
+    /// (k, n), 1-based, to compute only every n-th point starting at k-1.
+    pub shard: Option<(usize, usize)>,
+}
+
+/// A scan prepared for running.
+pub struct Scan<'s> {
+    flow: Flow<'s>,
+    spec: ScanSpec,
+    slots: Vec<usize>,
+    /// File meta (fingerprint, columns, target).
+    pub meta: Meta,
+}
+
+impl<'s> Scan<'s> {
+    /// Check the axes against the model and prepare the flow plan.
+    pub fn new(sys: &'s System, model_bytes: &[u8], mut spec: ScanSpec) -> Result<Scan<'s>, Error> {
+        let slots = spec
+            .axes
+            .iter()
+            .map(|a| {
+                sys.model.params.index(&a.name).ok_or_else(|| {
+                    InputError::new(
+                        "command line",
+                        "--x/--y",
+                        format!(
+                            "unknown axis parameter `{}` (known parameters: {})",
+                            a.name,
+                            sys.model.params.names().join(", ")
+                        ),
+                    )
+                })
+            })
+            .collect::<Result<Vec<_>, _>>()?;
+        if spec.axes.len() == 2 && spec.axes[0].name == spec.axes[1].name {
+            return Err(InputError::new(
+                "command line",
+                "--y",
+                "the two axes must be different parameters",
+            )
+            .into());
+        }
+        spec.options.record = false;
+        let meta = make_meta(sys, model_bytes, &spec);
+        let flow = Flow::new(sys, spec.options.clone());
+        Ok(Scan {
+            flow,
+            spec,
+            slots,
+            meta,
+        })
+    }
+
+    /// Total number of grid points.
+    pub fn points(&self) -> usize {
+        self.spec.axes.iter().map(|a| a.n).product()
+    }
+
+    /// Grid indices this run computes, in order.
+    pub fn indices(&self) -> Vec<usize> {
+        match self.spec.shard {
+            None => (0..self.points()).collect(),
+            Some((k, n)) => (k - 1..self.points()).step_by(n).collect(),
+        }
+    }
+
+    /// The parameter point of a grid index.
+    pub fn point(&self, index: usize) -> Vec<f64> {
+        let mut p = self.spec.base.clone();
+        let mut rest = index;
+        for (axis, &slot) in self.spec.axes.iter().zip(&self.slots) {
+            p[slot] = axis.value(rest % axis.n);
+            rest /= axis.n;
+        }
+        p
+    }
+
+    /// Flow one grid point and format its CSV row.
+    pub fn row(&self, index: usize) -> String {
+        let point = self.point(index);
+        let result = match self.flow.run(&point) {
+            Ok(r) => r,
+            Err(Error::Input(e)) => FlowResult::without_flow(Outcome::Unphysical, e.message),
+            Err(e) => FlowResult::without_flow(Outcome::Failed, e.to_string()),
+        };
+        let coords: Vec<f64> = self.slots.iter().map(|&s| point[s]).collect();
+        csv_line(&row_cells(&coords, &result, self.meta.terms.len()))
+    }
+
+    /// Compute every remaining point of `file`, appending chunk by chunk.
+    pub fn run_into(&self, file: &mut RowFile, progress: &dyn Fn(usize)) -> Result<(), Error> {
+        let indices = self.indices();
+        for chunk in indices[file.rows.min(indices.len())..].chunks(CHUNK) {
+            let rows: Vec<String> = chunk.par_iter().map(|&i| self.row(i)).collect();
+            file.append(&rows)?;
+            progress(rows.len());
+        }
+        file.sync()
+    }
+}
+
+/// Cells of one row: axis values, outcome, winner, ell*, bare and final
+/// dimensions of the listed terms (empty where there is no flow).
+pub fn row_cells(coords: &[f64], r: &FlowResult, listed: usize) -> Vec<String> {
+    let mut cells: Vec<String> = coords.iter().map(|x| format!("{x}")).collect();
+    cells.push(r.outcome.word().to_string());
+    cells.push(r.winner.clone().unwrap_or_default());
+    cells.push(r.ell_star.map(|l| format!("{l}")).unwrap_or_default());
+    let dims = |f: &dyn Fn(usize) -> f64| -> Vec<String> {
+        (0..listed)
+            .map(|i| {
+                if i < r.terms.len() {
+                    format!("{}", f(i))
+                } else {
+                    String::new()
+                }
+            })
+            .collect()
+    };
+    cells.extend(dims(&|i| r.terms[i].dimension0));
+    cells.extend(dims(&|i| r.terms[i].dimension));
+    cells
+}
+
+fn make_meta(sys: &System, model_bytes: &[u8], spec: &ScanSpec) -> Meta {
+    let terms: Vec<String> = sys.model.terms.iter().map(|t| t.name.clone()).collect();
+    let target = sys.model.target();
+    let competitors = target
+        .map(|t| {
+            (0..terms.len())
+                .filter(|&b| b != t && !sys.invariants.commutes[t][b])
+                .map(|b| terms[b].clone())
+                .collect()
+        })
+        .unwrap_or_default();
+    let mut meta = Meta {
+        fingerprint: String::new(),
+        model: sys.model.name.clone(),
+        axes: spec.axes.clone(),
+        terms,
+        target: target.map(|t| sys.model.terms[t].name.clone()),
+        competitors,
+        shard: spec.shard,
+        points: spec.axes.iter().map(|a| a.n).product(),
+    };
+    let canonical = format!(
+        "{}|{:?}|{}|{}",
+        String::from_utf8_lossy(model_bytes),
+        spec.base,
+        serde_json::to_string(&spec.options).unwrap_or_default(),
+        serde_json::to_string(&meta).unwrap_or_default()
+    );
+    meta.fingerprint = format!("{:016x}", fnv1a(canonical.as_bytes()));
+    meta
+}
+
+/// FNV-1a, 64 bit: a stable fingerprint (not a security hash).
+fn fnv1a(bytes: &[u8]) -> u64 {
+    bytes.iter().fold(0xcbf2_9ce4_8422_2325u64, |h, b| {
+        (h ^ *b as u64).wrapping_mul(0x0100_0000_01b3)
+    })
+}
+
+/// File names inside the output directory.
+pub fn partial_path(dir: &Path, shard: Option<(usize, usize)>) -> PathBuf {
+    match shard {
+        None => dir.join(".points.running.csv"),
+        Some((k, n)) => dir.join(format!(".shard-{k}-of-{n}.running.csv")),
+    }
+}
+
+/// Final name of a shard file.
+pub fn shard_path(dir: &Path, k: usize, n: usize) -> PathBuf {
+    dir.join(format!("shard-{k}-of-{n}.csv"))
+}
+
+/// Parse `k/n` (1 <= k <= n).
+pub fn parse_shard(s: &str) -> Result<(usize, usize), String> {
+    let (k, n) = s
+        .split_once('/')
+        .ok_or_else(|| format!("expected K/N, found `{s}`"))?;
+    let k: usize = k
+        .trim()
+        .parse()
+        .map_err(|_| format!("expected K/N with whole numbers, found `{s}`"))?;
+    let n: usize = n
+        .trim()
+        .parse()
+        .map_err(|_| format!("expected K/N with whole numbers, found `{s}`"))?;
+    if n == 0 || k == 0 || k > n {
+        return Err(format!("shard K/N needs 1 <= K <= N, found `{s}`"));
+    }
+    Ok((k, n))
+}

@@ -1,0 +1,306 @@
+//! Scan files: the partial file that grows as points finish, resuming,
+//! shard files and merging.
+//!
+//! Layout of a partial or shard file: one line `# pinflow-scan <meta JSON>`,
+//! the CSV header, then one row per point in index order. Rows are appended
+//! a chunk at a time; a killed run leaves at most one incomplete last line,
+//! which resuming cuts off. Invariant: the k-th complete row of a file is
+//! the k-th point of its index list, so the number of complete rows is the
+//! progress.
+
+use std::fs::{File, OpenOptions};
+use std::io::{BufRead, BufReader, Read, Seek, SeekFrom, Write};
+use std::path::{Path, PathBuf};
+
+use serde::{Deserialize, Serialize};
+
+use super::axis::Axis;
+use crate::error::{Error, InputError};
+
+/// Marker at the start of the first line of partial and shard files.
+pub const MAGIC: &str = "# pinflow-scan ";
+
+/// What a partial or shard file is part of.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Meta {
+    /// Hash of the model file, the fixed parameters, the axes and the options.
+    pub fingerprint: String,
+    /// Model name.
+    pub model: String,
+    /// Scan axes (x first).
+    pub axes: Vec<Axis>,
+    /// The model's terms (column order).
+    pub terms: Vec<String>,
+    /// The target term, if the model marks one.
+    pub target: Option<String>,
+    /// Listed terms that do not commute with the target.
+    pub competitors: Vec<String>,
+    /// (k, n) for shard k of n (1-based), or None for a whole scan.
+    pub shard: Option<(usize, usize)>,
+    /// Points in the whole grid.
+    pub points: usize,
+}
+
+impl Meta {
+    /// Number of points this file must hold when complete.
+    pub fn expected_rows(&self) -> usize {
+        match self.shard {
+            None => self.points,
+            Some((k, n)) => (self.points + n - k) / n,
+        }
+    }
+
+    /// The CSV header row.
+    pub fn header(&self) -> Vec<String> {
+        let mut h: Vec<String> = self.axes.iter().map(|a| a.name.clone()).collect();
+        h.extend(
+            ["outcome", "winner", "ell_star"]
+                .iter()
+                .map(|s| s.to_string()),
+        );
+        h.extend(self.terms.iter().map(|t| format!("dimension0:{t}")));
+        h.extend(self.terms.iter().map(|t| format!("dimension:{t}")));
+        h
+    }
+}
+
+/// An open file that rows are appended to.
+pub struct RowFile {
+    file: File,
+    path: PathBuf,
+    /// Complete rows already in the file.
+    pub rows: usize,
+}
+
+impl RowFile {
+    /// Create (truncating) a partial file with its meta line and header.
+    pub fn create(path: &Path, meta: &Meta) -> Result<RowFile, Error> {
+        let mut file = File::create(path).map_err(|e| Error::io(path, e))?;
+        let json = serde_json::to_string(meta).map_err(|e| Error::Numerical(e.to_string()))?;
+        let mut head = format!("{MAGIC}{json}\n");
+        head.push_str(&csv_line(&meta.header()));
+        file.write_all(head.as_bytes())
+            .map_err(|e| Error::io(path, e))?;
+        file.sync_data().map_err(|e| Error::io(path, e))?;
+        Ok(RowFile {
+            file,
+            path: path.to_path_buf(),
+            rows: 0,
+        })
+    }
+
+    /// Reopen a partial file to continue it: checks the meta, cuts an
+    /// incomplete last line and counts the complete rows.
+    pub fn resume(path: &Path, meta: &Meta) -> Result<RowFile, Error> {
+        let found = read_meta(path)?;
+        if found != *meta {
+            return Err(Error::Input(InputError::new(
+                path.display().to_string(),
+                "--resume",
+                "the partial output was made with a different model, grid, shard or options; run without --resume to start over",
+            )));
+        }
+        let mut file = OpenOptions::new()
+            .read(true)
+            .write(true)
+            .open(path)
+            .map_err(|e| Error::io(path, e))?;
+        let mut bytes = Vec::new();
+        file.read_to_end(&mut bytes)
+            .map_err(|e| Error::io(path, e))?;
+        let complete = bytes.iter().rposition(|b| *b == b'\n').map_or(0, |p| p + 1);
+        file.set_len(complete as u64)
+            .map_err(|e| Error::io(path, e))?;
+        file.seek(SeekFrom::End(0))
+            .map_err(|e| Error::io(path, e))?;
+        let lines = bytes[..complete].iter().filter(|b| **b == b'\n').count();
+        let rows = lines.saturating_sub(2);
+        if lines < 2 {
+            // Not even the header made it: start the body afresh.
+            drop(file);
+            return RowFile::create(path, meta);
+        }
+        Ok(RowFile {
+            file,
+            path: path.to_path_buf(),
+            rows,
+        })
+    }
+
+    /// Append finished rows (already formatted lines) and flush them.
+    pub fn append(&mut self, lines: &[String]) -> Result<(), Error> {
+        let mut buf = String::with_capacity(lines.iter().map(|l| l.len()).sum());
+        for l in lines {
+            buf.push_str(l);
+        }
+        self.file
+            .write_all(buf.as_bytes())
+            .map_err(|e| Error::io(&self.path, e))?;
+        self.file.flush().map_err(|e| Error::io(&self.path, e))?;
+        self.rows += lines.len();
+        Ok(())
+    }
+
+    /// Make the rows durable.
+    pub fn sync(&self) -> Result<(), Error> {
+        self.file.sync_data().map_err(|e| Error::io(&self.path, e))
+    }
+}
+
+/// One CSV line (with newline) from cells.
+pub fn csv_line(cells: &[String]) -> String {
+    let mut w = csv::WriterBuilder::new()
+        .terminator(csv::Terminator::Any(b'\n'))
+        .from_writer(Vec::new());
+    // Writing to memory cannot fail.
+    let _ = w.write_record(cells);
+    String::from_utf8(w.into_inner().unwrap_or_default()).unwrap_or_default()
+}
+
+/// Read the meta line of a partial or shard file.
+pub fn read_meta(path: &Path) -> Result<Meta, Error> {
+    let file = File::open(path).map_err(|e| Error::io(path, e))?;
+    let mut first = String::new();
+    BufReader::new(file)
+        .read_line(&mut first)
+        .map_err(|e| Error::io(path, e))?;
+    let bad = |why: &str| {
+        Error::Input(InputError::new(
+            path.display().to_string(),
+            "",
+            format!("not a pinflow scan file: {why}"),
+        ))
+    };
+    let json = first
+        .trim_end()
+        .strip_prefix(MAGIC)
+        .ok_or_else(|| bad("missing the `# pinflow-scan` line"))?;
+    serde_json::from_str(json).map_err(|e| bad(&e.to_string()))
+}
+
+/// Iterate over the data rows (after the meta line and the header) of a
+/// partial, shard or points file; `skip_meta` says whether a meta line comes first.
+pub fn data_lines(
+    path: &Path,
+    skip_meta: bool,
+) -> Result<impl Iterator<Item = std::io::Result<String>>, Error> {
+    let file = File::open(path).map_err(|e| Error::io(path, e))?;
+    let skip = if skip_meta { 2 } else { 1 };
+    Ok(BufReader::new(file).lines().skip(skip))
+}
+
+/// Copy the rows of a complete partial file into `points.csv` (header and
+/// rows, without the meta line), atomically.
+pub fn publish_points(partial: &Path, meta: &Meta, target: &Path) -> Result<(), Error> {
+    let tmp = crate::output::temp_path(target);
+    {
+        let mut out = std::io::BufWriter::new(File::create(&tmp).map_err(|e| Error::io(&tmp, e))?);
+        out.write_all(csv_line(&meta.header()).as_bytes())
+            .map_err(|e| Error::io(&tmp, e))?;
+        for line in data_lines(partial, true)? {
+            let line = line.map_err(|e| Error::io(partial, e))?;
+            out.write_all(line.as_bytes())
+                .and_then(|_| out.write_all(b"\n"))
+                .map_err(|e| Error::io(&tmp, e))?;
+        }
+        out.flush().map_err(|e| Error::io(&tmp, e))?;
+    }
+    std::fs::rename(&tmp, target).map_err(|e| Error::io(target, e))
+}
+
+/// Merge complete shard files into `points.csv` in `dir`; returns the meta
+/// of the whole scan.
+pub fn merge(shards: &[PathBuf], target: &Path) -> Result<Meta, Error> {
+    let metas: Vec<Meta> = shards
+        .iter()
+        .map(|p| read_meta(p))
+        .collect::<Result<_, _>>()?;
+    let whole = check_shard_set(shards, &metas)?;
+    let n = metas.len();
+    let mut order: Vec<usize> = (0..n).collect();
+    order.sort_by_key(|&i| metas[i].shard.map_or(0, |s| s.0));
+    let mut readers = Vec::with_capacity(n);
+    for &i in &order {
+        readers.push(data_lines(&shards[i], true)?);
+    }
+    let tmp = crate::output::temp_path(target);
+    {
+        let mut out = std::io::BufWriter::new(File::create(&tmp).map_err(|e| Error::io(&tmp, e))?);
+        out.write_all(csv_line(&whole.header()).as_bytes())
+            .map_err(|e| Error::io(&tmp, e))?;
+        for index in 0..whole.points {
+            let k = index % n;
+            let line = readers[k]
+                .next()
+                .transpose()
+                .map_err(|e| Error::io(&shards[order[k]], e))?;
+            let line = line.ok_or_else(|| incomplete(&shards[order[k]]))?;
+            out.write_all(line.as_bytes())
+                .and_then(|_| out.write_all(b"\n"))
+                .map_err(|e| Error::io(&tmp, e))?;
+        }
+        out.flush().map_err(|e| Error::io(&tmp, e))?;
+    }
+    std::fs::rename(&tmp, target).map_err(|e| Error::io(target, e))?;
+    Ok(whole)
+}
+
+fn incomplete(path: &Path) -> Error {
+    Error::Input(InputError::new(
+        path.display().to_string(),
+        "",
+        "the shard is incomplete (finish it with `pinflow scan ... --shard k/n --resume`)",
+    ))
+}
+
+/// The shard files must come from one scan, cover 1..=n once each, and be
+/// complete.
+fn check_shard_set(paths: &[PathBuf], metas: &[Meta]) -> Result<Meta, Error> {
+    let bad = |path: &Path, msg: String| {
+        Error::Input(InputError::new(path.display().to_string(), "", msg))
+    };
+    let first = metas
+        .first()
+        .ok_or_else(|| bad(Path::new("merge"), "no shard files given".into()))?;
+    let Some((_, n)) = first.shard else {
+        return Err(bad(
+            &paths[0],
+            "not a shard file (it has no shard k/n)".into(),
+        ));
+    };
+    let mut seen = vec![false; n];
+    for (p, m) in paths.iter().zip(metas) {
+        let Some((k, nk)) = m.shard else {
+            return Err(bad(p, "not a shard file".into()));
+        };
+        let mut a = m.clone();
+        let mut b = first.clone();
+        a.shard = None;
+        b.shard = None;
+        if a != b || nk != n {
+            return Err(bad(
+                p,
+                format!("belongs to a different scan than {}", paths[0].display()),
+            ));
+        }
+        if std::mem::replace(&mut seen[k - 1], true) {
+            return Err(bad(p, format!("shard {k}/{n} is given twice")));
+        }
+        let rows = data_lines(p, true)?.count();
+        if rows != m.expected_rows() {
+            return Err(bad(
+                p,
+                format!(
+                    "shard {k}/{n} is incomplete: {rows} of {} points",
+                    m.expected_rows()
+                ),
+            ));
+        }
+    }
+    if let Some(k) = seen.iter().position(|s| !s) {
+        return Err(bad(&paths[0], format!("shard {}/{n} is missing", k + 1)));
+    }
+    let mut whole = first.clone();
+    whole.shard = None;
+    Ok(whole)
+}
