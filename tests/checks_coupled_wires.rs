@@ -18,6 +18,9 @@
 //! - lam = (m^2 - 1)/(m^2 + 1) gives K_L = 1/m and Delta = (m + m)/2 = m.
 //! Spin: s = (1/2) sum (a^2 - b^2) = (1/2)(m - m) = 0; charge: t.m =
 //! (-1) + (+1) = 0.
+//!
+//! A last check uses the "Infinite arrays" values of the project's check
+//! list on a 128-wire periodic ring (the dense code path).
 
 mod common;
 
@@ -173,4 +176,71 @@ fn array_totals_scale_with_the_number_of_wires() {
         assert_eq!(r.det_k, if w % 2 == 0 { "1" } else { "-1" });
         assert_eq!(r.filling, "0");
     }
+}
+
+/// A periodic ring of spinless wires with intrawire g and nearest-neighbour
+/// density-density w, written with the parameters K0 and lam of the sliding
+/// Luttinger liquid: g = (1 - K0^2)/(1 + K0^2), w = lam (1 + g)/4.
+const SLIDING_RING: &str = r#"
+name = "sliding Luttinger liquid, 128-wire ring"
+
+[params]
+K0 = 0.8
+lam = 0.5
+
+[array]
+wires = 128
+boundary = "periodic"
+K = [[1, 0], [0, -1]]
+charge = [1, 1]
+
+[array.V]
+0 = [["1", "(1 - K0^2)/(1 + K0^2)"], ["(1 - K0^2)/(1 + K0^2)", "1"]]
+1 = [["lam*(1 + (1 - K0^2)/(1 + K0^2))/4", "lam*(1 + (1 - K0^2)/(1 + K0^2))/4"],
+     ["lam*(1 + (1 - K0^2)/(1 + K0^2))/4", "lam*(1 + (1 - K0^2)/(1 + K0^2))/4"]]
+
+[[term]]
+name = "cdw"
+particles = { 0 = [1, -1], 1 = [-1, 1] }
+
+[[term]]
+name = "pair_hop"
+particles = { 0 = [1, 1], 1 = [-1, -1] }
+
+[[term]]
+name = "hop"
+particles = { 0 = [1, 0], 1 = [-1, 0] }
+"#;
+
+#[test]
+fn sliding_luttinger_liquid_on_a_large_ring() {
+    // Mukhopadhyay, Kane & Lubensky, PRB 64, 045120 (2001) (structure from
+    // memory; formulas derived in the project's check values): with
+    // K(q) = K0 / sqrt(1 + lam cos q),
+    //   interwire CDW      Delta = 2 int dq/2pi K(q) (1 - cos q),
+    //   pair hopping       Delta = 2 int dq/2pi (1 - cos q) / K(q),
+    //   single-particle    Delta = (1/2) int dq/2pi (K + 1/K)(1 - cos q),
+    //                      spin 1.
+    // At K0 = 0.8, lam = 0.5: 1.91562, 2.13776, 1.01334 (the check values);
+    // the integrals evaluated to 20 digits with mpmath's quad give
+    // 1.9156168687105, 2.1377629775186, 1.0133449615573 (derived). A
+    // periodic ring of W wires is the trapezoid rule on q = 2 pi k / W; the
+    // integrand is analytic in a strip |Im q| < arccosh(2) = 1.317, so with
+    // W = 128 the rule is exact to far below 1e-12.
+    let r = report_at(SLIDING_RING, &[]);
+    let cases = [
+        ("cdw", 1.915_616_868_710_5, 1.91562),
+        ("pair_hop", 2.137_762_977_518_6, 2.13776),
+        ("hop", 1.013_344_961_557_3, 1.01334),
+    ];
+    for (name, precise, listed) in cases {
+        let t = term(&r, name);
+        assert_close(&format!("{name} (listed value)"), t.dimension, listed, 5e-6);
+        assert_close(&format!("{name} (integral)"), t.dimension, precise, 1e-12);
+    }
+    assert_eq!(term(&r, "cdw").spin, "0");
+    assert_eq!(term(&r, "pair_hop").spin, "0");
+    assert_eq!(term(&r, "hop").spin, "1");
+    // Pair hopping across wires conserves charge: (+2) + (-2).
+    assert_eq!(term(&r, "pair_hop").charge, "0");
 }
