@@ -386,6 +386,31 @@ fn bad_arrays() {
         &[],
         &["array.V.a", "non-negative integer"],
     );
+    // Regression: "01" and "1" name the same separation; one block used to
+    // replace the other silently. Offsets must be written canonically.
+    expect_input_error(
+        &array("4", "1 = [[0.1, 0], [0, 0.1]]\n01 = [[0.2, 0], [0, 0.2]]"),
+        &[],
+        &["array.V.01", "leading zeros"],
+    );
+    // The same for term offsets ("+1" used to be read as 1, "00" as 0 and
+    // summed with offset 0).
+    expect_input_error(
+        &format!(
+            "{}\n[[term]]\nname = \"cdw\"\nparticles = {{ 0 = [1, -1], \"+1\" = [-1, 1] }}\n",
+            array("4", "")
+        ),
+        &[],
+        &["term \"cdw\".particles.+1", "non-negative integer"],
+    );
+    expect_input_error(
+        &format!(
+            "{}\n[[term]]\nname = \"cdw\"\nparticles = {{ 0 = [1, -1], 00 = [-1, 1] }}\n",
+            array("4", "")
+        ),
+        &[],
+        &["term \"cdw\".particles.00"],
+    );
     // Periodic W = 2 with block 1: wires 0 and 1 would be coupled twice.
     expect_input_error(
         &array("2", "1 = [[0.1, 0], [0, 0.1]]"),
