@@ -16,6 +16,7 @@
 //! Delta = (m^2 K_L + 1/K_L)/2:
 //! - free electrons (lam = 0, K_L = 1): Delta = (m^2 + 1)/2;
 //! - lam = (m^2 - 1)/(m^2 + 1) gives K_L = 1/m and Delta = (m + m)/2 = m.
+//!
 //! Spin: s = (1/2) sum (a^2 - b^2) = (1/2)(m - m) = 0; charge: t.m =
 //! (-1) + (+1) = 0.
 //!

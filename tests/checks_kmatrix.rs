@@ -28,7 +28,14 @@ fn kmodel(k: &[Vec<i64>], t: &[i64], terms: &str) -> String {
 fn filling_and_determinant_of_the_table_states() {
     // Wen, Adv. Phys. 44, 405 (1995): (state, K, t, nu, |det K|).
     // For (mmn) states nu = 2/(m + n) (same source).
-    let table: [(&str, Vec<Vec<i64>>, Vec<i64>, &str, &str); 4] = [
+    type Row = (
+        &'static str,
+        Vec<Vec<i64>>,
+        Vec<i64>,
+        &'static str,
+        &'static str,
+    );
+    let table: [Row; 4] = [
         ("Laughlin 1/3", vec![vec![3]], vec![1], "1/3", "3"),
         (
             "Halperin (331)",

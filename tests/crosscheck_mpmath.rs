@@ -12,6 +12,9 @@
 //! The test needs `python3` with mpmath installed (`pip install mpmath`);
 //! without them it fails with a message saying so (it does not skip).
 
+// Matrix loops read best with indices.
+#![allow(clippy::needless_range_loop)]
+
 mod common;
 
 use std::process::Command;

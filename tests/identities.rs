@@ -18,6 +18,9 @@
 //! The basis-change check goes through model text (`Model::parse`,
 //! `System`, `DimsReport`); the others call `FixedPoint::solve` directly.
 
+// Matrix loops read best with indices.
+#![allow(clippy::needless_range_loop)]
+
 mod common;
 
 use common::{toml_f64_matrix, toml_int_matrix, toml_int_vector};
