@@ -202,15 +202,17 @@ pub(crate) fn scalar_matrix(
         .collect()
 }
 
-/// A wire offset written as a table key: a non-negative integer.
+/// A wire offset written as a table key: a non-negative integer in
+/// canonical form (no sign, no leading zeros), so that two keys never name
+/// the same offset (e.g. "1" and "01", which would silently collide).
 pub(crate) fn offset_key(ctx: &Ctx, key: &str, full: &str) -> Result<usize, InputError> {
     key.parse::<usize>()
         .ok()
-        .filter(|o| *o <= 1_000_000)
+        .filter(|o| *o <= 1_000_000 && o.to_string() == key)
         .ok_or_else(|| {
             ctx.err(
                 full,
-                format!("`{key}` is not a wire separation: keys must be non-negative integers (0 = same wire, 1 = nearest neighbour, ...)"),
+                format!("`{key}` is not a wire separation: keys must be non-negative integers written without sign or leading zeros (0 = same wire, 1 = nearest neighbour, ...)"),
             )
         })
 }

@@ -1,0 +1,82 @@
+//! Helpers shared by the integration tests: build a model from TOML text
+//! through the public API (`Model::parse` -> `System::new` ->
+//! `DimsReport::build`) and look up terms by name.
+#![allow(dead_code)]
+
+use pinflow::dims::{DimsReport, TermRow};
+use pinflow::model::Model;
+use pinflow::system::System;
+
+/// Parse model text and prepare the system; panics with the error message.
+pub fn system(toml: &str) -> System {
+    let model = Model::parse(toml, "test.toml").unwrap_or_else(|e| panic!("model: {e}"));
+    System::new(model).unwrap_or_else(|e| panic!("system: {e}"))
+}
+
+/// The `dims` report at the model's default parameters, with overrides.
+pub fn report_at(toml: &str, overrides: &[(&str, f64)]) -> DimsReport {
+    let sys = system(toml);
+    let set: Vec<(String, f64)> = overrides.iter().map(|(n, v)| (n.to_string(), *v)).collect();
+    let point = sys
+        .model
+        .point_with(&set, "test")
+        .unwrap_or_else(|e| panic!("point: {e}"));
+    DimsReport::build(&sys, &point).unwrap_or_else(|e| panic!("report: {e}"))
+}
+
+/// The `dims` report at the model's default parameters.
+pub fn report(toml: &str) -> DimsReport {
+    report_at(toml, &[])
+}
+
+/// The row of a term, by name.
+pub fn term<'a>(r: &'a DimsReport, name: &str) -> &'a TermRow {
+    r.terms
+        .iter()
+        .find(|t| t.name == name)
+        .unwrap_or_else(|| panic!("no term named {name}"))
+}
+
+/// Index of a term in the report, by name.
+pub fn term_index(r: &DimsReport, name: &str) -> usize {
+    r.terms
+        .iter()
+        .position(|t| t.name == name)
+        .unwrap_or_else(|| panic!("no term named {name}"))
+}
+
+/// Assert |a - b| <= tol * max(1, |b|), with a message naming the check.
+#[track_caller]
+pub fn assert_close(what: &str, a: f64, b: f64, tol: f64) {
+    let scale = b.abs().max(1.0);
+    assert!(
+        (a - b).abs() <= tol * scale,
+        "{what}: got {a}, expected {b} (difference {:e}, tolerance {tol:e})",
+        (a - b).abs()
+    );
+}
+
+/// Format an integer matrix as a TOML array of arrays.
+pub fn toml_int_matrix(m: &[Vec<i64>]) -> String {
+    let rows: Vec<String> = m.iter().map(|r| toml_int_vector(r)).collect();
+    format!("[{}]", rows.join(", "))
+}
+
+/// Format an integer vector as a TOML array.
+pub fn toml_int_vector(v: &[i64]) -> String {
+    let items: Vec<String> = v.iter().map(|x| x.to_string()).collect();
+    format!("[{}]", items.join(", "))
+}
+
+/// Format a float matrix as a TOML array of arrays (shortest round-trip
+/// decimal form, so the parsed value is bit-identical).
+pub fn toml_f64_matrix(m: &[Vec<f64>]) -> String {
+    let rows: Vec<String> = m
+        .iter()
+        .map(|r| {
+            let items: Vec<String> = r.iter().map(|x| format!("{x:?}")).collect();
+            format!("[{}]", items.join(", "))
+        })
+        .collect();
+    format!("[{}]", rows.join(", "))
+}
