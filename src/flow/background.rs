@@ -1,21 +1,33 @@
 //! The flowing scaling-dimension matrix D, in two storage layouts.
 //!
-//! Flow [physics reference section 3]:
+//! Flow [physics reference sections 3 and 4]:
 //! dD/dell = -(1/8) sum_{null a} |y_a|^2 sum_{translates t}
 //!           [ D l_t l_t^T D - K^-1 l_t l_t^T K^-1 ].
 //! It keeps D K D = K^-1 exactly (the two terms of d(DKD) cancel when
 //! DKD = K^-1); the drift of a numerical flow is measured by the caller.
 //!
-//! - [`Dense`]: the full N x N matrix (explicit models, open arrays).
-//! - [`Circulant`]: periodic arrays, where D is block-circulant: only the
-//!   blocks D^(n) = D[(0, .), (n, .)], n = 0..W-1, are stored, and the sum
-//!   over translates becomes a circular autocorrelation of u = D l_rep:
-//!   block n gets sum_i u_i u_{i+n}^T. Cost W^2 n_c^2 per channel instead of
-//!   W (W n_c)^2.
+//! - [`Background::Dense`]: the full N x N matrix (explicit models, open
+//!   arrays): each translate costs N^2.
+//! - [`Background::Fourier`]: periodic arrays of W wires. D is block-
+//!   circulant, D_{j,j'} = D^(j'-j), and is stored as its W Fourier blocks
+//!   D(q) = sum_n D^(n) e^{i q n}, q = 2 pi k / W (each n_c x n_c,
+//!   Hermitian). With L(q) = sum_j l_j e^{-i q j} (derived in a few lines:
+//!   the sum over translates of u_t u_t^T, u = D l, is a circular
+//!   autocorrelation whose transform is U(q) U(q)^H with U = D(q) L(q)):
+//!
+//!   ```text
+//!   Delta      = (1/2W) sum_q L(q)^H D(q) L(q)
+//!   dD(q)/dell = -(1/8) |y|^2 [ D(q) L L^H D(q) - G G^H ],  G = K_c^-1 L(q)
+//!   ```
+//!
+//!   Cost W n_c^2 per channel instead of W N^2; since D and l are real,
+//!   D(-q) = conj D(q) and only q in [0, pi] is stored. The same layout on
+//!   the points of a quadrature is the infinite array.
 //!
 //! Neither layout allocates: callers pass scratch space of `scratch_len()`.
 
 use nalgebra::DMatrix;
+use num_complex::Complex64;
 
 use super::channels::Channel;
 
@@ -27,9 +39,10 @@ pub enum Background {
         /// Number of fields.
         n: usize,
     },
-    /// Blocks D^(n) (each n_c x n_c, row-major), n = 0..W-1.
-    Circulant {
-        /// Wires.
+    /// Fourier blocks D(q_k), k = 0..W-1, each n_c x n_c complex, stored
+    /// as interleaved (re, im) pairs, row-major.
+    Fourier {
+        /// Wires (number of q points).
         wires: usize,
         /// Fields per wire.
         cell: usize,
@@ -41,7 +54,7 @@ impl Background {
     pub fn len(&self) -> usize {
         match *self {
             Background::Dense { n } => n * n,
-            Background::Circulant { wires, cell } => wires * cell * cell,
+            Background::Fourier { wires, cell } => 2 * half(wires) * cell * cell,
         }
     }
 
@@ -54,11 +67,11 @@ impl Background {
     pub fn scratch_len(&self) -> usize {
         match *self {
             Background::Dense { n } => n,
-            Background::Circulant { wires, cell } => 2 * wires * cell,
+            Background::Fourier { cell, .. } => 2 * cell,
         }
     }
 
-    /// Write the state of a dense D.
+    /// Write the state of a dense D (for Fourier, D must be block-circulant).
     pub fn write(&self, d: &DMatrix<f64>, out: &mut [f64]) {
         match *self {
             Background::Dense { n } => {
@@ -68,11 +81,16 @@ impl Background {
                     }
                 }
             }
-            Background::Circulant { wires, cell } => {
-                for sep in 0..wires {
+            Background::Fourier { wires, cell } => {
+                for k in 0..half(wires) {
                     for a in 0..cell {
                         for b in 0..cell {
-                            out[(sep * cell + a) * cell + b] = d[(a, sep * cell + b)];
+                            let z: Complex64 = (0..wires)
+                                .map(|sep| d[(a, sep * cell + b)] * phase(k, sep as i64, wires))
+                                .sum();
+                            let at = 2 * ((k * cell + a) * cell + b);
+                            out[at] = z.re;
+                            out[at + 1] = z.im;
                         }
                     }
                 }
@@ -80,39 +98,63 @@ impl Background {
         }
     }
 
-    /// Entry D[i][j] of the state.
-    #[inline]
-    pub fn entry(&self, s: &[f64], i: usize, j: usize) -> f64 {
-        match *self {
-            Background::Dense { n } => s[i * n + j],
-            Background::Circulant { wires, cell } => {
-                let (wi, a) = (i / cell, i % cell);
-                let (wj, b) = (j / cell, j % cell);
-                let sep = (wj + wires - wi) % wires;
-                s[(sep * cell + a) * cell + b]
-            }
-        }
-    }
-
     /// The dense D of a state.
     pub fn dense(&self, s: &[f64]) -> DMatrix<f64> {
-        let n = match *self {
-            Background::Dense { n } => n,
-            Background::Circulant { wires, cell } => wires * cell,
-        };
-        DMatrix::from_fn(n, n, |i, j| self.entry(s, i, j))
-    }
-
-    /// (1/2) l^T D l of a sparse vector.
-    #[inline]
-    pub fn dimension(&self, s: &[f64], l: &[(usize, f64)]) -> f64 {
-        let mut acc = 0.0;
-        for &(i, x) in l {
-            for &(j, y) in l {
-                acc += x * y * self.entry(s, i, j);
+        match *self {
+            Background::Dense { n } => DMatrix::from_fn(n, n, |i, j| s[i * n + j]),
+            Background::Fourier { wires, cell } => {
+                // D^(n) = (1/W) sum_k D(q_k) e^{-i q_k n}
+                let block = |sep: usize, a: usize, b: usize| -> f64 {
+                    let re: f64 = (0..half(wires))
+                        .map(|k| {
+                            let at = 2 * ((k * cell + a) * cell + b);
+                            let z =
+                                Complex64::new(s[at], s[at + 1]) * phase(k, -(sep as i64), wires);
+                            weight(k, wires) * z.re
+                        })
+                        .sum();
+                    re / wires as f64
+                };
+                let n = wires * cell;
+                DMatrix::from_fn(n, n, |i, j| {
+                    let (wi, a, wj, b) = (i / cell, i % cell, j / cell, j % cell);
+                    block((wj + wires - wi) % wires, a, b)
+                })
             }
         }
-        0.5 * acc
+    }
+
+    /// Bosonic dimension (1/2) l^T D l of a channel's representative.
+    #[inline]
+    pub fn dimension(&self, s: &[f64], ch: &Channel) -> f64 {
+        match *self {
+            Background::Dense { n } => {
+                let l = &ch.l_sparse[ch.family.representative];
+                let mut acc = 0.0;
+                for &(i, x) in l {
+                    for &(j, y) in l {
+                        acc += x * y * s[i * n + j];
+                    }
+                }
+                0.5 * acc
+            }
+            Background::Fourier { wires, cell } => {
+                let mut acc = 0.0;
+                for k in 0..half(wires) {
+                    let lq = &ch.lq[k * cell..(k + 1) * cell];
+                    let mut term = 0.0;
+                    for a in 0..cell {
+                        for b in 0..cell {
+                            let at = 2 * ((k * cell + a) * cell + b);
+                            let d = Complex64::new(s[at], s[at + 1]);
+                            term += (lq[a].conj() * d * lq[b]).re;
+                        }
+                    }
+                    acc += weight(k, wires) * term;
+                }
+                acc / (2.0 * wires as f64)
+            }
+        }
     }
 
     /// ds += -(weight/8) sum_t [ D l_t l_t^T D - g_t g_t^T ] for a channel,
@@ -127,57 +169,76 @@ impl Background {
     ) {
         let c = -weight / 8.0;
         match *self {
-            Background::Dense { n } => {
-                let u = &mut scratch[..n];
-                for (l, g) in ch.l_sparse.iter().zip(&ch.g_sparse) {
-                    for (i, ui) in u.iter_mut().enumerate() {
-                        *ui = l.iter().map(|&(j, x)| s[i * n + j] * x).sum();
+            Background::Dense { n } => dense_feedback(n, s, ch, c, ds, &mut scratch[..n]),
+            Background::Fourier { wires, cell } => {
+                let u = &mut scratch[..2 * cell];
+                for k in 0..half(wires) {
+                    let lq = &ch.lq[k * cell..(k + 1) * cell];
+                    let gq = &ch.gq[k * cell..(k + 1) * cell];
+                    let base = 2 * k * cell * cell;
+                    for a in 0..cell {
+                        let mut z = Complex64::new(0.0, 0.0);
+                        for b in 0..cell {
+                            let at = base + 2 * (a * cell + b);
+                            z += Complex64::new(s[at], s[at + 1]) * lq[b];
+                        }
+                        u[2 * a] = z.re;
+                        u[2 * a + 1] = z.im;
                     }
-                    for i in 0..n {
-                        let row = &mut ds[i * n..(i + 1) * n];
-                        let cu = c * u[i];
-                        for (r, uj) in row.iter_mut().zip(u.iter()) {
-                            *r += cu * uj;
+                    for a in 0..cell {
+                        let ua = Complex64::new(u[2 * a], u[2 * a + 1]);
+                        for b in 0..cell {
+                            let ub = Complex64::new(u[2 * b], u[2 * b + 1]);
+                            let v = ua * ub.conj() - gq[a] * gq[b].conj();
+                            let at = base + 2 * (a * cell + b);
+                            ds[at] += c * v.re;
+                            ds[at + 1] += c * v.im;
                         }
                     }
-                    for &(i, gi) in g {
-                        for &(j, gj) in g {
-                            ds[i * n + j] -= c * gi * gj;
-                        }
-                    }
                 }
-            }
-            Background::Circulant { wires, cell } => {
-                let n = wires * cell;
-                let (u, g) = scratch.split_at_mut(n);
-                let l = &ch.l_sparse[ch.family.representative];
-                for (i, ui) in u.iter_mut().enumerate() {
-                    *ui = l.iter().map(|&(j, x)| self.entry(s, i, j) * x).sum();
-                }
-                g[..n].fill(0.0);
-                for &(i, x) in &ch.g_sparse[ch.family.representative] {
-                    g[i] = x;
-                }
-                autocorrelate_into(u, &g[..n], wires, cell, c, ds);
             }
         }
     }
 }
 
-/// ds block sep (a, b) += c * sum_i (u[i, a] u[i+sep, b] - g[i, a] g[i+sep, b]).
-fn autocorrelate_into(u: &[f64], g: &[f64], wires: usize, cell: usize, c: f64, ds: &mut [f64]) {
-    for sep in 0..wires {
-        for i in 0..wires {
-            let j = (i + sep) % wires;
-            for a in 0..cell {
-                let (ua, ga) = (u[i * cell + a], g[i * cell + a]);
-                if ua == 0.0 && ga == 0.0 {
-                    continue;
-                }
-                for b in 0..cell {
-                    let v = ua * u[j * cell + b] - ga * g[j * cell + b];
-                    ds[(sep * cell + a) * cell + b] += c * v;
-                }
+/// Number of stored q points: for real D and l, D(-q) = conj D(q) and
+/// L(-q) = conj L(q), so only k = 0..=W/2 are kept.
+pub fn half(wires: usize) -> usize {
+    wires / 2 + 1
+}
+
+/// Weight of stored point k in sums over all W points: 1 for q = 0 and
+/// q = pi, 2 for the others (each stands for itself and -q).
+#[inline]
+pub fn weight(k: usize, wires: usize) -> f64 {
+    if k == 0 || 2 * k == wires {
+        1.0
+    } else {
+        2.0
+    }
+}
+
+/// e^{i 2 pi k n / W}.
+pub fn phase(k: usize, n: i64, wires: usize) -> Complex64 {
+    let q = 2.0 * std::f64::consts::PI * k as f64 / wires as f64;
+    Complex64::from_polar(1.0, q * n as f64)
+}
+
+fn dense_feedback(n: usize, s: &[f64], ch: &Channel, c: f64, ds: &mut [f64], u: &mut [f64]) {
+    for (l, g) in ch.l_sparse.iter().zip(&ch.g_sparse) {
+        for (i, ui) in u.iter_mut().enumerate() {
+            *ui = l.iter().map(|&(j, x)| s[i * n + j] * x).sum();
+        }
+        for i in 0..n {
+            let row = &mut ds[i * n..(i + 1) * n];
+            let cu = c * u[i];
+            for (r, uj) in row.iter_mut().zip(u.iter()) {
+                *r += cu * uj;
+            }
+        }
+        for &(i, gi) in g {
+            for &(j, gj) in g {
+                ds[i * n + j] -= c * gi * gj;
             }
         }
     }

@@ -16,6 +16,7 @@
 
 use std::collections::HashMap;
 
+use num_complex::Complex64;
 use num_traits::Zero;
 
 use crate::exact::{self, Rational};
@@ -61,6 +62,11 @@ pub struct Channel {
     pub l_sparse: Vec<Vec<(usize, f64)>>,
     /// Sparse K^-1 l of every translate.
     pub g_sparse: Vec<Vec<(usize, f64)>>,
+    /// Periodic arrays: L(q_k) = sum_j l_j e^{-i q_k j} of the representative,
+    /// k-major (W n_c entries); empty otherwise.
+    pub lq: Vec<Complex64>,
+    /// Periodic arrays: K_c^-1 L(q_k).
+    pub gq: Vec<Complex64>,
 }
 
 impl Channel {
@@ -221,6 +227,7 @@ fn make_channel(
     }
     let particles = particles_of(lat, inv, family.rep());
     let charge = exact::dot_int(&particles, &lat.charge);
+    let (lq, gq) = fourier_of(lat, inv, &family.rep().l);
     Channel {
         name,
         origin,
@@ -230,7 +237,38 @@ fn make_channel(
         particles,
         l_sparse,
         g_sparse,
+        lq,
+        gq,
     }
+}
+
+/// L(q_k) and K_c^-1 L(q_k) on the W points q_k = 2 pi k / W of a periodic
+/// array (empty for other lattices).
+fn fourier_of(lat: &Lattice, inv: &[Vec<Rational>], l: &[i64]) -> (Vec<Complex64>, Vec<Complex64>) {
+    if lat.boundary != Some(Boundary::Periodic) || lat.wires < 2 {
+        return (Vec::new(), Vec::new());
+    }
+    let (w, c) = (lat.wires, lat.cell);
+    let kinv: Vec<Vec<f64>> = inv
+        .iter()
+        .map(|r| r.iter().map(exact::to_f64).collect())
+        .collect();
+    let mut lq = vec![Complex64::new(0.0, 0.0); w * c];
+    for k in 0..w {
+        for j in 0..w {
+            let ph = super::background::phase(k, -(j as i64), w);
+            for a in 0..c {
+                lq[k * c + a] += ph * l[j * c + a] as f64;
+            }
+        }
+    }
+    let gq = (0..w * c)
+        .map(|i| {
+            let (k, a) = (i / c, i % c);
+            (0..c).map(|b| lq[k * c + b] * kinv[a][b]).sum()
+        })
+        .collect();
+    (lq, gq)
 }
 
 fn sparse(values: impl Iterator<Item = f64>) -> Vec<(usize, f64)> {

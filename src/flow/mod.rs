@@ -152,7 +152,7 @@ impl<'s> Flow<'s> {
         let plan = Plan::build(sys, opts.closure == Closure::Pairs);
         let lat = &sys.lattice;
         let bg = match lat.boundary {
-            Some(Boundary::Periodic) if lat.wires > 1 => Background::Circulant {
+            Some(Boundary::Periodic) if lat.wires > 1 && !opts.dense_d => Background::Fourier {
                 wires: lat.wires,
                 cell: lat.cell,
             },
@@ -247,9 +247,7 @@ impl<'s> Flow<'s> {
             .filter(|&c| {
                 c < self.plan.listed || {
                     let ch = &self.plan.channels[c];
-                    self.bg
-                        .dimension(d0, &ch.l_sparse[ch.family.representative])
-                        < self.opts.closure_bound
+                    self.bg.dimension(d0, ch) < self.opts.closure_bound
                 }
             })
             .collect()
@@ -615,6 +613,8 @@ fn strong_result(
     let winner = above(b)
         .or_else(|| rhs.strongest(y_end.as_slice()))
         .map(|(c, _)| c);
+    // Report the state at ell*, not at the end of the last step.
+    let y_end = model.evaluate(b).unwrap_or(y_end);
     let spinful = winner.is_some_and(|w| !rhs.channels[w].null());
     Integrated {
         outcome: if spinful {

@@ -37,6 +37,10 @@ pub struct FlowOptions {
     /// Record the trajectory (off in scans).
     #[serde(skip)]
     pub record: bool,
+    /// Carry D as a dense matrix even for periodic arrays (the Fourier
+    /// layout is the default there); both paths must agree.
+    #[serde(skip)]
+    pub dense_d: bool,
 }
 
 impl Default for FlowOptions {
@@ -51,6 +55,7 @@ impl Default for FlowOptions {
             atol: 1e-12,
             max_steps: 100_000,
             record: true,
+            dense_d: false,
         }
     }
 }

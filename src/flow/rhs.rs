@@ -118,7 +118,7 @@ impl<'a> FlowRhs<'a> {
     pub fn dimension(&self, y: &[f64], c: usize) -> f64 {
         let d = &y[2 * self.channels.len()..];
         let ch = self.channels[c];
-        self.bg.dimension(d, &ch.l_sparse[ch.family.representative]) + self.extra[c]
+        self.bg.dimension(d, ch) + self.extra[c]
     }
 
     /// |y_c| = 2 |w_c|.

@@ -94,6 +94,21 @@ pub fn render<R: Report + Serialize>(report: &R, format: Format) -> Result<Strin
     })
 }
 
+/// A number for people: at most 6 significant digits, trailing zeros
+/// trimmed (machine outputs keep the full round-trip representation).
+pub fn short(x: f64) -> String {
+    if x == 0.0 || !x.is_finite() {
+        return format!("{x}");
+    }
+    let digits = (5 - x.abs().log10().floor() as i32).clamp(0, 12) as usize;
+    let s = format!("{x:.digits$}");
+    if s.contains('.') {
+        s.trim_end_matches('0').trim_end_matches('.').to_string()
+    } else {
+        s
+    }
+}
+
 /// Pretty JSON with a trailing newline.
 pub fn to_json<T: Serialize>(value: &T) -> Result<String, Error> {
     let mut s = serde_json::to_string_pretty(value)

@@ -100,7 +100,10 @@ impl Axis {
         if self.log {
             (self.min.ln() + t * (self.max.ln() - self.min.ln())).exp()
         } else {
-            self.min + t * (self.max - self.min)
+            // Weighted form: exact at both ends and closest to the decimal
+            // grid more often than min + t (max - min).
+            let (i, m) = (i as f64, (self.n - 1) as f64);
+            (self.min * (m - i) + self.max * i) / m
         }
     }
 

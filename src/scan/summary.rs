@@ -13,7 +13,7 @@ use serde::Serialize;
 
 use super::store::Meta;
 use crate::error::{Error, InputError};
-use crate::output::{Report, Table};
+use crate::output::{short, Report, Table};
 
 /// Outcome words in display order.
 pub const OUTCOMES: [&str; 6] = [
@@ -234,7 +234,7 @@ impl Report for ScanSummary {
             let ranges: Vec<String> = t
                 .ranges
                 .iter()
-                .map(|(k, [a, b])| format!("{k} in [{a}, {b}]"))
+                .map(|(k, [a, b])| format!("{k} in [{}, {}]", short(*a), short(*b)))
                 .collect();
             let mut s = format!(
                 "{} wins at {} points ({:.1}% of the grid)",
@@ -250,7 +250,7 @@ impl Report for ScanSummary {
                 let at: Vec<String> = m
                     .best_point
                     .iter()
-                    .map(|(k, v)| format!("{k}={v}"))
+                    .map(|(k, v)| format!("{k}={}", short(*v)))
                     .collect();
                 f.push((
                     "margin".to_string(),
