@@ -179,16 +179,21 @@ fn initial_rates_follow_the_d_flow() {
 // couplings y_a, y_b and a pairing p on wire 1 (does not commute with a);
 // after a short flow h the generated couplings are y = -(coefficient) h to
 // O(h^2) (the sign shows as phase pi).
-#[test]
-fn ope_coefficients_at_small_ell() {
+//
+// Phases (derived from the same product formula): cos(A + chi_a) cos(B + chi_b)
+// = (1/2)[cos(A + B + chi_a + chi_b) + cos(A - B + chi_a - chi_b)], so the
+// generated a + b carries phase chi_a + chi_b + pi (the minus sign), a - b
+// carries chi_a - chi_b + pi and 2a carries 2 chi_a + pi.
+fn check_ope(chi_a: f64, chi_b: f64, chi_p: f64) {
     let (ya, yb, yp) = (0.1, 0.2, 0.05);
+    let phase = |chi: f64| format!("phase = {}", num(chi));
     let text = format!(
         "[fields]\nK = [[1, 0, 0, 0], [0, -1, 0, 0], [0, 0, 1, 0], [0, 0, 0, -1]]\n\
          charge = [1, 1, 1, 1]\n\
          V = [[1.0, 0.2, 0.05, 0.1], [0.2, 1.0, 0.1, 0.05], [0.05, 0.1, 1.0, 0.2], [0.1, 0.05, 0.2, 1.0]]\n{}{}{}",
-        term_toml("a", "[1, -1, 0, 0]", ya, ""),
-        term_toml("b", "[0, 0, 1, -1]", yb, ""),
-        term_toml("p", "[1, 1, 0, 0]", yp, "allowed_charge = 2"),
+        term_toml("a", "[1, -1, 0, 0]", ya, &phase(chi_a)),
+        term_toml("b", "[0, 0, 1, -1]", yb, &phase(chi_b)),
+        term_toml("p", "[1, 1, 0, 0]", yp, &(phase(chi_p) + "\nallowed_charge = 2")),
     );
     let sys = system(&text);
     let h = 1e-4;
@@ -200,15 +205,15 @@ fn ope_coefficients_at_small_ell() {
         assert!(!names.contains(&absent), "{absent} generated: {names:?}");
     }
     let expected = [
-        ("a+b", 0.5 * ya * yb),
-        ("a-b", 0.5 * ya * yb),
-        ("2*a", 0.25 * ya * ya),
-        ("2*b", 0.25 * yb * yb),
-        ("b+p", 0.5 * yb * yp),
-        ("b-p", 0.5 * yb * yp),
-        ("2*p", 0.25 * yp * yp),
+        ("a+b", 0.5 * ya * yb, chi_a + chi_b),
+        ("a-b", 0.5 * ya * yb, chi_a - chi_b),
+        ("2*a", 0.25 * ya * ya, 2.0 * chi_a),
+        ("2*b", 0.25 * yb * yb, 2.0 * chi_b),
+        ("b+p", 0.5 * yb * yp, chi_b + chi_p),
+        ("b-p", 0.5 * yb * yp, chi_b - chi_p),
+        ("2*p", 0.25 * yp * yp, 2.0 * chi_p),
     ];
-    for (name, coefficient) in expected {
+    for (name, coefficient, chi) in expected {
         let t = &r.terms[term(&r, name)];
         assert_eq!(t.origin, "generated");
         assert_eq!(t.coupling0, 0.0);
@@ -217,12 +222,30 @@ fn ope_coefficients_at_small_ell() {
             (slope - coefficient).abs() < 1e-3 * coefficient,
             "{name}: |y|/ell = {slope}, expected {coefficient}"
         );
+        // Compare phases on the circle: chi + pi, i.e. a negative coupling.
+        let want = chi + std::f64::consts::PI;
+        let diff = (t.phase - want).sin().hypot((t.phase - want).cos() - 1.0);
         assert!(
-            (t.phase.abs() - std::f64::consts::PI).abs() < 1e-6,
-            "{name}: generated with phase {} (expected pi: a negative coupling)",
+            diff < 1e-6,
+            "{name}: generated with phase {}, expected {want} (mod 2 pi)",
             t.phase
         );
     }
+    // First order keeps the phase of a listed term.
+    for (name, chi) in [("a", chi_a), ("b", chi_b), ("p", chi_p)] {
+        let t = &r.terms[term(&r, name)];
+        assert!((t.phase - chi).abs() < 1e-9, "{name}: {} vs {chi}", t.phase);
+    }
+}
+
+#[test]
+fn ope_coefficients_at_small_ell() {
+    check_ope(0.0, 0.0, 0.0);
+}
+
+#[test]
+fn ope_phases_at_small_ell() {
+    check_ope(0.3, -0.7, 1.1);
 }
 
 // (c) A periodic array flowed as families equals the same array written out
