@@ -61,28 +61,32 @@ impl Default for FlowOptions {
 }
 
 /// Command-line overrides (None = keep the model's or the default value).
+///
+/// The numeric flags accept negative numbers as values (`--y-strong -1`), so
+/// that a negative value reaches the validation below and is reported as an
+/// out-of-range value of that flag, not as an unknown argument.
 #[derive(Debug, Clone, Default, clap::Args)]
 pub struct FlowOverrides {
     /// End of the flow in ell = ln(alpha/alpha_0) [default 40].
-    #[arg(long, value_name = "ELL")]
+    #[arg(long, allow_negative_numbers = true, value_name = "ELL")]
     pub ell_max: Option<f64>,
     /// A coupling with |y| at or above this counts as strong [default 1].
-    #[arg(long, value_name = "Y")]
+    #[arg(long, allow_negative_numbers = true, value_name = "Y")]
     pub y_strong: Option<f64>,
     /// Couplings below this count as decayed [default 1e-6].
-    #[arg(long, value_name = "Y")]
+    #[arg(long, allow_negative_numbers = true, value_name = "Y")]
     pub floor: Option<f64>,
     /// Which generated terms join the flow [default pairs].
     #[arg(long, value_enum)]
     pub closure: Option<Closure>,
     /// Largest bare dimension of a generated term [default 4].
-    #[arg(long, value_name = "DELTA")]
+    #[arg(long, allow_negative_numbers = true, value_name = "DELTA")]
     pub closure_bound: Option<f64>,
     /// Relative tolerance of the integrator [default 1e-8].
-    #[arg(long, value_name = "TOL")]
+    #[arg(long, allow_negative_numbers = true, value_name = "TOL")]
     pub rtol: Option<f64>,
     /// Absolute tolerance of the integrator [default 1e-12].
-    #[arg(long, value_name = "TOL")]
+    #[arg(long, allow_negative_numbers = true, value_name = "TOL")]
     pub atol: Option<f64>,
 }
 
