@@ -205,15 +205,23 @@ fn set_changes_the_dimension_as_the_formula_says() {
     // (derived, same formula).
     let r = dims_json(
         &flow("laughlin_third.toml"),
-        &["--set", "lambda=0.8", "--set", "w=0"],
+        &["--set", "lambda=0.8", "--set", "g=0"],
     );
     let d = |n: &str| json_term(&r, n)["dimension"].as_f64().unwrap();
     assert!(close(d("tunnel"), 3.0, 1e-12), "{}", d("tunnel"));
     assert!(close(d("hop"), 5.0 / 3.0, 1e-12), "{}", d("hop"));
-    // The default point differs (w = 0.1 couples the wires).
-    let r0 = dims_json(&flow("laughlin_third.toml"), &[]);
-    let d0 = json_term(&r0, "tunnel")["dimension"].as_f64().unwrap();
-    assert!((d0 - 3.0).abs() > 1e-3);
+    // The link interaction g of the demo couples (2 phi_R + phi_L)_j to
+    // (phi_R + 2 phi_L)_{j+1}; at lam = 0.8 these are the wires' normal
+    // modes, so each link is a two-mode Luttinger liquid with parameter
+    // sqrt((1 - g)/(1 + g)) and the tunnel term has
+    // Delta = 3 sqrt((1 - g)/(1 + g)) (derived from the same formula).
+    let r = dims_json(
+        &flow("laughlin_third.toml"),
+        &["--set", "lambda=0.8", "--set", "g=0.4"],
+    );
+    let d = json_term(&r, "tunnel")["dimension"].as_f64().unwrap();
+    let expected = 3.0 * (0.6f64 / 1.4).sqrt();
+    assert!(close(d, expected, 1e-12), "{d} vs {expected}");
 }
 
 #[test]
