@@ -110,7 +110,7 @@ impl Background {
                             let at = 2 * ((k * cell + a) * cell + b);
                             let z =
                                 Complex64::new(s[at], s[at + 1]) * phase(k, -(sep as i64), wires);
-                            weight(k, wires) * z.re
+                            weight_of(k, wires) * z.re
                         })
                         .sum();
                     re / wires as f64
@@ -150,53 +150,73 @@ impl Background {
                             term += (lq[a].conj() * d * lq[b]).re;
                         }
                     }
-                    acc += weight(k, wires) * term;
+                    acc += weight_of(k, wires) * term;
                 }
                 acc / (2.0 * wires as f64)
             }
         }
     }
 
-    /// ds += -(weight/8) sum_t [ D l_t l_t^T D - g_t g_t^T ] for a channel,
-    /// with g = K^-1 l. `scratch` has at least `scratch_len()` entries.
-    pub fn add_feedback(
+    /// Bosonic dimension of a channel and, when `weight > 0`, its feedback
+    /// ds += -(weight/8) sum_t [ D l_t l_t^T D - g_t g_t^T ] (g = K^-1 l),
+    /// sharing the product D l between the two. `scratch` has at least
+    /// `scratch_len()` entries.
+    pub fn dimension_and_feedback(
         &self,
         s: &[f64],
         ch: &Channel,
         weight: f64,
         ds: &mut [f64],
         scratch: &mut [f64],
-    ) {
-        let c = -weight / 8.0;
+    ) -> f64 {
         match *self {
-            Background::Dense { n } => dense_feedback(n, s, ch, c, ds, &mut scratch[..n]),
+            Background::Dense { n } => {
+                if weight > 0.0 {
+                    dense_feedback(n, s, ch, -weight / 8.0, ds, &mut scratch[..n]);
+                }
+                self.dimension(s, ch)
+            }
             Background::Fourier { wires, cell } => {
+                let c = -weight / 8.0;
                 let u = &mut scratch[..2 * cell];
+                let mut acc = 0.0;
                 for k in 0..half(wires) {
                     let lq = &ch.lq[k * cell..(k + 1) * cell];
-                    let gq = &ch.gq[k * cell..(k + 1) * cell];
                     let base = 2 * k * cell * cell;
+                    let mut quad = 0.0;
                     for a in 0..cell {
+                        let row = &s[base + 2 * a * cell..base + 2 * (a + 1) * cell];
                         let mut z = Complex64::new(0.0, 0.0);
-                        for b in 0..cell {
-                            let at = base + 2 * (a * cell + b);
-                            z += Complex64::new(s[at], s[at + 1]) * lq[b];
+                        for (d, l) in row.chunks_exact(2).zip(lq) {
+                            z += Complex64::new(d[0], d[1]) * l;
                         }
+                        quad += (lq[a].conj() * z).re;
                         u[2 * a] = z.re;
                         u[2 * a + 1] = z.im;
                     }
-                    for a in 0..cell {
-                        let ua = Complex64::new(u[2 * a], u[2 * a + 1]);
-                        for b in 0..cell {
-                            let ub = Complex64::new(u[2 * b], u[2 * b + 1]);
-                            let v = ua * ub.conj() - gq[a] * gq[b].conj();
-                            let at = base + 2 * (a * cell + b);
-                            ds[at] += c * v.re;
-                            ds[at + 1] += c * v.im;
-                        }
+                    acc += weight_of(k, wires) * quad;
+                    if weight > 0.0 {
+                        let gq = &ch.gq[k * cell..(k + 1) * cell];
+                        outer_update(u, gq, c, &mut ds[base..base + 2 * cell * cell]);
                     }
                 }
+                acc / (2.0 * wires as f64)
             }
+        }
+    }
+}
+
+/// ds += c (u u^H - g g^H) for one q block (u interleaved re/im).
+#[inline]
+fn outer_update(u: &[f64], g: &[Complex64], c: f64, ds: &mut [f64]) {
+    let cell = g.len();
+    for a in 0..cell {
+        let ua = Complex64::new(u[2 * a], u[2 * a + 1]);
+        for b in 0..cell {
+            let ub = Complex64::new(u[2 * b], u[2 * b + 1]);
+            let v = ua * ub.conj() - g[a] * g[b].conj();
+            ds[2 * (a * cell + b)] += c * v.re;
+            ds[2 * (a * cell + b) + 1] += c * v.im;
         }
     }
 }
@@ -210,7 +230,7 @@ pub fn half(wires: usize) -> usize {
 /// Weight of stored point k in sums over all W points: 1 for q = 0 and
 /// q = pi, 2 for the others (each stands for itself and -q).
 #[inline]
-pub fn weight(k: usize, wires: usize) -> f64 {
+pub fn weight_of(k: usize, wires: usize) -> f64 {
     if k == 0 || 2 * k == wires {
         1.0
     } else {

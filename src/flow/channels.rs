@@ -194,7 +194,7 @@ impl Plan {
 
 fn has_extra(sys: &System, term: usize) -> bool {
     let t = &sys.model.terms[term];
-    !t.extra_spin.is_zero() || !(t.extra_dimension.is_const() && t.extra_dimension.eval(&[]) == 0.0)
+    !(t.extra_spin.is_zero() && t.extra_dimension.is_const() && t.extra_dimension.eval(&[]) == 0.0)
 }
 
 fn generated_name(a: &str, sign: i8, b: &str, same: bool, shift: usize) -> String {

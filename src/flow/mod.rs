@@ -9,6 +9,16 @@
 //! means the perturbative flow has left its domain (|y| reaches y_strong),
 //! and the gap estimate E ~ (u/alpha) e^{-ell*} is an order of magnitude.
 //!
+//! Two consequences worth knowing. (1) The single-cosine
+//! Kosterlitz-Thouless law dDelta/dell = -(y^2/4) Delta^2 holds for one
+//! vector; a family of translates in an array feeds back through all its
+//! translates, dDelta/dell = -(1/16) y^2 sum_t [(l_0^T D l_t)^2 -
+//! (l_0^T K^-1 l_t)^2], so the single-cosine critical coupling is not the
+//! critical coupling of an array family unless its translates are
+//! D-orthogonal. (2) A term past its momentum cut-off no longer counts: a
+//! flow whose remaining terms have all decayed is "gapless" even if a
+//! cut-off term was still large when it stopped (it averages out).
+//!
 //! Organisation: [`channels`] builds the exact plan (which couplings can
 //! flow, OPE table), [`background`] stores D, [`rhs`] holds the equations
 //! and the stop hook, [`report`] turns a [`FlowResult`] into outputs. A

@@ -204,7 +204,7 @@ impl Report for FlowReport {
                 format!("{}{mark}", c.name),
                 c.parents
                     .clone()
-                    .map_or(c.origin.clone(), |p| format!("{p}")),
+                    .map_or(c.origin.clone(), |p| p.to_string()),
                 c.spin.clone(),
                 format!("{:.4e}", c.coupling0),
                 format!("{:.6}", c.dimension0),

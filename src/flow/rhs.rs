@@ -63,6 +63,8 @@ pub struct FlowRhs<'a> {
     pub active: Vec<bool>,
     /// Channel never flows (decayed at once).
     pub frozen: Vec<bool>,
+    /// Channel is a null vector (feeds back on D).
+    pub null: Vec<bool>,
     /// Stop threshold.
     pub y_strong: f64,
     /// Decay floor.
@@ -90,6 +92,7 @@ impl<'a> FlowRhs<'a> {
     ) -> Self {
         let scratch = RefCell::new(vec![0.0; bg.scratch_len()]);
         let n = channels.len();
+        let null = channels.iter().map(|c| c.null()).collect();
         FlowRhs {
             bg,
             channels,
@@ -97,6 +100,7 @@ impl<'a> FlowRhs<'a> {
             ope,
             active: vec![true; n],
             frozen: vec![false; n],
+            null,
             y_strong: 1.0,
             floor: 1e-6,
             record: true,
@@ -164,39 +168,36 @@ impl System<f64, DVector<f64>> for &mut FlowRhs<'_> {
         let (dw, dd) = dy.as_mut_slice().split_at_mut(2 * nc);
         dw.fill(0.0);
         dd.fill(0.0);
+        let mut scratch = rhs.scratch.borrow_mut();
         for c in (0..nc).filter(|&c| rhs.active[c]) {
-            let rate = 2.0 - rhs.dimension(y.as_slice(), c);
-            dw[2 * c] = rate * w[2 * c];
-            dw[2 * c + 1] = rate * w[2 * c + 1];
+            let weight = if rhs.null[c] {
+                4.0 * (w[2 * c] * w[2 * c] + w[2 * c + 1] * w[2 * c + 1])
+            } else {
+                0.0
+            };
+            let delta = rhs
+                .bg
+                .dimension_and_feedback(d, rhs.channels[c], weight, dd, &mut scratch)
+                + rhs.extra[c];
+            let rate = 2.0 - delta;
+            dw[2 * c] += rate * w[2 * c];
+            dw[2 * c + 1] += rate * w[2 * c + 1];
         }
         for e in &rhs.ope {
             if !(rhs.active[e.target] && rhs.active[e.a] && rhs.active[e.b]) {
                 continue;
             }
             let (ar, ai) = (w[2 * e.a], w[2 * e.a + 1]);
-            let (br, bi) = (
-                w[2 * e.b],
-                if e.b_conj {
-                    -w[2 * e.b + 1]
-                } else {
-                    w[2 * e.b + 1]
-                },
-            );
+            let bi = if e.b_conj {
+                -w[2 * e.b + 1]
+            } else {
+                w[2 * e.b + 1]
+            };
+            let br = w[2 * e.b];
             let (pr, pi) = (ar * br - ai * bi, ar * bi + ai * br);
             let pi = if e.conj { -pi } else { pi };
             dw[2 * e.target] -= 0.5 * pr;
             dw[2 * e.target + 1] -= 0.5 * pi;
-        }
-        let mut scratch = rhs.scratch.borrow_mut();
-        for c in 0..nc {
-            if !rhs.active[c] || !rhs.channels[c].null() {
-                continue;
-            }
-            let weight = 4.0 * (w[2 * c] * w[2 * c] + w[2 * c + 1] * w[2 * c + 1]);
-            if weight > 0.0 {
-                rhs.bg
-                    .add_feedback(d, rhs.channels[c], weight, dd, &mut scratch);
-            }
         }
     }
 

@@ -122,14 +122,14 @@ pub(crate) fn int_matrix(ctx: &Ctx, v: &Value, key: &str) -> Result<Vec<Vec<i64>
 
 /// K must be symmetric (det K != 0 is checked with exact arithmetic later).
 pub(crate) fn check_symmetric_int(ctx: &Ctx, k: &[Vec<i64>], key: &str) -> Result<(), InputError> {
-    for i in 0..k.len() {
-        for j in 0..i {
-            if k[i][j] != k[j][i] {
+    for (i, row) in k.iter().enumerate() {
+        for (j, col) in k.iter().enumerate().take(i) {
+            if row[j] != col[i] {
                 return Err(ctx.err(
                     key,
                     format!(
                         "K must be symmetric: {key}[{i}][{j}] = {} but {key}[{j}][{i}] = {}",
-                        k[i][j], k[j][i]
+                        row[j], col[i]
                     ),
                 ));
             }
