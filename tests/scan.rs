@@ -270,8 +270,8 @@ coupling = "y0"
 
 /// Bare dimension of cos(4 phi): 4 K_L with K_L = sqrt((1 - lambda)/(1 + lambda))
 /// (a cos(2 p phi) has scaling dimension p^2 K; K for g4 = 0, g2 = 2 pi v_F
-/// lambda; Giamarchi, "Quantum Physics in One Dimension" (2004), ch. 2 and
-/// 6, from memory).
+/// lambda; Giamarchi, "Quantum Physics in One Dimension" (2004), ch. 2,
+/// from memory).
 fn kt_delta0(lambda: f64) -> f64 {
     4.0 * ((1.0 - lambda) / (1.0 + lambda)).sqrt()
 }
