@@ -186,12 +186,20 @@ fn make_meta(sys: &System, model_bytes: &[u8], spec: &ScanSpec) -> Meta {
         shard: spec.shard,
         points: spec.axes.iter().map(|a| a.n).product(),
     };
+    // The fingerprint identifies the whole scan, so it leaves out the shard:
+    // every shard of one scan (and the unsharded scan) carries the same
+    // fingerprint, and `merge` can compare them. The shard itself is still
+    // part of the meta, so resuming checks it.
+    let whole = Meta {
+        shard: None,
+        ..meta.clone()
+    };
     let canonical = format!(
         "{}|{:?}|{}|{}",
         String::from_utf8_lossy(model_bytes),
         spec.base,
         serde_json::to_string(&spec.options).unwrap_or_default(),
-        serde_json::to_string(&meta).unwrap_or_default()
+        serde_json::to_string(&whole).unwrap_or_default()
     );
     meta.fingerprint = format!("{:016x}", fnv1a(canonical.as_bytes()));
     meta

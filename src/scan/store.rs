@@ -92,6 +92,15 @@ impl RowFile {
     /// Reopen a partial file to continue it: checks the meta, cuts an
     /// incomplete last line and counts the complete rows.
     pub fn resume(path: &Path, meta: &Meta) -> Result<RowFile, Error> {
+        // A run killed between creating the file and writing its first line
+        // leaves an empty file or a cut meta line: no rows, start afresh.
+        let mut first = Vec::new();
+        BufReader::new(File::open(path).map_err(|e| Error::io(path, e))?)
+            .read_until(b'\n', &mut first)
+            .map_err(|e| Error::io(path, e))?;
+        if first.last() != Some(&b'\n') {
+            return RowFile::create(path, meta);
+        }
         let found = read_meta(path)?;
         if found != *meta {
             return Err(Error::Input(InputError::new(
