@@ -15,6 +15,16 @@ pub enum Closure {
     Pairs,
 }
 
+impl Closure {
+    /// The word used on the command line and in files.
+    pub fn word(self) -> &'static str {
+        match self {
+            Closure::None => "none",
+            Closure::Pairs => "pairs",
+        }
+    }
+}
+
 /// Integration and stopping options.
 #[derive(Debug, Clone, PartialEq, serde::Serialize)]
 pub struct FlowOptions {

@@ -168,10 +168,10 @@ impl Report for FlowReport {
         f.push((
             "options".to_string(),
             format!(
-                "ell_max={}, y_strong={}, closure={:?} (bound {}), rtol={:e}",
+                "ell_max={}, y_strong={}, closure={} (bound {}), rtol={:e}",
                 self.options.ell_max,
                 self.options.y_strong,
-                self.options.closure,
+                self.options.closure.word(),
                 self.options.closure_bound,
                 self.options.rtol
             ),

@@ -401,9 +401,11 @@ pub(crate) fn padded_range(values: impl IntoIterator<Item = f64>, pad: f64) -> O
     Some((lo - pad * span, hi + pad * span))
 }
 
-/// Short, readable form of a number for ticks and legends.
+/// Short, readable form of a number for ticks and legends. Magnitudes
+/// below 1e-12 print as 0: on the linear axes drawn here they are rounding
+/// left over from tick placement (a tick at -5.6e-17 is the tick at 0).
 pub(crate) fn format_number(v: f64) -> String {
-    if v == 0.0 {
+    if v.abs() < 1e-12 {
         return "0".to_string();
     }
     let a = v.abs();
@@ -448,6 +450,7 @@ mod tests {
     #[test]
     fn numbers_are_short_and_exact_enough() {
         assert_eq!(format_number(0.0), "0");
+        assert_eq!(format_number(-5.551115123125783e-17), "0");
         assert_eq!(format_number(2.0), "2");
         assert_eq!(format_number(0.30000000000000004), "0.3");
         assert_eq!(format_number(-1.25), "-1.25");

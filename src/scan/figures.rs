@@ -13,7 +13,7 @@ use crate::plot::{
 };
 
 /// Caption stating the method's limits.
-const CAPTION: &str = "Second-order RG, single reference velocity; lines: tree-level Delta0 = 2.";
+const CAPTION: &str = "Second-order RG, single reference velocity; lines: tree-level Δ0 = 2.";
 
 /// Write the scan's figures into `dir`; returns the file names written.
 pub fn write(dir: &Path, meta: &Meta, rows: &[Row]) -> Result<Vec<String>, Error> {
@@ -37,6 +37,8 @@ struct Categories {
     labels: Vec<String>,
     colours: Vec<(u8, u8, u8)>,
     keys: Vec<(String, String)>,
+    /// Palette index of each category's term (meaningful for winners).
+    term_colour: Vec<usize>,
 }
 
 impl Categories {
@@ -52,17 +54,35 @@ impl Categories {
             .collect();
         extra.sort();
         extra.dedup();
+        let term_colour: Vec<usize> = keys
+            .iter()
+            .map(|(_, w)| match meta.terms.iter().position(|t| t == w) {
+                Some(t) => t,
+                None => meta.terms.len() + extra.iter().position(|x| *x == w).unwrap_or(0),
+            })
+            .collect();
         let colours = keys
             .iter()
-            .map(|k| {
-                let rank = extra.iter().position(|w| **w == k.1).map_or(0, |r| r + 1);
-                colour(meta, k, rank)
-            })
+            .zip(&term_colour)
+            .map(|(k, &t)| colour(&k.0, t))
             .collect();
         Categories {
             labels,
             colours,
             keys,
+            term_colour,
+        }
+    }
+
+    /// Palette index of a category's band in a one-axis scan: a winner
+    /// keeps its term's colour (as its line); other outcomes take the last
+    /// palette entries (black last, drawn light: grey).
+    fn band_colour(&self, c: usize) -> usize {
+        match self.keys[c].0.as_str() {
+            "strong" | "spinful" => self.term_colour[c],
+            "gapless" => 7,
+            "undecided" => 6,
+            _ => 5,
         }
     }
 
@@ -113,20 +133,11 @@ fn label(outcome: &str, winner: &str) -> String {
     }
 }
 
-/// Listed terms take palette colours by model order; generated winners
-/// (rank 1, 2, ...) take the colours after them.
-fn colour(
-    meta: &Meta,
-    (outcome, winner): &(String, String),
-    generated_rank: usize,
-) -> (u8, u8, u8) {
+/// Colour of a category: winners take their term's palette colour
+/// (listed terms by model order, generated winners after them).
+fn colour(outcome: &str, term: usize) -> (u8, u8, u8) {
     let rgb = |c: plotters::style::RGBColor| (c.0, c.1, c.2);
-    let term = meta
-        .terms
-        .iter()
-        .position(|t| t == winner)
-        .unwrap_or(meta.terms.len() + generated_rank - 1);
-    match outcome.as_str() {
+    match outcome {
         "strong" => rgb(palette::categorical(term)),
         "spinful" => rgb(palette::lighten(palette::categorical(term), 0.55)),
         "gapless" => (232, 232, 232),
@@ -242,7 +253,7 @@ fn bands(xs: &[f64], rows: &[Row], cats: &Categories) -> Vec<Band> {
                 x0,
                 x1,
                 label: cats.labels[c].clone(),
-                colour_index: c,
+                colour_index: cats.band_colour(c),
             }),
         }
     }
