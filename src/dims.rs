@@ -143,7 +143,17 @@ impl DimsReport {
             .cloned()
             .zip(point.iter().map(|x| serde_json::json!(x)))
             .collect();
-        let notes = notes_for(&terms);
+        let mut notes = notes_for(&terms);
+        let starred = inv.commutation.iter().zip(&inv.commutes).any(|(ph, ok)| {
+            ph.iter()
+                .zip(ok)
+                .any(|(p, c)| num_traits::Zero::is_zero(p) && !c)
+        });
+        if starred {
+            notes.push(
+                "0* in the commutation table: the two terms commute at the same wire but not with every translate, so their families cannot all pin together".to_string(),
+            );
+        }
         Ok(DimsReport {
             model: sys.model.name.clone(),
             parameters,
