@@ -332,7 +332,7 @@ fn count(x: f64) -> String {
     if x < 1e6 {
         format!("{}", x.round())
     } else {
-        format!("{x:.2e}")
+        format!("{x:.2e}").replace(".00e", "e")
     }
 }
 
