@@ -28,9 +28,8 @@
 //! - the ellipsoid volume, `vol_n B^{n/2} / sqrt(det G)`, the number of
 //!   lattice points (both signs, origin included) for a large bound;
 //! - the size of the enumeration tree by Knuth's random-probe estimator
-//!   [Knuth, Math. Comp. 29, 121 (1975)]: along a random root-to-leaf path,
-//!   the products of the branching factors are unbiased estimates of the
-//!   number of nodes at each depth. It also covers small bounds, where the
+//!   [Knuth, Math. Comp. 29, 121 (1975)], with importance sampling (see
+//!   [`Ellipsoid::tree_estimate`]). It also covers small bounds, where the
 //!   volume badly underestimates (e.g. Z^24 with |z|^2 <= 4 has about
 //!   1.9e5 points but the ball only 3.2e4 volume).
 
@@ -96,10 +95,11 @@ pub fn lll(g: &DMatrix<f64>) -> Result<Reduced, String> {
                 return Err("the basis reduction diverged (entries beyond 1e15)".into());
             }
             let qi = q as i64;
-            for i in 0..n {
-                u[k][i] = qi
-                    .checked_mul(u[j][i])
-                    .and_then(|x| u[k][i].checked_sub(x))
+            let (lower, upper) = u.split_at_mut(k);
+            for (x, y) in upper[0].iter_mut().zip(&lower[j]) {
+                *x = qi
+                    .checked_mul(*y)
+                    .and_then(|p| x.checked_sub(p))
                     .ok_or("the basis reduction overflowed 64-bit integers")?;
             }
             let gkk = gram[(k, k)] - 2.0 * q * gram[(k, j)] + q * q * gram[(j, j)];
@@ -111,8 +111,9 @@ pub fn lll(g: &DMatrix<f64>) -> Result<Reduced, String> {
                 }
             }
             gram[(k, k)] = gkk;
-            for i in 0..j {
-                mu[k][i] -= q * mu[j][i];
+            let (lower, upper) = mu.split_at_mut(k);
+            for (x, y) in upper[0][..j].iter_mut().zip(&lower[j][..j]) {
+                *x -= q * y;
             }
             mu[k][j] -= q;
         }
@@ -158,7 +159,7 @@ fn gso_row(
     for j in 0..k {
         b -= mu[k][j] * r[k][j];
     }
-    if !(b > 0.0) || !b.is_finite() {
+    if b.is_nan() || b <= 0.0 || b.is_infinite() {
         return Err(
             "the quadratic form is numerically singular (not positive definite in floating point)"
                 .into(),
@@ -224,7 +225,7 @@ impl Ellipsoid {
                 off[i][j] = l[(j, i)] / rii;
             }
         }
-        if diag.iter().any(|d| !(*d > 0.0)) {
+        if diag.iter().any(|d| d.is_nan() || *d <= 0.0) {
             return Err("the quadratic form is numerically singular".into());
         }
         Ok(Ellipsoid {
@@ -260,9 +261,26 @@ impl Ellipsoid {
         (ln_unit_ball(self.n) + 0.5 * n * bound.ln() - 0.5 * ln_det).exp()
     }
 
-    /// Knuth's estimate of the number of tree nodes [`Ellipsoid::for_each`]
-    /// visits for this bound: the mean over `probes` random root-to-leaf
-    /// paths (fixed seed, so the estimate is reproducible).
+    /// Estimate of the number of tree nodes [`Ellipsoid::for_each`] visits
+    /// for this bound: the mean over `probes` random root-to-leaf paths
+    /// (fixed seed, so the estimate is reproducible).
+    ///
+    /// Knuth's estimator with importance sampling: at each level a child z
+    /// is chosen with probability p(z) > 0 and the path's weight is
+    /// multiplied by 1/p(z); the weight reached at depth d is an unbiased
+    /// estimate of the number of nodes at depth d (derived: summing
+    /// prod 1/p times prod p over all paths counts each node once), for
+    /// any choice of p. Uniform p (Knuth's original) has a heavy tail here:
+    /// the subtrees near the centre of an interval are far larger than those
+    /// at its ends, and with a few hundred probes it underestimates a
+    /// 48-dimensional tree twentyfold. So p(z) is taken proportional to a
+    /// prediction of the subtree size, `(rem(z) + rho_i^2)^{i/2}`, where
+    /// rem(z) is the budget left for the i levels below and
+    /// `rho_i = (1/2) sqrt(sum_{j<i} q_jj)` the radius of their Gram-Schmidt
+    /// cell: between the volume `rem^{i/2}` and the bound
+    /// `(sqrt(rem) + rho_i)^i` of the counting argument in the tests.
+    /// Measured on wire models of 12 to 64 fields, 2048 probes come within
+    /// a factor 2 of the true size.
     pub fn tree_estimate(&self, bound: f64, probes: usize, seed: u64) -> f64 {
         let n = self.n;
         if n == 0 || probes == 0 {
@@ -270,6 +288,11 @@ impl Ellipsoid {
         }
         let mut rng = SplitMix(seed);
         let mut z = vec![0i64; n];
+        let mut below = vec![0.0; n + 1];
+        for i in 0..n {
+            below[i + 1] = below[i] + self.diag[i];
+        }
+        let mut logw: Vec<f64> = Vec::new();
         let mut total = 0.0;
         for _ in 0..probes {
             let mut weight = 1.0;
@@ -277,18 +300,37 @@ impl Ellipsoid {
             let mut all_zero = true;
             let mut sum = 0.0;
             for i in (0..n).rev() {
-                let (c, lo, hi) = match self.interval(i, &z, bound - used, all_zero) {
-                    Some(x) => x,
-                    None => break,
+                let budget = bound - used;
+                let Some((c, lo, hi)) = self.interval(i, &z, budget, all_zero) else {
+                    break;
                 };
-                let width = (hi - lo + 1) as f64;
-                weight *= width;
+                let cell = below[i] / 4.0;
+                let power = i as f64 / 2.0;
+                logw.clear();
+                logw.extend((lo..=hi).map(|x| {
+                    let d = x as f64 - c;
+                    let rem = (budget - self.diag[i] * d * d).max(0.0);
+                    power * (rem + cell).max(f64::MIN_POSITIVE).ln()
+                }));
+                let top = logw.iter().cloned().fold(f64::NEG_INFINITY, f64::max);
+                let mut norm = 0.0;
+                for w in logw.iter_mut() {
+                    *w = (*w - top).exp();
+                    norm += *w;
+                }
+                let target = rng.uniform() * norm;
+                let mut k = 0;
+                let mut acc = logw[0];
+                while acc <= target && k + 1 < logw.len() {
+                    k += 1;
+                    acc += logw[k];
+                }
+                weight *= norm / logw[k];
                 sum += weight;
-                let pick = lo + (rng.next() % (hi - lo + 1) as u64) as i64;
-                z[i] = pick;
-                let d = pick as f64 - c;
+                z[i] = lo + k as i64;
+                let d = z[i] as f64 - c;
                 used += self.diag[i] * d * d;
-                all_zero &= pick == 0;
+                all_zero &= z[i] == 0;
             }
             total += sum;
             z.iter_mut().for_each(|x| *x = 0);
@@ -305,7 +347,7 @@ impl Ellipsoid {
         budget: f64,
         all_zero: bool,
     ) -> Option<(f64, i64, i64)> {
-        if !(budget >= 0.0) {
+        if budget.is_nan() || budget < 0.0 {
             return None;
         }
         let row = &self.off[i];
@@ -339,7 +381,7 @@ impl Ellipsoid {
     {
         let n = self.n;
         let mut stats = Visit::default();
-        if n == 0 || !(bound >= 0.0) {
+        if n == 0 || bound.is_nan() || bound < 0.0 {
             return Ok(stats);
         }
         let mut z = vec![0i64; n];
@@ -435,7 +477,7 @@ pub fn ln_unit_ball(n: usize) -> f64 {
 /// ln Gamma(k/2) for an integer k >= 1, by Gamma(x+1) = x Gamma(x) from
 /// Gamma(1) = 1 and Gamma(1/2) = sqrt(pi).
 fn ln_gamma_half_integer(k: usize) -> f64 {
-    let (mut x, mut acc) = if k % 2 == 0 {
+    let (mut x, mut acc) = if k.is_multiple_of(2) {
         (1.0, 0.0)
     } else {
         (0.5, 0.5 * std::f64::consts::PI.ln())
@@ -458,6 +500,11 @@ impl SplitMix {
         x = (x ^ (x >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
         x = (x ^ (x >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
         x ^ (x >> 31)
+    }
+
+    /// Uniform in [0, 1).
+    fn uniform(&mut self) -> f64 {
+        (self.next() >> 11) as f64 / (1u64 << 53) as f64
     }
 }
 
@@ -611,9 +658,10 @@ mod tests {
             b[k] = gr[(k, k)] - (0..k).map(|j| mu[k][j] * mu[k][j] * b[j]).sum::<f64>();
         }
         for k in 1..n {
-            for j in 0..k {
-                assert!(mu[k][j].abs() <= 0.5 + 1e-9, "size reduction");
-            }
+            assert!(
+                mu[k][..k].iter().all(|x| x.abs() <= 0.5 + 1e-9),
+                "size reduction"
+            );
             assert!(b[k] >= (LLL_DELTA - mu[k][k - 1].powi(2)) * b[k - 1] - 1e-9);
         }
         // LLL's bound on the first vector [Lenstra, Lenstra & Lovasz (1982)]:

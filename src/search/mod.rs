@@ -53,8 +53,8 @@ const SEARCH_SLACK: f64 = 1e-7;
 /// Largest estimated number of lattice points searched without `--force`.
 pub const DEFAULT_LIMIT: f64 = 5e7;
 /// Random probes of the tree estimate (fixed seed).
-const PROBES: usize = 256;
-const PROBE_SEED: u64 = 0x7069_6e66_6c6f_77;
+const PROBES: usize = 2048;
+const PROBE_SEED: u64 = 0x0070_696e_666c_6f77;
 
 /// Which conformal spins to keep.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
@@ -160,6 +160,8 @@ struct Space {
     t: Vec<i64>,
     d: DMatrix<f64>,
     gram: DMatrix<f64>,
+    /// Non-zero entries of each row of K.
+    k_rows: Vec<Vec<(usize, i64)>>,
 }
 
 impl Space {
@@ -175,12 +177,23 @@ impl Space {
         let kf = DMatrix::from_fn(n, n, |a, b| k[a][b] as f64);
         let gram = &kf * &d * &kf;
         let gram = (&gram + gram.transpose()) * 0.5;
+        let k_rows = k
+            .iter()
+            .map(|row| {
+                row.iter()
+                    .enumerate()
+                    .filter(|(_, x)| **x != 0)
+                    .map(|(j, x)| (j, *x))
+                    .collect()
+            })
+            .collect();
         Space {
             window,
             k,
             t,
             d,
             gram,
+            k_rows,
         }
     }
 
@@ -194,6 +207,32 @@ impl Space {
                     .try_fold(0i64, |acc, (a, b)| acc.checked_add(a.checked_mul(*b)?))
             })
             .collect()
+    }
+
+    /// (1/2) m^T G m over the non-zero entries `nz` of m.
+    fn half_form(&self, m: &[i64], nz: &[usize]) -> f64 {
+        let mut s = 0.0;
+        for &i in nz {
+            let mut row = 0.0;
+            for &j in nz {
+                row += self.gram[(i, j)] * m[j] as f64;
+            }
+            s += m[i] as f64 * row;
+        }
+        0.5 * s
+    }
+
+    /// m^T K m over the non-zero entries `nz` of m, with K's sparse rows.
+    fn twice_spin_sparse(&self, m: &[i64], nz: &[usize]) -> i128 {
+        nz.iter()
+            .map(|&i| {
+                let row: i128 = self.k_rows[i]
+                    .iter()
+                    .map(|&(j, kij)| kij as i128 * m[j] as i128)
+                    .sum();
+                m[i] as i128 * row
+            })
+            .sum()
     }
 
     /// m^T K m (twice the conformal spin), exactly.
@@ -288,24 +327,25 @@ pub fn hunt(sys: &System, point: &[f64], opts: &HuntOptions) -> Result<HuntRepor
     // exact filters and the bound (recomputed from the window's D).
     let mut kept: BTreeSet<Vec<i64>> = BTreeSet::new();
     let mut candidates = 0u64;
-    let mut failure: Option<String> = None;
+    let mut nz: Vec<usize> = Vec::with_capacity(space.t.len());
     let visit = ell
         .for_each(bound, |m, _| {
-            let Some(l) = space.vector(m) else {
-                failure = Some("K m overflowed 64-bit integers".into());
-                return false;
-            };
-            let delta = crate::fixed_point::quad_form(&space.d, &l);
-            if delta > accept {
+            nz.clear();
+            nz.extend((0..m.len()).filter(|&i| m[i] != 0));
+            if space.half_form(m, &nz) > accept {
                 return true;
             }
             candidates += 1;
-            let q = space.charge(m);
+            let q: i128 = nz.iter().map(|&i| m[i] as i128 * space.t[i] as i128).sum();
             let charge_ok = match opts.charge {
                 ChargeFilter::Any => true,
                 ChargeFilter::Exactly(c) => q.abs() == (c as i128).abs(),
             };
-            if !charge_ok || (opts.spin == SpinFilter::Zero && space.twice_spin(m) != 0) {
+            if !charge_ok
+                || (opts.spin == SpinFilter::Zero && space.twice_spin_sparse(m, &nz) != 0)
+                // A canonical placement touches the window's first wire.
+                || !space.window.touches_first(m)
+            {
                 return true;
             }
             let canon = space.window.canonical(m);
@@ -316,9 +356,6 @@ pub fn hunt(sys: &System, point: &[f64], opts: &HuntOptions) -> Result<HuntRepor
             true
         })
         .map_err(|e| Error::Numerical(format!("operator search: {e}")))?;
-    if let Some(e) = failure {
-        return Err(Error::Numerical(format!("operator search: {e}")));
-    }
 
     let flip = matches!(opts.charge, ChargeFilter::Exactly(c) if c < 0);
     let mut operators = Vec::with_capacity(kept.len());

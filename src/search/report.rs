@@ -218,17 +218,20 @@ impl HuntReport {
     }
 
     fn examined_line(&self) -> String {
+        let mut filters = vec!["charge", "spin"];
+        if self.range.is_some() {
+            filters.push("translation");
+        }
+        if self.momentum.is_some() {
+            filters.push("momentum");
+        }
+        let last = filters.pop().unwrap_or_default();
         format!(
-            "examined: {} lattice points (nodes of the enumeration tree in {} dimensions); {} in the ellipsoid (one per sign) before the charge, spin{} filters",
+            "examined: {} lattice points (nodes of the enumeration tree in {} dimensions); {} in the ellipsoid (one per sign) before the {} and {last} filters",
             self.examined,
             self.search_fields,
             self.candidates,
-            match (self.range.is_some(), self.momentum.is_some()) {
-                (true, true) => ", translation and momentum",
-                (true, false) => " and translation",
-                (false, true) => " and momentum",
-                (false, false) => "",
-            }
+            filters.join(", "),
         )
     }
 

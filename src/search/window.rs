@@ -159,6 +159,12 @@ impl Window {
             .collect()
     }
 
+    /// The vector touches the window's first wire (every canonical
+    /// placement does).
+    pub fn touches_first(&self, m: &[i64]) -> bool {
+        self.touches(m, 0)
+    }
+
     fn touches(&self, v: &[i64], w: usize) -> bool {
         v[w * self.cell..(w + 1) * self.cell]
             .iter()
