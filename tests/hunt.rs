@@ -748,6 +748,28 @@ charge = [1, 1]
     }
 
     #[test]
+    fn refuses_to_list_too_many_operators_unless_forced() {
+        let sys = system(WIRE);
+        let few = HuntOptions {
+            max_listed: 5,
+            ..everything(4.0)
+        };
+        match hunt(&sys, &[0.3], &few) {
+            Err(Error::Input(e)) => {
+                assert!(
+                    e.message.contains("more than 5 operators match"),
+                    "{}",
+                    e.message
+                );
+                assert!(e.message.contains("--force"));
+            }
+            other => panic!("expected a refusal, got {other:?}"),
+        }
+        let all = hunt(&sys, &[0.3], &HuntOptions { force: true, ..few }).unwrap();
+        assert!(all.operators.len() > 5);
+    }
+
+    #[test]
     fn bad_options_are_input_errors() {
         let sys = system(WIRE);
         let bad = |o: HuntOptions, key: &str| match hunt(&sys, &[0.3], &o) {

@@ -52,6 +52,9 @@ pub const BOUND_TOLERANCE: f64 = 1e-9;
 const SEARCH_SLACK: f64 = 1e-7;
 /// Largest estimated number of lattice points searched without `--force`.
 pub const DEFAULT_LIMIT: f64 = 5e7;
+/// Most operators listed without `--force` (a memory guard for searches
+/// with few filters).
+pub const MAX_LISTED: usize = 1_000_000;
 /// Random probes of the tree estimate (fixed seed).
 const PROBES: usize = 2048;
 const PROBE_SEED: u64 = 0x0070_696e_666c_6f77;
@@ -101,6 +104,8 @@ pub struct HuntOptions {
     pub force: bool,
     /// Largest estimated number of points searched without `force`.
     pub limit: f64,
+    /// Most operators listed without `force`.
+    pub max_listed: usize,
 }
 
 impl Default for HuntOptions {
@@ -113,6 +118,7 @@ impl Default for HuntOptions {
             momentum: None,
             force: false,
             limit: DEFAULT_LIMIT,
+            max_listed: MAX_LISTED,
         }
     }
 }
@@ -352,11 +358,24 @@ pub fn hunt(sys: &System, point: &[f64], opts: &HuntOptions) -> Result<HuntRepor
             let is_placement = canon.as_slice() == m || canon.iter().zip(m).all(|(a, b)| *a == -b);
             if is_placement {
                 kept.insert(canon);
+                if kept.len() > opts.max_listed && !opts.force {
+                    return false;
+                }
             }
             true
         })
         .map_err(|e| Error::Numerical(format!("operator search: {e}")))?;
 
+    if kept.len() > opts.max_listed && !opts.force {
+        return Err(cmd(
+            "--max-dim",
+            format!(
+                "more than {} operators match; narrow the search with a smaller --max-dim{}, the filters --spin 0 and --charge 0, or pass --force",
+                opts.max_listed,
+                if space.window.array { " or --range" } else { "" }
+            ),
+        ));
+    }
     let flip = matches!(opts.charge, ChargeFilter::Exactly(c) if c < 0);
     let mut operators = Vec::with_capacity(kept.len());
     for canon in kept {
@@ -407,7 +426,7 @@ pub fn hunt(sys: &System, point: &[f64], opts: &HuntOptions) -> Result<HuntRepor
     operators.sort_by(|a, b| {
         dim_key(a.dimension)
             .cmp(&dim_key(b.dimension))
-            .then_with(|| a.particles.cmp(&b.particles))
+            .then_with(|| b.particles.cmp(&a.particles))
     });
     Ok(HuntReport::new(
         sys,
@@ -424,7 +443,7 @@ pub fn hunt(sys: &System, point: &[f64], opts: &HuntOptions) -> Result<HuntRepor
 }
 
 /// Sort key of a dimension: rounded to 1e-9 so that equal dimensions (up to
-/// rounding) sort by particle content, deterministically.
+/// rounding) sort by particle content (largest first), deterministically.
 fn dim_key(d: f64) -> i64 {
     (d * 1e9).round() as i64
 }
@@ -477,6 +496,7 @@ pub fn run(args: crate::cli::HuntArgs) -> Result<(), Error> {
         momentum: args.momentum,
         force: args.force,
         limit: DEFAULT_LIMIT,
+        max_listed: MAX_LISTED,
     };
     let report = hunt(&sys, &point, &opts)?;
     let text = if args.emit_terms {

@@ -98,7 +98,8 @@ pub struct HuntReport {
     /// Lattice points in the window with Delta <= the bound, one per sign,
     /// before the charge, spin, translation and momentum filters.
     pub candidates: u64,
-    /// The operators, by dimension then particle content.
+    /// The operators, by dimension, then by particle content (lexicographic,
+    /// largest first).
     pub operators: Vec<Operator>,
     /// The certificate line.
     pub certificate: String,
@@ -330,9 +331,12 @@ impl HuntReport {
     }
 }
 
-/// A count estimate: an integer below a million, else scientific notation.
+/// A count estimate: one decimal below 10, an integer below a million,
+/// else scientific notation.
 fn count(x: f64) -> String {
-    if x < 1e6 {
+    if x < 10.0 {
+        format!("{x:.1}")
+    } else if x < 1e6 {
         format!("{}", x.round())
     } else {
         format!("{x:.2e}").replace(".00e", "e")
@@ -340,7 +344,7 @@ fn count(x: f64) -> String {
 }
 
 /// Arrays: "0:(1, -1) 1:(-1, 1)" (non-zero wires only); explicit models:
-/// "(1, -1)".
+/// "(1, -1)", or "{3:1, 7:-1}" beyond 12 fields.
 fn compact(v: &[i64], cell: usize, array: bool) -> String {
     let join = |s: &[i64]| {
         s.iter()
@@ -349,7 +353,17 @@ fn compact(v: &[i64], cell: usize, array: bool) -> String {
             .join(", ")
     };
     if !array || cell == 0 {
-        return format!("({})", join(v));
+        if v.len() <= 12 {
+            return format!("({})", join(v));
+        }
+        // Long explicit vectors: the non-zero entries as index:value.
+        let nz: Vec<String> = v
+            .iter()
+            .enumerate()
+            .filter(|(_, x)| **x != 0)
+            .map(|(i, x)| format!("{i}:{x}"))
+            .collect();
+        return format!("{{{}}}", nz.join(", "));
     }
     v.chunks(cell)
         .enumerate()
