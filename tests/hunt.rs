@@ -769,6 +769,57 @@ charge = [1, 1]
         assert!(all.operators.len() > 5);
     }
 
+    /// N/2 spinless wires written as one explicit model (an invented demo
+    /// V: intrawire 0.3, 0.2 between the left mover of wire j and the right
+    /// mover of wire j + 1).
+    fn wide_wires(n: usize) -> System {
+        let mut k = vec![vec![0i64; n]; n];
+        let mut v = vec![vec![0.0f64; n]; n];
+        for j in 0..n / 2 {
+            let (r, l) = (2 * j, 2 * j + 1);
+            k[r][r] = 1;
+            k[l][l] = -1;
+            v[r][r] = 1.0;
+            v[l][l] = 1.0;
+            v[r][l] = 0.3;
+            v[l][r] = 0.3;
+            if r + 2 < n {
+                v[l][r + 2] = 0.2;
+                v[r + 2][l] = 0.2;
+            }
+        }
+        system(&explicit_model(&k, &vec![1; n], &v))
+    }
+
+    /// Benchmark (run with `--ignored --nocapture`): time of the search at
+    /// max-dim 2 for growing N. The target of the issue is N = 24 under a
+    /// second on one core.
+    #[test]
+    #[ignore]
+    fn timing_of_wide_models() {
+        for n in [12, 24, 48, 72, 88] {
+            let sys = wide_wires(n);
+            let start = std::time::Instant::now();
+            let r = run(
+                &sys,
+                &[],
+                &HuntOptions {
+                    force: true,
+                    ..opts(2.0)
+                },
+            );
+            let t = start.elapsed().as_secs_f64();
+            eprintln!(
+                "N = {n}: {t:.3} s, {} operators, {} lattice points examined",
+                r.operators.len(),
+                r.examined
+            );
+            if n == 24 {
+                assert!(t < 1.0, "N = 24 took {t} s");
+            }
+        }
+    }
+
     #[test]
     fn bad_options_are_input_errors() {
         let sys = system(WIRE);

@@ -41,8 +41,9 @@ pub struct Window {
 }
 
 impl Window {
-    /// The window for a model and an optional `--range`: R = the range, or
-    /// by default the widest model term plus... see [`default_range`].
+    /// The window for a model and an optional `--range` (R; by default
+    /// [`default_range`]). Errors name `--range`: 0, more wires than the
+    /// array has, or any value for an explicit model.
     pub fn choose(sys: &System, range: Option<usize>) -> Result<Window, InputError> {
         let lat = &sys.lattice;
         let cmd = |m: String| InputError::new("command line", "--range", m);
