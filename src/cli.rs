@@ -39,6 +39,9 @@ pub enum Command {
     Scan(ScanArgs),
     /// Join the shard files of a scan (`scan --shard k/n`) into its full output.
     Merge(MergeArgs),
+    /// List every local operator with scaling dimension up to a bound (an
+    /// exhaustive lattice search), or certify that there is none.
+    Hunt(HuntArgs),
 }
 
 /// Options shared by commands that evaluate a model at one point.
@@ -131,6 +134,45 @@ pub struct MergeArgs {
     pub format: Format,
 }
 
+/// `pinflow hunt`.
+#[derive(Debug, Args)]
+pub struct HuntArgs {
+    #[command(flatten)]
+    pub point: PointArgs,
+    /// Largest scaling dimension listed (2: the relevant operators).
+    #[arg(long, value_name = "DELTA", default_value = "2", allow_negative_numbers = true,
+          value_parser = crate::search::parse_max_dim)]
+    pub max_dim: f64,
+    /// Charge t.m of the operators: an integer, or `any`.
+    #[arg(long, value_name = "Q", default_value = "0", allow_negative_numbers = true,
+          value_parser = crate::search::parse_charge)]
+    pub charge: crate::search::ChargeFilter,
+    /// Conformal spin: 0 (operators that can pin on their own) or any.
+    #[arg(long, value_enum, default_value = "0")]
+    pub spin: crate::search::SpinFilter,
+    /// Arrays: the most consecutive wires an operator may touch [default:
+    /// the widest model term, at least 2].
+    #[arg(long, value_name = "R", allow_negative_numbers = true,
+          value_parser = crate::search::parse_range)]
+    pub range: Option<usize>,
+    /// Momentum conservation, when the model gives momenta [default: conserved].
+    #[arg(long, value_enum)]
+    pub momentum: Option<crate::search::MomentumFilter>,
+    /// Search even when the estimated number of lattice points is above the limit.
+    #[arg(long)]
+    pub force: bool,
+    /// Print the operators that are not yet model terms as [[term]] blocks
+    /// for the model file, instead of the report.
+    #[arg(long, conflicts_with = "format")]
+    pub emit_terms: bool,
+    /// Output format.
+    #[arg(long, value_enum, default_value_t = Format::Text)]
+    pub format: Format,
+    /// Write to this file instead of standard output (`-` is standard output).
+    #[arg(long, short = 'o', value_name = "FILE")]
+    pub output: Option<PathBuf>,
+}
+
 /// Parse `name=value`.
 pub fn parse_assignment(s: &str) -> Result<(String, f64), String> {
     let (name, value) = s
@@ -157,6 +199,7 @@ pub fn run(cli: Cli) -> Result<(), Error> {
         Command::Flow(args) => run_flow(args),
         Command::Scan(args) => crate::scan::run::scan(args),
         Command::Merge(args) => crate::scan::run::merge(args),
+        Command::Hunt(args) => crate::search::run(args),
     }
 }
 

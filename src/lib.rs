@@ -30,4 +30,5 @@ pub mod model;
 pub mod output;
 pub mod plot;
 pub mod scan;
+pub mod search;
 pub mod system;

@@ -1,0 +1,508 @@
+//! `pinflow hunt`: every local operator of a model with scaling dimension up
+//! to a bound, at one parameter point, with a certificate when there is none.
+//!
+//! Method (physics reference, section 5). A local operator is
+//! O = exp(i l.phi) with l = K m, m in Z^N its particle content, and
+//!
+//! ```text
+//! Delta(m) = (1/2) l^T D l = (1/2) m^T (K D K) m,
+//! ```
+//!
+//! a positive-definite quadratic form in m (D is positive definite and K
+//! invertible). So the operators with Delta <= Delta_max are the integer
+//! points of an ellipsoid: a finite set, listed exactly by LLL reduction and
+//! Fincke-Pohst enumeration ([`ellipsoid`]). The filters are exact integer
+//! arithmetic (charge t.m, conformal spin (1/2) m^T K m) except momentum
+//! conservation, whose momenta are floats: |k| below
+//! [`crate::dims::MOMENTUM_TOLERANCE`] counts as conserved.
+//!
+//! Arrays: the search runs on a window of R consecutive wires ([`window`])
+//! with the block of D on its fields, and lists one operator per
+//! translation class, placed with its support starting at the window's first
+//! wire. The bound is applied with a relative tolerance
+//! [`BOUND_TOLERANCE`], stated in the output: operators with
+//! Delta <= Delta_max (1 + 1e-9) are listed, so that a term exactly at the
+//! bound (e.g. umklapp at K_L = 1/2) is not lost to rounding.
+//!
+//! Guard rails: before enumerating, the number of points is estimated from
+//! the ellipsoid's volume and from random probes of the search tree; above
+//! [`DEFAULT_LIMIT`] the search is refused (with the estimate and how to
+//! narrow it) unless forced.
+
+pub mod ellipsoid;
+pub mod report;
+pub mod window;
+
+use std::collections::BTreeSet;
+
+use nalgebra::DMatrix;
+
+use crate::error::{Error, InputError};
+use crate::exact;
+use crate::system::System;
+use ellipsoid::Ellipsoid;
+pub use report::{emit_terms, render, Estimate, HuntReport, Operator};
+use window::Window;
+
+/// Relative tolerance on the dimension bound.
+pub const BOUND_TOLERANCE: f64 = 1e-9;
+/// Extra relative slack of the tree search over the tolerant bound (the
+/// reduced basis computes the form with different rounding; every candidate
+/// is re-checked with the model's D).
+const SEARCH_SLACK: f64 = 1e-7;
+/// Largest estimated number of lattice points searched without `--force`.
+pub const DEFAULT_LIMIT: f64 = 5e7;
+/// Most operators listed without `--force` (a memory guard for searches
+/// with few filters).
+pub const MAX_LISTED: usize = 1_000_000;
+/// Random probes of the tree estimate (fixed seed).
+const PROBES: usize = 2048;
+const PROBE_SEED: u64 = 0x0070_696e_666c_6f77;
+
+/// Which conformal spins to keep.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum SpinFilter {
+    /// Spin zero only: the operators that can pin a mode on their own.
+    #[value(name = "0")]
+    Zero,
+    /// Every spin.
+    Any,
+}
+
+/// Momentum conservation (models that give momenta).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum MomentumFilter {
+    /// Only operators whose momentum mismatch vanishes (within the tolerance).
+    Conserved,
+    /// Every momentum.
+    Any,
+}
+
+/// Which charges to keep.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum ChargeFilter {
+    /// Charge t.m equal to this integer.
+    Exactly(i64),
+    /// Every charge.
+    Any,
+}
+
+/// What to search for.
+#[derive(Debug, Clone, PartialEq)]
+pub struct HuntOptions {
+    /// Largest dimension listed.
+    pub max_dim: f64,
+    /// Charge filter.
+    pub charge: ChargeFilter,
+    /// Spin filter.
+    pub spin: SpinFilter,
+    /// Arrays: wires in the window (None: [`window::default_range`]).
+    pub range: Option<usize>,
+    /// Momentum filter (None: conserved when the model gives momenta).
+    pub momentum: Option<MomentumFilter>,
+    /// Search even above the limit.
+    pub force: bool,
+    /// Largest estimated number of points searched without `force`.
+    pub limit: f64,
+    /// Most operators listed without `force`.
+    pub max_listed: usize,
+}
+
+impl Default for HuntOptions {
+    fn default() -> Self {
+        HuntOptions {
+            max_dim: 2.0,
+            charge: ChargeFilter::Exactly(0),
+            spin: SpinFilter::Zero,
+            range: None,
+            momentum: None,
+            force: false,
+            limit: DEFAULT_LIMIT,
+            max_listed: MAX_LISTED,
+        }
+    }
+}
+
+/// Parse `--max-dim`: a finite number > 0.
+pub fn parse_max_dim(s: &str) -> Result<f64, String> {
+    let x: f64 = s
+        .trim()
+        .parse()
+        .map_err(|_| format!("expected a number > 0 (a scaling dimension), found `{s}`"))?;
+    if x.is_finite() && x > 0.0 {
+        Ok(x)
+    } else {
+        Err(format!(
+            "expected a finite number > 0 (a scaling dimension), found `{s}`"
+        ))
+    }
+}
+
+/// Parse `--range`: an integer >= 1.
+pub fn parse_range(s: &str) -> Result<usize, String> {
+    match s.trim().parse::<i64>() {
+        Ok(r) if r >= 1 => Ok(r as usize),
+        _ => Err(format!(
+            "expected a number of consecutive wires (an integer >= 1), found `{s}`"
+        )),
+    }
+}
+
+/// Parse `--charge`: an integer or `any`.
+pub fn parse_charge(s: &str) -> Result<ChargeFilter, String> {
+    let t = s.trim();
+    if t == "any" {
+        return Ok(ChargeFilter::Any);
+    }
+    t.parse::<i64>()
+        .map(ChargeFilter::Exactly)
+        .map_err(|_| format!("expected an integer charge t.m or `any`, found `{s}`"))
+}
+
+/// The data of the search space: window, exact K and t on it, the form G.
+struct Space {
+    window: Window,
+    k: Vec<Vec<i64>>,
+    t: Vec<i64>,
+    d: DMatrix<f64>,
+    gram: DMatrix<f64>,
+    /// Non-zero entries of each row of K.
+    k_rows: Vec<Vec<(usize, i64)>>,
+}
+
+impl Space {
+    fn new(sys: &System, d_full: &DMatrix<f64>, window: Window) -> Space {
+        let idx = window.field_indices();
+        let n = idx.len();
+        let k: Vec<Vec<i64>> = idx
+            .iter()
+            .map(|&i| idx.iter().map(|&j| sys.lattice.k[i][j]).collect())
+            .collect();
+        let t: Vec<i64> = idx.iter().map(|&i| sys.lattice.charge[i]).collect();
+        let d = DMatrix::from_fn(n, n, |a, b| d_full[(idx[a], idx[b])]);
+        let kf = DMatrix::from_fn(n, n, |a, b| k[a][b] as f64);
+        let gram = &kf * &d * &kf;
+        let gram = (&gram + gram.transpose()) * 0.5;
+        let k_rows = k
+            .iter()
+            .map(|row| {
+                row.iter()
+                    .enumerate()
+                    .filter(|(_, x)| **x != 0)
+                    .map(|(j, x)| (j, *x))
+                    .collect()
+            })
+            .collect();
+        Space {
+            window,
+            k,
+            t,
+            d,
+            gram,
+            k_rows,
+        }
+    }
+
+    /// l = K m on the window (None on overflow).
+    fn vector(&self, m: &[i64]) -> Option<Vec<i64>> {
+        self.k
+            .iter()
+            .map(|row| {
+                row.iter()
+                    .zip(m)
+                    .try_fold(0i64, |acc, (a, b)| acc.checked_add(a.checked_mul(*b)?))
+            })
+            .collect()
+    }
+
+    /// (1/2) m^T G m over the non-zero entries `nz` of m.
+    fn half_form(&self, m: &[i64], nz: &[usize]) -> f64 {
+        let mut s = 0.0;
+        for &i in nz {
+            let mut row = 0.0;
+            for &j in nz {
+                row += self.gram[(i, j)] * m[j] as f64;
+            }
+            s += m[i] as f64 * row;
+        }
+        0.5 * s
+    }
+
+    /// m^T K m over the non-zero entries `nz` of m, with K's sparse rows.
+    fn twice_spin_sparse(&self, m: &[i64], nz: &[usize]) -> i128 {
+        nz.iter()
+            .map(|&i| {
+                let row: i128 = self.k_rows[i]
+                    .iter()
+                    .map(|&(j, kij)| kij as i128 * m[j] as i128)
+                    .sum();
+                m[i] as i128 * row
+            })
+            .sum()
+    }
+
+    /// m^T K m (twice the conformal spin), exactly.
+    fn twice_spin(&self, m: &[i64]) -> i128 {
+        let mut s = 0i128;
+        for (i, row) in self.k.iter().enumerate() {
+            if m[i] == 0 {
+                continue;
+            }
+            for (j, kij) in row.iter().enumerate() {
+                if m[j] != 0 && *kij != 0 {
+                    s += m[i] as i128 * *kij as i128 * m[j] as i128;
+                }
+            }
+        }
+        s
+    }
+
+    fn charge(&self, m: &[i64]) -> i128 {
+        m.iter()
+            .zip(&self.t)
+            .map(|(a, b)| *a as i128 * *b as i128)
+            .sum()
+    }
+}
+
+/// Run the search at a parameter point.
+pub fn hunt(sys: &System, point: &[f64], opts: &HuntOptions) -> Result<HuntReport, Error> {
+    let cmd = |key: &str, m: String| Error::Input(InputError::new("command line", key, m));
+    if !(opts.max_dim.is_finite() && opts.max_dim > 0.0) {
+        return Err(cmd(
+            "--max-dim",
+            format!(
+                "expected a finite number > 0 (a scaling dimension), found {}",
+                opts.max_dim
+            ),
+        ));
+    }
+    let window = Window::choose(sys, opts.range)?;
+    let momenta = sys.lattice.momenta(&sys.model, point);
+    let momentum = match (opts.momentum, &momenta) {
+        (Some(MomentumFilter::Conserved), None) => {
+            return Err(cmd(
+                "--momentum",
+                "the model gives no momenta (fields.momentum or array.momentum); omit the flag or use `--momentum any`".into(),
+            ))
+        }
+        (Some(f), Some(_)) => Some(f),
+        (None, Some(_)) => Some(MomentumFilter::Conserved),
+        (_, None) => None,
+    };
+    if let Some(k) = &momenta {
+        if let Some(i) = k.iter().position(|x| !x.is_finite()) {
+            return Err(Error::Input(InputError::new(
+                &sys.model.file,
+                "momentum",
+                format!(
+                    "the momentum of field {i} is {} at {}; expected a finite number",
+                    k[i],
+                    sys.model.params.describe(point)
+                ),
+            )));
+        }
+    }
+    let fp = sys.fixed_point(point)?;
+    let space = Space::new(sys, &fp.d, window);
+    let ell = Ellipsoid::new(&space.gram)
+        .map_err(|e| Error::Numerical(format!("operator search: {e}")))?;
+    let accept = opts.max_dim * (1.0 + BOUND_TOLERANCE);
+    let bound = 2.0 * accept * (1.0 + SEARCH_SLACK);
+    let estimate = Estimate {
+        volume: ell.volume_estimate(bound),
+        tree: ell.tree_estimate(bound, PROBES, PROBE_SEED),
+        limit: opts.limit,
+    };
+    if estimate.points() > opts.limit && !opts.force {
+        return Err(cmd(
+            "--max-dim",
+            format!(
+                "the search would examine about {:.2e} lattice points in {} dimensions (ellipsoid volume {:.2e}, search-tree estimate {:.2e}), above the limit {:.0e}; narrow it with a smaller --max-dim{}, or pass --force to run it anyway",
+                estimate.points(),
+                ell.dim(),
+                estimate.volume,
+                estimate.tree,
+                opts.limit,
+                if space.window.array { " or --range" } else { "" }
+            ),
+        ));
+    }
+
+    // Enumerate: keep the canonical placement of each class that passes the
+    // exact filters and the bound (recomputed from the window's D).
+    let mut kept: BTreeSet<Vec<i64>> = BTreeSet::new();
+    let mut candidates = 0u64;
+    let mut nz: Vec<usize> = Vec::with_capacity(space.t.len());
+    let visit = ell
+        .for_each(bound, |m, _| {
+            nz.clear();
+            nz.extend((0..m.len()).filter(|&i| m[i] != 0));
+            if space.half_form(m, &nz) > accept {
+                return true;
+            }
+            candidates += 1;
+            let q: i128 = nz.iter().map(|&i| m[i] as i128 * space.t[i] as i128).sum();
+            let charge_ok = match opts.charge {
+                ChargeFilter::Any => true,
+                ChargeFilter::Exactly(c) => q.abs() == (c as i128).abs(),
+            };
+            if !charge_ok
+                || (opts.spin == SpinFilter::Zero && space.twice_spin_sparse(m, &nz) != 0)
+                // A canonical placement touches the window's first wire.
+                || !space.window.touches_first(m)
+            {
+                return true;
+            }
+            let canon = space.window.canonical(m);
+            let is_placement = canon.as_slice() == m || canon.iter().zip(m).all(|(a, b)| *a == -b);
+            if is_placement {
+                kept.insert(canon);
+                if kept.len() > opts.max_listed && !opts.force {
+                    return false;
+                }
+            }
+            true
+        })
+        .map_err(|e| Error::Numerical(format!("operator search: {e}")))?;
+
+    if kept.len() > opts.max_listed && !opts.force {
+        return Err(cmd(
+            "--max-dim",
+            format!(
+                "more than {} operators match; narrow the search with a smaller --max-dim{}, the filters --spin 0 and --charge 0, or pass --force",
+                opts.max_listed,
+                if space.window.array { " or --range" } else { "" }
+            ),
+        ));
+    }
+    let flip = matches!(opts.charge, ChargeFilter::Exactly(c) if c < 0);
+    let mut operators = Vec::with_capacity(kept.len());
+    for canon in kept {
+        let m: Vec<i64> = if flip {
+            canon.iter().map(|x| -x).collect()
+        } else {
+            canon.clone()
+        };
+        let l = space
+            .vector(&m)
+            .ok_or_else(|| Error::Numerical("K m overflowed 64-bit integers".into()))?;
+        let dimension = crate::fixed_point::quad_form(&space.d, &l);
+        let full = space.window.place(&m);
+        let k = momenta.as_ref().map(|p| {
+            full.iter()
+                .zip(p)
+                .filter(|(a, _)| **a != 0)
+                .map(|(a, b)| *a as f64 * b)
+                .sum::<f64>()
+        });
+        if momentum == Some(MomentumFilter::Conserved)
+            && k.is_some_and(|k| k.abs() >= crate::dims::MOMENTUM_TOLERANCE)
+        {
+            continue;
+        }
+        let spin = exact::Rational::new(space.twice_spin(&m).into(), 2.into());
+        operators.push(Operator {
+            particles_by_wire: space.window.array.then(|| {
+                space
+                    .window
+                    .parts(&m)
+                    .into_iter()
+                    .map(|(w, v)| (w.to_string(), v))
+                    .collect()
+            }),
+            wires: space.window.support(&m),
+            charge: space.charge(&m) as i64,
+            spin: exact::fmt_rational(&spin),
+            dimension,
+            rg_eigenvalue: 2.0 - dimension,
+            momentum: k,
+            model_term: model_term(sys, &space.window, &canon),
+            competitors: competitors(sys, &full),
+            particles: m,
+            vector: l,
+        });
+    }
+    operators.sort_by(|a, b| {
+        dim_key(a.dimension)
+            .cmp(&dim_key(b.dimension))
+            .then_with(|| b.particles.cmp(&a.particles))
+    });
+    Ok(HuntReport::new(
+        sys,
+        point,
+        opts,
+        &space.window,
+        momentum,
+        estimate,
+        visit.examined,
+        candidates,
+        ell.reduction.capped,
+        operators,
+    ))
+}
+
+/// Sort key of a dimension: rounded to 1e-9 so that equal dimensions (up to
+/// rounding) sort by particle content (largest first), deterministically.
+fn dim_key(d: f64) -> i64 {
+    (d * 1e9).round() as i64
+}
+
+/// The model term whose family is this operator (same canonical form).
+fn model_term(sys: &System, window: &Window, canon: &[i64]) -> Option<String> {
+    let inv = &sys.invariants;
+    sys.model
+        .terms
+        .iter()
+        .zip(&sys.lattice.families)
+        .find(|(_, fam)| {
+            let m = crate::invariants::particles_of(&sys.lattice, &inv.cell_inverse, fam.rep());
+            exact::to_integers(&m)
+                .and_then(|m| window.canonical_full(&m))
+                .is_some_and(|c| c == canon)
+        })
+        .map(|(spec, _)| spec.name.clone())
+}
+
+/// Model terms with a translate that does not commute with the operator:
+/// m^T l' = l^T K^-1 l' != 0 (an integer, since m is integral).
+fn competitors(sys: &System, full_m: &[i64]) -> Vec<String> {
+    sys.model
+        .terms
+        .iter()
+        .zip(&sys.lattice.families)
+        .filter(|(_, fam)| {
+            fam.translates.iter().any(|t| {
+                full_m
+                    .iter()
+                    .zip(&t.l)
+                    .map(|(a, b)| *a as i128 * *b as i128)
+                    .sum::<i128>()
+                    != 0
+            })
+        })
+        .map(|(spec, _)| spec.name.clone())
+        .collect()
+}
+
+/// `pinflow hunt` from the command line.
+pub fn run(args: crate::cli::HuntArgs) -> Result<(), Error> {
+    let (sys, point) = crate::cli::load_point(&args.point)?;
+    let opts = HuntOptions {
+        max_dim: args.max_dim,
+        charge: args.charge,
+        spin: args.spin,
+        range: args.range,
+        momentum: args.momentum,
+        force: args.force,
+        limit: DEFAULT_LIMIT,
+        max_listed: MAX_LISTED,
+    };
+    let report = hunt(&sys, &point, &opts)?;
+    let text = if args.emit_terms {
+        emit_terms(&report, &sys.model)
+    } else {
+        render(&report, args.format)?
+    };
+    crate::cli::emit(args.output.as_deref(), &text)
+}
