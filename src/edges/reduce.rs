@@ -208,39 +208,35 @@ fn cost(g: &ZMat) -> (BigInt, BigInt) {
 
 /// Integer candidates k for b_i + k b_j: small shifts, the vertex and the
 /// real roots of the norm (a quadratic in k), and the zeros of every entry
-/// of row i. Floats only propose candidates; every cost is exact.
+/// of row i, each rounded both ways. All exact.
 fn candidates(g: &ZMat, i: usize, j: usize) -> Vec<BigInt> {
-    let f = |x: &BigInt| x.to_f64().unwrap_or(0.0);
-    let (a, b, c) = (f(g.at(j, j)), f(g.at(i, j)), f(g.at(i, i)));
-    let mut xs: Vec<f64> = vec![1.0, -1.0, 2.0, -2.0];
-    if a != 0.0 {
-        xs.push(-b / a);
-        let disc = b * b - a * c;
-        if disc >= 0.0 {
-            xs.push((-b + disc.sqrt()) / a);
-            xs.push((-b - disc.sqrt()) / a);
+    let (a, b, c) = (g.at(j, j), g.at(i, j), g.at(i, i));
+    let mut ks: Vec<BigInt> = [1i64, -1, 2, -2].iter().map(|x| BigInt::from(*x)).collect();
+    let push_ratio = |num: BigInt, den: &BigInt, ks: &mut Vec<BigInt>| {
+        if den.is_zero() {
+            return;
         }
-    } else if b != 0.0 {
-        xs.push(-c / (2.0 * b));
+        let f = num.div_floor(den);
+        for k in [f.clone() - 1, f.clone(), f + 1] {
+            if !k.is_zero() && !ks.contains(&k) {
+                ks.push(k);
+            }
+        }
+    };
+    if !a.is_zero() {
+        push_ratio(-b, a, &mut ks);
+        let disc = b * b - a * c;
+        if !disc.is_negative() {
+            let s = disc.sqrt();
+            push_ratio(-b + &s, a, &mut ks);
+            push_ratio(-b - &s, a, &mut ks);
+        }
+    } else if !b.is_zero() {
+        push_ratio(-c, &(b * 2), &mut ks);
     }
     for l in 0..g.rows {
-        let y = f(g.at(j, l));
-        if l != i && y != 0.0 {
-            xs.push(-f(g.at(i, l)) / y);
-        }
-    }
-    let mut ks: Vec<BigInt> = Vec::new();
-    for x in xs {
-        if !x.is_finite() || x.abs() > 1e15 {
-            continue;
-        }
-        for y in [x.floor(), x.ceil()] {
-            if let Some(k) = num_traits::FromPrimitive::from_f64(y) {
-                let k: BigInt = k;
-                if !k.is_zero() && !ks.contains(&k) {
-                    ks.push(k);
-                }
-            }
+        if l != i {
+            push_ratio(-g.at(i, l), g.at(j, l), &mut ks);
         }
     }
     ks
@@ -399,30 +395,40 @@ fn gram_schmidt_row(g: &ZMat, mu: &mut [Vec<Rational>], bb: &mut [Rational], k: 
         });
 }
 
-/// A short representative of v modulo the lattice spanned by the columns of
-/// S (Euclidean norm): S is LLL-reduced, v is reduced by nearest planes
-/// [Babai, Combinatorica 6, 1 (1986)], then by single steps v -> v +- s
-/// while the sum of |entries| drops.
+/// Short representatives modulo the lattice spanned by some integer
+/// vectors (Euclidean norm): an independent subset of them is LLL-reduced,
+/// v is reduced by nearest planes [Babai, Combinatorica 6, 1 (1986)], then
+/// by single steps v -> v +- s while the sum of |entries| drops.
 pub struct ModuloLattice {
+    dim: usize,
     basis: Vec<Vec<BigInt>>,
     star: Vec<Vec<Rational>>,
     star_norm: Vec<Rational>,
 }
 
 impl ModuloLattice {
-    /// Prepare the (linearly independent) columns of S.
+    /// Prepare the lattice spanned by the columns of S (they may be
+    /// linearly dependent; a maximal independent subset is used, which
+    /// spans a sublattice of finite index: representatives stay in the
+    /// same class modulo the full lattice).
     pub fn new(s: &ZMat) -> ModuloLattice {
-        let euclid = ZMat::identity(s.rows);
-        let u = lll(&s.gram(&euclid));
-        let reduced = s.mul(&u);
-        let basis = reduced.columns();
+        let cols = independent(&s.columns());
+        let dim = s.rows;
+        if cols.is_empty() {
+            return ModuloLattice {
+                dim,
+                basis: Vec::new(),
+                star: Vec::new(),
+                star_norm: Vec::new(),
+            };
+        }
+        let sub = ZMat::from_cols(dim, &cols);
+        let u = lll(&sub.gram(&ZMat::identity(dim)));
+        let basis = sub.mul(&u).columns();
         let mut star: Vec<Vec<Rational>> = Vec::with_capacity(basis.len());
         let mut star_norm: Vec<Rational> = Vec::with_capacity(basis.len());
         for b in &basis {
-            let mut v: Vec<Rational> = b
-                .iter()
-                .map(|x| Rational::from_integer(x.clone()))
-                .collect();
+            let mut v = rational(b);
             for (w, nw) in star.iter().zip(&star_norm) {
                 let c = rdot(&v, w) / nw;
                 for (x, y) in v.iter_mut().zip(w) {
@@ -433,6 +439,7 @@ impl ModuloLattice {
             star.push(v);
         }
         ModuloLattice {
+            dim,
             basis,
             star,
             star_norm,
@@ -443,11 +450,7 @@ impl ModuloLattice {
     pub fn reduce(&self, v: &[BigInt]) -> Vec<BigInt> {
         let mut v = v.to_vec();
         for j in (0..self.basis.len()).rev() {
-            let vr: Vec<Rational> = v
-                .iter()
-                .map(|x| Rational::from_integer(x.clone()))
-                .collect();
-            let c = round_rational(&(rdot(&vr, &self.star[j]) / &self.star_norm[j]));
+            let c = round_rational(&(rdot(&rational(&v), &self.star[j]) / &self.star_norm[j]));
             if !c.is_zero() {
                 for (x, y) in v.iter_mut().zip(&self.basis[j]) {
                     *x -= &c * y;
@@ -473,6 +476,77 @@ impl ModuloLattice {
         }
         v
     }
+
+    /// A unimodular U making the columns of C short modulo the lattice:
+    /// LLL on the Gram matrix of their projections orthogonal to it
+    /// (scaled to integers). The columns of C must be independent modulo
+    /// the lattice.
+    pub fn shorten(&self, c: &ZMat) -> ZMat {
+        let d = c.cols;
+        if d < 2 {
+            return ZMat::identity(d);
+        }
+        let proj: Vec<Vec<Rational>> = c
+            .columns()
+            .iter()
+            .map(|v| {
+                let mut p = rational(v);
+                for (w, nw) in self.star.iter().zip(&self.star_norm) {
+                    let k = rdot(&p, w) / nw;
+                    for (x, y) in p.iter_mut().zip(w) {
+                        *x -= &k * y;
+                    }
+                }
+                p
+            })
+            .collect();
+        let gram: Vec<Vec<Rational>> = (0..d)
+            .map(|i| (0..d).map(|j| rdot(&proj[i], &proj[j])).collect())
+            .collect();
+        let den = gram
+            .iter()
+            .flatten()
+            .fold(BigInt::one(), |l, x| l.lcm(x.denom()));
+        let rows: Vec<Vec<BigInt>> = gram
+            .iter()
+            .map(|r| {
+                r.iter()
+                    .map(|x| (x * Rational::from_integer(den.clone())).to_integer())
+                    .collect()
+            })
+            .collect();
+        debug_assert_eq!(self.dim, c.rows);
+        lll(&ZMat::from_rows(&rows, d))
+    }
+}
+
+fn rational(v: &[BigInt]) -> Vec<Rational> {
+    v.iter()
+        .map(|x| Rational::from_integer(x.clone()))
+        .collect()
+}
+
+/// A maximal linearly independent subset of the vectors (in order), by
+/// exact elimination against an echelon basis of those kept.
+fn independent(vs: &[Vec<BigInt>]) -> Vec<Vec<BigInt>> {
+    let mut echelon: Vec<(usize, Vec<Rational>)> = Vec::new();
+    let mut kept = Vec::new();
+    for v in vs {
+        let mut r = rational(v);
+        for (p, e) in &echelon {
+            if !r[*p].is_zero() {
+                let f = &r[*p] / &e[*p];
+                for (x, y) in r.iter_mut().zip(e) {
+                    *x -= &f * y;
+                }
+            }
+        }
+        if let Some(p) = r.iter().position(|x| !x.is_zero()) {
+            echelon.push((p, r));
+            kept.push(v.clone());
+        }
+    }
+    kept
 }
 
 fn rdot(a: &[Rational], b: &[Rational]) -> Rational {

@@ -107,15 +107,21 @@ pub fn residual(
             return Err("the residual form stays degenerate".into());
         }
     }
-    // Readable basis, short representatives modulo S, signs by charge.
+    // Short vectors modulo S first (the kernel and saturation bases can
+    // have entries exponential in the number of wires), then the readable
+    // form, then short representatives again.
+    // The pinned vectors inside are short: list them first, so that the
+    // independent subset used takes them before the (long) saturation basis.
+    let mut modulo_cols: Vec<Vec<BigInt>> = inside.iter().map(|n| restrict(n)).collect();
+    modulo_cols.extend(s_cols);
+    let modulo = ModuloLattice::new(&ZMat::from_cols(f, &modulo_cols));
+    let basis = basis.mul(&modulo.shorten(&basis));
+    let short: Vec<Vec<BigInt>> = basis.columns().iter().map(|g| modulo.reduce(g)).collect();
+    let basis = ZMat::from_cols(f, &short);
+    let gram = basis.gram(&k_f);
     let u = reduce_form(&gram);
     let basis = basis.mul(&u);
-    let modulo = (!s_cols.is_empty()).then(|| ModuloLattice::new(&ZMat::from_cols(f, &s_cols)));
-    let mut gens: Vec<Vec<BigInt>> = basis
-        .columns()
-        .into_iter()
-        .map(|g| modulo.as_ref().map_or(g.clone(), |m| m.reduce(&g)))
-        .collect();
+    let mut gens: Vec<Vec<BigInt>> = basis.columns().iter().map(|g| modulo.reduce(g)).collect();
     for g in gens.iter_mut() {
         let q = dot(&t_f, g);
         let first_negative = g
