@@ -508,19 +508,23 @@ particles = [-2, 1, -1, 2, 0, 0]
                 let k2 = matmul(&wt, &matmul(&diag(&[1, -1]), &w));
                 let t2 = matvec(&wt, &[1, 1]);
                 let (p0, p1) = link(m);
-                let v0 = vec![vec![1.0, 0.3], vec![0.3, 1.0]];
+                let v0 = [[1.0, 0.3], [0.3, 1.0]];
                 let wf: Vec<Vec<f64>> = w
                     .iter()
                     .map(|r| r.iter().map(|x| *x as f64).collect())
                     .collect();
+                // V0' = W_c^T V0 W_c.
                 let v2: Vec<Vec<f64>> = (0..2)
                     .map(|i| {
                         (0..2)
                             .map(|j| {
-                                (0..2)
-                                    .flat_map(|a| (0..2).map(move |b| (a, b)))
-                                    .map(|(a, b)| wf[a][i] * v0[a][b] * wf[b][j])
-                                    .sum()
+                                let mut x = 0.0;
+                                for (a, row) in v0.iter().enumerate() {
+                                    for (b, v) in row.iter().enumerate() {
+                                        x += wf[a][i] * v * wf[b][j];
+                                    }
+                                }
+                                x
                             })
                             .collect()
                     })

@@ -23,6 +23,7 @@ use num_integer::Integer;
 use num_traits::{One, Signed, Zero};
 
 use super::zmat::ZMat;
+use crate::exact::Rational;
 
 /// P A Q = D with D = diag(d_1, ..., d_rank, 0, ...), d_i > 0, d_i | d_{i+1}.
 #[derive(Debug, Clone)]
@@ -43,6 +44,30 @@ impl Smith {
     /// Rank of A.
     pub fn rank(&self) -> usize {
         self.diag.len()
+    }
+
+    /// The rational solution of A x = b for a square invertible A (None if
+    /// A is singular): x = Q D^-1 P b.
+    pub fn solve(&self, b: &[BigInt]) -> Option<Vec<Rational>> {
+        let n = self.q.rows;
+        if self.p.rows != n || self.rank() != n {
+            return None;
+        }
+        let y = self.p.mul_vec(b);
+        let z: Vec<Rational> = y
+            .into_iter()
+            .zip(&self.diag)
+            .map(|(yi, d)| Rational::new(yi, d.clone()))
+            .collect();
+        Some(
+            (0..n)
+                .map(|i| {
+                    (0..n).fold(Rational::zero(), |acc, j| {
+                        acc + Rational::from_integer(self.q.at(i, j).clone()) * &z[j]
+                    })
+                })
+                .collect(),
+        )
     }
 }
 
@@ -447,6 +472,19 @@ mod tests {
                 assert_eq!(gcd_all(&minors(&small(&s), s.cols)), 1);
             }
         }
+    }
+
+    #[test]
+    fn solve_rational() {
+        // [[3,1],[1,3]] x = (1,1): x = (1/4, 1/4) (by hand); a singular
+        // matrix has no solution.
+        let a = ZMat::from_i64(&[vec![3, 1], vec![1, 3]], 2);
+        let one = BigInt::one();
+        let x = smith(&a).solve(&[one.clone(), one.clone()]).unwrap();
+        let q = Rational::new(one.clone(), BigInt::from(4));
+        assert_eq!(x, vec![q.clone(), q]);
+        let s = ZMat::from_i64(&[vec![1, 2], vec![2, 4]], 2);
+        assert!(smith(&s).solve(&[one.clone(), one]).is_none());
     }
 
     #[test]

@@ -81,8 +81,8 @@ pub fn reduce_form(g: &ZMat) -> ZMat {
 /// b_j -= (G_ij / G_ii) b_i, and 1 / G_ii = G_ii for G_ii = +-1.
 fn split(g: &mut ZMat, u: &mut ZMat, i: usize, frozen: &[bool]) {
     let gii = g.at(i, i).clone();
-    for j in 0..g.rows {
-        if j != i && !frozen[j] {
+    for (j, &fixed) in frozen.iter().enumerate() {
+        if j != i && !fixed {
             let c = -(g.at(i, j) * &gii);
             apply(g, u, j, i, &c);
         }
@@ -359,11 +359,11 @@ pub fn lll(g: &ZMat) -> ZMat {
             let neg = -&q;
             apply(&mut gm, &mut u, k, j, &neg);
             let qr = Rational::from_integer(q);
-            for l in 0..j {
-                let d = &qr * &mu[j][l];
-                mu[k][l] -= d;
+            let (lower, upper) = mu.split_at_mut(k);
+            for (x, y) in upper[0].iter_mut().zip(&lower[j]).take(j) {
+                *x -= &qr * y;
             }
-            mu[k][j] -= &qr;
+            upper[0][j] -= &qr;
         }
         // Size reduction leaves b*_k, hence B_k, unchanged.
         let lhs = bb[k].clone();

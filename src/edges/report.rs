@@ -149,6 +149,9 @@ pub struct EdgesReport {
     pub model: String,
     /// Parameter point (used by the flow when no `--pin` is given).
     pub parameters: serde_json::Map<String, serde_json::Value>,
+    /// The point as "name=value, ..." for people.
+    #[serde(skip)]
+    pub point: String,
     /// Number of fields.
     pub fields: usize,
     /// Wires (arrays).
@@ -219,6 +222,7 @@ impl EdgesReport {
         EdgesReport {
             model: sys.model.name.clone(),
             parameters,
+            point: sys.model.params.describe(point),
             fields: lat.n,
             wires: lat.boundary.map(|_| lat.wires),
             boundary: match lat.boundary {
@@ -401,12 +405,6 @@ impl Report for EdgesReport {
     fn facts(&self) -> Vec<(String, String)> {
         let mut f = Vec::new();
         if self.chosen_by == "flow" {
-            let params = self
-                .parameters
-                .iter()
-                .map(|(k, v)| format!("{k}={v}"))
-                .collect::<Vec<_>>()
-                .join(", ");
             let ell = self
                 .ell_star
                 .map(|l| format!(" at ell* = {}", crate::output::short(l)))
@@ -415,7 +413,7 @@ impl Report for EdgesReport {
                 "chosen by".to_string(),
                 format!(
                     "the flow at {}: \"{}\" reaches strong coupling{ell}; terms commuting with it are pinned too",
-                    if params.is_empty() { "the defaults".to_string() } else { params },
+                    self.point,
                     self.winner.clone().unwrap_or_default()
                 ),
             ));

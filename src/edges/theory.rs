@@ -200,12 +200,12 @@ pub fn invariants(k: &ZMat, t: &[BigInt]) -> Invariants {
     let d = k.rows;
     let det = zmat::det(k);
     let (pos, neg, _) = zmat::inertia(k);
-    let kinv_t = zmat::solve(k, t).unwrap_or_default();
+    let s = smith(k);
+    let kinv_t = s.solve(t).unwrap_or_default();
     let filling = kinv_t.iter().zip(t).fold(Rational::zero(), |acc, (a, b)| {
         acc + a * Rational::from_integer(b.clone())
     });
     let odd = (0..d).any(|i| k.at(i, i).is_odd());
-    let s = smith(k);
     let mut group = Vec::new();
     let mut gens = Vec::new();
     for (i, di) in s.diag.iter().enumerate() {
@@ -219,7 +219,7 @@ pub fn invariants(k: &ZMat, t: &[BigInt]) -> Invariants {
     let modulo = (d > 0).then(|| ModuloLattice::new(k));
     let make = |l: Vec<BigInt>| -> Quasiparticle {
         let l = modulo.as_ref().map_or(l.clone(), |m| m.reduce(&l));
-        let kinv_l = zmat::solve(k, &l).unwrap_or_default();
+        let kinv_l = s.solve(&l).unwrap_or_default();
         let lr: Vec<Rational> = l
             .iter()
             .map(|x| Rational::from_integer(x.clone()))

@@ -1,6 +1,6 @@
 //! Dense big-integer matrices and the exact helpers the lattice algorithms
-//! need: products, Gram matrices, determinants (fraction-free elimination),
-//! rational solves and the exact inertia of a symmetric matrix (congruence
+//! need: products, Gram matrices, determinants (fraction-free elimination)
+//! and the exact inertia of a symmetric matrix (congruence
 //! diagonalisation; Sylvester's law of inertia). No floats, no overflow.
 
 use num_bigint::BigInt;
@@ -283,39 +283,6 @@ pub fn det(m: &ZMat) -> BigInt {
     }
 }
 
-/// Solve A x = b over the rationals for a square invertible A (None if A is
-/// singular).
-pub fn solve(a: &ZMat, b: &[BigInt]) -> Option<Vec<Rational>> {
-    let n = a.rows;
-    let mut m: Vec<Vec<Rational>> = (0..n)
-        .map(|i| {
-            let mut r: Vec<Rational> = (0..n)
-                .map(|j| Rational::from_integer(a.at(i, j).clone()))
-                .collect();
-            r.push(Rational::from_integer(b[i].clone()));
-            r
-        })
-        .collect();
-    for k in 0..n {
-        let p = (k..n).find(|&r| !m[r][k].is_zero())?;
-        m.swap(p, k);
-        let piv = m[k][k].clone();
-        for x in m[k].iter_mut() {
-            *x = &*x / &piv;
-        }
-        let prow = m[k].clone();
-        for (i, row) in m.iter_mut().enumerate() {
-            if i != k && !row[k].is_zero() {
-                let f = row[k].clone();
-                for (x, y) in row.iter_mut().zip(&prow) {
-                    *x -= &f * y;
-                }
-            }
-        }
-    }
-    Some(m.into_iter().map(|r| r[n].clone()).collect())
-}
-
 /// Inertia (n+, n-, n0) of a symmetric integer matrix, exactly: congruence
 /// diagonalisation over the rationals (Sylvester's law of inertia).
 pub fn inertia(g: &ZMat) -> (usize, usize, usize) {
@@ -345,13 +312,13 @@ pub fn inertia(g: &ZMat) -> (usize, usize, usize) {
                 let Some((i, j)) = pair else {
                     break;
                 };
-                for k in 0..n {
-                    let x = a[j][k].clone();
-                    a[i][k] += x;
+                let row_j = a[j].clone();
+                for (x, y) in a[i].iter_mut().zip(row_j) {
+                    *x += y;
                 }
-                for k in 0..n {
-                    let x = a[k][j].clone();
-                    a[k][i] += x;
+                for row in a.iter_mut() {
+                    let y = row[j].clone();
+                    row[i] += y;
                 }
                 i
             }
@@ -409,13 +376,5 @@ mod tests {
         assert_eq!(inertia(&m(&[&[3, 1], &[1, 3]])), (2, 0, 0));
         assert_eq!(inertia(&m(&[&[1, 1], &[1, 1]])), (1, 0, 1));
         assert_eq!(inertia(&m(&[&[0, 0], &[0, 0]])), (0, 0, 2));
-    }
-
-    #[test]
-    fn solve_rational() {
-        // [[3,1],[1,3]] x = (1,1): x = (1/4, 1/4).
-        let x = solve(&m(&[&[3, 1], &[1, 3]]), &big(&[1, 1])).unwrap();
-        let q = Rational::new(BigInt::from(1), BigInt::from(4));
-        assert_eq!(x, vec![q.clone(), q]);
     }
 }
