@@ -128,6 +128,13 @@ pub fn from_flow(sys: &System, point: &[f64], opts: FlowOptions) -> Result<Selec
                 res.message.unwrap_or_default(),
             )))
         }
+        Outcome::Failed => {
+            return Err(Error::Numerical(format!(
+                "the flow at {} failed ({}); name the terms to pin with --pin NAME",
+                sys.model.params.describe(point),
+                res.message.unwrap_or_default()
+            )))
+        }
         other => {
             return Err(Error::Input(InputError::new(
                 "command line",

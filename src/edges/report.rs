@@ -349,10 +349,27 @@ fn fmt_ints(v: &[Int]) -> String {
     )
 }
 
-fn fmt_matrix(m: &[Vec<Int>]) -> String {
+/// A K matrix for a table: "(k)" for one mode; when `compact`, "diag(...)"
+/// for a diagonal one and a pointer to the generator table beyond 3 modes.
+fn fmt_matrix(m: &[Vec<Int>], compact: bool) -> String {
+    let diagonal = m.iter().enumerate().all(|(i, r)| {
+        r.iter()
+            .enumerate()
+            .all(|(j, x)| i == j || x.0.sign() == num_bigint::Sign::NoSign)
+    });
     match m.len() {
         0 => "none".to_string(),
         1 => fmt_ints(&m[0]),
+        _ if compact && diagonal => format!(
+            "diag{}",
+            fmt_ints(
+                &m.iter()
+                    .enumerate()
+                    .map(|(i, r)| r[i].clone())
+                    .collect::<Vec<_>>()
+            )
+        ),
+        d if compact && d > 3 => format!("{d} x {d}: rows in the generator table"),
         _ => format!(
             "[{}]",
             m.iter()
@@ -485,7 +502,7 @@ impl Report for EdgesReport {
     }
 
     fn tables(&self) -> Vec<Table> {
-        let mut tables = vec![self.csv_table()];
+        let mut tables = vec![self.summary(true)];
         let arrays = self.wires.is_some();
         for t in self.theories() {
             if t.modes == 0 {
@@ -535,6 +552,17 @@ impl Report for EdgesReport {
     }
 
     fn csv_table(&self) -> Table {
+        self.summary(false)
+    }
+
+    fn notes(&self) -> Vec<String> {
+        self.notes.clone()
+    }
+}
+
+impl EdgesReport {
+    /// One row per theory (K in full unless `compact`).
+    fn summary(&self, compact: bool) -> Table {
         let mut t = Table::new(
             "gapless theories",
             &[
@@ -557,7 +585,7 @@ impl Report for EdgesReport {
                     .map(|[a, b]| format!("{a}-{b}"))
                     .unwrap_or_else(|| "-".into()),
                 th.modes.to_string(),
-                fmt_matrix(&th.k_matrix),
+                fmt_matrix(&th.k_matrix, compact),
                 if th.modes == 0 {
                     "none".into()
                 } else {
@@ -571,9 +599,5 @@ impl Report for EdgesReport {
             ]);
         }
         t
-    }
-
-    fn notes(&self) -> Vec<String> {
-        self.notes.clone()
     }
 }
