@@ -270,6 +270,8 @@ mod edges {
             &[demo().to_str().unwrap(), "--pin", "tunnel", "--window", "2"],
         );
         assert!(e.contains("--window") && e.contains("periodic"), "{e}");
+        let e = bad(&dir, &[m, "--pin", "tunnel", "--y-strong", "-1"]);
+        assert!(e.contains("--y-strong"), "{e}");
         let e = bad(&dir, &[m, "--set", "nope=1"]);
         assert!(e.contains("--set") && e.contains("nope"), "{e}");
         let e = bad(&dir, &["missing.toml", "--pin", "tunnel"]);

@@ -379,8 +379,9 @@ fn periodic_closure(
 /// `pinflow edges`.
 pub fn run(args: EdgesArgs) -> Result<(), Error> {
     let (sys, point) = crate::cli::load_point(&args.point)?;
+    // Flow options are checked even when --pin makes the flow unnecessary.
+    let opts = FlowOptions::resolve(&sys.model, &args.flow)?;
     let selection: Selection = if args.pin.is_empty() {
-        let opts = FlowOptions::resolve(&sys.model, &args.flow)?;
         pins::from_flow(&sys, &point, opts)?
     } else {
         pins::from_names(&sys, &args.pin)?

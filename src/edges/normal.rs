@@ -365,7 +365,7 @@ mod tests {
     #[test]
     fn smith_against_determinantal_divisors() {
         // d_1 d_2 ... d_k = gcd of the k x k minors (the determinantal
-        // divisors; standard, e.g. Newman, "Integral Matrices" (1972), ch. II).
+        // divisors; Newman, "Integral Matrices" (1972), ch. II, from memory).
         let mut rng = ChaCha8Rng::seed_from_u64(8);
         for a in shapes(&mut rng, 120) {
             let s = smith(&a);

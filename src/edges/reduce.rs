@@ -605,7 +605,8 @@ mod tests {
     #[test]
     fn lll_conditions_hold() {
         // The two defining conditions of an LLL-reduced basis (Lenstra,
-        // Lenstra & Lovasz 1982), recomputed here by plain Gram-Schmidt:
+        // Lenstra & Lovasz 1982, from memory), recomputed here by plain
+        // Gram-Schmidt:
         // |mu_ij| <= 1/2 and B_k >= (delta - mu_{k,k-1}^2) B_{k-1}.
         let mut rng = ChaCha8Rng::seed_from_u64(3);
         for _ in 0..30 {
