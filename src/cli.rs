@@ -42,6 +42,9 @@ pub enum Command {
     /// List every local operator with scaling dimension up to a bound (an
     /// exhaustive lattice search), or certify that there is none.
     Hunt(HuntArgs),
+    /// What a pinned set of terms leaves: gapped pairs, whether the bulk is
+    /// fully gapped, and the K matrix, charges and filling at each end.
+    Edges(EdgesArgs),
 }
 
 /// Options shared by commands that evaluate a model at one point.
@@ -173,6 +176,30 @@ pub struct HuntArgs {
     pub output: Option<PathBuf>,
 }
 
+/// `pinflow edges`.
+#[derive(Debug, Args)]
+pub struct EdgesArgs {
+    #[command(flatten)]
+    pub point: PointArgs,
+    /// Pin every translate of this term (repeatable) [default: flow at the
+    /// point and pin the winner plus the listed terms that commute with it
+    /// and with each other].
+    #[arg(long = "pin", value_name = "NAME")]
+    pub pin: Vec<String>,
+    /// Wires in the window at each end of an open array [default: the
+    /// smallest window holding a translate of every pinned term].
+    #[arg(long, value_name = "W")]
+    pub window: Option<usize>,
+    #[command(flatten)]
+    pub flow: FlowOverrides,
+    /// Output format.
+    #[arg(long, value_enum, default_value_t = Format::Text)]
+    pub format: Format,
+    /// Write to this file instead of standard output (`-` is standard output).
+    #[arg(long, short = 'o', value_name = "FILE")]
+    pub output: Option<PathBuf>,
+}
+
 /// Parse `name=value`.
 pub fn parse_assignment(s: &str) -> Result<(String, f64), String> {
     let (name, value) = s
@@ -200,6 +227,7 @@ pub fn run(cli: Cli) -> Result<(), Error> {
         Command::Scan(args) => crate::scan::run::scan(args),
         Command::Merge(args) => crate::scan::run::merge(args),
         Command::Hunt(args) => crate::search::run(args),
+        Command::Edges(args) => crate::edges::run(args),
     }
 }
 

@@ -20,6 +20,7 @@
 
 pub mod cli;
 pub mod dims;
+pub mod edges;
 pub mod error;
 pub mod exact;
 pub mod fixed_point;

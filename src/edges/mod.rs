@@ -1,0 +1,395 @@
+//! `pinflow edges`: what is left once a set of terms is pinned — the
+//! number of gapped right-left pairs, whether the bulk is fully gapped, and
+//! the gapless theory near each end of an open array (physics reference
+//! section 6).
+//!
+//! Method, all in exact integer arithmetic (big integers):
+//! - the pinned set P: local, null, mutually commuting terms (all their
+//!   translates), as particle vectors n_p; r = rank P gapped pairs;
+//! - a region (all fields, or the wires of a window at one end): the
+//!   integer kernel M of the pinned vectors under <n, n'> = n^T K n', the
+//!   saturation S of the pinned vectors inside the region, and the
+//!   residual lattice M / S, whose Gram matrix is the region's K matrix and
+//!   whose charges t.n form its charge vector ([`theory`]);
+//! - normal forms ([`normal`]: Smith with transforms) and readable bases
+//!   ([`reduce`]: LLL on definite forms, a greedy descent with unit
+//!   splitting on indefinite ones). Reported invariants (det, signature,
+//!   filling, quasiparticle charges and spins modulo their ambiguity) do
+//!   not depend on the basis.
+//!
+//! Windows: at each end of an open array, the operators supported on its
+//! first (last) w wires that commute with every pinned translate, modulo
+//! the pinned translates lying inside the window. The default w is the
+//! smallest window that holds a translate of every pinned term at both
+//! ends. Without a window the whole strip's two edges form one non-chiral
+//! theory (det = +-1 when K is unimodular). "Fully gapped" for an open
+//! array is decided on the periodic array of the same cell and terms.
+
+pub mod normal;
+pub mod pins;
+pub mod reduce;
+pub mod report;
+pub mod theory;
+pub mod zmat;
+
+use num_bigint::BigInt;
+use num_traits::Zero;
+
+use crate::cli::EdgesArgs;
+use crate::error::{Error, InputError};
+use crate::flow::FlowOptions;
+use crate::invariants::particles_of;
+use crate::lattice::Lattice;
+use crate::model::{Boundary, Structure, Wires};
+use crate::output;
+use crate::system::System;
+use pins::{Pinned, Selection};
+use theory::Residual;
+use zmat::{big, dot, ZMat};
+
+/// Which part of the system a theory describes.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum End {
+    /// The first wires of an open array.
+    Left,
+    /// The last wires of an open array.
+    Right,
+    /// A whole open array (both edges together).
+    Strip,
+    /// A periodic array (what the bulk leaves gapless).
+    Bulk,
+    /// An explicit model (all fields).
+    System,
+}
+
+impl End {
+    /// The word used in every output.
+    pub fn word(self) -> &'static str {
+        match self {
+            End::Left => "left",
+            End::Right => "right",
+            End::Strip => "strip",
+            End::Bulk => "bulk",
+            End::System => "system",
+        }
+    }
+}
+
+/// The theory of one region.
+#[derive(Debug, Clone)]
+pub struct Theory {
+    /// Which region.
+    pub end: End,
+    /// First and last wire of the region (arrays).
+    pub wires: Option<(usize, usize)>,
+    /// Its residual lattice.
+    pub residual: Residual,
+    /// Its exact invariants.
+    pub invariants: theory::Invariants,
+}
+
+/// The window used at the ends of an open array.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Window {
+    /// Wires at each end.
+    pub wires: usize,
+    /// Chosen by default (not `--window`).
+    pub default: bool,
+}
+
+/// Everything `edges` computes.
+#[derive(Debug, Clone)]
+pub struct Analysis {
+    /// Number of fields.
+    pub fields: usize,
+    /// r = rank of the pinned vectors.
+    pub gapped_pairs: usize,
+    /// N - 2r.
+    pub gapless_modes: usize,
+    /// The bulk is fully gapped (None: could not be decided).
+    pub fully_gapped: Option<bool>,
+    /// How `fully_gapped` was decided.
+    pub gapped_basis: String,
+    /// The theory of all fields.
+    pub whole: Theory,
+    /// The window, when the ends were separated.
+    pub window: Option<Window>,
+    /// The two ends of an open array.
+    pub edges: Vec<Theory>,
+    /// Remarks (unclean cuts, windows that change the answer, ...).
+    pub notes: Vec<String>,
+}
+
+fn window_error(msg: String) -> Error {
+    Error::Input(InputError::new("command line", "--window", msg))
+}
+
+/// Analyse a pinned set; `window` is the `--window` value, if given.
+pub fn analyse(sys: &System, pinned: &[Pinned], window: Option<usize>) -> Result<Analysis, Error> {
+    let lat = &sys.lattice;
+    let k = ZMat::from_i64(&lat.k, lat.n);
+    let t = big(&lat.charge);
+    let open = lat.boundary == Some(Boundary::Open);
+    let mut notes = Vec::new();
+    if let (Some(_), false) = (window, open) {
+        let what = match lat.boundary {
+            Some(Boundary::Periodic) => "a periodic array",
+            _ => "an explicit model (no wires)",
+        };
+        return Err(window_error(format!(
+            "only an open array has ends to look at; this model is {what}"
+        )));
+    }
+    // The whole system.
+    let all: Vec<usize> = (0..lat.n).collect();
+    let ls: Vec<Vec<BigInt>> = pinned
+        .iter()
+        .flat_map(|p| p.translates.iter().map(|t| t.l.clone()))
+        .collect();
+    let ns: Vec<Vec<BigInt>> = pinned
+        .iter()
+        .flat_map(|p| p.translates.iter().map(|t| t.n.clone()))
+        .collect();
+    let whole_res = theory::residual(&k, &t, &all, &ls, &ns).map_err(Error::Numerical)?;
+    let r = whole_res.pinned_rank;
+    if whole_res.k.rows + 2 * r != lat.n || whole_res.extra_radical != 0 {
+        return Err(Error::Numerical(format!(
+            "internal inconsistency: {} fields, rank {r}, but {} residual modes",
+            lat.n, whole_res.k.rows
+        )));
+    }
+    let whole_end = match lat.boundary {
+        Some(Boundary::Open) => End::Strip,
+        Some(Boundary::Periodic) => End::Bulk,
+        None => End::System,
+    };
+    let whole = make_theory(whole_end, open.then_some((0, lat.wires - 1)), whole_res);
+    let (fully_gapped, gapped_basis) = match lat.boundary {
+        Some(Boundary::Open) => match periodic_closure(sys, pinned) {
+            Ok((gapped, w, rank, n)) => (
+                Some(gapped),
+                format!(
+                    "the same terms gap {rank} of {} pairs on a periodic array of {w} wires",
+                    n / 2
+                ),
+            ),
+            Err(why) => (None, why),
+        },
+        Some(Boundary::Periodic) => (
+            Some(2 * r == lat.n),
+            format!("{r} of {} pairs gapped", lat.n / 2),
+        ),
+        None => (
+            Some(2 * r == lat.n),
+            format!("{r} of {} pairs gapped (all fields)", lat.n / 2),
+        ),
+    };
+    let mut edges = Vec::new();
+    let mut used_window = None;
+    if open {
+        let need = default_window(lat, pinned);
+        let w = match window {
+            Some(0) => return Err(window_error("a window must hold at least 1 wire".into())),
+            Some(w) if w >= lat.wires => {
+                return Err(window_error(format!(
+                    "a window of {w} wires covers the whole array of {} wires; it must be smaller (without --window the default of {need} wires is used, and the whole strip is always reported)",
+                    lat.wires
+                )))
+            }
+            Some(w) => Some(w),
+            None if need < lat.wires => Some(need),
+            None => {
+                notes.push(format!(
+                    "the array of {} wires is too short to separate its ends: a window must hold {need} wires; only the whole strip is reported",
+                    lat.wires
+                ));
+                None
+            }
+        };
+        if let Some(w) = w {
+            edges = ends(sys, &k, &t, pinned, w, need)?;
+            used_window = Some(Window {
+                wires: w,
+                default: window.is_none(),
+            });
+            for e in &edges {
+                if e.residual.extra_radical > 0 {
+                    notes.push(format!(
+                        "at the {} end, {} extra null direction(s) at the window's inner cut commute with everything and were divided out; try a larger --window",
+                        e.end.word(),
+                        e.residual.extra_radical
+                    ));
+                }
+            }
+            if fully_gapped == Some(true) && w + 1 < lat.wires {
+                let wider = ends(sys, &k, &t, pinned, w + 1, need)?;
+                for (a, b) in edges.iter().zip(&wider) {
+                    if summary(a) != summary(b) {
+                        notes.push(format!(
+                            "the theory at the {} end changes between windows of {w} and {} wires; the window may be too small",
+                            a.end.word(),
+                            w + 1
+                        ));
+                    }
+                }
+            }
+            if fully_gapped == Some(false) {
+                notes.push(
+                    "the bulk is not fully gapped: each window also holds the gapless bulk modes on its wires".into(),
+                );
+            }
+        }
+    }
+    Ok(Analysis {
+        fields: lat.n,
+        gapped_pairs: r,
+        gapless_modes: lat.n - 2 * r,
+        fully_gapped,
+        gapped_basis,
+        whole,
+        window: used_window,
+        edges,
+        notes,
+    })
+}
+
+fn make_theory(end: End, wires: Option<(usize, usize)>, residual: Residual) -> Theory {
+    let invariants = theory::invariants(&residual.k, &residual.charge);
+    Theory {
+        end,
+        wires,
+        residual,
+        invariants,
+    }
+}
+
+/// The basis-independent data compared between windows.
+fn summary(t: &Theory) -> (usize, BigInt, (usize, usize), crate::exact::Rational) {
+    let i = &t.invariants;
+    (
+        t.residual.k.rows,
+        i.det.clone(),
+        i.signature,
+        i.filling.clone(),
+    )
+}
+
+/// Smallest window holding a translate of every pinned term at both ends.
+fn default_window(lat: &Lattice, pinned: &[Pinned]) -> usize {
+    pinned
+        .iter()
+        .map(|p| {
+            let left = p
+                .translates
+                .iter()
+                .map(|t| t.wires.1 + 1)
+                .min()
+                .unwrap_or(0);
+            let right = p
+                .translates
+                .iter()
+                .map(|t| lat.wires - t.wires.0)
+                .min()
+                .unwrap_or(0);
+            left.max(right)
+        })
+        .max()
+        .unwrap_or(1)
+        .max(1)
+}
+
+/// The theories of windows of w wires at both ends.
+fn ends(
+    sys: &System,
+    k: &ZMat,
+    t: &[BigInt],
+    pinned: &[Pinned],
+    w: usize,
+    need: usize,
+) -> Result<Vec<Theory>, Error> {
+    let lat = &sys.lattice;
+    let mut out = Vec::new();
+    for (end, lo, hi) in [
+        (End::Left, 0, w - 1),
+        (End::Right, lat.wires - w, lat.wires - 1),
+    ] {
+        let touching = pinned
+            .iter()
+            .flat_map(|p| &p.translates)
+            .filter(|tr| tr.wires.0 <= hi && tr.wires.1 >= lo);
+        let inside: Vec<Vec<BigInt>> = touching
+            .clone()
+            .filter(|tr| tr.wires.0 >= lo && tr.wires.1 <= hi)
+            .map(|tr| tr.n.clone())
+            .collect();
+        if inside.is_empty() {
+            return Err(window_error(format!(
+                "no pinned term lies within {w} wire(s) of the {} end; the pinned terms need {need} wires there (use --window {need} or more)",
+                end.word()
+            )));
+        }
+        let ls: Vec<Vec<BigInt>> = touching.map(|tr| tr.l.clone()).collect();
+        let region: Vec<usize> = (lo * lat.cell..(hi + 1) * lat.cell).collect();
+        let res = theory::residual(k, t, &region, &ls, &inside).map_err(Error::Numerical)?;
+        out.push(make_theory(end, Some((lo, hi)), res));
+    }
+    Ok(out)
+}
+
+/// Is the bulk fully gapped? The same cell and pinned terms on a periodic
+/// array (of the same wires, or of 2 span - 1 if that is more, so that no
+/// term overlaps itself around the ring). Returns (gapped, wires, rank,
+/// fields).
+fn periodic_closure(
+    sys: &System,
+    pinned: &[Pinned],
+) -> Result<(bool, usize, usize, usize), String> {
+    let span = pinned.iter().map(|p| p.span()).max().unwrap_or(1);
+    let w = sys.lattice.wires.max(2 * span - 1).max(1);
+    let mut model = sys.model.clone();
+    model.structure = Structure::Array {
+        wires: Wires::Finite(w),
+        boundary: Boundary::Periodic,
+    };
+    let lat =
+        Lattice::build(&model).map_err(|e| format!("cannot build the periodic array: {e}"))?;
+    let inv = &sys.invariants.cell_inverse;
+    let mut ls = Vec::new();
+    let mut ns = Vec::new();
+    for p in pinned {
+        for tr in lat.family(&p.cell_l).translates {
+            let m = particles_of(&lat, inv, &tr);
+            ns.push(m.iter().map(|r| r.to_integer()).collect::<Vec<BigInt>>());
+            ls.push(big(&tr.l));
+        }
+    }
+    for n in &ns {
+        for l in &ls {
+            if !dot(n, l).is_zero() {
+                return Err(format!(
+                    "undecided: the pinned terms do not commute on a periodic array of {w} wires"
+                ));
+            }
+        }
+    }
+    let rank = normal::rank(&ZMat::from_rows(&ns, lat.n));
+    Ok((2 * rank == lat.n, w, rank, lat.n))
+}
+
+/// `pinflow edges`.
+pub fn run(args: EdgesArgs) -> Result<(), Error> {
+    let (sys, point) = crate::cli::load_point(&args.point)?;
+    // Flow options are checked even when --pin makes the flow unnecessary.
+    let opts = FlowOptions::resolve(&sys.model, &args.flow)?;
+    let selection: Selection = if args.pin.is_empty() {
+        pins::from_flow(&sys, &point, opts)?
+    } else {
+        pins::from_names(&sys, &args.pin)?
+    };
+    let analysis = analyse(&sys, &selection.pinned, args.window)?;
+    let report = report::EdgesReport::new(&sys, &point, &selection, &analysis);
+    crate::cli::emit(
+        args.output.as_deref(),
+        &output::render(&report, args.format)?,
+    )
+}

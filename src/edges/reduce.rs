@@ -1,0 +1,704 @@
+//! Readable bases: reduction of an integer symmetric form to a small
+//! GL(n, Z)-equivalent one, and of vectors modulo a lattice.
+//!
+//! - Definite forms: LLL reduction [Lenstra, Lenstra & Lovász, Math. Ann.
+//!   261, 515 (1982)] with delta = 99/100, exact rational Gram-Schmidt data
+//!   computed from the Gram matrix, followed by pairwise reduction
+//!   (b_i -= round(G_ij / G_jj) b_j while it shortens b_i).
+//! - Indefinite forms: LLL does not apply. A greedy descent over the moves
+//!   b_i -> b_i + k b_j lowers the sum of |entries| (ties: the sum of
+//!   |diagonal entries|); a basis vector of norm +-1 is split off
+//!   (b_j -= G_ij G_ii b_i makes it orthogonal to the rest), which for odd
+//!   unimodular forms typically ends at diag(+-1). What is left, if
+//!   definite, is LLL-reduced.
+//!
+//! Every step is a unimodular change of basis, so det, signature, filling
+//! and the quasiparticle data do not depend on it; only readability does.
+
+use num_bigint::BigInt;
+use num_integer::Integer;
+use num_traits::{One, Signed, ToPrimitive, Zero};
+
+use super::zmat::{self, ZMat};
+use crate::exact::Rational;
+
+/// Cap on greedy moves (each strictly lowers a non-negative integer cost,
+/// so the descent ends anyway; the cap bounds the time on huge entries).
+const MAX_MOVES: usize = 100_000;
+
+/// A unimodular U (columns: the new basis in old coordinates) such that
+/// U^T G U is the readable form of the symmetric non-degenerate G.
+pub fn reduce_form(g: &ZMat) -> ZMat {
+    let n = g.rows;
+    let mut gm = g.clone();
+    let mut u = ZMat::identity(n);
+    let mut frozen = vec![false; n];
+    // Each round freezes a unit vector or ends; a search for a hidden unit
+    // vector unfreezes the others, at most n times.
+    for _ in 0..(n + 1) * (n + 2) {
+        let rest: Vec<usize> = (0..n).filter(|&i| !frozen[i]).collect();
+        if rest.is_empty() {
+            break;
+        }
+        let sub = block(&gm, &rest);
+        let (p, q, _) = zmat::inertia(&sub);
+        if p == rest.len() || q == rest.len() {
+            let v = lll_signed(&sub, if p > 0 { 1 } else { -1 });
+            embed(&mut gm, &mut u, &rest, &v);
+            pairwise(&mut gm, &mut u, &frozen);
+        } else {
+            descend(&mut gm, &mut u, &frozen);
+        }
+        if let Some(i) = rest.iter().copied().find(|&i| gm.at(i, i).abs().is_one()) {
+            split(&mut gm, &mut u, i, &frozen);
+            frozen[i] = true;
+            continue;
+        }
+        // Stuck: a unit vector may still hide in a combination, e.g.
+        // e + f + g in U ⊕ <-1> (U the hyperbolic plane).
+        let Some((i, c)) = find_unit(&gm, &frozen) else {
+            break;
+        };
+        if c[i] < 0 {
+            gm.negate_row(i);
+            gm.negate_col(i);
+            u.negate_col(i);
+        }
+        for (j, &cj) in c.iter().enumerate() {
+            if j != i && cj != 0 {
+                apply(&mut gm, &mut u, i, j, &BigInt::from(cj));
+            }
+        }
+        frozen = vec![false; n];
+        split(&mut gm, &mut u, i, &frozen);
+        frozen[i] = true;
+    }
+    sort_basis(&gm, &mut u);
+    u
+}
+
+/// Make every non-frozen b_j orthogonal to the unit vector b_i:
+/// b_j -= (G_ij / G_ii) b_i, and 1 / G_ii = G_ii for G_ii = +-1.
+fn split(g: &mut ZMat, u: &mut ZMat, i: usize, frozen: &[bool]) {
+    let gii = g.at(i, i).clone();
+    for (j, &fixed) in frozen.iter().enumerate() {
+        if j != i && !fixed {
+            let c = -(g.at(i, j) * &gii);
+            apply(g, u, j, i, &c);
+        }
+    }
+}
+
+/// Largest dimension searched for hidden unit vectors (3^n combinations).
+const UNIT_SEARCH_MAX: usize = 8;
+
+/// A combination v = sum c_j b_j, c_j in {-1, 0, 1}, with v.v = +-1 and
+/// c_i = +-1 for a non-frozen i (so b_i -> v is unimodular); fewest terms.
+fn find_unit(g: &ZMat, frozen: &[bool]) -> Option<(usize, Vec<i64>)> {
+    let n = g.rows;
+    if n > UNIT_SEARCH_MAX || frozen.iter().all(|f| *f) {
+        return None;
+    }
+    let small: Vec<Vec<i64>> = g
+        .to_rows()
+        .iter()
+        .map(|r| r.iter().map(|x| x.to_i64()).collect::<Option<Vec<i64>>>())
+        .collect::<Option<_>>()?;
+    if small.iter().flatten().any(|x| x.abs() > 1 << 20) {
+        return None;
+    }
+    let mut best: Option<(usize, usize, Vec<i64>)> = None;
+    let mut c = vec![-1i64; n];
+    loop {
+        let terms = c.iter().filter(|x| **x != 0).count();
+        if terms > 1 && best.as_ref().is_none_or(|b| terms < b.0) {
+            let norm: i64 = (0..n)
+                .map(|a| (0..n).map(|b| c[a] * small[a][b] * c[b]).sum::<i64>())
+                .sum();
+            if norm.abs() == 1 {
+                if let Some(i) = (0..n).find(|&i| !frozen[i] && c[i] != 0) {
+                    best = Some((terms, i, c.clone()));
+                }
+            }
+        }
+        let mut k = 0;
+        while k < n && c[k] == 1 {
+            c[k] = -1;
+            k += 1;
+        }
+        if k == n {
+            break;
+        }
+        c[k] += 1;
+    }
+    best.map(|(_, i, c)| (i, c))
+}
+
+/// The sub-Gram matrix of some basis vectors.
+fn block(g: &ZMat, idx: &[usize]) -> ZMat {
+    ZMat::from_rows(
+        &idx.iter()
+            .map(|&i| idx.iter().map(|&j| g.at(i, j).clone()).collect())
+            .collect::<Vec<_>>(),
+        idx.len(),
+    )
+}
+
+/// Apply a change of basis V of the vectors `idx` (new b_idx[c] =
+/// sum_r V_rc b_idx[r]) to G and U.
+fn embed(g: &mut ZMat, u: &mut ZMat, idx: &[usize], v: &ZMat) {
+    let n = g.rows;
+    let mut w = ZMat::identity(n);
+    for (r, &ir) in idx.iter().enumerate() {
+        for (c, &ic) in idx.iter().enumerate() {
+            *w.at_mut(ir, ic) = v.at(r, c).clone();
+        }
+    }
+    *u = u.mul(&w);
+    *g = w.gram(g);
+}
+
+/// b_i += k b_j in the Gram matrix G and the transform U.
+fn apply(g: &mut ZMat, u: &mut ZMat, i: usize, j: usize, k: &BigInt) {
+    if k.is_zero() {
+        return;
+    }
+    g.add_col_multiple(i, j, k);
+    g.add_row_multiple(i, j, k);
+    u.add_col_multiple(i, j, k);
+}
+
+/// Sum of |entries| and sum of |diagonal entries| of G after b_i += k b_j.
+fn cost_after(
+    g: &ZMat,
+    i: usize,
+    j: usize,
+    k: &BigInt,
+    base: &(BigInt, BigInt),
+) -> (BigInt, BigInt) {
+    let n = g.rows;
+    let (mut total, mut diag) = base.clone();
+    for l in 0..n {
+        if l == i {
+            continue;
+        }
+        let new = g.at(i, l) + k * g.at(j, l);
+        total += (new.abs() - g.at(i, l).abs()) * 2;
+    }
+    let two = BigInt::from(2);
+    let new_ii = g.at(i, i) + &two * k * g.at(i, j) + k * k * g.at(j, j);
+    let d = new_ii.abs() - g.at(i, i).abs();
+    total += &d;
+    diag += d;
+    (total, diag)
+}
+
+fn cost(g: &ZMat) -> (BigInt, BigInt) {
+    let n = g.rows;
+    let mut total = BigInt::zero();
+    let mut diag = BigInt::zero();
+    for i in 0..n {
+        for j in 0..n {
+            total += g.at(i, j).abs();
+        }
+        diag += g.at(i, i).abs();
+    }
+    (total, diag)
+}
+
+/// Integer candidates k for b_i + k b_j: small shifts, the vertex and the
+/// real roots of the norm (a quadratic in k), and the zeros of every entry
+/// of row i, each rounded both ways. All exact.
+fn candidates(g: &ZMat, i: usize, j: usize) -> Vec<BigInt> {
+    let (a, b, c) = (g.at(j, j), g.at(i, j), g.at(i, i));
+    let mut ks: Vec<BigInt> = [1i64, -1, 2, -2].iter().map(|x| BigInt::from(*x)).collect();
+    let push_ratio = |num: BigInt, den: &BigInt, ks: &mut Vec<BigInt>| {
+        if den.is_zero() {
+            return;
+        }
+        let f = num.div_floor(den);
+        for k in [f.clone() - 1, f.clone(), f + 1] {
+            if !k.is_zero() && !ks.contains(&k) {
+                ks.push(k);
+            }
+        }
+    };
+    if !a.is_zero() {
+        push_ratio(-b, a, &mut ks);
+        let disc = b * b - a * c;
+        if !disc.is_negative() {
+            let s = disc.sqrt();
+            push_ratio(-b + &s, a, &mut ks);
+            push_ratio(-b - &s, a, &mut ks);
+        }
+    } else if !b.is_zero() {
+        push_ratio(-c, &(b * 2), &mut ks);
+    }
+    for l in 0..g.rows {
+        if l != i {
+            push_ratio(-g.at(i, l), g.at(j, l), &mut ks);
+        }
+    }
+    ks
+}
+
+/// Greedy descent on the non-frozen basis vectors.
+fn descend(g: &mut ZMat, u: &mut ZMat, frozen: &[bool]) {
+    let n = g.rows;
+    for _ in 0..MAX_MOVES {
+        let base = cost(g);
+        let mut best: Option<((BigInt, BigInt), usize, usize, BigInt)> = None;
+        for i in (0..n).filter(|&i| !frozen[i]) {
+            for j in (0..n).filter(|&j| j != i && !frozen[j]) {
+                for k in candidates(g, i, j) {
+                    let c = cost_after(g, i, j, &k, &base);
+                    if c < base && best.as_ref().is_none_or(|b| c < b.0) {
+                        best = Some((c, i, j, k));
+                    }
+                }
+            }
+        }
+        match best {
+            Some((_, i, j, k)) => apply(g, u, i, j, &k),
+            None => return,
+        }
+    }
+}
+
+/// Pairwise reduction of a definite block: b_i -= q b_j with
+/// q = round(G_ij / G_jj) while it lowers |G_ii|.
+fn pairwise(g: &mut ZMat, u: &mut ZMat, frozen: &[bool]) {
+    let n = g.rows;
+    for _ in 0..MAX_MOVES {
+        let mut moved = false;
+        for i in (0..n).filter(|&i| !frozen[i]) {
+            for j in (0..n).filter(|&j| !frozen[j]) {
+                if i == j || g.at(j, j).is_zero() {
+                    continue;
+                }
+                let q = round_rational(&Rational::new(g.at(i, j).clone(), g.at(j, j).clone()));
+                if q.is_zero() {
+                    continue;
+                }
+                let two = BigInt::from(2);
+                let k = -q;
+                let new_ii = g.at(i, i) + &two * &k * g.at(i, j) + &k * &k * g.at(j, j);
+                if new_ii.abs() < g.at(i, i).abs() {
+                    apply(g, u, i, j, &k);
+                    moved = true;
+                }
+            }
+        }
+        if !moved {
+            break;
+        }
+    }
+}
+
+/// Order the basis: positive norms first, then by |norm| (stable).
+fn sort_basis(g: &ZMat, u: &mut ZMat) {
+    let n = g.rows;
+    let mut order: Vec<usize> = (0..n).collect();
+    order.sort_by_key(|&i| (g.at(i, i).is_negative(), g.at(i, i).abs()));
+    let cols: Vec<Vec<BigInt>> = order.iter().map(|&i| u.col(i)).collect();
+    *u = ZMat::from_cols(u.rows, &cols);
+}
+
+/// Nearest integer (halves rounded up).
+pub fn round_rational(x: &Rational) -> BigInt {
+    let half = Rational::new(BigInt::one(), BigInt::from(2));
+    (x + half).floor().to_integer()
+}
+
+/// LLL on sign * G (definite).
+fn lll_signed(g: &ZMat, sign: i32) -> ZMat {
+    if sign > 0 {
+        lll(g)
+    } else {
+        let neg = ZMat::from_rows(
+            &g.to_rows()
+                .into_iter()
+                .map(|r| r.into_iter().map(|x| -x).collect())
+                .collect::<Vec<_>>(),
+            g.cols,
+        );
+        lll(&neg)
+    }
+}
+
+/// LLL reduction (delta = 99/100) of a positive definite Gram matrix:
+/// returns unimodular U with U^T G U reduced.
+pub fn lll(g: &ZMat) -> ZMat {
+    let n = g.rows;
+    let mut u = ZMat::identity(n);
+    if n < 2 {
+        return u;
+    }
+    let delta = Rational::new(BigInt::from(99), BigInt::from(100));
+    let mut gm = g.clone();
+    let mut mu = vec![vec![Rational::zero(); n]; n];
+    let mut bb = vec![Rational::zero(); n];
+    bb[0] = Rational::from_integer(gm.at(0, 0).clone());
+    let mut k = 1;
+    let mut guard = 0usize;
+    while k < n {
+        guard += 1;
+        if guard > 10 * MAX_MOVES {
+            break;
+        }
+        if k == 1 {
+            bb[0] = Rational::from_integer(gm.at(0, 0).clone());
+        }
+        gram_schmidt_row(&gm, &mut mu, &mut bb, k);
+        // Size reduction of b_k.
+        for j in (0..k).rev() {
+            let q = round_rational(&mu[k][j]);
+            if q.is_zero() {
+                continue;
+            }
+            let neg = -&q;
+            apply(&mut gm, &mut u, k, j, &neg);
+            let qr = Rational::from_integer(q);
+            let (lower, upper) = mu.split_at_mut(k);
+            for (x, y) in upper[0].iter_mut().zip(&lower[j]).take(j) {
+                *x -= &qr * y;
+            }
+            upper[0][j] -= &qr;
+        }
+        // Size reduction leaves b*_k, hence B_k, unchanged.
+        let lhs = bb[k].clone();
+        let rhs = (&delta - &mu[k][k - 1] * &mu[k][k - 1]) * &bb[k - 1];
+        if lhs >= rhs {
+            k += 1;
+        } else {
+            gm.swap_rows(k, k - 1);
+            gm.swap_cols(k, k - 1);
+            u.swap_cols(k, k - 1);
+            k = (k - 1).max(1);
+        }
+    }
+    u
+}
+
+/// Gram-Schmidt coefficients of row k from the Gram matrix (rows < k known).
+fn gram_schmidt_row(g: &ZMat, mu: &mut [Vec<Rational>], bb: &mut [Rational], k: usize) {
+    for j in 0..k {
+        let mut x = Rational::from_integer(g.at(k, j).clone());
+        for l in 0..j {
+            x -= &mu[j][l] * &mu[k][l] * &bb[l];
+        }
+        mu[k][j] = x / &bb[j];
+    }
+    bb[k] = Rational::from_integer(g.at(k, k).clone())
+        - (0..k).fold(Rational::zero(), |acc, l| {
+            acc + &mu[k][l] * &mu[k][l] * &bb[l]
+        });
+}
+
+/// Short representatives modulo the lattice spanned by some integer
+/// vectors (Euclidean norm): an independent subset of them is LLL-reduced,
+/// v is reduced by nearest planes [Babai, Combinatorica 6, 1 (1986)], then
+/// by single steps v -> v +- s while the sum of |entries| drops.
+pub struct ModuloLattice {
+    dim: usize,
+    basis: Vec<Vec<BigInt>>,
+    star: Vec<Vec<Rational>>,
+    star_norm: Vec<Rational>,
+}
+
+impl ModuloLattice {
+    /// Prepare the lattice spanned by the columns of S (they may be
+    /// linearly dependent; a maximal independent subset is used, which
+    /// spans a sublattice of finite index: representatives stay in the
+    /// same class modulo the full lattice).
+    pub fn new(s: &ZMat) -> ModuloLattice {
+        let cols = independent(&s.columns());
+        let dim = s.rows;
+        if cols.is_empty() {
+            return ModuloLattice {
+                dim,
+                basis: Vec::new(),
+                star: Vec::new(),
+                star_norm: Vec::new(),
+            };
+        }
+        let sub = ZMat::from_cols(dim, &cols);
+        let u = lll(&sub.gram(&ZMat::identity(dim)));
+        let basis = sub.mul(&u).columns();
+        let mut star: Vec<Vec<Rational>> = Vec::with_capacity(basis.len());
+        let mut star_norm: Vec<Rational> = Vec::with_capacity(basis.len());
+        for b in &basis {
+            let mut v = rational(b);
+            for (w, nw) in star.iter().zip(&star_norm) {
+                let c = rdot(&v, w) / nw;
+                for (x, y) in v.iter_mut().zip(w) {
+                    *x -= &c * y;
+                }
+            }
+            star_norm.push(rdot(&v, &v));
+            star.push(v);
+        }
+        ModuloLattice {
+            dim,
+            basis,
+            star,
+            star_norm,
+        }
+    }
+
+    /// A short representative of v + lattice.
+    pub fn reduce(&self, v: &[BigInt]) -> Vec<BigInt> {
+        let mut v = v.to_vec();
+        for j in (0..self.basis.len()).rev() {
+            let c = round_rational(&(rdot(&rational(&v), &self.star[j]) / &self.star_norm[j]));
+            if !c.is_zero() {
+                for (x, y) in v.iter_mut().zip(&self.basis[j]) {
+                    *x -= &c * y;
+                }
+            }
+        }
+        let l1 = |v: &[BigInt]| v.iter().fold(BigInt::zero(), |a, x| a + x.abs());
+        for _ in 0..MAX_MOVES {
+            let mut best = (l1(&v), None);
+            for b in &self.basis {
+                for s in [1i32, -1] {
+                    let w: Vec<BigInt> = v.iter().zip(b).map(|(x, y)| x + y * s).collect();
+                    let c = l1(&w);
+                    if c < best.0 {
+                        best = (c, Some(w));
+                    }
+                }
+            }
+            match best.1 {
+                Some(w) => v = w,
+                None => break,
+            }
+        }
+        v
+    }
+
+    /// A unimodular U making the columns of C short modulo the lattice:
+    /// LLL on the Gram matrix of their projections orthogonal to it
+    /// (scaled to integers). The columns of C must be independent modulo
+    /// the lattice.
+    pub fn shorten(&self, c: &ZMat) -> ZMat {
+        let d = c.cols;
+        if d < 2 {
+            return ZMat::identity(d);
+        }
+        let proj: Vec<Vec<Rational>> = c
+            .columns()
+            .iter()
+            .map(|v| {
+                let mut p = rational(v);
+                for (w, nw) in self.star.iter().zip(&self.star_norm) {
+                    let k = rdot(&p, w) / nw;
+                    for (x, y) in p.iter_mut().zip(w) {
+                        *x -= &k * y;
+                    }
+                }
+                p
+            })
+            .collect();
+        let gram: Vec<Vec<Rational>> = (0..d)
+            .map(|i| (0..d).map(|j| rdot(&proj[i], &proj[j])).collect())
+            .collect();
+        let den = gram
+            .iter()
+            .flatten()
+            .fold(BigInt::one(), |l, x| l.lcm(x.denom()));
+        let rows: Vec<Vec<BigInt>> = gram
+            .iter()
+            .map(|r| {
+                r.iter()
+                    .map(|x| (x * Rational::from_integer(den.clone())).to_integer())
+                    .collect()
+            })
+            .collect();
+        debug_assert_eq!(self.dim, c.rows);
+        lll(&ZMat::from_rows(&rows, d))
+    }
+}
+
+fn rational(v: &[BigInt]) -> Vec<Rational> {
+    v.iter()
+        .map(|x| Rational::from_integer(x.clone()))
+        .collect()
+}
+
+/// A maximal linearly independent subset of the vectors (in order), by
+/// exact elimination against an echelon basis of those kept.
+fn independent(vs: &[Vec<BigInt>]) -> Vec<Vec<BigInt>> {
+    let mut echelon: Vec<(usize, Vec<Rational>)> = Vec::new();
+    let mut kept = Vec::new();
+    for v in vs {
+        let mut r = rational(v);
+        for (p, e) in &echelon {
+            if !r[*p].is_zero() {
+                let f = &r[*p] / &e[*p];
+                for (x, y) in r.iter_mut().zip(e) {
+                    *x -= &f * y;
+                }
+            }
+        }
+        if let Some(p) = r.iter().position(|x| !x.is_zero()) {
+            echelon.push((p, r));
+            kept.push(v.clone());
+        }
+    }
+    kept
+}
+
+fn rdot(a: &[Rational], b: &[Rational]) -> Rational {
+    a.iter()
+        .zip(b)
+        .filter(|(x, y)| !x.is_zero() && !y.is_zero())
+        .fold(Rational::zero(), |acc, (x, y)| acc + x * y)
+}
+
+/// gcd of a vector's entries (0 for the zero vector).
+pub fn content(v: &[BigInt]) -> BigInt {
+    v.iter().fold(BigInt::zero(), |g, x| g.gcd(x))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use rand::{Rng, SeedableRng};
+    use rand_chacha::ChaCha8Rng;
+
+    /// A random unimodular matrix: a product of elementary moves.
+    fn random_unimodular(rng: &mut ChaCha8Rng, n: usize, moves: usize) -> ZMat {
+        let mut u = ZMat::identity(n);
+        if n < 2 {
+            return u;
+        }
+        for _ in 0..moves {
+            let i = rng.gen_range(0..n);
+            let j = (i + rng.gen_range(1..n)) % n;
+            let k = BigInt::from(rng.gen_range(-2i64..=2));
+            u.add_col_multiple(i, j, &k);
+            if rng.gen_bool(0.2) {
+                u.swap_cols(i, j);
+            }
+        }
+        u
+    }
+
+    fn diag(d: &[i64]) -> ZMat {
+        let n = d.len();
+        let rows: Vec<Vec<i64>> = (0..n)
+            .map(|i| (0..n).map(|j| if i == j { d[i] } else { 0 }).collect())
+            .collect();
+        ZMat::from_i64(&rows, n)
+    }
+
+    fn max_abs(g: &ZMat) -> BigInt {
+        g.to_rows()
+            .into_iter()
+            .flatten()
+            .map(|x| x.abs())
+            .max()
+            .unwrap_or_default()
+    }
+
+    #[test]
+    fn lll_conditions_hold() {
+        // The two defining conditions of an LLL-reduced basis (Lenstra,
+        // Lenstra & Lovasz 1982, from memory), recomputed here by plain
+        // Gram-Schmidt:
+        // |mu_ij| <= 1/2 and B_k >= (delta - mu_{k,k-1}^2) B_{k-1}.
+        let mut rng = ChaCha8Rng::seed_from_u64(3);
+        for _ in 0..30 {
+            let n = rng.gen_range(2..=5);
+            let b = random_unimodular(&mut rng, n, 12);
+            let scale: Vec<i64> = (0..n).map(|_| rng.gen_range(1..=4)).collect();
+            let g = b.gram(&diag(&scale));
+            let u = lll(&g);
+            assert!(zmat::det(&u).abs().is_one(), "unimodular");
+            let r = u.gram(&g);
+            let mut mu = vec![vec![Rational::zero(); n]; n];
+            let mut bb = vec![Rational::zero(); n];
+            for k in 0..n {
+                gram_schmidt_row(&r, &mut mu, &mut bb, k);
+            }
+            let half = Rational::new(BigInt::one(), BigInt::from(2));
+            let delta = Rational::new(BigInt::from(99), BigInt::from(100));
+            for k in 1..n {
+                for j in 0..k {
+                    assert!(mu[k][j].abs() <= half, "size reduced");
+                }
+                assert!(bb[k] >= (&delta - &mu[k][k - 1] * &mu[k][k - 1]) * &bb[k - 1]);
+            }
+            // The form is only rewritten: same determinant.
+            assert_eq!(zmat::det(&r), zmat::det(&g));
+        }
+    }
+
+    #[test]
+    fn definite_unimodular_forms_become_the_identity() {
+        // G = U^T U is Z^n with the standard form in a scrambled basis
+        // (derived: U unimodular); its readable form is the identity.
+        let mut rng = ChaCha8Rng::seed_from_u64(4);
+        for n in 1..=5 {
+            let u = random_unimodular(&mut rng, n, 20);
+            let g = u.gram(&ZMat::identity(n));
+            let w = reduce_form(&g);
+            assert_eq!(w.gram(&g), ZMat::identity(n), "n = {n}, start {g:?}");
+        }
+    }
+
+    #[test]
+    fn indefinite_odd_unimodular_forms_become_diagonal() {
+        // An odd indefinite unimodular lattice is diag(1,..,1,-1,..,-1)
+        // (Milnor & Husemoller, "Symmetric Bilinear Forms" (1973), ch. II,
+        // from memory); the greedy descent should find such a basis from a
+        // scrambled one. Positive norms are sorted first.
+        let mut rng = ChaCha8Rng::seed_from_u64(5);
+        for (p, q) in [(1, 1), (2, 1), (1, 2), (2, 2), (3, 1)] {
+            for _ in 0..5 {
+                let n = p + q;
+                let mut d = vec![1i64; p];
+                d.extend(vec![-1i64; q]);
+                let u = random_unimodular(&mut rng, n, 10);
+                let g = u.gram(&diag(&d));
+                let w = reduce_form(&g);
+                assert!(zmat::det(&w).abs().is_one());
+                let r = w.gram(&g);
+                assert_eq!(r, diag(&d), "({p},{q}) from {g:?}");
+            }
+        }
+    }
+
+    #[test]
+    fn even_hyperbolic_plane_stays_small() {
+        // U = [[0,1],[1,0]] is even: it has no vector of norm +-1, so the
+        // descent must end at entries of size <= 1 without splitting.
+        let mut rng = ChaCha8Rng::seed_from_u64(6);
+        let h = ZMat::from_i64(&[vec![0, 1], vec![1, 0]], 2);
+        for _ in 0..10 {
+            let u = random_unimodular(&mut rng, 2, 8);
+            let g = u.gram(&h);
+            let w = reduce_form(&g);
+            let r = w.gram(&g);
+            assert!(max_abs(&r) <= BigInt::one(), "{r:?}");
+            assert_eq!(zmat::det(&r), BigInt::from(-1));
+        }
+    }
+
+    #[test]
+    fn modulo_lattice_finds_short_representatives() {
+        // v = e_0 + 7 s_0 - 3 s_1 reduces to a vector of 1-norm <= that of e_0.
+        let s = ZMat::from_i64(&[vec![2, 1], vec![1, -1], vec![0, 3]], 2);
+        let m = ModuloLattice::new(&s);
+        let mut v = vec![BigInt::one(), BigInt::zero(), BigInt::zero()];
+        for (c, coef) in [(0usize, 7i64), (1, -3)] {
+            for (x, y) in v.iter_mut().zip(s.col(c)) {
+                *x += y * coef;
+            }
+        }
+        let r = m.reduce(&v);
+        let l1: BigInt = r.iter().map(|x| x.abs()).sum();
+        assert!(l1 <= BigInt::one(), "{r:?}");
+    }
+}

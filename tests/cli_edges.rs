@@ -1,0 +1,309 @@
+//! The `pinflow edges` command line on the bundled filling-1/3 demo, opened
+//! (`boundary = "open"`): every output format, the choice of the pinned set
+//! by `--pin` or by the flow, `-o FILE`, and the bad-input errors (exit code
+//! 2 and a message naming the flag). Runs the real binary in temporary
+//! directories.
+//!
+//! Check values: the Laughlin edges K = (-3) and (3), filling -+1/3 [Kane,
+//! Mukhopadhyay & Lubensky, PRL 88, 036401 (2002); Teo & Kane, PRB 89,
+//! 085101 (2014); from memory], with the signs and the generator (-1, 2) on
+//! wire 0 derived in the physics reference section 6 (see tests/edges.rs).
+
+/// Every test sits in this module so that the filter `edges` selects them all.
+mod edges {
+    use std::path::{Path, PathBuf};
+
+    use assert_cmd::Command;
+    use serde_json::Value;
+
+    fn demo() -> PathBuf {
+        Path::new(env!("CARGO_MANIFEST_DIR")).join("flows/laughlin_third.toml")
+    }
+
+    /// The demo with `boundary = "open"`, written into `dir`.
+    fn opened(dir: &tempfile::TempDir) -> PathBuf {
+        let text = std::fs::read_to_string(demo()).expect("demo model");
+        assert!(text.contains("boundary = \"periodic\""));
+        let path = dir.path().join("open.toml");
+        std::fs::write(
+            &path,
+            text.replace("boundary = \"periodic\"", "boundary = \"open\""),
+        )
+        .unwrap();
+        path
+    }
+
+    fn tmp() -> tempfile::TempDir {
+        tempfile::tempdir().expect("temporary directory")
+    }
+
+    fn pinflow(dir: &tempfile::TempDir) -> Command {
+        let mut cmd = Command::cargo_bin("pinflow").expect("the pinflow binary");
+        cmd.current_dir(dir.path());
+        cmd
+    }
+
+    fn ok(dir: &tempfile::TempDir, args: &[&str]) -> String {
+        let out = pinflow(dir)
+            .arg("edges")
+            .args(args)
+            .assert()
+            .code(0)
+            .get_output()
+            .stdout
+            .clone();
+        String::from_utf8(out).expect("UTF-8")
+    }
+
+    fn json(dir: &tempfile::TempDir, args: &[&str]) -> Value {
+        let mut all = args.to_vec();
+        all.extend(["--format", "json"]);
+        let text = ok(dir, &all);
+        serde_json::from_str(&text).unwrap_or_else(|e| panic!("invalid JSON ({e}):\n{text}"))
+    }
+
+    /// Run and expect exit code 2; returns standard error.
+    fn bad(dir: &tempfile::TempDir, args: &[&str]) -> String {
+        let out = pinflow(dir)
+            .arg("edges")
+            .args(args)
+            .assert()
+            .code(2)
+            .get_output()
+            .clone();
+        assert!(out.stdout.is_empty(), "nothing on standard output");
+        String::from_utf8(out.stderr).expect("UTF-8")
+    }
+
+    fn fact<'a>(text: &'a str, key: &str) -> &'a str {
+        text.lines()
+            .find(|l| l.trim_start().starts_with(key))
+            .unwrap_or_else(|| panic!("no line {key} in\n{text}"))
+            .trim_start()[key.len()..]
+            .trim()
+    }
+
+    #[test]
+    fn text_output_names_the_two_laughlin_edges() {
+        let dir = tmp();
+        let model = opened(&dir);
+        let m = model.to_str().unwrap();
+        let out = ok(&dir, &[m, "--pin", "tunnel"]);
+        assert!(out.starts_with("Pinned phase and edges"), "{out}");
+        // 8 wires, 7 links: r = W - 1 = 7, 16 - 14 = 2 modes.
+        assert_eq!(fact(&out, "gapped right-left pairs"), "7");
+        assert_eq!(fact(&out, "gapless modes left"), "2");
+        assert!(fact(&out, "bulk fully gapped").starts_with("yes"), "{out}");
+        assert!(fact(&out, "window").starts_with("2 wire(s)"), "{out}");
+        let row = |end: &str| {
+            out.lines()
+                .find(|l| l.trim_start().starts_with(end))
+                .unwrap_or_else(|| panic!("no row {end}:\n{out}"))
+                .split_whitespace()
+                .collect::<Vec<_>>()
+                .join(" ")
+        };
+        assert!(
+            row("left ").starts_with("left 0-1 1 (-3) (1) -1/3"),
+            "{}",
+            row("left ")
+        );
+        assert!(
+            row("right ").starts_with("right 6-7 1 (3) (1) 1/3"),
+            "{}",
+            row("right ")
+        );
+        assert!(
+            row("strip ").contains(" 0 (1, 1) non-chiral 1 "),
+            "{}",
+            row("strip ")
+        );
+        assert!(out.contains("wire 0: (-1, 2)"), "{out}");
+        assert_eq!(out, ok(&dir, &[m, "--pin", "tunnel", "--format", "text"]));
+    }
+
+    #[test]
+    fn json_has_the_documented_fields() {
+        let dir = tmp();
+        let model = opened(&dir);
+        let r = json(&dir, &[model.to_str().unwrap(), "--pin", "tunnel"]);
+        assert_eq!(r["gapped_pairs"], 7);
+        assert_eq!(r["gapless_modes"], 2);
+        assert_eq!(r["fully_gapped"], true);
+        assert_eq!(r["chosen_by"], "--pin");
+        let edges = r["edges"].as_array().expect("edges");
+        assert_eq!(edges.len(), 2);
+        let want = [("left", -3, "-1/3"), ("right", 3, "1/3")];
+        for (e, (end, k, filling)) in edges.iter().zip(want) {
+            assert_eq!(e["end"], end);
+            assert_eq!(e["k_matrix"], serde_json::json!([[k]]));
+            assert_eq!(e["charge"], serde_json::json!([1]));
+            assert_eq!(e["filling"], filling);
+            assert_eq!(e["det"], k);
+            assert_eq!(e["abs_det"], 3);
+            assert_eq!(e["quasiparticles"].as_array().unwrap().len(), 3);
+        }
+        assert_eq!(
+            edges[0]["generators"][0]["wires"],
+            serde_json::json!([{ "wire": 0, "particles": [-1, 2] }])
+        );
+        assert_eq!(r["whole"]["end"], "strip");
+        assert_eq!(r["whole"]["det"], -1);
+        assert_eq!(r["whole"]["signature"], serde_json::json!([1, 1]));
+    }
+
+    #[test]
+    fn other_formats() {
+        let dir = tmp();
+        let model = opened(&dir);
+        let m = model.to_str().unwrap();
+        let md = ok(&dir, &[m, "--pin", "tunnel", "--format", "markdown"]);
+        assert!(md.contains("|---|") && md.contains("| left |"), "{md}");
+        let tex = ok(&dir, &[m, "--pin", "tunnel", "--format", "latex"]);
+        assert!(tex.contains("\\begin{tabular}"), "{tex}");
+        assert_eq!(
+            tex.matches("\\begin{tabular}").count(),
+            tex.matches("\\end{tabular}").count()
+        );
+        let csv = ok(&dir, &[m, "--pin", "tunnel", "--format", "csv"]);
+        let mut rows = csv.lines();
+        assert!(rows.next().unwrap().starts_with("theory,wires,modes,K"));
+        assert_eq!(rows.count(), 3, "left, right, strip: {csv}");
+    }
+
+    #[test]
+    fn the_flow_chooses_the_pinned_set() {
+        // At g = 0.9 (lambda = 0.8) the tunnelling term wins the flow of the
+        // demo; its pinned phase has the Laughlin edges.
+        let dir = tmp();
+        let model = opened(&dir);
+        let r = json(&dir, &[model.to_str().unwrap(), "--set", "g=0.9"]);
+        assert_eq!(r["chosen_by"], "flow");
+        assert_eq!(r["winner"], "tunnel");
+        assert_eq!(r["parameters"]["g"], 0.9);
+        let names: Vec<&str> = r["pinned"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|p| p["name"].as_str().unwrap())
+            .collect();
+        assert_eq!(names, vec!["tunnel"]);
+        assert_eq!(r["edges"][0]["k_matrix"], serde_json::json!([[-3]]));
+        assert_eq!(r["edges"][1]["k_matrix"], serde_json::json!([[3]]));
+        // At the defaults some null term wins too, and it is the one pinned.
+        let r = json(&dir, &[model.to_str().unwrap()]);
+        let winner = r["winner"].as_str().expect("a winner");
+        assert_eq!(r["pinned"][0]["name"], winner);
+    }
+
+    #[test]
+    fn a_periodic_array_is_fully_gapped() {
+        // The demo itself (a ring of 8 wires): r = 8 = N/2, nothing left.
+        let dir = tmp();
+        let r = json(&dir, &[demo().to_str().unwrap(), "--pin", "tunnel"]);
+        assert_eq!(r["gapped_pairs"], 8);
+        assert_eq!(r["gapless_modes"], 0);
+        assert_eq!(r["fully_gapped"], true);
+        assert_eq!(r["edges"], serde_json::json!([]));
+        assert_eq!(r["whole"]["end"], "bulk");
+    }
+
+    #[test]
+    fn output_file() {
+        let dir = tmp();
+        let model = opened(&dir);
+        let out = ok(
+            &dir,
+            &[
+                model.to_str().unwrap(),
+                "--pin",
+                "tunnel",
+                "--format",
+                "json",
+                "-o",
+                "e.json",
+            ],
+        );
+        assert!(out.is_empty());
+        let text = std::fs::read_to_string(dir.path().join("e.json")).unwrap();
+        let r: Value = serde_json::from_str(&text).unwrap();
+        assert_eq!(r["gapped_pairs"], 7);
+    }
+
+    #[test]
+    fn help_names_the_flags() {
+        let dir = tmp();
+        let out = ok(&dir, &["--help"]);
+        for flag in ["--pin", "--window", "--set", "--format"] {
+            assert!(out.contains(flag), "{flag}:\n{out}");
+        }
+    }
+
+    #[test]
+    fn bad_input_exits_with_code_2_and_names_the_flag() {
+        let dir = tmp();
+        let model = opened(&dir);
+        let m = model.to_str().unwrap();
+        let e = bad(&dir, &[m, "--pin", "nonsense"]);
+        assert!(
+            e.contains("--pin") && e.contains("unknown term \"nonsense\""),
+            "{e}"
+        );
+        assert!(e.contains("tunnel, cdw, hop, pair_hop"), "{e}");
+        // tunnel and cdw: mutual phase -2 (derived in tests/edges.rs).
+        let e = bad(&dir, &[m, "--pin", "tunnel", "--pin", "cdw"]);
+        assert!(
+            e.contains("--pin") && e.contains("\"tunnel\"") && e.contains("\"cdw\""),
+            "{e}"
+        );
+        assert!(e.contains("do not commute"), "{e}");
+        let e = bad(&dir, &[m, "--pin", "tunnel", "--window", "1"]);
+        assert!(e.contains("--window") && e.contains("--window 2"), "{e}");
+        let e = bad(&dir, &[m, "--pin", "tunnel", "--window", "8"]);
+        assert!(e.contains("--window") && e.contains("whole array"), "{e}");
+        let e = bad(&dir, &[m, "--pin", "tunnel", "--window", "0"]);
+        assert!(e.contains("--window"), "{e}");
+        let e = bad(&dir, &[m, "--pin", "tunnel", "--window", "two"]);
+        assert!(e.contains("--window"), "{e}");
+        let e = bad(
+            &dir,
+            &[demo().to_str().unwrap(), "--pin", "tunnel", "--window", "2"],
+        );
+        assert!(e.contains("--window") && e.contains("periodic"), "{e}");
+        let e = bad(&dir, &[m, "--pin", "tunnel", "--y-strong", "-1"]);
+        assert!(e.contains("--y-strong"), "{e}");
+        let e = bad(&dir, &[m, "--set", "nope=1"]);
+        assert!(e.contains("--set") && e.contains("nope"), "{e}");
+        let e = bad(&dir, &["missing.toml", "--pin", "tunnel"]);
+        assert!(e.contains("missing.toml"), "{e}");
+    }
+
+    #[test]
+    fn a_gapless_point_asks_for_pin() {
+        // One spinless wire without interactions: umklapp has Delta = 4
+        // (Giamarchi, "Quantum Physics in One Dimension" (2004), ch. 2, from
+        // memory: 4 K with K = 1), so nothing pins.
+        let dir = tmp();
+        let path = dir.path().join("wire.toml");
+        std::fs::write(
+            &path,
+            r#"
+name = "free wire"
+[fields]
+K = [[1, 0], [0, -1]]
+charge = [1, 1]
+V = [[1, 0], [0, 1]]
+[[term]]
+name = "umklapp"
+particles = [2, -2]
+"#,
+        )
+        .unwrap();
+        let e = bad(&dir, &[path.to_str().unwrap()]);
+        assert!(e.contains("--pin") && e.contains("gapless"), "{e}");
+        // Pinned by hand, it gaps the wire's only pair.
+        let r = json(&dir, &[path.to_str().unwrap(), "--pin", "umklapp"]);
+        assert_eq!(r["gapped_pairs"], 1);
+        assert_eq!(r["fully_gapped"], true);
+    }
+}
