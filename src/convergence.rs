@@ -163,20 +163,10 @@ impl Report for ConvergenceReport {
     }
 
     fn facts(&self) -> Vec<(String, String)> {
-        let params = self
-            .parameters
-            .iter()
-            .map(|(k, v)| format!("{k}={v}"))
-            .collect::<Vec<_>>()
-            .join(", ");
         vec![
             (
                 "parameters".to_string(),
-                if params.is_empty() {
-                    "(none)".into()
-                } else {
-                    params
-                },
+                output::parameters_fact(&self.parameters),
             ),
             ("boundary".to_string(), self.boundary.clone()),
         ]

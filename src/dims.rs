@@ -329,17 +329,11 @@ impl Report for DimsReport {
     }
 
     fn facts(&self) -> Vec<(String, String)> {
-        let params = if self.parameters.is_empty() {
-            "(none)".to_string()
-        } else {
-            self.parameters
-                .iter()
-                .map(|(k, v)| format!("{k}={v}"))
-                .collect::<Vec<_>>()
-                .join(", ")
-        };
         let mut f = vec![
-            ("parameters".to_string(), params),
+            (
+                "parameters".to_string(),
+                crate::output::parameters_fact(&self.parameters),
+            ),
             ("fields".to_string(), self.fields.to_string()),
         ];
         if let Some(w) = self.wires {

@@ -87,16 +87,11 @@ impl FixedPoint {
         let inner = u * abs_inv * u.transpose();
         let d = linv.transpose() * inner * &linv;
         let d = (&d + d.transpose()) * 0.5;
-        let mut modes: Vec<(f64, i8)> = eig
-            .eigenvalues
-            .iter()
-            .map(|e| (1.0 / e.abs(), if *e > 0.0 { 1 } else { -1 }))
-            .collect();
-        modes.sort_by(|a, b| b.1.cmp(&a.1).then(a.0.total_cmp(&b.0)));
+        let (velocities, chirality) = modes_of(eig.eigenvalues.iter().cloned());
         Ok(FixedPoint {
             d,
-            velocities: modes.iter().map(|m| m.0).collect(),
-            chirality: modes.iter().map(|m| m.1).collect(),
+            velocities,
+            chirality,
         })
     }
 
@@ -104,6 +99,23 @@ impl FixedPoint {
     pub fn dimension(&self, l: &[i64]) -> f64 {
         quad_form(&self.d, l)
     }
+}
+
+/// Velocities 1/|s_i| and chiralities sign(s_i) of the eigenvalues s_i of
+/// S, right movers first, each group by ascending velocity.
+pub fn modes_of(eigenvalues: impl Iterator<Item = f64>) -> (Vec<f64>, Vec<i8>) {
+    sorted_modes(
+        eigenvalues
+            .map(|e| (1.0 / e.abs(), if e > 0.0 { 1 } else { -1 }))
+            .collect(),
+    )
+}
+
+/// (velocity, chirality) pairs sorted right movers first, each group by
+/// ascending velocity, split into the two lists.
+pub fn sorted_modes(mut modes: Vec<(f64, i8)>) -> (Vec<f64>, Vec<i8>) {
+    modes.sort_by(|a, b| b.1.cmp(&a.1).then(a.0.total_cmp(&b.0)));
+    modes.into_iter().unzip()
 }
 
 /// (1/2) l^T D l for an integer vector, skipping zero entries.

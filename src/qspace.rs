@@ -49,6 +49,8 @@ use nalgebra::{DMatrix, SymmetricEigen};
 use num_complex::Complex64;
 use serde::Serialize;
 
+use crate::fixed_point::{modes_of, sorted_modes};
+
 /// Default absolute tolerance of the refined quadrature (on every scaling
 /// dimension and every entry of the on-site block D^(0)).
 pub const TOLERANCE: f64 = 1e-10;
@@ -238,16 +240,11 @@ pub fn solve_q(k: &DMatrix<f64>, vq: &DMatrix<Complex64>) -> Result<QSolution, f
     let inner = scaled * u.adjoint();
     let d = cinv.adjoint() * inner * &cinv;
     let d = (&d + d.adjoint()) * Complex64::new(0.5, 0.0);
-    let mut modes: Vec<(f64, i8)> = eig
-        .eigenvalues
-        .iter()
-        .map(|e| (1.0 / e.abs(), if *e > 0.0 { 1 } else { -1 }))
-        .collect();
-    modes.sort_by(|a, b| b.1.cmp(&a.1).then(a.0.total_cmp(&b.0)));
+    let (velocities, chirality) = modes_of(eig.eigenvalues.iter().cloned());
     Ok(QSolution {
         d,
-        velocities: modes.iter().map(|m| m.0).collect(),
-        chirality: modes.iter().map(|m| m.1).collect(),
+        velocities,
+        chirality,
     })
 }
 
@@ -419,11 +416,7 @@ impl QFixedPoint {
                 modes.extend(v.iter().cloned().zip(self.chirality.iter().cloned()));
             }
         }
-        modes.sort_by(|a, b| b.1.cmp(&a.1).then(a.0.total_cmp(&b.0)));
-        (
-            modes.iter().map(|m| m.0).collect(),
-            modes.iter().map(|m| m.1).collect(),
-        )
+        sorted_modes(modes)
     }
 
     /// Per mode (in the order of [`QFixedPoint::chirality`]): the smallest
@@ -482,6 +475,18 @@ fn watched(fp: &QFixedPoint, terms: &[Vec<Complex64>]) -> Vec<f64> {
     out
 }
 
+/// L(q) of every term on the stored points of an N-point rule.
+fn term_vectors(
+    terms: &[Vec<(usize, Vec<f64>)>],
+    cell: usize,
+    points: usize,
+) -> Vec<Vec<Complex64>> {
+    terms
+        .iter()
+        .map(|t| fourier_vector(t, cell, points))
+        .collect()
+}
+
 fn largest_change(a: &[f64], b: &[f64]) -> f64 {
     a.iter()
         .zip(b)
@@ -509,13 +514,7 @@ pub fn converge(
     range: usize,
     tolerance: f64,
 ) -> Result<(QFixedPoint, Quadrature), NotPositive> {
-    let cell = k.nrows();
-    let lq = |points: usize| -> Vec<Vec<Complex64>> {
-        terms
-            .iter()
-            .map(|t| fourier_vector(t, cell, points))
-            .collect()
-    };
+    let lq = |points: usize| term_vectors(terms, k.nrows(), points);
     let mut fp = QFixedPoint::solve(k, blocks, start_points(range))?;
     let mut before = watched(&fp, &lq(fp.points));
     loop {
@@ -548,13 +547,7 @@ pub fn on_rule(
     points: usize,
     tolerance: f64,
 ) -> Result<(QFixedPoint, Quadrature), NotPositive> {
-    let cell = k.nrows();
-    let lq = |points: usize| -> Vec<Vec<Complex64>> {
-        terms
-            .iter()
-            .map(|t| fourier_vector(t, cell, points))
-            .collect()
-    };
+    let lq = |points: usize| term_vectors(terms, k.nrows(), points);
     let fp = QFixedPoint::solve(k, blocks, points)?;
     let finer = fp.refined(k, blocks)?;
     let change = largest_change(
@@ -652,16 +645,22 @@ mod tests {
     use super::*;
 
     #[test]
-    fn single_wire_at_every_q_is_the_luttinger_liquid() {
-        // No interwire blocks: D(q) is the single-wire D at every q
-        // [Giamarchi (2004) ch. 2: backscattering (1, 1) has Delta = K_L].
-        let lam: f64 = 0.4;
+    fn without_interwire_blocks_every_q_is_the_dense_single_wire() {
+        // D(q) = D of one wire at every q, and so is every velocity (the
+        // dense path of `fixed_point` on the cell).
         let k = DMatrix::from_row_slice(2, 2, &[1.0, 0.0, 0.0, -1.0]);
-        let v = DMatrix::from_row_slice(2, 2, &[1.0, lam, lam, 1.0]);
-        let fp = QFixedPoint::solve(&k, &[v], 8).unwrap();
-        let kl = ((1.0 - lam) / (1.0 + lam)).sqrt();
-        assert!((fp.dimension_of(&[(0, vec![1.0, 1.0])]) - kl).abs() < 1e-12);
-        assert_eq!(fp.chirality, vec![1, -1]);
+        let v = DMatrix::from_row_slice(2, 2, &[1.0, 0.4, 0.4, 1.0]);
+        let dense = crate::fixed_point::FixedPoint::solve(&k, &v).unwrap();
+        let fp = QFixedPoint::solve(&k, &[v], 6).unwrap();
+        for i in 0..half(6) {
+            let diff = fp.d_at(i).map(|z| z.re) - &dense.d;
+            assert!(diff.amax() < 1e-14 && fp.d_at(i).map(|z| z.im).amax() < 1e-14);
+            assert_eq!(fp.velocities[i].len(), 2);
+            for (a, b) in fp.velocities[i].iter().zip(&dense.velocities) {
+                assert!((a - b).abs() < 1e-14);
+            }
+        }
+        assert_eq!(fp.chirality, dense.chirality);
     }
 
     #[test]

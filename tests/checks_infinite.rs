@@ -25,48 +25,9 @@ use std::f64::consts::PI;
 use std::path::Path;
 
 use assert_cmd::Command;
-use common::{assert_close, report_at, system, term};
+use common::{assert_close, report_at, sliding, system, term};
 use pinflow::error::Error;
 use pinflow::qspace;
-
-/// The model in the parameters of the formulas: g = (1 - K0^2)/(1 + K0^2),
-/// w = lam (1 + g)/4.
-fn sliding(wires: &str, couplings: f64) -> String {
-    format!(
-        r#"
-name = "sliding Luttinger liquid"
-
-[params]
-K0 = 0.8
-lam = 0.5
-
-[array]
-wires = {wires}
-K = [[1, 0], [0, -1]]
-charge = [1, 1]
-
-[array.V]
-0 = [["1", "(1 - K0^2)/(1 + K0^2)"], ["(1 - K0^2)/(1 + K0^2)", "1"]]
-1 = [["lam*(1 + (1 - K0^2)/(1 + K0^2))/4", "lam*(1 + (1 - K0^2)/(1 + K0^2))/4"],
-     ["lam*(1 + (1 - K0^2)/(1 + K0^2))/4", "lam*(1 + (1 - K0^2)/(1 + K0^2))/4"]]
-
-[[term]]
-name = "cdw"
-particles = {{ 0 = [1, -1], 1 = [-1, 1] }}
-coupling = {couplings}
-
-[[term]]
-name = "pair_hop"
-particles = {{ 0 = [1, 1], 1 = [-1, -1] }}
-coupling = {couplings}
-
-[[term]]
-name = "hop"
-particles = {{ 0 = [1, 0], 1 = [-1, 0] }}
-coupling = {couplings}
-"#
-    )
-}
 
 /// int_{-pi}^{pi} dq/2pi f(q) by the trapezoid sum of the scalar formula
 /// on 20000 points (the integrands are analytic for |lam| < 1: far below

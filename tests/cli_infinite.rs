@@ -342,6 +342,19 @@ fn bad_input_for_infinite_arrays() {
         &["flow", &t],
         &["flow.q_points", "whole number"],
     );
+    // An infinite array has no ends.
+    let text = std::fs::read_to_string(demo("sliding_array.toml")).unwrap();
+    let open = dir.path().join("open.toml");
+    std::fs::write(
+        &open,
+        text.replace(
+            "wires = \"infinite\"",
+            "wires = \"infinite\"\nboundary = \"open\"",
+        ),
+    )
+    .unwrap();
+    let open = open.display().to_string();
+    expect_bad_input(dir.path(), &["dims", &open], &["array.boundary", "no ends"]);
     // --wires: bad entries, sizes that do not fit, explicit models.
     expect_bad_input(
         dir.path(),

@@ -127,28 +127,18 @@ fn compare_infinite_with_ring(text: &str, wires: usize, sets: &[(&str, f64)], cl
     let names_b: Vec<String> = b.terms.iter().map(|t| t.name.clone()).collect();
     assert_eq!(names_a, names_b, "{case}");
     for (x, y) in a.terms.iter().zip(&b.terms) {
-        let close = |p: f64, q: f64, tol: f64| (p - q).abs() <= tol * (1.0 + p.abs());
-        assert!(
-            close(x.dimension0, y.dimension0, 1e-11),
-            "{case}: {} Delta0 {} vs {}",
-            y.name,
-            x.dimension0,
-            y.dimension0
-        );
-        assert!(
-            close(x.dimension, y.dimension, 1e-7),
-            "{case}: {} Delta {} vs {}",
-            y.name,
-            x.dimension,
-            y.dimension
-        );
-        assert!(
-            close(x.coupling, y.coupling, 1e-7),
-            "{case}: {} y {} vs {}",
-            y.name,
-            x.coupling,
-            y.coupling
-        );
+        let pairs = [
+            ("Delta0", x.dimension0, y.dimension0, 1e-11),
+            ("Delta", x.dimension, y.dimension, 1e-7),
+            ("y", x.coupling, y.coupling, 1e-7),
+        ];
+        for (what, p, q, tol) in pairs {
+            assert!(
+                (p - q).abs() <= tol * (1.0 + p.abs()),
+                "{case}: {} {what} {p} (ring) vs {q} (infinite)",
+                y.name
+            );
+        }
     }
 }
 

@@ -229,7 +229,9 @@ impl<'s> Flow<'s> {
                     .sys
                     .q
                     .as_ref()
-                    .expect("infinite arrays have q data")
+                    .ok_or_else(|| {
+                        Error::Numerical("an infinite array without q-space data".into())
+                    })?
                     .kinv;
                 let channels = self
                     .plan

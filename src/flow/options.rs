@@ -38,7 +38,8 @@ pub struct FlowOptions {
     #[serde(skip)]
     pub record: bool,
     /// Carry D as a dense matrix even for periodic arrays (the Fourier
-    /// layout is the default there); both paths must agree.
+    /// layout is the default there); both paths must agree. Infinite arrays
+    /// have no dense layout and ignore it.
     #[serde(skip)]
     pub dense_d: bool,
     /// Infinite arrays: the number of quadrature points D(q) is carried on

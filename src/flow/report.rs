@@ -144,20 +144,10 @@ impl Report for FlowReport {
 
     fn facts(&self) -> Vec<(String, String)> {
         let r = &self.result;
-        let params = self
-            .parameters
-            .iter()
-            .map(|(k, v)| format!("{k}={v}"))
-            .collect::<Vec<_>>()
-            .join(", ");
         let mut f = vec![
             (
                 "parameters".to_string(),
-                if params.is_empty() {
-                    "(none)".into()
-                } else {
-                    params
-                },
+                output::parameters_fact(&self.parameters),
             ),
             ("outcome".to_string(), r.outcome.word().to_string()),
             ("summary".to_string(), self.headline()),

@@ -329,6 +329,12 @@ fn read_explicit(ctx: &Ctx, f: RawFields, params: ParamSet) -> Result<Model, Inp
 
 fn read_array(ctx: &Ctx, a: RawArray, params: ParamSet) -> Result<Model, InputError> {
     let wires = read_wires(ctx, &a.wires)?;
+    if wires == Wires::Infinite && a.boundary.as_deref() == Some("open") {
+        return Err(ctx.err(
+            "array.boundary",
+            "an infinite array has no ends: leave out `boundary` (or write \"periodic\")",
+        ));
+    }
     let boundary = match a.boundary.as_deref() {
         None | Some("periodic") => Boundary::Periodic,
         Some("open") => Boundary::Open,
