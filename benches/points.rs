@@ -3,12 +3,18 @@
 //! dimension (what `dims` and every scan point do first), and one full
 //! second-order flow (with and without the pairs closure).
 //!
+//! The filling-1/3 demo (`flows/laughlin_third.toml`) as an infinite array
+//! (q-space, refined quadrature) against a periodic array of 64 wires, by
+//! the dense path (128 fields) and by the q-space path on its 64 points:
+//! V and every dimension at one point.
+//!
 //! Run: `cargo bench --bench points`.
 
 use std::path::Path;
 
 use criterion::{criterion_group, criterion_main, Criterion};
 use pinflow::flow::{Closure, Flow, FlowOptions};
+use pinflow::model::Model;
 use pinflow::system::System;
 
 fn model() -> System {
@@ -49,5 +55,57 @@ fn flow_point(c: &mut Criterion) {
     }
 }
 
-criterion_group!(benches, dims_point, flow_point);
+/// The filling-1/3 demo with another number of wires.
+fn third(wires: &str) -> System {
+    let path = concat!(env!("CARGO_MANIFEST_DIR"), "/flows/laughlin_third.toml");
+    let text = std::fs::read_to_string(path).expect("demo model");
+    assert!(text.contains("wires = 8"));
+    let text = text.replace("wires = 8", &format!("wires = {wires}"));
+    System::new(Model::parse(&text, path).expect("model")).expect("system")
+}
+
+fn infinite_against_dense(c: &mut Criterion) {
+    let inf = third("\"infinite\"");
+    let ring = third("64");
+    // The default point (16 quadrature points suffice) and one where the
+    // modes disperse more (32 points).
+    for set in [
+        vec![],
+        vec![("g".to_string(), 0.3), ("lambda".to_string(), 0.5)],
+    ] {
+        let point = inf.model.point_with(&set, "bench").expect("point");
+        let at = if set.is_empty() {
+            "default point"
+        } else {
+            "g=0.3, lambda=0.5"
+        };
+        c.bench_function(
+            &format!("dims: filling 1/3, infinite (q-space), {at}"),
+            |b| {
+                b.iter(|| {
+                    let (fp, _) = inf.q_converged(&point).expect("physical point");
+                    inf.q_dimensions(&fp).expect("q data").iter().sum::<f64>()
+                })
+            },
+        );
+        c.bench_function(&format!("dims: filling 1/3, 64 wires dense, {at}"), |b| {
+            b.iter(|| {
+                let fp = ring.fixed_point(&point).expect("physical point");
+                ring.lattice
+                    .families
+                    .iter()
+                    .map(|f| fp.dimension(&f.rep().l))
+                    .sum::<f64>()
+            })
+        });
+        c.bench_function(&format!("dims: filling 1/3, 64 wires q-space, {at}"), |b| {
+            b.iter(|| {
+                let fp = ring.q_fixed_point(&point, 64).expect("physical point");
+                ring.q_dimensions(&fp).expect("q data").iter().sum::<f64>()
+            })
+        });
+    }
+}
+
+criterion_group!(benches, dims_point, flow_point, infinite_against_dense);
 criterion_main!(benches);

@@ -68,6 +68,13 @@ pub struct DimsArgs {
     /// Write to this file instead of standard output (`-` is standard output).
     #[arg(long, short = 'o', value_name = "FILE")]
     pub output: Option<PathBuf>,
+    /// Arrays: every term's dimension for these array sizes instead, e.g.
+    /// `4,8,16,32,infinite` (the model's boundary is kept).
+    #[arg(long, value_name = "LIST", value_delimiter = ',', value_parser = crate::convergence::parse_wires)]
+    pub wires: Vec<crate::model::Wires>,
+    /// With --wires: also write convergence.png/svg, .csv and .json into this directory.
+    #[arg(long, value_name = "DIR", requires = "wires")]
+    pub out: Option<PathBuf>,
 }
 
 /// `pinflow flow`.
@@ -238,6 +245,17 @@ pub(crate) fn load_point(args: &PointArgs) -> Result<(System, Vec<f64>), Error> 
 }
 
 fn run_dims(args: DimsArgs) -> Result<(), Error> {
+    if !args.wires.is_empty() {
+        let model = crate::model::Model::load(&args.point.model)?;
+        let point = model.point_with(&args.point.set, "--set")?;
+        let report =
+            crate::convergence::ConvergenceReport::build(&model, &point, &args.wires, "--wires")?;
+        if let Some(dir) = &args.out {
+            report.write_dir(dir)?;
+        }
+        let text = output::render(&report, args.format)?;
+        return emit(args.output.as_deref(), &text);
+    }
     let (sys, point) = load_point(&args.point)?;
     let report = DimsReport::build(&sys, &point)?;
     let text = output::render(&report, args.format)?;

@@ -1,12 +1,87 @@
 //! The report of `pinflow dims`: exact and fixed-point data of every term at
 //! one parameter point.
+//!
+//! Which path computes the fixed point ([`Algebra`]): periodic arrays of two
+//! or more wires and infinite arrays use the q-space path
+//! ([`crate::qspace`]), everything else the dense one. For an infinite
+//! array the report is per wire: `fields` is the cell size, `wires` is null
+//! (`infinite` is true), `signature`, `filling` and `det_k` are those of one
+//! wire; `velocities` and `chiralities` are the modes at q = 0 and
+//! `velocity_ranges` gives each mode's smallest and largest velocity over
+//! the quadrature points; a term's `vector` and `particles` list the wires
+//! 0..=range it touches; `quadrature` states the rule and its error
+//! estimate.
 
 use serde::Serialize;
 
 use crate::error::Error;
 use crate::exact::{self, fmt_rational};
 use crate::output::{Report, Table};
+use crate::qspace::Quadrature;
 use crate::system::System;
+
+/// Which code path computes the fixed point of `dims`.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Algebra {
+    /// q-space for periodic arrays (W >= 2) and infinite arrays, dense
+    /// otherwise.
+    Auto,
+    /// The dense N x N algebra (not for infinite arrays).
+    Dense,
+    /// The q-space algebra (periodic arrays of W >= 2 wires, infinite arrays).
+    QSpace,
+}
+
+/// What one evaluation of the fixed point gives the report.
+struct Evaluated {
+    bosonic: Vec<f64>,
+    velocities: Vec<f64>,
+    chiralities: Vec<i8>,
+    velocity_ranges: Option<Vec<[f64; 2]>>,
+    quadrature: Option<Quadrature>,
+}
+
+fn evaluate(sys: &System, point: &[f64], algebra: Algebra) -> Result<Evaluated, Error> {
+    let q = match algebra {
+        Algebra::Auto => sys.q.is_some(),
+        Algebra::Dense => false,
+        Algebra::QSpace => true,
+    };
+    if !q {
+        let fp = sys.fixed_point(point)?;
+        return Ok(Evaluated {
+            bosonic: sys
+                .lattice
+                .families
+                .iter()
+                .map(|f| fp.dimension(&f.rep().l))
+                .collect(),
+            velocities: fp.velocities,
+            chiralities: fp.chirality,
+            velocity_ranges: None,
+            quadrature: None,
+        });
+    }
+    if sys.is_infinite() {
+        let (fp, quad) = sys.q_converged(point)?;
+        return Ok(Evaluated {
+            bosonic: sys.q_dimensions(&fp)?,
+            velocities: fp.velocities[0].clone(),
+            chiralities: fp.chirality.clone(),
+            velocity_ranges: Some(fp.velocity_ranges()),
+            quadrature: Some(quad),
+        });
+    }
+    let fp = sys.q_fixed_point(point, sys.lattice.wires)?;
+    let (velocities, chiralities) = fp.all_velocities();
+    Ok(Evaluated {
+        bosonic: sys.q_dimensions(&fp)?,
+        velocities,
+        chiralities,
+        velocity_ranges: None,
+        quadrature: None,
+    })
+}
 
 /// Tolerance below which a momentum mismatch counts as conserved (units of
 /// the inverse cutoff).
@@ -68,20 +143,32 @@ pub struct DimsReport {
     pub model: String,
     /// Parameter point.
     pub parameters: serde_json::Map<String, serde_json::Value>,
-    /// Number of fields.
+    /// Number of fields (infinite arrays: of one wire).
     pub fields: usize,
-    /// Wires (arrays) or null.
+    /// Wires (finite arrays) or null (explicit models, infinite arrays).
     pub wires: Option<usize>,
-    /// [n+, n-].
+    /// The array is infinite (the totals below are then per wire).
+    pub infinite: bool,
+    /// [n+, n-] (infinite arrays: of one wire).
     pub signature: [usize; 2],
-    /// Filling "p/q".
+    /// Filling "p/q" (infinite arrays: per wire).
     pub filling: String,
-    /// det K (exact).
+    /// det K (exact; infinite arrays: of one wire).
     pub det_k: String,
-    /// Mode velocities, right movers first.
+    /// Arrays: the filling of one wire, t_c^T K_c^-1 t_c; null otherwise.
+    pub filling_per_wire: Option<String>,
+    /// Arrays: det K_c of one wire's cell; null otherwise.
+    pub det_k_cell: Option<String>,
+    /// Mode velocities, right movers first (infinite arrays: at q = 0).
     pub velocities: Vec<f64>,
     /// +1 right, -1 left, paired with velocities.
     pub chiralities: Vec<i8>,
+    /// Infinite arrays: [smallest, largest] velocity of each mode over the
+    /// quadrature points (modes as in `velocities`); null otherwise.
+    pub velocity_ranges: Option<Vec<[f64; 2]>>,
+    /// Infinite arrays: the quadrature rule and its error estimate; null
+    /// otherwise.
+    pub quadrature: Option<Quadrature>,
     /// One row per term.
     pub terms: Vec<TermRow>,
     /// Mutual phases l_a^T K^-1 l_b ("p/q").
@@ -93,12 +180,18 @@ pub struct DimsReport {
 }
 
 impl DimsReport {
-    /// Compute the report at a parameter point.
+    /// Compute the report at a parameter point ([`Algebra::Auto`]).
     pub fn build(sys: &System, point: &[f64]) -> Result<DimsReport, Error> {
-        let fp = sys.fixed_point(point)?;
+        DimsReport::build_with(sys, point, Algebra::Auto)
+    }
+
+    /// Compute the report with a chosen code path.
+    pub fn build_with(sys: &System, point: &[f64], algebra: Algebra) -> Result<DimsReport, Error> {
+        let ev = evaluate(sys, point, algebra)?;
         let extra = sys.extra_dimensions(point)?;
         let momenta = sys.momentum_mismatches(point);
         let inv = &sys.invariants;
+        let infinite = sys.is_infinite();
         let mut terms = Vec::new();
         for (i, (spec, fam)) in sys
             .model
@@ -109,15 +202,23 @@ impl DimsReport {
         {
             let ti = &inv.terms[i];
             let rep = fam.rep();
-            let dimension = fp.dimension(&rep.l) + extra[i];
+            let dimension = ev.bosonic[i] + extra[i];
             let s = exact::to_f64(&ti.spin);
             let k = momenta.as_ref().map(|m| m[i]);
+            // Infinite arrays: the representative sits at wire 0 of the
+            // stand-in ring; list the wires 0..=range it touches.
+            let shown = if infinite {
+                (spec.range() + 1) * sys.lattice.cell
+            } else {
+                rep.l.len()
+            };
+            let particles = &ti.particles[..shown];
             terms.push(TermRow {
                 name: spec.name.clone(),
                 target: spec.target,
-                vector: rep.l.clone(),
-                particles: exact::to_integers(&ti.particles),
-                particles_exact: ti.particles.iter().map(fmt_rational).collect(),
+                vector: rep.l[..shown].to_vec(),
+                particles: exact::to_integers(particles),
+                particles_exact: particles.iter().map(fmt_rational).collect(),
                 wire: rep.anchor,
                 dimension,
                 extra_dimension: extra[i],
@@ -154,17 +255,29 @@ impl DimsReport {
                 "0* in the commutation table: the two terms commute at the same wire but not with every translate, so their families cannot all pin together".to_string(),
             );
         }
+        if let Some(q) = &ev.quadrature {
+            notes.push(infinite_note(q));
+        }
+        let array = matches!(sys.model.structure, crate::model::Structure::Array { .. });
         Ok(DimsReport {
             model: sys.model.name.clone(),
             parameters,
-            fields: sys.lattice.n,
-            wires: matches!(sys.model.structure, crate::model::Structure::Array { .. })
-                .then_some(sys.lattice.wires),
+            fields: if infinite {
+                sys.lattice.cell
+            } else {
+                sys.lattice.n
+            },
+            wires: (array && !infinite).then_some(sys.lattice.wires),
+            infinite,
             signature: [inv.signature.0, inv.signature.1],
             filling: fmt_rational(&inv.filling),
             det_k: inv.det_k.to_string(),
-            velocities: fp.velocities.clone(),
-            chiralities: fp.chirality.clone(),
+            filling_per_wire: array.then(|| fmt_rational(&inv.cell_filling)),
+            det_k_cell: array.then(|| inv.cell_det.to_string()),
+            velocities: ev.velocities,
+            chiralities: ev.chiralities,
+            velocity_ranges: ev.velocity_ranges,
+            quadrature: ev.quadrature,
             terms,
             commutation: inv
                 .commutation
@@ -175,6 +288,21 @@ impl DimsReport {
             notes,
         })
     }
+}
+
+/// The note that states how an infinite array was computed.
+pub fn infinite_note(q: &Quadrature) -> String {
+    let mut s = format!(
+        "Infinite array: fields, signature, filling and det K are per wire; dimensions are the q-space integrals (1/2) int dq/2pi L(q)^H D(q) L(q) by the periodic trapezoid rule with {} points, error estimate {:.1e} (tolerance {:.0e}); velocities are at q = 0, velocity_ranges over q.",
+        q.points, q.error_estimate, q.tolerance
+    );
+    if !q.converged {
+        s.push_str(&format!(
+            " The rule did NOT converge to the tolerance ({} points is the limit): V(q) is probably close to singular at some q.",
+            q.points
+        ));
+    }
+    s
 }
 
 fn notes_for(terms: &[TermRow]) -> Vec<String> {
@@ -211,32 +339,61 @@ impl Report for DimsReport {
     }
 
     fn facts(&self) -> Vec<(String, String)> {
-        let params = if self.parameters.is_empty() {
-            "(none)".to_string()
-        } else {
-            self.parameters
-                .iter()
-                .map(|(k, v)| format!("{k}={v}"))
-                .collect::<Vec<_>>()
-                .join(", ")
-        };
         let mut f = vec![
-            ("parameters".to_string(), params),
+            (
+                "parameters".to_string(),
+                crate::output::parameters_fact(&self.parameters),
+            ),
             ("fields".to_string(), self.fields.to_string()),
         ];
         if let Some(w) = self.wires {
             f.push(("wires".to_string(), w.to_string()));
         }
+        if self.infinite {
+            f[1].0 = "fields per wire".to_string();
+            f.push(("wires".to_string(), "infinite".to_string()));
+            if let Some(q) = &self.quadrature {
+                f.push((
+                    "quadrature".to_string(),
+                    format!(
+                        "{} points, error estimate {:.1e} (tolerance {:.0e}{})",
+                        q.points,
+                        q.error_estimate,
+                        q.tolerance,
+                        if q.converged { "" } else { ", NOT converged" }
+                    ),
+                ));
+            }
+        }
+        let per = if self.infinite { " (per wire)" } else { "" };
         f.push((
-            "signature (n+, n-)".to_string(),
+            format!("signature (n+, n-){per}"),
             format!("({}, {})", self.signature[0], self.signature[1]),
         ));
-        f.push(("filling".to_string(), self.filling.clone()));
-        f.push(("det K".to_string(), self.det_k.clone()));
-        f.push((
-            "velocities".to_string(),
-            fmt_velocities(&self.velocities, &self.chiralities),
-        ));
+        f.push((format!("filling{per}"), self.filling.clone()));
+        f.push((format!("det K{per}"), self.det_k.clone()));
+        if let (false, Some(nu), Some(det)) =
+            (self.infinite, &self.filling_per_wire, &self.det_k_cell)
+        {
+            f.push(("filling per wire".to_string(), nu.clone()));
+            f.push(("det K (one wire)".to_string(), det.clone()));
+        }
+        let vel = fmt_velocities(&self.velocities, &self.chiralities);
+        match &self.velocity_ranges {
+            None => f.push(("velocities".to_string(), vel)),
+            Some(r) => {
+                f.push(("velocities at q = 0".to_string(), vel));
+                let ranges: Vec<String> = r
+                    .iter()
+                    .zip(&self.chiralities)
+                    .map(|(r, c)| {
+                        let side = if *c > 0 { "right" } else { "left" };
+                        format!("{side} {:.4}..{:.4}", r[0], r[1])
+                    })
+                    .collect();
+                f.push(("velocity range over q".to_string(), ranges.join("; ")));
+            }
+        }
         f
     }
 

@@ -23,14 +23,36 @@ use nalgebra::{Cholesky, DMatrix, SymmetricEigen};
 
 /// A parameter point at which V is not positive definite: the theory is
 /// unstable there.
-#[derive(Debug, Clone, PartialEq, thiserror::Error)]
-#[error("V is not positive definite at {point}: smallest eigenvalue {smallest_eigenvalue:.6e} (an unstable theory; choose parameters where V > 0)")]
+#[derive(Debug, Clone, PartialEq)]
 pub struct Unphysical {
     /// The parameter point, as `name=value` pairs.
     pub point: String,
-    /// Smallest eigenvalue of V there.
+    /// Smallest eigenvalue of V there (of V(q) at `q` for the q-space path).
     pub smallest_eigenvalue: f64,
+    /// For arrays computed in q-space: a wave number q in [0, pi] at which
+    /// V(q) is not positive definite (V(-q) is its complex conjugate).
+    pub q: Option<f64>,
 }
+
+impl std::fmt::Display for Unphysical {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self.q {
+            None => write!(f, "V is not positive definite at {}", self.point)?,
+            Some(q) => write!(
+                f,
+                "V(q) is not positive definite at q = {q:.6} (and -q) at {}",
+                self.point
+            )?,
+        }
+        write!(
+            f,
+            ": smallest eigenvalue {:.6e} (an unstable theory; choose parameters where V > 0)",
+            self.smallest_eigenvalue
+        )
+    }
+}
+
+impl std::error::Error for Unphysical {}
 
 /// Fixed-point data at one parameter point.
 #[derive(Debug, Clone)]
@@ -65,16 +87,11 @@ impl FixedPoint {
         let inner = u * abs_inv * u.transpose();
         let d = linv.transpose() * inner * &linv;
         let d = (&d + d.transpose()) * 0.5;
-        let mut modes: Vec<(f64, i8)> = eig
-            .eigenvalues
-            .iter()
-            .map(|e| (1.0 / e.abs(), if *e > 0.0 { 1 } else { -1 }))
-            .collect();
-        modes.sort_by(|a, b| b.1.cmp(&a.1).then(a.0.total_cmp(&b.0)));
+        let (velocities, chirality) = modes_of(eig.eigenvalues.iter().cloned());
         Ok(FixedPoint {
             d,
-            velocities: modes.iter().map(|m| m.0).collect(),
-            chirality: modes.iter().map(|m| m.1).collect(),
+            velocities,
+            chirality,
         })
     }
 
@@ -82,6 +99,23 @@ impl FixedPoint {
     pub fn dimension(&self, l: &[i64]) -> f64 {
         quad_form(&self.d, l)
     }
+}
+
+/// Velocities 1/|s_i| and chiralities sign(s_i) of the eigenvalues s_i of
+/// S, right movers first, each group by ascending velocity.
+pub fn modes_of(eigenvalues: impl Iterator<Item = f64>) -> (Vec<f64>, Vec<i8>) {
+    sorted_modes(
+        eigenvalues
+            .map(|e| (1.0 / e.abs(), if e > 0.0 { 1 } else { -1 }))
+            .collect(),
+    )
+}
+
+/// (velocity, chirality) pairs sorted right movers first, each group by
+/// ascending velocity, split into the two lists.
+pub fn sorted_modes(mut modes: Vec<(f64, i8)>) -> (Vec<f64>, Vec<i8>) {
+    modes.sort_by(|a, b| b.1.cmp(&a.1).then(a.0.total_cmp(&b.0)));
+    modes.into_iter().unzip()
 }
 
 /// (1/2) l^T D l for an integer vector, skipping zero entries.

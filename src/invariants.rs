@@ -10,6 +10,11 @@
 //! Arrays: K is block diagonal, so m is computed wire by wire with the cell
 //! inverse and mutual phases are sums over shared wires. Two families
 //! commute when every pair of their translates does.
+//!
+//! Infinite arrays are computed on their periodic stand-in ring
+//! ([`Lattice::stand_in`], exactly equivalent for every per-term and
+//! pairwise quantity); the totals det K, signature and filling, which grow
+//! with the number of wires, are then given per wire.
 
 use num_bigint::BigInt;
 use num_traits::Zero;
@@ -42,12 +47,16 @@ pub struct TermInvariants {
 /// Exact data of a whole model.
 #[derive(Debug, Clone)]
 pub struct Invariants {
-    /// det K of all fields.
+    /// det K of all fields (infinite arrays: of one wire).
     pub det_k: BigInt,
-    /// Signature (n+, n-).
+    /// Signature (n+, n-) (infinite arrays: of one wire).
     pub signature: (usize, usize),
-    /// Filling t^T K^-1 t.
+    /// Filling t^T K^-1 t (infinite arrays: per wire).
     pub filling: Rational,
+    /// det K_c of one wire's cell (explicit models: of K).
+    pub cell_det: BigInt,
+    /// Filling t_c^T K_c^-1 t_c of one wire.
+    pub cell_filling: Rational,
     /// Cell K^-1.
     pub cell_inverse: Vec<Vec<Rational>>,
     /// One entry per term.
@@ -73,7 +82,9 @@ impl Invariants {
                 "K is singular (det K = 0); K must be invertible",
             )
         })?;
-        let det_k = num_traits::pow(cell_det.clone(), lat.wires);
+        // Totals scale with the wires; an infinite array reports one wire.
+        let copies = if lat.infinite { 1 } else { lat.wires };
+        let det_k = num_traits::pow(cell_det.clone(), copies);
         let cell_sig = exact::signature(&model.cell_k, &cell_det).ok_or_else(|| {
             InputError::new(
                 &model.file,
@@ -81,10 +92,10 @@ impl Invariants {
                 "cannot determine the signature of K reliably",
             )
         })?;
-        let signature = (cell_sig.0 * lat.wires, cell_sig.1 * lat.wires);
+        let signature = (cell_sig.0 * copies, cell_sig.1 * copies);
         let t_cell = &model.cell_charge;
         let cell_filling = exact::dot_int(&exact::solve_with(&cell_inverse, t_cell), t_cell);
-        let filling = cell_filling * exact::int(lat.wires as i64);
+        let filling = &cell_filling * exact::int(copies as i64);
         let ms: Vec<Vec<Vec<Rational>>> = lat
             .families
             .iter()
@@ -117,6 +128,8 @@ impl Invariants {
             det_k,
             signature,
             filling,
+            cell_det,
+            cell_filling,
             cell_inverse,
             terms,
             commutation,

@@ -58,11 +58,15 @@ pub struct Lattice {
     pub charge: Vec<i64>,
     /// One family per model term, in model order.
     pub families: Vec<Family>,
+    /// This is the periodic stand-in of an infinite array (see
+    /// [`Lattice::stand_in`]), not a physical ring.
+    pub infinite: bool,
 }
 
 impl Lattice {
-    /// Realise a model. Fails for an infinite array (not yet supported) and
-    /// for particle vectors whose l = K m overflows.
+    /// Realise a model. Fails for an infinite array (it has no dense
+    /// realisation: see [`Lattice::stand_in`]) and for particle vectors
+    /// whose l = K m overflows.
     pub fn build(model: &Model) -> Result<Lattice, InputError> {
         let (wires, boundary) = match model.structure {
             Structure::Explicit => (1, None),
@@ -77,10 +81,41 @@ impl Lattice {
                 return Err(InputError::new(
                     &model.file,
                     "array.wires",
-                    "\"infinite\" arrays are not yet supported; give a finite number of wires",
+                    "an \"infinite\" array has no dense realisation; prepare it with System::new, which uses the q-space path and a periodic stand-in",
                 ))
             }
         };
+        Lattice::realise(model, wires, boundary, false)
+    }
+
+    /// The periodic stand-in of an infinite array: a ring of
+    /// [`Lattice::stand_in_wires`] wires. Everything exact that depends only
+    /// on terms (charges, spins, locality, mutual phases at every relative
+    /// offset, the OPE table of the flow) is the same on this ring as on the
+    /// infinite line, because the ring is wider than twice every vector the
+    /// flow can produce: two vectors of widths a and b (in wires) on a ring
+    /// of W > a + b wires overlap at a relative offset s exactly when they
+    /// do on the line at the one offset s' = s mod W with |s'| < W/2, and a
+    /// ring vector of width below W/2 unfolds to a unique line vector.
+    /// Listed terms have width R + 1 and generated ones at most R + 2 (see
+    /// `flow::channels`), so W = 4 (R + 2) + 1 suffices.
+    pub fn stand_in(model: &Model) -> Result<Lattice, InputError> {
+        let wires = Lattice::stand_in_wires(model);
+        Lattice::realise(model, wires, Some(Boundary::Periodic), true)
+    }
+
+    /// Wires of the stand-in ring: 4 (R + 2) + 1 for terms of range R.
+    pub fn stand_in_wires(model: &Model) -> usize {
+        let range = model.terms.iter().map(|t| t.range()).max().unwrap_or(0);
+        4 * (range + 2) + 1
+    }
+
+    fn realise(
+        model: &Model,
+        wires: usize,
+        boundary: Option<Boundary>,
+        infinite: bool,
+    ) -> Result<Lattice, InputError> {
         let cell = model.cell_fields();
         let n = cell * wires;
         let mut k = vec![vec![0i64; n]; n];
@@ -101,6 +136,7 @@ impl Lattice {
             k,
             charge,
             families: Vec::new(),
+            infinite,
         };
         for term in &model.terms {
             let key = format!("term \"{}\"", term.name);
@@ -167,19 +203,17 @@ impl Lattice {
         point: &[f64],
         out: &mut DMatrix<f64>,
     ) -> Result<(), String> {
+        let blocks = eval_blocks(model, point)?;
         out.fill(0.0);
         let c = self.cell;
-        for (sep, block) in model.v_blocks.iter().enumerate() {
+        for (sep, block) in blocks.iter().enumerate() {
             for j in 0..self.wires {
                 let Some(j2) = self.partner(j, sep) else {
                     continue;
                 };
                 for a in 0..c {
                     for b in 0..c {
-                        let x = block[a][b].eval(point);
-                        if !x.is_finite() {
-                            return Err(format!("{} = {x}", block_key(model, sep, a, b)));
-                        }
+                        let x = block[(a, b)];
                         out[(j * c + a, j2 * c + b)] += x;
                         if sep > 0 {
                             out[(j2 * c + b, j * c + a)] += x;
@@ -218,6 +252,33 @@ impl Lattice {
         }
         Some(k)
     }
+}
+
+/// The V blocks V^(0), V^(1), ... of a model at a parameter point (one
+/// block for explicit models). Returns the first non-finite entry, or an
+/// asymmetric block 0, as an error message naming the key.
+pub fn eval_blocks(model: &Model, point: &[f64]) -> Result<Vec<DMatrix<f64>>, String> {
+    let c = model.cell_fields();
+    let mut out = Vec::with_capacity(model.v_blocks.len());
+    for (sep, block) in model.v_blocks.iter().enumerate() {
+        let mut m = DMatrix::zeros(c, c);
+        for a in 0..c {
+            for b in 0..c {
+                let x = block[a][b].eval(point);
+                if !x.is_finite() {
+                    return Err(format!("{} = {x}", block_key(model, sep, a, b)));
+                }
+                m[(a, b)] = x;
+            }
+        }
+        out.push(m);
+    }
+    Ok(out)
+}
+
+/// Block 0 must be symmetric (the other blocks enter with their transposes).
+pub fn check_block_symmetric(model: &Model, block0: &DMatrix<f64>) -> Result<(), String> {
+    check_symmetric(model, block0)
 }
 
 fn block_key(model: &Model, sep: usize, a: usize, b: usize) -> String {

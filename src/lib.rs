@@ -9,8 +9,10 @@
 //! - [`exact`] and [`invariants`]: exact rational algebra and the data that
 //!   does not depend on V (filling, charges, spins, commutation, locality);
 //! - [`fixed_point`]: the scaling-dimension matrix D and velocities;
+//! - [`qspace`]: the same in q-space for periodic and infinite arrays;
 //! - [`system`]: a model prepared once for evaluation at many points;
-//! - [`dims`]: the `pinflow dims` report;
+//! - [`dims`]: the `pinflow dims` report, and [`convergence`] its
+//!   `--wires` form (dimensions against array size);
 //! - [`output`]: text, JSON, CSV, Markdown and LaTeX exporters;
 //! - [`plot`]: figures (PNG and SVG, embedded font);
 //! - [`cli`]: the command line.
@@ -19,6 +21,7 @@
 //! point; see the README for its limits.
 
 pub mod cli;
+pub mod convergence;
 pub mod dims;
 pub mod edges;
 pub mod error;
@@ -30,6 +33,7 @@ pub mod lattice;
 pub mod model;
 pub mod output;
 pub mod plot;
+pub mod qspace;
 pub mod scan;
 pub mod search;
 pub mod system;

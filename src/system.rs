@@ -1,6 +1,14 @@
 //! A model made ready for evaluation: the validated model, its dense
 //! lattice and its exact invariants, computed once; and the evaluation of
 //! the fixed point at parameter points.
+//!
+//! Two paths evaluate the fixed point of an array. The dense path
+//! ([`System::fixed_point`]) works on all N = W n_c fields, O(N^3). The
+//! q-space path ([`System::q_fixed_point`], [`crate::qspace`]) serves
+//! periodic arrays of W >= 2 wires (W points, O(W n_c^3), exactly the same
+//! numbers up to rounding) and the infinite array (a refined quadrature,
+//! [`System::q_converged`]). An infinite array has no dense path: its
+//! `lattice` is the periodic stand-in ring used for exact data.
 
 use std::path::Path;
 
@@ -9,8 +17,9 @@ use nalgebra::DMatrix;
 use crate::error::{Error, InputError};
 use crate::fixed_point::{FixedPoint, Unphysical};
 use crate::invariants::Invariants;
-use crate::lattice::Lattice;
-use crate::model::Model;
+use crate::lattice::{self, Lattice};
+use crate::model::{Boundary, Content, Model};
+use crate::qspace::{self, NotPositive, QFixedPoint, Quadrature};
 
 /// A model with everything that does not depend on the parameter point.
 #[derive(Debug, Clone)]
@@ -23,6 +32,24 @@ pub struct System {
     pub invariants: Invariants,
     /// K as floats.
     pub k: DMatrix<f64>,
+    /// The cell data of the q-space path: periodic arrays of two or more
+    /// wires and infinite arrays; None otherwise.
+    pub q: Option<QModel>,
+}
+
+/// What the q-space path needs of a model, computed once.
+#[derive(Debug, Clone)]
+pub struct QModel {
+    /// K of one wire's cell.
+    pub k: DMatrix<f64>,
+    /// Its inverse.
+    pub kinv: DMatrix<f64>,
+    /// Every term as (wire offset, cell lattice vector) parts.
+    pub terms: Vec<Vec<(usize, Vec<f64>)>>,
+    /// Largest separation of an interaction block or a term.
+    pub range: usize,
+    /// The array is infinite (else periodic with `wires` wires).
+    pub infinite: bool,
 }
 
 impl System {
@@ -33,15 +60,171 @@ impl System {
 
     /// Prepare a validated model.
     pub fn new(model: Model) -> Result<System, InputError> {
-        let lattice = Lattice::build(&model)?;
+        let lattice = if model.is_infinite() {
+            Lattice::stand_in(&model)?
+        } else {
+            Lattice::build(&model)?
+        };
         let invariants = Invariants::compute(&model, &lattice)?;
         let k = lattice.k_f64();
+        let periodic = lattice.boundary == Some(Boundary::Periodic) && lattice.wires >= 2;
+        let q = periodic.then(|| QModel::new(&model, &lattice, &invariants));
         Ok(System {
             model,
             lattice,
             invariants,
             k,
+            q,
         })
+    }
+
+    /// True for an infinite array.
+    pub fn is_infinite(&self) -> bool {
+        self.lattice.infinite
+    }
+
+    /// The V blocks V^(0), V^(1), ... at a point (checked: finite, block 0
+    /// symmetric); errors name the entry and the point.
+    pub fn v_blocks(&self, point: &[f64]) -> Result<Vec<DMatrix<f64>>, Error> {
+        let blocks = lattice::eval_blocks(&self.model, point)
+            .and_then(|b| lattice::check_block_symmetric(&self.model, &b[0]).map(|_| b))
+            .map_err(|msg| self.point_error(msg, point))?;
+        Ok(blocks)
+    }
+
+    fn point_error(&self, msg: String, point: &[f64]) -> Error {
+        InputError::new(
+            &self.model.file,
+            "",
+            format!("{msg} at {}", self.model.params.describe(point)),
+        )
+        .into()
+    }
+
+    fn q_model(&self) -> Result<&QModel, Error> {
+        self.q.as_ref().ok_or_else(|| {
+            InputError::new(
+                &self.model.file,
+                "array",
+                "the q-space path needs a periodic array of at least 2 wires or an infinite array",
+            )
+            .into()
+        })
+    }
+
+    fn unphysical(&self, point: &[f64], e: NotPositive) -> Error {
+        Error::Unphysical(Unphysical {
+            point: self.model.params.describe(point),
+            smallest_eigenvalue: e.smallest_eigenvalue,
+            q: Some(e.q),
+        })
+    }
+
+    /// The fixed point on the N-point rule q_k = 2 pi k / N. For a periodic
+    /// array of W wires, N = W gives its exact fixed point (the dense
+    /// path's numbers); for an infinite array any N >= 1 is a quadrature
+    /// rule, and V(q) is certified positive definite at every q.
+    pub fn q_fixed_point(&self, point: &[f64], points: usize) -> Result<QFixedPoint, Error> {
+        let qm = self.q_model()?;
+        let blocks = self.v_blocks(point)?;
+        let fp = QFixedPoint::solve(&qm.k, &blocks, points).map_err(|e| {
+            // A periodic array: report the smallest eigenvalue over all q,
+            // which is the smallest eigenvalue of the dense V.
+            let worst = (0..qspace::half(points))
+                .map(|k| {
+                    let q = qspace::q_of(k, points);
+                    let e = qspace::smallest_eigenvalue(&qspace::v_of_q(&blocks, q));
+                    NotPositive {
+                        q,
+                        smallest_eigenvalue: e,
+                    }
+                })
+                .min_by(|a, b| a.smallest_eigenvalue.total_cmp(&b.smallest_eigenvalue))
+                .unwrap_or(e);
+            self.unphysical(point, worst)
+        })?;
+        if qm.infinite {
+            qspace::certify_positive(&blocks, points).map_err(|e| self.unphysical(point, e))?;
+        }
+        Ok(fp)
+    }
+
+    /// The infinite array's fixed point on the refined rule: N doubled until
+    /// every term's dimension and every entry of D^(0) changes by at most
+    /// [`qspace::TOLERANCE`] (see [`qspace::converge`]).
+    pub fn q_converged(&self, point: &[f64]) -> Result<(QFixedPoint, Quadrature), Error> {
+        let qm = self.q_model()?;
+        let blocks = self.v_blocks(point)?;
+        qspace::converge(&qm.k, &blocks, &qm.terms, qm.range, qspace::TOLERANCE)
+            .map_err(|e| self.unphysical(point, e))
+    }
+
+    /// The infinite array's fixed point on a given N-point rule, with the
+    /// error estimate of that rule (its difference from the 2N-point rule).
+    pub fn q_on_rule(
+        &self,
+        point: &[f64],
+        points: usize,
+    ) -> Result<(QFixedPoint, Quadrature), Error> {
+        let qm = self.q_model()?;
+        let blocks = self.v_blocks(point)?;
+        qspace::on_rule(&qm.k, &blocks, &qm.terms, points, qspace::TOLERANCE)
+            .map_err(|e| self.unphysical(point, e))
+    }
+
+    /// Bosonic dimension of every term from a q-space fixed point.
+    pub fn q_dimensions(&self, fp: &QFixedPoint) -> Result<Vec<f64>, Error> {
+        let qm = self.q_model()?;
+        Ok(qm.terms.iter().map(|t| fp.dimension_of(t)).collect())
+    }
+
+    /// The real-space D restricted to `wires` consecutive wires (fields
+    /// wire-major), from D(q): D_{j,j'} = integral dq/2pi e^{iq(j-j')} D(q)
+    /// (conventions of [`crate::qspace`]). A periodic array of W wires:
+    /// exact on its W points (a window of at most W wires). An infinite
+    /// array: the rule is doubled from the converged one until every entry
+    /// changes by at most [`qspace::TOLERANCE`]; the quadrature reached is
+    /// returned with it.
+    pub fn real_space_window(
+        &self,
+        point: &[f64],
+        wires: usize,
+    ) -> Result<(DMatrix<f64>, Option<Quadrature>), Error> {
+        let qm = self.q_model()?;
+        if !qm.infinite {
+            let w = self.lattice.wires;
+            if wires > w {
+                return Err(InputError::new(
+                    &self.model.file,
+                    "array.wires",
+                    format!("a window of {wires} wires does not fit a periodic array of {w} wires"),
+                )
+                .into());
+            }
+            let fp = self.q_fixed_point(point, w)?;
+            return Ok((fp.real_space_window(wires), None));
+        }
+        let blocks = self.v_blocks(point)?;
+        let (mut fp, _) = self.q_converged(point)?;
+        let mut window = fp.real_space_window(wires);
+        loop {
+            let finer = fp
+                .refined(&qm.k, &blocks)
+                .map_err(|e| self.unphysical(point, e))?;
+            let next = finer.real_space_window(wires);
+            let change = (&next - &window).amax();
+            fp = finer;
+            window = next;
+            if change <= qspace::TOLERANCE || fp.points >= qspace::MAX_POINTS {
+                let quad = Quadrature {
+                    points: fp.points,
+                    error_estimate: change,
+                    tolerance: qspace::TOLERANCE,
+                    converged: change <= qspace::TOLERANCE,
+                };
+                return Ok((window, Some(quad)));
+            }
+        }
     }
 
     /// Dense V at a point; errors name the entry and the point.
@@ -59,14 +242,25 @@ impl System {
         Ok(v)
     }
 
-    /// The fixed point at a parameter point; a V that is not positive
-    /// definite is reported as [`Unphysical`] with the point.
+    /// The fixed point at a parameter point by the dense path; a V that is
+    /// not positive definite is reported as [`Unphysical`] with the point.
+    /// An infinite array has no dense fixed point (an input error that says
+    /// so): use [`System::q_converged`].
     pub fn fixed_point(&self, point: &[f64]) -> Result<FixedPoint, Error> {
+        if self.is_infinite() {
+            return Err(InputError::new(
+                &self.model.file,
+                "array.wires",
+                "an infinite array has no dense fixed point; it is computed in q-space (System::q_converged)",
+            )
+            .into());
+        }
         let v = self.v_at(point)?;
         FixedPoint::solve(&self.k, &v).map_err(|smallest_eigenvalue| {
             Error::Unphysical(Unphysical {
                 point: self.model.params.describe(point),
                 smallest_eigenvalue,
+                q: None,
             })
         })
     }
@@ -110,5 +304,40 @@ impl System {
                 })
                 .collect(),
         )
+    }
+}
+
+impl QModel {
+    fn new(model: &Model, lat: &Lattice, inv: &Invariants) -> QModel {
+        let c = lat.cell;
+        let k = DMatrix::from_fn(c, c, |i, j| model.cell_k[i][j] as f64);
+        let kinv = DMatrix::from_fn(c, c, |i, j| crate::exact::to_f64(&inv.cell_inverse[i][j]));
+        let terms = model
+            .terms
+            .iter()
+            .map(|t| {
+                t.parts
+                    .iter()
+                    .map(|(off, v)| {
+                        let l: Vec<f64> = match t.content {
+                            Content::Vector => v.iter().map(|x| *x as f64).collect(),
+                            // l = K_c m; exact in floats (it fitted in i64
+                            // when the lattice was built).
+                            Content::Particles => (0..c)
+                                .map(|a| (0..c).map(|b| (model.cell_k[a][b] * v[b]) as f64).sum())
+                                .collect(),
+                        };
+                        (*off, l)
+                    })
+                    .collect()
+            })
+            .collect();
+        QModel {
+            k,
+            kinv,
+            terms,
+            range: model.range(),
+            infinite: lat.infinite,
+        }
     }
 }

@@ -25,7 +25,7 @@
 
 mod common;
 
-use common::{assert_close, report_at, term};
+use common::{assert_close, report_at, sliding, term};
 
 /// Particle content (R, L) of the filling-1/m term on wires j and j + 1.
 fn link(m: i64) -> ([i64; 2], [i64; 2]) {
@@ -179,40 +179,6 @@ fn array_totals_scale_with_the_number_of_wires() {
     }
 }
 
-/// A periodic ring of spinless wires with intrawire g and nearest-neighbour
-/// density-density w, written with the parameters K0 and lam of the sliding
-/// Luttinger liquid: g = (1 - K0^2)/(1 + K0^2), w = lam (1 + g)/4.
-const SLIDING_RING: &str = r#"
-name = "sliding Luttinger liquid, 128-wire ring"
-
-[params]
-K0 = 0.8
-lam = 0.5
-
-[array]
-wires = 128
-boundary = "periodic"
-K = [[1, 0], [0, -1]]
-charge = [1, 1]
-
-[array.V]
-0 = [["1", "(1 - K0^2)/(1 + K0^2)"], ["(1 - K0^2)/(1 + K0^2)", "1"]]
-1 = [["lam*(1 + (1 - K0^2)/(1 + K0^2))/4", "lam*(1 + (1 - K0^2)/(1 + K0^2))/4"],
-     ["lam*(1 + (1 - K0^2)/(1 + K0^2))/4", "lam*(1 + (1 - K0^2)/(1 + K0^2))/4"]]
-
-[[term]]
-name = "cdw"
-particles = { 0 = [1, -1], 1 = [-1, 1] }
-
-[[term]]
-name = "pair_hop"
-particles = { 0 = [1, 1], 1 = [-1, -1] }
-
-[[term]]
-name = "hop"
-particles = { 0 = [1, 0], 1 = [-1, 0] }
-"#;
-
 #[test]
 fn sliding_luttinger_liquid_on_a_large_ring() {
     // Mukhopadhyay, Kane & Lubensky, PRB 64, 045120 (2001) (structure from
@@ -228,7 +194,8 @@ fn sliding_luttinger_liquid_on_a_large_ring() {
     // periodic ring of W wires is the trapezoid rule on q = 2 pi k / W; the
     // integrand is analytic in a strip |Im q| < arccosh(2) = 1.317, so with
     // W = 128 the rule is exact to far below 1e-12.
-    let r = report_at(SLIDING_RING, &[]);
+    // A periodic ring of 128 spinless wires (common::sliding).
+    let r = report_at(&sliding("128", 0.1), &[]);
     let cases = [
         ("cdw", 1.915_616_868_710_5, 1.91562),
         ("pair_hop", 2.137_762_977_518_6, 2.13776),

@@ -425,10 +425,21 @@ fn bad_arrays() {
         &[],
         &["array.V", "interaction range 1", "2 wires"],
     );
+    // Infinite arrays: the number of wires must be a positive integer or
+    // the exact word; a term may reach at most 64 wires.
     expect_input_error(
-        &array("\"infinite\"", ""),
+        &array("\"endless\"", ""),
         &[],
-        &["array.wires", "not yet supported"],
+        &["array.wires", "\"infinite\""],
+    );
+    expect_input_error(&array("0", ""), &[], &["array.wires", "positive integer"]);
+    expect_input_error(
+        &format!(
+            "{}\n[[term]]\nname = \"far\"\nparticles = {{ 0 = [1, -1], 65 = [-1, 1] }}\n",
+            array("\"infinite\"", "")
+        ),
+        &[],
+        &["term \"far\".particles", "at most offset 64"],
     );
 }
 

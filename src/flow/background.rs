@@ -22,7 +22,10 @@
 //!
 //!   Cost W n_c^2 per channel instead of W N^2; since D and l are real,
 //!   D(-q) = conj D(q) and only q in [0, pi] is stored. The same layout on
-//!   the points of a quadrature is the infinite array.
+//!   the N points of a quadrature rule is the infinite array: its flow is
+//!   exactly the family flow of a periodic array of N wires. The algebra
+//!   (dimension, blocks, drift) lives in [`crate::qspace`], shared with the
+//!   fixed point.
 //!
 //! Neither layout allocates: callers pass scratch space of `scratch_len()`.
 
@@ -30,6 +33,7 @@ use nalgebra::DMatrix;
 use num_complex::Complex64;
 
 use super::channels::Channel;
+use crate::qspace;
 
 /// Storage of D inside the ODE state.
 #[derive(Debug, Clone)]
@@ -39,10 +43,12 @@ pub enum Background {
         /// Number of fields.
         n: usize,
     },
-    /// Fourier blocks D(q_k), k = 0..W-1, each n_c x n_c complex, stored
-    /// as interleaved (re, im) pairs, row-major.
+    /// Fourier blocks D(q_k), k = 0..=W/2, each n_c x n_c complex, stored
+    /// as interleaved (re, im) pairs, row-major (the layout of
+    /// [`crate::qspace`]).
     Fourier {
-        /// Wires (number of q points).
+        /// Wires of a periodic array, or the points of the quadrature rule
+        /// of an infinite array (number of q points).
         wires: usize,
         /// Fields per wire.
         cell: usize,
@@ -63,7 +69,7 @@ impl Background {
         self.len() == 0
     }
 
-    /// Scratch floats needed by [`Background::add_feedback`].
+    /// Scratch floats needed by [`Background::dimension_and_feedback`].
     pub fn scratch_len(&self) -> usize {
         match *self {
             Background::Dense { n } => n,
@@ -103,24 +109,29 @@ impl Background {
         match *self {
             Background::Dense { n } => DMatrix::from_fn(n, n, |i, j| s[i * n + j]),
             Background::Fourier { wires, cell } => {
-                // D^(n) = (1/W) sum_k D(q_k) e^{-i q_k n}
-                let block = |sep: usize, a: usize, b: usize| -> f64 {
-                    let re: f64 = (0..half(wires))
-                        .map(|k| {
-                            let at = 2 * ((k * cell + a) * cell + b);
-                            let z =
-                                Complex64::new(s[at], s[at + 1]) * phase(k, -(sep as i64), wires);
-                            weight_of(k, wires) * z.re
-                        })
-                        .sum();
-                    re / wires as f64
-                };
+                let blocks: Vec<DMatrix<f64>> = (0..wires)
+                    .map(|sep| qspace::block(s, wires, cell, sep as i64))
+                    .collect();
                 let n = wires * cell;
                 DMatrix::from_fn(n, n, |i, j| {
                     let (wi, a, wj, b) = (i / cell, i % cell, j / cell, j % cell);
-                    block((wj + wires - wi) % wires, a, b)
+                    blocks[(wj + wires - wi) % wires][(a, b)]
                 })
             }
+        }
+    }
+
+    /// Largest entry of D K D - K^-1 relative to the largest entry of K^-1:
+    /// over the dense matrix, or over the stored Fourier blocks
+    /// D(q) K_c D(q) - K_c^-1 (no dense matrix is formed). `k` is the dense
+    /// K (Dense) or the cell K (Fourier).
+    pub fn drift(&self, s: &[f64], k: &DMatrix<f64>) -> f64 {
+        match *self {
+            Background::Dense { .. } => super::dkd_drift(k, &self.dense(s)),
+            Background::Fourier { wires, .. } => match k.clone().try_inverse() {
+                Some(kinv) => qspace::drift(s, wires, k, &kinv),
+                None => f64::NAN,
+            },
         }
     }
 
@@ -138,22 +149,7 @@ impl Background {
                 }
                 0.5 * acc
             }
-            Background::Fourier { wires, cell } => {
-                let mut acc = 0.0;
-                for k in 0..half(wires) {
-                    let lq = &ch.lq[k * cell..(k + 1) * cell];
-                    let mut term = 0.0;
-                    for a in 0..cell {
-                        for b in 0..cell {
-                            let at = 2 * ((k * cell + a) * cell + b);
-                            let d = Complex64::new(s[at], s[at + 1]);
-                            term += (lq[a].conj() * d * lq[b]).re;
-                        }
-                    }
-                    acc += weight_of(k, wires) * term;
-                }
-                acc / (2.0 * wires as f64)
-            }
+            Background::Fourier { wires, cell } => qspace::dimension(s, &ch.lq, wires, cell),
         }
     }
 
@@ -194,7 +190,7 @@ impl Background {
                         u[2 * a] = z.re;
                         u[2 * a + 1] = z.im;
                     }
-                    acc += weight_of(k, wires) * quad;
+                    acc += qspace::weight(k, wires) * quad;
                     if weight > 0.0 {
                         let gq = &ch.gq[k * cell..(k + 1) * cell];
                         outer_update(u, gq, c, &mut ds[base..base + 2 * cell * cell]);
@@ -221,28 +217,7 @@ fn outer_update(u: &[f64], g: &[Complex64], c: f64, ds: &mut [f64]) {
     }
 }
 
-/// Number of stored q points: for real D and l, D(-q) = conj D(q) and
-/// L(-q) = conj L(q), so only k = 0..=W/2 are kept.
-pub fn half(wires: usize) -> usize {
-    wires / 2 + 1
-}
-
-/// Weight of stored point k in sums over all W points: 1 for q = 0 and
-/// q = pi, 2 for the others (each stands for itself and -q).
-#[inline]
-pub fn weight_of(k: usize, wires: usize) -> f64 {
-    if k == 0 || 2 * k == wires {
-        1.0
-    } else {
-        2.0
-    }
-}
-
-/// e^{i 2 pi k n / W}.
-pub fn phase(k: usize, n: i64, wires: usize) -> Complex64 {
-    let q = 2.0 * std::f64::consts::PI * k as f64 / wires as f64;
-    Complex64::from_polar(1.0, q * n as f64)
-}
+pub use crate::qspace::{half, phase, weight};
 
 fn dense_feedback(n: usize, s: &[f64], ch: &Channel, c: f64, ds: &mut [f64], u: &mut [f64]) {
     for (l, g) in ch.l_sparse.iter().zip(&ch.g_sparse) {

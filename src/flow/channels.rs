@@ -23,6 +23,7 @@ use crate::exact::{self, Rational};
 use crate::invariants::particles_of;
 use crate::lattice::{Family, Lattice};
 use crate::model::Boundary;
+use crate::qspace;
 use crate::system::System;
 
 /// How a channel came about.
@@ -62,8 +63,9 @@ pub struct Channel {
     pub l_sparse: Vec<Vec<(usize, f64)>>,
     /// Sparse K^-1 l of every translate.
     pub g_sparse: Vec<Vec<(usize, f64)>>,
-    /// Periodic arrays: L(q_k) = sum_j l_j e^{-i q_k j} of the representative,
-    /// k-major (W n_c entries); empty otherwise.
+    /// Periodic arrays: L(q_k) = sum_j l_j e^{-i q_k j} of the representative
+    /// on the stored points k = 0..=W/2, k-major; empty otherwise (infinite
+    /// arrays fill it per flow with [`Channel::on_rule`]).
     pub lq: Vec<Complex64>,
     /// Periodic arrays: K_c^-1 L(q_k).
     pub gq: Vec<Complex64>,
@@ -73,6 +75,34 @@ impl Channel {
     /// Spin zero: the channel can pin and feeds back on D.
     pub fn null(&self) -> bool {
         self.spin.is_zero()
+    }
+
+    /// The representative as (wire offset from its anchor, cell lattice
+    /// vector) parts. On a ring the offsets are taken modulo W, which is
+    /// the same phase on its W points; on the stand-in of an infinite array
+    /// the representative sits at anchor 0 without wrapping, so the offsets
+    /// are the line's.
+    pub fn cell_parts(&self, lat: &Lattice) -> Vec<(usize, Vec<f64>)> {
+        let rep = self.family.rep();
+        rep.parts
+            .iter()
+            .map(|(wire, l)| {
+                let off = (wire + lat.wires - rep.anchor) % lat.wires.max(1);
+                (off, l.iter().map(|x| *x as f64).collect())
+            })
+            .collect()
+    }
+
+    /// A copy whose `lq`, `gq` are on the stored points of an N-point rule
+    /// (the infinite array's flow on its quadrature points).
+    pub fn on_rule(&self, lat: &Lattice, kinv: &nalgebra::DMatrix<f64>, points: usize) -> Channel {
+        let lq = qspace::fourier_vector(&self.cell_parts(lat), lat.cell, points);
+        let gq = qspace::times_cell(kinv, &lq);
+        Channel {
+            lq,
+            gq,
+            ..self.clone()
+        }
     }
 }
 
@@ -172,12 +202,19 @@ impl Plan {
                             continue;
                         };
                         let shift = (tb.anchor + lat.wires - rep_a.anchor) % lat.wires.max(1);
+                        // On the stand-in of an infinite array a shift past
+                        // half the ring is a negative shift on the line.
+                        let shown = if lat.infinite && 2 * shift > lat.wires {
+                            shift as i64 - lat.wires as i64
+                        } else {
+                            shift as i64
+                        };
                         let name = generated_name(
                             &self.channels[a].name,
                             sign,
                             &self.channels[b].name,
                             a == b,
-                            shift,
+                            shown,
                         );
                         let spin = &self.channels[a].spin + &self.channels[b].spin;
                         let c = self.channels.len();
@@ -197,7 +234,7 @@ fn has_extra(sys: &System, term: usize) -> bool {
     !(t.extra_spin.is_zero() && t.extra_dimension.is_const() && t.extra_dimension.eval(&[]) == 0.0)
 }
 
-fn generated_name(a: &str, sign: i8, b: &str, same: bool, shift: usize) -> String {
+fn generated_name(a: &str, sign: i8, b: &str, same: bool, shift: i64) -> String {
     if same && sign > 0 && shift == 0 {
         return format!("2*{a}");
     }
@@ -227,8 +264,7 @@ fn make_channel(
     }
     let particles = particles_of(lat, inv, family.rep());
     let charge = exact::dot_int(&particles, &lat.charge);
-    let (lq, gq) = fourier_of(lat, inv, &family.rep().l);
-    Channel {
+    let mut ch = Channel {
         name,
         origin,
         family,
@@ -237,38 +273,14 @@ fn make_channel(
         particles,
         l_sparse,
         g_sparse,
-        lq,
-        gq,
+        lq: Vec::new(),
+        gq: Vec::new(),
+    };
+    // Periodic rings: L(q) on their W points. Infinite arrays: per flow.
+    if let (Some(q), false) = (&sys.q, lat.infinite) {
+        ch = ch.on_rule(lat, &q.kinv, lat.wires);
     }
-}
-
-/// L(q_k) and K_c^-1 L(q_k) on the W points q_k = 2 pi k / W of a periodic
-/// array (empty for other lattices).
-fn fourier_of(lat: &Lattice, inv: &[Vec<Rational>], l: &[i64]) -> (Vec<Complex64>, Vec<Complex64>) {
-    if lat.boundary != Some(Boundary::Periodic) || lat.wires < 2 {
-        return (Vec::new(), Vec::new());
-    }
-    let (w, c) = (lat.wires, lat.cell);
-    let kinv: Vec<Vec<f64>> = inv
-        .iter()
-        .map(|r| r.iter().map(exact::to_f64).collect())
-        .collect();
-    let mut lq = vec![Complex64::new(0.0, 0.0); w * c];
-    for k in 0..w {
-        for j in 0..w {
-            let ph = super::background::phase(k, -(j as i64), w);
-            for a in 0..c {
-                lq[k * c + a] += ph * l[j * c + a] as f64;
-            }
-        }
-    }
-    let gq = (0..w * c)
-        .map(|i| {
-            let (k, a) = (i / c, i % c);
-            (0..c).map(|b| lq[k * c + b] * kinv[a][b]).sum()
-        })
-        .collect();
-    (lq, gq)
+    ch
 }
 
 fn sparse(values: impl Iterator<Item = f64>) -> Vec<(usize, f64)> {

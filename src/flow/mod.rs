@@ -134,8 +134,12 @@ pub struct FlowResult {
     pub commuting_with_winner: Vec<String>,
     /// Terms that do not commute with the winner (pinning suppresses them).
     pub suppressed: Vec<String>,
-    /// Largest |D K D - K^-1| entry relative to |K^-1| at the end.
+    /// Largest |D K D - K^-1| entry relative to |K^-1| at the end (for D
+    /// carried in q-space: over the blocks D(q) K_c D(q) - K_c^-1).
     pub dkd_drift: f64,
+    /// Infinite arrays: the quadrature rule D(q) was carried on, with the
+    /// error estimate of the bare dimensions on it; null otherwise.
+    pub quadrature: Option<crate::qspace::Quadrature>,
     /// Accepted integration steps.
     pub steps: usize,
     /// A message for unphysical or failed points.
@@ -153,7 +157,29 @@ pub struct Flow<'s> {
     pub plan: Plan,
     /// Options.
     pub opts: FlowOptions,
+    layout: Layout,
+}
+
+/// How D is carried.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Layout {
+    /// The dense matrix (explicit models, open arrays, `dense_d`).
+    Dense,
+    /// Fourier blocks on the W points of a periodic array, from the
+    /// q-space fixed point.
+    Ring,
+    /// Fourier blocks on the points of the infinite array's quadrature
+    /// rule (converged, or `q_points`).
+    Infinite,
+}
+
+/// The start of one flow: D's layout and bare state, the channels with
+/// their L(q) on that layout (infinite arrays), the quadrature.
+struct Start {
     bg: Background,
+    d0: Vec<f64>,
+    channels: Option<Vec<Channel>>,
+    quadrature: Option<crate::qspace::Quadrature>,
 }
 
 impl<'s> Flow<'s> {
@@ -161,43 +187,103 @@ impl<'s> Flow<'s> {
     pub fn new(sys: &'s System, opts: FlowOptions) -> Flow<'s> {
         let plan = Plan::build(sys, opts.closure == Closure::Pairs);
         let lat = &sys.lattice;
-        let bg = match lat.boundary {
-            Some(Boundary::Periodic) if lat.wires > 1 && !opts.dense_d => Background::Fourier {
-                wires: lat.wires,
-                cell: lat.cell,
-            },
-            _ => Background::Dense { n: lat.n },
+        let layout = if sys.is_infinite() {
+            Layout::Infinite
+        } else {
+            match lat.boundary {
+                Some(Boundary::Periodic) if lat.wires > 1 && !opts.dense_d => Layout::Ring,
+                _ => Layout::Dense,
+            }
         };
         Flow {
             sys,
             plan,
             opts,
-            bg,
+            layout,
+        }
+    }
+
+    fn start(&self, point: &[f64]) -> Result<Start, Error> {
+        let lat = &self.sys.lattice;
+        match self.layout {
+            Layout::Dense => {
+                let fp = self.sys.fixed_point(point)?;
+                let bg = Background::Dense { n: lat.n };
+                let mut d0 = vec![0.0; bg.len()];
+                bg.write(&fp.d, &mut d0);
+                Ok(Start {
+                    bg,
+                    d0,
+                    channels: None,
+                    quadrature: None,
+                })
+            }
+            Layout::Ring => {
+                let fp = self.sys.q_fixed_point(point, lat.wires)?;
+                Ok(Start {
+                    bg: Background::Fourier {
+                        wires: lat.wires,
+                        cell: lat.cell,
+                    },
+                    d0: fp.d,
+                    channels: None,
+                    quadrature: None,
+                })
+            }
+            Layout::Infinite => {
+                let (fp, quad) = match self.opts.q_points {
+                    Some(n) => self.sys.q_on_rule(point, n)?,
+                    None => self.sys.q_converged(point)?,
+                };
+                let kinv = &self
+                    .sys
+                    .q
+                    .as_ref()
+                    .ok_or_else(|| {
+                        Error::Numerical("an infinite array without q-space data".into())
+                    })?
+                    .kinv;
+                let channels = self
+                    .plan
+                    .channels
+                    .iter()
+                    .map(|c| c.on_rule(lat, kinv, fp.points))
+                    .collect();
+                Ok(Start {
+                    bg: Background::Fourier {
+                        wires: fp.points,
+                        cell: lat.cell,
+                    },
+                    d0: fp.d,
+                    channels: Some(channels),
+                    quadrature: Some(quad),
+                })
+            }
         }
     }
 
     /// Flow at one parameter point.
     pub fn run(&self, point: &[f64]) -> Result<FlowResult, Error> {
-        let fp = match self.sys.fixed_point(point) {
-            Ok(fp) => fp,
+        let start = match self.start(point) {
+            Ok(s) => s,
             Err(Error::Unphysical(u)) => {
                 return Ok(FlowResult::without_flow(Outcome::Unphysical, u.to_string()))
             }
             Err(e) => return Err(e),
         };
+        let all: &[Channel] = start.channels.as_deref().unwrap_or(&self.plan.channels);
         let bare = self.bare_couplings(point)?;
         let extra_listed = self.sys.extra_dimensions(point)?;
-        let mut d0 = vec![0.0; self.bg.len()];
-        self.bg.write(&fp.d, &mut d0);
-        let included = self.included(&d0);
-        let channels: Vec<&Channel> = included.iter().map(|&c| &self.plan.channels[c]).collect();
+        let d0 = &start.d0;
+        let included = self.included(&start.bg, all, d0);
+        let channels: Vec<&Channel> = included.iter().map(|&c| &all[c]).collect();
         let extra: Vec<f64> = included
             .iter()
             .map(|&c| extra_of(&self.plan.channels[c], &extra_listed))
             .collect();
         let ope = remap_ope(&self.plan, &included);
         let momenta = self.momenta(point, &included);
-        let mut rhs = FlowRhs::new(self.bg.clone(), channels, extra, ope);
+        let mut rhs = FlowRhs::new(start.bg.clone(), channels, extra, ope);
         rhs.y_strong = self.opts.y_strong;
         rhs.floor = self.opts.floor;
         rhs.record = self.opts.record;
@@ -208,7 +294,7 @@ impl<'s> Flow<'s> {
                 y0[2 * i + 1] = 0.5 * y * chi.sin();
             }
         }
-        y0.as_mut_slice()[2 * included.len()..].copy_from_slice(&d0);
+        y0.as_mut_slice()[2 * included.len()..].copy_from_slice(d0);
         for i in 0..included.len() {
             // So irrelevant that the coupling vanishes within ell ~ 1/DECAYED_AT_ONCE:
             // treating it as zero keeps the flow from becoming needlessly stiff.
@@ -221,9 +307,11 @@ impl<'s> Flow<'s> {
         let y_start = y0.clone();
         let ell_k: Vec<Option<f64>> = momenta.iter().map(|k| k.and_then(cutoff_scale)).collect();
         let integrated = integrate(&mut rhs, y0, &ell_k, &self.opts);
-        Ok(self.summarise(
+        let mut result = self.summarise(
             &rhs, &included, &bare, &y_start, &momenta, &ell_k, integrated,
-        ))
+        );
+        result.quadrature = start.quadrature;
+        Ok(result)
     }
 
     /// (y, chi) of every listed channel at a point.
@@ -251,15 +339,15 @@ impl<'s> Flow<'s> {
             .collect()
     }
 
-    /// Listed channels plus generated ones below the closure bound.
-    fn included(&self, d0: &[f64]) -> Vec<usize> {
-        (0..self.plan.channels.len())
-            .filter(|&c| {
-                c < self.plan.listed || {
-                    let ch = &self.plan.channels[c];
-                    self.bg.dimension(d0, ch) < self.opts.closure_bound
-                }
-            })
+    /// Listed channels plus generated ones below the closure bound. A bare
+    /// dimension equal to the bound in exact arithmetic (e.g. 2 l of a term
+    /// with Delta = 1 against the bound 4) must not be decided by rounding,
+    /// which differs between the dense and the q-space paths: values within
+    /// [`CLOSURE_SLACK`] of the bound count as below it.
+    fn included(&self, bg: &Background, all: &[Channel], d0: &[f64]) -> Vec<usize> {
+        let bound = self.opts.closure_bound + CLOSURE_SLACK;
+        (0..all.len())
+            .filter(|&c| c < self.plan.listed || bg.dimension(d0, &all[c]) < bound)
             .collect()
     }
 
@@ -305,7 +393,7 @@ impl<'s> Flow<'s> {
                         "generated"
                     }
                     .to_string(),
-                    parents: parents_of(&self.plan, ch),
+                    parents: parents_of(&self.plan, ch, &self.sys.lattice),
                     coupling0: y0,
                     phase0: chi0,
                     dimension0: rhs.dimension(y_start.as_slice(), i),
@@ -319,7 +407,10 @@ impl<'s> Flow<'s> {
                 }
             })
             .collect();
-        let d_end = self.bg.dense(&y_end[2 * nc..]);
+        let drift = match (&rhs.bg, &self.sys.q) {
+            (Background::Fourier { .. }, Some(q)) => rhs.bg.drift(&y_end[2 * nc..], &q.k),
+            _ => rhs.bg.drift(&y_end[2 * nc..], &self.sys.k),
+        };
         let mut result = FlowResult {
             outcome: integrated.outcome,
             winner_index: integrated.winner,
@@ -332,7 +423,8 @@ impl<'s> Flow<'s> {
             terms,
             commuting_with_winner: Vec::new(),
             suppressed: Vec::new(),
-            dkd_drift: dkd_drift(&self.sys.k, &d_end),
+            dkd_drift: drift,
+            quadrature: None,
             steps: rhs.steps,
             message: integrated.message,
             samples: rhs.samples.clone(),
@@ -375,6 +467,7 @@ impl FlowResult {
             commuting_with_winner: Vec::new(),
             suppressed: Vec::new(),
             dkd_drift: 0.0,
+            quadrature: None,
             steps: 0,
             message: Some(message),
             samples: Vec::new(),
@@ -389,10 +482,17 @@ fn extra_of(ch: &Channel, extra_listed: &[f64]) -> f64 {
     }
 }
 
-fn parents_of(plan: &Plan, ch: &Channel) -> Option<String> {
+fn parents_of(plan: &Plan, ch: &Channel, lat: &crate::lattice::Lattice) -> Option<String> {
     match ch.origin {
         Origin::Listed(_) => None,
         Origin::Generated { a, sign, b, shift } => {
+            // The stand-in ring of an infinite array: past half the ring is
+            // a negative shift on the line.
+            let shift = if lat.infinite && 2 * shift > lat.wires {
+                shift as i64 - lat.wires as i64
+            } else {
+                shift as i64
+            };
             let op = if sign > 0 { "+" } else { "-" };
             let (na, nb) = (&plan.channels[a].name, &plan.channels[b].name);
             Some(if shift == 0 {
@@ -436,6 +536,9 @@ pub fn dkd_drift(k: &nalgebra::DMatrix<f64>, d: &nalgebra::DMatrix<f64>) -> f64 
     let diff = d * k * d - &kinv;
     diff.amax() / kinv.amax()
 }
+
+/// Rounding allowance of the closure bound (see `Flow::included`).
+pub const CLOSURE_SLACK: f64 = 1e-9;
 
 /// Terms with a bare dimension above this are treated as decayed at once
 /// (their coupling shrinks by e^-(Delta-2) per unit of ell).

@@ -48,9 +48,14 @@ pub struct FlowOptions {
     #[serde(skip)]
     pub record: bool,
     /// Carry D as a dense matrix even for periodic arrays (the Fourier
-    /// layout is the default there); both paths must agree.
+    /// layout is the default there); both paths must agree. Infinite arrays
+    /// have no dense layout and ignore it.
     #[serde(skip)]
     pub dense_d: bool,
+    /// Infinite arrays: the number of quadrature points D(q) is carried on
+    /// (default: the converged rule of the bare fixed point).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub q_points: Option<usize>,
 }
 
 impl Default for FlowOptions {
@@ -66,6 +71,7 @@ impl Default for FlowOptions {
             max_steps: 100_000,
             record: true,
             dense_d: false,
+            q_points: None,
         }
     }
 }
@@ -98,6 +104,10 @@ pub struct FlowOverrides {
     /// Absolute tolerance of the integrator [default 1e-12].
     #[arg(long, allow_negative_numbers = true, value_name = "TOL")]
     pub atol: Option<f64>,
+    /// Infinite arrays: carry D(q) on this many quadrature points [default:
+    /// the rule that converges the bare dimensions to 1e-10].
+    #[arg(long, allow_negative_numbers = true, value_name = "N")]
+    pub q_points: Option<i64>,
 }
 
 impl FlowOptions {
@@ -125,6 +135,9 @@ impl FlowOptions {
         if let Some(b) = over.closure_bound {
             check_non_negative(b, "command line", "--closure-bound")?;
             o.closure_bound = b;
+        }
+        if let Some(n) = over.q_points {
+            o.q_points = Some(check_q_points(model, n, "command line", "--q-points")?);
         }
         if o.floor >= o.y_strong {
             return Err(InputError::new(
@@ -156,6 +169,19 @@ impl FlowOptions {
                 "floor" => self.floor = positive(num()?, &model.file, &full)?,
                 "rtol" => self.rtol = positive(num()?, &model.file, &full)?,
                 "atol" => self.atol = positive(num()?, &model.file, &full)?,
+                "q_points" => {
+                    let n = match value {
+                        toml::Value::Integer(i) => *i,
+                        other => {
+                            return Err(InputError::new(
+                                &model.file,
+                                &full,
+                                format!("expected a whole number of points, found {other}"),
+                            ))
+                        }
+                    };
+                    self.q_points = Some(check_q_points(model, n, &model.file, &full)?);
+                }
                 "closure_bound" => {
                     let b = num()?;
                     check_non_negative(b, &model.file, &full)?;
@@ -178,13 +204,39 @@ impl FlowOptions {
                     return Err(InputError::new(
                         &model.file,
                         &full,
-                        "unknown key (known: ell_max, y_strong, floor, closure, closure_bound, rtol, atol)",
+                        "unknown key (known: ell_max, y_strong, floor, closure, closure_bound, rtol, atol, q_points)",
                     ))
                 }
             }
         }
         Ok(())
     }
+}
+
+/// A number of quadrature points: only for infinite arrays, at least
+/// 2 R + 1 for interactions and terms of range R (fewer points cannot
+/// resolve V(q) and L(q)), at most [`crate::qspace::MAX_POINTS`].
+fn check_q_points(model: &Model, n: i64, file: &str, key: &str) -> Result<usize, InputError> {
+    if !model.is_infinite() {
+        return Err(InputError::new(
+            file,
+            key,
+            "only for infinite arrays (wires = \"infinite\"); a periodic array of W wires flows on its W points",
+        ));
+    }
+    let least = 2 * model.range() + 1;
+    let most = crate::qspace::MAX_POINTS;
+    if n < least as i64 || n > most as i64 {
+        return Err(InputError::new(
+            file,
+            key,
+            format!(
+                "expected a whole number of points from {least} (2 R + 1 for range R = {}) to {most}, found {n}",
+                model.range()
+            ),
+        ));
+    }
+    Ok(n as usize)
 }
 
 fn positive(x: f64, file: &str, key: &str) -> Result<f64, InputError> {

@@ -49,6 +49,12 @@ impl FlowReport {
                 result.dkd_drift
             ));
         }
+        if let Some(q) = result.quadrature.filter(|q| !q.converged) {
+            notes.push(format!(
+                "the infinite array's quadrature with {} points is not converged (error estimate {:.1e} above {:.0e}); choose more points with --q-points",
+                q.points, q.error_estimate, q.tolerance
+            ));
+        }
         FlowReport {
             model: model.to_string(),
             parameters,
@@ -138,20 +144,10 @@ impl Report for FlowReport {
 
     fn facts(&self) -> Vec<(String, String)> {
         let r = &self.result;
-        let params = self
-            .parameters
-            .iter()
-            .map(|(k, v)| format!("{k}={v}"))
-            .collect::<Vec<_>>()
-            .join(", ");
         let mut f = vec![
             (
                 "parameters".to_string(),
-                if params.is_empty() {
-                    "(none)".into()
-                } else {
-                    params
-                },
+                output::parameters_fact(&self.parameters),
             ),
             ("outcome".to_string(), r.outcome.word().to_string()),
             ("summary".to_string(), self.headline()),
@@ -176,6 +172,18 @@ impl Report for FlowReport {
                 self.options.rtol
             ),
         ));
+        if let Some(q) = &r.quadrature {
+            f.push((
+                "quadrature".into(),
+                format!(
+                    "infinite array: D(q) carried on {} points (bare dimensions: error estimate {:.1e}, tolerance {:.0e}{})",
+                    q.points,
+                    q.error_estimate,
+                    q.tolerance,
+                    if q.converged { "" } else { ", NOT converged" }
+                ),
+            ));
+        }
         f.push((
             "steps".into(),
             format!("{} (D K D drift {:.1e})", r.steps, r.dkd_drift),

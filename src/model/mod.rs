@@ -42,7 +42,7 @@ pub enum Structure {
 pub enum Wires {
     /// A finite array.
     Finite(usize),
-    /// The thermodynamic limit (not yet supported by the dense code path).
+    /// The thermodynamic limit (computed in q-space, see [`crate::qspace`]).
     Infinite,
 }
 
@@ -207,6 +207,77 @@ impl Model {
         Ok(point)
     }
 
+    /// True for `wires = "infinite"`.
+    pub fn is_infinite(&self) -> bool {
+        matches!(
+            self.structure,
+            Structure::Array {
+                wires: Wires::Infinite,
+                ..
+            }
+        )
+    }
+
+    /// Largest wire separation of an interaction block or a term (0 for
+    /// explicit models).
+    pub fn range(&self) -> usize {
+        let terms = self.terms.iter().map(|t| t.range()).max().unwrap_or(0);
+        terms.max(self.v_blocks.len().saturating_sub(1))
+    }
+
+    /// The same array with another number of wires (the boundary is kept).
+    /// `key` names where the number came from (e.g. `--wires`) in messages.
+    pub fn with_wires(&self, wires: Wires, key: &str) -> Result<Model, InputError> {
+        let Structure::Array { boundary, .. } = self.structure else {
+            return Err(InputError::new(
+                "command line",
+                key,
+                format!(
+                    "{} is an explicit model ([fields]); a number of wires needs an [array] model",
+                    self.file
+                ),
+            ));
+        };
+        let ctx = Ctx::new("command line");
+        match wires {
+            Wires::Finite(0) => return Err(ctx.err(key, "a number of wires must be at least 1")),
+            Wires::Finite(w) => {
+                check_range_fits(
+                    &ctx,
+                    w,
+                    boundary,
+                    self.v_blocks.len() - 1,
+                    key,
+                    "the interaction range",
+                )?;
+                for t in &self.terms {
+                    if w <= t.range() {
+                        return Err(ctx.err(
+                            key,
+                            format!(
+                                "term \"{}\" reaches wire offset {}, which does not fit an array of {w} wires",
+                                t.name,
+                                t.range()
+                            ),
+                        ));
+                    }
+                }
+            }
+            Wires::Infinite => {
+                for t in &self.terms {
+                    check_infinite_range(
+                        &Ctx::new(&self.file),
+                        t.range(),
+                        &format!("term \"{}\"", t.name),
+                    )?;
+                }
+            }
+        }
+        let mut m = self.clone();
+        m.structure = Structure::Array { wires, boundary };
+        Ok(m)
+    }
+
     /// Index of the term marked as the target, if any.
     pub fn target(&self) -> Option<usize> {
         self.terms.iter().position(|t| t.target)
@@ -258,6 +329,12 @@ fn read_explicit(ctx: &Ctx, f: RawFields, params: ParamSet) -> Result<Model, Inp
 
 fn read_array(ctx: &Ctx, a: RawArray, params: ParamSet) -> Result<Model, InputError> {
     let wires = read_wires(ctx, &a.wires)?;
+    if wires == Wires::Infinite && a.boundary.as_deref() == Some("open") {
+        return Err(ctx.err(
+            "array.boundary",
+            "an infinite array has no ends: leave out `boundary` (or write \"periodic\")",
+        ));
+    }
     let boundary = match a.boundary.as_deref() {
         None | Some("periodic") => Boundary::Periodic,
         Some("open") => Boundary::Open,
@@ -358,6 +435,22 @@ fn check_range_fits(
     }
 }
 
+/// Largest term range of an infinite array (its exact data is computed on
+/// a periodic stand-in of 4 (R + 2) + 1 wires).
+pub const MAX_INFINITE_TERM_RANGE: usize = 64;
+
+fn check_infinite_range(ctx: &Ctx, range: usize, key: &str) -> Result<(), InputError> {
+    if range > MAX_INFINITE_TERM_RANGE {
+        return Err(ctx.err(
+            key,
+            format!(
+                "the term reaches wire offset {range}; terms of an infinite array may reach at most offset {MAX_INFINITE_TERM_RANGE}"
+            ),
+        ));
+    }
+    Ok(())
+}
+
 fn read_blocks(
     ctx: &Ctx,
     table: &toml::Table,
@@ -434,12 +527,15 @@ fn read_term(ctx: &Ctx, model: &Model, t: &RawTerm, key: &str) -> Result<TermSpe
     if parts.iter().all(|(_, v)| v.iter().all(|x| *x == 0)) {
         return Err(ctx.err(&vkey, "the zero vector is not a cosine term"));
     }
+    let range = parts.iter().map(|p| p.0).max().unwrap_or(0);
+    if model.is_infinite() {
+        check_infinite_range(ctx, range, &vkey)?;
+    }
     if let Structure::Array {
         wires: Wires::Finite(w),
         ..
     } = model.structure
     {
-        let range = parts.iter().map(|p| p.0).max().unwrap_or(0);
         if w <= range {
             return Err(ctx.err(
                 &vkey,

@@ -94,6 +94,19 @@ pub fn render<R: Report + Serialize>(report: &R, format: Format) -> Result<Strin
     })
 }
 
+/// The parameter point of a report as `name=value, ...` ("(none)" for a
+/// model without parameters), for the facts of text-like formats.
+pub fn parameters_fact(parameters: &serde_json::Map<String, serde_json::Value>) -> String {
+    if parameters.is_empty() {
+        return "(none)".to_string();
+    }
+    parameters
+        .iter()
+        .map(|(k, v)| format!("{k}={v}"))
+        .collect::<Vec<_>>()
+        .join(", ")
+}
+
 /// A number for people: at most 6 significant digits, trailing zeros
 /// trimmed (machine outputs keep the full round-trip representation).
 pub fn short(x: f64) -> String {

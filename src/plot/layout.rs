@@ -291,8 +291,13 @@ pub(crate) fn draw_mesh<DB: DrawingBackend>(
     chart: &mut Chart<'_, DB>,
     axes: &Axes<'_>,
 ) -> Result<(), String> {
-    let x_format = |v: &f64| format_number(*v);
-    let y_default = |v: &f64| format_number(*v);
+    // Tick positions are computed in floating point: a tick meant to be 0
+    // on an axis that crosses it arrives as about 1e-16 of the span.
+    let span = |r: std::ops::Range<f64>| (r.end - r.start).abs();
+    let (x_span, y_span) = (span(chart.x_range()), span(chart.y_range()));
+    let snap = |v: f64, s: f64| if v.abs() < 1e-9 * s { 0.0 } else { v };
+    let x_format = |v: &f64| format_number(snap(*v, x_span));
+    let y_default = |v: &f64| format_number(snap(*v, y_span));
     let y_format: &dyn Fn(&f64) -> String = axes.y_format.unwrap_or(&y_default);
     chart
         .configure_mesh()

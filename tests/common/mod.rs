@@ -80,3 +80,45 @@ pub fn toml_f64_matrix(m: &[Vec<f64>]) -> String {
         .collect();
     format!("[{}]", rows.join(", "))
 }
+
+/// The sliding Luttinger liquid of the project's check values ("Infinite
+/// arrays"): spinless wires, intrawire g and nearest-neighbour
+/// density-density w, written with K0 and lam: g = (1 - K0^2)/(1 + K0^2),
+/// w = lam (1 + g)/4. Terms cdw, pair_hop, hop with the given coupling;
+/// `wires` is a TOML value (a number or "\"infinite\"").
+pub fn sliding(wires: &str, couplings: f64) -> String {
+    format!(
+        r#"
+name = "sliding Luttinger liquid"
+
+[params]
+K0 = 0.8
+lam = 0.5
+
+[array]
+wires = {wires}
+K = [[1, 0], [0, -1]]
+charge = [1, 1]
+
+[array.V]
+0 = [["1", "(1 - K0^2)/(1 + K0^2)"], ["(1 - K0^2)/(1 + K0^2)", "1"]]
+1 = [["lam*(1 + (1 - K0^2)/(1 + K0^2))/4", "lam*(1 + (1 - K0^2)/(1 + K0^2))/4"],
+     ["lam*(1 + (1 - K0^2)/(1 + K0^2))/4", "lam*(1 + (1 - K0^2)/(1 + K0^2))/4"]]
+
+[[term]]
+name = "cdw"
+particles = {{ 0 = [1, -1], 1 = [-1, 1] }}
+coupling = {couplings}
+
+[[term]]
+name = "pair_hop"
+particles = {{ 0 = [1, 1], 1 = [-1, -1] }}
+coupling = {couplings}
+
+[[term]]
+name = "hop"
+particles = {{ 0 = [1, 0], 1 = [-1, 0] }}
+coupling = {couplings}
+"#
+    )
+}
