@@ -266,6 +266,34 @@ impl Space {
 }
 
 /// Run the search at a parameter point.
+/// D on the fields of the lattice, exact on the window: the dense fixed
+/// point for finite models; for an infinite array, the real-space window
+/// D_{j,j'} = int dq/2pi e^{-iq(j-j')} D(q) of the converged q-space fixed
+/// point, placed on the window's fields of the stand-in ring (the rest is
+/// never read).
+fn window_d(sys: &System, point: &[f64], window: &Window) -> Result<DMatrix<f64>, Error> {
+    let infinite = matches!(
+        sys.model.structure,
+        crate::model::Structure::Array {
+            wires: crate::model::Wires::Infinite,
+            ..
+        }
+    );
+    if !infinite {
+        return Ok(sys.fixed_point(point)?.d);
+    }
+    let (dw, _) = sys.real_space_window(point, window.wires)?;
+    let idx = window.field_indices();
+    let n = sys.lattice.n;
+    let mut d = DMatrix::zeros(n, n);
+    for (a, &i) in idx.iter().enumerate() {
+        for (b, &j) in idx.iter().enumerate() {
+            d[(i, j)] = dw[(a, b)];
+        }
+    }
+    Ok(d)
+}
+
 pub fn hunt(sys: &System, point: &[f64], opts: &HuntOptions) -> Result<HuntReport, Error> {
     let cmd = |key: &str, m: String| Error::Input(InputError::new("command line", key, m));
     if !(opts.max_dim.is_finite() && opts.max_dim > 0.0) {
@@ -303,8 +331,8 @@ pub fn hunt(sys: &System, point: &[f64], opts: &HuntOptions) -> Result<HuntRepor
             )));
         }
     }
-    let fp = sys.fixed_point(point)?;
-    let space = Space::new(sys, &fp.d, window);
+    let d_full = window_d(sys, point, &window)?;
+    let space = Space::new(sys, &d_full, window);
     let ell = Ellipsoid::new(&space.gram)
         .map_err(|e| Error::Numerical(format!("operator search: {e}")))?;
     let accept = opts.max_dim * (1.0 + BOUND_TOLERANCE);

@@ -130,7 +130,15 @@ impl HuntReport {
             .cloned()
             .zip(point.iter().map(|x| serde_json::json!(x)))
             .collect();
+        let infinite = matches!(
+            sys.model.structure,
+            Structure::Array {
+                wires: crate::model::Wires::Infinite,
+                ..
+            }
+        );
         let boundary = match sys.model.structure {
+            _ if infinite => Some("infinite".to_string()),
             Structure::Array { boundary, .. } => Some(match boundary {
                 Boundary::Periodic => "periodic".to_string(),
                 Boundary::Open => "open".to_string(),
@@ -140,8 +148,12 @@ impl HuntReport {
         let mut r = HuntReport {
             model: sys.model.name.clone(),
             parameters,
-            fields: sys.lattice.n,
-            wires: window.array.then_some(window.total),
+            fields: if infinite {
+                sys.lattice.cell
+            } else {
+                sys.lattice.n
+            },
+            wires: (window.array && !infinite).then_some(window.total),
             boundary,
             range: window.array.then_some(window.wires),
             window_first_wire: window.array.then_some(window.first),
@@ -390,6 +402,9 @@ impl Report for HuntReport {
         };
         let fields = match (self.wires, &self.boundary) {
             (Some(w), Some(b)) => format!("{} ({w} wires, {b})", self.fields),
+            (None, Some(b)) if b == "infinite" => {
+                format!("{} per wire (infinite array)", self.fields)
+            }
             _ => self.fields.to_string(),
         };
         let window = match (self.range, self.window_first_wire) {
