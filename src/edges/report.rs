@@ -226,6 +226,16 @@ impl EdgesReport {
             fields: lat.n,
             wires: lat.boundary.map(|_| lat.wires),
             boundary: match lat.boundary {
+                _ if matches!(
+                    sys.model.structure,
+                    crate::model::Structure::Array {
+                        wires: crate::model::Wires::Infinite,
+                        ..
+                    }
+                ) =>
+                {
+                    "infinite: exact lattice algebra on a periodic stand-in ring"
+                }
                 Some(crate::model::Boundary::Open) => "open",
                 Some(crate::model::Boundary::Periodic) => "periodic",
                 None => "explicit",
