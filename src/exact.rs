@@ -40,6 +40,36 @@ pub fn to_f64(r: &Rational) -> f64 {
     }
 }
 
+/// The rational p/q with the smallest denominator q <= `max_den` within
+/// `tol` (relative to max(1, |x|)) of x, by continued fractions; None if
+/// there is none. Used to recognise momenta like 0.05 = 1/20 or
+/// 6 * 0.05 = 0.30000000000000004 = 3/10 so that they can be compared exactly.
+pub fn small_rational(x: f64, max_den: i64, tol: f64) -> Option<Rational> {
+    if !x.is_finite() || x.abs() > 1e12 {
+        return None;
+    }
+    let scale = x.abs().max(1.0);
+    let (mut p0, mut q0, mut p1, mut q1) = (0i128, 1i128, 1i128, 0i128);
+    let mut r = x;
+    for _ in 0..64 {
+        let a = r.floor();
+        let (p2, q2) = (a as i128 * p1 + p0, a as i128 * q1 + q0);
+        if q2 > max_den as i128 {
+            return None;
+        }
+        if (x - p2 as f64 / q2 as f64).abs() <= tol * scale {
+            return Some(Rational::new(BigInt::from(p2), BigInt::from(q2)));
+        }
+        let frac = r - a;
+        if frac == 0.0 {
+            return None;
+        }
+        (p0, q0, p1, q1) = (p1, q1, p2, q2);
+        r = 1.0 / frac;
+    }
+    None
+}
+
 /// Rational from an integer.
 pub fn int(i: i64) -> Rational {
     Rational::from_integer(BigInt::from(i))
@@ -275,6 +305,16 @@ mod tests {
                 assert_eq!(s, Rational::from_u8((i == j) as u8).unwrap());
             }
         }
+    }
+
+    #[test]
+    fn small_rationals_are_recognised() {
+        let r = |p: i64, q: i64| Rational::new(BigInt::from(p), BigInt::from(q));
+        assert_eq!(small_rational(0.05, 1_000_000, 1e-12), Some(r(1, 20)));
+        assert_eq!(small_rational(6.0 * 0.05, 1_000_000, 1e-12), Some(r(3, 10)));
+        assert_eq!(small_rational(-2.0 / 3.0, 1_000_000, 1e-12), Some(r(-2, 3)));
+        assert_eq!(small_rational(0.0, 1_000_000, 1e-12), Some(r(0, 1)));
+        assert_eq!(small_rational(std::f64::consts::PI, 1_000_000, 1e-12), None);
     }
 
     #[test]

@@ -266,6 +266,9 @@ impl Space {
 }
 
 /// Run the search at a parameter point.
+/// Largest denominator for momenta to be treated as exact rationals.
+pub const MAX_MOMENTUM_DENOMINATOR: i64 = 1_000_000;
+
 /// D on the fields of the lattice, exact on the window: the dense fixed
 /// point for finite models; for an infinite array, the real-space window
 /// D_{j,j'} = int dq/2pi e^{-iq(j-j')} D(q) of the converged q-space fixed
@@ -331,6 +334,12 @@ pub fn hunt(sys: &System, point: &[f64], opts: &HuntOptions) -> Result<HuntRepor
             )));
         }
     }
+    // Momenta that are all small rationals at this point are compared exactly.
+    let exact_momenta: Option<Vec<exact::Rational>> = momenta.as_ref().and_then(|k| {
+        k.iter()
+            .map(|x| exact::small_rational(*x, MAX_MOMENTUM_DENOMINATOR, 1e-12))
+            .collect()
+    });
     let d_full = window_d(sys, point, &window)?;
     let space = Space::new(sys, &d_full, window);
     let ell = Ellipsoid::new(&space.gram)
@@ -424,11 +433,15 @@ pub fn hunt(sys: &System, point: &[f64], opts: &HuntOptions) -> Result<HuntRepor
                 .map(|(a, b)| *a as f64 * b)
                 .sum::<f64>()
         });
-        if momentum == Some(MomentumFilter::Conserved)
-            && k.is_some_and(|k| k.abs() >= crate::dims::MOMENTUM_TOLERANCE)
-        {
+        let conserved = match (&exact_momenta, k) {
+            (Some(q), _) => num_traits::Zero::is_zero(&exact::dot_int(q, &full)),
+            (None, Some(k)) => k.abs() < crate::dims::MOMENTUM_TOLERANCE,
+            (None, None) => true,
+        };
+        if momentum == Some(MomentumFilter::Conserved) && !conserved {
             continue;
         }
+        let k = k.map(|k| if conserved { 0.0 } else { k });
         let spin = exact::Rational::new(space.twice_spin(&m).into(), 2.into());
         operators.push(Operator {
             particles_by_wire: space.window.array.then(|| {
@@ -467,6 +480,7 @@ pub fn hunt(sys: &System, point: &[f64], opts: &HuntOptions) -> Result<HuntRepor
         candidates,
         ell.reduction.capped,
         operators,
+        exact_momenta.is_some(),
     ))
 }
 

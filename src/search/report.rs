@@ -89,8 +89,12 @@ pub struct HuntReport {
     pub spin: String,
     /// Momentum filter: "conserved", "any", or null without momenta.
     pub momentum: Option<String>,
-    /// |k| below which the momentum counts as conserved.
+    /// |k| below which the momentum counts as conserved (null when the
+    /// momenta are rational and conservation is checked exactly).
     pub momentum_tolerance: Option<f64>,
+    /// Every momentum is a rational p/q (q <= 10^6) at this point and
+    /// conservation is checked exactly.
+    pub momentum_exact: bool,
     /// Size estimates.
     pub estimate: Estimate,
     /// Lattice points examined (nodes of the enumeration tree).
@@ -121,6 +125,7 @@ impl HuntReport {
         candidates: u64,
         capped: bool,
         operators: Vec<Operator>,
+        exact_momenta: bool,
     ) -> HuntReport {
         let parameters = sys
             .model
@@ -172,7 +177,10 @@ impl HuntReport {
                 MomentumFilter::Conserved => "conserved".into(),
                 MomentumFilter::Any => "any".into(),
             }),
-            momentum_tolerance: momentum.map(|_| crate::dims::MOMENTUM_TOLERANCE),
+            momentum_tolerance: momentum
+                .filter(|_| !exact_momenta)
+                .map(|_| crate::dims::MOMENTUM_TOLERANCE),
+            momentum_exact: exact_momenta && momentum.is_some(),
             estimate,
             examined,
             candidates,
@@ -274,10 +282,17 @@ impl HuntReport {
         notes.push(
             "`model term`: the operator is that term of the model (up to sign and translation); `does not commute with`: model terms with a translate l' such that l^T K^-1 l' != 0 (they cannot pin together).".into(),
         );
-        if let Some(tol) = self.momentum_tolerance {
+        if self.momentum_exact {
+            notes.push(format!(
+                "Momenta are rational at this point (p/q with q <= {}): momentum conservation is checked exactly.",
+                super::MAX_MOMENTUM_DENOMINATOR
+            ));
+        } else if let Some(tol) = self.momentum_tolerance {
             notes.push(format!(
                 "Momenta are floats: a mismatch |k| < {tol:.0e} (units of the inverse cutoff) counts as conserved."
             ));
+        }
+        if self.momentum_tolerance.is_some() || self.momentum_exact {
             if sys.model.momentum_per_wire.is_some() && self.charge != Some(0) {
                 notes.push("With array.momentum_per_wire the momentum of a charged operator depends on its position; it is given for the placement listed.".into());
             }
@@ -425,6 +440,9 @@ impl Report for HuntReport {
             "any spin".into()
         });
         match (self.momentum.as_deref(), self.momentum_tolerance) {
+            (Some("conserved"), _) if self.momentum_exact => {
+                filters.push("momentum conserved (exact: rational momenta)".into())
+            }
             (Some("conserved"), Some(tol)) => {
                 filters.push(format!("momentum conserved (|k| < {tol:.0e})"))
             }
