@@ -66,6 +66,66 @@ pub struct Invariants {
     pub commutation: Vec<Vec<Rational>>,
     /// Every translate of a commutes with every translate of b.
     pub commutes: Vec<Vec<bool>>,
+    /// Integer form for fast commutation tests.
+    pub pairing: Pairing,
+}
+
+/// det(K_c) l^T K^-1 l' in integer arithmetic, wire by wire with the cell
+/// adjugate adj(K_c) = det(K_c) K_c^-1: zero exactly when l and l' commute.
+/// The flow's plan tests thousands of pairs; this avoids big rationals.
+#[derive(Debug, Clone)]
+pub struct Pairing {
+    cell: usize,
+    adj: Vec<Vec<i128>>,
+}
+
+impl Pairing {
+    /// From the cell determinant and inverse (entries of adj are integers;
+    /// `None` if one does not fit in i128).
+    pub fn new(cell_det: &BigInt, cell_inverse: &[Vec<Rational>]) -> Option<Pairing> {
+        let det = Rational::from_integer(cell_det.clone());
+        let adj = cell_inverse
+            .iter()
+            .map(|row| {
+                row.iter()
+                    .map(|r| {
+                        let x = r * &det;
+                        num_traits::ToPrimitive::to_i128(x.numer()).filter(|_| x.is_integer())
+                    })
+                    .collect::<Option<Vec<i128>>>()
+            })
+            .collect::<Option<Vec<_>>>()?;
+        Some(Pairing {
+            cell: cell_inverse.len(),
+            adj,
+        })
+    }
+
+    /// det(K_c) l^T K^-1 l' (saturating on overflow, which needs entries far
+    /// beyond those a model may hold).
+    pub fn scaled(&self, l: &[i64], lp: &[i64]) -> i128 {
+        let c = self.cell;
+        let mut acc: i128 = 0;
+        for (a, b) in l.chunks_exact(c).zip(lp.chunks_exact(c)) {
+            if a.iter().all(|x| *x == 0) || b.iter().all(|x| *x == 0) {
+                continue;
+            }
+            for (i, &x) in a.iter().enumerate().filter(|(_, x)| **x != 0) {
+                for (j, &y) in b.iter().enumerate().filter(|(_, y)| **y != 0) {
+                    let t = self.adj[i][j]
+                        .saturating_mul(x as i128)
+                        .saturating_mul(y as i128);
+                    acc = acc.saturating_add(t);
+                }
+            }
+        }
+        acc
+    }
+
+    /// l and l' commute (l^T K^-1 l' = 0).
+    pub fn commute(&self, l: &[i64], lp: &[i64]) -> bool {
+        self.scaled(l, lp) == 0
+    }
 }
 
 impl Invariants {
@@ -124,7 +184,15 @@ impl Invariants {
                 commutes[a][b] = families_commute(&ms[a], &lat.families[b]);
             }
         }
+        let pairing = Pairing::new(&cell_det, &cell_inverse).ok_or_else(|| {
+            InputError::new(
+                &model.file,
+                key,
+                "K^-1 has entries too large for the commutation tests",
+            )
+        })?;
         Ok(Invariants {
+            pairing,
             det_k,
             signature,
             filling,

@@ -20,7 +20,7 @@ use num_complex::Complex64;
 use num_traits::Zero;
 
 use crate::exact::{self, Rational};
-use crate::invariants::particles_of;
+use crate::invariants::{particles_of, Pairing};
 use crate::lattice::{Family, Lattice};
 use crate::model::Boundary;
 use crate::qspace;
@@ -160,7 +160,7 @@ impl Plan {
         if generate {
             plan.generate_candidates(sys, &mut index);
         }
-        plan.ope = ope_table(&plan.channels, &index);
+        plan.ope = ope_table(&plan.channels, &index, &sys.invariants.pairing);
         plan
     }
 
@@ -180,9 +180,8 @@ impl Plan {
                     continue;
                 }
                 let rep_a = self.channels[a].family.rep().clone();
-                let m_a = particles_of(lat, &sys.invariants.cell_inverse, &rep_a);
                 for tb in self.channels[b].family.translates.clone() {
-                    if !exact::dot_int(&m_a, &tb.l).is_zero() {
+                    if !sys.invariants.pairing.commute(&rep_a.l, &tb.l) {
                         continue;
                     }
                     for sign in [1i8, -1] {
@@ -354,14 +353,13 @@ impl VectorIndex {
     }
 }
 
-fn ope_table(channels: &[Channel], index: &VectorIndex) -> Vec<OpeEntry> {
+fn ope_table(channels: &[Channel], index: &VectorIndex, pairing: &Pairing) -> Vec<OpeEntry> {
     let mut table = Vec::new();
     for (a, ca) in channels.iter().enumerate() {
         let rep = ca.family.rep();
-        let m_a = &ca.particles;
         for (b, cb) in channels.iter().enumerate() {
             for tb in &cb.family.translates {
-                if !exact::dot_int(m_a, &tb.l).is_zero() {
+                if !pairing.commute(&rep.l, &tb.l) {
                     continue;
                 }
                 for (sign, b_conj) in [(1i64, false), (-1, true)] {

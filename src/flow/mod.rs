@@ -33,7 +33,6 @@ pub mod report;
 pub mod rhs;
 
 use nalgebra::DVector;
-use num_traits::Zero;
 use ode_solvers::continuous_output_model::ContinuousOutputModel;
 use ode_solvers::dop_shared::OutputType;
 use ode_solvers::Dopri5;
@@ -436,11 +435,12 @@ impl<'s> Flow<'s> {
                     continue;
                 }
                 let other = &self.plan.channels[c];
+                let pairing = &self.sys.invariants.pairing;
                 let commutes = other
                     .family
                     .translates
                     .iter()
-                    .all(|t| exact::dot_int(&win.particles, &t.l).is_zero());
+                    .all(|t| pairing.commute(&win.family.rep().l, &t.l));
                 let list = if commutes {
                     &mut result.commuting_with_winner
                 } else {
