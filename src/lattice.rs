@@ -117,7 +117,24 @@ impl Lattice {
         infinite: bool,
     ) -> Result<Lattice, InputError> {
         let cell = model.cell_fields();
-        let n = cell * wires;
+        let n = cell.saturating_mul(wires);
+        // The model reader refuses finite arrays above the limit; this also
+        // bounds the stand-in ring of an infinite array.
+        if n > crate::model::MAX_FIELDS {
+            let what = if infinite {
+                format!("the exact data of an infinite array is computed on a ring of {wires} wires (4 (R + 2) + 1 for terms reaching wire offset R), here ")
+            } else {
+                String::new()
+            };
+            return Err(InputError::new(
+                &model.file,
+                "array.wires",
+                format!(
+                    "{what}{wires} wires of {cell} fields make {n} fields, above the limit of {} fields",
+                    crate::model::MAX_FIELDS
+                ),
+            ));
+        }
         let mut k = vec![vec![0i64; n]; n];
         let mut charge = vec![0i64; n];
         for w in 0..wires {

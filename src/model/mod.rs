@@ -23,6 +23,12 @@ pub use expr::{ParamSet, Scalar};
 use raw::{RawArray, RawFields, RawModel, RawTerm};
 use values::Ctx;
 
+/// Most fields a model may have in all (wires times fields per wire). Every
+/// point builds dense N x N matrices (K, V, D) and diagonalises one, so a
+/// larger system would take minutes to hours per point, or exhaust memory;
+/// such a model is refused when it is read.
+pub const MAX_FIELDS: usize = 2048;
+
 /// How the fields are organised.
 #[derive(Debug, Clone, PartialEq)]
 pub enum Structure {
@@ -242,6 +248,7 @@ impl Model {
         match wires {
             Wires::Finite(0) => return Err(ctx.err(key, "a number of wires must be at least 1")),
             Wires::Finite(w) => {
+                check_size(&ctx, wires, self.cell_fields(), key)?;
                 check_range_fits(
                     &ctx,
                     w,
@@ -304,6 +311,12 @@ fn read_explicit(ctx: &Ctx, f: RawFields, params: ParamSet) -> Result<Model, Inp
     let k = values::int_matrix(ctx, &f.k, "fields.K")?;
     values::check_symmetric_int(ctx, &k, "fields.K")?;
     let n = k.len();
+    if n > MAX_FIELDS {
+        return Err(ctx.err(
+            "fields.K",
+            format!("a model may have at most {MAX_FIELDS} fields, found {n}"),
+        ));
+    }
     let charge = values::int_vector(ctx, &f.charge, "fields.charge", n, "one per field")?;
     let v = values::scalar_matrix(ctx, &f.v, "fields.V", &params, n)?;
     let momentum = f
@@ -348,6 +361,7 @@ fn read_array(ctx: &Ctx, a: RawArray, params: ParamSet) -> Result<Model, InputEr
     let k = values::int_matrix(ctx, &a.k, "array.K")?;
     values::check_symmetric_int(ctx, &k, "array.K")?;
     let n = k.len();
+    check_size(ctx, wires, n, "array.wires")?;
     let charge = values::int_vector(
         ctx,
         &a.charge,
@@ -404,6 +418,34 @@ fn read_wires(ctx: &Ctx, v: &toml::Value) -> Result<Wires, InputError> {
             format!("expected a positive integer or \"infinite\", found {other}"),
         )),
     }
+}
+
+/// At most [`MAX_FIELDS`] fields in all, checked before anything of that
+/// size is built (`wires = 1000000000` must fail at once, not exhaust
+/// memory); `key` names where the number of wires came from.
+fn check_size(ctx: &Ctx, wires: Wires, cell: usize, key: &str) -> Result<(), InputError> {
+    let Wires::Finite(w) = wires else {
+        return Ok(());
+    };
+    if w.checked_mul(cell).is_none_or(|n| n > MAX_FIELDS) {
+        let (key, what) = if cell > MAX_FIELDS {
+            ("array.K", format!("{cell} fields per wire"))
+        } else {
+            (
+                key,
+                format!(
+                    "{w} wires of {cell} field{} (at most {} wires)",
+                    if cell == 1 { "" } else { "s" },
+                    MAX_FIELDS / cell.max(1)
+                ),
+            )
+        };
+        return Err(ctx.err(
+            key,
+            format!("a model may have at most {MAX_FIELDS} fields in all, found {what}"),
+        ));
+    }
+    Ok(())
 }
 
 /// A periodic array needs W > 2 R so that every pair of wires is coupled by
