@@ -503,6 +503,18 @@ fn read_blocks(
     for (key, value) in table {
         let full = format!("array.V.{key}");
         let sep = values::offset_key(ctx, key, &full)?;
+        // Missing blocks up to the largest separation are filled with zeros
+        // below: refuse a separation no array within MAX_FIELDS can have
+        // before allocating them.
+        if sep.saturating_add(1).saturating_mul(n) > MAX_FIELDS {
+            return Err(ctx.err(
+                &full,
+                format!(
+                    "wire separation {sep} is beyond any array pinflow can compute (at most {MAX_FIELDS} fields in all, so at most {} wires of {n} fields)",
+                    MAX_FIELDS / n.max(1)
+                ),
+            ));
+        }
         let block = values::scalar_matrix(ctx, value, &full, params, n)?;
         if by_sep.len() <= sep {
             by_sep.resize(sep + 1, None);
