@@ -29,6 +29,12 @@ use values::Ctx;
 /// such a model is refused when it is read.
 pub const MAX_FIELDS: usize = 2048;
 
+/// Largest magnitude of an entry of K or of a term's integer vector. With
+/// at most [`MAX_FIELDS`] fields, every entry of l = K m and of sums of a few
+/// such vectors then stays far inside 64-bit integers and is exact as a
+/// float (below 2^53), which the flow and the search rely on.
+pub const MAX_ENTRY: i64 = 1 << 20;
+
 /// How the fields are organised.
 #[derive(Debug, Clone, PartialEq)]
 pub enum Structure {
@@ -310,6 +316,7 @@ fn read_params(ctx: &Ctx, table: &toml::Table) -> Result<ParamSet, InputError> {
 fn read_explicit(ctx: &Ctx, f: RawFields, params: ParamSet) -> Result<Model, InputError> {
     let k = values::int_matrix(ctx, &f.k, "fields.K")?;
     values::check_symmetric_int(ctx, &k, "fields.K")?;
+    check_entries(ctx, &k, "fields.K")?;
     let n = k.len();
     if n > MAX_FIELDS {
         return Err(ctx.err(
@@ -360,6 +367,7 @@ fn read_array(ctx: &Ctx, a: RawArray, params: ParamSet) -> Result<Model, InputEr
     };
     let k = values::int_matrix(ctx, &a.k, "array.K")?;
     values::check_symmetric_int(ctx, &k, "array.K")?;
+    check_entries(ctx, &k, "array.K")?;
     let n = k.len();
     check_size(ctx, wires, n, "array.wires")?;
     let charge = values::int_vector(
@@ -418,6 +426,28 @@ fn read_wires(ctx: &Ctx, v: &toml::Value) -> Result<Wires, InputError> {
             format!("expected a positive integer or \"infinite\", found {other}"),
         )),
     }
+}
+
+/// Every entry within [`MAX_ENTRY`] in magnitude; `rows` are the rows of K,
+/// or one row per wire offset of a term.
+fn check_entries(ctx: &Ctx, rows: &[Vec<i64>], key: &str) -> Result<(), InputError> {
+    for (i, row) in rows.iter().enumerate() {
+        if let Some(j) = row.iter().position(|x| x.unsigned_abs() > MAX_ENTRY as u64) {
+            let at = if rows.len() == 1 {
+                format!("{key}[{j}]")
+            } else {
+                format!("{key}[{i}][{j}]")
+            };
+            return Err(ctx.err(
+                &at,
+                format!(
+                    "entries must be at most {MAX_ENTRY} in magnitude, found {}",
+                    row[j]
+                ),
+            ));
+        }
+    }
+    Ok(())
 }
 
 /// At most [`MAX_FIELDS`] fields in all, checked before anything of that
@@ -578,6 +608,14 @@ fn read_term(ctx: &Ctx, model: &Model, t: &RawTerm, key: &str) -> Result<TermSpe
         )],
         Structure::Array { .. } => values::offset_vectors(ctx, value, &vkey, n)?,
     };
+    for (off, v) in &parts {
+        let at = if value.is_table() {
+            format!("{vkey}.{off}")
+        } else {
+            vkey.clone()
+        };
+        check_entries(ctx, std::slice::from_ref(v), &at)?;
+    }
     if parts.iter().all(|(_, v)| v.iter().all(|x| *x == 0)) {
         return Err(ctx.err(&vkey, "the zero vector is not a cosine term"));
     }
