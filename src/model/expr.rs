@@ -86,6 +86,15 @@ impl std::fmt::Display for ExprError {
     }
 }
 
+/// Names that expressions already give a meaning (constants and functions
+/// of the expression parser, and `pi`): a parameter with one of these names
+/// would be silently ignored or shadow the built-in (`e` is Euler's number).
+pub const RESERVED_NAMES: &[&str] = &[
+    "pi", "PI", "E", "e", "TAU", "abs", "acos", "acosh", "asin", "asinh", "atan", "atanh", "cbrt",
+    "ceil", "cos", "cosh", "exp", "floor", "fract", "ln", "log", "log10", "log2", "round",
+    "signum", "sin", "sinh", "sqrt", "tan", "tanh", "trunc",
+];
+
 /// Largest number of distinct parameters one expression may use; evaluation
 /// gathers them into a stack buffer of this size.
 pub const MAX_EXPR_VARS: usize = 32;

@@ -307,6 +307,12 @@ fn read_params(ctx: &Ctx, table: &toml::Table) -> Result<ParamSet, InputError> {
                 "a parameter name must start with a letter and use letters, digits and _",
             ));
         }
+        if expr::RESERVED_NAMES.contains(&name.as_str()) {
+            return Err(ctx.err(
+                &key,
+                format!("`{name}` is a built-in name of expressions (a constant or function); choose another parameter name"),
+            ));
+        }
         let x = values::number(ctx, value, &key)?;
         pairs.push((name.clone(), x));
     }
