@@ -135,6 +135,35 @@ pub fn quad_form(d: &DMatrix<f64>, l: &[i64]) -> f64 {
     0.5 * s
 }
 
+/// How far a computed D is from D K D = K^-1: the largest entry of
+/// (D K)^2 - 1, relative to the largest entry of (D K)^2 (at least 1).
+/// NaN when D has non-finite entries.
+pub fn identity_drift(k: &DMatrix<f64>, d: &DMatrix<f64>) -> f64 {
+    let dk = d * k;
+    let sq = &dk * &dk;
+    if !sq.iter().all(|x| x.is_finite()) {
+        return f64::NAN;
+    }
+    let scale = sq.amax().max(1.0);
+    let n = sq.nrows();
+    (sq - DMatrix::<f64>::identity(n, n)).amax() / scale
+}
+
+/// Condition number of a symmetric positive definite matrix: the ratio of
+/// its largest to its smallest eigenvalue (infinite when the smallest is
+/// not positive).
+pub fn condition_number(v: &DMatrix<f64>) -> f64 {
+    let sym = (v + v.transpose()) * 0.5;
+    let eig = SymmetricEigen::new(sym).eigenvalues;
+    let lo = eig.iter().cloned().fold(f64::INFINITY, f64::min);
+    let hi = eig.iter().cloned().fold(f64::NEG_INFINITY, f64::max);
+    if lo > 0.0 {
+        hi / lo
+    } else {
+        f64::INFINITY
+    }
+}
+
 /// Smallest eigenvalue of a symmetric matrix (for the "not positive
 /// definite" message).
 pub fn smallest_eigenvalue(v: &DMatrix<f64>) -> f64 {

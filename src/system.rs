@@ -21,6 +21,13 @@ use crate::lattice::{self, Lattice};
 use crate::model::{Boundary, Content, Model};
 use crate::qspace::{self, NotPositive, QFixedPoint, Quadrature};
 
+/// Largest violation of D K D = K^-1 (relative) accepted in a computed
+/// fixed point. A nearly singular V (condition number around 1e12 and up)
+/// loses about that factor of the float precision in D; when the identity
+/// holds only worse than this, the point is refused with a message that
+/// says so, instead of reporting dimensions with no correct digits.
+pub const ACCURACY: f64 = 1e-6;
+
 /// A model with everything that does not depend on the parameter point.
 #[derive(Debug, Clone)]
 pub struct System {
@@ -146,7 +153,42 @@ impl System {
         if qm.infinite {
             qspace::certify_positive(&blocks, points).map_err(|e| self.unphysical(point, e))?;
         }
+        self.check_q(point, &fp)?;
         Ok(fp)
+    }
+
+    /// Refuse a q-space fixed point that is not accurate (see [`ACCURACY`]).
+    fn check_q(&self, point: &[f64], fp: &QFixedPoint) -> Result<(), Error> {
+        let qm = self.q_model()?;
+        // qspace::drift takes maxima with f64::max, which skips NaN.
+        let drift = if fp.d.iter().all(|x| x.is_finite()) {
+            qspace::drift(&fp.d, fp.points, &qm.k, &qm.kinv)
+        } else {
+            f64::NAN
+        };
+        self.check_accuracy(point, drift, None)
+    }
+
+    /// The message for a fixed point whose D K D = K^-1 fails by `drift`
+    /// (relative), with the condition number of V when it is known.
+    fn check_accuracy(&self, point: &[f64], drift: f64, cond: Option<f64>) -> Result<(), Error> {
+        if drift <= ACCURACY {
+            return Ok(());
+        }
+        let at = self.model.params.describe(point);
+        let why = match cond {
+            Some(c) => format!("V is badly conditioned there (condition number {c:.1e})"),
+            None => "V is badly conditioned there".to_string(),
+        };
+        Err(Error::Numerical(if drift.is_finite() {
+            format!(
+                "the fixed point at {at} cannot be computed accurately: {why}, and the computed D satisfies D K D = K^-1 only to {drift:.1e} (relative; {ACCURACY:.0e} is needed); rescale V or choose another point"
+            )
+        } else {
+            format!(
+                "the fixed point at {at} cannot be computed: {why}, and D has non-finite entries; rescale V or choose another point"
+            )
+        }))
     }
 
     /// The infinite array's fixed point on the refined rule: N doubled until
@@ -155,8 +197,10 @@ impl System {
     pub fn q_converged(&self, point: &[f64]) -> Result<(QFixedPoint, Quadrature), Error> {
         let qm = self.q_model()?;
         let blocks = self.v_blocks(point)?;
-        qspace::converge(&qm.k, &blocks, &qm.terms, qm.range, qspace::TOLERANCE)
-            .map_err(|e| self.unphysical(point, e))
+        let (fp, quad) = qspace::converge(&qm.k, &blocks, &qm.terms, qm.range, qspace::TOLERANCE)
+            .map_err(|e| self.unphysical(point, e))?;
+        self.check_q(point, &fp)?;
+        Ok((fp, quad))
     }
 
     /// The infinite array's fixed point on a given N-point rule, with the
@@ -168,8 +212,10 @@ impl System {
     ) -> Result<(QFixedPoint, Quadrature), Error> {
         let qm = self.q_model()?;
         let blocks = self.v_blocks(point)?;
-        qspace::on_rule(&qm.k, &blocks, &qm.terms, points, qspace::TOLERANCE)
-            .map_err(|e| self.unphysical(point, e))
+        let (fp, quad) = qspace::on_rule(&qm.k, &blocks, &qm.terms, points, qspace::TOLERANCE)
+            .map_err(|e| self.unphysical(point, e))?;
+        self.check_q(point, &fp)?;
+        Ok((fp, quad))
     }
 
     /// Bosonic dimension of every term from a q-space fixed point.
@@ -256,13 +302,20 @@ impl System {
             .into());
         }
         let v = self.v_at(point)?;
-        FixedPoint::solve(&self.k, &v).map_err(|smallest_eigenvalue| {
+        let fp = FixedPoint::solve(&self.k, &v).map_err(|smallest_eigenvalue| {
             Error::Unphysical(Unphysical {
                 point: self.model.params.describe(point),
                 smallest_eigenvalue,
                 q: None,
             })
-        })
+        })?;
+        let drift = crate::fixed_point::identity_drift(&self.k, &fp.d);
+        if drift <= ACCURACY {
+            return Ok(fp);
+        }
+        let cond = crate::fixed_point::condition_number(&v);
+        self.check_accuracy(point, drift, Some(cond))?;
+        Ok(fp)
     }
 
     /// Extra (fixed) dimension of each term at a point; must be finite and >= 0.
