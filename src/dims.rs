@@ -187,6 +187,7 @@ impl DimsReport {
 
     /// Compute the report with a chosen code path.
     pub fn build_with(sys: &System, point: &[f64], algebra: Algebra) -> Result<DimsReport, Error> {
+        sys.model.check_point(point)?;
         let ev = evaluate(sys, point, algebra)?;
         let extra = sys.extra_dimensions(point)?;
         let momenta = sys.momentum_mismatches(point);

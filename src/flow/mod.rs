@@ -263,6 +263,7 @@ impl<'s> Flow<'s> {
 
     /// Flow at one parameter point.
     pub fn run(&self, point: &[f64]) -> Result<FlowResult, Error> {
+        self.sys.model.check_point(point)?;
         let start = match self.start(point) {
             Ok(s) => s,
             Err(Error::Unphysical(u)) => {

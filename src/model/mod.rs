@@ -291,6 +291,70 @@ impl Model {
         Ok(m)
     }
 
+    /// Every value evaluated at a parameter point that is not checked where
+    /// it is used (momenta, and each term's coupling and phase) must be
+    /// finite there; the error names the first key that is not. V is checked
+    /// when it is evaluated, extra dimensions by
+    /// [`crate::system::System::extra_dimensions`].
+    pub fn check_point(&self, point: &[f64]) -> Result<(), InputError> {
+        let base = match self.structure {
+            Structure::Explicit => "fields",
+            Structure::Array { .. } => "array",
+        };
+        let vectors = [
+            (self.momentum.as_ref(), "momentum"),
+            (self.momentum_per_wire.as_ref(), "momentum_per_wire"),
+        ];
+        let mut checks: Vec<(String, &Scalar)> = Vec::new();
+        for (v, name) in vectors {
+            for (i, s) in v.into_iter().flatten().enumerate() {
+                checks.push((format!("{base}.{name}[{i}]"), s));
+            }
+        }
+        // The last wire's momentum, base + (W - 1) shift, must stay finite
+        // too (W: the array's wires, or the stand-in ring of an infinite one).
+        if let (Some(base), Some(shift), Structure::Array { wires, .. }) =
+            (&self.momentum, &self.momentum_per_wire, &self.structure)
+        {
+            let w = match wires {
+                Wires::Finite(w) => *w,
+                Wires::Infinite => crate::lattice::Lattice::stand_in_wires(self),
+            };
+            for (c, (b, s)) in base.iter().zip(shift).enumerate() {
+                let last = b.eval(point) + (w.saturating_sub(1)) as f64 * s.eval(point);
+                if b.eval(point).is_finite() && s.eval(point).is_finite() && !last.is_finite() {
+                    return Err(InputError::new(
+                        &self.file,
+                        format!("array.momentum_per_wire[{c}]"),
+                        format!(
+                            "makes the momentum of wire {} non-finite ({last}) at {}",
+                            w.saturating_sub(1),
+                            self.params.describe(point)
+                        ),
+                    ));
+                }
+            }
+        }
+        for t in &self.terms {
+            checks.push((format!("term \"{}\".coupling", t.name), &t.coupling));
+            checks.push((format!("term \"{}\".phase", t.name), &t.phase));
+        }
+        for (key, s) in checks {
+            let x = s.eval(point);
+            if !x.is_finite() {
+                return Err(InputError::new(
+                    &self.file,
+                    key,
+                    format!(
+                        "must be a finite number, found {x} at {}",
+                        self.params.describe(point)
+                    ),
+                ));
+            }
+        }
+        Ok(())
+    }
+
     /// Index of the term marked as the target, if any.
     pub fn target(&self) -> Option<usize> {
         self.terms.iter().position(|t| t.target)

@@ -308,6 +308,7 @@ pub fn hunt(sys: &System, point: &[f64], opts: &HuntOptions) -> Result<HuntRepor
             ),
         ));
     }
+    sys.model.check_point(point)?;
     let window = Window::choose(sys, opts.range)?;
     let momenta = sys.lattice.momenta(&sys.model, point);
     let momentum = match (opts.momentum, &momenta) {
