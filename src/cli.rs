@@ -268,6 +268,7 @@ fn run_flow(args: FlowArgs) -> Result<(), Error> {
     let flow = Flow::new(&sys, opts.clone());
     let result = flow.run(&point)?;
     let unphysical = result.outcome == Outcome::Unphysical;
+    let failed = result.outcome == Outcome::Failed;
     let report = FlowReport::new(
         &sys.model.name,
         sys.model.params.names(),
@@ -282,6 +283,14 @@ fn run_flow(args: FlowArgs) -> Result<(), Error> {
     if unphysical {
         let msg = report.result.message.clone().unwrap_or_default();
         return Err(Error::Input(InputError::new(&sys.model.file, "", msg)));
+    }
+    if failed {
+        // The report (outcome "failed") is printed; the run still failed.
+        let msg = report.result.message.clone().unwrap_or_default();
+        return Err(Error::Numerical(format!(
+            "the flow failed at {}: {msg}",
+            sys.model.params.describe(&point)
+        )));
     }
     Ok(())
 }
