@@ -43,11 +43,16 @@ impl FlowReport {
             .zip(point.iter().map(|x| serde_json::json!(x)))
             .collect();
         let mut notes = vec![METHOD_NOTE.to_string()];
-        if result.dkd_drift > 1e-6 {
-            notes.push(format!(
-                "the flowing D drifted from D K D = K^-1 by {:.2e} (relative); tighten --rtol",
-                result.dkd_drift
-            ));
+        // A NaN drift (non-finite D) is reported too.
+        if result.dkd_drift.is_nan() || result.dkd_drift > 1e-6 {
+            notes.push(if result.dkd_drift.is_finite() {
+                format!(
+                    "the flowing D drifted from D K D = K^-1 by {:.2e} (relative); tighten --rtol",
+                    result.dkd_drift
+                )
+            } else {
+                "the flowing D has non-finite entries: D K D = K^-1 no longer holds".to_string()
+            });
         }
         if let Some(q) = result.quadrature.filter(|q| !q.converged) {
             notes.push(format!(
