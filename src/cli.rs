@@ -228,14 +228,30 @@ pub fn parse_assignment(s: &str) -> Result<(String, f64), String> {
 
 /// Run a parsed command.
 pub fn run(cli: Cli) -> Result<(), Error> {
-    match cli.command {
+    let model = match &cli.command {
+        Command::Dims(a) => Some(a.point.model.clone()),
+        Command::Flow(a) => Some(a.point.model.clone()),
+        Command::Scan(a) => Some(a.point.model.clone()),
+        Command::Hunt(a) => Some(a.point.model.clone()),
+        Command::Edges(a) => Some(a.point.model.clone()),
+        Command::Merge(_) => None,
+    };
+    let result = match cli.command {
         Command::Dims(args) => run_dims(args),
         Command::Flow(args) => run_flow(args),
         Command::Scan(args) => crate::scan::run::scan(args),
         Command::Merge(args) => crate::scan::run::merge(args),
         Command::Hunt(args) => crate::search::run(args),
         Command::Edges(args) => crate::edges::run(args),
-    }
+    };
+    // A point where V is not positive definite names the model file, like
+    // every other input error.
+    result.map_err(|e| match (e, model) {
+        (Error::Unphysical(u), Some(m)) => {
+            InputError::new(m.display().to_string(), "", u.to_string()).into()
+        }
+        (e, _) => e,
+    })
 }
 
 pub(crate) fn load_point(args: &PointArgs) -> Result<(System, Vec<f64>), Error> {
