@@ -180,13 +180,14 @@ impl System {
             Some(c) => format!("V is badly conditioned there (condition number {c:.1e})"),
             None => "V is badly conditioned there".to_string(),
         };
+        let file = &self.model.file;
         Err(Error::Numerical(if drift.is_finite() {
             format!(
-                "the fixed point at {at} cannot be computed accurately: {why}, and the computed D satisfies D K D = K^-1 only to {drift:.1e} (relative; {ACCURACY:.0e} is needed); rescale V or choose another point"
+                "{file}: the fixed point at {at} cannot be computed accurately: {why}, and the computed D satisfies D K D = K^-1 only to {drift:.1e} (relative; {ACCURACY:.0e} is needed); rescale V or choose another point"
             )
         } else {
             format!(
-                "the fixed point at {at} cannot be computed: {why}, and D has non-finite entries; rescale V or choose another point"
+                "{file}: the fixed point at {at} cannot be computed: {why}, and D has non-finite entries; rescale V or choose another point"
             )
         }))
     }
