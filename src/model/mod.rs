@@ -646,10 +646,17 @@ fn read_terms(ctx: &Ctx, model: &Model, raw: &[RawTerm]) -> Result<Vec<TermSpec>
         }
         terms.push(read_term(ctx, model, t, &key)?);
     }
-    if terms.iter().filter(|t| t.target).count() > 1 {
+    let targets: Vec<&str> = terms
+        .iter()
+        .filter(|t| t.target)
+        .map(|t| t.name.as_str())
+        .collect();
+    if let [first, second, ..] = targets[..] {
         return Err(ctx.err(
-            "term.target",
-            "at most one term may be marked as the target",
+            &format!("term \"{second}\".target"),
+            format!(
+                "at most one term may be marked as the target, and term \"{first}\" already is"
+            ),
         ));
     }
     Ok(terms)
