@@ -387,11 +387,11 @@ fn scan_refused(args: &[&str], fragments: &[&str]) {
 fn bad_axes_are_refused() {
     scan_refused(
         &["--x", "mu=0:1:3"],
-        &["--x/--y", "unknown axis parameter `mu`", "lambda", "delta"],
+        &["--x: unknown axis parameter `mu`", "lambda", "delta"],
     );
     scan_refused(
         &["--x", "lambda=0:0.5:3", "--y", "mu=0:1:3"],
-        &["unknown axis parameter `mu`"],
+        &["--y: unknown axis parameter `mu`"],
     );
     scan_refused(&["--x", "lambda=0:0.5:1"], &["--x", "at least 2 points"]);
     scan_refused(&["--x", "lambda=0:0.5:0"], &["at least 2 points"]);

@@ -120,7 +120,21 @@ fn resolve_axes(args: &ScanArgs, model: &crate::model::Model) -> Result<Vec<Axis
         }
     }
     let parse = |spec: String, key: &str, file: &str| {
-        Axis::parse(&spec).map_err(|m| Error::Input(InputError::new(file, key, m)))
+        let axis = Axis::parse(&spec).map_err(|m| Error::Input(InputError::new(file, key, m)))?;
+        // Checked here, where it is known which flag or key gave the axis.
+        if model.params.index(&axis.name).is_none() {
+            let known = if model.params.is_empty() {
+                "the model has no parameters".to_string()
+            } else {
+                format!("known parameters: {}", model.params.names().join(", "))
+            };
+            return Err(Error::Input(InputError::new(
+                file,
+                key,
+                format!("unknown axis parameter `{}` ({known})", axis.name),
+            )));
+        }
+        Ok(axis)
     };
     let x = match (&args.x, from_table("x")?) {
         (Some(s), _) => parse(s.clone(), "--x", "command line")?,
