@@ -168,7 +168,13 @@ pub fn csv_line(cells: &[String]) -> String {
 
 /// Read the meta line of a partial or shard file.
 pub fn read_meta(path: &Path) -> Result<Meta, Error> {
-    let file = File::open(path).map_err(|e| Error::io(path, e))?;
+    let file = File::open(path).map_err(|e| {
+        Error::Input(InputError::new(
+            path.display().to_string(),
+            "",
+            format!("cannot read the scan file: {e}"),
+        ))
+    })?;
     let mut first = String::new();
     BufReader::new(file)
         .read_line(&mut first)
