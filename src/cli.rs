@@ -261,6 +261,7 @@ pub(crate) fn load_point(args: &PointArgs) -> Result<(System, Vec<f64>), Error> 
 }
 
 fn run_dims(args: DimsArgs) -> Result<(), Error> {
+    check_outputs(args.output.as_deref(), args.out.as_deref())?;
     if !args.wires.is_empty() {
         let model = crate::model::Model::load(&args.point.model)?;
         let point = model.point_with(&args.point.set, "--set")?;
@@ -279,6 +280,7 @@ fn run_dims(args: DimsArgs) -> Result<(), Error> {
 }
 
 fn run_flow(args: FlowArgs) -> Result<(), Error> {
+    check_outputs(None, args.out.as_deref())?;
     let (sys, point) = load_point(&args.point)?;
     let opts = FlowOptions::resolve(&sys.model, &args.flow)?;
     let flow = Flow::new(&sys, opts.clone());
@@ -311,11 +313,28 @@ fn run_flow(args: FlowArgs) -> Result<(), Error> {
     Ok(())
 }
 
+/// Check `-o FILE` and `--out DIR` before any work is done.
+pub(crate) fn check_outputs(
+    file: Option<&std::path::Path>,
+    dir: Option<&std::path::Path>,
+) -> Result<(), Error> {
+    if let Some(f) = file {
+        output::check_output_file(f, "-o")?;
+    }
+    if let Some(d) = dir {
+        output::check_output_dir(d, "--out")?;
+    }
+    Ok(())
+}
+
 /// Print to standard output, or write a file atomically.
 pub(crate) fn emit(path: Option<&std::path::Path>, text: &str) -> Result<(), Error> {
     match path {
         None => output::write_atomic(std::path::Path::new("-"), text.as_bytes()),
-        Some(p) => output::write_atomic(p, text.as_bytes()),
+        Some(p) => {
+            output::check_output_file(p, "-o")?;
+            output::write_atomic(p, text.as_bytes())
+        }
     }
 }
 

@@ -378,6 +378,7 @@ fn periodic_closure(
 
 /// `pinflow edges`.
 pub fn run(args: EdgesArgs) -> Result<(), Error> {
+    crate::cli::check_outputs(args.output.as_deref(), None)?;
     let (sys, point) = crate::cli::load_point(&args.point)?;
     // Flow options are checked even when --pin makes the flow unnecessary.
     let opts = FlowOptions::resolve(&sys.model, &args.flow)?;

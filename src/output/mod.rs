@@ -148,6 +148,49 @@ pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<(), Error> {
     })
 }
 
+/// Check an output file given by a flag before anything is computed: not a
+/// directory, and its directory exists (`-` is standard output).
+pub fn check_output_file(path: &Path, flag: &str) -> Result<(), crate::error::InputError> {
+    let bad = |m: String| crate::error::InputError::new("command line", flag, m);
+    if path.as_os_str() == "-" {
+        return Ok(());
+    }
+    if path.is_dir() || path.file_name().is_none() {
+        return Err(bad(format!(
+            "`{}` is a directory; give a file name",
+            path.display()
+        )));
+    }
+    let parent = match path.parent() {
+        Some(p) if !p.as_os_str().is_empty() => p,
+        _ => Path::new("."),
+    };
+    if !parent.is_dir() {
+        return Err(bad(format!(
+            "cannot write `{}`: the directory `{}` does not exist",
+            path.display(),
+            parent.display()
+        )));
+    }
+    Ok(())
+}
+
+/// Check an output directory given by a flag: it may not exist yet (it is
+/// created), but it may not be a file.
+pub fn check_output_dir(dir: &Path, flag: &str) -> Result<(), crate::error::InputError> {
+    if dir.exists() && !dir.is_dir() {
+        return Err(crate::error::InputError::new(
+            "command line",
+            flag,
+            format!(
+                "`{}` exists and is not a directory; give a directory for the output files",
+                dir.display()
+            ),
+        ));
+    }
+    Ok(())
+}
+
 /// The temporary name used by [`write_atomic`] for `path`.
 pub fn temp_path(path: &Path) -> std::path::PathBuf {
     let name = path

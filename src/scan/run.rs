@@ -35,6 +35,7 @@ pub fn scan(args: ScanArgs) -> Result<(), Error> {
         .out
         .clone()
         .unwrap_or_else(|| default_dir(&args.point.model));
+    output::check_output_dir(&dir, "--out")?;
     std::fs::create_dir_all(&dir).map_err(|e| Error::io(&dir, e))?;
     let partial = partial_path(&dir, args.shard);
     let mut file = if args.resume && partial.exists() {
@@ -73,6 +74,7 @@ pub fn merge(args: MergeArgs) -> Result<(), Error> {
         .clone()
         .or_else(|| args.shards[0].parent().map(Path::to_path_buf))
         .unwrap_or_else(|| PathBuf::from("."));
+    output::check_output_dir(&dir, "--out")?;
     std::fs::create_dir_all(&dir).map_err(|e| Error::io(&dir, e))?;
     let meta = store::merge(&args.shards, &dir.join("points.csv"))?;
     finish(&dir, &meta, args.format)

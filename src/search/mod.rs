@@ -530,6 +530,7 @@ fn competitors(sys: &System, full_m: &[i64]) -> Vec<String> {
 
 /// `pinflow hunt` from the command line.
 pub fn run(args: crate::cli::HuntArgs) -> Result<(), Error> {
+    crate::cli::check_outputs(args.output.as_deref(), None)?;
     let (sys, point) = crate::cli::load_point(&args.point)?;
     let opts = HuntOptions {
         max_dim: args.max_dim,
