@@ -283,7 +283,10 @@ pub fn eval_blocks(model: &Model, point: &[f64]) -> Result<Vec<DMatrix<f64>>, St
             for b in 0..c {
                 let x = block[a][b].eval(point);
                 if !x.is_finite() {
-                    return Err(format!("{} = {x}", block_key(model, sep, a, b)));
+                    return Err(format!(
+                        "{}: must be a finite number, found {x}",
+                        block_key(model, sep, a, b)
+                    ));
                 }
                 m[(a, b)] = x;
             }

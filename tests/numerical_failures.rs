@@ -170,7 +170,11 @@ fn non_finite_v_entries_are_named() {
     let text = format!(
         "{WIRE}V = [[\"1\", \"lambda/0\"], [\"lambda/0\", \"1\"]]\n[[term]]\nname = \"b\"\nparticles = [1, -1]\n"
     );
-    assert_named(&text, "fields.V[0][1]", "= inf");
+    assert_named(
+        &text,
+        "fields.V[0][1]",
+        "must be a finite number, found inf",
+    );
 }
 
 #[test]
