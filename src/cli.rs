@@ -306,7 +306,8 @@ fn run_flow(args: FlowArgs) -> Result<(), Error> {
         // The report (outcome "failed") is printed; the run still failed.
         let msg = report.result.message.clone().unwrap_or_default();
         return Err(Error::Numerical(format!(
-            "the flow failed at {}: {msg}",
+            "{}: the flow failed at {}: {msg}",
+            sys.model.file,
             sys.model.params.describe(&point)
         )));
     }
