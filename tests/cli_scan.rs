@@ -447,11 +447,11 @@ fn bad_shard_numbers_are_refused() {
 
 #[test]
 fn unwritable_output_fails_at_once() {
-    // An output directory under a regular file cannot be created. Reading
-    // or writing files is an I/O failure, exit code 1 (src/cli.rs: 1 = a run
-    // failed (numerics, I/O), 2 = bad input). The grid (10 000 points of
-    // the array with generated terms) would take far longer than the
-    // timeout if the scan ran before failing.
+    // An output directory under a regular file cannot be created: a bad
+    // --out, refused before any point is computed (exit code 2, bad input;
+    // docs/errors.md E67). The grid (10 000 points of the array with
+    // generated terms) would take far longer than the timeout if the scan
+    // ran before failing.
     let dir = tmp();
     let file = dir.path().join("a-file");
     std::fs::write(&file, "not a directory").unwrap();
@@ -465,8 +465,8 @@ fn unwritable_output_fails_at_once() {
         .arg("--quiet")
         .timeout(Duration::from_secs(10))
         .assert()
-        .code(1)
-        .stderr(predicate::str::contains("a-file").and(predicate::str::contains("error:")));
+        .code(2)
+        .stderr(predicate::str::contains("a-file").and(predicate::str::contains("--out")));
 }
 
 /// Three complete shards of a small scan in `dir/name`; extra arguments

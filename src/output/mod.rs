@@ -178,15 +178,20 @@ pub fn check_output_file(path: &Path, flag: &str) -> Result<(), crate::error::In
 /// Check an output directory given by a flag: it may not exist yet (it is
 /// created), but it may not be a file.
 pub fn check_output_dir(dir: &Path, flag: &str) -> Result<(), crate::error::InputError> {
+    let bad = |m: String| crate::error::InputError::new("command line", flag, m);
     if dir.exists() && !dir.is_dir() {
-        return Err(crate::error::InputError::new(
-            "command line",
-            flag,
-            format!(
-                "`{}` exists and is not a directory; give a directory for the output files",
-                dir.display()
-            ),
-        ));
+        return Err(bad(format!(
+            "`{}` exists and is not a directory; give a directory for the output files",
+            dir.display()
+        )));
+    }
+    // A directory to be created under a regular file cannot be.
+    if let Some(file) = dir.ancestors().skip(1).find(|a| a.is_file()) {
+        return Err(bad(format!(
+            "cannot create `{}`: `{}` is a file",
+            dir.display(),
+            file.display()
+        )));
     }
     Ok(())
 }
