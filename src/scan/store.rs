@@ -42,11 +42,82 @@ pub struct Meta {
 }
 
 impl Meta {
+    /// The meta line of a file written by another run (a shard to merge, a
+    /// partial file to resume) is checked before it is used: shard k of n
+    /// with 1 <= k <= n, valid axes, and as many points as the axes make.
+    pub fn check(&self) -> Result<(), String> {
+        if let Some((k, n)) = self.shard {
+            if k == 0 || k > n {
+                return Err(format!("shard {k}/{n} is not a shard (needs 1 <= K <= N)"));
+            }
+        }
+        if self.axes.is_empty() || self.axes.len() > 2 {
+            return Err(format!("{} axes (a scan has 1 or 2)", self.axes.len()));
+        }
+        for a in &self.axes {
+            if !(a.min.is_finite() && a.max.is_finite()) {
+                return Err(format!("axis `{}` has non-finite bounds", a.name));
+            }
+            a.validate()?;
+        }
+        let points = self.axes.iter().try_fold(1usize, |p, a| p.checked_mul(a.n));
+        if points != Some(self.points) {
+            return Err(format!("{} points do not match the axes", self.points));
+        }
+        Ok(())
+    }
+
+    /// The cells a row of point `index` starts with (its axis values, as
+    /// the scan writes them).
+    fn coords_of(&self, index: usize) -> Vec<String> {
+        let mut rest = index;
+        self.axes
+            .iter()
+            .map(|a| {
+                let v = a.value(rest % a.n);
+                rest /= a.n;
+                format!("{v}")
+            })
+            .collect()
+    }
+
+    /// Check a data row of point `index`: as many cells as the header,
+    /// the point's axis values, a known outcome.
+    fn check_row(&self, line: &str, index: usize) -> Result<(), String> {
+        let mut reader = csv::ReaderBuilder::new()
+            .has_headers(false)
+            .from_reader(line.as_bytes());
+        let rec = reader
+            .records()
+            .next()
+            .and_then(|r| r.ok())
+            .ok_or("not a CSV row")?;
+        let width = self.header().len();
+        if rec.len() != width {
+            return Err(format!("{} cells, expected {width}", rec.len()));
+        }
+        for (j, want) in self.coords_of(index).iter().enumerate() {
+            if rec.get(j) != Some(want.as_str()) {
+                return Err(format!(
+                    "{} = {}, expected {want}",
+                    self.axes[j].name,
+                    rec.get(j).unwrap_or("")
+                ));
+            }
+        }
+        let outcome = rec.get(self.axes.len()).unwrap_or("");
+        if !super::summary::OUTCOMES.contains(&outcome) {
+            return Err(format!("unknown outcome `{outcome}`"));
+        }
+        Ok(())
+    }
+
     /// Number of points this file must hold when complete.
     pub fn expected_rows(&self) -> usize {
         match self.shard {
             None => self.points,
-            Some((k, n)) => (self.points + n - k) / n,
+            // Points k-1, k-1+n, ... (no overflow for any points).
+            Some((k, n)) => self.points.saturating_sub(k - 1).div_ceil(n),
         }
     }
 
@@ -190,7 +261,10 @@ pub fn read_meta(path: &Path) -> Result<Meta, Error> {
         .trim_end()
         .strip_prefix(MAGIC)
         .ok_or_else(|| bad("missing the `# pinflow-scan` line"))?;
-    serde_json::from_str(json).map_err(|e| bad(&e.to_string()))
+    let meta: Meta = serde_json::from_str(json).map_err(|e| bad(&e.to_string()))?;
+    meta.check()
+        .map_err(|why| bad(&format!("its first line is damaged: {why}")))?;
+    Ok(meta)
 }
 
 /// Iterate over the data rows (after the meta line and the header) of a
@@ -239,22 +313,38 @@ pub fn merge(shards: &[PathBuf], target: &Path) -> Result<Meta, Error> {
         readers.push(data_lines(&shards[i], true)?);
     }
     let tmp = crate::output::temp_path(target);
-    {
+    let written = (|| -> Result<(), Error> {
         let mut out = std::io::BufWriter::new(File::create(&tmp).map_err(|e| Error::io(&tmp, e))?);
         out.write_all(csv_line(&whole.header()).as_bytes())
             .map_err(|e| Error::io(&tmp, e))?;
         for index in 0..whole.points {
             let k = index % n;
+            let path = &shards[order[k]];
             let line = readers[k]
                 .next()
                 .transpose()
-                .map_err(|e| Error::io(&shards[order[k]], e))?;
-            let line = line.ok_or_else(|| incomplete(&shards[order[k]]))?;
+                .map_err(|e| Error::io(path, e))?;
+            let line = line.ok_or_else(|| incomplete(path))?;
+            // A damaged row must not reach points.csv.
+            whole.check_row(&line, index).map_err(|why| {
+                Error::Input(InputError::new(
+                    path.display().to_string(),
+                    "",
+                    format!(
+                        "the row of point {index} (data row {} of the shard) is damaged: {why}",
+                        index / n + 1
+                    ),
+                ))
+            })?;
             out.write_all(line.as_bytes())
                 .and_then(|_| out.write_all(b"\n"))
                 .map_err(|e| Error::io(&tmp, e))?;
         }
-        out.flush().map_err(|e| Error::io(&tmp, e))?;
+        out.flush().map_err(|e| Error::io(&tmp, e))
+    })();
+    if let Err(e) = written {
+        let _ = std::fs::remove_file(&tmp);
+        return Err(e);
     }
     std::fs::rename(&tmp, target).map_err(|e| Error::io(target, e))?;
     Ok(whole)
