@@ -56,6 +56,10 @@ enum Step {
     Truncate(&'static str, usize),
     /// Copy a file.
     Copy(&'static str, &'static str),
+    /// Replace line `n` (1-based) of a file.
+    Line(&'static str, usize, &'static str),
+    /// Replace a piece of text (occurring once) in a file.
+    Edit(&'static str, &'static str, &'static str),
 }
 
 struct Case {
@@ -299,45 +303,73 @@ fn cases() -> Vec<Case> {
             code: 2,
             message: "error: run/shard-3-of-3.csv: shard 3/3 is incomplete: 1 of 2 points",
         },
-        case("E62", base(), "merge wire.toml", 2,
+        Case {
+            id: "E62",
+            files: base(),
+            // Found by hand: a shard whose first line says shard 1/0 made
+            // merge panic (index out of bounds).
+            setup: {
+                let mut s = shards(3, "lambda=0:0.5:7");
+                s.push(Step::Edit("run/shard-1-of-3.csv", "\"shard\":[1,3]", "\"shard\":[1,0]"));
+                s
+            },
+            args: args("merge run/shard-1-of-3.csv run/shard-2-of-3.csv run/shard-3-of-3.csv"),
+            code: 2,
+            message: "error: run/shard-1-of-3.csv: not a pinflow scan file: its first line is damaged: shard 1/0 is not a shard (needs 1 <= K <= N)",
+        },
+        Case {
+            id: "E63",
+            files: base(),
+            // A damaged row was copied into points.csv, which the summary
+            // then refused, leaving the damaged points.csv behind.
+            setup: {
+                let mut s = shards(3, "lambda=0:0.5:7");
+                s.push(Step::Line("run/shard-2-of-3.csv", 4, "0.5,strong,backscatter,1.5,1,1"));
+                s
+            },
+            args: args("merge run/shard-1-of-3.csv run/shard-2-of-3.csv run/shard-3-of-3.csv"),
+            code: 2,
+            message: "error: run/shard-2-of-3.csv: the row of point 4 (data row 2 of the shard) is damaged: lambda = 0.5, expected 0.3333333333333333",
+        },
+        case("E64", base(), "merge wire.toml", 2,
             "error: wire.toml: not a pinflow scan file: missing the `# pinflow-scan` line"),
-        case("E63", base(), "merge run/shard-1-of-4.csv", 2,
+        case("E65", base(), "merge run/shard-1-of-4.csv", 2,
             "error: run/shard-1-of-4.csv: cannot read the scan file: No such file or directory (os error 2)"),
         // ------------------------------------------------ output paths
-        case("E64", base(), "dims wire.toml -o results/dims.txt", 2,
+        case("E66", base(), "dims wire.toml -o results/dims.txt", 2,
             "error: command line: -o: cannot write `results/dims.txt`: the directory `results` does not exist"),
-        case("E65", base(), "dims wire.toml -o .", 2,
+        case("E67", base(), "dims wire.toml -o .", 2,
             "error: command line: -o: `.` is a directory; give a file name"),
-        case("E66", base(), "flow wire.toml --out ring.toml", 2,
+        case("E68", base(), "flow wire.toml --out ring.toml", 2,
             "error: command line: --out: `ring.toml` exists and is not a directory; give a directory for the output files"),
-        case("E67", base(), "scan wire.toml --x lambda=0:0.5:20 --out ring.toml/scan", 2,
+        case("E69", base(), "scan wire.toml --x lambda=0:0.5:20 --out ring.toml/scan", 2,
             "error: command line: --out: cannot create `ring.toml/scan`: `ring.toml` is a file"),
         // ------------------------------------------------ hunt
-        case("E68", base(), "hunt wire.toml --max-dim 0", 2,
+        case("E70", base(), "hunt wire.toml --max-dim 0", 2,
             "error: invalid value '0' for '--max-dim <DELTA>': expected a finite number > 0 (a scaling dimension), found `0`"),
-        case("E69", base(), "hunt wire.toml --range 2", 2,
+        case("E71", base(), "hunt wire.toml --range 2", 2,
             "error: command line: --range: applies to arrays of wires only; this model gives [fields], and all of its 2 fields are searched"),
-        case("E70", base(), "hunt ring.toml --range 9", 2,
+        case("E72", base(), "hunt ring.toml --range 9", 2,
             "error: command line: --range: expected at most 8 (the number of wires of the array), found 9"),
-        case("E71", base(), "hunt wire.toml --charge one", 2,
+        case("E73", base(), "hunt wire.toml --charge one", 2,
             "error: invalid value 'one' for '--charge <Q>': expected an integer charge t.m or `any`, found `one`"),
-        case("E72", base(), "hunt wire.toml --momentum conserved", 2,
+        case("E74", base(), "hunt wire.toml --momentum conserved", 2,
             "error: command line: --momentum: the model gives no momenta (fields.momentum or array.momentum); omit the flag or use `--momentum any`"),
-        case("E73", base(), "hunt ring.toml --max-dim 40 --charge any --spin any --range 4", 2,
+        case("E75", base(), "hunt ring.toml --max-dim 40 --charge any --spin any --range 4", 2,
             "error: command line: --max-dim: the search would examine about 1.66e8 lattice points in 8 dimensions (ellipsoid volume 1.66e8, search-tree estimate 9.65e7), above the limit 5e7; narrow it with a smaller --max-dim or --range, or pass --force to run it anyway"),
         // ------------------------------------------------ edges and dims --wires
-        case("E74", base(), "edges ring.toml --pin tunel", 2,
+        case("E76", base(), "edges ring.toml --pin tunel", 2,
             "error: command line: --pin: unknown term \"tunel\" (the model's terms: tunnel, cdw)"),
-        case("E75", base(), "edges ring.toml --pin tunnel --pin cdw", 2,
+        case("E77", base(), "edges ring.toml --pin tunnel --pin cdw", 2,
             "error: command line: --pin: \"tunnel\" at wire 0 and \"cdw\" at wire 0 do not commute: their mutual phase l_a.K^-1 l_b is -2, not 0; a pinned set must commute"),
-        case("E76", base(), "edges wire.toml --pin backscatter --window 2", 2,
+        case("E78", base(), "edges wire.toml --pin backscatter --window 2", 2,
             "error: command line: --window: only an open array has ends to look at; this model is an explicit model (no wires)"),
-        case("E77", base(), "dims wire.toml --wires 4,8", 2,
+        case("E79", base(), "dims wire.toml --wires 4,8", 2,
             "error: command line: --wires: wire.toml is an explicit model ([fields]); a number of wires needs an [array] model"),
-        case("E78", base(), "dims ring.toml --wires 8,5000", 2,
+        case("E80", base(), "dims ring.toml --wires 8,5000", 2,
             "error: command line: --wires: a model may have at most 2048 fields in all, found 5000 wires of 2 fields (at most 1024 wires)"),
         // ------------------------------------------------ numerical failure
-        case("E79", base(), "flow wire.toml --rtol 1e-300 --atol 1e-300", 1,
+        case("E81", base(), "flow wire.toml --rtol 1e-300 --atol 1e-300", 1,
             "error: wire.toml: the flow failed at lambda=0.3: integration failed at ell = 0.000000"),
     ];
     c.sort_by_key(|c| c.id);
@@ -368,6 +400,27 @@ fn run_case(c: &Case) -> (i32, String) {
             }
             Step::Copy(from, to) => {
                 std::fs::copy(dir.path().join(from), dir.path().join(to)).expect("copy");
+            }
+            Step::Line(file, n, new) => {
+                let p = dir.path().join(file);
+                let text = std::fs::read_to_string(&p).expect("read");
+                let lines: Vec<String> = text
+                    .lines()
+                    .enumerate()
+                    .map(|(i, l)| {
+                        if i + 1 == *n {
+                            new.to_string()
+                        } else {
+                            l.to_string()
+                        }
+                    })
+                    .collect();
+                std::fs::write(&p, lines.join("\n") + "\n").expect("write");
+            }
+            Step::Edit(file, old, new) => {
+                let p = dir.path().join(file);
+                let text = std::fs::read_to_string(&p).expect("read");
+                std::fs::write(&p, with(&text, old, new)).expect("write");
             }
         }
     }
@@ -511,22 +564,24 @@ entries! {
     e59_shard_twice => "E59",
     e60_shards_of_two_scans => "E60",
     e61_incomplete_shard => "E61",
-    e62_not_a_scan_file => "E62",
-    e63_unreadable_shard => "E63",
-    e64_output_directory_missing => "E64",
-    e65_output_is_a_directory => "E65",
-    e66_out_is_a_file => "E66",
-    e67_out_cannot_be_created => "E67",
-    e68_max_dim => "E68",
-    e69_range_explicit => "E69",
-    e70_range_too_wide => "E70",
-    e71_charge => "E71",
-    e72_momentum_filter => "E72",
-    e73_search_too_large => "E73",
-    e74_pin_unknown => "E74",
-    e75_pins_do_not_commute => "E75",
-    e76_window_explicit => "E76",
-    e77_wires_explicit => "E77",
-    e78_wires_too_many => "E78",
-    e79_integration_failed => "E79",
+    e62_damaged_shard_meta => "E62",
+    e63_damaged_shard_row => "E63",
+    e64_not_a_scan_file => "E64",
+    e65_unreadable_shard => "E65",
+    e66_output_directory_missing => "E66",
+    e67_output_is_a_directory => "E67",
+    e68_out_is_a_file => "E68",
+    e69_out_cannot_be_created => "E69",
+    e70_max_dim => "E70",
+    e71_range_explicit => "E71",
+    e72_range_too_wide => "E72",
+    e73_charge => "E73",
+    e74_momentum_filter => "E74",
+    e75_search_too_large => "E75",
+    e76_pin_unknown => "E76",
+    e77_pins_do_not_commute => "E77",
+    e78_window_explicit => "E78",
+    e79_wires_explicit => "E79",
+    e80_wires_too_many => "E80",
+    e81_integration_failed => "E81",
 }
