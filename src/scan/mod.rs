@@ -83,6 +83,20 @@ impl<'s> Scan<'s> {
             )
             .into());
         }
+        // N_x N_y must be countable (2^32 x 2^32 wrapped to 0 points).
+        if spec
+            .axes
+            .iter()
+            .try_fold(1usize, |p, a| p.checked_mul(a.n))
+            .is_none()
+        {
+            return Err(InputError::new(
+                "command line",
+                "--x/--y",
+                "the grid has more points than can be counted; narrow the axes",
+            )
+            .into());
+        }
         spec.options.record = false;
         let meta = make_meta(sys, model_bytes, &spec);
         let flow = Flow::new(sys, spec.options.clone());
@@ -99,11 +113,25 @@ impl<'s> Scan<'s> {
         self.spec.axes.iter().map(|a| a.n).product()
     }
 
-    /// Grid indices this run computes, in order.
+    /// Grid indices this run computes, in order (allocates one entry per
+    /// point: [`Scan::count`] and [`Scan::index_at`] do not).
     pub fn indices(&self) -> Vec<usize> {
+        (0..self.count()).map(|j| self.index_at(j)).collect()
+    }
+
+    /// Number of grid points this run computes.
+    pub fn count(&self) -> usize {
         match self.spec.shard {
-            None => (0..self.points()).collect(),
-            Some((k, n)) => (k - 1..self.points()).step_by(n).collect(),
+            None => self.points(),
+            Some((k, n)) => self.points().saturating_sub(k - 1).div_ceil(n),
+        }
+    }
+
+    /// The grid index of the j-th point this run computes.
+    pub fn index_at(&self, j: usize) -> usize {
+        match self.spec.shard {
+            None => j,
+            Some((k, n)) => k - 1 + j * n,
         }
     }
 
@@ -132,11 +160,18 @@ impl<'s> Scan<'s> {
 
     /// Compute every remaining point of `file`, appending chunk by chunk.
     pub fn run_into(&self, file: &mut RowFile, progress: &dyn Fn(usize)) -> Result<(), Error> {
-        let indices = self.indices();
-        for chunk in indices[file.rows.min(indices.len())..].chunks(CHUNK) {
-            let rows: Vec<String> = chunk.par_iter().map(|&i| self.row(i)).collect();
+        // Indices are computed chunk by chunk, never held all at once.
+        let count = self.count();
+        let mut start = file.rows.min(count);
+        while start < count {
+            let end = (start + CHUNK).min(count);
+            let rows: Vec<String> = (start..end)
+                .into_par_iter()
+                .map(|j| self.row(self.index_at(j)))
+                .collect();
             file.append(&rows)?;
             progress(rows.len());
+            start = end;
         }
         file.sync()
     }

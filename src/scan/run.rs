@@ -43,7 +43,7 @@ pub fn scan(args: ScanArgs) -> Result<(), Error> {
     } else {
         RowFile::create(&partial, &scan.meta)?
     };
-    let todo = scan.indices().len();
+    let todo = scan.count();
     let bar = progress_bar(todo as u64, file.rows as u64, args.quiet);
     scan.run_into(&mut file, &|n| bar.inc(n as u64))?;
     bar.finish_and_clear();
