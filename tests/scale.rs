@@ -10,17 +10,6 @@ use pinflow::dims::DimsReport;
 use pinflow::model::Model;
 use pinflow::system::System;
 
-const WIRE: &str = r#"[params]
-lambda = 0.3
-[fields]
-K = [[1, 0], [0, -1]]
-charge = [1, 1]
-V = [["1", "lambda"], ["lambda", "1"]]
-[[term]]
-name = "backscatter"
-particles = [1, -1]
-"#;
-
 fn lines(path: &Path) -> usize {
     std::fs::File::open(path)
         .map(|f| std::io::BufReader::new(f).lines().count())
@@ -44,12 +33,12 @@ fn a_forced_grid_of_4e9_points_streams_its_rows_in_little_memory() {
     // Found by hand: the scan collected all 4e9 grid indices (32 GB) before
     // computing the first point, and aborted.
     let dir = tempfile::tempdir().expect("temporary directory");
-    std::fs::write(dir.path().join("wire.toml"), WIRE).expect("model");
+    let model = Path::new(env!("CARGO_MANIFEST_DIR")).join("flows/spinless_wire.toml");
     let mut child = std::process::Command::new(assert_cmd::cargo::cargo_bin("pinflow"))
         .current_dir(dir.path())
         .args([
             "scan",
-            "wire.toml",
+            model.to_str().expect("a UTF-8 path"),
             "--x",
             "lambda=0:0.5:4000000000",
             "--out",
