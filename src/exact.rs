@@ -42,7 +42,9 @@ pub fn to_f64(r: &Rational) -> f64 {
 
 /// The rational p/q with the smallest denominator q <= `max_den` within
 /// `tol` (relative to max(1, |x|)) of x, by continued fractions; None if
-/// there is none. Used to recognise momenta like 0.05 = 1/20 or
+/// there is none. Keep `max_den` small (about 1e4 for tol = 1e-12): any real
+/// has approximations p/q within about 1/q^2, so a large `max_den` would
+/// "recognise" every number. Used to recognise momenta like 0.05 = 1/20 or
 /// 6 * 0.05 = 0.30000000000000004 = 3/10 so that they can be compared exactly.
 pub fn small_rational(x: f64, max_den: i64, tol: f64) -> Option<Rational> {
     if !x.is_finite() || x.abs() > 1e12 {
@@ -310,11 +312,11 @@ mod tests {
     #[test]
     fn small_rationals_are_recognised() {
         let r = |p: i64, q: i64| Rational::new(BigInt::from(p), BigInt::from(q));
-        assert_eq!(small_rational(0.05, 1_000_000, 1e-12), Some(r(1, 20)));
-        assert_eq!(small_rational(6.0 * 0.05, 1_000_000, 1e-12), Some(r(3, 10)));
-        assert_eq!(small_rational(-2.0 / 3.0, 1_000_000, 1e-12), Some(r(-2, 3)));
-        assert_eq!(small_rational(0.0, 1_000_000, 1e-12), Some(r(0, 1)));
-        assert_eq!(small_rational(std::f64::consts::PI, 1_000_000, 1e-12), None);
+        assert_eq!(small_rational(0.05, 10_000, 1e-12), Some(r(1, 20)));
+        assert_eq!(small_rational(6.0 * 0.05, 10_000, 1e-12), Some(r(3, 10)));
+        assert_eq!(small_rational(-2.0 / 3.0, 10_000, 1e-12), Some(r(-2, 3)));
+        assert_eq!(small_rational(0.0, 10_000, 1e-12), Some(r(0, 1)));
+        assert_eq!(small_rational(std::f64::consts::PI, 10_000, 1e-12), None);
     }
 
     #[test]

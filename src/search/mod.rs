@@ -267,7 +267,7 @@ impl Space {
 
 /// Run the search at a parameter point.
 /// Largest denominator for momenta to be treated as exact rationals.
-pub const MAX_MOMENTUM_DENOMINATOR: i64 = 1_000_000;
+pub const MAX_MOMENTUM_DENOMINATOR: i64 = 10_000;
 
 /// D on the fields of the lattice, exact on the window: the dense fixed
 /// point for finite models; for an infinite array, the real-space window

@@ -92,7 +92,7 @@ pub struct HuntReport {
     /// |k| below which the momentum counts as conserved (null when the
     /// momenta are rational and conservation is checked exactly).
     pub momentum_tolerance: Option<f64>,
-    /// Every momentum is a rational p/q (q <= 10^6) at this point and
+    /// Every momentum is a rational p/q (q <= 10^4) at this point and
     /// conservation is checked exactly.
     pub momentum_exact: bool,
     /// Size estimates.
