@@ -13,6 +13,10 @@
 //! - [`system`]: a model prepared once for evaluation at many points;
 //! - [`dims`]: the `pinflow dims` report, and [`convergence`] its
 //!   `--wires` form (dimensions against array size);
+//! - [`flow`]: the second-order RG flow of competing couplings and D;
+//! - [`scan`]: parameter grids, shards, resume, summaries and figures;
+//! - [`search`]: the exhaustive operator search (`pinflow hunt`);
+//! - [`edges`]: what a pinned set of terms leaves (`pinflow edges`);
 //! - [`output`]: text, JSON, CSV, Markdown and LaTeX exporters;
 //! - [`plot`]: figures (PNG and SVG, embedded font);
 //! - [`cli`]: the command line.
