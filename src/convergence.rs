@@ -88,13 +88,7 @@ impl ConvergenceReport {
         );
         Ok(ConvergenceReport {
             model: model.name.clone(),
-            parameters: model
-                .params
-                .names()
-                .iter()
-                .cloned()
-                .zip(point.iter().map(|x| serde_json::json!(x)))
-                .collect(),
+            parameters: model.params.json_point(point),
             boundary: boundary.to_string(),
             terms: model.terms.iter().map(|t| t.name.clone()).collect(),
             rows,

@@ -239,12 +239,7 @@ impl DimsReport {
                 coupling: spec.coupling.eval(point),
             });
         }
-        let names = sys.model.params.names();
-        let parameters = names
-            .iter()
-            .cloned()
-            .zip(point.iter().map(|x| serde_json::json!(x)))
-            .collect();
+        let parameters = sys.model.params.json_point(point);
         let mut notes = notes_for(&terms);
         let starred = inv.commutation.iter().zip(&inv.commutes).any(|(ph, ok)| {
             ph.iter()

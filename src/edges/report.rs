@@ -191,14 +191,7 @@ impl EdgesReport {
     /// Assemble the report.
     pub fn new(sys: &System, point: &[f64], sel: &Selection, a: &Analysis) -> EdgesReport {
         let lat = &sys.lattice;
-        let parameters = sys
-            .model
-            .params
-            .names()
-            .iter()
-            .cloned()
-            .zip(point.iter().map(|x| serde_json::json!(x)))
-            .collect();
+        let parameters = sys.model.params.json_point(point);
         let (chosen_by, winner, ell_star) = match &sel.source {
             Source::Flags => ("--pin".to_string(), None, None),
             Source::Flow { winner, ell_star } => {

@@ -49,6 +49,15 @@ impl ParamSet {
         self.names.is_empty()
     }
 
+    /// A parameter point as a JSON object (name -> value), for reports.
+    pub fn json_point(&self, point: &[f64]) -> serde_json::Map<String, serde_json::Value> {
+        self.names
+            .iter()
+            .cloned()
+            .zip(point.iter().map(|x| serde_json::json!(x)))
+            .collect()
+    }
+
     /// `name=value` pairs of a parameter point, for messages and reports.
     pub fn describe(&self, point: &[f64]) -> String {
         if self.names.is_empty() {

@@ -127,14 +127,7 @@ impl HuntReport {
         operators: Vec<Operator>,
         exact_momenta: bool,
     ) -> HuntReport {
-        let parameters = sys
-            .model
-            .params
-            .names()
-            .iter()
-            .cloned()
-            .zip(point.iter().map(|x| serde_json::json!(x)))
-            .collect();
+        let parameters = sys.model.params.json_point(point);
         let infinite = matches!(
             sys.model.structure,
             Structure::Array {
