@@ -150,11 +150,11 @@ pub struct HuntArgs {
     #[command(flatten)]
     pub point: PointArgs,
     /// Largest scaling dimension listed (2: the relevant operators).
-    #[arg(long, value_name = "DELTA", default_value = "2", allow_negative_numbers = true,
+    #[arg(long, value_name = "DELTA", default_value = "2", allow_hyphen_values = true,
           value_parser = crate::search::parse_max_dim)]
     pub max_dim: f64,
     /// Charge t.m of the operators: an integer, or `any`.
-    #[arg(long, value_name = "Q", default_value = "0", allow_negative_numbers = true,
+    #[arg(long, value_name = "Q", default_value = "0", allow_hyphen_values = true,
           value_parser = crate::search::parse_charge)]
     pub charge: crate::search::ChargeFilter,
     /// Conformal spin: 0 (operators that can pin on their own) or any.
@@ -162,7 +162,7 @@ pub struct HuntArgs {
     pub spin: crate::search::SpinFilter,
     /// Arrays: the most consecutive wires an operator may touch [default:
     /// the widest model term, at least 2].
-    #[arg(long, value_name = "R", allow_negative_numbers = true,
+    #[arg(long, value_name = "R", allow_hyphen_values = true,
           value_parser = crate::search::parse_range)]
     pub range: Option<usize>,
     /// Momentum conservation, when the model gives momenta [default: conserved].

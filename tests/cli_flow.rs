@@ -246,6 +246,12 @@ fn bad_flags_exit_with_code_2() {
         &["--closure-bound", ">= 0", "-1"],
     );
     rejects(&[w, "--rtol", "0"], &["--rtol", "> 0"]);
+    // Below double precision the step control could only fail.
+    rejects(&[w, "--rtol", "1e-15"], &["--rtol", "1e-14", "1e-15"]);
+    rejects(&[w, "--rtol", "1"], &["--rtol", "below 1"]);
+    // A value with an exponent and a leading hyphen reaches the check.
+    rejects(&[w, "--atol", "-1e-3"], &["--atol", "> 0", "-0.001"]);
+    rejects(&[w, "--max-steps", "0"], &["--max-steps", "from 1"]);
     rejects(&[w, "--floor", "2"], &["--floor", "below y_strong"]);
     rejects(&[w, "--closure", "all"], &["--closure"]);
     rejects(&[w, "--set", "nope=1"], &["unknown parameter `nope`"]);
@@ -305,4 +311,39 @@ fn bad_model_files_exit_with_code_2() {
         &[dir.path().join("missing.toml").to_str().unwrap()],
         &["cannot read"],
     );
+    let steps = edited(dir.path(), "steps.toml", |t| {
+        t + "\n[flow]\nmax_steps = 2.5\n"
+    });
+    rejects(
+        &[steps.to_str().unwrap()],
+        &["flow.max_steps", "whole number of steps", "2.5"],
+    );
+    let tight = edited(dir.path(), "tight.toml", |t| t + "\n[flow]\nrtol = 1e-16\n");
+    rejects(&[tight.to_str().unwrap()], &["flow.rtol", "1e-14"]);
+}
+
+/// A step limit from the model file is obeyed: three steps cannot reach
+/// strong coupling or the end of the flow, and the report says where the
+/// integrator stopped.
+#[test]
+fn a_step_limit_from_the_model_file_ends_the_flow_as_failed() {
+    let dir = tempfile::tempdir().unwrap();
+    let limited = edited(dir.path(), "limited.toml", |t| {
+        t + "\n[flow]\nmax_steps = 3\n"
+    });
+    let out = pinflow()
+        .args(["flow", limited.to_str().unwrap(), "--format", "json"])
+        .assert()
+        .code(1)
+        .get_output()
+        .clone();
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(stderr.contains("integration failed at ell = "), "{stderr}");
+    let json: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(json["outcome"], "failed", "{json}");
+    // Without the limit the same model flows to its end.
+    pinflow()
+        .args(["flow", demo("spinless_wire.toml").to_str().unwrap()])
+        .assert()
+        .success();
 }

@@ -221,7 +221,7 @@ fn cases() -> Vec<Case> {
         case("E43", base(), "flow wire.toml --closure all", 2,
             "error: invalid value 'all' for '--closure <CLOSURE>'"),
         case("E44", vec![("wire.toml", format!("{WIRE}\n[flow]\nsteps = 100\n"))], "flow wire.toml", 2,
-            "error: wire.toml: flow.steps: unknown key (known: ell_max, y_strong, floor, closure, closure_bound, rtol, atol, q_points)"),
+            "error: wire.toml: flow.steps: unknown key (known: ell_max, y_strong, floor, closure, closure_bound, rtol, atol, max_steps, q_points)"),
         case("E45", vec![("wire.toml", format!("{WIRE}\n[flow]\nell_max = \"long\"\n"))], "flow wire.toml", 2,
             "error: wire.toml: flow.ell_max: expected a number, found \"long\""),
         // ------------------------------------------------ scan axes and options
@@ -373,8 +373,12 @@ fn cases() -> Vec<Case> {
         case("E81", base(), "dims ring.toml --wires 8,5000", 2,
             "error: command line: --wires: a model may have at most 2048 fields in all, found 5000 wires of 2 fields (at most 1024 wires)"),
         // ------------------------------------------------ numerical failure
-        case("E82", base(), "flow wire.toml --rtol 1e-300 --atol 1e-300", 1,
-            "error: wire.toml: the flow failed at lambda=0.3: integration failed at ell = 0.000000"),
+        case("E82", base(), "flow wire.toml --max-steps 3", 1,
+            "error: wire.toml: the flow failed at lambda=0.3: integration failed at ell = 0.112233"),
+        case("E83", base(), "flow wire.toml --rtol 1e-15", 2,
+            "error: command line: --rtol: expected a relative tolerance from 1e-14 (double precision) to below 1, found 1e-15"),
+        case("E84", base(), "flow wire.toml --max-steps 0", 2,
+            "error: command line: --max-steps: expected a whole number of steps from 1 to 1000000000, found 0"),
     ];
     c.sort_by_key(|c| c.id);
     c
@@ -589,4 +593,6 @@ entries! {
     e80_wires_explicit => "E80",
     e81_wires_too_many => "E81",
     e82_integration_failed => "E82",
+    e83_rtol_beyond_double_precision => "E83",
+    e84_step_limit_out_of_range => "E84",
 }

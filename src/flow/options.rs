@@ -78,35 +78,40 @@ impl Default for FlowOptions {
 
 /// Command-line overrides (None = keep the model's or the default value).
 ///
-/// The numeric flags accept negative numbers as values (`--y-strong -1`), so
+/// The numeric flags accept values that start with a hyphen (`--y-strong -1`,
+/// `--atol -1e-3`), so
 /// that a negative value reaches the validation below and is reported as an
 /// out-of-range value of that flag, not as an unknown argument.
 #[derive(Debug, Clone, Default, clap::Args)]
 pub struct FlowOverrides {
     /// End of the flow in ell = ln(alpha/alpha_0) [default 40].
-    #[arg(long, allow_negative_numbers = true, value_name = "ELL")]
+    #[arg(long, allow_hyphen_values = true, value_name = "ELL")]
     pub ell_max: Option<f64>,
     /// A coupling with |y| at or above this counts as strong [default 1].
-    #[arg(long, allow_negative_numbers = true, value_name = "Y")]
+    #[arg(long, allow_hyphen_values = true, value_name = "Y")]
     pub y_strong: Option<f64>,
     /// Couplings below this count as decayed [default 1e-6].
-    #[arg(long, allow_negative_numbers = true, value_name = "Y")]
+    #[arg(long, allow_hyphen_values = true, value_name = "Y")]
     pub floor: Option<f64>,
     /// Which generated terms join the flow [default pairs].
     #[arg(long, value_enum)]
     pub closure: Option<Closure>,
     /// Largest bare dimension of a generated term [default 4].
-    #[arg(long, allow_negative_numbers = true, value_name = "DELTA")]
+    #[arg(long, allow_hyphen_values = true, value_name = "DELTA")]
     pub closure_bound: Option<f64>,
     /// Relative tolerance of the integrator [default 1e-8].
-    #[arg(long, allow_negative_numbers = true, value_name = "TOL")]
+    #[arg(long, allow_hyphen_values = true, value_name = "TOL")]
     pub rtol: Option<f64>,
     /// Absolute tolerance of the integrator [default 1e-12].
-    #[arg(long, allow_negative_numbers = true, value_name = "TOL")]
+    #[arg(long, allow_hyphen_values = true, value_name = "TOL")]
     pub atol: Option<f64>,
+    /// Most integrator steps per segment of the flow before it counts as
+    /// failed [default 100000].
+    #[arg(long, allow_hyphen_values = true, value_name = "N")]
+    pub max_steps: Option<i64>,
     /// Infinite arrays: carry D(q) on this many quadrature points [default:
     /// the rule that converges the bare dimensions to 1e-10].
-    #[arg(long, allow_negative_numbers = true, value_name = "N")]
+    #[arg(long, allow_hyphen_values = true, value_name = "N")]
     pub q_points: Option<i64>,
 }
 
@@ -129,6 +134,12 @@ impl FlowOptions {
         cli(over.floor, "floor", &mut o.floor)?;
         cli(over.rtol, "rtol", &mut o.rtol)?;
         cli(over.atol, "atol", &mut o.atol)?;
+        if over.rtol.is_some() {
+            check_rtol(o.rtol, "command line", "--rtol")?;
+        }
+        if let Some(n) = over.max_steps {
+            o.max_steps = check_max_steps(n, "command line", "--max-steps")?;
+        }
         if let Some(c) = over.closure {
             o.closure = c;
         }
@@ -167,19 +178,14 @@ impl FlowOptions {
                 "ell_max" => self.ell_max = positive(num()?, &model.file, &full)?,
                 "y_strong" => self.y_strong = positive(num()?, &model.file, &full)?,
                 "floor" => self.floor = positive(num()?, &model.file, &full)?,
-                "rtol" => self.rtol = positive(num()?, &model.file, &full)?,
+                "rtol" => self.rtol = check_rtol(num()?, &model.file, &full)?,
                 "atol" => self.atol = positive(num()?, &model.file, &full)?,
+                "max_steps" => {
+                    let n = whole(value, &model.file, &full, "a whole number of steps")?;
+                    self.max_steps = check_max_steps(n, &model.file, &full)?;
+                }
                 "q_points" => {
-                    let n = match value {
-                        toml::Value::Integer(i) => *i,
-                        other => {
-                            return Err(InputError::new(
-                                &model.file,
-                                &full,
-                                format!("expected a whole number of points, found {other}"),
-                            ))
-                        }
-                    };
+                    let n = whole(value, &model.file, &full, "a whole number of points")?;
                     self.q_points = Some(check_q_points(model, n, &model.file, &full)?);
                 }
                 "closure_bound" => {
@@ -204,7 +210,7 @@ impl FlowOptions {
                     return Err(InputError::new(
                         &model.file,
                         &full,
-                        "unknown key (known: ell_max, y_strong, floor, closure, closure_bound, rtol, atol, q_points)",
+                        "unknown key (known: ell_max, y_strong, floor, closure, closure_bound, rtol, atol, max_steps, q_points)",
                     ))
                 }
             }
@@ -239,6 +245,62 @@ fn check_q_points(model: &Model, n: i64, file: &str, key: &str) -> Result<usize,
     Ok(n as usize)
 }
 
+/// The smallest relative tolerance accepted: a few hundred ulps of 1. A
+/// tighter tolerance asks the step control for digits a double does not
+/// have, and the integrator could only fail.
+pub const RTOL_MIN: f64 = 1e-14;
+
+/// A relative tolerance from [`RTOL_MIN`] up to (not including) 1.
+fn check_rtol(x: f64, file: &str, key: &str) -> Result<f64, InputError> {
+    if x.is_finite() && (RTOL_MIN..1.0).contains(&x) {
+        Ok(x)
+    } else {
+        Err(InputError::new(
+            file,
+            key,
+            format!(
+                "expected a relative tolerance from 1e-14 (double precision) to below 1, found {}",
+                as_typed(x)
+            ),
+        ))
+    }
+}
+
+/// A step limit from 1 to 10^9.
+fn check_max_steps(n: i64, file: &str, key: &str) -> Result<u32, InputError> {
+    const MOST: i64 = 1_000_000_000;
+    if (1..=MOST).contains(&n) {
+        Ok(n as u32)
+    } else {
+        Err(InputError::new(
+            file,
+            key,
+            format!("expected a whole number of steps from 1 to 1000000000, found {n}"),
+        ))
+    }
+}
+
+/// A TOML integer, or an error naming what was expected.
+fn whole(value: &toml::Value, file: &str, key: &str, what: &str) -> Result<i64, InputError> {
+    match value {
+        toml::Value::Integer(i) => Ok(*i),
+        other => Err(InputError::new(
+            file,
+            key,
+            format!("expected {what}, found {other}"),
+        )),
+    }
+}
+
+/// A number as a user would type it: `1e-300`, not 300 zeros.
+fn as_typed(x: f64) -> String {
+    if x != 0.0 && x.is_finite() && !(1e-4..1e6).contains(&x.abs()) {
+        format!("{x:e}")
+    } else {
+        format!("{x}")
+    }
+}
+
 fn positive(x: f64, file: &str, key: &str) -> Result<f64, InputError> {
     check_positive(x, file, key).map(|_| x)
 }
@@ -250,7 +312,7 @@ fn check_positive(x: f64, file: &str, key: &str) -> Result<(), InputError> {
         Err(InputError::new(
             file,
             key,
-            format!("must be a finite number > 0, found {x}"),
+            format!("must be a finite number > 0, found {}", as_typed(x)),
         ))
     }
 }
@@ -262,7 +324,7 @@ fn check_non_negative(x: f64, file: &str, key: &str) -> Result<(), InputError> {
         Err(InputError::new(
             file,
             key,
-            format!("must be a finite number >= 0, found {x}"),
+            format!("must be a finite number >= 0, found {}", as_typed(x)),
         ))
     }
 }
