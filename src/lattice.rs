@@ -271,6 +271,24 @@ impl Lattice {
     }
 }
 
+/// The momentum mismatch sum_I m_I k_I of an operator with particle content
+/// `m`, given the momentum of every field. A sum below
+/// [`crate::dims::MOMENTUM_TOLERANCE`] is the rounding left by momenta
+/// that cancel (k_F written as a decimal, say): it is returned as exactly 0,
+/// the value every command then treats as conserved.
+pub fn mismatch(particles: &[crate::exact::Rational], k: &[f64]) -> f64 {
+    let sum: f64 = particles
+        .iter()
+        .zip(k)
+        .map(|(m, p)| crate::exact::to_f64(m) * p)
+        .sum();
+    if sum.abs() < crate::dims::MOMENTUM_TOLERANCE {
+        0.0
+    } else {
+        sum
+    }
+}
+
 /// The V blocks V^(0), V^(1), ... of a model at a parameter point (one
 /// block for explicit models). Returns the first non-finite entry, or an
 /// asymmetric block 0, as an error message naming the key.

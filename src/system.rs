@@ -349,13 +349,7 @@ impl System {
             self.invariants
                 .terms
                 .iter()
-                .map(|t| {
-                    t.particles
-                        .iter()
-                        .zip(&k)
-                        .map(|(m, p)| crate::exact::to_f64(m) * p)
-                        .sum()
-                })
+                .map(|t| crate::lattice::mismatch(&t.particles, &k))
                 .collect(),
         )
     }

@@ -487,3 +487,26 @@ fn clap_definition_is_consistent() {
     use clap::CommandFactory;
     pinflow::cli::Cli::command().debug_assert();
 }
+
+/// Momenta that cancel are reported as exactly zero, not as the rounding
+/// left by decimal k_F. Derivation for the demo array: fields of wire j
+/// carry k = (k_F + 6 j k_F, -k_F + 6 j k_F); the tunnelling term has
+/// m = (-2, 1) on wire 0 and (-1, 2) on wire 1, so its mismatch is
+/// -2 k_F - k_F - 7 k_F + 10 k_F = 0. Hopping, m = (-1, 0) on wire 0 and
+/// (0, 1) on wire 1, has -k_F + 5 k_F = 4 k_F = 0.2 at k_F = 0.05.
+#[test]
+fn cancelling_momenta_are_exactly_zero() {
+    let r = dims_json(&flow("laughlin_third.toml"), &[]);
+    let k = |n: &str| json_term(&r, n)["momentum"].as_f64().unwrap();
+    assert_eq!(k("tunnel"), 0.0);
+    assert_eq!(json_term(&r, "tunnel")["momentum_conserved"], true);
+    assert!(close(k("hop"), 0.2, 1e-12), "{}", k("hop"));
+    assert_eq!(json_term(&r, "hop")["momentum_conserved"], false);
+    // Away from the matching flux the tunnelling term is mismatched.
+    let r = dims_json(&flow("laughlin_third.toml"), &["--set", "db=0.01"]);
+    assert!(close(
+        json_term(&r, "tunnel")["momentum"].as_f64().unwrap(),
+        0.01,
+        1e-12
+    ));
+}

@@ -39,7 +39,7 @@ use ode_solvers::Dopri5;
 use serde::Serialize;
 
 use crate::error::{Error, InputError};
-use crate::exact::{self, fmt_rational};
+use crate::exact::fmt_rational;
 use crate::model::Boundary;
 use crate::system::System;
 use background::Background;
@@ -356,14 +356,8 @@ impl<'s> Flow<'s> {
         included
             .iter()
             .map(|&c| {
-                k.as_ref().map(|k| {
-                    self.plan.channels[c]
-                        .particles
-                        .iter()
-                        .zip(k)
-                        .map(|(m, p)| exact::to_f64(m) * p)
-                        .sum()
-                })
+                k.as_ref()
+                    .map(|k| crate::lattice::mismatch(&self.plan.channels[c].particles, k))
             })
             .collect()
     }
