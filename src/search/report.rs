@@ -285,10 +285,9 @@ impl HuntReport {
                 "Momenta are floats: a mismatch |k| < {tol:.0e} (units of the inverse cutoff) counts as conserved."
             ));
         }
-        if self.momentum_tolerance.is_some() || self.momentum_exact {
-            if sys.model.momentum_per_wire.is_some() && self.charge != Some(0) {
-                notes.push("With array.momentum_per_wire the momentum of a charged operator depends on its position; it is given for the placement listed.".into());
-            }
+        let momenta_checked = self.momentum_tolerance.is_some() || self.momentum_exact;
+        if momenta_checked && sys.model.momentum_per_wire.is_some() && self.charge != Some(0) {
+            notes.push("With array.momentum_per_wire the momentum of a charged operator depends on its position; it is given for the placement listed.".into());
         }
         if capped {
             notes.push("The basis reduction stopped at its iteration cap; the search is still exhaustive, only slower.".into());
