@@ -856,6 +856,87 @@ mod tests {
     }
 
     #[test]
+    fn a_sum_of_four_planes_splits_without_cycling() {
+        // The strip form of tests/reference/edges_nondiagonal_cell.toml: two
+        // copies of <-1> ⊕ <7> and two of P = [[-1, 1], [1, 6]] (det -7).
+        // Derived: in P, f + e is orthogonal to e and has norm 6 + 2 - 1 = 7,
+        // so the form is diag(7, 7, 7, 7, -1, -1, -1, -1), positive norms
+        // first. The hidden-unit search once undid and redid the splits
+        // here until the round cap, with U growing to ~10^32.
+        let g = ZMat::from_i64(
+            &[
+                vec![-1, 0, 0, 0, 0, 0, 0, 0],
+                vec![0, -1, 0, 0, 0, 1, 0, 0],
+                vec![0, 0, -1, 0, 0, 0, 0, 0],
+                vec![0, 0, 0, -1, 0, 0, 0, 1],
+                vec![0, 0, 0, 0, 7, 0, 0, 0],
+                vec![0, 1, 0, 0, 0, 6, 0, 0],
+                vec![0, 0, 0, 0, 0, 0, 7, 0],
+                vec![0, 0, 0, 1, 0, 0, 0, 6],
+            ],
+            8,
+        );
+        let u = reduce_form(&g);
+        assert_eq!(u.gram(&g), diag(&[7, 7, 7, 7, -1, -1, -1, -1]));
+        assert!(max_abs(&u) <= BigInt::one(), "{u:?}");
+        // The same form in scrambled bases: still a GL(8, Z) change of basis
+        // with entries that stay small.
+        let mut rng = ChaCha8Rng::seed_from_u64(7);
+        for _ in 0..5 {
+            let w = random_unimodular(&mut rng, 8, 16);
+            let h = w.gram(&g);
+            let v = reduce_form(&h);
+            assert!(zmat::det(&v).abs().is_one(), "unimodular");
+            let r = v.gram(&h);
+            assert_eq!(zmat::inertia(&r), (4, 4, 0));
+            assert!(max_abs(&v) < BigInt::from(1u64 << 20), "{v:?}");
+            assert!(cost(&r).0 <= cost(&h).0, "no worse than the start");
+        }
+    }
+
+    #[test]
+    fn a_unit_hidden_across_summands_is_found() {
+        // U ⊕ <-1> (U the hyperbolic plane) is odd, indefinite and
+        // unimodular, hence diag(1, -1, -1) (Milnor & Husemoller, "Symmetric
+        // Bilinear Forms" (1973), ch. II, from memory); the unit vector
+        // e + f + g needs both summands.
+        let g = ZMat::from_i64(&[vec![0, 1, 0], vec![1, 0, 0], vec![0, 0, -1]], 3);
+        let u = reduce_form(&g);
+        assert_eq!(u.gram(&g), diag(&[1, -1, -1]));
+    }
+
+    #[test]
+    fn best_multiple_minimises_the_one_norm() {
+        // Against brute force over c in [-40, 40]: the breakpoints -v_i / b_i
+        // lie in [-10, 10] for entries |v_i| <= 10 and b_i != 0, and the
+        // minimum of a convex function lies between them.
+        let mut rng = ChaCha8Rng::seed_from_u64(9);
+        for _ in 0..300 {
+            let d = rng.gen_range(1..=6);
+            let v: Vec<BigInt> = (0..d)
+                .map(|_| BigInt::from(rng.gen_range(-10..=10)))
+                .collect();
+            let b: Vec<BigInt> = (0..d)
+                .map(|_| BigInt::from(rng.gen_range(-3..=3)))
+                .collect();
+            let at = |c: i64| -> BigInt {
+                v.iter()
+                    .zip(&b)
+                    .map(|(x, y)| (x + y * c).abs())
+                    .fold(BigInt::zero(), |a, x| a + x)
+            };
+            let brute = (-40..=40).map(at).min().unwrap();
+            let c = best_multiple(&v, &b);
+            let got: BigInt = v
+                .iter()
+                .zip(&b)
+                .map(|(x, y)| (x + y * &c).abs())
+                .fold(BigInt::zero(), |a, x| a + x);
+            assert_eq!(got, brute, "v = {v:?}, b = {b:?}, c = {c}");
+        }
+    }
+
+    #[test]
     fn modulo_lattice_finds_short_representatives() {
         // v = e_0 + 7 s_0 - 3 s_1 reduces to a vector of 1-norm <= that of e_0.
         let s = ZMat::from_i64(&[vec![2, 1], vec![1, -1], vec![0, 3]], 2);
