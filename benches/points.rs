@@ -8,11 +8,17 @@
 //! the dense path (128 fields) and by the q-space path on its 64 points:
 //! V and every dimension at one point.
 //!
+//! `pinflow edges` on a four-wire open array with a non-diagonal 4 x 4
+//! cell pinned wire by wire (`tests/reference/edges_nondiagonal_cell.toml`):
+//! the pinned set, the strip and both one-wire windows. Its 8 x 8 strip
+//! form once made the readable reduction cycle (about 9 s).
+//!
 //! Run: `cargo bench --bench points`.
 
 use std::path::Path;
 
 use criterion::{criterion_group, criterion_main, Criterion};
+use pinflow::edges::{analyse, pins};
 use pinflow::flow::{Closure, Flow, FlowOptions};
 use pinflow::model::Model;
 use pinflow::system::System;
@@ -107,5 +113,28 @@ fn infinite_against_dense(c: &mut Criterion) {
     }
 }
 
-criterion_group!(benches, dims_point, flow_point, infinite_against_dense);
+fn edges_nondiagonal_cell(c: &mut Criterion) {
+    let sys = System::load(Path::new(concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/tests/reference/edges_nondiagonal_cell.toml"
+    )))
+    .expect("edges model");
+    let names = vec!["hop0".to_string()];
+    c.bench_function("edges: 4 wires, non-diagonal 4 x 4 cell, pin hop0", |b| {
+        b.iter(|| {
+            let sel = pins::from_names(&sys, &names).expect("pinned set");
+            analyse(&sys, &sel.pinned, None)
+                .expect("analysis")
+                .gapped_pairs
+        })
+    });
+}
+
+criterion_group!(
+    benches,
+    dims_point,
+    flow_point,
+    infinite_against_dense,
+    edges_nondiagonal_cell
+);
 criterion_main!(benches);

@@ -307,6 +307,106 @@ particles = [-2, 1, -1, 2, 0, 0]
         assert_eq!(a.edges[1].invariants.filling, q(1, 3));
     }
 
+    // ------------------------------------ a non-diagonal cell, wire by wire
+
+    fn nondiagonal_cell() -> String {
+        let path = std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+            .join("tests/reference/edges_nondiagonal_cell.toml");
+        std::fs::read_to_string(path).expect("tests/reference/edges_nondiagonal_cell.toml")
+    }
+
+    /// The cell of that model and its charge vector.
+    const CELL_K: [[i64; 4]; 4] = [[-1, 0, 1, 0], [0, 3, 1, 1], [1, 1, -2, 0], [0, 1, 0, 2]];
+    const CELL_T: [i64; 4] = [-3, 3, -3, -2];
+
+    /// n^T K n' for the block-diagonal K of an array of such cells.
+    fn cell_form(a: &[BigInt], b: &[BigInt]) -> BigInt {
+        let mut sum = BigInt::from(0);
+        for (x, y) in a.chunks(4).zip(b.chunks(4)) {
+            for i in 0..4 {
+                for j in 0..4 {
+                    sum += &x[i] * CELL_K[i][j] * &y[j];
+                }
+            }
+        }
+        sum
+    }
+
+    #[test]
+    fn a_non_diagonal_cell_pinned_wire_by_wire() {
+        // Derivation. The cell K has det 7 (cofactor expansion by hand) and
+        // signature (2, 2): det > 0 allows (4,0), (2,2) or (0,4), and the
+        // diagonal holds both -1 and 3. hop0 is n = 2 s with s = (-1, 1, -1,
+        // 0) primitive, s.K s = 0 and K s = (0, 2, 2, 1) of content 1. With
+        // w = e_4 (w.K s = 1), H = span(s, w) has Gram [[0, 1], [1, 2]] of
+        // det -1, so Z^4 = H ⊕ H^perp and s^perp = <s> ⊕ H^perp: one wire's
+        // residual lattice s^perp / <s> is H^perp, of rank 2, det 7 / (-1) =
+        // -7, signature (1, 1) and group Z_7 (7 is prime). By hand, H^perp =
+        // {x : 2x_2 + 2x_3 + x_4 = 0, x_2 + 2x_4 = 0} has the basis (1, 0, 0,
+        // 0), (0, -4, 3, 2): entries at most 4. The translates lie on
+        // disjoint wires and K is block diagonal, so r = 4 and the strip is
+        // the orthogonal sum of four copies: det (-7)^4 = 2401, signature (4,
+        // 4), group Z_7^4; each one-wire window holds one copy. A ring of 4
+        // wires with the same terms gaps 4 of 8 pairs: not fully gapped.
+        let sys = system(&nondiagonal_cell());
+        let sel = pin(&sys, &["hop0"]);
+        let a = analyse(&sys, &sel.pinned, None).unwrap_or_else(|e| panic!("analyse: {e}"));
+        assert_eq!(a.fields, 16);
+        assert_eq!(a.gapped_pairs, 4);
+        assert_eq!(a.gapless_modes, 8);
+        assert_eq!(a.fully_gapped, Some(false));
+        let win = a.window.expect("a window");
+        assert_eq!((win.wires, win.default), (1, true));
+        assert_eq!(a.edges.len(), 2);
+        for e in &a.edges {
+            let what = e.end.word();
+            assert_eq!(e.residual.k.rows, 2, "{what}");
+            assert_eq!(e.invariants.det, BigInt::from(-7), "{what}");
+            assert_eq!(e.invariants.signature, (1, 1), "{what}");
+            assert_eq!(e.invariants.group, vec![BigInt::from(7)], "{what}");
+            assert_eq!(e.invariants.quasiparticles.len(), 7, "{what}: all types");
+        }
+        assert_eq!(a.whole.residual.k.rows, 8);
+        assert_eq!(a.whole.invariants.det, BigInt::from(2401));
+        assert_eq!(a.whole.invariants.signature, (4, 4));
+        assert_eq!(a.whole.invariants.group, vec![BigInt::from(7); 4]);
+        // The generators: short (entries no larger than those of the hand
+        // basis above), supported in their region, commuting with every
+        // pinned translate, with the reported K as Gram matrix and t.g as
+        // charges. With that K's det equal to the derived det of M / S, they
+        // span M / S (a sublattice of index d would have d^2 times it).
+        // hop0 carries charge t.n = 18, so charges are defined only modulo
+        // that of s (9) and the filling is not checked here.
+        let pinned: Vec<&Vec<BigInt>> = sel.pinned[0].translates.iter().map(|t| &t.n).collect();
+        for th in std::iter::once(&a.whole).chain(&a.edges) {
+            let what = th.end.word();
+            let gens = &th.residual.generators;
+            let (lo, hi) = th.wires.expect("array wires");
+            for g in gens {
+                assert!(
+                    g.iter().all(|x| x.abs() <= BigInt::from(4)),
+                    "{what}: long generator {g:?}"
+                );
+                for (i, x) in g.iter().enumerate() {
+                    assert!(
+                        x == &BigInt::from(0) || (lo..=hi).contains(&(i / 4)),
+                        "{what}: {g:?} outside wires {lo}-{hi}"
+                    );
+                }
+                for n in &pinned {
+                    assert_eq!(cell_form(n, g), BigInt::from(0), "{what}: {g:?} vs {n:?}");
+                }
+            }
+            for (i, gi) in gens.iter().enumerate() {
+                for (j, gj) in gens.iter().enumerate() {
+                    assert_eq!(&cell_form(gi, gj), th.residual.k.at(i, j), "{what}: K");
+                }
+                let t: BigInt = gi.iter().enumerate().map(|(f, x)| x * CELL_T[f % 4]).sum();
+                assert_eq!(t, th.residual.charge[i], "{what}: charge of g{}", i + 1);
+            }
+        }
+    }
+
     // ------------------------------------------------------ change of basis
 
     fn diag(d: &[i64]) -> Vec<Vec<i64>> {

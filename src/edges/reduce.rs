@@ -9,8 +9,14 @@
 //!   b_i -> b_i + k b_j lowers the sum of |entries| (ties: the sum of
 //!   |diagonal entries|); a basis vector of norm +-1 is split off
 //!   (b_j -= G_ij G_ii b_i makes it orthogonal to the rest), which for odd
-//!   unimodular forms typically ends at diag(+-1). What is left, if
-//!   definite, is LLL-reduced.
+//!   unimodular forms typically ends at diag(+-1). Visible unit vectors
+//!   are split off before any descent move, and a search for a hidden one
+//!   is kept only when it ends with more of them split off at no larger
+//!   cost, so the reduction cannot cycle. What is left, if definite, is
+//!   LLL-reduced. Orthogonal summands are reduced separately.
+//! - Vectors modulo a lattice: nearest planes, then 1-norm descent whose
+//!   moves are the best integer multiple of a basis vector (a weighted
+//!   median), not unit steps, so long vectors take few moves.
 //!
 //! Every step is a unimodular change of basis, so det, signature, filling
 //! and the quasiparticle data do not depend on it; only readability does.
@@ -28,17 +34,115 @@ const MAX_MOVES: usize = 100_000;
 
 /// A unimodular U (columns: the new basis in old coordinates) such that
 /// U^T G U is the readable form of the symmetric non-degenerate G.
+///
+/// Orthogonal summands (the connected components of the graph of non-zero
+/// entries, e.g. the decoupled wires of a strip pinned wire by wire) are
+/// reduced separately, so the form stays their direct sum. When there are
+/// several, the whole form is reduced once more, since a unit vector may
+/// hide across summands (e + f + g in U ⊕ <-1>, U the hyperbolic plane,
+/// which is diag(1, -1, -1)); that result is kept when it is no worse (see
+/// [`better`]). The basis is then sorted as a whole.
 pub fn reduce_form(g: &ZMat) -> ZMat {
+    let n = g.rows;
+    let parts = orthogonal_summands(g);
+    let mut u = ZMat::identity(n);
+    for part in &parts {
+        let v = reduce_summand(&block(g, part));
+        for (r, &ir) in part.iter().enumerate() {
+            for (c, &ic) in part.iter().enumerate() {
+                *u.at_mut(ir, ic) = v.at(r, c).clone();
+            }
+        }
+    }
+    let mut gm = u.gram(g);
+    if parts.len() > 1 {
+        let v = reduce_summand(&gm);
+        let joined = v.gram(&gm);
+        if !better(&gm, &joined) {
+            u = u.mul(&v);
+            gm = joined;
+        }
+    }
+    sort_basis(&gm, &mut u);
+    u
+}
+
+/// Basis vectors of norm +-1 orthogonal to all the others (split off).
+fn split_units(g: &ZMat) -> usize {
+    (0..g.rows)
+        .filter(|&i| {
+            g.at(i, i).abs().is_one() && (0..g.cols).all(|j| j == i || g.at(i, j).is_zero())
+        })
+        .count()
+}
+
+/// The readability order of two forms: a smaller sum of |entries|, then
+/// more unit vectors split off.
+fn better(a: &ZMat, b: &ZMat) -> bool {
+    let (ca, cb) = (cost(a).0, cost(b).0);
+    ca < cb || (ca == cb && split_units(a) > split_units(b))
+}
+
+/// The index sets of the orthogonal summands of G: connected components
+/// of the graph with an edge i - j where G_ij != 0 (each sorted, in order
+/// of their least index).
+fn orthogonal_summands(g: &ZMat) -> Vec<Vec<usize>> {
+    let n = g.rows;
+    let mut seen = vec![false; n];
+    let mut parts = Vec::new();
+    for start in 0..n {
+        if seen[start] {
+            continue;
+        }
+        seen[start] = true;
+        let mut part = vec![start];
+        let mut next = 0;
+        while next < part.len() {
+            let i = part[next];
+            next += 1;
+            for j in 0..n {
+                if !seen[j] && !g.at(i, j).is_zero() {
+                    seen[j] = true;
+                    part.push(j);
+                }
+            }
+        }
+        part.sort_unstable();
+        parts.push(part);
+    }
+    parts
+}
+
+/// The reduction of one summand (unsorted).
+///
+/// Rounds: split off a visible unit vector (before anything else, so that
+/// no move can merge it back into the rest); else reduce the rest (LLL if
+/// definite, the greedy descent if not) and split off a unit vector that
+/// appears. At a dead end (no unit vector visible), a hidden one may be
+/// found by [`find_unit`]; using it unfreezes every basis vector, so it is
+/// kept only if the next dead end has strictly more unit vectors split
+/// off and no larger sum of |entries|; otherwise the earlier dead end is
+/// restored and returned. Without
+/// that rule the hidden-unit step can undo and redo the same splits until
+/// the round cap, growing U by a few bits per round (e.g. on four copies
+/// of a 2 x 2 form of determinant -7, U reached entries of 10^32).
+/// Bound (derived): the counts at dead ends strictly increase and are at
+/// most n, and between two dead ends each round freezes one vector, so
+/// there are at most (n + 1)^2 rounds, within the cap below.
+fn reduce_summand(g: &ZMat) -> ZMat {
     let n = g.rows;
     let mut gm = g.clone();
     let mut u = ZMat::identity(n);
     let mut frozen = vec![false; n];
-    // Each round freezes a unit vector or ends; a search for a hidden unit
-    // vector unfreezes the others, at most n times.
+    // The last dead end: its number of unit vectors, its cost and U.
+    let mut dead_end: Option<(usize, BigInt, ZMat)> = None;
     for _ in 0..(n + 1) * (n + 2) {
         let rest: Vec<usize> = (0..n).filter(|&i| !frozen[i]).collect();
         if rest.is_empty() {
             break;
+        }
+        if split_visible_unit(&mut gm, &mut u, &mut frozen) {
+            continue;
         }
         let sub = block(&gm, &rest);
         let (p, q, _) = zmat::inertia(&sub);
@@ -49,16 +153,23 @@ pub fn reduce_form(g: &ZMat) -> ZMat {
         } else {
             descend(&mut gm, &mut u, &frozen);
         }
-        if let Some(i) = rest.iter().copied().find(|&i| gm.at(i, i).abs().is_one()) {
-            split(&mut gm, &mut u, i, &frozen);
-            frozen[i] = true;
+        if split_visible_unit(&mut gm, &mut u, &mut frozen) {
             continue;
+        }
+        let units = frozen.iter().filter(|f| **f).count();
+        let total = cost(&gm).0;
+        if let Some((best, best_total, u0)) = dead_end {
+            if units <= best || total > best_total {
+                u = u0;
+                break;
+            }
         }
         // Stuck: a unit vector may still hide in a combination, e.g.
         // e + f + g in U ⊕ <-1> (U the hyperbolic plane).
         let Some((i, c)) = find_unit(&gm, &frozen) else {
             break;
         };
+        dead_end = Some((units, total, u.clone()));
         if c[i] < 0 {
             gm.negate_row(i);
             gm.negate_col(i);
@@ -73,8 +184,18 @@ pub fn reduce_form(g: &ZMat) -> ZMat {
         split(&mut gm, &mut u, i, &frozen);
         frozen[i] = true;
     }
-    sort_basis(&gm, &mut u);
     u
+}
+
+/// Split off the first non-frozen basis vector of norm +-1 and freeze it;
+/// false if there is none.
+fn split_visible_unit(g: &mut ZMat, u: &mut ZMat, frozen: &mut [bool]) -> bool {
+    let Some(i) = (0..g.rows).find(|&i| !frozen[i] && g.at(i, i).abs().is_one()) else {
+        return false;
+    };
+    split(g, u, i, frozen);
+    frozen[i] = true;
+    true
 }
 
 /// Make every non-frozen b_j orthogonal to the unit vector b_i:
@@ -457,11 +578,13 @@ impl ModuloLattice {
                 }
             }
         }
-        let l1 = |v: &[BigInt]| v.iter().fold(BigInt::zero(), |a, x| a + x.abs());
         for _ in 0..MAX_MOVES {
             let mut best = (l1(&v), None);
             for b in &self.basis {
-                for s in [1i32, -1] {
+                let line = best_multiple(&v, b);
+                let steps = [BigInt::one(), -BigInt::one()];
+                let extra = (line.abs() > BigInt::one()).then_some(line);
+                for s in steps.iter().chain(extra.as_ref()) {
                     let w: Vec<BigInt> = v.iter().zip(b).map(|(x, y)| x + y * s).collect();
                     let c = l1(&w);
                     if c < best.0 {
@@ -517,6 +640,52 @@ impl ModuloLattice {
             .collect();
         debug_assert_eq!(self.dim, c.rows);
         lll(&ZMat::from_rows(&rows, d))
+    }
+}
+
+/// Sum of |entries|.
+fn l1(v: &[BigInt]) -> BigInt {
+    v.iter().fold(BigInt::zero(), |a, x| a + x.abs())
+}
+
+/// An integer c minimising |v + c b|_1. The function of c is convex and
+/// piecewise linear with breakpoints -v_i / b_i of weights |b_i|, so its
+/// real minimum is at a weighted median of the breakpoints (derived), and
+/// the integer minimum at the floor or the ceiling of that median. One
+/// step to the best multiple replaces up to |c| unit steps, which matters
+/// for long vectors.
+fn best_multiple(v: &[BigInt], b: &[BigInt]) -> BigInt {
+    let mut points: Vec<(Rational, BigInt)> = v
+        .iter()
+        .zip(b)
+        .filter(|(_, y)| !y.is_zero())
+        .map(|(x, y)| (Rational::new(-x, y.clone()), y.abs()))
+        .collect();
+    if points.is_empty() {
+        return BigInt::zero();
+    }
+    points.sort_by(|a, b| a.0.cmp(&b.0));
+    let total: BigInt = points.iter().map(|(_, w)| w).sum();
+    let mut below = BigInt::zero();
+    let mut median = points[0].0.clone();
+    for (x, w) in &points {
+        below += w;
+        if &below * 2 >= total {
+            median = x.clone();
+            break;
+        }
+    }
+    let lo = median.floor().to_integer();
+    let hi = median.ceil().to_integer();
+    let at = |c: &BigInt| -> BigInt {
+        v.iter()
+            .zip(b)
+            .fold(BigInt::zero(), |a, (x, y)| a + (x + c * y).abs())
+    };
+    if at(&hi) < at(&lo) {
+        hi
+    } else {
+        lo
     }
 }
 
@@ -683,6 +852,87 @@ mod tests {
             let r = w.gram(&g);
             assert!(max_abs(&r) <= BigInt::one(), "{r:?}");
             assert_eq!(zmat::det(&r), BigInt::from(-1));
+        }
+    }
+
+    #[test]
+    fn a_sum_of_four_planes_splits_without_cycling() {
+        // The strip form of tests/reference/edges_nondiagonal_cell.toml: two
+        // copies of <-1> ⊕ <7> and two of P = [[-1, 1], [1, 6]] (det -7).
+        // Derived: in P, f + e is orthogonal to e and has norm 6 + 2 - 1 = 7,
+        // so the form is diag(7, 7, 7, 7, -1, -1, -1, -1), positive norms
+        // first. The hidden-unit search once undid and redid the splits
+        // here until the round cap, with U growing to ~10^32.
+        let g = ZMat::from_i64(
+            &[
+                vec![-1, 0, 0, 0, 0, 0, 0, 0],
+                vec![0, -1, 0, 0, 0, 1, 0, 0],
+                vec![0, 0, -1, 0, 0, 0, 0, 0],
+                vec![0, 0, 0, -1, 0, 0, 0, 1],
+                vec![0, 0, 0, 0, 7, 0, 0, 0],
+                vec![0, 1, 0, 0, 0, 6, 0, 0],
+                vec![0, 0, 0, 0, 0, 0, 7, 0],
+                vec![0, 0, 0, 1, 0, 0, 0, 6],
+            ],
+            8,
+        );
+        let u = reduce_form(&g);
+        assert_eq!(u.gram(&g), diag(&[7, 7, 7, 7, -1, -1, -1, -1]));
+        assert!(max_abs(&u) <= BigInt::one(), "{u:?}");
+        // The same form in scrambled bases: still a GL(8, Z) change of basis
+        // with entries that stay small.
+        let mut rng = ChaCha8Rng::seed_from_u64(7);
+        for _ in 0..5 {
+            let w = random_unimodular(&mut rng, 8, 16);
+            let h = w.gram(&g);
+            let v = reduce_form(&h);
+            assert!(zmat::det(&v).abs().is_one(), "unimodular");
+            let r = v.gram(&h);
+            assert_eq!(zmat::inertia(&r), (4, 4, 0));
+            assert!(max_abs(&v) < BigInt::from(1u64 << 20), "{v:?}");
+            assert!(cost(&r).0 <= cost(&h).0, "no worse than the start");
+        }
+    }
+
+    #[test]
+    fn a_unit_hidden_across_summands_is_found() {
+        // U ⊕ <-1> (U the hyperbolic plane) is odd, indefinite and
+        // unimodular, hence diag(1, -1, -1) (Milnor & Husemoller, "Symmetric
+        // Bilinear Forms" (1973), ch. II, from memory); the unit vector
+        // e + f + g needs both summands.
+        let g = ZMat::from_i64(&[vec![0, 1, 0], vec![1, 0, 0], vec![0, 0, -1]], 3);
+        let u = reduce_form(&g);
+        assert_eq!(u.gram(&g), diag(&[1, -1, -1]));
+    }
+
+    #[test]
+    fn best_multiple_minimises_the_one_norm() {
+        // Against brute force over c in [-40, 40]: the breakpoints -v_i / b_i
+        // lie in [-10, 10] for entries |v_i| <= 10 and b_i != 0, and the
+        // minimum of a convex function lies between them.
+        let mut rng = ChaCha8Rng::seed_from_u64(9);
+        for _ in 0..300 {
+            let d = rng.gen_range(1..=6);
+            let v: Vec<BigInt> = (0..d)
+                .map(|_| BigInt::from(rng.gen_range(-10..=10)))
+                .collect();
+            let b: Vec<BigInt> = (0..d)
+                .map(|_| BigInt::from(rng.gen_range(-3..=3)))
+                .collect();
+            let at = |c: i64| -> BigInt {
+                v.iter()
+                    .zip(&b)
+                    .map(|(x, y)| (x + y * c).abs())
+                    .fold(BigInt::zero(), |a, x| a + x)
+            };
+            let brute = (-40..=40).map(at).min().unwrap();
+            let c = best_multiple(&v, &b);
+            let got: BigInt = v
+                .iter()
+                .zip(&b)
+                .map(|(x, y)| (x + y * &c).abs())
+                .fold(BigInt::zero(), |a, x| a + x);
+            assert_eq!(got, brute, "v = {v:?}, b = {b:?}, c = {c}");
         }
     }
 
