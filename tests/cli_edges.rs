@@ -306,4 +306,46 @@ particles = [2, -2]
         assert_eq!(r["gapped_pairs"], 1);
         assert_eq!(r["fully_gapped"], true);
     }
+
+    /// A charged pinned term (proximity pairing, charge t.m = 2 for m =
+    /// (1, 1) on a spinless wire: derived from charge = t.m with t = (1, 1))
+    /// breaks charge conservation to conservation modulo 2; the report says
+    /// so instead of presenting the fillings as a Hall response. The
+    /// neutral Laughlin pinning keeps charge (`null`).
+    #[test]
+    fn a_charged_pinned_set_says_charge_is_conserved_only_modulo_its_gcd() {
+        let dir = tmp();
+        let path = dir.path().join("two.toml");
+        std::fs::write(
+            &path,
+            r#"[fields]
+K = [[1, 0, 0, 0], [0, -1, 0, 0], [0, 0, 1, 0], [0, 0, 0, -1]]
+charge = [1, 1, 1, 1]
+V = [[1, 0, 0, 0], [0, 1, 0, 0], [0, 0, 1, 0], [0, 0, 0, 1]]
+
+[[term]]
+name = "pairing"
+particles = [0, 0, 1, 1]
+allowed_charge = 2
+"#,
+        )
+        .unwrap();
+        let p = path.to_str().unwrap();
+        let r = json(&dir, &[p, "--pin", "pairing"]);
+        assert_eq!(r["charge_conserved_modulo"], 2, "{r}");
+        assert_eq!(r["gapped_pairs"], 1);
+        assert_eq!(r["whole"]["modes"], 2);
+        let notes = r["notes"].as_array().unwrap();
+        assert!(
+            notes
+                .iter()
+                .any(|n| n.as_str().unwrap().contains("conserved only modulo 2")),
+            "{notes:?}"
+        );
+        let text = ok(&dir, &[p, "--pin", "pairing"]);
+        assert!(fact(&text, "charge").contains("modulo 2"), "{text}");
+        let open = opened(&dir);
+        let r = json(&dir, &[open.to_str().unwrap(), "--pin", "tunnel"]);
+        assert!(r["charge_conserved_modulo"].is_null(), "{r}");
+    }
 }

@@ -116,8 +116,29 @@ pub struct Analysis {
     pub window: Option<Window>,
     /// The two ends of an open array.
     pub edges: Vec<Theory>,
+    /// The pinned terms carry charge: charge is conserved only modulo this
+    /// (the gcd of their charges t.n). None when every pinned term is
+    /// neutral.
+    pub charge_modulus: Option<BigInt>,
     /// Remarks (unclean cuts, windows that change the answer, ...).
     pub notes: Vec<String>,
+}
+
+/// The gcd of the charges t.n of the pinned vectors (None if all vanish).
+fn charge_modulus(t: &[BigInt], ns: &[Vec<BigInt>]) -> Option<BigInt> {
+    use num_integer::Integer;
+    let g = ns.iter().fold(BigInt::zero(), |g, n| {
+        let q: BigInt = t.iter().zip(n).map(|(a, b)| a * b).sum();
+        g.gcd(&q)
+    });
+    (!g.is_zero()).then_some(g)
+}
+
+/// The note for a pinned set that breaks charge conservation.
+fn charge_note(g: &BigInt) -> String {
+    format!(
+        "the pinned terms carry charge (the gcd of their charges is {g}): charge is conserved only modulo {g}, so the charge vectors, fillings and quasiparticle charges shown depend on the basis chosen and are not a Hall response; ranks, K up to equivalence, det, signature and spins do not depend on it"
+    )
 }
 
 fn window_error(msg: String) -> Error {
@@ -150,6 +171,10 @@ pub fn analyse(sys: &System, pinned: &[Pinned], window: Option<usize>) -> Result
         .iter()
         .flat_map(|p| p.translates.iter().map(|t| t.n.clone()))
         .collect();
+    let charge_modulus = charge_modulus(&t, &ns);
+    if let Some(g) = &charge_modulus {
+        notes.push(charge_note(g));
+    }
     let whole_res = theory::residual(&k, &t, &all, &ls, &ns).map_err(Error::Numerical)?;
     let r = whole_res.pinned_rank;
     if whole_res.k.rows + 2 * r != lat.n || whole_res.extra_radical != 0 {
@@ -249,6 +274,7 @@ pub fn analyse(sys: &System, pinned: &[Pinned], window: Option<usize>) -> Result
         whole,
         window: used_window,
         edges,
+        charge_modulus,
         notes,
     })
 }

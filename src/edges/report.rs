@@ -183,6 +183,10 @@ pub struct EdgesReport {
     /// The theory of all fields (both edges of a strip together; what a
     /// periodic array leaves gapless).
     pub whole: TheoryReport,
+    /// Null when the pinned terms are neutral; otherwise the gcd g of their
+    /// charges: charge is conserved only modulo g, and the charge vectors
+    /// and fillings of the theories depend on the basis.
+    pub charge_conserved_modulo: Option<Int>,
     /// Remarks.
     pub notes: Vec<String>,
 }
@@ -209,9 +213,14 @@ impl EdgesReport {
             })
             .collect();
         let mut notes = a.notes.clone();
-        notes.push(
-            "K matrices are Gram matrices n^T K n' of the particle vectors that commute with every pinned term, modulo the pinned ones, in a reduced basis; det, signature, filling and the quasiparticle charges (mod 1) and spins (mod 1, or 1/2 for odd K) do not depend on that basis.".into(),
-        );
+        let invariant = if a.charge_modulus.is_some() {
+            "det, signature and the quasiparticle spins (mod 1, or 1/2 for odd K)"
+        } else {
+            "det, signature, filling and the quasiparticle charges (mod 1) and spins (mod 1, or 1/2 for odd K)"
+        };
+        notes.push(format!(
+            "K matrices are Gram matrices n^T K n' of the particle vectors that commute with every pinned term, modulo the pinned ones, in a reduced basis; {invariant} do not depend on that basis."
+        ));
         EdgesReport {
             model: sys.model.name.clone(),
             parameters,
@@ -256,6 +265,7 @@ impl EdgesReport {
             }),
             edges: a.edges.iter().map(|t| theory_report(sys, t)).collect(),
             whole: theory_report(sys, &a.whole),
+            charge_conserved_modulo: a.charge_modulus.clone().map(Int),
             notes,
         }
     }
@@ -473,6 +483,15 @@ impl Report for EdgesReport {
             None => self.fields.to_string(),
         };
         f.push(("fields".to_string(), fields));
+        if let Some(g) = &self.charge_conserved_modulo {
+            f.push((
+                "charge".to_string(),
+                format!(
+                    "conserved only modulo {} (charged pinned terms): fillings below depend on the basis",
+                    g.0
+                ),
+            ));
+        }
         f.push((
             "gapped right-left pairs".to_string(),
             self.gapped_pairs.to_string(),
