@@ -13,6 +13,7 @@
 
 pub mod axis;
 pub mod figures;
+pub mod points;
 pub mod run;
 pub mod store;
 pub mod summary;
