@@ -114,12 +114,6 @@ impl<'s> Scan<'s> {
         self.spec.axes.iter().map(|a| a.n).product()
     }
 
-    /// Grid indices this run computes, in order (allocates one entry per
-    /// point: [`Scan::count`] and [`Scan::index_at`] do not).
-    pub fn indices(&self) -> Vec<usize> {
-        (0..self.count()).map(|j| self.index_at(j)).collect()
-    }
-
     /// Number of grid points this run computes.
     pub fn count(&self) -> usize {
         match self.spec.shard {
