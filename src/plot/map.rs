@@ -573,6 +573,28 @@ mod tests {
     }
 
     #[test]
+    fn a_phase_map_of_many_runs_is_one_image_under_vector_lines() {
+        let dir = tempfile::tempdir().unwrap();
+        let stem = dir.path().join("stripes");
+        let mut data = sample_phase();
+        let (nx, ny) = (150, 80);
+        data.xs = grid(nx, -1.0, 1.0);
+        data.ys = grid(ny, 0.0, 2.0);
+        // Alternating columns: one run per cell, 12 000 runs.
+        data.cells = (0..nx * ny).map(|k| (k % nx % 2) as u32).collect();
+        assert!(data.cells.len() > MAX_SVG_RECTS);
+        phase_diagram(&stem, &data).unwrap();
+        let (_, svg) = read_outputs(&stem);
+        assert_eq!(svg.matches("<image").count(), 1);
+        assert!(svg.matches("<rect").count() < 50, "legend swatches only");
+        let image = svg.find("<image").unwrap();
+        let first_line = svg.find("<polyline").unwrap();
+        assert!(image < first_line, "the contour lines are drawn on top");
+        assert_eq!(count_text(&svg, "Δ_tunnel = 2"), 1);
+        assert_deterministic(dir.path(), |s| phase_diagram(s, &data).unwrap());
+    }
+
+    #[test]
     fn phase_diagram_is_deterministic() {
         let dir = tempfile::tempdir().unwrap();
         let data = sample_phase();
@@ -605,8 +627,8 @@ mod tests {
             .iter()
             .flat_map(|&y| xs.iter().map(move |&x| (x, y)))
             .map(|(x, y)| match with_missing && x > 0.8 && y > 1.2 {
-                true => None,
-                false => Some(4.0 * x + y),
+                true => f64::NAN,
+                false => 4.0 * x + y,
             })
             .collect();
         HeatMap {
@@ -647,13 +669,10 @@ mod tests {
         let data = sample_heat(true);
         assert_deterministic(dir.path(), |s| heat_map(s, &data).unwrap());
         let mut bad = sample_heat(true);
-        bad.values.push(Some(1.0));
+        bad.values.push(1.0);
         assert!(heat_map(&dir.path().join("bad"), &bad).is_err());
         let mut all_missing = sample_heat(true);
-        all_missing
-            .values
-            .iter_mut()
-            .for_each(|v| *v = Some(f64::NAN));
+        all_missing.values.iter_mut().for_each(|v| *v = f64::NAN);
         heat_map(&dir.path().join("nan"), &all_missing).unwrap();
     }
 }

@@ -8,6 +8,12 @@
 //! built from the finished `points.csv` alone (see [`summary`]), which is
 //! why `merge` needs no model.
 //!
+//! Memory does not grow with the rows: computing holds one chunk of rows,
+//! resuming reads the partial file in blocks, and the finishing step
+//! ([`run`]) reads `points.csv` once, row by row ([`points`]), into the
+//! summary's tally and the figures' canvas ([`figures`]), which keep a few
+//! bytes per point (12 for a plane) instead of the rows.
+//!
 //! Index order: x varies fastest; point i has x index i % nx and y index
 //! i / nx.
 
