@@ -377,7 +377,7 @@ fn block_rows(meta: &Meta) -> Vec<Row> {
                 coords: c,
                 outcome: outcome.into(),
                 winner: winner.into(),
-                ell_star: (y <= 0.8).then(|| 1.0 + 10.0 * x + 2.0 * y + x * y),
+                ell_star: (y <= 0.8).then_some(1.0 + 10.0 * x + 2.0 * y + x * y),
                 dims0: vec![Some(1.5 + x), Some(1.2 + y), Some(3.0 - x - y)],
             }
         })
