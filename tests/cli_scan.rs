@@ -9,7 +9,10 @@ use std::path::{Path, PathBuf};
 use std::process::Stdio;
 use std::time::{Duration, Instant};
 
+mod common;
+
 use assert_cmd::Command;
+use common::svg_texts;
 use predicates::prelude::*;
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
@@ -557,17 +560,6 @@ fn bad_shard_sets_are_refused() {
 }
 
 // --------------------------------------------------------------- figures
-
-/// The text elements of an SVG, trimmed.
-fn svg_texts(svg: &str) -> Vec<String> {
-    svg.split("<text")
-        .skip(1)
-        .filter_map(|s| {
-            let body = &s[s.find('>')? + 1..];
-            Some(body[..body.find("</text>")?].trim().to_string())
-        })
-        .collect()
-}
 
 #[track_caller]
 fn assert_figure(dir: &Path, stem: &str, labels: &[&str]) {

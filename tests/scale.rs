@@ -6,6 +6,9 @@ use std::io::BufRead;
 use std::path::Path;
 use std::time::{Duration, Instant};
 
+mod common;
+
+use common::peak_kb;
 use pinflow::dims::DimsReport;
 use pinflow::model::Model;
 use pinflow::system::System;
@@ -14,18 +17,6 @@ fn lines(path: &Path) -> usize {
     std::fs::File::open(path)
         .map(|f| std::io::BufReader::new(f).lines().count())
         .unwrap_or(0)
-}
-
-/// Peak resident memory of a process, in kB (Linux).
-fn peak_kb(pid: u32) -> Option<u64> {
-    let status = std::fs::read_to_string(format!("/proc/{pid}/status")).ok()?;
-    status
-        .lines()
-        .find(|l| l.starts_with("VmHWM:"))?
-        .split_whitespace()
-        .nth(1)?
-        .parse()
-        .ok()
 }
 
 #[test]

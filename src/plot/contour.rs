@@ -1,4 +1,10 @@
 //! Marching squares: level lines of a field sampled on a rectangular grid.
+//!
+//! [`ContourTracer`] takes the field one value at a time in row-major
+//! order and keeps only two grid rows, the segments found so far and their
+//! crossing points, so a scan can trace its level lines while it reads
+//! `points.csv` without holding the whole field. [`contour_lines`] is the
+//! same tracer fed from a slice.
 
 use std::collections::HashMap;
 
@@ -10,17 +16,23 @@ enum Edge {
     V(usize, usize),
 }
 
-/// The sampled field and the level being traced.
-struct Field<'a> {
+/// One row of cells: the grid rows `iy` (lower) and `iy + 1` (upper).
+struct CellRow<'a> {
     xs: &'a [f64],
     ys: &'a [f64],
-    values: &'a [f64],
+    lower: &'a [f64],
+    upper: &'a [f64],
+    iy: usize,
     level: f64,
 }
 
-impl Field<'_> {
+impl CellRow<'_> {
     fn at(&self, ix: usize, iy: usize) -> f64 {
-        self.values[iy * self.xs.len() + ix]
+        if iy == self.iy {
+            self.lower[ix]
+        } else {
+            self.upper[ix]
+        }
     }
 
     fn above(&self, ix: usize, iy: usize) -> bool {
@@ -53,7 +65,8 @@ impl Field<'_> {
     }
 
     /// Segments (as pairs of crossed edges) inside cell `(ix, iy)`.
-    fn cell_segments(&self, ix: usize, iy: usize, out: &mut Vec<[Edge; 2]>) {
+    fn cell_segments(&self, ix: usize, out: &mut Vec<[Edge; 2]>) {
+        let iy = self.iy;
         let corners = [(ix, iy), (ix + 1, iy), (ix + 1, iy + 1), (ix, iy + 1)];
         if corners.iter().any(|&(x, y)| !self.at(x, y).is_finite()) {
             return;
@@ -88,6 +101,105 @@ impl Field<'_> {
     }
 }
 
+/// Level lines of a field fed value by value in row-major order
+/// (`values[iy * xs.len() + ix]`).
+///
+/// Each row of cells is traced as soon as its upper grid row is complete,
+/// in the order a full-field pass would visit it, and the crossing point of
+/// every crossed edge is computed then, so the lines are the same as from
+/// the whole field.
+pub struct ContourTracer {
+    xs: Vec<f64>,
+    ys: Vec<f64>,
+    level: f64,
+    /// The last complete grid row.
+    lower: Vec<f64>,
+    /// The grid row being filled.
+    upper: Vec<f64>,
+    /// Complete grid rows so far.
+    rows: usize,
+    /// Values fed beyond the grid (the result is then empty).
+    overflow: bool,
+    segments: Vec<[Edge; 2]>,
+    points: HashMap<Edge, (f64, f64)>,
+}
+
+impl ContourTracer {
+    /// A tracer of `values == level` on the grid `xs × ys`.
+    pub fn new(xs: Vec<f64>, ys: Vec<f64>, level: f64) -> ContourTracer {
+        ContourTracer {
+            lower: Vec::with_capacity(xs.len()),
+            upper: Vec::with_capacity(xs.len()),
+            xs,
+            ys,
+            level,
+            rows: 0,
+            overflow: false,
+            segments: Vec::new(),
+            points: HashMap::new(),
+        }
+    }
+
+    /// Feed the next value of the field.
+    pub fn push(&mut self, value: f64) {
+        if self.rows >= self.ys.len() || self.xs.is_empty() {
+            self.overflow = true;
+            return;
+        }
+        self.upper.push(value);
+        if self.upper.len() == self.xs.len() {
+            self.row_complete();
+        }
+    }
+
+    fn row_complete(&mut self) {
+        if self.rows > 0 && self.level.is_finite() {
+            self.trace_row(self.rows - 1);
+        }
+        std::mem::swap(&mut self.lower, &mut self.upper);
+        self.upper.clear();
+        self.rows += 1;
+    }
+
+    /// Segments of the cells between grid rows `iy` and `iy + 1`, with the
+    /// crossing points of their edges.
+    fn trace_row(&mut self, iy: usize) {
+        let row = CellRow {
+            xs: &self.xs,
+            ys: &self.ys,
+            lower: &self.lower,
+            upper: &self.upper,
+            iy,
+            level: self.level,
+        };
+        let first = self.segments.len();
+        for ix in 0..self.xs.len().saturating_sub(1) {
+            row.cell_segments(ix, &mut self.segments);
+        }
+        for seg in &self.segments[first..] {
+            for &e in seg {
+                self.points.entry(e).or_insert_with(|| row.point(e));
+            }
+        }
+    }
+
+    /// The level lines: segments joined into polylines; a closed line
+    /// repeats its first point at the end. No lines unless exactly
+    /// `xs.len() * ys.len()` values were fed, the grid is at least 2×2 and
+    /// the level is finite.
+    pub fn finish(self) -> Vec<Vec<(f64, f64)>> {
+        let (nx, ny) = (self.xs.len(), self.ys.len());
+        let complete = !self.overflow && self.rows == ny && self.upper.is_empty();
+        if nx < 2 || ny < 2 || !complete || !self.level.is_finite() {
+            return Vec::new();
+        }
+        join(&self.segments)
+            .into_iter()
+            .map(|chain| polyline(&self.points, &chain))
+            .collect()
+    }
+}
+
 /// Level lines `values == level` of a field sampled on the grid `xs × ys`.
 ///
 /// `values` is row-major (`values[iy * xs.len() + ix]`); cells with a
@@ -99,30 +211,19 @@ pub fn contour_lines(xs: &[f64], ys: &[f64], values: &[f64], level: f64) -> Vec<
     if nx < 2 || ny < 2 || values.len() != nx * ny || !level.is_finite() {
         return Vec::new();
     }
-    let field = Field {
-        xs,
-        ys,
-        values,
-        level,
-    };
-    let mut segments = Vec::new();
-    for iy in 0..ny - 1 {
-        for ix in 0..nx - 1 {
-            field.cell_segments(ix, iy, &mut segments);
-        }
+    let mut tracer = ContourTracer::new(xs.to_vec(), ys.to_vec(), level);
+    for &v in values {
+        tracer.push(v);
     }
-    join(&segments)
-        .into_iter()
-        .map(|chain| polyline(&field, &chain))
-        .collect()
+    tracer.finish()
 }
 
 /// Turns a chain of edges into points, dropping repeated points (which
 /// occur where the field equals the level exactly at a grid point).
-fn polyline(field: &Field<'_>, chain: &[Edge]) -> Vec<(f64, f64)> {
+fn polyline(at: &HashMap<Edge, (f64, f64)>, chain: &[Edge]) -> Vec<(f64, f64)> {
     let mut points: Vec<(f64, f64)> = Vec::with_capacity(chain.len());
-    for &edge in chain {
-        let p = field.point(edge);
+    for edge in chain {
+        let p = at[edge];
         if points.last() != Some(&p) {
             points.push(p);
         }
@@ -281,6 +382,26 @@ mod tests {
         };
         assert!(lines.iter().any(|l| cuts_corner(l, (1.0, 0.0))));
         assert!(lines.iter().any(|l| cuts_corner(l, (0.0, 1.0))));
+    }
+
+    #[test]
+    fn tracer_needs_exactly_the_whole_grid() {
+        let g = linspace(0.0, 1.0, 3);
+        let v = sample(&g, &g, |x, y| x + y);
+        let feed = |values: &[f64]| {
+            let mut t = ContourTracer::new(g.clone(), g.clone(), 1.0);
+            values.iter().for_each(|&x| t.push(x));
+            t.finish()
+        };
+        // x + y = 1 on a 3×3 grid: one straight line through (0.5, 0.5).
+        let whole = feed(&v);
+        assert_eq!(whole.len(), 1);
+        assert!(whole[0].iter().all(|&(x, y)| (x + y - 1.0).abs() < 1e-12));
+        assert!(feed(&v[..8]).is_empty(), "a row short");
+        assert!(
+            feed(&[&v[..], &[0.0]].concat()).is_empty(),
+            "one value too many"
+        );
     }
 
     #[test]

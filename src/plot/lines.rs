@@ -8,7 +8,7 @@ use plotters::prelude::*;
 use serde::{Deserialize, Serialize};
 
 use super::layout::{self, Area, Axes, Chart, Dash, LegendEntry, REFERENCE};
-use super::output::{self, msg, Figure};
+use super::output::{self, msg, Figure, Surface};
 use super::palette;
 use super::PlotError;
 
@@ -359,7 +359,11 @@ fn with_legend_column<DB: DrawingBackend>(
 }
 
 impl Figure for FlowFigure {
-    fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> Result<(), String> {
+    fn draw<DB: DrawingBackend>(
+        &self,
+        root: &DrawingArea<DB, Shift>,
+        _surface: &Surface,
+    ) -> Result<(), String> {
         let body = layout::frame(root, &self.title, &self.caption)?;
         let entries = self.legend();
         let (plots, legend) = with_legend_column(&body, &entries)?;
@@ -422,7 +426,11 @@ impl LineScanFigure {
 }
 
 impl Figure for LineScanFigure {
-    fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> Result<(), String> {
+    fn draw<DB: DrawingBackend>(
+        &self,
+        root: &DrawingArea<DB, Shift>,
+        _surface: &Surface,
+    ) -> Result<(), String> {
         let body = layout::frame(root, &self.title, &self.caption)?;
         let entries = self.legend();
         let (plot, legend) = with_legend_column(&body, &entries)?;

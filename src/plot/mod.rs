@@ -34,7 +34,10 @@ pub use lines::{
     dimension_line_figure, flow_figure, Band, DimensionSeries, FlowFigure, FlowSeries,
     LineScanFigure,
 };
-pub use map::{contour_lines, heat_map, phase_diagram, Contour, HeatMap, PhaseMap};
+pub use map::{
+    contour_lines, heat_map, phase_diagram, Contour, ContourTracer, HeatMap, PhaseMap,
+    MAX_SVG_RECTS,
+};
 
 /// Failure to produce a figure file.
 ///

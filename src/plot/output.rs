@@ -1,5 +1,12 @@
 //! Writing a figure as PNG and SVG without ever leaving a partial file.
+//!
+//! A figure draws itself on a [`Surface`]. On the SVG surface a map whose
+//! cells would take too many rectangles draws them as one raster image
+//! instead (see `map::draw_cells`): it hands the pixels to the surface and
+//! leaves a marker rectangle in their place, and [`render_svg`] swaps each
+//! marker for an `<image>` element holding the pixels as an embedded PNG.
 
+use std::cell::RefCell;
 use std::ffi::OsString;
 use std::fs;
 use std::path::{Path, PathBuf};
@@ -7,6 +14,7 @@ use std::sync::atomic::{AtomicU64, Ordering};
 
 use plotters::coord::Shift;
 use plotters::prelude::{BitMapBackend, DrawingArea, DrawingBackend, IntoDrawingArea, SVGBackend};
+use plotters::style::RGBAColor;
 
 use super::{font, PlotError};
 
@@ -16,7 +24,49 @@ pub(crate) const SIZE: (u32, u32) = (1200, 900);
 /// A figure that can draw itself on any plotters backend.
 pub(crate) trait Figure {
     /// Draws the whole figure on `root` (which is already white).
-    fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> Result<(), String>;
+    fn draw<DB: DrawingBackend>(
+        &self,
+        root: &DrawingArea<DB, Shift>,
+        surface: &Surface,
+    ) -> Result<(), String>;
+}
+
+/// What a figure is being drawn for.
+pub(crate) enum Surface {
+    /// The PNG: everything is drawn with the backend.
+    Bitmap,
+    /// The SVG: rasters handed over here replace their marker rectangles.
+    Svg(RefCell<Vec<Raster>>),
+}
+
+/// Pixels to embed in an SVG at a position of the page.
+#[derive(Debug, Clone, PartialEq)]
+pub(crate) struct Raster {
+    /// Top left corner, in page pixels.
+    pub x: i32,
+    /// Top left corner, in page pixels.
+    pub y: i32,
+    /// Width in pixels.
+    pub width: u32,
+    /// Height in pixels.
+    pub height: u32,
+    /// RGB bytes, row by row.
+    pub rgb: Vec<u8>,
+}
+
+/// Colour of the marker rectangle that stands for a raster in the SVG. The
+/// opacity is used by no other element of any figure, and text cannot
+/// produce a `<rect` tag (the backend escapes `<`), so the marker is found
+/// without ambiguity.
+pub(crate) const MARKER: RGBAColor = RGBAColor(255, 0, 255, 0.123456789);
+
+impl Surface {
+    /// Hands over a raster; the caller draws a [`MARKER`] rectangle next.
+    pub(crate) fn embed(&self, raster: Raster) {
+        if let Surface::Svg(list) = self {
+            list.borrow_mut().push(raster);
+        }
+    }
 }
 
 /// Converts any displayable drawing error into the message type used by [`Figure`].
@@ -49,7 +99,7 @@ fn render_rgb(figure: &impl Figure) -> Result<Vec<u8>, String> {
     {
         let root = BitMapBackend::with_buffer(&mut buffer, SIZE).into_drawing_area();
         root.fill(&plotters::style::WHITE).map_err(msg)?;
-        figure.draw(&root)?;
+        figure.draw(&root, &Surface::Bitmap)?;
         root.present().map_err(msg)?;
     }
     Ok(buffer)
@@ -57,13 +107,92 @@ fn render_rgb(figure: &impl Figure) -> Result<Vec<u8>, String> {
 
 fn render_svg(figure: &impl Figure) -> Result<String, String> {
     let mut text = String::new();
+    let surface = Surface::Svg(RefCell::new(Vec::new()));
     {
         let root = SVGBackend::with_string(&mut text, SIZE).into_drawing_area();
         root.fill(&plotters::style::WHITE).map_err(msg)?;
-        figure.draw(&root)?;
+        figure.draw(&root, &surface)?;
         root.present().map_err(msg)?;
     }
+    match surface {
+        Surface::Svg(rasters) => embed_rasters(text, rasters.into_inner()),
+        Surface::Bitmap => Ok(text),
+    }
+}
+
+/// Replaces the k-th marker rectangle with the k-th raster.
+fn embed_rasters(mut text: String, rasters: Vec<Raster>) -> Result<String, String> {
+    let marker = format!(
+        "opacity=\"{}\" fill=\"#{:02X}{:02X}{:02X}\"",
+        MARKER.3, MARKER.0, MARKER.1, MARKER.2
+    );
+    let mut from = 0;
+    for raster in &rasters {
+        let at = text[from..]
+            .find(&marker)
+            .map(|i| from + i)
+            .ok_or("a raster lost its place in the SVG")?;
+        let start = text[..at]
+            .rfind("<rect")
+            .ok_or("marker outside a rectangle")?;
+        let end = at + text[at..].find("/>").ok_or("unclosed marker")? + 2;
+        let image = image_element(raster)?;
+        text.replace_range(start..end, &image);
+        from = start + image.len();
+    }
     Ok(text)
+}
+
+/// An `<image>` element showing `raster` pixel for pixel.
+fn image_element(r: &Raster) -> Result<String, String> {
+    Ok(format!(
+        "<image x=\"{}\" y=\"{}\" width=\"{}\" height=\"{}\" preserveAspectRatio=\"none\" \
+         image-rendering=\"optimizeSpeed\" style=\"image-rendering:pixelated\" \
+         href=\"data:image/png;base64,{}\"/>",
+        r.x,
+        r.y,
+        r.width,
+        r.height,
+        base64(&encode_png(r)?)
+    ))
+}
+
+/// PNG bytes of a raster (fixed settings: the same pixels give the same bytes).
+fn encode_png(r: &Raster) -> Result<Vec<u8>, String> {
+    let mut bytes = Vec::new();
+    {
+        let mut encoder = png::Encoder::new(&mut bytes, r.width, r.height);
+        encoder.set_color(png::ColorType::Rgb);
+        encoder.set_depth(png::BitDepth::Eight);
+        encoder.set_compression(png::Compression::Best);
+        encoder.set_adaptive_filter(png::AdaptiveFilterType::Adaptive);
+        let mut writer = encoder.write_header().map_err(msg)?;
+        writer.write_image_data(&r.rgb).map_err(msg)?;
+        writer.finish().map_err(msg)?;
+    }
+    Ok(bytes)
+}
+
+/// Standard base64 with padding.
+fn base64(bytes: &[u8]) -> String {
+    const DIGITS: &[u8; 64] = b"ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz0123456789+/";
+    let mut out = String::with_capacity(bytes.len().div_ceil(3) * 4);
+    for chunk in bytes.chunks(3) {
+        let b = [
+            chunk[0],
+            *chunk.get(1).unwrap_or(&0),
+            *chunk.get(2).unwrap_or(&0),
+        ];
+        let n = (u32::from(b[0]) << 16) | (u32::from(b[1]) << 8) | u32::from(b[2]);
+        for k in 0..4 {
+            if k <= chunk.len() {
+                out.push(DIGITS[(n >> (18 - 6 * k)) as usize & 63] as char);
+            } else {
+                out.push('=');
+            }
+        }
+    }
+    out
 }
 
 fn ensure_parent(path: &Path) -> Result<(), PlotError> {
@@ -144,16 +273,67 @@ mod tests {
 
     struct Blank;
     impl Figure for Blank {
-        fn draw<DB: DrawingBackend>(&self, _root: &DrawingArea<DB, Shift>) -> Result<(), String> {
+        fn draw<DB: DrawingBackend>(
+            &self,
+            _root: &DrawingArea<DB, Shift>,
+            _surface: &Surface,
+        ) -> Result<(), String> {
             Ok(())
         }
     }
 
     struct Broken;
     impl Figure for Broken {
-        fn draw<DB: DrawingBackend>(&self, _root: &DrawingArea<DB, Shift>) -> Result<(), String> {
+        fn draw<DB: DrawingBackend>(
+            &self,
+            _root: &DrawingArea<DB, Shift>,
+            _surface: &Surface,
+        ) -> Result<(), String> {
             Err("deliberate failure".into())
         }
+    }
+
+    #[test]
+    fn base64_matches_the_rfc_4648_examples() {
+        // RFC 4648, section 10 (test vectors).
+        for (plain, coded) in [
+            ("", ""),
+            ("f", "Zg=="),
+            ("fo", "Zm8="),
+            ("foo", "Zm9v"),
+            ("foob", "Zm9vYg=="),
+            ("fooba", "Zm9vYmE="),
+            ("foobar", "Zm9vYmFy"),
+        ] {
+            assert_eq!(base64(plain.as_bytes()), coded, "{plain}");
+        }
+    }
+
+    #[test]
+    fn markers_are_replaced_in_order_and_a_missing_one_is_an_error() {
+        let raster = |x: i32| Raster {
+            x,
+            y: 5,
+            width: 2,
+            height: 1,
+            rgb: vec![0, 0, 0, 255, 255, 255],
+        };
+        let marker = format!(
+            "<rect x=\"7\" y=\"5\" width=\"2\" height=\"1\" opacity=\"{}\" fill=\"#FF00FF\" stroke=\"none\"/>\n",
+            MARKER.3
+        );
+        let svg =
+            format!("<svg>\n<rect fill=\"#FFFFFF\"/>\n{marker}<text>a</text>\n{marker}</svg>\n");
+        let out = embed_rasters(svg.clone(), vec![raster(7), raster(9)]).unwrap();
+        assert!(!out.contains("#FF00FF"), "{out}");
+        let first = out
+            .find("<image x=\"7\" y=\"5\" width=\"2\" height=\"1\"")
+            .unwrap();
+        let second = out.find("<image x=\"9\"").unwrap();
+        assert!(first < out.find("<text>a</text>").unwrap());
+        assert!(second > out.find("<text>a</text>").unwrap());
+        assert!(out.contains("href=\"data:image/png;base64,iVBORw0KGgo"));
+        assert!(embed_rasters(svg, vec![raster(1); 3]).is_err());
     }
 
     #[test]

@@ -1,33 +1,151 @@
-//! Figures of a finished scan, drawn from the parsed rows of `points.csv`:
-//! a phase diagram coloured by outcome with the tree-level lines
-//! Delta0 = 2 on top and a map of ell* (two axes), or every bare Delta
-//! against the parameter with outcome bands (one axis).
+//! Figures of a finished scan, drawn from `points.csv`: a phase diagram
+//! coloured by outcome with the tree-level lines Delta0 = 2 on top and a
+//! map of ell* (two axes), or every bare Delta against the parameter with
+//! outcome bands (one axis).
+//!
+//! A [`Canvas`] collects what the figures need during the one pass over
+//! the rows (see [`super::points`]), and no more: the outcome category of
+//! every point (a `u32`, numbered in order of first appearance and
+//! renumbered into display order once all categories are known), and for
+//! two axes ell* of every point (an `f64`, NaN for none) and the lines
+//! Delta0 = 2, traced row by row as the rows arrive
+//! ([`plot::ContourTracer`]); for one axis the bare dimension of every
+//! term at every point, which the line figure draws. That is 12 bytes per
+//! point of a plane, where the rows themselves took hundreds.
 
+use std::collections::HashMap;
+use std::fmt::Write as _;
 use std::path::Path;
 
+use super::points::Point;
 use super::store::Meta;
-use super::summary::{Row, OUTCOMES};
+use super::summary::OUTCOMES;
 use crate::error::Error;
 use crate::plot::{
-    self, palette, Band, Contour, DimensionSeries, HeatMap, LineScanFigure, PhaseMap,
+    self, palette, Band, Contour, ContourTracer, DimensionSeries, HeatMap, LineScanFigure, PhaseMap,
 };
 
 /// Caption stating the method's limits.
 const CAPTION: &str = "Second-order RG, single reference velocity; lines: tree-level Δ0 = 2.";
 
-/// Write the scan's figures into `dir`; returns the file names written.
-pub fn write(dir: &Path, meta: &Meta, rows: &[Row]) -> Result<Vec<String>, Error> {
-    let cats = Categories::new(meta, rows);
-    if meta.axes.len() == 1 {
-        line_figure(dir, meta, rows, &cats)?;
-        return Ok(vec!["phase.png".into(), "phase.svg".into()]);
+/// What the figures need, collected point by point.
+pub struct Canvas {
+    keys: Keys,
+    /// Category of every point (first-appearance numbering until `write`).
+    cells: Vec<u32>,
+    shape: Shape,
+}
+
+/// The per-point data of the figure kind.
+enum Shape {
+    /// One axis: the bare dimension of every term at every point.
+    Line { dims: Vec<Vec<f64>> },
+    /// Two axes: ell* at every point and the Delta0 = 2 lines per term.
+    Map {
+        ell: Vec<f64>,
+        lines: Vec<(usize, ContourTracer)>,
+    },
+}
+
+impl Canvas {
+    /// An empty canvas for the grid of `meta`.
+    pub fn new(meta: &Meta) -> Canvas {
+        let n = meta.points;
+        let shape = if meta.axes.len() == 1 {
+            Shape::Line {
+                dims: meta.terms.iter().map(|_| Vec::with_capacity(n)).collect(),
+            }
+        } else {
+            let (xs, ys) = (meta.axes[0].values(), meta.axes[1].values());
+            let lines = line_terms(meta)
+                .into_iter()
+                .map(|t| (t, ContourTracer::new(xs.clone(), ys.clone(), 2.0)))
+                .collect();
+            Shape::Map {
+                ell: Vec::with_capacity(n),
+                lines,
+            }
+        };
+        Canvas {
+            keys: Keys::default(),
+            cells: Vec::with_capacity(n),
+            shape,
+        }
     }
-    phase_figure(dir, meta, rows, &cats)?;
-    ell_star_figure(dir, meta, rows)?;
-    Ok(["phase.png", "phase.svg", "ell_star.png", "ell_star.svg"]
-        .iter()
-        .map(|s| s.to_string())
-        .collect())
+
+    /// Take the next point (points come in index order).
+    pub fn add(&mut self, p: &Point) {
+        self.cells.push(self.keys.id(p.outcome(), p.winner()));
+        match &mut self.shape {
+            Shape::Line { dims } => {
+                for (t, d) in dims.iter_mut().enumerate() {
+                    d.push(p.dim0(t));
+                }
+            }
+            Shape::Map { ell, lines } => {
+                ell.push(p.ell_star().unwrap_or(f64::NAN));
+                for (t, tracer) in lines.iter_mut() {
+                    tracer.push(p.dim0(*t));
+                }
+            }
+        }
+    }
+
+    /// Write the scan's figures into `dir`; returns the file names written.
+    pub fn write(self, dir: &Path, meta: &Meta) -> Result<Vec<String>, Error> {
+        let Canvas {
+            keys,
+            mut cells,
+            shape,
+        } = self;
+        let cats = Categories::new(meta, keys.list);
+        cats.renumber(&mut cells);
+        let names: &[&str] = match shape {
+            Shape::Line { dims } => {
+                line_figure(dir, meta, dims, &cells, &cats)?;
+                &["phase.png", "phase.svg"]
+            }
+            Shape::Map { ell, lines } => {
+                phase_figure(dir, meta, cells, lines, &cats)?;
+                ell_star_figure(dir, meta, ell)?;
+                &["phase.png", "phase.svg", "ell_star.png", "ell_star.svg"]
+            }
+        };
+        Ok(names.iter().map(|s| s.to_string()).collect())
+    }
+}
+
+/// Category keys (outcome, winner) in order of first appearance.
+#[derive(Default)]
+struct Keys {
+    list: Vec<(String, String)>,
+    ids: HashMap<String, u32>,
+    /// The lookup key of the current row (reused: no allocation per row).
+    scratch: String,
+}
+
+impl Keys {
+    /// The number of a row's category; the winner counts only for the
+    /// outcomes that have one.
+    fn id(&mut self, outcome: &str, winner: &str) -> u32 {
+        let winner = if outcome == "strong" || outcome == "spinful" {
+            winner
+        } else {
+            ""
+        };
+        self.scratch.clear();
+        // The length prefix keeps distinct pairs distinct.
+        let _ = write!(self.scratch, "{}:{outcome}{winner}", outcome.len());
+        if let Some(&id) = self.ids.get(self.scratch.as_str()) {
+            return id;
+        }
+        // At most one new category per point, and a grid with more than
+        // 2^32 points would not fit the per-point figure data anyway.
+        let id = self.list.len() as u32;
+        self.ids.insert(self.scratch.clone(), id);
+        self.list.push((outcome.to_string(), winner.to_string()));
+        id
+    }
 }
 
 /// The outcome categories present in a scan, in a stable order: winning
@@ -39,13 +157,21 @@ struct Categories {
     keys: Vec<(String, String)>,
     /// Palette index of each category's term (meaningful for winners).
     term_colour: Vec<usize>,
+    /// Display index of each first-appearance number.
+    display: Vec<u32>,
 }
 
 impl Categories {
-    fn new(meta: &Meta, rows: &[Row]) -> Categories {
-        let mut keys: Vec<(String, String)> = rows.iter().map(key).collect();
-        keys.sort_by_key(|k| order(meta, k));
-        keys.dedup();
+    /// The categories of `found` (distinct keys in order of first
+    /// appearance) in display order.
+    fn new(meta: &Meta, found: Vec<(String, String)>) -> Categories {
+        let mut sorted: Vec<usize> = (0..found.len()).collect();
+        sorted.sort_by_key(|&i| order(meta, &found[i]));
+        let mut display = vec![0u32; found.len()];
+        for (d, &i) in sorted.iter().enumerate() {
+            display[i] = d as u32;
+        }
+        let keys: Vec<(String, String)> = sorted.iter().map(|&i| found[i].clone()).collect();
         let labels = keys.iter().map(|(o, w)| label(o, w)).collect();
         let mut extra: Vec<&String> = keys
             .iter()
@@ -71,6 +197,14 @@ impl Categories {
             colours,
             keys,
             term_colour,
+            display,
+        }
+    }
+
+    /// Turn first-appearance numbers into display indices.
+    fn renumber(&self, cells: &mut [u32]) {
+        for c in cells {
+            *c = self.display[*c as usize];
         }
     }
 
@@ -85,20 +219,6 @@ impl Categories {
             _ => 5,
         }
     }
-
-    fn index(&self, row: &Row) -> usize {
-        let k = key(row);
-        self.keys.iter().position(|x| *x == k).unwrap_or(0)
-    }
-}
-
-fn key(r: &Row) -> (String, String) {
-    let winner = if r.outcome == "strong" || r.outcome == "spinful" {
-        r.winner.clone()
-    } else {
-        String::new()
-    };
-    (r.outcome.clone(), winner)
 }
 
 fn order(meta: &Meta, (outcome, winner): &(String, String)) -> (usize, usize, String) {
@@ -161,16 +281,18 @@ fn line_terms(meta: &Meta) -> Vec<usize> {
         .collect()
 }
 
-fn phase_figure(dir: &Path, meta: &Meta, rows: &[Row], cats: &Categories) -> Result<(), Error> {
-    let (xs, ys) = (meta.axes[0].values(), meta.axes[1].values());
-    let lines = line_terms(meta)
+fn phase_figure(
+    dir: &Path,
+    meta: &Meta,
+    cells: Vec<u32>,
+    lines: Vec<(usize, ContourTracer)>,
+    cats: &Categories,
+) -> Result<(), Error> {
+    let lines = lines
         .into_iter()
-        .map(|t| {
-            let values: Vec<f64> = rows.iter().map(|r| r.dims0[t]).collect();
-            Contour {
-                label: format!("Δ0({}) = 2", meta.terms[t]),
-                points: plot::contour_lines(&xs, &ys, &values, 2.0),
-            }
+        .map(|(t, tracer)| Contour {
+            label: format!("Δ0({}) = 2", meta.terms[t]),
+            points: tracer.finish(),
         })
         .filter(|c| !c.points.is_empty())
         .collect();
@@ -178,9 +300,9 @@ fn phase_figure(dir: &Path, meta: &Meta, rows: &[Row], cats: &Categories) -> Res
         title: format!("{}: which term reaches strong coupling first", meta.model),
         x_name: meta.axes[0].name.clone(),
         y_name: meta.axes[1].name.clone(),
-        xs,
-        ys,
-        cells: rows.iter().map(|r| cats.index(r)).collect(),
+        xs: meta.axes[0].values(),
+        ys: meta.axes[1].values(),
+        cells,
         categories: cats.labels.clone(),
         category_colours: Some(cats.colours.clone()),
         lines,
@@ -189,7 +311,7 @@ fn phase_figure(dir: &Path, meta: &Meta, rows: &[Row], cats: &Categories) -> Res
     Ok(plot::phase_diagram(&dir.join("phase"), &data)?)
 }
 
-fn ell_star_figure(dir: &Path, meta: &Meta, rows: &[Row]) -> Result<(), Error> {
+fn ell_star_figure(dir: &Path, meta: &Meta, values: Vec<f64>) -> Result<(), Error> {
     let data = HeatMap {
         title: format!(
             "{}: scale at which the winner reaches strong coupling",
@@ -199,7 +321,7 @@ fn ell_star_figure(dir: &Path, meta: &Meta, rows: &[Row]) -> Result<(), Error> {
         y_name: meta.axes[1].name.clone(),
         xs: meta.axes[0].values(),
         ys: meta.axes[1].values(),
-        values: rows.iter().map(|r| r.ell_star).collect(),
+        values,
         value_label: "ℓ* (gap ~ e^-ℓ*)".into(),
         caption:
             "Grey: no term reached strong coupling. Second-order RG, single reference velocity."
@@ -208,15 +330,21 @@ fn ell_star_figure(dir: &Path, meta: &Meta, rows: &[Row]) -> Result<(), Error> {
     Ok(plot::heat_map(&dir.join("ell_star"), &data)?)
 }
 
-fn line_figure(dir: &Path, meta: &Meta, rows: &[Row], cats: &Categories) -> Result<(), Error> {
+fn line_figure(
+    dir: &Path,
+    meta: &Meta,
+    dims: Vec<Vec<f64>>,
+    cells: &[u32],
+    cats: &Categories,
+) -> Result<(), Error> {
     let xs = meta.axes[0].values();
     let series = meta
         .terms
         .iter()
-        .enumerate()
-        .map(|(t, name)| DimensionSeries {
+        .zip(dims)
+        .map(|(name, dimension)| DimensionSeries {
             name: name.clone(),
-            dimension: rows.iter().map(|r| r.dims0[t]).collect(),
+            dimension,
         })
         .collect();
     let data = LineScanFigure {
@@ -224,7 +352,7 @@ fn line_figure(dir: &Path, meta: &Meta, rows: &[Row], cats: &Categories) -> Resu
         x_name: meta.axes[0].name.clone(),
         xs: xs.clone(),
         series,
-        bands: bands(&xs, rows, cats),
+        bands: bands(&xs, cells, cats),
         caption:
             "Bands: outcome of the second-order flow (single reference velocity). Dashed: Δ = 2."
                 .into(),
@@ -233,10 +361,10 @@ fn line_figure(dir: &Path, meta: &Meta, rows: &[Row], cats: &Categories) -> Resu
 }
 
 /// Runs of equal outcome as bands, split half-way between grid points.
-fn bands(xs: &[f64], rows: &[Row], cats: &Categories) -> Vec<Band> {
+fn bands(xs: &[f64], cells: &[u32], cats: &Categories) -> Vec<Band> {
     let mut out: Vec<Band> = Vec::new();
-    for (i, r) in rows.iter().enumerate() {
-        let c = cats.index(r);
+    for (i, &c) in cells.iter().enumerate() {
+        let c = c as usize;
         let x0 = if i == 0 {
             xs[0]
         } else {

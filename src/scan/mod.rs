@@ -8,11 +8,18 @@
 //! built from the finished `points.csv` alone (see [`summary`]), which is
 //! why `merge` needs no model.
 //!
+//! Memory does not grow with the rows: computing holds one chunk of rows,
+//! resuming reads the partial file in blocks, and the finishing step
+//! ([`run`]) reads `points.csv` once, row by row ([`points`]), into the
+//! summary's tally and the figures' canvas ([`figures`]), which keep a few
+//! bytes per point (12 for a plane) instead of the rows.
+//!
 //! Index order: x varies fastest; point i has x index i % nx and y index
 //! i / nx.
 
 pub mod axis;
 pub mod figures;
+pub mod points;
 pub mod run;
 pub mod store;
 pub mod summary;
@@ -111,12 +118,6 @@ impl<'s> Scan<'s> {
     /// Total number of grid points.
     pub fn points(&self) -> usize {
         self.spec.axes.iter().map(|a| a.n).product()
-    }
-
-    /// Grid indices this run computes, in order (allocates one entry per
-    /// point: [`Scan::count`] and [`Scan::index_at`] do not).
-    pub fn indices(&self) -> Vec<usize> {
-        (0..self.count()).map(|j| self.index_at(j)).collect()
     }
 
     /// Number of grid points this run computes.

@@ -1,14 +1,17 @@
 //! The `scan` and `merge` commands: option resolution, file handling,
-//! progress display, and the final summary and figures.
+//! progress display, and the final summary and figures, built in one
+//! streaming pass over `points.csv` ([`finish`]).
 
 use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
 
 use indicatif::{ProgressBar, ProgressStyle};
 
+use super::figures::Canvas;
+use super::points::for_each_point;
 use super::store::{self, Meta, RowFile};
-use super::summary::{read_rows, ScanSummary};
-use super::{figures, partial_path, shard_path, Axis, Scan, ScanSpec, MAX_POINTS};
+use super::summary::Tally;
+use super::{partial_path, shard_path, Axis, Scan, ScanSpec, MAX_POINTS};
 use crate::cli::{emit, load_point, MergeArgs, ScanArgs};
 use crate::error::{Error, InputError};
 use crate::flow::FlowOptions;
@@ -80,12 +83,19 @@ pub fn merge(args: MergeArgs) -> Result<(), Error> {
     finish(&dir, &meta, args.format)
 }
 
-/// Summary and figures from the finished points file.
+/// Summary and figures from the finished points file: one pass feeds
+/// every row to the summary's tally and the figures' canvas, which keep
+/// no rows (see [`super::figures`]).
 fn finish(dir: &Path, meta: &Meta, format: output::Format) -> Result<(), Error> {
-    let rows = read_rows(&dir.join("points.csv"), meta)?;
+    let mut tally = Tally::new(meta);
+    let mut canvas = Canvas::new(meta);
+    for_each_point(&dir.join("points.csv"), meta, |p| {
+        tally.add(p);
+        canvas.add(p);
+    })?;
     let mut files = vec!["points.csv".to_string(), "summary.json".to_string()];
-    files.extend(figures::write(dir, meta, &rows)?);
-    let summary = ScanSummary::build(meta, &rows, files);
+    files.extend(canvas.write(dir, meta)?);
+    let summary = tally.finish(meta, files);
     output::write_atomic(
         &dir.join("summary.json"),
         output::to_json(&summary)?.as_bytes(),

@@ -185,15 +185,12 @@ impl RowFile {
             .write(true)
             .open(path)
             .map_err(|e| Error::io(path, e))?;
-        let mut bytes = Vec::new();
-        file.read_to_end(&mut bytes)
-            .map_err(|e| Error::io(path, e))?;
-        let complete = bytes.iter().rposition(|b| *b == b'\n').map_or(0, |p| p + 1);
-        file.set_len(complete as u64)
-            .map_err(|e| Error::io(path, e))?;
+        // Read in blocks, not whole: a partial file may hold millions of rows.
+        let complete = complete_length(&mut file).map_err(|e| Error::io(path, e))?;
+        let lines = count_lines(&mut file, complete).map_err(|e| Error::io(path, e))?;
+        file.set_len(complete).map_err(|e| Error::io(path, e))?;
         file.seek(SeekFrom::End(0))
             .map_err(|e| Error::io(path, e))?;
-        let lines = bytes[..complete].iter().filter(|b| **b == b'\n').count();
         let rows = lines.saturating_sub(2);
         if lines < 2 {
             // Not even the header made it: start the body afresh.
@@ -224,6 +221,42 @@ impl RowFile {
     /// Make the rows durable.
     pub fn sync(&self) -> Result<(), Error> {
         self.file.sync_data().map_err(|e| Error::io(&self.path, e))
+    }
+}
+
+/// Block size for scanning a partial file.
+const BLOCK: usize = 1 << 16;
+
+/// Length of the file up to and including its last newline (0 if none),
+/// found by reading blocks backwards from the end.
+fn complete_length(file: &mut File) -> std::io::Result<u64> {
+    let mut end = file.seek(SeekFrom::End(0))?;
+    let mut block = vec![0u8; BLOCK];
+    while end > 0 {
+        let start = end.saturating_sub(BLOCK as u64);
+        let part = &mut block[..(end - start) as usize];
+        file.seek(SeekFrom::Start(start))?;
+        file.read_exact(part)?;
+        if let Some(p) = part.iter().rposition(|b| *b == b'\n') {
+            return Ok(start + p as u64 + 1);
+        }
+        end = start;
+    }
+    Ok(0)
+}
+
+/// Number of newlines in the first `len` bytes of the file, read in blocks.
+fn count_lines(file: &mut File, len: u64) -> std::io::Result<usize> {
+    file.seek(SeekFrom::Start(0))?;
+    let mut rest = (&mut *file).take(len);
+    let mut block = vec![0u8; BLOCK];
+    let mut lines = 0;
+    loop {
+        let n = rest.read(&mut block)?;
+        if n == 0 {
+            return Ok(lines);
+        }
+        lines += block[..n].iter().filter(|b| **b == b'\n').count();
     }
 }
 

@@ -5,14 +5,18 @@
 //! The "stable window" of the target: the points where it wins, their
 //! fraction of the grid, the range of each axis they span, and the margin
 //! Delta0(competitor) - Delta0(target) to the nearest non-commuting term.
+//!
+//! A [`Tally`] takes the rows one at a time (see [`super::points`]) and
+//! keeps only counts, ranges and the best point so far, so the summary of
+//! any grid needs a few hundred bytes. Every number is folded over the
+//! rows in index order, as a pass over all rows at once would fold it.
 
 use std::collections::BTreeMap;
-use std::path::Path;
 
 use serde::Serialize;
 
+use super::points::Point;
 use super::store::Meta;
-use crate::error::{Error, InputError};
 use crate::output::{short, Report, Table};
 
 /// Outcome words in display order.
@@ -24,21 +28,6 @@ pub const OUTCOMES: [&str; 6] = [
     "unphysical",
     "failed",
 ];
-
-/// One parsed row of `points.csv`.
-#[derive(Debug, Clone, PartialEq)]
-pub struct Row {
-    /// Axis values.
-    pub coords: Vec<f64>,
-    /// Outcome word.
-    pub outcome: String,
-    /// Winner name (empty if none).
-    pub winner: String,
-    /// ell* if any.
-    pub ell_star: Option<f64>,
-    /// Bare dimensions of the listed terms (NaN where missing).
-    pub dims0: Vec<f64>,
-}
 
 /// Margin of the target over its nearest competitor.
 #[derive(Debug, Clone, Serialize)]
@@ -89,135 +78,178 @@ pub struct ScanSummary {
     pub notes: Vec<String>,
 }
 
-/// Parse the rows of a points file.
-pub fn read_rows(path: &Path, meta: &Meta) -> Result<Vec<Row>, Error> {
-    let mut reader = csv::Reader::from_path(path).map_err(|e| csv_error(path, e))?;
-    let na = meta.axes.len();
-    let nt = meta.terms.len();
-    let mut rows = Vec::with_capacity(meta.points);
-    for rec in reader.records() {
-        let rec = rec.map_err(|e| csv_error(path, e))?;
-        let num = |i: usize| rec.get(i).and_then(|s| s.parse::<f64>().ok());
-        rows.push(Row {
-            coords: (0..na).map(|i| num(i).unwrap_or(f64::NAN)).collect(),
-            outcome: rec.get(na).unwrap_or("").to_string(),
-            winner: rec.get(na + 1).unwrap_or("").to_string(),
-            ell_star: num(na + 2),
-            dims0: (0..nt)
-                .map(|i| num(na + 3 + i).unwrap_or(f64::NAN))
-                .collect(),
-        });
-    }
-    if rows.len() != meta.points {
-        return Err(Error::Input(InputError::new(
-            path.display().to_string(),
-            "",
-            format!("expected {} points, found {}", meta.points, rows.len()),
-        )));
-    }
-    Ok(rows)
+/// The summary being accumulated over the rows of a points file.
+pub struct Tally {
+    points: usize,
+    outcomes: BTreeMap<String, usize>,
+    winners: BTreeMap<String, usize>,
+    target: Option<Window>,
 }
 
-fn csv_error(path: &Path, e: csv::Error) -> Error {
-    Error::Input(InputError::new(
-        path.display().to_string(),
-        "",
-        format!("cannot read the points file: {e}"),
-    ))
+/// The target's window so far.
+struct Window {
+    name: String,
+    wins: usize,
+    /// Smallest and largest value of each axis over the wins.
+    lo: Vec<f64>,
+    hi: Vec<f64>,
+    /// The target's column and its competitors' (when a margin is defined).
+    margin: Option<MarginTally>,
 }
 
-impl ScanSummary {
-    /// Summarise parsed rows.
-    pub fn build(meta: &Meta, rows: &[Row], files: Vec<String>) -> ScanSummary {
-        let mut outcomes: BTreeMap<String, usize> =
-            OUTCOMES.iter().map(|w| (w.to_string(), 0)).collect();
-        let mut winners = BTreeMap::new();
-        for r in rows {
-            *outcomes.entry(r.outcome.clone()).or_insert(0) += 1;
-            if !r.winner.is_empty() {
-                *winners.entry(r.winner.clone()).or_insert(0) += 1;
-            }
+/// The margin so far: its smallest value and the largest with its point.
+struct MarginTally {
+    term: usize,
+    competitors: Vec<usize>,
+    min: f64,
+    best: Option<(f64, Vec<f64>)>,
+}
+
+/// Add one to the count of `key`, allocating only for a new key.
+fn count(map: &mut BTreeMap<String, usize>, key: &str) {
+    match map.get_mut(key) {
+        Some(n) => *n += 1,
+        None => {
+            map.insert(key.to_string(), 1);
         }
-        let target = meta.target.as_ref().map(|t| target_summary(meta, rows, t));
+    }
+}
+
+impl Tally {
+    /// An empty tally for a scan described by `meta`.
+    pub fn new(meta: &Meta) -> Tally {
+        Tally {
+            points: 0,
+            outcomes: OUTCOMES.iter().map(|w| (w.to_string(), 0)).collect(),
+            winners: BTreeMap::new(),
+            target: meta.target.as_ref().map(|t| Window::new(meta, t)),
+        }
+    }
+
+    /// Count one row.
+    pub fn add(&mut self, p: &Point) {
+        self.points += 1;
+        count(&mut self.outcomes, p.outcome());
+        if !p.winner().is_empty() {
+            count(&mut self.winners, p.winner());
+        }
+        if let Some(w) = &mut self.target {
+            w.add(p);
+        }
+    }
+
+    /// The summary of the rows counted.
+    pub fn finish(self, meta: &Meta, files: Vec<String>) -> ScanSummary {
+        let points = self.points;
         ScanSummary {
             model: meta.model.clone(),
             axes: meta.axes.iter().map(|a| a.spec()).collect(),
-            points: rows.len(),
-            outcomes,
-            winners,
-            target,
+            points,
+            outcomes: self.outcomes,
+            winners: self.winners,
+            target: self.target.map(|w| w.finish(meta, points)),
             files,
             notes: vec![crate::flow::report::METHOD_NOTE.to_string()],
         }
     }
 }
 
-fn target_summary(meta: &Meta, rows: &[Row], name: &str) -> TargetSummary {
-    let ti = meta.terms.iter().position(|t| t == name);
-    let comp: Vec<usize> = meta
-        .competitors
-        .iter()
-        .filter_map(|c| meta.terms.iter().position(|t| t == c))
-        .collect();
-    let wins: Vec<&Row> = rows
-        .iter()
-        .filter(|r| r.outcome == "strong" && r.winner == name)
-        .collect();
-    let mut ranges = BTreeMap::new();
-    for (i, a) in meta.axes.iter().enumerate() {
-        let vals = wins.iter().map(|r| r.coords[i]);
-        let lo = vals.clone().fold(f64::INFINITY, f64::min);
-        let hi = vals.fold(f64::NEG_INFINITY, f64::max);
-        if !wins.is_empty() {
-            ranges.insert(a.name.clone(), [lo, hi]);
+impl Window {
+    fn new(meta: &Meta, name: &str) -> Window {
+        let term = meta.terms.iter().position(|t| t == name);
+        let competitors: Vec<usize> = meta
+            .competitors
+            .iter()
+            .filter_map(|c| meta.terms.iter().position(|t| t == c))
+            .collect();
+        let margin = term
+            .filter(|_| !competitors.is_empty())
+            .map(|term| MarginTally {
+                term,
+                competitors,
+                min: f64::INFINITY,
+                best: None,
+            });
+        let n = meta.axes.len();
+        Window {
+            name: name.to_string(),
+            wins: 0,
+            lo: vec![f64::INFINITY; n],
+            hi: vec![f64::NEG_INFINITY; n],
+            margin,
         }
     }
-    let margin = ti.and_then(|ti| margin_of(meta, &wins, ti, &comp));
-    TargetSummary {
-        name: name.to_string(),
-        points: wins.len(),
-        fraction: if rows.is_empty() {
-            0.0
-        } else {
-            wins.len() as f64 / rows.len() as f64
-        },
-        ranges,
-        margin,
-        competitors: meta.competitors.clone(),
+
+    fn add(&mut self, p: &Point) {
+        if p.outcome() != "strong" || p.winner() != self.name {
+            return;
+        }
+        self.wins += 1;
+        for (i, (lo, hi)) in self.lo.iter_mut().zip(&mut self.hi).enumerate() {
+            let x = p.coord(i);
+            *lo = lo.min(x);
+            *hi = hi.max(x);
+        }
+        if let Some(m) = &mut self.margin {
+            m.add(p);
+        }
+    }
+
+    fn finish(self, meta: &Meta, points: usize) -> TargetSummary {
+        let mut ranges = BTreeMap::new();
+        if self.wins > 0 {
+            for (i, a) in meta.axes.iter().enumerate() {
+                ranges.insert(a.name.clone(), [self.lo[i], self.hi[i]]);
+            }
+        }
+        TargetSummary {
+            name: self.name,
+            points: self.wins,
+            fraction: if points == 0 {
+                0.0
+            } else {
+                self.wins as f64 / points as f64
+            },
+            ranges,
+            margin: self.margin.and_then(|m| m.finish(meta)),
+            competitors: meta.competitors.clone(),
+        }
     }
 }
 
-fn margin_of(meta: &Meta, wins: &[&Row], ti: usize, comp: &[usize]) -> Option<Margin> {
-    if comp.is_empty() {
-        return None;
-    }
-    let mut best: Option<(f64, &Row)> = None;
-    let mut min = f64::INFINITY;
-    for r in wins {
-        let m = comp
+impl MarginTally {
+    /// A winning row: its margin to the nearest competitor.
+    fn add(&mut self, p: &Point) {
+        let target = p.dim0(self.term);
+        let m = self
+            .competitors
             .iter()
-            .map(|&c| r.dims0[c] - r.dims0[ti])
+            .map(|&c| p.dim0(c) - target)
             .fold(f64::INFINITY, f64::min);
         if !m.is_finite() {
-            continue;
+            return;
         }
-        min = min.min(m);
-        if best.is_none_or(|(b, _)| m > b) {
-            best = Some((m, r));
+        self.min = self.min.min(m);
+        if self.best.as_ref().is_none_or(|(b, _)| m > *b) {
+            let coords = (0..p.axes()).map(|i| p.coord(i)).collect();
+            self.best = Some((m, coords));
         }
     }
-    let (max, at) = best?;
-    let best_point = meta
-        .axes
-        .iter()
-        .zip(&at.coords)
-        .map(|(a, x)| (a.name.clone(), *x))
-        .collect();
-    Some(Margin {
-        min,
-        max,
-        best_point,
-    })
+
+    fn finish(self, meta: &Meta) -> Option<Margin> {
+        let (max, at) = self.best?;
+        let best_point = meta
+            .axes
+            .iter()
+            .zip(&at)
+            .map(|(a, x)| (a.name.clone(), *x))
+            .collect();
+        Some(Margin {
+            min: self.min,
+            max,
+            best_point,
+        })
+    }
 }
 
 impl Report for ScanSummary {

@@ -122,3 +122,27 @@ coupling = {couplings}
 "#
     )
 }
+
+/// Peak resident memory of a running process, in kB (Linux; None elsewhere
+/// or once the process has ended).
+pub fn peak_kb(pid: u32) -> Option<u64> {
+    let status = std::fs::read_to_string(format!("/proc/{pid}/status")).ok()?;
+    status
+        .lines()
+        .find(|l| l.starts_with("VmHWM:"))?
+        .split_whitespace()
+        .nth(1)?
+        .parse()
+        .ok()
+}
+
+/// The text elements of an SVG, trimmed.
+pub fn svg_texts(svg: &str) -> Vec<String> {
+    svg.split("<text")
+        .skip(1)
+        .filter_map(|s| {
+            let body = &s[s.find('>')? + 1..];
+            Some(body[..body.find("</text>")?].trim().to_string())
+        })
+        .collect()
+}
