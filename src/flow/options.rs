@@ -56,6 +56,14 @@ pub struct FlowOptions {
     /// (default: the converged rule of the bare fixed point).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub q_points: Option<usize>,
+    /// Infinite arrays: relative tolerance of the flow's quadrature check
+    /// (default [`super::check::TOLERANCE`], 1e-6).
+    #[serde(skip)]
+    pub q_tolerance: f64,
+    /// Infinite arrays: the most points the flow's quadrature is refined to
+    /// (default [`crate::qspace::MAX_POINTS`]).
+    #[serde(skip)]
+    pub q_max_points: usize,
 }
 
 impl Default for FlowOptions {
@@ -72,6 +80,8 @@ impl Default for FlowOptions {
             record: true,
             dense_d: false,
             q_points: None,
+            q_tolerance: super::check::TOLERANCE,
+            q_max_points: crate::qspace::MAX_POINTS,
         }
     }
 }
