@@ -703,6 +703,29 @@ mod tests {
     }
 
     #[test]
+    fn the_coarsened_rule_is_the_rule_of_half_the_points() {
+        // q_k = 2 pi k / (N/2) and q_2k = 2 pi (2k) / N are the same float
+        // (numerator and denominator both doubled, which is exact), so the
+        // nested rule is bit for bit the rule solved on N/2 points.
+        let k = DMatrix::from_row_slice(2, 2, &[1.0, 0.0, 0.0, -1.0]);
+        let blocks = vec![
+            DMatrix::from_row_slice(2, 2, &[1.0, 0.3, 0.3, 1.0]),
+            DMatrix::from_element(2, 2, 0.15),
+            DMatrix::from_element(2, 2, 0.03),
+        ];
+        for n in [6, 8, 12, 32] {
+            let fine = QFixedPoint::solve(&k, &blocks, n).unwrap();
+            let half_rule = QFixedPoint::solve(&k, &blocks, n / 2).unwrap();
+            let nested = fine.coarsened().unwrap();
+            assert_eq!(nested.points, n / 2);
+            assert_eq!(nested.d, half_rule.d, "{n} points");
+            assert_eq!(nested.velocities, half_rule.velocities, "{n} points");
+        }
+        let odd = QFixedPoint::solve(&k, &blocks, 7).unwrap();
+        assert!(odd.coarsened().is_none());
+    }
+
+    #[test]
     fn cholesky_refuses_a_matrix_that_is_not_positive_definite() {
         let z = |x: f64, y: f64| Complex64::new(x, y);
         // [[1, 2i], [-2i, 1]] has eigenvalues 1 +- 2 (derived): indefinite.

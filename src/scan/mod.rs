@@ -155,7 +155,11 @@ impl<'s> Scan<'s> {
             Err(e) => FlowResult::without_flow(Outcome::Failed, e.to_string()),
         };
         let coords: Vec<f64> = self.slots.iter().map(|&s| point[s]).collect();
-        csv_line(&row_cells(&coords, &result, self.meta.terms.len()))
+        let mut cells = row_cells(&coords, &result, self.meta.terms.len());
+        if self.meta.infinite {
+            cells.extend(quadrature_cells(&result));
+        }
+        csv_line(&cells)
     }
 
     /// Compute every remaining point of `file`, appending chunk by chunk.
@@ -200,6 +204,19 @@ pub fn row_cells(coords: &[f64], r: &FlowResult, listed: usize) -> Vec<String> {
     cells
 }
 
+/// The cells of [`store::QUADRATURE_COLUMNS`] (empty where the flow was
+/// not checked: unphysical and failed points).
+pub fn quadrature_cells(r: &FlowResult) -> Vec<String> {
+    match &r.flow_quadrature {
+        Some(c) => vec![
+            c.points.to_string(),
+            format!("{}", c.worst()),
+            c.converged.to_string(),
+        ],
+        None => vec![String::new(); 3],
+    }
+}
+
 fn make_meta(sys: &System, model_bytes: &[u8], spec: &ScanSpec) -> Meta {
     let terms: Vec<String> = sys.model.terms.iter().map(|t| t.name.clone()).collect();
     let target = sys.model.target();
@@ -220,6 +237,7 @@ fn make_meta(sys: &System, model_bytes: &[u8], spec: &ScanSpec) -> Meta {
         competitors,
         shard: spec.shard,
         points: spec.axes.iter().map(|a| a.n).product(),
+        infinite: sys.is_infinite(),
     };
     // The fingerprint identifies the whole scan, so it leaves out the shard:
     // every shard of one scan (and the unsharded scan) carries the same

@@ -38,6 +38,10 @@ pub struct Row {
     pub ell_star: Option<f64>,
     /// Bare dimensions of the listed terms (NaN where missing).
     pub dims0: Vec<f64>,
+    /// Infinite arrays: the flow's quadrature check (points, larger
+    /// relative error estimate, passed); None elsewhere and where the flow
+    /// was not checked.
+    pub quadrature: Option<(usize, f64, bool)>,
 }
 
 /// Margin of the target over its nearest competitor.
@@ -68,6 +72,36 @@ pub struct TargetSummary {
     pub competitors: Vec<String>,
 }
 
+/// The quadrature checks of an infinite array's flows (the columns
+/// `q_points`, `q_error`, `q_converged` of `points.csv`).
+#[derive(Debug, Clone, Serialize)]
+pub struct QuadratureSummary {
+    /// Points whose flow was checked (all but unphysical and failed ones).
+    pub checked: usize,
+    /// Points whose check did not pass.
+    pub not_converged: usize,
+    /// Fewest and most quadrature points a flow was carried on.
+    pub points: [usize; 2],
+    /// Largest relative error estimate (null when infinite: two flows that
+    /// end differently).
+    pub largest_error: f64,
+}
+
+impl QuadratureSummary {
+    fn of(rows: &[Row]) -> QuadratureSummary {
+        let checks: Vec<(usize, f64, bool)> = rows.iter().filter_map(|r| r.quadrature).collect();
+        QuadratureSummary {
+            checked: checks.len(),
+            not_converged: checks.iter().filter(|c| !c.2).count(),
+            points: [
+                checks.iter().map(|c| c.0).min().unwrap_or(0),
+                checks.iter().map(|c| c.0).max().unwrap_or(0),
+            ],
+            largest_error: checks.iter().map(|c| c.1).fold(0.0, f64::max),
+        }
+    }
+}
+
 /// The scan summary (`summary.json`).
 #[derive(Debug, Clone, Serialize)]
 pub struct ScanSummary {
@@ -83,6 +117,9 @@ pub struct ScanSummary {
     pub winners: BTreeMap<String, usize>,
     /// Where the target wins (when the model marks one).
     pub target: Option<TargetSummary>,
+    /// Infinite arrays: the flows' quadrature checks over the grid; null
+    /// otherwise.
+    pub flow_quadrature: Option<QuadratureSummary>,
     /// Files written.
     pub files: Vec<String>,
     /// Limits of the method.
@@ -106,6 +143,17 @@ pub fn read_rows(path: &Path, meta: &Meta) -> Result<Vec<Row>, Error> {
             dims0: (0..nt)
                 .map(|i| num(na + 3 + i).unwrap_or(f64::NAN))
                 .collect(),
+            quadrature: if meta.infinite {
+                let at = na + 3 + 2 * nt;
+                let points = rec.get(at).and_then(|s| s.parse::<usize>().ok());
+                let passed = rec.get(at + 2).and_then(|s| s.parse::<bool>().ok());
+                points
+                    .zip(num(at + 1))
+                    .zip(passed)
+                    .map(|((p, e), c)| (p, e, c))
+            } else {
+                None
+            },
         });
     }
     if rows.len() != meta.points {
@@ -139,6 +187,14 @@ impl ScanSummary {
             }
         }
         let target = meta.target.as_ref().map(|t| target_summary(meta, rows, t));
+        let flow_quadrature = meta.infinite.then(|| QuadratureSummary::of(rows));
+        let mut notes = vec![crate::flow::report::METHOD_NOTE.to_string()];
+        if let Some(q) = flow_quadrature.as_ref().filter(|q| q.not_converged > 0) {
+            notes.push(format!(
+                "at {} of the {} points the infinite array's flow is not converged in q (q_converged = false in points.csv, with q_points and q_error); `pinflow flow` at such a point says why",
+                q.not_converged, q.checked
+            ));
+        }
         ScanSummary {
             model: meta.model.clone(),
             axes: meta.axes.iter().map(|a| a.spec()).collect(),
@@ -146,8 +202,9 @@ impl ScanSummary {
             outcomes,
             winners,
             target,
+            flow_quadrature,
             files,
-            notes: vec![crate::flow::report::METHOD_NOTE.to_string()],
+            notes,
         }
     }
 }
@@ -262,6 +319,21 @@ impl Report for ScanSummary {
                     ),
                 ));
             }
+        }
+        if let Some(q) = &self.flow_quadrature {
+            let points = if q.points[0] == q.points[1] {
+                q.points[0].to_string()
+            } else {
+                format!("{} to {}", q.points[0], q.points[1])
+            };
+            let mut s = format!(
+                "checked at {} points: D(q) on {points} points, largest relative error estimate {:.1e}",
+                q.checked, q.largest_error
+            );
+            if q.not_converged > 0 {
+                s.push_str(&format!(", NOT converged at {} points", q.not_converged));
+            }
+            f.push(("flow quadrature".to_string(), s));
         }
         f.push(("files".to_string(), self.files.join(", ")));
         f
