@@ -21,7 +21,9 @@
 //!
 //! Organisation: [`channels`] builds the exact plan (which couplings can
 //! flow, OPE table), [`background`] stores D, [`rhs`] holds the equations
-//! and the stop hook, [`report`] turns a [`FlowResult`] into outputs. A
+//! and the stop hook, [`check`] checks (and refines) the quadrature rule of
+//! an infinite array's flow, [`report`] turns a [`FlowResult`] into
+//! outputs. A
 //! term with momentum mismatch k flows only up to ell_k = ln(1/|k|); the
 //! integration restarts at each such breakpoint so the right-hand side is
 //! smooth within each segment.

@@ -53,7 +53,8 @@ pub struct FlowOptions {
     #[serde(skip)]
     pub dense_d: bool,
     /// Infinite arrays: the number of quadrature points D(q) is carried on
-    /// (default: the converged rule of the bare fixed point).
+    /// (default: the converged rule of the bare fixed point, refined while
+    /// the flow's quadrature check fails; see [`super::check`]).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub q_points: Option<usize>,
     /// Infinite arrays: relative tolerance of the flow's quadrature check
@@ -114,8 +115,10 @@ pub struct FlowOverrides {
     /// Absolute tolerance of the integrator [default 1e-12].
     #[arg(long, allow_negative_numbers = true, value_name = "TOL")]
     pub atol: Option<f64>,
-    /// Infinite arrays: carry D(q) on this many quadrature points [default:
-    /// the rule that converges the bare dimensions to 1e-10].
+    /// Infinite arrays: carry D(q) on this many quadrature points, checked
+    /// against twice as many but not refined [default: the rule that
+    /// converges the bare dimensions to 1e-10, refined while the flow's
+    /// check fails].
     #[arg(long, allow_negative_numbers = true, value_name = "N")]
     pub q_points: Option<i64>,
 }
