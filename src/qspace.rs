@@ -353,7 +353,7 @@ impl QFixedPoint {
     /// q_k = 2 pi k / (N/2) are this rule's even stored points, so nothing
     /// is solved again. None for odd N.
     pub fn coarsened(&self) -> Option<QFixedPoint> {
-        if self.points % 2 != 0 {
+        if !self.points.is_multiple_of(2) {
             return None;
         }
         let points = self.points / 2;

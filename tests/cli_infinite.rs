@@ -459,14 +459,14 @@ fn a_coarse_rule_is_flagged() {
 fn a_loose_integrator_stalls_the_refinement() {
     // With rtol 1e-4 the two flows differ by the integrator's error (about
     // 1e-5, measured), which doubling the points does not reduce: the
-    // refinement stops after one doubling and the note says why.
+    // refinement stops and the note says why.
     let dir = tmp();
     let m = sliding();
     let v = json_of(dir.path(), &["flow", &m, "--rtol", "1e-4"]);
     let c = &v["flow_quadrature"];
     assert_eq!(c["converged"], false);
     assert_eq!(c["stopped"], "stalled");
-    assert_eq!(c["refinements"], 1);
+    assert!(c["refinements"].as_u64().unwrap() >= 1);
     assert_eq!(c["points"], v["quadrature"]["points"]);
     let note = quadrature_note(&v).expect("a note");
     assert!(note.contains("tighten --rtol"), "{note}");

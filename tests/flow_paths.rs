@@ -142,39 +142,29 @@ fn compare_infinite_with_ring(text: &str, wires: usize, sets: &[(&str, f64)], cl
     }
 }
 
+/// A model file of the repository with its line `line` (the number of
+/// wires) replaced by `wires = WIRES`.
+fn with_wires(file: &str, line: &str) -> String {
+    let text = std::fs::read_to_string(Path::new(env!("CARGO_MANIFEST_DIR")).join(file)).unwrap();
+    assert_eq!(text.matches(line).count(), 1, "{file}: {line}");
+    text.replace(line, "wires = WIRES")
+}
+
 #[test]
 fn the_infinite_flow_on_n_points_is_the_ring_of_n_wires() {
-    let demo = std::fs::read_to_string(concat!(
-        env!("CARGO_MANIFEST_DIR"),
-        "/flows/laughlin_third.toml"
-    ))
-    .unwrap()
-    .replace("wires = 8", "wires = WIRES");
-    assert!(demo.contains("WIRES"));
+    let demo = with_wires("flows/laughlin_third.toml", "wires = 8");
     for closure in [Closure::None, Closure::Pairs] {
         compare_infinite_with_ring(&demo, 16, &[("g", 0.8)], closure);
         compare_infinite_with_ring(&demo, 32, &[("g", 0.5), ("lambda", 0.6)], closure);
     }
     // A longer-range array with interactions of range 2 and terms of range 2.
-    let bench = std::fs::read_to_string(concat!(
-        env!("CARGO_MANIFEST_DIR"),
-        "/benches/models/array32.toml"
-    ))
-    .unwrap()
-    .replace("wires = 16", "wires = WIRES");
+    let bench = with_wires("benches/models/array32.toml", "wires = 16");
     compare_infinite_with_ring(&bench, 24, &[("g", 0.6), ("w", 0.1)], Closure::Pairs);
 }
 
 /// The sliding-array demo with `wires = WIRES` in place of "infinite".
 fn sliding_demo() -> String {
-    let text = std::fs::read_to_string(concat!(
-        env!("CARGO_MANIFEST_DIR"),
-        "/flows/sliding_array.toml"
-    ))
-    .unwrap()
-    .replace("wires = \"infinite\"", "wires = WIRES");
-    assert!(text.contains("WIRES"));
-    text
+    with_wires("flows/sliding_array.toml", "wires = \"infinite\"")
 }
 
 fn system_of(text: &str, wires: &str) -> System {

@@ -230,12 +230,12 @@ impl Flow<'_> {
         }
         let (mut refinements, mut stopped) = (0, None);
         let mut previous = f64::INFINITY;
-        while !(diff.worst() <= tol) {
+        while diff.worst() > tol {
             if fp.points >= self.opts.q_max_points {
                 stopped = Some(StoppedBy::Cap);
                 break;
             }
-            if refinements > 0 && !(diff.worst() < 0.5 * previous) {
+            if refinements > 0 && diff.worst() >= 0.5 * previous {
                 stopped = Some(StoppedBy::Stalled);
                 break;
             }

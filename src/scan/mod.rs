@@ -1,7 +1,8 @@
 //! Phase diagrams over a line or a plane of parameters.
 //!
 //! Every grid point is one flow ([`crate::flow::Flow::run`], the same code
-//! as `pinflow flow`). Points are computed in parallel (rayon) a chunk at a
+//! as `pinflow flow`; for an infinite array with its quadrature check,
+//! [`crate::flow::check`], whose result ends the row). Points are computed in parallel (rayon) a chunk at a
 //! time and appended to the partial file in index order, so the output
 //! bytes do not depend on the number of threads, an interrupted scan can be
 //! resumed, and shards of a scan can be merged. The summary and figures are
