@@ -23,10 +23,9 @@
 //! flow, OPE table), [`background`] stores D, [`rhs`] holds the equations
 //! and the stop hook, [`check`] checks (and refines) the quadrature rule of
 //! an infinite array's flow, [`report`] turns a [`FlowResult`] into
-//! outputs. A
-//! term with momentum mismatch k flows only up to ell_k = ln(1/|k|); the
-//! integration restarts at each such breakpoint so the right-hand side is
-//! smooth within each segment.
+//! outputs. A term with momentum mismatch k flows only up to
+//! ell_k = ln(1/|k|); the integration restarts at each such breakpoint so
+//! the right-hand side is smooth within each segment.
 
 pub mod background;
 pub mod channels;

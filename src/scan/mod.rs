@@ -2,12 +2,12 @@
 //!
 //! Every grid point is one flow ([`crate::flow::Flow::run`], the same code
 //! as `pinflow flow`; for an infinite array with its quadrature check,
-//! [`crate::flow::check`], whose result ends the row). Points are computed in parallel (rayon) a chunk at a
-//! time and appended to the partial file in index order, so the output
-//! bytes do not depend on the number of threads, an interrupted scan can be
-//! resumed, and shards of a scan can be merged. The summary and figures are
-//! built from the finished `points.csv` alone (see [`summary`]), which is
-//! why `merge` needs no model.
+//! [`crate::flow::check`], whose result ends the row). Points are computed
+//! in parallel (rayon) a chunk at a time and appended to the partial file
+//! in index order, so the output bytes do not depend on the number of
+//! threads, an interrupted scan can be resumed, and shards of a scan can be
+//! merged. The summary and figures are built from the finished `points.csv`
+//! alone (see [`summary`]), which is why `merge` needs no model.
 //!
 //! Index order: x varies fastest; point i has x index i % nx and y index
 //! i / nx.
