@@ -13,6 +13,9 @@
 //! the pinned set, the strip and both one-wire windows. Its 8 x 8 strip
 //! form once made the readable reduction cycle (about 9 s).
 //!
+//! One flow of the infinite-array demo (`flows/sliding_array.toml`),
+//! including its quadrature check.
+//!
 //! Run: `cargo bench --bench points`.
 
 use std::path::Path;
@@ -130,11 +133,33 @@ fn edges_nondiagonal_cell(c: &mut Criterion) {
     });
 }
 
+/// One flow of the infinite-array demo (`flows/sliding_array.toml`) at its
+/// default point, with the trajectory recorded (`pinflow flow`) and without
+/// (a scan point); every such flow includes its quadrature check.
+fn infinite_flow(c: &mut Criterion) {
+    let sys = System::load(Path::new(concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/flows/sliding_array.toml"
+    )))
+    .expect("demo model");
+    let point = sys.model.params.defaults().to_vec();
+    for record in [true, false] {
+        let opts = FlowOptions {
+            record,
+            ..FlowOptions::default()
+        };
+        let flow = Flow::new(&sys, opts);
+        let name = format!("flow: sliding array (infinite), record {record}");
+        c.bench_function(&name, |b| b.iter(|| flow.run(&point).expect("flow")));
+    }
+}
+
 criterion_group!(
     benches,
     dims_point,
     flow_point,
     infinite_against_dense,
-    edges_nondiagonal_cell
+    edges_nondiagonal_cell,
+    infinite_flow
 );
 criterion_main!(benches);

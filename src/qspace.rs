@@ -349,6 +349,30 @@ impl QFixedPoint {
         Ok(fp)
     }
 
+    /// The N/2-point rule nested in this one (N even): its stored points
+    /// q_k = 2 pi k / (N/2) are this rule's even stored points, so nothing
+    /// is solved again. None for odd N.
+    pub fn coarsened(&self) -> Option<QFixedPoint> {
+        if !self.points.is_multiple_of(2) {
+            return None;
+        }
+        let points = self.points / 2;
+        let c2 = 2 * self.cell * self.cell;
+        let mut d = Vec::with_capacity(c2 * half(points));
+        let mut velocities = Vec::with_capacity(half(points));
+        for i in 0..half(points) {
+            d.extend_from_slice(&self.d[2 * i * c2..(2 * i + 1) * c2]);
+            velocities.push(self.velocities[2 * i].clone());
+        }
+        Some(QFixedPoint {
+            points,
+            cell: self.cell,
+            d,
+            velocities,
+            chirality: self.chirality.clone(),
+        })
+    }
+
     fn set(&mut self, i: usize, s: QSolution) {
         let c = self.cell;
         for a in 0..c {
@@ -502,6 +526,33 @@ pub fn start_points(range: usize) -> usize {
     (4 * (range + 1)).max(MIN_POINTS).next_power_of_two()
 }
 
+/// One doubling of the rule: the 2N-point fixed point (reusing the N
+/// points, [`QFixedPoint::refined`]) with its error estimate, the largest
+/// change of every term's dimension and every entry of D^(0) from the
+/// N-point rule (see [`Quadrature`]). No positivity certificate: the
+/// caller certifies the rule it keeps.
+pub fn refine(
+    k: &DMatrix<f64>,
+    blocks: &[DMatrix<f64>],
+    terms: &[Vec<(usize, Vec<f64>)>],
+    fp: &QFixedPoint,
+    tolerance: f64,
+) -> Result<(QFixedPoint, Quadrature), NotPositive> {
+    let lq = |points: usize| term_vectors(terms, k.nrows(), points);
+    let finer = fp.refined(k, blocks)?;
+    let change = largest_change(
+        &watched(&finer, &lq(finer.points)),
+        &watched(fp, &lq(fp.points)),
+    );
+    let quad = Quadrature {
+        points: finer.points,
+        error_estimate: change,
+        tolerance,
+        converged: change <= tolerance,
+    };
+    Ok((finer, quad))
+}
+
 /// Refine the periodic trapezoid rule by doubling N, from
 /// [`start_points`]`(range)`, until every term's dimension and every entry
 /// of D^(0) changes by at most `tolerance`, or N reaches [`MAX_POINTS`].
@@ -514,26 +565,14 @@ pub fn converge(
     range: usize,
     tolerance: f64,
 ) -> Result<(QFixedPoint, Quadrature), NotPositive> {
-    let lq = |points: usize| term_vectors(terms, k.nrows(), points);
     let mut fp = QFixedPoint::solve(k, blocks, start_points(range))?;
-    let mut before = watched(&fp, &lq(fp.points));
     loop {
-        let finer = fp.refined(k, blocks)?;
-        let now = watched(&finer, &lq(finer.points));
-        let change = largest_change(&now, &before);
+        let (finer, quad) = refine(k, blocks, terms, &fp, tolerance)?;
         fp = finer;
-        let converged = change <= tolerance;
-        if converged || fp.points >= MAX_POINTS {
+        if quad.converged || fp.points >= MAX_POINTS {
             certify_positive(blocks, fp.points)?;
-            let quad = Quadrature {
-                points: fp.points,
-                error_estimate: change,
-                tolerance,
-                converged,
-            };
             return Ok((fp, quad));
         }
-        before = now;
     }
 }
 
@@ -661,6 +700,29 @@ mod tests {
             }
         }
         assert_eq!(fp.chirality, dense.chirality);
+    }
+
+    #[test]
+    fn the_coarsened_rule_is_the_rule_of_half_the_points() {
+        // q_k = 2 pi k / (N/2) and q_2k = 2 pi (2k) / N are the same float
+        // (numerator and denominator both doubled, which is exact), so the
+        // nested rule is bit for bit the rule solved on N/2 points.
+        let k = DMatrix::from_row_slice(2, 2, &[1.0, 0.0, 0.0, -1.0]);
+        let blocks = vec![
+            DMatrix::from_row_slice(2, 2, &[1.0, 0.3, 0.3, 1.0]),
+            DMatrix::from_element(2, 2, 0.15),
+            DMatrix::from_element(2, 2, 0.03),
+        ];
+        for n in [6, 8, 12, 32] {
+            let fine = QFixedPoint::solve(&k, &blocks, n).unwrap();
+            let half_rule = QFixedPoint::solve(&k, &blocks, n / 2).unwrap();
+            let nested = fine.coarsened().unwrap();
+            assert_eq!(nested.points, n / 2);
+            assert_eq!(nested.d, half_rule.d, "{n} points");
+            assert_eq!(nested.velocities, half_rule.velocities, "{n} points");
+        }
+        let odd = QFixedPoint::solve(&k, &blocks, 7).unwrap();
+        assert!(odd.coarsened().is_none());
     }
 
     #[test]

@@ -219,6 +219,24 @@ impl System {
         Ok((fp, quad))
     }
 
+    /// The infinite array's fixed point on twice the points of `fp`, reusing
+    /// its points, with the error estimate of the finer rule (its change
+    /// from `fp`, see [`qspace::refine`]). `fp` is a rule of this point from
+    /// [`System::q_converged`] or [`System::q_on_rule`], which have already
+    /// certified V(q) positive definite at every q.
+    pub fn q_refined(
+        &self,
+        point: &[f64],
+        fp: &QFixedPoint,
+    ) -> Result<(QFixedPoint, Quadrature), Error> {
+        let qm = self.q_model()?;
+        let blocks = self.v_blocks(point)?;
+        let (finer, quad) = qspace::refine(&qm.k, &blocks, &qm.terms, fp, qspace::TOLERANCE)
+            .map_err(|e| self.unphysical(point, e))?;
+        self.check_q(point, &finer)?;
+        Ok((finer, quad))
+    }
+
     /// Bosonic dimension of every term from a q-space fixed point.
     pub fn q_dimensions(&self, fp: &QFixedPoint) -> Result<Vec<f64>, Error> {
         let qm = self.q_model()?;

@@ -170,8 +170,48 @@ fn rows_match_single_flows(model: &Path, axes: &[&str], options: &[&str]) -> Vec
                 }
             }
         }
+        // Infinite arrays: the flow's quadrature check, as `flow` states it.
+        if header.iter().any(|h| h == "q_points") {
+            let c = &json["flow_quadrature"];
+            if c.is_null() {
+                assert_eq!(row.get("q_points"), "", "q_points at {at}");
+                continue;
+            }
+            assert_eq!(
+                row.num("q_points"),
+                c["points"].as_f64().unwrap(),
+                "at {at}"
+            );
+            let worst = c["dimension_error"]
+                .as_f64()
+                .unwrap()
+                .max(c["ell_star_error"].as_f64().unwrap_or(0.0));
+            assert_close(
+                &format!("q_error at {at}"),
+                row.num("q_error"),
+                worst,
+                1e-12,
+            );
+            let converged = c["converged"].as_bool().unwrap().to_string();
+            assert_eq!(row.get("q_converged"), converged, "at {at}");
+        }
     }
     rows
+}
+
+#[test]
+fn rows_equal_single_flows_infinite_array() {
+    // The infinite-array demo on a 3 x 2 grid; w = 0.3 at lambda = -0.4 is
+    // unphysical (1 + lambda + 4 (w2 - w) < 0 at q = pi, derived from the
+    // model's V blocks).
+    let rows = rows_match_single_flows(
+        &flow_file("sliding_array.toml"),
+        &["lambda=-0.4:0.6:3", "w=0.1:0.3:2"],
+        &[],
+    );
+    assert_eq!(rows.len(), 6);
+    assert!(rows.iter().any(|r| r.get("outcome") == "unphysical"));
+    assert!(rows.iter().any(|r| r.get("q_converged") == "true"));
 }
 
 #[test]

@@ -21,13 +21,15 @@
 //!
 //! Organisation: [`channels`] builds the exact plan (which couplings can
 //! flow, OPE table), [`background`] stores D, [`rhs`] holds the equations
-//! and the stop hook, [`report`] turns a [`FlowResult`] into outputs. A
-//! term with momentum mismatch k flows only up to ell_k = ln(1/|k|); the
-//! integration restarts at each such breakpoint so the right-hand side is
-//! smooth within each segment.
+//! and the stop hook, [`check`] checks (and refines) the quadrature rule of
+//! an infinite array's flow, [`report`] turns a [`FlowResult`] into
+//! outputs. A term with momentum mismatch k flows only up to
+//! ell_k = ln(1/|k|); the integration restarts at each such breakpoint so
+//! the right-hand side is smooth within each segment.
 
 pub mod background;
 pub mod channels;
+pub mod check;
 pub mod options;
 pub mod report;
 pub mod rhs;
@@ -44,6 +46,7 @@ use crate::model::Boundary;
 use crate::system::System;
 use background::Background;
 use channels::{Channel, Origin, Plan};
+pub use check::{QuadratureCheck, RuleChoice, StoppedBy};
 pub use options::{Closure, FlowOptions};
 use rhs::{FlowRhs, Sample, Stop};
 
@@ -139,6 +142,10 @@ pub struct FlowResult {
     /// Infinite arrays: the quadrature rule D(q) was carried on, with the
     /// error estimate of the bare dimensions on it; null otherwise.
     pub quadrature: Option<crate::qspace::Quadrature>,
+    /// Infinite arrays: the a-posteriori check of the flow's quadrature (the
+    /// same flow on another rule; see [`check`]); null otherwise and for
+    /// flows that failed or could not start.
+    pub flow_quadrature: Option<QuadratureCheck>,
     /// Accepted integration steps.
     pub steps: usize,
     /// A message for unphysical or failed points.
@@ -173,12 +180,15 @@ enum Layout {
 }
 
 /// The start of one flow: D's layout and bare state, the channels with
-/// their L(q) on that layout (infinite arrays), the quadrature.
+/// their L(q) on that layout (infinite arrays), the quadrature, and (for
+/// the infinite array's first flow) the bare fixed point on its rule, kept
+/// for the quadrature check.
 struct Start {
     bg: Background,
     d0: Vec<f64>,
     channels: Option<Vec<Channel>>,
     quadrature: Option<crate::qspace::Quadrature>,
+    rule: Option<crate::qspace::QFixedPoint>,
 }
 
 impl<'s> Flow<'s> {
@@ -215,6 +225,7 @@ impl<'s> Flow<'s> {
                     d0,
                     channels: None,
                     quadrature: None,
+                    rule: None,
                 })
             }
             Layout::Ring => {
@@ -227,6 +238,7 @@ impl<'s> Flow<'s> {
                     d0: fp.d,
                     channels: None,
                     quadrature: None,
+                    rule: None,
                 })
             }
             Layout::Infinite => {
@@ -234,43 +246,63 @@ impl<'s> Flow<'s> {
                     Some(n) => self.sys.q_on_rule(point, n)?,
                     None => self.sys.q_converged(point)?,
                 };
-                let kinv = &self
-                    .sys
-                    .q
-                    .as_ref()
-                    .ok_or_else(|| {
-                        Error::Numerical("an infinite array without q-space data".into())
-                    })?
-                    .kinv;
-                let channels = self
-                    .plan
-                    .channels
-                    .iter()
-                    .map(|c| c.on_rule(lat, kinv, fp.points))
-                    .collect();
+                let start = self.on_rule(&fp, quad)?;
                 Ok(Start {
-                    bg: Background::Fourier {
-                        wires: fp.points,
-                        cell: lat.cell,
-                    },
-                    d0: fp.d,
-                    channels: Some(channels),
-                    quadrature: Some(quad),
+                    rule: Some(fp),
+                    ..start
                 })
             }
         }
     }
 
-    /// Flow at one parameter point.
+    /// The start of an infinite array's flow on the rule of `fp`.
+    fn on_rule(
+        &self,
+        fp: &crate::qspace::QFixedPoint,
+        quad: crate::qspace::Quadrature,
+    ) -> Result<Start, Error> {
+        let lat = &self.sys.lattice;
+        let kinv = &self
+            .sys
+            .q
+            .as_ref()
+            .ok_or_else(|| Error::Numerical("an infinite array without q-space data".into()))?
+            .kinv;
+        let channels = self
+            .plan
+            .channels
+            .iter()
+            .map(|c| c.on_rule(lat, kinv, fp.points))
+            .collect();
+        Ok(Start {
+            bg: Background::Fourier {
+                wires: fp.points,
+                cell: lat.cell,
+            },
+            d0: fp.d.clone(),
+            channels: Some(channels),
+            quadrature: Some(quad),
+            rule: None,
+        })
+    }
+
+    /// Flow at one parameter point. An infinite array's flow is checked
+    /// against the same flow on another quadrature rule, and refined when
+    /// the check fails (see [`check`]).
     pub fn run(&self, point: &[f64]) -> Result<FlowResult, Error> {
         self.sys.model.check_point(point)?;
-        let start = match self.start(point) {
-            Ok(s) => s,
-            Err(Error::Unphysical(u)) => {
-                return Ok(FlowResult::without_flow(Outcome::Unphysical, u.to_string()))
-            }
-            Err(e) => return Err(e),
+        let mut start = match self.start(point) {
+            Ok(start) => start,
+            Err(e) => return unphysical_result(e),
         };
+        match start.rule.take() {
+            Some(fp) => self.run_checked(point, start, fp),
+            None => self.run_from(point, start, self.opts.record),
+        }
+    }
+
+    /// Flow from a prepared start; `record` keeps the trajectory.
+    fn run_from(&self, point: &[f64], start: Start, record: bool) -> Result<FlowResult, Error> {
         let all: &[Channel] = start.channels.as_deref().unwrap_or(&self.plan.channels);
         let bare = self.bare_couplings(point)?;
         let extra_listed = self.sys.extra_dimensions(point)?;
@@ -286,7 +318,7 @@ impl<'s> Flow<'s> {
         let mut rhs = FlowRhs::new(start.bg.clone(), channels, extra, ope);
         rhs.y_strong = self.opts.y_strong;
         rhs.floor = self.opts.floor;
-        rhs.record = self.opts.record;
+        rhs.record = record;
         let mut y0 = DVector::zeros(rhs.state_len());
         for (i, &c) in included.iter().enumerate() {
             if let Some((y, chi)) = bare.get(c).copied() {
@@ -419,6 +451,7 @@ impl<'s> Flow<'s> {
             suppressed: Vec::new(),
             dkd_drift: drift,
             quadrature: None,
+            flow_quadrature: None,
             steps: rhs.steps,
             message: integrated.message,
             samples: rhs.samples.clone(),
@@ -448,6 +481,15 @@ impl<'s> Flow<'s> {
     }
 }
 
+/// A point whose V is not positive definite is a result (outcome
+/// `unphysical`); other errors stay errors.
+fn unphysical_result(e: Error) -> Result<FlowResult, Error> {
+    match e {
+        Error::Unphysical(u) => Ok(FlowResult::without_flow(Outcome::Unphysical, u.to_string())),
+        e => Err(e),
+    }
+}
+
 impl FlowResult {
     /// A result for a point that could not be flowed.
     pub fn without_flow(outcome: Outcome, message: String) -> FlowResult {
@@ -463,6 +505,7 @@ impl FlowResult {
             suppressed: Vec::new(),
             dkd_drift: 0.0,
             quadrature: None,
+            flow_quadrature: None,
             steps: 0,
             message: Some(message),
             samples: Vec::new(),

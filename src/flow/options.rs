@@ -53,9 +53,18 @@ pub struct FlowOptions {
     #[serde(skip)]
     pub dense_d: bool,
     /// Infinite arrays: the number of quadrature points D(q) is carried on
-    /// (default: the converged rule of the bare fixed point).
+    /// (default: the converged rule of the bare fixed point, refined while
+    /// the flow's quadrature check fails; see [`super::check`]).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub q_points: Option<usize>,
+    /// Infinite arrays: relative tolerance of the flow's quadrature check
+    /// (default [`super::check::TOLERANCE`], 1e-6).
+    #[serde(skip)]
+    pub q_tolerance: f64,
+    /// Infinite arrays: the most points the flow's quadrature is refined to
+    /// (default [`crate::qspace::MAX_POINTS`]).
+    #[serde(skip)]
+    pub q_max_points: usize,
 }
 
 impl Default for FlowOptions {
@@ -72,6 +81,8 @@ impl Default for FlowOptions {
             record: true,
             dense_d: false,
             q_points: None,
+            q_tolerance: super::check::TOLERANCE,
+            q_max_points: crate::qspace::MAX_POINTS,
         }
     }
 }
@@ -109,8 +120,10 @@ pub struct FlowOverrides {
     /// failed [default 100000].
     #[arg(long, allow_hyphen_values = true, value_name = "N")]
     pub max_steps: Option<i64>,
-    /// Infinite arrays: carry D(q) on this many quadrature points [default:
-    /// the rule that converges the bare dimensions to 1e-10].
+    /// Infinite arrays: carry D(q) on this many quadrature points, checked
+    /// against twice as many but not refined [default: the rule that
+    /// converges the bare dimensions to 1e-10, refined while the flow's
+    /// check fails].
     #[arg(long, allow_hyphen_values = true, value_name = "N")]
     pub q_points: Option<i64>,
 }

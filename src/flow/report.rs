@@ -5,7 +5,7 @@ use std::path::Path;
 
 use serde::Serialize;
 
-use super::{FlowOptions, FlowResult, Outcome};
+use super::{FlowOptions, FlowResult, Outcome, QuadratureCheck, RuleChoice, StoppedBy};
 use crate::error::Error;
 use crate::output::{self, Report, Table};
 
@@ -59,6 +59,9 @@ impl FlowReport {
                 "the infinite array's quadrature with {} points is not converged (error estimate {:.1e} above {:.0e}); choose more points with --q-points",
                 q.points, q.error_estimate, q.tolerance
             ));
+        }
+        if let Some(c) = result.flow_quadrature.as_ref().filter(|c| !c.converged) {
+            notes.push(check_note(c));
         }
         FlowReport {
             model: model.to_string(),
@@ -189,6 +192,9 @@ impl Report for FlowReport {
                 ),
             ));
         }
+        if let Some(c) = &r.flow_quadrature {
+            f.push(("flow quadrature".into(), check_fact(c)));
+        }
         f.push((
             "steps".into(),
             format!("{} (D K D drift {:.1e})", r.steps, r.dkd_drift),
@@ -232,6 +238,79 @@ impl Report for FlowReport {
 
     fn notes(&self) -> Vec<String> {
         self.notes.clone()
+    }
+}
+
+/// The estimates of a quadrature check: "2.1e-9 for the final dimensions
+/// and 3.0e-9 for ell*".
+fn check_estimates(c: &QuadratureCheck) -> String {
+    let mut s = format!("{:.1e} for the final dimensions", c.dimension_error);
+    if let Some(e) = c.ell_star_error {
+        s.push_str(&format!(" and {e:.1e} for ell*"));
+    }
+    s
+}
+
+/// What the estimate is measured against.
+fn check_against(c: &QuadratureCheck) -> String {
+    match c.rule {
+        RuleChoice::Fixed => format!(
+            "twice the difference from the flow on {} points",
+            c.compared_with
+        ),
+        RuleChoice::Refined => format!("against the flow on {} points", c.compared_with),
+    }
+}
+
+/// The text fact stating the flow's quadrature check, in the form of the
+/// bare rule's: points, estimate, tolerance.
+fn check_fact(c: &QuadratureCheck) -> String {
+    let rule = match (c.rule, c.refinements) {
+        (RuleChoice::Fixed, _) => format!("{} points (given)", c.points),
+        (RuleChoice::Refined, 0) => format!("{} points", c.points),
+        (RuleChoice::Refined, 1) => format!("{} points (refined once)", c.points),
+        (RuleChoice::Refined, k) => format!("{} points (refined {k} times)", c.points),
+    };
+    format!(
+        "{rule}, relative error estimate {} ({}; tolerance {:.0e}{}{})",
+        check_estimates(c),
+        check_against(c),
+        c.tolerance,
+        if c.same_outcome {
+            ""
+        } else {
+            ", the two flows end differently"
+        },
+        if c.converged { "" } else { ", NOT converged" }
+    )
+}
+
+/// The note of a quadrature check that did not pass.
+fn check_note(c: &QuadratureCheck) -> String {
+    let mut body = format!(
+        "its relative error estimate is {} ({}; tolerance {:.0e})",
+        check_estimates(c),
+        check_against(c),
+        c.tolerance
+    );
+    if !c.same_outcome {
+        body.push_str(
+            ", and the two flows do not even end the same way (outcome, winner or flowing terms)",
+        );
+    }
+    match (c.rule, c.stopped) {
+        (RuleChoice::Fixed, _) => format!(
+            "the infinite array's flow on the {} points given (--q-points or flow.q_points) is not converged: {body}; choose more points, or leave the number of points to the refinement",
+            c.points
+        ),
+        (_, Some(StoppedBy::Cap)) => format!(
+            "the infinite array's flow is not converged in q: the refinement stopped at the limit of {} points, where {body}; D(q) is probably close to singular at some q",
+            c.points
+        ),
+        (_, _) => format!(
+            "the infinite array's flow is not converged in q: doubling the points to {} did not halve the difference, so it is not the quadrature's error alone; {body}; it is probably the integrator's error: tighten --rtol",
+            c.points
+        ),
     }
 }
 

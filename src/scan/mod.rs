@@ -1,12 +1,13 @@
 //! Phase diagrams over a line or a plane of parameters.
 //!
 //! Every grid point is one flow ([`crate::flow::Flow::run`], the same code
-//! as `pinflow flow`). Points are computed in parallel (rayon) a chunk at a
-//! time and appended to the partial file in index order, so the output
-//! bytes do not depend on the number of threads, an interrupted scan can be
-//! resumed, and shards of a scan can be merged. The summary and figures are
-//! built from the finished `points.csv` alone (see [`summary`]), which is
-//! why `merge` needs no model.
+//! as `pinflow flow`; for an infinite array with its quadrature check,
+//! [`crate::flow::check`], whose result ends the row). Points are computed
+//! in parallel (rayon) a chunk at a time and appended to the partial file
+//! in index order, so the output bytes do not depend on the number of
+//! threads, an interrupted scan can be resumed, and shards of a scan can be
+//! merged. The summary and figures are built from the finished `points.csv`
+//! alone (see [`summary`]), which is why `merge` needs no model.
 //!
 //! Memory does not grow with the rows: computing holds one chunk of rows,
 //! resuming reads the partial file in blocks, and the finishing step
@@ -156,7 +157,11 @@ impl<'s> Scan<'s> {
             Err(e) => FlowResult::without_flow(Outcome::Failed, e.to_string()),
         };
         let coords: Vec<f64> = self.slots.iter().map(|&s| point[s]).collect();
-        csv_line(&row_cells(&coords, &result, self.meta.terms.len()))
+        let mut cells = row_cells(&coords, &result, self.meta.terms.len());
+        if self.meta.infinite {
+            cells.extend(quadrature_cells(&result));
+        }
+        csv_line(&cells)
     }
 
     /// Compute every remaining point of `file`, appending chunk by chunk.
@@ -201,6 +206,19 @@ pub fn row_cells(coords: &[f64], r: &FlowResult, listed: usize) -> Vec<String> {
     cells
 }
 
+/// The cells of [`store::QUADRATURE_COLUMNS`] (empty where the flow was
+/// not checked: unphysical and failed points).
+pub fn quadrature_cells(r: &FlowResult) -> Vec<String> {
+    match &r.flow_quadrature {
+        Some(c) => vec![
+            c.points.to_string(),
+            format!("{}", c.worst()),
+            c.converged.to_string(),
+        ],
+        None => vec![String::new(); 3],
+    }
+}
+
 fn make_meta(sys: &System, model_bytes: &[u8], spec: &ScanSpec) -> Meta {
     let terms: Vec<String> = sys.model.terms.iter().map(|t| t.name.clone()).collect();
     let target = sys.model.target();
@@ -221,6 +239,7 @@ fn make_meta(sys: &System, model_bytes: &[u8], spec: &ScanSpec) -> Meta {
         competitors,
         shard: spec.shard,
         points: spec.axes.iter().map(|a| a.n).product(),
+        infinite: sys.is_infinite(),
     };
     // The fingerprint identifies the whole scan, so it leaves out the shard:
     // every shard of one scan (and the unsharded scan) carries the same

@@ -51,6 +51,17 @@ impl Point<'_> {
     pub fn dim0(&self, t: usize) -> f64 {
         self.num(self.axes + 3 + t).unwrap_or(f64::NAN)
     }
+
+    /// Infinite arrays: the flow's quadrature check (points, relative error
+    /// estimate, passed) from the three columns after the `terms` pairs of
+    /// dimension columns; None where the flow was not checked.
+    pub fn quadrature(&self, terms: usize) -> Option<(usize, f64, bool)> {
+        let at = self.axes + 3 + 2 * terms;
+        let points = self.rec.get(at).and_then(|s| s.parse::<usize>().ok())?;
+        let error = self.num(at + 1)?;
+        let passed = self.rec.get(at + 2).and_then(|s| s.parse::<bool>().ok())?;
+        Some((points, error, passed))
+    }
 }
 
 /// Call `each(point)` for every row of a points file, in order.

@@ -39,6 +39,11 @@ pub struct Meta {
     pub shard: Option<(usize, usize)>,
     /// Points in the whole grid.
     pub points: usize,
+    /// An infinite array: rows end with the flow's quadrature check
+    /// (`q_points`, `q_error`, `q_converged`). Left out of the meta line
+    /// when false, so the files of other models are as before.
+    #[serde(default, skip_serializing_if = "std::ops::Not::not")]
+    pub infinite: bool,
 }
 
 impl Meta {
@@ -131,9 +136,18 @@ impl Meta {
         );
         h.extend(self.terms.iter().map(|t| format!("dimension0:{t}")));
         h.extend(self.terms.iter().map(|t| format!("dimension:{t}")));
+        if self.infinite {
+            h.extend(QUADRATURE_COLUMNS.iter().map(|s| s.to_string()));
+        }
         h
     }
 }
+
+/// The last columns of an infinite array's rows: the points of the rule
+/// the flow was carried on, the larger relative error estimate of its
+/// quadrature check (final dimensions, ell*; `inf` when the two flows end
+/// differently) and whether the check passed; empty without a check.
+pub const QUADRATURE_COLUMNS: [&str; 3] = ["q_points", "q_error", "q_converged"];
 
 /// An open file that rows are appended to.
 pub struct RowFile {

@@ -72,10 +72,53 @@ pub struct ScanSummary {
     pub winners: BTreeMap<String, usize>,
     /// Where the target wins (when the model marks one).
     pub target: Option<TargetSummary>,
+    /// Infinite arrays: the flows' quadrature checks over the grid; null
+    /// for other models.
+    pub flow_quadrature: Option<QuadratureSummary>,
     /// Files written.
     pub files: Vec<String>,
     /// Limits of the method.
     pub notes: Vec<String>,
+}
+
+/// The quadrature checks of an infinite array's flows (the columns
+/// `q_points`, `q_error`, `q_converged` of `points.csv`).
+#[derive(Debug, Clone, Serialize)]
+pub struct QuadratureSummary {
+    /// Points whose flow was checked (all but unphysical and failed ones).
+    pub checked: usize,
+    /// Points whose check did not pass.
+    pub not_converged: usize,
+    /// Fewest and most quadrature points a flow was carried on.
+    pub points: [usize; 2],
+    /// Largest relative error estimate (null when infinite: two flows that
+    /// end differently).
+    pub largest_error: f64,
+}
+
+impl QuadratureSummary {
+    fn new() -> QuadratureSummary {
+        QuadratureSummary {
+            checked: 0,
+            not_converged: 0,
+            points: [usize::MAX, 0],
+            largest_error: 0.0,
+        }
+    }
+
+    fn add(&mut self, (points, error, converged): (usize, f64, bool)) {
+        self.checked += 1;
+        self.not_converged += usize::from(!converged);
+        self.points = [self.points[0].min(points), self.points[1].max(points)];
+        self.largest_error = self.largest_error.max(error);
+    }
+
+    fn finish(mut self) -> QuadratureSummary {
+        if self.checked == 0 {
+            self.points = [0, 0];
+        }
+        self
+    }
 }
 
 /// The summary being accumulated over the rows of a points file.
@@ -84,6 +127,9 @@ pub struct Tally {
     outcomes: BTreeMap<String, usize>,
     winners: BTreeMap<String, usize>,
     target: Option<Window>,
+    /// Number of listed terms (the quadrature columns follow theirs).
+    terms: usize,
+    quadrature: Option<QuadratureSummary>,
 }
 
 /// The target's window so far.
@@ -123,6 +169,8 @@ impl Tally {
             outcomes: OUTCOMES.iter().map(|w| (w.to_string(), 0)).collect(),
             winners: BTreeMap::new(),
             target: meta.target.as_ref().map(|t| Window::new(meta, t)),
+            terms: meta.terms.len(),
+            quadrature: meta.infinite.then(QuadratureSummary::new),
         }
     }
 
@@ -136,11 +184,24 @@ impl Tally {
         if let Some(w) = &mut self.target {
             w.add(p);
         }
+        if let Some(q) = &mut self.quadrature {
+            if let Some(check) = p.quadrature(self.terms) {
+                q.add(check);
+            }
+        }
     }
 
     /// The summary of the rows counted.
     pub fn finish(self, meta: &Meta, files: Vec<String>) -> ScanSummary {
         let points = self.points;
+        let flow_quadrature = self.quadrature.map(QuadratureSummary::finish);
+        let mut notes = vec![crate::flow::report::METHOD_NOTE.to_string()];
+        if let Some(q) = flow_quadrature.as_ref().filter(|q| q.not_converged > 0) {
+            notes.push(format!(
+                "at {} of the {} points the infinite array's flow is not converged in q (q_converged = false in points.csv, with q_points and q_error); `pinflow flow` at such a point says why",
+                q.not_converged, q.checked
+            ));
+        }
         ScanSummary {
             model: meta.model.clone(),
             axes: meta.axes.iter().map(|a| a.spec()).collect(),
@@ -148,8 +209,9 @@ impl Tally {
             outcomes: self.outcomes,
             winners: self.winners,
             target: self.target.map(|w| w.finish(meta, points)),
+            flow_quadrature,
             files,
-            notes: vec![crate::flow::report::METHOD_NOTE.to_string()],
+            notes,
         }
     }
 }
@@ -294,6 +356,21 @@ impl Report for ScanSummary {
                     ),
                 ));
             }
+        }
+        if let Some(q) = &self.flow_quadrature {
+            let points = if q.points[0] == q.points[1] {
+                q.points[0].to_string()
+            } else {
+                format!("{} to {}", q.points[0], q.points[1])
+            };
+            let mut s = format!(
+                "checked at {} points: D(q) on {points} points, largest relative error estimate {:.1e}",
+                q.checked, q.largest_error
+            );
+            if q.not_converged > 0 {
+                s.push_str(&format!(", NOT converged at {} points", q.not_converged));
+            }
+            f.push(("flow quadrature".to_string(), s));
         }
         f.push(("files".to_string(), self.files.join(", ")));
         f

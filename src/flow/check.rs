@@ -1,0 +1,295 @@
+//! The infinite array's flow carries D(q) on a quadrature rule that stays
+//! fixed along ell; this module checks that rule a posteriori and refines
+//! it when the check fails.
+//!
+//! Why a check is needed: the rule is chosen before the flow (the rule
+//! that converges the bare dimensions, [`crate::qspace::converge`], or
+//! `q_points`). Along the flow every D(q) follows its own equation
+//! dD(q)/dell = -(1/8) sum_a |y_a|^2 [D L_a L_a^H D - G_a G_a^H] [physics
+//! reference section 4], whose coefficients are trigonometric polynomials
+//! in q; D(q) stays analytic in q, but it can sharpen, and nothing
+//! guarantees that the rule that integrates the bare D(q) still integrates
+//! the renormalised one.
+//!
+//! What is compared: what a flow reports at its end. The total dimension
+//! of every flowing term at ell* (outcomes strong and spinful) or where the
+//! flow ended (gapless, undecided), and ell* itself; and the outcome, the
+//! winner and the set of flowing terms, which must be the same. Errors are
+//! relative: |Delta_N - Delta_M| / Delta_N (Delta > 0 for every term, D
+//! being positive definite), and |ell*_N - ell*_M| / max(ell*_N, 1) (below
+//! ell* = 1 an absolute error, which is the relative error of the gap
+//! estimate e^-ell*). One tolerance serves both (default [`TOLERANCE`],
+//! 1e-6): ell* is about ln(y_strong / y_0) / (2 - Delta), so a relative
+//! error of the rates moves ell* by about the same relative amount.
+//!
+//! How, using the rule's nesting: the refined bare rule has N = 2M points
+//! (a power of two), and the M-point rule is nested in it (q_k on M points
+//! is q_2k on N). The bare refinement stopped at N because M points already
+//! gave every bare dimension to 1e-10, so the M-point rule is a sound rule
+//! for the bare D(q), and its fixed point is a copy of every other point
+//! of the N-point one ([`crate::qspace::QFixedPoint::coarsened`]). The
+//! check flows the same point on M points and compares. When the
+//! difference is above the tolerance, the flow is rerun on 2N points (the
+//! bare fixed point refined, the N points reused), compared with the
+//! N-point flow, and so on, until the difference is within the tolerance,
+//! N reaches the cap (`q_max_points`, default [`crate::qspace::MAX_POINTS`])
+//! or a doubling fails to halve the difference. The periodic trapezoid
+//! rule's error falls geometrically with N for an analytic integrand, so a
+//! difference that does not shrink is not quadrature error: usually it is
+//! the integrator's (both flows carry its error, of the order of `rtol`;
+//! the default rtol 1e-8 is two orders below the tolerance). The flow
+//! reported is the finest one, with its difference from the flow on half
+//! its points as the error estimate: as for the bare rule
+//! ([`crate::qspace::Quadrature`]) an honest and, the error falling
+//! geometrically, in practice generous bound.
+//!
+//! A fixed rule (`q_points` = N) is not refined. It is compared with the
+//! flow on 2N points, and the estimate is twice the difference (a bound on
+//! the N-point error whenever doubling N at least halves it, as in
+//! [`crate::qspace::on_rule`]).
+//!
+//! Cost: a flow costs in proportion to its number of points, so a check
+//! that passes at once costs half a flow more (the M-point flow); a fixed
+//! rule costs two flows more (the 2N-point flow). Each further doubling
+//! costs the new flow. Every flow of a scan is checked in the same way, so
+//! a scan's rows are the numbers `flow` reports at the same point.
+
+use serde::Serialize;
+
+use super::{Flow, FlowResult, Outcome, Start};
+use crate::error::Error;
+use crate::qspace::{QFixedPoint, Quadrature};
+
+/// Default relative tolerance of the check.
+pub const TOLERANCE: f64 = 1e-6;
+
+/// How the rule of the reported flow was chosen.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum RuleChoice {
+    /// From the bare refinement, doubled while the check failed.
+    Refined,
+    /// Given (`--q-points`, `[flow] q_points`): checked, not refined.
+    Fixed,
+}
+
+/// Why the refinement stopped before the check passed.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum StoppedBy {
+    /// The rule reached the most points allowed.
+    Cap,
+    /// Doubling the points did not halve the difference (not quadrature
+    /// error: usually the integrator's).
+    Stalled,
+}
+
+/// The outcome of the check (the `flow_quadrature` object of a flow).
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct QuadratureCheck {
+    /// "refined" or "fixed".
+    pub rule: RuleChoice,
+    /// Points of the rule of the reported flow (also `quadrature.points`).
+    pub points: usize,
+    /// Points of the rule it was compared with (half, or twice for a fixed
+    /// rule).
+    pub compared_with: usize,
+    /// Estimated relative error of the final dimensions: the largest
+    /// |Delta_N - Delta_M| / Delta_N over the flowing terms (twice that for
+    /// a fixed rule).
+    pub dimension_error: f64,
+    /// Estimated error of ell*, relative to max(ell*, 1); null when one of
+    /// the two flows has no ell*.
+    pub ell_star_error: Option<f64>,
+    /// The two flows end the same way: outcome, winner, flowing terms.
+    pub same_outcome: bool,
+    /// The relative tolerance.
+    pub tolerance: f64,
+    /// Same outcome and both estimates within the tolerance.
+    pub converged: bool,
+    /// Doublings of the rule beyond the bare refinement's.
+    pub refinements: usize,
+    /// Why the refinement stopped before converging: "cap" or "stalled";
+    /// null otherwise (and for a fixed rule).
+    pub stopped: Option<StoppedBy>,
+}
+
+impl QuadratureCheck {
+    /// The larger of the two estimates (infinite when the flows end
+    /// differently).
+    pub fn worst(&self) -> f64 {
+        Difference {
+            dims: self.dimension_error,
+            ell_star: self.ell_star_error,
+            same: self.same_outcome,
+        }
+        .worst()
+    }
+}
+
+/// A flow against a reference flow.
+#[derive(Debug, Clone, Copy)]
+struct Difference {
+    dims: f64,
+    ell_star: Option<f64>,
+    same: bool,
+}
+
+impl Difference {
+    /// `a` against the reference `b`.
+    fn of(a: &FlowResult, b: &FlowResult) -> Difference {
+        let names = |r: &FlowResult| r.terms.iter().map(|t| t.name.clone()).collect::<Vec<_>>();
+        let same = a.outcome == b.outcome && a.winner == b.winner && names(a) == names(b);
+        // NaN (a non-finite dimension) stays NaN, and fails the check.
+        let dims = b
+            .terms
+            .iter()
+            .filter_map(|t| {
+                let s = a.terms.iter().find(|s| s.name == t.name)?;
+                Some((s.dimension - t.dimension).abs() / t.dimension.abs())
+            })
+            .fold(0.0, |m: f64, x| if x.is_nan() { x } else { m.max(x) });
+        let ell_star = match (a.ell_star, b.ell_star) {
+            (Some(x), Some(y)) => Some((x - y).abs() / y.abs().max(1.0)),
+            _ => None,
+        };
+        Difference {
+            dims,
+            ell_star,
+            same,
+        }
+    }
+
+    fn scaled(self, f: f64) -> Difference {
+        Difference {
+            dims: f * self.dims,
+            ell_star: self.ell_star.map(|e| f * e),
+            ..self
+        }
+    }
+
+    /// The larger error; infinite when the flows end differently or an
+    /// error is not a number.
+    fn worst(&self) -> f64 {
+        let w = self.dims.max(self.ell_star.unwrap_or(0.0));
+        if self.same && !self.dims.is_nan() && !w.is_nan() {
+            w
+        } else {
+            f64::INFINITY
+        }
+    }
+}
+
+impl Flow<'_> {
+    /// Flow an infinite array from its bare rule `fp` (the start is on it),
+    /// then check the quadrature and, for a rule that was not given,
+    /// refine it while the check fails.
+    pub(super) fn run_checked(
+        &self,
+        point: &[f64],
+        start: Start,
+        fp: QFixedPoint,
+    ) -> Result<FlowResult, Error> {
+        let mut result = self.run_from(point, start, self.opts.record)?;
+        if matches!(result.outcome, Outcome::Failed | Outcome::Unphysical) {
+            return Ok(result);
+        }
+        let check = match self.opts.q_points {
+            Some(n) => {
+                let (finer, quad) = self.sys.q_refined(point, &fp)?;
+                let other = self.flow_on(point, &finer, quad, false)?;
+                let diff = Difference::of(&result, &other).scaled(2.0);
+                self.check(RuleChoice::Fixed, n, finer.points, diff, 0, None)
+            }
+            None => self.refine(point, &mut result, fp)?,
+        };
+        result.flow_quadrature = Some(check);
+        Ok(result)
+    }
+
+    /// The refinement loop of a rule that was not given (module docs).
+    fn refine(
+        &self,
+        point: &[f64],
+        result: &mut FlowResult,
+        mut fp: QFixedPoint,
+    ) -> Result<QuadratureCheck, Error> {
+        let tol = self.opts.q_tolerance;
+        let mut compared_with = 0;
+        let mut diff = Difference {
+            dims: f64::NAN,
+            ell_star: None,
+            same: false,
+        };
+        // The nested rule of half the points; the bare refinement always
+        // ends on an even N, and without one the loop starts by doubling.
+        if let (Some(coarse), Some(quad)) = (fp.coarsened(), result.quadrature) {
+            let other = self.flow_on(point, &coarse, quad, false)?;
+            diff = Difference::of(&other, result);
+            compared_with = coarse.points;
+        }
+        let (mut refinements, mut stopped) = (0, None);
+        let mut previous = f64::INFINITY;
+        while diff.worst() > tol {
+            if fp.points >= self.opts.q_max_points {
+                stopped = Some(StoppedBy::Cap);
+                break;
+            }
+            if refinements > 0 && diff.worst() >= 0.5 * previous {
+                stopped = Some(StoppedBy::Stalled);
+                break;
+            }
+            let (finer, quad) = self.sys.q_refined(point, &fp)?;
+            let next = self.flow_on(point, &finer, quad, self.opts.record)?;
+            previous = diff.worst();
+            diff = Difference::of(result, &next);
+            compared_with = fp.points;
+            *result = next;
+            fp = finer;
+            refinements += 1;
+        }
+        Ok(self.check(
+            RuleChoice::Refined,
+            fp.points,
+            compared_with,
+            diff,
+            refinements,
+            stopped,
+        ))
+    }
+
+    /// The same flow on another rule (its fixed point and quadrature).
+    fn flow_on(
+        &self,
+        point: &[f64],
+        fp: &QFixedPoint,
+        quad: Quadrature,
+        record: bool,
+    ) -> Result<FlowResult, Error> {
+        self.run_from(point, self.on_rule(fp, quad)?, record)
+    }
+
+    fn check(
+        &self,
+        rule: RuleChoice,
+        points: usize,
+        compared_with: usize,
+        diff: Difference,
+        refinements: usize,
+        stopped: Option<StoppedBy>,
+    ) -> QuadratureCheck {
+        let tolerance = self.opts.q_tolerance;
+        QuadratureCheck {
+            rule,
+            points,
+            compared_with,
+            dimension_error: diff.dims,
+            ell_star_error: diff.ell_star,
+            same_outcome: diff.same,
+            tolerance,
+            converged: diff.worst() <= tolerance,
+            refinements,
+            stopped,
+        }
+    }
+}
