@@ -86,31 +86,37 @@ impl Meta {
             .collect()
     }
 
-    /// Check a data row of point `index`: as many cells as the header,
-    /// the point's axis values, a known outcome.
-    fn check_row(&self, line: &str, index: usize) -> Result<(), String> {
-        let mut reader = csv::ReaderBuilder::new()
-            .has_headers(false)
-            .from_reader(line.as_bytes());
-        let rec = reader
-            .records()
-            .next()
-            .and_then(|r| r.ok())
-            .ok_or("not a CSV row")?;
-        let width = self.header().len();
-        if rec.len() != width {
-            return Err(format!("{} cells, expected {width}", rec.len()));
+    /// Check a data row of point `index`: `width` cells (the header's),
+    /// the point's axis values, a known outcome. Rows without quotes (all
+    /// but those with a quoted term name) are split directly; the others go
+    /// through a CSV reader.
+    fn check_row(&self, line: &str, index: usize, width: usize) -> Result<(), String> {
+        let quoted;
+        let cells: Vec<&str> = if line.contains('"') {
+            let mut reader = csv::ReaderBuilder::new()
+                .has_headers(false)
+                .from_reader(line.as_bytes());
+            quoted = reader
+                .records()
+                .next()
+                .and_then(|r| r.ok())
+                .ok_or("not a CSV row")?;
+            quoted.iter().collect()
+        } else {
+            line.split(',').collect()
+        };
+        if cells.len() != width {
+            return Err(format!("{} cells, expected {width}", cells.len()));
         }
         for (j, want) in self.coords_of(index).iter().enumerate() {
-            if rec.get(j) != Some(want.as_str()) {
+            if cells[j] != want.as_str() {
                 return Err(format!(
                     "{} = {}, expected {want}",
-                    self.axes[j].name,
-                    rec.get(j).unwrap_or("")
+                    self.axes[j].name, cells[j]
                 ));
             }
         }
-        let outcome = rec.get(self.axes.len()).unwrap_or("");
+        let outcome = cells[self.axes.len()];
         if !super::summary::OUTCOMES.contains(&outcome) {
             return Err(format!("unknown outcome `{outcome}`"));
         }
@@ -364,6 +370,7 @@ pub fn merge(shards: &[PathBuf], target: &Path) -> Result<Meta, Error> {
         let mut out = std::io::BufWriter::new(File::create(&tmp).map_err(|e| Error::io(&tmp, e))?);
         out.write_all(csv_line(&whole.header()).as_bytes())
             .map_err(|e| Error::io(&tmp, e))?;
+        let width = whole.header().len();
         for index in 0..whole.points {
             let k = index % n;
             let path = &shards[order[k]];
@@ -373,7 +380,7 @@ pub fn merge(shards: &[PathBuf], target: &Path) -> Result<Meta, Error> {
                 .map_err(|e| Error::io(path, e))?;
             let line = line.ok_or_else(|| incomplete(path))?;
             // A damaged row must not reach points.csv.
-            whole.check_row(&line, index).map_err(|why| {
+            whole.check_row(&line, index, width).map_err(|why| {
                 Error::Input(InputError::new(
                     path.display().to_string(),
                     "",
@@ -455,4 +462,53 @@ fn check_shard_set(paths: &[PathBuf], metas: &[Meta]) -> Result<Meta, Error> {
     let mut whole = first.clone();
     whole.shard = None;
     Ok(whole)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn meta() -> Meta {
+        Meta {
+            fingerprint: "f".into(),
+            model: "m".into(),
+            axes: vec![Axis::parse("x=0:1:3").expect("axis")],
+            terms: vec!["a,b".into()],
+            target: None,
+            competitors: vec![],
+            shard: None,
+            points: 3,
+            infinite: false,
+        }
+    }
+
+    #[test]
+    fn rows_are_checked_with_and_without_quoted_cells() {
+        let m = meta();
+        let width = m.header().len();
+        assert_eq!(width, 6, "{:?}", m.header());
+        // Plain row: split directly.
+        assert_eq!(m.check_row("0.5,strong,a,1.5,0.9,0.8", 1, width), Ok(()));
+        // A term name with a comma is quoted; the quoted path counts it as
+        // one cell.
+        assert_eq!(
+            m.check_row("0.5,strong,\"a,b\",1.5,0.9,0.8", 1, width),
+            Ok(())
+        );
+        assert!(m
+            .check_row("0.5,strong,a,b,1.5,0.9,0.8", 1, width)
+            .unwrap_err()
+            .contains("7 cells, expected 6"));
+        assert!(m
+            .check_row("0.5,strong,\"a,b,1.5,0.9,0.8", 1, width)
+            .is_err());
+        assert!(m
+            .check_row("0,strong,a,1.5,0.9,0.8", 1, width)
+            .unwrap_err()
+            .contains("x = 0, expected 0.5"));
+        assert!(m
+            .check_row("0.5,won,a,1.5,0.9,0.8", 1, width)
+            .unwrap_err()
+            .contains("unknown outcome `won`"));
+    }
 }
