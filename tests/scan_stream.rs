@@ -291,7 +291,19 @@ fn streamed_summary_equals_the_summary_of_all_rows() {
         let text = std::fs::read_to_string(out.join("summary.json")).unwrap();
         let mut got: Value = serde_json::from_str(&text).unwrap();
         let obj = got.as_object_mut().unwrap();
-        assert!(obj.remove("files").is_some() && obj.remove("notes").is_some());
+        let notes = obj.remove("notes").expect("notes");
+        assert!(obj.remove("files").is_some());
+        // A negative margin (a more relevant competitor lost) is explained.
+        let negative = got["target"]["margin"]["min"]
+            .as_f64()
+            .is_some_and(|m| m < 0.0);
+        let explained = notes
+            .as_array()
+            .unwrap()
+            .iter()
+            .any(|n| n.as_str().unwrap().contains("lost in the flow"));
+        assert_eq!(negative, explained, "grid {k}: {notes}");
+        let obj = got.as_object_mut().unwrap();
         // A finite model's flows have no quadrature to check.
         assert_eq!(obj.remove("flow_quadrature"), Some(Value::Null));
         // Through the same writer and reader, equal numbers give equal values.

@@ -121,6 +121,20 @@ impl QuadratureSummary {
     }
 }
 
+/// What a negative margin means: the target won although a listed term
+/// that does not commute with it had a lower bare dimension there.
+fn margin_note(t: &TargetSummary) -> Option<String> {
+    let m = t.margin.as_ref().filter(|m| m.min < 0.0)?;
+    Some(format!(
+        "the margin is Delta0(competitor) - Delta0({}) at the points {} wins, against the listed terms that do not commute with it ({}); it is as low as {:.4}: there a competitor is more relevant at tree level and lost in the flow (its momentum mismatch cut it off, or the growth of {} raised its dimension), so the window rests on the flow, not on the bare dimensions",
+        t.name,
+        t.name,
+        t.competitors.join(", "),
+        m.min,
+        t.name
+    ))
+}
+
 /// The summary being accumulated over the rows of a points file.
 pub struct Tally {
     points: usize,
@@ -195,7 +209,11 @@ impl Tally {
     pub fn finish(self, meta: &Meta, files: Vec<String>) -> ScanSummary {
         let points = self.points;
         let flow_quadrature = self.quadrature.map(QuadratureSummary::finish);
+        let target = self.target.map(|w| w.finish(meta, points));
         let mut notes = vec![crate::flow::report::METHOD_NOTE.to_string()];
+        if let Some(t) = target.as_ref() {
+            notes.extend(margin_note(t));
+        }
         if let Some(q) = flow_quadrature.as_ref().filter(|q| q.not_converged > 0) {
             notes.push(format!(
                 "at {} of the {} points the infinite array's flow is not converged in q (q_converged = false in points.csv, with q_points and q_error); `pinflow flow` at such a point says why",
@@ -208,7 +226,7 @@ impl Tally {
             points,
             outcomes: self.outcomes,
             winners: self.winners,
-            target: self.target.map(|w| w.finish(meta, points)),
+            target,
             flow_quadrature,
             files,
             notes,
