@@ -18,6 +18,11 @@
 //! D-orthogonal. (2) A term past its momentum cut-off no longer counts: a
 //! flow whose remaining terms have all decayed is "gapless" even if a
 //! cut-off term was still large when it stopped (it averages out).
+//! (3) The step control measures the local error as a root mean square
+//! over the whole state, the couplings and every stored entry of D. With
+//! many fields or quadrature points the couplings are a small share of that
+//! mean, so their own error may exceed `rtol` by up to
+//! sqrt(state size / couplings); ell* to many digits needs a lower `--rtol`.
 //!
 //! Organisation: [`channels`] builds the exact plan (which couplings can
 //! flow, OPE table), [`background`] stores D, [`rhs`] holds the equations
