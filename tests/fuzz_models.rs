@@ -1192,3 +1192,35 @@ fn regression_v_with_condition_number_1e300_is_refused_quickly() {
     assert!(DimsReport::build(&sys, &[]).is_err());
     assert!(start.elapsed() < Duration::from_secs(2), "refused slowly");
 }
+
+/// Found by the fuzz run (seed 23): an expression with an unterminated
+/// brace, `"E-{"` in a V entry, made the expression parser loop for ever,
+/// so every command hung while reading the model. Characters outside the
+/// expression language are now refused before parsing. A hang fails the
+/// test after 20 s instead of blocking the suite.
+#[test]
+fn regression_unterminated_brace_in_an_expression_is_refused() {
+    let (send, receive) = std::sync::mpsc::channel();
+    std::thread::spawn(move || {
+        let mut messages = Vec::new();
+        for expr in ["E-{", "1-{", "{lambda}", "lambda}", "1 % 2", "2,5", "[1]"] {
+            let text = format!(
+                "[params]\nlambda = 0.3\n[fields]\nK = [[1, 0], [0, -1]]\ncharge = [1, 1]\nV = [[\"1\", \"{expr}\"], [\"{expr}\", \"1\"]]\n"
+            );
+            messages.push((expr, refused(&text)));
+        }
+        let _ = send.send(messages);
+    });
+    let messages = receive
+        .recv_timeout(Duration::from_secs(20))
+        .expect("every expression is refused without hanging");
+    for (expr, msg) in messages {
+        assert!(
+            msg.contains("fields.V[0][1]") && msg.contains("unexpected character"),
+            "{expr}: {msg}"
+        );
+    }
+    // Unicode parameter names are still letters.
+    let text = "[params]\n\"λ\" = 0.3\n[fields]\nK = [[1, 0], [0, -1]]\ncharge = [1, 1]\nV = [[\"1\", \"λ\"], [\"λ\", \"1\"]]\n";
+    assert!(Model::parse(text, "fuzz.toml").is_ok());
+}

@@ -134,6 +134,7 @@ impl Scalar {
         if let Ok(x) = trimmed.parse::<f64>() {
             return Ok(Scalar::Const(x));
         }
+        check_characters(trimmed)?;
         let expr = FlatEx::<f64>::parse(trimmed).map_err(|e| ExprError::Syntax(e.to_string()))?;
         let mut slots = Vec::with_capacity(expr.var_names().len());
         for name in expr.var_names() {
@@ -193,6 +194,21 @@ impl CompiledExpr {
             };
         }
         self.expr.eval(&buf[..self.slots.len()]).unwrap_or(f64::NAN)
+    }
+}
+
+/// Only the characters of the documented expression language reach the
+/// parser: letters, digits, `_`, `.`, spaces, `+ - * / ^` and parentheses.
+/// The parser gives other characters meanings of its own, and an
+/// unterminated `{` (its quoting of unusual names) made it loop for ever.
+fn check_characters(text: &str) -> Result<(), ExprError> {
+    let allowed = |c: char| c.is_alphanumeric() || " \t_.+-*/^()".contains(c);
+    match text.char_indices().find(|&(_, c)| !allowed(c)) {
+        None => Ok(()),
+        Some((i, c)) => Err(ExprError::Syntax(format!(
+            "unexpected character `{c}` at position {} (expressions use numbers, parameter names, + - * / ^, parentheses and the functions sqrt, exp, ln, abs, sin, cos, tan)",
+            text[..i].chars().count() + 1
+        ))),
     }
 }
 
