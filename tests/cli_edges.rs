@@ -348,4 +348,44 @@ allowed_charge = 2
         let r = json(&dir, &[open.to_str().unwrap(), "--pin", "tunnel"]);
         assert!(r["charge_conserved_modulo"].is_null(), "{r}");
     }
+
+    /// An infinite array is handled on its periodic stand-in ring, and the
+    /// ranks there are the ring's: pinning c_j - c_{j+2} (c_j the density
+    /// wave of wire j) on a ring of W wires gaps W - gcd(2, W) pairs
+    /// (derived: j -> j + 2 splits the ring into gcd(2, W) cycles, and each
+    /// cycle keeps its sum free). So 17 wires leave 2 modes and 18 leave 4,
+    /// and the report of an infinite array must say that its counts are
+    /// the stand-in ring's. (Regression: it gave the 17-wire counts, with
+    /// generators of charge 17, as the infinite line's.)
+    #[test]
+    fn an_infinite_array_says_its_counts_are_the_stand_in_rings() {
+        let dir = tmp();
+        let model = |wires: &str| {
+            format!(
+                "[params]\nlambda = 0.3\n[array]\nwires = {wires}\nK = [[1, 0], [0, -1]]\ncharge = [1, 1]\n[array.V]\n0 = [[\"1\", \"lambda\"], [\"lambda\", \"1\"]]\n[[term]]\nname = \"cdw2\"\nparticles = {{ 0 = [1, -1], 2 = [-1, 1] }}\n"
+            )
+        };
+        for (file, wires, gapped, left) in [("r17.toml", "17", 16, 2), ("r18.toml", "18", 16, 4)] {
+            std::fs::write(dir.path().join(file), model(wires)).unwrap();
+            let v = json(&dir, &[file, "--pin", "cdw2"]);
+            assert_eq!(v["gapped_pairs"], gapped, "{file}");
+            assert_eq!(v["gapless_modes"], left, "{file}");
+        }
+        std::fs::write(dir.path().join("line.toml"), model("\"infinite\"")).unwrap();
+        let v = json(&dir, &["line.toml", "--pin", "cdw2"]);
+        let wires = v["wires"].as_u64().expect("the stand-in ring's wires");
+        let notes: Vec<&str> = v["notes"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|n| n.as_str().unwrap())
+            .collect();
+        assert!(
+            notes.iter().any(|n| n.starts_with("infinite array:")
+                && n.contains(&format!("stand-in ring of {wires} wires"))),
+            "{notes:?}"
+        );
+        let text = ok(&dir, &["line.toml", "--pin", "cdw2"]);
+        assert!(text.contains("not of the infinite line"), "{text}");
+    }
 }
