@@ -388,4 +388,46 @@ allowed_charge = 2
         let text = ok(&dir, &["line.toml", "--pin", "cdw2"]);
         assert!(text.contains("not of the infinite line"), "{text}");
     }
+
+    /// The bundled (331) strip: pinning both tunnelling terms leaves the
+    /// Halperin (331) edge at each end, K = +-[[3, 1], [1, 3]], det 8,
+    /// filling +-1/2, quasiparticle group Z_8 [Halperin, Helv. Phys. Acta
+    /// 56, 75 (1983); filling t^T K^-1 t = (3 - 1 - 1 + 3)/8 = 1/2,
+    /// derived]. Both terms have Delta = 3 sqrt((1 + g)/(1 - g)) at s = 1
+    /// (derived in the model's header: the u's are the normal modes and the
+    /// link couples uR with uL as in a Luttinger liquid), 1.5 at g = -0.6.
+    #[test]
+    fn the_331_strip_leaves_the_331_edges() {
+        let dir = tmp();
+        let m = Path::new(env!("CARGO_MANIFEST_DIR")).join("flows/halperin_331_strip.toml");
+        let m = m.to_str().unwrap();
+        let v = json(&dir, &[m, "--pin", "t_up", "--pin", "t_dn"]);
+        assert_eq!(v["fully_gapped"], true);
+        let edges = v["edges"].as_array().unwrap();
+        assert_eq!(edges.len(), 2);
+        for (e, sign) in edges.iter().zip([-1i64, 1]) {
+            let k: Vec<Vec<i64>> = serde_json::from_value(e["k_matrix"].clone()).unwrap();
+            assert_eq!(k.len(), 2);
+            let det = k[0][0] * k[1][1] - k[0][1] * k[1][0];
+            assert_eq!(det, 8, "{k:?}");
+            assert_eq!(e["abs_det"], 8);
+            assert_eq!(e["group"], "Z_8");
+            let expect = if sign > 0 { "1/2" } else { "-1/2" };
+            assert_eq!(e["filling"], expect);
+            let sig = if sign > 0 { [2, 0] } else { [0, 2] };
+            assert_eq!(e["signature"], serde_json::json!(sig));
+        }
+        let out = pinflow(&dir)
+            .args(["dims", m, "--set", "g=-0.6", "--format", "json"])
+            .assert()
+            .code(0)
+            .get_output()
+            .stdout
+            .clone();
+        let d: Value = serde_json::from_slice(&out).unwrap();
+        for t in &d["terms"].as_array().unwrap()[..2] {
+            let delta = t["dimension"].as_f64().unwrap();
+            assert!((delta - 1.5).abs() < 1e-12, "{}: {delta}", t["name"]);
+        }
+    }
 }
