@@ -348,4 +348,86 @@ allowed_charge = 2
         let r = json(&dir, &[open.to_str().unwrap(), "--pin", "tunnel"]);
         assert!(r["charge_conserved_modulo"].is_null(), "{r}");
     }
+
+    /// An infinite array is handled on its periodic stand-in ring, and the
+    /// ranks there are the ring's: pinning c_j - c_{j+2} (c_j the density
+    /// wave of wire j) on a ring of W wires gaps W - gcd(2, W) pairs
+    /// (derived: j -> j + 2 splits the ring into gcd(2, W) cycles, and each
+    /// cycle keeps its sum free). So 17 wires leave 2 modes and 18 leave 4,
+    /// and the report of an infinite array must say that its counts are
+    /// the stand-in ring's. (Regression: it gave the 17-wire counts, with
+    /// generators of charge 17, as the infinite line's.)
+    #[test]
+    fn an_infinite_array_says_its_counts_are_the_stand_in_rings() {
+        let dir = tmp();
+        let model = |wires: &str| {
+            format!(
+                "[params]\nlambda = 0.3\n[array]\nwires = {wires}\nK = [[1, 0], [0, -1]]\ncharge = [1, 1]\n[array.V]\n0 = [[\"1\", \"lambda\"], [\"lambda\", \"1\"]]\n[[term]]\nname = \"cdw2\"\nparticles = {{ 0 = [1, -1], 2 = [-1, 1] }}\n"
+            )
+        };
+        for (file, wires, gapped, left) in [("r17.toml", "17", 16, 2), ("r18.toml", "18", 16, 4)] {
+            std::fs::write(dir.path().join(file), model(wires)).unwrap();
+            let v = json(&dir, &[file, "--pin", "cdw2"]);
+            assert_eq!(v["gapped_pairs"], gapped, "{file}");
+            assert_eq!(v["gapless_modes"], left, "{file}");
+        }
+        std::fs::write(dir.path().join("line.toml"), model("\"infinite\"")).unwrap();
+        let v = json(&dir, &["line.toml", "--pin", "cdw2"]);
+        let wires = v["wires"].as_u64().expect("the stand-in ring's wires");
+        let notes: Vec<&str> = v["notes"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|n| n.as_str().unwrap())
+            .collect();
+        assert!(
+            notes.iter().any(|n| n.starts_with("infinite array:")
+                && n.contains(&format!("stand-in ring of {wires} wires"))),
+            "{notes:?}"
+        );
+        let text = ok(&dir, &["line.toml", "--pin", "cdw2"]);
+        assert!(text.contains("not of the infinite line"), "{text}");
+    }
+
+    /// The bundled (331) strip: pinning both tunnelling terms leaves the
+    /// Halperin (331) edge at each end, K = +-[[3, 1], [1, 3]], det 8,
+    /// filling +-1/2, quasiparticle group Z_8 [Halperin, Helv. Phys. Acta
+    /// 56, 75 (1983); filling t^T K^-1 t = (3 - 1 - 1 + 3)/8 = 1/2,
+    /// derived]. Both terms have Delta = 3 sqrt((1 + g)/(1 - g)) at s = 1
+    /// (derived in the model's header: the u's are the normal modes and the
+    /// link couples uR with uL as in a Luttinger liquid), 1.5 at g = -0.6.
+    #[test]
+    fn the_331_strip_leaves_the_331_edges() {
+        let dir = tmp();
+        let m = Path::new(env!("CARGO_MANIFEST_DIR")).join("flows/halperin_331_strip.toml");
+        let m = m.to_str().unwrap();
+        let v = json(&dir, &[m, "--pin", "t_up", "--pin", "t_dn"]);
+        assert_eq!(v["fully_gapped"], true);
+        let edges = v["edges"].as_array().unwrap();
+        assert_eq!(edges.len(), 2);
+        for (e, sign) in edges.iter().zip([-1i64, 1]) {
+            let k: Vec<Vec<i64>> = serde_json::from_value(e["k_matrix"].clone()).unwrap();
+            assert_eq!(k.len(), 2);
+            let det = k[0][0] * k[1][1] - k[0][1] * k[1][0];
+            assert_eq!(det, 8, "{k:?}");
+            assert_eq!(e["abs_det"], 8);
+            assert_eq!(e["group"], "Z_8");
+            let expect = if sign > 0 { "1/2" } else { "-1/2" };
+            assert_eq!(e["filling"], expect);
+            let sig = if sign > 0 { [2, 0] } else { [0, 2] };
+            assert_eq!(e["signature"], serde_json::json!(sig));
+        }
+        let out = pinflow(&dir)
+            .args(["dims", m, "--set", "g=-0.6", "--format", "json"])
+            .assert()
+            .code(0)
+            .get_output()
+            .stdout
+            .clone();
+        let d: Value = serde_json::from_slice(&out).unwrap();
+        for t in &d["terms"].as_array().unwrap()[..2] {
+            let delta = t["dimension"].as_f64().unwrap();
+            assert!((delta - 1.5).abs() < 1e-12, "{}: {delta}", t["name"]);
+        }
+    }
 }

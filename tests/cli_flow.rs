@@ -347,3 +347,104 @@ fn a_step_limit_from_the_model_file_ends_the_flow_as_failed() {
         .assert()
         .success();
 }
+
+/// An open array does not wrap: a generated term built from a translate one
+/// wire to the left of its parent's representative is named with shift -1.
+/// (Regression: the shift was counted modulo W, so the 8-wire strip showed
+/// `tunnel+tunnel@7`, a shift no open array of 8 wires can hold.) The
+/// parents of the generated terms of the strip are two-wire terms, so
+/// derived: every shift s that exists satisfies |s| <= W - 2 = 6 and the
+/// two commuting overlapping translates of `tunnel` are at s = +1 or -1.
+#[test]
+fn generated_terms_on_an_open_array_name_signed_shifts() {
+    let v = flow_json(&[
+        demo("laughlin_third_strip.toml").to_str().unwrap(),
+        "--set",
+        "g=0.9",
+    ]);
+    let mut shifts = Vec::new();
+    for t in v["terms"].as_array().unwrap() {
+        let name = t["name"].as_str().unwrap();
+        if let Some((_, s)) = name.split_once('@') {
+            let s: i64 = s.parse().unwrap();
+            assert!(s.abs() <= 6, "{name}: shift past the open strip");
+            let parents = t["parents"].as_str().unwrap();
+            assert!(
+                parents.ends_with(&format!("shifted by {s} wires")),
+                "{name}: {parents}"
+            );
+            shifts.push(s);
+        }
+    }
+    assert!(shifts.contains(&-1), "no term with shift -1: {shifts:?}");
+    assert!(v["terms"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .any(|t| t["name"] == "tunnel+tunnel@-1"));
+}
+
+/// `--format csv` is for machines: the term column holds the plain name
+/// (the winner is a `winner` column), numbers are the JSON values in
+/// shortest round-trip form, and a missing momentum is an empty cell.
+/// (Regression: the CSV was the text table, with "tunnel (winner)", five
+/// significant digits and "-".)
+#[test]
+fn flow_csv_is_machine_readable() {
+    let m = demo("laughlin_third.toml");
+    let v = flow_json(&[m.to_str().unwrap(), "--set", "g=0.8"]);
+    let out = pinflow()
+        .arg("flow")
+        .arg(&m)
+        .args(["--set", "g=0.8", "--format", "csv"])
+        .assert()
+        .success()
+        .get_output()
+        .stdout
+        .clone();
+    let csv = String::from_utf8(out).unwrap();
+    let mut lines = csv.lines();
+    assert_eq!(
+        lines.next().unwrap(),
+        "term,origin,spin,y0,Delta0,y,Delta,k,ell_k,winner"
+    );
+    let terms = v["terms"].as_array().unwrap();
+    let rows: Vec<Vec<String>> = lines
+        .filter(|l| !l.is_empty())
+        .map(|l| l.split(',').map(str::to_string).collect())
+        .collect();
+    assert_eq!(rows.len(), terms.len());
+    let mut winners = 0;
+    for (row, t) in rows.iter().zip(terms) {
+        assert_eq!(row[0], t["name"].as_str().unwrap());
+        for (col, key) in [
+            (3, "coupling0"),
+            (4, "dimension0"),
+            (5, "coupling"),
+            (6, "dimension"),
+        ] {
+            same(&row[col], &t[key], key);
+        }
+        match t["ell_k"].as_f64() {
+            Some(_) => same(&row[8], &t["ell_k"], "ell_k"),
+            None => assert_eq!(row[8], ""),
+        }
+        let winner = v["winner"].as_str() == t["name"].as_str();
+        assert_eq!(row[9], winner.to_string());
+        winners += winner as usize;
+    }
+    assert_eq!(winners, 1, "the demo at g=0.8 has one winner");
+}
+
+/// A CSV cell holds the full double: it agrees with the JSON value to the
+/// last bit up to serde_json's own parsing, which (without its
+/// `float_roundtrip` feature) may be one unit in the last place off.
+fn same(cell: &str, json: &Value, key: &str) {
+    let a: f64 = cell.parse().unwrap();
+    let b = json.as_f64().unwrap();
+    assert!(
+        (a - b).abs() <= 2.0 * f64::EPSILON * b.abs(),
+        "{key}: CSV {cell}, JSON {b}"
+    );
+    assert!(cell.len() > 8 || a == b, "{key}: {cell} looks rounded");
+}

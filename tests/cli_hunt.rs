@@ -350,4 +350,27 @@ mod search {
             "{text}"
         );
     }
+
+    /// Without momenta in the model nothing is filtered by momentum, and
+    /// the filters line says so (a 2k_F backscattering term would otherwise
+    /// read as allowed). With momenta the line names the check instead.
+    #[test]
+    fn the_filters_say_when_momentum_is_not_checked() {
+        let free = hunt_ok(&flow("sliding_array.toml"), &[]);
+        let line = free
+            .lines()
+            .find(|l| l.trim_start().starts_with("filters"))
+            .expect("a filters line");
+        assert!(
+            line.contains("momentum not checked (the model gives no momenta)"),
+            "{line}"
+        );
+        let with = hunt_ok(&flow("laughlin_third.toml"), &[]);
+        let line = with
+            .lines()
+            .find(|l| l.trim_start().starts_with("filters"))
+            .expect("a filters line");
+        assert!(line.contains("momentum conserved"), "{line}");
+        assert!(!line.contains("not checked"), "{line}");
+    }
 }

@@ -379,6 +379,19 @@ fn cases() -> Vec<Case> {
             "error: command line: --rtol: expected a relative tolerance from 1e-14 (double precision) to below 1, found 1e-15"),
         case("E84", base(), "flow wire.toml --max-steps 0", 2,
             "error: command line: --max-steps: expected a whole number of steps from 1 to 1000000000, found 0"),
+        // ------------------------------------------------ edges: what can pin
+        case("E85", base(), "edges wire.toml --set lambda=-0.8", 2,
+            "error: command line: --pin: no term pins at lambda=-0.8: the flow ends with outcome \"gapless\" (no null term reaches strong coupling); name the terms to pin with --pin NAME"),
+        case("E86", wire(term, "particles = [1, 0]\n"), "edges wire.toml --pin backscatter", 2,
+            "error: command line: --pin: term \"backscatter\" is not null: its conformal spin (1/2) l.K^-1 l is 1/2, not 0; only null terms can pin"),
+        case("E87",
+            vec![("wire.toml", with(&with(WIRE, term, "vector = [1, 1]\n"), "K = [[1, 0], [0, -1]]", "K = [[3, 0], [0, -3]]"))],
+            "edges wire.toml", 2,
+            "error: wire.toml: term \"backscatter\": wins the flow but cannot pin: term \"backscatter\" is not local: its particle content K^-1 l = (1/3, -1/3) is not integral, so it is not built from particles and cannot pin; name the terms to pin with --pin NAME"),
+        case("E88", ring("wires = 8\n", "wires = 8\nboundary = \"open\"\n"), "edges ring.toml --pin tunnel --window 8", 2,
+            "error: command line: --window: a window of 8 wires covers the whole array of 8 wires; it must be smaller (without --window the default of 2 wires is used, and the whole strip is always reported)"),
+        case("E89", ring("wires = 8\n", "wires = 8\nboundary = \"open\"\n"), "edges ring.toml --pin tunnel --window 0", 2,
+            "error: command line: --window: a window must hold at least 1 wire"),
     ];
     c.sort_by_key(|c| c.id);
     c
@@ -595,4 +608,9 @@ entries! {
     e82_integration_failed => "E82",
     e83_rtol_beyond_double_precision => "E83",
     e84_step_limit_out_of_range => "E84",
+    e85_nothing_pins => "E85",
+    e86_pin_not_null => "E86",
+    e87_winner_not_local => "E87",
+    e88_window_whole_array => "E88",
+    e89_window_empty => "E89",
 }

@@ -159,10 +159,20 @@ pub fn from_flow(sys: &System, point: &[f64], opts: FlowOptions) -> Result<Selec
         None => Rational::zero(),
     };
     let key = format!("term \"{winner}\"");
-    let first = prepare(sys, &winner, &channel.family, &extra)
-        .map_err(|m| InputError::new(file, &key, format!("wins the flow but cannot pin: {m}")))?;
-    check_pair(sys, &first, &first)
-        .map_err(|m| InputError::new(file, &key, format!("wins the flow but cannot pin: {m}")))?;
+    let first = prepare(sys, &winner, &channel.family, &extra).map_err(|m| {
+        InputError::new(
+            file,
+            &key,
+            format!("wins the flow but cannot pin: {m}; name the terms to pin with --pin NAME"),
+        )
+    })?;
+    check_pair(sys, &first, &first).map_err(|m| {
+        InputError::new(
+            file,
+            &key,
+            format!("wins the flow but cannot pin: {m}; name the terms to pin with --pin NAME"),
+        )
+    })?;
     let mut pinned = vec![first];
     let mut skipped = Vec::new();
     for (i, spec) in sys.model.terms.iter().enumerate() {

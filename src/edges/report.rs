@@ -221,6 +221,21 @@ impl EdgesReport {
         notes.push(format!(
             "K matrices are Gram matrices n^T K n' of the particle vectors that commute with every pinned term, modulo the pinned ones, in a reduced basis; {invariant} do not depend on that basis."
         ));
+        if matches!(
+            sys.model.structure,
+            crate::model::Structure::Array {
+                wires: crate::model::Wires::Infinite,
+                ..
+            }
+        ) {
+            // The stand-in ring is exact for per-term and pairwise data, not
+            // for ranks: pinning l_j - l_{j+2} on a ring of W wires leaves
+            // one global mode for odd W and two for even W.
+            notes.push(format!(
+                "infinite array: the counts and the bulk theory are those of the periodic stand-in ring of {} wires, not of the infinite line. Modes left that spread over every wire of the ring (their charges grow with the ring) stand for a few q points of the line, a set of measure zero, and their number can depend on the ring's size (a term that skips wires pins odd and even rings differently); check a result that matters on periodic arrays of a few sizes.",
+                lat.wires,
+            ));
+        }
         EdgesReport {
             model: sys.model.name.clone(),
             parameters,

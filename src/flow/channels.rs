@@ -39,8 +39,11 @@ pub enum Origin {
         sign: i8,
         /// Second parent (channel index).
         b: usize,
-        /// Wire shift of b's translate relative to a's representative.
-        shift: usize,
+        /// Wire shift of b's translate relative to a's representative, as
+        /// shown in names: on a ring modulo W (0..W); on an open array the
+        /// signed difference of the anchors (an open array does not wrap);
+        /// on the stand-in of an infinite array the shift on the line.
+        shift: i64,
     },
 }
 
@@ -200,14 +203,7 @@ impl Plan {
                         let Some(fam) = family_of(lat, &v) else {
                             continue;
                         };
-                        let shift = (tb.anchor + lat.wires - rep_a.anchor) % lat.wires.max(1);
-                        // On the stand-in of an infinite array a shift past
-                        // half the ring is a negative shift on the line.
-                        let shown = if lat.infinite && 2 * shift > lat.wires {
-                            shift as i64 - lat.wires as i64
-                        } else {
-                            shift as i64
-                        };
+                        let shown = shown_shift(lat, rep_a.anchor, tb.anchor);
                         let name = generated_name(
                             &self.channels[a].name,
                             sign,
@@ -218,13 +214,41 @@ impl Plan {
                         let spin = &self.channels[a].spin + &self.channels[b].spin;
                         let c = self.channels.len();
                         index.add(c, &fam);
-                        let origin = Origin::Generated { a, sign, b, shift };
+                        let origin = Origin::Generated {
+                            a,
+                            sign,
+                            b,
+                            shift: shown,
+                        };
                         self.channels
                             .push(make_channel(sys, name, origin, fam, spin));
                     }
                 }
             }
         }
+    }
+}
+
+/// The shift of b's translate (anchored at `b`) relative to a's
+/// representative (anchored at `a`) as names show it. A ring counts it
+/// modulo W. An open array does not wrap: a translate left of the
+/// representative is a negative shift (counting it modulo W would name a
+/// shift by W - 1 wires, which an open array of W wires cannot hold). On
+/// the stand-in ring of an infinite array a shift past half the ring is a
+/// negative shift on the line.
+pub fn shown_shift(lat: &Lattice, a: usize, b: usize) -> i64 {
+    let w = lat.wires.max(1);
+    let shift = (b + w - a) % w;
+    if lat.infinite {
+        if 2 * shift > w {
+            shift as i64 - w as i64
+        } else {
+            shift as i64
+        }
+    } else if lat.boundary == Some(Boundary::Open) {
+        b as i64 - a as i64
+    } else {
+        shift as i64
     }
 }
 

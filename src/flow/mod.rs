@@ -424,7 +424,7 @@ impl<'s> Flow<'s> {
                         "generated"
                     }
                     .to_string(),
-                    parents: parents_of(&self.plan, ch, &self.sys.lattice),
+                    parents: parents_of(&self.plan, ch),
                     coupling0: y0,
                     phase0: chi0,
                     dimension0: rhs.dimension(y_start.as_slice(), i),
@@ -525,17 +525,12 @@ fn extra_of(ch: &Channel, extra_listed: &[f64]) -> f64 {
     }
 }
 
-fn parents_of(plan: &Plan, ch: &Channel, lat: &crate::lattice::Lattice) -> Option<String> {
+fn parents_of(plan: &Plan, ch: &Channel) -> Option<String> {
     match ch.origin {
         Origin::Listed(_) => None,
         Origin::Generated { a, sign, b, shift } => {
-            // The stand-in ring of an infinite array: past half the ring is
-            // a negative shift on the line.
-            let shift = if lat.infinite && 2 * shift > lat.wires {
-                shift as i64 - lat.wires as i64
-            } else {
-                shift as i64
-            };
+            // `shift` is already the shown one (signed on open arrays and
+            // on the line of an infinite array; see `channels::shown_shift`).
             let op = if sign > 0 { "+" } else { "-" };
             let (na, nb) = (&plan.channels[a].name, &plan.channels[b].name);
             Some(if shift == 0 {

@@ -145,6 +145,40 @@ impl FlowReport {
     }
 }
 
+impl FlowReport {
+    /// The table for people (text, Markdown, LaTeX): the winner marked on
+    /// its name, numbers rounded, "-" where a term has no momentum.
+    fn people_table(&self) -> Table {
+        let mut t = Table::new(
+            "terms (start -> end of the flow)",
+            &[
+                "term", "origin", "spin", "y0", "Delta0", "y", "Delta", "k", "ell_k",
+            ],
+        );
+        for c in &self.result.terms {
+            let mark = if self.result.winner.as_deref() == Some(c.name.as_str()) {
+                " (winner)"
+            } else {
+                ""
+            };
+            t.push(vec![
+                format!("{}{mark}", c.name),
+                c.parents
+                    .clone()
+                    .map_or(c.origin.clone(), |p| p.to_string()),
+                c.spin.clone(),
+                format!("{:.4e}", c.coupling0),
+                format!("{:.6}", c.dimension0),
+                format!("{:.4e}", c.coupling),
+                format!("{:.6}", c.dimension),
+                c.momentum.map_or("-".into(), |k| format!("{k:.4}")),
+                c.ell_k.map_or("-".into(), |l| format!("{l:.3}")),
+            ]);
+        }
+        t
+    }
+}
+
 impl Report for FlowReport {
     fn title(&self) -> String {
         format!("RG flow: {}", self.model)
@@ -203,34 +237,34 @@ impl Report for FlowReport {
     }
 
     fn tables(&self) -> Vec<Table> {
-        vec![self.csv_table()]
+        vec![self.people_table()]
     }
 
+    /// The machine-readable table: plain term names (the winner is the
+    /// `winner` column, not a mark on the name), numbers in the shortest
+    /// round-trip form, and an empty cell where a term has no momentum.
     fn csv_table(&self) -> Table {
         let mut t = Table::new(
             "terms (start -> end of the flow)",
             &[
-                "term", "origin", "spin", "y0", "Delta0", "y", "Delta", "k", "ell_k",
+                "term", "origin", "spin", "y0", "Delta0", "y", "Delta", "k", "ell_k", "winner",
             ],
         );
         for c in &self.result.terms {
-            let mark = if self.result.winner.as_deref() == Some(c.name.as_str()) {
-                " (winner)"
-            } else {
-                ""
-            };
+            let winner = self.result.winner.as_deref() == Some(c.name.as_str());
             t.push(vec![
-                format!("{}{mark}", c.name),
+                c.name.clone(),
                 c.parents
                     .clone()
                     .map_or(c.origin.clone(), |p| p.to_string()),
                 c.spin.clone(),
-                format!("{:.4e}", c.coupling0),
-                format!("{:.6}", c.dimension0),
-                format!("{:.4e}", c.coupling),
-                format!("{:.6}", c.dimension),
-                c.momentum.map_or("-".into(), |k| format!("{k:.4}")),
-                c.ell_k.map_or("-".into(), |l| format!("{l:.3}")),
+                format!("{}", c.coupling0),
+                format!("{}", c.dimension0),
+                format!("{}", c.coupling),
+                format!("{}", c.dimension),
+                c.momentum.map_or(String::new(), |k| format!("{k}")),
+                c.ell_k.map_or(String::new(), |l| format!("{l}")),
+                winner.to_string(),
             ]);
         }
         t

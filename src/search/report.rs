@@ -439,7 +439,10 @@ impl Report for HuntReport {
                 filters.push(format!("momentum conserved (|k| < {tol:.0e})"))
             }
             (Some(_), _) => filters.push("any momentum".into()),
-            _ => {}
+            // No momenta in the model: nothing is filtered by momentum, so
+            // a 2k_F backscattering term is listed as if it were
+            // commensurate. Say so where the filters are listed.
+            _ => filters.push("momentum not checked (the model gives no momenta)".into()),
         }
         vec![
             ("parameters".into(), params),
