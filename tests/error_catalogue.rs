@@ -392,6 +392,9 @@ fn cases() -> Vec<Case> {
             "error: command line: --window: a window of 8 wires covers the whole array of 8 wires; it must be smaller (without --window the default of 2 wires is used, and the whole strip is always reported)"),
         case("E89", ring("wires = 8\n", "wires = 8\nboundary = \"open\"\n"), "edges ring.toml --pin tunnel --window 0", 2,
             "error: command line: --window: a window must hold at least 1 wire"),
+        // ------------------------------------------------ expressions (cont.)
+        case("E90", wire(term, "particles = [1, -1]\ncoupling = \"0.1 * {lambda}\"\n"), "dims wire.toml", 2,
+            "error: wire.toml: term \"backscatter\".coupling: \"0.1 * {lambda}\": cannot parse expression: unexpected character `{` at position 7 (expressions use numbers, parameter names, + - * / ^, parentheses and the functions sqrt, exp, ln, abs, sin, cos, tan)"),
     ];
     c.sort_by_key(|c| c.id);
     c
@@ -613,4 +616,5 @@ entries! {
     e87_winner_not_local => "E87",
     e88_window_whole_array => "E88",
     e89_window_empty => "E89",
+    e90_character_outside_expressions => "E90",
 }
