@@ -489,7 +489,7 @@ impl DimsReport {
                 compact_vector(&r.particles_exact),
                 compact_vector(&r.vector.iter().map(|x| x.to_string()).collect::<Vec<_>>()),
                 format!("{:.6}", r.dimension),
-                format!("{:+.6}", r.rg_eigenvalue),
+                crate::output::signed_fixed(r.rg_eigenvalue, 6),
                 r.spin.clone(),
                 format!("{:.6}", r.h),
                 format!("{:.6}", r.hbar),

@@ -416,6 +416,11 @@ allowed_charge = 2
             assert_eq!(e["filling"], expect);
             let sig = if sign > 0 { [2, 0] } else { [0, 2] };
             assert_eq!(e["signature"], serde_json::json!(sig));
+            // The trivial type heads the table, even where another type
+            // has charge 0 and spin 0 modulo 1/2 too (l K^-1 l = 1 for
+            // l = (-1, 1): spin 1/2).
+            let first = &e["quasiparticles"][0];
+            assert_eq!(first["l"], serde_json::json!([0, 0]), "{first}");
         }
         let out = pinflow(&dir)
             .args(["dims", m, "--set", "g=-0.6", "--format", "json"])

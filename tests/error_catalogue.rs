@@ -387,7 +387,7 @@ fn cases() -> Vec<Case> {
         case("E87",
             vec![("wire.toml", with(&with(WIRE, term, "vector = [1, 1]\n"), "K = [[1, 0], [0, -1]]", "K = [[3, 0], [0, -3]]"))],
             "edges wire.toml", 2,
-            "error: wire.toml: term \"backscatter\": wins the flow but cannot pin: term \"backscatter\" is not local: its particle content K^-1 l = (1/3, -1/3) is not integral, so it is not built from particles and cannot pin; name the terms to pin with --pin NAME"),
+            "error: wire.toml: term \"backscatter\": wins the flow but cannot pin: it is not local: its particle content K^-1 l = (1/3, -1/3) is not integral, so it is not built from particles and cannot pin; name the terms to pin with --pin NAME"),
         case("E88", ring("wires = 8\n", "wires = 8\nboundary = \"open\"\n"), "edges ring.toml --pin tunnel --window 8", 2,
             "error: command line: --window: a window of 8 wires covers the whole array of 8 wires; it must be smaller (without --window the default of 2 wires is used, and the whole strip is always reported)"),
         case("E89", ring("wires = 8\n", "wires = 8\nboundary = \"open\"\n"), "edges ring.toml --pin tunnel --window 0", 2,

@@ -159,20 +159,10 @@ pub fn from_flow(sys: &System, point: &[f64], opts: FlowOptions) -> Result<Selec
         None => Rational::zero(),
     };
     let key = format!("term \"{winner}\"");
-    let first = prepare(sys, &winner, &channel.family, &extra).map_err(|m| {
-        InputError::new(
-            file,
-            &key,
-            format!("wins the flow but cannot pin: {m}; name the terms to pin with --pin NAME"),
-        )
-    })?;
-    check_pair(sys, &first, &first).map_err(|m| {
-        InputError::new(
-            file,
-            &key,
-            format!("wins the flow but cannot pin: {m}; name the terms to pin with --pin NAME"),
-        )
-    })?;
+    let first = prepare(sys, &winner, &channel.family, &extra)
+        .map_err(|m| InputError::new(file, &key, cannot_pin(&winner, m)))?;
+    check_pair(sys, &first, &first)
+        .map_err(|m| InputError::new(file, &key, cannot_pin(&winner, m)))?;
     let mut pinned = vec![first];
     let mut skipped = Vec::new();
     for (i, spec) in sys.model.terms.iter().enumerate() {
@@ -327,4 +317,14 @@ pub fn support(lat: &Lattice, l: &[i64]) -> ((usize, usize), usize) {
 
 fn integers(m: &[Rational]) -> Option<Vec<BigInt>> {
     exact::is_integral(m).then(|| m.iter().map(|r| r.to_integer()).collect())
+}
+
+/// Why the flow's winner cannot pin, without naming it twice (the key
+/// already names it).
+fn cannot_pin(winner: &str, why: String) -> String {
+    let why = match why.strip_prefix(&format!("term \"{winner}\" ")) {
+        Some(rest) => format!("it {rest}"),
+        None => why,
+    };
+    format!("wins the flow but cannot pin: {why}; name the terms to pin with --pin NAME")
 }

@@ -275,8 +275,15 @@ pub fn invariants(k: &ZMat, t: &[BigInt]) -> Invariants {
         quasiparticles.push(make(vec![BigInt::zero(); d]));
         quasiparticles.extend(gens.into_iter().map(make));
     }
+    // The trivial type first, then by charge and spin modulo their periods.
+    let nontrivial = |q: &Quasiparticle| q.l.iter().any(|x| !x.is_zero());
     quasiparticles.sort_by(|x, y| {
-        (&x.charge_mod, &x.spin_mod, &x.l).cmp(&(&y.charge_mod, &y.spin_mod, &y.l))
+        (nontrivial(x), &x.charge_mod, &x.spin_mod, &x.l).cmp(&(
+            nontrivial(y),
+            &y.charge_mod,
+            &y.spin_mod,
+            &y.l,
+        ))
     });
     Invariants {
         det,

@@ -5,7 +5,7 @@ use std::path::Path;
 
 use serde::Serialize;
 
-use super::{FlowOptions, FlowResult, Outcome, QuadratureCheck, RuleChoice, StoppedBy};
+use super::{Closure, FlowOptions, FlowResult, Outcome, QuadratureCheck, RuleChoice, StoppedBy};
 use crate::error::Error;
 use crate::output::{self, Report, Table};
 
@@ -206,11 +206,13 @@ impl Report for FlowReport {
         f.push((
             "options".to_string(),
             format!(
-                "ell_max={}, y_strong={}, closure={} (bound {}), rtol={:e}",
+                "ell_max={}, y_strong={}, closure={}, rtol={:e}",
                 self.options.ell_max,
                 self.options.y_strong,
-                self.options.closure.word(),
-                self.options.closure_bound,
+                match self.options.closure {
+                    Closure::Pairs => format!("pairs (bound {})", self.options.closure_bound),
+                    Closure::None => "none".to_string(),
+                },
                 self.options.rtol
             ),
         ));

@@ -122,6 +122,18 @@ pub fn short(x: f64) -> String {
     }
 }
 
+/// `x` with an explicit sign and `digits` decimals, for RG eigenvalues
+/// 2 - Delta: a value that rounds to zero is shown as `0.000000`, not as
+/// `-0.000000` (Delta = 2 computed as 2 + 1e-16).
+pub fn signed_fixed(x: f64, digits: usize) -> String {
+    let s = format!("{x:+.digits$}");
+    if s[1..].chars().all(|c| c == '0' || c == '.') {
+        s[1..].to_string()
+    } else {
+        s
+    }
+}
+
 /// Pretty JSON with a trailing newline.
 pub fn to_json<T: Serialize>(value: &T) -> Result<String, Error> {
     let mut s = serde_json::to_string_pretty(value)
@@ -203,4 +215,19 @@ pub fn temp_path(path: &Path) -> std::path::PathBuf {
         .map(|n| n.to_string_lossy().to_string())
         .unwrap_or_default();
     path.with_file_name(format!(".{name}.partial"))
+}
+
+#[cfg(test)]
+mod signed_tests {
+    use super::signed_fixed;
+
+    #[test]
+    fn values_that_round_to_zero_have_no_sign() {
+        assert_eq!(signed_fixed(2.0 - (2.0 + 1e-15), 6), "0.000000");
+        assert_eq!(signed_fixed(0.0, 6), "0.000000");
+        assert_eq!(signed_fixed(-4e-7, 6), "0.000000");
+        assert_eq!(signed_fixed(-6e-7, 6), "-0.000001");
+        assert_eq!(signed_fixed(1.0, 6), "+1.000000");
+        assert_eq!(signed_fixed(-0.4444444, 6), "-0.444444");
+    }
 }

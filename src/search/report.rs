@@ -327,7 +327,7 @@ impl HuntReport {
                 compact(&op.particles, cell, self.range.is_some()),
                 compact(&op.vector, cell, self.range.is_some()),
                 format!("{:.6}", op.dimension),
-                format!("{:+.6}", op.rg_eigenvalue),
+                crate::output::signed_fixed(op.rg_eigenvalue, 6),
                 op.spin.clone(),
                 op.charge.to_string(),
             ];
