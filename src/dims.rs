@@ -254,6 +254,9 @@ impl DimsReport {
         if let Some(q) = &ev.quadrature {
             notes.push(infinite_note(q));
         }
+        if sys.lattice.boundary == Some(crate::model::Boundary::Open) {
+            notes.push(open_array_note(&terms, sys.lattice.cell));
+        }
         let array = matches!(sys.model.structure, crate::model::Structure::Array { .. });
         Ok(DimsReport {
             model: sys.model.name.clone(),
@@ -299,6 +302,20 @@ pub fn infinite_note(q: &Quadrature) -> String {
         ));
     }
     s
+}
+
+/// Which translate an open array's rows show (the one nearest the middle:
+/// translates near the ends see fewer neighbours and have other
+/// dimensions).
+fn open_array_note(terms: &[TermRow], cell: usize) -> String {
+    let wires: Vec<String> = terms
+        .iter()
+        .map(|t| format!("{} at wire {}", t.name, t.wire))
+        .collect();
+    format!(
+        "open array: each row is the translate nearest the middle ({}); field indices count {cell} fields per wire from wire 0; translates near the ends have other dimensions (JSON `wire`)",
+        wires.join(", ")
+    )
 }
 
 fn notes_for(terms: &[TermRow]) -> Vec<String> {

@@ -510,3 +510,20 @@ fn cancelling_momenta_are_exactly_zero() {
         1e-12
     ));
 }
+
+/// An open array's rows are one translate each; the text says which (the
+/// JSON field `wire`), so that a reader does not take a middle translate
+/// for one at the ends. For 8 wires and terms spanning 2 wires the
+/// translates start at wires 0..=6; the middle one starts at wire 3.
+#[test]
+fn an_open_array_says_which_translate_each_row_is() {
+    let text = dims_ok(&flow("laughlin_third_strip.toml"), &[]);
+    assert!(
+        text.contains("open array: each row is the translate nearest the middle (tunnel at wire 3"),
+        "{text}"
+    );
+    let r = dims_json(&flow("laughlin_third_strip.toml"), &[]);
+    assert_eq!(json_term(&r, "tunnel")["wire"], 3);
+    let ring = dims_ok(&flow("laughlin_third.toml"), &[]);
+    assert!(!ring.contains("open array"), "{ring}");
+}
