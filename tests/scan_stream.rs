@@ -303,6 +303,27 @@ fn streamed_summary_equals_the_summary_of_all_rows() {
             .iter()
             .any(|n| n.as_str().unwrap().contains("lost in the flow"));
         assert_eq!(negative, explained, "grid {k}: {notes}");
+        // Winners the model does not list are named in a note.
+        let generated: Vec<&String> = got["winners"]
+            .as_object()
+            .unwrap()
+            .keys()
+            .filter(|w| !terms.contains(&w.as_str()))
+            .collect();
+        let named = notes.as_array().unwrap().iter().find_map(|n| {
+            n.as_str()
+                .unwrap()
+                .strip_prefix("winners not listed in the model")
+        });
+        match named {
+            Some(text) => {
+                assert!(!generated.is_empty(), "grid {k}: {text}");
+                for w in &generated {
+                    assert!(text.contains(&format!("{w} (")), "grid {k}: {w} in {text}");
+                }
+            }
+            None => assert!(generated.is_empty(), "grid {k}: {generated:?}"),
+        }
         let obj = got.as_object_mut().unwrap();
         // A finite model's flows have no quadrature to check.
         assert_eq!(obj.remove("flow_quadrature"), Some(Value::Null));

@@ -135,6 +135,22 @@ fn margin_note(t: &TargetSummary) -> Option<String> {
     ))
 }
 
+/// Winners that the model does not list: terms generated at second order
+/// by the pairs closure, named after their parents.
+fn generated_winners_note(meta: &Meta, winners: &BTreeMap<String, usize>) -> Option<String> {
+    let generated: Vec<String> = winners
+        .iter()
+        .filter(|(name, _)| !meta.terms.contains(name))
+        .map(|(name, n)| format!("{name} ({n} points)"))
+        .collect();
+    (!generated.is_empty()).then(|| {
+        format!(
+            "winners not listed in the model, generated at second order by commuting pairs of listed terms and named after them (a+b, a-b, 2*a; @n shifts b by n wires): {}; `pinflow flow --set ...` at such a point shows how it grew, and listing it as a term makes its bare data part of the scan",
+            generated.join(", ")
+        )
+    })
+}
+
 /// The summary being accumulated over the rows of a points file.
 pub struct Tally {
     points: usize,
@@ -214,6 +230,7 @@ impl Tally {
         if let Some(t) = target.as_ref() {
             notes.extend(margin_note(t));
         }
+        notes.extend(generated_winners_note(meta, &self.winners));
         if let Some(q) = flow_quadrature.as_ref().filter(|q| q.not_converged > 0) {
             notes.push(format!(
                 "at {} of the {} points the infinite array's flow is not converged in q (q_converged = false in points.csv, with q_points and q_error); `pinflow flow` at such a point says why",
