@@ -291,20 +291,21 @@ pub fn mismatch(particles: &[crate::exact::Rational], k: &[f64], period: Option<
 /// is conserved only modulo G) it is the representative of k + G Z in
 /// (-G/2, G/2], k - G round(k/G); the tie |k| = G/2 (backscattering 2 k_F
 /// at half filling, with G = 4 k_F) is given the sign +, so that k and -k
-/// have the same representative there, as they should (k = G/2 and -G/2
-/// differ by G). Values within [`crate::dims::MOMENTUM_TOLERANCE`] of 0
-/// become exactly 0, and values within it of -G/2 become +G/2, so the
-/// rounding of the momenta cannot decide either.
+/// have the same representative there, as they should (G/2 and -G/2 differ
+/// by G). Values within [`crate::dims::MOMENTUM_TOLERANCE`] of 0 become
+/// exactly 0, and values within it of -G/2 become +G/2, so the rounding of
+/// the momenta cannot decide either. The remainder is taken with the exact
+/// floating-point remainder (`rem_euclid`), so any finite k and G > 0 give a
+/// finite result, however large k/G.
 pub fn reduce_momentum(k: f64, period: Option<f64>) -> f64 {
     let tol = crate::dims::MOMENTUM_TOLERANCE;
     let mut r = k;
-    if let Some(g) = period.filter(|g| g.is_finite() && *g > 0.0) {
-        r = k - g * (k / g).round();
-        if r <= -0.5 * g + tol {
-            r += g;
-        }
-        // The reduction can leave r = G/2 + rounding; keep it at G/2.
-        if r > 0.5 * g {
+    if let Some(g) = period.filter(|g| g.is_finite() && *g > 0.0 && k.is_finite()) {
+        // In [0, G] (G itself only by the rounding of a tiny negative k + G).
+        r = k.rem_euclid(g);
+        if r > 0.5 * g + tol {
+            r -= g;
+        } else if r > 0.5 * g {
             r = 0.5 * g;
         }
     }
