@@ -169,6 +169,9 @@ pub struct DimsReport {
     /// Infinite arrays: the quadrature rule and its error estimate; null
     /// otherwise.
     pub quadrature: Option<Quadrature>,
+    /// The momentum period G (`momentum_period`) at the point, by which
+    /// every term's `momentum` is reduced to (-G/2, G/2]; null without one.
+    pub momentum_period: Option<f64>,
     /// One row per term.
     pub terms: Vec<TermRow>,
     /// Mutual phases l_a^T K^-1 l_b ("p/q").
@@ -257,6 +260,10 @@ impl DimsReport {
         if sys.lattice.boundary == Some(crate::model::Boundary::Open) {
             notes.push(open_array_note(&terms, sys.lattice.cell));
         }
+        let momentum_period = sys.model.momentum_period_at(point);
+        if let Some(g) = momentum_period {
+            notes.push(period_note(g));
+        }
         let array = matches!(sys.model.structure, crate::model::Structure::Array { .. });
         Ok(DimsReport {
             model: sys.model.name.clone(),
@@ -277,6 +284,7 @@ impl DimsReport {
             chiralities: ev.chiralities,
             velocity_ranges: ev.velocity_ranges,
             quadrature: ev.quadrature,
+            momentum_period,
             terms,
             commutation: inv
                 .commutation
@@ -287,6 +295,14 @@ impl DimsReport {
             notes,
         })
     }
+}
+
+/// The note that states the momentum period in use (`dims`, `hunt`).
+pub fn period_note(g: f64) -> String {
+    format!(
+        "Momenta are conserved modulo the period G = {} (momentum_period, a reciprocal lattice vector): every momentum mismatch k is reduced to k - G round(k/G) in (-G/2, G/2], with |k| = G/2 shown as +G/2; a term with k = G (umklapp) is momentum-conserving.",
+        crate::output::short(g)
+    )
 }
 
 /// The note that states how an infinite array was computed.

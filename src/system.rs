@@ -360,14 +360,16 @@ impl System {
             .collect()
     }
 
-    /// Momentum mismatch of each term's representative (None without momenta).
+    /// Momentum mismatch of each term's representative (None without
+    /// momenta), reduced by the momentum period when the model gives one.
     pub fn momentum_mismatches(&self, point: &[f64]) -> Option<Vec<f64>> {
         let k = self.lattice.momenta(&self.model, point)?;
+        let g = self.model.momentum_period_at(point);
         Some(
             self.invariants
                 .terms
                 .iter()
-                .map(|t| crate::lattice::mismatch(&t.particles, &k))
+                .map(|t| crate::lattice::mismatch(&t.particles, &k, g))
                 .collect(),
         )
     }

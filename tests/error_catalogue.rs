@@ -395,6 +395,11 @@ fn cases() -> Vec<Case> {
         // ------------------------------------------------ expressions (cont.)
         case("E90", wire(term, "particles = [1, -1]\ncoupling = \"0.1 * {lambda}\"\n"), "dims wire.toml", 2,
             "error: wire.toml: term \"backscatter\".coupling: \"0.1 * {lambda}\": cannot parse expression: unexpected character `{` at position 7 (expressions use numbers, parameter names, + - * / ^, parentheses and the functions sqrt, exp, ln, abs, sin, cos, tan)"),
+        // ------------------------------------------------ momentum period
+        case("E91", wire("charge = [1, 1]", "charge = [1, 1]\nmomentum_period = \"2*pi\""), "dims wire.toml", 2,
+            "error: wire.toml: fields.momentum_period: needs fields.momentum too: the period G reduces momentum mismatches, and without momenta there are none"),
+        case("E92", wire("charge = [1, 1]", "charge = [1, 1]\nmomentum = [\"pi/2\", \"-pi/2\"]\nmomentum_period = 0"), "dims wire.toml", 2,
+            "error: wire.toml: fields.momentum_period: must be a finite number > 0 (the reciprocal lattice vector G; momenta are conserved modulo G), found 0 at lambda=0.3"),
     ];
     c.sort_by_key(|c| c.id);
     c
@@ -617,4 +622,6 @@ entries! {
     e88_window_whole_array => "E88",
     e89_window_empty => "E89",
     e90_character_outside_expressions => "E90",
+    e91_momentum_period_without_momenta => "E91",
+    e92_momentum_period_not_positive => "E92",
 }

@@ -186,6 +186,7 @@ const REAL_KEYS: &[&str] = &[
     "charge",
     "momentum",
     "momentum_per_wire",
+    "momentum_period",
     "wires",
     "boundary",
     "particles",
@@ -743,46 +744,52 @@ fn hostile_model() -> impl Strategy<Value = String> {
                 prop::option::weighted(0.3, prop::collection::vec(mild_scalar(), n)),
                 prop::option::weighted(0.2, prop::collection::vec(mild_scalar(), n)),
                 prop::bool::weighted(0.03),
+                prop::option::weighted(0.1, hostile_scalar()),
             )
-                .prop_map(move |(w, b, k, charge, mut blocks, mom, mom_w, odd)| {
-                    // block 0 is almost always there
-                    if blocks.iter().all(|(k, _)| *k != "0") && !odd {
-                        blocks.insert(
-                            0,
-                            (
-                                "0",
-                                Val::Arr(
-                                    (0..n)
-                                        .map(|i| {
-                                            Val::Arr(
-                                                (0..n)
-                                                    .map(|j| Val::Float((i == j) as i64 as f64))
-                                                    .collect(),
-                                            )
-                                        })
-                                        .collect(),
+                .prop_map(
+                    move |(w, b, k, charge, mut blocks, mom, mom_w, odd, period)| {
+                        // block 0 is almost always there
+                        if blocks.iter().all(|(k, _)| *k != "0") && !odd {
+                            blocks.insert(
+                                0,
+                                (
+                                    "0",
+                                    Val::Arr(
+                                        (0..n)
+                                            .map(|i| {
+                                                Val::Arr(
+                                                    (0..n)
+                                                        .map(|j| Val::Float((i == j) as i64 as f64))
+                                                        .collect(),
+                                                )
+                                            })
+                                            .collect(),
+                                    ),
                                 ),
-                            ),
-                        );
-                    }
-                    let mut a = vec![
-                        ("wires".to_string(), w),
-                        ("K".to_string(), k),
-                        ("charge".to_string(), charge),
-                        ("V".to_string(), table(dedup(blocks))),
-                    ];
-                    if let Some(b) = b {
-                        a.push(("boundary".into(), s(b)));
-                    }
-                    let has_momentum = mom.is_some();
-                    if let Some(m) = mom {
-                        a.push(("momentum".into(), Val::Arr(m)));
-                    }
-                    if let Some(m) = mom_w.filter(|_| has_momentum || odd) {
-                        a.push(("momentum_per_wire".into(), Val::Arr(m)));
-                    }
-                    ("array".to_string(), Val::Table(a))
-                })
+                            );
+                        }
+                        let mut a = vec![
+                            ("wires".to_string(), w),
+                            ("K".to_string(), k),
+                            ("charge".to_string(), charge),
+                            ("V".to_string(), table(dedup(blocks))),
+                        ];
+                        if let Some(b) = b {
+                            a.push(("boundary".into(), s(b)));
+                        }
+                        let has_momentum = mom.is_some();
+                        if let Some(m) = mom {
+                            a.push(("momentum".into(), Val::Arr(m)));
+                        }
+                        if let Some(m) = mom_w.filter(|_| has_momentum || odd) {
+                            a.push(("momentum_per_wire".into(), Val::Arr(m)));
+                        }
+                        if let Some(g) = period.filter(|_| has_momentum || odd) {
+                            a.push(("momentum_period".into(), g));
+                        }
+                        ("array".to_string(), Val::Table(a))
+                    },
+                )
                 .boxed()
         } else {
             (
@@ -790,8 +797,9 @@ fn hostile_model() -> impl Strategy<Value = String> {
                 int_list(n),
                 v_matrix(n),
                 prop::option::weighted(0.3, prop::collection::vec(mild_scalar(), n)),
+                prop::option::weighted(0.1, hostile_scalar()),
             )
-                .prop_map(|(k, charge, v, mom)| {
+                .prop_map(|(k, charge, v, mom, period)| {
                     let mut f = vec![
                         ("K".to_string(), k),
                         ("charge".to_string(), charge),
@@ -799,6 +807,10 @@ fn hostile_model() -> impl Strategy<Value = String> {
                     ];
                     if let Some(m) = mom {
                         f.push(("momentum".into(), Val::Arr(m)));
+                    }
+                    // Mostly with momenta; sometimes without (refused).
+                    if let Some(g) = period {
+                        f.push(("momentum_period".into(), g));
                     }
                     ("fields".to_string(), Val::Table(f))
                 })

@@ -390,11 +390,14 @@ impl<'s> Flow<'s> {
 
     fn momenta(&self, point: &[f64], included: &[usize]) -> Vec<Option<f64>> {
         let k = self.sys.lattice.momenta(&self.sys.model, point);
+        // A generated channel's particle content is the sum of its parents',
+        // so its mismatch is the sum of theirs, reduced once by the period.
+        let g = self.sys.model.momentum_period_at(point);
         included
             .iter()
             .map(|&c| {
                 k.as_ref()
-                    .map(|k| crate::lattice::mismatch(&self.plan.channels[c].particles, k))
+                    .map(|k| crate::lattice::mismatch(&self.plan.channels[c].particles, k, g))
             })
             .collect()
     }

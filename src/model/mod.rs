@@ -128,6 +128,9 @@ pub struct Model {
     pub momentum: Option<Vec<Scalar>>,
     /// Momentum added once per wire index.
     pub momentum_per_wire: Option<Vec<Scalar>>,
+    /// Reciprocal lattice vector G (`momentum_period`): a mismatch is only
+    /// defined modulo G and is reduced to (-G/2, G/2].
+    pub momentum_period: Option<Scalar>,
     /// Candidate terms.
     pub terms: Vec<TermSpec>,
     /// The `[flow]` table, checked by the flow module.
@@ -293,7 +296,8 @@ impl Model {
 
     /// Every value evaluated at a parameter point that is not checked where
     /// it is used (momenta, and each term's coupling and phase) must be
-    /// finite there; the error names the first key that is not. V is checked
+    /// finite there, and the momentum period finite and positive; the error
+    /// names the first key that is not. V is checked
     /// when it is evaluated, extra dimensions by
     /// [`crate::system::System::extra_dimensions`].
     pub fn check_point(&self, point: &[f64]) -> Result<(), InputError> {
@@ -335,6 +339,19 @@ impl Model {
                 }
             }
         }
+        if let Some(g) = &self.momentum_period {
+            let x = g.eval(point);
+            if !(x.is_finite() && x > 0.0) {
+                return Err(InputError::new(
+                    &self.file,
+                    format!("{base}.momentum_period"),
+                    format!(
+                        "must be a finite number > 0 (the reciprocal lattice vector G; momenta are conserved modulo G), found {x} at {}",
+                        self.params.describe(point)
+                    ),
+                ));
+            }
+        }
         for t in &self.terms {
             checks.push((format!("term \"{}\".coupling", t.name), &t.coupling));
             checks.push((format!("term \"{}\".phase", t.name), &t.phase));
@@ -353,6 +370,13 @@ impl Model {
             }
         }
         Ok(())
+    }
+
+    /// The reciprocal lattice vector G at a point, when the model gives
+    /// `momentum_period` (finite and positive once [`Model::check_point`]
+    /// has passed).
+    pub fn momentum_period_at(&self, point: &[f64]) -> Option<f64> {
+        self.momentum_period.as_ref().map(|g| g.eval(point))
     }
 
     /// Index of the term marked as the target, if any.
@@ -401,6 +425,13 @@ fn read_explicit(ctx: &Ctx, f: RawFields, params: ParamSet) -> Result<Model, Inp
         .as_ref()
         .map(|m| values::scalar_vector(ctx, m, "fields.momentum", &params, n))
         .transpose()?;
+    let momentum_period = read_period(
+        ctx,
+        &f.momentum_period,
+        "fields",
+        momentum.is_some(),
+        &params,
+    )?;
     Ok(Model {
         name: String::new(),
         file: ctx.file.clone(),
@@ -411,6 +442,7 @@ fn read_explicit(ctx: &Ctx, f: RawFields, params: ParamSet) -> Result<Model, Inp
         v_blocks: vec![v],
         momentum,
         momentum_per_wire: None,
+        momentum_period,
         terms: Vec::new(),
         flow_table: None,
         scan_table: None,
@@ -461,6 +493,13 @@ fn read_array(ctx: &Ctx, a: RawArray, params: ParamSet) -> Result<Model, InputEr
             "needs array.momentum (the momenta of wire 0) too",
         ));
     }
+    let momentum_period = read_period(
+        ctx,
+        &a.momentum_period,
+        "array",
+        momentum.is_some(),
+        &params,
+    )?;
     if let Wires::Finite(w) = wires {
         check_range_fits(
             ctx,
@@ -481,10 +520,35 @@ fn read_array(ctx: &Ctx, a: RawArray, params: ParamSet) -> Result<Model, InputEr
         v_blocks,
         momentum,
         momentum_per_wire,
+        momentum_period,
         terms: Vec::new(),
         flow_table: None,
         scan_table: None,
     })
+}
+
+/// `momentum_period` of `[fields]` or `[array]` (`base`): an expression for
+/// the reciprocal lattice vector G, which needs the momenta it reduces.
+/// That G is finite and positive is checked at each point
+/// ([`Model::check_point`]).
+fn read_period(
+    ctx: &Ctx,
+    v: &Option<toml::Value>,
+    base: &str,
+    has_momenta: bool,
+    params: &ParamSet,
+) -> Result<Option<Scalar>, InputError> {
+    let Some(v) = v else {
+        return Ok(None);
+    };
+    let key = format!("{base}.momentum_period");
+    if !has_momenta {
+        return Err(ctx.err(
+            &key,
+            format!("needs {base}.momentum too: the period G reduces momentum mismatches, and without momenta there are none"),
+        ));
+    }
+    values::scalar(ctx, v, &key, params).map(Some)
 }
 
 fn read_wires(ctx: &Ctx, v: &toml::Value) -> Result<Wires, InputError> {

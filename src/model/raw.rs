@@ -44,6 +44,8 @@ pub struct RawFields {
     pub v: Value,
     /// Optional momentum per field (numbers or expressions).
     pub momentum: Option<Value>,
+    /// Optional reciprocal lattice vector G: momenta are conserved modulo G.
+    pub momentum_period: Option<Value>,
 }
 
 /// `[array]`: the array form.
@@ -66,6 +68,8 @@ pub struct RawArray {
     pub momentum: Option<Value>,
     /// Momentum added once per wire index (e.g. from a magnetic flux).
     pub momentum_per_wire: Option<Value>,
+    /// Optional reciprocal lattice vector G: momenta are conserved modulo G.
+    pub momentum_period: Option<Value>,
 }
 
 /// One `[[term]]`.

@@ -14,7 +14,11 @@
 //! Fincke-Pohst enumeration ([`ellipsoid`]). The filters are exact integer
 //! arithmetic (charge t.m, conformal spin (1/2) m^T K m) except momentum
 //! conservation, whose momenta are floats: |k| below
-//! [`crate::dims::MOMENTUM_TOLERANCE`] counts as conserved.
+//! [`crate::dims::MOMENTUM_TOLERANCE`] counts as conserved, unless every
+//! momentum (and the momentum period G, when the model gives one) is a small
+//! rational at the point, and then k = 0 (or k/G integral) is checked
+//! exactly. With a period, k is reduced to (-G/2, G/2] first
+//! ([`crate::lattice::reduce_momentum`]).
 //!
 //! Arrays: the search runs on a window of R consecutive wires ([`window`])
 //! with the block of D on its fields, and lists one operator per
@@ -297,6 +301,10 @@ fn window_d(sys: &System, point: &[f64], window: &Window) -> Result<DMatrix<f64>
     Ok(d)
 }
 
+/// Momenta recognised as rationals at a point, with the momentum period
+/// when the model gives one (also rational).
+type ExactMomenta = (Vec<exact::Rational>, Option<exact::Rational>);
+
 pub fn hunt(sys: &System, point: &[f64], opts: &HuntOptions) -> Result<HuntReport, Error> {
     let cmd = |key: &str, m: String| Error::Input(InputError::new("command line", key, m));
     if !(opts.max_dim.is_finite() && opts.max_dim > 0.0) {
@@ -335,11 +343,21 @@ pub fn hunt(sys: &System, point: &[f64], opts: &HuntOptions) -> Result<HuntRepor
             )));
         }
     }
-    // Momenta that are all small rationals at this point are compared exactly.
-    let exact_momenta: Option<Vec<exact::Rational>> = momenta.as_ref().and_then(|k| {
-        k.iter()
-            .map(|x| exact::small_rational(*x, MAX_MOMENTUM_DENOMINATOR, 1e-12))
-            .collect()
+    // The momentum period G (umklapp), finite and positive after check_point.
+    let period = sys.model.momentum_period_at(point);
+    // Momenta that are all small rationals at this point are compared
+    // exactly, and so is the period when there is one: k is conserved iff
+    // k/G is an integer. An irrational period (2 pi, say) sends the
+    // comparison to the float path with its tolerance.
+    let exact_momenta: Option<ExactMomenta> = momenta.as_ref().and_then(|k| {
+        let small = |x: f64| exact::small_rational(x, MAX_MOMENTUM_DENOMINATOR, 1e-12);
+        let k = k.iter().map(|x| small(*x)).collect::<Option<Vec<_>>>()?;
+        let g = match period {
+            // A tiny G could be recognised as 0: keep it on the float path.
+            Some(g) => Some(small(g).filter(|g| !num_traits::Zero::is_zero(g))?),
+            None => None,
+        };
+        Some((k, g))
     });
     let d_full = window_d(sys, point, &window)?;
     let space = Space::new(sys, &d_full, window);
@@ -434,8 +452,15 @@ pub fn hunt(sys: &System, point: &[f64], opts: &HuntOptions) -> Result<HuntRepor
                 .map(|(a, b)| *a as f64 * b)
                 .sum::<f64>()
         });
+        let k = k.map(|k| crate::lattice::reduce_momentum(k, period));
         let conserved = match (&exact_momenta, k) {
-            (Some(q), _) => num_traits::Zero::is_zero(&exact::dot_int(q, &full)),
+            (Some((q, g)), _) => {
+                let k = exact::dot_int(q, &full);
+                match g {
+                    Some(g) => (k / g).is_integer(),
+                    None => num_traits::Zero::is_zero(&k),
+                }
+            }
             (None, Some(k)) => k.abs() < crate::dims::MOMENTUM_TOLERANCE,
             (None, None) => true,
         };

@@ -92,8 +92,12 @@ pub struct HuntReport {
     /// |k| below which the momentum counts as conserved (null when the
     /// momenta are rational and conservation is checked exactly).
     pub momentum_tolerance: Option<f64>,
-    /// Every momentum is a rational p/q (q <= 10^4) at this point and
-    /// conservation is checked exactly.
+    /// The momentum period G (`momentum_period`) at the point: momenta are
+    /// conserved modulo G and `momentum` is reduced to (-G/2, G/2]; null
+    /// without one.
+    pub momentum_period: Option<f64>,
+    /// Every momentum (and the momentum period, if any) is a rational p/q
+    /// (q <= 10^4) at this point and conservation is checked exactly.
     pub momentum_exact: bool,
     /// Size estimates.
     pub estimate: Estimate,
@@ -173,6 +177,7 @@ impl HuntReport {
             momentum_tolerance: momentum
                 .filter(|_| !exact_momenta)
                 .map(|_| crate::dims::MOMENTUM_TOLERANCE),
+            momentum_period: sys.model.momentum_period_at(point),
             momentum_exact: exact_momenta && momentum.is_some(),
             estimate,
             examined,
@@ -277,13 +282,17 @@ impl HuntReport {
         );
         if self.momentum_exact {
             notes.push(format!(
-                "Momenta are rational at this point (p/q with q <= {}): momentum conservation is checked exactly.",
+                "Momenta{} are rational at this point (p/q with q <= {}): momentum conservation is checked exactly.",
+                if self.momentum_period.is_some() { " and the momentum period" } else { "" },
                 super::MAX_MOMENTUM_DENOMINATOR
             ));
         } else if let Some(tol) = self.momentum_tolerance {
             notes.push(format!(
                 "Momenta are floats: a mismatch |k| < {tol:.0e} (units of the inverse cutoff) counts as conserved."
             ));
+        }
+        if let Some(g) = self.momentum_period {
+            notes.push(crate::dims::period_note(g));
         }
         let momenta_checked = self.momentum_tolerance.is_some() || self.momentum_exact;
         if momenta_checked && sys.model.momentum_per_wire.is_some() && self.charge != Some(0) {
@@ -431,12 +440,15 @@ impl Report for HuntReport {
         } else {
             "any spin".into()
         });
+        let modulo = self.momentum_period.map_or(String::new(), |g| {
+            format!(" modulo G = {}", crate::output::short(g))
+        });
         match (self.momentum.as_deref(), self.momentum_tolerance) {
-            (Some("conserved"), _) if self.momentum_exact => {
-                filters.push("momentum conserved (exact: rational momenta)".into())
-            }
+            (Some("conserved"), _) if self.momentum_exact => filters.push(format!(
+                "momentum conserved{modulo} (exact: rational momenta)"
+            )),
             (Some("conserved"), Some(tol)) => {
-                filters.push(format!("momentum conserved (|k| < {tol:.0e})"))
+                filters.push(format!("momentum conserved{modulo} (|k| < {tol:.0e})"))
             }
             (Some(_), _) => filters.push("any momentum".into()),
             // No momenta in the model: nothing is filtered by momentum, so
