@@ -237,6 +237,25 @@ pub fn rank(rows: &[Vec<Rational>]) -> usize {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    fn rows(m: &[&[i64]]) -> Vec<Vec<Rational>> {
+        m.iter()
+            .map(|r| r.iter().map(|&x| int(x)).collect())
+            .collect()
+    }
+
+    #[test]
+    fn ranks_of_small_matrices() {
+        // By hand: a zero matrix, proportional rows, a non-zero det (1*4 -
+        // 2*3 = -2), a 3 x 3 with row 3 = row 1 + row 2, a wide 2 x 3 whose
+        // first column vanishes.
+        assert_eq!(rank(&rows(&[&[0, 0], &[0, 0]])), 0);
+        assert_eq!(rank(&rows(&[&[1, 2], &[2, 4]])), 1);
+        assert_eq!(rank(&rows(&[&[1, 2], &[3, 4]])), 2);
+        assert_eq!(rank(&rows(&[&[1, 2, 3], &[4, 5, 6], &[5, 7, 9]])), 2);
+        assert_eq!(rank(&rows(&[&[0, 1, 2], &[0, 3, 7]])), 2);
+        assert_eq!(rank(&[]), 0);
+    }
     use num_traits::FromPrimitive;
 
     fn rational_inverse(a: &[Vec<i64>]) -> Option<Vec<Vec<Rational>>> {
