@@ -395,6 +395,9 @@ fn cases() -> Vec<Case> {
         // ------------------------------------------------ expressions (cont.)
         case("E90", wire(term, "particles = [1, -1]\ncoupling = \"0.1 * {lambda}\"\n"), "dims wire.toml", 2,
             "error: wire.toml: term \"backscatter\".coupling: \"0.1 * {lambda}\": cannot parse expression: unexpected character `{` at position 7 (expressions use numbers, parameter names, + - * / ^, parentheses and the functions sqrt, exp, ln, abs, sin, cos, tan)"),
+        // ------------------------------------------------ edges (cont.)
+        case("E91", ring("wires = 8\n", "wires = \"infinite\"\n"), "edges ring.toml --pin tunnel --window 2", 2,
+            "error: command line: --window: only an open array has ends to look at; this model is an infinite array (it has no ends)"),
     ];
     c.sort_by_key(|c| c.id);
     c
@@ -617,4 +620,5 @@ entries! {
     e88_window_whole_array => "E88",
     e89_window_empty => "E89",
     e90_character_outside_expressions => "E90",
+    e91_window_on_an_infinite_array => "E91",
 }
