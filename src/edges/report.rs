@@ -359,9 +359,22 @@ fn chirality(signature: (usize, usize)) -> &'static str {
 /// The notes of an infinite array: what is per wire, the certificate of the
 /// rank, what is not computed, and modes left at q = 0 or pi alone.
 fn line_notes(pw: &super::line::PerWire) -> Vec<String> {
+    let certificate = if pw.points <= pw.degree_bound {
+        format!(
+            "it reached the largest rank possible, min(fields per wire, pinned families) = {}, at z = {} (exact rational elimination)",
+            pw.cell.min(pw.polynomials.len()),
+            pw.points + 1
+        )
+    } else {
+        format!(
+            "it is the largest rank of the matrix at the {} integer points z = 2..{}, more than the at most {} roots of a non-zero minor (exact rational elimination)",
+            pw.points,
+            pw.points + 1,
+            pw.degree_bound
+        )
+    };
     let mut notes = vec![format!(
-        "infinite array: the counts are per wire in the thermodynamic limit, independent of any ring size: the number of right-left pairs gapped per wire is the rank over Q(z) of the pinned families' particle vectors N(z) = sum_j n_j z^j (z = e^(iq)), computed exactly and certified by evaluation at {} integer point(s) (every non-zero minor has degree at most {}). The terms were placed and checked (local, null, commuting) on a periodic stand-in ring, which is exact for such per-term and pairwise data; no count is taken on it.",
-        pw.points, pw.degree_bound
+        "infinite array: the counts are per wire in the thermodynamic limit, independent of any ring size: the number of right-left pairs gapped per wire is the rank over Q(z) of the matrix of the pinned families' particle vectors N(z) = sum_j n_j z^j (z = e^(iq)), and {certificate}. The terms were placed and checked (local, null, commuting) on a periodic stand-in ring, which is exact for such per-term and pairwise data; no count is taken on it."
     )];
     if pw.gapless() > 0 {
         notes.push(format!(
