@@ -203,9 +203,59 @@ pub fn gcd_of(v: &[i64]) -> i64 {
     v.iter().fold(0i64, |g, &x| g.gcd(&x))
 }
 
+/// Rank of a rational matrix (given as rows) by Gaussian elimination with
+/// exact big rationals: the number of pivots found column by column.
+pub fn rank(rows: &[Vec<Rational>]) -> usize {
+    let mut m: Vec<Vec<Rational>> = rows.to_vec();
+    let cols = m.iter().map(|r| r.len()).max().unwrap_or(0);
+    let mut r = 0;
+    for c in 0..cols {
+        let Some(p) = (r..m.len()).find(|&i| c < m[i].len() && !m[i][c].is_zero()) else {
+            continue;
+        };
+        m.swap(p, r);
+        let pivot = m[r].clone();
+        for row in m.iter_mut().skip(r + 1) {
+            if c >= row.len() || row[c].is_zero() {
+                continue;
+            }
+            let f = &row[c] / &pivot[c];
+            for (j, x) in row.iter_mut().enumerate().skip(c) {
+                if j < pivot.len() {
+                    *x -= &f * &pivot[j];
+                }
+            }
+        }
+        r += 1;
+        if r == m.len() {
+            break;
+        }
+    }
+    r
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    fn rows(m: &[&[i64]]) -> Vec<Vec<Rational>> {
+        m.iter()
+            .map(|r| r.iter().map(|&x| int(x)).collect())
+            .collect()
+    }
+
+    #[test]
+    fn ranks_of_small_matrices() {
+        // By hand: a zero matrix, proportional rows, a non-zero det (1*4 -
+        // 2*3 = -2), a 3 x 3 with row 3 = row 1 + row 2, a wide 2 x 3 whose
+        // first column vanishes.
+        assert_eq!(rank(&rows(&[&[0, 0], &[0, 0]])), 0);
+        assert_eq!(rank(&rows(&[&[1, 2], &[2, 4]])), 1);
+        assert_eq!(rank(&rows(&[&[1, 2], &[3, 4]])), 2);
+        assert_eq!(rank(&rows(&[&[1, 2, 3], &[4, 5, 6], &[5, 7, 9]])), 2);
+        assert_eq!(rank(&rows(&[&[0, 1, 2], &[0, 3, 7]])), 2);
+        assert_eq!(rank(&[]), 0);
+    }
     use num_traits::FromPrimitive;
 
     fn rational_inverse(a: &[Vec<i64>]) -> Option<Vec<Vec<Rational>>> {

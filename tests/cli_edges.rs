@@ -349,44 +349,93 @@ allowed_charge = 2
         assert!(r["charge_conserved_modulo"].is_null(), "{r}");
     }
 
-    /// An infinite array is handled on its periodic stand-in ring, and the
-    /// ranks there are the ring's: pinning c_j - c_{j+2} (c_j the density
-    /// wave of wire j) on a ring of W wires gaps W - gcd(2, W) pairs
-    /// (derived: j -> j + 2 splits the ring into gcd(2, W) cycles, and each
-    /// cycle keeps its sum free). So 17 wires leave 2 modes and 18 leave 4,
-    /// and the report of an infinite array must say that its counts are
-    /// the stand-in ring's. (Regression: it gave the 17-wire counts, with
-    /// generators of charge 17, as the infinite line's.)
+    /// An infinite array reports per-wire counts that no ring size enters.
+    /// On a ring of W wires, pinning c_j - c_{j+2} (c_j the density wave of
+    /// wire j) gaps W - gcd(2, W) pairs (derived: j -> j + 2 splits the ring
+    /// into gcd(2, W) cycles, and each cycle keeps its sum free), so 17 wires
+    /// leave 2 modes and 18 leave 4. On the infinite line the family has
+    /// N(z) = (1, -1)(1 - z^2), of rank 1 over Q(z): 1 of 1 pairs per wire,
+    /// fully gapped, with the rank dropping to 0 at q = 0 and q = pi alone
+    /// (derived). (Regression: the line once gave the 17-wire stand-in
+    /// ring's counts, with generators of charge 17, as its own.)
     #[test]
-    fn an_infinite_array_says_its_counts_are_the_stand_in_rings() {
+    fn an_infinite_array_reports_per_wire_counts() {
         let dir = tmp();
-        let model = |wires: &str| {
+        let model = |wires: &str, extra: &str| {
             format!(
-                "[params]\nlambda = 0.3\n[array]\nwires = {wires}\nK = [[1, 0], [0, -1]]\ncharge = [1, 1]\n[array.V]\n0 = [[\"1\", \"lambda\"], [\"lambda\", \"1\"]]\n[[term]]\nname = \"cdw2\"\nparticles = {{ 0 = [1, -1], 2 = [-1, 1] }}\n"
+                "[params]\nlambda = 0.3\n[array]\nwires = {wires}\nK = [[1, 0], [0, -1]]\ncharge = [1, 1]\n[array.V]\n0 = [[\"1\", \"lambda\"], [\"lambda\", \"1\"]]\n[[term]]\nname = \"cdw2\"\nparticles = {{ 0 = [1, -1], 2 = [-1, 1] }}\n{extra}"
             )
         };
         for (file, wires, gapped, left) in [("r17.toml", "17", 16, 2), ("r18.toml", "18", 16, 4)] {
-            std::fs::write(dir.path().join(file), model(wires)).unwrap();
+            std::fs::write(dir.path().join(file), model(wires, "")).unwrap();
             let v = json(&dir, &[file, "--pin", "cdw2"]);
             assert_eq!(v["gapped_pairs"], gapped, "{file}");
             assert_eq!(v["gapless_modes"], left, "{file}");
+            assert!(v["gapped_pairs_per_wire"].is_null(), "{file}");
+            assert_eq!(v["infinite"], false);
         }
-        std::fs::write(dir.path().join("line.toml"), model("\"infinite\"")).unwrap();
+        std::fs::write(dir.path().join("line.toml"), model("\"infinite\"", "")).unwrap();
+        // An unpinned term reaching 6 wires away makes the stand-in ring
+        // 4 (6 + 2) + 1 = 33 wires instead of 17.
+        let far = "[[term]]\nname = \"far\"\nparticles = { 0 = [1, -1], 6 = [-1, 1] }\n";
+        std::fs::write(dir.path().join("far.toml"), model("\"infinite\"", far)).unwrap();
         let v = json(&dir, &["line.toml", "--pin", "cdw2"]);
-        let wires = v["wires"].as_u64().expect("the stand-in ring's wires");
-        let notes: Vec<&str> = v["notes"]
-            .as_array()
-            .unwrap()
-            .iter()
-            .map(|n| n.as_str().unwrap())
-            .collect();
-        assert!(
-            notes.iter().any(|n| n.starts_with("infinite array:")
-                && n.contains(&format!("stand-in ring of {wires} wires"))),
-            "{notes:?}"
-        );
+        assert_eq!(v["infinite"], true);
+        assert_eq!(v["boundary"], "infinite");
+        assert!(v["wires"].is_null(), "{v}");
+        assert_eq!(v["fields"], 2);
+        assert_eq!(v["gapped_pairs_per_wire"], 1);
+        assert_eq!(v["gapped_pairs"], 1);
+        assert_eq!(v["gapless_modes"], 0);
+        assert_eq!(v["fully_gapped"], true);
+        assert!(v["whole"].is_null(), "no ring-dependent theory: {v}");
+        assert_eq!(v["edges"], serde_json::json!([]));
+        assert_eq!(v["per_wire"]["rank_at_q_0"], 0);
+        assert_eq!(v["per_wire"]["rank_at_q_pi"], 0);
+        assert!(v["pinned"][0]["translates"].is_null());
+        assert_eq!(v["pinned"][0]["n_of_z"], "(1, -1) + (-1, 1) z^2");
+        let w = json(&dir, &["far.toml", "--pin", "cdw2"]);
+        for key in [
+            "gapped_pairs",
+            "gapless_modes",
+            "gapped_pairs_per_wire",
+            "fully_gapped",
+            "per_wire",
+            "pinned",
+            "fields",
+        ] {
+            assert_eq!(v[key], w[key], "{key} depends on the stand-in ring");
+        }
         let text = ok(&dir, &["line.toml", "--pin", "cdw2"]);
-        assert!(text.contains("not of the infinite line"), "{text}");
+        assert_eq!(
+            fact(&text, "gapped right-left pairs"),
+            "1 per wire (of 1)",
+            "{text}"
+        );
+        assert!(
+            fact(&text, "bulk fully gapped").starts_with("yes"),
+            "{text}"
+        );
+        assert!(text.contains("at the single momentum q = 0"), "{text}");
+        assert!(!text.contains("stand-in ring of"), "{text}");
+        // A cell of two channels with only one pinned: 2 gapless modes per
+        // wire, whose K matrix is not shown (derived: r = 1 of 2).
+        std::fs::write(
+            dir.path().join("two.toml"),
+            "[array]\nwires = \"infinite\"\nK = [[1, 0, 0, 0], [0, -1, 0, 0], [0, 0, 1, 0], [0, 0, 0, -1]]\ncharge = [1, 1, 1, 1]\n[array.V]\n0 = [[1, 0, 0, 0], [0, 1, 0, 0], [0, 0, 1, 0], [0, 0, 0, 1]]\n[[term]]\nname = \"up\"\nparticles = { 0 = [-2, 1, 0, 0], 1 = [-1, 2, 0, 0] }\n",
+        )
+        .unwrap();
+        let text = ok(&dir, &["two.toml", "--pin", "up"]);
+        assert_eq!(
+            fact(&text, "gapped right-left pairs"),
+            "1 per wire (of 2)",
+            "{text}"
+        );
+        assert!(
+            fact(&text, "gapless modes left").contains("not computed for the infinite array"),
+            "{text}"
+        );
+        assert!(fact(&text, "bulk fully gapped").starts_with("no"), "{text}");
     }
 
     /// The bundled (331) strip: pinning both tunnelling terms leaves the

@@ -69,6 +69,11 @@ particles = {{ 0 = {}, 1 = {} }}
         analyse(&sys, &sel.pinned, window).unwrap_or_else(|e| panic!("analyse: {e}"))
     }
 
+    /// The theory of all fields (every finite array and explicit model has one).
+    fn whole(a: &Analysis) -> &Theory {
+        a.whole.as_ref().expect("a theory of all fields")
+    }
+
     fn q(p: i64, r: i64) -> Rational {
         Rational::new(BigInt::from(p), BigInt::from(r))
     }
@@ -162,14 +167,14 @@ particles = {{ 0 = {}, 1 = {} }}
                 // Whole strip: one non-chiral unimodular theory. Derived: K is
                 // unimodular and the pinned lattice is saturated and isotropic,
                 // so M / S is unimodular; signature (1, 1) makes det = -1.
-                assert_eq!(a.whole.end, End::Strip);
+                assert_eq!(whole(&a).end, End::Strip);
                 assert_eq!(
-                    a.whole.invariants.det,
+                    whole(&a).invariants.det,
                     BigInt::from(-1),
                     "{what}: strip det"
                 );
-                assert_eq!(a.whole.invariants.signature, (1, 1));
-                assert_eq!(a.whole.invariants.filling, q(0, 1));
+                assert_eq!(whole(&a).invariants.signature, (1, 1));
+                assert_eq!(whole(&a).invariants.filling, q(0, 1));
             }
         }
     }
@@ -241,8 +246,8 @@ particles = {{ 0 = {}, 1 = {} }}
                 assert_eq!(a.gapless_modes, 0);
                 assert_eq!(a.fully_gapped, Some(true));
                 assert!(a.edges.is_empty());
-                assert_eq!(a.whole.end, End::Bulk);
-                assert_eq!(a.whole.residual.k.rows, 0);
+                assert_eq!(whole(&a).end, End::Bulk);
+                assert_eq!(whole(&a).residual.k.rows, 0);
             }
         }
     }
@@ -269,11 +274,11 @@ particles = [-2, 1, -1, 2, 0, 0]
         assert_eq!(a.gapped_pairs, 1);
         assert_eq!(a.gapless_modes, 4);
         assert_eq!(a.fully_gapped, Some(false));
-        assert_eq!(a.whole.end, End::System);
+        assert_eq!(whole(&a).end, End::System);
         // K unimodular, S saturated isotropic: the residual is unimodular
         // (derived), with signature (2, 2).
-        assert_eq!(a.whole.invariants.det.abs(), BigInt::from(1));
-        assert_eq!(a.whole.invariants.signature, (2, 2));
+        assert_eq!(whole(&a).invariants.det.abs(), BigInt::from(1));
+        assert_eq!(whole(&a).invariants.signature, (2, 2));
     }
 
     // ------------------------------------------------ the demo, from the flow
@@ -366,10 +371,10 @@ particles = [-2, 1, -1, 2, 0, 0]
             assert_eq!(e.invariants.group, vec![BigInt::from(7)], "{what}");
             assert_eq!(e.invariants.quasiparticles.len(), 7, "{what}: all types");
         }
-        assert_eq!(a.whole.residual.k.rows, 8);
-        assert_eq!(a.whole.invariants.det, BigInt::from(2401));
-        assert_eq!(a.whole.invariants.signature, (4, 4));
-        assert_eq!(a.whole.invariants.group, vec![BigInt::from(7); 4]);
+        assert_eq!(whole(&a).residual.k.rows, 8);
+        assert_eq!(whole(&a).invariants.det, BigInt::from(2401));
+        assert_eq!(whole(&a).invariants.signature, (4, 4));
+        assert_eq!(whole(&a).invariants.group, vec![BigInt::from(7); 4]);
         // The generators: short (entries no larger than those of the hand
         // basis above), supported in their region, commuting with every
         // pinned translate, with the reported K as Gram matrix and t.g as
@@ -378,7 +383,7 @@ particles = [-2, 1, -1, 2, 0, 0]
         // hop0 carries charge t.n = 18, so charges are defined only modulo
         // that of s (9) and the filling is not checked here.
         let pinned: Vec<&Vec<BigInt>> = sel.pinned[0].translates.iter().map(|t| &t.n).collect();
-        for th in std::iter::once(&a.whole).chain(&a.edges) {
+        for th in a.whole.iter().chain(&a.edges) {
             let what = th.end.word();
             let gens = &th.residual.generators;
             let (lo, hi) = th.wires.expect("array wires");
@@ -516,7 +521,7 @@ particles = [-2, 1, -1, 2, 0, 0]
             a.gapped_pairs,
             a.gapless_modes,
             a.fully_gapped,
-            th(&a.whole),
+            th(whole(a)),
             a.edges.iter().map(th).collect::<Vec<_>>().join("; ")
         )
     }
@@ -573,7 +578,10 @@ particles = [-2, 1, -1, 2, 0, 0]
             None,
         );
         let array = run(&laughlin_array(3, w, "open"), &["laughlin"], None);
-        assert_eq!(explicit.whole.invariants.det, array.whole.invariants.det);
+        assert_eq!(
+            whole(&explicit).invariants.det,
+            whole(&array).invariants.det
+        );
         assert_eq!(explicit.gapped_pairs, array.gapped_pairs);
         // (2) two wires with one link pinned next to a filling-1/3 field
         // (K = 3, t = 1): the residual is the strip's unimodular pair plus the
@@ -588,9 +596,9 @@ particles = [-2, 1, -1, 2, 0, 0]
             &["t0"],
             None,
         );
-        assert_eq!(a.whole.invariants.det, BigInt::from(-3));
-        assert_eq!(a.whole.invariants.filling, q(1, 3));
-        assert_eq!(a.whole.invariants.group, vec![BigInt::from(3)]);
+        assert_eq!(whole(&a).invariants.det, BigInt::from(-3));
+        assert_eq!(whole(&a).invariants.filling, q(1, 3));
+        assert_eq!(whole(&a).invariants.group, vec![BigInt::from(3)]);
         check_basis_independence(&k, &t, &[n], 12);
     }
 
@@ -783,6 +791,230 @@ vector = { 0 = [1, 1] }
             "{:?}",
             a.notes
         );
-        assert_eq!(a.whole.invariants.det, BigInt::from(-1));
+        assert_eq!(whole(&a).invariants.det, BigInt::from(-1));
+    }
+
+    // ------------------------------------------------------- infinite arrays
+
+    /// An infinite array over `cell` (K, t) with named terms given as TOML
+    /// particle tables, e.g. `{ 0 = [1, -1], 2 = [-1, 1] }`.
+    fn line_model(k: &[Vec<i64>], t: &[i64], terms: &[(&str, String)]) -> String {
+        let n = t.len();
+        let mut s = format!(
+            "name = \"line\"\n[array]\nwires = \"infinite\"\nK = {}\ncharge = {}\n[array.V]\n0 = {}\n",
+            toml_int_matrix(k),
+            toml_int_vector(t),
+            toml_f64_matrix(&identity_f64(n)),
+        );
+        for (name, particles) in terms {
+            s.push_str(&format!(
+                "[[term]]\nname = \"{name}\"\nparticles = {particles}\n"
+            ));
+        }
+        s
+    }
+
+    /// The spinless cell K = diag(1, -1), t = (1, 1).
+    fn spinless_line(terms: &[(&str, String)]) -> String {
+        line_model(&diag(&[1, -1]), &[1, 1], terms)
+    }
+
+    /// A TOML particle table from (offset, vector) pairs.
+    fn table(parts: &[(usize, Vec<i64>)]) -> String {
+        let inner: Vec<String> = parts
+            .iter()
+            .map(|(o, v)| format!("{o} = {}", toml_int_vector(v)))
+            .collect();
+        format!("{{ {} }}", inner.join(", "))
+    }
+
+    fn per_wire(a: &Analysis) -> &pinflow::edges::line::PerWire {
+        a.per_wire
+            .as_ref()
+            .expect("per-wire data of an infinite array")
+    }
+
+    /// The n_c x n_c coefficient vectors of N(z), as i64.
+    fn coefficients(a: &Analysis, family: usize) -> Vec<Vec<i64>> {
+        per_wire(a).polynomials[family]
+            .coeffs
+            .iter()
+            .map(|c| ints(c))
+            .collect()
+    }
+
+    #[test]
+    fn the_laughlin_line_gaps_one_pair_per_wire() {
+        // Teo & Kane, PRB 89, 085101 (2014), physics reference section 6
+        // (from memory): the coupled-wire filling-1/m state is fully gapped
+        // in the bulk. Derived here: one null vector per link, N(z) = a + b z
+        // with a = (-(m+1)/2, (m-1)/2), b = (-(m-1)/2, (m+1)/2), which is not
+        // identically zero, so the rank over Q(z) is 1 = n_c / 2. At z = 1,
+        // a + b = (-m, m) != 0 and at z = -1, a - b = (-1, -1) != 0: no drop
+        // at q = 0 or pi.
+        for m in [1i64, 3, 5] {
+            let (a0, a1) = link(m);
+            let toml = spinless_line(&[("laughlin", table(&[(0, a0.to_vec()), (1, a1.to_vec())]))]);
+            let a = run(&toml, &["laughlin"], None);
+            let pw = per_wire(&a);
+            assert_eq!(pw.rank, 1, "m = {m}");
+            assert_eq!((a.gapped_pairs, a.gapless_modes, a.fields), (1, 0, 2));
+            assert_eq!(a.fully_gapped, Some(true));
+            assert_eq!(pw.signature, (0, 0));
+            assert_eq!((pw.rank_at_q0, pw.rank_at_pi), (1, 1));
+            assert_eq!(coefficients(&a, 0), vec![a0.to_vec(), a1.to_vec()]);
+            // Nothing ring-dependent is reported as a result.
+            assert!(a.whole.is_none() && a.edges.is_empty() && a.window.is_none());
+        }
+    }
+
+    #[test]
+    fn a_term_that_skips_a_wire_gaps_one_pair_per_wire_whatever_the_ring() {
+        // Derived: the range-2 density-wave family has N(z) = (1, -1)(1 - z^2),
+        // rank 1 over Q(z), so 1 of 1 pairs per wire; it vanishes at z = +-1,
+        // so the ranks at q = 0 and q = pi are 0. On rings it gaps
+        // W - gcd(2, W) (see tests/cli_edges.rs): 1 per wire in the limit.
+        let cdw2 = ("cdw2", table(&[(0, vec![1, -1]), (2, vec![-1, 1])]));
+        let a = run(&spinless_line(&[cdw2.clone()]), &["cdw2"], None);
+        let pw = per_wire(&a).clone();
+        assert_eq!(pw.rank, 1);
+        assert_eq!(a.fully_gapped, Some(true));
+        assert_eq!((pw.rank_at_q0, pw.rank_at_pi), (0, 0));
+        assert_eq!(
+            coefficients(&a, 0),
+            vec![vec![1, -1], vec![0, 0], vec![-1, 1]]
+        );
+        // An unpinned term of range 2, 5 or 9 sets the stand-in ring to
+        // 4 (R + 2) + 1 = 17, 29 or 45 wires: nothing reported may change.
+        for reach in [5usize, 9] {
+            let far = ("far", table(&[(0, vec![1, -1]), (reach, vec![-1, 1])]));
+            let sys = system(&spinless_line(&[cdw2.clone(), far]));
+            assert_eq!(sys.lattice.wires, 4 * (reach + 2) + 1);
+            let sel = pin(&sys, &["cdw2"]);
+            let b = analyse(&sys, &sel.pinned, None).unwrap();
+            assert_eq!(per_wire(&b), &pw, "stand-in of {} wires", sys.lattice.wires);
+            assert_eq!(
+                (b.gapped_pairs, b.gapless_modes, b.fully_gapped, b.fields),
+                (a.gapped_pairs, a.gapless_modes, a.fully_gapped, a.fields)
+            );
+        }
+    }
+
+    #[test]
+    fn families_proportional_over_q_of_z_count_once() {
+        // Derived: with a, b the filling-1/3 link vectors, the family written
+        // from wire 1 has N(z) = z (a + b z) and the family {0: a, 1: a + b,
+        // 2: b} has N(z) = (1 + z)(a + b z): both proportional to the first
+        // over Q(z), so three families give rank 1, not 2 (their coefficient
+        // vectors a, b, a + b do span Q^2). They commute: N_p(1/z)^T K N_q(z)
+        // is a multiple of (a + b/z)^T K (a + b z) = 0 (a, b null and
+        // a^T K b = 2 - 2 = 0). The sum family is null: 3 + 0 - 3 = 0.
+        let (a0, a1) = link(3);
+        let sum: Vec<i64> = a0.iter().zip(&a1).map(|(x, y)| x + y).collect();
+        let toml = spinless_line(&[
+            ("laughlin", table(&[(0, a0.to_vec()), (1, a1.to_vec())])),
+            ("shifted", table(&[(1, a0.to_vec()), (2, a1.to_vec())])),
+            (
+                "sum",
+                table(&[(0, a0.to_vec()), (1, sum), (2, a1.to_vec())]),
+            ),
+        ]);
+        let a = run(&toml, &["laughlin", "shifted", "sum"], None);
+        let pw = per_wire(&a);
+        assert_eq!(pw.rank, 1);
+        assert_eq!(a.gapped_pairs, 1);
+        assert_eq!(a.fully_gapped, Some(true));
+        // The certificate: 3 families of degree <= 2 over 2 fields give the
+        // bound min(2, 3) * 2 = 4, and as rank 2 is never reached all
+        // 5 points are evaluated.
+        assert_eq!((pw.degree_bound, pw.points), (4, 5));
+    }
+
+    #[test]
+    fn a_partly_pinned_line_gives_the_signature_of_its_gapless_modes() {
+        // Derived: a cell (phi_R, phi_R', phi_L) with K = diag(1, 1, -1) and
+        // the integer link n_j = (-1, 0, 0), n_{j+1} = (0, 0, 1) (null: 1 - 1;
+        // translates meet on one wire with (0, 0, 1)^T K (-1, 0, 0) = 0).
+        // N(z) = (-1, 0, z): rank 1, so 3 - 2 = 1 mode per wire of signature
+        // (2 - 1, 1 - 1) = (1, 0), chiral; 2 r = 3 is impossible, so the bulk
+        // is not fully gapped.
+        let toml = line_model(
+            &diag(&[1, 1, -1]),
+            &[1, 1, 1],
+            &[("link", table(&[(0, vec![-1, 0, 0]), (1, vec![0, 0, 1])]))],
+        );
+        let a = run(&toml, &["link"], None);
+        let pw = per_wire(&a);
+        assert_eq!((pw.rank, pw.gapless(), pw.signature), (1, 1, (1, 0)));
+        assert_eq!(a.fully_gapped, Some(false));
+        // Two spinless channels, one of them pinned by the filling-1/3 link:
+        // r = 1 of 2, leaving 2 modes per wire of signature (1, 1) (derived).
+        let (a0, a1) = link(3);
+        let toml = line_model(
+            &diag(&[1, -1, 1, -1]),
+            &[1, 1, 1, 1],
+            &[(
+                "up",
+                table(&[(0, vec![a0[0], a0[1], 0, 0]), (1, vec![a1[0], a1[1], 0, 0])]),
+            )],
+        );
+        let a = run(&toml, &["up"], None);
+        let pw = per_wire(&a);
+        assert_eq!((pw.rank, pw.gapless(), pw.signature), (1, 2, (1, 1)));
+        assert_eq!((a.gapped_pairs, a.gapless_modes), (1, 2));
+        assert_eq!(a.fully_gapped, Some(false));
+        // The same link on the second channel too: N_up and N_dn live on
+        // disjoint fields, rank 2 = n_c / 2, fully gapped (derived).
+        let both = toml.clone()
+            + &format!(
+                "[[term]]\nname = \"dn\"\nparticles = {}\n",
+                table(&[(0, vec![0, 0, a0[0], a0[1]]), (1, vec![0, 0, a1[0], a1[1]])])
+            );
+        let a = run(&both, &["up", "dn"], None);
+        assert_eq!((per_wire(&a).rank, a.gapless_modes), (2, 0));
+        assert_eq!(a.fully_gapped, Some(true));
+    }
+
+    #[test]
+    fn rings_approach_the_per_wire_rank() {
+        // Derived (src/edges/line.rs): a ring of W wires gaps
+        // sum over z^W = 1 of rank M(z), and rank M(z) = r except at the at
+        // most B roots of a non-zero r x r minor, so W r - B r <= count <= W r.
+        let (a0, a1) = link(3);
+        let families = [
+            ("laughlin", table(&[(0, a0.to_vec()), (1, a1.to_vec())])),
+            ("cdw2", table(&[(0, vec![1, -1]), (2, vec![-1, 1])])),
+            ("cdw3", table(&[(0, vec![1, -1]), (3, vec![-1, 1])])),
+        ];
+        for f in &families {
+            let line = run(&spinless_line(&[f.clone()]), &[f.0], None);
+            let pw = per_wire(&line);
+            for w in [12usize, 13, 14] {
+                let ring = spinless_line(&[f.clone()]).replace(
+                    "wires = \"infinite\"",
+                    &format!("wires = {w}\nboundary = \"periodic\""),
+                );
+                let count = run(&ring, &[f.0], None).gapped_pairs;
+                let (r, b) = (pw.rank, pw.degree_bound);
+                assert!(
+                    w * r - b * r <= count && count <= w * r,
+                    "{}: ring of {w} gaps {count}, per wire {r}, bound {b}",
+                    f.0
+                );
+            }
+        }
+    }
+
+    #[test]
+    fn an_infinite_array_has_no_window() {
+        let (a0, a1) = link(3);
+        let toml = spinless_line(&[("laughlin", table(&[(0, a0.to_vec()), (1, a1.to_vec())]))]);
+        let sys = system(&toml);
+        let sel = pin(&sys, &["laughlin"]);
+        let e = analyse(&sys, &sel.pinned, Some(2)).expect_err("no ends");
+        assert!(
+            e.to_string().contains("an infinite array (it has no ends)"),
+            "{e}"
+        );
     }
 }

@@ -400,6 +400,9 @@ fn cases() -> Vec<Case> {
             "error: wire.toml: fields.momentum_period: needs fields.momentum too: the period G reduces momentum mismatches, and without momenta there are none"),
         case("E92", wire("charge = [1, 1]", "charge = [1, 1]\nmomentum = [\"pi/2\", \"-pi/2\"]\nmomentum_period = 0"), "dims wire.toml", 2,
             "error: wire.toml: fields.momentum_period: must be a finite number > 0 (the reciprocal lattice vector G; momenta are conserved modulo G), found 0 at lambda=0.3"),
+        // ------------------------------------------------ edges (cont.)
+        case("E93", ring("wires = 8\n", "wires = \"infinite\"\n"), "edges ring.toml --pin tunnel --window 2", 2,
+            "error: command line: --window: only an open array has ends to look at; this model is an infinite array (it has no ends)"),
     ];
     c.sort_by_key(|c| c.id);
     c
@@ -624,4 +627,5 @@ entries! {
     e90_character_outside_expressions => "E90",
     e91_momentum_period_without_momenta => "E91",
     e92_momentum_period_not_positive => "E92",
+    e93_window_on_an_infinite_array => "E93",
 }

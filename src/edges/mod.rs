@@ -24,7 +24,20 @@
 //! ends. Without a window the whole strip's two edges form one non-chiral
 //! theory (det = +-1 when K is unimodular). "Fully gapped" for an open
 //! array is decided on the periodic array of the same cell and terms.
+//!
+//! Infinite arrays: the terms are placed and checked (local, null,
+//! commuting with every translate) on the periodic stand-in ring, which is
+//! exact for per-term and pairwise data, but no count is taken there: the
+//! ring's ranks depend on its size. The counts are per wire in the
+//! thermodynamic limit, the rank over Q(z) of the pinned families' N(z)
+//! ([`line`], with the certificate of that rank): `gapped_pairs` and
+//! `gapless_modes` are then per wire, "fully gapped" means 2 r = n_c, and
+//! the gapless modes per wire are described by their signature
+//! (n+ − r, n− − r) only. Their K matrix is not computed (`whole` is None,
+//! and there are no ends): on a ring it is the Gram matrix of generators
+//! spread over every wire and depends on the ring's size.
 
+pub mod line;
 pub mod normal;
 pub mod pins;
 pub mod reduce;
@@ -100,18 +113,20 @@ pub struct Window {
 /// Everything `edges` computes.
 #[derive(Debug, Clone)]
 pub struct Analysis {
-    /// Number of fields.
+    /// Number of fields (infinite arrays: of one wire).
     pub fields: usize,
-    /// r = rank of the pinned vectors.
+    /// r = rank of the pinned vectors (infinite arrays: per wire).
     pub gapped_pairs: usize,
-    /// N - 2r.
+    /// N - 2r (infinite arrays: per wire).
     pub gapless_modes: usize,
     /// The bulk is fully gapped (None: could not be decided).
     pub fully_gapped: Option<bool>,
     /// How `fully_gapped` was decided.
     pub gapped_basis: String,
-    /// The theory of all fields.
-    pub whole: Theory,
+    /// The theory of all fields (None for an infinite array: see [`line`]).
+    pub whole: Option<Theory>,
+    /// Infinite arrays: the per-wire data (None otherwise).
+    pub per_wire: Option<line::PerWire>,
     /// The window, when the ends were separated.
     pub window: Option<Window>,
     /// The two ends of an open array.
@@ -154,6 +169,7 @@ pub fn analyse(sys: &System, pinned: &[Pinned], window: Option<usize>) -> Result
     let mut notes = Vec::new();
     if let (Some(_), false) = (window, open) {
         let what = match lat.boundary {
+            _ if lat.infinite => "an infinite array (it has no ends)",
             Some(Boundary::Periodic) => "a periodic array",
             _ => "an explicit model (no wires)",
         };
@@ -174,6 +190,9 @@ pub fn analyse(sys: &System, pinned: &[Pinned], window: Option<usize>) -> Result
     let charge_modulus = charge_modulus(&t, &ns);
     if let Some(g) = &charge_modulus {
         notes.push(charge_note(g));
+    }
+    if lat.infinite {
+        return infinite(sys, pinned, charge_modulus, notes);
     }
     let whole_res = theory::residual(&k, &t, &all, &ls, &ns).map_err(Error::Numerical)?;
     let r = whole_res.pinned_rank;
@@ -271,9 +290,43 @@ pub fn analyse(sys: &System, pinned: &[Pinned], window: Option<usize>) -> Result
         gapless_modes: lat.n - 2 * r,
         fully_gapped,
         gapped_basis,
-        whole,
+        whole: Some(whole),
+        per_wire: None,
         window: used_window,
         edges,
+        charge_modulus,
+        notes,
+    })
+}
+
+/// An infinite array: the counts per wire from the rank over Q(z) of the
+/// pinned families' N(z) ([`line`]); no theory of all fields.
+fn infinite(
+    sys: &System,
+    pinned: &[Pinned],
+    charge_modulus: Option<BigInt>,
+    notes: Vec<String>,
+) -> Result<Analysis, Error> {
+    let pw =
+        line::per_wire(&sys.lattice, pinned, sys.invariants.signature).map_err(Error::Numerical)?;
+    let half = if pw.cell % 2 == 0 {
+        format!("{}", pw.cell / 2)
+    } else {
+        format!("{}/2", pw.cell)
+    };
+    Ok(Analysis {
+        fields: pw.cell,
+        gapped_pairs: pw.rank,
+        gapless_modes: pw.gapless(),
+        fully_gapped: Some(2 * pw.rank == pw.cell),
+        gapped_basis: format!(
+            "the pinned families' N(z) have rank {} over Q(z): {} of {half} pairs per wire",
+            pw.rank, pw.rank
+        ),
+        whole: None,
+        per_wire: Some(pw),
+        window: None,
+        edges: Vec::new(),
         charge_modulus,
         notes,
     })

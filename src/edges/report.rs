@@ -7,6 +7,14 @@
 //! `fully_gapped`, `edges` (each with `end`, `k_matrix`, `charge`,
 //! `filling` as "p/q" or "p", `det`). Integers that do not fit 64 bits are
 //! written as strings.
+//!
+//! Infinite arrays (as in `dims`): `fields` is the cell size, `wires` is
+//! null, `infinite` is true, `gapped_pairs` and `gapless_modes` are per wire
+//! and equal `gapped_pairs_per_wire` (null for finite arrays) and
+//! `per_wire.gapless_modes`; `whole` is null and `edges` empty (no K
+//! matrix of the gapless modes is computed: see `edges::line`); a pinned
+//! family's `translates` is null (one per wire) and its `n_of_z` gives
+//! N(z).
 
 use num_bigint::BigInt;
 use num_traits::{Signed, ToPrimitive};
@@ -116,12 +124,41 @@ pub struct TheoryReport {
 pub struct PinnedRow {
     /// Term name.
     pub name: String,
-    /// Number of translates pinned.
-    pub translates: usize,
+    /// Number of translates pinned (null for an infinite array: one per wire).
+    pub translates: Option<usize>,
     /// Widest support, in wires.
     pub span: usize,
     /// Particle content of its first translate.
     pub particles: Vec<WirePart>,
+    /// Infinite arrays: N(z) = Σ_j n_j z^j, n_j its particle vector on wire
+    /// j from its first wire, as "(1, -1) + (-1, 1) z^2" (null otherwise).
+    pub n_of_z: Option<String>,
+}
+
+/// Infinite arrays: what the pinned set does per wire.
+#[derive(Debug, Clone, Serialize)]
+pub struct PerWireRow {
+    /// Fields per wire n_c.
+    pub fields: usize,
+    /// r: right-left pairs gapped per wire, the rank over Q(z) of the
+    /// pinned families' N(z).
+    pub gapped_pairs: usize,
+    /// n_c - 2r.
+    pub gapless_modes: usize,
+    /// [n+ - r, n- - r]: the signature of the gapless modes per wire.
+    pub gapless_signature: [usize; 2],
+    /// Their chirality (as in the theories of finite arrays).
+    pub gapless_chirality: String,
+    /// Rank of the pinned vectors at q = 0 (z = 1).
+    pub rank_at_q_0: usize,
+    /// Rank of the pinned vectors at q = pi (z = -1).
+    pub rank_at_q_pi: usize,
+    /// Bound on the degree of the minors of the N(z) matrix: the rank over
+    /// Q(z) is the largest rank at any degree_bound + 1 distinct points.
+    pub degree_bound: usize,
+    /// Integer points z = 2, 3, ... evaluated (fewer than degree_bound + 1
+    /// when the largest possible rank was reached).
+    pub points_evaluated: usize,
 }
 
 /// A listed term that was not pinned.
@@ -152,12 +189,14 @@ pub struct EdgesReport {
     /// The point as "name=value, ..." for people.
     #[serde(skip)]
     pub point: String,
-    /// Number of fields.
+    /// Number of fields (infinite arrays: of one wire).
     pub fields: usize,
-    /// Wires (arrays).
+    /// Wires (finite arrays; null for explicit models and infinite arrays).
     pub wires: Option<usize>,
-    /// "open", "periodic" or "explicit".
+    /// "open", "periodic", "infinite" or "explicit".
     pub boundary: String,
+    /// The array is infinite (the counts are then per wire).
+    pub infinite: bool,
     /// "--pin" or "flow".
     pub chosen_by: String,
     /// The flow's winner (when chosen by the flow).
@@ -168,10 +207,14 @@ pub struct EdgesReport {
     pub pinned: Vec<PinnedRow>,
     /// Listed terms commuting with the winner that were not pinned.
     pub skipped: Vec<SkippedRow>,
-    /// r = rank of the pinned vectors.
+    /// r = rank of the pinned vectors (infinite arrays: per wire).
     pub gapped_pairs: usize,
-    /// N - 2r.
+    /// N - 2r (infinite arrays: per wire).
     pub gapless_modes: usize,
+    /// Infinite arrays: r per wire (null for finite arrays and explicit models).
+    pub gapped_pairs_per_wire: Option<usize>,
+    /// Infinite arrays: the per-wire data (null otherwise).
+    pub per_wire: Option<PerWireRow>,
     /// The bulk is fully gapped (null: undecided).
     pub fully_gapped: Option<bool>,
     /// How `fully_gapped` was decided.
@@ -181,8 +224,8 @@ pub struct EdgesReport {
     /// The theories at the two ends of an open array.
     pub edges: Vec<TheoryReport>,
     /// The theory of all fields (both edges of a strip together; what a
-    /// periodic array leaves gapless).
-    pub whole: TheoryReport,
+    /// periodic array leaves gapless; null for an infinite array).
+    pub whole: Option<TheoryReport>,
     /// Null when the pinned terms are neutral; otherwise the gcd g of their
     /// charges: charge is conserved only modulo g, and the charge vectors
     /// and fillings of the theories depend on the basis.
@@ -195,6 +238,7 @@ impl EdgesReport {
     /// Assemble the report.
     pub fn new(sys: &System, point: &[f64], sel: &Selection, a: &Analysis) -> EdgesReport {
         let lat = &sys.lattice;
+        let infinite = lat.infinite;
         let parameters = sys.model.params.json_point(point);
         let (chosen_by, winner, ell_star) = match &sel.source {
             Source::Flags => ("--pin".to_string(), None, None),
@@ -205,11 +249,13 @@ impl EdgesReport {
         let pinned = sel
             .pinned
             .iter()
-            .map(|p| PinnedRow {
+            .enumerate()
+            .map(|(i, p)| PinnedRow {
                 name: p.name.clone(),
-                translates: p.translates.len(),
+                translates: (!infinite).then_some(p.translates.len()),
                 span: p.span(),
                 particles: per_wire(sys, &p.translates[0].n),
+                n_of_z: a.per_wire.as_ref().map(|pw| pw.polynomials[i].describe()),
             })
             .collect();
         let mut notes = a.notes.clone();
@@ -218,46 +264,39 @@ impl EdgesReport {
         } else {
             "det, signature, filling and the quasiparticle charges (mod 1) and spins (mod 1, or 1/2 for odd K)"
         };
-        notes.push(format!(
-            "K matrices are Gram matrices n^T K n' of the particle vectors that commute with every pinned term, modulo the pinned ones, in a reduced basis; {invariant} do not depend on that basis."
-        ));
-        if matches!(
-            sys.model.structure,
-            crate::model::Structure::Array {
-                wires: crate::model::Wires::Infinite,
-                ..
-            }
-        ) {
-            // The stand-in ring is exact for per-term and pairwise data, not
-            // for ranks: pinning l_j - l_{j+2} on a ring of W wires leaves
-            // one global mode for odd W and two for even W.
+        if a.whole.is_some() {
             notes.push(format!(
-                "infinite array: the counts and the bulk theory are those of the periodic stand-in ring of {} wires, not of the infinite line. Modes left that spread over every wire of the ring (their charges grow with the ring) stand for a few q points of the line, a set of measure zero, and their number can depend on the ring's size (a term that skips wires pins odd and even rings differently); check a result that matters on periodic arrays of a few sizes.",
-                lat.wires,
+                "K matrices are Gram matrices n^T K n' of the particle vectors that commute with every pinned term, modulo the pinned ones, in a reduced basis; {invariant} do not depend on that basis."
             ));
         }
+        let per_wire_row = a.per_wire.as_ref().map(|pw| {
+            notes.extend(line_notes(pw));
+            PerWireRow {
+                fields: pw.cell,
+                gapped_pairs: pw.rank,
+                gapless_modes: pw.gapless(),
+                gapless_signature: [pw.signature.0, pw.signature.1],
+                gapless_chirality: chirality(pw.signature).to_string(),
+                rank_at_q_0: pw.rank_at_q0,
+                rank_at_q_pi: pw.rank_at_pi,
+                degree_bound: pw.degree_bound,
+                points_evaluated: pw.points,
+            }
+        });
         EdgesReport {
             model: sys.model.name.clone(),
             parameters,
             point: sys.model.params.describe(point),
-            fields: lat.n,
-            wires: lat.boundary.map(|_| lat.wires),
+            fields: a.fields,
+            wires: lat.boundary.filter(|_| !infinite).map(|_| lat.wires),
             boundary: match lat.boundary {
-                _ if matches!(
-                    sys.model.structure,
-                    crate::model::Structure::Array {
-                        wires: crate::model::Wires::Infinite,
-                        ..
-                    }
-                ) =>
-                {
-                    "infinite: exact lattice algebra on a periodic stand-in ring"
-                }
+                _ if infinite => "infinite",
                 Some(crate::model::Boundary::Open) => "open",
                 Some(crate::model::Boundary::Periodic) => "periodic",
                 None => "explicit",
             }
             .to_string(),
+            infinite,
             chosen_by,
             winner,
             ell_star,
@@ -272,6 +311,8 @@ impl EdgesReport {
                 .collect(),
             gapped_pairs: a.gapped_pairs,
             gapless_modes: a.gapless_modes,
+            gapped_pairs_per_wire: a.per_wire.as_ref().map(|pw| pw.rank),
+            per_wire: per_wire_row,
             fully_gapped: a.fully_gapped,
             fully_gapped_basis: a.gapped_basis.clone(),
             window: a.window.map(|w| WindowRow {
@@ -279,14 +320,14 @@ impl EdgesReport {
                 default: w.default,
             }),
             edges: a.edges.iter().map(|t| theory_report(sys, t)).collect(),
-            whole: theory_report(sys, &a.whole),
+            whole: a.whole.as_ref().map(|t| theory_report(sys, t)),
             charge_conserved_modulo: a.charge_modulus.clone().map(Int),
             notes,
         }
     }
 
     fn theories(&self) -> impl Iterator<Item = &TheoryReport> {
-        self.edges.iter().chain(std::iter::once(&self.whole))
+        self.edges.iter().chain(self.whole.as_ref())
     }
 }
 
@@ -305,18 +346,62 @@ fn per_wire(sys: &System, n: &[BigInt]) -> Vec<WirePart> {
         .collect()
 }
 
-fn theory_report(sys: &System, t: &Theory) -> TheoryReport {
-    let inv = &t.invariants;
-    let res = &t.residual;
-    let d = res.k.rows;
-    let (np, nm) = inv.signature;
-    let chirality = match (np, nm) {
+/// The chirality of modes of signature (n+, n-).
+fn chirality(signature: (usize, usize)) -> &'static str {
+    match signature {
         (0, 0) => "none",
         (_, 0) => "chiral (right-moving)",
         (0, _) => "chiral (left-moving)",
         _ => "non-chiral",
     }
-    .to_string();
+}
+
+/// The notes of an infinite array: what is per wire, the certificate of the
+/// rank, what is not computed, and modes left at q = 0 or pi alone.
+fn line_notes(pw: &super::line::PerWire) -> Vec<String> {
+    let certificate = if pw.points <= pw.degree_bound {
+        format!(
+            "it reached the largest rank possible, min(fields per wire, pinned families) = {}, at z = {} (exact rational elimination)",
+            pw.cell.min(pw.polynomials.len()),
+            pw.points + 1
+        )
+    } else {
+        format!(
+            "it is the largest rank of the matrix at the {} integer points z = 2..{}, more than the at most {} roots of a non-zero minor (exact rational elimination)",
+            pw.points,
+            pw.points + 1,
+            pw.degree_bound
+        )
+    };
+    let mut notes = vec![format!(
+        "infinite array: the counts are per wire in the thermodynamic limit, independent of any ring size: the number of right-left pairs gapped per wire is the rank over Q(z) of the matrix of the pinned families' particle vectors N(z) = sum_j n_j z^j (z = e^(iq)), and {certificate}. The terms were placed and checked (local, null, commuting) on a periodic stand-in ring, which is exact for such per-term and pairwise data; no count is taken on it."
+    )];
+    if pw.gapless() > 0 {
+        notes.push(format!(
+            "infinite array: the {} gapless mode(s) per wire have signature ({}, {}); their K matrix is not computed for the infinite array (on a ring it depends on the ring's size).",
+            pw.gapless(),
+            pw.signature.0,
+            pw.signature.1
+        ));
+    }
+    for (q, r) in [("0", pw.rank_at_q0), ("pi", pw.rank_at_pi)] {
+        if r < pw.rank {
+            notes.push(format!(
+                "infinite array: at the single momentum q = {q} the pinned vectors have rank {r}, not {}: {} more right-left pair(s) stay gapless at that momentum alone, a set of momenta of measure zero that adds no mode per wire (on a ring of W wires such modes spread over every wire, and their number depends on W).",
+                pw.rank,
+                pw.rank - r
+            ));
+        }
+    }
+    notes
+}
+
+fn theory_report(sys: &System, t: &Theory) -> TheoryReport {
+    let inv = &t.invariants;
+    let res = &t.residual;
+    let d = res.k.rows;
+    let (np, nm) = inv.signature;
+    let chirality = chirality(inv.signature).to_string();
     let group = if inv.group.is_empty() {
         "trivial".to_string()
     } else {
@@ -465,18 +550,25 @@ impl Report for EdgesReport {
         } else {
             f.push(("chosen by".to_string(), "--pin".to_string()));
         }
-        let arrays = self.wires.is_some();
+        let arrays = self.wires.is_some() || self.infinite;
         let pinned = self
             .pinned
             .iter()
             .map(|p| {
-                if arrays {
+                if let (Some(t), true) = (p.translates, arrays) {
                     format!(
-                        "{} ({} translates over {} wire(s), e.g. {})",
+                        "{} ({t} translates over {} wire(s), e.g. {})",
                         p.name,
-                        p.translates,
                         p.span,
                         fmt_parts(&p.particles, true)
+                    )
+                } else if arrays {
+                    format!(
+                        "{} (one translate per wire, over {} wire(s), e.g. {}; N(z) = {})",
+                        p.name,
+                        p.span,
+                        fmt_parts(&p.particles, true),
+                        p.n_of_z.as_deref().unwrap_or("-")
                     )
                 } else {
                     format!("{} {}", p.name, fmt_parts(&p.particles, false))
@@ -489,6 +581,7 @@ impl Report for EdgesReport {
             f.push((format!("not pinned: {}", s.name), s.reason.clone()));
         }
         let fields = match self.wires {
+            _ if self.infinite => format!("{} per wire (infinite array)", self.fields),
             Some(w) => format!(
                 "{} ({w} wires x {}, {})",
                 self.fields,
@@ -507,14 +600,38 @@ impl Report for EdgesReport {
                 ),
             ));
         }
-        f.push((
-            "gapped right-left pairs".to_string(),
-            self.gapped_pairs.to_string(),
-        ));
-        f.push((
-            "gapless modes left".to_string(),
-            self.gapless_modes.to_string(),
-        ));
+        if let Some(pw) = &self.per_wire {
+            let half = if pw.fields % 2 == 0 {
+                (pw.fields / 2).to_string()
+            } else {
+                format!("{}/2", pw.fields)
+            };
+            f.push((
+                "gapped right-left pairs".to_string(),
+                format!("{} per wire (of {half})", pw.gapped_pairs),
+            ));
+            let modes = if pw.gapless_modes == 0 {
+                "0 per wire".to_string()
+            } else {
+                format!(
+                    "{} per wire (signature ({}, {}), {}); their K matrix is not computed for the infinite array",
+                    pw.gapless_modes,
+                    pw.gapless_signature[0],
+                    pw.gapless_signature[1],
+                    pw.gapless_chirality
+                )
+            };
+            f.push(("gapless modes left".to_string(), modes));
+        } else {
+            f.push((
+                "gapped right-left pairs".to_string(),
+                self.gapped_pairs.to_string(),
+            ));
+            f.push((
+                "gapless modes left".to_string(),
+                self.gapless_modes.to_string(),
+            ));
+        }
         let gapped = match self.fully_gapped {
             Some(true) => "yes",
             Some(false) => "no",
@@ -540,7 +657,7 @@ impl Report for EdgesReport {
 
     fn tables(&self) -> Vec<Table> {
         let mut tables = vec![self.summary(true)];
-        let arrays = self.wires.is_some();
+        let arrays = self.wires.is_some() || self.infinite;
         for t in self.theories() {
             if t.modes == 0 {
                 continue;
@@ -633,6 +750,26 @@ impl EdgesReport {
                 th.chirality.clone(),
                 th.abs_det.0.to_string(),
                 th.group.clone(),
+            ]);
+        }
+        if let Some(pw) = &self.per_wire {
+            // No K matrix, charge vector, filling or |det K| per wire: see
+            // `edges::line`.
+            t.push(vec![
+                "per wire".into(),
+                "-".into(),
+                pw.gapless_modes.to_string(),
+                if pw.gapless_modes == 0 {
+                    "none".into()
+                } else {
+                    "not computed".into()
+                },
+                "-".into(),
+                "-".into(),
+                format!("({}, {})", pw.gapless_signature[0], pw.gapless_signature[1]),
+                pw.gapless_chirality.clone(),
+                "-".into(),
+                "-".into(),
             ]);
         }
         t
