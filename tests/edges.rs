@@ -875,7 +875,7 @@ vector = { 0 = [1, 1] }
         // so the ranks at q = 0 and q = pi are 0. On rings it gaps
         // W - gcd(2, W) (see tests/cli_edges.rs): 1 per wire in the limit.
         let cdw2 = ("cdw2", table(&[(0, vec![1, -1]), (2, vec![-1, 1])]));
-        let a = run(&spinless_line(&[cdw2.clone()]), &["cdw2"], None);
+        let a = run(&spinless_line(std::slice::from_ref(&cdw2)), &["cdw2"], None);
         let pw = per_wire(&a).clone();
         assert_eq!(pw.rank, 1);
         assert_eq!(a.fully_gapped, Some(true));
@@ -987,10 +987,10 @@ vector = { 0 = [1, 1] }
             ("cdw3", table(&[(0, vec![1, -1]), (3, vec![-1, 1])])),
         ];
         for f in &families {
-            let line = run(&spinless_line(&[f.clone()]), &[f.0], None);
+            let line = run(&spinless_line(std::slice::from_ref(f)), &[f.0], None);
             let pw = per_wire(&line);
             for w in [12usize, 13, 14] {
-                let ring = spinless_line(&[f.clone()]).replace(
+                let ring = spinless_line(std::slice::from_ref(f)).replace(
                     "wires = \"infinite\"",
                     &format!("wires = {w}\nboundary = \"periodic\""),
                 );

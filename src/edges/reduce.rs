@@ -100,9 +100,9 @@ fn orthogonal_summands(g: &ZMat) -> Vec<Vec<usize>> {
         while next < part.len() {
             let i = part[next];
             next += 1;
-            for j in 0..n {
-                if !seen[j] && !g.at(i, j).is_zero() {
-                    seen[j] = true;
+            for (j, seen_j) in seen.iter_mut().enumerate() {
+                if !*seen_j && !g.at(i, j).is_zero() {
+                    *seen_j = true;
                     part.push(j);
                 }
             }
@@ -794,8 +794,8 @@ mod tests {
             let half = Rational::new(BigInt::one(), BigInt::from(2));
             let delta = Rational::new(BigInt::from(99), BigInt::from(100));
             for k in 1..n {
-                for j in 0..k {
-                    assert!(mu[k][j].abs() <= half, "size reduced");
+                for m in &mu[k][..k] {
+                    assert!(m.abs() <= half, "size reduced");
                 }
                 assert!(bb[k] >= (&delta - &mu[k][k - 1] * &mu[k][k - 1]) * &bb[k - 1]);
             }
