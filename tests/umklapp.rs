@@ -293,6 +293,11 @@ fn write(dir: &Path, text: &str) {
 }
 
 fn hunt(text: &str) -> Value {
+    hunt_with(text, "conserved")
+}
+
+/// `pinflow hunt --max-dim 2 --momentum FILTER` on the model text.
+fn hunt_with(text: &str, filter: &str) -> Value {
     let dir = tempfile::tempdir().unwrap();
     write(dir.path(), text);
     let out = pinflow(dir.path())
@@ -302,7 +307,7 @@ fn hunt(text: &str) -> Value {
             "--max-dim",
             "2",
             "--momentum",
-            "conserved",
+            filter,
             "--format",
             "json",
         ])
@@ -370,25 +375,7 @@ fn hunt_reduces_rational_momenta_exactly() {
     assert!(found(&away).is_empty(), "{away}");
     // --momentum any lists both, with the reduced mismatch: backscattering
     // at 2 k_F = 0.52, reduced by G = 1 to -0.48.
-    let dir = tempfile::tempdir().unwrap();
-    write(
-        dir.path(),
-        &wire(lam, 0.26, "momentum_period = 1", terms, 0.1),
-    );
-    let out = pinflow(dir.path())
-        .args([
-            "hunt",
-            "wire.toml",
-            "--max-dim",
-            "2",
-            "--momentum",
-            "any",
-            "--format",
-            "json",
-        ])
-        .output()
-        .unwrap();
-    let r: Value = serde_json::from_slice(&out.stdout).unwrap();
+    let r = hunt_with(&wire(lam, 0.26, "momentum_period = 1", terms, 0.1), "any");
     let ops = r["operators"].as_array().unwrap();
     assert_eq!(ops.len(), 2, "{r}");
     let k_of = |m: i64| {
