@@ -477,3 +477,31 @@ fn a_period_must_be_finite_and_positive_at_the_point() {
         assert!(msg.contains("kF=1.5707963267948966, lam=0.3"), "{g}: {msg}");
     }
 }
+
+/// `pinflow flow` states the period it reduced the momenta by, in the JSON
+/// field `momentum_period` and in a note, and gives null without one.
+#[test]
+fn the_flow_report_states_the_period() {
+    let terms = [("umklapp", "[2, -2]")];
+    let run = |period: &str| -> Value {
+        let dir = tempfile::tempdir().unwrap();
+        write(dir.path(), &wire(0.5, PI / 2.0, period, &terms, 0.1));
+        let out = pinflow(dir.path())
+            .args(["flow", "wire.toml", "--format", "json"])
+            .output()
+            .unwrap();
+        serde_json::from_slice(&out.stdout).unwrap()
+    };
+    let with = run(PERIOD);
+    assert!((with["momentum_period"].as_f64().unwrap() - 2.0 * PI).abs() < 1e-12);
+    let notes = with["notes"].as_array().unwrap();
+    assert!(
+        notes.iter().any(|n| n
+            .as_str()
+            .unwrap()
+            .contains("conserved modulo the period G = 6.28319")),
+        "{notes:?}"
+    );
+    let without = run("");
+    assert!(without["momentum_period"].is_null(), "{without}");
+}

@@ -151,6 +151,9 @@ pub struct FlowResult {
     /// same flow on another rule; see [`check`]); null otherwise and for
     /// flows that failed or could not start.
     pub flow_quadrature: Option<QuadratureCheck>,
+    /// The model's reciprocal lattice vector G (`momentum_period`) at the
+    /// point, modulo which the momenta `k` are reduced; null without one.
+    pub momentum_period: Option<f64>,
     /// Accepted integration steps.
     pub steps: usize,
     /// A message for unphysical or failed points.
@@ -348,6 +351,7 @@ impl<'s> Flow<'s> {
             &rhs, &included, &bare, &y_start, &momenta, &ell_k, integrated,
         );
         result.quadrature = start.quadrature;
+        result.momentum_period = self.sys.model.momentum_period_at(point);
         Ok(result)
     }
 
@@ -460,6 +464,7 @@ impl<'s> Flow<'s> {
             dkd_drift: drift,
             quadrature: None,
             flow_quadrature: None,
+            momentum_period: None,
             steps: rhs.steps,
             message: integrated.message,
             samples: rhs.samples.clone(),
@@ -514,6 +519,7 @@ impl FlowResult {
             dkd_drift: 0.0,
             quadrature: None,
             flow_quadrature: None,
+            momentum_period: None,
             steps: 0,
             message: Some(message),
             samples: Vec::new(),

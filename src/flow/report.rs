@@ -60,6 +60,9 @@ impl FlowReport {
                 q.points, q.error_estimate, q.tolerance
             ));
         }
+        if let Some(g) = result.momentum_period {
+            notes.push(crate::dims::period_note(g));
+        }
         if let Some(c) = result.flow_quadrature.as_ref().filter(|c| !c.converged) {
             notes.push(check_note(c));
         }
