@@ -34,6 +34,7 @@ pub mod fixed_point;
 pub mod flow;
 pub mod invariants;
 pub mod lattice;
+pub mod math;
 pub mod model;
 pub mod output;
 pub mod plot;

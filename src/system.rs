@@ -243,6 +243,70 @@ impl System {
         Ok(qm.terms.iter().map(|t| fp.dimension_of(t)).collect())
     }
 
+    /// Error data of every term's q-space dimension on the rule of `fp`:
+    /// (relative error bound, sensitivity to V's rounding) from the dense
+    /// bound of [`FixedPoint::dimension_error`] on the real form of each
+    /// V(q) ([`crate::fixed_point::hermitian_embedding`]), weighted like
+    /// the quadrature; and whether any V(q) needed the extended route.
+    pub fn q_dimension_errors(
+        &self,
+        point: &[f64],
+        fp: &QFixedPoint,
+    ) -> Result<(Vec<[f64; 2]>, bool), Error> {
+        let qm = self.q_model()?;
+        let blocks = self.v_blocks(point)?;
+        let (c, n) = (qm.k.nrows(), fp.points);
+        let mut per_q = Vec::new();
+        for k in 0..qspace::half(n) {
+            let (ke, ve) = crate::fixed_point::hermitian_embedding(
+                &qm.k,
+                &qspace::v_of_q(&blocks, qspace::q_of(k, n)),
+            );
+            let f = FixedPoint::solve(&ke, &ve).map_err(|e| {
+                self.unphysical(
+                    point,
+                    NotPositive {
+                        q: qspace::q_of(k, n),
+                        smallest_eigenvalue: e,
+                    },
+                )
+            })?;
+            per_q.push(f);
+        }
+        let extended = per_q.iter().any(|f| f.accuracy.extended);
+        let rows = qm
+            .terms
+            .iter()
+            .map(|t| {
+                let lq = qspace::fourier_vector(t, c, n);
+                let (mut delta, mut err, mut sens) = (0.0, 0.0, 0.0);
+                for (k, f) in per_q.iter().enumerate() {
+                    let x: Vec<f64> = (0..2 * c)
+                        .map(|i| {
+                            if i < c {
+                                lq[k * c + i].re
+                            } else {
+                                lq[k * c + i - c].im
+                            }
+                        })
+                        .collect();
+                    let xd = nalgebra::DVector::from_column_slice(&x);
+                    let dk = 0.5 * (&f.d * &xd).dot(&xd);
+                    let w = qspace::weight(k, n);
+                    delta += w * dk;
+                    err += w * dk * f.accuracy.relative_error(&f.d, &x, dk);
+                    sens += w * dk * f.accuracy.input_sensitivity(&x, dk);
+                }
+                if delta > 0.0 {
+                    [err / delta, sens / delta]
+                } else {
+                    [0.0, 0.0]
+                }
+            })
+            .collect();
+        Ok((rows, extended))
+    }
+
     /// The real-space D restricted to `wires` consecutive wires (fields
     /// wire-major), from D(q): D_{j,j'} = integral dq/2pi e^{iq(j-j')} D(q)
     /// (conventions of [`crate::qspace`]). A periodic array of W wires:

@@ -35,6 +35,7 @@
 pub mod background;
 pub mod channels;
 pub mod check;
+pub mod kt;
 pub mod options;
 pub mod report;
 pub mod rhs;
@@ -119,6 +120,21 @@ pub struct ChannelResult {
     pub ell_k: Option<f64>,
 }
 
+/// The runner-up of a strong-coupling outcome (JSON `runner_up`).
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct RunnerUp {
+    /// Channel name.
+    pub name: String,
+    /// |y| at ell*.
+    pub coupling: f64,
+    /// `coupling` is within [`NEAR_TIE`] (relative) of y_strong: the
+    /// winner is decided by a margin the second-order flow cannot resolve.
+    pub near_tie: bool,
+}
+
+/// A runner-up within this fraction of y_strong is a near tie.
+pub const NEAR_TIE: f64 = 0.05;
+
 /// The result of one flow.
 #[derive(Debug, Clone, Serialize)]
 pub struct FlowResult {
@@ -137,6 +153,11 @@ pub struct FlowResult {
     pub ell_end: f64,
     /// Every channel that flowed (listed first).
     pub terms: Vec<ChannelResult>,
+    /// Strong and spinful outcomes: the channel with the largest |y| at
+    /// ell* after the winner, among those still flowing there (not past
+    /// their momentum cut-off); null when there is none or for other
+    /// outcomes.
+    pub runner_up: Option<RunnerUp>,
     /// Terms that commute with the winner (may pin together with it).
     pub commuting_with_winner: Vec<String>,
     /// Terms that do not commute with the winner (pinning suppresses them).
@@ -154,6 +175,10 @@ pub struct FlowResult {
     /// The model's reciprocal lattice vector G (`momentum_period`) at the
     /// point, modulo which the momenta `k` are reduced; null without one.
     pub momentum_period: Option<f64>,
+    /// Single null cosine flowing alone: what the Kosterlitz-Thouless
+    /// invariant decided, and how far ell_max was extended (see [`kt`]);
+    /// null when the invariant was not used.
+    pub kt: Option<kt::KtDecision>,
     /// Accepted integration steps.
     pub steps: usize,
     /// A message for unphysical or failed points.
@@ -346,10 +371,16 @@ impl<'s> Flow<'s> {
         }
         let y_start = y0.clone();
         let ell_k: Vec<Option<f64>> = momenta.iter().map(|k| k.and_then(cutoff_scale)).collect();
-        let integrated = integrate(&mut rhs, y0, &ell_k, &self.opts);
+        let mut integrated = integrate(&mut rhs, y0, &ell_k, &self.opts);
+        let mut kt_decision = None;
+        if let Some(c) = kt::regime(&rhs, y_start.as_slice(), &ell_k) {
+            (integrated, kt_decision) =
+                kt::decide(&mut rhs, c, y_start.as_slice(), integrated, &self.opts);
+        }
         let mut result = self.summarise(
             &rhs, &included, &bare, &y_start, &momenta, &ell_k, integrated,
         );
+        result.kt = kt_decision;
         result.quadrature = start.quadrature;
         result.momentum_period = self.sys.model.momentum_period_at(point);
         Ok(result)
@@ -458,6 +489,7 @@ impl<'s> Flow<'s> {
             ell_star: integrated.ell_star,
             gap: integrated.ell_star.map(|l| (-l).exp()),
             ell_end: integrated.ell_end,
+            runner_up: None,
             terms,
             commuting_with_winner: Vec::new(),
             suppressed: Vec::new(),
@@ -465,11 +497,13 @@ impl<'s> Flow<'s> {
             quadrature: None,
             flow_quadrature: None,
             momentum_period: None,
+            kt: None,
             steps: rhs.steps,
             message: integrated.message,
             samples: rhs.samples.clone(),
         };
         if let Some(w) = integrated.winner {
+            result.runner_up = runner_up(&result, w, self.opts.y_strong);
             let win = &self.plan.channels[included[w]];
             for (i, &c) in included.iter().enumerate() {
                 if i == w {
@@ -514,17 +548,36 @@ impl FlowResult {
             gap: None,
             ell_end: 0.0,
             terms: Vec::new(),
+            runner_up: None,
             commuting_with_winner: Vec::new(),
             suppressed: Vec::new(),
             dkd_drift: 0.0,
             quadrature: None,
             flow_quadrature: None,
             momentum_period: None,
+            kt: None,
             steps: 0,
             message: Some(message),
             samples: Vec::new(),
         }
     }
+}
+
+/// The largest |y| at ell* among the channels other than the winner `w`
+/// that still flow there (a term past its cut-off ell_k < ell* is not
+/// competing).
+fn runner_up(r: &FlowResult, w: usize, y_strong: f64) -> Option<RunnerUp> {
+    let ell = r.ell_star?;
+    r.terms
+        .iter()
+        .enumerate()
+        .filter(|(i, t)| *i != w && t.ell_k.is_none_or(|k| k > ell))
+        .max_by(|a, b| a.1.coupling.total_cmp(&b.1.coupling))
+        .map(|(_, t)| RunnerUp {
+            name: t.name.clone(),
+            coupling: t.coupling,
+            near_tie: t.coupling >= (1.0 - NEAR_TIE) * y_strong,
+        })
 }
 
 fn extra_of(ch: &Channel, extra_listed: &[f64]) -> f64 {
