@@ -59,7 +59,7 @@ fn evaluate(sys: &System, point: &[f64], algebra: Algebra) -> Result<Evaluated, 
         let (fp, quad) = sys.q_converged(point)?;
         // The infinite array's D(q) stays in doubles (there is no dense
         // path); the bound says how accurate it is.
-        let (errors, _) = sys.q_dimension_errors(point, &fp)?;
+        let (errors, _) = sys.q_dimension_errors(point, fp.points)?;
         return Ok(Evaluated {
             bosonic: sys.q_dimensions(&fp)?,
             errors,
@@ -70,13 +70,13 @@ fn evaluate(sys: &System, point: &[f64], algebra: Algebra) -> Result<Evaluated, 
             quadrature: Some(quad),
         });
     }
-    let fp = sys.q_fixed_point(point, sys.lattice.wires)?;
-    let (errors, extended) = sys.q_dimension_errors(point, &fp)?;
+    let (errors, extended) = sys.q_dimension_errors(point, sys.lattice.wires)?;
     if extended && algebra == Algebra::Auto {
         // Ill-conditioned V(q): the dense path of the same ring computes
         // the same numbers in double-double.
         return evaluate_dense(sys, point);
     }
+    let fp = sys.q_fixed_point(point, sys.lattice.wires)?;
     let (velocities, chiralities) = fp.all_velocities();
     Ok(Evaluated {
         bosonic: sys.q_dimensions(&fp)?,

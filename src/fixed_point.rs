@@ -157,6 +157,19 @@ impl FixedPoint {
         self.accuracy.relative_error(&self.d, &lf, delta)
     }
 
+    /// Relative error of Delta_l when D is rounded to doubles and the
+    /// quadratic form is summed in doubles (as the flow does):
+    /// 2 n u (1/2) |l|^T |D| |l| / Delta_l (the last term of
+    /// [`Accuracy::relative_error`] in double precision).
+    pub fn storage_error(&self, l: &[i64]) -> f64 {
+        let la: Vec<i64> = l.iter().map(|x| x.abs()).collect();
+        let delta = self.dimension(l);
+        if delta == 0.0 {
+            return 0.0;
+        }
+        2.0 * l.len() as f64 * F64_UNIT * quad_form(&self.d.abs(), &la) / delta
+    }
+
     /// [`Accuracy::input_sensitivity`] of the dimension of l.
     pub fn dimension_sensitivity(&self, l: &[i64]) -> f64 {
         let lf: Vec<f64> = l.iter().map(|x| *x as f64).collect();

@@ -243,7 +243,7 @@ impl System {
         Ok(qm.terms.iter().map(|t| fp.dimension_of(t)).collect())
     }
 
-    /// Error data of every term's q-space dimension on the rule of `fp`:
+    /// Error data of every term's q-space dimension on the N-point rule:
     /// (relative error bound, sensitivity to V's rounding) from the dense
     /// bound of [`FixedPoint::dimension_error`] on the real form of each
     /// V(q) ([`crate::fixed_point::hermitian_embedding`]), weighted like
@@ -251,11 +251,11 @@ impl System {
     pub fn q_dimension_errors(
         &self,
         point: &[f64],
-        fp: &QFixedPoint,
+        points: usize,
     ) -> Result<(Vec<[f64; 2]>, bool), Error> {
         let qm = self.q_model()?;
         let blocks = self.v_blocks(point)?;
-        let (c, n) = (qm.k.nrows(), fp.points);
+        let (c, n) = (qm.k.nrows(), points);
         let mut per_q = Vec::new();
         for k in 0..qspace::half(n) {
             let (ke, ve) = crate::fixed_point::hermitian_embedding(
@@ -393,7 +393,10 @@ impl System {
             })
         })?;
         let drift = crate::fixed_point::identity_drift(&self.k, &fp.d);
-        if drift <= ACCURACY {
+        if drift <= ACCURACY || fp.accuracy.extended {
+            // The extended route is judged by its per-dimension error
+            // bound (`FixedPoint::dimension_error`), not by the drift of
+            // the D rounded to doubles.
             return Ok(fp);
         }
         let cond = crate::fixed_point::condition_number(&v);

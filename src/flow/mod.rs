@@ -250,6 +250,7 @@ impl<'s> Flow<'s> {
         match self.layout {
             Layout::Dense => {
                 let fp = self.sys.fixed_point(point)?;
+                self.check_storage(point, &fp)?;
                 let bg = Background::Dense { n: lat.n };
                 let mut d0 = vec![0.0; bg.len()];
                 bg.write(&fp.d, &mut d0);
@@ -286,6 +287,30 @@ impl<'s> Flow<'s> {
                 })
             }
         }
+    }
+
+    /// Refuse a dense start whose listed terms' dimensions, computed from a
+    /// D carried in doubles, have an error bound above
+    /// [`crate::fixed_point::DIMENSION_ERROR_LIMIT`] (ill-conditioned V).
+    fn check_storage(
+        &self,
+        point: &[f64],
+        fp: &crate::fixed_point::FixedPoint,
+    ) -> Result<(), Error> {
+        let limit = crate::fixed_point::DIMENSION_ERROR_LIMIT;
+        for (t, fam) in self.sys.model.terms.iter().zip(&self.sys.lattice.families) {
+            let l = &fam.rep().l;
+            let e = fp.dimension_error(l) + fp.storage_error(l);
+            if !(e <= limit) {
+                return Err(Error::Inaccurate(format!(
+                    "{}: the flow at {} cannot be computed accurately: the scaling dimension of term \"{}\" from D in double precision has error bound {e:.1e} (relative; at most {limit:.0e} is accepted), V is badly conditioned there; choose another point",
+                    self.sys.model.file,
+                    self.sys.model.params.describe(point),
+                    t.name
+                )));
+            }
+        }
+        Ok(())
     }
 
     /// The start of an infinite array's flow on the rule of `fp`.

@@ -135,9 +135,10 @@ impl FlowReport {
         }
     }
 
-    /// What happened in a gapless flow: terms that grew and were stopped by
-    /// their momentum cut-off are named with the coupling they reached;
-    /// the rest decayed.
+    /// What happened in a gapless flow: terms stopped by their momentum
+    /// cut-off before they decayed below the floor are named with the
+    /// coupling they reached there ("grew to" or "decayed to"); the rest
+    /// decayed.
     fn gapless_text(&self) -> String {
         let r = &self.result;
         if let Some(k) = r.kt.as_ref().filter(|k| k.side == "below") {
@@ -147,31 +148,36 @@ impl FlowReport {
                 k.delta_inf.unwrap_or(f64::NAN)
             );
         }
-        let grew: Vec<String> = r
+        let cut: Vec<String> = r
             .terms
             .iter()
-            .filter(|t| t.ell_k.is_some_and(|k| k <= r.ell_end) && t.coupling > t.coupling0.abs())
+            .filter(|t| t.ell_k.is_some_and(|k| k <= r.ell_end) && t.coupling >= self.options.floor)
             .map(|t| {
+                let how = if t.coupling > t.coupling0.abs() {
+                    "grew"
+                } else {
+                    "decayed"
+                };
                 format!(
-                    "{} grew to {:.3} and stopped at its momentum cut-off ell_k = {:.2}",
+                    "{} {how} to {:.3} and stopped at its momentum cut-off ell_k = {:.2}",
                     t.name,
                     t.coupling,
                     t.ell_k.unwrap_or(f64::NAN)
                 )
             })
             .collect();
-        if grew.is_empty() {
+        if cut.is_empty() {
             return format!(
                 "every coupling decayed by ell = {:.4}: gapless (stable fixed point)",
                 r.ell_end
             );
         }
-        let what = if grew.len() == r.terms.len() {
-            "no coupling still flowing is left".to_string()
+        let rest = if cut.len() == r.terms.len() {
+            "no term flows past its cut-off".to_string()
         } else {
             format!("every other coupling decayed by ell = {:.4}", r.ell_end)
         };
-        format!("{}; {what}: gapless (stable fixed point)", grew.join("; "))
+        format!("{}; {rest}: gapless (stable fixed point)", cut.join("; "))
     }
 
     /// A short outcome for figure titles.
