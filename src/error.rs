@@ -55,7 +55,7 @@ pub enum Error {
     /// A parameter point at which the theory is not defined (exit code 2 for
     /// a single point; a scan records it as the outcome "unphysical").
     #[error("{0}")]
-    Unphysical(#[from] crate::fixed_point::Unphysical),
+    Unphysical(#[from] crate::core::fixed_point::Unphysical),
     /// A parameter point at which a result cannot be computed to the
     /// accuracy the tool promises (e.g. a scaling dimension whose error
     /// bound exceeds 1e-8): the message names the point (exit code 2).

@@ -20,9 +20,9 @@ mod common;
 use std::process::Command;
 
 use common::{toml_f64_matrix, toml_int_matrix};
-use pinflow::exact;
+use pinflow::core::system::System;
+use pinflow::math::rational;
 use pinflow::model::Model;
-use pinflow::system::System;
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 
@@ -47,7 +47,7 @@ fn random_cases(count: usize, seed: u64) -> Vec<Case> {
                 k[j][i] = x;
             }
         }
-        if exact::det_and_inverse(&k).is_none() {
+        if rational::det_and_inverse(&k).is_none() {
             continue; // singular: draw again
         }
         let a: Vec<Vec<f64>> = (0..n)
@@ -280,9 +280,11 @@ fn ill_conditioned_dimensions_agree_with_mpmath_at_50_digits() {
         .iter()
         .map(|c| {
             let n = c.k.len();
-            pinflow::fixed_point::condition_number(&nalgebra::DMatrix::from_fn(n, n, |i, j| {
-                c.v[i][j]
-            }))
+            pinflow::core::fixed_point::condition_number(&nalgebra::DMatrix::from_fn(
+                n,
+                n,
+                |i, j| c.v[i][j],
+            ))
         })
         .collect();
     for (c, range) in conds
