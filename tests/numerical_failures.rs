@@ -104,6 +104,7 @@ fn a_v_with_condition_number_1e30_is_refused_on_the_dense_path() {
         assert!(msg.contains(part), "`{part}` missing from: {msg}");
     }
     inaccurate_message(Flow::new(&sys, flow_opts(&sys)).run(&point));
+    inaccurate_message(search::hunt(&sys, &point, &HuntOptions::default()));
 }
 
 #[test]

@@ -117,7 +117,7 @@ fn check_errors(sys: &System, point: &[f64], ev: &Evaluated) -> Result<(), Error
         .enumerate()
         .max_by(|a, b| a.1[0].total_cmp(&b.1[0]));
     match worst {
-        Some((i, e)) if !(e[0] <= DIMENSION_ERROR_LIMIT) => Err(Error::Inaccurate(format!(
+        Some((i, e)) if e[0] > DIMENSION_ERROR_LIMIT || e[0].is_nan() => Err(Error::Inaccurate(format!(
             "{}: the scaling dimension of term \"{}\" at {} cannot be computed accurately: its error bound is {:.1e} (relative; at most {:.0e} is accepted), V is badly conditioned there; choose another point",
             sys.model.file,
             sys.model.terms[i].name,

@@ -301,7 +301,7 @@ impl<'s> Flow<'s> {
         for (t, fam) in self.sys.model.terms.iter().zip(&self.sys.lattice.families) {
             let l = &fam.rep().l;
             let e = fp.dimension_error(l) + fp.storage_error(l);
-            if !(e <= limit) {
+            if e > limit || e.is_nan() {
                 return Err(Error::Inaccurate(format!(
                     "{}: the flow at {} cannot be computed accurately: the scaling dimension of term \"{}\" from D in double precision has error bound {e:.1e} (relative; at most {limit:.0e} is accepted), V is badly conditioned there; choose another point",
                     self.sys.model.file,

@@ -239,7 +239,7 @@ pub fn cholesky(v: &DdMat) -> Option<DdMat> {
         for k in 0..j {
             d = d - l.at(j, k) * l.at(j, k);
         }
-        if !(d.hi > 0.0) {
+        if d.hi <= 0.0 || d.hi.is_nan() {
             return None;
         }
         let ljj = d.sqrt();
