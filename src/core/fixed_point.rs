@@ -255,6 +255,18 @@ impl Accuracy {
         }
     }
 
+    /// Every number the error bound uses is finite (false when V is so
+    /// extreme that even the extended route overflows or underflows).
+    pub fn is_finite(&self) -> bool {
+        self.basis.iter().all(|x| x.is_finite())
+            && self.eig.iter().all(|x| x.is_finite() && *x != 0.0)
+            && self.weight.iter().all(|x| x.is_finite())
+            && self
+                .d_lo
+                .as_ref()
+                .is_none_or(|m| m.iter().all(|x| x.is_finite()))
+    }
+
     /// Unit roundoff of the route.
     pub fn unit_roundoff(&self) -> f64 {
         if self.extended {

@@ -262,15 +262,18 @@ impl System {
                 &qm.k,
                 &qspace::v_of_q(&blocks, qspace::q_of(k, n)),
             );
-            let f = FixedPoint::solve(&ke, &ve).map_err(|e| {
-                self.unphysical(
-                    point,
-                    NotPositive {
-                        q: qspace::q_of(k, n),
-                        smallest_eigenvalue: e,
-                    },
-                )
-            })?;
+            let Ok(f) = FixedPoint::solve(&ke, &ve) else {
+                // Not positive definite: the q-space path's own report (the
+                // worst q of a ring, the certified check of an infinite
+                // array) is the error.
+                return Err(match self.q_fixed_point(point, n) {
+                    Err(e) => e,
+                    Ok(_) => Error::Numerical(format!(
+                        "V(q) at q = {:.6} failed the Cholesky factorisation of the error bound but not of the fixed point",
+                        qspace::q_of(k, n)
+                    )),
+                });
+            };
             per_q.push(f);
         }
         let extended = per_q.iter().any(|f| f.accuracy.extended);
@@ -393,7 +396,9 @@ impl System {
             })
         })?;
         let drift = crate::core::fixed_point::identity_drift(&self.k, &fp.d);
-        if drift <= ACCURACY || fp.accuracy.extended {
+        let trusted =
+            fp.accuracy.extended && fp.accuracy.is_finite() && fp.d.iter().all(|x| x.is_finite());
+        if drift <= ACCURACY || trusted {
             // The extended route is judged by its per-dimension error
             // bound (`FixedPoint::dimension_error`), not by the drift of
             // the D rounded to doubles.
