@@ -23,8 +23,8 @@ mod common;
 
 use assert_cmd::Command;
 use common::{peak_kb, svg_texts};
-use pinflow::scan::store::{csv_line, Meta, MAGIC};
 use pinflow::flow::Outcome;
+use pinflow::scan::store::{csv_line, Meta, MAGIC};
 
 const OUTCOMES: [&str; 6] = [
     "strong",
