@@ -19,7 +19,7 @@ use serde::Serialize;
 use crate::core::momentum::MOMENTUM_TOLERANCE;
 use crate::core::qspace::Quadrature;
 use crate::core::relevance::{is_relevant, rg_eigenvalue};
-use crate::core::system::System;
+use crate::core::system::{EvalPath, System};
 use crate::error::Error;
 use crate::math::rational::{self, fmt_rational};
 use crate::output::{Report, Table};
@@ -47,7 +47,7 @@ struct Evaluated {
 
 fn evaluate(sys: &System, point: &[f64], algebra: Algebra) -> Result<Evaluated, Error> {
     let q = match algebra {
-        Algebra::Auto => sys.q.is_some(),
+        Algebra::Auto => sys.eval_path() != EvalPath::Dense,
         Algebra::Dense => false,
         Algebra::QSpace => true,
     };
