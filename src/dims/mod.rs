@@ -19,7 +19,8 @@ use serde::Serialize;
 use crate::core::fixed_point::DIMENSION_ERROR_LIMIT;
 use crate::core::momentum::MOMENTUM_TOLERANCE;
 use crate::core::qspace::Quadrature;
-use crate::core::system::System;
+use crate::core::relevance::{is_relevant, rg_eigenvalue};
+use crate::core::system::{EvalPath, System};
 use crate::error::Error;
 use crate::math::rational::{self, fmt_rational};
 use crate::output::{Report, Table};
@@ -51,7 +52,7 @@ struct Evaluated {
 
 fn evaluate(sys: &System, point: &[f64], algebra: Algebra) -> Result<Evaluated, Error> {
     let q = match algebra {
-        Algebra::Auto => sys.q.is_some(),
+        Algebra::Auto => sys.eval_path() != EvalPath::Dense,
         Algebra::Dense => false,
         Algebra::QSpace => true,
     };
@@ -300,8 +301,8 @@ impl DimsReport {
                 charge_ok: ti.charge_ok,
                 local: ti.local,
                 null: ti.null,
-                relevant: dimension < 2.0,
-                rg_eigenvalue: 2.0 - dimension,
+                relevant: is_relevant(dimension),
+                rg_eigenvalue: rg_eigenvalue(dimension),
                 momentum: k,
                 momentum_conserved: k.map(|k| k.abs() < MOMENTUM_TOLERANCE),
                 self_commuting: ti.self_commuting,

@@ -46,10 +46,9 @@ use ode_solvers::dop_shared::OutputType;
 use ode_solvers::Dopri5;
 use serde::Serialize;
 
-use crate::core::system::System;
+use crate::core::system::{EvalPath, System};
 use crate::error::{Error, InputError};
 use crate::math::rational::fmt_rational;
-use crate::model::Boundary;
 use background::Background;
 use channels::{Channel, Origin, Plan};
 pub use check::{QuadratureCheck, RuleChoice, StoppedBy};
@@ -76,6 +75,26 @@ pub enum Outcome {
 }
 
 impl Outcome {
+    /// Every outcome, in the order outputs list them.
+    pub const ALL: [Outcome; 6] = [
+        Outcome::Strong,
+        Outcome::Spinful,
+        Outcome::Gapless,
+        Outcome::Undecided,
+        Outcome::Unphysical,
+        Outcome::Failed,
+    ];
+
+    /// The outcome a word of [`Outcome::word`] names.
+    pub fn from_word(word: &str) -> Option<Outcome> {
+        Outcome::ALL.into_iter().find(|o| o.word() == word)
+    }
+
+    /// Whether a term won: the outcomes that name a winner.
+    pub fn has_winner(self) -> bool {
+        matches!(self, Outcome::Strong | Outcome::Spinful)
+    }
+
     /// The word used in every output.
     pub fn word(self) -> &'static str {
         match self {
@@ -228,14 +247,10 @@ impl<'s> Flow<'s> {
     /// Prepare the plan (exact work done once).
     pub fn new(sys: &'s System, opts: FlowOptions) -> Flow<'s> {
         let plan = Plan::build(sys, opts.closure == Closure::Pairs);
-        let lat = &sys.lattice;
-        let layout = if sys.is_infinite() {
-            Layout::Infinite
-        } else {
-            match lat.boundary {
-                Some(Boundary::Periodic) if lat.wires > 1 && !opts.dense_d => Layout::Ring,
-                _ => Layout::Dense,
-            }
+        let layout = match sys.eval_path() {
+            EvalPath::Infinite => Layout::Infinite,
+            EvalPath::Ring if !opts.dense_d => Layout::Ring,
+            _ => Layout::Dense,
         };
         Flow {
             sys,

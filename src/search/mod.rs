@@ -40,7 +40,7 @@ use std::collections::BTreeSet;
 
 use nalgebra::DMatrix;
 
-use crate::core::system::System;
+use crate::core::system::{EvalPath, System};
 use crate::error::{Error, InputError};
 use crate::math::ellipsoid::Ellipsoid;
 use crate::math::rational;
@@ -265,14 +265,7 @@ fn check_carried(
 /// point, placed on the window's fields of the stand-in ring (the rest is
 /// never read).
 fn window_d(sys: &System, point: &[f64], window: &Window) -> Result<DMatrix<f64>, Error> {
-    let infinite = matches!(
-        sys.model.structure,
-        crate::model::Structure::Array {
-            wires: crate::model::Wires::Infinite,
-            ..
-        }
-    );
-    if !infinite {
+    if sys.eval_path() != EvalPath::Infinite {
         let fp = sys.fixed_point(point)?;
         check_carried(sys, point, &fp)?;
         return Ok(fp.d);
@@ -470,7 +463,7 @@ pub fn hunt(sys: &System, point: &[f64], opts: &HuntOptions) -> Result<HuntRepor
             charge: space.charge(&m) as i64,
             spin: rational::fmt_rational(&spin),
             dimension,
-            rg_eigenvalue: 2.0 - dimension,
+            rg_eigenvalue: crate::core::relevance::rg_eigenvalue(dimension),
             momentum: k,
             model_term: model_term(sys, &space.window, &canon),
             competitors: competitors(sys, &full),
