@@ -246,7 +246,8 @@ impl DimsReport {
                 relevant: dimension < 2.0,
                 rg_eigenvalue: 2.0 - dimension,
                 momentum: k,
-                momentum_conserved: k.map(|k| k.abs() < MOMENTUM_TOLERANCE && dk.is_none_or(|d| d == 0.0)),
+                momentum_conserved: k
+                    .map(|k| k.abs() < MOMENTUM_TOLERANCE && dk.is_none_or(|d| d == 0.0)),
                 momentum_per_translate: dk,
                 self_commuting: ti.self_commuting,
                 coupling: spec.coupling.eval(point),

@@ -411,7 +411,12 @@ pub mod per_translate {
     /// None for models without `momentum_per_wire`.
     pub fn shift(model: &Model, net: &[Rational], point: &[f64]) -> Option<f64> {
         let b = model.momentum_per_wire.as_ref()?;
-        Some(net.iter().zip(b).map(|(n, s)| exact::to_f64(n) * s.eval(point)).sum())
+        Some(
+            net.iter()
+                .zip(b)
+                .map(|(n, s)| exact::to_f64(n) * s.eval(point))
+                .sum(),
+        )
     }
 
     /// dk can be non-zero somewhere in parameter space: after summing N_c

@@ -227,9 +227,9 @@ impl Plan {
         }
         if generate {
             let wiring = Wiring::of(sys);
-            let applied = wiring.as_ref().map(|w| {
-                range.unwrap_or_else(|| default_range(w, &plan.channels[..plan.listed]))
-            });
+            let applied = wiring
+                .as_ref()
+                .map(|w| range.unwrap_or_else(|| default_range(w, &plan.channels[..plan.listed])));
             plan.range = applied;
             plan.range_note = Some(range_note(applied, range.is_some()));
             plan.generate_candidates(sys, &mut index, wiring.as_ref().zip(applied));
@@ -249,7 +249,13 @@ impl Plan {
 
     /// One channel per listed term, or per translate when split.
     fn add_listed(&mut self, sys: &System) {
-        for (i, (spec, fam)) in sys.model.terms.iter().zip(&sys.lattice.families).enumerate() {
+        for (i, (spec, fam)) in sys
+            .model
+            .terms
+            .iter()
+            .zip(&sys.lattice.families)
+            .enumerate()
+        {
             let spin = sys.invariants.terms[i].spin.clone();
             if !self.split {
                 let ch = make_channel(sys, spec.name.clone(), Origin::Listed(i), fam.clone(), spin);

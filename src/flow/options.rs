@@ -172,7 +172,12 @@ impl FlowOptions {
             o.closure_bound = b;
         }
         if let Some(r) = over.closure_range {
-            o.closure_range = Some(check_closure_range(model, r, "command line", "--closure-range")?);
+            o.closure_range = Some(check_closure_range(
+                model,
+                r,
+                "command line",
+                "--closure-range",
+            )?);
         }
         if let Some(n) = over.q_points {
             o.q_points = Some(check_q_points(model, n, "command line", "--q-points")?);

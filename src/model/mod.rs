@@ -486,10 +486,17 @@ fn read_field_wires(
     };
     let raw = values::int_vector(ctx, v, "fields.wires", n, "one wire index per field")?;
     // Every wire holds a field, so there are at most n wires.
-    if let Some((i, w)) = raw.iter().enumerate().find(|(_, w)| !(0..n as i64).contains(*w)) {
+    if let Some((i, w)) = raw
+        .iter()
+        .enumerate()
+        .find(|(_, w)| !(0..n as i64).contains(*w))
+    {
         return Err(ctx.err(
             &format!("fields.wires[{i}]"),
-            format!("expected a wire index from 0 to {} (the number of fields less one), found {w}", n - 1),
+            format!(
+                "expected a wire index from 0 to {} (the number of fields less one), found {w}",
+                n - 1
+            ),
         ));
     }
     let count = raw.iter().copied().max().unwrap_or(-1) + 1;
@@ -500,7 +507,10 @@ fn read_field_wires(
     if let Some(gap) = used.iter().position(|u| !u) {
         return Err(ctx.err(
             "fields.wires",
-            format!("wires are numbered 0 to {} without gaps, but no field is on wire {gap}", count - 1),
+            format!(
+                "wires are numbered 0 to {} without gaps, but no field is on wire {gap}",
+                count - 1
+            ),
         ));
     }
     let periodic = match boundary {
