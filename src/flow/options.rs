@@ -262,24 +262,24 @@ impl FlowOptions {
 /// range accepted there. Finite arrays accept any range (terms wider than
 /// the array cannot occur).
 fn check_closure_range(model: &Model, r: i64, file: &str, key: &str) -> Result<usize, InputError> {
-    let most = if model.is_infinite() {
-        (crate::lattice::Lattice::stand_in_wires(model) - 1) / 2
-    } else {
-        crate::model::MAX_FIELDS
-    };
-    if r < 1 || r > most as i64 {
-        let why = if model.is_infinite() {
-            format!(" (an infinite array with terms reaching wire offset {} flows generated terms up to {most} wires wide)", model.terms.iter().map(|t| t.range()).max().unwrap_or(0))
-        } else {
-            String::new()
-        };
+    if model.is_infinite() {
+        let most = (crate::lattice::Lattice::stand_in_wires(model) - 1) / 2;
+        if !(1..=most as i64).contains(&r) {
+            let reach = model.terms.iter().map(|t| t.range()).max().unwrap_or(0);
+            return Err(InputError::new(
+                file,
+                key,
+                format!("expected a whole number of wires from 1 to {most} (an infinite array whose terms reach wire offset {reach} flows generated terms up to {most} wires wide), found {r}"),
+            ));
+        }
+    } else if r < 1 {
         return Err(InputError::new(
             file,
             key,
-            format!("expected a whole number of wires from 1 to {most}{why}, found {r}"),
+            format!("expected a whole number of wires, at least 1 (a generated term spans at least one wire), found {r}"),
         ));
     }
-    Ok(r as usize)
+    Ok(usize::try_from(r).unwrap_or(usize::MAX))
 }
 
 /// A number of quadrature points: only for infinite arrays, at least
