@@ -161,6 +161,11 @@ pub struct FlowResult {
     /// Notes of the plan (closure range, translates flowed one by one).
     #[serde(skip)]
     pub plan_notes: Vec<String>,
+    /// For each model term, its row in `terms` (the representative's
+    /// translate when every translate flows on its own; see
+    /// `channels::Plan::split`).
+    #[serde(skip)]
+    pub listed_rows: Vec<Option<usize>>,
     /// Accepted integration steps.
     pub steps: usize,
     /// A message for unphysical or failed points.
@@ -483,6 +488,7 @@ impl<'s> Flow<'s> {
             momentum_period: None,
             closure_range: self.plan.range,
             plan_notes: self.plan_notes(),
+            listed_rows: self.listed_rows(included),
             steps: rhs.steps,
             message: integrated.message,
             samples: rhs.samples.clone(),
@@ -540,6 +546,7 @@ impl FlowResult {
             momentum_period: None,
             closure_range: None,
             plan_notes: Vec::new(),
+            listed_rows: Vec::new(),
             steps: 0,
             message: Some(message),
             samples: Vec::new(),

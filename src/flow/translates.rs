@@ -38,7 +38,7 @@ impl Flow<'_> {
             } else if lat.boundary == Some(Boundary::Periodic)
                 && reduce_momentum(lat.wires as f64 * dk, g) != 0.0
             {
-                format!("its momentum changes by {dk} from one translate to the next (momentum_per_wire acting on a term with net particle number {}), and on a periodic ring of {} wires {} times that, {}, is not a multiple of the momentum period{}: the translates' momenta do not close around the ring; use an open array, or a flux per wire whose {} multiples close", fmt_net(&net), lat.wires, lat.wires, lat.wires as f64 * dk, g.map_or(" (the model gives none)".to_string(), |g| format!(" G = {g}")), lat.wires)
+                format!("its momentum changes by {dk} from one translate to the next (momentum_per_wire acting on a term with net particle number {}), and on a periodic ring of {} wires {} times that, {}, is not a multiple of the momentum period{}: the translates' momenta do not close around the ring; use an open array, or momenta for which {} dk is a multiple of momentum_period", fmt_net(&net), lat.wires, lat.wires, lat.wires as f64 * dk, g.map_or(" (the model gives none)".to_string(), |g| format!(" G = {g}")), lat.wires)
             } else {
                 continue;
             };
@@ -67,6 +67,23 @@ impl Flow<'_> {
             ));
         }
         notes
+    }
+}
+
+impl Flow<'_> {
+    /// For each model term, the position in `included` of the channel that
+    /// shows it: the term itself, or (split plans) the translate anchored
+    /// where the term's family has its representative.
+    pub(super) fn listed_rows(&self, included: &[usize]) -> Vec<Option<usize>> {
+        let fams = &self.sys.lattice.families;
+        (0..self.sys.model.terms.len())
+            .map(|t| {
+                included.iter().position(|&c| {
+                    self.plan.term_of(c) == Some(t)
+                        && self.plan.channels[c].family.rep().anchor == fams[t].rep().anchor
+                })
+            })
+            .collect()
     }
 }
 
