@@ -21,8 +21,8 @@
 mod flowcommon;
 
 use flowcommon::system;
+use pinflow::core::system::System;
 use pinflow::flow::{Closure, Flow, FlowOptions, FlowResult};
-use pinflow::system::System;
 
 /// A fixed-seed generator (splitmix64), uniform in [0, 1).
 struct Rng(u64);

@@ -37,7 +37,7 @@
 //!
 //! Momentum per translate. In a flux array (`momentum_per_wire`) a charged
 //! term's translates carry different momenta (see
-//! [`crate::lattice::per_translate`]). Such a model's finite arrays flow
+//! [`crate::core::momentum::per_translate`]). Such a model's finite arrays flow
 //! every translate as its own channel (as the written-out explicit model
 //! does), each with its own momentum and cut-off; generated terms get the
 //! sum of their parents' momenta, taken on the line.
@@ -47,12 +47,13 @@ use std::collections::HashMap;
 use num_complex::Complex64;
 use num_traits::Zero;
 
-use crate::exact::{self, Rational};
-use crate::invariants::{particles_of, Pairing};
-use crate::lattice::{per_translate, Family, Lattice, Translate};
+use crate::core::invariants::{particles_of, Pairing};
+use crate::core::lattice::{Family, Lattice, Translate};
+use crate::core::momentum::per_translate;
+use crate::core::qspace;
+use crate::core::system::System;
+use crate::math::rational::{self, Rational};
 use crate::model::Boundary;
-use crate::qspace;
-use crate::system::System;
 
 /// How a channel came about.
 #[derive(Debug, Clone, PartialEq)]
@@ -128,11 +129,17 @@ impl Channel {
     }
 
     /// The momentum mismatch of the representative on the line (see
-    /// [`crate::lattice::per_translate::line_mismatch`]), given the momenta
+    /// [`crate::core::momentum::per_translate::line_mismatch`]), given the momenta
     /// of every field.
     pub fn mismatch(&self, lat: &Lattice, k: &[f64], period: Option<f64>) -> f64 {
         let rep = self.family.rep();
-        crate::lattice::per_translate::line_mismatch(lat, &self.particles, rep.anchor, k, period)
+        crate::core::momentum::per_translate::line_mismatch(
+            lat,
+            &self.particles,
+            rep.anchor,
+            k,
+            period,
+        )
     }
 
     /// The representative as (wire offset from its anchor, cell lattice
@@ -346,7 +353,7 @@ impl Plan {
 
 /// Listed terms whose momentum may depend on the translate: arrays with
 /// `momentum_per_wire` and a term whose dk can be non-zero
-/// ([`crate::lattice::per_translate::may_vary`]).
+/// ([`crate::core::momentum::per_translate::may_vary`]).
 pub fn translate_dependent(sys: &System) -> Vec<usize> {
     if sys.lattice.boundary.is_none() || sys.model.momentum_per_wire.is_none() {
         return Vec::new();
@@ -484,10 +491,10 @@ fn make_channel(
     for t in &family.translates {
         l_sparse.push(sparse(t.l.iter().map(|x| *x as f64)));
         let m = particles_of(lat, inv, t);
-        g_sparse.push(sparse(m.iter().map(exact::to_f64)));
+        g_sparse.push(sparse(m.iter().map(rational::to_f64)));
     }
     let particles = particles_of(lat, inv, family.rep());
-    let charge = exact::dot_int(&particles, &lat.charge);
+    let charge = rational::dot_int(&particles, &lat.charge);
     let share = family.translates.len() as f64 / placements.max(1) as f64;
     let mut ch = Channel {
         name,

@@ -3,7 +3,7 @@
 //!
 //! A charged term in an array with `momentum_per_wire` has momentum
 //! k_j = k_0 + j dk on the translate anchored at wire j
-//! ([`crate::lattice::per_translate`]). A finite array then flows every
+//! ([`crate::core::momentum::per_translate`]). A finite array then flows every
 //! translate as its own channel ([`super::channels::Plan::split`]). Two
 //! cases cannot be flowed and are refused, naming the term: an infinite
 //! array (no finite set of cut-offs, and no translation invariance for the
@@ -13,8 +13,8 @@
 //! have).
 
 use super::Flow;
+use crate::core::momentum::{per_translate, reduce_momentum};
 use crate::error::{Error, InputError};
-use crate::lattice::{per_translate, reduce_momentum};
 use crate::model::Boundary;
 
 impl Flow<'_> {
@@ -88,7 +88,10 @@ impl Flow<'_> {
 }
 
 /// N_c as "(a, b, ...)".
-fn fmt_net(net: &[crate::exact::Rational]) -> String {
-    let parts: Vec<String> = net.iter().map(crate::exact::fmt_rational).collect();
+fn fmt_net(net: &[crate::math::rational::Rational]) -> String {
+    let parts: Vec<String> = net
+        .iter()
+        .map(crate::math::rational::fmt_rational)
+        .collect();
     format!("({})", parts.join(", "))
 }
