@@ -41,6 +41,9 @@ impl Rng {
     }
 }
 
+/// (name, particles per wire offset, coupling, extra keys).
+type TermDef = (&'static str, Vec<(usize, [i64; 2])>, f64, &'static str);
+
 /// One spinless wire per cell, K = diag(1, -1), t = (1, 1).
 struct Ring {
     wires: usize,
@@ -48,7 +51,7 @@ struct Ring {
     /// V blocks 0 and 1 (2 x 2).
     blocks: Vec<[[f64; 2]; 2]>,
     /// (name, particles per offset, coupling, extra keys).
-    terms: Vec<(&'static str, Vec<(usize, [i64; 2])>, f64, &'static str)>,
+    terms: Vec<TermDef>,
     /// (momentum of wire 0 per field, momentum per wire), optional.
     momenta: Option<([f64; 2], f64)>,
     /// Momentum period.

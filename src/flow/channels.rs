@@ -574,9 +574,12 @@ fn minimal_window(lat: &Lattice, wires: &[usize]) -> Option<(usize, usize)> {
     window(wires, lat.wires, lat.boundary == Some(Boundary::Periodic))
 }
 
+/// A cell-level part of a vector: (wire offset, integer vector over the cell).
+type CellPart = (usize, Vec<i64>);
+
 /// The cell-level parts of a dense vector relative to the start of its
 /// support window, and that start.
-fn window_parts(lat: &Lattice, v: &[i64]) -> Option<(usize, Vec<(usize, Vec<i64>)>)> {
+fn window_parts(lat: &Lattice, v: &[i64]) -> Option<(usize, Vec<CellPart>)> {
     let wires: Vec<usize> = (0..lat.wires)
         .filter(|w| v[w * lat.cell..(w + 1) * lat.cell].iter().any(|x| *x != 0))
         .collect();
