@@ -237,7 +237,7 @@ fn cases() -> Vec<Case> {
         case("E43", base(), "flow wire.toml --closure all", 2,
             "error: invalid value 'all' for '--closure <CLOSURE>'"),
         case("E44", vec![("wire.toml", format!("{WIRE}\n[flow]\nsteps = 100\n"))], "flow wire.toml", 2,
-            "error: wire.toml: flow.steps: unknown key (known: ell_max, y_strong, floor, closure, closure_bound, rtol, atol, max_steps, q_points)"),
+            "error: wire.toml: flow.steps: unknown key (known: ell_max, y_strong, floor, closure, closure_bound, closure_range, rtol, atol, max_steps, q_points)"),
         case("E45", vec![("wire.toml", format!("{WIRE}\n[flow]\nell_max = \"long\"\n"))], "flow wire.toml", 2,
             "error: wire.toml: flow.ell_max: expected a number, found \"long\""),
         // ------------------------------------------------ scan axes and options
