@@ -39,6 +39,7 @@ pub mod kt;
 pub mod options;
 pub mod report;
 pub mod rhs;
+mod translates;
 
 use nalgebra::DVector;
 use ode_solvers::continuous_output_model::ContinuousOutputModel;
@@ -198,6 +199,17 @@ pub struct FlowResult {
     /// invariant decided, and how far ell_max was extended (see [`kt`]);
     /// null when the invariant was not used.
     pub kt: Option<kt::KtDecision>,
+    /// The pairs closure's range in wires (generated terms spanning more
+    /// wires are left out); null when no range applies or without closure.
+    pub closure_range: Option<usize>,
+    /// Notes of the plan (closure range, translates flowed one by one).
+    #[serde(skip)]
+    pub plan_notes: Vec<String>,
+    /// For each model term, its row in `terms` (the representative's
+    /// translate when every translate flows on its own; see
+    /// `channels::Plan::split`).
+    #[serde(skip)]
+    pub listed_rows: Vec<Option<usize>>,
     /// Accepted integration steps.
     pub steps: usize,
     /// A message for unphysical or failed points.
@@ -246,10 +258,11 @@ struct Start {
 impl<'s> Flow<'s> {
     /// Prepare the plan (exact work done once).
     pub fn new(sys: &'s System, opts: FlowOptions) -> Flow<'s> {
-        let plan = Plan::build(sys, opts.closure == Closure::Pairs);
+        let plan = Plan::build(sys, opts.closure == Closure::Pairs, opts.closure_range);
         let layout = match sys.eval_path() {
             EvalPath::Infinite => Layout::Infinite,
-            EvalPath::Ring if !opts.dense_d => Layout::Ring,
+            // Translates with their own momenta break translation invariance.
+            EvalPath::Ring if !opts.dense_d && !plan.split => Layout::Ring,
             _ => Layout::Dense,
         };
         Flow {
@@ -364,6 +377,7 @@ impl<'s> Flow<'s> {
     /// the check fails (see [`check`]).
     pub fn run(&self, point: &[f64]) -> Result<FlowResult, Error> {
         self.sys.model.check_point(point)?;
+        self.check_translate_momenta(point)?;
         let mut start = match self.start(point) {
             Ok(start) => start,
             Err(e) => return unphysical_result(e),
@@ -394,9 +408,10 @@ impl<'s> Flow<'s> {
         rhs.record = record;
         let mut y0 = DVector::zeros(rhs.state_len());
         for (i, &c) in included.iter().enumerate() {
-            if let Some((y, chi)) = bare.get(c).copied() {
-                y0[2 * i] = 0.5 * y * chi.cos();
-                y0[2 * i + 1] = 0.5 * y * chi.sin();
+            if let Some((y, chi)) = self.plan.term_of(c).map(|t| bare[t]) {
+                let (re, im) = self.plan.channels[c].bare_amplitude(y, chi);
+                y0[2 * i] = re;
+                y0[2 * i + 1] = im;
             }
         }
         y0.as_mut_slice()[2 * included.len()..].copy_from_slice(d0);
@@ -466,14 +481,14 @@ impl<'s> Flow<'s> {
     fn momenta(&self, point: &[f64], included: &[usize]) -> Vec<Option<f64>> {
         let k = self.sys.lattice.momenta(&self.sys.model, point);
         // A generated channel's particle content is the sum of its parents',
-        // so its mismatch is the sum of theirs, reduced once by the period.
+        // so its mismatch on the line is the sum of theirs, reduced once by
+        // the period.
         let g = self.sys.model.momentum_period_at(point);
         included
             .iter()
             .map(|&c| {
-                k.as_ref().map(|k| {
-                    crate::core::momentum::mismatch(&self.plan.channels[c].particles, k, g)
-                })
+                k.as_ref()
+                    .map(|k| self.plan.channels[c].mismatch(&self.sys.lattice, k, g))
             })
             .collect()
     }
@@ -494,7 +509,10 @@ impl<'s> Flow<'s> {
         let terms = (0..nc)
             .map(|i| {
                 let ch = &self.plan.channels[included[i]];
-                let (y0, chi0) = bare.get(included[i]).copied().unwrap_or((0.0, 0.0));
+                let (y0, chi0) = self
+                    .plan
+                    .term_of(included[i])
+                    .map_or((0.0, 0.0), |t| bare[t]);
                 ChannelResult {
                     name: ch.name.clone(),
                     origin: if matches!(ch.origin, Origin::Listed(_)) {
@@ -539,6 +557,9 @@ impl<'s> Flow<'s> {
             flow_quadrature: None,
             momentum_period: None,
             kt: None,
+            closure_range: self.plan.range,
+            plan_notes: self.plan_notes(),
+            listed_rows: self.listed_rows(included),
             steps: rhs.steps,
             message: integrated.message,
             samples: rhs.samples.clone(),
@@ -597,6 +618,9 @@ impl FlowResult {
             flow_quadrature: None,
             momentum_period: None,
             kt: None,
+            closure_range: None,
+            plan_notes: Vec::new(),
+            listed_rows: Vec::new(),
             steps: 0,
             message: Some(message),
             samples: Vec::new(),
