@@ -55,7 +55,7 @@ pub enum Error {
     /// A parameter point at which the theory is not defined (exit code 2 for
     /// a single point; a scan records it as the outcome "unphysical").
     #[error("{0}")]
-    Unphysical(#[from] crate::fixed_point::Unphysical),
+    Unphysical(#[from] crate::core::fixed_point::Unphysical),
     /// A numerical failure (exit code 1).
     #[error("{0}")]
     Numerical(String),

@@ -25,19 +25,14 @@
 //! point; see the README for its limits.
 
 pub mod cli;
-pub mod convergence;
+pub mod core;
 pub mod dims;
 pub mod edges;
 pub mod error;
-pub mod exact;
-pub mod fixed_point;
 pub mod flow;
-pub mod invariants;
-pub mod lattice;
+pub mod math;
 pub mod model;
 pub mod output;
 pub mod plot;
-pub mod qspace;
 pub mod scan;
 pub mod search;
-pub mod system;
