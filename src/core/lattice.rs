@@ -89,7 +89,7 @@ impl Lattice {
     }
 
     /// The periodic stand-in of an infinite array: a ring of
-    /// [`Lattice::stand_in_wires`] wires. Everything exact that depends only
+    /// [`Model::stand_in_wires`] wires. Everything exact that depends only
     /// on terms (charges, spins, locality, mutual phases at every relative
     /// offset, the OPE table of the flow) is the same on this ring as on the
     /// infinite line, because the ring is wider than twice every vector the
@@ -100,14 +100,8 @@ impl Lattice {
     /// Listed terms have width R + 1 and generated ones at most R + 2 (see
     /// `flow::channels`), so W = 4 (R + 2) + 1 suffices.
     pub fn stand_in(model: &Model) -> Result<Lattice, InputError> {
-        let wires = Lattice::stand_in_wires(model);
+        let wires = model.stand_in_wires();
         Lattice::realise(model, wires, Some(Boundary::Periodic), true)
-    }
-
-    /// Wires of the stand-in ring: 4 (R + 2) + 1 for terms of range R.
-    pub fn stand_in_wires(model: &Model) -> usize {
-        let range = model.terms.iter().map(|t| t.range()).max().unwrap_or(0);
-        4 * (range + 2) + 1
     }
 
     fn realise(

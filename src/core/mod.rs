@@ -11,4 +11,5 @@ pub mod invariants;
 pub mod lattice;
 pub mod momentum;
 pub mod qspace;
+pub mod relevance;
 pub mod system;

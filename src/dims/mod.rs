@@ -18,6 +18,7 @@ use serde::Serialize;
 
 use crate::core::momentum::MOMENTUM_TOLERANCE;
 use crate::core::qspace::Quadrature;
+use crate::core::relevance::{is_relevant, rg_eigenvalue};
 use crate::core::system::System;
 use crate::error::Error;
 use crate::math::rational::{self, fmt_rational};
@@ -233,8 +234,8 @@ impl DimsReport {
                 charge_ok: ti.charge_ok,
                 local: ti.local,
                 null: ti.null,
-                relevant: dimension < 2.0,
-                rg_eigenvalue: 2.0 - dimension,
+                relevant: is_relevant(dimension),
+                rg_eigenvalue: rg_eigenvalue(dimension),
                 momentum: k,
                 momentum_conserved: k.map(|k| k.abs() < MOMENTUM_TOLERANCE),
                 self_commuting: ti.self_commuting,

@@ -75,6 +75,26 @@ pub enum Outcome {
 }
 
 impl Outcome {
+    /// Every outcome, in the order outputs list them.
+    pub const ALL: [Outcome; 6] = [
+        Outcome::Strong,
+        Outcome::Spinful,
+        Outcome::Gapless,
+        Outcome::Undecided,
+        Outcome::Unphysical,
+        Outcome::Failed,
+    ];
+
+    /// The outcome a word of [`Outcome::word`] names.
+    pub fn from_word(word: &str) -> Option<Outcome> {
+        Outcome::ALL.into_iter().find(|o| o.word() == word)
+    }
+
+    /// Whether a term won: the outcomes that name a winner.
+    pub fn has_winner(self) -> bool {
+        matches!(self, Outcome::Strong | Outcome::Spinful)
+    }
+
     /// The word used in every output.
     pub fn word(self) -> &'static str {
         match self {

@@ -140,6 +140,14 @@ pub struct Model {
 }
 
 impl Model {
+    /// Wires of the periodic stand-in ring on which an infinite array's
+    /// exact data is computed (see `core::lattice::Lattice::stand_in`):
+    /// 4 (R + 2) + 1 for terms of range R.
+    pub fn stand_in_wires(&self) -> usize {
+        let range = self.terms.iter().map(|t| t.range()).max().unwrap_or(0);
+        4 * (range + 2) + 1
+    }
+
     /// Read and validate a model file.
     pub fn load(path: &Path) -> Result<Model, InputError> {
         let file = path.display().to_string();
@@ -322,7 +330,7 @@ impl Model {
         {
             let w = match wires {
                 Wires::Finite(w) => *w,
-                Wires::Infinite => crate::core::lattice::Lattice::stand_in_wires(self),
+                Wires::Infinite => self.stand_in_wires(),
             };
             for (c, (b, s)) in base.iter().zip(shift).enumerate() {
                 let last = b.eval(point) + (w.saturating_sub(1)) as f64 * s.eval(point);

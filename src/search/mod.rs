@@ -444,7 +444,7 @@ pub fn hunt(sys: &System, point: &[f64], opts: &HuntOptions) -> Result<HuntRepor
             charge: space.charge(&m) as i64,
             spin: rational::fmt_rational(&spin),
             dimension,
-            rg_eigenvalue: 2.0 - dimension,
+            rg_eigenvalue: crate::core::relevance::rg_eigenvalue(dimension),
             momentum: k,
             model_term: model_term(sys, &space.window, &canon),
             competitors: competitors(sys, &full),
