@@ -36,6 +36,7 @@ pub mod invariants;
 pub mod lattice;
 pub mod model;
 pub mod output;
+pub mod pinned;
 pub mod plot;
 pub mod qspace;
 pub mod scan;
