@@ -75,6 +75,16 @@ pub struct DimsArgs {
     /// With --wires: also write convergence.png/svg, .csv and .json into this directory.
     #[arg(long, value_name = "DIR", requires = "wires")]
     pub out: Option<PathBuf>,
+    /// Pin these terms (every translate in arrays) and report every term's
+    /// dimension in the residual theory, or that it is disordered (repeatable:
+    /// `--pin a --pin b`, or `--pin a,b`).
+    #[arg(
+        long,
+        value_name = "NAME",
+        value_delimiter = ',',
+        conflicts_with = "wires"
+    )]
+    pub pin: Vec<String>,
 }
 
 /// `pinflow flow`.
@@ -274,7 +284,11 @@ fn run_dims(args: DimsArgs) -> Result<(), Error> {
         return emit(args.output.as_deref(), &text);
     }
     let (sys, point) = load_point(&args.point)?;
-    let report = DimsReport::build(&sys, &point)?;
+    let opts = crate::dims::DimsOptions {
+        pins: args.pin.clone(),
+        ..Default::default()
+    };
+    let report = DimsReport::build_opts(&sys, &point, &opts)?;
     let text = output::render(&report, args.format)?;
     emit(args.output.as_deref(), &text)
 }
