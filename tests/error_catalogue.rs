@@ -189,7 +189,7 @@ fn cases() -> Vec<Case> {
         case("E28", wire(term, "particles = [1, -1]\nextra_spin = \"one half\"\n"), "dims wire.toml", 2,
             "error: wire.toml: term \"backscatter\".extra_spin: expected an exact fraction (an integer, \"p/q\" or a short decimal), found \"one half\""),
         case("E29", vec![("wire.toml", format!("{WIRE}target = true\n\n[[term]]\nname = \"pairing\"\nparticles = [1, 1]\ntarget = true\n"))], "dims wire.toml", 2,
-            "error: wire.toml: term \"pairing\".target: at most one term may be marked as the target, and term \"backscatter\" already is"),
+            "error: wire.toml: term \"pairing\".target: the targets must pin together (the target phase is the lattice they span): \"backscatter\" and \"pairing\" do not commute: their mutual phase l_a.K^-1 l_b is 2, not 0; a pinned set must commute"),
         case("E30", wire(term, "particles = [1, -1]\nextra_dimension = \"lambda - 1\"\n"), "dims wire.toml", 2,
             "error: wire.toml: term \"backscatter\".extra_dimension: must be a finite number >= 0, found -0.7 at lambda=0.3"),
         // ------------------------------------------------ parameters and expressions
@@ -403,6 +403,17 @@ fn cases() -> Vec<Case> {
         // ------------------------------------------------ edges (cont.)
         case("E93", ring("wires = 8\n", "wires = \"infinite\"\n"), "edges ring.toml --pin tunnel --window 2", 2,
             "error: command line: --window: only an open array has ends to look at; this model is an infinite array (it has no ends)"),
+        // ------------------------------------------------ dims --pin
+        case("E94", base(), "dims wire.toml --pin backscater", 2,
+            "error: command line: --pin: unknown term \"backscater\" (the model's terms: backscatter)"),
+        case("E95", wire(term, "particles = [1, 0]\n"), "dims wire.toml --pin backscatter", 2,
+            "error: command line: --pin: term \"backscatter\" is not null: its conformal spin (1/2) l.K^-1 l is 1/2, not 0; only null terms can pin"),
+        case("E96",
+            vec![("wire.toml", with(&with(WIRE, term, "vector = [1, 1]\n"), "K = [[1, 0], [0, -1]]", "K = [[3, 0], [0, -3]]"))],
+            "dims wire.toml --pin backscatter", 2,
+            "error: command line: --pin: term \"backscatter\" is not local: its particle content K^-1 l = (1/3, -1/3) is not integral, so it is not built from particles and cannot pin"),
+        case("E97", base(), "dims ring.toml --pin tunnel,cdw", 2,
+            "error: command line: --pin: \"tunnel\" at wire 0 and \"cdw\" at wire 0 do not commute: their mutual phase l_a.K^-1 l_b is -2, not 0; a pinned set must commute"),
     ];
     c.sort_by_key(|c| c.id);
     c
@@ -628,4 +639,8 @@ entries! {
     e91_momentum_period_without_momenta => "E91",
     e92_momentum_period_not_positive => "E92",
     e93_window_on_an_infinite_array => "E93",
+    e94_dims_pin_unknown => "E94",
+    e95_dims_pin_not_null => "E95",
+    e96_dims_pin_not_local => "E96",
+    e97_dims_pins_do_not_commute => "E97",
 }

@@ -280,3 +280,30 @@ fn cli_dims_pin_bad_input() {
     let ring = flow("laughlin_third.toml");
     dims_fails(&ring, &["tunnel", "cdw"], "do not commute");
 }
+
+/// Several targets (issue 14, part 1): the (331) strip with both tunnelling
+/// terms marked loads (they are null, local and commute); adding a
+/// non-commuting third target (hop_up fails to commute with t_up, see
+/// `open_strip_two_pins`) is refused with the pair named.
+#[test]
+fn several_targets() {
+    let text = text_of("halperin_331_strip.toml");
+    let both = text.replacen(
+        "name = \"t_dn\"            # uR_dn of wire j with -uL_dn of wire j+1",
+        "name = \"t_dn\"\ntarget = true",
+        1,
+    );
+    let sys = common::system(&both);
+    assert_eq!(sys.model.targets(), vec![0, 1]);
+    let three = both.replacen("name = \"hop_up\"", "name = \"hop_up\"\ntarget = true", 1);
+    let model = pinflow::model::Model::parse(&three, "three.toml").unwrap();
+    let err = System::new(model).unwrap_err().to_string();
+    assert!(
+        err.starts_with("three.toml: term \"hop_up\".target: the targets must pin together"),
+        "{err}"
+    );
+    assert!(
+        err.contains("\"t_up\" at wire") && err.contains("\"hop_up\" at wire"),
+        "{err}"
+    );
+}

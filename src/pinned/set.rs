@@ -62,6 +62,32 @@ pub fn check_names(sys: &System, names: &[String]) -> Result<PinnedSet, String> 
     Ok(set)
 }
 
+/// The terms marked `target = true`, when there are two or more: they must
+/// pin together (the target phase is the lattice they span). The error
+/// names the model file, the last target's key and the failing term or
+/// pair. One target (or none) is not checked here: a single target may be
+/// any term, as before several targets were allowed.
+pub fn check_targets(sys: &System) -> Result<(), InputError> {
+    let names: Vec<String> = sys
+        .model
+        .targets()
+        .into_iter()
+        .map(|i| sys.model.terms[i].name.clone())
+        .collect();
+    if names.len() < 2 {
+        return Ok(());
+    }
+    check_names(sys, &names).map(|_| ()).map_err(|m| {
+        InputError::new(
+            &sys.model.file,
+            format!("term \"{}\".target", names[names.len() - 1]),
+            format!(
+                "the targets must pin together (the target phase is the lattice they span): {m}"
+            ),
+        )
+    })
+}
+
 /// The families named with a flag (`--pin`): errors name the flag.
 pub fn from_names(sys: &System, names: &[String], flag: &str) -> Result<PinnedSet, InputError> {
     check_names(sys, names).map_err(|m| InputError::new("command line", flag, m))
@@ -87,7 +113,7 @@ fn check_one(sys: &System, i: usize) -> Result<(), String> {
     let spin2 = exact::dot_int(&ti.particles, &fam.rep().l);
     if !spin2.is_zero() {
         return Err(format!(
-            "term \"{name}\" is not null: its bosonic conformal spin (1/2) l.K^-1 l is {}, not 0; only null terms can pin",
+            "term \"{name}\" is not null: its conformal spin (1/2) l.K^-1 l is {}, not 0; only null terms can pin",
             fmt_rational(&(spin2 / Rational::from_integer(2.into())))
         ));
     }
