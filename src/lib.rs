@@ -17,6 +17,9 @@
 //! - [`scan`]: parameter grids, shards, resume, summaries and figures;
 //! - [`search`]: the exhaustive operator search (`pinflow hunt`);
 //! - [`edges`]: what a pinned set of terms leaves (`pinflow edges`);
+//! - [`pinned`]: the residual Gaussian theory of a pinned set (`dims
+//!   --pin`), and [`phase`]: the identity, label and invariants of a
+//!   pinned phase;
 //! - [`output`]: text, JSON, CSV, Markdown and LaTeX exporters;
 //! - [`plot`]: figures (PNG and SVG, embedded font);
 //! - [`cli`]: the command line.
@@ -36,6 +39,7 @@ pub mod invariants;
 pub mod lattice;
 pub mod model;
 pub mod output;
+pub mod phase;
 pub mod pinned;
 pub mod plot;
 pub mod qspace;
