@@ -187,6 +187,10 @@ pub struct DimsReport {
     /// With `--pin`: the pinned term families (every translate in arrays).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub pinned: Option<Vec<String>>,
+    /// With `--pin`: the phase of the pinned set (label, invariants, and
+    /// whether it is the target phase; see [`crate::phase`]).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub phase: Option<crate::phase::Phase>,
     /// With `--pin` on an infinite array: the quadrature of the pinned
     /// integrals (midpoint rule).
     #[serde(skip_serializing_if = "Option::is_none")]
@@ -238,6 +242,7 @@ impl DimsReport {
             let pd =
                 crate::pinned::set::evaluate(sys, &set, point, crate::pinned::Form::Exact, dense)?;
             report.add_pinned(&set, &pd);
+            report.phase = Some(phase_of(sys, &set));
         }
         Ok(report)
     }
@@ -375,6 +380,7 @@ impl DimsReport {
             quadrature: ev.quadrature,
             momentum_period,
             pinned: None,
+            phase: None,
             pinned_quadrature: None,
             terms,
             commutation: inv
@@ -386,6 +392,25 @@ impl DimsReport {
             notes,
         })
     }
+}
+
+/// The phase a pinned set of model terms spans.
+fn phase_of(sys: &System, set: &crate::pinned::set::PinnedSet) -> crate::phase::Phase {
+    use crate::phase;
+    let fams: Vec<&crate::lattice::Family> = set
+        .indices
+        .iter()
+        .map(|&i| &sys.lattice.families[i])
+        .collect();
+    let lat = phase::PhaseLattice::new(&sys.lattice, &fams);
+    let target = phase::target_lattice(sys);
+    phase::name(
+        &sys.lattice,
+        &lat,
+        &set.names,
+        &phase::listed(sys),
+        target.as_ref(),
+    )
 }
 
 /// What the pinned columns mean.
@@ -475,10 +500,25 @@ impl Report for DimsReport {
             ),
             ("fields".to_string(), self.fields.to_string()),
         ];
-        let pinned_fact = self
+        let mut pinned_fact: Vec<(String, String)> = self
             .pinned
-            .as_ref()
-            .map(|p| ("pinned".to_string(), p.join(", ")));
+            .iter()
+            .map(|p| ("pinned".to_string(), p.join(", ")))
+            .collect();
+        if let Some(p) = &self.phase {
+            let per = if self.infinite { " per wire" } else { "" };
+            pinned_fact.push((
+                "phase".to_string(),
+                format!(
+                    "{}: {} gapped pairs, {} gapless modes{per}{}{}",
+                    p.label,
+                    p.gapped_pairs,
+                    p.gapless_modes,
+                    if p.fully_gapped { ", fully gapped" } else { "" },
+                    if p.target { ", the target phase" } else { "" }
+                ),
+            ));
+        }
         if let Some(w) = self.wires {
             f.push(("wires".to_string(), w.to_string()));
         }

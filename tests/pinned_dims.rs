@@ -212,6 +212,13 @@ fn cli_dims_pin_in_every_format() {
     let json: Value =
         serde_json::from_str(&run(&["--pin", "spin_bs", "--format", "json"])).unwrap();
     assert_eq!(json["pinned"], serde_json::json!(["spin_bs"]));
+    // Derived: one null vector of 4 fields gaps 1 pair and leaves 2 modes;
+    // no term is a target.
+    assert_eq!(
+        json["phase"],
+        serde_json::json!({"label": "{spin_bs}", "terms": ["spin_bs"], "gapped_pairs": 1,
+            "gapless_modes": 2, "fully_gapped": false, "target": false})
+    );
     let rows = json["terms"].as_array().unwrap();
     let row = |n: &str| rows.iter().find(|r| r["name"] == n).unwrap().clone();
     assert_eq!(row("cdw2")["commutes_with_pinned"], true);

@@ -106,7 +106,10 @@ fn random_v(rng: &mut ChaCha8Rng, n: usize) -> DMatrix<f64> {
 
 /// A six-field model (three spinful-like pairs, K = diag(1,-1,1,-1,1,-1))
 /// with two commuting null pins; the operators listed commute with both.
-fn six_field() -> (Vec<Vec<i64>>, Vec<Vec<i64>>, Vec<Vec<i64>>) {
+/// Integer vectors (rows of a matrix, or a list of lattice vectors).
+type Vectors = Vec<Vec<i64>>;
+
+fn six_field() -> (Vectors, Vectors, Vectors) {
     let k: Vec<Vec<i64>> = (0..6)
         .map(|i| {
             (0..6)
