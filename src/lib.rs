@@ -17,9 +17,6 @@
 //! - [`scan`]: parameter grids, shards, resume, summaries and figures;
 //! - [`search`]: the exhaustive operator search (`pinflow hunt`);
 //! - [`edges`]: what a pinned set of terms leaves (`pinflow edges`);
-//! - [`pinned`]: the residual Gaussian theory of a pinned set (`dims
-//!   --pin`), and [`phase`]: the identity, label and invariants of a
-//!   pinned phase;
 //! - [`output`]: text, JSON, CSV, Markdown and LaTeX exporters;
 //! - [`plot`]: figures (PNG and SVG, embedded font);
 //! - [`cli`]: the command line.
@@ -28,21 +25,14 @@
 //! point; see the README for its limits.
 
 pub mod cli;
-pub mod convergence;
+pub mod core;
 pub mod dims;
 pub mod edges;
 pub mod error;
-pub mod exact;
-pub mod fixed_point;
 pub mod flow;
-pub mod invariants;
-pub mod lattice;
+pub mod math;
 pub mod model;
 pub mod output;
-pub mod phase;
-pub mod pinned;
 pub mod plot;
-pub mod qspace;
 pub mod scan;
 pub mod search;
-pub mod system;

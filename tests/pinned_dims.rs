@@ -8,10 +8,10 @@ mod common;
 use std::path::{Path, PathBuf};
 
 use assert_cmd::Command;
+use pinflow::core::pinned::set::{self as pinset, PinnedSet};
+use pinflow::core::pinned::Form;
+use pinflow::core::system::System;
 use pinflow::dims::{Algebra, DimsOptions, DimsReport};
-use pinflow::pinned::set::{self as pinset, PinnedSet};
-use pinflow::pinned::Form;
-use pinflow::system::System;
 use serde_json::Value;
 
 fn flow(name: &str) -> PathBuf {

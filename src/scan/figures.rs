@@ -19,8 +19,9 @@ use std::path::Path;
 
 use super::points::Point;
 use super::store::Meta;
-use super::summary::OUTCOMES;
+use crate::core::relevance::SPACETIME_DIMENSION;
 use crate::error::Error;
+use crate::flow::Outcome;
 use crate::plot::{
     self, palette, Band, Contour, ContourTracer, DimensionSeries, HeatMap, LineScanFigure, PhaseMap,
 };
@@ -59,7 +60,12 @@ impl Canvas {
             let (xs, ys) = (meta.axes[0].values(), meta.axes[1].values());
             let lines = line_terms(meta)
                 .into_iter()
-                .map(|t| (t, ContourTracer::new(xs.clone(), ys.clone(), 2.0)))
+                .map(|t| {
+                    (
+                        t,
+                        ContourTracer::new(xs.clone(), ys.clone(), SPACETIME_DIMENSION),
+                    )
+                })
                 .collect();
             Shape::Map {
                 ell: Vec::with_capacity(n),
@@ -128,7 +134,7 @@ impl Keys {
     /// The number of a row's category; the winner counts only for the
     /// outcomes that have one.
     fn id(&mut self, outcome: &str, winner: &str) -> u32 {
-        let winner = if outcome == "strong" || outcome == "spinful" {
+        let winner = if Outcome::from_word(outcome).is_some_and(Outcome::has_winner) {
             winner
         } else {
             ""
@@ -212,20 +218,20 @@ impl Categories {
     /// keeps its term's colour (as its line); other outcomes take the last
     /// palette entries (black last, drawn light: grey).
     fn band_colour(&self, c: usize) -> usize {
-        match self.keys[c].0.as_str() {
-            "strong" | "spinful" => self.term_colour[c],
-            "gapless" => 7,
-            "undecided" => 6,
+        match Outcome::from_word(&self.keys[c].0) {
+            Some(Outcome::Strong | Outcome::Spinful) => self.term_colour[c],
+            Some(Outcome::Gapless) => 7,
+            Some(Outcome::Undecided) => 6,
             _ => 5,
         }
     }
 }
 
 fn order(meta: &Meta, (outcome, winner): &(String, String)) -> (usize, usize, String) {
-    let oi = OUTCOMES
+    let oi = Outcome::ALL
         .iter()
-        .position(|o| o == outcome)
-        .unwrap_or(OUTCOMES.len());
+        .position(|o| o.word() == outcome)
+        .unwrap_or(Outcome::ALL.len());
     let ti = meta
         .terms
         .iter()
@@ -233,7 +239,7 @@ fn order(meta: &Meta, (outcome, winner): &(String, String)) -> (usize, usize, St
         .unwrap_or(meta.terms.len());
     let group = if winner.is_empty() {
         2
-    } else if outcome == "strong" {
+    } else if outcome == Outcome::Strong.word() {
         0
     } else {
         1
@@ -242,14 +248,13 @@ fn order(meta: &Meta, (outcome, winner): &(String, String)) -> (usize, usize, St
 }
 
 fn label(outcome: &str, winner: &str) -> String {
-    match outcome {
-        "strong" => format!("{winner} wins"),
-        "spinful" => format!("{winner}: spinful instability"),
-        "gapless" => "gapless".into(),
-        "undecided" => "undecided".into(),
-        "unphysical" => "unphysical (V not positive definite)".into(),
-        "failed" => "integration failed".into(),
-        other => other.to_string(),
+    match Outcome::from_word(outcome) {
+        Some(Outcome::Strong) => format!("{winner} wins"),
+        Some(Outcome::Spinful) => format!("{winner}: spinful instability"),
+        Some(o @ (Outcome::Gapless | Outcome::Undecided)) => o.word().into(),
+        Some(Outcome::Unphysical) => "unphysical (V not positive definite)".into(),
+        Some(Outcome::Failed) => "integration failed".into(),
+        None => outcome.to_string(),
     }
 }
 
@@ -257,12 +262,12 @@ fn label(outcome: &str, winner: &str) -> String {
 /// (listed terms by model order, generated winners after them).
 fn colour(outcome: &str, term: usize) -> (u8, u8, u8) {
     let rgb = |c: plotters::style::RGBColor| (c.0, c.1, c.2);
-    match outcome {
-        "strong" => rgb(palette::categorical(term)),
-        "spinful" => rgb(palette::lighten(palette::categorical(term), 0.55)),
-        "gapless" => (232, 232, 232),
-        "undecided" => (170, 170, 170),
-        "unphysical" => (255, 255, 255),
+    match Outcome::from_word(outcome) {
+        Some(Outcome::Strong) => rgb(palette::categorical(term)),
+        Some(Outcome::Spinful) => rgb(palette::lighten(palette::categorical(term), 0.55)),
+        Some(Outcome::Gapless) => (232, 232, 232),
+        Some(Outcome::Undecided) => (170, 170, 170),
+        Some(Outcome::Unphysical) => (255, 255, 255),
         _ => (60, 60, 60),
     }
 }

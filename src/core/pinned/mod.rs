@@ -34,7 +34,7 @@
 //! [P^T; P^T adj K] (adj K = det K K^-1), i.e. the w in W with R^T w = 0.
 //! It meets span R only in 0 (R y with R^T R y = 0 forces y = 0) and has
 //! dimension N - 2r, so it is a complement of span R in W. The integer
-//! kernel comes from the Smith normal form ([`crate::edges::normal`]); the
+//! kernel comes from the Smith normal form ([`crate::math::smith`]); the
 //! numerics then use an orthonormal basis of the same span (thin QR), which
 //! the result does not depend on but which keeps the products well
 //! conditioned. R is restricted to independent columns (exact rank).
@@ -50,10 +50,10 @@ use nalgebra::DMatrix;
 use num_bigint::BigInt;
 use num_traits::{ToPrimitive, Zero};
 
-use crate::edges::normal;
-use crate::edges::zmat::ZMat;
-use crate::exact::{self, Rational};
-use crate::fixed_point::FixedPoint;
+use crate::core::fixed_point::FixedPoint;
+use crate::math::rational::{self as exact, Rational};
+use crate::math::smith;
+use crate::math::zmat::ZMat;
 
 /// Which form of the residual theory.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -114,7 +114,7 @@ pub fn complement_basis(k: &[Vec<i64>], p: &[Vec<i64>]) -> Option<ZMat> {
     if rows.is_empty() {
         return Some(ZMat::identity(n));
     }
-    Some(normal::kernel(&ZMat::from_rows(&rows, n)))
+    Some(smith::kernel(&ZMat::from_rows(&rows, n)))
 }
 
 /// An integer matrix as floats (entries beyond f64 become infinite and are
@@ -229,7 +229,7 @@ pub fn reference(d: &DMatrix<f64>, p: &DMatrix<f64>) -> DMatrix<f64> {
 
 /// (1/2) l^T D_P l.
 pub fn dimension(d_p: &DMatrix<f64>, l: &[i64]) -> f64 {
-    crate::fixed_point::quad_form(d_p, l)
+    crate::core::fixed_point::quad_form(d_p, l)
 }
 
 /// l^T K^-1 p = 0 for every pinned p (exact), given K^-1 rationally.

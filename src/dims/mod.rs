@@ -3,7 +3,7 @@
 //!
 //! Which path computes the fixed point ([`Algebra`]): periodic arrays of two
 //! or more wires and infinite arrays use the q-space path
-//! ([`crate::qspace`]), everything else the dense one. For an infinite
+//! ([`crate::core::qspace`]), everything else the dense one. For an infinite
 //! array the report is per wire: `fields` is the cell size, `wires` is null
 //! (`infinite` is true), `signature`, `filling` and `det_k` are those of one
 //! wire; `velocities` and `chiralities` are the modes at q = 0 and
@@ -12,13 +12,17 @@
 //! 0..=range it touches; `quadrature` states the rule and its error
 //! estimate.
 
+pub mod convergence;
+
 use serde::Serialize;
 
+use crate::core::momentum::MOMENTUM_TOLERANCE;
+use crate::core::qspace::Quadrature;
+use crate::core::relevance::{is_relevant, rg_eigenvalue};
+use crate::core::system::System;
 use crate::error::Error;
-use crate::exact::{self, fmt_rational};
+use crate::math::rational::{self, fmt_rational};
 use crate::output::{Report, Table};
-use crate::qspace::Quadrature;
-use crate::system::System;
 
 /// Which code path computes the fixed point of `dims`.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -82,10 +86,6 @@ fn evaluate(sys: &System, point: &[f64], algebra: Algebra) -> Result<Evaluated, 
         quadrature: None,
     })
 }
-
-/// Tolerance below which a momentum mismatch counts as conserved (units of
-/// the inverse cutoff).
-pub const MOMENTUM_TOLERANCE: f64 = 1e-9;
 
 /// One term's row.
 #[derive(Debug, Clone, Serialize)]
@@ -188,9 +188,9 @@ pub struct DimsReport {
     #[serde(skip_serializing_if = "Option::is_none")]
     pub pinned: Option<Vec<String>>,
     /// With `--pin`: the phase of the pinned set (label, invariants, and
-    /// whether it is the target phase; see [`crate::phase`]).
+    /// whether it is the target phase; see [`crate::core::phase`]).
     #[serde(skip_serializing_if = "Option::is_none")]
-    pub phase: Option<crate::phase::Phase>,
+    pub phase: Option<crate::core::phase::Phase>,
     /// With `--pin` on an infinite array: the quadrature of the pinned
     /// integrals (midpoint rule).
     #[serde(skip_serializing_if = "Option::is_none")]
@@ -225,7 +225,7 @@ impl Default for DimsOptions {
 
 impl DimsReport {
     /// The report with options: with pins, every term also gets its place
-    /// in the residual theory of the pinned set ([`crate::pinned`]).
+    /// in the residual theory of the pinned set ([`crate::core::pinned`]).
     pub fn build_opts(
         sys: &System,
         point: &[f64],
@@ -234,13 +234,20 @@ impl DimsReport {
         let set = if opts.pins.is_empty() {
             None
         } else {
-            Some(crate::pinned::set::from_names(sys, &opts.pins, "--pin")?)
+            Some(crate::core::pinned::set::from_names(
+                sys, &opts.pins, "--pin",
+            )?)
         };
         let mut report = DimsReport::build_with(sys, point, opts.algebra)?;
         if let Some(set) = set {
             let dense = opts.algebra == Algebra::Dense;
-            let pd =
-                crate::pinned::set::evaluate(sys, &set, point, crate::pinned::Form::Exact, dense)?;
+            let pd = crate::core::pinned::set::evaluate(
+                sys,
+                &set,
+                point,
+                crate::core::pinned::Form::Exact,
+                dense,
+            )?;
             report.add_pinned(&set, &pd);
             report.phase = Some(phase_of(sys, &set));
         }
@@ -249,8 +256,8 @@ impl DimsReport {
 
     fn add_pinned(
         &mut self,
-        set: &crate::pinned::set::PinnedSet,
-        pd: &crate::pinned::set::PinnedDims,
+        set: &crate::core::pinned::set::PinnedSet,
+        pd: &crate::core::pinned::set::PinnedDims,
     ) {
         for (i, row) in self.terms.iter_mut().enumerate() {
             row.commutes_with_pinned = Some(pd.commutes[i]);
@@ -298,7 +305,7 @@ impl DimsReport {
             let ti = &inv.terms[i];
             let rep = fam.rep();
             let dimension = ev.bosonic[i] + extra[i];
-            let s = exact::to_f64(&ti.spin);
+            let s = rational::to_f64(&ti.spin);
             let k = momenta.as_ref().map(|m| m[i]);
             // Infinite arrays: the representative sits at wire 0 of the
             // stand-in ring; list the wires 0..=range it touches.
@@ -312,7 +319,7 @@ impl DimsReport {
                 name: spec.name.clone(),
                 target: spec.target,
                 vector: rep.l[..shown].to_vec(),
-                particles: exact::to_integers(particles),
+                particles: rational::to_integers(particles),
                 particles_exact: particles.iter().map(fmt_rational).collect(),
                 wire: rep.anchor,
                 dimension,
@@ -325,8 +332,8 @@ impl DimsReport {
                 charge_ok: ti.charge_ok,
                 local: ti.local,
                 null: ti.null,
-                relevant: dimension < 2.0,
-                rg_eigenvalue: 2.0 - dimension,
+                relevant: is_relevant(dimension),
+                rg_eigenvalue: rg_eigenvalue(dimension),
                 momentum: k,
                 momentum_conserved: k.map(|k| k.abs() < MOMENTUM_TOLERANCE),
                 self_commuting: ti.self_commuting,
@@ -395,9 +402,9 @@ impl DimsReport {
 }
 
 /// The phase a pinned set of model terms spans.
-fn phase_of(sys: &System, set: &crate::pinned::set::PinnedSet) -> crate::phase::Phase {
-    use crate::phase;
-    let fams: Vec<&crate::lattice::Family> = set
+fn phase_of(sys: &System, set: &crate::core::pinned::set::PinnedSet) -> crate::core::phase::Phase {
+    use crate::core::phase;
+    let fams: Vec<&crate::core::lattice::Family> = set
         .indices
         .iter()
         .map(|&i| &sys.lattice.families[i])

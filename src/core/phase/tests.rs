@@ -1,14 +1,14 @@
 //! Checks of the phase identity. Values are derived (short derivations
 //! beside each) or computed independently (the Smith normal form of
-//! [`crate::edges::normal`] for ranks and indices).
+//! [`crate::math::smith`] for ranks and indices).
 
 use num_bigint::BigInt;
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 
 use super::*;
+use crate::core::system::System;
 use crate::model::Model;
-use crate::system::System;
 
 fn b(v: &[i64]) -> Vec<BigInt> {
     v.iter().map(|&x| BigInt::from(x)).collect()

@@ -15,11 +15,11 @@ use num_traits::Zero;
 
 use super::q::{self, QInput, Rule};
 use super::{Form, Split};
+use crate::core::invariants::particles_of;
+use crate::core::qspace::{self, Quadrature};
+use crate::core::system::System;
 use crate::error::{Error, InputError};
-use crate::exact::{self, fmt_rational, Rational};
-use crate::invariants::particles_of;
-use crate::qspace::{self, Quadrature};
-use crate::system::System;
+use crate::math::rational::{self as exact, fmt_rational, Rational};
 
 /// Validated pinned families (model term indices, in the order named).
 #[derive(Debug, Clone, PartialEq, Eq)]

@@ -1,5 +1,5 @@
 //! The residual theory per q, for periodic and infinite arrays (the
-//! conventions of [`crate::qspace`]: V(q) = sum_n V^(n) e^{iqn}, a family
+//! conventions of [`crate::core::qspace`]: V(q) = sum_n V^(n) e^{iqn}, a family
 //! with cell vectors p_n at offset n has P(q) = sum_n p_n e^{-iqn}).
 //!
 //! Every matrix of the dense construction is translation invariant, so it
@@ -9,7 +9,7 @@
 //! B^H K_c B (Hermitian, no longer diagonal), V_P(q) = B^H V B - B^H V R
 //! (R^H V R)^-1 R^H V B, and D_P(q) = B D(K_P, V_P) B^H with the Hermitian
 //! fixed point D(K, V) = C^-H |S|^-1 C^-1, C C^H = V, S = C^-1 K C^-H (the
-//! method of [`crate::fixed_point`] with complex entries). A family commutes
+//! method of [`crate::core::fixed_point`] with complex entries). A family commutes
 //! with every translate of another iff L(q)^H K^-1 P(q) = 0 for all q.
 //!
 //! Bases per q are numerical and orthonormal: span P(q) from the singular
@@ -26,7 +26,7 @@ use nalgebra::{DMatrix, DVector, SymmetricEigen};
 use num_complex::Complex64;
 
 use super::Form;
-use crate::qspace::{self, NotPositive, Quadrature};
+use crate::core::qspace::{self, NotPositive, Quadrature};
 
 /// Relative size below which a singular value of P(q) counts as zero.
 pub const RANK_TOLERANCE: f64 = 1e-9;

@@ -33,9 +33,9 @@ use num_bigint::BigInt;
 use num_integer::Integer;
 use num_traits::{Signed, Zero};
 
-use crate::edges::normal;
-use crate::edges::zmat::ZMat;
-use crate::lattice::{Family, Lattice};
+use crate::core::lattice::{Family, Lattice};
+use crate::math::smith as normal;
+use crate::math::zmat::ZMat;
 
 /// A lattice in Hermite normal form (rows, each of length `n`).
 #[derive(Debug, Clone, PartialEq, Eq)]
@@ -372,7 +372,7 @@ pub fn name(
 
 /// The target lattice of a model: spanned by every term marked as a
 /// target (None without targets).
-pub fn target_lattice(sys: &crate::system::System) -> Option<PhaseLattice> {
+pub fn target_lattice(sys: &crate::core::system::System) -> Option<PhaseLattice> {
     let t = sys.model.targets();
     if t.is_empty() {
         return None;
@@ -382,7 +382,7 @@ pub fn target_lattice(sys: &crate::system::System) -> Option<PhaseLattice> {
 }
 
 /// The listed terms of a system as candidates.
-pub fn listed(sys: &crate::system::System) -> Vec<Candidate<'_>> {
+pub fn listed(sys: &crate::core::system::System) -> Vec<Candidate<'_>> {
     sys.model
         .terms
         .iter()
