@@ -440,7 +440,8 @@ fn cases() -> Vec<Case> {
         case("E101", base(), "dims ring.toml --pin tunnel,cdw", 2,
             "error: command line: --pin: \"tunnel\" at wire 0 and \"cdw\" at wire 0 do not commute: their mutual phase l_a.K^-1 l_b is -2, not 0; a pinned set must commute"),
     ];
-    c.sort_by_key(|c| c.id);
+    // By number: E100 comes after E99, not after E10.
+    c.sort_by_key(|c| c.id[1..].parse::<u32>().expect("ids are E and a number"));
     c
 }
 
