@@ -369,19 +369,18 @@ impl SplitMix {
 }
 
 #[cfg(test)]
-mod tests {
+pub(crate) mod tests {
     use super::*;
     use crate::math::bareiss;
-    use crate::math::lll::LLL_DELTA;
 
-    fn gram(rows: &[Vec<i64>]) -> DMatrix<f64> {
+    pub(crate) fn gram(rows: &[Vec<i64>]) -> DMatrix<f64> {
         let n = rows.len();
         DMatrix::from_fn(n, n, |i, j| rows[i][j] as f64)
     }
 
     /// Cartan matrix of E8 (a chain of seven nodes with an eighth attached
     /// to the third): the even unimodular lattice in 8 dimensions.
-    fn e8() -> Vec<Vec<i64>> {
+    pub(crate) fn e8() -> Vec<Vec<i64>> {
         let mut a = vec![vec![0i64; 8]; 8];
         for (i, row) in a.iter_mut().enumerate() {
             row[i] = 2;
@@ -398,7 +397,7 @@ mod tests {
     }
 
     /// Scramble a Gram matrix by a fixed unimodular matrix W: W^T A W.
-    fn scrambled(a: &[Vec<i64>]) -> Vec<Vec<i64>> {
+    pub(crate) fn scrambled(a: &[Vec<i64>]) -> Vec<Vec<i64>> {
         let n = a.len();
         // Upper unitriangular times lower unitriangular: det 1.
         let up = |i: usize, j: usize| -> i64 {
@@ -485,50 +484,6 @@ mod tests {
             let c = shell_counts(&g, 5);
             assert_eq!(&c[1..], &[8, 24, 32, 24, 48]);
         }
-    }
-
-    #[test]
-    fn lll_basis_is_unimodular_and_reduced() {
-        // Checks of the definition [Lenstra, Lenstra & Lovasz (1982)]: |det U|
-        // = 1 (exact), U^T G U = reduced Gram, |mu_kj| <= 1/2 (+ rounding)
-        // and the Lovasz condition with delta = 0.99.
-        let g = gram(&scrambled(&e8()));
-        let red = lll::float(&g).unwrap();
-        assert!(!red.capped);
-        assert!(red.swaps > 0, "the scrambled basis needs reduction");
-        let longest = (0..8).map(|i| g[(i, i)]).fold(0.0, f64::max);
-        assert!(longest > 10.0, "the scrambled basis has long vectors");
-        let n = g.nrows();
-        let cols: Vec<Vec<i64>> = (0..n)
-            .map(|i| (0..n).map(|j| red.basis[j][i]).collect())
-            .collect();
-        let det = bareiss::det_and_inverse(&cols).unwrap().0;
-        assert_eq!(num_traits::Signed::abs(&det), num_bigint::BigInt::from(1));
-        // Gram-Schmidt of the reduced Gram matrix, recomputed here.
-        let gr = &red.gram;
-        let mut mu = vec![vec![0.0; n]; n];
-        let mut b = vec![0.0; n];
-        for k in 0..n {
-            for j in 0..k {
-                let mut x = gr[(k, j)];
-                for i in 0..j {
-                    x -= mu[j][i] * mu[k][i] * b[i];
-                }
-                mu[k][j] = x / b[j];
-            }
-            b[k] = gr[(k, k)] - (0..k).map(|j| mu[k][j] * mu[k][j] * b[j]).sum::<f64>();
-        }
-        for k in 1..n {
-            assert!(
-                mu[k][..k].iter().all(|x| x.abs() <= 0.5 + 1e-9),
-                "size reduction"
-            );
-            assert!(b[k] >= (LLL_DELTA - mu[k][k - 1].powi(2)) * b[k - 1] - 1e-9);
-        }
-        // LLL's bound on the first vector [Lenstra, Lenstra & Lovasz (1982)]:
-        // |b_1|^2 <= (delta - 1/4)^-(n-1) lambda_1^2, with lambda_1^2 = 2 for E8.
-        let factor = (1.0 / (LLL_DELTA - 0.25)).powi(n as i32 - 1);
-        assert!(gr[(0, 0)] <= factor * 2.0 + 1e-9);
     }
 
     #[test]

@@ -17,7 +17,9 @@
 //!
 //! Invariants: U is unimodular (only swaps and b_k -= q b_j moves); the
 //! exact variant never rounds; the float variant fails rather than return
-//! a U that overflowed or a form that is numerically singular.
+//! a U that overflowed or a form that is numerically singular. The tests
+//! borrow their lattices from the tests of `math/reduce.rs` (random
+//! unimodular scramblings) and `math/ellipsoid.rs` (a scrambled E8).
 
 use nalgebra::DMatrix;
 use num_bigint::BigInt;
@@ -284,4 +286,91 @@ fn transform(g: &DMatrix<f64>, u: &[Vec<i64>]) -> DMatrix<f64> {
     let um = DMatrix::from_fn(n, n, |i, j| u[j][i] as f64);
     let t = um.transpose() * g * &um;
     (&t + t.transpose()) * 0.5
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::math::ellipsoid::tests::{e8, gram, scrambled};
+    use crate::math::reduce::tests::{diag, random_unimodular};
+    use num_traits::Signed;
+    use rand::{Rng, SeedableRng};
+    use rand_chacha::ChaCha8Rng;
+
+    #[test]
+    fn exact_lll_conditions_hold() {
+        // The two defining conditions of an LLL-reduced basis (Lenstra,
+        // Lenstra & Lovasz 1982, from memory), recomputed here by plain
+        // Gram-Schmidt:
+        // |mu_ij| <= 1/2 and B_k >= (delta - mu_{k,k-1}^2) B_{k-1}.
+        let mut rng = ChaCha8Rng::seed_from_u64(3);
+        for _ in 0..30 {
+            let n = rng.gen_range(2..=5);
+            let b = random_unimodular(&mut rng, n, 12);
+            let scale: Vec<i64> = (0..n).map(|_| rng.gen_range(1..=4)).collect();
+            let g = b.gram(&diag(&scale));
+            let u = exact(&g);
+            assert!(zmat::det(&u).abs().is_one(), "unimodular");
+            let r = u.gram(&g);
+            let mut mu = vec![vec![Rational::zero(); n]; n];
+            let mut bb = vec![Rational::zero(); n];
+            for k in 0..n {
+                gram_schmidt_row(&r, &mut mu, &mut bb, k);
+            }
+            let half = Rational::new(BigInt::one(), BigInt::from(2));
+            let delta = Rational::new(BigInt::from(99), BigInt::from(100));
+            for k in 1..n {
+                for m in &mu[k][..k] {
+                    assert!(m.abs() <= half, "size reduced");
+                }
+                assert!(bb[k] >= (&delta - &mu[k][k - 1] * &mu[k][k - 1]) * &bb[k - 1]);
+            }
+            // The form is only rewritten: same determinant.
+            assert_eq!(zmat::det(&r), zmat::det(&g));
+        }
+    }
+
+    #[test]
+    fn float_lll_basis_is_unimodular_and_reduced() {
+        // Checks of the definition [Lenstra, Lenstra & Lovasz (1982)]: |det U|
+        // = 1 (exact), U^T G U = reduced Gram, |mu_kj| <= 1/2 (+ rounding)
+        // and the Lovasz condition with delta = 0.99.
+        let g = gram(&scrambled(&e8()));
+        let red = float(&g).unwrap();
+        assert!(!red.capped);
+        assert!(red.swaps > 0, "the scrambled basis needs reduction");
+        let longest = (0..8).map(|i| g[(i, i)]).fold(0.0, f64::max);
+        assert!(longest > 10.0, "the scrambled basis has long vectors");
+        let n = g.nrows();
+        let cols: Vec<Vec<i64>> = (0..n)
+            .map(|i| (0..n).map(|j| red.basis[j][i]).collect())
+            .collect();
+        let det = crate::math::bareiss::det_and_inverse(&cols).unwrap().0;
+        assert_eq!(num_traits::Signed::abs(&det), num_bigint::BigInt::from(1));
+        // Gram-Schmidt of the reduced Gram matrix, recomputed here.
+        let gr = &red.gram;
+        let mut mu = vec![vec![0.0; n]; n];
+        let mut b = vec![0.0; n];
+        for k in 0..n {
+            for j in 0..k {
+                let mut x = gr[(k, j)];
+                for i in 0..j {
+                    x -= mu[j][i] * mu[k][i] * b[i];
+                }
+                mu[k][j] = x / b[j];
+            }
+            b[k] = gr[(k, k)] - (0..k).map(|j| mu[k][j] * mu[k][j] * b[j]).sum::<f64>();
+        }
+        for k in 1..n {
+            assert!(
+                mu[k][..k].iter().all(|x| x.abs() <= 0.5 + 1e-9),
+                "size reduction"
+            );
+            assert!(b[k] >= (LLL_DELTA - mu[k][k - 1].powi(2)) * b[k - 1] - 1e-9);
+        }
+        // LLL's bound on the first vector [Lenstra, Lenstra & Lovasz (1982)]:
+        // |b_1|^2 <= (delta - 1/4)^-(n-1) lambda_1^2, with lambda_1^2 = 2 for E8.
+        let factor = (1.0 / (LLL_DELTA - 0.25)).powi(n as i32 - 1);
+        assert!(gr[(0, 0)] <= factor * 2.0 + 1e-9);
+    }
 }

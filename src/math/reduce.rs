@@ -632,13 +632,13 @@ pub fn content(v: &[BigInt]) -> BigInt {
 }
 
 #[cfg(test)]
-mod tests {
+pub(crate) mod tests {
     use super::*;
     use rand::{Rng, SeedableRng};
     use rand_chacha::ChaCha8Rng;
 
     /// A random unimodular matrix: a product of elementary moves.
-    fn random_unimodular(rng: &mut ChaCha8Rng, n: usize, moves: usize) -> ZMat {
+    pub(crate) fn random_unimodular(rng: &mut ChaCha8Rng, n: usize, moves: usize) -> ZMat {
         let mut u = ZMat::identity(n);
         if n < 2 {
             return u;
@@ -655,7 +655,7 @@ mod tests {
         u
     }
 
-    fn diag(d: &[i64]) -> ZMat {
+    pub(crate) fn diag(d: &[i64]) -> ZMat {
         let n = d.len();
         let rows: Vec<Vec<i64>> = (0..n)
             .map(|i| (0..n).map(|j| if i == j { d[i] } else { 0 }).collect())
@@ -670,39 +670,6 @@ mod tests {
             .map(|x| x.abs())
             .max()
             .unwrap_or_default()
-    }
-
-    #[test]
-    fn lll_conditions_hold() {
-        // The two defining conditions of an LLL-reduced basis (Lenstra,
-        // Lenstra & Lovasz 1982, from memory), recomputed here by plain
-        // Gram-Schmidt:
-        // |mu_ij| <= 1/2 and B_k >= (delta - mu_{k,k-1}^2) B_{k-1}.
-        let mut rng = ChaCha8Rng::seed_from_u64(3);
-        for _ in 0..30 {
-            let n = rng.gen_range(2..=5);
-            let b = random_unimodular(&mut rng, n, 12);
-            let scale: Vec<i64> = (0..n).map(|_| rng.gen_range(1..=4)).collect();
-            let g = b.gram(&diag(&scale));
-            let u = lll::exact(&g);
-            assert!(zmat::det(&u).abs().is_one(), "unimodular");
-            let r = u.gram(&g);
-            let mut mu = vec![vec![Rational::zero(); n]; n];
-            let mut bb = vec![Rational::zero(); n];
-            for k in 0..n {
-                lll::gram_schmidt_row(&r, &mut mu, &mut bb, k);
-            }
-            let half = Rational::new(BigInt::one(), BigInt::from(2));
-            let delta = Rational::new(BigInt::from(99), BigInt::from(100));
-            for k in 1..n {
-                for m in &mu[k][..k] {
-                    assert!(m.abs() <= half, "size reduced");
-                }
-                assert!(bb[k] >= (&delta - &mu[k][k - 1] * &mu[k][k - 1]) * &bb[k - 1]);
-            }
-            // The form is only rewritten: same determinant.
-            assert_eq!(zmat::det(&r), zmat::det(&g));
-        }
     }
 
     #[test]
