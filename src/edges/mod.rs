@@ -1,7 +1,7 @@
 //! `pinflow edges`: what is left once a set of terms is pinned — the
 //! number of gapped right-left pairs, whether the bulk is fully gapped, and
 //! the gapless theory near each end of an open array (docs/physics.md
-//! section 6).
+//! section 7).
 //!
 //! Method, all in exact integer arithmetic (big integers):
 //! - the pinned set P: local, null, mutually commuting terms (all their

@@ -1,5 +1,5 @@
 //! The gapless theory left in a region once a set of terms is pinned
-//! (docs/physics.md section 6), and its exact invariants.
+//! (docs/physics.md section 7), and its exact invariants.
 //!
 //! Region: a set of fields (all of them, or the wires of a window). With
 //! pinned particle vectors n_p and the form <n, n'> = n^T K n':

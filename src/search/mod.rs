@@ -1,7 +1,7 @@
 //! `pinflow hunt`: every local operator of a model with scaling dimension up
 //! to a bound, at one parameter point, with a certificate when there is none.
 //!
-//! Method (docs/physics.md section 5). A local operator is
+//! Method (docs/physics.md section 6). A local operator is
 //! O = exp(i l.phi) with l = K m, m in Z^N its particle content, and
 //!
 //! ```text
