@@ -16,6 +16,7 @@ pub mod convergence;
 
 use serde::Serialize;
 
+use crate::core::fixed_point::DIMENSION_ERROR_LIMIT;
 use crate::core::momentum::MOMENTUM_TOLERANCE;
 use crate::core::qspace::Quadrature;
 use crate::core::relevance::{is_relevant, rg_eigenvalue};
@@ -39,6 +40,10 @@ pub enum Algebra {
 /// What one evaluation of the fixed point gives the report.
 struct Evaluated {
     bosonic: Vec<f64>,
+    /// Per term: [relative error bound, sensitivity to V's rounding].
+    errors: Vec<[f64; 2]>,
+    /// D was computed in double-double (ill-conditioned V).
+    extended: bool,
     velocities: Vec<f64>,
     chiralities: Vec<i8>,
     velocity_ranges: Option<Vec<[f64; 2]>>,
@@ -52,39 +57,95 @@ fn evaluate(sys: &System, point: &[f64], algebra: Algebra) -> Result<Evaluated, 
         Algebra::QSpace => true,
     };
     if !q {
-        let fp = sys.fixed_point(point)?;
-        return Ok(Evaluated {
-            bosonic: sys
-                .lattice
-                .families
-                .iter()
-                .map(|f| fp.dimension(&f.rep().l))
-                .collect(),
-            velocities: fp.velocities,
-            chiralities: fp.chirality,
-            velocity_ranges: None,
-            quadrature: None,
-        });
+        return evaluate_dense(sys, point);
     }
     if sys.is_infinite() {
         let (fp, quad) = sys.q_converged(point)?;
+        // The infinite array's D(q) stays in doubles (there is no dense
+        // path); the bound says how accurate it is.
+        let (errors, _) = sys.q_dimension_errors(point, fp.points)?;
         return Ok(Evaluated {
             bosonic: sys.q_dimensions(&fp)?,
+            errors,
+            extended: false,
             velocities: fp.velocities[0].clone(),
             chiralities: fp.chirality.clone(),
             velocity_ranges: Some(fp.velocity_ranges()),
             quadrature: Some(quad),
         });
     }
+    let (errors, extended) = sys.q_dimension_errors(point, sys.lattice.wires)?;
+    if extended && algebra == Algebra::Auto {
+        // Ill-conditioned V(q): the dense path of the same ring computes
+        // the same numbers in double-double.
+        return evaluate_dense(sys, point);
+    }
     let fp = sys.q_fixed_point(point, sys.lattice.wires)?;
     let (velocities, chiralities) = fp.all_velocities();
     Ok(Evaluated {
         bosonic: sys.q_dimensions(&fp)?,
+        errors,
+        extended: false,
         velocities,
         chiralities,
         velocity_ranges: None,
         quadrature: None,
     })
+}
+
+fn evaluate_dense(sys: &System, point: &[f64]) -> Result<Evaluated, Error> {
+    let fp = sys.fixed_point(point)?;
+    let reps = || sys.lattice.families.iter().map(|f| &f.rep().l);
+    Ok(Evaluated {
+        bosonic: reps().map(|l| fp.dimension(l)).collect(),
+        errors: reps()
+            .map(|l| [fp.dimension_error(l), fp.dimension_sensitivity(l)])
+            .collect(),
+        extended: fp.accuracy.extended,
+        velocities: fp.velocities,
+        chiralities: fp.chirality,
+        velocity_ranges: None,
+        quadrature: None,
+    })
+}
+
+/// Refuse a point where some dimension's error bound exceeds
+/// [`DIMENSION_ERROR_LIMIT`] (the message names the point and the term).
+fn check_errors(sys: &System, point: &[f64], ev: &Evaluated) -> Result<(), Error> {
+    let worst = ev
+        .errors
+        .iter()
+        .enumerate()
+        .max_by(|a, b| a.1[0].total_cmp(&b.1[0]));
+    match worst {
+        Some((i, e)) if e[0] > DIMENSION_ERROR_LIMIT || e[0].is_nan() => Err(Error::Inaccurate(format!(
+            "{}: the scaling dimension of term \"{}\" at {} cannot be computed accurately: its error bound is {:.1e} (relative; at most {:.0e} is accepted), V is badly conditioned there; choose another point",
+            sys.model.file,
+            sys.model.terms[i].name,
+            sys.model.params.describe(point),
+            e[0],
+            DIMENSION_ERROR_LIMIT
+        ))),
+        _ => Ok(()),
+    }
+}
+
+/// Notes on accuracy: the extended route, and dimensions that the rounding
+/// of V's entries to doubles moves by more than the limit.
+fn accuracy_notes(names: &[String], ev: &Evaluated) -> Vec<String> {
+    let mut notes = Vec::new();
+    if ev.extended {
+        notes.push("V is ill-conditioned at this point: D was computed in double-double arithmetic (about 31 digits); `dimension_error` bounds each dimension's error".to_string());
+    }
+    for (name, e) in names.iter().zip(&ev.errors) {
+        if e[1] > DIMENSION_ERROR_LIMIT {
+            notes.push(format!(
+                "the dimension of {name} is sensitive to V: rounding V's entries to doubles (relative 1.1e-16) can move it by {:.1e} (relative), so V's parameters must be known to that accuracy",
+                e[1]
+            ));
+        }
+    }
+    notes
 }
 
 /// One term's row.
@@ -104,6 +165,10 @@ pub struct TermRow {
     pub wire: usize,
     /// Total scaling dimension (bosonic part plus extra dimension).
     pub dimension: f64,
+    /// First-order bound on the relative rounding error of `dimension`
+    /// (see `FixedPoint::dimension_error`); points where it exceeds 1e-8
+    /// are refused.
+    pub dimension_error: f64,
     /// Fixed extra dimension from sectors the bosons do not describe.
     pub extra_dimension: f64,
     /// Conformal spin (exact), including the extra spin.
@@ -200,6 +265,7 @@ impl DimsReport {
     pub fn build_with(sys: &System, point: &[f64], algebra: Algebra) -> Result<DimsReport, Error> {
         sys.model.check_point(point)?;
         let ev = evaluate(sys, point, algebra)?;
+        check_errors(sys, point, &ev)?;
         let extra = sys.extra_dimensions(point)?;
         let momenta = sys.momentum_mismatches(point);
         let inv = &sys.invariants;
@@ -234,6 +300,7 @@ impl DimsReport {
                 particles_exact: particles.iter().map(fmt_rational).collect(),
                 wire: rep.anchor,
                 dimension,
+                dimension_error: ev.errors[i][0],
                 extra_dimension: extra[i],
                 spin: fmt_rational(&ti.spin),
                 h: (dimension + s) / 2.0,
@@ -255,6 +322,8 @@ impl DimsReport {
         }
         let parameters = sys.model.params.json_point(point);
         let mut notes = notes_for(&terms);
+        let names: Vec<String> = terms.iter().map(|t| t.name.clone()).collect();
+        notes.extend(accuracy_notes(&names, &ev));
         let starred = inv.commutation.iter().zip(&inv.commutes).any(|(ph, ok)| {
             ph.iter()
                 .zip(ok)
