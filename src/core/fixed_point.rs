@@ -60,9 +60,13 @@ pub struct Accuracy {
 }
 
 /// Largest error-growth indicator (see [`route_indicator`]) for which the
-/// double-precision route is kept: below it, D is computed as before in
-/// doubles; above it, in double-double.
-pub const EXTENDED_ABOVE: f64 = 1e-11;
+/// double-precision route is kept: below it, D is computed in doubles;
+/// above it, in double-double. The indicator is a worst-case first-order
+/// bound that grows as n^2 with the number of fields, so a smaller value
+/// would send every large, well-conditioned dense model (a 256-wire open
+/// strip: 512 fields) to the double-double route, about 20 times slower,
+/// although its bound is already a quarter of [`DIMENSION_ERROR_LIMIT`].
+pub const EXTENDED_ABOVE: f64 = DIMENSION_ERROR_LIMIT / 4.0;
 
 /// Dimensions whose relative error bound exceeds this are refused (`dims`).
 pub const DIMENSION_ERROR_LIMIT: f64 = 1e-8;

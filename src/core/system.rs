@@ -91,13 +91,15 @@ impl System {
         let k = lattice.k_f64();
         let periodic = lattice.boundary == Some(Boundary::Periodic) && lattice.wires >= 2;
         let q = periodic.then(|| QModel::new(&model, &lattice, &invariants));
-        Ok(System {
+        let sys = System {
             model,
             lattice,
             invariants,
             k,
             q,
-        })
+        };
+        crate::core::pinned::set::check_targets(&sys)?;
+        Ok(sys)
     }
 
     /// True for an infinite array.

@@ -207,6 +207,18 @@ pub struct TermRow {
     pub self_commuting: bool,
     /// Bare coupling y at this point.
     pub coupling: f64,
+    /// With `--pin`: commutes with every pinned translate.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub commutes_with_pinned: Option<bool>,
+    /// With `--pin`: the dimension in the residual theory of the pinned set
+    /// (exact Schur form with the real V, plus the extra dimension); null
+    /// when the term is disordered.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub dimension_pinned: Option<Option<f64>>,
+    /// With `--pin`: fails to commute with a pinned translate (its
+    /// correlations decay exponentially in the pinned phase).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub disordered: Option<bool>,
 }
 
 /// The whole `dims` report.
@@ -245,6 +257,17 @@ pub struct DimsReport {
     /// The momentum period G (`momentum_period`) at the point, by which
     /// every term's `momentum` is reduced to (-G/2, G/2]; null without one.
     pub momentum_period: Option<f64>,
+    /// With `--pin`: the pinned term families (every translate in arrays).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub pinned: Option<Vec<String>>,
+    /// With `--pin`: the phase of the pinned set (label, invariants, and
+    /// whether it is the target phase; see [`crate::core::phase`]).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub phase: Option<crate::core::phase::Phase>,
+    /// With `--pin` on an infinite array: the quadrature of the pinned
+    /// integrals (midpoint rule).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub pinned_quadrature: Option<Quadrature>,
     /// One row per term.
     pub terms: Vec<TermRow>,
     /// Mutual phases l_a^T K^-1 l_b ("p/q").
@@ -255,7 +278,82 @@ pub struct DimsReport {
     pub notes: Vec<String>,
 }
 
+/// Options of the `dims` report.
+#[derive(Debug, Clone)]
+pub struct DimsOptions {
+    /// Term families to pin (empty: the plain report).
+    pub pins: Vec<String>,
+    /// The code path.
+    pub algebra: Algebra,
+}
+
+impl Default for DimsOptions {
+    fn default() -> Self {
+        DimsOptions {
+            pins: Vec::new(),
+            algebra: Algebra::Auto,
+        }
+    }
+}
+
 impl DimsReport {
+    /// The report with options: with pins, every term also gets its place
+    /// in the residual theory of the pinned set ([`crate::core::pinned`]).
+    pub fn build_opts(
+        sys: &System,
+        point: &[f64],
+        opts: &DimsOptions,
+    ) -> Result<DimsReport, Error> {
+        let set = if opts.pins.is_empty() {
+            None
+        } else {
+            Some(crate::core::pinned::set::from_names(
+                sys, &opts.pins, "--pin",
+            )?)
+        };
+        let mut report = DimsReport::build_with(sys, point, opts.algebra)?;
+        if let Some(set) = set {
+            let dense = opts.algebra == Algebra::Dense;
+            let pd = crate::core::pinned::set::evaluate(
+                sys,
+                &set,
+                point,
+                crate::core::pinned::Form::Exact,
+                dense,
+            )?;
+            report.add_pinned(&set, &pd);
+            report.phase = Some(phase_of(sys, &set));
+        }
+        Ok(report)
+    }
+
+    fn add_pinned(
+        &mut self,
+        set: &crate::core::pinned::set::PinnedSet,
+        pd: &crate::core::pinned::set::PinnedDims,
+    ) {
+        for (i, row) in self.terms.iter_mut().enumerate() {
+            row.commutes_with_pinned = Some(pd.commutes[i]);
+            row.disordered = Some(!pd.commutes[i]);
+            row.dimension_pinned = Some(pd.bosonic[i].map(|d| d + row.extra_dimension));
+        }
+        self.pinned = Some(set.names.clone());
+        self.pinned_quadrature = pd.quadrature;
+        self.notes.push(pinned_note(
+            &set.names,
+            self.wires.is_some() || self.infinite,
+        ));
+        if let Some(q) = &pd.quadrature {
+            self.notes.push(format!(
+                "Pinned dimensions of the infinite array: midpoint rule q = 2 pi (k + 1/2) / N with {} points, error estimate {:.1e} (tolerance {:.0e}){}",
+                q.points,
+                q.error_estimate,
+                q.tolerance,
+                if q.converged { "" } else { "; NOT converged" }
+            ));
+        }
+    }
+
     /// Compute the report at a parameter point ([`Algebra::Auto`]).
     pub fn build(sys: &System, point: &[f64]) -> Result<DimsReport, Error> {
         DimsReport::build_with(sys, point, Algebra::Auto)
@@ -318,6 +416,9 @@ impl DimsReport {
                 momentum_per_translate: dk,
                 self_commuting: ti.self_commuting,
                 coupling: spec.coupling.eval(point),
+                commutes_with_pinned: None,
+                dimension_pinned: None,
+                disordered: None,
             });
         }
         let parameters = sys.model.params.json_point(point);
@@ -365,6 +466,9 @@ impl DimsReport {
             velocity_ranges: ev.velocity_ranges,
             quadrature: ev.quadrature,
             momentum_period,
+            pinned: None,
+            phase: None,
+            pinned_quadrature: None,
             terms,
             commutation: inv
                 .commutation
@@ -375,6 +479,34 @@ impl DimsReport {
             notes,
         })
     }
+}
+
+/// The phase a pinned set of model terms spans.
+fn phase_of(sys: &System, set: &crate::core::pinned::set::PinnedSet) -> crate::core::phase::Phase {
+    use crate::core::phase;
+    let fams: Vec<&crate::core::lattice::Family> = set
+        .indices
+        .iter()
+        .map(|&i| &sys.lattice.families[i])
+        .collect();
+    let lat = phase::PhaseLattice::new(&sys.lattice, &fams);
+    let target = phase::target_lattice(sys);
+    phase::name(
+        &sys.lattice,
+        &lat,
+        &set.names,
+        &phase::listed(sys),
+        target.as_ref(),
+    )
+}
+
+/// What the pinned columns mean.
+fn pinned_note(names: &[String], array: bool) -> String {
+    let every = if array { "every translate of " } else { "" };
+    format!(
+        "Pinned: {every}{}. dimension_pinned is the scaling dimension in the residual Gaussian theory once these are pinned (the pinned combinations and their radical K^-1 P integrated out: Schur complement with the real V; docs/physics.md, section 8), plus any extra dimension; a term that fails to commute with a pinned translate is disordered (exponentially decaying correlations) and has no pinned dimension.",
+        names.iter().map(|n| format!("\"{n}\"")).collect::<Vec<_>>().join(", ")
+    )
 }
 
 /// dk of term i (see [`TermRow::momentum_per_translate`]); None for
@@ -478,6 +610,25 @@ impl Report for DimsReport {
             ),
             ("fields".to_string(), self.fields.to_string()),
         ];
+        let mut pinned_fact: Vec<(String, String)> = self
+            .pinned
+            .iter()
+            .map(|p| ("pinned".to_string(), p.join(", ")))
+            .collect();
+        if let Some(p) = &self.phase {
+            let per = if self.infinite { " per wire" } else { "" };
+            pinned_fact.push((
+                "phase".to_string(),
+                format!(
+                    "{}: {} gapped pairs, {} gapless modes{per}{}{}",
+                    p.label,
+                    p.gapped_pairs,
+                    p.gapless_modes,
+                    if p.fully_gapped { ", fully gapped" } else { "" },
+                    if p.target { ", the target phase" } else { "" }
+                ),
+            ));
+        }
         if let Some(w) = self.wires {
             f.push(("wires".to_string(), w.to_string()));
         }
@@ -526,6 +677,7 @@ impl Report for DimsReport {
                 f.push(("velocity range over q".to_string(), ranges.join("; ")));
             }
         }
+        f.extend(pinned_fact);
         f
     }
 
@@ -585,6 +737,9 @@ impl Report for DimsReport {
                     .unwrap_or_default(),
             ]);
         }
+        if self.pinned.is_some() {
+            self.add_pinned_columns(&mut t);
+        }
         t
     }
 
@@ -594,6 +749,18 @@ impl Report for DimsReport {
 }
 
 impl DimsReport {
+    /// CSV columns commutes_with_pinned, dimension_pinned, disordered.
+    fn add_pinned_columns(&self, t: &mut Table) {
+        for h in ["commutes_with_pinned", "dimension_pinned", "disordered"] {
+            t.headers.push(h.to_string());
+        }
+        for (cells, r) in t.rows.iter_mut().zip(&self.terms) {
+            cells.push(opt_string(r.commutes_with_pinned));
+            cells.push(opt_string(r.dimension_pinned.flatten()));
+            cells.push(opt_string(r.disordered));
+        }
+    }
+
     fn term_table(&self) -> Table {
         let mut t = Table::new(
             "terms",
@@ -642,7 +809,22 @@ impl DimsReport {
                     .unwrap_or_else(|| "-".into()),
             ]);
         }
+        if self.pinned.is_some() {
+            self.add_pinned_text(&mut t);
+        }
         t
+    }
+
+    /// Text/Markdown/LaTeX column "Delta pinned": the value, or
+    /// "disordered".
+    fn add_pinned_text(&self, t: &mut Table) {
+        t.headers.push("Delta pinned".to_string());
+        for (cells, r) in t.rows.iter_mut().zip(&self.terms) {
+            cells.push(match r.dimension_pinned.flatten() {
+                Some(d) => format!("{d:.6}"),
+                None => "disordered".to_string(),
+            });
+        }
     }
 
     fn commutation_table(&self) -> Table {
@@ -663,6 +845,10 @@ impl DimsReport {
         }
         t
     }
+}
+
+fn opt_string<T: std::fmt::Display>(x: Option<T>) -> String {
+    x.map(|v| v.to_string()).unwrap_or_default()
 }
 
 fn yes_no(b: bool) -> String {

@@ -94,7 +94,8 @@ pub struct TermSpec {
     pub extra_dimension: Scalar,
     /// Fixed extra conformal spin sigma.
     pub extra_spin: Rational,
-    /// The term the model is meant to realise.
+    /// One of the terms the model is meant to realise (any number may be
+    /// targets; the target phase is the lattice they span).
     pub target: bool,
     /// Charge the term may carry without being flagged.
     pub allowed_charge: Rational,
@@ -403,9 +404,17 @@ impl Model {
         self.momentum_period.as_ref().map(|g| g.eval(point))
     }
 
-    /// Index of the term marked as the target, if any.
+    /// Index of the first term marked as the target, if any.
     pub fn target(&self) -> Option<usize> {
         self.terms.iter().position(|t| t.target)
+    }
+
+    /// Indices of every term marked as a target (any number; two or more
+    /// must pin together, see [`crate::pinned::set::check_targets`]).
+    pub fn targets(&self) -> Vec<usize> {
+        (0..self.terms.len())
+            .filter(|&i| self.terms[i].target)
+            .collect()
     }
 }
 
@@ -799,19 +808,6 @@ fn read_terms(ctx: &Ctx, model: &Model, raw: &[RawTerm]) -> Result<Vec<TermSpec>
             return Err(ctx.err(&key, "duplicate term name (names must be unique)"));
         }
         terms.push(read_term(ctx, model, t, &key)?);
-    }
-    let targets: Vec<&str> = terms
-        .iter()
-        .filter(|t| t.target)
-        .map(|t| t.name.as_str())
-        .collect();
-    if let [first, second, ..] = targets[..] {
-        return Err(ctx.err(
-            &format!("term \"{second}\".target"),
-            format!(
-                "at most one term may be marked as the target, and term \"{first}\" already is"
-            ),
-        ));
     }
     Ok(terms)
 }
