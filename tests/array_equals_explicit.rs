@@ -4,7 +4,7 @@
 //! description, with the forward-scattering blocks placed by hand and every
 //! translate of every term written as its own explicit term `name@anchor`.
 //!
-//! Conventions (physics reference, section 4): field = wire * n_c + c; block
+//! Conventions (docs/physics.md section 5): field = wire * n_c + c; block
 //! n of V couples wire j (rows) to wire j + n (columns) and V^(-n) = V^(n)T;
 //! a periodic array wraps wire indices modulo W, an open array keeps the
 //! couplings and term translates that fit.

@@ -367,7 +367,7 @@ type Parts = Vec<(usize, [i64; 2])>;
 
 /// Mutual phase l_a^T K^-1 l_b' of two terms on the infinite line, b
 /// shifted by s wires, for the cell K = diag(1, -1) (K^-1 = K), written
-/// out directly (derived from the formula of the physics reference).
+/// out directly (derived from the formula of docs/physics.md section 5).
 fn line_phase(a: &[(usize, [i64; 2])], b: &[(usize, [i64; 2])], s: i64) -> i64 {
     let mut total = 0;
     for (oa, la) in a {

@@ -7,7 +7,7 @@
 //! `System::new` and `DimsReport::build`.
 //!
 //! A formula used below to derive expected values (derived from
-//! D = L^-T |S|^-1 L^-1 of the physics reference, section 1): for this wire
+//! D = L^-T |S|^-1 L^-1 of docs/physics.md section 1): for this wire
 //! D = (1/2) [[K_L + 1/K_L, K_L - 1/K_L], [K_L - 1/K_L, K_L + 1/K_L]], so a
 //! vector l = (a, b) has Delta = ((a + b)^2 K_L + (a - b)^2 / K_L) / 4.
 
@@ -133,7 +133,7 @@ fn backscattering_pair_umklapp_and_electron() {
         assert_eq!(e.charge, "1");
         assert!(!e.null, "a fermion has spin 1/2, it cannot pin on its own");
         // Chiral weights: h - hbar = s and h + hbar = Delta (definition,
-        // physics reference section 1).
+        // docs/physics.md section 1).
         assert_close("h - hbar = s", e.h - e.hbar, 0.5, 1e-12);
         assert_close("h + hbar = Delta", e.h + e.hbar, e.dimension, 1e-12);
     }

@@ -7,7 +7,7 @@
 //! Check values: the Laughlin edges K = (-3) and (3), filling -+1/3 [Kane,
 //! Mukhopadhyay & Lubensky, PRL 88, 036401 (2002); Teo & Kane, PRB 89,
 //! 085101 (2014); from memory], with the signs and the generator (-1, 2) on
-//! wire 0 derived in the physics reference section 6 (see tests/edges.rs).
+//! wire 0 derived in docs/physics.md section 7 (see tests/edges.rs).
 
 /// Every test sits in this module so that the filter `edges` selects them all.
 mod edges {

@@ -7,7 +7,7 @@
 //! and (-m) at the other and filling 1/m [Kane, Mukhopadhyay & Lubensky,
 //! PRL 88, 036401 (2002); Teo & Kane, PRB 89, 085101 (2014); from memory].
 //! The lattice statements (r = W - 1, the edge generator, det = -1 for the
-//! whole strip) are derived in the physics reference section 6 and beside
+//! whole strip) are derived in docs/physics.md section 7 and beside
 //! each test below.
 
 mod common;
@@ -104,7 +104,7 @@ particles = {{ 0 = {}, 1 = {} }}
 
     #[test]
     fn open_laughlin_arrays_leave_one_chiral_mode_at_each_end() {
-        // Derived (physics reference section 6): the W - 1 link vectors are
+        // Derived (docs/physics.md section 7): the W - 1 link vectors are
         // independent null vectors, so r = W - 1 and 2W - 2r = 2 modes remain.
         // In the left window, a generator on wire 0 must be orthogonal to the
         // wire-0 part of l_0 = K n_0 = (-(m+1)/2, -(m-1)/2): n = ((m-1)/2,
@@ -295,8 +295,8 @@ particles = [-2, 1, -1, 2, 0, 0]
     fn the_flow_pins_the_laughlin_term_of_the_opened_demo() {
         // At lambda = 0.8, g = 0.9 the tunnelling term wins the flow of the
         // demo (the README's phase diagram); the pinned phase then has the two
-        // Laughlin edges K = (-3) and (3), filling -+1/3 (physics reference
-        // section 6; Kane, Mukhopadhyay & Lubensky (2002), from memory).
+        // Laughlin edges K = (-3) and (3), filling -+1/3 (docs/physics.md
+        // section 7; Kane, Mukhopadhyay & Lubensky (2002), from memory).
         let sys = system(&opened_demo());
         let set = vec![("lambda".to_string(), 0.8), ("g".to_string(), 0.9)];
         let point = sys.model.point_with(&set, "test").unwrap();
@@ -553,7 +553,7 @@ particles = [-2, 1, -1, 2, 0, 0]
 
     #[test]
     fn invariants_do_not_depend_on_the_field_basis() {
-        // physics reference section 1: a change of field basis W in GL(N, Z)
+        // docs/physics.md section 1: a change of field basis W in GL(N, Z)
         // maps K -> W^T K W, l -> W^T l and leaves every invariant unchanged.
         // (1) the open filling-1/3 strip of 4 wires written out explicitly,
         let (p0, p1) = link(3);
@@ -845,7 +845,7 @@ vector = { 0 = [1, 1] }
 
     #[test]
     fn the_laughlin_line_gaps_one_pair_per_wire() {
-        // Teo & Kane, PRB 89, 085101 (2014), physics reference section 6
+        // Teo & Kane, PRB 89, 085101 (2014), docs/physics.md section 7
         // (from memory): the coupled-wire filling-1/m state is fully gapped
         // in the bulk. Derived here: one null vector per link, N(z) = a + b z
         // with a = (-(m+1)/2, (m-1)/2), b = (-(m-1)/2, (m+1)/2), which is not

@@ -8,7 +8,7 @@
 //!
 //! The cosine has Delta = 2 K, so dDelta/dl = -(y^2/4) Delta^2 and
 //! dy/dl = (2 - Delta) y. The project's flow gives the same law for ANY null
-//! vector l, K and V (derived from physics reference section 3): with
+//! vector l, K and V (derived from docs/physics.md section 3): with
 //! Delta = (1/2) l^T D l and dD/dl = -(1/8) y^2 [D l l^T D - K^-1 l l^T K^-1],
 //!
 //!     dDelta/dl = (1/2) l^T (dD/dl) l
@@ -291,7 +291,7 @@ fn default_outcome(delta0: f64, y0: f64) -> FlowResult {
 // Issue 13 item 5: with default options the strong/gapless boundary of a
 // single null cosine lies within 1e-3 (relative) of the separatrix value
 // y_c(Delta0) = sqrt(2 (8/Delta0 + 4 ln(Delta0/2) - 4)) (derived above from
-// the invariant; physics reference section 3). Bisection on y0 through the
+// the invariant; docs/physics.md section 3). Bisection on y0 through the
 // flow code; every flow on the way must be decided (strong above, gapless
 // below), and the flows at y_c (1 +- 1e-3) land on their sides. Before the
 // invariant was used, Delta0 = 2.2 was "undecided" in a band 6.5 % wide.

@@ -1,4 +1,4 @@
-//! Outcomes of one flow [physics reference section 3]: gapless, undecided,
+//! Outcomes of one flow [docs/physics.md section 3]: gapless, undecided,
 //! strong (with the winner and ell*), spinful, unphysical, and the momentum
 //! cut-off of a mismatched term.
 //!

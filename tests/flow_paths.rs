@@ -88,7 +88,7 @@ fn line_name(name: &str, wires: usize) -> String {
 
 /// The flow of an infinite array carried on N quadrature points is, term
 /// by term, the family flow of a periodic array of N wires (the q-space
-/// flow equations are the same sums; physics reference section 4). Two
+/// flow equations are the same sums; docs/physics.md section 5). Two
 /// code paths for one quantity, no external value.
 fn compare_infinite_with_ring(text: &str, wires: usize, sets: &[(&str, f64)], closure: Closure) {
     let ring = System::new(
@@ -209,8 +209,8 @@ fn tight(q_points: Option<usize>, q_tolerance: f64) -> FlowOptions {
 }
 
 /// The ring of 256 wires stands in for the exact infinite array: it is the
-/// 256-point trapezoid rule of the same integrals (physics reference
-/// section 4), and for the demo the rule converges geometrically (the bare
+/// 256-point trapezoid rule of the same integrals (docs/physics.md
+/// section 5), and for the demo the rule converges geometrically (the bare
 /// dimensions to 1e-10 on 32 points), so its own quadrature error is far
 /// below everything compared. Two code paths, no external value.
 const RING: usize = 256;

@@ -3,7 +3,7 @@
 //! coefficients, and the equivalence of a periodic family with its
 //! translates written out one by one.
 //!
-//! Equations [physics reference section 3, derived from Cardy, "Scaling and
+//! Equations [docs/physics.md section 3, derived from Cardy, "Scaling and
 //! Renormalization in Statistical Physics" (1996), ch. 5; the single-cosine
 //! limit is Giamarchi, "Quantum Physics in One Dimension" (2004), app. E,
 //! from memory]:

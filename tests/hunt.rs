@@ -173,7 +173,7 @@ mod search {
     #[test]
     fn same_set_as_brute_force_on_random_explicit_models() {
         // The definition of the search: every sign class of m in Z^N with
-        // (1/2) l^T D l <= Delta_max, l = K m [physics reference, section 5];
+        // (1/2) l^T D l <= Delta_max, l = K m [docs/physics.md section 6];
         // the brute force tests it directly on a box around the ellipsoid.
         let mut rng = ChaCha8Rng::seed_from_u64(20_250_306);
         let mut checked = 0;
@@ -444,7 +444,7 @@ particles = {{ 0 = [{}, {}], 1 = [{}, {}] }}
     #[test]
     fn filling_one_over_m_term_for_free_electrons() {
         // Kane, Mukhopadhyay & Lubensky, PRL 88, 036401 (2002) (from memory,
-        // and derived from section 1 of the physics reference): with V = 1 the
+        // and derived from docs/physics.md section 1): with V = 1 the
         // filling-1/m term has Delta = (m^2 + 1)/2 = 1, 5, 13.
         for m in [1i64, 3] {
             let want = ((m * m + 1) as f64) / 2.0;

@@ -4,7 +4,7 @@
 //! Inputs: symmetric integer K, N = 2..6, entries in -4..=4, det K != 0
 //! (singular draws are rejected; most draws are indefinite, some definite);
 //! V = A A^T + c I with A uniform in [-1, 1] and c in [0.1, 2] (positive
-//! definite). Identities (derived in the physics reference, section 1, from
+//! definite). Identities (derived in docs/physics.md section 1, from
 //! D = L^-T |S|^-1 L^-1 with V = L L^T, S = L^-1 K L^-T):
 //! - D K D = K^-1;
 //! - D positive definite;

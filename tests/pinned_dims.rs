@@ -1,5 +1,5 @@
-//! Dimensions in a pinned phase (`pinflow dims --pin`, physics reference
-//! section 7): the residual theory through the public API on explicit,
+//! Dimensions in a pinned phase (`pinflow dims --pin`, docs/physics.md
+//! section 8): the residual theory through the public API on explicit,
 //! open, periodic and infinite models, and the command line with every
 //! format and the bad inputs.
 

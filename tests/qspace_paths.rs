@@ -1,7 +1,7 @@
 //! The two code paths of a periodic array agree: the dense N x N algebra
 //! (N = W n_c fields) and the q-space algebra on the W points
 //! q_k = 2 pi k / W (block-circulant matrices are block diagonal in q;
-//! physics reference section 4: "the two code paths must agree to
+//! docs/physics.md section 5: "the two code paths must agree to
 //! rounding"). No external value is involved: the inputs are seeded random
 //! arrays (like `identities.rs`), so this checks one implementation against
 //! the other.

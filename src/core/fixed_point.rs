@@ -1,7 +1,7 @@
 //! The Gaussian fixed point: scaling-dimension matrix D, velocities and
 //! chiralities from K and V.
 //!
-//! Method [Wen, Adv. Phys. 44, 405 (1995); physics reference section 1]:
+//! Method [Wen, Adv. Phys. 44, 405 (1995); docs/physics.md section 1]:
 //! Cholesky V = L L^T, S = L^-1 K L^-T (symmetric, same signature as K),
 //! |S| its matrix absolute value, and
 //!

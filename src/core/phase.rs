@@ -1,4 +1,4 @@
-//! The identity of a pinned phase (physics reference section 7, "Naming
+//! The identity of a pinned phase (docs/physics.md section 8, "Naming
 //! the phase"): two pinned sets are one phase iff they span the same
 //! lattice, span_Z P_1 = span_Z P_2 (pinning 2l is not pinning l); the
 //! phase's label and its invariants.

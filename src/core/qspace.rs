@@ -19,7 +19,7 @@
 //! A. The Cholesky factor of V and the eigendecomposition of S therefore
 //! become, per q, a complex Cholesky V(q) = C C^H and a Hermitian
 //! eigendecomposition of S(q) = C^-1 K_c C^-H, with K(q) = K_c (K is block
-//! diagonal). The fixed point [physics reference section 1] is then, per q,
+//! diagonal). The fixed point [docs/physics.md section 1] is then, per q,
 //!
 //! ```text
 //! D(q) = C^-H |S(q)|^-1 C^-1,   velocities 1/|eig S(q)|,
@@ -29,10 +29,8 @@
 //! leaves it unchanged.) And sum_{j,j'} l_j^T D^(j'-j) l_j' = integral dq/2pi
 //! L(q)^H D(q) L(q) with the L above.
 //!
-//! The physics reference writes l(q) with e^{+iqn} and D_{j,j'} with
-//! e^{-iq(j-j')}; that is the same algebra with q -> -q. We keep the sign of
-//! the flow code, where V(q) has e^{+iqn} and therefore the window of real
-//! space is D_{j,j'} = integral dq/2pi e^{+iq(j-j')} D(q) (see
+//! docs/physics.md section 5 uses the same signs as this code, where V(q)
+//! has e^{+iqn} and therefore the window of real space is D_{j,j'} = integral dq/2pi e^{+iq(j-j')} D(q) (see
 //! [`QFixedPoint::real_space_window`]).
 //!
 //! A periodic array of W wires is exactly the W-point periodic trapezoid

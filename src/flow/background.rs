@@ -1,6 +1,6 @@
 //! The flowing scaling-dimension matrix D, in two storage layouts.
 //!
-//! Flow [physics reference sections 3 and 4]:
+//! Flow [docs/physics.md sections 3 and 5]:
 //! dD/dell = -(1/8) sum_{null a} |y_a|^2 sum_{translates t}
 //!           [ D l_t l_t^T D - K^-1 l_t l_t^T K^-1 ].
 //! It keeps D K D = K^-1 exactly (the two terms of d(DKD) cancel when

@@ -6,7 +6,7 @@
 //! point: candidates are generated once per model; each flow keeps those
 //! whose bare dimension is below the closure bound.
 //!
-//! OPE rule [physics reference section 3, from Cardy (1996) ch. 5]: in
+//! OPE rule [docs/physics.md section 4, from Cardy (1996) ch. 5]: in
 //! complex amplitudes w_l = (y/2) e^{i chi} (and w_{-l} = conj w_l),
 //! dw_c/dell += -(1/2) sum over ordered pairs (x, y) of flowing vectors with
 //! x + y = c and x^T K^-1 y = 0 of w_x w_y. With the first vector fixed at

@@ -3,7 +3,7 @@
 //! When exactly one channel has a non-zero coupling and it is a null vector
 //! of a single translate (an explicit model), with no extra dimension, no
 //! momentum cut-off and no active channel its self-OPE could feed, the
-//! second-order flow is exactly [physics reference section 3]
+//! second-order flow is exactly [docs/physics.md section 3]
 //!
 //! ```text
 //! dDelta/dell = -(y^2/4) Delta^2,   dy/dell = (2 - Delta) y,

@@ -2,7 +2,7 @@
 //! with the renormalised fixed point, integrated with the Dormand-Prince
 //! 5(4) method of `ode_solvers`.
 //!
-//! Method and limits [physics reference section 3]: first order (the
+//! Method and limits [docs/physics.md section 3]: first order (the
 //! tree-level 2 - Delta) is exact for any V; the OPE and D-feedback terms
 //! are second order in the couplings and use a single reference velocity.
 //! Results are trustworthy while the couplings are small; "strong coupling"

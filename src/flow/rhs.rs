@@ -1,8 +1,8 @@
 //! The right-hand side of the flow equations and the stop hook.
 //!
 //! State layout: `[Re w_0, Im w_0, ..., Re w_{C-1}, Im w_{C-1}, D...]` with
-//! D stored as the [`Background`] says. Equations [physics reference
-//! section 3]:
+//! D stored as the [`Background`] says. Equations [docs/physics.md
+//! sections 3 and 4]:
 //!
 //! ```text
 //! dw_c/dell = (2 - Delta_c - delta_c) w_c - (1/2) sum_OPE w_a w_b^(*)

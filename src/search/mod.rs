@@ -267,7 +267,7 @@ fn check_carried(
 
 /// D on the fields of the lattice, exact on the window: the dense fixed
 /// point for finite models; for an infinite array, the real-space window
-/// D_{j,j'} = int dq/2pi e^{-iq(j-j')} D(q) of the converged q-space fixed
+/// D_{j,j'} = int dq/2pi e^{+iq(j-j')} D(q) of the converged q-space fixed
 /// point, placed on the window's fields of the stand-in ring (the rest is
 /// never read).
 fn window_d(sys: &System, point: &[f64], window: &Window) -> Result<DMatrix<f64>, Error> {

@@ -2,7 +2,7 @@
 //! flows with chosen options, and the single-cosine formulas of the
 //! Kosterlitz-Thouless flow.
 //!
-//! Conventions [physics reference section 3]: y is normalised so that one
+//! Conventions [docs/physics.md section 3]: y is normalised so that one
 //! null cosine obeys dDelta/dell = -(y^2/4) Delta^2, dy/dell = (2 - Delta) y.
 #![allow(dead_code)]
 

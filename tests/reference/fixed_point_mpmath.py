@@ -5,7 +5,7 @@ Reads a JSON file {"digits": d, "cases": [{"K": [[...]], "V": [[...]]}, ...]}
 (path as the only argument) and prints JSON
 {"cases": [{"D": [[str]], "velocities": [str], "chiralities": [int]}, ...]}.
 
-Method (the physics reference, section 1): Cholesky V = L L^T,
+Method (docs/physics.md section 1): Cholesky V = L L^T,
 S = L^-1 K L^-T, symmetric eigen-decomposition S = Q diag(e) Q^T (mpmath
 eigsy), |S|^-1 = Q diag(1/|e|) Q^T, D = L^-T |S|^-1 L^-1, velocities
 1/|e_i| with chirality sign(e_i). Modes are listed right movers first, then

@@ -64,7 +64,7 @@ fn hnf_is_an_invariant_of_the_span() {
     }
 }
 
-/// Pinning 2l is not pinning l (physics reference section 7).
+/// Pinning 2l is not pinning l (docs/physics.md section 8).
 #[test]
 fn twice_a_vector_is_another_lattice() {
     let l = b(&[1, -2, 3]);

@@ -1,5 +1,5 @@
-//! The residual Gaussian theory of a pinned set (physics reference section
-//! 7): what is left of a Luttinger liquid once a set P of null, local,
+//! The residual Gaussian theory of a pinned set (docs/physics.md section
+//! 8): what is left of a Luttinger liquid once a set P of null, local,
 //! mutually commuting lattice vectors is pinned, and the scaling dimensions
 //! of the operators that commute with it.
 //!

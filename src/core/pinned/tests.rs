@@ -43,7 +43,7 @@ fn half_form(d: &DMatrix<f64>, l: &[i64]) -> f64 {
 }
 
 /// Luther-Emery [Luther & Emery, PRL 33, 589 (1974); Giamarchi, "Quantum
-/// Physics in One Dimension" (2004), ch. 7; physics reference section 7,
+/// Physics in One Dimension" (2004), ch. 7; docs/physics.md section 8,
 /// shared checks "Pinned phases"]: with the spin backscattering m = (1, -1,
 /// -1, 1) pinned, the 2k_F CDW has Delta = K_rho/2 and singlet pairing
 /// 1/(2 K_rho), with K_rho = Delta(4k_F CDW)/2; before pinning the CDW is
@@ -140,7 +140,7 @@ fn six_field() -> (Vectors, Vectors, Vectors) {
     (k, pins, ops)
 }
 
-/// Derived check (physics reference section 7): when V = D^-1 (every
+/// Derived check (docs/physics.md section 8): when V = D^-1 (every
 /// velocity equal) the exact and reference-velocity forms coincide; at a
 /// random V they differ (both code paths exist and are distinct).
 #[test]
@@ -195,7 +195,7 @@ fn random_unimodular(rng: &mut ChaCha8Rng, n: usize) -> DMatrix<f64> {
     u
 }
 
-/// Derived (physics reference section 7; see the module docs): the exact
+/// Derived (docs/physics.md section 8; see the module docs): the exact
 /// form does not depend on B. Three changes: the integer kernel basis as it
 /// comes (not orthonormalised), the same times a random unimodular matrix,
 /// and a different complement B + R X (shifted by the radical).
