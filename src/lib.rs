@@ -13,6 +13,7 @@
 //! - [`system`]: a model prepared once for evaluation at many points;
 //! - [`dims`]: the `pinflow dims` report, and [`convergence`] its
 //!   `--wires` form (dimensions against array size);
+//! - [`phase`]: naming the phase of a pinned set (its integer lattice);
 //! - [`flow`]: the second-order RG flow of competing couplings and D;
 //! - [`scan`]: parameter grids, shards, resume, summaries and figures;
 //! - [`search`]: the exhaustive operator search (`pinflow hunt`);
@@ -36,6 +37,7 @@ pub mod invariants;
 pub mod lattice;
 pub mod model;
 pub mod output;
+pub mod phase;
 pub mod plot;
 pub mod qspace;
 pub mod scan;

@@ -38,6 +38,7 @@ pub mod check;
 pub mod options;
 pub mod report;
 pub mod rhs;
+pub mod stages;
 
 use nalgebra::DVector;
 use ode_solvers::continuous_output_model::ContinuousOutputModel;
@@ -54,6 +55,7 @@ use channels::{Channel, Origin, Plan};
 pub use check::{QuadratureCheck, RuleChoice, StoppedBy};
 pub use options::{Closure, FlowOptions};
 use rhs::{FlowRhs, Sample, Stop};
+pub use stages::{Stage, StagesEnd};
 
 /// The outcome of one flow.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
@@ -131,8 +133,18 @@ pub struct FlowResult {
     pub winner: Option<String>,
     /// Scale at which the winner reached y_strong.
     pub ell_star: Option<f64>,
-    /// Gap estimate relative to the bandwidth u/alpha: e^{-ell*}.
+    /// Successive pinning: one entry per pinned family, in order.
+    pub stages: Vec<Stage>,
+    /// Why the staged flow ended (null for points that could not flow).
+    pub stages_end: Option<StagesEnd>,
+    /// Scale of the last stage (ell* of the last pinned family; ell* when
+    /// nothing pinned).
+    pub ell_last: Option<f64>,
+    /// Gap estimate relative to the bandwidth u/alpha: e^{-ell_last}.
     pub gap: Option<f64>,
+    /// The phase of the final pinned set (null for points that could not
+    /// flow).
+    pub phase: Option<crate::phase::Phase>,
     /// Where the integration ended.
     pub ell_end: f64,
     /// Every channel that flowed (listed first).
@@ -172,6 +184,8 @@ pub struct Flow<'s> {
     /// Options.
     pub opts: FlowOptions,
     layout: Layout,
+    /// Phases already named, by sorted plan indices of the pinned set.
+    phases: std::sync::Mutex<std::collections::HashMap<Vec<usize>, crate::phase::Phase>>,
 }
 
 /// How D is carried.
@@ -217,6 +231,7 @@ impl<'s> Flow<'s> {
             plan,
             opts,
             layout,
+            phases: Default::default(),
         }
     }
 
@@ -346,10 +361,12 @@ impl<'s> Flow<'s> {
         }
         let y_start = y0.clone();
         let ell_k: Vec<Option<f64>> = momenta.iter().map(|k| k.and_then(cutoff_scale)).collect();
-        let integrated = integrate(&mut rhs, y0, &ell_k, &self.opts);
+        let integrated = integrate(&mut rhs, y0, &ell_k, &self.opts, 0.0);
+        let staged = self.stages(&mut rhs, &integrated, &ell_k);
         let mut result = self.summarise(
             &rhs, &included, &bare, &y_start, &momenta, &ell_k, integrated,
         );
+        self.attach_stages(&mut result, staged, &included);
         result.quadrature = start.quadrature;
         result.momentum_period = self.sys.model.momentum_period_at(point);
         Ok(result)
@@ -456,7 +473,11 @@ impl<'s> Flow<'s> {
                 .winner
                 .map(|w| self.plan.channels[included[w]].name.clone()),
             ell_star: integrated.ell_star,
+            stages: Vec::new(),
+            stages_end: None,
+            ell_last: integrated.ell_star,
             gap: integrated.ell_star.map(|l| (-l).exp()),
+            phase: None,
             ell_end: integrated.ell_end,
             terms,
             commuting_with_winner: Vec::new(),
@@ -511,7 +532,11 @@ impl FlowResult {
             winner_index: None,
             winner: None,
             ell_star: None,
+            stages: Vec::new(),
+            stages_end: None,
+            ell_last: None,
             gap: None,
+            phase: None,
             ell_end: 0.0,
             terms: Vec::new(),
             commuting_with_winner: Vec::new(),
@@ -607,18 +632,19 @@ fn integrate(
     mut y: DVector<f64>,
     ell_k: &[Option<f64>],
     opts: &FlowOptions,
+    ell0: f64,
 ) -> Integrated {
     let mut breaks: Vec<f64> = ell_k
         .iter()
         .flatten()
         .copied()
-        .filter(|l| *l > 0.0 && *l < opts.ell_max)
+        .filter(|l| *l > ell0 && *l < opts.ell_max)
         .collect();
     breaks.push(opts.ell_max);
     breaks.sort_by(f64::total_cmp);
     // Cut-offs closer than this are one breakpoint (their terms stop together).
     breaks.dedup_by(|b, a| *b - *a < 1e-9);
-    let mut start = 0.0;
+    let mut start = ell0;
     for end in breaks {
         for (c, k) in ell_k.iter().enumerate() {
             rhs.active[c] = !rhs.frozen[c] && k.is_none_or(|l| l > start + 1e-9);

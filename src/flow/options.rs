@@ -65,6 +65,9 @@ pub struct FlowOptions {
     /// (default [`crate::qspace::MAX_POINTS`]).
     #[serde(skip)]
     pub q_max_points: usize,
+    /// Most stages of successive pinning (None: no limit, the default;
+    /// Some(1): stop at the first winner).
+    pub stages: Option<usize>,
 }
 
 impl Default for FlowOptions {
@@ -83,6 +86,7 @@ impl Default for FlowOptions {
             q_points: None,
             q_tolerance: super::check::TOLERANCE,
             q_max_points: crate::qspace::MAX_POINTS,
+            stages: None,
         }
     }
 }
@@ -126,6 +130,10 @@ pub struct FlowOverrides {
     /// check fails].
     #[arg(long, allow_hyphen_values = true, value_name = "N")]
     pub q_points: Option<i64>,
+    /// Most stages of successive pinning: 1 stops at the first term to
+    /// reach strong coupling [default: no limit].
+    #[arg(long, allow_hyphen_values = true, value_name = "N")]
+    pub stages: Option<i64>,
 }
 
 impl FlowOptions {
@@ -163,6 +171,9 @@ impl FlowOptions {
         if let Some(n) = over.q_points {
             o.q_points = Some(check_q_points(model, n, "command line", "--q-points")?);
         }
+        if let Some(n) = over.stages {
+            o.stages = Some(check_stages(n, "command line", "--stages")?);
+        }
         if o.floor >= o.y_strong {
             return Err(InputError::new(
                 "command line",
@@ -197,6 +208,10 @@ impl FlowOptions {
                     let n = whole(value, &model.file, &full, "a whole number of steps")?;
                     self.max_steps = check_max_steps(n, &model.file, &full)?;
                 }
+                "stages" => {
+                    let n = whole(value, &model.file, &full, "a whole number of stages")?;
+                    self.stages = Some(check_stages(n, &model.file, &full)?);
+                }
                 "q_points" => {
                     let n = whole(value, &model.file, &full, "a whole number of points")?;
                     self.q_points = Some(check_q_points(model, n, &model.file, &full)?);
@@ -223,7 +238,7 @@ impl FlowOptions {
                     return Err(InputError::new(
                         &model.file,
                         &full,
-                        "unknown key (known: ell_max, y_strong, floor, closure, closure_bound, rtol, atol, max_steps, q_points)",
+                        "unknown key (known: ell_max, y_strong, floor, closure, closure_bound, rtol, atol, max_steps, q_points, stages)",
                     ))
                 }
             }
@@ -275,6 +290,19 @@ fn check_rtol(x: f64, file: &str, key: &str) -> Result<f64, InputError> {
                 "expected a relative tolerance from 1e-14 (double precision) to below 1, found {}",
                 as_typed(x)
             ),
+        ))
+    }
+}
+
+/// A number of stages from 1 to 10^6.
+fn check_stages(n: i64, file: &str, key: &str) -> Result<usize, InputError> {
+    if (1..=1_000_000).contains(&n) {
+        Ok(n as usize)
+    } else {
+        Err(InputError::new(
+            file,
+            key,
+            format!("expected a whole number of stages from 1 (stop at the first winner) to 1000000, found {n}"),
         ))
     }
 }
