@@ -188,8 +188,6 @@ fn cases() -> Vec<Case> {
             "error: ring.toml: term \"tunnel\".particles: the term reaches wire offset 8, which does not fit an array of 8 wires"),
         case("E28", wire(term, "particles = [1, -1]\nextra_spin = \"one half\"\n"), "dims wire.toml", 2,
             "error: wire.toml: term \"backscatter\".extra_spin: expected an exact fraction (an integer, \"p/q\" or a short decimal), found \"one half\""),
-        case("E29", vec![("wire.toml", format!("{WIRE}target = true\n\n[[term]]\nname = \"pairing\"\nparticles = [1, 1]\ntarget = true\n"))], "dims wire.toml", 2,
-            "error: wire.toml: term \"pairing\".target: at most one term may be marked as the target, and term \"backscatter\" already is"),
         case("E30", wire(term, "particles = [1, -1]\nextra_dimension = \"lambda - 1\"\n"), "dims wire.toml", 2,
             "error: wire.toml: term \"backscatter\".extra_dimension: must be a finite number >= 0, found -0.7 at lambda=0.3"),
         // ------------------------------------------------ parameters and expressions

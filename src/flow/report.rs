@@ -83,7 +83,7 @@ impl FlowReport {
                 "{} reaches strong coupling first, at ell* = {:.4} (gap ~ {:.3e} of the bandwidth u/alpha)",
                 r.winner.as_deref().unwrap_or("?"),
                 r.ell_star.unwrap_or(f64::NAN),
-                r.gap.unwrap_or(f64::NAN)
+                r.ell_star.map_or(f64::NAN, |l| (-l).exp())
             ),
             Outcome::Spinful => format!(
                 "{} (conformal spin != 0) reaches strong coupling at ell* = {:.4}: the fixed point is unstable, but this term alone opens no gap",
@@ -197,6 +197,7 @@ impl Report for FlowReport {
             ("outcome".to_string(), r.outcome.word().to_string()),
             ("summary".to_string(), self.headline()),
         ];
+        f.extend(super::stages::facts(r));
         if !r.commuting_with_winner.is_empty() {
             f.push((
                 "commute with winner".into(),
@@ -379,6 +380,7 @@ pub mod figure {
             series,
             winner: r.winner_index,
             ell_star: r.ell_star,
+            stages: r.stages.iter().skip(1).map(|s| s.ell).collect(),
             caption: format!("{} {}", report.point_text(), METHOD_NOTE),
         };
         Ok(flow_figure(stem, &data)?)

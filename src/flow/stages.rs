@@ -107,26 +107,64 @@ pub(super) fn run(
     pairing: &crate::invariants::Pairing,
     n: usize,
 ) -> Staged {
-    let mut st = Staged {
+    let st = Staged {
         stages: Vec::new(),
         pinned: Vec::new(),
         end: end_of(first.outcome),
         drift: 0.0,
         message: None,
     };
-    let (Some(mut w), Some(mut ell)) = (first.winner, first.ell_star) else {
+    let (Some(w), Some(ell)) = (first.winner, first.ell_star) else {
         return st;
     };
     if first.outcome != Outcome::Strong {
         return st;
     }
     let mut y = first.state.clone();
+    let mut left_at: Vec<Option<f64>> = vec![None; rhs.channels.len()];
+    let st = stage_loop(
+        rhs,
+        &mut y,
+        (w, ell),
+        &mut left_at,
+        st,
+        ell_k,
+        opts,
+        k,
+        pairing,
+        n,
+    );
+    hide_left(rhs, &left_at);
+    st
+}
+
+/// The stages proper, from the first winner `w` at `ell`.
+#[allow(clippy::too_many_arguments)]
+fn stage_loop(
+    rhs: &mut FlowRhs,
+    y: &mut DVector<f64>,
+    (mut w, mut ell): (usize, f64),
+    left_at: &mut [Option<f64>],
+    mut st: Staged,
+    ell_k: &[Option<f64>],
+    opts: &super::FlowOptions,
+    k: &DMatrix<f64>,
+    pairing: &crate::invariants::Pairing,
+    n: usize,
+) -> Staged {
     loop {
+        trim_samples(rhs, ell, y);
         if !crate::exact::is_integral(&rhs.channels[w].particles) {
             st.end = StagesEnd::Nonlocal;
             return st;
         }
-        let alive = pin(rhs, &mut y, w, &mut st, ell, pairing, n);
+        let before: Vec<bool> = rhs.frozen.clone();
+        let alive = pin(rhs, y, w, &mut st, ell, pairing, n);
+        for (c, was) in before.iter().enumerate() {
+            if !was && rhs.frozen[c] {
+                left_at[c] = Some(ell);
+            }
+        }
         if alive == 0 {
             st.end = StagesEnd::Pinned;
             return st;
@@ -147,7 +185,7 @@ pub(super) fn run(
             (Outcome::Strong, Some(nw), Some(nl)) => {
                 w = nw;
                 ell = nl;
-                y = next.state;
+                *y = next.state;
             }
             _ => {
                 st.message = next.message;
@@ -231,6 +269,94 @@ impl Flow<'_> {
             m.insert(pinned, phase.clone());
         }
         phase
+    }
+}
+
+/// Text facts: one line per stage, then how the stages ended and the phase.
+pub fn facts(r: &FlowResult) -> Vec<(String, String)> {
+    let mut f: Vec<(String, String)> = r
+        .stages
+        .iter()
+        .enumerate()
+        .map(|(i, s)| {
+            let mut line = format!("ell = {:.4}: pins {}", s.ell, s.pinned.join(", "));
+            if !s.disordered.is_empty() {
+                line.push_str(&format!("; disorders {}", s.disordered.join(", ")));
+            }
+            (format!("stage {}", i + 1), line)
+        })
+        .collect();
+    if let Some(end) = r.stages_end {
+        f.push(("stages end".into(), end_text(end).into()));
+    }
+    if let Some(p) = &r.phase {
+        f.push(("phase".into(), phase_text(p, r.gap)));
+    }
+    f
+}
+
+fn end_text(end: StagesEnd) -> &'static str {
+    match end {
+        StagesEnd::Pinned => "pinned: nothing is left flowing",
+        StagesEnd::Gapless => "gapless: every surviving coupling decayed",
+        StagesEnd::Undecided => "undecided: ell_max reached with couplings still flowing",
+        StagesEnd::Spinful => {
+            "spinful: a term with conformal spin reached strong coupling (no pinning)"
+        }
+        StagesEnd::Nonlocal => {
+            "nonlocal: a non-local null term reached strong coupling (cannot pin)"
+        }
+        StagesEnd::Limit => "limit: the number of stages allowed (--stages) was reached",
+        StagesEnd::Failed => "failed: the integrator could not continue",
+    }
+}
+
+/// "{a, b}: 8 gapped pairs, 0 gapless modes (fully gapped), target phase".
+pub fn phase_text(p: &Phase, gap: Option<f64>) -> String {
+    let mut s = format!(
+        "{}: {} gapped pairs, {} gapless modes",
+        p.label, p.gapped_pairs, p.gapless_modes
+    );
+    if p.fully_gapped {
+        s.push_str(" (fully gapped)");
+    }
+    s.push_str(if p.target {
+        ", the target phase"
+    } else {
+        ", not the target phase"
+    });
+    if let (Some(g), false) = (gap, p.terms.is_empty()) {
+        s.push_str(&format!("; gap ~ {g:.3e} of u/alpha (last stage)"));
+    }
+    s
+}
+
+/// Drop recorded samples past `ell` (the step that crossed y_strong) and
+/// record the state at `ell`, where the next stage starts.
+fn trim_samples(rhs: &mut FlowRhs, ell: f64, y: &DVector<f64>) {
+    if !rhs.record {
+        return;
+    }
+    rhs.samples.retain(|s| s.ell < ell);
+    let n = rhs.channels.len();
+    let ys = y.as_slice();
+    rhs.samples.push(super::Sample {
+        ell,
+        couplings: (0..n).map(|c| rhs.coupling(ys, c)).collect(),
+        dimensions: (0..n).map(|c| rhs.dimension(ys, c)).collect(),
+    });
+}
+
+/// A channel that left the flow has no value after it left (NaN in the
+/// trajectory; figures break the line there).
+fn hide_left(rhs: &mut FlowRhs, left_at: &[Option<f64>]) {
+    for s in &mut rhs.samples {
+        for (c, at) in left_at.iter().enumerate() {
+            if at.is_some_and(|l| s.ell > l) {
+                s.couplings[c] = f64::NAN;
+                s.dimensions[c] = f64::NAN;
+            }
+        }
     }
 }
 

@@ -710,19 +710,8 @@ fn read_terms(ctx: &Ctx, model: &Model, raw: &[RawTerm]) -> Result<Vec<TermSpec>
         }
         terms.push(read_term(ctx, model, t, &key)?);
     }
-    let targets: Vec<&str> = terms
-        .iter()
-        .filter(|t| t.target)
-        .map(|t| t.name.as_str())
-        .collect();
-    if let [first, second, ..] = targets[..] {
-        return Err(ctx.err(
-            &format!("term \"{second}\".target"),
-            format!(
-                "at most one term may be marked as the target, and term \"{first}\" already is"
-            ),
-        ));
-    }
+    // Several terms may be targets: the target phase is the lattice their
+    // families span (issue 14; `phase`).
     Ok(terms)
 }
 
