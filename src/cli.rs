@@ -128,6 +128,18 @@ pub struct ScanArgs {
     /// Format of the summary printed at the end.
     #[arg(long, value_enum, default_value_t = Format::Text)]
     pub format: Format,
+    /// What phase.png/svg is coloured by.
+    #[arg(long, value_enum, default_value_t = ColorByArg::Phase)]
+    pub color_by: ColorByArg,
+}
+
+/// What a scan's phase map is coloured by.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum ColorByArg {
+    /// The phase of the final pinned set of the staged flow.
+    Phase,
+    /// The first term to reach strong coupling (the map before staging).
+    Winner,
 }
 
 /// `pinflow merge`.
@@ -142,6 +154,9 @@ pub struct MergeArgs {
     /// Format of the summary printed at the end.
     #[arg(long, value_enum, default_value_t = Format::Text)]
     pub format: Format,
+    /// What phase.png/svg is coloured by.
+    #[arg(long, value_enum, default_value_t = ColorByArg::Phase)]
+    pub color_by: ColorByArg,
 }
 
 /// `pinflow hunt`.

@@ -7,7 +7,7 @@ use std::path::{Path, PathBuf};
 
 use indicatif::{ProgressBar, ProgressStyle};
 
-use super::figures::Canvas;
+use super::figures::{Canvas, ColorBy};
 use super::points::for_each_point;
 use super::store::{self, Meta, RowFile};
 use super::summary::Tally;
@@ -64,7 +64,7 @@ pub fn scan(args: ScanArgs) -> Result<(), Error> {
         None => {
             let points = dir.join("points.csv");
             store::publish_points(&partial, &scan.meta, &points)?;
-            finish(&dir, &scan.meta, args.format)?;
+            finish(&dir, &scan.meta, args.format, color_by(args.color_by))?;
             std::fs::remove_file(&partial).map_err(|e| Error::io(&partial, e))
         }
     }
@@ -80,15 +80,22 @@ pub fn merge(args: MergeArgs) -> Result<(), Error> {
     output::check_output_dir(&dir, "--out")?;
     std::fs::create_dir_all(&dir).map_err(|e| Error::io(&dir, e))?;
     let meta = store::merge(&args.shards, &dir.join("points.csv"))?;
-    finish(&dir, &meta, args.format)
+    finish(&dir, &meta, args.format, color_by(args.color_by))
+}
+
+fn color_by(c: crate::cli::ColorByArg) -> ColorBy {
+    match c {
+        crate::cli::ColorByArg::Phase => ColorBy::Phase,
+        crate::cli::ColorByArg::Winner => ColorBy::Winner,
+    }
 }
 
 /// Summary and figures from the finished points file: one pass feeds
 /// every row to the summary's tally and the figures' canvas, which keep
 /// no rows (see [`super::figures`]).
-fn finish(dir: &Path, meta: &Meta, format: output::Format) -> Result<(), Error> {
+fn finish(dir: &Path, meta: &Meta, format: output::Format, by: ColorBy) -> Result<(), Error> {
     let mut tally = Tally::new(meta);
-    let mut canvas = Canvas::new(meta);
+    let mut canvas = Canvas::new(meta, by);
     for_each_point(&dir.join("points.csv"), meta, |p| {
         tally.add(p);
         canvas.add(p);

@@ -145,7 +145,13 @@ impl Meta {
         if self.infinite {
             h.extend(QUADRATURE_COLUMNS.iter().map(|s| s.to_string()));
         }
+        h.extend(PHASE_COLUMNS.iter().map(|s| s.to_string()));
         h
+    }
+
+    /// Index of the first of [`PHASE_COLUMNS`] in a row.
+    pub fn phase_column(&self) -> usize {
+        self.axes.len() + 3 + 2 * self.terms.len() + if self.infinite { 3 } else { 0 }
     }
 }
 
@@ -154,6 +160,19 @@ impl Meta {
 /// quadrature check (final dimensions, ell*; `inf` when the two flows end
 /// differently) and whether the check passed; empty without a check.
 pub const QUADRATURE_COLUMNS: [&str; 3] = ["q_points", "q_error", "q_converged"];
+
+/// The last columns of every row (appended after all earlier columns, so
+/// that their positions stay): the label of the final pinned set's phase
+/// (`flow::stages`, `phase`; empty where no phase is named), whether it is
+/// the target phase, ell of the last stage, and the phase's gapped pairs and
+/// gapless modes (per wire for infinite arrays).
+pub const PHASE_COLUMNS: [&str; 5] = [
+    "phase",
+    "target_phase",
+    "ell_last",
+    "gapped_pairs",
+    "gapless_modes",
+];
 
 /// An open file that rows are appended to.
 pub struct RowFile {
