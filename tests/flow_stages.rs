@@ -203,3 +203,104 @@ fn zero_stages_is_refused() {
     let err = String::from_utf8(out).unwrap();
     assert!(err.contains("--stages") && err.contains("found 0"), "{err}");
 }
+
+#[test]
+fn dense_and_fourier_layouts_stage_alike() {
+    // The per-q reduction (Fourier blocks, rank-one per q) and the dense
+    // reduction with every translate (pseudo-inverse) are the same D_P on
+    // a periodic array (section 7: "for arrays it holds per q"); the staged
+    // flows must agree to the integrator's accuracy.
+    use pinflow::flow::{Flow, FlowOptions};
+    use pinflow::model::Model;
+    use pinflow::system::System;
+    let text = std::fs::read_to_string(demo("two_targets.toml")).unwrap();
+    let sys = System::new(Model::parse(&text, "two_targets.toml").unwrap()).unwrap();
+    for xr in [2.0, 5.0] {
+        let point = sys
+            .model
+            .point_with(&[("xr".to_string(), xr)], "test")
+            .unwrap();
+        let run = |dense_d: bool| {
+            let opts = FlowOptions {
+                dense_d,
+                record: false,
+                ..FlowOptions::default()
+            };
+            Flow::new(&sys, opts).run(&point).unwrap()
+        };
+        let (fourier, dense) = (run(false), run(true));
+        assert_eq!(fourier.stages.len(), dense.stages.len(), "xr = {xr}");
+        for (a, b) in fourier.stages.iter().zip(&dense.stages) {
+            assert_eq!(a.pinned, b.pinned);
+            assert!(
+                (a.ell - b.ell).abs() < 1e-6,
+                "xr = {xr}: {} vs {}",
+                a.ell,
+                b.ell
+            );
+        }
+        assert_eq!(fourier.phase, dense.phase);
+        assert!(fourier.dkd_drift < 1e-6 && dense.dkd_drift < 1e-6);
+    }
+}
+
+/// A spinful wire, fields (R up, L up, R dn, L dn), K = diag(1, -1, 1, -1),
+/// with a V that does not mix charge and spin: V = [[1, a, 0, b], [a, 1, b,
+/// 0], [0, b, 1, a], [b, 0, a, 1]], a = (wr + ws)/2, b = (wr - ws)/2, is
+/// [[1, w], [w, 1]] in the (R, L) fields of each of the sectors
+/// (up +- dn)/sqrt 2 with w = wr (charge) and ws (spin) (derived).
+fn spinful_wire(wr: f64, ws: f64) -> String {
+    let (a, b) = ((wr + ws) / 2.0, (wr - ws) / 2.0);
+    format!(
+        "name = \"spinful wire\"\n[fields]\nK = [[1, 0, 0, 0], [0, -1, 0, 0], [0, 0, 1, 0], [0, 0, 0, -1]]\n\
+         charge = [1, 1, 1, 1]\n\
+         V = [[\"1\", \"{a}\", \"0\", \"{b}\"], [\"{a}\", \"1\", \"{b}\", \"0\"], [\"0\", \"{b}\", \"1\", \"{a}\"], [\"{b}\", \"0\", \"{a}\", \"1\"]]\n\
+         [flow]\nclosure = \"none\"\n\
+         [[term]]\nname = \"spin_bs\"\nparticles = [1, -1, -1, 1]\ncoupling = 0.2\n\
+         [[term]]\nname = \"cdw\"\nparticles = [1, -1, 0, 0]\ncoupling = 1e-9\n\
+         [[term]]\nname = \"pairing\"\nparticles = [1, 0, 0, 1]\ncoupling = 1e-9\n\
+         [[term]]\nname = \"cdw4\"\nparticles = [1, -1, 1, -1]\ncoupling = 1e-9\n"
+    )
+}
+
+#[test]
+fn luther_emery_spin_gap_reduces_cdw_and_pairing_dimensions() {
+    // Luther & Emery, PRL 33, 589 (1974); Giamarchi (2004) ch. 7: with the
+    // spin gap (spin backscattering pinned), 2k_F CDW has Delta = K_rho/2
+    // and singlet pairing 1/(2 K_rho), K_rho read off the 4k_F CDW,
+    // Delta = 2 K_rho (physics reference section 7). The flow carries D
+    // after the pin in the reference-velocity form D_P; the charge block of
+    // D does not flow here (only spin_bs feeds back, and it lies in the spin
+    // sector), so the values hold to rounding right after the pin.
+    use pinflow::flow::{Flow, FlowOptions};
+    use pinflow::model::Model;
+    use pinflow::system::System;
+    for (wr, ws) in [(0.3, 0.5), (-0.4, 0.3), (0.6, 0.6)] {
+        let sys = System::new(Model::parse(&spinful_wire(wr, ws), "w.toml").unwrap()).unwrap();
+        let point = sys.model.point_with(&[], "test").unwrap();
+        let r = Flow::new(&sys, FlowOptions::default()).run(&point).unwrap();
+        assert_eq!(r.winner.as_deref(), Some("spin_bs"), "wr {wr}, ws {ws}");
+        let ell1 = r.stages[0].ell;
+        let k_rho = r.terms[3].dimension0 / 2.0;
+        let after = r
+            .samples
+            .iter()
+            .find(|s| s.ell > ell1)
+            .expect("a sample after the pin");
+        let (cdw, pairing) = (after.dimensions[1], after.dimensions[2]);
+        assert!(
+            (cdw - k_rho / 2.0).abs() < 1e-9,
+            "cdw {cdw} vs K_rho/2 = {}",
+            k_rho / 2.0
+        );
+        assert!(
+            (pairing - 1.0 / (2.0 * k_rho)).abs() < 1e-9,
+            "pairing {pairing} vs 1/(2 K_rho) = {}",
+            1.0 / (2.0 * k_rho)
+        );
+        assert!(
+            after.couplings[0].is_nan(),
+            "the pinned term leaves the trajectory"
+        );
+    }
+}

@@ -375,7 +375,15 @@ pub mod figure {
             })
             .collect();
         let data = FlowFigure {
-            title: format!("{}: {}", report.model, report.headline_short()),
+            title: format!(
+                "{}: {}{}",
+                report.model,
+                report.headline_short(),
+                match (&r.phase, r.stages.len()) {
+                    (Some(p), n) if n > 1 => format!("; phase {} after {n} stages", p.label),
+                    _ => String::new(),
+                }
+            ),
             ell: r.samples.iter().map(|s| s.ell).collect(),
             series,
             winner: r.winner_index,

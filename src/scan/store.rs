@@ -505,28 +505,44 @@ mod tests {
     fn rows_are_checked_with_and_without_quoted_cells() {
         let m = meta();
         let width = m.header().len();
-        assert_eq!(width, 6, "{:?}", m.header());
+        // The phase columns come last (the phase label is quoted: it has commas).
+        assert_eq!(width, 11, "{:?}", m.header());
         // Plain row: split directly.
-        assert_eq!(m.check_row("0.5,strong,a,1.5,0.9,0.8", 1, width), Ok(()));
+        assert_eq!(
+            m.check_row("0.5,strong,a,1.5,0.9,0.8,{a},true,1.5,1,0", 1, width),
+            Ok(())
+        );
         // A term name with a comma is quoted; the quoted path counts it as
         // one cell.
         assert_eq!(
-            m.check_row("0.5,strong,\"a,b\",1.5,0.9,0.8", 1, width),
+            m.check_row(
+                "0.5,strong,\"a,b\",1.5,0.9,0.8,\"{a, b}\",true,1.5,2,0",
+                1,
+                width
+            ),
             Ok(())
         );
         assert!(m
-            .check_row("0.5,strong,a,b,1.5,0.9,0.8", 1, width)
+            .check_row(
+                "0.5,strong,a,b,1.5,0.9,0.8,\"{a, b}\",true,1.5,2,0",
+                1,
+                width
+            )
             .unwrap_err()
-            .contains("7 cells, expected 6"));
+            .contains("12 cells, expected 11"));
         assert!(m
-            .check_row("0.5,strong,\"a,b,1.5,0.9,0.8", 1, width)
+            .check_row(
+                "0.5,strong,\"a,b,1.5,0.9,0.8,\"{a, b}\",true,1.5,2,0",
+                1,
+                width
+            )
             .is_err());
         assert!(m
-            .check_row("0,strong,a,1.5,0.9,0.8", 1, width)
+            .check_row("0,strong,a,1.5,0.9,0.8,\"{a, b}\",true,1.5,2,0", 1, width)
             .unwrap_err()
             .contains("x = 0, expected 0.5"));
         assert!(m
-            .check_row("0.5,won,a,1.5,0.9,0.8", 1, width)
+            .check_row("0.5,won,a,1.5,0.9,0.8,\"{a, b}\",true,1.5,2,0", 1, width)
             .unwrap_err()
             .contains("unknown outcome `won`"));
     }
