@@ -145,7 +145,8 @@ pub struct FlowResult {
     /// The phase of the final pinned set (null for points that could not
     /// flow).
     pub phase: Option<crate::phase::Phase>,
-    /// Where the integration ended.
+    /// Where the integration ended (its last stage's, when successive
+    /// pinning flowed on).
     pub ell_end: f64,
     /// Every channel that flowed (listed first).
     pub terms: Vec<ChannelResult>,

@@ -94,6 +94,8 @@ pub(super) struct Staged {
     /// Largest drift of D K D from its stage-start value in later stages.
     pub drift: f64,
     pub message: Option<String>,
+    /// Where the last integration ended (None: no stage flowed on).
+    pub ell_end: Option<f64>,
 }
 
 /// Run the stages after the first integration. `k` is the K the drift is
@@ -113,6 +115,7 @@ pub(super) fn run(
         end: end_of(first.outcome),
         drift: 0.0,
         message: None,
+        ell_end: None,
     };
     let (Some(w), Some(ell)) = (first.winner, first.ell_star) else {
         return st;
@@ -153,18 +156,12 @@ fn stage_loop(
     n: usize,
 ) -> Staged {
     loop {
-        trim_samples(rhs, ell, y);
         if !crate::exact::is_integral(&rhs.channels[w].particles) {
             st.end = StagesEnd::Nonlocal;
             return st;
         }
-        let before: Vec<bool> = rhs.frozen.clone();
+        let (before, y_at_pin) = (rhs.frozen.clone(), y.clone());
         let alive = pin(rhs, y, w, &mut st, ell, pairing, n);
-        for (c, was) in before.iter().enumerate() {
-            if !was && rhs.frozen[c] {
-                left_at[c] = Some(ell);
-            }
-        }
         if alive == 0 {
             st.end = StagesEnd::Pinned;
             return st;
@@ -173,11 +170,20 @@ fn stage_loop(
             st.end = StagesEnd::Limit;
             return st;
         }
+        // The flow goes on: its trajectory restarts at ell, and the terms
+        // that left have no value beyond it.
+        trim_samples(rhs, ell, &y_at_pin);
+        for (c, was) in before.iter().enumerate() {
+            if !was && rhs.frozen[c] {
+                left_at[c] = Some(ell);
+            }
+        }
         let nc = rhs.channels.len();
         reduce(&rhs.bg, &mut y.as_mut_slice()[2 * nc..], rhs.channels[w]);
         let reference = dkd_blocks(&rhs.bg, &y.as_slice()[2 * nc..], k);
         rhs.stop = None;
         let next = integrate(rhs, y.clone(), ell_k, opts, ell);
+        st.ell_end = Some(next.ell_end);
         let end = dkd_blocks(&rhs.bg, &next.state.as_slice()[2 * nc..], k);
         st.drift = st.drift.max(drift_between(&end, &reference, k));
         st.end = end_of(next.outcome);
@@ -224,6 +230,7 @@ impl Flow<'_> {
     pub(super) fn attach_stages(&self, r: &mut FlowResult, st: Staged, included: &[usize]) {
         r.stages = st.stages;
         r.stages_end = Some(st.end);
+        r.ell_end = st.ell_end.unwrap_or(r.ell_end);
         r.ell_last = r.stages.last().map(|s| s.ell).or(r.ell_star);
         r.gap = r.ell_last.map(|l| (-l).exp());
         if st.drift.is_nan() || st.drift > r.dkd_drift {
