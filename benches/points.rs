@@ -21,10 +21,10 @@
 use std::path::Path;
 
 use criterion::{criterion_group, criterion_main, Criterion};
+use pinflow::core::system::System;
 use pinflow::edges::{analyse, pins};
 use pinflow::flow::{Closure, Flow, FlowOptions};
 use pinflow::model::Model;
-use pinflow::system::System;
 
 fn model() -> System {
     System::load(Path::new(concat!(

@@ -46,6 +46,62 @@ impl fmt::Display for InputError {
 
 impl std::error::Error for InputError {}
 
+/// A parameter point at which V is not positive definite: the theory is
+/// unstable there.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Unphysical {
+    /// The parameter point, as `name=value` pairs.
+    pub point: String,
+    /// Smallest eigenvalue of V there (of V(q) at `q` for the q-space path).
+    pub smallest_eigenvalue: f64,
+    /// For arrays computed in q-space: a wave number q in [0, pi] at which
+    /// V(q) is not positive definite (V(-q) is its complex conjugate).
+    pub q: Option<f64>,
+}
+
+impl std::fmt::Display for Unphysical {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self.q {
+            None => write!(f, "V is not positive definite at {}", self.point)?,
+            Some(q) => write!(
+                f,
+                "V(q) is not positive definite at q = {q:.6} (and -q) at {}",
+                self.point
+            )?,
+        }
+        write!(
+            f,
+            ": smallest eigenvalue {:.6e} (an unstable theory; choose parameters where V > 0)",
+            self.smallest_eigenvalue
+        )
+    }
+}
+
+impl std::error::Error for Unphysical {}
+
+/// Failure to produce a figure file.
+///
+/// Carries the file that could not be written (or, for invalid input, the
+/// path stem that was asked for) and a human-readable reason.
+#[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
+#[error("cannot write figure {}: {message}", path.display())]
+pub struct PlotError {
+    /// The output path (or path stem) concerned.
+    pub path: std::path::PathBuf,
+    /// What went wrong.
+    pub message: String,
+}
+
+impl PlotError {
+    /// Builds an error for `path` with the given message.
+    pub fn new(path: &std::path::Path, message: impl Into<String>) -> Self {
+        PlotError {
+            path: path.to_path_buf(),
+            message: message.into(),
+        }
+    }
+}
+
 /// Any failure of a library call.
 #[derive(Debug, thiserror::Error)]
 pub enum Error {
@@ -55,13 +111,13 @@ pub enum Error {
     /// A parameter point at which the theory is not defined (exit code 2 for
     /// a single point; a scan records it as the outcome "unphysical").
     #[error("{0}")]
-    Unphysical(#[from] crate::fixed_point::Unphysical),
+    Unphysical(#[from] Unphysical),
     /// A numerical failure (exit code 1).
     #[error("{0}")]
     Numerical(String),
     /// A figure could not be written (exit code 1).
     #[error("{0}")]
-    Plot(#[from] crate::plot::PlotError),
+    Plot(#[from] PlotError),
     /// Reading or writing a file failed (exit code 1).
     #[error("{path}: {source}")]
     Io {

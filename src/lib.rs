@@ -13,7 +13,6 @@
 //! - [`system`]: a model prepared once for evaluation at many points;
 //! - [`dims`]: the `pinflow dims` report, and [`convergence`] its
 //!   `--wires` form (dimensions against array size);
-//! - [`phase`]: naming the phase of a pinned set (its integer lattice);
 //! - [`flow`]: the second-order RG flow of competing couplings and D;
 //! - [`scan`]: parameter grids, shards, resume, summaries and figures;
 //! - [`search`]: the exhaustive operator search (`pinflow hunt`);
@@ -26,20 +25,14 @@
 //! point; see the README for its limits.
 
 pub mod cli;
-pub mod convergence;
+pub mod core;
 pub mod dims;
 pub mod edges;
 pub mod error;
-pub mod exact;
-pub mod fixed_point;
 pub mod flow;
-pub mod invariants;
-pub mod lattice;
+pub mod math;
 pub mod model;
 pub mod output;
-pub mod phase;
 pub mod plot;
-pub mod qspace;
 pub mod scan;
 pub mod search;
-pub mod system;

@@ -26,8 +26,8 @@ use std::path::Path;
 
 use assert_cmd::Command;
 use common::{assert_close, report_at, sliding, system, term};
+use pinflow::core::qspace;
 use pinflow::error::Error;
-use pinflow::qspace;
 
 /// int_{-pi}^{pi} dq/2pi f(q) by the trapezoid sum of the scalar formula
 /// on 20000 points (the integrands are analytic for |lam| < 1: far below

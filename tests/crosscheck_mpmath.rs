@@ -20,9 +20,9 @@ mod common;
 use std::process::Command;
 
 use common::{toml_f64_matrix, toml_int_matrix};
-use pinflow::exact;
+use pinflow::core::system::System;
+use pinflow::math::rational;
 use pinflow::model::Model;
-use pinflow::system::System;
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 
@@ -47,7 +47,7 @@ fn random_cases(count: usize, seed: u64) -> Vec<Case> {
                 k[j][i] = x;
             }
         }
-        if exact::det_and_inverse(&k).is_none() {
+        if rational::det_and_inverse(&k).is_none() {
             continue; // singular: draw again
         }
         let a: Vec<Vec<f64>> = (0..n)

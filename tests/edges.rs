@@ -17,12 +17,12 @@ mod edges {
 
     use num_bigint::BigInt;
     use num_traits::{Signed, ToPrimitive};
+    use pinflow::core::system::System;
     use pinflow::edges::pins::{self, Selection};
     use pinflow::edges::{analyse, Analysis, End, Theory};
-    use pinflow::exact::Rational;
     use pinflow::flow::options::FlowOverrides;
     use pinflow::flow::FlowOptions;
-    use pinflow::system::System;
+    use pinflow::math::rational::Rational;
     use rand::{Rng, SeedableRng};
     use rand_chacha::ChaCha8Rng;
 

@@ -179,7 +179,7 @@ fn two_wires(lam: f64, a: f64, b: f64, y0: f64) -> String {
     )
 }
 
-fn delta_of(sys: &pinflow::system::System, l: &[f64]) -> f64 {
+fn delta_of(sys: &pinflow::core::system::System, l: &[f64]) -> f64 {
     let d = sys.fixed_point(&point(sys)).unwrap().d;
     let v = nalgebra::DVector::from_row_slice(l);
     0.5 * (v.transpose() * d * &v)[(0, 0)]

@@ -5,8 +5,8 @@
 
 use std::path::Path;
 
+use pinflow::core::system::System;
 use pinflow::flow::{Closure, Flow, FlowOptions, FlowResult};
-use pinflow::system::System;
 
 fn compare(model: &str, sets: &[(&str, f64)], closure: Closure) {
     let sys = System::load(Path::new(model)).unwrap();

@@ -27,8 +27,8 @@ use std::collections::HashMap;
 
 use common::*;
 use nalgebra::{DMatrix, DVector};
+use pinflow::core::system::System;
 use pinflow::flow::{Closure, Flow, FlowResult};
-use pinflow::system::System;
 
 /// K = diag(1, -1, 1, -1, ...) for `wires` spinless wires: K^-1 = K.
 fn k_diag(wires: usize) -> DMatrix<f64> {

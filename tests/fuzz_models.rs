@@ -37,6 +37,7 @@ use std::panic::{catch_unwind, AssertUnwindSafe};
 use std::sync::{Mutex, Once};
 use std::time::{Duration, Instant};
 
+use pinflow::core::system::System;
 use pinflow::dims::DimsReport;
 use pinflow::edges;
 use pinflow::flow::options::FlowOverrides;
@@ -45,7 +46,6 @@ use pinflow::flow::{Flow, FlowOptions};
 use pinflow::model::Model;
 use pinflow::output::{self, Format};
 use pinflow::search::{self, ChargeFilter, HuntOptions, SpinFilter};
-use pinflow::system::System;
 use proptest::prelude::*;
 use proptest::test_runner::{Config, RngAlgorithm, TestCaseError, TestRng, TestRunner};
 

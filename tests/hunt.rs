@@ -14,14 +14,14 @@ mod search {
     use std::collections::BTreeSet;
 
     use nalgebra::DMatrix;
+    use pinflow::core::system::System;
     use pinflow::error::Error;
-    use pinflow::exact;
+    use pinflow::math::ellipsoid::{ln_unit_ball, Ellipsoid};
+    use pinflow::math::rational;
     use pinflow::model::Model;
-    use pinflow::search::ellipsoid::{ln_unit_ball, Ellipsoid};
     use pinflow::search::{
         emit_terms, hunt, ChargeFilter, HuntOptions, HuntReport, MomentumFilter, SpinFilter,
     };
-    use pinflow::system::System;
     use rand::{Rng, SeedableRng};
     use rand_chacha::ChaCha8Rng;
 
@@ -101,7 +101,7 @@ mod search {
             visited += 1;
             if m.iter().any(|x| *x != 0) {
                 let l = k_times(k, &m);
-                let delta = pinflow::fixed_point::quad_form(d, &l);
+                let delta = pinflow::core::fixed_point::quad_form(d, &l);
                 if delta <= max_dim * (1.0 + TOL) && keep(&m) {
                     out.insert(sign_class(&m));
                 }
@@ -134,8 +134,8 @@ mod search {
                     k[j][i] = x;
                 }
             }
-            if let Some((det, _)) = exact::det_and_inverse(&k) {
-                if let Some((p, m)) = exact::signature(&k, &det) {
+            if let Some((det, _)) = rational::det_and_inverse(&k) {
+                if let Some((p, m)) = rational::signature(&k, &det) {
                     if p > 0 && m > 0 {
                         return k;
                     }
@@ -214,8 +214,8 @@ mod search {
                         op.particles.iter().zip(&t).map(|(a, b)| a * b).sum::<i64>()
                     );
                     let twice = quad(&k, &op.particles);
-                    let spin = exact::Rational::new(twice.into(), 2.into());
-                    assert_eq!(op.spin, exact::fmt_rational(&spin));
+                    let spin = rational::Rational::new(twice.into(), 2.into());
+                    assert_eq!(op.spin, rational::fmt_rational(&spin));
                 }
                 checked += 1;
             }

@@ -25,11 +25,11 @@ mod common;
 
 use common::{toml_f64_matrix, toml_int_matrix, toml_int_vector};
 use nalgebra::{DMatrix, SymmetricEigen};
+use pinflow::core::fixed_point::FixedPoint;
+use pinflow::core::system::System;
 use pinflow::dims::DimsReport;
-use pinflow::exact;
-use pinflow::fixed_point::FixedPoint;
+use pinflow::math::rational;
 use pinflow::model::Model;
-use pinflow::system::System;
 use proptest::prelude::*;
 use proptest::test_runner::{Config, RngAlgorithm, RngSeed};
 
@@ -110,12 +110,12 @@ fn v_of(case: &Case) -> DMatrix<f64> {
 
 /// K^-1 in floats from the exact inverse.
 fn k_inverse(k: &[Vec<i64>]) -> Option<(f64, DMatrix<f64>)> {
-    let (det, inv) = exact::det_and_inverse(k)?;
+    let (det, inv) = rational::det_and_inverse(k)?;
     let n = k.len();
-    let det = exact::to_f64(&exact::Rational::from_integer(det));
+    let det = rational::to_f64(&rational::Rational::from_integer(det));
     Some((
         det,
-        DMatrix::from_fn(n, n, |i, j| exact::to_f64(&inv[i][j])),
+        DMatrix::from_fn(n, n, |i, j| rational::to_f64(&inv[i][j])),
     ))
 }
 
@@ -258,7 +258,7 @@ proptest! {
 
     #[test]
     fn dimension_bounds_spin_and_d_is_scale_free(case in case()) {
-        let Some((det, inv)) = exact::det_and_inverse(&case.k) else {
+        let Some((det, inv)) = rational::det_and_inverse(&case.k) else {
             return Err(TestCaseError::reject("singular K"));
         };
         let _ = det;
@@ -267,8 +267,8 @@ proptest! {
         let fp = FixedPoint::solve(&k, &v).unwrap();
 
         // Delta_l >= |s_l| with s_l exact.
-        let s = exact::to_f64(&(exact::dot_int(&exact::solve_with(&inv, &case.l), &case.l)
-            / exact::int(2)));
+        let s = rational::to_f64(&(rational::dot_int(&rational::solve_with(&inv, &case.l), &case.l)
+            / rational::int(2)));
         let delta = fp.dimension(&case.l);
         prop_assert!(
             delta >= s.abs() - 1e-9 * delta.max(1.0),
@@ -287,14 +287,14 @@ proptest! {
 
     #[test]
     fn basis_change_leaves_dimensions_spins_and_charges_unchanged(case in case()) {
-        if exact::det_and_inverse(&case.k).is_none() {
+        if rational::det_and_inverse(&case.k).is_none() {
             return Err(TestCaseError::reject("singular K"));
         }
         let n = case.k.len();
         let w = unimodular(n, &case.ops);
-        let (det_w, w_inv) = exact::det_and_inverse(&w).expect("W is unimodular");
+        let (det_w, w_inv) = rational::det_and_inverse(&w).expect("W is unimodular");
         prop_assert!(det_w == 1.into() || det_w == (-1).into());
-        let w_inv = exact::to_integers(&w_inv.concat()).expect("W^-1 is integral");
+        let w_inv = rational::to_integers(&w_inv.concat()).expect("W^-1 is integral");
         let w_inv: Vec<Vec<i64>> = w_inv.chunks(n).map(|r| r.to_vec()).collect();
 
         let v = v_of(&case);

@@ -9,6 +9,7 @@
 //!   "integration failed at ell = ...";
 //! - a flow whose D drifts from D K D = K^-1 says so in its notes.
 
+use pinflow::core::system::System;
 use pinflow::dims::DimsReport;
 use pinflow::error::Error;
 use pinflow::flow::options::FlowOverrides;
@@ -17,7 +18,6 @@ use pinflow::flow::{Flow, FlowOptions, FlowResult, Outcome};
 use pinflow::model::Model;
 use pinflow::scan::{Axis, Scan, ScanSpec};
 use pinflow::search::{self, HuntOptions};
-use pinflow::system::System;
 
 fn system(text: &str) -> System {
     let model = Model::parse(text, "test.toml").unwrap_or_else(|e| panic!("model: {e}"));

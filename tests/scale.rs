@@ -9,9 +9,9 @@ use std::time::{Duration, Instant};
 mod common;
 
 use common::peak_kb;
+use pinflow::core::system::System;
 use pinflow::dims::DimsReport;
 use pinflow::model::Model;
-use pinflow::system::System;
 
 fn lines(path: &Path) -> usize {
     std::fs::File::open(path)

@@ -23,8 +23,17 @@ mod common;
 
 use assert_cmd::Command;
 use common::{peak_kb, svg_texts};
+use pinflow::flow::Outcome;
 use pinflow::scan::store::{csv_line, Meta, MAGIC};
-use pinflow::scan::summary::OUTCOMES;
+
+const OUTCOMES: [&str; 6] = [
+    "strong",
+    "spinful",
+    "gapless",
+    "undecided",
+    "unphysical",
+    "failed",
+];
 use pinflow::scan::Axis;
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
@@ -543,4 +552,12 @@ fn finishing_a_large_grid_keeps_a_few_bytes_per_point() {
     if let Some(kb) = peak {
         assert!(kb < 48_000, "peak memory {kb} kB for {} points", m.points);
     }
+}
+
+/// The outcome words are an interface (points.csv, summary.json): the
+/// library's list must not drift from them.
+#[test]
+fn outcome_words_are_the_documented_ones() {
+    let words: Vec<&str> = Outcome::ALL.iter().map(|o| o.word()).collect();
+    assert_eq!(words, OUTCOMES);
 }

@@ -11,8 +11,8 @@
 //!   saturation S of the pinned vectors inside the region, and the
 //!   residual lattice M / S, whose Gram matrix is the region's K matrix and
 //!   whose charges t.n form its charge vector ([`theory`]);
-//! - normal forms ([`normal`]: Smith with transforms) and readable bases
-//!   ([`reduce`]: LLL on definite forms, a greedy descent with unit
+//! - normal forms ([`crate::math::smith`]: Smith with transforms) and readable
+//!   bases ([`crate::math::reduce`]: LLL on definite forms, a greedy descent with unit
 //!   splitting on indefinite ones). Reported invariants (det, signature,
 //!   filling, quasiparticle charges and spins modulo their ambiguity) do
 //!   not depend on the basis.
@@ -38,27 +38,21 @@
 //! spread over every wire and depends on the ring's size.
 
 pub mod line;
-pub mod normal;
 pub mod pins;
-pub mod reduce;
 pub mod report;
 pub mod theory;
-pub mod zmat;
 
 use num_bigint::BigInt;
 use num_traits::Zero;
 
-use crate::cli::EdgesArgs;
+use crate::core::invariants::particles_of;
+use crate::core::lattice::Lattice;
+use crate::core::system::System;
 use crate::error::{Error, InputError};
-use crate::flow::FlowOptions;
-use crate::invariants::particles_of;
-use crate::lattice::Lattice;
+use crate::math::zmat::{big, dot, ZMat};
 use crate::model::{Boundary, Structure, Wires};
-use crate::output;
-use crate::system::System;
-use pins::{Pinned, Selection};
+use pins::Pinned;
 use theory::Residual;
-use zmat::{big, dot, ZMat};
 
 /// Which part of the system a theory describes.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -343,7 +337,14 @@ fn make_theory(end: End, wires: Option<(usize, usize)>, residual: Residual) -> T
 }
 
 /// The basis-independent data compared between windows.
-fn summary(t: &Theory) -> (usize, BigInt, (usize, usize), crate::exact::Rational) {
+fn summary(
+    t: &Theory,
+) -> (
+    usize,
+    BigInt,
+    (usize, usize),
+    crate::math::rational::Rational,
+) {
     let i = &t.invariants;
     (
         t.residual.k.rows,
@@ -451,25 +452,6 @@ fn periodic_closure(
             }
         }
     }
-    let rank = normal::rank(&ZMat::from_rows(&ns, lat.n));
+    let rank = crate::math::smith::rank(&ZMat::from_rows(&ns, lat.n));
     Ok((2 * rank == lat.n, w, rank, lat.n))
-}
-
-/// `pinflow edges`.
-pub fn run(args: EdgesArgs) -> Result<(), Error> {
-    crate::cli::check_outputs(args.output.as_deref(), None)?;
-    let (sys, point) = crate::cli::load_point(&args.point)?;
-    // Flow options are checked even when --pin makes the flow unnecessary.
-    let opts = FlowOptions::resolve(&sys.model, &args.flow)?;
-    let selection: Selection = if args.pin.is_empty() {
-        pins::from_flow(&sys, &point, opts)?
-    } else {
-        pins::from_names(&sys, &args.pin)?
-    };
-    let analysis = analyse(&sys, &selection.pinned, args.window)?;
-    let report = report::EdgesReport::new(&sys, &point, &selection, &analysis);
-    crate::cli::emit(
-        args.output.as_deref(),
-        &output::render(&report, args.format)?,
-    )
 }

@@ -7,13 +7,13 @@
 use num_bigint::BigInt;
 use num_traits::Zero;
 
-use super::zmat::{big, dot};
+use crate::core::invariants::particles_of;
+use crate::core::lattice::{Family, Lattice};
+use crate::core::system::System;
 use crate::error::{Error, InputError};
-use crate::exact::{self, fmt_rational, Rational};
 use crate::flow::{Flow, FlowOptions, Outcome};
-use crate::invariants::particles_of;
-use crate::lattice::{Family, Lattice};
-use crate::system::System;
+use crate::math::rational::{self, fmt_rational, Rational};
+use crate::math::zmat::{big, dot};
 
 /// One placement of a pinned term.
 #[derive(Debug, Clone)]
@@ -310,7 +310,7 @@ pub fn support(lat: &Lattice, l: &[i64]) -> ((usize, usize), usize) {
 }
 
 fn integers(m: &[Rational]) -> Option<Vec<BigInt>> {
-    exact::is_integral(m).then(|| m.iter().map(|r| r.to_integer()).collect())
+    rational::is_integral(m).then(|| m.iter().map(|r| r.to_integer()).collect())
 }
 
 /// Why the flow's winner cannot pin, without naming it twice (the key

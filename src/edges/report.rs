@@ -22,9 +22,9 @@ use serde::{Serialize, Serializer};
 
 use super::pins::{Selection, Source};
 use super::{Analysis, Theory};
-use crate::exact::fmt_rational;
+use crate::core::system::System;
+use crate::math::rational::fmt_rational;
 use crate::output::{Report, Table};
-use crate::system::System;
 
 /// An exact integer: a JSON number when it fits 64 bits, else a string.
 #[derive(Debug, Clone, PartialEq, Eq)]

@@ -24,10 +24,10 @@ use num_bigint::BigInt;
 use num_integer::Integer;
 use num_traits::{One, Signed, ToPrimitive, Zero};
 
-use super::normal::{saturate, smith};
-use super::reduce::{reduce_form, ModuloLattice};
-use super::zmat::{self, dot, ZMat};
-use crate::exact::Rational;
+use crate::math::rational::Rational;
+use crate::math::reduce::{reduce_form, ModuloLattice};
+use crate::math::smith::{saturate, smith};
+use crate::math::zmat::{self, dot, ZMat};
 
 /// The residual lattice of a region, in a reduced basis.
 #[derive(Debug, Clone)]
@@ -305,7 +305,7 @@ fn modulo_rational(x: &Rational, p: &Rational) -> Rational {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::edges::zmat::big;
+    use crate::math::zmat::big;
 
     fn q(p: i64, r: i64) -> Rational {
         Rational::new(BigInt::from(p), BigInt::from(r))

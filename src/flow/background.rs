@@ -24,7 +24,7 @@
 //!   D(-q) = conj D(q) and only q in [0, pi] is stored. The same layout on
 //!   the N points of a quadrature rule is the infinite array: its flow is
 //!   exactly the family flow of a periodic array of N wires. The algebra
-//!   (dimension, blocks, drift) lives in [`crate::qspace`], shared with the
+//!   (dimension, blocks, drift) lives in [`crate::core::qspace`], shared with the
 //!   fixed point.
 //!
 //! Neither layout allocates: callers pass scratch space of `scratch_len()`.
@@ -33,7 +33,7 @@ use nalgebra::DMatrix;
 use num_complex::Complex64;
 
 use super::channels::Channel;
-use crate::qspace;
+use crate::core::qspace;
 
 /// Storage of D inside the ODE state.
 #[derive(Debug, Clone)]
@@ -45,7 +45,7 @@ pub enum Background {
     },
     /// Fourier blocks D(q_k), k = 0..=W/2, each n_c x n_c complex, stored
     /// as interleaved (re, im) pairs, row-major (the layout of
-    /// [`crate::qspace`]).
+    /// [`crate::core::qspace`]).
     Fourier {
         /// Wires of a periodic array, or the points of the quadrature rule
         /// of an infinite array (number of q points).
@@ -217,7 +217,7 @@ fn outer_update(u: &[f64], g: &[Complex64], c: f64, ds: &mut [f64]) {
     }
 }
 
-pub use crate::qspace::{half, phase, weight};
+pub use crate::core::qspace::{half, phase, weight};
 
 fn dense_feedback(n: usize, s: &[f64], ch: &Channel, c: f64, ds: &mut [f64], u: &mut [f64]) {
     for (l, g) in ch.l_sparse.iter().zip(&ch.g_sparse) {

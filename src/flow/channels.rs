@@ -19,12 +19,12 @@ use std::collections::HashMap;
 use num_complex::Complex64;
 use num_traits::Zero;
 
-use crate::exact::{self, Rational};
-use crate::invariants::{particles_of, Pairing};
-use crate::lattice::{Family, Lattice};
+use crate::core::invariants::{particles_of, Pairing};
+use crate::core::lattice::{Family, Lattice};
+use crate::core::qspace;
+use crate::core::system::System;
+use crate::math::rational::{self, Rational};
 use crate::model::Boundary;
-use crate::qspace;
-use crate::system::System;
 
 /// How a channel came about.
 #[derive(Debug, Clone, PartialEq)]
@@ -283,10 +283,10 @@ fn make_channel(
     for t in &family.translates {
         l_sparse.push(sparse(t.l.iter().map(|x| *x as f64)));
         let m = particles_of(lat, inv, t);
-        g_sparse.push(sparse(m.iter().map(exact::to_f64)));
+        g_sparse.push(sparse(m.iter().map(rational::to_f64)));
     }
     let particles = particles_of(lat, inv, family.rep());
-    let charge = exact::dot_int(&particles, &lat.charge);
+    let charge = rational::dot_int(&particles, &lat.charge);
     let mut ch = Channel {
         name,
         origin,

@@ -3,7 +3,7 @@
 //! it when the check fails.
 //!
 //! Why a check is needed: the rule is chosen before the flow (the rule
-//! that converges the bare dimensions, [`crate::qspace::converge`], or
+//! that converges the bare dimensions, [`crate::core::qspace::converge`], or
 //! `q_points`). Along the flow every D(q) follows its own equation
 //! dD(q)/dell = -(1/8) sum_a |y_a|^2 [D L_a L_a^H D - G_a G_a^H] [physics
 //! reference section 4], whose coefficients are trigonometric polynomials
@@ -27,12 +27,12 @@
 //! is q_2k on N). The bare refinement stopped at N because M points already
 //! gave every bare dimension to 1e-10, so the M-point rule is a sound rule
 //! for the bare D(q), and its fixed point is a copy of every other point
-//! of the N-point one ([`crate::qspace::QFixedPoint::coarsened`]). The
+//! of the N-point one ([`crate::core::qspace::QFixedPoint::coarsened`]). The
 //! check flows the same point on M points and compares. When the
 //! difference is above the tolerance, the flow is rerun on 2N points (the
 //! bare fixed point refined, the N points reused), compared with the
 //! N-point flow, and so on, until the difference is within the tolerance,
-//! N reaches the cap (`q_max_points`, default [`crate::qspace::MAX_POINTS`])
+//! N reaches the cap (`q_max_points`, default [`crate::core::qspace::MAX_POINTS`])
 //! or a doubling fails to halve the difference. The periodic trapezoid
 //! rule's error falls geometrically with N for an analytic integrand, so a
 //! difference that does not shrink is not quadrature error: usually it is
@@ -40,13 +40,13 @@
 //! the default rtol 1e-8 is two orders below the tolerance). The flow
 //! reported is the finest one, with its difference from the flow on half
 //! its points as the error estimate: as for the bare rule
-//! ([`crate::qspace::Quadrature`]) an honest and, the error falling
+//! ([`crate::core::qspace::Quadrature`]) an honest and, the error falling
 //! geometrically, in practice generous bound.
 //!
 //! A fixed rule (`q_points` = N) is not refined. It is compared with the
 //! flow on 2N points, and the estimate is twice the difference (a bound on
 //! the N-point error whenever doubling N at least halves it, as in
-//! [`crate::qspace::on_rule`]).
+//! [`crate::core::qspace::on_rule`]).
 //!
 //! Cost: a flow costs in proportion to its number of points, so a check
 //! that passes at once costs half a flow more (the M-point flow); a fixed
@@ -57,8 +57,8 @@
 use serde::Serialize;
 
 use super::{Flow, FlowResult, Outcome, Start};
+use crate::core::qspace::{QFixedPoint, Quadrature};
 use crate::error::Error;
-use crate::qspace::{QFixedPoint, Quadrature};
 
 /// Default relative tolerance of the check.
 pub const TOLERANCE: f64 = 1e-6;

@@ -46,10 +46,10 @@ use ode_solvers::dop_shared::OutputType;
 use ode_solvers::Dopri5;
 use serde::Serialize;
 
+use crate::core::system::System;
 use crate::error::{Error, InputError};
-use crate::exact::fmt_rational;
+use crate::math::rational::fmt_rational;
 use crate::model::Boundary;
-use crate::system::System;
 use background::Background;
 use channels::{Channel, Origin, Plan};
 pub use check::{QuadratureCheck, RuleChoice, StoppedBy};
@@ -77,6 +77,26 @@ pub enum Outcome {
 }
 
 impl Outcome {
+    /// Every outcome, in the order outputs list them.
+    pub const ALL: [Outcome; 6] = [
+        Outcome::Strong,
+        Outcome::Spinful,
+        Outcome::Gapless,
+        Outcome::Undecided,
+        Outcome::Unphysical,
+        Outcome::Failed,
+    ];
+
+    /// The outcome a word of [`Outcome::word`] names.
+    pub fn from_word(word: &str) -> Option<Outcome> {
+        Outcome::ALL.into_iter().find(|o| o.word() == word)
+    }
+
+    /// Whether a term won: the outcomes that name a winner.
+    pub fn has_winner(self) -> bool {
+        matches!(self, Outcome::Strong | Outcome::Spinful)
+    }
+
     /// The word used in every output.
     pub fn word(self) -> &'static str {
         match self {
@@ -144,7 +164,7 @@ pub struct FlowResult {
     pub gap: Option<f64>,
     /// The phase of the final pinned set (null for points that could not
     /// flow).
-    pub phase: Option<crate::phase::Phase>,
+    pub phase: Option<crate::core::phase::Phase>,
     /// Where the integration ended (its last stage's, when successive
     /// pinning flowed on).
     pub ell_end: f64,
@@ -159,7 +179,7 @@ pub struct FlowResult {
     pub dkd_drift: f64,
     /// Infinite arrays: the quadrature rule D(q) was carried on, with the
     /// error estimate of the bare dimensions on it; null otherwise.
-    pub quadrature: Option<crate::qspace::Quadrature>,
+    pub quadrature: Option<crate::core::qspace::Quadrature>,
     /// Infinite arrays: the a-posteriori check of the flow's quadrature (the
     /// same flow on another rule; see [`check`]); null otherwise and for
     /// flows that failed or could not start.
@@ -186,7 +206,7 @@ pub struct Flow<'s> {
     pub opts: FlowOptions,
     layout: Layout,
     /// Phases already named, by sorted plan indices of the pinned set.
-    phases: std::sync::Mutex<std::collections::HashMap<Vec<usize>, crate::phase::Phase>>,
+    phases: std::sync::Mutex<std::collections::HashMap<Vec<usize>, crate::core::phase::Phase>>,
 }
 
 /// How D is carried.
@@ -210,8 +230,8 @@ struct Start {
     bg: Background,
     d0: Vec<f64>,
     channels: Option<Vec<Channel>>,
-    quadrature: Option<crate::qspace::Quadrature>,
-    rule: Option<crate::qspace::QFixedPoint>,
+    quadrature: Option<crate::core::qspace::Quadrature>,
+    rule: Option<crate::core::qspace::QFixedPoint>,
 }
 
 impl<'s> Flow<'s> {
@@ -282,8 +302,8 @@ impl<'s> Flow<'s> {
     /// The start of an infinite array's flow on the rule of `fp`.
     fn on_rule(
         &self,
-        fp: &crate::qspace::QFixedPoint,
-        quad: crate::qspace::Quadrature,
+        fp: &crate::core::qspace::QFixedPoint,
+        quad: crate::core::qspace::Quadrature,
     ) -> Result<Start, Error> {
         let lat = &self.sys.lattice;
         let kinv = &self
@@ -418,8 +438,9 @@ impl<'s> Flow<'s> {
         included
             .iter()
             .map(|&c| {
-                k.as_ref()
-                    .map(|k| crate::lattice::mismatch(&self.plan.channels[c].particles, k, g))
+                k.as_ref().map(|k| {
+                    crate::core::momentum::mismatch(&self.plan.channels[c].particles, k, g)
+                })
             })
             .collect()
     }
@@ -598,7 +619,7 @@ fn remap_ope(plan: &Plan, included: &[usize]) -> Vec<channels::OpeEntry> {
 /// ell_k = ln(1/|k|) for a mismatched term; None when k = 0 (within the
 /// tolerance of `dims`).
 pub fn cutoff_scale(k: f64) -> Option<f64> {
-    (k.abs() >= crate::dims::MOMENTUM_TOLERANCE).then(|| -(k.abs().ln()))
+    (k.abs() >= crate::core::momentum::MOMENTUM_TOLERANCE).then(|| -(k.abs().ln()))
 }
 
 /// max |D K D - K^-1| / max |K^-1|.

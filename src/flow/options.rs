@@ -5,7 +5,7 @@ use crate::error::InputError;
 use crate::model::Model;
 
 /// Which generated terms join the flow.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum, serde::Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
 #[serde(rename_all = "lowercase")]
 pub enum Closure {
     /// Only the model's terms flow.
@@ -62,7 +62,7 @@ pub struct FlowOptions {
     #[serde(skip)]
     pub q_tolerance: f64,
     /// Infinite arrays: the most points the flow's quadrature is refined to
-    /// (default [`crate::qspace::MAX_POINTS`]).
+    /// (default [`crate::core::qspace::MAX_POINTS`]).
     #[serde(skip)]
     pub q_max_points: usize,
     /// Most stages of successive pinning (None: no limit, the default;
@@ -85,54 +85,35 @@ impl Default for FlowOptions {
             dense_d: false,
             q_points: None,
             q_tolerance: super::check::TOLERANCE,
-            q_max_points: crate::qspace::MAX_POINTS,
+            q_max_points: crate::core::qspace::MAX_POINTS,
             stages: None,
         }
     }
 }
 
-/// Command-line overrides (None = keep the model's or the default value).
-///
-/// The numeric flags accept values that start with a hyphen (`--y-strong -1`,
-/// `--atol -1e-3`), so
-/// that a negative value reaches the validation below and is reported as an
-/// out-of-range value of that flag, not as an unknown argument.
-#[derive(Debug, Clone, Default, clap::Args)]
+/// Overrides of the model's or the default values (None = keep them), as
+/// given on the command line; the names are those of the flags.
+#[derive(Debug, Clone, Default)]
 pub struct FlowOverrides {
-    /// End of the flow in ell = ln(alpha/alpha_0) [default 40].
-    #[arg(long, allow_hyphen_values = true, value_name = "ELL")]
+    /// `--ell-max`.
     pub ell_max: Option<f64>,
-    /// A coupling with |y| at or above this counts as strong [default 1].
-    #[arg(long, allow_hyphen_values = true, value_name = "Y")]
+    /// `--y-strong`.
     pub y_strong: Option<f64>,
-    /// Couplings below this count as decayed [default 1e-6].
-    #[arg(long, allow_hyphen_values = true, value_name = "Y")]
+    /// `--floor`.
     pub floor: Option<f64>,
-    /// Which generated terms join the flow [default pairs].
-    #[arg(long, value_enum)]
+    /// `--closure`.
     pub closure: Option<Closure>,
-    /// Largest bare dimension of a generated term [default 4].
-    #[arg(long, allow_hyphen_values = true, value_name = "DELTA")]
+    /// `--closure-bound`.
     pub closure_bound: Option<f64>,
-    /// Relative tolerance of the integrator [default 1e-8].
-    #[arg(long, allow_hyphen_values = true, value_name = "TOL")]
+    /// `--rtol`.
     pub rtol: Option<f64>,
-    /// Absolute tolerance of the integrator [default 1e-12].
-    #[arg(long, allow_hyphen_values = true, value_name = "TOL")]
+    /// `--atol`.
     pub atol: Option<f64>,
-    /// Most integrator steps per segment of the flow before it counts as
-    /// failed [default 100000].
-    #[arg(long, allow_hyphen_values = true, value_name = "N")]
+    /// `--max-steps` (checked to be a positive whole number).
     pub max_steps: Option<i64>,
-    /// Infinite arrays: carry D(q) on this many quadrature points, checked
-    /// against twice as many but not refined [default: the rule that
-    /// converges the bare dimensions to 1e-10, refined while the flow's
-    /// check fails].
-    #[arg(long, allow_hyphen_values = true, value_name = "N")]
+    /// `--q-points` (checked against the model).
     pub q_points: Option<i64>,
-    /// Most stages of successive pinning: 1 stops at the first term to
-    /// reach strong coupling [default: no limit].
-    #[arg(long, allow_hyphen_values = true, value_name = "N")]
+    /// `--stages` (checked to be a positive whole number).
     pub stages: Option<i64>,
 }
 
@@ -249,7 +230,7 @@ impl FlowOptions {
 
 /// A number of quadrature points: only for infinite arrays, at least
 /// 2 R + 1 for interactions and terms of range R (fewer points cannot
-/// resolve V(q) and L(q)), at most [`crate::qspace::MAX_POINTS`].
+/// resolve V(q) and L(q)), at most [`crate::core::qspace::MAX_POINTS`].
 fn check_q_points(model: &Model, n: i64, file: &str, key: &str) -> Result<usize, InputError> {
     if !model.is_infinite() {
         return Err(InputError::new(
@@ -259,7 +240,7 @@ fn check_q_points(model: &Model, n: i64, file: &str, key: &str) -> Result<usize,
         ));
     }
     let least = 2 * model.range() + 1;
-    let most = crate::qspace::MAX_POINTS;
+    let most = crate::core::qspace::MAX_POINTS;
     if n < least as i64 || n > most as i64 {
         return Err(InputError::new(
             file,

@@ -20,6 +20,7 @@ use ode_solvers::System;
 
 use super::background::Background;
 use super::channels::{Channel, OpeEntry};
+use crate::core::relevance::rg_eigenvalue;
 
 /// Why the integration stopped early.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -144,7 +145,7 @@ impl<'a> FlowRhs<'a> {
             .filter(|&c| self.active[c])
             .all(|c| {
                 let g = self.coupling(y, c);
-                g < self.floor && (g == 0.0 || self.dimension(y, c) > 2.0)
+                g < self.floor && (g == 0.0 || rg_eigenvalue(self.dimension(y, c)) < 0.0)
             })
     }
 
@@ -179,7 +180,7 @@ impl System<f64, DVector<f64>> for &mut FlowRhs<'_> {
                 .bg
                 .dimension_and_feedback(d, rhs.channels[c], weight, dd, &mut scratch)
                 + rhs.extra[c];
-            let rate = 2.0 - delta;
+            let rate = rg_eigenvalue(delta);
             dw[2 * c] += rate * w[2 * c];
             dw[2 * c + 1] += rate * w[2 * c + 1];
         }

@@ -37,8 +37,8 @@ use super::background::Background;
 use super::channels::Origin;
 use super::rhs::FlowRhs;
 use super::{integrate, Flow, FlowResult, Integrated, Outcome};
-use crate::lattice::Family;
-use crate::phase::{name_phase, Candidate, Phase, PinnedLattice};
+use crate::core::lattice::Family;
+use crate::core::phase::{name_phase, Candidate, Phase, PinnedLattice};
 
 /// One stage of a staged flow.
 #[derive(Debug, Clone, PartialEq, Serialize)]
@@ -106,7 +106,7 @@ pub(super) fn run(
     ell_k: &[Option<f64>],
     opts: &super::FlowOptions,
     k: &DMatrix<f64>,
-    pairing: &crate::invariants::Pairing,
+    pairing: &crate::core::invariants::Pairing,
     n: usize,
 ) -> Staged {
     let st = Staged {
@@ -152,11 +152,11 @@ fn stage_loop(
     ell_k: &[Option<f64>],
     opts: &super::FlowOptions,
     k: &DMatrix<f64>,
-    pairing: &crate::invariants::Pairing,
+    pairing: &crate::core::invariants::Pairing,
     n: usize,
 ) -> Staged {
     loop {
-        if !crate::exact::is_integral(&rhs.channels[w].particles) {
+        if !crate::math::rational::is_integral(&rhs.channels[w].particles) {
             st.end = StagesEnd::Nonlocal;
             return st;
         }
@@ -386,7 +386,7 @@ fn pin(
     w: usize,
     st: &mut Staged,
     ell: f64,
-    pairing: &crate::invariants::Pairing,
+    pairing: &crate::core::invariants::Pairing,
     n: usize,
 ) -> usize {
     st.pinned.push(w);
@@ -448,7 +448,7 @@ fn reduce(bg: &Background, s: &mut [f64], ch: &super::channels::Channel) {
             bg.write(&reduced, s);
         }
         Background::Fourier { wires, cell } => {
-            for q in 0..crate::qspace::half(wires) {
+            for q in 0..crate::core::qspace::half(wires) {
                 let lq = &ch.lq[q * cell..(q + 1) * cell];
                 reduce_block(s, q, cell, lq);
             }
@@ -472,7 +472,7 @@ fn pseudo_inverse(m: &DMatrix<f64>) -> DMatrix<f64> {
 
 /// D(q) -> D(q) - (D L)(D L)^H / (L^H D L) on stored block q.
 fn reduce_block(s: &mut [f64], q: usize, cell: usize, lq: &[Complex64]) {
-    let d = crate::qspace::block_at(s, q, cell);
+    let d = crate::core::qspace::block_at(s, q, cell);
     let l = nalgebra::DVector::from_column_slice(lq);
     let dl = &d * &l;
     let m = l.dotc(&dl).re;
@@ -499,9 +499,9 @@ fn dkd_blocks(bg: &Background, s: &[f64], k: &DMatrix<f64>) -> Vec<DMatrix<Compl
             let d = bg.dense(s).map(|x| Complex64::new(x, 0.0));
             vec![&d * &kc * &d]
         }
-        Background::Fourier { wires, cell } => (0..crate::qspace::half(wires))
+        Background::Fourier { wires, cell } => (0..crate::core::qspace::half(wires))
             .map(|q| {
-                let d = crate::qspace::block_at(s, q, cell);
+                let d = crate::core::qspace::block_at(s, q, cell);
                 &d * &kc * &d
             })
             .collect(),

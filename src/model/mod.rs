@@ -6,7 +6,7 @@
 //! against the declared parameters. Every error names the file and the key.
 //!
 //! Invariants of a [`Model`]: the cell K is square, symmetric and integer
-//! (its determinant is checked in [`crate::lattice`]); every V block is
+//! (its determinant is checked in [`crate::core::lattice`]); every V block is
 //! `n_c x n_c` with compiled entries; every term has one integer vector per
 //! wire offset, each of length `n_c`; term names are unique.
 
@@ -18,7 +18,7 @@ use std::collections::BTreeSet;
 use std::path::Path;
 
 use crate::error::InputError;
-use crate::exact::Rational;
+use crate::math::rational::Rational;
 pub use expr::{ParamSet, Scalar};
 use raw::{RawArray, RawFields, RawModel, RawTerm};
 use values::Ctx;
@@ -54,7 +54,7 @@ pub enum Structure {
 pub enum Wires {
     /// A finite array.
     Finite(usize),
-    /// The thermodynamic limit (computed in q-space, see [`crate::qspace`]).
+    /// The thermodynamic limit (computed in q-space, see [`crate::core::qspace`]).
     Infinite,
 }
 
@@ -140,6 +140,14 @@ pub struct Model {
 }
 
 impl Model {
+    /// Wires of the periodic stand-in ring on which an infinite array's
+    /// exact data is computed (see `core::lattice::Lattice::stand_in`):
+    /// 4 (R + 2) + 1 for terms of range R.
+    pub fn stand_in_wires(&self) -> usize {
+        let range = self.terms.iter().map(|t| t.range()).max().unwrap_or(0);
+        4 * (range + 2) + 1
+    }
+
     /// Read and validate a model file.
     pub fn load(path: &Path) -> Result<Model, InputError> {
         let file = path.display().to_string();
@@ -299,7 +307,7 @@ impl Model {
     /// finite there, and the momentum period finite and positive; the error
     /// names the first key that is not. V is checked
     /// when it is evaluated, extra dimensions by
-    /// [`crate::system::System::extra_dimensions`].
+    /// [`crate::core::system::System::extra_dimensions`].
     pub fn check_point(&self, point: &[f64]) -> Result<(), InputError> {
         let base = match self.structure {
             Structure::Explicit => "fields",
@@ -322,7 +330,7 @@ impl Model {
         {
             let w = match wires {
                 Wires::Finite(w) => *w,
-                Wires::Infinite => crate::lattice::Lattice::stand_in_wires(self),
+                Wires::Infinite => self.stand_in_wires(),
             };
             for (c, (b, s)) in base.iter().zip(shift).enumerate() {
                 let last = b.eval(point) + (w.saturating_sub(1)) as f64 * s.eval(point);

@@ -6,7 +6,7 @@ use num_traits::Zero;
 
 use super::expr::{ParamSet, Scalar};
 use crate::error::InputError;
-use crate::exact::Rational;
+use crate::math::rational::Rational;
 use toml::Value;
 
 /// The file being read, for error messages.

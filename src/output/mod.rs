@@ -13,7 +13,6 @@ pub mod latex;
 pub mod markdown;
 pub mod text;
 
-use std::io::Write;
 use std::path::Path;
 
 use serde::Serialize;
@@ -21,7 +20,7 @@ use serde::Serialize;
 use crate::error::Error;
 
 /// Output formats of the reporting commands.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum, Default)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
 pub enum Format {
     /// Aligned tables for a terminal.
     #[default]
@@ -143,15 +142,8 @@ pub fn to_json<T: Serialize>(value: &T) -> Result<String, Error> {
 }
 
 /// Write bytes to `path` atomically: a temporary file beside it, then a
-/// rename. `-` means standard output.
+/// rename.
 pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<(), Error> {
-    if path.as_os_str() == "-" {
-        let mut out = std::io::stdout().lock();
-        return out
-            .write_all(bytes)
-            .and_then(|_| out.flush())
-            .map_err(|e| Error::io("standard output", e));
-    }
     let tmp = temp_path(path);
     std::fs::write(&tmp, bytes).map_err(|e| Error::io(path, e))?;
     std::fs::rename(&tmp, path).map_err(|e| {

@@ -28,8 +28,6 @@ pub mod map;
 mod output;
 pub mod palette;
 
-use std::path::{Path, PathBuf};
-
 pub use lines::{
     dimension_line_figure, flow_figure, Band, DimensionSeries, FlowFigure, FlowSeries,
     LineScanFigure,
@@ -39,28 +37,7 @@ pub use map::{
     MAX_SVG_RECTS,
 };
 
-/// Failure to produce a figure file.
-///
-/// Carries the file that could not be written (or, for invalid input, the
-/// path stem that was asked for) and a human-readable reason.
-#[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
-#[error("cannot write figure {}: {message}", path.display())]
-pub struct PlotError {
-    /// The output path (or path stem) concerned.
-    pub path: PathBuf,
-    /// What went wrong.
-    pub message: String,
-}
-
-impl PlotError {
-    /// Builds an error for `path` with the given message.
-    pub fn new(path: &Path, message: impl Into<String>) -> Self {
-        PlotError {
-            path: path.to_path_buf(),
-            message: message.into(),
-        }
-    }
-}
+pub use crate::error::PlotError;
 
 /// Helpers shared by the figure tests.
 #[cfg(test)]

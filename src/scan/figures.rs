@@ -19,8 +19,9 @@ use std::path::Path;
 
 use super::points::Point;
 use super::store::Meta;
-use super::summary::OUTCOMES;
+use crate::core::relevance::SPACETIME_DIMENSION;
 use crate::error::Error;
+use crate::flow::Outcome;
 use crate::plot::{
     self, palette, Band, Contour, ContourTracer, DimensionSeries, HeatMap, LineScanFigure, PhaseMap,
 };
@@ -70,7 +71,12 @@ impl Canvas {
             let (xs, ys) = (meta.axes[0].values(), meta.axes[1].values());
             let lines = line_terms(meta)
                 .into_iter()
-                .map(|t| (t, ContourTracer::new(xs.clone(), ys.clone(), 2.0)))
+                .map(|t| {
+                    (
+                        t,
+                        ContourTracer::new(xs.clone(), ys.clone(), SPACETIME_DIMENSION),
+                    )
+                })
                 .collect();
             Shape::Map {
                 ell: Vec::with_capacity(n),
@@ -152,11 +158,12 @@ impl Keys {
     /// The number of a row's category; the winner counts only for the
     /// outcomes that have one.
     fn id(&mut self, outcome: &str, winner: &str) -> u32 {
-        let winner = if matches!(outcome, "strong" | "spinful" | PHASE | TARGET_PHASE) {
-            winner
-        } else {
-            ""
-        };
+        let winner =
+            if is_phase(outcome) || Outcome::from_word(outcome).is_some_and(Outcome::has_winner) {
+                winner
+            } else {
+                ""
+            };
         self.scratch.clear();
         // The length prefix keeps distinct pairs distinct.
         let _ = write!(self.scratch, "{}:{outcome}{winner}", outcome.len());
@@ -219,7 +226,7 @@ impl Categories {
             .iter()
             .zip(&term_colour)
             .map(|(k, &t)| match (k.0.as_str(), k.1.as_str()) {
-                (PHASE, crate::phase::GAPLESS) => colour("gapless", t),
+                (PHASE, crate::core::phase::GAPLESS) => colour("gapless", t),
                 (o, _) if is_phase(o) => colour("strong", t),
                 (o, _) => colour(o, t),
             })
@@ -244,10 +251,10 @@ impl Categories {
     /// keeps its term's colour (as its line); other outcomes take the last
     /// palette entries (black last, drawn light: grey).
     fn band_colour(&self, c: usize) -> usize {
-        match self.keys[c].0.as_str() {
-            "strong" | "spinful" => self.term_colour[c],
-            "gapless" => 7,
-            "undecided" => 6,
+        match Outcome::from_word(&self.keys[c].0) {
+            Some(Outcome::Strong | Outcome::Spinful) => self.term_colour[c],
+            Some(Outcome::Gapless) => 7,
+            Some(Outcome::Undecided) => 6,
             _ => 5,
         }
     }
@@ -266,15 +273,15 @@ fn order(meta: &Meta, (outcome, winner): &(String, String)) -> (usize, usize, St
     match outcome.as_str() {
         TARGET_PHASE => return (0, 0, winner.clone()),
         PHASE => {
-            let last = usize::from(winner == crate::phase::GAPLESS);
+            let last = usize::from(winner == crate::core::phase::GAPLESS);
             return (1, last, winner.clone());
         }
         _ => {}
     }
-    let oi = OUTCOMES
+    let oi = Outcome::ALL
         .iter()
-        .position(|o| o == outcome)
-        .unwrap_or(OUTCOMES.len());
+        .position(|o| o.word() == outcome)
+        .unwrap_or(Outcome::ALL.len());
     let ti = meta
         .terms
         .iter()
@@ -282,7 +289,7 @@ fn order(meta: &Meta, (outcome, winner): &(String, String)) -> (usize, usize, St
         .unwrap_or(meta.terms.len());
     let group = if winner.is_empty() {
         2
-    } else if outcome == "strong" {
+    } else if outcome == Outcome::Strong.word() {
         0
     } else {
         1
@@ -291,17 +298,18 @@ fn order(meta: &Meta, (outcome, winner): &(String, String)) -> (usize, usize, St
 }
 
 fn label(outcome: &str, winner: &str) -> String {
-    match outcome {
-        TARGET_PHASE => format!("{winner} (target phase)"),
-        PHASE if winner == crate::phase::GAPLESS => "gapless phase (nothing pinned)".into(),
-        PHASE => winner.to_string(),
-        "strong" => format!("{winner} wins"),
-        "spinful" => format!("{winner}: spinful instability"),
-        "gapless" => "gapless".into(),
-        "undecided" => "undecided".into(),
-        "unphysical" => "unphysical (V not positive definite)".into(),
-        "failed" => "integration failed".into(),
-        other => other.to_string(),
+    match (outcome, Outcome::from_word(outcome)) {
+        (TARGET_PHASE, _) => format!("{winner} (target phase)"),
+        (PHASE, _) if winner == crate::core::phase::GAPLESS => {
+            "gapless phase (nothing pinned)".into()
+        }
+        (PHASE, _) => winner.to_string(),
+        (_, Some(Outcome::Strong)) => format!("{winner} wins"),
+        (_, Some(Outcome::Spinful)) => format!("{winner}: spinful instability"),
+        (_, Some(o @ (Outcome::Gapless | Outcome::Undecided))) => o.word().into(),
+        (_, Some(Outcome::Unphysical)) => "unphysical (V not positive definite)".into(),
+        (_, Some(Outcome::Failed)) => "integration failed".into(),
+        (_, None) => outcome.to_string(),
     }
 }
 
@@ -309,12 +317,12 @@ fn label(outcome: &str, winner: &str) -> String {
 /// (listed terms by model order, generated winners after them).
 fn colour(outcome: &str, term: usize) -> (u8, u8, u8) {
     let rgb = |c: plotters::style::RGBColor| (c.0, c.1, c.2);
-    match outcome {
-        "strong" => rgb(palette::categorical(term)),
-        "spinful" => rgb(palette::lighten(palette::categorical(term), 0.55)),
-        "gapless" => (232, 232, 232),
-        "undecided" => (170, 170, 170),
-        "unphysical" => (255, 255, 255),
+    match Outcome::from_word(outcome) {
+        Some(Outcome::Strong) => rgb(palette::categorical(term)),
+        Some(Outcome::Spinful) => rgb(palette::lighten(palette::categorical(term), 0.55)),
+        Some(Outcome::Gapless) => (232, 232, 232),
+        Some(Outcome::Undecided) => (170, 170, 170),
+        Some(Outcome::Unphysical) => (255, 255, 255),
         _ => (60, 60, 60),
     }
 }

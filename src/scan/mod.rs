@@ -11,7 +11,7 @@
 //!
 //! Memory does not grow with the rows: computing holds one chunk of rows,
 //! resuming reads the partial file in blocks, and the finishing step
-//! ([`run`]) reads `points.csv` once, row by row ([`points`]), into the
+//! ([`run::finish`]) reads `points.csv` once, row by row ([`points`]), into the
 //! summary's tally and the figures' canvas ([`figures`]), which keep a few
 //! bytes per point (12 for a plane) instead of the rows.
 //!
@@ -30,9 +30,9 @@ use std::path::{Path, PathBuf};
 
 use rayon::prelude::*;
 
+use crate::core::system::System;
 use crate::error::{Error, InputError};
 use crate::flow::{Flow, FlowOptions, FlowResult, Outcome};
-use crate::system::System;
 pub use axis::Axis;
 use store::{csv_line, Meta, RowFile};
 
@@ -301,23 +301,4 @@ pub fn partial_path(dir: &Path, shard: Option<(usize, usize)>) -> PathBuf {
 /// Final name of a shard file.
 pub fn shard_path(dir: &Path, k: usize, n: usize) -> PathBuf {
     dir.join(format!("shard-{k}-of-{n}.csv"))
-}
-
-/// Parse `k/n` (1 <= k <= n).
-pub fn parse_shard(s: &str) -> Result<(usize, usize), String> {
-    let (k, n) = s
-        .split_once('/')
-        .ok_or_else(|| format!("expected K/N, found `{s}`"))?;
-    let k: usize = k
-        .trim()
-        .parse()
-        .map_err(|_| format!("expected K/N with whole numbers, found `{s}`"))?;
-    let n: usize = n
-        .trim()
-        .parse()
-        .map_err(|_| format!("expected K/N with whole numbers, found `{s}`"))?;
-    if n == 0 || k == 0 || k > n {
-        return Err(format!("shard K/N needs 1 <= K <= N, found `{s}`"));
-    }
-    Ok((k, n))
 }

@@ -117,7 +117,7 @@ impl Meta {
             }
         }
         let outcome = cells[self.axes.len()];
-        if !super::summary::OUTCOMES.contains(&outcome) {
+        if crate::flow::Outcome::from_word(outcome).is_none() {
             return Err(format!("unknown outcome `{outcome}`"));
         }
         Ok(())

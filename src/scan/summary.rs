@@ -17,17 +17,8 @@ use serde::Serialize;
 
 use super::points::Point;
 use super::store::Meta;
+use crate::flow::Outcome;
 use crate::output::{short, Report, Table};
-
-/// Outcome words in display order.
-pub const OUTCOMES: [&str; 6] = [
-    "strong",
-    "spinful",
-    "gapless",
-    "undecided",
-    "unphysical",
-    "failed",
-];
 
 /// Margin of the target over its nearest competitor.
 #[derive(Debug, Clone, Serialize)]
@@ -227,7 +218,10 @@ impl Tally {
     pub fn new(meta: &Meta) -> Tally {
         Tally {
             points: 0,
-            outcomes: OUTCOMES.iter().map(|w| (w.to_string(), 0)).collect(),
+            outcomes: Outcome::ALL
+                .iter()
+                .map(|o| (o.word().to_string(), 0))
+                .collect(),
             winners: BTreeMap::new(),
             target: meta.target.as_ref().map(|t| Window::new(meta, t)),
             terms: meta.terms.len(),
@@ -314,7 +308,7 @@ impl Window {
     }
 
     fn add(&mut self, p: &Point) {
-        if p.outcome() != "strong" || p.winner() != self.name {
+        if p.outcome() != Outcome::Strong.word() || p.winner() != self.name {
             return;
         }
         self.wins += 1;

@@ -14,11 +14,11 @@
 //! Fincke-Pohst enumeration ([`ellipsoid`]). The filters are exact integer
 //! arithmetic (charge t.m, conformal spin (1/2) m^T K m) except momentum
 //! conservation, whose momenta are floats: |k| below
-//! [`crate::dims::MOMENTUM_TOLERANCE`] counts as conserved, unless every
+//! [`crate::core::momentum::MOMENTUM_TOLERANCE`] counts as conserved, unless every
 //! momentum (and the momentum period G, when the model gives one) is a small
 //! rational at the point, and then k = 0 (or k/G integral) is checked
 //! exactly. With a period, k is reduced to (-G/2, G/2] first
-//! ([`crate::lattice::reduce_momentum`]).
+//! ([`crate::core::momentum::reduce_momentum`]).
 //!
 //! Arrays: the search runs on a window of R consecutive wires ([`window`])
 //! with the block of D on its fields, and lists one operator per
@@ -33,7 +33,6 @@
 //! [`DEFAULT_LIMIT`] the search is refused (with the estimate and how to
 //! narrow it) unless forced.
 
-pub mod ellipsoid;
 pub mod report;
 pub mod window;
 
@@ -41,10 +40,10 @@ use std::collections::BTreeSet;
 
 use nalgebra::DMatrix;
 
+use crate::core::system::System;
 use crate::error::{Error, InputError};
-use crate::exact;
-use crate::system::System;
-use ellipsoid::Ellipsoid;
+use crate::math::ellipsoid::Ellipsoid;
+use crate::math::rational;
 pub use report::{emit_terms, render, Estimate, HuntReport, Operator};
 use window::Window;
 
@@ -64,17 +63,16 @@ const PROBES: usize = 2048;
 const PROBE_SEED: u64 = 0x0070_696e_666c_6f77;
 
 /// Which conformal spins to keep.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum SpinFilter {
     /// Spin zero only: the operators that can pin a mode on their own.
-    #[value(name = "0")]
     Zero,
     /// Every spin.
     Any,
 }
 
 /// Momentum conservation (models that give momenta).
-#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum MomentumFilter {
     /// Only operators whose momentum mismatch vanishes (within the tolerance).
     Conserved,
@@ -125,42 +123,6 @@ impl Default for HuntOptions {
             max_listed: MAX_LISTED,
         }
     }
-}
-
-/// Parse `--max-dim`: a finite number > 0.
-pub fn parse_max_dim(s: &str) -> Result<f64, String> {
-    let x: f64 = s
-        .trim()
-        .parse()
-        .map_err(|_| format!("expected a number > 0 (a scaling dimension), found `{s}`"))?;
-    if x.is_finite() && x > 0.0 {
-        Ok(x)
-    } else {
-        Err(format!(
-            "expected a finite number > 0 (a scaling dimension), found `{s}`"
-        ))
-    }
-}
-
-/// Parse `--range`: an integer >= 1.
-pub fn parse_range(s: &str) -> Result<usize, String> {
-    match s.trim().parse::<i64>() {
-        Ok(r) if r >= 1 => Ok(r as usize),
-        _ => Err(format!(
-            "expected a number of consecutive wires (an integer >= 1), found `{s}`"
-        )),
-    }
-}
-
-/// Parse `--charge`: an integer or `any`.
-pub fn parse_charge(s: &str) -> Result<ChargeFilter, String> {
-    let t = s.trim();
-    if t == "any" {
-        return Ok(ChargeFilter::Any);
-    }
-    t.parse::<i64>()
-        .map(ChargeFilter::Exactly)
-        .map_err(|_| format!("expected an integer charge t.m or `any`, found `{s}`"))
 }
 
 /// The data of the search space: window, exact K and t on it, the form G.
@@ -303,7 +265,7 @@ fn window_d(sys: &System, point: &[f64], window: &Window) -> Result<DMatrix<f64>
 
 /// Momenta recognised as rationals at a point, with the momentum period
 /// when the model gives one (also rational).
-type ExactMomenta = (Vec<exact::Rational>, Option<exact::Rational>);
+type ExactMomenta = (Vec<rational::Rational>, Option<rational::Rational>);
 
 pub fn hunt(sys: &System, point: &[f64], opts: &HuntOptions) -> Result<HuntReport, Error> {
     let cmd = |key: &str, m: String| Error::Input(InputError::new("command line", key, m));
@@ -350,7 +312,7 @@ pub fn hunt(sys: &System, point: &[f64], opts: &HuntOptions) -> Result<HuntRepor
     // k/G is an integer. An irrational period (2 pi, say) sends the
     // comparison to the float path with its tolerance.
     let exact_momenta: Option<ExactMomenta> = momenta.as_ref().and_then(|k| {
-        let small = |x: f64| exact::small_rational(x, MAX_MOMENTUM_DENOMINATOR, 1e-12);
+        let small = |x: f64| rational::small_rational(x, MAX_MOMENTUM_DENOMINATOR, 1e-12);
         let k = k.iter().map(|x| small(*x)).collect::<Option<Vec<_>>>()?;
         let g = match period {
             // A tiny G could be recognised as 0: keep it on the float path.
@@ -443,7 +405,7 @@ pub fn hunt(sys: &System, point: &[f64], opts: &HuntOptions) -> Result<HuntRepor
         let l = space
             .vector(&m)
             .ok_or_else(|| Error::Numerical("K m overflowed 64-bit integers".into()))?;
-        let dimension = crate::fixed_point::quad_form(&space.d, &l);
+        let dimension = crate::core::fixed_point::quad_form(&space.d, &l);
         let full = space.window.place(&m);
         let k = momenta.as_ref().map(|p| {
             full.iter()
@@ -452,23 +414,23 @@ pub fn hunt(sys: &System, point: &[f64], opts: &HuntOptions) -> Result<HuntRepor
                 .map(|(a, b)| *a as f64 * b)
                 .sum::<f64>()
         });
-        let k = k.map(|k| crate::lattice::reduce_momentum(k, period));
+        let k = k.map(|k| crate::core::momentum::reduce_momentum(k, period));
         let conserved = match (&exact_momenta, k) {
             (Some((q, g)), _) => {
-                let k = exact::dot_int(q, &full);
+                let k = rational::dot_int(q, &full);
                 match g {
                     Some(g) => (k / g).is_integer(),
                     None => num_traits::Zero::is_zero(&k),
                 }
             }
-            (None, Some(k)) => k.abs() < crate::dims::MOMENTUM_TOLERANCE,
+            (None, Some(k)) => k.abs() < crate::core::momentum::MOMENTUM_TOLERANCE,
             (None, None) => true,
         };
         if momentum == Some(MomentumFilter::Conserved) && !conserved {
             continue;
         }
         let k = k.map(|k| if conserved { 0.0 } else { k });
-        let spin = exact::Rational::new(space.twice_spin(&m).into(), 2.into());
+        let spin = rational::Rational::new(space.twice_spin(&m).into(), 2.into());
         operators.push(Operator {
             particles_by_wire: space.window.array.then(|| {
                 space
@@ -480,9 +442,9 @@ pub fn hunt(sys: &System, point: &[f64], opts: &HuntOptions) -> Result<HuntRepor
             }),
             wires: space.window.support(&m),
             charge: space.charge(&m) as i64,
-            spin: exact::fmt_rational(&spin),
+            spin: rational::fmt_rational(&spin),
             dimension,
-            rg_eigenvalue: 2.0 - dimension,
+            rg_eigenvalue: crate::core::relevance::rg_eigenvalue(dimension),
             momentum: k,
             model_term: model_term(sys, &space.window, &canon),
             competitors: competitors(sys, &full),
@@ -524,8 +486,9 @@ fn model_term(sys: &System, window: &Window, canon: &[i64]) -> Option<String> {
         .iter()
         .zip(&sys.lattice.families)
         .find(|(_, fam)| {
-            let m = crate::invariants::particles_of(&sys.lattice, &inv.cell_inverse, fam.rep());
-            exact::to_integers(&m)
+            let m =
+                crate::core::invariants::particles_of(&sys.lattice, &inv.cell_inverse, fam.rep());
+            rational::to_integers(&m)
                 .and_then(|m| window.canonical_full(&m))
                 .is_some_and(|c| c == canon)
         })
@@ -551,27 +514,4 @@ fn competitors(sys: &System, full_m: &[i64]) -> Vec<String> {
         })
         .map(|(spec, _)| spec.name.clone())
         .collect()
-}
-
-/// `pinflow hunt` from the command line.
-pub fn run(args: crate::cli::HuntArgs) -> Result<(), Error> {
-    crate::cli::check_outputs(args.output.as_deref(), None)?;
-    let (sys, point) = crate::cli::load_point(&args.point)?;
-    let opts = HuntOptions {
-        max_dim: args.max_dim,
-        charge: args.charge,
-        spin: args.spin,
-        range: args.range,
-        momentum: args.momentum,
-        force: args.force,
-        limit: DEFAULT_LIMIT,
-        max_listed: MAX_LISTED,
-    };
-    let report = hunt(&sys, &point, &opts)?;
-    let text = if args.emit_terms {
-        emit_terms(&report, &sys.model)
-    } else {
-        render(&report, args.format)?
-    };
-    crate::cli::emit(args.output.as_deref(), &text)
 }

@@ -7,10 +7,10 @@ use serde::Serialize;
 
 use super::window::Window;
 use super::{ChargeFilter, HuntOptions, MomentumFilter, SpinFilter, BOUND_TOLERANCE};
+use crate::core::system::System;
 use crate::error::Error;
 use crate::model::{Boundary, Model, Structure};
 use crate::output::{self, Format, Report, Table};
-use crate::system::System;
 
 /// One operator found (the canonical member of its sign and translation
 /// class).
@@ -176,7 +176,7 @@ impl HuntReport {
             }),
             momentum_tolerance: momentum
                 .filter(|_| !exact_momenta)
-                .map(|_| crate::dims::MOMENTUM_TOLERANCE),
+                .map(|_| crate::core::momentum::MOMENTUM_TOLERANCE),
             momentum_period: sys.model.momentum_period_at(point),
             momentum_exact: exact_momenta && momentum.is_some(),
             estimate,
@@ -342,7 +342,7 @@ impl HuntReport {
             ];
             if with_k {
                 row.push(match op.momentum {
-                    Some(k) if k.abs() < crate::dims::MOMENTUM_TOLERANCE => "0".into(),
+                    Some(k) if k.abs() < crate::core::momentum::MOMENTUM_TOLERANCE => "0".into(),
                     Some(k) => format!("{k:.4}"),
                     None => "-".into(),
                 });

@@ -17,9 +17,9 @@
 //! - sign (m ~ -m): positive charge, or for neutral operators a positive
 //!   first non-zero entry.
 
+use crate::core::system::System;
 use crate::error::InputError;
 use crate::model::{Boundary, Structure};
-use crate::system::System;
 
 /// Where the search runs.
 #[derive(Debug, Clone, PartialEq, Eq)]

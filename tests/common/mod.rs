@@ -3,9 +3,9 @@
 //! `DimsReport::build`) and look up terms by name.
 #![allow(dead_code)]
 
+use pinflow::core::system::System;
 use pinflow::dims::{DimsReport, TermRow};
 use pinflow::model::Model;
-use pinflow::system::System;
 
 /// Parse model text and prepare the system; panics with the error message.
 pub fn system(toml: &str) -> System {

@@ -6,9 +6,9 @@
 //! null cosine obeys dDelta/dell = -(y^2/4) Delta^2, dy/dell = (2 - Delta) y.
 #![allow(dead_code)]
 
+use pinflow::core::system::System;
 use pinflow::flow::{Closure, Flow, FlowOptions, FlowResult};
 use pinflow::model::Model;
-use pinflow::system::System;
 
 /// A validated system from model text.
 pub fn system(text: &str) -> System {

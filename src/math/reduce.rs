@@ -26,7 +26,7 @@ use num_integer::Integer;
 use num_traits::{One, Signed, ToPrimitive, Zero};
 
 use super::zmat::{self, ZMat};
-use crate::exact::Rational;
+use crate::math::rational::Rational;
 
 /// Cap on greedy moves (each strictly lowers a non-negative integer cost,
 /// so the descent ends anyway; the cap bounds the time on huge entries).

@@ -89,7 +89,7 @@ impl Lattice {
     }
 
     /// The periodic stand-in of an infinite array: a ring of
-    /// [`Lattice::stand_in_wires`] wires. Everything exact that depends only
+    /// [`Model::stand_in_wires`] wires. Everything exact that depends only
     /// on terms (charges, spins, locality, mutual phases at every relative
     /// offset, the OPE table of the flow) is the same on this ring as on the
     /// infinite line, because the ring is wider than twice every vector the
@@ -100,14 +100,8 @@ impl Lattice {
     /// Listed terms have width R + 1 and generated ones at most R + 2 (see
     /// `flow::channels`), so W = 4 (R + 2) + 1 suffices.
     pub fn stand_in(model: &Model) -> Result<Lattice, InputError> {
-        let wires = Lattice::stand_in_wires(model);
+        let wires = model.stand_in_wires();
         Lattice::realise(model, wires, Some(Boundary::Periodic), true)
-    }
-
-    /// Wires of the stand-in ring: 4 (R + 2) + 1 for terms of range R.
-    pub fn stand_in_wires(model: &Model) -> usize {
-        let range = model.terms.iter().map(|t| t.range()).max().unwrap_or(0);
-        4 * (range + 2) + 1
     }
 
     fn realise(
@@ -268,51 +262,6 @@ impl Lattice {
             }
         }
         Some(k)
-    }
-}
-
-/// The momentum mismatch sum_I m_I k_I of an operator with particle content
-/// `m`, given the momentum of every field, reduced by the model's momentum
-/// period G when it has one ([`reduce_momentum`]). A value below
-/// [`crate::dims::MOMENTUM_TOLERANCE`] is the rounding left by momenta
-/// that cancel (k_F written as a decimal, say): it is returned as exactly 0,
-/// the value every command then treats as conserved.
-pub fn mismatch(particles: &[crate::exact::Rational], k: &[f64], period: Option<f64>) -> f64 {
-    let sum: f64 = particles
-        .iter()
-        .zip(k)
-        .map(|(m, p)| crate::exact::to_f64(m) * p)
-        .sum();
-    reduce_momentum(sum, period)
-}
-
-/// A momentum k as the mismatch that matters for the flow. Without a period
-/// that is k itself. With a reciprocal lattice vector G (umklapp: momentum
-/// is conserved only modulo G) it is the representative of k + G Z in
-/// (-G/2, G/2], k - G round(k/G); the tie |k| = G/2 (backscattering 2 k_F
-/// at half filling, with G = 4 k_F) is given the sign +, so that k and -k
-/// have the same representative there, as they should (G/2 and -G/2 differ
-/// by G). Values within [`crate::dims::MOMENTUM_TOLERANCE`] of 0 become
-/// exactly 0, and values within it of -G/2 become +G/2, so the rounding of
-/// the momenta cannot decide either. The remainder is taken with the exact
-/// floating-point remainder (`rem_euclid`), so any finite k and G > 0 give a
-/// finite result, however large k/G.
-pub fn reduce_momentum(k: f64, period: Option<f64>) -> f64 {
-    let tol = crate::dims::MOMENTUM_TOLERANCE;
-    let mut r = k;
-    if let Some(g) = period.filter(|g| g.is_finite() && *g > 0.0 && k.is_finite()) {
-        // In [0, G] (G itself only by the rounding of a tiny negative k + G).
-        r = k.rem_euclid(g);
-        if r > 0.5 * g + tol {
-            r -= g;
-        } else if r > 0.5 * g {
-            r = 0.5 * g;
-        }
-    }
-    if r.abs() < tol {
-        0.0
-    } else {
-        r
     }
 }
 

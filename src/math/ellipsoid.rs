@@ -511,7 +511,7 @@ impl SplitMix {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::exact;
+    use crate::math::rational;
 
     fn gram(rows: &[Vec<i64>]) -> DMatrix<f64> {
         let n = rows.len();
@@ -601,7 +601,7 @@ mod tests {
         // Lattices and Groups", ch. 4; from memory]. det = 1 (unimodular).
         let a = e8();
         assert_eq!(
-            exact::det_and_inverse(&a).unwrap().0,
+            rational::det_and_inverse(&a).unwrap().0,
             num_bigint::BigInt::from(1)
         );
         for g in [a.clone(), scrambled(&a)] {
@@ -641,7 +641,7 @@ mod tests {
         let cols: Vec<Vec<i64>> = (0..n)
             .map(|i| (0..n).map(|j| red.basis[j][i]).collect())
             .collect();
-        let det = exact::det_and_inverse(&cols).unwrap().0;
+        let det = rational::det_and_inverse(&cols).unwrap().0;
         assert_eq!(num_traits::Signed::abs(&det), num_bigint::BigInt::from(1));
         // Gram-Schmidt of the reduced Gram matrix, recomputed here.
         let gr = &red.gram;

@@ -3,7 +3,7 @@
 //!
 //! Which path computes the fixed point ([`Algebra`]): periodic arrays of two
 //! or more wires and infinite arrays use the q-space path
-//! ([`crate::qspace`]), everything else the dense one. For an infinite
+//! ([`crate::core::qspace`]), everything else the dense one. For an infinite
 //! array the report is per wire: `fields` is the cell size, `wires` is null
 //! (`infinite` is true), `signature`, `filling` and `det_k` are those of one
 //! wire; `velocities` and `chiralities` are the modes at q = 0 and
@@ -12,13 +12,17 @@
 //! 0..=range it touches; `quadrature` states the rule and its error
 //! estimate.
 
+pub mod convergence;
+
 use serde::Serialize;
 
+use crate::core::momentum::MOMENTUM_TOLERANCE;
+use crate::core::qspace::Quadrature;
+use crate::core::relevance::{is_relevant, rg_eigenvalue};
+use crate::core::system::System;
 use crate::error::Error;
-use crate::exact::{self, fmt_rational};
+use crate::math::rational::{self, fmt_rational};
 use crate::output::{Report, Table};
-use crate::qspace::Quadrature;
-use crate::system::System;
 
 /// Which code path computes the fixed point of `dims`.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -82,10 +86,6 @@ fn evaluate(sys: &System, point: &[f64], algebra: Algebra) -> Result<Evaluated, 
         quadrature: None,
     })
 }
-
-/// Tolerance below which a momentum mismatch counts as conserved (units of
-/// the inverse cutoff).
-pub const MOMENTUM_TOLERANCE: f64 = 1e-9;
 
 /// One term's row.
 #[derive(Debug, Clone, Serialize)]
@@ -207,7 +207,7 @@ impl DimsReport {
             let ti = &inv.terms[i];
             let rep = fam.rep();
             let dimension = ev.bosonic[i] + extra[i];
-            let s = exact::to_f64(&ti.spin);
+            let s = rational::to_f64(&ti.spin);
             let k = momenta.as_ref().map(|m| m[i]);
             // Infinite arrays: the representative sits at wire 0 of the
             // stand-in ring; list the wires 0..=range it touches.
@@ -221,7 +221,7 @@ impl DimsReport {
                 name: spec.name.clone(),
                 target: spec.target,
                 vector: rep.l[..shown].to_vec(),
-                particles: exact::to_integers(particles),
+                particles: rational::to_integers(particles),
                 particles_exact: particles.iter().map(fmt_rational).collect(),
                 wire: rep.anchor,
                 dimension,
@@ -234,8 +234,8 @@ impl DimsReport {
                 charge_ok: ti.charge_ok,
                 local: ti.local,
                 null: ti.null,
-                relevant: dimension < 2.0,
-                rg_eigenvalue: 2.0 - dimension,
+                relevant: is_relevant(dimension),
+                rg_eigenvalue: rg_eigenvalue(dimension),
                 momentum: k,
                 momentum_conserved: k.map(|k| k.abs() < MOMENTUM_TOLERANCE),
                 self_commuting: ti.self_commuting,

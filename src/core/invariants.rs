@@ -19,9 +19,9 @@
 use num_bigint::BigInt;
 use num_traits::Zero;
 
+use crate::core::lattice::{Family, Lattice, Translate};
 use crate::error::InputError;
-use crate::exact::{self, Rational};
-use crate::lattice::{Family, Lattice, Translate};
+use crate::math::rational::{self, Rational};
 use crate::model::Model;
 
 /// Exact data of one term family (computed on its representative translate;
@@ -135,17 +135,18 @@ impl Invariants {
             crate::model::Structure::Explicit => "fields.K",
             crate::model::Structure::Array { .. } => "array.K",
         };
-        let (cell_det, cell_inverse) = exact::det_and_inverse(&model.cell_k).ok_or_else(|| {
-            InputError::new(
-                &model.file,
-                key,
-                "K is singular (det K = 0); K must be invertible",
-            )
-        })?;
+        let (cell_det, cell_inverse) =
+            rational::det_and_inverse(&model.cell_k).ok_or_else(|| {
+                InputError::new(
+                    &model.file,
+                    key,
+                    "K is singular (det K = 0); K must be invertible",
+                )
+            })?;
         // Totals scale with the wires; an infinite array reports one wire.
         let copies = if lat.infinite { 1 } else { lat.wires };
         let det_k = num_traits::pow(cell_det.clone(), copies);
-        let cell_sig = exact::signature(&model.cell_k, &cell_det).ok_or_else(|| {
+        let cell_sig = rational::signature(&model.cell_k, &cell_det).ok_or_else(|| {
             InputError::new(
                 &model.file,
                 key,
@@ -154,8 +155,8 @@ impl Invariants {
         })?;
         let signature = (cell_sig.0 * copies, cell_sig.1 * copies);
         let t_cell = &model.cell_charge;
-        let cell_filling = exact::dot_int(&exact::solve_with(&cell_inverse, t_cell), t_cell);
-        let filling = &cell_filling * exact::int(copies as i64);
+        let cell_filling = rational::dot_int(&rational::solve_with(&cell_inverse, t_cell), t_cell);
+        let filling = &cell_filling * rational::int(copies as i64);
         let ms: Vec<Vec<Vec<Rational>>> = lat
             .families
             .iter()
@@ -214,7 +215,7 @@ pub fn particles_of(lat: &Lattice, cell_inverse: &[Vec<Rational>], t: &Translate
         if slice.iter().all(|x| *x == 0) {
             continue;
         }
-        for (c, r) in exact::solve_with(cell_inverse, slice)
+        for (c, r) in rational::solve_with(cell_inverse, slice)
             .into_iter()
             .enumerate()
         {
@@ -233,10 +234,10 @@ fn term_invariants(
     let rep = fam.representative;
     let m = &ms[rep];
     let l = &fam.rep().l;
-    let charge = exact::dot_int(m, &lat.charge);
-    let spin = exact::dot_int(m, l) / exact::int(2) + &spec.extra_spin;
+    let charge = rational::dot_int(m, &lat.charge);
+    let spin = rational::dot_int(m, l) / rational::int(2) + &spec.extra_spin;
     TermInvariants {
-        local: exact::is_integral(m),
+        local: rational::is_integral(m),
         null: spin.is_zero(),
         charge_ok: charge == spec.allowed_charge,
         self_commuting: families_commute(ms, fam),
@@ -252,13 +253,13 @@ fn same_anchor_phase(m_a: &[Rational], ta: &Translate, fb: &Family) -> Rational 
         .iter()
         .find(|t| t.anchor == ta.anchor)
         .unwrap_or_else(|| fb.rep());
-    exact::dot_int(m_a, &tb.l)
+    rational::dot_int(m_a, &tb.l)
 }
 
 fn families_commute(ms_a: &[Vec<Rational>], fb: &Family) -> bool {
     ms_a.iter().all(|m| {
         fb.translates
             .iter()
-            .all(|t| exact::dot_int(m, &t.l).is_zero())
+            .all(|t| rational::dot_int(m, &t.l).is_zero())
     })
 }

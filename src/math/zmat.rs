@@ -6,7 +6,7 @@
 use num_bigint::BigInt;
 use num_traits::{One, Signed, Zero};
 
-use crate::exact::Rational;
+use crate::math::rational::Rational;
 
 /// A dense integer matrix, row-major. Keeps its shape even with zero rows or
 /// columns (an empty basis is a matrix with zero columns).

@@ -23,7 +23,7 @@ use num_integer::Integer;
 use num_traits::{One, Signed, Zero};
 
 use super::zmat::ZMat;
-use crate::exact::Rational;
+use crate::math::rational::Rational;
 
 /// P A Q = D with D = diag(d_1, ..., d_rank, 0, ...), d_i > 0, d_i | d_{i+1}.
 #[derive(Debug, Clone)]

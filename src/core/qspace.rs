@@ -49,7 +49,7 @@ use nalgebra::{DMatrix, SymmetricEigen};
 use num_complex::Complex64;
 use serde::Serialize;
 
-use crate::fixed_point::{modes_of, sorted_modes};
+use crate::core::fixed_point::{modes_of, sorted_modes};
 
 /// Default absolute tolerance of the refined quadrature (on every scaling
 /// dimension and every entry of the on-site block D^(0)).
@@ -689,7 +689,7 @@ mod tests {
         // dense path of `fixed_point` on the cell).
         let k = DMatrix::from_row_slice(2, 2, &[1.0, 0.0, 0.0, -1.0]);
         let v = DMatrix::from_row_slice(2, 2, &[1.0, 0.4, 0.4, 1.0]);
-        let dense = crate::fixed_point::FixedPoint::solve(&k, &v).unwrap();
+        let dense = crate::core::fixed_point::FixedPoint::solve(&k, &v).unwrap();
         let fp = QFixedPoint::solve(&k, &[v], 6).unwrap();
         for i in 0..half(6) {
             let diff = fp.d_at(i).map(|z| z.re) - &dense.d;

@@ -21,38 +21,7 @@
 
 use nalgebra::{Cholesky, DMatrix, SymmetricEigen};
 
-/// A parameter point at which V is not positive definite: the theory is
-/// unstable there.
-#[derive(Debug, Clone, PartialEq)]
-pub struct Unphysical {
-    /// The parameter point, as `name=value` pairs.
-    pub point: String,
-    /// Smallest eigenvalue of V there (of V(q) at `q` for the q-space path).
-    pub smallest_eigenvalue: f64,
-    /// For arrays computed in q-space: a wave number q in [0, pi] at which
-    /// V(q) is not positive definite (V(-q) is its complex conjugate).
-    pub q: Option<f64>,
-}
-
-impl std::fmt::Display for Unphysical {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        match self.q {
-            None => write!(f, "V is not positive definite at {}", self.point)?,
-            Some(q) => write!(
-                f,
-                "V(q) is not positive definite at q = {q:.6} (and -q) at {}",
-                self.point
-            )?,
-        }
-        write!(
-            f,
-            ": smallest eigenvalue {:.6e} (an unstable theory; choose parameters where V > 0)",
-            self.smallest_eigenvalue
-        )
-    }
-}
-
-impl std::error::Error for Unphysical {}
+pub use crate::error::Unphysical;
 
 /// Fixed-point data at one parameter point.
 #[derive(Debug, Clone)]

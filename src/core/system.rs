@@ -4,7 +4,7 @@
 //!
 //! Two paths evaluate the fixed point of an array. The dense path
 //! ([`System::fixed_point`]) works on all N = W n_c fields, O(N^3). The
-//! q-space path ([`System::q_fixed_point`], [`crate::qspace`]) serves
+//! q-space path ([`System::q_fixed_point`], [`crate::core::qspace`]) serves
 //! periodic arrays of W >= 2 wires (W points, O(W n_c^3), exactly the same
 //! numbers up to rounding) and the infinite array (a refined quadrature,
 //! [`System::q_converged`]). An infinite array has no dense path: its
@@ -14,12 +14,12 @@ use std::path::Path;
 
 use nalgebra::DMatrix;
 
+use crate::core::fixed_point::{FixedPoint, Unphysical};
+use crate::core::invariants::Invariants;
+use crate::core::lattice::{self, Lattice};
+use crate::core::qspace::{self, NotPositive, QFixedPoint, Quadrature};
 use crate::error::{Error, InputError};
-use crate::fixed_point::{FixedPoint, Unphysical};
-use crate::invariants::Invariants;
-use crate::lattice::{self, Lattice};
 use crate::model::{Boundary, Content, Model};
-use crate::qspace::{self, NotPositive, QFixedPoint, Quadrature};
 
 /// Largest violation of D K D = K^-1 (relative) accepted in a computed
 /// fixed point. A nearly singular V (condition number around 1e12 and up)
@@ -245,7 +245,7 @@ impl System {
 
     /// The real-space D restricted to `wires` consecutive wires (fields
     /// wire-major), from D(q): D_{j,j'} = integral dq/2pi e^{iq(j-j')} D(q)
-    /// (conventions of [`crate::qspace`]). A periodic array of W wires:
+    /// (conventions of [`crate::core::qspace`]). A periodic array of W wires:
     /// exact on its W points (a window of at most W wires). An infinite
     /// array: the rule is doubled from the converged one until every entry
     /// changes by at most [`qspace::TOLERANCE`]; the quadrature reached is
@@ -328,11 +328,11 @@ impl System {
                 q: None,
             })
         })?;
-        let drift = crate::fixed_point::identity_drift(&self.k, &fp.d);
+        let drift = crate::core::fixed_point::identity_drift(&self.k, &fp.d);
         if drift <= ACCURACY {
             return Ok(fp);
         }
-        let cond = crate::fixed_point::condition_number(&v);
+        let cond = crate::core::fixed_point::condition_number(&v);
         self.check_accuracy(point, drift, Some(cond))?;
         Ok(fp)
     }
@@ -369,7 +369,7 @@ impl System {
             self.invariants
                 .terms
                 .iter()
-                .map(|t| crate::lattice::mismatch(&t.particles, &k, g))
+                .map(|t| crate::core::momentum::mismatch(&t.particles, &k, g))
                 .collect(),
         )
     }
@@ -379,7 +379,9 @@ impl QModel {
     fn new(model: &Model, lat: &Lattice, inv: &Invariants) -> QModel {
         let c = lat.cell;
         let k = DMatrix::from_fn(c, c, |i, j| model.cell_k[i][j] as f64);
-        let kinv = DMatrix::from_fn(c, c, |i, j| crate::exact::to_f64(&inv.cell_inverse[i][j]));
+        let kinv = DMatrix::from_fn(c, c, |i, j| {
+            crate::math::rational::to_f64(&inv.cell_inverse[i][j])
+        });
         let terms = model
             .terms
             .iter()

@@ -14,13 +14,13 @@ use std::path::Path;
 
 use serde::Serialize;
 
+use crate::core::qspace::Quadrature;
+use crate::core::system::System;
 use crate::dims::DimsReport;
 use crate::error::Error;
 use crate::model::{Boundary, Model, Structure, Wires};
 use crate::output::{self, Report, Table};
 use crate::plot::{dimension_line_figure, DimensionSeries, LineScanFigure};
-use crate::qspace::Quadrature;
-use crate::system::System;
 
 /// One array size.
 #[derive(Debug, Clone, Serialize)]
@@ -192,20 +192,5 @@ impl Report for ConvergenceReport {
 
     fn notes(&self) -> Vec<String> {
         self.notes.clone()
-    }
-}
-
-/// Parse one entry of `--wires`: a whole number of wires or `infinite`.
-pub fn parse_wires(s: &str) -> Result<Wires, String> {
-    let s = s.trim();
-    if s == "infinite" {
-        return Ok(Wires::Infinite);
-    }
-    match s.parse::<usize>() {
-        Ok(0) => Err("a number of wires must be at least 1".to_string()),
-        Ok(w) => Ok(Wires::Finite(w)),
-        Err(_) => Err(format!(
-            "expected whole numbers of wires or `infinite`, separated by commas, found `{s}`"
-        )),
     }
 }

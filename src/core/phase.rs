@@ -11,7 +11,7 @@
 //!
 //! Equality is decided exactly, by mutual membership: v is in the column
 //! span of A iff, with the Smith form P A Q = diag(d_1..d_r, 0..)
-//! ([`crate::edges::normal`]), (P v)_i is divisible by d_i for i < r and
+//! ([`crate::math::smith`]), (P v)_i is divisible by d_i for i < r and
 //! vanishes for i >= r (A = P^-1 D Q^-1 and Q is unimodular). Big integers
 //! throughout, no overflow.
 //!
@@ -28,10 +28,10 @@ use num_integer::Integer;
 use num_traits::Zero;
 use serde::Serialize;
 
-use crate::edges::normal::{smith, Smith};
-use crate::edges::zmat::{big, ZMat};
-use crate::exact::{self, Rational};
-use crate::lattice::{Family, Lattice};
+use crate::core::lattice::{Family, Lattice};
+use crate::math::rational::{self as exact, Rational};
+use crate::math::smith::{smith, Smith};
+use crate::math::zmat::{big, ZMat};
 
 /// The phase of a pinned set, as every output reports it.
 #[derive(Debug, Clone, PartialEq, Eq, Serialize)]
@@ -287,7 +287,7 @@ fn evaluate(p: &[Vec<i64>], z: i64) -> Vec<Rational> {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::lattice::Translate;
+    use crate::core::lattice::Translate;
 
     fn family(vs: &[&[i64]]) -> Family {
         Family {

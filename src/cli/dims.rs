@@ -1,0 +1,65 @@
+//! `pinflow dims`: the fixed-point report at one point, or with `--wires`
+//! the dimensions against array size.
+
+use std::path::PathBuf;
+
+use clap::Args;
+
+use super::common::{check_outputs, emit, FormatArg, PointArgs};
+use crate::dims::convergence::ConvergenceReport;
+use crate::dims::DimsReport;
+use crate::error::Error;
+use crate::model::{Model, Wires};
+use crate::output;
+
+/// `pinflow dims`.
+#[derive(Debug, Args)]
+pub struct DimsArgs {
+    #[command(flatten)]
+    pub point: PointArgs,
+    /// Output format.
+    #[arg(long, value_enum, default_value_t = FormatArg::Text)]
+    pub format: FormatArg,
+    /// Write to this file instead of standard output (`-` is standard output).
+    #[arg(long, short = 'o', value_name = "FILE")]
+    pub output: Option<PathBuf>,
+    /// Arrays: every term's dimension for these array sizes instead, e.g.
+    /// `4,8,16,32,infinite` (the model's boundary is kept).
+    #[arg(long, value_name = "LIST", value_delimiter = ',', value_parser = parse_wires)]
+    pub wires: Vec<Wires>,
+    /// With --wires: also write convergence.png/svg, .csv and .json into this directory.
+    #[arg(long, value_name = "DIR", requires = "wires")]
+    pub out: Option<PathBuf>,
+}
+
+/// Parse one entry of `--wires`: a whole number of wires or `infinite`.
+fn parse_wires(s: &str) -> Result<Wires, String> {
+    let s = s.trim();
+    if s == "infinite" {
+        return Ok(Wires::Infinite);
+    }
+    match s.parse::<usize>() {
+        Ok(0) => Err("a number of wires must be at least 1".to_string()),
+        Ok(w) => Ok(Wires::Finite(w)),
+        Err(_) => Err(format!(
+            "expected whole numbers of wires or `infinite`, separated by commas, found `{s}`"
+        )),
+    }
+}
+
+pub(super) fn run(args: DimsArgs) -> Result<(), Error> {
+    check_outputs(args.output.as_deref(), args.out.as_deref())?;
+    let format = args.format.into();
+    if !args.wires.is_empty() {
+        let model = Model::load(&args.point.model)?;
+        let point = model.point_with(&args.point.set, "--set")?;
+        let report = ConvergenceReport::build(&model, &point, &args.wires, "--wires")?;
+        if let Some(dir) = &args.out {
+            report.write_dir(dir)?;
+        }
+        return emit(args.output.as_deref(), &output::render(&report, format)?);
+    }
+    let (sys, point) = super::common::load_point(&args.point)?;
+    let report = DimsReport::build(&sys, &point)?;
+    emit(args.output.as_deref(), &output::render(&report, format)?)
+}

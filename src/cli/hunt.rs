@@ -1,0 +1,137 @@
+//! `pinflow hunt`: the exhaustive operator search at one point.
+
+use std::path::PathBuf;
+
+use clap::{Args, ValueEnum};
+
+use super::common::{check_outputs, emit, load_point, FormatArg, PointArgs};
+use crate::error::Error;
+use crate::search::{
+    emit_terms, hunt, render, ChargeFilter, HuntOptions, MomentumFilter, SpinFilter, DEFAULT_LIMIT,
+    MAX_LISTED,
+};
+
+/// `pinflow hunt`.
+#[derive(Debug, Args)]
+pub struct HuntArgs {
+    #[command(flatten)]
+    pub point: PointArgs,
+    /// Largest scaling dimension listed (2: the relevant operators).
+    #[arg(long, value_name = "DELTA", default_value = "2", allow_hyphen_values = true,
+          value_parser = parse_max_dim)]
+    pub max_dim: f64,
+    /// Charge t.m of the operators: an integer, or `any`.
+    #[arg(long, value_name = "Q", default_value = "0", allow_hyphen_values = true,
+          value_parser = parse_charge)]
+    pub charge: ChargeFilter,
+    /// Conformal spin: 0 (operators that can pin on their own) or any.
+    #[arg(long, value_enum, default_value = "0")]
+    pub spin: SpinArg,
+    /// Arrays: the most consecutive wires an operator may touch [default:
+    /// the widest model term, at least 2].
+    #[arg(long, value_name = "R", allow_hyphen_values = true,
+          value_parser = parse_range)]
+    pub range: Option<usize>,
+    /// Momentum conservation, when the model gives momenta [default: conserved].
+    #[arg(long, value_enum)]
+    pub momentum: Option<MomentumArg>,
+    /// Search even when the estimated number of lattice points is above the limit.
+    #[arg(long)]
+    pub force: bool,
+    /// Print the operators that are not yet model terms as [[term]] blocks
+    /// for the model file, instead of the report.
+    #[arg(long, conflicts_with = "format")]
+    pub emit_terms: bool,
+    /// Output format.
+    #[arg(long, value_enum, default_value_t = FormatArg::Text)]
+    pub format: FormatArg,
+    /// Write to this file instead of standard output (`-` is standard output).
+    #[arg(long, short = 'o', value_name = "FILE")]
+    pub output: Option<PathBuf>,
+}
+
+/// Which conformal spins to keep.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum SpinArg {
+    /// Spin zero only: the operators that can pin a mode on their own.
+    #[value(name = "0")]
+    Zero,
+    /// Every spin.
+    Any,
+}
+
+/// Momentum conservation (models that give momenta).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum MomentumArg {
+    /// Only operators whose momentum mismatch vanishes (within the tolerance).
+    Conserved,
+    /// Every momentum.
+    Any,
+}
+
+/// Parse `--max-dim`: a finite number > 0.
+fn parse_max_dim(s: &str) -> Result<f64, String> {
+    let x: f64 = s
+        .trim()
+        .parse()
+        .map_err(|_| format!("expected a number > 0 (a scaling dimension), found `{s}`"))?;
+    if x.is_finite() && x > 0.0 {
+        Ok(x)
+    } else {
+        Err(format!(
+            "expected a finite number > 0 (a scaling dimension), found `{s}`"
+        ))
+    }
+}
+
+/// Parse `--range`: an integer >= 1.
+fn parse_range(s: &str) -> Result<usize, String> {
+    match s.trim().parse::<i64>() {
+        Ok(r) if r >= 1 => Ok(r as usize),
+        _ => Err(format!(
+            "expected a number of consecutive wires (an integer >= 1), found `{s}`"
+        )),
+    }
+}
+
+/// Parse `--charge`: an integer or `any`.
+fn parse_charge(s: &str) -> Result<ChargeFilter, String> {
+    let t = s.trim();
+    if t == "any" {
+        return Ok(ChargeFilter::Any);
+    }
+    t.parse::<i64>()
+        .map(ChargeFilter::Exactly)
+        .map_err(|_| format!("expected an integer charge t.m or `any`, found `{s}`"))
+}
+
+fn options(args: &HuntArgs) -> HuntOptions {
+    HuntOptions {
+        max_dim: args.max_dim,
+        charge: args.charge,
+        spin: match args.spin {
+            SpinArg::Zero => SpinFilter::Zero,
+            SpinArg::Any => SpinFilter::Any,
+        },
+        range: args.range,
+        momentum: args.momentum.map(|m| match m {
+            MomentumArg::Conserved => MomentumFilter::Conserved,
+            MomentumArg::Any => MomentumFilter::Any,
+        }),
+        force: args.force,
+        limit: DEFAULT_LIMIT,
+        max_listed: MAX_LISTED,
+    }
+}
+
+pub(super) fn run(args: HuntArgs) -> Result<(), Error> {
+    check_outputs(args.output.as_deref(), None)?;
+    let (sys, point) = load_point(&args.point)?;
+    let report = hunt(&sys, &point, &options(&args))?;
+    let text = if args.emit_terms {
+        emit_terms(&report, &sys.model)
+    } else {
+        render(&report, args.format.into())?
+    };
+    emit(args.output.as_deref(), &text)
+}

@@ -1,0 +1,89 @@
+//! Command-line interface: the only module that knows clap, standard
+//! output, progress bars and exit codes. Each command has one file that
+//! turns its arguments into the library's plain option structs, calls an
+//! engine and prints or writes the report. `main.rs` only calls [`run`].
+//!
+//! Exit codes: 0 success, 1 a run failed (numerics, I/O), 2 bad input
+//! (model file, flags, parameter point).
+
+mod common;
+mod dims;
+mod edges;
+mod flow;
+mod hunt;
+mod scan;
+
+use clap::{Parser, Subcommand};
+
+use crate::error::{Error, InputError};
+
+pub use common::{parse_assignment, FlowFlags, FormatArg, PointArgs};
+pub use dims::DimsArgs;
+pub use edges::EdgesArgs;
+pub use flow::FlowArgs;
+pub use hunt::HuntArgs;
+pub use scan::{MergeArgs, ScanArgs};
+
+/// Fixed-point data, RG flows and phase diagrams of coupled-wire and
+/// Luttinger-liquid models.
+#[derive(Debug, Parser)]
+#[command(name = "pinflow", version, about, long_about = None)]
+pub struct Cli {
+    /// What to do.
+    #[command(subcommand)]
+    pub command: Command,
+}
+
+/// The subcommands.
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// Exact and fixed-point data of every term of a model at one parameter point.
+    Dims(DimsArgs),
+    /// Second-order RG flow of every term at one parameter point: which term
+    /// reaches strong coupling first, and at what scale.
+    Flow(FlowArgs),
+    /// Flow every point of a line or plane of parameters and draw the phase
+    /// diagram: which term wins where, and how fast.
+    Scan(ScanArgs),
+    /// Join the shard files of a scan (`scan --shard k/n`) into its full output.
+    Merge(MergeArgs),
+    /// List every local operator with scaling dimension up to a bound (an
+    /// exhaustive lattice search), or certify that there is none.
+    Hunt(HuntArgs),
+    /// What a pinned set of terms leaves: gapped pairs, whether the bulk is
+    /// fully gapped, and the K matrix, charges and filling at each end.
+    Edges(EdgesArgs),
+}
+
+/// Run a parsed command.
+pub fn run(cli: Cli) -> Result<(), Error> {
+    let model = match &cli.command {
+        Command::Dims(a) => Some(a.point.model.clone()),
+        Command::Flow(a) => Some(a.point.model.clone()),
+        Command::Scan(a) => Some(a.point.model.clone()),
+        Command::Hunt(a) => Some(a.point.model.clone()),
+        Command::Edges(a) => Some(a.point.model.clone()),
+        Command::Merge(_) => None,
+    };
+    let result = match cli.command {
+        Command::Dims(args) => dims::run(args),
+        Command::Flow(args) => flow::run(args),
+        Command::Scan(args) => scan::run_scan(args),
+        Command::Merge(args) => scan::run_merge(args),
+        Command::Hunt(args) => hunt::run(args),
+        Command::Edges(args) => edges::run(args),
+    };
+    // A point where V is not positive definite names the model file, like
+    // every other input error.
+    result.map_err(|e| match (e, model) {
+        (Error::Unphysical(u), Some(m)) => {
+            InputError::new(m.display().to_string(), "", u.to_string()).into()
+        }
+        (e, _) => e,
+    })
+}
+
+/// Turn an error into a user-facing message and exit code.
+pub fn report_error(e: &Error) -> (String, i32) {
+    (format!("error: {e}"), e.exit_code())
+}
