@@ -401,6 +401,9 @@ fn cases() -> Vec<Case> {
         // ------------------------------------------------ edges (cont.)
         case("E93", ring("wires = 8\n", "wires = \"infinite\"\n"), "edges ring.toml --pin tunnel --window 2", 2,
             "error: command line: --window: only an open array has ends to look at; this model is an infinite array (it has no ends)"),
+        // ------------------------------------------------ flow (cont.)
+        case("E94", base(), "flow wire.toml --stages 0", 2,
+            "error: command line: --stages: expected a whole number of stages from 1 (stop at the first winner) to 1000000, found 0"),
     ];
     c.sort_by_key(|c| c.id);
     c
@@ -561,7 +564,6 @@ entries! {
     e26_term_length => "E26",
     e27_term_too_wide => "E27",
     e28_extra_spin => "E28",
-    e29_two_targets => "E29",
     e30_negative_extra_dimension => "E30",
     e31_parameter_name => "E31",
     e32_reserved_parameter_name => "E32",
@@ -626,4 +628,5 @@ entries! {
     e91_momentum_period_without_momenta => "E91",
     e92_momentum_period_not_positive => "E92",
     e93_window_on_an_infinite_array => "E93",
+    e94_zero_stages => "E94",
 }

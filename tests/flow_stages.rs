@@ -212,7 +212,7 @@ fn dense_and_fourier_layouts_stage_alike() {
     // flows must agree to the integrator's accuracy.
     use pinflow::flow::{Flow, FlowOptions};
     use pinflow::model::Model;
-    use pinflow::system::System;
+    use pinflow::core::system::System;
     let text = std::fs::read_to_string(demo("two_targets.toml")).unwrap();
     let sys = System::new(Model::parse(&text, "two_targets.toml").unwrap()).unwrap();
     for xr in [2.0, 5.0] {
@@ -274,7 +274,7 @@ fn luther_emery_spin_gap_reduces_cdw_and_pairing_dimensions() {
     // sector), so the values hold to rounding right after the pin.
     use pinflow::flow::{Flow, FlowOptions};
     use pinflow::model::Model;
-    use pinflow::system::System;
+    use pinflow::core::system::System;
     for (wr, ws) in [(0.3, 0.5), (-0.4, 0.3), (0.6, 0.6)] {
         let sys = System::new(Model::parse(&spinful_wire(wr, ws), "w.toml").unwrap()).unwrap();
         let point = sys.model.point_with(&[], "test").unwrap();
