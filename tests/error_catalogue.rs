@@ -219,7 +219,7 @@ fn cases() -> Vec<Case> {
         case("E43", base(), "flow wire.toml --closure all", 2,
             "error: invalid value 'all' for '--closure <CLOSURE>'"),
         case("E44", vec![("wire.toml", format!("{WIRE}\n[flow]\nsteps = 100\n"))], "flow wire.toml", 2,
-            "error: wire.toml: flow.steps: unknown key (known: ell_max, y_strong, floor, closure, closure_bound, rtol, atol, max_steps, q_points)"),
+            "error: wire.toml: flow.steps: unknown key (known: ell_max, y_strong, floor, closure, closure_bound, rtol, atol, max_steps, q_points, stages)"),
         case("E45", vec![("wire.toml", format!("{WIRE}\n[flow]\nell_max = \"long\"\n"))], "flow wire.toml", 2,
             "error: wire.toml: flow.ell_max: expected a number, found \"long\""),
         // ------------------------------------------------ scan axes and options
@@ -326,7 +326,7 @@ fn cases() -> Vec<Case> {
             // then refused, leaving the damaged points.csv behind.
             setup: {
                 let mut s = shards(3, "lambda=0:0.5:7");
-                s.push(Step::Line("run/shard-2-of-3.csv", 4, "0.5,strong,backscatter,1.5,1,1"));
+                s.push(Step::Line("run/shard-2-of-3.csv", 4, "0.5,strong,backscatter,1.5,1,1,,false,,,"));
                 s
             },
             args: args("merge run/shard-1-of-3.csv run/shard-2-of-3.csv run/shard-3-of-3.csv"),

@@ -210,9 +210,9 @@ fn dense_and_fourier_layouts_stage_alike() {
     // reduction with every translate (pseudo-inverse) are the same D_P on
     // a periodic array (section 7: "for arrays it holds per q"); the staged
     // flows must agree to the integrator's accuracy.
+    use pinflow::core::system::System;
     use pinflow::flow::{Flow, FlowOptions};
     use pinflow::model::Model;
-    use pinflow::core::system::System;
     let text = std::fs::read_to_string(demo("two_targets.toml")).unwrap();
     let sys = System::new(Model::parse(&text, "two_targets.toml").unwrap()).unwrap();
     for xr in [2.0, 5.0] {
@@ -272,9 +272,9 @@ fn luther_emery_spin_gap_reduces_cdw_and_pairing_dimensions() {
     // after the pin in the reference-velocity form D_P; the charge block of
     // D does not flow here (only spin_bs feeds back, and it lies in the spin
     // sector), so the values hold to rounding right after the pin.
+    use pinflow::core::system::System;
     use pinflow::flow::{Flow, FlowOptions};
     use pinflow::model::Model;
-    use pinflow::core::system::System;
     for (wr, ws) in [(0.3, 0.5), (-0.4, 0.3), (0.6, 0.6)] {
         let sys = System::new(Model::parse(&spinful_wire(wr, ws), "w.toml").unwrap()).unwrap();
         let point = sys.model.point_with(&[], "test").unwrap();
