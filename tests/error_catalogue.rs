@@ -106,6 +106,22 @@ fn ring(old: &str, new: &str) -> Vec<(&'static str, String)> {
     vec![("ring.toml", with(RING, old, new))]
 }
 
+/// A ring model with momenta, a flux per wire and the pair term in place
+/// of cdw.
+fn flux_pair(ring: &str) -> String {
+    let r = with(
+        ring,
+        "charge = [1, 1]",
+        "charge = [1, 1]\nmomentum = [\"0.05\", \"-0.05\"]\nmomentum_per_wire = [\"0.04\", \"0.04\"]",
+    );
+    let r = with(&r, "name = \"cdw\"", "name = \"pair\"");
+    with(
+        &r,
+        "particles = { 0 = [1, -1], 1 = [-1, 1] }",
+        "particles = [1, 1]\nallowed_charge = 2",
+    )
+}
+
 fn base() -> Vec<(&'static str, String)> {
     vec![
         ("wire.toml", WIRE.to_string()),
@@ -219,7 +235,7 @@ fn cases() -> Vec<Case> {
         case("E43", base(), "flow wire.toml --closure all", 2,
             "error: invalid value 'all' for '--closure <CLOSURE>'"),
         case("E44", vec![("wire.toml", format!("{WIRE}\n[flow]\nsteps = 100\n"))], "flow wire.toml", 2,
-            "error: wire.toml: flow.steps: unknown key (known: ell_max, y_strong, floor, closure, closure_bound, rtol, atol, max_steps, q_points, stages)"),
+            "error: wire.toml: flow.steps: unknown key (known: ell_max, y_strong, floor, closure, closure_bound, closure_range, rtol, atol, max_steps, q_points, stages)"),
         case("E45", vec![("wire.toml", format!("{WIRE}\n[flow]\nell_max = \"long\"\n"))], "flow wire.toml", 2,
             "error: wire.toml: flow.ell_max: expected a number, found \"long\""),
         // ------------------------------------------------ scan axes and options
@@ -401,8 +417,17 @@ fn cases() -> Vec<Case> {
         // ------------------------------------------------ edges (cont.)
         case("E93", ring("wires = 8\n", "wires = \"infinite\"\n"), "edges ring.toml --pin tunnel --window 2", 2,
             "error: command line: --window: only an open array has ends to look at; this model is an infinite array (it has no ends)"),
-        // ------------------------------------------------ flow (cont.)
-        case("E94", base(), "flow wire.toml --stages 0", 2,
+        // ------------------------------------------------ closure range, momentum per translate
+        case("E94", base(), "flow ring.toml --closure-range 0", 2,
+            "error: command line: --closure-range: expected a whole number of wires, at least 1 (a generated term spans at least one wire), found 0"),
+        case("E95", wire("charge = [1, 1]", "charge = [1, 1]\nwires = [1, 1]"), "dims wire.toml", 2,
+            "error: wire.toml: fields.wires: wires are numbered 0 to 1 without gaps, but no field is on wire 0"),
+        case("E96", vec![("ring.toml", flux_pair(RING))], "flow ring.toml", 2,
+            "error: ring.toml: term \"pair\": its momentum changes by 0.08 from one translate to the next (momentum_per_wire acting on a term with net particle number (1, 1)), and on a periodic ring of 8 wires 8 times that, 0.64, is not a multiple of the momentum period (the model gives none): the translates' momenta do not close around the ring; use an open array, or momenta for which 8 dk is a multiple of momentum_period"),
+        case("E97", vec![("ring.toml", flux_pair(&with(RING, "wires = 8", "wires = \"infinite\"")))], "flow ring.toml", 2,
+            "error: ring.toml: term \"pair\": its momentum changes by 0.08 from one translate to the next (momentum_per_wire acting on a term with net particle number (1, 1)), so its translates have different cut-offs ell_k; an infinite array flows translation-invariant families only: use a finite array (its translates flow one by one) or a momentum_per_wire that leaves the term's momentum unchanged"),
+        // ------------------------------------------------ successive pinning
+        case("E98", base(), "flow wire.toml --stages 0", 2,
             "error: command line: --stages: expected a whole number of stages from 1 (stop at the first winner) to 1000000, found 0"),
     ];
     c.sort_by_key(|c| c.id);
@@ -628,5 +653,9 @@ entries! {
     e91_momentum_period_without_momenta => "E91",
     e92_momentum_period_not_positive => "E92",
     e93_window_on_an_infinite_array => "E93",
-    e94_zero_stages => "E94",
+    e94_closure_range_zero => "E94",
+    e95_field_wires_with_a_gap => "E95",
+    e96_flux_ring_does_not_close => "E96",
+    e97_infinite_flux_array => "E97",
+    e98_zero_stages => "E98",
 }

@@ -92,6 +92,10 @@ pub struct FlowFlags {
     /// Largest bare dimension of a generated term [default 4].
     #[arg(long, allow_hyphen_values = true, value_name = "DELTA")]
     pub closure_bound: Option<f64>,
+    /// Widest generated term in wires (arrays, and explicit models with
+    /// fields.wires) [default: the widest listed term plus one wire].
+    #[arg(long, allow_hyphen_values = true, value_name = "R")]
+    pub closure_range: Option<i64>,
     /// Relative tolerance of the integrator [default 1e-8].
     #[arg(long, allow_hyphen_values = true, value_name = "TOL")]
     pub rtol: Option<f64>,
@@ -123,6 +127,7 @@ impl FlowFlags {
             floor: self.floor,
             closure: self.closure.map(Closure::from),
             closure_bound: self.closure_bound,
+            closure_range: self.closure_range,
             rtol: self.rtol,
             atol: self.atol,
             max_steps: self.max_steps,

@@ -59,6 +59,21 @@ pub struct QModel {
     pub infinite: bool,
 }
 
+/// Which algebra evaluates the fixed point of a system: decided once, here,
+/// for every engine.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum EvalPath {
+    /// All N fields as dense matrices (explicit models, open arrays, rings
+    /// of one wire).
+    Dense,
+    /// A periodic array of W >= 2 wires, per q on its W points (the same
+    /// numbers as the dense path up to rounding).
+    Ring,
+    /// The infinite array: per q on a refined quadrature; it has no dense
+    /// path.
+    Infinite,
+}
+
 impl System {
     /// Load a model file and prepare it.
     pub fn load(path: &Path) -> Result<System, InputError> {
@@ -88,6 +103,17 @@ impl System {
     /// True for an infinite array.
     pub fn is_infinite(&self) -> bool {
         self.lattice.infinite
+    }
+
+    /// The algebra that evaluates this system by default.
+    pub fn eval_path(&self) -> EvalPath {
+        if self.is_infinite() {
+            EvalPath::Infinite
+        } else if self.q.is_some() {
+            EvalPath::Ring
+        } else {
+            EvalPath::Dense
+        }
     }
 
     /// The V blocks V^(0), V^(1), ... at a point (checked: finite, block 0

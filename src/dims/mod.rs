@@ -19,7 +19,7 @@ use serde::Serialize;
 use crate::core::momentum::MOMENTUM_TOLERANCE;
 use crate::core::qspace::Quadrature;
 use crate::core::relevance::{is_relevant, rg_eigenvalue};
-use crate::core::system::System;
+use crate::core::system::{EvalPath, System};
 use crate::error::Error;
 use crate::math::rational::{self, fmt_rational};
 use crate::output::{Report, Table};
@@ -47,7 +47,7 @@ struct Evaluated {
 
 fn evaluate(sys: &System, point: &[f64], algebra: Algebra) -> Result<Evaluated, Error> {
     let q = match algebra {
-        Algebra::Auto => sys.q.is_some(),
+        Algebra::Auto => sys.eval_path() != EvalPath::Dense,
         Algebra::Dense => false,
         Algebra::QSpace => true,
     };
@@ -128,8 +128,16 @@ pub struct TermRow {
     pub rg_eigenvalue: f64,
     /// Momentum mismatch k (units of 1/alpha), when the model gives momenta.
     pub momentum: Option<f64>,
-    /// |k| below the tolerance.
+    /// |k| below the tolerance, for every translate: false when the
+    /// momentum depends on the translate.
     pub momentum_conserved: Option<bool>,
+    /// Arrays with `momentum_per_wire`: the momentum added from one
+    /// translate to the next, dk = sum_c N_c b_c (N_c the term's net
+    /// particle number of component c), reduced by the momentum period; 0
+    /// for a neutral term, null without `momentum_per_wire`. `momentum` is
+    /// that of the translate on `wire`; the one on wire j has
+    /// momentum + (j - wire) dk.
+    pub momentum_per_translate: Option<f64>,
     /// Commutes with all of its own translates (arrays).
     pub self_commuting: bool,
     /// Bare coupling y at this point.
@@ -209,6 +217,7 @@ impl DimsReport {
             let dimension = ev.bosonic[i] + extra[i];
             let s = rational::to_f64(&ti.spin);
             let k = momenta.as_ref().map(|m| m[i]);
+            let dk = per_translate_momentum(sys, i, point);
             // Infinite arrays: the representative sits at wire 0 of the
             // stand-in ring; list the wires 0..=range it touches.
             let shown = if infinite {
@@ -237,7 +246,9 @@ impl DimsReport {
                 relevant: is_relevant(dimension),
                 rg_eigenvalue: rg_eigenvalue(dimension),
                 momentum: k,
-                momentum_conserved: k.map(|k| k.abs() < MOMENTUM_TOLERANCE),
+                momentum_conserved: k
+                    .map(|k| k.abs() < MOMENTUM_TOLERANCE && dk.is_none_or(|d| d == 0.0)),
+                momentum_per_translate: dk,
                 self_commuting: ti.self_commuting,
                 coupling: spec.coupling.eval(point),
             });
@@ -297,6 +308,21 @@ impl DimsReport {
     }
 }
 
+/// dk of term i (see [`TermRow::momentum_per_translate`]); None for
+/// explicit models and without `momentum_per_wire`.
+fn per_translate_momentum(sys: &System, i: usize, point: &[f64]) -> Option<f64> {
+    sys.lattice.boundary?;
+    let net = crate::core::momentum::per_translate::net_particles(
+        &sys.lattice,
+        &sys.invariants.terms[i].particles,
+    );
+    let dk = crate::core::momentum::per_translate::shift(&sys.model, &net, point)?;
+    Some(crate::core::momentum::reduce_momentum(
+        dk,
+        sys.model.momentum_period_at(point),
+    ))
+}
+
 /// The note that states the momentum period in use (`dims`, `hunt`).
 pub fn period_note(g: f64) -> String {
     format!(
@@ -351,7 +377,15 @@ fn notes_for(terms: &[TermRow]) -> Vec<String> {
                 t.name
             ));
         }
-        if t.momentum_conserved == Some(false) {
+        if let Some(dk) = t.momentum_per_translate.filter(|dk| *dk != 0.0) {
+            notes.push(format!(
+                "term \"{}\" carries momentum that depends on the translate (momentum_per_wire acting on its net particle number): k = {:.6} on wire {} and {:+.6} more per wire (JSON momentum_per_translate); each translate stops flowing at its own ell_k, and `flow` flows the translates one by one",
+                t.name,
+                t.momentum.unwrap_or(0.0),
+                t.wire,
+                dk
+            ));
+        } else if t.momentum_conserved == Some(false) {
             notes.push(format!(
                 "term \"{}\" has momentum mismatch {:.6}: it oscillates and stops flowing at ell_k = ln(1/|k|)",
                 t.name,
@@ -452,6 +486,7 @@ impl Report for DimsReport {
                 "momentum_conserved",
                 "self_commuting",
                 "coupling",
+                "momentum_per_translate",
             ],
         );
         for r in &self.terms {
@@ -476,6 +511,9 @@ impl Report for DimsReport {
                     .unwrap_or_default(),
                 r.self_commuting.to_string(),
                 format!("{}", r.coupling),
+                r.momentum_per_translate
+                    .map(|k| format!("{k}"))
+                    .unwrap_or_default(),
             ]);
         }
         t

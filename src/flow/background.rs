@@ -173,7 +173,8 @@ impl Background {
                 self.dimension(s, ch)
             }
             Background::Fourier { wires, cell } => {
-                let c = -weight / 8.0;
+                // The sum over all W translates, scaled to the distinct ones.
+                let c = -weight * ch.share / 8.0;
                 let u = &mut scratch[..2 * cell];
                 let mut acc = 0.0;
                 for k in 0..half(wires) {

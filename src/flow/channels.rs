@@ -13,6 +13,34 @@
 //! +rep(a) (translation invariance), each (a, translate t of b, sign s) with
 //! v = rep(a) + s t gives one ordered pair: it adds -(1/2) w_a w_b^(s) to
 //! the channel c containing v, or the conjugate when -v is in c.
+//!
+//! Distinct operators. A family stores each distinct operator once: on a
+//! ring, a vector that repeats under a shift (bs + bs@3 on 6 wires, equal to
+//! its translate by 3 wires; bs - bs@3, equal to minus it) has fewer
+//! distinct translates n than wires W, and its coupling is that of one
+//! operator (a listed term "stands for all its translates with one
+//! coupling", so its W copies add up: see [`Channel::bare_amplitude`]). The
+//! OPE sum with the first vector fixed at rep(a) then counts the pairs of
+//! n_a distinct first vectors landing on n_c distinct targets, so each
+//! entry carries the weight n_a / n_c (1 when nothing repeats). The
+//! Fourier layout's feedback sums over all W translates and is scaled by
+//! n / W ([`Channel::share`]). An operator equal to minus its own
+//! translate has a real amplitude (translation invariance), kept real.
+//!
+//! Closure range. The pairs closure keeps a generated term when its bare
+//! dimension is below the closure bound and its support spans at most R
+//! consecutive wires (cyclically on a ring): R = `closure_range`, by default
+//! the widest listed term plus one wire. It applies to arrays and to
+//! explicit models that group their fields by wire (`fields.wires`), the
+//! same way, so an array and its written-out form flow the same channels.
+//! An explicit model without wires has no range (reported in a note).
+//!
+//! Momentum per translate. In a flux array (`momentum_per_wire`) a charged
+//! term's translates carry different momenta (see
+//! [`crate::core::momentum::per_translate`]). Such a model's finite arrays flow
+//! every translate as its own channel (as the written-out explicit model
+//! does), each with its own momentum and cut-off; generated terms get the
+//! sum of their parents' momenta, taken on the line.
 
 use std::collections::HashMap;
 
@@ -20,7 +48,8 @@ use num_complex::Complex64;
 use num_traits::Zero;
 
 use crate::core::invariants::{particles_of, Pairing};
-use crate::core::lattice::{Family, Lattice};
+use crate::core::lattice::{Family, Lattice, Translate};
+use crate::core::momentum::per_translate;
 use crate::core::qspace;
 use crate::core::system::System;
 use crate::math::rational::{self, Rational};
@@ -72,12 +101,45 @@ pub struct Channel {
     pub lq: Vec<Complex64>,
     /// Periodic arrays: K_c^-1 L(q_k).
     pub gq: Vec<Complex64>,
+    /// Fourier layout: distinct translates / W, the share of the W
+    /// translates its feedback sums over that are distinct operators.
+    pub share: f64,
+    /// Copies of the representative (+l) and of its negative (-l) among the
+    /// W placements of the term (1 and 0 unless it repeats on a ring).
+    pub copies: (usize, usize),
 }
 
 impl Channel {
     /// Spin zero: the channel can pin and feeds back on D.
     pub fn null(&self) -> bool {
         self.spin.is_zero()
+    }
+
+    /// The operator is minus one of its own translates: its amplitude is real.
+    pub fn real_only(&self) -> bool {
+        self.copies.1 > 0
+    }
+
+    /// The amplitude (Re, Im) of one distinct operator of a listed term
+    /// given as y e^{i chi} for each of its placements: its copies add,
+    /// w = p (y/2) e^{i chi} + q (y/2) e^{-i chi} with (p, q) = `copies`.
+    pub fn bare_amplitude(&self, y: f64, chi: f64) -> (f64, f64) {
+        let (p, q) = (self.copies.0 as f64, self.copies.1 as f64);
+        (0.5 * y * chi.cos() * (p + q), 0.5 * y * chi.sin() * (p - q))
+    }
+
+    /// The momentum mismatch of the representative on the line (see
+    /// [`crate::core::momentum::per_translate::line_mismatch`]), given the momenta
+    /// of every field.
+    pub fn mismatch(&self, lat: &Lattice, k: &[f64], period: Option<f64>) -> f64 {
+        let rep = self.family.rep();
+        crate::core::momentum::per_translate::line_mismatch(
+            lat,
+            &self.particles,
+            rep.anchor,
+            k,
+            period,
+        )
     }
 
     /// The representative as (wire offset from its anchor, cell lattice
@@ -122,6 +184,9 @@ pub struct OpeEntry {
     pub b: usize,
     /// Use conj(w_b) (the second vector enters with a minus sign).
     pub b_conj: bool,
+    /// n_a / n_c: distinct translates of the first factor over those of
+    /// the target (periodic arrays; 1 otherwise).
+    pub weight: f64,
 }
 
 /// All channels that can flow for a model and their OPE table.
@@ -133,53 +198,101 @@ pub struct Plan {
     pub ope: Vec<OpeEntry>,
     /// Number of listed channels.
     pub listed: usize,
+    /// Listed terms whose momentum may depend on the translate (flux
+    /// arrays, charged terms); see the module docs.
+    pub per_translate: Vec<usize>,
+    /// Every listed family is split into single translates (a finite array
+    /// with a term in `per_translate`): D must be carried dense.
+    pub split: bool,
+    /// The closure range applied, in wires (None: no range applies).
+    pub range: Option<usize>,
+    /// What the closure range did, for the report (None without closure).
+    pub range_note: Option<String>,
 }
 
 impl Plan {
     /// Build the plan. With `generate`, commuting pairs of listed terms add
     /// candidate channels (one generation; pairs whose parents carry an
-    /// extra sector are skipped, since its fusion is not known).
-    pub fn build(sys: &System, generate: bool) -> Plan {
-        let lat = &sys.lattice;
+    /// extra sector are skipped, since its fusion is not known) no wider
+    /// than `range` wires (None: the default, see the module docs).
+    pub fn build(sys: &System, generate: bool, range: Option<usize>) -> Plan {
+        let per_translate = translate_dependent(sys);
+        let split = !per_translate.is_empty() && !sys.is_infinite() && sys.lattice.wires > 1;
         let mut plan = Plan {
             channels: Vec::new(),
             ope: Vec::new(),
-            listed: sys.model.terms.len(),
+            listed: 0,
+            per_translate,
+            split,
+            range: None,
+            range_note: None,
         };
-        for (i, (spec, fam)) in sys.model.terms.iter().zip(&lat.families).enumerate() {
-            let ti = &sys.invariants.terms[i];
-            plan.channels.push(make_channel(
-                sys,
-                spec.name.clone(),
-                Origin::Listed(i),
-                fam.clone(),
-                ti.spin.clone(),
-            ));
-        }
+        plan.add_listed(sys);
         let mut index = VectorIndex::default();
         for (c, ch) in plan.channels.iter().enumerate() {
             index.add(c, &ch.family);
         }
         if generate {
-            plan.generate_candidates(sys, &mut index);
+            let wiring = Wiring::of(sys);
+            let applied = wiring
+                .as_ref()
+                .map(|w| range.unwrap_or_else(|| default_range(w, &plan.channels[..plan.listed])));
+            plan.range = applied;
+            plan.range_note = Some(range_note(applied, range.is_some()));
+            plan.generate_candidates(sys, &mut index, wiring.as_ref().zip(applied));
         }
-        plan.ope = ope_table(&plan.channels, &index, &sys.invariants.pairing);
+        let ring = sys.lattice.boundary == Some(Boundary::Periodic) && !split;
+        plan.ope = ope_table(&plan.channels, &index, &sys.invariants.pairing, ring);
         plan
     }
 
-    fn generate_candidates(&mut self, sys: &System, index: &mut VectorIndex) {
-        let lat = &sys.lattice;
-        let window = self
-            .channels
+    /// The model term a listed channel stands for.
+    pub fn term_of(&self, c: usize) -> Option<usize> {
+        match self.channels.get(c)?.origin {
+            Origin::Listed(i) => Some(i),
+            Origin::Generated { .. } => None,
+        }
+    }
+
+    /// One channel per listed term, or per translate when split.
+    fn add_listed(&mut self, sys: &System) {
+        for (i, (spec, fam)) in sys
+            .model
+            .terms
             .iter()
-            .map(|c| support_width(lat, &c.family.rep().l))
-            .max()
-            .unwrap_or(1)
-            + 1;
+            .zip(&sys.lattice.families)
+            .enumerate()
+        {
+            let spin = sys.invariants.terms[i].spin.clone();
+            if !self.split {
+                let ch = make_channel(sys, spec.name.clone(), Origin::Listed(i), fam.clone(), spin);
+                self.channels.push(ch);
+                continue;
+            }
+            for t in &fam.translates {
+                let single = Family {
+                    translates: vec![t.clone()],
+                    representative: 0,
+                };
+                let name = format!("{}@{}", spec.name, t.anchor);
+                let ch = make_channel(sys, name, Origin::Listed(i), single, spin.clone());
+                self.channels.push(ch);
+            }
+        }
+        self.listed = self.channels.len();
+    }
+
+    fn generate_candidates(
+        &mut self,
+        sys: &System,
+        index: &mut VectorIndex,
+        range: Option<(&Wiring, usize)>,
+    ) {
+        let lat = &sys.lattice;
         let listed = self.listed;
         for a in 0..listed {
             for b in a..listed {
-                if has_extra(sys, a) || has_extra(sys, b) {
+                if has_extra(sys, self.term_of(a)) || has_extra(sys, self.term_of(b)) {
                     continue;
                 }
                 let rep_a = self.channels[a].family.rep().clone();
@@ -197,13 +310,22 @@ impl Plan {
                         if v.iter().all(|x| *x == 0) || index.find(&v).is_some() {
                             continue;
                         }
-                        if support_width(lat, &v) > window {
+                        if range.is_some_and(|(w, r)| w.span(&v) > r) {
                             continue;
                         }
-                        let Some(fam) = family_of(lat, &v) else {
+                        let fam = if self.split {
+                            single_of(lat, &v)
+                        } else {
+                            family_of(lat, &v)
+                        };
+                        let Some(fam) = fam else {
                             continue;
                         };
-                        let shown = shown_shift(lat, rep_a.anchor, tb.anchor);
+                        let shown = if self.split {
+                            0
+                        } else {
+                            shown_shift(lat, rep_a.anchor, tb.anchor)
+                        };
                         let name = generated_name(
                             &self.channels[a].name,
                             sign,
@@ -226,6 +348,87 @@ impl Plan {
                 }
             }
         }
+    }
+}
+
+/// Listed terms whose momentum may depend on the translate: arrays with
+/// `momentum_per_wire` and a term whose dk can be non-zero
+/// ([`crate::core::momentum::per_translate::may_vary`]).
+pub fn translate_dependent(sys: &System) -> Vec<usize> {
+    if sys.lattice.boundary.is_none() || sys.model.momentum_per_wire.is_none() {
+        return Vec::new();
+    }
+    let lat = &sys.lattice;
+    (0..sys.model.terms.len())
+        .filter(|&i| {
+            let net = per_translate::net_particles(lat, &sys.invariants.terms[i].particles);
+            per_translate::may_vary(&sys.model, &net)
+        })
+        .collect()
+}
+
+/// The default closure range: the widest listed term plus one wire.
+fn default_range(wiring: &Wiring, listed: &[Channel]) -> usize {
+    listed
+        .iter()
+        .map(|c| wiring.span(&c.family.rep().l))
+        .max()
+        .unwrap_or(1)
+        + 1
+}
+
+fn range_note(applied: Option<usize>, given: bool) -> String {
+    match applied {
+        Some(r) => format!(
+            "closure range {r} wire(s): generated terms spanning more wires are left out ({})",
+            if given {
+                "closure_range"
+            } else {
+                "the default, the widest listed term plus one wire; set it with --closure-range"
+            }
+        ),
+        None => "closure range not applied: the fields are not grouped by wire (fields.wires), so every commuting pair below the closure bound joins".to_string(),
+    }
+}
+
+/// Which wire each field is on, for measuring how many wires a vector
+/// spans: the array's wires, or an explicit model's `fields.wires`.
+#[derive(Debug, Clone)]
+pub struct Wiring {
+    wire_of: Vec<usize>,
+    wires: usize,
+    periodic: bool,
+}
+
+impl Wiring {
+    /// The wiring of a system (None: an explicit model without wires).
+    pub fn of(sys: &System) -> Option<Wiring> {
+        let lat = &sys.lattice;
+        match lat.boundary {
+            Some(b) => Some(Wiring {
+                wire_of: (0..lat.n).map(|f| f / lat.cell.max(1)).collect(),
+                wires: lat.wires,
+                periodic: b == Boundary::Periodic,
+            }),
+            None => sys.model.field_wires.as_ref().map(|fw| Wiring {
+                wire_of: fw.wire.clone(),
+                wires: fw.wires,
+                periodic: fw.periodic,
+            }),
+        }
+    }
+
+    /// Consecutive wires (cyclically when periodic) spanned by the support
+    /// of a dense vector.
+    pub fn span(&self, v: &[i64]) -> usize {
+        let mut touched = vec![false; self.wires];
+        for (f, x) in v.iter().enumerate() {
+            if *x != 0 {
+                touched[self.wire_of[f]] = true;
+            }
+        }
+        let wires: Vec<usize> = (0..self.wires).filter(|w| touched[*w]).collect();
+        window(&wires, self.wires, self.periodic).map_or(0, |(_, width)| width)
     }
 }
 
@@ -252,7 +455,10 @@ pub fn shown_shift(lat: &Lattice, a: usize, b: usize) -> i64 {
     }
 }
 
-fn has_extra(sys: &System, term: usize) -> bool {
+fn has_extra(sys: &System, term: Option<usize>) -> bool {
+    let Some(term) = term else {
+        return false;
+    };
     let t = &sys.model.terms[term];
     !(t.extra_spin.is_zero() && t.extra_dimension.is_const() && t.extra_dimension.eval(&[]) == 0.0)
 }
@@ -278,6 +484,8 @@ fn make_channel(
 ) -> Channel {
     let lat = &sys.lattice;
     let inv = &sys.invariants.cell_inverse;
+    let placements = family.translates.len();
+    let (family, copies) = distinct(family);
     let mut l_sparse = Vec::with_capacity(family.translates.len());
     let mut g_sparse = Vec::with_capacity(family.translates.len());
     for t in &family.translates {
@@ -287,6 +495,7 @@ fn make_channel(
     }
     let particles = particles_of(lat, inv, family.rep());
     let charge = rational::dot_int(&particles, &lat.charge);
+    let share = family.translates.len() as f64 / placements.max(1) as f64;
     let mut ch = Channel {
         name,
         origin,
@@ -298,6 +507,8 @@ fn make_channel(
         g_sparse,
         lq: Vec::new(),
         gq: Vec::new(),
+        share,
+        copies,
     };
     // Periodic rings: L(q) on their W points. Infinite arrays: per flow.
     if let (Some(q), false) = (&sys.q, lat.infinite) {
@@ -306,31 +517,51 @@ fn make_channel(
     ch
 }
 
+/// The distinct translates of a family (a translate equal to plus or minus
+/// an earlier one is the same operator), and how many of the placements
+/// equal +rep and -rep.
+fn distinct(family: Family) -> (Family, (usize, usize)) {
+    let rep = family.rep().l.clone();
+    let neg: Vec<i64> = rep.iter().map(|x| -x).collect();
+    let copies = (
+        family.translates.iter().filter(|t| t.l == rep).count(),
+        family.translates.iter().filter(|t| t.l == neg).count(),
+    );
+    let mut kept: Vec<Translate> = Vec::with_capacity(family.translates.len());
+    let mut representative = 0;
+    for (i, t) in family.translates.into_iter().enumerate() {
+        let negated: Vec<i64> = t.l.iter().map(|x| -x).collect();
+        if kept.iter().any(|k| k.l == t.l || k.l == negated) {
+            continue;
+        }
+        if i == family.representative {
+            representative = kept.len();
+        }
+        kept.push(t);
+    }
+    let fam = Family {
+        translates: kept,
+        representative,
+    };
+    (fam, copies)
+}
+
 fn sparse(values: impl Iterator<Item = f64>) -> Vec<(usize, f64)> {
     values.enumerate().filter(|(_, x)| *x != 0.0).collect()
 }
 
-/// Number of consecutive wires (cyclically for periodic arrays) spanned by
-/// the support of a dense vector.
-fn support_width(lat: &Lattice, v: &[i64]) -> usize {
-    let wires: Vec<usize> = (0..lat.wires)
-        .filter(|w| v[w * lat.cell..(w + 1) * lat.cell].iter().any(|x| *x != 0))
-        .collect();
-    minimal_window(lat, &wires).map_or(0, |(_, width)| width)
-}
-
-/// (start wire, width) of the smallest window containing the given wires.
-fn minimal_window(lat: &Lattice, wires: &[usize]) -> Option<(usize, usize)> {
+/// (start wire, width) of the smallest window of a ring or line of `total`
+/// wires containing the given wires (sorted).
+fn window(wires: &[usize], total: usize, periodic: bool) -> Option<(usize, usize)> {
     let (&first, &last) = (wires.first()?, wires.last()?);
-    if lat.boundary != Some(Boundary::Periodic) {
+    if !periodic {
         return Some((first, last - first + 1));
     }
     // Periodic: the window starts after the largest cyclic gap.
-    let w = lat.wires;
     let mut best = (first, last - first + 1);
     for (i, &start) in wires.iter().enumerate() {
         let prev = wires[(i + wires.len() - 1) % wires.len()];
-        let width = (prev + w - start) % w + 1;
+        let width = (prev + total - start) % total + 1;
         if width < best.1 {
             best = (start, width);
         }
@@ -338,20 +569,45 @@ fn minimal_window(lat: &Lattice, wires: &[usize]) -> Option<(usize, usize)> {
     Some(best)
 }
 
-/// The family of a dense vector: its cell-level parts relative to the start
-/// of its support window, placed at every anchor.
-fn family_of(lat: &Lattice, v: &[i64]) -> Option<Family> {
+/// (start wire, width) of the smallest window containing the given wires.
+fn minimal_window(lat: &Lattice, wires: &[usize]) -> Option<(usize, usize)> {
+    window(wires, lat.wires, lat.boundary == Some(Boundary::Periodic))
+}
+
+/// A cell-level part of a vector: (wire offset, integer vector over the cell).
+type CellPart = (usize, Vec<i64>);
+
+/// The cell-level parts of a dense vector relative to the start of its
+/// support window, and that start.
+fn window_parts(lat: &Lattice, v: &[i64]) -> Option<(usize, Vec<CellPart>)> {
     let wires: Vec<usize> = (0..lat.wires)
         .filter(|w| v[w * lat.cell..(w + 1) * lat.cell].iter().any(|x| *x != 0))
         .collect();
     let (start, width) = minimal_window(lat, &wires)?;
-    let parts: Vec<(usize, Vec<i64>)> = (0..width)
+    let parts = (0..width)
         .map(|off| {
             let w = (start + off) % lat.wires;
             (off, v[w * lat.cell..(w + 1) * lat.cell].to_vec())
         })
         .filter(|(_, p)| p.iter().any(|x| *x != 0))
         .collect();
+    Some((start, parts))
+}
+
+/// A dense vector as a family of its one translate, anchored at the start
+/// of its support window (split plans).
+fn single_of(lat: &Lattice, v: &[i64]) -> Option<Family> {
+    let (start, parts) = window_parts(lat, v)?;
+    Some(Family {
+        translates: vec![lat.place(&parts, start)],
+        representative: 0,
+    })
+}
+
+/// The family of a dense vector: its cell-level parts relative to the start
+/// of its support window, placed at every anchor.
+fn family_of(lat: &Lattice, v: &[i64]) -> Option<Family> {
+    let (_, parts) = window_parts(lat, v)?;
     let fam = lat.family(&parts);
     (!fam.translates.is_empty()).then_some(fam)
 }
@@ -377,7 +633,12 @@ impl VectorIndex {
     }
 }
 
-fn ope_table(channels: &[Channel], index: &VectorIndex, pairing: &Pairing) -> Vec<OpeEntry> {
+fn ope_table(
+    channels: &[Channel],
+    index: &VectorIndex,
+    pairing: &Pairing,
+    ring: bool,
+) -> Vec<OpeEntry> {
     let mut table = Vec::new();
     for (a, ca) in channels.iter().enumerate() {
         let rep = ca.family.rep();
@@ -392,12 +653,19 @@ fn ope_table(channels: &[Channel], index: &VectorIndex, pairing: &Pairing) -> Ve
                         continue;
                     }
                     if let Some((target, conj)) = index.find(&v) {
+                        let weight = if ring {
+                            ca.family.translates.len() as f64
+                                / channels[target].family.translates.len() as f64
+                        } else {
+                            1.0
+                        };
                         table.push(OpeEntry {
                             target,
                             conj,
                             a,
                             b,
                             b_conj,
+                            weight,
                         });
                     }
                 }

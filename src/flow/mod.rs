@@ -39,6 +39,7 @@ pub mod options;
 pub mod report;
 pub mod rhs;
 pub mod stages;
+mod translates;
 
 use nalgebra::DVector;
 use ode_solvers::continuous_output_model::ContinuousOutputModel;
@@ -46,10 +47,9 @@ use ode_solvers::dop_shared::OutputType;
 use ode_solvers::Dopri5;
 use serde::Serialize;
 
-use crate::core::system::System;
+use crate::core::system::{EvalPath, System};
 use crate::error::{Error, InputError};
 use crate::math::rational::fmt_rational;
-use crate::model::Boundary;
 use background::Background;
 use channels::{Channel, Origin, Plan};
 pub use check::{QuadratureCheck, RuleChoice, StoppedBy};
@@ -187,6 +187,17 @@ pub struct FlowResult {
     /// The model's reciprocal lattice vector G (`momentum_period`) at the
     /// point, modulo which the momenta `k` are reduced; null without one.
     pub momentum_period: Option<f64>,
+    /// The pairs closure's range in wires (generated terms spanning more
+    /// wires are left out); null when no range applies or without closure.
+    pub closure_range: Option<usize>,
+    /// Notes of the plan (closure range, translates flowed one by one).
+    #[serde(skip)]
+    pub plan_notes: Vec<String>,
+    /// For each model term, its row in `terms` (the representative's
+    /// translate when every translate flows on its own; see
+    /// `channels::Plan::split`).
+    #[serde(skip)]
+    pub listed_rows: Vec<Option<usize>>,
     /// Accepted integration steps.
     pub steps: usize,
     /// A message for unphysical or failed points.
@@ -237,15 +248,12 @@ struct Start {
 impl<'s> Flow<'s> {
     /// Prepare the plan (exact work done once).
     pub fn new(sys: &'s System, opts: FlowOptions) -> Flow<'s> {
-        let plan = Plan::build(sys, opts.closure == Closure::Pairs);
-        let lat = &sys.lattice;
-        let layout = if sys.is_infinite() {
-            Layout::Infinite
-        } else {
-            match lat.boundary {
-                Some(Boundary::Periodic) if lat.wires > 1 && !opts.dense_d => Layout::Ring,
-                _ => Layout::Dense,
-            }
+        let plan = Plan::build(sys, opts.closure == Closure::Pairs, opts.closure_range);
+        let layout = match sys.eval_path() {
+            EvalPath::Infinite => Layout::Infinite,
+            // Translates with their own momenta break translation invariance.
+            EvalPath::Ring if !opts.dense_d && !plan.split => Layout::Ring,
+            _ => Layout::Dense,
         };
         Flow {
             sys,
@@ -335,6 +343,7 @@ impl<'s> Flow<'s> {
     /// the check fails (see [`check`]).
     pub fn run(&self, point: &[f64]) -> Result<FlowResult, Error> {
         self.sys.model.check_point(point)?;
+        self.check_translate_momenta(point)?;
         let mut start = match self.start(point) {
             Ok(start) => start,
             Err(e) => return unphysical_result(e),
@@ -365,9 +374,10 @@ impl<'s> Flow<'s> {
         rhs.record = record;
         let mut y0 = DVector::zeros(rhs.state_len());
         for (i, &c) in included.iter().enumerate() {
-            if let Some((y, chi)) = bare.get(c).copied() {
-                y0[2 * i] = 0.5 * y * chi.cos();
-                y0[2 * i + 1] = 0.5 * y * chi.sin();
+            if let Some((y, chi)) = self.plan.term_of(c).map(|t| bare[t]) {
+                let (re, im) = self.plan.channels[c].bare_amplitude(y, chi);
+                y0[2 * i] = re;
+                y0[2 * i + 1] = im;
             }
         }
         y0.as_mut_slice()[2 * included.len()..].copy_from_slice(d0);
@@ -433,14 +443,14 @@ impl<'s> Flow<'s> {
     fn momenta(&self, point: &[f64], included: &[usize]) -> Vec<Option<f64>> {
         let k = self.sys.lattice.momenta(&self.sys.model, point);
         // A generated channel's particle content is the sum of its parents',
-        // so its mismatch is the sum of theirs, reduced once by the period.
+        // so its mismatch on the line is the sum of theirs, reduced once by
+        // the period.
         let g = self.sys.model.momentum_period_at(point);
         included
             .iter()
             .map(|&c| {
-                k.as_ref().map(|k| {
-                    crate::core::momentum::mismatch(&self.plan.channels[c].particles, k, g)
-                })
+                k.as_ref()
+                    .map(|k| self.plan.channels[c].mismatch(&self.sys.lattice, k, g))
             })
             .collect()
     }
@@ -461,7 +471,10 @@ impl<'s> Flow<'s> {
         let terms = (0..nc)
             .map(|i| {
                 let ch = &self.plan.channels[included[i]];
-                let (y0, chi0) = bare.get(included[i]).copied().unwrap_or((0.0, 0.0));
+                let (y0, chi0) = self
+                    .plan
+                    .term_of(included[i])
+                    .map_or((0.0, 0.0), |t| bare[t]);
                 ChannelResult {
                     name: ch.name.clone(),
                     origin: if matches!(ch.origin, Origin::Listed(_)) {
@@ -508,6 +521,9 @@ impl<'s> Flow<'s> {
             quadrature: None,
             flow_quadrature: None,
             momentum_period: None,
+            closure_range: self.plan.range,
+            plan_notes: self.plan_notes(),
+            listed_rows: self.listed_rows(included),
             steps: rhs.steps,
             message: integrated.message,
             samples: rhs.samples.clone(),
@@ -567,6 +583,9 @@ impl FlowResult {
             quadrature: None,
             flow_quadrature: None,
             momentum_period: None,
+            closure_range: None,
+            plan_notes: Vec::new(),
+            listed_rows: Vec::new(),
             steps: 0,
             message: Some(message),
             samples: Vec::new(),

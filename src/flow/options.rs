@@ -38,6 +38,12 @@ pub struct FlowOptions {
     pub closure: Closure,
     /// Largest bare dimension of a generated term (default 4).
     pub closure_bound: f64,
+    /// Widest generated term, in wires (consecutive wires its support
+    /// spans); None: the default, the widest listed term plus one wire. It
+    /// applies to arrays and to explicit models that group their fields by
+    /// wire (`fields.wires`); see [`super::channels`].
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub closure_range: Option<usize>,
     /// Relative tolerance of the integrator (default 1e-8).
     pub rtol: f64,
     /// Absolute tolerance of the integrator (default 1e-12).
@@ -78,6 +84,7 @@ impl Default for FlowOptions {
             floor: 1e-6,
             closure: Closure::Pairs,
             closure_bound: 4.0,
+            closure_range: None,
             rtol: 1e-8,
             atol: 1e-12,
             max_steps: 100_000,
@@ -105,6 +112,9 @@ pub struct FlowOverrides {
     pub closure: Option<Closure>,
     /// `--closure-bound`.
     pub closure_bound: Option<f64>,
+    /// `--closure-range` (checked to be at least 1, and small enough for
+    /// an infinite array).
+    pub closure_range: Option<i64>,
     /// `--rtol`.
     pub rtol: Option<f64>,
     /// `--atol`.
@@ -148,6 +158,14 @@ impl FlowOptions {
         if let Some(b) = over.closure_bound {
             check_non_negative(b, "command line", "--closure-bound")?;
             o.closure_bound = b;
+        }
+        if let Some(r) = over.closure_range {
+            o.closure_range = Some(check_closure_range(
+                model,
+                r,
+                "command line",
+                "--closure-range",
+            )?);
         }
         if let Some(n) = over.q_points {
             o.q_points = Some(check_q_points(model, n, "command line", "--q-points")?);
@@ -197,6 +215,10 @@ impl FlowOptions {
                     let n = whole(value, &model.file, &full, "a whole number of points")?;
                     self.q_points = Some(check_q_points(model, n, &model.file, &full)?);
                 }
+                "closure_range" => {
+                    let r = whole(value, &model.file, &full, "a whole number of wires")?;
+                    self.closure_range = Some(check_closure_range(model, r, &model.file, &full)?);
+                }
                 "closure_bound" => {
                     let b = num()?;
                     check_non_negative(b, &model.file, &full)?;
@@ -219,13 +241,40 @@ impl FlowOptions {
                     return Err(InputError::new(
                         &model.file,
                         &full,
-                        "unknown key (known: ell_max, y_strong, floor, closure, closure_bound, rtol, atol, max_steps, q_points, stages)",
+                        "unknown key (known: ell_max, y_strong, floor, closure, closure_bound, closure_range, rtol, atol, max_steps, q_points, stages)",
                     ))
                 }
             }
         }
         Ok(())
     }
+}
+
+/// A closure range: at least 1 wire. An infinite array's exact data lives on
+/// a stand-in ring of W = 4 (R + 2) + 1 wires for terms of range R (see
+/// [`crate::core::lattice::Lattice::stand_in`]); the OPE table on it equals the
+/// line's for vectors up to (W - 1) / 2 = 2 (R + 2) wires wide, the largest
+/// range accepted there. Finite arrays accept any range (terms wider than
+/// the array cannot occur).
+fn check_closure_range(model: &Model, r: i64, file: &str, key: &str) -> Result<usize, InputError> {
+    if model.is_infinite() {
+        let most = (model.stand_in_wires() - 1) / 2;
+        if !(1..=most as i64).contains(&r) {
+            let reach = model.terms.iter().map(|t| t.range()).max().unwrap_or(0);
+            return Err(InputError::new(
+                file,
+                key,
+                format!("expected a whole number of wires from 1 to {most} (an infinite array whose terms reach wire offset {reach} flows generated terms up to {most} wires wide), found {r}"),
+            ));
+        }
+    } else if r < 1 {
+        return Err(InputError::new(
+            file,
+            key,
+            format!("expected a whole number of wires, at least 1 (a generated term spans at least one wire), found {r}"),
+        ));
+    }
+    Ok(usize::try_from(r).unwrap_or(usize::MAX))
 }
 
 /// A number of quadrature points: only for infinite arrays, at least

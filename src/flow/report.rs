@@ -63,6 +63,7 @@ impl FlowReport {
         if let Some(g) = result.momentum_period {
             notes.push(crate::dims::period_note(g));
         }
+        notes.extend(result.plan_notes.iter().cloned());
         if let Some(c) = result.flow_quadrature.as_ref().filter(|c| !c.converged) {
             notes.push(check_note(c));
         }
@@ -214,7 +215,13 @@ impl Report for FlowReport {
                 self.options.ell_max,
                 self.options.y_strong,
                 match self.options.closure {
-                    Closure::Pairs => format!("pairs (bound {})", self.options.closure_bound),
+                    Closure::Pairs => match r.closure_range {
+                        Some(range) => format!(
+                            "pairs (bound {}, range {range} wires)",
+                            self.options.closure_bound
+                        ),
+                        None => format!("pairs (bound {})", self.options.closure_bound),
+                    },
                     Closure::None => "none".to_string(),
                 },
                 self.options.rtol

@@ -9,7 +9,9 @@
 //! dD/dell   = -(1/8) sum_{null c} |y_c|^2 sum_t [D l l^T D - K^-1 l l^T K^-1]
 //! ```
 //!
-//! with y_c = 2 |w_c|. Channels past their momentum cut-off ell_k are
+//! with y_c = 2 |w_c|; each OPE entry carries its weight n_a / n_c (see
+//! [`super::channels`]), and a channel whose operator is minus one of its
+//! own translates keeps a real amplitude. Channels past their momentum cut-off ell_k are
 //! inactive: they neither flow nor feed back. Evaluation allocates nothing:
 //! scratch space lives in a `RefCell` sized once.
 
@@ -197,8 +199,11 @@ impl System<f64, DVector<f64>> for &mut FlowRhs<'_> {
             let br = w[2 * e.b];
             let (pr, pi) = (ar * br - ai * bi, ar * bi + ai * br);
             let pi = if e.conj { -pi } else { pi };
-            dw[2 * e.target] -= 0.5 * pr;
-            dw[2 * e.target + 1] -= 0.5 * pi;
+            dw[2 * e.target] -= 0.5 * e.weight * pr;
+            dw[2 * e.target + 1] -= 0.5 * e.weight * pi;
+        }
+        for c in (0..nc).filter(|&c| rhs.channels[c].real_only()) {
+            dw[2 * c + 1] = 0.0;
         }
     }
 

@@ -107,6 +107,19 @@ impl TermSpec {
     }
 }
 
+/// How an explicit model groups its fields by wire (`fields.wires`,
+/// `fields.boundary`). Invariant: `wire` has one entry per field, and every
+/// wire 0..wires is used by at least one field.
+#[derive(Debug, Clone, PartialEq)]
+pub struct FieldWires {
+    /// Wire of every field.
+    pub wire: Vec<usize>,
+    /// Number of wires.
+    pub wires: usize,
+    /// Wire wires-1 neighbours wire 0.
+    pub periodic: bool,
+}
+
 /// A validated model (see the module docs for its invariants).
 #[derive(Debug, Clone)]
 pub struct Model {
@@ -133,6 +146,9 @@ pub struct Model {
     pub momentum_period: Option<Scalar>,
     /// Candidate terms.
     pub terms: Vec<TermSpec>,
+    /// Explicit models: the wire of every field, when `fields.wires` groups
+    /// them (None otherwise and for arrays, whose wires are their own).
+    pub field_wires: Option<FieldWires>,
     /// The `[flow]` table, checked by the flow module.
     pub flow_table: Option<toml::Table>,
     /// The `[scan]` table, checked by the scan module.
@@ -440,6 +456,7 @@ fn read_explicit(ctx: &Ctx, f: RawFields, params: ParamSet) -> Result<Model, Inp
         momentum.is_some(),
         &params,
     )?;
+    let field_wires = read_field_wires(ctx, &f.wires, f.boundary.as_deref(), n)?;
     Ok(Model {
         name: String::new(),
         file: ctx.file.clone(),
@@ -452,9 +469,73 @@ fn read_explicit(ctx: &Ctx, f: RawFields, params: ParamSet) -> Result<Model, Inp
         momentum_per_wire: None,
         momentum_period,
         terms: Vec::new(),
+        field_wires,
         flow_table: None,
         scan_table: None,
     })
+}
+
+/// `fields.wires` (one wire index per field, every wire 0..W used) and
+/// `fields.boundary` ("open" or "periodic", only with `wires`).
+fn read_field_wires(
+    ctx: &Ctx,
+    wires: &Option<toml::Value>,
+    boundary: Option<&str>,
+    n: usize,
+) -> Result<Option<FieldWires>, InputError> {
+    let Some(v) = wires else {
+        if boundary.is_some() {
+            return Err(ctx.err(
+                "fields.boundary",
+                "needs fields.wires (the wire of every field); without it the fields are not grouped by wire",
+            ));
+        }
+        return Ok(None);
+    };
+    let raw = values::int_vector(ctx, v, "fields.wires", n, "one wire index per field")?;
+    // Every wire holds a field, so there are at most n wires.
+    if let Some((i, w)) = raw
+        .iter()
+        .enumerate()
+        .find(|(_, w)| !(0..n as i64).contains(*w))
+    {
+        return Err(ctx.err(
+            &format!("fields.wires[{i}]"),
+            format!(
+                "expected a wire index from 0 to {} (the number of fields less one), found {w}",
+                n - 1
+            ),
+        ));
+    }
+    let count = raw.iter().copied().max().unwrap_or(-1) + 1;
+    let mut used = vec![false; count as usize];
+    for w in &raw {
+        used[*w as usize] = true;
+    }
+    if let Some(gap) = used.iter().position(|u| !u) {
+        return Err(ctx.err(
+            "fields.wires",
+            format!(
+                "wires are numbered 0 to {} without gaps, but no field is on wire {gap}",
+                count - 1
+            ),
+        ));
+    }
+    let periodic = match boundary {
+        None | Some("open") => false,
+        Some("periodic") => true,
+        Some(other) => {
+            return Err(ctx.err(
+                "fields.boundary",
+                format!("expected \"open\" or \"periodic\", found \"{other}\""),
+            ))
+        }
+    };
+    Ok(Some(FieldWires {
+        wire: raw.iter().map(|w| *w as usize).collect(),
+        wires: count as usize,
+        periodic,
+    }))
 }
 
 fn read_array(ctx: &Ctx, a: RawArray, params: ParamSet) -> Result<Model, InputError> {
@@ -530,6 +611,7 @@ fn read_array(ctx: &Ctx, a: RawArray, params: ParamSet) -> Result<Model, InputEr
         momentum_per_wire,
         momentum_period,
         terms: Vec::new(),
+        field_wires: None,
         flow_table: None,
         scan_table: None,
     })

@@ -46,6 +46,12 @@ pub struct RawFields {
     pub momentum: Option<Value>,
     /// Optional reciprocal lattice vector G: momenta are conserved modulo G.
     pub momentum_period: Option<Value>,
+    /// Optional wire of every field (0, 1, ...): groups the fields by wire,
+    /// so that the flow's closure range applies as in an array.
+    pub wires: Option<Value>,
+    /// With `wires`: "open" (default) or "periodic" (wire W-1 neighbours
+    /// wire 0 when the closure range measures a term's width).
+    pub boundary: Option<String>,
 }
 
 /// `[array]`: the array form.

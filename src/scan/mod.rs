@@ -192,14 +192,14 @@ pub fn row_cells(coords: &[f64], r: &FlowResult, listed: usize) -> Vec<String> {
     cells.push(r.outcome.word().to_string());
     cells.push(r.winner.clone().unwrap_or_default());
     cells.push(r.ell_star.map(|l| format!("{l}")).unwrap_or_default());
+    // The row of model term i (its representative translate when the flow
+    // split the families into translates).
+    let row = |i: usize| r.listed_rows.get(i).copied().flatten();
     let dims = |f: &dyn Fn(usize) -> f64| -> Vec<String> {
         (0..listed)
-            .map(|i| {
-                if i < r.terms.len() {
-                    format!("{}", f(i))
-                } else {
-                    String::new()
-                }
+            .map(|i| match row(i) {
+                Some(j) if j < r.terms.len() => format!("{}", f(j)),
+                _ => String::new(),
             })
             .collect()
     };

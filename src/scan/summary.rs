@@ -130,12 +130,22 @@ fn margin_note(t: &TargetSummary) -> Option<String> {
     ))
 }
 
+/// `name@j`: the translate on wire j of a listed term (flows whose
+/// translates carry their own momenta flow each one on its own).
+fn is_translate(name: &str, terms: &[String]) -> bool {
+    name.rsplit_once('@').is_some_and(|(term, wire)| {
+        !wire.is_empty()
+            && wire.bytes().all(|b| b.is_ascii_digit())
+            && terms.iter().any(|t| t == term)
+    })
+}
+
 /// Winners that the model does not list: terms generated at second order
 /// by the pairs closure, named after their parents.
 fn generated_winners_note(meta: &Meta, winners: &BTreeMap<String, usize>) -> Option<String> {
     let generated: Vec<String> = winners
         .iter()
-        .filter(|(name, _)| !meta.terms.contains(name))
+        .filter(|(name, _)| !meta.terms.contains(name) && !is_translate(name, &meta.terms))
         .map(|(name, n)| format!("{name} ({n} points)"))
         .collect();
     (!generated.is_empty()).then(|| {

@@ -40,7 +40,7 @@ use std::collections::BTreeSet;
 
 use nalgebra::DMatrix;
 
-use crate::core::system::System;
+use crate::core::system::{EvalPath, System};
 use crate::error::{Error, InputError};
 use crate::math::ellipsoid::Ellipsoid;
 use crate::math::rational;
@@ -241,14 +241,7 @@ pub const MAX_MOMENTUM_DENOMINATOR: i64 = 10_000;
 /// point, placed on the window's fields of the stand-in ring (the rest is
 /// never read).
 fn window_d(sys: &System, point: &[f64], window: &Window) -> Result<DMatrix<f64>, Error> {
-    let infinite = matches!(
-        sys.model.structure,
-        crate::model::Structure::Array {
-            wires: crate::model::Wires::Infinite,
-            ..
-        }
-    );
-    if !infinite {
+    if sys.eval_path() != EvalPath::Infinite {
         return Ok(sys.fixed_point(point)?.d);
     }
     let (dw, _) = sys.real_space_window(point, window.wires)?;
