@@ -179,43 +179,121 @@ pub fn name_phase(
     }
 }
 
+/// Subsets of candidates tried before the label falls back to a greedy
+/// spanning set (written-out models list every translate as a term, and
+/// the number of subsets grows combinatorially).
+pub const LABEL_BUDGET: usize = 4096;
+
 /// The fewest candidates spanning the lattice (fewer generated, then
 /// candidate order); at most `most` are needed (the pinned set itself).
+/// Subsets are tried by size, listed-only first, until [`LABEL_BUDGET`]
+/// subsets have been tried; past it, a greedy spanning set (candidates in
+/// order, each kept when it enlarges the span, then every one that is not
+/// needed dropped) names the phase. Either way the label depends on the
+/// lattice alone.
 fn label_terms(lattice: &PinnedLattice, candidates: &[Candidate], most: usize) -> Vec<String> {
     let inside: Vec<&Candidate> = candidates
         .iter()
         .filter(|c| !c.family.translates.is_empty() && lattice.contains_family(c.family))
         .collect();
+    let (listed, generated): (Vec<usize>, Vec<usize>) =
+        (0..inside.len()).partition(|&i| inside[i].listed);
+    let spans = |combo: &[usize]| {
+        let fams: Vec<&Family> = combo.iter().map(|&i| inside[i].family).collect();
+        let sub = PinnedLattice::new(lattice.n, &fams);
+        sub.rank() == lattice.rank() && sub.contains_all(lattice)
+    };
+    let names = |combo: &[usize]| combo.iter().map(|&i| inside[i].name.to_string()).collect();
+    let mut budget = LABEL_BUDGET;
     for size in 1..=most.min(inside.len()) {
-        let mut combos = combinations(inside.len(), size);
-        combos.sort_by_key(|c| c.iter().filter(|&&i| !inside[i].listed).count());
-        for combo in combos {
-            let fams: Vec<&Family> = combo.iter().map(|&i| inside[i].family).collect();
-            let sub = PinnedLattice::new(lattice.n, &fams);
-            if sub.rank() == lattice.rank() && sub.contains_all(lattice) {
-                return combo.iter().map(|&i| inside[i].name.to_string()).collect();
+        for g in 0..=size.min(generated.len()) {
+            if size - g > listed.len() {
+                continue;
+            }
+            let mut a = Combination::new(listed.len(), size - g);
+            while let Some(ia) = a.next() {
+                let mut b = Combination::new(generated.len(), g);
+                while let Some(ib) = b.next() {
+                    if budget == 0 {
+                        return names(&greedy(&inside, &spans));
+                    }
+                    budget -= 1;
+                    let mut combo: Vec<usize> = ia.iter().map(|&k| listed[k]).collect();
+                    combo.extend(ib.iter().map(|&k| generated[k]));
+                    if spans(&combo) {
+                        return names(&combo);
+                    }
+                }
             }
         }
     }
     Vec::new()
 }
 
-/// All k-subsets of 0..n in lexicographic order.
-fn combinations(n: usize, k: usize) -> Vec<Vec<usize>> {
-    let mut out = Vec::new();
-    let mut c: Vec<usize> = (0..k).collect();
-    if k > n {
-        return out;
-    }
-    loop {
-        out.push(c.clone());
-        let Some(i) = (0..k).rev().find(|&i| c[i] < n - k + i) else {
-            return out;
-        };
-        c[i] += 1;
-        for j in i + 1..k {
-            c[j] = c[j - 1] + 1;
+/// Candidates in order (listed first), each kept when it enlarges the span
+/// so far, then each dropped when the rest still spans.
+fn greedy(inside: &[&Candidate], spans: &dyn Fn(&[usize]) -> bool) -> Vec<usize> {
+    let mut order: Vec<usize> = (0..inside.len()).collect();
+    order.sort_by_key(|&i| !inside[i].listed);
+    let mut kept: Vec<usize> = Vec::new();
+    for i in order {
+        let fams: Vec<&Family> = kept.iter().map(|&k| inside[k].family).collect();
+        if !PinnedLattice::new(inside[i].family.translates[0].l.len(), &fams)
+            .contains_family(inside[i].family)
+        {
+            kept.push(i);
         }
+        if spans(&kept) {
+            break;
+        }
+    }
+    let mut at = kept.len();
+    while at > 0 {
+        at -= 1;
+        let without: Vec<usize> = kept
+            .iter()
+            .enumerate()
+            .filter(|(j, _)| *j != at)
+            .map(|(_, &k)| k)
+            .collect();
+        if spans(&without) {
+            kept = without;
+        }
+    }
+    kept
+}
+
+/// The k-subsets of 0..n in lexicographic order, one at a time.
+struct Combination {
+    n: usize,
+    c: Vec<usize>,
+    started: bool,
+}
+
+impl Combination {
+    fn new(n: usize, k: usize) -> Combination {
+        Combination {
+            n,
+            c: (0..k).collect(),
+            started: false,
+        }
+    }
+
+    fn next(&mut self) -> Option<&[usize]> {
+        let k = self.c.len();
+        if k > self.n {
+            return None;
+        }
+        if !self.started {
+            self.started = true;
+            return Some(&self.c);
+        }
+        let i = (0..k).rev().find(|&i| self.c[i] < self.n - k + i)?;
+        self.c[i] += 1;
+        for j in i + 1..k {
+            self.c[j] = self.c[j - 1] + 1;
+        }
+        Some(&self.c)
     }
 }
 
@@ -359,8 +437,17 @@ mod tests {
 
     #[test]
     fn combinations_are_complete() {
-        assert_eq!(combinations(4, 2).len(), 6);
-        assert_eq!(combinations(3, 3), vec![vec![0, 1, 2]]);
-        assert!(combinations(2, 3).is_empty());
+        let count = |n, k| {
+            let mut c = Combination::new(n, k);
+            let mut m = 0;
+            while c.next().is_some() {
+                m += 1;
+            }
+            m
+        };
+        assert_eq!(count(4, 2), 6);
+        assert_eq!(count(3, 3), 1);
+        assert_eq!(count(2, 3), 0);
+        assert_eq!(count(5, 0), 1);
     }
 }
