@@ -112,6 +112,11 @@ pub enum Error {
     /// a single point; a scan records it as the outcome "unphysical").
     #[error("{0}")]
     Unphysical(#[from] Unphysical),
+    /// A parameter point at which a result cannot be computed to the
+    /// accuracy the tool promises (e.g. a scaling dimension whose error
+    /// bound exceeds 1e-8): the message names the point (exit code 2).
+    #[error("{0}")]
+    Inaccurate(String),
     /// A numerical failure (exit code 1).
     #[error("{0}")]
     Numerical(String),
@@ -132,7 +137,7 @@ impl Error {
     /// The process exit code for this error: 2 for bad input, 1 otherwise.
     pub fn exit_code(&self) -> i32 {
         match self {
-            Error::Input(_) | Error::Unphysical(_) => 2,
+            Error::Input(_) | Error::Unphysical(_) | Error::Inaccurate(_) => 2,
             _ => 1,
         }
     }

@@ -83,9 +83,14 @@ fn mpmath_reference(cases: &[Case]) -> serde_json::Value {
             .map(|c| serde_json::json!({ "K": c.k, "V": c.v }))
             .collect::<Vec<_>>(),
     });
+    run_mpmath(&input)
+}
+
+/// Run the mpmath script on a prepared input (see the script's docs).
+fn run_mpmath(input: &serde_json::Value) -> serde_json::Value {
     let dir = tempfile::tempdir().expect("temporary directory");
     let path = dir.path().join("cases.json");
-    std::fs::write(&path, serde_json::to_string(&input).unwrap()).expect("write cases");
+    std::fs::write(&path, serde_json::to_string(input).unwrap()).expect("write cases");
     let script = concat!(
         env!("CARGO_MANIFEST_DIR"),
         "/tests/reference/fixed_point_mpmath.py"
@@ -191,4 +196,147 @@ fn d_and_velocities_agree_with_mpmath() {
         }
     }
     eprintln!("largest relative difference from mpmath: {largest:e}");
+}
+
+/// A spinless wire, K = diag(1, -1), V = [[1, lam], [lam, 1]] with
+/// lam = 1 - eps: condition number (2 - eps)/eps (derived: eigenvalues
+/// 1 +- lam). Backscattering (l = (1, 1)) has Delta = K_L =
+/// sqrt((1 - lam)/(1 + lam)) -> 0 [Giamarchi (2004) ch. 2], so l^T D l
+/// cancels (D has entries ~ 1/K_L): the hardest case for doubles.
+fn near_singular_wire(eps: f64) -> Case {
+    let lam = 1.0 - eps;
+    Case {
+        k: vec![vec![1, 0], vec![0, -1]],
+        v: vec![vec![1.0, lam], vec![lam, 1.0]],
+    }
+}
+
+/// A random N = 4 model whose V = A A^T + c I has A of rank 3, so that
+/// its condition number is about 1/c (checked below).
+fn low_rank_case(seed: u64, c: f64) -> Case {
+    // The first seed from `seed` on whose random K has N = 4.
+    let base = (seed..)
+        .map(|s| random_cases(1, s).remove(0))
+        .find(|c| c.k.len() == 4)
+        .expect("some seed gives N = 4");
+    let mut rng = ChaCha8Rng::seed_from_u64(seed ^ 0xabcd);
+    let a: Vec<Vec<f64>> = (0..4)
+        .map(|_| (0..3).map(|_| rng.gen_range(-1.0..1.0)).collect())
+        .collect();
+    let v = (0..4)
+        .map(|i| {
+            (0..4)
+                .map(|j| {
+                    let (i, j) = (i.min(j), i.max(j));
+                    let s: f64 = (0..3).map(|p| a[i][p] * a[j][p]).sum();
+                    s + if i == j { c } else { 0.0 }
+                })
+                .collect()
+        })
+        .collect();
+    Case { k: base.k, v }
+}
+
+/// Unit vectors, sums and differences of pairs.
+fn probe_vectors(n: usize) -> Vec<Vec<i64>> {
+    let mut out = Vec::new();
+    for i in 0..n {
+        out.push((0..n).map(|a| (a == i) as i64).collect());
+        for j in i + 1..n {
+            for s in [1, -1] {
+                out.push(
+                    (0..n)
+                        .map(|a| {
+                            if a == i {
+                                1
+                            } else if a == j {
+                                s
+                            } else {
+                                0
+                            }
+                        })
+                        .collect(),
+                );
+            }
+        }
+    }
+    out
+}
+
+// Issue 13 item 4: at condition numbers ~1e9 and ~1e12 every dimension
+// agrees with mpmath at 50 digits to 1e-14 (relative), its error bound
+// `dimension_error` is at least the actual error and at most 1e-8 (the
+// point is accepted). Before the double-double route backscattering in the
+// wire had a relative error of 2.4e-7 at cond 4.6e9, and the point at cond
+// 9.5e12 was refused (D K D = K^-1 off by 5e-4).
+#[test]
+fn ill_conditioned_dimensions_agree_with_mpmath_at_50_digits() {
+    // eps not a power of two (those make the double arithmetic exact).
+    let cases = [
+        near_singular_wire(4.3456789e-10),
+        near_singular_wire(2.1e-13),
+        low_rank_case(11, 1e-9),
+        low_rank_case(12, 1e-12),
+    ];
+    let conds: Vec<f64> = cases
+        .iter()
+        .map(|c| {
+            let n = c.k.len();
+            pinflow::core::fixed_point::condition_number(&nalgebra::DMatrix::from_fn(
+                n,
+                n,
+                |i, j| c.v[i][j],
+            ))
+        })
+        .collect();
+    for (c, range) in conds
+        .iter()
+        .zip([(1e9, 1e10), (1e12, 1e13), (1e8, 1e10), (1e11, 1e13)])
+    {
+        assert!(
+            *c > range.0 && *c < range.1,
+            "condition number {c:e} not in {range:?}"
+        );
+    }
+    let input = serde_json::json!({
+        "digits": 50,
+        "cases": cases
+            .iter()
+            .map(|c| serde_json::json!({ "K": c.k, "V": c.v, "vectors": probe_vectors(c.k.len()) }))
+            .collect::<Vec<_>>(),
+    });
+    let reference = run_mpmath(&input);
+    let mut largest = 0.0f64;
+    for (i, (c, r)) in cases
+        .iter()
+        .zip(reference["cases"].as_array().unwrap())
+        .enumerate()
+    {
+        let text = model_text(c);
+        let sys = System::new(Model::parse(&text, "ill.toml").unwrap()).unwrap();
+        let fp = sys.fixed_point(&[]).unwrap();
+        let dims = r["dimensions"].as_array().unwrap();
+        for (l, want) in probe_vectors(c.k.len()).iter().zip(dims) {
+            let want = num(want);
+            let got = fp.dimension(l);
+            let err = (got - want).abs() / want.abs();
+            let bound = fp.dimension_error(l);
+            largest = largest.max(err);
+            let at = format!("case {i} (cond {:.1e}), l = {l:?}", conds[i]);
+            assert!(
+                err <= 1e-14,
+                "{at}: Delta = {got} but mpmath gives {want} (relative error {err:e})"
+            );
+            // The reference string is rounded to a double: allow 2 ulps.
+            assert!(
+                bound + 2.3e-16 >= err,
+                "{at}: bound {bound:e} below the error {err:e}"
+            );
+            assert!(
+                bound <= 1e-8,
+                "{at}: bound {bound:e} would refuse the point"
+            );
+        }
+    }
+    eprintln!("largest relative error at condition numbers up to 1e12: {largest:e}");
 }

@@ -172,8 +172,8 @@ fn cases() -> Vec<Case> {
             "error: wire.toml: fields.V: V must be symmetric, but V[1][0] = 0 and V[0][1] = 0.3 at lambda=0.3"),
         case("E13", base(), "dims wire.toml --set lambda=1.5", 2,
             "error: wire.toml: V is not positive definite at lambda=1.5: smallest eigenvalue -5.000000e-1 (an unstable theory; choose parameters where V > 0)"),
-        case("E14", wire("K = [[1, 0], [0, -1]]", "K = [[2, 1], [1, -3]]"), "dims wire.toml --set lambda=0.999999999999", 1,
-            "error: wire.toml: the fixed point at lambda=0.999999999999 cannot be computed accurately: V is badly conditioned there (condition number 2.0e12), and the computed D satisfies D K D = K^-1 only to 7.4e-5 (relative; 1e-6 is needed); rescale V or choose another point"),
+        case("E14", vec![("wire.toml", with(&with(WIRE, "K = [[1, 0], [0, -1]]", "K = [[2, 1], [1, -3]]"), kv, "V = [[\"lambda\", \"0\"], [\"0\", \"1\"]]"))], "dims wire.toml --set lambda=1e-30", 2,
+            "error: wire.toml: the scaling dimension of term \"backscatter\" at lambda=0.000000000000000000000000000001 cannot be computed accurately: its error bound is 7.9e-1 (relative; at most 1e-8 is accepted), V is badly conditioned there; choose another point"),
         // ------------------------------------------------ arrays
         case("E15", ring("wires = 8", "wires = 0"), "dims ring.toml", 2,
             "error: ring.toml: array.wires: expected a positive integer or \"infinite\", found 0"),
@@ -204,6 +204,8 @@ fn cases() -> Vec<Case> {
             "error: ring.toml: term \"tunnel\".particles: the term reaches wire offset 8, which does not fit an array of 8 wires"),
         case("E28", wire(term, "particles = [1, -1]\nextra_spin = \"one half\"\n"), "dims wire.toml", 2,
             "error: wire.toml: term \"backscatter\".extra_spin: expected an exact fraction (an integer, \"p/q\" or a short decimal), found \"one half\""),
+        case("E29", vec![("wire.toml", format!("{WIRE}target = true\n\n[[term]]\nname = \"pairing\"\nparticles = [1, 1]\ntarget = true\n"))], "dims wire.toml", 2,
+            "error: wire.toml: term \"pairing\".target: the targets must pin together (the target phase is the lattice they span): \"backscatter\" and \"pairing\" do not commute: their mutual phase l_a.K^-1 l_b is 2, not 0; a pinned set must commute"),
         case("E30", wire(term, "particles = [1, -1]\nextra_dimension = \"lambda - 1\"\n"), "dims wire.toml", 2,
             "error: wire.toml: term \"backscatter\".extra_dimension: must be a finite number >= 0, found -0.7 at lambda=0.3"),
         // ------------------------------------------------ parameters and expressions
@@ -426,11 +428,23 @@ fn cases() -> Vec<Case> {
             "error: ring.toml: term \"pair\": its momentum changes by 0.08 from one translate to the next (momentum_per_wire acting on a term with net particle number (1, 1)), and on a periodic ring of 8 wires 8 times that, 0.64, is not a multiple of the momentum period (the model gives none): the translates' momenta do not close around the ring; use an open array, or momenta for which 8 dk is a multiple of momentum_period"),
         case("E97", vec![("ring.toml", flux_pair(&with(RING, "wires = 8", "wires = \"infinite\"")))], "flow ring.toml", 2,
             "error: ring.toml: term \"pair\": its momentum changes by 0.08 from one translate to the next (momentum_per_wire acting on a term with net particle number (1, 1)), so its translates have different cut-offs ell_k; an infinite array flows translation-invariant families only: use a finite array (its translates flow one by one) or a momentum_per_wire that leaves the term's momentum unchanged"),
+        // ------------------------------------------------ dims --pin
+        case("E98", base(), "dims wire.toml --pin backscater", 2,
+            "error: command line: --pin: unknown term \"backscater\" (the model's terms: backscatter)"),
+        case("E99", wire(term, "particles = [1, 0]\n"), "dims wire.toml --pin backscatter", 2,
+            "error: command line: --pin: term \"backscatter\" is not null: its conformal spin (1/2) l.K^-1 l is 1/2, not 0; only null terms can pin"),
+        case("E100",
+            vec![("wire.toml", with(&with(WIRE, term, "vector = [1, 1]\n"), "K = [[1, 0], [0, -1]]", "K = [[3, 0], [0, -3]]"))],
+            "dims wire.toml --pin backscatter", 2,
+            "error: command line: --pin: term \"backscatter\" is not local: its particle content K^-1 l = (1/3, -1/3) is not integral, so it is not built from particles and cannot pin"),
+        case("E101", base(), "dims ring.toml --pin tunnel,cdw", 2,
+            "error: command line: --pin: \"tunnel\" at wire 0 and \"cdw\" at wire 0 do not commute: their mutual phase l_a.K^-1 l_b is -2, not 0; a pinned set must commute"),
         // ------------------------------------------------ successive pinning
-        case("E98", base(), "flow wire.toml --stages 0", 2,
+        case("E102", base(), "flow wire.toml --stages 0", 2,
             "error: command line: --stages: expected a whole number of stages from 1 (stop at the first winner) to 1000000, found 0"),
     ];
-    c.sort_by_key(|c| c.id);
+    // By number: E100 comes after E99, not after E10.
+    c.sort_by_key(|c| c.id[1..].parse::<u32>().expect("ids are E and a number"));
     c
 }
 
@@ -657,5 +671,9 @@ entries! {
     e95_field_wires_with_a_gap => "E95",
     e96_flux_ring_does_not_close => "E96",
     e97_infinite_flux_array => "E97",
-    e98_zero_stages => "E98",
+    e98_dims_pin_unknown => "E98",
+    e99_dims_pin_not_null => "E99",
+    e100_dims_pin_not_local => "E100",
+    e101_dims_pins_do_not_commute => "E101",
+    e102_zero_stages => "E102",
 }

@@ -279,3 +279,87 @@ fn family_rate_sums_translates_that_overlap_in_d() {
         "dDelta/dl = {measured}, expected {family_rate} (single-cosine law: {single_rate})"
     );
 }
+
+/// Outcome of one backscattering cosine with Delta0 = K_L in a single wire
+/// at bare coupling y0, with the DEFAULT options (ell_max = 40, closure
+/// pairs): the real flow code path.
+fn default_outcome(delta0: f64, y0: f64) -> FlowResult {
+    let text = single_cosine(delta0, BACKSCATTER, y0);
+    run(&system(&text), pinflow::flow::FlowOptions::default())
+}
+
+// Issue 13 item 5: with default options the strong/gapless boundary of a
+// single null cosine lies within 1e-3 (relative) of the separatrix value
+// y_c(Delta0) = sqrt(2 (8/Delta0 + 4 ln(Delta0/2) - 4)) (derived above from
+// the invariant; physics reference section 3). Bisection on y0 through the
+// flow code; every flow on the way must be decided (strong above, gapless
+// below), and the flows at y_c (1 +- 1e-3) land on their sides. Before the
+// invariant was used, Delta0 = 2.2 was "undecided" in a band 6.5 % wide.
+#[test]
+fn default_boundary_is_the_kt_separatrix() {
+    for delta0 in [2.2, 2.5, 3.0] {
+        let yc = y_critical(delta0);
+        let strong = |y: f64| {
+            let r = default_outcome(delta0, y);
+            match r.outcome {
+                Outcome::Strong => true,
+                Outcome::Gapless => false,
+                o => panic!(
+                    "Delta0 = {delta0}, y0 = {y}: outcome {o:?} (ended at {})",
+                    r.ell_end
+                ),
+            }
+        };
+        // An asymmetric bracket: no midpoint lands on y_c itself, where the
+        // flow is (rightly) undecided.
+        let (mut lo, mut hi) = (0.9 * yc, 1.13 * yc);
+        assert!(
+            !strong(lo) && strong(hi),
+            "Delta0 = {delta0}: no sign change"
+        );
+        while hi - lo > 2e-4 * yc {
+            let mid = 0.5 * (lo + hi);
+            if strong(mid) {
+                hi = mid
+            } else {
+                lo = mid
+            }
+        }
+        let boundary = 0.5 * (lo + hi);
+        assert!(
+            (boundary / yc - 1.0).abs() < 1e-3,
+            "Delta0 = {delta0}: boundary {boundary} vs y_c = {yc}"
+        );
+        let above = default_outcome(delta0, yc * (1.0 + 1e-3));
+        assert_eq!(above.outcome, Outcome::Strong, "Delta0 = {delta0}");
+        let kt = above.kt.as_ref().expect("the invariant decided the flow");
+        assert_eq!(kt.side, "above");
+        let below = default_outcome(delta0, yc * (1.0 - 1e-3));
+        assert_eq!(below.outcome, Outcome::Gapless, "Delta0 = {delta0}");
+        // Delta_inf from the invariant (bisection in this file) agrees.
+        let i0 = kt_invariant(yc * (1.0 - 1e-3), delta0);
+        if let Some(k) = &below.kt {
+            assert_eq!(k.side, "below");
+            let d = k.delta_inf.expect("Delta_inf below the separatrix");
+            assert!((d - delta_inf(i0, delta0)).abs() < 1e-9, "{d}");
+        }
+    }
+}
+
+// The invariant is only used where it is exact: with a second active
+// cosine (backscattering and umklapp together) it is not applied, even
+// when the flow is undecided at ell_max.
+#[test]
+fn invariant_is_not_used_with_two_active_cosines() {
+    let kl = 2.2;
+    let text = wire(
+        lam_for(kl),
+        &format!(
+            "{}{}",
+            term_toml("bs", BACKSCATTER, y_critical(kl), ""),
+            term_toml("umk", UMKLAPP, 0.01, "")
+        ),
+    );
+    let r = run(&system(&text), pinflow::flow::FlowOptions::default());
+    assert!(r.kt.is_none(), "{:?}", r.kt);
+}

@@ -47,25 +47,47 @@ fn a_marginal_flow_is_undecided_by_ell_max() {
     // Kosterlitz-Thouless flow (derived, see flow_kt.rs: near Delta = 2,
     // x = Delta - 2 obeys dx/dl ~ -y^2 and dy/dl = -x y, so y^2 - x^2 is
     // conserved and y reaches O(1) only after ell ~ (pi/2)/y0 ~ 150) has not
-    // decided by ell = 40.
-    let text = wire(lam_for(2.0), &term_toml("backscatter", "[1, -1]", 0.01, ""));
+    // decided by ell = 40. A second, irrelevant cosine (umklapp, Delta = 8)
+    // keeps the flow out of the single-cosine regime where the KT
+    // invariant would decide it (see the next test).
+    let text = wire(
+        lam_for(2.0),
+        &(term_toml("backscatter", "[1, -1]", 0.01, "")
+            + &term_toml("umklapp", "[2, -2]", 0.01, "")),
+    );
     let r = run(&system(&text), defaults(40.0));
     assert_eq!(r.outcome, Outcome::Undecided);
     assert_eq!(r.ell_end, 40.0);
     assert_eq!(r.winner, None);
-    // ... and it is marginally relevant: it does decide, for strong coupling,
-    // given enough scale. With Delta^2/4 ~ 1 near Delta = 2 the solution
+    assert!(r.kt.is_none());
+}
+
+#[test]
+fn a_marginal_single_cosine_is_decided_by_the_kt_invariant() {
+    // The same backscattering term alone: I = y0^2/2 + I_sep > I_sep, so it
+    // is marginally relevant and ell_max = 40 is extended until it reaches
+    // strong coupling. With Delta^2/4 ~ 1 near Delta = 2 the solution
     // through x = 0 is x = -y0 tan(y0 l), y = y0 / cos(y0 l), which reaches
     // y = 1 at ell* = arccos(y0)/y0 ~ pi/(2 y0) - 1 = 156.1; the neglected
     // Delta^2/4 - 1 = x + x^2/4 matters only in the last few units of ell.
-    let r = run(&system(&text), defaults(1000.0));
-    assert_eq!(r.outcome, Outcome::Strong);
-    let estimate = 0.01f64.acos() / 0.01;
-    let ell_star = r.ell_star.unwrap();
-    assert!(
-        (ell_star - estimate).abs() < 0.02 * estimate,
-        "ell* = {ell_star}, estimate {estimate}"
-    );
+    let text = wire(lam_for(2.0), &term_toml("backscatter", "[1, -1]", 0.01, ""));
+    for ell_max in [40.0, 1000.0] {
+        let r = run(&system(&text), defaults(ell_max));
+        assert_eq!(r.outcome, Outcome::Strong);
+        let estimate = 0.01f64.acos() / 0.01;
+        let ell_star = r.ell_star.unwrap();
+        assert!(
+            (ell_star - estimate).abs() < 0.02 * estimate,
+            "ell* = {ell_star}, estimate {estimate}"
+        );
+        // Only the short ell_max needed the invariant.
+        let kt = r.kt.as_ref().map(|k| (k.side.as_str(), k.ell_max_extended));
+        if ell_max == 40.0 {
+            assert_eq!(kt, Some(("above", Some(160.0))));
+        } else {
+            assert_eq!(kt, None);
+        }
+    }
 }
 
 #[test]

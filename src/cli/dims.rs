@@ -7,7 +7,7 @@ use clap::Args;
 
 use super::common::{check_outputs, emit, FormatArg, PointArgs};
 use crate::dims::convergence::ConvergenceReport;
-use crate::dims::DimsReport;
+use crate::dims::{DimsOptions, DimsReport};
 use crate::error::Error;
 use crate::model::{Model, Wires};
 use crate::output;
@@ -30,6 +30,16 @@ pub struct DimsArgs {
     /// With --wires: also write convergence.png/svg, .csv and .json into this directory.
     #[arg(long, value_name = "DIR", requires = "wires")]
     pub out: Option<PathBuf>,
+    /// Pin these terms (every translate in arrays) and report every term's
+    /// dimension in the residual theory, or that it is disordered (repeatable:
+    /// `--pin a --pin b`, or `--pin a,b`).
+    #[arg(
+        long,
+        value_name = "NAME",
+        value_delimiter = ',',
+        conflicts_with = "wires"
+    )]
+    pub pin: Vec<String>,
 }
 
 /// Parse one entry of `--wires`: a whole number of wires or `infinite`.
@@ -60,6 +70,10 @@ pub(super) fn run(args: DimsArgs) -> Result<(), Error> {
         return emit(args.output.as_deref(), &output::render(&report, format)?);
     }
     let (sys, point) = super::common::load_point(&args.point)?;
-    let report = DimsReport::build(&sys, &point)?;
+    let opts = DimsOptions {
+        pins: args.pin.clone(),
+        ..Default::default()
+    };
+    let report = DimsReport::build_opts(&sys, &point, &opts)?;
     emit(args.output.as_deref(), &output::render(&report, format)?)
 }

@@ -122,6 +122,18 @@ impl Pairing {
         acc
     }
 
+    /// [`Pairing::scaled`] of two translates given by their parts (wire,
+    /// vector over the cell), without dense vectors.
+    pub fn scaled_parts(&self, a: &[(usize, Vec<i64>)], b: &[(usize, Vec<i64>)]) -> i128 {
+        let mut acc: i128 = 0;
+        for (wa, la) in a {
+            for (_, lb) in b.iter().filter(|(wb, _)| wb == wa) {
+                acc = acc.saturating_add(self.scaled(la, lb));
+            }
+        }
+        acc
+    }
+
     /// l and l' commute (l^T K^-1 l' = 0).
     pub fn commute(&self, l: &[i64], lp: &[i64]) -> bool {
         self.scaled(l, lp) == 0
@@ -157,34 +169,6 @@ impl Invariants {
         let t_cell = &model.cell_charge;
         let cell_filling = rational::dot_int(&rational::solve_with(&cell_inverse, t_cell), t_cell);
         let filling = &cell_filling * rational::int(copies as i64);
-        let ms: Vec<Vec<Vec<Rational>>> = lat
-            .families
-            .iter()
-            .map(|f| {
-                f.translates
-                    .iter()
-                    .map(|t| particles_of(lat, &cell_inverse, t))
-                    .collect()
-            })
-            .collect();
-        let terms = model
-            .terms
-            .iter()
-            .zip(&lat.families)
-            .zip(&ms)
-            .map(|((spec, fam), m)| term_invariants(lat, spec, fam, m))
-            .collect();
-        let nf = lat.families.len();
-        let mut commutation = vec![vec![Rational::zero(); nf]; nf];
-        let mut commutes = vec![vec![true; nf]; nf];
-        for a in 0..nf {
-            for b in 0..nf {
-                let fa = &lat.families[a];
-                let rep = fa.representative;
-                commutation[a][b] = same_anchor_phase(&ms[a][rep], fa.rep(), &lat.families[b]);
-                commutes[a][b] = families_commute(&ms[a], &lat.families[b]);
-            }
-        }
         let pairing = Pairing::new(&cell_det, &cell_inverse).ok_or_else(|| {
             InputError::new(
                 &model.file,
@@ -192,6 +176,30 @@ impl Invariants {
                 "K^-1 has entries too large for the commutation tests",
             )
         })?;
+        // Only the representative's particle content is needed densely;
+        // commutation goes through the integer pairing, part by part.
+        let reps: Vec<Vec<Rational>> = lat
+            .families
+            .iter()
+            .map(|f| particles_of(lat, &cell_inverse, f.rep()))
+            .collect();
+        let terms = model
+            .terms
+            .iter()
+            .zip(&lat.families)
+            .zip(&reps)
+            .map(|((spec, fam), m)| term_invariants(lat, &pairing, spec, fam, m))
+            .collect();
+        let nf = lat.families.len();
+        let mut commutation = vec![vec![Rational::zero(); nf]; nf];
+        let mut commutes = vec![vec![true; nf]; nf];
+        for a in 0..nf {
+            for b in 0..nf {
+                let fa = &lat.families[a];
+                commutation[a][b] = same_anchor_phase(&reps[a], fa.rep(), &lat.families[b]);
+                commutes[a][b] = families_commute(lat, &pairing, fa, &lat.families[b]);
+            }
+        }
         Ok(Invariants {
             pairing,
             det_k,
@@ -227,12 +235,11 @@ pub fn particles_of(lat: &Lattice, cell_inverse: &[Vec<Rational>], t: &Translate
 
 fn term_invariants(
     lat: &Lattice,
+    pairing: &Pairing,
     spec: &crate::model::TermSpec,
     fam: &Family,
-    ms: &[Vec<Rational>],
+    m: &[Rational],
 ) -> TermInvariants {
-    let rep = fam.representative;
-    let m = &ms[rep];
     let l = &fam.rep().l;
     let charge = rational::dot_int(m, &lat.charge);
     let spin = rational::dot_int(m, l) / rational::int(2) + &spec.extra_spin;
@@ -240,8 +247,8 @@ fn term_invariants(
         local: rational::is_integral(m),
         null: spin.is_zero(),
         charge_ok: charge == spec.allowed_charge,
-        self_commuting: families_commute(ms, fam),
-        particles: m.clone(),
+        self_commuting: families_commute(lat, pairing, fam, fam),
+        particles: m.to_vec(),
         charge,
         spin,
     }
@@ -256,10 +263,45 @@ fn same_anchor_phase(m_a: &[Rational], ta: &Translate, fb: &Family) -> Rational 
     rational::dot_int(m_a, &tb.l)
 }
 
-fn families_commute(ms_a: &[Vec<Rational>], fb: &Family) -> bool {
-    ms_a.iter().all(|m| {
-        fb.translates
+/// Every translate of `fa` commutes with every translate of `fb`.
+///
+/// The pairing of two translates depends only on their relative offset
+/// (translation invariance: on a ring modulo W, on an open array for the
+/// pairs that exist), so one pair per offset is tested: on a ring the
+/// representative of `fa` against every translate of `fb`; on an open
+/// array, whose anchors are consecutive, one pair for each offset between
+/// the two anchor ranges. Cost O(W) pairs instead of O(W^2).
+fn families_commute(lat: &Lattice, pairing: &Pairing, fa: &Family, fb: &Family) -> bool {
+    let pair = |ta: &Translate, tb: &Translate| pairing.scaled_parts(&ta.parts, &tb.parts) == 0;
+    if lat.boundary == Some(crate::model::Boundary::Periodic) {
+        return fb.translates.iter().all(|tb| pair(fa.rep(), tb));
+    }
+    let (Some(ra), Some(rb)) = (anchor_range(fa), anchor_range(fb)) else {
+        return fa
+            .translates
             .iter()
-            .all(|t| rational::dot_int(m, &t.l).is_zero())
+            .all(|ta| fb.translates.iter().all(|tb| pair(ta, tb)));
+    };
+    let (a0, a1) = (ra.0 as i64, ra.1 as i64);
+    let (b0, b1) = (rb.0 as i64, rb.1 as i64);
+    (b0 - a1..=b1 - a0).all(|d| {
+        // The smallest anchor i of fa with i + d an anchor of fb.
+        let i = a0.max(b0 - d);
+        let (ta, tb) = (
+            &fa.translates[(i - a0) as usize],
+            &fb.translates[(i + d - b0) as usize],
+        );
+        pair(ta, tb)
     })
+}
+
+/// First and last anchor of a family whose anchors are consecutive.
+fn anchor_range(f: &Family) -> Option<(usize, usize)> {
+    let first = f.translates.first()?.anchor;
+    let consecutive = f
+        .translates
+        .iter()
+        .enumerate()
+        .all(|(k, t)| t.anchor == first + k);
+    consecutive.then(|| (first, first + f.translates.len() - 1))
 }

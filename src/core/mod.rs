@@ -4,7 +4,9 @@
 //! fields, [`qspace`] per wavevector for translation-invariant arrays), and
 //! the phase a pinned set of terms names ([`phase`]), and
 //! the [`system::System`] that holds them ready for evaluation at many
-//! points. Engines (dims, flow, scan, search, edges) build on this layer;
+//! points; the residual theory of a pinned set ([`pinned`]) and the
+//! identity and name of a pinned phase ([`phase`]). Engines (dims, flow,
+//! scan, search, edges) build on this layer;
 //! it never reaches up to them.
 
 pub mod fixed_point;
@@ -12,6 +14,8 @@ pub mod invariants;
 pub mod lattice;
 pub mod momentum;
 pub mod phase;
+pub mod pinned;
+pub mod pinned_span;
 pub mod qspace;
 pub mod relevance;
 pub mod system;

@@ -91,13 +91,15 @@ impl System {
         let k = lattice.k_f64();
         let periodic = lattice.boundary == Some(Boundary::Periodic) && lattice.wires >= 2;
         let q = periodic.then(|| QModel::new(&model, &lattice, &invariants));
-        Ok(System {
+        let sys = System {
             model,
             lattice,
             invariants,
             k,
             q,
-        })
+        };
+        crate::core::pinned::set::check_targets(&sys)?;
+        Ok(sys)
     }
 
     /// True for an infinite array.
@@ -269,6 +271,73 @@ impl System {
         Ok(qm.terms.iter().map(|t| fp.dimension_of(t)).collect())
     }
 
+    /// Error data of every term's q-space dimension on the N-point rule:
+    /// (relative error bound, sensitivity to V's rounding) from the dense
+    /// bound of [`FixedPoint::dimension_error`] on the real form of each
+    /// V(q) ([`crate::core::fixed_point::hermitian_embedding`]), weighted like
+    /// the quadrature; and whether any V(q) needed the extended route.
+    pub fn q_dimension_errors(
+        &self,
+        point: &[f64],
+        points: usize,
+    ) -> Result<(Vec<[f64; 2]>, bool), Error> {
+        let qm = self.q_model()?;
+        let blocks = self.v_blocks(point)?;
+        let (c, n) = (qm.k.nrows(), points);
+        let mut per_q = Vec::new();
+        for k in 0..qspace::half(n) {
+            let (ke, ve) = crate::core::fixed_point::hermitian_embedding(
+                &qm.k,
+                &qspace::v_of_q(&blocks, qspace::q_of(k, n)),
+            );
+            let Ok(f) = FixedPoint::solve(&ke, &ve) else {
+                // Not positive definite: the q-space path's own report (the
+                // worst q of a ring, the certified check of an infinite
+                // array) is the error.
+                return Err(match self.q_fixed_point(point, n) {
+                    Err(e) => e,
+                    Ok(_) => Error::Numerical(format!(
+                        "V(q) at q = {:.6} failed the Cholesky factorisation of the error bound but not of the fixed point",
+                        qspace::q_of(k, n)
+                    )),
+                });
+            };
+            per_q.push(f);
+        }
+        let extended = per_q.iter().any(|f| f.accuracy.extended);
+        let rows = qm
+            .terms
+            .iter()
+            .map(|t| {
+                let lq = qspace::fourier_vector(t, c, n);
+                let (mut delta, mut err, mut sens) = (0.0, 0.0, 0.0);
+                for (k, f) in per_q.iter().enumerate() {
+                    let x: Vec<f64> = (0..2 * c)
+                        .map(|i| {
+                            if i < c {
+                                lq[k * c + i].re
+                            } else {
+                                lq[k * c + i - c].im
+                            }
+                        })
+                        .collect();
+                    let xd = nalgebra::DVector::from_column_slice(&x);
+                    let dk = 0.5 * (&f.d * &xd).dot(&xd);
+                    let w = qspace::weight(k, n);
+                    delta += w * dk;
+                    err += w * dk * f.accuracy.relative_error(&f.d, &x, dk);
+                    sens += w * dk * f.accuracy.input_sensitivity(&x, dk);
+                }
+                if delta > 0.0 {
+                    [err / delta, sens / delta]
+                } else {
+                    [0.0, 0.0]
+                }
+            })
+            .collect();
+        Ok((rows, extended))
+    }
+
     /// The real-space D restricted to `wires` consecutive wires (fields
     /// wire-major), from D(q): D_{j,j'} = integral dq/2pi e^{iq(j-j')} D(q)
     /// (conventions of [`crate::core::qspace`]). A periodic array of W wires:
@@ -355,7 +424,12 @@ impl System {
             })
         })?;
         let drift = crate::core::fixed_point::identity_drift(&self.k, &fp.d);
-        if drift <= ACCURACY {
+        let trusted =
+            fp.accuracy.extended && fp.accuracy.is_finite() && fp.d.iter().all(|x| x.is_finite());
+        if drift <= ACCURACY || trusted {
+            // The extended route is judged by its per-dimension error
+            // bound (`FixedPoint::dimension_error`), not by the drift of
+            // the D rounded to doubles.
             return Ok(fp);
         }
         let cond = crate::core::fixed_point::condition_number(&v);

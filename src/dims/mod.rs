@@ -16,6 +16,7 @@ pub mod convergence;
 
 use serde::Serialize;
 
+use crate::core::fixed_point::DIMENSION_ERROR_LIMIT;
 use crate::core::momentum::MOMENTUM_TOLERANCE;
 use crate::core::qspace::Quadrature;
 use crate::core::relevance::{is_relevant, rg_eigenvalue};
@@ -39,6 +40,10 @@ pub enum Algebra {
 /// What one evaluation of the fixed point gives the report.
 struct Evaluated {
     bosonic: Vec<f64>,
+    /// Per term: [relative error bound, sensitivity to V's rounding].
+    errors: Vec<[f64; 2]>,
+    /// D was computed in double-double (ill-conditioned V).
+    extended: bool,
     velocities: Vec<f64>,
     chiralities: Vec<i8>,
     velocity_ranges: Option<Vec<[f64; 2]>>,
@@ -52,39 +57,95 @@ fn evaluate(sys: &System, point: &[f64], algebra: Algebra) -> Result<Evaluated, 
         Algebra::QSpace => true,
     };
     if !q {
-        let fp = sys.fixed_point(point)?;
-        return Ok(Evaluated {
-            bosonic: sys
-                .lattice
-                .families
-                .iter()
-                .map(|f| fp.dimension(&f.rep().l))
-                .collect(),
-            velocities: fp.velocities,
-            chiralities: fp.chirality,
-            velocity_ranges: None,
-            quadrature: None,
-        });
+        return evaluate_dense(sys, point);
     }
     if sys.is_infinite() {
         let (fp, quad) = sys.q_converged(point)?;
+        // The infinite array's D(q) stays in doubles (there is no dense
+        // path); the bound says how accurate it is.
+        let (errors, _) = sys.q_dimension_errors(point, fp.points)?;
         return Ok(Evaluated {
             bosonic: sys.q_dimensions(&fp)?,
+            errors,
+            extended: false,
             velocities: fp.velocities[0].clone(),
             chiralities: fp.chirality.clone(),
             velocity_ranges: Some(fp.velocity_ranges()),
             quadrature: Some(quad),
         });
     }
+    let (errors, extended) = sys.q_dimension_errors(point, sys.lattice.wires)?;
+    if extended && algebra == Algebra::Auto {
+        // Ill-conditioned V(q): the dense path of the same ring computes
+        // the same numbers in double-double.
+        return evaluate_dense(sys, point);
+    }
     let fp = sys.q_fixed_point(point, sys.lattice.wires)?;
     let (velocities, chiralities) = fp.all_velocities();
     Ok(Evaluated {
         bosonic: sys.q_dimensions(&fp)?,
+        errors,
+        extended: false,
         velocities,
         chiralities,
         velocity_ranges: None,
         quadrature: None,
     })
+}
+
+fn evaluate_dense(sys: &System, point: &[f64]) -> Result<Evaluated, Error> {
+    let fp = sys.fixed_point(point)?;
+    let reps = || sys.lattice.families.iter().map(|f| &f.rep().l);
+    Ok(Evaluated {
+        bosonic: reps().map(|l| fp.dimension(l)).collect(),
+        errors: reps()
+            .map(|l| [fp.dimension_error(l), fp.dimension_sensitivity(l)])
+            .collect(),
+        extended: fp.accuracy.extended,
+        velocities: fp.velocities,
+        chiralities: fp.chirality,
+        velocity_ranges: None,
+        quadrature: None,
+    })
+}
+
+/// Refuse a point where some dimension's error bound exceeds
+/// [`DIMENSION_ERROR_LIMIT`] (the message names the point and the term).
+fn check_errors(sys: &System, point: &[f64], ev: &Evaluated) -> Result<(), Error> {
+    let worst = ev
+        .errors
+        .iter()
+        .enumerate()
+        .max_by(|a, b| a.1[0].total_cmp(&b.1[0]));
+    match worst {
+        Some((i, e)) if e[0] > DIMENSION_ERROR_LIMIT || e[0].is_nan() => Err(Error::Inaccurate(format!(
+            "{}: the scaling dimension of term \"{}\" at {} cannot be computed accurately: its error bound is {:.1e} (relative; at most {:.0e} is accepted), V is badly conditioned there; choose another point",
+            sys.model.file,
+            sys.model.terms[i].name,
+            sys.model.params.describe(point),
+            e[0],
+            DIMENSION_ERROR_LIMIT
+        ))),
+        _ => Ok(()),
+    }
+}
+
+/// Notes on accuracy: the extended route, and dimensions that the rounding
+/// of V's entries to doubles moves by more than the limit.
+fn accuracy_notes(names: &[String], ev: &Evaluated) -> Vec<String> {
+    let mut notes = Vec::new();
+    if ev.extended {
+        notes.push("V is ill-conditioned at this point: D was computed in double-double arithmetic (about 31 digits); `dimension_error` bounds each dimension's error".to_string());
+    }
+    for (name, e) in names.iter().zip(&ev.errors) {
+        if e[1] > DIMENSION_ERROR_LIMIT {
+            notes.push(format!(
+                "the dimension of {name} is sensitive to V: rounding V's entries to doubles (relative 1.1e-16) can move it by {:.1e} (relative), so V's parameters must be known to that accuracy",
+                e[1]
+            ));
+        }
+    }
+    notes
 }
 
 /// One term's row.
@@ -104,6 +165,10 @@ pub struct TermRow {
     pub wire: usize,
     /// Total scaling dimension (bosonic part plus extra dimension).
     pub dimension: f64,
+    /// First-order bound on the relative rounding error of `dimension`
+    /// (see `FixedPoint::dimension_error`); points where it exceeds 1e-8
+    /// are refused.
+    pub dimension_error: f64,
     /// Fixed extra dimension from sectors the bosons do not describe.
     pub extra_dimension: f64,
     /// Conformal spin (exact), including the extra spin.
@@ -142,6 +207,18 @@ pub struct TermRow {
     pub self_commuting: bool,
     /// Bare coupling y at this point.
     pub coupling: f64,
+    /// With `--pin`: commutes with every pinned translate.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub commutes_with_pinned: Option<bool>,
+    /// With `--pin`: the dimension in the residual theory of the pinned set
+    /// (exact Schur form with the real V, plus the extra dimension); null
+    /// when the term is disordered.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub dimension_pinned: Option<Option<f64>>,
+    /// With `--pin`: fails to commute with a pinned translate (its
+    /// correlations decay exponentially in the pinned phase).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub disordered: Option<bool>,
 }
 
 /// The whole `dims` report.
@@ -180,6 +257,17 @@ pub struct DimsReport {
     /// The momentum period G (`momentum_period`) at the point, by which
     /// every term's `momentum` is reduced to (-G/2, G/2]; null without one.
     pub momentum_period: Option<f64>,
+    /// With `--pin`: the pinned term families (every translate in arrays).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub pinned: Option<Vec<String>>,
+    /// With `--pin`: the phase of the pinned set (label, invariants, and
+    /// whether it is the target phase; see [`crate::core::phase`]).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub phase: Option<crate::core::phase::Phase>,
+    /// With `--pin` on an infinite array: the quadrature of the pinned
+    /// integrals (midpoint rule).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub pinned_quadrature: Option<Quadrature>,
     /// One row per term.
     pub terms: Vec<TermRow>,
     /// Mutual phases l_a^T K^-1 l_b ("p/q").
@@ -190,7 +278,82 @@ pub struct DimsReport {
     pub notes: Vec<String>,
 }
 
+/// Options of the `dims` report.
+#[derive(Debug, Clone)]
+pub struct DimsOptions {
+    /// Term families to pin (empty: the plain report).
+    pub pins: Vec<String>,
+    /// The code path.
+    pub algebra: Algebra,
+}
+
+impl Default for DimsOptions {
+    fn default() -> Self {
+        DimsOptions {
+            pins: Vec::new(),
+            algebra: Algebra::Auto,
+        }
+    }
+}
+
 impl DimsReport {
+    /// The report with options: with pins, every term also gets its place
+    /// in the residual theory of the pinned set ([`crate::core::pinned`]).
+    pub fn build_opts(
+        sys: &System,
+        point: &[f64],
+        opts: &DimsOptions,
+    ) -> Result<DimsReport, Error> {
+        let set = if opts.pins.is_empty() {
+            None
+        } else {
+            Some(crate::core::pinned::set::from_names(
+                sys, &opts.pins, "--pin",
+            )?)
+        };
+        let mut report = DimsReport::build_with(sys, point, opts.algebra)?;
+        if let Some(set) = set {
+            let dense = opts.algebra == Algebra::Dense;
+            let pd = crate::core::pinned::set::evaluate(
+                sys,
+                &set,
+                point,
+                crate::core::pinned::Form::Exact,
+                dense,
+            )?;
+            report.add_pinned(&set, &pd);
+            report.phase = Some(phase_of(sys, &set));
+        }
+        Ok(report)
+    }
+
+    fn add_pinned(
+        &mut self,
+        set: &crate::core::pinned::set::PinnedSet,
+        pd: &crate::core::pinned::set::PinnedDims,
+    ) {
+        for (i, row) in self.terms.iter_mut().enumerate() {
+            row.commutes_with_pinned = Some(pd.commutes[i]);
+            row.disordered = Some(!pd.commutes[i]);
+            row.dimension_pinned = Some(pd.bosonic[i].map(|d| d + row.extra_dimension));
+        }
+        self.pinned = Some(set.names.clone());
+        self.pinned_quadrature = pd.quadrature;
+        self.notes.push(pinned_note(
+            &set.names,
+            self.wires.is_some() || self.infinite,
+        ));
+        if let Some(q) = &pd.quadrature {
+            self.notes.push(format!(
+                "Pinned dimensions of the infinite array: midpoint rule q = 2 pi (k + 1/2) / N with {} points, error estimate {:.1e} (tolerance {:.0e}){}",
+                q.points,
+                q.error_estimate,
+                q.tolerance,
+                if q.converged { "" } else { "; NOT converged" }
+            ));
+        }
+    }
+
     /// Compute the report at a parameter point ([`Algebra::Auto`]).
     pub fn build(sys: &System, point: &[f64]) -> Result<DimsReport, Error> {
         DimsReport::build_with(sys, point, Algebra::Auto)
@@ -200,6 +363,7 @@ impl DimsReport {
     pub fn build_with(sys: &System, point: &[f64], algebra: Algebra) -> Result<DimsReport, Error> {
         sys.model.check_point(point)?;
         let ev = evaluate(sys, point, algebra)?;
+        check_errors(sys, point, &ev)?;
         let extra = sys.extra_dimensions(point)?;
         let momenta = sys.momentum_mismatches(point);
         let inv = &sys.invariants;
@@ -234,6 +398,7 @@ impl DimsReport {
                 particles_exact: particles.iter().map(fmt_rational).collect(),
                 wire: rep.anchor,
                 dimension,
+                dimension_error: ev.errors[i][0],
                 extra_dimension: extra[i],
                 spin: fmt_rational(&ti.spin),
                 h: (dimension + s) / 2.0,
@@ -251,10 +416,15 @@ impl DimsReport {
                 momentum_per_translate: dk,
                 self_commuting: ti.self_commuting,
                 coupling: spec.coupling.eval(point),
+                commutes_with_pinned: None,
+                dimension_pinned: None,
+                disordered: None,
             });
         }
         let parameters = sys.model.params.json_point(point);
         let mut notes = notes_for(&terms);
+        let names: Vec<String> = terms.iter().map(|t| t.name.clone()).collect();
+        notes.extend(accuracy_notes(&names, &ev));
         let starred = inv.commutation.iter().zip(&inv.commutes).any(|(ph, ok)| {
             ph.iter()
                 .zip(ok)
@@ -296,6 +466,9 @@ impl DimsReport {
             velocity_ranges: ev.velocity_ranges,
             quadrature: ev.quadrature,
             momentum_period,
+            pinned: None,
+            phase: None,
+            pinned_quadrature: None,
             terms,
             commutation: inv
                 .commutation
@@ -306,6 +479,34 @@ impl DimsReport {
             notes,
         })
     }
+}
+
+/// The phase a pinned set of model terms spans.
+fn phase_of(sys: &System, set: &crate::core::pinned::set::PinnedSet) -> crate::core::phase::Phase {
+    use crate::core::phase;
+    let fams: Vec<&crate::core::lattice::Family> = set
+        .indices
+        .iter()
+        .map(|&i| &sys.lattice.families[i])
+        .collect();
+    let lat = phase::PhaseLattice::new(&sys.lattice, &fams);
+    let target = phase::target_lattice(sys);
+    phase::name(
+        &sys.lattice,
+        &lat,
+        &set.names,
+        &phase::listed(sys),
+        target.as_ref(),
+    )
+}
+
+/// What the pinned columns mean.
+fn pinned_note(names: &[String], array: bool) -> String {
+    let every = if array { "every translate of " } else { "" };
+    format!(
+        "Pinned: {every}{}. dimension_pinned is the scaling dimension in the residual Gaussian theory once these are pinned (the pinned combinations and their radical K^-1 P integrated out: Schur complement with the real V; docs/physics.md, section 8), plus any extra dimension; a term that fails to commute with a pinned translate is disordered (exponentially decaying correlations) and has no pinned dimension.",
+        names.iter().map(|n| format!("\"{n}\"")).collect::<Vec<_>>().join(", ")
+    )
 }
 
 /// dk of term i (see [`TermRow::momentum_per_translate`]); None for
@@ -409,6 +610,25 @@ impl Report for DimsReport {
             ),
             ("fields".to_string(), self.fields.to_string()),
         ];
+        let mut pinned_fact: Vec<(String, String)> = self
+            .pinned
+            .iter()
+            .map(|p| ("pinned".to_string(), p.join(", ")))
+            .collect();
+        if let Some(p) = &self.phase {
+            let per = if self.infinite { " per wire" } else { "" };
+            pinned_fact.push((
+                "phase".to_string(),
+                format!(
+                    "{}: {} gapped pairs, {} gapless modes{per}{}{}",
+                    p.label,
+                    p.gapped_pairs,
+                    p.gapless_modes,
+                    if p.fully_gapped { ", fully gapped" } else { "" },
+                    if p.target { ", the target phase" } else { "" }
+                ),
+            ));
+        }
         if let Some(w) = self.wires {
             f.push(("wires".to_string(), w.to_string()));
         }
@@ -457,6 +677,7 @@ impl Report for DimsReport {
                 f.push(("velocity range over q".to_string(), ranges.join("; ")));
             }
         }
+        f.extend(pinned_fact);
         f
     }
 
@@ -516,6 +737,9 @@ impl Report for DimsReport {
                     .unwrap_or_default(),
             ]);
         }
+        if self.pinned.is_some() {
+            self.add_pinned_columns(&mut t);
+        }
         t
     }
 
@@ -525,6 +749,18 @@ impl Report for DimsReport {
 }
 
 impl DimsReport {
+    /// CSV columns commutes_with_pinned, dimension_pinned, disordered.
+    fn add_pinned_columns(&self, t: &mut Table) {
+        for h in ["commutes_with_pinned", "dimension_pinned", "disordered"] {
+            t.headers.push(h.to_string());
+        }
+        for (cells, r) in t.rows.iter_mut().zip(&self.terms) {
+            cells.push(opt_string(r.commutes_with_pinned));
+            cells.push(opt_string(r.dimension_pinned.flatten()));
+            cells.push(opt_string(r.disordered));
+        }
+    }
+
     fn term_table(&self) -> Table {
         let mut t = Table::new(
             "terms",
@@ -573,7 +809,22 @@ impl DimsReport {
                     .unwrap_or_else(|| "-".into()),
             ]);
         }
+        if self.pinned.is_some() {
+            self.add_pinned_text(&mut t);
+        }
         t
+    }
+
+    /// Text/Markdown/LaTeX column "Delta pinned": the value, or
+    /// "disordered".
+    fn add_pinned_text(&self, t: &mut Table) {
+        t.headers.push("Delta pinned".to_string());
+        for (cells, r) in t.rows.iter_mut().zip(&self.terms) {
+            cells.push(match r.dimension_pinned.flatten() {
+                Some(d) => format!("{d:.6}"),
+                None => "disordered".to_string(),
+            });
+        }
     }
 
     fn commutation_table(&self) -> Table {
@@ -594,6 +845,10 @@ impl DimsReport {
         }
         t
     }
+}
+
+fn opt_string<T: std::fmt::Display>(x: Option<T>) -> String {
+    x.map(|v| v.to_string()).unwrap_or_default()
 }
 
 fn yes_no(b: bool) -> String {

@@ -35,6 +35,7 @@
 pub mod background;
 pub mod channels;
 pub mod check;
+pub mod kt;
 pub mod options;
 pub mod report;
 pub mod rhs;
@@ -141,6 +142,21 @@ pub struct ChannelResult {
     pub ell_k: Option<f64>,
 }
 
+/// The runner-up of a strong-coupling outcome (JSON `runner_up`).
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct RunnerUp {
+    /// Channel name.
+    pub name: String,
+    /// |y| at ell*.
+    pub coupling: f64,
+    /// `coupling` is within [`NEAR_TIE`] (relative) of y_strong: the
+    /// winner is decided by a margin the second-order flow cannot resolve.
+    pub near_tie: bool,
+}
+
+/// A runner-up within this fraction of y_strong is a near tie.
+pub const NEAR_TIE: f64 = 0.05;
+
 /// The result of one flow.
 #[derive(Debug, Clone, Serialize)]
 pub struct FlowResult {
@@ -164,12 +180,17 @@ pub struct FlowResult {
     pub gap: Option<f64>,
     /// The phase of the final pinned set (null for points that could not
     /// flow).
-    pub phase: Option<crate::core::phase::Phase>,
+    pub phase: Option<crate::core::pinned_span::Phase>,
     /// Where the integration ended (its last stage's, when successive
     /// pinning flowed on).
     pub ell_end: f64,
     /// Every channel that flowed (listed first).
     pub terms: Vec<ChannelResult>,
+    /// Strong and spinful outcomes: the channel with the largest |y| at
+    /// ell* after the winner, among those still flowing there (not past
+    /// their momentum cut-off); null when there is none or for other
+    /// outcomes.
+    pub runner_up: Option<RunnerUp>,
     /// Terms that commute with the winner (may pin together with it).
     pub commuting_with_winner: Vec<String>,
     /// Terms that do not commute with the winner (pinning suppresses them).
@@ -187,6 +208,10 @@ pub struct FlowResult {
     /// The model's reciprocal lattice vector G (`momentum_period`) at the
     /// point, modulo which the momenta `k` are reduced; null without one.
     pub momentum_period: Option<f64>,
+    /// Single null cosine flowing alone: what the Kosterlitz-Thouless
+    /// invariant decided, and how far ell_max was extended (see [`kt`]);
+    /// null when the invariant was not used.
+    pub kt: Option<kt::KtDecision>,
     /// The pairs closure's range in wires (generated terms spanning more
     /// wires are left out); null when no range applies or without closure.
     pub closure_range: Option<usize>,
@@ -217,7 +242,8 @@ pub struct Flow<'s> {
     pub opts: FlowOptions,
     layout: Layout,
     /// Phases already named, by sorted plan indices of the pinned set.
-    phases: std::sync::Mutex<std::collections::HashMap<Vec<usize>, crate::core::phase::Phase>>,
+    phases:
+        std::sync::Mutex<std::collections::HashMap<Vec<usize>, crate::core::pinned_span::Phase>>,
 }
 
 /// How D is carried.
@@ -269,6 +295,7 @@ impl<'s> Flow<'s> {
         match self.layout {
             Layout::Dense => {
                 let fp = self.sys.fixed_point(point)?;
+                self.check_storage(point, &fp)?;
                 let bg = Background::Dense { n: lat.n };
                 let mut d0 = vec![0.0; bg.len()];
                 bg.write(&fp.d, &mut d0);
@@ -305,6 +332,30 @@ impl<'s> Flow<'s> {
                 })
             }
         }
+    }
+
+    /// Refuse a dense start whose listed terms' dimensions, computed from a
+    /// D carried in doubles, have an error bound above
+    /// [`crate::core::fixed_point::DIMENSION_ERROR_LIMIT`] (ill-conditioned V).
+    fn check_storage(
+        &self,
+        point: &[f64],
+        fp: &crate::core::fixed_point::FixedPoint,
+    ) -> Result<(), Error> {
+        let limit = crate::core::fixed_point::DIMENSION_ERROR_LIMIT;
+        for (t, fam) in self.sys.model.terms.iter().zip(&self.sys.lattice.families) {
+            let l = &fam.rep().l;
+            let e = fp.dimension_error(l) + fp.storage_error(l);
+            if e > limit || e.is_nan() {
+                return Err(Error::Inaccurate(format!(
+                    "{}: the flow at {} cannot be computed accurately: the scaling dimension of term \"{}\" from D in double precision has error bound {e:.1e} (relative; at most {limit:.0e} is accepted), V is badly conditioned there; choose another point",
+                    self.sys.model.file,
+                    self.sys.model.params.describe(point),
+                    t.name
+                )));
+            }
+        }
+        Ok(())
     }
 
     /// The start of an infinite array's flow on the rule of `fp`.
@@ -392,11 +443,17 @@ impl<'s> Flow<'s> {
         }
         let y_start = y0.clone();
         let ell_k: Vec<Option<f64>> = momenta.iter().map(|k| k.and_then(cutoff_scale)).collect();
-        let integrated = integrate(&mut rhs, y0, &ell_k, &self.opts, 0.0);
+        let mut integrated = integrate(&mut rhs, y0, &ell_k, &self.opts, 0.0);
+        let mut kt_decision = None;
+        if let Some(c) = kt::regime(&rhs, y_start.as_slice(), &ell_k) {
+            (integrated, kt_decision) =
+                kt::decide(&mut rhs, c, y_start.as_slice(), integrated, &self.opts);
+        }
         let staged = self.stages(&mut rhs, &integrated, &ell_k);
         let mut result = self.summarise(
             &rhs, &included, &bare, &y_start, &momenta, &ell_k, integrated,
         );
+        result.kt = kt_decision;
         self.attach_stages(&mut result, staged, &included);
         result.quadrature = start.quadrature;
         result.momentum_period = self.sys.model.momentum_period_at(point);
@@ -514,6 +571,7 @@ impl<'s> Flow<'s> {
             gap: integrated.ell_star.map(|l| (-l).exp()),
             phase: None,
             ell_end: integrated.ell_end,
+            runner_up: None,
             terms,
             commuting_with_winner: Vec::new(),
             suppressed: Vec::new(),
@@ -521,6 +579,7 @@ impl<'s> Flow<'s> {
             quadrature: None,
             flow_quadrature: None,
             momentum_period: None,
+            kt: None,
             closure_range: self.plan.range,
             plan_notes: self.plan_notes(),
             listed_rows: self.listed_rows(included),
@@ -529,6 +588,7 @@ impl<'s> Flow<'s> {
             samples: rhs.samples.clone(),
         };
         if let Some(w) = integrated.winner {
+            result.runner_up = runner_up(&result, w, self.opts.y_strong);
             let win = &self.plan.channels[included[w]];
             for (i, &c) in included.iter().enumerate() {
                 if i == w {
@@ -577,12 +637,14 @@ impl FlowResult {
             phase: None,
             ell_end: 0.0,
             terms: Vec::new(),
+            runner_up: None,
             commuting_with_winner: Vec::new(),
             suppressed: Vec::new(),
             dkd_drift: 0.0,
             quadrature: None,
             flow_quadrature: None,
             momentum_period: None,
+            kt: None,
             closure_range: None,
             plan_notes: Vec::new(),
             listed_rows: Vec::new(),
@@ -591,6 +653,23 @@ impl FlowResult {
             samples: Vec::new(),
         }
     }
+}
+
+/// The largest |y| at ell* among the channels other than the winner `w`
+/// that still flow there (a term past its cut-off ell_k < ell* is not
+/// competing).
+fn runner_up(r: &FlowResult, w: usize, y_strong: f64) -> Option<RunnerUp> {
+    let ell = r.ell_star?;
+    r.terms
+        .iter()
+        .enumerate()
+        .filter(|(i, t)| *i != w && t.ell_k.is_none_or(|k| k > ell))
+        .max_by(|a, b| a.1.coupling.total_cmp(&b.1.coupling))
+        .map(|(_, t)| RunnerUp {
+            name: t.name.clone(),
+            coupling: t.coupling,
+            near_tie: t.coupling >= (1.0 - NEAR_TIE) * y_strong,
+        })
 }
 
 fn extra_of(ch: &Channel, extra_listed: &[f64]) -> f64 {

@@ -9,6 +9,25 @@ use super::{Closure, FlowOptions, FlowResult, Outcome, QuadratureCheck, RuleChoi
 use crate::error::Error;
 use crate::output::{self, Report, Table};
 
+/// The note of a flow decided by the Kosterlitz-Thouless invariant.
+fn kt_note(k: &super::kt::KtDecision, ell_max: f64) -> String {
+    let gap = k.invariant - k.separatrix;
+    let base = format!(
+        "{} is a single null cosine flowing alone, where the Kosterlitz-Thouless invariant I = y^2/2 - 8/Delta - 4 ln Delta is exact: I - I_sep = {gap:.3e} (numerical drift {:.1e})",
+        k.channel, k.drift
+    );
+    match (k.side.as_str(), k.ell_max_extended) {
+        ("above", Some(e)) => format!(
+            "{base}; above the separatrix it reaches strong coupling, so ell_max was extended from {ell_max} (up to {e})"
+        ),
+        ("below", _) => format!(
+            "{base}; below the separatrix y -> 0 and Delta -> {:.6}, so the flow is gapless although ell_max = {ell_max} was reached first",
+            k.delta_inf.unwrap_or(f64::NAN)
+        ),
+        _ => format!("{base}: on the separatrix within the accuracy of the flow, undecided"),
+    }
+}
+
 /// The limits of the method, stated with every flow result.
 pub const METHOD_NOTE: &str = "Second-order (one-loop) weak-coupling RG around a Gaussian fixed point with a single reference velocity; \"strong\" means |y| reached y_strong, where perturbation theory stops being reliable. The gap estimate e^-ell* is an order of magnitude.";
 
@@ -64,6 +83,9 @@ impl FlowReport {
             notes.push(crate::dims::period_note(g));
         }
         notes.extend(result.plan_notes.iter().cloned());
+        if let Some(k) = &result.kt {
+            notes.push(kt_note(k, options.ell_max));
+        }
         if let Some(c) = result.flow_quadrature.as_ref().filter(|c| !c.converged) {
             notes.push(check_note(c));
         }
@@ -81,21 +103,82 @@ impl FlowReport {
         let r = &self.result;
         match r.outcome {
             Outcome::Strong => format!(
-                "{} reaches strong coupling first, at ell* = {:.4} (gap ~ {:.3e} of the bandwidth u/alpha)",
+                "{} reaches strong coupling first, at ell* = {:.4} (gap ~ {:.3e} of the bandwidth u/alpha){}",
                 r.winner.as_deref().unwrap_or("?"),
                 r.ell_star.unwrap_or(f64::NAN),
-                r.ell_star.map_or(f64::NAN, |l| (-l).exp())
+                r.ell_star.map_or(f64::NAN, |l| (-l).exp()),
+                self.tie_text()
             ),
             Outcome::Spinful => format!(
-                "{} (conformal spin != 0) reaches strong coupling at ell* = {:.4}: the fixed point is unstable, but this term alone opens no gap",
+                "{} (conformal spin != 0) reaches strong coupling at ell* = {:.4}: the fixed point is unstable, but this term alone opens no gap{}",
                 r.winner.as_deref().unwrap_or("?"),
-                r.ell_star.unwrap_or(f64::NAN)
+                r.ell_star.unwrap_or(f64::NAN),
+                self.tie_text()
             ),
-            Outcome::Gapless => format!("every coupling decayed by ell = {:.4}: gapless (stable fixed point)", r.ell_end),
+            Outcome::Gapless => self.gapless_text(),
             Outcome::Undecided => format!("no decision by ell_max = {} (near-marginal flow)", r.ell_end),
             Outcome::Unphysical => format!("unphysical point: {}", r.message.as_deref().unwrap_or("")),
             Outcome::Failed => r.message.clone().unwrap_or_else(|| "integration failed".into()),
         }
+    }
+
+    /// "; near tie: ..." when the runner-up is within 5 % of y_strong.
+    fn tie_text(&self) -> String {
+        match &self.result.runner_up {
+            Some(r) if r.near_tie => format!(
+                "; near tie: {} has |y| = {:.4} at ell*, within {:.0} % of y_strong = {}",
+                r.name,
+                r.coupling,
+                100.0 * super::NEAR_TIE,
+                self.options.y_strong
+            ),
+            _ => String::new(),
+        }
+    }
+
+    /// What happened in a gapless flow: terms stopped by their momentum
+    /// cut-off before they decayed below the floor are named with the
+    /// coupling they reached there ("grew to" or "decayed to"); the rest
+    /// decayed.
+    fn gapless_text(&self) -> String {
+        let r = &self.result;
+        if let Some(k) = r.kt.as_ref().filter(|k| k.side == "below") {
+            return format!(
+                "{} flows to zero (Kosterlitz-Thouless invariant below the separatrix; Delta -> {:.6}): gapless (stable fixed point)",
+                k.channel,
+                k.delta_inf.unwrap_or(f64::NAN)
+            );
+        }
+        let cut: Vec<String> = r
+            .terms
+            .iter()
+            .filter(|t| t.ell_k.is_some_and(|k| k <= r.ell_end) && t.coupling >= self.options.floor)
+            .map(|t| {
+                let how = if t.coupling > t.coupling0.abs() {
+                    "grew"
+                } else {
+                    "decayed"
+                };
+                format!(
+                    "{} {how} to {:.3} and stopped at its momentum cut-off ell_k = {:.2}",
+                    t.name,
+                    t.coupling,
+                    t.ell_k.unwrap_or(f64::NAN)
+                )
+            })
+            .collect();
+        if cut.is_empty() {
+            return format!(
+                "every coupling decayed by ell = {:.4}: gapless (stable fixed point)",
+                r.ell_end
+            );
+        }
+        let rest = if cut.len() == r.terms.len() {
+            "no term flows past its cut-off".to_string()
+        } else {
+            format!("every other coupling decayed by ell = {:.4}", r.ell_end)
+        };
+        format!("{}; {rest}: gapless (stable fixed point)", cut.join("; "))
     }
 
     /// A short outcome for figure titles.

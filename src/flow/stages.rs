@@ -38,7 +38,7 @@ use super::channels::Origin;
 use super::rhs::FlowRhs;
 use super::{integrate, Flow, FlowResult, Integrated, Outcome};
 use crate::core::lattice::Family;
-use crate::core::phase::{name_phase, Candidate, Phase, PinnedLattice};
+use crate::core::pinned_span::{name_phase, Candidate, Phase, PinnedLattice};
 
 /// One stage of a staged flow.
 #[derive(Debug, Clone, PartialEq, Serialize)]

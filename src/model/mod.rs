@@ -94,7 +94,8 @@ pub struct TermSpec {
     pub extra_dimension: Scalar,
     /// Fixed extra conformal spin sigma.
     pub extra_spin: Rational,
-    /// The term the model is meant to realise.
+    /// One of the terms the model is meant to realise (any number may be
+    /// targets; the target phase is the lattice they span).
     pub target: bool,
     /// Charge the term may carry without being flagged.
     pub allowed_charge: Rational,
@@ -403,9 +404,17 @@ impl Model {
         self.momentum_period.as_ref().map(|g| g.eval(point))
     }
 
-    /// Index of the term marked as the target, if any.
+    /// Index of the first term marked as the target, if any.
     pub fn target(&self) -> Option<usize> {
         self.terms.iter().position(|t| t.target)
+    }
+
+    /// Indices of every term marked as a target (any number; two or more
+    /// must pin together, see [`crate::pinned::set::check_targets`]).
+    pub fn targets(&self) -> Vec<usize> {
+        (0..self.terms.len())
+            .filter(|&i| self.terms[i].target)
+            .collect()
     }
 }
 
@@ -800,8 +809,6 @@ fn read_terms(ctx: &Ctx, model: &Model, raw: &[RawTerm]) -> Result<Vec<TermSpec>
         }
         terms.push(read_term(ctx, model, t, &key)?);
     }
-    // Several terms may be targets: the target phase is the lattice their
-    // families span (issue 14; `phase`).
     Ok(terms)
 }
 

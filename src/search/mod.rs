@@ -235,6 +235,30 @@ impl Space {
 /// Largest denominator for momenta to be treated as exact rationals.
 pub const MAX_MOMENTUM_DENOMINATOR: i64 = 10_000;
 
+/// The search carries D in doubles: refuse a point where a single field's
+/// dimension (l = e_i) from that D has an error bound above
+/// [`crate::core::fixed_point::DIMENSION_ERROR_LIMIT`] (ill-conditioned V).
+fn check_carried(
+    sys: &System,
+    point: &[f64],
+    fp: &crate::core::fixed_point::FixedPoint,
+) -> Result<(), Error> {
+    let limit = crate::core::fixed_point::DIMENSION_ERROR_LIMIT;
+    let n = fp.d.nrows();
+    for i in 0..n {
+        let l: Vec<i64> = (0..n).map(|j| (j == i) as i64).collect();
+        let e = fp.dimension_error(&l) + fp.storage_error(&l);
+        if e > limit || e.is_nan() {
+            return Err(Error::Inaccurate(format!(
+                "{}: the operator search at {} cannot be done accurately: D carried in doubles gives field {i} a dimension error bound of {e:.1e} (relative; at most {limit:.0e} is accepted), V is badly conditioned there; choose another point",
+                sys.model.file,
+                sys.model.params.describe(point)
+            )));
+        }
+    }
+    Ok(())
+}
+
 /// D on the fields of the lattice, exact on the window: the dense fixed
 /// point for finite models; for an infinite array, the real-space window
 /// D_{j,j'} = int dq/2pi e^{-iq(j-j')} D(q) of the converged q-space fixed
@@ -242,7 +266,9 @@ pub const MAX_MOMENTUM_DENOMINATOR: i64 = 10_000;
 /// never read).
 fn window_d(sys: &System, point: &[f64], window: &Window) -> Result<DMatrix<f64>, Error> {
     if sys.eval_path() != EvalPath::Infinite {
-        return Ok(sys.fixed_point(point)?.d);
+        let fp = sys.fixed_point(point)?;
+        check_carried(sys, point, &fp)?;
+        return Ok(fp.d);
     }
     let (dw, _) = sys.real_space_window(point, window.wires)?;
     let idx = window.field_indices();

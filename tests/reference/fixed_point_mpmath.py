@@ -12,6 +12,10 @@ eigsy), |S|^-1 = Q diag(1/|e|) Q^T, D = L^-T |S|^-1 L^-1, velocities
 by increasing velocity (the order pinflow reports). Numbers are printed as
 decimal strings with 25 significant digits.
 
+A case may list integer vectors under "vectors"; its output then has
+"dimensions": (1/2) l^T D l for each, computed in the working precision
+(so that no cancellation in the quadratic form is lost to doubles).
+
 Exit codes: 0 ok, 3 mpmath is missing, 2 bad input.
 """
 
@@ -28,7 +32,7 @@ except ImportError:
     sys.exit(3)
 
 
-def fixed_point(k_rows, v_rows):
+def fixed_point(k_rows, v_rows, vectors=()):
     n = len(k_rows)
     # Floats from JSON are exact binary doubles; mpf(float) keeps them exact.
     k = mp.matrix([[mp.mpf(int(x)) for x in row] for row in k_rows])
@@ -46,7 +50,12 @@ def fixed_point(k_rows, v_rows):
         ((1 / abs(e[i]), 1 if e[i] > 0 else -1) for i in range(n)),
         key=lambda m: (-m[1], m[0]),
     )
+    dims = []
+    for vec in vectors:
+        lv = mp.matrix([[mp.mpf(int(x))] for x in vec])
+        dims.append(mp.nstr((lv.T * d * lv)[0, 0] / 2, 25))
     return {
+        "dimensions": dims,
         "D": [[mp.nstr(d[i, j], 25) for j in range(n)] for i in range(n)],
         "velocities": [mp.nstr(m[0], 25) for m in modes],
         "chiralities": [m[1] for m in modes],
@@ -62,7 +71,7 @@ def main():
     mp.dps = int(data.get("digits", 30))
     out = {
         "mpmath": mpmath.__version__,
-        "cases": [fixed_point(c["K"], c["V"]) for c in data["cases"]],
+        "cases": [fixed_point(c["K"], c["V"], c.get("vectors", ())) for c in data["cases"]],
     }
     json.dump(out, sys.stdout)
     sys.stdout.write("\n")
