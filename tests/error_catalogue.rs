@@ -603,6 +603,7 @@ entries! {
     e26_term_length => "E26",
     e27_term_too_wide => "E27",
     e28_extra_spin => "E28",
+    e29_targets_do_not_pin_together => "E29",
     e30_negative_extra_dimension => "E30",
     e31_parameter_name => "E31",
     e32_reserved_parameter_name => "E32",
