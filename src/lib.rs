@@ -1,28 +1,21 @@
 //! pinflow: fixed-point data, second-order RG flows, phase diagrams and
 //! operator searches for coupled-wire and Luttinger-liquid models.
 //!
-//! Architecture (one module per concern; see DEVELOPERS.md):
-//! - [`model`]: reading and validating model files (two stages: raw serde
-//!   structs, then a checked [`model::Model`] with compiled expressions);
-//! - [`lattice`]: the dense realisation (all fields, every term translate, V
-//!   at a point);
-//! - [`exact`] and [`invariants`]: exact rational algebra and the data that
-//!   does not depend on V (filling, charges, spins, commutation, locality);
-//! - [`fixed_point`]: the scaling-dimension matrix D and velocities;
-//! - [`qspace`]: the same in q-space for periodic and infinite arrays;
-//! - [`system`]: a model prepared once for evaluation at many points;
-//! - [`dims`]: the `pinflow dims` report, and [`convergence`] its
-//!   `--wires` form (dimensions against array size);
-//! - [`flow`]: the second-order RG flow of competing couplings and D;
-//! - [`scan`]: parameter grids, shards, resume, summaries and figures;
-//! - [`search`]: the exhaustive operator search (`pinflow hunt`);
-//! - [`edges`]: what a pinned set of terms leaves (`pinflow edges`);
-//! - [`output`]: text, JSON, CSV, Markdown and LaTeX exporters;
-//! - [`plot`]: figures (PNG and SVG, embedded font);
-//! - [`cli`]: the command line.
+//! Layers, arrows only downwards (DEVELOPERS.md; `tests/layers.rs` checks):
+//! - [`cli`]: the command line, the only module that knows clap, standard
+//!   output, progress bars and exit codes;
+//! - engines, each taking a [`core::system::System`] and plain options and
+//!   returning a report: [`scan`] and [`edges`] over [`flow`] and
+//!   [`search`] over [`dims`];
+//! - [`core`]: one model at one point (lattice, invariants, momenta, the
+//!   fixed point dense or per q, pinned phases);
+//! - [`model`]: reading and validating model files;
+//! - [`math`]: algorithms without physics, one file each;
+//! - leaves: [`output`] (exporters), [`plot`] (figures), [`error`].
 //!
-//! The method is weak-coupling perturbation theory around a Gaussian fixed
-//! point; see the README for its limits.
+//! The physics is in docs/physics.md. The method is weak-coupling
+//! perturbation theory around a Gaussian fixed point, second order in the
+//! couplings with a single reference velocity: see the README for its limits.
 
 pub mod cli;
 pub mod core;

@@ -21,7 +21,7 @@ use std::process::Command;
 
 use common::{toml_f64_matrix, toml_int_matrix};
 use pinflow::core::system::System;
-use pinflow::math::rational;
+use pinflow::math::bareiss;
 use pinflow::model::Model;
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
@@ -47,7 +47,7 @@ fn random_cases(count: usize, seed: u64) -> Vec<Case> {
                 k[j][i] = x;
             }
         }
-        if rational::det_and_inverse(&k).is_none() {
+        if bareiss::det_and_inverse(&k).is_none() {
             continue; // singular: draw again
         }
         let a: Vec<Vec<f64>> = (0..n)

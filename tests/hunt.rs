@@ -18,6 +18,7 @@ mod search {
     use pinflow::error::Error;
     use pinflow::math::ellipsoid::{ln_unit_ball, Ellipsoid};
     use pinflow::math::rational;
+    use pinflow::math::{bareiss, zmat};
     use pinflow::model::Model;
     use pinflow::search::{
         emit_terms, hunt, ChargeFilter, HuntOptions, HuntReport, MomentumFilter, SpinFilter,
@@ -134,8 +135,8 @@ mod search {
                     k[j][i] = x;
                 }
             }
-            if let Some((det, _)) = rational::det_and_inverse(&k) {
-                if let Some((p, m)) = rational::signature(&k, &det) {
+            if bareiss::det_and_inverse(&k).is_some() {
+                if let Some((p, m)) = zmat::signature(&k) {
                     if p > 0 && m > 0 {
                         return k;
                     }

@@ -1,4 +1,5 @@
-//! Exact data that does not depend on V: filling, det K, signature, and for
+//! Exact data that does not depend on V: filling, det K, signature (exact,
+//! from the inertia of K: [`crate::math::zmat::signature`]), and for
 //! every term its particle content, charge, conformal spin, locality, null
 //! status and mutual phases with the other terms.
 //!
@@ -22,6 +23,7 @@ use num_traits::Zero;
 use crate::core::lattice::{Family, Lattice, Translate};
 use crate::error::InputError;
 use crate::math::rational::{self, Rational};
+use crate::math::{bareiss, zmat};
 use crate::model::Model;
 
 /// Exact data of one term family (computed on its representative translate;
@@ -148,7 +150,7 @@ impl Invariants {
             crate::model::Structure::Array { .. } => "array.K",
         };
         let (cell_det, cell_inverse) =
-            rational::det_and_inverse(&model.cell_k).ok_or_else(|| {
+            bareiss::det_and_inverse(&model.cell_k).ok_or_else(|| {
                 InputError::new(
                     &model.file,
                     key,
@@ -158,7 +160,7 @@ impl Invariants {
         // Totals scale with the wires; an infinite array reports one wire.
         let copies = if lat.infinite { 1 } else { lat.wires };
         let det_k = num_traits::pow(cell_det.clone(), copies);
-        let cell_sig = rational::signature(&model.cell_k, &cell_det).ok_or_else(|| {
+        let cell_sig = zmat::signature(&model.cell_k).ok_or_else(|| {
             InputError::new(
                 &model.file,
                 key,

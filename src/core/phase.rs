@@ -34,8 +34,6 @@ use num_integer::Integer;
 use num_traits::{Signed, Zero};
 
 use crate::core::lattice::{Family, Lattice};
-use crate::math::smith as normal;
-use crate::math::zmat::ZMat;
 
 /// A lattice in Hermite normal form (rows, each of length `n`).
 #[derive(Debug, Clone, PartialEq, Eq)]
@@ -243,7 +241,7 @@ pub fn per_wire_rank(lat: &Lattice, families: &[&Family]) -> usize {
                     .collect()
             })
             .collect();
-        best = best.max(normal::rank(&ZMat::from_rows(&rows, cols.len())));
+        best = best.max(crate::math::bareiss::rank(&rows));
         if best == cols.len().min(c) {
             break;
         }

@@ -29,7 +29,6 @@ use num_traits::Zero;
 use serde::Serialize;
 
 use crate::core::lattice::{Family, Lattice};
-use crate::math::rational::{self as exact, Rational};
 use crate::math::smith::{smith, Smith};
 use crate::math::zmat::{big, ZMat};
 
@@ -320,8 +319,8 @@ pub fn per_wire_rank(lat: &Lattice, pinned: &[&Family]) -> usize {
         if rank == most {
             break;
         }
-        let rows: Vec<Vec<Rational>> = polys.iter().map(|p| evaluate(p, z)).collect();
-        rank = rank.max(exact::rank(&rows));
+        let rows: Vec<Vec<BigInt>> = polys.iter().map(|p| evaluate(p, z)).collect();
+        rank = rank.max(crate::math::bareiss::rank(&rows));
     }
     rank
 }
@@ -350,7 +349,7 @@ fn unfold(lat: &Lattice, l: &[i64]) -> Vec<Vec<i64>> {
 }
 
 /// sum_j l_j z^j, exactly (Horner).
-fn evaluate(p: &[Vec<i64>], z: i64) -> Vec<Rational> {
+fn evaluate(p: &[Vec<i64>], z: i64) -> Vec<BigInt> {
     let cell = p.first().map_or(0, |c| c.len());
     let z = BigInt::from(z);
     let mut v = vec![BigInt::zero(); cell];
@@ -359,7 +358,7 @@ fn evaluate(p: &[Vec<i64>], z: i64) -> Vec<Rational> {
             *x = &*x * &z + a;
         }
     }
-    v.into_iter().map(Rational::from_integer).collect()
+    v
 }
 
 #[cfg(test)]

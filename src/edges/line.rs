@@ -26,7 +26,7 @@
 //! ρ D ≤ B := ρ_max D, so it has at most B roots, and among any B + 1
 //! distinct points at least one z0 has m(z0) ≠ 0, where rank M(z0) ≥ ρ.
 //! Hence ρ is the largest rank M(z0) over B + 1 distinct integers z0
-//! (exact rational Gaussian elimination, [`crate::math::rational::rank`]); the
+//! (exact fraction-free elimination, [`crate::math::bareiss::rank`]); the
 //! search stops early when it reaches ρ_max, which no point can exceed.
 //! The points used are z0 = 2, 3, ..., B + 2 (any distinct values would do).
 //!
@@ -50,7 +50,7 @@ use num_traits::Zero;
 
 use super::pins::Pinned;
 use crate::core::lattice::Lattice;
-use crate::math::rational::{self, Rational};
+use crate::math::bareiss;
 
 /// The polynomial vector N(z) of one pinned family: `coeffs[j]` is its
 /// particle vector on wire j of the translate anchored at its first wire.
@@ -69,7 +69,7 @@ impl Polynomial {
     }
 
     /// N(z0), exactly.
-    pub fn at(&self, z: &BigInt) -> Vec<Rational> {
+    pub fn at(&self, z: &BigInt) -> Vec<BigInt> {
         let cell = self.coeffs.first().map_or(0, |c| c.len());
         // Horner's rule from the highest power.
         let mut v = vec![BigInt::zero(); cell];
@@ -78,7 +78,7 @@ impl Polynomial {
                 *x = &*x * z + a;
             }
         }
-        v.into_iter().map(Rational::from_integer).collect()
+        v
     }
 
     /// "(1, -1) + (-1, 1) z^2": the non-zero terms.
@@ -172,8 +172,8 @@ pub fn polynomial(lat: &Lattice, p: &Pinned) -> Polynomial {
 
 /// Rank of M(z0), the matrix with rows N_p(z0) (the transpose of M: same rank).
 fn rank_at(polys: &[Polynomial], z: &BigInt) -> usize {
-    let rows: Vec<Vec<Rational>> = polys.iter().map(|p| p.at(z)).collect();
-    rational::rank(&rows)
+    let rows: Vec<Vec<BigInt>> = polys.iter().map(|p| p.at(z)).collect();
+    bareiss::rank(&rows)
 }
 
 /// The per-wire data of a pinned set; `signature` is the cell's (n+, n−).
@@ -235,7 +235,7 @@ mod tests {
         // (1, -1) + (-1, 1) z^2 at z = 3: (1 - 9, -1 + 9) = (-8, 8), by hand.
         let p = poly(&[&[1, -1], &[0, 0], &[-1, 1]]);
         let v = p.at(&BigInt::from(3));
-        assert_eq!(v, vec![rational::int(-8), rational::int(8)]);
+        assert_eq!(v, vec![BigInt::from(-8), BigInt::from(8)]);
         assert_eq!(p.degree(), 2);
         assert_eq!(p.describe(), "(1, -1) + (-1, 1) z^2");
     }

@@ -1,7 +1,7 @@
 //! `pinflow edges`: what is left once a set of terms is pinned — the
 //! number of gapped right-left pairs, whether the bulk is fully gapped, and
-//! the gapless theory near each end of an open array (physics reference
-//! section 6).
+//! the gapless theory near each end of an open array (docs/physics.md
+//! section 7).
 //!
 //! Method, all in exact integer arithmetic (big integers):
 //! - the pinned set P: local, null, mutually commuting terms (all their
@@ -36,6 +36,11 @@
 //! (n+ − r, n− − r) only. Their K matrix is not computed (`whole` is None,
 //! and there are no ends): on a ring it is the Gram matrix of generators
 //! spread over every wire and depends on the ring's size.
+//!
+//! Owns: [`analyse`] (pinned set in, [`Analysis`] out; no printing), the
+//! choice of the window and the notes on it. Invariants: counts satisfy
+//! fields = 2 gapped_pairs + gapless_modes (per wire for infinite arrays),
+//! checked against the residual theory of all fields.
 
 pub mod line;
 pub mod pins;
@@ -162,25 +167,9 @@ pub fn analyse(sys: &System, pinned: &[Pinned], window: Option<usize>) -> Result
     let open = lat.boundary == Some(Boundary::Open);
     let mut notes = Vec::new();
     if let (Some(_), false) = (window, open) {
-        let what = match lat.boundary {
-            _ if lat.infinite => "an infinite array (it has no ends)",
-            Some(Boundary::Periodic) => "a periodic array",
-            _ => "an explicit model (no wires)",
-        };
-        return Err(window_error(format!(
-            "only an open array has ends to look at; this model is {what}"
-        )));
+        return Err(no_ends(lat));
     }
-    // The whole system.
-    let all: Vec<usize> = (0..lat.n).collect();
-    let ls: Vec<Vec<BigInt>> = pinned
-        .iter()
-        .flat_map(|p| p.translates.iter().map(|t| t.l.clone()))
-        .collect();
-    let ns: Vec<Vec<BigInt>> = pinned
-        .iter()
-        .flat_map(|p| p.translates.iter().map(|t| t.n.clone()))
-        .collect();
+    let (ls, ns) = pinned_vectors(pinned);
     let charge_modulus = charge_modulus(&t, &ns);
     if let Some(g) = &charge_modulus {
         notes.push(charge_note(g));
@@ -188,96 +177,14 @@ pub fn analyse(sys: &System, pinned: &[Pinned], window: Option<usize>) -> Result
     if lat.infinite {
         return infinite(sys, pinned, charge_modulus, notes);
     }
-    let whole_res = theory::residual(&k, &t, &all, &ls, &ns).map_err(Error::Numerical)?;
-    let r = whole_res.pinned_rank;
-    if whole_res.k.rows + 2 * r != lat.n || whole_res.extra_radical != 0 {
-        return Err(Error::Numerical(format!(
-            "internal inconsistency: {} fields, rank {r}, but {} residual modes",
-            lat.n, whole_res.k.rows
-        )));
-    }
-    let whole_end = match lat.boundary {
-        Some(Boundary::Open) => End::Strip,
-        Some(Boundary::Periodic) => End::Bulk,
-        None => End::System,
+    let whole = whole_theory(lat, &k, &t, &ls, &ns)?;
+    let r = whole.residual.pinned_rank;
+    let (fully_gapped, gapped_basis) = bulk_gapped(sys, pinned, r);
+    let (edges, used_window) = if open {
+        open_ends(sys, (&k, &t), pinned, window, fully_gapped, &mut notes)?
+    } else {
+        (Vec::new(), None)
     };
-    let whole = make_theory(whole_end, open.then_some((0, lat.wires - 1)), whole_res);
-    let (fully_gapped, gapped_basis) = match lat.boundary {
-        Some(Boundary::Open) => match periodic_closure(sys, pinned) {
-            Ok((gapped, w, rank, n)) => (
-                Some(gapped),
-                format!(
-                    "the same terms gap {rank} of {} pairs on a periodic array of {w} wires",
-                    n / 2
-                ),
-            ),
-            Err(why) => (None, why),
-        },
-        Some(Boundary::Periodic) => (
-            Some(2 * r == lat.n),
-            format!("{r} of {} pairs gapped", lat.n / 2),
-        ),
-        None => (
-            Some(2 * r == lat.n),
-            format!("{r} of {} pairs gapped (all fields)", lat.n / 2),
-        ),
-    };
-    let mut edges = Vec::new();
-    let mut used_window = None;
-    if open {
-        let need = default_window(lat, pinned);
-        let w = match window {
-            Some(0) => return Err(window_error("a window must hold at least 1 wire".into())),
-            Some(w) if w >= lat.wires => {
-                return Err(window_error(format!(
-                    "a window of {w} wires covers the whole array of {} wires; it must be smaller (without --window the default of {need} wires is used, and the whole strip is always reported)",
-                    lat.wires
-                )))
-            }
-            Some(w) => Some(w),
-            None if need < lat.wires => Some(need),
-            None => {
-                notes.push(format!(
-                    "the array of {} wires is too short to separate its ends: a window must hold {need} wires; only the whole strip is reported",
-                    lat.wires
-                ));
-                None
-            }
-        };
-        if let Some(w) = w {
-            edges = ends(sys, &k, &t, pinned, w, need)?;
-            used_window = Some(Window {
-                wires: w,
-                default: window.is_none(),
-            });
-            for e in &edges {
-                if e.residual.extra_radical > 0 {
-                    notes.push(format!(
-                        "at the {} end, {} extra null direction(s) at the window's inner cut commute with everything and were divided out; try a larger --window",
-                        e.end.word(),
-                        e.residual.extra_radical
-                    ));
-                }
-            }
-            if fully_gapped == Some(true) && w + 1 < lat.wires {
-                let wider = ends(sys, &k, &t, pinned, w + 1, need)?;
-                for (a, b) in edges.iter().zip(&wider) {
-                    if summary(a) != summary(b) {
-                        notes.push(format!(
-                            "the theory at the {} end changes between windows of {w} and {} wires; the window may be too small",
-                            a.end.word(),
-                            w + 1
-                        ));
-                    }
-                }
-            }
-            if fully_gapped == Some(false) {
-                notes.push(
-                    "the bulk is not fully gapped: each window also holds the gapless bulk modes on its wires".into(),
-                );
-            }
-        }
-    }
     Ok(Analysis {
         fields: lat.n,
         gapped_pairs: r,
@@ -291,6 +198,150 @@ pub fn analyse(sys: &System, pinned: &[Pinned], window: Option<usize>) -> Result
         charge_modulus,
         notes,
     })
+}
+
+/// The error for `--window` on a model without ends.
+fn no_ends(lat: &Lattice) -> Error {
+    let what = match lat.boundary {
+        _ if lat.infinite => "an infinite array (it has no ends)",
+        Some(Boundary::Periodic) => "a periodic array",
+        _ => "an explicit model (no wires)",
+    };
+    window_error(format!(
+        "only an open array has ends to look at; this model is {what}"
+    ))
+}
+
+/// The vectors l and the particle vectors n of every pinned translate.
+fn pinned_vectors(pinned: &[Pinned]) -> (Vec<Vec<BigInt>>, Vec<Vec<BigInt>>) {
+    let translates = || pinned.iter().flat_map(|p| p.translates.iter());
+    (
+        translates().map(|t| t.l.clone()).collect(),
+        translates().map(|t| t.n.clone()).collect(),
+    )
+}
+
+/// The residual theory of all fields, checked against the mode count.
+fn whole_theory(
+    lat: &Lattice,
+    k: &ZMat,
+    t: &[BigInt],
+    ls: &[Vec<BigInt>],
+    ns: &[Vec<BigInt>],
+) -> Result<Theory, Error> {
+    let all: Vec<usize> = (0..lat.n).collect();
+    let res = theory::residual(k, t, &all, ls, ns).map_err(Error::Numerical)?;
+    let r = res.pinned_rank;
+    if res.k.rows + 2 * r != lat.n || res.extra_radical != 0 {
+        return Err(Error::Numerical(format!(
+            "internal inconsistency: {} fields, rank {r}, but {} residual modes",
+            lat.n, res.k.rows
+        )));
+    }
+    let end = match lat.boundary {
+        Some(Boundary::Open) => End::Strip,
+        Some(Boundary::Periodic) => End::Bulk,
+        None => End::System,
+    };
+    let open = lat.boundary == Some(Boundary::Open);
+    Ok(make_theory(end, open.then_some((0, lat.wires - 1)), res))
+}
+
+/// Is the bulk fully gapped (None: undecided), and the sentence saying why;
+/// `r` is the rank of the pinned vectors on all fields.
+fn bulk_gapped(sys: &System, pinned: &[Pinned], r: usize) -> (Option<bool>, String) {
+    let n = sys.lattice.n;
+    match sys.lattice.boundary {
+        Some(Boundary::Open) => match periodic_closure(sys, pinned) {
+            Ok((gapped, w, rank, n)) => (
+                Some(gapped),
+                format!(
+                    "the same terms gap {rank} of {} pairs on a periodic array of {w} wires",
+                    n / 2
+                ),
+            ),
+            Err(why) => (None, why),
+        },
+        Some(Boundary::Periodic) => (Some(2 * r == n), format!("{r} of {} pairs gapped", n / 2)),
+        None => (
+            Some(2 * r == n),
+            format!("{r} of {} pairs gapped (all fields)", n / 2),
+        ),
+    }
+}
+
+/// The window size to use at the ends (None: the array is too short for
+/// the default, noted), or an error for a bad `--window`.
+fn choose_window(
+    lat: &Lattice,
+    window: Option<usize>,
+    need: usize,
+    notes: &mut Vec<String>,
+) -> Result<Option<usize>, Error> {
+    match window {
+        Some(0) => Err(window_error("a window must hold at least 1 wire".into())),
+        Some(w) if w >= lat.wires => Err(window_error(format!(
+            "a window of {w} wires covers the whole array of {} wires; it must be smaller (without --window the default of {need} wires is used, and the whole strip is always reported)",
+            lat.wires
+        ))),
+        Some(w) => Ok(Some(w)),
+        None if need < lat.wires => Ok(Some(need)),
+        None => {
+            notes.push(format!(
+                "the array of {} wires is too short to separate its ends: a window must hold {need} wires; only the whole strip is reported",
+                lat.wires
+            ));
+            Ok(None)
+        }
+    }
+}
+
+/// The theories at both ends of an open array, with the notes on them.
+fn open_ends(
+    sys: &System,
+    (k, t): (&ZMat, &[BigInt]),
+    pinned: &[Pinned],
+    window: Option<usize>,
+    fully_gapped: Option<bool>,
+    notes: &mut Vec<String>,
+) -> Result<(Vec<Theory>, Option<Window>), Error> {
+    let lat = &sys.lattice;
+    let need = default_window(lat, pinned);
+    let Some(w) = choose_window(lat, window, need, notes)? else {
+        return Ok((Vec::new(), None));
+    };
+    let edges = ends(sys, k, t, pinned, w, need)?;
+    let used = Window {
+        wires: w,
+        default: window.is_none(),
+    };
+    for e in &edges {
+        if e.residual.extra_radical > 0 {
+            notes.push(format!(
+                "at the {} end, {} extra null direction(s) at the window's inner cut commute with everything and were divided out; try a larger --window",
+                e.end.word(),
+                e.residual.extra_radical
+            ));
+        }
+    }
+    if fully_gapped == Some(true) && w + 1 < lat.wires {
+        let wider = ends(sys, k, t, pinned, w + 1, need)?;
+        for (a, b) in edges.iter().zip(&wider) {
+            if summary(a) != summary(b) {
+                notes.push(format!(
+                    "the theory at the {} end changes between windows of {w} and {} wires; the window may be too small",
+                    a.end.word(),
+                    w + 1
+                ));
+            }
+        }
+    }
+    if fully_gapped == Some(false) {
+        notes.push(
+            "the bulk is not fully gapped: each window also holds the gapless bulk modes on its wires".into(),
+        );
+    }
+    Ok((edges, Some(used)))
 }
 
 /// An infinite array: the counts per wire from the rank over Q(z) of the
@@ -452,6 +503,6 @@ fn periodic_closure(
             }
         }
     }
-    let rank = crate::math::smith::rank(&ZMat::from_rows(&ns, lat.n));
+    let rank = crate::math::bareiss::rank(&ns);
     Ok((2 * rank == lat.n, w, rank, lat.n))
 }

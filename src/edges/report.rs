@@ -15,6 +15,9 @@
 //! matrix of the gapless modes is computed: see `edges::line`); a pinned
 //! family's `translates` is null (one per wire) and its `n_of_z` gives
 //! N(z).
+//!
+//! Invariants: the report is built once from an [`super::Analysis`];
+//! rendering only formats it, and the field names above are interfaces.
 
 use num_bigint::BigInt;
 use num_traits::{Signed, ToPrimitive};
@@ -240,68 +243,30 @@ impl EdgesReport {
     pub fn new(sys: &System, point: &[f64], sel: &Selection, a: &Analysis) -> EdgesReport {
         let lat = &sys.lattice;
         let infinite = lat.infinite;
-        let parameters = sys.model.params.json_point(point);
         let (chosen_by, winner, ell_star) = match &sel.source {
             Source::Flags => ("--pin".to_string(), None, None),
             Source::Flow { winner, ell_star } => {
                 ("flow".to_string(), Some(winner.clone()), *ell_star)
             }
         };
-        let pinned = sel
-            .pinned
-            .iter()
-            .enumerate()
-            .map(|(i, p)| PinnedRow {
-                name: p.name.clone(),
-                translates: (!infinite).then_some(p.translates.len()),
-                span: p.span(),
-                particles: per_wire(sys, &p.translates[0].n),
-                n_of_z: a.per_wire.as_ref().map(|pw| pw.polynomials[i].describe()),
-            })
-            .collect();
         let mut notes = a.notes.clone();
-        let invariant = if a.charge_modulus.is_some() {
-            "det, signature and the quasiparticle spins (mod 1, or 1/2 for odd K)"
-        } else {
-            "det, signature, filling and the quasiparticle charges (mod 1) and spins (mod 1, or 1/2 for odd K)"
-        };
-        if a.whole.is_some() {
-            notes.push(format!(
-                "K matrices are Gram matrices n^T K n' of the particle vectors that commute with every pinned term, modulo the pinned ones, in a reduced basis; {invariant} do not depend on that basis."
-            ));
-        }
+        notes.extend(basis_note(a));
         let per_wire_row = a.per_wire.as_ref().map(|pw| {
             notes.extend(line_notes(pw));
-            PerWireRow {
-                fields: pw.cell,
-                gapped_pairs: pw.rank,
-                gapless_modes: pw.gapless(),
-                gapless_signature: [pw.signature.0, pw.signature.1],
-                gapless_chirality: chirality(pw.signature).to_string(),
-                rank_at_q_0: pw.rank_at_q0,
-                rank_at_q_pi: pw.rank_at_pi,
-                degree_bound: pw.degree_bound,
-                points_evaluated: pw.points,
-            }
+            per_wire_row(pw)
         });
         EdgesReport {
             model: sys.model.name.clone(),
-            parameters,
+            parameters: sys.model.params.json_point(point),
             point: sys.model.params.describe(point),
             fields: a.fields,
             wires: lat.boundary.filter(|_| !infinite).map(|_| lat.wires),
-            boundary: match lat.boundary {
-                _ if infinite => "infinite",
-                Some(crate::model::Boundary::Open) => "open",
-                Some(crate::model::Boundary::Periodic) => "periodic",
-                None => "explicit",
-            }
-            .to_string(),
+            boundary: boundary_word(sys).to_string(),
             infinite,
             chosen_by,
             winner,
             ell_star,
-            pinned,
+            pinned: pinned_rows(sys, sel, a),
             skipped: sel
                 .skipped
                 .iter()
@@ -329,6 +294,148 @@ impl EdgesReport {
 
     fn theories(&self) -> impl Iterator<Item = &TheoryReport> {
         self.edges.iter().chain(self.whole.as_ref())
+    }
+}
+
+/// The pieces of the text facts.
+impl EdgesReport {
+    /// How the pinned set was chosen.
+    fn chosen_by_fact(&self) -> String {
+        if self.chosen_by != "flow" {
+            return "--pin".to_string();
+        }
+        let ell = self
+            .ell_star
+            .map(|l| format!(" at ell* = {}", crate::output::short(l)))
+            .unwrap_or_default();
+        format!(
+            "the flow at {}: \"{}\" reaches strong coupling first{ell}; pinned: every family its successive stages pin",
+            self.point,
+            self.winner.clone().unwrap_or_default()
+        )
+    }
+
+    /// The pinned terms, each with its translates and particle content.
+    fn pinned_fact(&self) -> String {
+        let arrays = self.wires.is_some() || self.infinite;
+        self.pinned
+            .iter()
+            .map(|p| {
+                if let (Some(t), true) = (p.translates, arrays) {
+                    format!(
+                        "{} ({t} translates over {} wire(s), e.g. {})",
+                        p.name,
+                        p.span,
+                        fmt_parts(&p.particles, true)
+                    )
+                } else if arrays {
+                    format!(
+                        "{} (one translate per wire, over {} wire(s), e.g. {}; N(z) = {})",
+                        p.name,
+                        p.span,
+                        fmt_parts(&p.particles, true),
+                        p.n_of_z.as_deref().unwrap_or("-")
+                    )
+                } else {
+                    format!("{} {}", p.name, fmt_parts(&p.particles, false))
+                }
+            })
+            .collect::<Vec<_>>()
+            .join("; ")
+    }
+
+    /// The number of fields and how they are arranged.
+    fn fields_fact(&self) -> String {
+        match self.wires {
+            _ if self.infinite => format!("{} per wire (infinite array)", self.fields),
+            Some(w) => format!(
+                "{} ({w} wires x {}, {})",
+                self.fields,
+                self.fields / w.max(1),
+                self.boundary
+            ),
+            None => self.fields.to_string(),
+        }
+    }
+
+    /// The gapped pairs and the gapless modes (per wire for an infinite array).
+    fn count_facts(&self) -> (String, String) {
+        let Some(pw) = &self.per_wire else {
+            return (
+                self.gapped_pairs.to_string(),
+                self.gapless_modes.to_string(),
+            );
+        };
+        let half = if pw.fields % 2 == 0 {
+            (pw.fields / 2).to_string()
+        } else {
+            format!("{}/2", pw.fields)
+        };
+        let modes = if pw.gapless_modes == 0 {
+            "0 per wire".to_string()
+        } else {
+            format!(
+                "{} per wire (signature ({}, {}), {}); their K matrix is not computed for the infinite array",
+                pw.gapless_modes,
+                pw.gapless_signature[0],
+                pw.gapless_signature[1],
+                pw.gapless_chirality
+            )
+        };
+        (format!("{} per wire (of {half})", pw.gapped_pairs), modes)
+    }
+}
+
+/// One row per pinned term.
+fn pinned_rows(sys: &System, sel: &Selection, a: &Analysis) -> Vec<PinnedRow> {
+    sel.pinned
+        .iter()
+        .enumerate()
+        .map(|(i, p)| PinnedRow {
+            name: p.name.clone(),
+            translates: (!sys.lattice.infinite).then_some(p.translates.len()),
+            span: p.span(),
+            particles: per_wire(sys, &p.translates[0].n),
+            n_of_z: a.per_wire.as_ref().map(|pw| pw.polynomials[i].describe()),
+        })
+        .collect()
+}
+
+/// "infinite", "open", "periodic" or "explicit".
+fn boundary_word(sys: &System) -> &'static str {
+    match sys.lattice.boundary {
+        _ if sys.lattice.infinite => "infinite",
+        Some(crate::model::Boundary::Open) => "open",
+        Some(crate::model::Boundary::Periodic) => "periodic",
+        None => "explicit",
+    }
+}
+
+/// The note on what the K matrices are and what does not depend on their
+/// basis (when a theory of all fields was computed).
+fn basis_note(a: &Analysis) -> Option<String> {
+    let invariant = if a.charge_modulus.is_some() {
+        "det, signature and the quasiparticle spins (mod 1, or 1/2 for odd K)"
+    } else {
+        "det, signature, filling and the quasiparticle charges (mod 1) and spins (mod 1, or 1/2 for odd K)"
+    };
+    a.whole.is_some().then(|| format!(
+        "K matrices are Gram matrices n^T K n' of the particle vectors that commute with every pinned term, modulo the pinned ones, in a reduced basis; {invariant} do not depend on that basis."
+    ))
+}
+
+/// The per-wire counts of an infinite array.
+fn per_wire_row(pw: &super::line::PerWire) -> PerWireRow {
+    PerWireRow {
+        fields: pw.cell,
+        gapped_pairs: pw.rank,
+        gapless_modes: pw.gapless(),
+        gapless_signature: [pw.signature.0, pw.signature.1],
+        gapless_chirality: chirality(pw.signature).to_string(),
+        rank_at_q_0: pw.rank_at_q0,
+        rank_at_q_pi: pw.rank_at_pi,
+        degree_bound: pw.degree_bound,
+        points_evaluated: pw.points,
     }
 }
 
@@ -534,64 +641,14 @@ impl Report for EdgesReport {
     }
 
     fn facts(&self) -> Vec<(String, String)> {
-        let mut f = Vec::new();
-        if self.chosen_by == "flow" {
-            let ell = self
-                .ell_star
-                .map(|l| format!(" at ell* = {}", crate::output::short(l)))
-                .unwrap_or_default();
-            f.push((
-                "chosen by".to_string(),
-                format!(
-                    "the flow at {}: \"{}\" reaches strong coupling first{ell}; pinned: every family its successive stages pin",
-                    self.point,
-                    self.winner.clone().unwrap_or_default()
-                ),
-            ));
-        } else {
-            f.push(("chosen by".to_string(), "--pin".to_string()));
-        }
-        let arrays = self.wires.is_some() || self.infinite;
-        let pinned = self
-            .pinned
-            .iter()
-            .map(|p| {
-                if let (Some(t), true) = (p.translates, arrays) {
-                    format!(
-                        "{} ({t} translates over {} wire(s), e.g. {})",
-                        p.name,
-                        p.span,
-                        fmt_parts(&p.particles, true)
-                    )
-                } else if arrays {
-                    format!(
-                        "{} (one translate per wire, over {} wire(s), e.g. {}; N(z) = {})",
-                        p.name,
-                        p.span,
-                        fmt_parts(&p.particles, true),
-                        p.n_of_z.as_deref().unwrap_or("-")
-                    )
-                } else {
-                    format!("{} {}", p.name, fmt_parts(&p.particles, false))
-                }
-            })
-            .collect::<Vec<_>>()
-            .join("; ");
-        f.push(("pinned".to_string(), pinned));
+        let mut f = vec![
+            ("chosen by".to_string(), self.chosen_by_fact()),
+            ("pinned".to_string(), self.pinned_fact()),
+        ];
         for s in &self.skipped {
             f.push((format!("not pinned: {}", s.name), s.reason.clone()));
         }
-        let fields = match self.wires {
-            _ if self.infinite => format!("{} per wire (infinite array)", self.fields),
-            Some(w) => format!(
-                "{} ({w} wires x {}, {})",
-                self.fields,
-                self.fields / w.max(1),
-                self.boundary
-            ),
-            None => self.fields.to_string(),
-        };
-        f.push(("fields".to_string(), fields));
+        f.push(("fields".to_string(), self.fields_fact()));
         if let Some(g) = &self.charge_conserved_modulo {
             f.push((
                 "charge".to_string(),
@@ -601,38 +658,9 @@ impl Report for EdgesReport {
                 ),
             ));
         }
-        if let Some(pw) = &self.per_wire {
-            let half = if pw.fields % 2 == 0 {
-                (pw.fields / 2).to_string()
-            } else {
-                format!("{}/2", pw.fields)
-            };
-            f.push((
-                "gapped right-left pairs".to_string(),
-                format!("{} per wire (of {half})", pw.gapped_pairs),
-            ));
-            let modes = if pw.gapless_modes == 0 {
-                "0 per wire".to_string()
-            } else {
-                format!(
-                    "{} per wire (signature ({}, {}), {}); their K matrix is not computed for the infinite array",
-                    pw.gapless_modes,
-                    pw.gapless_signature[0],
-                    pw.gapless_signature[1],
-                    pw.gapless_chirality
-                )
-            };
-            f.push(("gapless modes left".to_string(), modes));
-        } else {
-            f.push((
-                "gapped right-left pairs".to_string(),
-                self.gapped_pairs.to_string(),
-            ));
-            f.push((
-                "gapless modes left".to_string(),
-                self.gapless_modes.to_string(),
-            ));
-        }
+        let (pairs, modes) = self.count_facts();
+        f.push(("gapped right-left pairs".to_string(), pairs));
+        f.push(("gapless modes left".to_string(), modes));
         let gapped = match self.fully_gapped {
             Some(true) => "yes",
             Some(false) => "no",

@@ -1,5 +1,5 @@
 //! The gapless theory left in a region once a set of terms is pinned
-//! (physics reference section 6), and its exact invariants.
+//! (docs/physics.md section 7), and its exact invariants.
 //!
 //! Region: a set of fields (all of them, or the wires of a window). With
 //! pinned particle vectors n_p and the form <n, n'> = n^T K n':
@@ -19,6 +19,10 @@
 //! null and commute with everything (an unclean cut), the Gram matrix of C
 //! is degenerate and its radical is divided out as well; this is counted
 //! and reported.
+//!
+//! Invariants: exact big-integer arithmetic throughout; every change of
+//! basis is unimodular, so det, signature, filling and the quasiparticle
+//! data do not depend on the readable basis chosen.
 
 use num_bigint::BigInt;
 use num_integer::Integer;
@@ -70,72 +74,25 @@ pub fn residual(
         &constraints.iter().map(|l| restrict(l)).collect::<Vec<_>>(),
         f,
     );
+    let inside_f: Vec<Vec<BigInt>> = inside.iter().map(|n| restrict(n)).collect();
     // 1. M: kernel of the constraints, with coordinates from Q^-1.
     let sc = smith(&c);
     let rank_c = sc.rank();
     let m_basis = sc.q.col_range(rank_c..f);
     let to_m = sc.q_inv.row_range(rank_c..f);
     // 2. S: saturation of the pinned vectors inside, in coordinates of M.
-    let mut coords = Vec::with_capacity(inside.len());
-    for n in inside {
-        let nf = restrict(n);
-        if !c.mul_vec(&nf).iter().all(|x| x.is_zero()) {
-            return Err("a pinned vector does not commute with the pinned set".into());
-        }
-        coords.push(to_m.mul_vec(&nf));
-    }
-    let dim_m = m_basis.cols;
-    let (sat, comp) = if coords.is_empty() {
-        (ZMat::zeros(dim_m, 0), ZMat::identity(dim_m))
-    } else {
-        saturate(&ZMat::from_cols(dim_m, &coords))
-    };
+    let (sat, comp) = saturation(&c, &to_m, &inside_f, m_basis.cols)?;
     let pinned_rank = sat.cols;
     let mut s_cols: Vec<Vec<BigInt>> = m_basis.mul(&sat).columns();
     // 3. Residual basis and its Gram matrix.
-    let mut basis = m_basis.mul(&comp);
-    let mut gram = basis.gram(&k_f);
-    let mut extra_radical = 0;
-    if zmat::det(&gram).is_zero() {
-        let sg = smith(&gram);
-        let r = sg.rank();
-        extra_radical = gram.rows - r;
-        s_cols.extend(basis.mul(&sg.q.col_range(r..gram.rows)).columns());
-        basis = basis.mul(&sg.q.col_range(0..r));
-        gram = basis.gram(&k_f);
-        if zmat::det(&gram).is_zero() {
-            return Err("the residual form stays degenerate".into());
-        }
-    }
-    // Short vectors modulo S first (the kernel and saturation bases can
-    // have entries exponential in the number of wires), then the readable
-    // form, then short representatives again.
+    let (basis, extra_radical) = divide_radical(m_basis.mul(&comp), &k_f, &mut s_cols)?;
     // The pinned vectors inside are short: list them first, so that the
     // independent subset used takes them before the (long) saturation basis.
-    let mut modulo_cols: Vec<Vec<BigInt>> = inside.iter().map(|n| restrict(n)).collect();
+    let mut modulo_cols = inside_f;
     modulo_cols.extend(s_cols);
     let modulo = ModuloLattice::new(&ZMat::from_cols(f, &modulo_cols));
-    let basis = basis.mul(&modulo.shorten(&basis));
-    let short: Vec<Vec<BigInt>> = basis.columns().iter().map(|g| modulo.reduce(g)).collect();
-    let basis = ZMat::from_cols(f, &short);
-    let gram = basis.gram(&k_f);
-    let u = reduce_form(&gram);
-    let basis = basis.mul(&u);
-    let mut gens: Vec<Vec<BigInt>> = basis.columns().iter().map(|g| modulo.reduce(g)).collect();
-    for g in gens.iter_mut() {
-        let q = dot(&t_f, g);
-        let first_negative = g
-            .iter()
-            .find(|x| !x.is_zero())
-            .is_some_and(|x| x.is_negative());
-        if q.is_negative() || (q.is_zero() && first_negative) {
-            for x in g.iter_mut() {
-                *x = -std::mem::take(x);
-            }
-        }
-    }
-    let basis = ZMat::from_cols(f, &gens);
-    let gram = basis.gram(&k_f);
+    let gens = readable(&basis, &k_f, &t_f, &modulo);
+    let gram = ZMat::from_cols(f, &gens).gram(&k_f);
     let charge: Vec<BigInt> = gens.iter().map(|g| dot(&t_f, g)).collect();
     let n_all = k.rows;
     let generators = gens
@@ -155,6 +112,79 @@ pub fn residual(
         pinned_rank,
         extra_radical,
     })
+}
+
+/// Step 2: the saturation S of the pinned vectors inside (restricted to the
+/// region) in coordinates of M, and its complement C in M, as (S, C).
+/// Fails when a vector inside violates a constraint.
+fn saturation(
+    c: &ZMat,
+    to_m: &ZMat,
+    inside: &[Vec<BigInt>],
+    dim_m: usize,
+) -> Result<(ZMat, ZMat), String> {
+    let mut coords = Vec::with_capacity(inside.len());
+    for nf in inside {
+        if !c.mul_vec(nf).iter().all(|x| x.is_zero()) {
+            return Err("a pinned vector does not commute with the pinned set".into());
+        }
+        coords.push(to_m.mul_vec(nf));
+    }
+    Ok(if coords.is_empty() {
+        (ZMat::zeros(dim_m, 0), ZMat::identity(dim_m))
+    } else {
+        saturate(&ZMat::from_cols(dim_m, &coords))
+    })
+}
+
+/// Step 3 at an unclean cut: when the Gram matrix of the basis is
+/// degenerate, move its radical into S (`s_cols`) and keep the rest.
+/// Returns the basis and the number of directions divided out.
+fn divide_radical(
+    basis: ZMat,
+    k_f: &ZMat,
+    s_cols: &mut Vec<Vec<BigInt>>,
+) -> Result<(ZMat, usize), String> {
+    let gram = basis.gram(k_f);
+    if !zmat::det(&gram).is_zero() {
+        return Ok((basis, 0));
+    }
+    let sg = smith(&gram);
+    let r = sg.rank();
+    s_cols.extend(basis.mul(&sg.q.col_range(r..gram.rows)).columns());
+    let basis = basis.mul(&sg.q.col_range(0..r));
+    if zmat::det(&basis.gram(k_f)).is_zero() {
+        return Err("the residual form stays degenerate".into());
+    }
+    Ok((basis, gram.rows - r))
+}
+
+/// Readable generators of the residual lattice (restricted to the region):
+/// short vectors modulo S first (the kernel and saturation bases can have
+/// entries exponential in the number of wires), then the readable form,
+/// then short representatives again, each with a positive charge (or, if
+/// neutral, a positive first entry).
+fn readable(basis: &ZMat, k_f: &ZMat, t_f: &[BigInt], modulo: &ModuloLattice) -> Vec<Vec<BigInt>> {
+    let f = basis.rows;
+    let basis = basis.mul(&modulo.shorten(basis));
+    let short: Vec<Vec<BigInt>> = basis.columns().iter().map(|g| modulo.reduce(g)).collect();
+    let basis = ZMat::from_cols(f, &short);
+    let u = reduce_form(&basis.gram(k_f));
+    let basis = basis.mul(&u);
+    let mut gens: Vec<Vec<BigInt>> = basis.columns().iter().map(|g| modulo.reduce(g)).collect();
+    for g in gens.iter_mut() {
+        let q = dot(t_f, g);
+        let first_negative = g
+            .iter()
+            .find(|x| !x.is_zero())
+            .is_some_and(|x| x.is_negative());
+        if q.is_negative() || (q.is_zero() && first_negative) {
+            for x in g.iter_mut() {
+                *x = -std::mem::take(x);
+            }
+        }
+    }
+    gens
 }
 
 /// One quasiparticle type: a coset l + K Z^d of the dual lattice.
@@ -216,65 +246,20 @@ pub fn invariants(k: &ZMat, t: &[BigInt]) -> Invariants {
     }
     let count = det.abs().to_usize().unwrap_or(usize::MAX);
     let all_types = count <= MAX_TYPES;
-    let modulo = (d > 0).then(|| ModuloLattice::new(k));
-    let make = |l: Vec<BigInt>| -> Quasiparticle {
-        let l = modulo.as_ref().map_or(l.clone(), |m| m.reduce(&l));
-        let kinv_l = s.solve(&l).unwrap_or_default();
-        let lr: Vec<Rational> = l
-            .iter()
-            .map(|x| Rational::from_integer(x.clone()))
-            .collect();
-        let charge = kinv_t
-            .iter()
-            .zip(&lr)
-            .fold(Rational::zero(), |a, (x, y)| a + x * y);
-        let spin = kinv_l
-            .iter()
-            .zip(&lr)
-            .fold(Rational::zero(), |a, (x, y)| a + x * y)
-            / Rational::from_integer(BigInt::from(2));
-        let period = if odd {
-            Rational::new(BigInt::one(), BigInt::from(2))
-        } else {
-            Rational::one()
-        };
-        Quasiparticle {
-            charge_mod: modulo_rational(&charge, &Rational::one()),
-            spin_mod: modulo_rational(&spin, &period),
-            l,
-            charge,
-            spin,
-        }
+    let types = Types {
+        modulo: (d > 0).then(|| ModuloLattice::new(k)),
+        smith: &s,
+        kinv_t: &kinv_t,
+        odd,
     };
-    let mut quasiparticles = Vec::new();
-    if all_types {
-        // Every coset: sum a_i g_i with 0 <= a_i < d_i.
-        let mut a = vec![BigInt::zero(); group.len()];
-        loop {
-            let mut l = vec![BigInt::zero(); d];
-            for (ai, g) in a.iter().zip(&gens) {
-                for (x, y) in l.iter_mut().zip(g) {
-                    *x += ai * y;
-                }
-            }
-            quasiparticles.push(make(l));
-            let mut i = 0;
-            while i < a.len() {
-                a[i] += 1;
-                if a[i] < group[i] {
-                    break;
-                }
-                a[i] = BigInt::zero();
-                i += 1;
-            }
-            if i == a.len() {
-                break;
-            }
-        }
+    let reps = if all_types {
+        every_coset(&group, &gens, d)
     } else {
-        quasiparticles.push(make(vec![BigInt::zero(); d]));
-        quasiparticles.extend(gens.into_iter().map(make));
-    }
+        std::iter::once(vec![BigInt::zero(); d])
+            .chain(gens)
+            .collect()
+    };
+    let mut quasiparticles: Vec<Quasiparticle> = reps.into_iter().map(|l| types.make(l)).collect();
     // The trivial type first, then by charge and spin modulo their periods.
     let nontrivial = |q: &Quasiparticle| q.l.iter().any(|x| !x.is_zero());
     quasiparticles.sort_by(|x, y| {
@@ -293,6 +278,81 @@ pub fn invariants(k: &ZMat, t: &[BigInt]) -> Invariants {
         quasiparticles,
         all_types,
         odd,
+    }
+}
+
+/// Representatives of every coset of the quasiparticle group: sum a_i g_i
+/// with 0 <= a_i < d_i, the first index running fastest.
+fn every_coset(group: &[BigInt], gens: &[Vec<BigInt>], d: usize) -> Vec<Vec<BigInt>> {
+    let mut out = Vec::new();
+    let mut a = vec![BigInt::zero(); group.len()];
+    loop {
+        let mut l = vec![BigInt::zero(); d];
+        for (ai, g) in a.iter().zip(gens) {
+            for (x, y) in l.iter_mut().zip(g) {
+                *x += ai * y;
+            }
+        }
+        out.push(l);
+        let mut i = 0;
+        while i < a.len() {
+            a[i] += 1;
+            if a[i] < group[i] {
+                break;
+            }
+            a[i] = BigInt::zero();
+            i += 1;
+        }
+        if i == a.len() {
+            return out;
+        }
+    }
+}
+
+/// What is needed to describe one quasiparticle type of K.
+struct Types<'a> {
+    /// Short representatives modulo K Z^d (None for the empty K).
+    modulo: Option<ModuloLattice>,
+    /// The Smith form of K (solves K x = l exactly).
+    smith: &'a crate::math::smith::Smith,
+    /// K^-1 t.
+    kinv_t: &'a [Rational],
+    /// Some diagonal entry of K is odd.
+    odd: bool,
+}
+
+impl Types<'_> {
+    /// The type of l: a short representative, its charge and spin, and
+    /// both modulo their ambiguity.
+    fn make(&self, l: Vec<BigInt>) -> Quasiparticle {
+        let l = self.modulo.as_ref().map_or(l.clone(), |m| m.reduce(&l));
+        let kinv_l = self.smith.solve(&l).unwrap_or_default();
+        let lr: Vec<Rational> = l
+            .iter()
+            .map(|x| Rational::from_integer(x.clone()))
+            .collect();
+        let charge = self
+            .kinv_t
+            .iter()
+            .zip(&lr)
+            .fold(Rational::zero(), |a, (x, y)| a + x * y);
+        let spin = kinv_l
+            .iter()
+            .zip(&lr)
+            .fold(Rational::zero(), |a, (x, y)| a + x * y)
+            / Rational::from_integer(BigInt::from(2));
+        let period = if self.odd {
+            Rational::new(BigInt::one(), BigInt::from(2))
+        } else {
+            Rational::one()
+        };
+        Quasiparticle {
+            charge_mod: modulo_rational(&charge, &Rational::one()),
+            spin_mod: modulo_rational(&spin, &period),
+            l,
+            charge,
+            spin,
+        }
     }
 }
 

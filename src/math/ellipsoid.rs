@@ -3,11 +3,11 @@
 //!
 //! Method:
 //!
-//! 1. LLL reduction of the form [Lenstra, Lenstra & Lovasz, Math. Ann. 261,
-//!    515 (1982)], done on the Gram matrix in floating point with an exact
-//!    integer change of basis U (G' = U^T G U). Reduction only makes the
-//!    search tree smaller: the set found does not depend on how well the
-//!    basis is reduced, because U is unimodular and exact.
+//! 1. LLL reduction of the form, in floating point with an exact integer
+//!    change of basis U (G' = U^T G U; [`crate::math::lll::float`]).
+//!    Reduction only makes the search tree smaller: the set found does not
+//!    depend on how well the basis is reduced, because U is unimodular and
+//!    exact.
 //! 2. Fincke-Pohst enumeration [Fincke & Pohst, Math. Comp. 44, 463 (1985)]:
 //!    with G' = R^T R (Cholesky), write
 //!    `z^T G' z = sum_i q_ii (z_i - c_i)^2`, `q_ii = R_ii^2`,
@@ -35,147 +35,7 @@
 
 use nalgebra::DMatrix;
 
-/// Lovasz constant of the reduction.
-pub const LLL_DELTA: f64 = 0.99;
-
-/// An LLL-reduced basis of the integer lattice under a quadratic form.
-#[derive(Debug, Clone)]
-pub struct Reduced {
-    /// Basis vectors in the original coordinates: `basis[j]` is column j of
-    /// the unimodular change of basis U.
-    pub basis: Vec<Vec<i64>>,
-    /// U^T G U, recomputed from the exact U at the end.
-    pub gram: DMatrix<f64>,
-    /// Number of swaps the reduction made.
-    pub swaps: usize,
-    /// True when the reduction stopped at its iteration cap (the basis is
-    /// then valid but less reduced; the enumeration is still exact).
-    pub capped: bool,
-}
-
-/// LLL-reduce the form G (symmetric positive definite). Fails when G is
-/// numerically singular or the change of basis overflows 64-bit integers.
-pub fn lll(g: &DMatrix<f64>) -> Result<Reduced, String> {
-    let n = g.nrows();
-    let mut gram = (g + g.transpose()) * 0.5;
-    let mut u: Vec<Vec<i64>> = (0..n)
-        .map(|j| (0..n).map(|i| (i == j) as i64).collect())
-        .collect();
-    let mut mu = vec![vec![0.0f64; n]; n];
-    let mut r = vec![vec![0.0f64; n]; n];
-    let mut bstar = vec![0.0f64; n];
-    let mut swaps = 0usize;
-    let mut capped = false;
-    if n == 0 {
-        return Ok(Reduced {
-            basis: u,
-            gram,
-            swaps,
-            capped,
-        });
-    }
-    gso_row(&gram, &mut mu, &mut r, &mut bstar, 0)?;
-    let cap = 20_000 + 2_000 * n * n;
-    let mut steps = 0usize;
-    let mut k = 1;
-    while k < n {
-        steps += 1;
-        if steps > cap {
-            capped = true;
-            break;
-        }
-        gso_row(&gram, &mut mu, &mut r, &mut bstar, k)?;
-        // Size reduction of b_k against b_{k-1}, ..., b_0.
-        for j in (0..k).rev() {
-            let q = mu[k][j].round();
-            if q == 0.0 {
-                continue;
-            }
-            if q.abs() > 1e15 {
-                return Err("the basis reduction diverged (entries beyond 1e15)".into());
-            }
-            let qi = q as i64;
-            let (lower, upper) = u.split_at_mut(k);
-            for (x, y) in upper[0].iter_mut().zip(&lower[j]) {
-                *x = qi
-                    .checked_mul(*y)
-                    .and_then(|p| x.checked_sub(p))
-                    .ok_or("the basis reduction overflowed 64-bit integers")?;
-            }
-            let gkk = gram[(k, k)] - 2.0 * q * gram[(k, j)] + q * q * gram[(j, j)];
-            for i in 0..n {
-                if i != k {
-                    let x = gram[(k, i)] - q * gram[(j, i)];
-                    gram[(k, i)] = x;
-                    gram[(i, k)] = x;
-                }
-            }
-            gram[(k, k)] = gkk;
-            let (lower, upper) = mu.split_at_mut(k);
-            for (x, y) in upper[0][..j].iter_mut().zip(&lower[j][..j]) {
-                *x -= q * y;
-            }
-            mu[k][j] -= q;
-        }
-        // Recompute row k from the updated form (cheap, keeps rounding low).
-        gso_row(&gram, &mut mu, &mut r, &mut bstar, k)?;
-        if bstar[k] < (LLL_DELTA - mu[k][k - 1] * mu[k][k - 1]) * bstar[k - 1] {
-            u.swap(k, k - 1);
-            gram.swap_rows(k, k - 1);
-            gram.swap_columns(k, k - 1);
-            swaps += 1;
-            gso_row(&gram, &mut mu, &mut r, &mut bstar, k - 1)?;
-            k = (k - 1).max(1);
-        } else {
-            k += 1;
-        }
-    }
-    let gram = transform(g, &u);
-    Ok(Reduced {
-        basis: u,
-        gram,
-        swaps,
-        capped,
-    })
-}
-
-/// Gram-Schmidt data of row k from the Gram matrix (rows < k up to date).
-fn gso_row(
-    gram: &DMatrix<f64>,
-    mu: &mut [Vec<f64>],
-    r: &mut [Vec<f64>],
-    bstar: &mut [f64],
-    k: usize,
-) -> Result<(), String> {
-    for j in 0..k {
-        let mut x = gram[(k, j)];
-        for i in 0..j {
-            x -= mu[j][i] * r[k][i];
-        }
-        r[k][j] = x;
-        mu[k][j] = x / bstar[j];
-    }
-    let mut b = gram[(k, k)];
-    for j in 0..k {
-        b -= mu[k][j] * r[k][j];
-    }
-    if b.is_nan() || b <= 0.0 || b.is_infinite() {
-        return Err(
-            "the quadratic form is numerically singular (not positive definite in floating point)"
-                .into(),
-        );
-    }
-    bstar[k] = b;
-    Ok(())
-}
-
-/// U^T G U for an integer U given by columns.
-fn transform(g: &DMatrix<f64>, u: &[Vec<i64>]) -> DMatrix<f64> {
-    let n = u.len();
-    let um = DMatrix::from_fn(n, n, |i, j| u[j][i] as f64);
-    let t = um.transpose() * g * &um;
-    (&t + t.transpose()) * 0.5
-}
+use crate::math::lll;
 
 /// Counters of one enumeration.
 #[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
@@ -199,7 +59,7 @@ pub struct Ellipsoid {
     /// q_ij = R_ij / R_ii for j > i (row-major, upper part).
     off: Vec<Vec<f64>>,
     /// Reduction statistics.
-    pub reduction: Reduced,
+    pub reduction: lll::Reduced,
 }
 
 impl Ellipsoid {
@@ -212,7 +72,7 @@ impl Ellipsoid {
         if g.iter().any(|x| !x.is_finite()) {
             return Err("the quadratic form has non-finite entries".into());
         }
-        let red = lll(g)?;
+        let red = lll::float(g)?;
         let chol = nalgebra::Cholesky::new(red.gram.clone())
             .ok_or("the quadratic form is not positive definite (Cholesky failed)")?;
         let l = chol.l(); // G' = L L^T, so R = L^T
@@ -509,18 +369,18 @@ impl SplitMix {
 }
 
 #[cfg(test)]
-mod tests {
+pub(crate) mod tests {
     use super::*;
-    use crate::math::rational;
+    use crate::math::bareiss;
 
-    fn gram(rows: &[Vec<i64>]) -> DMatrix<f64> {
+    pub(crate) fn gram(rows: &[Vec<i64>]) -> DMatrix<f64> {
         let n = rows.len();
         DMatrix::from_fn(n, n, |i, j| rows[i][j] as f64)
     }
 
     /// Cartan matrix of E8 (a chain of seven nodes with an eighth attached
     /// to the third): the even unimodular lattice in 8 dimensions.
-    fn e8() -> Vec<Vec<i64>> {
+    pub(crate) fn e8() -> Vec<Vec<i64>> {
         let mut a = vec![vec![0i64; 8]; 8];
         for (i, row) in a.iter_mut().enumerate() {
             row[i] = 2;
@@ -537,7 +397,7 @@ mod tests {
     }
 
     /// Scramble a Gram matrix by a fixed unimodular matrix W: W^T A W.
-    fn scrambled(a: &[Vec<i64>]) -> Vec<Vec<i64>> {
+    pub(crate) fn scrambled(a: &[Vec<i64>]) -> Vec<Vec<i64>> {
         let n = a.len();
         // Upper unitriangular times lower unitriangular: det 1.
         let up = |i: usize, j: usize| -> i64 {
@@ -601,7 +461,7 @@ mod tests {
         // Lattices and Groups", ch. 4; from memory]. det = 1 (unimodular).
         let a = e8();
         assert_eq!(
-            rational::det_and_inverse(&a).unwrap().0,
+            bareiss::det_and_inverse(&a).unwrap().0,
             num_bigint::BigInt::from(1)
         );
         for g in [a.clone(), scrambled(&a)] {
@@ -624,50 +484,6 @@ mod tests {
             let c = shell_counts(&g, 5);
             assert_eq!(&c[1..], &[8, 24, 32, 24, 48]);
         }
-    }
-
-    #[test]
-    fn lll_basis_is_unimodular_and_reduced() {
-        // Checks of the definition [Lenstra, Lenstra & Lovasz (1982)]: |det U|
-        // = 1 (exact), U^T G U = reduced Gram, |mu_kj| <= 1/2 (+ rounding)
-        // and the Lovasz condition with delta = 0.99.
-        let g = gram(&scrambled(&e8()));
-        let red = lll(&g).unwrap();
-        assert!(!red.capped);
-        assert!(red.swaps > 0, "the scrambled basis needs reduction");
-        let longest = (0..8).map(|i| g[(i, i)]).fold(0.0, f64::max);
-        assert!(longest > 10.0, "the scrambled basis has long vectors");
-        let n = g.nrows();
-        let cols: Vec<Vec<i64>> = (0..n)
-            .map(|i| (0..n).map(|j| red.basis[j][i]).collect())
-            .collect();
-        let det = rational::det_and_inverse(&cols).unwrap().0;
-        assert_eq!(num_traits::Signed::abs(&det), num_bigint::BigInt::from(1));
-        // Gram-Schmidt of the reduced Gram matrix, recomputed here.
-        let gr = &red.gram;
-        let mut mu = vec![vec![0.0; n]; n];
-        let mut b = vec![0.0; n];
-        for k in 0..n {
-            for j in 0..k {
-                let mut x = gr[(k, j)];
-                for i in 0..j {
-                    x -= mu[j][i] * mu[k][i] * b[i];
-                }
-                mu[k][j] = x / b[j];
-            }
-            b[k] = gr[(k, k)] - (0..k).map(|j| mu[k][j] * mu[k][j] * b[j]).sum::<f64>();
-        }
-        for k in 1..n {
-            assert!(
-                mu[k][..k].iter().all(|x| x.abs() <= 0.5 + 1e-9),
-                "size reduction"
-            );
-            assert!(b[k] >= (LLL_DELTA - mu[k][k - 1].powi(2)) * b[k - 1] - 1e-9);
-        }
-        // LLL's bound on the first vector [Lenstra, Lenstra & Lovasz (1982)]:
-        // |b_1|^2 <= (delta - 1/4)^-(n-1) lambda_1^2, with lambda_1^2 = 2 for E8.
-        let factor = (1.0 / (LLL_DELTA - 0.25)).powi(n as i32 - 1);
-        assert!(gr[(0, 0)] <= factor * 2.0 + 1e-9);
     }
 
     #[test]

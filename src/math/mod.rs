@@ -1,13 +1,19 @@
-//! Algorithms without physics, one file each: exact rational algebra
-//! ([`rational`]), big-integer matrices ([`zmat`]), the Smith normal form
-//! and the lattice operations built on it ([`smith`]), readable bases of
-//! integer forms ([`reduce`]), and the enumeration of lattice points in an
-//! ellipsoid ([`ellipsoid`]), and double-double arithmetic with the few dense
+//! Algorithms without physics, one file each: exact rational numbers
+//! ([`rational`]), big-integer matrices, inertia and signature ([`zmat`]),
+//! fraction-free elimination for det, inverse and rank ([`bareiss`]), the
+//! Smith normal form and the lattice operations built on it ([`smith`]),
+//! LLL reduction, exact and float ([`lll`]), readable bases of integer
+//! forms ([`reduce`]), the enumeration of lattice points in an ellipsoid
+//! ([`ellipsoid`]), and double-double arithmetic with the few dense
 //! symmetric-matrix routines the accurate fixed-point route needs
-//! ([`ddouble`]: Cholesky, triangular inverse, Jacobi eigen-solver). Nothing here knows about models or fields.
+//! ([`ddouble`]: Cholesky, triangular inverse, Jacobi eigen-solver).
+//! Nothing here knows about models or fields; nothing here imports from
+//! outside `math/`.
 
+pub mod bareiss;
 pub mod ddouble;
 pub mod ellipsoid;
+pub mod lll;
 pub mod rational;
 pub mod reduce;
 pub mod smith;

@@ -1,14 +1,16 @@
-//! Exact rational algebra on integer K matrices.
+//! Exact rational numbers and vectors: the [`Rational`] type, printing,
+//! conversion to and from floats (the continued-fraction recognition of
+//! small rationals), solves with a precomputed exact inverse, dot products.
 //!
-//! Everything here is computed with big integers and big rationals, never
-//! floats: determinants and inverses by fraction-free (Bareiss) Gauss-Jordan
-//! elimination [Bareiss, Math. Comp. 22, 565 (1968)], so no intermediate
-//! value overflows whatever the size of the matrix. Floats enter only in
-//! [`signature`], whose result is checked against the exact sign of det K.
+//! Invariants: big integers and big rationals only, so nothing overflows;
+//! floats enter only in [`to_f64`] (output) and [`small_rational`] (which
+//! recognises a float input as an exact rational or refuses). Determinants,
+//! inverses and ranks live in [`crate::math::bareiss`], the signature in
+//! [`crate::math::zmat::signature`].
 
 use num_bigint::BigInt;
 use num_integer::Integer;
-use num_traits::{One, Signed, ToPrimitive, Zero};
+use num_traits::{ToPrimitive, Zero};
 
 /// Exact rational number.
 pub type Rational = num_rational::BigRational;
@@ -77,74 +79,6 @@ pub fn int(i: i64) -> Rational {
     Rational::from_integer(BigInt::from(i))
 }
 
-/// Determinant and inverse of a square integer matrix, or `None` when it is
-/// singular. Fraction-free Gauss-Jordan: after elimination every diagonal
-/// entry equals the determinant of the row-permuted matrix and the right
-/// block equals that determinant times the inverse; all divisions are exact.
-pub fn det_and_inverse(a: &[Vec<i64>]) -> Option<(BigInt, Vec<Vec<Rational>>)> {
-    let n = a.len();
-    let mut m: Vec<Vec<BigInt>> = a
-        .iter()
-        .enumerate()
-        .map(|(i, row)| {
-            let mut r: Vec<BigInt> = row.iter().map(|&x| BigInt::from(x)).collect();
-            r.extend((0..n).map(|j| {
-                if i == j {
-                    BigInt::one()
-                } else {
-                    BigInt::zero()
-                }
-            }));
-            r
-        })
-        .collect();
-    let mut prev = BigInt::one();
-    let mut sign = 1i32;
-    for k in 0..n {
-        let p = (k..n).find(|&r| !m[r][k].is_zero())?;
-        if p != k {
-            m.swap(p, k);
-            sign = -sign;
-        }
-        eliminate_column(&mut m, k, &prev);
-        prev = m[k][k].clone();
-    }
-    let d = prev;
-    let inverse = m
-        .iter()
-        .map(|row| {
-            row[n..]
-                .iter()
-                .map(|x| Rational::new(x.clone(), d.clone()))
-                .collect()
-        })
-        .collect();
-    let det = if sign < 0 { -d } else { d };
-    Some((det, inverse))
-}
-
-/// One fraction-free Gauss-Jordan step on pivot (k, k) of the augmented matrix.
-fn eliminate_column(m: &mut [Vec<BigInt>], k: usize, prev: &BigInt) {
-    let pivot_row = m[k].clone();
-    let pivot = pivot_row[k].clone();
-    for (i, row) in m.iter_mut().enumerate() {
-        if i == k {
-            continue;
-        }
-        let factor = row[k].clone();
-        for (j, x) in row.iter_mut().enumerate() {
-            if j == k {
-                continue;
-            }
-            let num = &pivot * &*x - &factor * &pivot_row[j];
-            debug_assert!(num.is_multiple_of(prev));
-            *x = num / prev;
-        }
-        row[k] = BigInt::zero();
-    }
-    // The pivot row itself keeps its entries (they are already the right minors).
-}
-
 /// `K^-1 l` for an integer vector, with a precomputed inverse.
 pub fn solve_with(inverse: &[Vec<Rational>], l: &[i64]) -> Vec<Rational> {
     inverse
@@ -184,18 +118,6 @@ pub fn to_integers(m: &[Rational]) -> Option<Vec<i64>> {
         .collect()
 }
 
-/// Signature (n+, n-) of a symmetric integer matrix with det != 0. Counted
-/// from float eigenvalues; the parity of n- is checked against the exact
-/// sign of det, and `None` is returned if they disagree.
-pub fn signature(k: &[Vec<i64>], det: &BigInt) -> Option<(usize, usize)> {
-    let n = k.len();
-    let m = nalgebra::DMatrix::from_fn(n, n, |i, j| k[i][j] as f64);
-    let eig = nalgebra::SymmetricEigen::new(m);
-    let neg = eig.eigenvalues.iter().filter(|e| **e < 0.0).count();
-    let det_negative = det.is_negative();
-    ((neg % 2 == 1) == det_negative).then_some((n - neg, neg))
-}
-
 /// Greatest common divisor of two rationals' denominators is not needed
 /// elsewhere; this helper reduces an integer vector by its gcd (for
 /// printing primitive vectors).
@@ -203,161 +125,9 @@ pub fn gcd_of(v: &[i64]) -> i64 {
     v.iter().fold(0i64, |g, &x| g.gcd(&x))
 }
 
-/// Rank of a rational matrix (given as rows) by Gaussian elimination with
-/// exact big rationals: the number of pivots found column by column.
-pub fn rank(rows: &[Vec<Rational>]) -> usize {
-    let mut m: Vec<Vec<Rational>> = rows.to_vec();
-    let cols = m.iter().map(|r| r.len()).max().unwrap_or(0);
-    let mut r = 0;
-    for c in 0..cols {
-        let Some(p) = (r..m.len()).find(|&i| c < m[i].len() && !m[i][c].is_zero()) else {
-            continue;
-        };
-        m.swap(p, r);
-        let pivot = m[r].clone();
-        for row in m.iter_mut().skip(r + 1) {
-            if c >= row.len() || row[c].is_zero() {
-                continue;
-            }
-            let f = &row[c] / &pivot[c];
-            for (j, x) in row.iter_mut().enumerate().skip(c) {
-                if j < pivot.len() {
-                    *x -= &f * &pivot[j];
-                }
-            }
-        }
-        r += 1;
-        if r == m.len() {
-            break;
-        }
-    }
-    r
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
-
-    fn rows(m: &[&[i64]]) -> Vec<Vec<Rational>> {
-        m.iter()
-            .map(|r| r.iter().map(|&x| int(x)).collect())
-            .collect()
-    }
-
-    #[test]
-    fn ranks_of_small_matrices() {
-        // By hand: a zero matrix, proportional rows, a non-zero det (1*4 -
-        // 2*3 = -2), a 3 x 3 with row 3 = row 1 + row 2, a wide 2 x 3 whose
-        // first column vanishes.
-        assert_eq!(rank(&rows(&[&[0, 0], &[0, 0]])), 0);
-        assert_eq!(rank(&rows(&[&[1, 2], &[2, 4]])), 1);
-        assert_eq!(rank(&rows(&[&[1, 2], &[3, 4]])), 2);
-        assert_eq!(rank(&rows(&[&[1, 2, 3], &[4, 5, 6], &[5, 7, 9]])), 2);
-        assert_eq!(rank(&rows(&[&[0, 1, 2], &[0, 3, 7]])), 2);
-        assert_eq!(rank(&[]), 0);
-    }
-    use num_traits::FromPrimitive;
-
-    fn rational_inverse(a: &[Vec<i64>]) -> Option<Vec<Vec<Rational>>> {
-        // Plain Gauss-Jordan with rationals, as an independent reference.
-        let n = a.len();
-        let mut m: Vec<Vec<Rational>> = a
-            .iter()
-            .enumerate()
-            .map(|(i, r)| {
-                let mut row: Vec<Rational> = r.iter().map(|&x| int(x)).collect();
-                row.extend((0..n).map(|j| int((i == j) as i64)));
-                row
-            })
-            .collect();
-        for k in 0..n {
-            let p = (k..n).find(|&r| !m[r][k].is_zero())?;
-            m.swap(p, k);
-            let piv = m[k][k].clone();
-            for x in m[k].iter_mut() {
-                *x = &*x / &piv;
-            }
-            let prow = m[k].clone();
-            for (i, row) in m.iter_mut().enumerate() {
-                if i != k {
-                    let f = row[k].clone();
-                    for (x, y) in row.iter_mut().zip(&prow) {
-                        *x = &*x - &f * y;
-                    }
-                }
-            }
-        }
-        Some(m.into_iter().map(|r| r[n..].to_vec()).collect())
-    }
-
-    #[test]
-    fn bareiss_matches_rational_gauss_jordan() {
-        let cases: Vec<Vec<Vec<i64>>> = vec![
-            vec![vec![3, 1], vec![1, 3]],
-            vec![vec![0, 1, 2], vec![1, 0, 3], vec![2, 3, 1]],
-            vec![vec![1, 0], vec![0, -1]],
-            vec![
-                vec![2, -1, 0, 0],
-                vec![-1, 2, -1, 0],
-                vec![0, -1, 2, -1],
-                vec![0, 0, -1, 2],
-            ],
-        ];
-        for a in cases {
-            let (_, inv) = det_and_inverse(&a).unwrap();
-            assert_eq!(inv, rational_inverse(&a).unwrap());
-        }
-    }
-
-    #[test]
-    fn determinants_of_known_matrices() {
-        // Halperin (331): det 8 [Wen, Adv. Phys. 44, 405 (1995)].
-        assert_eq!(
-            det_and_inverse(&[vec![3, 1], vec![1, 3]]).unwrap().0,
-            BigInt::from(8)
-        );
-        // A_4 Cartan matrix: det 5 (standard).
-        let a4 = vec![
-            vec![2, -1, 0, 0],
-            vec![-1, 2, -1, 0],
-            vec![0, -1, 2, -1],
-            vec![0, 0, -1, 2],
-        ];
-        assert_eq!(det_and_inverse(&a4).unwrap().0, BigInt::from(5));
-        assert!(det_and_inverse(&[vec![1, 2], vec![2, 4]]).is_none());
-    }
-
-    #[test]
-    fn large_entries_do_not_overflow() {
-        // 64x64 with entries of a few dozen: the determinant is far beyond i128.
-        let n = 64;
-        let a: Vec<Vec<i64>> = (0..n)
-            .map(|i| {
-                (0..n)
-                    .map(|j| {
-                        if i == j {
-                            40
-                        } else {
-                            ((i * 7 + j * 13) % 5) as i64 - 2
-                        }
-                    })
-                    .collect()
-            })
-            .map(|r: Vec<i64>| r)
-            .collect();
-        let sym: Vec<Vec<i64>> = (0..n)
-            .map(|i| (0..n).map(|j| a[i.min(j)][i.max(j)]).collect())
-            .collect();
-        let (det, inv) = det_and_inverse(&sym).unwrap();
-        assert!(det.bits() > 300);
-        // K K^-1 = 1 exactly on a few rows.
-        for i in [0, 31, 63] {
-            for j in [0, 17, 63] {
-                let s = (0..n).fold(Rational::zero(), |acc, k| acc + int(sym[i][k]) * &inv[k][j]);
-                assert_eq!(s, Rational::from_u8((i == j) as u8).unwrap());
-            }
-        }
-    }
 
     #[test]
     fn small_rationals_are_recognised() {

@@ -1,9 +1,8 @@
 //! Readable bases: reduction of an integer symmetric form to a small
 //! GL(n, Z)-equivalent one, and of vectors modulo a lattice.
 //!
-//! - Definite forms: LLL reduction [Lenstra, Lenstra & Lovász, Math. Ann.
-//!   261, 515 (1982)] with delta = 99/100, exact rational Gram-Schmidt data
-//!   computed from the Gram matrix, followed by pairwise reduction
+//! - Definite forms: exact LLL reduction ([`crate::math::lll::exact`],
+//!   delta = 99/100), followed by pairwise reduction
 //!   (b_i -= round(G_ij / G_jj) b_j while it shortens b_i).
 //! - Indefinite forms: LLL does not apply. A greedy descent over the moves
 //!   b_i -> b_i + k b_j lowers the sum of |entries| (ties: the sum of
@@ -18,13 +17,16 @@
 //!   moves are the best integer multiple of a basis vector (a weighted
 //!   median), not unit steps, so long vectors take few moves.
 //!
-//! Every step is a unimodular change of basis, so det, signature, filling
-//! and the quasiparticle data do not depend on it; only readability does.
+//! Owns: the readable-basis descent ([`reduce_form`]) and short
+//! representatives modulo a lattice ([`ModuloLattice`]). Invariant: every
+//! step is a unimodular change of basis, so det, signature, filling and
+//! the quasiparticle data do not depend on it; only readability does.
 
 use num_bigint::BigInt;
 use num_integer::Integer;
 use num_traits::{One, Signed, ToPrimitive, Zero};
 
+use super::lll::{self, round_rational};
 use super::zmat::{self, ZMat};
 use crate::math::rational::Rational;
 
@@ -147,7 +149,7 @@ fn reduce_summand(g: &ZMat) -> ZMat {
         let sub = block(&gm, &rest);
         let (p, q, _) = zmat::inertia(&sub);
         if p == rest.len() || q == rest.len() {
-            let v = lll_signed(&sub, if p > 0 { 1 } else { -1 });
+            let v = lll::exact_definite(&sub, if p > 0 { 1 } else { -1 });
             embed(&mut gm, &mut u, &rest, &v);
             pairwise(&mut gm, &mut u, &frozen);
         } else {
@@ -177,7 +179,7 @@ fn reduce_summand(g: &ZMat) -> ZMat {
         }
         for (j, &cj) in c.iter().enumerate() {
             if j != i && cj != 0 {
-                apply(&mut gm, &mut u, i, j, &BigInt::from(cj));
+                zmat::basis_move(&mut gm, &mut u, i, j, &BigInt::from(cj));
             }
         }
         frozen = vec![false; n];
@@ -205,7 +207,7 @@ fn split(g: &mut ZMat, u: &mut ZMat, i: usize, frozen: &[bool]) {
     for (j, &fixed) in frozen.iter().enumerate() {
         if j != i && !fixed {
             let c = -(g.at(i, j) * &gii);
-            apply(g, u, j, i, &c);
+            zmat::basis_move(g, u, j, i, &c);
         }
     }
 }
@@ -277,16 +279,6 @@ fn embed(g: &mut ZMat, u: &mut ZMat, idx: &[usize], v: &ZMat) {
     }
     *u = u.mul(&w);
     *g = w.gram(g);
-}
-
-/// b_i += k b_j in the Gram matrix G and the transform U.
-fn apply(g: &mut ZMat, u: &mut ZMat, i: usize, j: usize, k: &BigInt) {
-    if k.is_zero() {
-        return;
-    }
-    g.add_col_multiple(i, j, k);
-    g.add_row_multiple(i, j, k);
-    u.add_col_multiple(i, j, k);
 }
 
 /// Sum of |entries| and sum of |diagonal entries| of G after b_i += k b_j.
@@ -380,7 +372,7 @@ fn descend(g: &mut ZMat, u: &mut ZMat, frozen: &[bool]) {
             }
         }
         match best {
-            Some((_, i, j, k)) => apply(g, u, i, j, &k),
+            Some((_, i, j, k)) => zmat::basis_move(g, u, i, j, &k),
             None => return,
         }
     }
@@ -405,7 +397,7 @@ fn pairwise(g: &mut ZMat, u: &mut ZMat, frozen: &[bool]) {
                 let k = -q;
                 let new_ii = g.at(i, i) + &two * &k * g.at(i, j) + &k * &k * g.at(j, j);
                 if new_ii.abs() < g.at(i, i).abs() {
-                    apply(g, u, i, j, &k);
+                    zmat::basis_move(g, u, i, j, &k);
                     moved = true;
                 }
             }
@@ -423,97 +415,6 @@ fn sort_basis(g: &ZMat, u: &mut ZMat) {
     order.sort_by_key(|&i| (g.at(i, i).is_negative(), g.at(i, i).abs()));
     let cols: Vec<Vec<BigInt>> = order.iter().map(|&i| u.col(i)).collect();
     *u = ZMat::from_cols(u.rows, &cols);
-}
-
-/// Nearest integer (halves rounded up).
-pub fn round_rational(x: &Rational) -> BigInt {
-    let half = Rational::new(BigInt::one(), BigInt::from(2));
-    (x + half).floor().to_integer()
-}
-
-/// LLL on sign * G (definite).
-fn lll_signed(g: &ZMat, sign: i32) -> ZMat {
-    if sign > 0 {
-        lll(g)
-    } else {
-        let neg = ZMat::from_rows(
-            &g.to_rows()
-                .into_iter()
-                .map(|r| r.into_iter().map(|x| -x).collect())
-                .collect::<Vec<_>>(),
-            g.cols,
-        );
-        lll(&neg)
-    }
-}
-
-/// LLL reduction (delta = 99/100) of a positive definite Gram matrix:
-/// returns unimodular U with U^T G U reduced.
-pub fn lll(g: &ZMat) -> ZMat {
-    let n = g.rows;
-    let mut u = ZMat::identity(n);
-    if n < 2 {
-        return u;
-    }
-    let delta = Rational::new(BigInt::from(99), BigInt::from(100));
-    let mut gm = g.clone();
-    let mut mu = vec![vec![Rational::zero(); n]; n];
-    let mut bb = vec![Rational::zero(); n];
-    bb[0] = Rational::from_integer(gm.at(0, 0).clone());
-    let mut k = 1;
-    let mut guard = 0usize;
-    while k < n {
-        guard += 1;
-        if guard > 10 * MAX_MOVES {
-            break;
-        }
-        if k == 1 {
-            bb[0] = Rational::from_integer(gm.at(0, 0).clone());
-        }
-        gram_schmidt_row(&gm, &mut mu, &mut bb, k);
-        // Size reduction of b_k.
-        for j in (0..k).rev() {
-            let q = round_rational(&mu[k][j]);
-            if q.is_zero() {
-                continue;
-            }
-            let neg = -&q;
-            apply(&mut gm, &mut u, k, j, &neg);
-            let qr = Rational::from_integer(q);
-            let (lower, upper) = mu.split_at_mut(k);
-            for (x, y) in upper[0].iter_mut().zip(&lower[j]).take(j) {
-                *x -= &qr * y;
-            }
-            upper[0][j] -= &qr;
-        }
-        // Size reduction leaves b*_k, hence B_k, unchanged.
-        let lhs = bb[k].clone();
-        let rhs = (&delta - &mu[k][k - 1] * &mu[k][k - 1]) * &bb[k - 1];
-        if lhs >= rhs {
-            k += 1;
-        } else {
-            gm.swap_rows(k, k - 1);
-            gm.swap_cols(k, k - 1);
-            u.swap_cols(k, k - 1);
-            k = (k - 1).max(1);
-        }
-    }
-    u
-}
-
-/// Gram-Schmidt coefficients of row k from the Gram matrix (rows < k known).
-fn gram_schmidt_row(g: &ZMat, mu: &mut [Vec<Rational>], bb: &mut [Rational], k: usize) {
-    for j in 0..k {
-        let mut x = Rational::from_integer(g.at(k, j).clone());
-        for l in 0..j {
-            x -= &mu[j][l] * &mu[k][l] * &bb[l];
-        }
-        mu[k][j] = x / &bb[j];
-    }
-    bb[k] = Rational::from_integer(g.at(k, k).clone())
-        - (0..k).fold(Rational::zero(), |acc, l| {
-            acc + &mu[k][l] * &mu[k][l] * &bb[l]
-        });
 }
 
 /// Short representatives modulo the lattice spanned by some integer
@@ -544,7 +445,7 @@ impl ModuloLattice {
             };
         }
         let sub = ZMat::from_cols(dim, &cols);
-        let u = lll(&sub.gram(&ZMat::identity(dim)));
+        let u = lll::exact(&sub.gram(&ZMat::identity(dim)));
         let basis = sub.mul(&u).columns();
         let mut star: Vec<Vec<Rational>> = Vec::with_capacity(basis.len());
         let mut star_norm: Vec<Rational> = Vec::with_capacity(basis.len());
@@ -639,7 +540,7 @@ impl ModuloLattice {
             })
             .collect();
         debug_assert_eq!(self.dim, c.rows);
-        lll(&ZMat::from_rows(&rows, d))
+        lll::exact(&ZMat::from_rows(&rows, d))
     }
 }
 
@@ -731,13 +632,13 @@ pub fn content(v: &[BigInt]) -> BigInt {
 }
 
 #[cfg(test)]
-mod tests {
+pub(crate) mod tests {
     use super::*;
     use rand::{Rng, SeedableRng};
     use rand_chacha::ChaCha8Rng;
 
     /// A random unimodular matrix: a product of elementary moves.
-    fn random_unimodular(rng: &mut ChaCha8Rng, n: usize, moves: usize) -> ZMat {
+    pub(crate) fn random_unimodular(rng: &mut ChaCha8Rng, n: usize, moves: usize) -> ZMat {
         let mut u = ZMat::identity(n);
         if n < 2 {
             return u;
@@ -754,7 +655,7 @@ mod tests {
         u
     }
 
-    fn diag(d: &[i64]) -> ZMat {
+    pub(crate) fn diag(d: &[i64]) -> ZMat {
         let n = d.len();
         let rows: Vec<Vec<i64>> = (0..n)
             .map(|i| (0..n).map(|j| if i == j { d[i] } else { 0 }).collect())
@@ -769,39 +670,6 @@ mod tests {
             .map(|x| x.abs())
             .max()
             .unwrap_or_default()
-    }
-
-    #[test]
-    fn lll_conditions_hold() {
-        // The two defining conditions of an LLL-reduced basis (Lenstra,
-        // Lenstra & Lovasz 1982, from memory), recomputed here by plain
-        // Gram-Schmidt:
-        // |mu_ij| <= 1/2 and B_k >= (delta - mu_{k,k-1}^2) B_{k-1}.
-        let mut rng = ChaCha8Rng::seed_from_u64(3);
-        for _ in 0..30 {
-            let n = rng.gen_range(2..=5);
-            let b = random_unimodular(&mut rng, n, 12);
-            let scale: Vec<i64> = (0..n).map(|_| rng.gen_range(1..=4)).collect();
-            let g = b.gram(&diag(&scale));
-            let u = lll(&g);
-            assert!(zmat::det(&u).abs().is_one(), "unimodular");
-            let r = u.gram(&g);
-            let mut mu = vec![vec![Rational::zero(); n]; n];
-            let mut bb = vec![Rational::zero(); n];
-            for k in 0..n {
-                gram_schmidt_row(&r, &mut mu, &mut bb, k);
-            }
-            let half = Rational::new(BigInt::one(), BigInt::from(2));
-            let delta = Rational::new(BigInt::from(99), BigInt::from(100));
-            for k in 1..n {
-                for m in &mu[k][..k] {
-                    assert!(m.abs() <= half, "size reduced");
-                }
-                assert!(bb[k] >= (&delta - &mu[k][k - 1] * &mu[k][k - 1]) * &bb[k - 1]);
-            }
-            // The form is only rewritten: same determinant.
-            assert_eq!(zmat::det(&r), zmat::det(&g));
-        }
     }
 
     #[test]

@@ -1,7 +1,9 @@
 //! The Smith normal form [H. J. S. Smith, Phil. Trans. R. Soc. 151, 293
 //! (1861)] with both unimodular transforms and their inverses, and the
 //! lattice operations built on it: integer kernel, saturation of a column
-//! span, completion of a saturated set to a basis of Z^n, rank.
+//! span, completion of a saturated set to a basis of Z^n. (The plain rank
+//! of a matrix is [`crate::math::bareiss::rank`]; [`Smith::rank`] is the
+//! number of invariant factors of a form already computed.)
 //!
 //! Algorithm (the textbook one, written here): pick the entry of least
 //! absolute value in the remaining block as pivot, clear its row and column
@@ -151,54 +153,7 @@ pub fn smith(a: &ZMat) -> Smith {
         };
         w.swap_rows(t, pi);
         w.swap_cols(t, pj);
-        loop {
-            let piv = w.a.at(t, t).clone();
-            for i in t + 1..m {
-                let f = round_div(w.a.at(i, t), &piv);
-                w.row_sub(i, t, &f);
-            }
-            for j in t + 1..n {
-                let f = round_div(w.a.at(t, j), &piv);
-                w.col_sub(j, t, &f);
-            }
-            // A remainder left in row or column t: it is smaller than the pivot.
-            let rest_col = (t + 1..m)
-                .filter(|&i| !w.a.at(i, t).is_zero())
-                .min_by_key(|&i| w.a.at(i, t).abs());
-            let rest_row = (t + 1..n)
-                .filter(|&j| !w.a.at(t, j).is_zero())
-                .min_by_key(|&j| w.a.at(t, j).abs());
-            match (rest_col, rest_row) {
-                (None, None) => {}
-                (Some(i), Some(j)) => {
-                    if w.a.at(i, t).abs() <= w.a.at(t, j).abs() {
-                        w.swap_rows(t, i);
-                    } else {
-                        w.swap_cols(t, j);
-                    }
-                    continue;
-                }
-                (Some(i), None) => {
-                    w.swap_rows(t, i);
-                    continue;
-                }
-                (None, Some(j)) => {
-                    w.swap_cols(t, j);
-                    continue;
-                }
-            }
-            // Row and column cleared: divisibility of the remaining block.
-            let piv = w.a.at(t, t).clone();
-            let bad = (t + 1..m).find(|&i| (t + 1..n).any(|j| !w.a.at(i, j).is_multiple_of(&piv)));
-            match bad {
-                Some(i) => {
-                    // row_t += row_i brings a non-multiple into row t.
-                    let minus_one = -BigInt::one();
-                    w.row_sub(t, i, &minus_one);
-                }
-                None => break,
-            }
-        }
+        w.diagonalise_at(t);
         if w.a.at(t, t).is_negative() {
             w.negate_row(t);
         }
@@ -210,6 +165,80 @@ pub fn smith(a: &ZMat) -> Smith {
         p_inv: w.p_inv,
         q: w.q,
         q_inv: w.q_inv,
+    }
+}
+
+impl Work {
+    /// Clear row and column t around the pivot (t, t) until the pivot
+    /// divides every entry of the remaining block.
+    fn diagonalise_at(&mut self, t: usize) {
+        loop {
+            self.reduce_by_pivot(t);
+            if self.move_remainder(t) {
+                continue;
+            }
+            if !self.restore_divisibility(t) {
+                break;
+            }
+        }
+    }
+
+    /// Subtract rounded multiples of row and column t from the others, so
+    /// that what remains in column and row t is at most half the pivot.
+    fn reduce_by_pivot(&mut self, t: usize) {
+        let (m, n) = (self.a.rows, self.a.cols);
+        let piv = self.a.at(t, t).clone();
+        for i in t + 1..m {
+            let f = round_div(self.a.at(i, t), &piv);
+            self.row_sub(i, t, &f);
+        }
+        for j in t + 1..n {
+            let f = round_div(self.a.at(t, j), &piv);
+            self.col_sub(j, t, &f);
+        }
+    }
+
+    /// Swap the least remainder left in column or row t (smaller than the
+    /// pivot) into the pivot; false when both are clear.
+    fn move_remainder(&mut self, t: usize) -> bool {
+        let (m, n) = (self.a.rows, self.a.cols);
+        let a = &self.a;
+        let rest_col = (t + 1..m)
+            .filter(|&i| !a.at(i, t).is_zero())
+            .min_by_key(|&i| a.at(i, t).abs());
+        let rest_row = (t + 1..n)
+            .filter(|&j| !a.at(t, j).is_zero())
+            .min_by_key(|&j| a.at(t, j).abs());
+        match (rest_col, rest_row) {
+            (None, None) => return false,
+            (Some(i), Some(j)) => {
+                if a.at(i, t).abs() <= a.at(t, j).abs() {
+                    self.swap_rows(t, i);
+                } else {
+                    self.swap_cols(t, j);
+                }
+            }
+            (Some(i), None) => self.swap_rows(t, i),
+            (None, Some(j)) => self.swap_cols(t, j),
+        }
+        true
+    }
+
+    /// Row and column t cleared: if some entry of the remaining block is
+    /// not a multiple of the pivot, row_t += row_i brings it into row t
+    /// (true); false when the block is divisible.
+    fn restore_divisibility(&mut self, t: usize) -> bool {
+        let (m, n) = (self.a.rows, self.a.cols);
+        let piv = self.a.at(t, t).clone();
+        let bad = (t + 1..m).find(|&i| (t + 1..n).any(|j| !self.a.at(i, j).is_multiple_of(&piv)));
+        match bad {
+            Some(i) => {
+                let minus_one = -BigInt::one();
+                self.row_sub(t, i, &minus_one);
+                true
+            }
+            None => false,
+        }
     }
 }
 
@@ -231,11 +260,6 @@ fn least_entry(
         }
     }
     best
-}
-
-/// Rank over the rationals.
-pub fn rank(a: &ZMat) -> usize {
-    smith(a).rank()
 }
 
 /// A saturated basis (columns, n x (n - rank)) of {x in Z^n : A x = 0}.

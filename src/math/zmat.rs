@@ -1,11 +1,16 @@
 //! Dense big-integer matrices and the exact helpers the lattice algorithms
-//! need: products, Gram matrices, determinants (fraction-free elimination)
-//! and the exact inertia of a symmetric matrix (congruence
-//! diagonalisation; Sylvester's law of inertia). No floats, no overflow.
+//! need: products, Gram matrices, elementary row and column moves, the
+//! determinant (through [`crate::math::bareiss`]) and the exact inertia and
+//! signature of a symmetric matrix (congruence diagonalisation over the
+//! rationals; Sylvester's law of inertia).
+//!
+//! Invariants: a [`ZMat`] keeps its shape even with zero rows or columns;
+//! no floats, no overflow.
 
 use num_bigint::BigInt;
 use num_traits::{One, Signed, Zero};
 
+use crate::math::bareiss;
 use crate::math::rational::Rational;
 
 /// A dense integer matrix, row-major. Keeps its shape even with zero rows or
@@ -233,6 +238,17 @@ impl ZMat {
     }
 }
 
+/// The basis move b_i += k b_j, applied to a Gram matrix G (both its row
+/// and column i) and to the change of basis U (column i).
+pub fn basis_move(g: &mut ZMat, u: &mut ZMat, i: usize, j: usize, k: &BigInt) {
+    if k.is_zero() {
+        return;
+    }
+    g.add_col_multiple(i, j, k);
+    g.add_row_multiple(i, j, k);
+    u.add_col_multiple(i, j, k);
+}
+
 /// Dot product of two integer vectors.
 pub fn dot(a: &[BigInt], b: &[BigInt]) -> BigInt {
     a.iter()
@@ -251,36 +267,18 @@ pub fn form(g: &ZMat, u: &[BigInt], v: &[BigInt]) -> BigInt {
     dot(u, &g.mul_vec(v))
 }
 
-/// Determinant of a square matrix (fraction-free Gaussian elimination,
-/// every division exact). The empty matrix has determinant 1.
+/// Determinant of a square matrix (fraction-free elimination, see
+/// [`crate::math::bareiss`]). The empty matrix has determinant 1.
 pub fn det(m: &ZMat) -> BigInt {
     assert_eq!(m.rows, m.cols, "determinant of a square matrix");
-    let n = m.rows;
-    let mut a = m.to_rows();
-    let mut prev = BigInt::one();
-    let mut sign = false;
-    for k in 0..n {
-        let Some(p) = (k..n).find(|&r| !a[r][k].is_zero()) else {
-            return BigInt::zero();
-        };
-        if p != k {
-            a.swap(p, k);
-            sign = !sign;
-        }
-        for i in k + 1..n {
-            for j in k + 1..n {
-                let num = &a[k][k] * &a[i][j] - &a[i][k] * &a[k][j];
-                a[i][j] = num / &prev;
-            }
-            a[i][k] = BigInt::zero();
-        }
-        prev = a[k][k].clone();
-    }
-    if sign {
-        -prev
-    } else {
-        prev
-    }
+    bareiss::det(&m.to_rows())
+}
+
+/// Signature (n+, n-) of a symmetric non-degenerate integer matrix given
+/// by rows, from the exact [`inertia`]; `None` when it is degenerate.
+pub fn signature(k: &[Vec<i64>]) -> Option<(usize, usize)> {
+    let (pos, neg, zero) = inertia(&ZMat::from_i64(k, k.len()));
+    (zero == 0).then_some((pos, neg))
 }
 
 /// Inertia (n+, n-, n0) of a symmetric integer matrix, exactly: congruence
@@ -376,5 +374,10 @@ mod tests {
         assert_eq!(inertia(&m(&[&[3, 1], &[1, 3]])), (2, 0, 0));
         assert_eq!(inertia(&m(&[&[1, 1], &[1, 1]])), (1, 0, 1));
         assert_eq!(inertia(&m(&[&[0, 0], &[0, 0]])), (0, 0, 2));
+        // Signatures: Halperin (331) is positive definite [Wen, Adv. Phys.
+        // 44, 405 (1995)]; sigma_z has one of each; singular has none.
+        assert_eq!(signature(&[vec![3, 1], vec![1, 3]]), Some((2, 0)));
+        assert_eq!(signature(&[vec![1, 0], vec![0, -1]]), Some((1, 1)));
+        assert_eq!(signature(&[vec![1, 1], vec![1, 1]]), None);
     }
 }

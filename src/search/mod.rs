@@ -1,7 +1,7 @@
 //! `pinflow hunt`: every local operator of a model with scaling dimension up
 //! to a bound, at one parameter point, with a certificate when there is none.
 //!
-//! Method (physics reference, section 5). A local operator is
+//! Method (docs/physics.md section 6). A local operator is
 //! O = exp(i l.phi) with l = K m, m in Z^N its particle content, and
 //!
 //! ```text
@@ -32,6 +32,13 @@
 //! the ellipsoid's volume and from random probes of the search tree; above
 //! [`DEFAULT_LIMIT`] the search is refused (with the estimate and how to
 //! narrow it) unless forced.
+//!
+//! Owns: the search options, the search space (window, K, t, D, the form
+//! G = K D K) and the enumeration with its filters; the report and
+//! `--emit-terms` live in [`report`]. Invariants: no printing, no exit
+//! codes; the same input gives the same operators in the same order
+//! (dimension rounded to 1e-9, then particle content), whatever the
+//! thread count.
 
 pub mod report;
 pub mod window;
@@ -231,7 +238,6 @@ impl Space {
     }
 }
 
-/// Run the search at a parameter point.
 /// Largest denominator for momenta to be treated as exact rationals.
 pub const MAX_MOMENTUM_DENOMINATOR: i64 = 10_000;
 
@@ -286,73 +292,120 @@ fn window_d(sys: &System, point: &[f64], window: &Window) -> Result<DMatrix<f64>
 /// when the model gives one (also rational).
 type ExactMomenta = (Vec<rational::Rational>, Option<rational::Rational>);
 
-pub fn hunt(sys: &System, point: &[f64], opts: &HuntOptions) -> Result<HuntReport, Error> {
-    let cmd = |key: &str, m: String| Error::Input(InputError::new("command line", key, m));
-    if !(opts.max_dim.is_finite() && opts.max_dim > 0.0) {
-        return Err(cmd(
-            "--max-dim",
-            format!(
-                "expected a finite number > 0 (a scaling dimension), found {}",
-                opts.max_dim
-            ),
-        ));
-    }
-    sys.model.check_point(point)?;
-    let window = Window::choose(sys, opts.range)?;
-    let momenta = sys.lattice.momenta(&sys.model, point);
-    let momentum = match (opts.momentum, &momenta) {
-        (Some(MomentumFilter::Conserved), None) => {
-            return Err(cmd(
-                "--momentum",
-                "the model gives no momenta (fields.momentum or array.momentum); omit the flag or use `--momentum any`".into(),
-            ))
-        }
-        (Some(f), Some(_)) => Some(f),
-        (None, Some(_)) => Some(MomentumFilter::Conserved),
-        (_, None) => None,
-    };
-    if let Some(k) = &momenta {
-        if let Some(i) = k.iter().position(|x| !x.is_finite()) {
-            return Err(Error::Input(InputError::new(
-                &sys.model.file,
-                "momentum",
-                format!(
-                    "the momentum of field {i} is {} at {}; expected a finite number",
-                    k[i],
-                    sys.model.params.describe(point)
-                ),
-            )));
-        }
-    }
-    // The momentum period G (umklapp), finite and positive after check_point.
-    let period = sys.model.momentum_period_at(point);
-    // Momenta that are all small rationals at this point are compared
-    // exactly, and so is the period when there is one: k is conserved iff
-    // k/G is an integer. An irrational period (2 pi, say) sends the
-    // comparison to the float path with its tolerance.
-    let exact_momenta: Option<ExactMomenta> = momenta.as_ref().and_then(|k| {
-        let small = |x: f64| rational::small_rational(x, MAX_MOMENTUM_DENOMINATOR, 1e-12);
-        let k = k.iter().map(|x| small(*x)).collect::<Option<Vec<_>>>()?;
-        let g = match period {
-            // A tiny G could be recognised as 0: keep it on the float path.
-            Some(g) => Some(small(g).filter(|g| !num_traits::Zero::is_zero(g))?),
-            None => None,
+/// An error about a command-line option.
+fn cmd_error(key: &str, m: String) -> Error {
+    Error::Input(InputError::new("command line", key, m))
+}
+
+/// The momenta of the fields at a point and how they are compared.
+struct Momenta {
+    /// Momentum of each field (None: the model gives none).
+    k: Option<Vec<f64>>,
+    /// The momentum period G (umklapp), finite and positive after check_point.
+    period: Option<f64>,
+    /// The momenta (and G) as exact rationals, when all are small rationals.
+    exact: Option<ExactMomenta>,
+    /// The filter in force.
+    filter: Option<MomentumFilter>,
+}
+
+impl Momenta {
+    /// Read the momenta at a point; fail on a filter the model cannot serve
+    /// or on a non-finite momentum.
+    fn at(sys: &System, point: &[f64], opts: &HuntOptions) -> Result<Momenta, Error> {
+        let k = sys.lattice.momenta(&sys.model, point);
+        let filter = match (opts.momentum, &k) {
+            (Some(MomentumFilter::Conserved), None) => {
+                return Err(cmd_error(
+                    "--momentum",
+                    "the model gives no momenta (fields.momentum or array.momentum); omit the flag or use `--momentum any`".into(),
+                ))
+            }
+            (Some(f), Some(_)) => Some(f),
+            (None, Some(_)) => Some(MomentumFilter::Conserved),
+            (_, None) => None,
         };
-        Some((k, g))
-    });
-    let d_full = window_d(sys, point, &window)?;
-    let space = Space::new(sys, &d_full, window);
-    let ell = Ellipsoid::new(&space.gram)
-        .map_err(|e| Error::Numerical(format!("operator search: {e}")))?;
+        if let Some(k) = &k {
+            if let Some(i) = k.iter().position(|x| !x.is_finite()) {
+                return Err(Error::Input(InputError::new(
+                    &sys.model.file,
+                    "momentum",
+                    format!(
+                        "the momentum of field {i} is {} at {}; expected a finite number",
+                        k[i],
+                        sys.model.params.describe(point)
+                    ),
+                )));
+            }
+        }
+        let period = sys.model.momentum_period_at(point);
+        let exact = k.as_ref().and_then(|k| exact_momenta(k, period));
+        Ok(Momenta {
+            k,
+            period,
+            exact,
+            filter,
+        })
+    }
+
+    /// The momentum of an operator with particle content `full` on the
+    /// lattice (reduced by the period), and whether it is conserved: exactly
+    /// when the momenta are rational, else within the tolerance.
+    fn of(&self, full: &[i64]) -> (Option<f64>, bool) {
+        let k = self.k.as_ref().map(|p| {
+            full.iter()
+                .zip(p)
+                .filter(|(a, _)| **a != 0)
+                .map(|(a, b)| *a as f64 * b)
+                .sum::<f64>()
+        });
+        let k = k.map(|k| crate::core::momentum::reduce_momentum(k, self.period));
+        let conserved = match (&self.exact, k) {
+            (Some((q, g)), _) => {
+                let k = rational::dot_int(q, full);
+                match g {
+                    Some(g) => (k / g).is_integer(),
+                    None => num_traits::Zero::is_zero(&k),
+                }
+            }
+            (None, Some(k)) => k.abs() < crate::core::momentum::MOMENTUM_TOLERANCE,
+            (None, None) => true,
+        };
+        (k, conserved)
+    }
+}
+
+/// Momenta that are all small rationals at this point are compared
+/// exactly, and so is the period when there is one: k is conserved iff k/G
+/// is an integer. An irrational period (2 pi, say) sends the comparison to
+/// the float path with its tolerance.
+fn exact_momenta(k: &[f64], period: Option<f64>) -> Option<ExactMomenta> {
+    let small = |x: f64| rational::small_rational(x, MAX_MOMENTUM_DENOMINATOR, 1e-12);
+    let k = k.iter().map(|x| small(*x)).collect::<Option<Vec<_>>>()?;
+    let g = match period {
+        // A tiny G could be recognised as 0: keep it on the float path.
+        Some(g) => Some(small(g).filter(|g| !num_traits::Zero::is_zero(g))?),
+        None => None,
+    };
+    Some((k, g))
+}
+
+/// The search bounds: `accept` on Delta, `bound` on m^T G m for the tree.
+fn bounds(opts: &HuntOptions) -> (f64, f64) {
     let accept = opts.max_dim * (1.0 + BOUND_TOLERANCE);
-    let bound = 2.0 * accept * (1.0 + SEARCH_SLACK);
+    (accept, 2.0 * accept * (1.0 + SEARCH_SLACK))
+}
+
+/// Estimate the work; refuse above the limit unless forced.
+fn estimate(ell: &Ellipsoid, space: &Space, opts: &HuntOptions) -> Result<Estimate, Error> {
+    let bound = bounds(opts).1;
     let estimate = Estimate {
         volume: ell.volume_estimate(bound),
         tree: ell.tree_estimate(bound, PROBES, PROBE_SEED),
         limit: opts.limit,
     };
     if estimate.points() > opts.limit && !opts.force {
-        return Err(cmd(
+        return Err(cmd_error(
             "--max-dim",
             format!(
                 "the search would examine about {:.2e} lattice points in {} dimensions (ellipsoid volume {:.2e}, search-tree estimate {:.2e}), above the limit {:.0e}; narrow it with a smaller --max-dim{}, or pass --force to run it anyway",
@@ -365,9 +418,23 @@ pub fn hunt(sys: &System, point: &[f64], opts: &HuntOptions) -> Result<HuntRepor
             ),
         ));
     }
+    Ok(estimate)
+}
 
-    // Enumerate: keep the canonical placement of each class that passes the
-    // exact filters and the bound (recomputed from the window's D).
+/// What the enumeration kept.
+struct Found {
+    /// Canonical placements of the classes that pass the exact filters.
+    kept: BTreeSet<Vec<i64>>,
+    /// Points within the bound (before the filters).
+    candidates: u64,
+    /// Nodes of the search tree visited.
+    examined: u64,
+}
+
+/// Enumerate: keep the canonical placement of each class that passes the
+/// exact filters and the bound (recomputed from the window's D).
+fn enumerate(ell: &Ellipsoid, space: &Space, opts: &HuntOptions) -> Result<Found, Error> {
+    let (accept, bound) = bounds(opts);
     let mut kept: BTreeSet<Vec<i64>> = BTreeSet::new();
     let mut candidates = 0u64;
     let mut nz: Vec<usize> = Vec::with_capacity(space.t.len());
@@ -379,16 +446,7 @@ pub fn hunt(sys: &System, point: &[f64], opts: &HuntOptions) -> Result<HuntRepor
                 return true;
             }
             candidates += 1;
-            let q: i128 = nz.iter().map(|&i| m[i] as i128 * space.t[i] as i128).sum();
-            let charge_ok = match opts.charge {
-                ChargeFilter::Any => true,
-                ChargeFilter::Exactly(c) => q.abs() == (c as i128).abs(),
-            };
-            if !charge_ok
-                || (opts.spin == SpinFilter::Zero && space.twice_spin_sparse(m, &nz) != 0)
-                // A canonical placement touches the window's first wire.
-                || !space.window.touches_first(m)
-            {
+            if !passes(space, opts, m, &nz) {
                 return true;
             }
             let canon = space.window.canonical(m);
@@ -402,9 +460,8 @@ pub fn hunt(sys: &System, point: &[f64], opts: &HuntOptions) -> Result<HuntRepor
             true
         })
         .map_err(|e| Error::Numerical(format!("operator search: {e}")))?;
-
     if kept.len() > opts.max_listed && !opts.force {
-        return Err(cmd(
+        return Err(cmd_error(
             "--max-dim",
             format!(
                 "more than {} operators match; narrow the search with a smaller --max-dim{}, the filters --spin 0 and --charge 0, or pass --force",
@@ -413,63 +470,98 @@ pub fn hunt(sys: &System, point: &[f64], opts: &HuntOptions) -> Result<HuntRepor
             ),
         ));
     }
+    Ok(Found {
+        kept,
+        candidates,
+        examined: visit.examined,
+    })
+}
+
+/// The exact filters on a point m (non-zero entries `nz`): charge, spin,
+/// and a placement touching the window's first wire.
+fn passes(space: &Space, opts: &HuntOptions, m: &[i64], nz: &[usize]) -> bool {
+    let q: i128 = nz.iter().map(|&i| m[i] as i128 * space.t[i] as i128).sum();
+    let charge_ok = match opts.charge {
+        ChargeFilter::Any => true,
+        ChargeFilter::Exactly(c) => q.abs() == (c as i128).abs(),
+    };
+    charge_ok
+        && !(opts.spin == SpinFilter::Zero && space.twice_spin_sparse(m, nz) != 0)
+        // A canonical placement touches the window's first wire.
+        && space.window.touches_first(m)
+}
+
+/// The operator of one kept class (sign flipped for a negative charge
+/// filter), or None when the momentum filter drops it.
+fn operator(
+    sys: &System,
+    space: &Space,
+    momenta: &Momenta,
+    canon: &[i64],
+    flip: bool,
+) -> Result<Option<Operator>, Error> {
+    let m: Vec<i64> = if flip {
+        canon.iter().map(|x| -x).collect()
+    } else {
+        canon.to_vec()
+    };
+    let l = space
+        .vector(&m)
+        .ok_or_else(|| Error::Numerical("K m overflowed 64-bit integers".into()))?;
+    let dimension = crate::core::fixed_point::quad_form(&space.d, &l);
+    let full = space.window.place(&m);
+    let (k, conserved) = momenta.of(&full);
+    if momenta.filter == Some(MomentumFilter::Conserved) && !conserved {
+        return Ok(None);
+    }
+    let k = k.map(|k| if conserved { 0.0 } else { k });
+    let spin = rational::Rational::new(space.twice_spin(&m).into(), 2.into());
+    Ok(Some(Operator {
+        particles_by_wire: space.window.array.then(|| {
+            space
+                .window
+                .parts(&m)
+                .into_iter()
+                .map(|(w, v)| (w.to_string(), v))
+                .collect()
+        }),
+        wires: space.window.support(&m),
+        charge: space.charge(&m) as i64,
+        spin: rational::fmt_rational(&spin),
+        dimension,
+        rg_eigenvalue: crate::core::relevance::rg_eigenvalue(dimension),
+        momentum: k,
+        model_term: model_term(sys, &space.window, canon),
+        competitors: competitors(sys, &full),
+        particles: m,
+        vector: l,
+    }))
+}
+
+/// Run the search at a parameter point.
+pub fn hunt(sys: &System, point: &[f64], opts: &HuntOptions) -> Result<HuntReport, Error> {
+    if !(opts.max_dim.is_finite() && opts.max_dim > 0.0) {
+        return Err(cmd_error(
+            "--max-dim",
+            format!(
+                "expected a finite number > 0 (a scaling dimension), found {}",
+                opts.max_dim
+            ),
+        ));
+    }
+    sys.model.check_point(point)?;
+    let window = Window::choose(sys, opts.range)?;
+    let momenta = Momenta::at(sys, point, opts)?;
+    let d_full = window_d(sys, point, &window)?;
+    let space = Space::new(sys, &d_full, window);
+    let ell = Ellipsoid::new(&space.gram)
+        .map_err(|e| Error::Numerical(format!("operator search: {e}")))?;
+    let estimate = estimate(&ell, &space, opts)?;
+    let found = enumerate(&ell, &space, opts)?;
     let flip = matches!(opts.charge, ChargeFilter::Exactly(c) if c < 0);
-    let mut operators = Vec::with_capacity(kept.len());
-    for canon in kept {
-        let m: Vec<i64> = if flip {
-            canon.iter().map(|x| -x).collect()
-        } else {
-            canon.clone()
-        };
-        let l = space
-            .vector(&m)
-            .ok_or_else(|| Error::Numerical("K m overflowed 64-bit integers".into()))?;
-        let dimension = crate::core::fixed_point::quad_form(&space.d, &l);
-        let full = space.window.place(&m);
-        let k = momenta.as_ref().map(|p| {
-            full.iter()
-                .zip(p)
-                .filter(|(a, _)| **a != 0)
-                .map(|(a, b)| *a as f64 * b)
-                .sum::<f64>()
-        });
-        let k = k.map(|k| crate::core::momentum::reduce_momentum(k, period));
-        let conserved = match (&exact_momenta, k) {
-            (Some((q, g)), _) => {
-                let k = rational::dot_int(q, &full);
-                match g {
-                    Some(g) => (k / g).is_integer(),
-                    None => num_traits::Zero::is_zero(&k),
-                }
-            }
-            (None, Some(k)) => k.abs() < crate::core::momentum::MOMENTUM_TOLERANCE,
-            (None, None) => true,
-        };
-        if momentum == Some(MomentumFilter::Conserved) && !conserved {
-            continue;
-        }
-        let k = k.map(|k| if conserved { 0.0 } else { k });
-        let spin = rational::Rational::new(space.twice_spin(&m).into(), 2.into());
-        operators.push(Operator {
-            particles_by_wire: space.window.array.then(|| {
-                space
-                    .window
-                    .parts(&m)
-                    .into_iter()
-                    .map(|(w, v)| (w.to_string(), v))
-                    .collect()
-            }),
-            wires: space.window.support(&m),
-            charge: space.charge(&m) as i64,
-            spin: rational::fmt_rational(&spin),
-            dimension,
-            rg_eigenvalue: crate::core::relevance::rg_eigenvalue(dimension),
-            momentum: k,
-            model_term: model_term(sys, &space.window, &canon),
-            competitors: competitors(sys, &full),
-            particles: m,
-            vector: l,
-        });
+    let mut operators = Vec::with_capacity(found.kept.len());
+    for canon in &found.kept {
+        operators.extend(operator(sys, &space, &momenta, canon, flip)?);
     }
     operators.sort_by(|a, b| {
         dim_key(a.dimension)
@@ -481,13 +573,13 @@ pub fn hunt(sys: &System, point: &[f64], opts: &HuntOptions) -> Result<HuntRepor
         point,
         opts,
         &space.window,
-        momentum,
+        momenta.filter,
         estimate,
-        visit.examined,
-        candidates,
+        found.examined,
+        found.candidates,
         ell.reduction.capped,
         operators,
-        exact_momenta.is_some(),
+        momenta.exact.is_some(),
     ))
 }
 

@@ -1,5 +1,10 @@
 //! The report of `pinflow hunt` (text, JSON, CSV, Markdown, LaTeX), its
 //! certificate line, and the `--emit-terms` TOML blocks.
+//!
+//! Invariants: the report is plain data built once by [`super::hunt`];
+//! rendering only formats it (no computation), and the JSON field and CSV
+//! column names are interfaces. `--emit-terms` never reuses a name of the
+//! model's terms and never repeats an operator that is already a term.
 
 use std::collections::BTreeMap;
 
@@ -115,6 +120,32 @@ pub struct HuntReport {
     pub notes: Vec<String>,
 }
 
+/// "periodic", "open" or "infinite" for arrays, None for explicit models.
+fn boundary_word(sys: &System, infinite: bool) -> Option<String> {
+    match sys.model.structure {
+        _ if infinite => Some("infinite".to_string()),
+        Structure::Array { boundary, .. } => Some(match boundary {
+            Boundary::Periodic => "periodic".to_string(),
+            Boundary::Open => "open".to_string(),
+        }),
+        Structure::Explicit => None,
+    }
+}
+
+/// The JSON words of the spin and momentum filters.
+fn filter_words(spin: SpinFilter, momentum: Option<MomentumFilter>) -> (String, Option<String>) {
+    (
+        match spin {
+            SpinFilter::Zero => "0".into(),
+            SpinFilter::Any => "any".into(),
+        },
+        momentum.map(|m| match m {
+            MomentumFilter::Conserved => "conserved".into(),
+            MomentumFilter::Any => "any".into(),
+        }),
+    )
+}
+
 impl HuntReport {
     /// Assemble the report (called by [`super::hunt`]).
     #[allow(clippy::too_many_arguments)]
@@ -139,14 +170,7 @@ impl HuntReport {
                 ..
             }
         );
-        let boundary = match sys.model.structure {
-            _ if infinite => Some("infinite".to_string()),
-            Structure::Array { boundary, .. } => Some(match boundary {
-                Boundary::Periodic => "periodic".to_string(),
-                Boundary::Open => "open".to_string(),
-            }),
-            Structure::Explicit => None,
-        };
+        let (spin_word, momentum_word) = filter_words(opts.spin, momentum);
         let mut r = HuntReport {
             model: sys.model.name.clone(),
             parameters,
@@ -156,7 +180,7 @@ impl HuntReport {
                 sys.lattice.n
             },
             wires: (window.array && !infinite).then_some(window.total),
-            boundary,
+            boundary: boundary_word(sys, infinite),
             range: window.array.then_some(window.wires),
             window_first_wire: window.array.then_some(window.first),
             search_fields: window.fields(),
@@ -166,14 +190,8 @@ impl HuntReport {
                 ChargeFilter::Exactly(q) => Some(q),
                 ChargeFilter::Any => None,
             },
-            spin: match opts.spin {
-                SpinFilter::Zero => "0".into(),
-                SpinFilter::Any => "any".into(),
-            },
-            momentum: momentum.map(|m| match m {
-                MomentumFilter::Conserved => "conserved".into(),
-                MomentumFilter::Any => "any".into(),
-            }),
+            spin: spin_word,
+            momentum: momentum_word,
             momentum_tolerance: momentum
                 .filter(|_| !exact_momenta)
                 .map(|_| crate::core::momentum::MOMENTUM_TOLERANCE),
@@ -407,59 +425,10 @@ impl Report for HuntReport {
     }
 
     fn facts(&self) -> Vec<(String, String)> {
-        let params = if self.parameters.is_empty() {
-            "(none)".to_string()
-        } else {
-            self.parameters
-                .iter()
-                .map(|(k, v)| format!("{k}={v}"))
-                .collect::<Vec<_>>()
-                .join(", ")
-        };
-        let fields = match (self.wires, &self.boundary) {
-            (Some(w), Some(b)) => format!("{} ({w} wires, {b})", self.fields),
-            (None, Some(b)) if b == "infinite" => {
-                format!("{} per wire (infinite array)", self.fields)
-            }
-            _ => self.fields.to_string(),
-        };
-        let window = match (self.range, self.window_first_wire) {
-            (Some(r), Some(first)) => format!(
-                "wires {first}..{} (range {r}), {} fields",
-                first + r - 1,
-                self.search_fields
-            ),
-            _ => format!("all {} fields", self.search_fields),
-        };
-        let mut filters = vec![match self.charge {
-            Some(q) => format!("charge {q}"),
-            None => "any charge".into(),
-        }];
-        filters.push(if self.spin == "0" {
-            "spin 0".into()
-        } else {
-            "any spin".into()
-        });
-        let modulo = self.momentum_period.map_or(String::new(), |g| {
-            format!(" modulo G = {}", crate::output::short(g))
-        });
-        match (self.momentum.as_deref(), self.momentum_tolerance) {
-            (Some("conserved"), _) if self.momentum_exact => filters.push(format!(
-                "momentum conserved{modulo} (exact: rational momenta)"
-            )),
-            (Some("conserved"), Some(tol)) => {
-                filters.push(format!("momentum conserved{modulo} (|k| < {tol:.0e})"))
-            }
-            (Some(_), _) => filters.push("any momentum".into()),
-            // No momenta in the model: nothing is filtered by momentum, so
-            // a 2k_F backscattering term is listed as if it were
-            // commensurate. Say so where the filters are listed.
-            _ => filters.push("momentum not checked (the model gives no momenta)".into()),
-        }
         vec![
-            ("parameters".into(), params),
-            ("fields".into(), fields),
-            ("search window".into(), window),
+            ("parameters".into(), self.parameters_fact()),
+            ("fields".into(), self.fields_fact()),
+            ("search window".into(), self.window_fact()),
             (
                 "bound".into(),
                 format!(
@@ -467,7 +436,7 @@ impl Report for HuntReport {
                     self.max_dim, self.bound_tolerance
                 ),
             ),
-            ("filters".into(), filters.join(", ")),
+            ("filters".into(), self.filters_fact()),
             (
                 "estimate".into(),
                 format!(
@@ -533,6 +502,74 @@ impl Report for HuntReport {
     }
 }
 
+/// The pieces of the text facts.
+impl HuntReport {
+    /// "g=0.5, K=2" or "(none)".
+    fn parameters_fact(&self) -> String {
+        if self.parameters.is_empty() {
+            return "(none)".to_string();
+        }
+        self.parameters
+            .iter()
+            .map(|(k, v)| format!("{k}={v}"))
+            .collect::<Vec<_>>()
+            .join(", ")
+    }
+
+    /// The number of fields and how they are arranged.
+    fn fields_fact(&self) -> String {
+        match (self.wires, &self.boundary) {
+            (Some(w), Some(b)) => format!("{} ({w} wires, {b})", self.fields),
+            (None, Some(b)) if b == "infinite" => {
+                format!("{} per wire (infinite array)", self.fields)
+            }
+            _ => self.fields.to_string(),
+        }
+    }
+
+    /// The wires searched.
+    fn window_fact(&self) -> String {
+        match (self.range, self.window_first_wire) {
+            (Some(r), Some(first)) => format!(
+                "wires {first}..{} (range {r}), {} fields",
+                first + r - 1,
+                self.search_fields
+            ),
+            _ => format!("all {} fields", self.search_fields),
+        }
+    }
+
+    /// The charge, spin and momentum filters in words.
+    fn filters_fact(&self) -> String {
+        let mut filters = vec![match self.charge {
+            Some(q) => format!("charge {q}"),
+            None => "any charge".into(),
+        }];
+        filters.push(if self.spin == "0" {
+            "spin 0".into()
+        } else {
+            "any spin".into()
+        });
+        let modulo = self.momentum_period.map_or(String::new(), |g| {
+            format!(" modulo G = {}", crate::output::short(g))
+        });
+        filters.push(match (self.momentum.as_deref(), self.momentum_tolerance) {
+            (Some("conserved"), _) if self.momentum_exact => {
+                format!("momentum conserved{modulo} (exact: rational momenta)")
+            }
+            (Some("conserved"), Some(tol)) => {
+                format!("momentum conserved{modulo} (|k| < {tol:.0e})")
+            }
+            (Some(_), _) => "any momentum".into(),
+            // No momenta in the model: nothing is filtered by momentum, so
+            // a 2k_F backscattering term is listed as if it were
+            // commensurate. Say so where the filters are listed.
+            _ => "momentum not checked (the model gives no momenta)".into(),
+        });
+        filters.join(", ")
+    }
+}
+
 /// Render the report; the text-like formats end with the certificate line
 /// and the number of lattice points examined.
 pub fn render(report: &HuntReport, format: Format) -> Result<String, Error> {
@@ -551,6 +588,39 @@ pub fn render(report: &HuntReport, format: Format) -> Result<String, Error> {
 /// that can be pasted into the model file (names `hunt_1`, `hunt_2`, ...
 /// avoiding the model's own names).
 pub fn emit_terms(report: &HuntReport, model: &Model) -> String {
+    let mut out = emit_header(report);
+    let existing: std::collections::BTreeSet<&str> =
+        model.terms.iter().map(|t| t.name.as_str()).collect();
+    let mut next = 1usize;
+    let mut emitted = 0usize;
+    for op in report.operators.iter().filter(|o| o.model_term.is_none()) {
+        let name = loop {
+            let n = format!("hunt_{next}");
+            next += 1;
+            if !existing.contains(n.as_str()) {
+                break n;
+            }
+        };
+        out.push_str(&format!(
+            "\n[[term]]\nname = \"{name}\"  # Delta = {:.6}, spin {}, charge {}\nparticles = {}\n",
+            op.dimension,
+            op.spin,
+            op.charge,
+            particles_toml(op)
+        ));
+        if op.charge != 0 {
+            out.push_str(&format!("allowed_charge = {}\n", op.charge));
+        }
+        emitted += 1;
+    }
+    if emitted == 0 {
+        out.push_str(&format!("# nothing new to add; {}\n", report.certificate));
+    }
+    out
+}
+
+/// The comment lines that open the `--emit-terms` output.
+fn emit_header(report: &HuntReport) -> String {
     let params: Vec<String> = report
         .parameters
         .iter()
@@ -568,8 +638,6 @@ pub fn emit_terms(report: &HuntReport, model: &Model) -> String {
         report.qualifiers(),
         report.place()
     );
-    let existing: std::collections::BTreeSet<&str> =
-        model.terms.iter().map(|t| t.name.as_str()).collect();
     let already: Vec<&str> = report
         .operators
         .iter()
@@ -581,54 +649,37 @@ pub fn emit_terms(report: &HuntReport, model: &Model) -> String {
             already.join(", ")
         ));
     }
-    let mut next = 1usize;
-    let mut emitted = 0usize;
-    for op in report.operators.iter().filter(|o| o.model_term.is_none()) {
-        let name = loop {
-            let n = format!("hunt_{next}");
-            next += 1;
-            if !existing.contains(n.as_str()) {
-                break n;
-            }
-        };
-        let list = |v: &[i64]| {
-            format!(
-                "[{}]",
-                v.iter()
-                    .map(|x| x.to_string())
-                    .collect::<Vec<_>>()
-                    .join(", ")
-            )
-        };
-        let particles = match &op.particles_by_wire {
-            Some(parts) => {
-                let mut entries: Vec<(usize, &Vec<i64>)> = parts
-                    .iter()
-                    .filter_map(|(k, v)| k.parse::<usize>().ok().map(|w| (w, v)))
-                    .collect();
-                entries.sort_by_key(|e| e.0);
-                format!(
-                    "{{ {} }}",
-                    entries
-                        .iter()
-                        .map(|(w, v)| format!("{w} = {}", list(v)))
-                        .collect::<Vec<_>>()
-                        .join(", ")
-                )
-            }
-            None => list(&op.particles),
-        };
-        out.push_str(&format!(
-            "\n[[term]]\nname = \"{name}\"  # Delta = {:.6}, spin {}, charge {}\nparticles = {particles}\n",
-            op.dimension, op.spin, op.charge
-        ));
-        if op.charge != 0 {
-            out.push_str(&format!("allowed_charge = {}\n", op.charge));
-        }
-        emitted += 1;
-    }
-    if emitted == 0 {
-        out.push_str(&format!("# nothing new to add; {}\n", report.certificate));
-    }
     out
+}
+
+/// A TOML list of integers: "[1, -1]".
+fn toml_list(v: &[i64]) -> String {
+    format!(
+        "[{}]",
+        v.iter()
+            .map(|x| x.to_string())
+            .collect::<Vec<_>>()
+            .join(", ")
+    )
+}
+
+/// The `particles` value of a term: a list, or for arrays an inline table
+/// by wire offset ("{ 0 = [1, -1], 1 = [-1, 1] }").
+fn particles_toml(op: &Operator) -> String {
+    let Some(parts) = &op.particles_by_wire else {
+        return toml_list(&op.particles);
+    };
+    let mut entries: Vec<(usize, &Vec<i64>)> = parts
+        .iter()
+        .filter_map(|(k, v)| k.parse::<usize>().ok().map(|w| (w, v)))
+        .collect();
+    entries.sort_by_key(|e| e.0);
+    format!(
+        "{{ {} }}",
+        entries
+            .iter()
+            .map(|(w, v)| format!("{w} = {}", toml_list(v)))
+            .collect::<Vec<_>>()
+            .join(", ")
+    )
 }

@@ -8,6 +8,8 @@ use rand_chacha::ChaCha8Rng;
 
 use super::*;
 use crate::core::system::System;
+use crate::math::smith as normal;
+use crate::math::zmat::ZMat;
 use crate::model::Model;
 
 fn b(v: &[i64]) -> Vec<BigInt> {

@@ -51,6 +51,7 @@ use num_bigint::BigInt;
 use num_traits::{ToPrimitive, Zero};
 
 use crate::core::fixed_point::FixedPoint;
+use crate::math::bareiss;
 use crate::math::rational::{self as exact, Rational};
 use crate::math::smith;
 use crate::math::zmat::ZMat;
@@ -96,7 +97,7 @@ pub fn independent(vectors: &[Vec<i64>]) -> Vec<usize> {
 /// None when K is singular.
 pub fn complement_basis(k: &[Vec<i64>], p: &[Vec<i64>]) -> Option<ZMat> {
     let n = k.len();
-    let (det, inv) = exact::det_and_inverse(k)?;
+    let (det, inv) = bareiss::det_and_inverse(k)?;
     let mut rows: Vec<Vec<BigInt>> = p
         .iter()
         .map(|v| v.iter().map(|&x| BigInt::from(x)).collect())
@@ -158,7 +159,7 @@ impl Split {
         let keep = independent(p);
         let p_ind: Vec<Vec<i64>> = keep.iter().map(|&i| p[i].clone()).collect();
         let b = complement_basis(k, &p_ind)?;
-        let (_, inv) = exact::det_and_inverse(k)?;
+        let (_, inv) = bareiss::det_and_inverse(k)?;
         let r = DMatrix::from_fn(n, p_ind.len(), |i, j| {
             let s: Rational = inv[i]
                 .iter()

@@ -88,7 +88,7 @@ fn luther_emery_in_both_forms() {
     }
     // Commutation: 2k_F CDW, pairing and 4k_F CDW commute with the pin;
     // the spin-flip (1, 0, -1, 0)... the up-spin forward phase m = (1, 0, 0, 0) does not.
-    let (_, inv) = crate::math::rational::det_and_inverse(&k).unwrap();
+    let (_, inv) = crate::math::bareiss::det_and_inverse(&k).unwrap();
     for l in [&cdw2, &pair, &cdw4] {
         assert!(commutes(&inv, l, std::slice::from_ref(&pin)));
     }
@@ -146,7 +146,7 @@ fn six_field() -> (Vectors, Vectors, Vectors) {
 #[test]
 fn exact_equals_reference_when_v_is_d_inverse() {
     let (k, pins, ops) = six_field();
-    let (_, inv) = crate::math::rational::det_and_inverse(&k).unwrap();
+    let (_, inv) = crate::math::bareiss::det_and_inverse(&k).unwrap();
     for l in &ops {
         assert!(commutes(&inv, l, &pins));
     }
