@@ -237,7 +237,7 @@ fn cases() -> Vec<Case> {
         case("E43", base(), "flow wire.toml --closure all", 2,
             "error: invalid value 'all' for '--closure <CLOSURE>'"),
         case("E44", vec![("wire.toml", format!("{WIRE}\n[flow]\nsteps = 100\n"))], "flow wire.toml", 2,
-            "error: wire.toml: flow.steps: unknown key (known: ell_max, y_strong, floor, closure, closure_bound, closure_range, rtol, atol, max_steps, q_points)"),
+            "error: wire.toml: flow.steps: unknown key (known: ell_max, y_strong, floor, closure, closure_bound, closure_range, rtol, atol, max_steps, q_points, stages)"),
         case("E45", vec![("wire.toml", format!("{WIRE}\n[flow]\nell_max = \"long\"\n"))], "flow wire.toml", 2,
             "error: wire.toml: flow.ell_max: expected a number, found \"long\""),
         // ------------------------------------------------ scan axes and options
@@ -344,7 +344,7 @@ fn cases() -> Vec<Case> {
             // then refused, leaving the damaged points.csv behind.
             setup: {
                 let mut s = shards(3, "lambda=0:0.5:7");
-                s.push(Step::Line("run/shard-2-of-3.csv", 4, "0.5,strong,backscatter,1.5,1,1"));
+                s.push(Step::Line("run/shard-2-of-3.csv", 4, "0.5,strong,backscatter,1.5,1,1,,false,,,"));
                 s
             },
             args: args("merge run/shard-1-of-3.csv run/shard-2-of-3.csv run/shard-3-of-3.csv"),
@@ -439,6 +439,9 @@ fn cases() -> Vec<Case> {
             "error: command line: --pin: term \"backscatter\" is not local: its particle content K^-1 l = (1/3, -1/3) is not integral, so it is not built from particles and cannot pin"),
         case("E101", base(), "dims ring.toml --pin tunnel,cdw", 2,
             "error: command line: --pin: \"tunnel\" at wire 0 and \"cdw\" at wire 0 do not commute: their mutual phase l_a.K^-1 l_b is -2, not 0; a pinned set must commute"),
+        // ------------------------------------------------ successive pinning
+        case("E102", base(), "flow wire.toml --stages 0", 2,
+            "error: command line: --stages: expected a whole number of stages from 1 (stop at the first winner) to 1000000, found 0"),
     ];
     // By number: E100 comes after E99, not after E10.
     c.sort_by_key(|c| c.id[1..].parse::<u32>().expect("ids are E and a number"));
@@ -600,7 +603,7 @@ entries! {
     e26_term_length => "E26",
     e27_term_too_wide => "E27",
     e28_extra_spin => "E28",
-    e29_two_targets => "E29",
+    e29_targets_do_not_pin_together => "E29",
     e30_negative_extra_dimension => "E30",
     e31_parameter_name => "E31",
     e32_reserved_parameter_name => "E32",
@@ -673,4 +676,5 @@ entries! {
     e99_dims_pin_not_null => "E99",
     e100_dims_pin_not_local => "E100",
     e101_dims_pins_do_not_commute => "E101",
+    e102_zero_stages => "E102",
 }

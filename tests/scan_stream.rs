@@ -94,6 +94,9 @@ fn write_shard(dir: &Path, meta: &Meta, rows: &[Row]) -> PathBuf {
         cells.push(cell(r.ell_star));
         cells.extend(r.dims0.iter().map(|d| cell(*d)));
         cells.extend(r.dims0.iter().map(|_| String::new()));
+        // No phase named (the phase columns come last): the figures fall
+        // back to the outcome categories checked here.
+        cells.extend(["", "false", "", "", ""].map(String::from));
         text.push_str(&csv_line(&cells));
     }
     std::fs::write(&shard, text).unwrap();
@@ -143,6 +146,11 @@ fn reference_summary(meta: &Meta, rows: &[Row]) -> Value {
         "outcomes": outcomes,
         "winners": winners,
         "target": target,
+        // Hand-made rows name no phase (see `write_shard`).
+        "phases": [],
+        "target_phase": meta.target.as_ref().map(|_| json!({
+            "points": 0, "fraction": 0.0, "bounds": {}, "margin": null
+        })),
     })
 }
 

@@ -112,6 +112,10 @@ pub struct FlowFlags {
     /// check fails].
     #[arg(long, allow_hyphen_values = true, value_name = "N")]
     pub q_points: Option<i64>,
+    /// Most stages of successive pinning: 1 stops at the first term to
+    /// reach strong coupling [default: no limit].
+    #[arg(long, allow_hyphen_values = true, value_name = "N")]
+    pub stages: Option<i64>,
 }
 
 impl FlowFlags {
@@ -128,6 +132,7 @@ impl FlowFlags {
             atol: self.atol,
             max_steps: self.max_steps,
             q_points: self.q_points,
+            stages: self.stages,
         }
     }
 }

@@ -11,6 +11,7 @@ use super::common::{emit, load_point, FlowFlags, FormatArg, PointArgs};
 use crate::error::{Error, InputError};
 use crate::flow::FlowOptions;
 use crate::output::{self, Format};
+use crate::scan::figures::ColorBy;
 use crate::scan::run::{check_size, finish, resolve_axes};
 use crate::scan::store::{self, Meta, RowFile};
 use crate::scan::{partial_path, shard_path, Scan, ScanSpec};
@@ -51,6 +52,9 @@ pub struct ScanArgs {
     /// Format of the summary printed at the end.
     #[arg(long, value_enum, default_value_t = FormatArg::Text)]
     pub format: FormatArg,
+    /// What phase.png/svg is coloured by.
+    #[arg(long, value_enum, default_value_t = ColorByArg::Phase)]
+    pub color_by: ColorByArg,
 }
 
 /// `pinflow merge`.
@@ -65,6 +69,27 @@ pub struct MergeArgs {
     /// Format of the summary printed at the end.
     #[arg(long, value_enum, default_value_t = FormatArg::Text)]
     pub format: FormatArg,
+    /// What phase.png/svg is coloured by.
+    #[arg(long, value_enum, default_value_t = ColorByArg::Phase)]
+    pub color_by: ColorByArg,
+}
+
+/// What a scan's phase map is coloured by.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum ColorByArg {
+    /// The phase of the final pinned set of the staged flow.
+    Phase,
+    /// The first term to reach strong coupling (the map before staging).
+    Winner,
+}
+
+impl From<ColorByArg> for ColorBy {
+    fn from(c: ColorByArg) -> ColorBy {
+        match c {
+            ColorByArg::Phase => ColorBy::Phase,
+            ColorByArg::Winner => ColorBy::Winner,
+        }
+    }
 }
 
 /// Parse `k/n` (1 <= k <= n).
@@ -133,7 +158,7 @@ pub(super) fn run_scan(args: ScanArgs) -> Result<(), Error> {
         None => {
             let points = dir.join("points.csv");
             store::publish_points(&partial, &scan.meta, &points)?;
-            print_summary(&dir, &scan.meta, args.format.into())?;
+            print_summary(&dir, &scan.meta, args.format.into(), args.color_by.into())?;
             std::fs::remove_file(&partial).map_err(|e| Error::io(&partial, e))
         }
     }
@@ -149,12 +174,12 @@ pub(super) fn run_merge(args: MergeArgs) -> Result<(), Error> {
     output::check_output_dir(&dir, "--out")?;
     std::fs::create_dir_all(&dir).map_err(|e| Error::io(&dir, e))?;
     let meta = store::merge(&args.shards, &dir.join("points.csv"))?;
-    print_summary(&dir, &meta, args.format.into())
+    print_summary(&dir, &meta, args.format.into(), args.color_by.into())
 }
 
 /// Write the summary and figures, then print the summary.
-fn print_summary(dir: &Path, meta: &Meta, format: Format) -> Result<(), Error> {
-    let summary = finish(dir, meta)?;
+fn print_summary(dir: &Path, meta: &Meta, format: Format, by: ColorBy) -> Result<(), Error> {
+    let summary = finish(dir, meta, by)?;
     let mut text = output::render(&summary, format)?;
     if format == Format::Text {
         text.push_str(&format!("\nwritten to {}\n", dir.display()));

@@ -1,6 +1,6 @@
 //! The pinned set: the families named with `--pin`, or the outcome of the
-//! flow at a point (its winner plus the listed terms that commute with it
-//! and with each other). A pinned family must be local (K^-1 l integral),
+//! flow at a point (the final pinned set of its successive pinning: every
+//! family pinned at one of its stages, `flow::stages`). A pinned family must be local (K^-1 l integral),
 //! null (bosonic spin zero) and commute with every pinned translate,
 //! including its own; each refusal names the term or the failing pair.
 
@@ -113,8 +113,8 @@ pub fn from_names(sys: &System, names: &[String]) -> Result<Selection, InputErro
     })
 }
 
-/// Flow at the point and pin its winner plus the listed terms that commute
-/// with it and with each other (model order).
+/// Flow at the point and pin the final pinned set of its stages (the
+/// winner alone with `--stages 1`).
 pub fn from_flow(sys: &System, point: &[f64], opts: FlowOptions) -> Result<Selection, Error> {
     let flow = Flow::new(sys, opts);
     let res = flow.run(point)?;
@@ -148,42 +148,19 @@ pub fn from_flow(sys: &System, point: &[f64], opts: FlowOptions) -> Result<Selec
         }
     }
     let winner = res.winner.clone().unwrap_or_default();
-    let channel = flow
-        .plan
-        .channels
-        .iter()
-        .find(|c| c.name == winner)
-        .ok_or_else(|| Error::Numerical(format!("the winner \"{winner}\" is not a channel")))?;
-    let extra = match sys.model.terms.iter().position(|t| t.name == winner) {
-        Some(i) => sys.model.terms[i].extra_spin.clone(),
-        None => Rational::zero(),
-    };
-    let key = format!("term \"{winner}\"");
-    let first = prepare(sys, &winner, &channel.family, &extra)
-        .map_err(|m| InputError::new(file, &key, cannot_pin(&winner, m)))?;
-    check_pair(sys, &first, &first)
-        .map_err(|m| InputError::new(file, &key, cannot_pin(&winner, m)))?;
-    let mut pinned = vec![first];
-    let mut skipped = Vec::new();
-    for (i, spec) in sys.model.terms.iter().enumerate() {
-        if spec.name == winner || !res.commuting_with_winner.contains(&spec.name) {
-            continue;
+    let mut names: Vec<String> = res.stages.iter().flat_map(|s| s.pinned.clone()).collect();
+    if names.is_empty() {
+        names.push(winner.clone());
+    }
+    let mut pinned: Vec<Pinned> = Vec::new();
+    for name in &names {
+        let p = pin_channel(sys, &flow, name)?;
+        for q in pinned.iter().chain(std::iter::once(&p)) {
+            check_pair(sys, q, &p).map_err(|m| {
+                InputError::new(file, format!("term \"{name}\""), cannot_pin(name, m))
+            })?;
         }
-        let p = match prepare(sys, &spec.name, &sys.lattice.families[i], &spec.extra_spin) {
-            Ok(p) => p,
-            Err(m) => {
-                skipped.push((spec.name.clone(), m));
-                continue;
-            }
-        };
-        let clash = pinned
-            .iter()
-            .chain(std::iter::once(&p))
-            .find_map(|q| check_pair(sys, q, &p).err());
-        match clash {
-            Some(m) => skipped.push((spec.name.clone(), m)),
-            None => pinned.push(p),
-        }
+        pinned.push(p);
     }
     Ok(Selection {
         pinned,
@@ -191,8 +168,25 @@ pub fn from_flow(sys: &System, point: &[f64], opts: FlowOptions) -> Result<Selec
             winner,
             ell_star: res.ell_star,
         },
-        skipped,
+        skipped: Vec::new(),
     })
+}
+
+/// A channel of the flow's plan prepared for pinning.
+fn pin_channel(sys: &System, flow: &Flow, name: &str) -> Result<Pinned, Error> {
+    let channel = flow
+        .plan
+        .channels
+        .iter()
+        .find(|c| c.name == name)
+        .ok_or_else(|| Error::Numerical(format!("the pinned term \"{name}\" is not a channel")))?;
+    let extra = match sys.model.terms.iter().position(|t| t.name == name) {
+        Some(i) => sys.model.terms[i].extra_spin.clone(),
+        None => Rational::zero(),
+    };
+    let key = format!("term \"{name}\"");
+    prepare(sys, name, &channel.family, &extra)
+        .map_err(|m| Error::Input(InputError::new(&sys.model.file, &key, cannot_pin(name, m))))
 }
 
 /// Particle vectors of a family, checked to be local and null.

@@ -208,7 +208,8 @@ pub struct EdgesReport {
     pub ell_star: Option<f64>,
     /// The pinned families.
     pub pinned: Vec<PinnedRow>,
-    /// Listed terms commuting with the winner that were not pinned.
+    /// Terms considered and left out of the pinned set (none since the
+    /// flow's stages choose it).
     pub skipped: Vec<SkippedRow>,
     /// r = rank of the pinned vectors (infinite arrays: per wire).
     pub gapped_pairs: usize,
@@ -308,7 +309,7 @@ impl EdgesReport {
             .map(|l| format!(" at ell* = {}", crate::output::short(l)))
             .unwrap_or_default();
         format!(
-            "the flow at {}: \"{}\" reaches strong coupling{ell}; terms commuting with it are pinned too",
+            "the flow at {}: \"{}\" reaches strong coupling first{ell}; pinned: every family its successive stages pin",
             self.point,
             self.winner.clone().unwrap_or_default()
         )

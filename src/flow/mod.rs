@@ -39,6 +39,7 @@ pub mod kt;
 pub mod options;
 pub mod report;
 pub mod rhs;
+pub mod stages;
 mod translates;
 
 use nalgebra::DVector;
@@ -55,6 +56,7 @@ use channels::{Channel, Origin, Plan};
 pub use check::{QuadratureCheck, RuleChoice, StoppedBy};
 pub use options::{Closure, FlowOptions};
 use rhs::{FlowRhs, Sample, Stop};
+pub use stages::{Stage, StagesEnd};
 
 /// The outcome of one flow.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
@@ -167,9 +169,20 @@ pub struct FlowResult {
     pub winner: Option<String>,
     /// Scale at which the winner reached y_strong.
     pub ell_star: Option<f64>,
-    /// Gap estimate relative to the bandwidth u/alpha: e^{-ell*}.
+    /// Successive pinning: one entry per pinned family, in order.
+    pub stages: Vec<Stage>,
+    /// Why the staged flow ended (null for points that could not flow).
+    pub stages_end: Option<StagesEnd>,
+    /// Scale of the last stage (ell* of the last pinned family; ell* when
+    /// nothing pinned).
+    pub ell_last: Option<f64>,
+    /// Gap estimate relative to the bandwidth u/alpha: e^{-ell_last}.
     pub gap: Option<f64>,
-    /// Where the integration ended.
+    /// The phase of the final pinned set (null for points that could not
+    /// flow).
+    pub phase: Option<crate::core::pinned_span::Phase>,
+    /// Where the integration ended (its last stage's, when successive
+    /// pinning flowed on).
     pub ell_end: f64,
     /// Every channel that flowed (listed first).
     pub terms: Vec<ChannelResult>,
@@ -228,6 +241,9 @@ pub struct Flow<'s> {
     /// Options.
     pub opts: FlowOptions,
     layout: Layout,
+    /// Phases already named, by sorted plan indices of the pinned set.
+    phases:
+        std::sync::Mutex<std::collections::HashMap<Vec<usize>, crate::core::pinned_span::Phase>>,
 }
 
 /// How D is carried.
@@ -270,6 +286,7 @@ impl<'s> Flow<'s> {
             plan,
             opts,
             layout,
+            phases: Default::default(),
         }
     }
 
@@ -426,16 +443,18 @@ impl<'s> Flow<'s> {
         }
         let y_start = y0.clone();
         let ell_k: Vec<Option<f64>> = momenta.iter().map(|k| k.and_then(cutoff_scale)).collect();
-        let mut integrated = integrate(&mut rhs, y0, &ell_k, &self.opts);
+        let mut integrated = integrate(&mut rhs, y0, &ell_k, &self.opts, 0.0);
         let mut kt_decision = None;
         if let Some(c) = kt::regime(&rhs, y_start.as_slice(), &ell_k) {
             (integrated, kt_decision) =
                 kt::decide(&mut rhs, c, y_start.as_slice(), integrated, &self.opts);
         }
+        let staged = self.stages(&mut rhs, &integrated, &ell_k);
         let mut result = self.summarise(
             &rhs, &included, &bare, &y_start, &momenta, &ell_k, integrated,
         );
         result.kt = kt_decision;
+        self.attach_stages(&mut result, staged, &included);
         result.quadrature = start.quadrature;
         result.momentum_period = self.sys.model.momentum_period_at(point);
         Ok(result)
@@ -546,7 +565,11 @@ impl<'s> Flow<'s> {
                 .winner
                 .map(|w| self.plan.channels[included[w]].name.clone()),
             ell_star: integrated.ell_star,
+            stages: Vec::new(),
+            stages_end: None,
+            ell_last: integrated.ell_star,
             gap: integrated.ell_star.map(|l| (-l).exp()),
+            phase: None,
             ell_end: integrated.ell_end,
             runner_up: None,
             terms,
@@ -607,7 +630,11 @@ impl FlowResult {
             winner_index: None,
             winner: None,
             ell_star: None,
+            stages: Vec::new(),
+            stages_end: None,
+            ell_last: None,
             gap: None,
+            phase: None,
             ell_end: 0.0,
             terms: Vec::new(),
             runner_up: None,
@@ -725,18 +752,19 @@ fn integrate(
     mut y: DVector<f64>,
     ell_k: &[Option<f64>],
     opts: &FlowOptions,
+    ell0: f64,
 ) -> Integrated {
     let mut breaks: Vec<f64> = ell_k
         .iter()
         .flatten()
         .copied()
-        .filter(|l| *l > 0.0 && *l < opts.ell_max)
+        .filter(|l| *l > ell0 && *l < opts.ell_max)
         .collect();
     breaks.push(opts.ell_max);
     breaks.sort_by(f64::total_cmp);
     // Cut-offs closer than this are one breakpoint (their terms stop together).
     breaks.dedup_by(|b, a| *b - *a < 1e-9);
-    let mut start = 0.0;
+    let mut start = ell0;
     for end in breaks {
         for (c, k) in ell_k.iter().enumerate() {
             rhs.active[c] = !rhs.frozen[c] && k.is_none_or(|l| l > start + 1e-9);

@@ -71,6 +71,9 @@ pub struct FlowOptions {
     /// (default [`crate::core::qspace::MAX_POINTS`]).
     #[serde(skip)]
     pub q_max_points: usize,
+    /// Most stages of successive pinning (None: no limit, the default;
+    /// Some(1): stop at the first winner).
+    pub stages: Option<usize>,
 }
 
 impl Default for FlowOptions {
@@ -90,6 +93,7 @@ impl Default for FlowOptions {
             q_points: None,
             q_tolerance: super::check::TOLERANCE,
             q_max_points: crate::core::qspace::MAX_POINTS,
+            stages: None,
         }
     }
 }
@@ -119,6 +123,8 @@ pub struct FlowOverrides {
     pub max_steps: Option<i64>,
     /// `--q-points` (checked against the model).
     pub q_points: Option<i64>,
+    /// `--stages` (checked to be a positive whole number).
+    pub stages: Option<i64>,
 }
 
 impl FlowOptions {
@@ -164,6 +170,9 @@ impl FlowOptions {
         if let Some(n) = over.q_points {
             o.q_points = Some(check_q_points(model, n, "command line", "--q-points")?);
         }
+        if let Some(n) = over.stages {
+            o.stages = Some(check_stages(n, "command line", "--stages")?);
+        }
         if o.floor >= o.y_strong {
             return Err(InputError::new(
                 "command line",
@@ -198,6 +207,10 @@ impl FlowOptions {
                     let n = whole(value, &model.file, &full, "a whole number of steps")?;
                     self.max_steps = check_max_steps(n, &model.file, &full)?;
                 }
+                "stages" => {
+                    let n = whole(value, &model.file, &full, "a whole number of stages")?;
+                    self.stages = Some(check_stages(n, &model.file, &full)?);
+                }
                 "q_points" => {
                     let n = whole(value, &model.file, &full, "a whole number of points")?;
                     self.q_points = Some(check_q_points(model, n, &model.file, &full)?);
@@ -228,7 +241,7 @@ impl FlowOptions {
                     return Err(InputError::new(
                         &model.file,
                         &full,
-                        "unknown key (known: ell_max, y_strong, floor, closure, closure_bound, closure_range, rtol, atol, max_steps, q_points)",
+                        "unknown key (known: ell_max, y_strong, floor, closure, closure_bound, closure_range, rtol, atol, max_steps, q_points, stages)",
                     ))
                 }
             }
@@ -307,6 +320,19 @@ fn check_rtol(x: f64, file: &str, key: &str) -> Result<f64, InputError> {
                 "expected a relative tolerance from 1e-14 (double precision) to below 1, found {}",
                 as_typed(x)
             ),
+        ))
+    }
+}
+
+/// A number of stages from 1 to 10^6.
+fn check_stages(n: i64, file: &str, key: &str) -> Result<usize, InputError> {
+    if (1..=1_000_000).contains(&n) {
+        Ok(n as usize)
+    } else {
+        Err(InputError::new(
+            file,
+            key,
+            format!("expected a whole number of stages from 1 (stop at the first winner) to 1000000, found {n}"),
         ))
     }
 }

@@ -106,7 +106,7 @@ impl FlowReport {
                 "{} reaches strong coupling first, at ell* = {:.4} (gap ~ {:.3e} of the bandwidth u/alpha){}",
                 r.winner.as_deref().unwrap_or("?"),
                 r.ell_star.unwrap_or(f64::NAN),
-                r.gap.unwrap_or(f64::NAN),
+                r.ell_star.map_or(f64::NAN, |l| (-l).exp()),
                 self.tie_text()
             ),
             Outcome::Spinful => format!(
@@ -281,6 +281,7 @@ impl Report for FlowReport {
             ("outcome".to_string(), r.outcome.word().to_string()),
             ("summary".to_string(), self.headline()),
         ];
+        f.extend(super::stages::facts(r));
         if !r.commuting_with_winner.is_empty() {
             f.push((
                 "commute with winner".into(),
@@ -464,11 +465,20 @@ pub mod figure {
             })
             .collect();
         let data = FlowFigure {
-            title: format!("{}: {}", report.model, report.headline_short()),
+            title: format!(
+                "{}: {}{}",
+                report.model,
+                report.headline_short(),
+                match (&r.phase, r.stages.len()) {
+                    (Some(p), n) if n > 1 => format!("; phase {} after {n} stages", p.label),
+                    _ => String::new(),
+                }
+            ),
             ell: r.samples.iter().map(|s| s.ell).collect(),
             series,
             winner: r.winner_index,
             ell_star: r.ell_star,
+            stages: r.stages.iter().skip(1).map(|s| s.ell).collect(),
             caption: format!("{} {}", report.point_text(), METHOD_NOTE),
         };
         Ok(flow_figure(stem, &data)?)

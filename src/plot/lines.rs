@@ -44,6 +44,10 @@ pub struct FlowFigure {
     pub winner: Option<usize>,
     /// Scale ℓ* at which the flow was stopped (dotted vertical line).
     pub ell_star: Option<f64>,
+    /// Scales of the later stages of successive pinning (dashed vertical
+    /// lines).
+    #[serde(default)]
+    pub stages: Vec<f64>,
     /// Text under the figure, e.g. the limits of the method.
     pub caption: String,
 }
@@ -248,6 +252,15 @@ impl FlowFigure {
             let label = format!("ℓ* = {}", layout::format_number(l));
             entries.push(LegendEntry::line(label, REFERENCE, 2, Dash::Dotted));
         }
+        for (i, l) in self
+            .stages
+            .iter()
+            .enumerate()
+            .filter(|(_, l)| l.is_finite())
+        {
+            let label = format!("stage {}: ℓ = {}", i + 2, layout::format_number(*l));
+            entries.push(LegendEntry::line(label, REFERENCE, 1, Dash::Dashed));
+        }
         entries
     }
 
@@ -306,10 +319,18 @@ impl FlowFigure {
     }
 
     fn draw_ell_star<DB: DrawingBackend>(&self, chart: &mut Chart<'_, DB>) -> Result<(), String> {
+        let (x, y) = (chart.x_range(), chart.y_range());
+        for &l in self
+            .stages
+            .iter()
+            .filter(|l| l.is_finite() && x.contains(l))
+        {
+            let line = [(l, y.start), (l, y.end)];
+            layout::draw_line(chart, &line, REFERENCE, 1, Dash::Dashed)?;
+        }
         let Some(l) = self.ell_star.filter(|l| l.is_finite()) else {
             return Ok(());
         };
-        let (x, y) = (chart.x_range(), chart.y_range());
         if !x.contains(&l) {
             return Ok(());
         }
@@ -484,6 +505,7 @@ mod tests {
             series: s,
             winner: Some(0),
             ell_star: Some(5.99),
+            stages: Vec::new(),
             caption: "Second order in y; valid while |y| ≪ 1.".into(),
         }
     }
@@ -562,7 +584,8 @@ mod tests {
         assert_eq!(series_dash(0), Dash::Solid);
         assert_eq!(series_dash(7), Dash::Solid);
         assert_eq!(series_dash(8), Dash::Dashed);
-        assert_eq!(series_colour(8), series_colour(0));
+        // Colours no longer repeat either (src/plot/palette.rs).
+        assert_ne!(series_colour(8), series_colour(0));
         let styles: Vec<(RGBColor, Dash)> = (0..32)
             .map(|i| (series_colour(i), series_dash(i)))
             .collect();

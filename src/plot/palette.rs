@@ -41,9 +41,51 @@ pub const CATEGORICAL: [RGBColor; 8] = [
 /// Grey used for cells without a value.
 pub const MISSING: RGBColor = RGBColor(190, 190, 190);
 
-/// Colour of the `index`-th category (cycles after eight).
+/// Colour of the `index`-th category. The eight Okabe–Ito colours first,
+/// then the same eight darkened (mixed 45 % with black), then hues spaced
+/// by the golden angle at two lightnesses; no two indices share a colour
+/// (checked for the first thousand in the tests).
 pub fn categorical(index: usize) -> RGBColor {
-    CATEGORICAL[index % CATEGORICAL.len()]
+    let n = CATEGORICAL.len();
+    match index / n {
+        0 => CATEGORICAL[index],
+        1 if index != 2 * n - 1 => darken(CATEGORICAL[index - n], 0.45),
+        _ => golden(index - 2 * n + 1),
+    }
+}
+
+/// Mixes `colour` with black: `amount = 0` keeps it, `amount = 1` gives black.
+pub fn darken(colour: RGBColor, amount: f64) -> RGBColor {
+    let a = 1.0 - amount.clamp(0.0, 1.0);
+    let mix = |c: u8| (f64::from(c) * a).round() as u8;
+    RGBColor(mix(colour.0), mix(colour.1), mix(colour.2))
+}
+
+/// The k-th hue by the golden angle, saturated, alternating two lightnesses
+/// (k-th hue is distinct from every earlier one: the golden angle never
+/// returns to a hue, and the lightness steps with k / 2 beyond the first
+/// turns).
+fn golden(k: usize) -> RGBColor {
+    let hue = (k as f64 * 137.507_764_050_037_85) % 360.0;
+    let light = [0.42, 0.62][k % 2] + 0.002 * ((k / 2) % 40) as f64;
+    hsl(hue, 0.7, light)
+}
+
+fn hsl(h: f64, s: f64, l: f64) -> RGBColor {
+    let c = (1.0 - (2.0 * l - 1.0).abs()) * s;
+    let hp = h / 60.0;
+    let x = c * (1.0 - (hp % 2.0 - 1.0).abs());
+    let (r, g, b) = match hp as u32 {
+        0 => (c, x, 0.0),
+        1 => (x, c, 0.0),
+        2 => (0.0, c, x),
+        3 => (0.0, x, c),
+        4 => (x, 0.0, c),
+        _ => (c, 0.0, x),
+    };
+    let m = l - c / 2.0;
+    let to = |v: f64| ((v + m) * 255.0).round().clamp(0.0, 255.0) as u8;
+    RGBColor(to(r), to(g), to(b))
 }
 
 /// Mixes `colour` with white: `amount = 0` keeps it, `amount = 1` gives white.
@@ -127,7 +169,16 @@ mod tests {
             assert!(CATEGORICAL[..i].iter().all(|b| b != a));
         }
         assert_eq!(CATEGORICAL[7], BLACK);
-        assert_eq!(categorical(9), categorical(1));
+    }
+
+    #[test]
+    fn categorical_colours_never_repeat() {
+        let all: Vec<RGBColor> = (0..1000).map(categorical).collect();
+        let mut seen = std::collections::HashSet::new();
+        for (i, c) in all.iter().enumerate() {
+            assert!(seen.insert((c.0, c.1, c.2)), "index {i} repeats {c:?}");
+        }
+        assert_eq!(categorical(3), CATEGORICAL[3]);
     }
 
     #[test]

@@ -29,9 +29,20 @@ use crate::plot::{
 /// Caption stating the method's limits.
 const CAPTION: &str = "Second-order RG, single reference velocity; lines: tree-level Δ0 = 2.";
 
+/// What the phase map is coloured by.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum ColorBy {
+    /// The phase of the final pinned set (`phase` column; points without a
+    /// phase by outcome).
+    Phase,
+    /// The first winner (outcome and winner), as before staging.
+    Winner,
+}
+
 /// What the figures need, collected point by point.
 pub struct Canvas {
     keys: Keys,
+    by: ColorBy,
     /// Category of every point (first-appearance numbering until `write`).
     cells: Vec<u32>,
     shape: Shape,
@@ -50,7 +61,7 @@ enum Shape {
 
 impl Canvas {
     /// An empty canvas for the grid of `meta`.
-    pub fn new(meta: &Meta) -> Canvas {
+    pub fn new(meta: &Meta, by: ColorBy) -> Canvas {
         let n = meta.points;
         let shape = if meta.axes.len() == 1 {
             Shape::Line {
@@ -74,6 +85,7 @@ impl Canvas {
         };
         Canvas {
             keys: Keys::default(),
+            by,
             cells: Vec::with_capacity(n),
             shape,
         }
@@ -81,7 +93,18 @@ impl Canvas {
 
     /// Take the next point (points come in index order).
     pub fn add(&mut self, p: &Point) {
-        self.cells.push(self.keys.id(p.outcome(), p.winner()));
+        let id = match (self.by, p.phase()) {
+            (ColorBy::Phase, phase) if !phase.is_empty() => {
+                let kind = if p.target_phase() {
+                    TARGET_PHASE
+                } else {
+                    PHASE
+                };
+                self.keys.id(kind, phase)
+            }
+            _ => self.keys.id(p.outcome(), p.winner()),
+        };
+        self.cells.push(id);
         match &mut self.shape {
             Shape::Line { dims } => {
                 for (t, d) in dims.iter_mut().enumerate() {
@@ -103,6 +126,7 @@ impl Canvas {
             keys,
             mut cells,
             shape,
+            by,
         } = self;
         let cats = Categories::new(meta, keys.list);
         cats.renumber(&mut cells);
@@ -112,7 +136,7 @@ impl Canvas {
                 &["phase.png", "phase.svg"]
             }
             Shape::Map { ell, lines } => {
-                phase_figure(dir, meta, cells, lines, &cats)?;
+                phase_figure(dir, meta, cells, lines, &cats, by)?;
                 ell_star_figure(dir, meta, ell)?;
                 &["phase.png", "phase.svg", "ell_star.png", "ell_star.svg"]
             }
@@ -134,11 +158,12 @@ impl Keys {
     /// The number of a row's category; the winner counts only for the
     /// outcomes that have one.
     fn id(&mut self, outcome: &str, winner: &str) -> u32 {
-        let winner = if Outcome::from_word(outcome).is_some_and(Outcome::has_winner) {
-            winner
-        } else {
-            ""
-        };
+        let winner =
+            if is_phase(outcome) || Outcome::from_word(outcome).is_some_and(Outcome::has_winner) {
+                winner
+            } else {
+                ""
+            };
         self.scratch.clear();
         // The length prefix keeps distinct pairs distinct.
         let _ = write!(self.scratch, "{}:{outcome}{winner}", outcome.len());
@@ -186,17 +211,25 @@ impl Categories {
             .collect();
         extra.sort();
         extra.dedup();
+        let phases = keys.iter().filter(|k| is_phase(&k.0)).count();
         let term_colour: Vec<usize> = keys
             .iter()
-            .map(|(_, w)| match meta.terms.iter().position(|t| t == w) {
-                Some(t) => t,
-                None => meta.terms.len() + extra.iter().position(|x| *x == w).unwrap_or(0),
+            .enumerate()
+            .map(|(i, (o, w))| match meta.terms.iter().position(|t| t == w) {
+                // Phases (listed first) take palette entries in display order.
+                _ if is_phase(o) => i,
+                Some(t) => phases + t,
+                None => phases + meta.terms.len() + extra.iter().position(|x| *x == w).unwrap_or(0),
             })
             .collect();
         let colours = keys
             .iter()
             .zip(&term_colour)
-            .map(|(k, &t)| colour(&k.0, t))
+            .map(|(k, &t)| match (k.0.as_str(), k.1.as_str()) {
+                (PHASE, crate::core::pinned_span::GAPLESS) => colour("gapless", t),
+                (o, _) if is_phase(o) => colour("strong", t),
+                (o, _) => colour(o, t),
+            })
             .collect();
         Categories {
             labels,
@@ -227,7 +260,24 @@ impl Categories {
     }
 }
 
+/// Category kinds of the phase map coloured by phase.
+const PHASE: &str = "phase";
+const TARGET_PHASE: &str = "target phase";
+
+fn is_phase(kind: &str) -> bool {
+    kind == PHASE || kind == TARGET_PHASE
+}
+
 fn order(meta: &Meta, (outcome, winner): &(String, String)) -> (usize, usize, String) {
+    // Phases first: the target phase, then the others by label, gapless last.
+    match outcome.as_str() {
+        TARGET_PHASE => return (0, 0, winner.clone()),
+        PHASE => {
+            let last = usize::from(winner == crate::core::pinned_span::GAPLESS);
+            return (1, last, winner.clone());
+        }
+        _ => {}
+    }
     let oi = Outcome::ALL
         .iter()
         .position(|o| o.word() == outcome)
@@ -244,17 +294,22 @@ fn order(meta: &Meta, (outcome, winner): &(String, String)) -> (usize, usize, St
     } else {
         1
     };
-    (group * 100 + oi, ti, winner.clone())
+    (10 + group * 100 + oi, ti, winner.clone())
 }
 
 fn label(outcome: &str, winner: &str) -> String {
-    match Outcome::from_word(outcome) {
-        Some(Outcome::Strong) => format!("{winner} wins"),
-        Some(Outcome::Spinful) => format!("{winner}: spinful instability"),
-        Some(o @ (Outcome::Gapless | Outcome::Undecided)) => o.word().into(),
-        Some(Outcome::Unphysical) => "unphysical (V not positive definite)".into(),
-        Some(Outcome::Failed) => "integration failed".into(),
-        None => outcome.to_string(),
+    match (outcome, Outcome::from_word(outcome)) {
+        (TARGET_PHASE, _) => format!("{winner} (target phase)"),
+        (PHASE, _) if winner == crate::core::pinned_span::GAPLESS => {
+            "gapless phase (nothing pinned)".into()
+        }
+        (PHASE, _) => winner.to_string(),
+        (_, Some(Outcome::Strong)) => format!("{winner} wins"),
+        (_, Some(Outcome::Spinful)) => format!("{winner}: spinful instability"),
+        (_, Some(o @ (Outcome::Gapless | Outcome::Undecided))) => o.word().into(),
+        (_, Some(Outcome::Unphysical)) => "unphysical (V not positive definite)".into(),
+        (_, Some(Outcome::Failed)) => "integration failed".into(),
+        (_, None) => outcome.to_string(),
     }
 }
 
@@ -292,6 +347,7 @@ fn phase_figure(
     cells: Vec<u32>,
     lines: Vec<(usize, ContourTracer)>,
     cats: &Categories,
+    by: ColorBy,
 ) -> Result<(), Error> {
     let lines = lines
         .into_iter()
@@ -302,7 +358,10 @@ fn phase_figure(
         .filter(|c| !c.points.is_empty())
         .collect();
     let data = PhaseMap {
-        title: format!("{}: which term reaches strong coupling first", meta.model),
+        title: match by {
+            ColorBy::Phase => format!("{}: phase after successive pinning", meta.model),
+            ColorBy::Winner => format!("{}: which term reaches strong coupling first", meta.model),
+        },
         x_name: meta.axes[0].name.clone(),
         y_name: meta.axes[1].name.clone(),
         xs: meta.axes[0].values(),

@@ -20,6 +20,7 @@
 
 pub mod axis;
 pub mod figures;
+pub mod phases;
 pub mod points;
 pub mod run;
 pub mod store;
@@ -161,6 +162,7 @@ impl<'s> Scan<'s> {
         if self.meta.infinite {
             cells.extend(quadrature_cells(&result));
         }
+        cells.extend(phase_cells(&result));
         csv_line(&cells)
     }
 
@@ -216,6 +218,27 @@ pub fn quadrature_cells(r: &FlowResult) -> Vec<String> {
             c.converged.to_string(),
         ],
         None => vec![String::new(); 3],
+    }
+}
+
+/// The cells of [`store::PHASE_COLUMNS`] (empty where no phase is named).
+pub fn phase_cells(r: &FlowResult) -> Vec<String> {
+    let ell = r.ell_last.map(|l| format!("{l}")).unwrap_or_default();
+    match &r.phase {
+        Some(p) => vec![
+            p.label.clone(),
+            p.target.to_string(),
+            ell,
+            p.gapped_pairs.to_string(),
+            p.gapless_modes.to_string(),
+        ],
+        None => vec![
+            String::new(),
+            "false".into(),
+            ell,
+            String::new(),
+            String::new(),
+        ],
     }
 }
 

@@ -15,6 +15,8 @@ pub struct Point<'r> {
     rec: &'r csv::StringRecord,
     /// Number of axes (the columns before `outcome`).
     axes: usize,
+    /// Index of the `phase` column (`Meta::phase_column`).
+    phase_at: usize,
 }
 
 impl Point<'_> {
@@ -52,6 +54,27 @@ impl Point<'_> {
         self.num(self.axes + 3 + t).unwrap_or(f64::NAN)
     }
 
+    /// Label of the phase (empty where none is named).
+    pub fn phase(&self) -> &str {
+        self.rec.get(self.phase_at).unwrap_or("")
+    }
+
+    /// The point is in the target phase.
+    pub fn target_phase(&self) -> bool {
+        self.rec.get(self.phase_at + 1) == Some("true")
+    }
+
+    /// ell of the last stage, if any.
+    pub fn ell_last(&self) -> Option<f64> {
+        self.num(self.phase_at + 2)
+    }
+
+    /// Gapped pairs and gapless modes of the phase.
+    pub fn phase_counts(&self) -> Option<(usize, usize)> {
+        let at = |i: usize| self.rec.get(i).and_then(|s| s.parse::<usize>().ok());
+        Some((at(self.phase_at + 3)?, at(self.phase_at + 4)?))
+    }
+
     /// Infinite arrays: the flow's quadrature check (points, relative error
     /// estimate, passed) from the three columns after the `terms` pairs of
     /// dimension columns; None where the flow was not checked.
@@ -79,6 +102,7 @@ pub fn for_each_point(path: &Path, meta: &Meta, mut each: impl FnMut(&Point)) ->
             let point = Point {
                 rec: &rec,
                 axes: meta.axes.len(),
+                phase_at: meta.phase_column(),
             };
             each(&point);
         }

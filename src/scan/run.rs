@@ -4,7 +4,7 @@
 
 use std::path::Path;
 
-use super::figures::Canvas;
+use super::figures::{Canvas, ColorBy};
 use super::points::for_each_point;
 use super::store::Meta;
 use super::summary::{ScanSummary, Tally};
@@ -16,10 +16,10 @@ use crate::output;
 /// Summary and figures from the finished points file: one pass feeds
 /// every row to the summary's tally and the figures' canvas, which keep
 /// no rows (see [`super::figures`]). Writes `summary.json` and the figures
-/// into `dir` and returns the summary.
-pub fn finish(dir: &Path, meta: &Meta) -> Result<ScanSummary, Error> {
+/// into `dir` and returns the summary; the phase map is coloured `by`.
+pub fn finish(dir: &Path, meta: &Meta, by: ColorBy) -> Result<ScanSummary, Error> {
     let mut tally = Tally::new(meta);
-    let mut canvas = Canvas::new(meta);
+    let mut canvas = Canvas::new(meta, by);
     for_each_point(&dir.join("points.csv"), meta, |p| {
         tally.add(p);
         canvas.add(p);

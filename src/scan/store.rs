@@ -145,7 +145,13 @@ impl Meta {
         if self.infinite {
             h.extend(QUADRATURE_COLUMNS.iter().map(|s| s.to_string()));
         }
+        h.extend(PHASE_COLUMNS.iter().map(|s| s.to_string()));
         h
+    }
+
+    /// Index of the first of [`PHASE_COLUMNS`] in a row.
+    pub fn phase_column(&self) -> usize {
+        self.axes.len() + 3 + 2 * self.terms.len() + if self.infinite { 3 } else { 0 }
     }
 }
 
@@ -154,6 +160,19 @@ impl Meta {
 /// quadrature check (final dimensions, ell*; `inf` when the two flows end
 /// differently) and whether the check passed; empty without a check.
 pub const QUADRATURE_COLUMNS: [&str; 3] = ["q_points", "q_error", "q_converged"];
+
+/// The last columns of every row (appended after all earlier columns, so
+/// that their positions stay): the label of the final pinned set's phase
+/// (`flow::stages`, `phase`; empty where no phase is named), whether it is
+/// the target phase, ell of the last stage, and the phase's gapped pairs and
+/// gapless modes (per wire for infinite arrays).
+pub const PHASE_COLUMNS: [&str; 5] = [
+    "phase",
+    "target_phase",
+    "ell_last",
+    "gapped_pairs",
+    "gapless_modes",
+];
 
 /// An open file that rows are appended to.
 pub struct RowFile {
@@ -486,28 +505,44 @@ mod tests {
     fn rows_are_checked_with_and_without_quoted_cells() {
         let m = meta();
         let width = m.header().len();
-        assert_eq!(width, 6, "{:?}", m.header());
+        // The phase columns come last (the phase label is quoted: it has commas).
+        assert_eq!(width, 11, "{:?}", m.header());
         // Plain row: split directly.
-        assert_eq!(m.check_row("0.5,strong,a,1.5,0.9,0.8", 1, width), Ok(()));
+        assert_eq!(
+            m.check_row("0.5,strong,a,1.5,0.9,0.8,{a},true,1.5,1,0", 1, width),
+            Ok(())
+        );
         // A term name with a comma is quoted; the quoted path counts it as
         // one cell.
         assert_eq!(
-            m.check_row("0.5,strong,\"a,b\",1.5,0.9,0.8", 1, width),
+            m.check_row(
+                "0.5,strong,\"a,b\",1.5,0.9,0.8,\"{a, b}\",true,1.5,2,0",
+                1,
+                width
+            ),
             Ok(())
         );
         assert!(m
-            .check_row("0.5,strong,a,b,1.5,0.9,0.8", 1, width)
+            .check_row(
+                "0.5,strong,a,b,1.5,0.9,0.8,\"{a, b}\",true,1.5,2,0",
+                1,
+                width
+            )
             .unwrap_err()
-            .contains("7 cells, expected 6"));
+            .contains("12 cells, expected 11"));
         assert!(m
-            .check_row("0.5,strong,\"a,b,1.5,0.9,0.8", 1, width)
+            .check_row(
+                "0.5,strong,\"a,b,1.5,0.9,0.8,\"{a, b}\",true,1.5,2,0",
+                1,
+                width
+            )
             .is_err());
         assert!(m
-            .check_row("0,strong,a,1.5,0.9,0.8", 1, width)
+            .check_row("0,strong,a,1.5,0.9,0.8,\"{a, b}\",true,1.5,2,0", 1, width)
             .unwrap_err()
             .contains("x = 0, expected 0.5"));
         assert!(m
-            .check_row("0.5,won,a,1.5,0.9,0.8", 1, width)
+            .check_row("0.5,won,a,1.5,0.9,0.8,\"{a, b}\",true,1.5,2,0", 1, width)
             .unwrap_err()
             .contains("unknown outcome `won`"));
     }

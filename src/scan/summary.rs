@@ -63,6 +63,10 @@ pub struct ScanSummary {
     pub winners: BTreeMap<String, usize>,
     /// Where the target wins (when the model marks one).
     pub target: Option<TargetSummary>,
+    /// Points per phase of the final pinned set (most points first).
+    pub phases: Vec<super::phases::PhaseRow>,
+    /// Where the target phase is reached (when the model marks a target).
+    pub target_phase: Option<super::phases::TargetPhase>,
     /// Infinite arrays: the flows' quadrature checks over the grid; null
     /// for other models.
     pub flow_quadrature: Option<QuadratureSummary>,
@@ -152,6 +156,32 @@ fn generated_winners_note(meta: &Meta, winners: &BTreeMap<String, usize>) -> Opt
     })
 }
 
+/// "reached at 12 points (3.1% of the grid); x in [..]; gap from .. to ..".
+fn target_phase_text(t: &super::phases::TargetPhase) -> String {
+    let mut s = format!(
+        "reached at {} points ({:.1}% of the grid)",
+        t.points,
+        100.0 * t.fraction
+    );
+    for (k, [a, b]) in &t.bounds {
+        s.push_str(&format!("; {k} in [{}, {}]", short(*a), short(*b)));
+    }
+    if let Some(m) = &t.margin {
+        let at: Vec<String> = m
+            .best_point
+            .iter()
+            .map(|(k, v)| format!("{k}={}", short(*v)))
+            .collect();
+        s.push_str(&format!(
+            "; gap e^-ell_last from {:.3e} to {:.3e} (largest at {})",
+            m.min,
+            m.max,
+            at.join(", ")
+        ));
+    }
+    s
+}
+
 /// The summary being accumulated over the rows of a points file.
 pub struct Tally {
     points: usize,
@@ -161,6 +191,7 @@ pub struct Tally {
     /// Number of listed terms (the quadrature columns follow theirs).
     terms: usize,
     quadrature: Option<QuadratureSummary>,
+    phases: super::phases::PhaseTally,
 }
 
 /// The target's window so far.
@@ -205,6 +236,7 @@ impl Tally {
             target: meta.target.as_ref().map(|t| Window::new(meta, t)),
             terms: meta.terms.len(),
             quadrature: meta.infinite.then(QuadratureSummary::new),
+            phases: super::phases::PhaseTally::new(meta),
         }
     }
 
@@ -218,6 +250,7 @@ impl Tally {
         if let Some(w) = &mut self.target {
             w.add(p);
         }
+        self.phases.add(p);
         if let Some(q) = &mut self.quadrature {
             if let Some(check) = p.quadrature(self.terms) {
                 q.add(check);
@@ -230,6 +263,7 @@ impl Tally {
         let points = self.points;
         let flow_quadrature = self.quadrature.map(QuadratureSummary::finish);
         let target = self.target.map(|w| w.finish(meta, points));
+        let (phases, target_phase) = self.phases.finish(meta, points);
         let mut notes = vec![crate::flow::report::METHOD_NOTE.to_string()];
         if let Some(t) = target.as_ref() {
             notes.extend(margin_note(t));
@@ -248,6 +282,8 @@ impl Tally {
             outcomes: self.outcomes,
             winners: self.winners,
             target,
+            phases,
+            target_phase,
             flow_quadrature,
             files,
             notes,
@@ -396,6 +432,9 @@ impl Report for ScanSummary {
                 ));
             }
         }
+        if let Some(t) = &self.target_phase {
+            f.push(("target phase".to_string(), target_phase_text(t)));
+        }
         if let Some(q) = &self.flow_quadrature {
             let points = if q.points[0] == q.points[1] {
                 q.points[0].to_string()
@@ -424,7 +463,20 @@ impl Report for ScanSummary {
         for (k, v) in &self.winners {
             w.push(vec![k.clone(), v.to_string()]);
         }
-        vec![t, w]
+        let mut p = Table::new(
+            "phases (final pinned set)",
+            &["phase", "points", "target", "gapped pairs", "gapless modes"],
+        );
+        for r in &self.phases {
+            p.push(vec![
+                r.label.clone(),
+                r.points.to_string(),
+                r.target.to_string(),
+                r.gapped_pairs.to_string(),
+                r.gapless_modes.to_string(),
+            ]);
+        }
+        vec![t, w, p]
     }
 
     fn csv_table(&self) -> Table {

@@ -1,0 +1,452 @@
+//! Naming the phase a pinned set produces [physics reference section 7,
+//! "Naming the phase"; section 6 for the lattice algebra].
+//!
+//! A pinned set is a list of term families (every translate on the array,
+//! or on the periodic stand-in ring of an infinite array). Its phase is the
+//! integer lattice span_Z of the lattice vectors l of all those translates:
+//! two pinned sets are one phase iff they span the same lattice. Because
+//! K is invertible, comparing the spans of the l's is the same as comparing
+//! the spans of the particle vectors n = K^-1 l. Pinning 2 l is not pinning
+//! l: l is in span_Q but not in span_Z of {2 l}.
+//!
+//! Equality is decided exactly, by mutual membership: v is in the column
+//! span of A iff, with the Smith form P A Q = diag(d_1..d_r, 0..)
+//! ([`crate::math::smith`]), (P v)_i is divisible by d_i for i < r and
+//! vanishes for i >= r (A = P^-1 D Q^-1 and Q is unimodular). Big integers
+//! throughout, no overflow.
+//!
+//! The label is the smallest set of candidate families (the listed terms
+//! first, then the generated ones) whose span is the lattice, ties broken
+//! by fewer generated terms and then by candidate order, so it is a
+//! function of the lattice alone; `gapless` when nothing is pinned.
+//! Invariants: gapped pairs r = rank (per wire for an infinite array:
+//! rank over Q(z), the certificate of `edges::line`), gapless modes
+//! N - 2 r (n_c - 2 rho per wire), fully gapped when none is left.
+
+use num_bigint::BigInt;
+use num_integer::Integer;
+use num_traits::Zero;
+use serde::Serialize;
+
+use crate::core::lattice::{Family, Lattice};
+use crate::math::smith::{smith, Smith};
+use crate::math::zmat::{big, ZMat};
+
+/// The phase of a pinned set, as every output reports it.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+pub struct Phase {
+    /// `{a, b}` (the spanning terms in braces), or `gapless`.
+    pub label: String,
+    /// The spanning terms of the label.
+    pub terms: Vec<String>,
+    /// Right-left pairs gapped (per wire for infinite arrays).
+    pub gapped_pairs: usize,
+    /// Gapless modes left (per wire for infinite arrays).
+    pub gapless_modes: usize,
+    /// No gapless mode left.
+    pub fully_gapped: bool,
+    /// The pinned lattice equals the target lattice (false when no term is
+    /// marked as a target).
+    pub target: bool,
+}
+
+/// Label of the phase with nothing pinned.
+pub const GAPLESS: &str = "gapless";
+
+/// The integer span of the lattice vectors of a set of families.
+#[derive(Debug, Clone)]
+pub struct PinnedLattice {
+    n: usize,
+    smith: Smith,
+}
+
+impl PinnedLattice {
+    /// Span of every translate of `families` (dense vectors of length n).
+    pub fn new(n: usize, families: &[&Family]) -> PinnedLattice {
+        let rows: Vec<Vec<i64>> = families
+            .iter()
+            .flat_map(|f| f.translates.iter().map(|t| t.l.clone()))
+            .collect();
+        let a = ZMat::from_i64(&rows, n).transpose();
+        let a = if rows.is_empty() {
+            ZMat::zeros(n, 0)
+        } else {
+            a
+        };
+        PinnedLattice {
+            n,
+            smith: smith(&a),
+        }
+    }
+
+    /// Rank over the rationals (gapped pairs of a finite array).
+    pub fn rank(&self) -> usize {
+        self.smith.rank()
+    }
+
+    /// v in span_Z (exact; see the module docs).
+    pub fn contains(&self, v: &[i64]) -> bool {
+        debug_assert_eq!(v.len(), self.n);
+        let y = self.smith.p.mul_vec(&big(v));
+        y.iter()
+            .enumerate()
+            .all(|(i, yi)| match self.smith.diag.get(i) {
+                Some(d) => yi.is_multiple_of(d),
+                None => yi.is_zero(),
+            })
+    }
+
+    /// Every translate of the family lies in the span.
+    pub fn contains_family(&self, f: &Family) -> bool {
+        f.translates.iter().all(|t| self.contains(&t.l))
+    }
+
+    /// v in span_Q (the term is locked, though perhaps not pinned, by the
+    /// set: its dimension in the pinned theory is zero).
+    pub fn contains_rationally(&self, v: &[i64]) -> bool {
+        let y = self.smith.p.mul_vec(&big(v));
+        y.iter().skip(self.rank()).all(|yi| yi.is_zero())
+    }
+
+    /// The same lattice as the span of `families` (mutual membership).
+    pub fn spans_same(&self, families: &[&Family]) -> bool {
+        families.iter().all(|f| self.contains_family(f))
+            && PinnedLattice::new(self.n, families).contains_all(self)
+    }
+
+    /// Every generator of `other` lies in this span.
+    fn contains_all(&self, other: &PinnedLattice) -> bool {
+        // Generators of other's span: the columns of P^-1 D (P A Q = D).
+        let s = &other.smith;
+        (0..s.rank()).all(|i| {
+            let col: Vec<BigInt> = s.p_inv.col(i).iter().map(|x| x * &s.diag[i]).collect();
+            let y = self.smith.p.mul_vec(&col);
+            y.iter()
+                .enumerate()
+                .all(|(j, yj)| match self.smith.diag.get(j) {
+                    Some(d) => yj.is_multiple_of(d),
+                    None => yj.is_zero(),
+                })
+        })
+    }
+}
+
+/// One family that may name a phase.
+#[derive(Debug, Clone, Copy)]
+pub struct Candidate<'a> {
+    /// Term name.
+    pub name: &'a str,
+    /// Listed in the model (preferred in labels).
+    pub listed: bool,
+    /// Its translates.
+    pub family: &'a Family,
+}
+
+/// The phase of `pinned` (families), named from `candidates` (listed
+/// first), compared with the span of `targets` (empty: no target).
+pub fn name_phase(
+    lat: &Lattice,
+    candidates: &[Candidate],
+    pinned: &[&Family],
+    targets: &[&Family],
+) -> Phase {
+    let lattice = PinnedLattice::new(lat.n, pinned);
+    let (gapped_pairs, modes) = if lat.infinite {
+        (per_wire_rank(lat, pinned), lat.cell)
+    } else {
+        (lattice.rank(), lat.n)
+    };
+    let gapless_modes = modes.saturating_sub(2 * gapped_pairs);
+    let target = !targets.is_empty() && lattice.spans_same(targets);
+    let terms = if pinned.is_empty() {
+        Vec::new()
+    } else {
+        label_terms(&lattice, candidates, pinned.len())
+    };
+    let label = if terms.is_empty() {
+        GAPLESS.to_string()
+    } else {
+        format!("{{{}}}", terms.join(", "))
+    };
+    Phase {
+        label,
+        terms,
+        gapped_pairs,
+        gapless_modes,
+        fully_gapped: gapless_modes == 0,
+        target,
+    }
+}
+
+/// Subsets of candidates tried before the label falls back to a greedy
+/// spanning set (written-out models list every translate as a term, and
+/// the number of subsets grows combinatorially).
+pub const LABEL_BUDGET: usize = 4096;
+
+/// The fewest candidates spanning the lattice (fewer generated, then
+/// candidate order); at most `most` are needed (the pinned set itself).
+/// Subsets are tried by size, listed-only first, until [`LABEL_BUDGET`]
+/// subsets have been tried; past it, a greedy spanning set (candidates in
+/// order, each kept when it enlarges the span, then every one that is not
+/// needed dropped) names the phase. Either way the label depends on the
+/// lattice alone.
+fn label_terms(lattice: &PinnedLattice, candidates: &[Candidate], most: usize) -> Vec<String> {
+    let inside: Vec<&Candidate> = candidates
+        .iter()
+        .filter(|c| !c.family.translates.is_empty() && lattice.contains_family(c.family))
+        .collect();
+    let (listed, generated): (Vec<usize>, Vec<usize>) =
+        (0..inside.len()).partition(|&i| inside[i].listed);
+    let spans = |combo: &[usize]| {
+        let fams: Vec<&Family> = combo.iter().map(|&i| inside[i].family).collect();
+        let sub = PinnedLattice::new(lattice.n, &fams);
+        sub.rank() == lattice.rank() && sub.contains_all(lattice)
+    };
+    let names = |combo: &[usize]| combo.iter().map(|&i| inside[i].name.to_string()).collect();
+    let mut budget = LABEL_BUDGET;
+    for size in 1..=most.min(inside.len()) {
+        for g in 0..=size.min(generated.len()) {
+            if size - g > listed.len() {
+                continue;
+            }
+            let mut a = Combination::new(listed.len(), size - g);
+            while let Some(ia) = a.next() {
+                let mut b = Combination::new(generated.len(), g);
+                while let Some(ib) = b.next() {
+                    if budget == 0 {
+                        return names(&greedy(&inside, &spans));
+                    }
+                    budget -= 1;
+                    let mut combo: Vec<usize> = ia.iter().map(|&k| listed[k]).collect();
+                    combo.extend(ib.iter().map(|&k| generated[k]));
+                    if spans(&combo) {
+                        return names(&combo);
+                    }
+                }
+            }
+        }
+    }
+    Vec::new()
+}
+
+/// Candidates in order (listed first), each kept when it enlarges the span
+/// so far, then each dropped when the rest still spans.
+fn greedy(inside: &[&Candidate], spans: &dyn Fn(&[usize]) -> bool) -> Vec<usize> {
+    let mut order: Vec<usize> = (0..inside.len()).collect();
+    order.sort_by_key(|&i| !inside[i].listed);
+    let mut kept: Vec<usize> = Vec::new();
+    for i in order {
+        let fams: Vec<&Family> = kept.iter().map(|&k| inside[k].family).collect();
+        if !PinnedLattice::new(inside[i].family.translates[0].l.len(), &fams)
+            .contains_family(inside[i].family)
+        {
+            kept.push(i);
+        }
+        if spans(&kept) {
+            break;
+        }
+    }
+    let mut at = kept.len();
+    while at > 0 {
+        at -= 1;
+        let without: Vec<usize> = kept
+            .iter()
+            .enumerate()
+            .filter(|(j, _)| *j != at)
+            .map(|(_, &k)| k)
+            .collect();
+        if spans(&without) {
+            kept = without;
+        }
+    }
+    kept
+}
+
+/// The k-subsets of 0..n in lexicographic order, one at a time.
+struct Combination {
+    n: usize,
+    c: Vec<usize>,
+    started: bool,
+}
+
+impl Combination {
+    fn new(n: usize, k: usize) -> Combination {
+        Combination {
+            n,
+            c: (0..k).collect(),
+            started: false,
+        }
+    }
+
+    fn next(&mut self) -> Option<&[usize]> {
+        let k = self.c.len();
+        if k > self.n {
+            return None;
+        }
+        if !self.started {
+            self.started = true;
+            return Some(&self.c);
+        }
+        let i = (0..k).rev().find(|&i| self.c[i] < self.n - k + i)?;
+        self.c[i] += 1;
+        for j in i + 1..k {
+            self.c[j] = self.c[j - 1] + 1;
+        }
+        Some(&self.c)
+    }
+}
+
+/// Right-left pairs gapped per wire of an infinite array: the rank over
+/// Q(z) of the polynomial vectors L_f(z) = sum_j l_j z^j of the pinned
+/// families (cell vectors l_j on wire j of a translate unfolded from the
+/// stand-in ring). Certificate as in `edges::line`: every minor has degree
+/// at most min(n_c, P) D, so the largest rank at B + 1 distinct integer
+/// points is the rank over Q(z). (l_j = K_c n_j: the same rank as the
+/// particle vectors.)
+pub fn per_wire_rank(lat: &Lattice, pinned: &[&Family]) -> usize {
+    let polys: Vec<Vec<Vec<i64>>> = pinned
+        .iter()
+        .filter_map(|f| f.translates.first().map(|t| unfold(lat, &t.l)))
+        .collect();
+    let most = lat.cell.min(polys.len());
+    let degree = polys
+        .iter()
+        .map(|p| p.len().saturating_sub(1))
+        .max()
+        .unwrap_or(0);
+    let mut rank = 0;
+    for z in 2..=(most * degree) as i64 + 2 {
+        if rank == most {
+            break;
+        }
+        let rows: Vec<Vec<BigInt>> = polys.iter().map(|p| evaluate(p, z)).collect();
+        rank = rank.max(crate::math::bareiss::rank(&rows));
+    }
+    rank
+}
+
+/// Cell vectors of a ring vector, from the support wire after the largest
+/// cyclic gap (unique: the stand-in ring is wider than twice every term).
+fn unfold(lat: &Lattice, l: &[i64]) -> Vec<Vec<i64>> {
+    let (c, w) = (lat.cell, lat.wires);
+    let on: Vec<usize> = (0..w)
+        .filter(|&j| l[j * c..(j + 1) * c].iter().any(|x| *x != 0))
+        .collect();
+    let start = on
+        .iter()
+        .enumerate()
+        .max_by_key(|&(i, &s)| {
+            let prev = on[(i + on.len() - 1) % on.len()];
+            ((s + w - prev - 1) % w, std::cmp::Reverse(s))
+        })
+        .map_or(0, |(_, &s)| s);
+    let degree = on.iter().map(|&j| (j + w - start) % w).max().unwrap_or(0);
+    let mut coeffs = vec![vec![0i64; c]; degree + 1];
+    for &j in &on {
+        coeffs[(j + w - start) % w] = l[j * c..(j + 1) * c].to_vec();
+    }
+    coeffs
+}
+
+/// sum_j l_j z^j, exactly (Horner).
+fn evaluate(p: &[Vec<i64>], z: i64) -> Vec<BigInt> {
+    let cell = p.first().map_or(0, |c| c.len());
+    let z = BigInt::from(z);
+    let mut v = vec![BigInt::zero(); cell];
+    for c in p.iter().rev() {
+        for (x, a) in v.iter_mut().zip(c) {
+            *x = &*x * &z + a;
+        }
+    }
+    v
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::core::lattice::Translate;
+
+    fn family(vs: &[&[i64]]) -> Family {
+        Family {
+            translates: vs
+                .iter()
+                .map(|v| Translate {
+                    anchor: 0,
+                    parts: vec![(0, v.to_vec())],
+                    l: v.to_vec(),
+                })
+                .collect(),
+            representative: 0,
+        }
+    }
+
+    #[test]
+    fn twice_a_vector_is_another_lattice() {
+        // span_Z {2 l} does not contain l (derived: 2 does not divide 1).
+        let l = family(&[&[1, -1, 0, 0]]);
+        let two = family(&[&[2, -2, 0, 0]]);
+        let a = PinnedLattice::new(4, &[&two]);
+        assert!(!a.contains(&[1, -1, 0, 0]));
+        assert!(a.contains_rationally(&[1, -1, 0, 0]));
+        assert!(!a.spans_same(&[&l]));
+        assert!(PinnedLattice::new(4, &[&l]).contains(&[2, -2, 0, 0]));
+    }
+
+    #[test]
+    fn different_generators_same_lattice() {
+        // {a, b} and {a + b, b} span the same lattice (a unimodular change,
+        // derived); {a + b, a - b} does not (its index is |det| = 2).
+        let a = family(&[&[1, 0, 0, 1]]);
+        let b = family(&[&[0, 1, 1, 0]]);
+        let s = family(&[&[1, 1, 1, 1]]);
+        let d = family(&[&[1, -1, -1, 1]]);
+        let ab = PinnedLattice::new(4, &[&a, &b]);
+        assert!(ab.spans_same(&[&s, &b]));
+        assert!(!ab.spans_same(&[&s, &d]));
+        assert_eq!(ab.rank(), 2);
+    }
+
+    #[test]
+    fn label_prefers_fewest_then_listed() {
+        let a = family(&[&[1, 0, 0, 1]]);
+        let b = family(&[&[0, 1, 1, 0]]);
+        let s = family(&[&[1, 1, 1, 1]]);
+        let cands = [
+            Candidate {
+                name: "s",
+                listed: false,
+                family: &s,
+            },
+            Candidate {
+                name: "a",
+                listed: true,
+                family: &a,
+            },
+            Candidate {
+                name: "b",
+                listed: true,
+                family: &b,
+            },
+        ];
+        let lattice = PinnedLattice::new(4, &[&s, &b]);
+        assert_eq!(label_terms(&lattice, &cands, 2), vec!["a", "b"]);
+        let only_s = PinnedLattice::new(4, &[&s]);
+        assert_eq!(label_terms(&only_s, &cands, 1), vec!["s"]);
+    }
+
+    #[test]
+    fn combinations_are_complete() {
+        let count = |n, k| {
+            let mut c = Combination::new(n, k);
+            let mut m = 0;
+            while c.next().is_some() {
+                m += 1;
+            }
+            m
+        };
+        assert_eq!(count(4, 2), 6);
+        assert_eq!(count(3, 3), 1);
+        assert_eq!(count(2, 3), 0);
+        assert_eq!(count(5, 0), 1);
+    }
+}
