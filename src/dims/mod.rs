@@ -366,118 +366,152 @@ impl DimsReport {
         check_errors(sys, point, &ev)?;
         let extra = sys.extra_dimensions(point)?;
         let momenta = sys.momentum_mismatches(point);
-        let inv = &sys.invariants;
-        let infinite = sys.is_infinite();
-        let mut terms = Vec::new();
-        for (i, (spec, fam)) in sys
-            .model
-            .terms
+        let terms: Vec<TermRow> = (0..sys.model.terms.len())
+            .map(|i| {
+                let k = momenta.as_ref().map(|m| m[i]);
+                term_row(
+                    sys,
+                    point,
+                    i,
+                    ev.bosonic[i] + extra[i],
+                    extra[i],
+                    ev.errors[i][0],
+                    k,
+                )
+            })
+            .collect();
+        let notes = report_notes(sys, point, &terms, &ev);
+        Ok(assemble(sys, point, ev, terms, notes))
+    }
+}
+
+/// One term's row at a point (`dimension` includes the extra one).
+fn term_row(
+    sys: &System,
+    point: &[f64],
+    i: usize,
+    dimension: f64,
+    extra: f64,
+    error: f64,
+    k: Option<f64>,
+) -> TermRow {
+    let (spec, fam, ti) = (
+        &sys.model.terms[i],
+        &sys.lattice.families[i],
+        &sys.invariants.terms[i],
+    );
+    let rep = fam.rep();
+    let s = rational::to_f64(&ti.spin);
+    let dk = per_translate_momentum(sys, i, point);
+    // Infinite arrays: the representative sits at wire 0 of the stand-in
+    // ring; list the wires 0..=range it touches.
+    let shown = if sys.is_infinite() {
+        (spec.range() + 1) * sys.lattice.cell
+    } else {
+        rep.l.len()
+    };
+    let particles = &ti.particles[..shown];
+    TermRow {
+        name: spec.name.clone(),
+        target: spec.target,
+        vector: rep.l[..shown].to_vec(),
+        particles: rational::to_integers(particles),
+        particles_exact: particles.iter().map(fmt_rational).collect(),
+        wire: rep.anchor,
+        dimension,
+        dimension_error: error,
+        extra_dimension: extra,
+        spin: fmt_rational(&ti.spin),
+        h: (dimension + s) / 2.0,
+        hbar: (dimension - s) / 2.0,
+        charge: fmt_rational(&ti.charge),
+        allowed_charge: fmt_rational(&spec.allowed_charge),
+        charge_ok: ti.charge_ok,
+        local: ti.local,
+        null: ti.null,
+        relevant: is_relevant(dimension),
+        rg_eigenvalue: rg_eigenvalue(dimension),
+        momentum: k,
+        momentum_conserved: k.map(|k| k.abs() < MOMENTUM_TOLERANCE && dk.is_none_or(|d| d == 0.0)),
+        momentum_per_translate: dk,
+        self_commuting: ti.self_commuting,
+        coupling: spec.coupling.eval(point),
+        commutes_with_pinned: None,
+        dimension_pinned: None,
+        disordered: None,
+    }
+}
+
+/// The notes of a report, in the order they are printed.
+fn report_notes(sys: &System, point: &[f64], terms: &[TermRow], ev: &Evaluated) -> Vec<String> {
+    let inv = &sys.invariants;
+    let mut notes = notes_for(terms);
+    let names: Vec<String> = terms.iter().map(|t| t.name.clone()).collect();
+    notes.extend(accuracy_notes(&names, ev));
+    let starred = inv.commutation.iter().zip(&inv.commutes).any(|(ph, ok)| {
+        ph.iter()
+            .zip(ok)
+            .any(|(p, c)| num_traits::Zero::is_zero(p) && !c)
+    });
+    if starred {
+        notes.push(
+            "0* in the commutation table: the two terms commute at the same wire but not with every translate, so their families cannot all pin together".to_string(),
+        );
+    }
+    if let Some(q) = &ev.quadrature {
+        notes.push(infinite_note(q));
+    }
+    if sys.lattice.boundary == Some(crate::model::Boundary::Open) {
+        notes.push(open_array_note(terms, sys.lattice.cell));
+    }
+    if let Some(g) = sys.model.momentum_period_at(point) {
+        notes.push(period_note(g));
+    }
+    notes
+}
+
+/// The report from its rows and notes.
+fn assemble(
+    sys: &System,
+    point: &[f64],
+    ev: Evaluated,
+    terms: Vec<TermRow>,
+    notes: Vec<String>,
+) -> DimsReport {
+    let inv = &sys.invariants;
+    let infinite = sys.is_infinite();
+    let array = matches!(sys.model.structure, crate::model::Structure::Array { .. });
+    DimsReport {
+        model: sys.model.name.clone(),
+        parameters: sys.model.params.json_point(point),
+        fields: if infinite {
+            sys.lattice.cell
+        } else {
+            sys.lattice.n
+        },
+        wires: (array && !infinite).then_some(sys.lattice.wires),
+        infinite,
+        signature: [inv.signature.0, inv.signature.1],
+        filling: fmt_rational(&inv.filling),
+        det_k: inv.det_k.to_string(),
+        filling_per_wire: array.then(|| fmt_rational(&inv.cell_filling)),
+        det_k_cell: array.then(|| inv.cell_det.to_string()),
+        velocities: ev.velocities,
+        chiralities: ev.chiralities,
+        velocity_ranges: ev.velocity_ranges,
+        quadrature: ev.quadrature,
+        momentum_period: sys.model.momentum_period_at(point),
+        pinned: None,
+        phase: None,
+        pinned_quadrature: None,
+        terms,
+        commutation: inv
+            .commutation
             .iter()
-            .zip(&sys.lattice.families)
-            .enumerate()
-        {
-            let ti = &inv.terms[i];
-            let rep = fam.rep();
-            let dimension = ev.bosonic[i] + extra[i];
-            let s = rational::to_f64(&ti.spin);
-            let k = momenta.as_ref().map(|m| m[i]);
-            let dk = per_translate_momentum(sys, i, point);
-            // Infinite arrays: the representative sits at wire 0 of the
-            // stand-in ring; list the wires 0..=range it touches.
-            let shown = if infinite {
-                (spec.range() + 1) * sys.lattice.cell
-            } else {
-                rep.l.len()
-            };
-            let particles = &ti.particles[..shown];
-            terms.push(TermRow {
-                name: spec.name.clone(),
-                target: spec.target,
-                vector: rep.l[..shown].to_vec(),
-                particles: rational::to_integers(particles),
-                particles_exact: particles.iter().map(fmt_rational).collect(),
-                wire: rep.anchor,
-                dimension,
-                dimension_error: ev.errors[i][0],
-                extra_dimension: extra[i],
-                spin: fmt_rational(&ti.spin),
-                h: (dimension + s) / 2.0,
-                hbar: (dimension - s) / 2.0,
-                charge: fmt_rational(&ti.charge),
-                allowed_charge: fmt_rational(&spec.allowed_charge),
-                charge_ok: ti.charge_ok,
-                local: ti.local,
-                null: ti.null,
-                relevant: is_relevant(dimension),
-                rg_eigenvalue: rg_eigenvalue(dimension),
-                momentum: k,
-                momentum_conserved: k
-                    .map(|k| k.abs() < MOMENTUM_TOLERANCE && dk.is_none_or(|d| d == 0.0)),
-                momentum_per_translate: dk,
-                self_commuting: ti.self_commuting,
-                coupling: spec.coupling.eval(point),
-                commutes_with_pinned: None,
-                dimension_pinned: None,
-                disordered: None,
-            });
-        }
-        let parameters = sys.model.params.json_point(point);
-        let mut notes = notes_for(&terms);
-        let names: Vec<String> = terms.iter().map(|t| t.name.clone()).collect();
-        notes.extend(accuracy_notes(&names, &ev));
-        let starred = inv.commutation.iter().zip(&inv.commutes).any(|(ph, ok)| {
-            ph.iter()
-                .zip(ok)
-                .any(|(p, c)| num_traits::Zero::is_zero(p) && !c)
-        });
-        if starred {
-            notes.push(
-                "0* in the commutation table: the two terms commute at the same wire but not with every translate, so their families cannot all pin together".to_string(),
-            );
-        }
-        if let Some(q) = &ev.quadrature {
-            notes.push(infinite_note(q));
-        }
-        if sys.lattice.boundary == Some(crate::model::Boundary::Open) {
-            notes.push(open_array_note(&terms, sys.lattice.cell));
-        }
-        let momentum_period = sys.model.momentum_period_at(point);
-        if let Some(g) = momentum_period {
-            notes.push(period_note(g));
-        }
-        let array = matches!(sys.model.structure, crate::model::Structure::Array { .. });
-        Ok(DimsReport {
-            model: sys.model.name.clone(),
-            parameters,
-            fields: if infinite {
-                sys.lattice.cell
-            } else {
-                sys.lattice.n
-            },
-            wires: (array && !infinite).then_some(sys.lattice.wires),
-            infinite,
-            signature: [inv.signature.0, inv.signature.1],
-            filling: fmt_rational(&inv.filling),
-            det_k: inv.det_k.to_string(),
-            filling_per_wire: array.then(|| fmt_rational(&inv.cell_filling)),
-            det_k_cell: array.then(|| inv.cell_det.to_string()),
-            velocities: ev.velocities,
-            chiralities: ev.chiralities,
-            velocity_ranges: ev.velocity_ranges,
-            quadrature: ev.quadrature,
-            momentum_period,
-            pinned: None,
-            phase: None,
-            pinned_quadrature: None,
-            terms,
-            commutation: inv
-                .commutation
-                .iter()
-                .map(|r| r.iter().map(fmt_rational).collect())
-                .collect(),
-            commutes: inv.commutes.clone(),
-            notes,
-        })
+            .map(|r| r.iter().map(fmt_rational).collect())
+            .collect(),
+        commutes: inv.commutes.clone(),
+        notes,
     }
 }
 

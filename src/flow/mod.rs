@@ -527,31 +527,15 @@ impl<'s> Flow<'s> {
         let nc = included.len();
         let terms = (0..nc)
             .map(|i| {
-                let ch = &self.plan.channels[included[i]];
-                let (y0, chi0) = self
-                    .plan
-                    .term_of(included[i])
-                    .map_or((0.0, 0.0), |t| bare[t]);
-                ChannelResult {
-                    name: ch.name.clone(),
-                    origin: if matches!(ch.origin, Origin::Listed(_)) {
-                        "listed"
-                    } else {
-                        "generated"
-                    }
-                    .to_string(),
-                    parents: parents_of(&self.plan, ch),
-                    coupling0: y0,
-                    phase0: chi0,
-                    dimension0: rhs.dimension(y_start.as_slice(), i),
-                    coupling: rhs.coupling(y_end, i),
-                    phase: y_end[2 * i + 1].atan2(y_end[2 * i]),
-                    dimension: rhs.dimension(y_end, i),
-                    spin: fmt_rational(&ch.spin),
-                    charge: fmt_rational(&ch.charge),
-                    momentum: momenta[i],
-                    ell_k: ell_k[i],
-                }
+                self.channel_result(
+                    rhs,
+                    included,
+                    bare,
+                    y_start,
+                    y_end,
+                    i,
+                    (momenta[i], ell_k[i]),
+                )
             })
             .collect();
         let drift = match (&rhs.bg, &self.sys.q) {
@@ -589,27 +573,72 @@ impl<'s> Flow<'s> {
         };
         if let Some(w) = integrated.winner {
             result.runner_up = runner_up(&result, w, self.opts.y_strong);
-            let win = &self.plan.channels[included[w]];
-            for (i, &c) in included.iter().enumerate() {
-                if i == w {
-                    continue;
-                }
-                let other = &self.plan.channels[c];
-                let pairing = &self.sys.invariants.pairing;
-                let commutes = other
-                    .family
-                    .translates
-                    .iter()
-                    .all(|t| pairing.commute(&win.family.rep().l, &t.l));
-                let list = if commutes {
-                    &mut result.commuting_with_winner
-                } else {
-                    &mut result.suppressed
-                };
-                list.push(other.name.clone());
-            }
+            self.sort_by_winner(&mut result, included, w);
         }
         result
+    }
+
+    /// Start and end of channel `i` of a flow (`included[i]` in the plan).
+    #[allow(clippy::too_many_arguments)]
+    fn channel_result(
+        &self,
+        rhs: &FlowRhs,
+        included: &[usize],
+        bare: &[(f64, f64)],
+        y_start: &DVector<f64>,
+        y_end: &[f64],
+        i: usize,
+        (momentum, ell_k): (Option<f64>, Option<f64>),
+    ) -> ChannelResult {
+        let ch = &self.plan.channels[included[i]];
+        let (y0, chi0) = self
+            .plan
+            .term_of(included[i])
+            .map_or((0.0, 0.0), |t| bare[t]);
+        ChannelResult {
+            name: ch.name.clone(),
+            origin: if matches!(ch.origin, Origin::Listed(_)) {
+                "listed"
+            } else {
+                "generated"
+            }
+            .to_string(),
+            parents: parents_of(&self.plan, ch),
+            coupling0: y0,
+            phase0: chi0,
+            dimension0: rhs.dimension(y_start.as_slice(), i),
+            coupling: rhs.coupling(y_end, i),
+            phase: y_end[2 * i + 1].atan2(y_end[2 * i]),
+            dimension: rhs.dimension(y_end, i),
+            spin: fmt_rational(&ch.spin),
+            charge: fmt_rational(&ch.charge),
+            momentum,
+            ell_k,
+        }
+    }
+
+    /// Sort the other channels into those that commute with the winner `w`
+    /// (every translate) and those it suppresses.
+    fn sort_by_winner(&self, result: &mut FlowResult, included: &[usize], w: usize) {
+        let win = &self.plan.channels[included[w]];
+        let pairing = &self.sys.invariants.pairing;
+        for (i, &c) in included.iter().enumerate() {
+            if i == w {
+                continue;
+            }
+            let other = &self.plan.channels[c];
+            let commutes = other
+                .family
+                .translates
+                .iter()
+                .all(|t| pairing.commute(&win.family.rep().l, &t.l));
+            let list = if commutes {
+                &mut result.commuting_with_winner
+            } else {
+                &mut result.suppressed
+            };
+            list.push(other.name.clone());
+        }
     }
 }
 
@@ -746,6 +775,50 @@ struct Integrated {
     message: Option<String>,
 }
 
+impl Integrated {
+    /// A result without a winner.
+    fn ended(outcome: Outcome, ell_end: f64, state: DVector<f64>, message: Option<String>) -> Self {
+        Integrated {
+            outcome,
+            winner: None,
+            ell_star: None,
+            ell_end,
+            state,
+            message,
+        }
+    }
+}
+
+/// The segment ends between ell0 and ell_max: every momentum cut-off in
+/// between (cut-offs closer than 1e-9 are one: their terms stop together),
+/// then ell_max.
+fn breakpoints(ell_k: &[Option<f64>], ell0: f64, ell_max: f64) -> Vec<f64> {
+    let mut breaks: Vec<f64> = ell_k
+        .iter()
+        .flatten()
+        .copied()
+        .filter(|l| *l > ell0 && *l < ell_max)
+        .collect();
+    breaks.push(ell_max);
+    breaks.sort_by(f64::total_cmp);
+    breaks.dedup_by(|b, a| *b - *a < 1e-9);
+    breaks
+}
+
+/// Record the bare couplings and dimensions as the first sample.
+fn record_start(rhs: &mut FlowRhs, y: &DVector<f64>) {
+    if !rhs.samples.is_empty() || !rhs.record {
+        return;
+    }
+    let n = rhs.channels.len();
+    let sample = Sample {
+        ell: 0.0,
+        couplings: (0..n).map(|c| rhs.coupling(y.as_slice(), c)).collect(),
+        dimensions: (0..n).map(|c| rhs.dimension(y.as_slice(), c)).collect(),
+    };
+    rhs.samples.push(sample);
+}
+
 /// Integrate segment by segment between the momentum cut-offs.
 fn integrate(
     rhs: &mut FlowRhs,
@@ -754,92 +827,41 @@ fn integrate(
     opts: &FlowOptions,
     ell0: f64,
 ) -> Integrated {
-    let mut breaks: Vec<f64> = ell_k
-        .iter()
-        .flatten()
-        .copied()
-        .filter(|l| *l > ell0 && *l < opts.ell_max)
-        .collect();
-    breaks.push(opts.ell_max);
-    breaks.sort_by(f64::total_cmp);
-    // Cut-offs closer than this are one breakpoint (their terms stop together).
-    breaks.dedup_by(|b, a| *b - *a < 1e-9);
     let mut start = ell0;
-    for end in breaks {
+    for end in breakpoints(ell_k, ell0, opts.ell_max) {
         for (c, k) in ell_k.iter().enumerate() {
             rhs.active[c] = !rhs.frozen[c] && k.is_none_or(|l| l > start + 1e-9);
         }
-        if rhs.samples.is_empty() && rhs.record {
-            let y_s = y.clone();
-            rhs.samples.push(Sample {
-                ell: 0.0,
-                couplings: (0..rhs.channels.len())
-                    .map(|c| rhs.coupling(y_s.as_slice(), c))
-                    .collect(),
-                dimensions: (0..rhs.channels.len())
-                    .map(|c| rhs.dimension(y_s.as_slice(), c))
-                    .collect(),
-            });
-        }
+        record_start(rhs, &y);
         if end <= start {
             continue;
         }
         rhs.last_ell = start;
-        let seg = run_segment(rhs, y.clone(), start, end, opts);
-        match seg {
+        let (state, model) = match run_segment(rhs, y.clone(), start, end, opts) {
             Err(ell) => {
-                return Integrated {
-                    outcome: Outcome::Failed,
-                    winner: None,
-                    ell_star: None,
-                    ell_end: ell,
-                    state: y,
-                    message: Some(format!("integration failed at ell = {ell:.6}")),
-                }
+                let message = format!("integration failed at ell = {ell:.6}");
+                return Integrated::ended(Outcome::Failed, ell, y, Some(message));
             }
-            Ok((state, model)) => {
-                y = state;
-                match rhs.stop {
-                    Some(Stop::Strong {
-                        ell_before,
-                        ell_after,
-                    }) => return strong_result(rhs, &model, y, ell_before, ell_after),
-                    Some(Stop::Decayed { ell }) => {
-                        return Integrated {
-                            outcome: Outcome::Gapless,
-                            winner: None,
-                            ell_star: None,
-                            ell_end: ell,
-                            state: y,
-                            message: None,
-                        }
-                    }
-                    None => {}
-                }
-                if !y.iter().all(|x| x.is_finite()) {
-                    return Integrated {
-                        outcome: Outcome::Failed,
-                        winner: None,
-                        ell_star: None,
-                        ell_end: end,
-                        state: y,
-                        message: Some(format!(
-                            "non-finite values in the flow before ell = {end:.6}"
-                        )),
-                    };
-                }
+            Ok(done) => done,
+        };
+        y = state;
+        match rhs.stop {
+            Some(Stop::Strong {
+                ell_before,
+                ell_after,
+            }) => return strong_result(rhs, &model, y, ell_before, ell_after),
+            Some(Stop::Decayed { ell }) => {
+                return Integrated::ended(Outcome::Gapless, ell, y, None)
             }
+            None => {}
+        }
+        if !y.iter().all(|x| x.is_finite()) {
+            let message = format!("non-finite values in the flow before ell = {end:.6}");
+            return Integrated::ended(Outcome::Failed, end, y, Some(message));
         }
         start = end;
     }
-    Integrated {
-        outcome: Outcome::Undecided,
-        winner: None,
-        ell_star: None,
-        ell_end: opts.ell_max,
-        state: y,
-        message: None,
-    }
+    Integrated::ended(Outcome::Undecided, opts.ell_max, y, None)
 }
 
 type Dense = ContinuousOutputModel<f64, DVector<f64>>;
