@@ -849,12 +849,14 @@ impl DimsReport {
         t
     }
 
-    /// Text/Markdown/LaTeX column "Delta pinned": the value, or
-    /// "disordered".
+    /// Text/Markdown/LaTeX column "Delta pinned": "pinned" for the pinned
+    /// terms themselves, else the value, or "disordered".
     fn add_pinned_text(&self, t: &mut Table) {
         t.headers.push("Delta pinned".to_string());
+        let pinned = self.pinned.as_deref().unwrap_or_default();
         for (cells, r) in t.rows.iter_mut().zip(&self.terms) {
             cells.push(match r.dimension_pinned.flatten() {
+                _ if pinned.contains(&r.name) => "pinned".to_string(),
                 Some(d) => format!("{d:.6}"),
                 None => "disordered".to_string(),
             });
