@@ -631,6 +631,89 @@ fn notes_for(terms: &[TermRow]) -> Vec<String> {
     notes
 }
 
+impl DimsReport {
+    /// The pinned set and its phase (`--pin`).
+    fn pinned_facts(&self) -> Vec<(String, String)> {
+        let mut f: Vec<(String, String)> = self
+            .pinned
+            .iter()
+            .map(|p| ("pinned".to_string(), p.join(", ")))
+            .collect();
+        if let Some(p) = &self.phase {
+            let per = if self.infinite { " per wire" } else { "" };
+            f.push((
+                "phase".to_string(),
+                format!(
+                    "{}: {} gapped pairs, {} gapless modes{per}{}{}",
+                    p.label,
+                    p.gapped_pairs,
+                    p.gapless_modes,
+                    if p.fully_gapped { ", fully gapped" } else { "" },
+                    if p.target { ", the target phase" } else { "" }
+                ),
+            ));
+        }
+        f
+    }
+
+    /// An infinite array's quadrature rule and error estimate.
+    fn quadrature_fact(&self) -> Option<(String, String)> {
+        self.quadrature.as_ref().map(|q| {
+            (
+                "quadrature".to_string(),
+                format!(
+                    "{} points, error estimate {:.1e} (tolerance {:.0e}{})",
+                    q.points,
+                    q.error_estimate,
+                    q.tolerance,
+                    if q.converged { "" } else { ", NOT converged" }
+                ),
+            )
+        })
+    }
+
+    /// Signature, filling and det K (per wire for an infinite array, and
+    /// also per wire for a finite one).
+    fn topology_facts(&self) -> Vec<(String, String)> {
+        let per = if self.infinite { " (per wire)" } else { "" };
+        let mut f = vec![
+            (
+                format!("signature (n+, n-){per}"),
+                format!("({}, {})", self.signature[0], self.signature[1]),
+            ),
+            (format!("filling{per}"), self.filling.clone()),
+            (format!("det K{per}"), self.det_k.clone()),
+        ];
+        if let (false, Some(nu), Some(det)) =
+            (self.infinite, &self.filling_per_wire, &self.det_k_cell)
+        {
+            f.push(("filling per wire".to_string(), nu.clone()));
+            f.push(("det K (one wire)".to_string(), det.clone()));
+        }
+        f
+    }
+
+    /// Mode velocities (at q = 0 and their ranges over q for infinite arrays).
+    fn velocity_facts(&self) -> Vec<(String, String)> {
+        let vel = fmt_velocities(&self.velocities, &self.chiralities);
+        let Some(r) = &self.velocity_ranges else {
+            return vec![("velocities".to_string(), vel)];
+        };
+        let ranges: Vec<String> = r
+            .iter()
+            .zip(&self.chiralities)
+            .map(|(r, c)| {
+                let side = if *c > 0 { "right" } else { "left" };
+                format!("{side} {:.4}..{:.4}", r[0], r[1])
+            })
+            .collect();
+        vec![
+            ("velocities at q = 0".to_string(), vel),
+            ("velocity range over q".to_string(), ranges.join("; ")),
+        ]
+    }
+}
+
 impl Report for DimsReport {
     fn title(&self) -> String {
         format!("Fixed-point data: {}", self.model)
@@ -644,74 +727,17 @@ impl Report for DimsReport {
             ),
             ("fields".to_string(), self.fields.to_string()),
         ];
-        let mut pinned_fact: Vec<(String, String)> = self
-            .pinned
-            .iter()
-            .map(|p| ("pinned".to_string(), p.join(", ")))
-            .collect();
-        if let Some(p) = &self.phase {
-            let per = if self.infinite { " per wire" } else { "" };
-            pinned_fact.push((
-                "phase".to_string(),
-                format!(
-                    "{}: {} gapped pairs, {} gapless modes{per}{}{}",
-                    p.label,
-                    p.gapped_pairs,
-                    p.gapless_modes,
-                    if p.fully_gapped { ", fully gapped" } else { "" },
-                    if p.target { ", the target phase" } else { "" }
-                ),
-            ));
-        }
         if let Some(w) = self.wires {
             f.push(("wires".to_string(), w.to_string()));
         }
         if self.infinite {
             f[1].0 = "fields per wire".to_string();
             f.push(("wires".to_string(), "infinite".to_string()));
-            if let Some(q) = &self.quadrature {
-                f.push((
-                    "quadrature".to_string(),
-                    format!(
-                        "{} points, error estimate {:.1e} (tolerance {:.0e}{})",
-                        q.points,
-                        q.error_estimate,
-                        q.tolerance,
-                        if q.converged { "" } else { ", NOT converged" }
-                    ),
-                ));
-            }
+            f.extend(self.quadrature_fact());
         }
-        let per = if self.infinite { " (per wire)" } else { "" };
-        f.push((
-            format!("signature (n+, n-){per}"),
-            format!("({}, {})", self.signature[0], self.signature[1]),
-        ));
-        f.push((format!("filling{per}"), self.filling.clone()));
-        f.push((format!("det K{per}"), self.det_k.clone()));
-        if let (false, Some(nu), Some(det)) =
-            (self.infinite, &self.filling_per_wire, &self.det_k_cell)
-        {
-            f.push(("filling per wire".to_string(), nu.clone()));
-            f.push(("det K (one wire)".to_string(), det.clone()));
-        }
-        let vel = fmt_velocities(&self.velocities, &self.chiralities);
-        match &self.velocity_ranges {
-            None => f.push(("velocities".to_string(), vel)),
-            Some(r) => {
-                f.push(("velocities at q = 0".to_string(), vel));
-                let ranges: Vec<String> = r
-                    .iter()
-                    .zip(&self.chiralities)
-                    .map(|(r, c)| {
-                        let side = if *c > 0 { "right" } else { "left" };
-                        format!("{side} {:.4}..{:.4}", r[0], r[1])
-                    })
-                    .collect();
-                f.push(("velocity range over q".to_string(), ranges.join("; ")));
-            }
-        }
-        f.extend(pinned_fact);
+        f.extend(self.topology_facts());
+        f.extend(self.velocity_facts());
+        f.extend(self.pinned_facts());
         f
     }
 
