@@ -192,6 +192,25 @@ impl Lattice {
         }
     }
 
+    /// Where a ring vector supported on the wires `on` (ascending) starts
+    /// and how many wires past the start it reaches, read on the line: the
+    /// start is the support wire after the largest cyclic gap (a single
+    /// support wire has the whole ring as its gap). Unique when the ring is
+    /// wider than twice the vector, as the stand-in ring is.
+    pub fn unfolded_window(&self, on: &[usize]) -> (usize, usize) {
+        let w = self.wires;
+        let start = on
+            .iter()
+            .enumerate()
+            .max_by_key(|&(i, &s)| {
+                let prev = on[(i + on.len() - 1) % on.len()];
+                ((s + w - prev - 1) % w, std::cmp::Reverse(s))
+            })
+            .map_or(0, |(_, &s)| s);
+        let degree = on.iter().map(|&j| (j + w - start) % w).max().unwrap_or(0);
+        (start, degree)
+    }
+
     /// Place cell-level parts at an anchor wire.
     pub fn place(&self, cell_l: &[(usize, Vec<i64>)], anchor: usize) -> Translate {
         let mut l = vec![0i64; self.n];

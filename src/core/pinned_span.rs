@@ -332,15 +332,7 @@ fn unfold(lat: &Lattice, l: &[i64]) -> Vec<Vec<i64>> {
     let on: Vec<usize> = (0..w)
         .filter(|&j| l[j * c..(j + 1) * c].iter().any(|x| *x != 0))
         .collect();
-    let start = on
-        .iter()
-        .enumerate()
-        .max_by_key(|&(i, &s)| {
-            let prev = on[(i + on.len() - 1) % on.len()];
-            ((s + w - prev - 1) % w, std::cmp::Reverse(s))
-        })
-        .map_or(0, |(_, &s)| s);
-    let degree = on.iter().map(|&j| (j + w - start) % w).max().unwrap_or(0);
+    let (start, degree) = lat.unfolded_window(&on);
     let mut coeffs = vec![vec![0i64; c]; degree + 1];
     for &j in &on {
         coeffs[(j + w - start) % w] = l[j * c..(j + 1) * c].to_vec();

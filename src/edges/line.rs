@@ -149,17 +149,7 @@ pub fn polynomial(lat: &Lattice, p: &Pinned) -> Polynomial {
     let on: Vec<usize> = (0..w)
         .filter(|&j| n[j * c..(j + 1) * c].iter().any(|x| !x.is_zero()))
         .collect();
-    // The start: the support wire after the largest cyclic gap.
-    let start = on
-        .iter()
-        .enumerate()
-        .max_by_key(|&(i, &s)| {
-            let prev = on[(i + on.len() - 1) % on.len()];
-            // Gap before s (a single support wire has the whole ring).
-            ((s + w - prev - 1) % w, std::cmp::Reverse(s))
-        })
-        .map_or(0, |(_, &s)| s);
-    let degree = on.iter().map(|&j| (j + w - start) % w).max().unwrap_or(0);
+    let (start, degree) = lat.unfolded_window(&on);
     let mut coeffs = vec![vec![BigInt::zero(); c]; degree + 1];
     for &j in &on {
         coeffs[(j + w - start) % w] = n[j * c..(j + 1) * c].to_vec();
