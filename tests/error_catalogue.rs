@@ -278,7 +278,7 @@ fn cases() -> Vec<Case> {
             ],
             args: args("scan wire.toml --x lambda=0:0.5:40 --out r --resume --ell-max 10"),
             code: 2,
-            message: "error: r/.points.running.csv: --resume: the partial output was made with a different model, grid, shard or options; run without --resume to start over",
+            message: "error: r/.points.running.csv: --resume: the partial output was made with a different model, grid, shard or options; run with --overwrite instead of --resume to start over",
         },
         // ------------------------------------------------ shard sets
         Case {

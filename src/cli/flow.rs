@@ -27,7 +27,7 @@ pub struct FlowArgs {
 }
 
 pub(super) fn run(args: FlowArgs) -> Result<(), Error> {
-    check_outputs(None, args.out.as_deref())?;
+    check_outputs(&[&args.point.model], None, args.out.as_deref())?;
     let (sys, point) = load_point(&args.point)?;
     let opts = FlowOptions::resolve(&sys.model, &args.flow.overrides())?;
     let result = Flow::new(&sys, opts.clone()).run(&point)?;

@@ -13,14 +13,16 @@ use crate::error::{Error, InputError};
 use crate::model::Model;
 use crate::output;
 
-/// Summary and figures from the finished points file: one pass feeds
-/// every row to the summary's tally and the figures' canvas, which keep
-/// no rows (see [`super::figures`]). Writes `summary.json` and the figures
-/// into `dir` and returns the summary; the phase map is coloured `by`.
-pub fn finish(dir: &Path, meta: &Meta, by: ColorBy) -> Result<ScanSummary, Error> {
+/// Summary and figures from the finished points file (`points`, the staged
+/// `points.csv` that is renamed into place after this: see
+/// [`super::folder`]): one pass feeds every row to the summary's tally and
+/// the figures' canvas, which keep no rows (see [`super::figures`]). Writes
+/// `summary.json` and the figures into `dir` and returns the summary; the
+/// phase map is coloured `by`.
+pub fn finish(dir: &Path, points: &Path, meta: &Meta, by: ColorBy) -> Result<ScanSummary, Error> {
     let mut tally = Tally::new(meta);
     let mut canvas = Canvas::new(meta, by);
-    for_each_point(&dir.join("points.csv"), meta, |p| {
+    for_each_point(points, meta, |p| {
         tally.add(p);
         canvas.add(p);
     })?;
