@@ -202,7 +202,7 @@ fn the_model_file_is_never_an_output() {
             c.args(["--max-dim", "2"]);
         }
         c.arg("-o").arg(out).assert().code(2).stderr(
-            predicate::str::contains("-o").and(predicate::str::contains("is the input file")),
+            predicate::str::contains("-o").and(predicate::str::contains("is the model file")),
         );
         assert_eq!(
             std::fs::read(&model).unwrap(),

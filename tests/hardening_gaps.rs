@@ -265,3 +265,106 @@ fn completions_and_man_page_come_from_the_command_definitions() {
         assert!(man.contains(word), "man page lacks {word}");
     }
 }
+
+#[test]
+fn merge_partial_previews_an_unfinished_scan() {
+    let dir = tempfile::tempdir().unwrap();
+    let model = flow_file("spinless_wire.toml");
+    let scan = |out: &str, args: &[&str]| {
+        pinflow(dir.path())
+            .arg("scan")
+            .arg(&model)
+            .args(["--x", "lambda=-0.5:0.5:9", "--quiet", "--out", out])
+            .args(args)
+            .assert()
+            .success();
+    };
+    scan("run", &["--shard", "1/3"]);
+    scan("run", &["--shard", "2/3"]);
+    scan("whole", &[]);
+    let whole = std::fs::read_to_string(dir.path().join("whole/points.csv")).unwrap();
+    let whole: Vec<&str> = whole.lines().collect();
+    // Shard 3 "running": its file with one finished row and half a row.
+    let shard2 = std::fs::read_to_string(dir.path().join("run/shard-2-of-3.csv")).unwrap();
+    let meta = shard2.lines().next().unwrap().replace("[2,3]", "[3,3]");
+    let running = format!("{meta}\n{}\n{}\n{}", whole[0], whole[3], &whole[6][..5]);
+    std::fs::write(dir.path().join("run/.shard-3-of-3.running.csv"), running).unwrap();
+    let out = pinflow(dir.path())
+        .args([
+            "merge",
+            "--partial",
+            "run/shard-1-of-3.csv",
+            "--format",
+            "json",
+        ])
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let counts: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(counts["points"], 9);
+    // Points 0..9: shards 1 and 2 complete (3 + 3), shard 3 one row.
+    assert_eq!(counts["finished"], 7);
+    assert_eq!(counts["shards"][2]["finished"], 1);
+    let preview = std::fs::read_to_string(dir.path().join("run/preview/points.csv")).unwrap();
+    let want: Vec<&str> = (0..=8)
+        .filter(|i| *i != 5 && *i != 8)
+        .map(|i| whole[i + 1])
+        .collect();
+    assert_eq!(preview.lines().next(), Some(whole[0]));
+    assert_eq!(preview.lines().skip(1).collect::<Vec<_>>(), want);
+    assert!(
+        !dir.path().join("run/points.csv").exists(),
+        "the scan folder is untouched"
+    );
+    // A second preview replaces the first without --overwrite.
+    pinflow(dir.path())
+        .args(["merge", "--partial", "run/shard-1-of-3.csv"])
+        .assert()
+        .success()
+        .stdout(predicate::str::contains("preview: 7 of 9 points finished"));
+}
+
+#[test]
+fn progress_lines_off_a_terminal() {
+    // A scan of about ten chunks of 64 points on one thread (about 2 s of
+    // work on a quiet machine), run with --progress-every 1 and stderr
+    // piped: when it took over 3 s, a chunk ended over 1 s after the start
+    // before the last one, so a plain progress line appeared; with --quiet
+    // none.
+    let dir = tempfile::tempdir().unwrap();
+    let model = flow_file("laughlin_third_strip.toml");
+    let run = |quiet: bool, out: &str| {
+        let start = Instant::now();
+        let mut cmd = pinflow(dir.path());
+        cmd.arg("scan")
+            .arg(&model)
+            .args(["--x", "lambda=0.3:0.95:27", "--y", "g=0:0.95:24"])
+            .args(["--threads", "1", "--progress-every", "1", "--out", out]);
+        if quiet {
+            cmd.arg("--quiet");
+        }
+        let o = cmd.output().unwrap();
+        assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+        (
+            String::from_utf8_lossy(&o.stderr).to_string(),
+            start.elapsed(),
+        )
+    };
+    let (text, took) = run(false, "a");
+    let lines = text.lines().filter(|l| l.starts_with("progress: ")).count();
+    if took > Duration::from_secs(3) {
+        assert!(lines >= 1, "{took:?}: {text}");
+    }
+    for l in text.lines().filter(|l| l.starts_with("progress: ")) {
+        assert!(
+            l.contains(" points (") && l.contains("points/s, about "),
+            "{l}"
+        );
+    }
+    let (quiet, _) = run(true, "b");
+    assert!(!quiet.contains("progress: "), "{quiet}");
+}

@@ -326,10 +326,12 @@ pub(super) fn run_merge(args: MergeArgs) -> Result<(), Error> {
     // A preview replaces an earlier preview without asking.
     let replaceable = args.overwrite || (args.partial && dir.join(preview::MARK).exists());
     let found = folder::present(&dir, &folder::OUTPUTS);
-    if let Err(e) = replaceable
-        .then_some(Ok(()))
-        .unwrap_or_else(|| folder::refuse_existing(&dir, &found, ""))
-    {
+    let checked = if replaceable {
+        Ok(())
+    } else {
+        folder::refuse_existing(&dir, &found, "")
+    };
+    if let Err(e) = checked {
         drop(lock);
         if created {
             let _ = std::fs::remove_file(dir.join(folder::LOCK));

@@ -224,14 +224,19 @@ impl System {
         }
         let at = self.model.params.describe(point);
         let why = self.inaccuracy_cause(v, cond);
+        let remedy = if why.starts_with("K ") {
+            "choose a K with smaller entries"
+        } else {
+            "rescale V or choose another point"
+        };
         let file = &self.model.file;
         Err(Error::Numerical(if drift.is_finite() {
             format!(
-                "{file}: the fixed point at {at} cannot be computed accurately: {why}, and the computed D satisfies D K D = K^-1 only to {drift:.1e} (relative; {ACCURACY:.0e} is needed); rescale V or choose another point"
+                "{file}: the fixed point at {at} cannot be computed accurately: {why}, and the computed D satisfies D K D = K^-1 only to {drift:.1e} (relative; {ACCURACY:.0e} is needed); {remedy}"
             )
         } else {
             format!(
-                "{file}: the fixed point at {at} cannot be computed: {why}, and D has non-finite entries; rescale V or choose another point"
+                "{file}: the fixed point at {at} cannot be computed: {why}, and D has non-finite entries; {remedy}"
             )
         }))
     }
@@ -246,17 +251,17 @@ impl System {
         let kmax = self.k.amax();
         match (vmax, cond) {
             (Some(m), _) if subnormal || m < V_RANGE.recip() => format!(
-                "V's entries are tiny (largest |V_ij| = {m:.1e}{}): rescale V (dimensions do not depend on its overall scale)",
+                "V's entries are tiny (largest |V_ij| = {m:.1e}{}); dimensions do not depend on the overall scale of V",
                 if subnormal { ", some subnormal" } else { "" }
             ),
             (Some(m), _) if m > V_RANGE => format!(
-                "V's entries are huge (largest |V_ij| = {m:.1e}): rescale V (dimensions do not depend on its overall scale)"
+                "V's entries are huge (largest |V_ij| = {m:.1e}); dimensions do not depend on the overall scale of V"
             ),
             (_, Some(c)) if c > V_CONDITION => {
                 format!("V is badly conditioned there (condition number {c:.1e})")
             }
             _ if kmax >= K_LARGE => format!(
-                "K has large entries (largest |K_ij| = {kmax:.0}), which D K D = K^-1 cannot resolve in double precision"
+                "K has large entries (largest |K_ij| = {kmax:.0}; V is not the cause), which D K D = K^-1 cannot resolve in double precision"
             ),
             (_, Some(c)) => format!("V is well conditioned there (condition number {c:.1e}), but the fixed point equation lost precision"),
             (_, None) => "V(q) is badly conditioned there".to_string(),

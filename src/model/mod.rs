@@ -621,19 +621,7 @@ fn read_array(ctx: &Ctx, a: RawArray, params: ParamSet) -> Result<Model, InputEr
         "one per field of the wire cell",
     )?;
     let v_blocks = read_blocks(ctx, &a.v, &params, n)?;
-    let vec_opt = |v: &Option<toml::Value>, key: &str| {
-        v.as_ref()
-            .map(|m| values::scalar_vector(ctx, m, key, &params, n))
-            .transpose()
-    };
-    let momentum = vec_opt(&a.momentum, "array.momentum")?;
-    let momentum_per_wire = vec_opt(&a.momentum_per_wire, "array.momentum_per_wire")?;
-    if momentum_per_wire.is_some() && momentum.is_none() {
-        return Err(ctx.err(
-            "array.momentum_per_wire",
-            "needs array.momentum (the momenta of wire 0) too",
-        ));
-    }
+    let (momentum, momentum_per_wire) = read_array_momenta(ctx, &a, &params, n)?;
     let momentum_period = read_period(
         ctx,
         &a.momentum_period,
@@ -667,6 +655,30 @@ fn read_array(ctx: &Ctx, a: RawArray, params: ParamSet) -> Result<Model, InputEr
         flow_table: None,
         scan_table: None,
     })
+}
+
+/// `array.momentum` and `array.momentum_per_wire` (which needs the first).
+#[allow(clippy::type_complexity)]
+fn read_array_momenta(
+    ctx: &Ctx,
+    a: &RawArray,
+    params: &ParamSet,
+    n: usize,
+) -> Result<(Option<Vec<Scalar>>, Option<Vec<Scalar>>), InputError> {
+    let vec_opt = |v: &Option<toml::Value>, key: &str| {
+        v.as_ref()
+            .map(|m| values::scalar_vector(ctx, m, key, params, n))
+            .transpose()
+    };
+    let momentum = vec_opt(&a.momentum, "array.momentum")?;
+    let momentum_per_wire = vec_opt(&a.momentum_per_wire, "array.momentum_per_wire")?;
+    if momentum_per_wire.is_some() && momentum.is_none() {
+        return Err(ctx.err(
+            "array.momentum_per_wire",
+            "needs array.momentum (the momenta of wire 0) too",
+        ));
+    }
+    Ok((momentum, momentum_per_wire))
 }
 
 /// `array.boundary`: periodic (the default) or open; an infinite array
@@ -924,6 +936,33 @@ fn check_k_times(ctx: &Ctx, k: &[Vec<i64>], m: &[i64], key: &str) -> Result<(), 
     Ok(())
 }
 
+/// A term's widest wire offset fits the array (and the stand-in ring of
+/// an infinite one).
+fn check_term_range(
+    ctx: &Ctx,
+    model: &Model,
+    parts: &[(usize, Vec<i64>)],
+    vkey: &str,
+) -> Result<(), InputError> {
+    let range = parts.iter().map(|p| p.0).max().unwrap_or(0);
+    if model.is_infinite() {
+        check_infinite_range(ctx, range, vkey)?;
+    }
+    if let Structure::Array {
+        wires: Wires::Finite(w),
+        ..
+    } = model.structure
+    {
+        if w <= range {
+            return Err(ctx.err(
+                vkey,
+                format!("the term reaches wire offset {range}, which does not fit an array of {w} wires"),
+            ));
+        }
+    }
+    Ok(())
+}
+
 /// Term names become CSV column names and cells (`points.csv`, shard
 /// files, `--format csv`), read back line by line: they may not hold a
 /// comma, a double quote, a control character (newline, tab) or
@@ -975,22 +1014,7 @@ fn read_term(ctx: &Ctx, model: &Model, t: &RawTerm, key: &str) -> Result<TermSpe
         Structure::Array { .. } => values::offset_vectors(ctx, value, &vkey, n)?,
     };
     check_parts(ctx, model, content, &parts, &vkey, value.is_table())?;
-    let range = parts.iter().map(|p| p.0).max().unwrap_or(0);
-    if model.is_infinite() {
-        check_infinite_range(ctx, range, &vkey)?;
-    }
-    if let Structure::Array {
-        wires: Wires::Finite(w),
-        ..
-    } = model.structure
-    {
-        if w <= range {
-            return Err(ctx.err(
-                &vkey,
-                format!("the term reaches wire offset {range}, which does not fit an array of {w} wires"),
-            ));
-        }
-    }
+    check_term_range(ctx, model, &parts, &vkey)?;
     let scalar =
         |v: &Option<toml::Value>, name: &str, default: f64| -> Result<Scalar, InputError> {
             match v {

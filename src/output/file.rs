@@ -95,7 +95,7 @@ pub fn check_not_input(path: &Path, inputs: &[&Path], flag: &str) -> Result<(), 
                 "command line",
                 flag,
                 format!(
-                    "`{}` is the input file `{}`; writing there would destroy it: give another output file",
+                    "`{}` is the model file `{}`; writing there would destroy it: give another output file",
                     path.display(),
                     input.display()
                 ),

@@ -305,7 +305,7 @@ fn verify_rows(
         InputError::new(
             path.display().to_string(),
             "--resume",
-            format!("line {line} of the partial output {why}; it does not belong to this scan: run without --resume (and with --overwrite) to start over"),
+            format!("line {line} of the partial output {why}; it does not belong to this scan: run with --overwrite instead of --resume to start over"),
         )
         .into()
     };
