@@ -355,3 +355,85 @@ fn a_failed_merge_leaves_the_folder_as_it_was() {
     assert!(new.iter().all(|n| *n == ".pinflow.lock"), "{new:?}");
     assert!(!out.join("points.csv").exists());
 }
+
+#[test]
+fn a_killed_merge_never_leaves_points_without_their_summary_and_figures() {
+    // Merges killed after 0 to 400 ms: whenever `points.csv` exists, the
+    // summary and figures beside it are those of the finished merge
+    // (points.csv is published last). The next merge removes what the
+    // killed ones left.
+    let dir = tempfile::tempdir().unwrap();
+    let run = dir.path().join("run");
+    let shard = |k: usize| {
+        pinflow(dir.path())
+            .arg("scan")
+            .arg(flow_file("spinless_wire.toml"))
+            .args([
+                "--x",
+                "lambda=-0.6:0.9:40",
+                "--y",
+                "delta=0:0.3:30",
+                "--quiet",
+            ])
+            .args(["--shard", &format!("{k}/2"), "--out"])
+            .arg(&run)
+            .assert()
+            .success();
+    };
+    shard(1);
+    shard(2);
+    let shards = [run.join("shard-1-of-2.csv"), run.join("shard-2-of-2.csv")];
+    let reference = dir.path().join("reference");
+    pinflow(dir.path())
+        .arg("merge")
+        .args(&shards)
+        .arg("--out")
+        .arg(&reference)
+        .assert()
+        .success();
+    let outputs = [
+        "points.csv",
+        "summary.json",
+        "phase.png",
+        "phase.svg",
+        "ell_star.png",
+        "ell_star.svg",
+    ];
+    let want: Vec<Vec<u8>> = outputs
+        .iter()
+        .map(|n| std::fs::read(reference.join(n)).unwrap())
+        .collect();
+    for delay in [0u64, 10, 25, 50, 75, 100, 150, 200, 300, 400] {
+        let mut child = std::process::Command::new(BIN)
+            .arg("merge")
+            .args(&shards)
+            .arg("--overwrite")
+            .current_dir(dir.path())
+            .stdout(std::process::Stdio::null())
+            .stderr(std::process::Stdio::null())
+            .spawn()
+            .unwrap();
+        std::thread::sleep(Duration::from_millis(delay));
+        let _ = child.kill();
+        let _ = child.wait();
+        if run.join("points.csv").exists() {
+            for (name, bytes) in outputs.iter().zip(&want) {
+                let got = std::fs::read(run.join(name)).unwrap_or_default();
+                assert!(got == *bytes, "killed after {delay} ms: {name} differs");
+            }
+        }
+    }
+    pinflow(dir.path())
+        .arg("merge")
+        .args(&shards)
+        .arg("--overwrite")
+        .assert()
+        .success();
+    let names: Vec<String> = listing(&run).into_keys().collect();
+    assert!(
+        !names
+            .iter()
+            .any(|n| n.contains(".tmp.") || n.ends_with(".partial")),
+        "{names:?}"
+    );
+}
