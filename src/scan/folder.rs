@@ -137,19 +137,6 @@ pub fn present(dir: &Path, names: &[&str]) -> Vec<String> {
         .collect()
 }
 
-/// Shard files (`shard-K-of-N.csv`) in `dir`, sorted.
-pub fn shard_files(dir: &Path) -> Vec<String> {
-    let mut found: Vec<String> = fs::read_dir(dir)
-        .into_iter()
-        .flatten()
-        .flatten()
-        .map(|e| e.file_name().to_string_lossy().to_string())
-        .filter(|n| n.starts_with("shard-") && n.ends_with(".csv"))
-        .collect();
-    found.sort();
-    found
-}
-
 /// Refuse a folder holding `found` (another scan's files) unless
 /// `--overwrite` was given; `hint` says what else the user can do.
 pub fn refuse_existing(dir: &Path, found: &[String], hint: &str) -> Result<(), Error> {
