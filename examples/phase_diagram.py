@@ -28,7 +28,8 @@ print(s.summary["outcomes"], s.summary["winners"])
 # %% Phases: one colour per phase label of the final pinned set, most
 # points first (the summary's order); unphysical points stay white.
 (xname, xs), (yname, ys) = s.axes
-labels = [p["phase"] for p in s.summary["phases"] if p["phase"]]
+phases = [p for p in s.summary["phases"] if p["label"]]
+labels = [p["label"] for p in phases]
 code = {label: i for i, label in enumerate(labels)}
 phase = s.grid("phase")
 index = np.full(phase.shape, np.nan)
@@ -49,8 +50,11 @@ ax.imshow(
     vmax=len(colours) - 0.5,
     interpolation="nearest",
 )
-for i, label in enumerate(labels):
-    ax.fill_between([], [], color=colours[i], label=label)
+for i, p in enumerate(phases):
+    note = " (target phase)" if p["target"] else ""
+    ax.fill_between([], [], color=colours[i], label=p["label"] + note)
+if s.summary["outcomes"].get("unphysical"):
+    ax.fill_between([], [], facecolor="white", edgecolor="0.3", label="unphysical (V not positive definite)")
 
 # %% Tree-level lines: where each listed term's bare dimension is 2.
 X, Y = np.meshgrid(xs, ys)

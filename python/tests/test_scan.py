@@ -14,6 +14,7 @@ from conftest import REPO, cli
 
 LAUGHLIN = REPO / "flows" / "laughlin_third.toml"
 SLIDING = REPO / "flows" / "sliding_array.toml"
+HALPERIN = REPO / "flows" / "halperin_331_strip.toml"
 
 
 def cli_scan(tmp_path, path, *flags):
@@ -35,14 +36,24 @@ def test_plane_equals_the_command_byte_for_byte(tmp_path):
 
 
 def test_default_axes_fixed_parameters_and_options(tmp_path):
-    """The model's [scan] table gives the axes; fixed parameters and flow
-    options are keyword arguments, as --set and flags are for the command.
-    A temporary directory is used and removed when out is not given."""
-    m = pinflow.Model.load(SLIDING)
-    s = m.scan(w2=0.02, ell_max=20.0, threads=1)
+    """The model's [scan] table gives the axes (here 10 x 6 points); fixed
+    parameters and flow options are keyword arguments, as --set and flags
+    are for the command. Without out, a temporary directory is used and
+    removed."""
+    m = pinflow.Model.load(HALPERIN)
+    s = m.scan(db=0.001, ell_max=30.0, threads=1)
     assert s.dir is None
-    ref = cli_scan(tmp_path, SLIDING, "--set", "w2=0.02", "--ell-max", "20")
+    assert s.summary["axes"] == ["g=-0.9:0:10", "s=0:1:6"]
+    ref = cli_scan(tmp_path, HALPERIN, "--set", "db=0.001", "--ell-max", "30")
     assert s.csv.encode() == (ref / "points.csv").read_bytes()
+
+
+def test_infinite_array_with_its_quadrature_columns(tmp_path):
+    m = pinflow.Model.load(SLIDING)
+    s = m.scan(x=("lambda", -0.2, 0.6, 3), y=("w", 0.05, 0.2, 2), w2=0.02)
+    ref = cli_scan(tmp_path, SLIDING, "--x", "lambda=-0.2:0.6:3", "--y", "w=0.05:0.2:2", "--set", "w2=0.02")
+    assert s.csv.encode() == (ref / "points.csv").read_bytes()
+    assert "q_points" in s.points.columns
 
 
 def test_threads_do_not_change_the_result():
