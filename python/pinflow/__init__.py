@@ -239,8 +239,18 @@ class Model:
         """The names of the model's terms."""
         return self._m.terms()
 
+    @property
+    def source(self) -> str:
+        """The model's TOML text, as read."""
+        return self._m.source
+
     def __repr__(self) -> str:
         return f"<pinflow.Model {self.name!r} from {self.file!r}>"
+
+    def __reduce__(self) -> Tuple[Any, Tuple[str, str]]:
+        # Pickled as its text and file name, so that a process pool can
+        # take a Model (rebuilt by from_toml: the same model and bytes).
+        return (Model.from_toml, (self.source, self.file))
 
     def _split(self, point: Optional[Mapping[str, float]], kwargs: Dict[str, Any], options: bool) -> Tuple[Dict[str, float], Dict[str, Any]]:
         """Parameters and flow options out of the keyword arguments."""

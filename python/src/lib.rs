@@ -92,6 +92,13 @@ impl Model {
         self.sys.model.file.clone()
     }
 
+    /// The model's TOML text, as read (`Model.from_toml(source, file)`
+    /// rebuilds the same model: how a Model travels to a process pool).
+    #[getter]
+    fn source(&self) -> String {
+        String::from_utf8_lossy(&self.bytes).into_owned()
+    }
+
     /// Parameter names and default values, in the library's order.
     fn params(&self) -> Vec<(String, f64)> {
         let p = &self.sys.model.params;

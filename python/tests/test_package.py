@@ -5,7 +5,8 @@ and points evaluated in parallel Python threads."""
 import os
 import subprocess
 import sys
-from concurrent.futures import ThreadPoolExecutor
+import pickle
+from concurrent.futures import ProcessPoolExecutor, ThreadPoolExecutor
 from pathlib import Path
 
 import pinflow
@@ -74,3 +75,18 @@ def test_points_in_parallel_threads_equal_serial():
     with ThreadPoolExecutor(max_workers=2) as pool:
         parallel = [r.report for r in pool.map(lambda p: m.flow(p), points)]
     assert parallel == serial
+
+
+def flow_report(args):
+    m, point = args
+    return m.flow(point).report
+
+
+def test_a_model_travels_to_a_process_pool():
+    m = pinflow.Model.load(LAUGHLIN)
+    copy = pickle.loads(pickle.dumps(m))
+    assert (copy.name, copy.file, copy.source) == (m.name, m.file, LAUGHLIN.read_text())
+    points = [{"lambda": 0.55, "g": 0.7}, {"lambda": 0.75, "g": 0.85}]
+    serial = [m.flow(p).report for p in points]
+    with ProcessPoolExecutor(max_workers=2) as pool:
+        assert list(pool.map(flow_report, [(m, p) for p in points])) == serial
