@@ -1,16 +1,17 @@
 """The installed package: the `pinflow` command that pip puts beside the
 interpreter runs the real command line, the model's metadata, docstrings,
-and points evaluated in parallel Python threads."""
+and points evaluated in parallel threads and processes."""
 
+import multiprocessing
 import os
+import pickle
 import subprocess
 import sys
-import pickle
 from concurrent.futures import ProcessPoolExecutor, ThreadPoolExecutor
 from pathlib import Path
 
 import pinflow
-from conftest import REPO, cli
+from conftest import REPO, cli, cli_binary
 
 LAUGHLIN = REPO / "flows" / "laughlin_third.toml"
 
@@ -27,7 +28,7 @@ def test_console_script_is_the_command_line():
     args = ["dims", str(LAUGHLIN), "--set", "g=0.7", "--format", "json"]
     py = subprocess.run([str(console_script()), *args], capture_output=True)
     assert py.returncode == 0, py.stderr
-    assert py.stdout == subprocess.run([str(cli.__globals__["cli_binary"]()), *args], capture_output=True).stdout
+    assert py.stdout == subprocess.run([str(cli_binary()), *args], capture_output=True).stdout
 
 
 def test_console_script_exit_codes_and_help():
@@ -88,5 +89,8 @@ def test_a_model_travels_to_a_process_pool():
     assert (copy.name, copy.file, copy.source) == (m.name, m.file, LAUGHLIN.read_text())
     points = [{"lambda": 0.55, "g": 0.7}, {"lambda": 0.75, "g": 0.85}]
     serial = [m.flow(p).report for p in points]
-    with ProcessPoolExecutor(max_workers=2) as pool:
+    # spawn, not fork: a forked child would inherit the parent's worker
+    # threads' locks but not the threads
+    spawn = multiprocessing.get_context("spawn")
+    with ProcessPoolExecutor(max_workers=2, mp_context=spawn) as pool:
         assert list(pool.map(flow_report, [(m, p) for p in points])) == serial
