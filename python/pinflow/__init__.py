@@ -269,15 +269,18 @@ class Model:
             values[name] = value
         return values, flow
 
-    def dims(self, point: Optional[Mapping[str, float]] = None, *, pin: Sequence[str] = (), **params: float) -> pd.DataFrame:
+    def dims(self, point: Optional[Mapping[str, float]] = None, *, pin: Sequence[str] = (), wires: Optional[Sequence[Union[int, str]]] = None, **params: float) -> pd.DataFrame:
         """Exact and fixed-point data of every term at one point
         (``pinflow dims``): a DataFrame with the columns of
         ``pinflow dims --format csv``. ``pin``: terms to pin; every term
-        then also gets its dimension in the residual theory. The full JSON
-        report is in ``df.attrs["report"]``, the text in ``df.attrs["text"]``.
+        then also gets its dimension in the residual theory. ``wires``
+        (arrays): every term's dimension against array size instead, e.g.
+        ``[4, 8, 16, "infinite"]`` (``pinflow dims --wires``). The full
+        JSON report is in ``df.attrs["report"]``, the text in
+        ``df.attrs["text"]``.
         """
         values, _ = self._split(point, params, options=False)
-        j, c, t = self._m.dims(values, list(pin))
+        j, c, t = self._m.dims(values, list(pin), None if wires is None else list(wires))
         df = _frame(c)
         df.attrs["report"] = json.loads(j)
         df.attrs["text"] = t

@@ -5,6 +5,7 @@
 //! as for the command line. Every error names the keyword argument.
 
 use pinflow::flow::options::{Closure, FlowOverrides};
+use pinflow::model::Wires;
 use pinflow::scan::figures::ColorBy;
 use pinflow::search::{ChargeFilter, MomentumFilter, SpinFilter};
 use pyo3::prelude::*;
@@ -111,6 +112,26 @@ pub fn color_by(word: &str) -> PyResult<ColorBy> {
         "winner" => Ok(ColorBy::Winner),
         _ => Err(input("color_by", "expected \"phase\" or \"winner\"")),
     }
+}
+
+/// `wires`: array sizes, each a whole number >= 1 or "infinite".
+pub fn wire_counts(w: Option<Vec<Bound<'_, PyAny>>>) -> PyResult<Option<Vec<Wires>>> {
+    let Some(w) = w else { return Ok(None) };
+    let bad = || {
+        input(
+            "wires",
+            "expected whole numbers of wires (>= 1) or \"infinite\"",
+        )
+    };
+    let one = |v: &Bound<'_, PyAny>| match v.extract::<i64>() {
+        Ok(n) if n >= 1 && !v.is_instance_of::<pyo3::types::PyBool>() => {
+            Ok(Wires::Finite(n as usize))
+        }
+        Ok(_) => Err(bad()),
+        Err(_) if v.extract::<String>().is_ok_and(|s| s == "infinite") => Ok(Wires::Infinite),
+        Err(_) => Err(bad()),
+    };
+    w.iter().map(one).collect::<PyResult<Vec<_>>>().map(Some)
 }
 
 /// A number given as keyword argument `key`.

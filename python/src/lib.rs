@@ -18,10 +18,11 @@ mod errors;
 use std::path::PathBuf;
 
 use pinflow::core::system::System;
+use pinflow::dims::convergence::ConvergenceReport;
 use pinflow::dims::{DimsOptions, DimsReport};
 use pinflow::edges::pins::{self, Selection};
 use pinflow::edges::{analyse, report::EdgesReport};
-use pinflow::error::Error;
+use pinflow::error::{Error, InputError};
 use pinflow::flow::report::FlowReport;
 use pinflow::flow::{Flow, FlowOptions, Outcome};
 use pinflow::output::{self, Format, Report};
@@ -33,7 +34,7 @@ use pyo3::types::PyDict;
 use serde::Serialize;
 
 use args::{flow_overrides, hunt_filters, point_overrides};
-use errors::{to_py, InputError, RunError};
+use errors::{to_py, RunError};
 
 /// A validated model made ready for evaluation (the library's `System`),
 /// with the bytes of its file (a scan's fingerprint hashes them).
@@ -119,17 +120,33 @@ impl Model {
             .collect()
     }
 
-    /// `pinflow dims`: (json, csv, text).
-    #[pyo3(signature = (point, pin))]
+    /// `pinflow dims`: (json, csv, text); with `wires`, the convergence
+    /// report of `--wires` instead.
+    #[pyo3(signature = (point, pin, wires = None))]
     fn dims(
         &self,
         py: Python<'_>,
         point: &Bound<'_, PyDict>,
         pin: Vec<String>,
+        wires: Option<Vec<Bound<'_, PyAny>>>,
     ) -> PyResult<(String, String, String)> {
         let set = point_overrides(point)?;
+        let sizes = args::wire_counts(wires)?;
         self.run(py, |sys| {
             let point = sys.model.point_with(&set, "point")?;
+            if let Some(sizes) = &sizes {
+                if !pin.is_empty() {
+                    return Err(InputError::new(
+                        "command line",
+                        "--pin",
+                        "cannot be combined with wires",
+                    )
+                    .into());
+                }
+                return renderings(&ConvergenceReport::build(
+                    &sys.model, &point, sizes, "wires",
+                )?);
+            }
             let opts = DimsOptions {
                 pins: pin,
                 ..Default::default()
@@ -321,7 +338,7 @@ fn _native(m: &Bound<'_, PyModule>) -> PyResult<()> {
     let py = m.py();
     m.add_class::<Model>()?;
     m.add_function(wrap_pyfunction!(run_cli, m)?)?;
-    m.add("InputError", py.get_type::<InputError>())?;
+    m.add("InputError", py.get_type::<errors::InputError>())?;
     m.add("RunError", py.get_type::<RunError>())?;
     m.add("__version__", env!("CARGO_PKG_VERSION"))?;
     m.add("FLOW_OPTIONS", args::FLOW_OPTIONS.to_vec())?;

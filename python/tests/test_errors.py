@@ -110,6 +110,10 @@ def test_hunt_and_edges_errors_name_the_keyword():
             m.hunt(**kwargs)
         assert e.value.key == key, kwargs
         no_flags(str(e.value))
+    for wires in (["four"], [0]):
+        with pytest.raises(pinflow.InputError) as e:
+            m.dims(wires=wires)
+        assert e.value.key == "wires"
     with pytest.raises(pinflow.InputError) as e:
         m.edges(pin=["nothing"])
     assert e.value.key == "pin"

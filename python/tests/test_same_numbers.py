@@ -96,6 +96,15 @@ def test_dims_with_pins():
     pd.testing.assert_frame_equal(df, pinflow._frame(cli_csv("dims", path, "--pin", "tunnel")), check_exact=True)
 
 
+def test_dims_against_array_size():
+    path = pinflow_flows("laughlin_third")
+    m = pinflow.Model.load(path)
+    df = m.dims(wires=[4, 8, "infinite"], g=0.6)
+    flags = ["--wires", "4,8,infinite", "--set", "g=0.6"]
+    assert df.attrs["report"] == cli_json("dims", path, *flags)
+    pd.testing.assert_frame_equal(df, pinflow._frame(cli_csv("dims", path, *flags)), check_exact=True)
+
+
 @pytest.mark.parametrize("moved", [False, True], ids=["defaults", "moved"])
 def test_flow(model_path, moved, tmp_path):
     m = pinflow.Model.load(model_path)
