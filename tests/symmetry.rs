@@ -124,6 +124,13 @@ fn spin_flip_makes_g1_backscattering_one_orbit_of_size_one() {
     assert_eq!(orbit.size, 1);
     assert!(orbit.members[0].self_conjugate);
     assert_eq!(orbit.members[0].phase, "0");
+    // Derived: in the spin sector phi_s = (phi_up - phi_down)/sqrt2 the
+    // velocity matrix is [[1 - c, a - b], [a - b, 1 - c]], so
+    // K_s = sqrt((1 - c - (a - b)) / (1 - c + (a - b))) and g1 = cos(sqrt8
+    // phi_s) has Delta = 2 K_s (Giamarchi 2004, ch. 7).
+    let (a, b, c) = (0.2f64, 0.1, 0.15);
+    let k_s = ((1.0 - c - (a - b)) / (1.0 - c + (a - b))).sqrt();
+    common::assert_close("Delta(g1)", g1[0].dimension, 2.0 * k_s, 1e-9);
     // Every listed operator is in exactly one orbit.
     let total: usize = rep.orbits.iter().map(|o| o.size).sum();
     assert_eq!(total, rep.operators.len());

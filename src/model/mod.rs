@@ -1038,12 +1038,14 @@ fn read_competitors(
             "coupling" => out.coupling = Some(values::number(ctx, v, &key)?),
             "range" => match v {
                 toml::Value::Integer(r) if *r >= 1 => out.range = Some(*r as usize),
-                other => return Err(ctx.err(
-                    &key,
-                    format!(
+                other => {
+                    return Err(ctx.err(
+                        &key,
+                        format!(
                         "expected a number of consecutive wires (an integer >= 1), found {other}"
                     ),
-                )),
+                    ))
+                }
             },
             _ => return Err(ctx.err(&key, "unknown key; expected `delta`, `coupling` or `range`")),
         }
