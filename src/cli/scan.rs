@@ -31,6 +31,8 @@ pub struct ScanArgs {
     pub y: Option<String>,
     #[command(flatten)]
     pub flow: FlowFlags,
+    #[command(flatten)]
+    pub competitors: super::flow::CompetitorFlags,
     /// Output directory [default: out/<model file stem>].
     #[arg(long, value_name = "DIR")]
     pub out: Option<PathBuf>,
@@ -122,6 +124,7 @@ pub(super) fn run_scan(args: ScanArgs) -> Result<(), Error> {
         base,
         options,
         shard: args.shard,
+        competitors: args.competitors.resolve(&sys)?,
     };
     let bytes = std::fs::read(&args.point.model).map_err(|e| Error::io(&args.point.model, e))?;
     let scan = Scan::new(&sys, &bytes, spec)?;
