@@ -16,7 +16,7 @@ use crate::output::{self, Format};
 use crate::scan::figures::ColorBy;
 use crate::scan::folder::{self, FolderLock};
 use crate::scan::preview;
-use crate::scan::run::{check_size, finish, resolve_axes};
+use crate::scan::run::{check_size, publish, publish_staged, resolve_axes};
 use crate::scan::store::{self, Meta, RowFile};
 use crate::scan::summary::ScanSummary;
 use crate::scan::{partial_path, shard_path, Scan, ScanSpec};
@@ -35,6 +35,8 @@ pub struct ScanArgs {
     pub y: Option<String>,
     #[command(flatten)]
     pub flow: FlowFlags,
+    #[command(flatten)]
+    pub competitors: super::flow::CompetitorFlags,
     /// Output directory [default: out/<model file stem>].
     #[arg(long, value_name = "DIR")]
     pub out: Option<PathBuf>,
@@ -174,6 +176,7 @@ pub(super) fn run_scan(args: ScanArgs) -> Result<(), Error> {
         base,
         options,
         shard,
+        competitors: args.competitors.resolve(&sys)?,
     };
     let scan = Scan::new(&sys, text.as_bytes(), spec)?;
     check_size(scan.points(), args.force)?;
@@ -211,15 +214,8 @@ pub(super) fn run_scan(args: ScanArgs) -> Result<(), Error> {
             Ok(())
         }
         None => {
-            let staged = store::stage_points(&partial, &scan.meta, &dir.join("points.csv"))?;
-            publish(
-                &dir,
-                &staged,
-                &scan.meta,
-                args.format.into(),
-                args.color_by.into(),
-            )?;
-            std::fs::remove_file(&partial).map_err(|e| Error::io(&partial, e))
+            let summary = publish(&dir, &partial, &scan.meta, args.color_by.into())?;
+            print_summary(&dir, &summary, args.format.into())
         }
     }
 }
@@ -343,13 +339,8 @@ pub(super) fn run_merge(args: MergeArgs) -> Result<(), Error> {
         return write_preview(&dir, &args);
     }
     let (meta, staged) = store::merge(&args.shards, &dir.join("points.csv"))?;
-    publish(
-        &dir,
-        &staged,
-        &meta,
-        args.format.into(),
-        args.color_by.into(),
-    )
+    let summary = publish_staged(&dir, &staged, &meta, args.color_by.into())?;
+    print_summary(&dir, &summary, args.format.into())
 }
 
 /// `merge --partial`: the preview's rows and counts, then the counts on
@@ -385,31 +376,9 @@ fn write_preview(dir: &Path, args: &MergeArgs) -> Result<(), Error> {
     )
 }
 
-/// Write the summary and figures from the staged points, then move the
-/// points into place (last: a `points.csv` marks a finished scan), remove
-/// the outputs of an earlier scan that this one did not write, and print
-/// the summary.
-fn publish(
-    dir: &Path,
-    staged: &Path,
-    meta: &Meta,
-    format: Format,
-    by: ColorBy,
-) -> Result<(), Error> {
-    let target = dir.join("points.csv");
-    let done = (|| -> Result<ScanSummary, Error> {
-        if target.exists() {
-            std::fs::remove_file(&target).map_err(|e| Error::io(&target, e))?;
-        }
-        let summary = finish(dir, staged, meta, by)?;
-        std::fs::rename(staged, &target).map_err(|e| Error::io(&target, e))?;
-        folder::remove_stale(dir, &summary.files)?;
-        Ok(summary)
-    })();
-    let summary = done.inspect_err(|_| {
-        let _ = std::fs::remove_file(staged);
-    })?;
-    let mut text = output::render(&summary, format)?;
+/// Print the summary (whose files are written).
+fn print_summary(dir: &Path, summary: &ScanSummary, format: Format) -> Result<(), Error> {
+    let mut text = output::render(summary, format)?;
     if format == Format::Text {
         text.push_str(&format!("\nwritten to {}\n", dir.display()));
     }

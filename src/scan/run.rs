@@ -6,9 +6,9 @@ use std::path::Path;
 
 use super::figures::{Canvas, ColorBy};
 use super::points::for_each_point;
-use super::store::Meta;
+use super::store::{self, Meta, RowFile};
 use super::summary::{ScanSummary, Tally};
-use super::{Axis, MAX_POINTS};
+use super::{Axis, Scan, MAX_POINTS};
 use crate::error::{Error, InputError};
 use crate::model::Model;
 use crate::output;
@@ -34,6 +34,56 @@ pub fn finish(dir: &Path, points: &Path, meta: &Meta, by: ColorBy) -> Result<Sca
         output::to_json(&summary)?.as_bytes(),
     )?;
     Ok(summary)
+}
+
+/// A whole scan computed into `dir` (created if missing), without progress
+/// reporting, resuming or shards: the partial file, then [`publish`]. The
+/// library route to what `pinflow scan` writes (the command adds those
+/// three around the same steps); `flag` names the output directory in
+/// errors.
+pub fn run_to_dir(scan: &Scan, dir: &Path, by: ColorBy, flag: &str) -> Result<ScanSummary, Error> {
+    output::check_output_dir(dir, flag)?;
+    std::fs::create_dir_all(dir).map_err(|e| Error::io(dir, e))?;
+    let partial = super::partial_path(dir, None);
+    let mut file = RowFile::create(&partial, &scan.meta)?;
+    scan.run_into(&mut file, &|_| {})?;
+    drop(file);
+    publish(dir, &partial, &scan.meta, by)
+}
+
+/// The end of a whole scan: `points.csv` staged from the finished partial
+/// file, then [`publish_staged`]; the partial file is removed.
+pub fn publish(dir: &Path, partial: &Path, meta: &Meta, by: ColorBy) -> Result<ScanSummary, Error> {
+    let staged = store::stage_points(partial, meta, &dir.join("points.csv"))?;
+    let summary = publish_staged(dir, &staged, meta, by)?;
+    std::fs::remove_file(partial).map_err(|e| Error::io(partial, e))?;
+    Ok(summary)
+}
+
+/// The summary and figures from staged points ([`finish`]), then the
+/// points moved into place last (a `points.csv` marks a finished scan, see
+/// [`super::folder`]; an earlier one is removed first), then the outputs
+/// of an earlier scan that this one did not write are removed. On failure
+/// the staged file is removed.
+pub fn publish_staged(
+    dir: &Path,
+    staged: &Path,
+    meta: &Meta,
+    by: ColorBy,
+) -> Result<ScanSummary, Error> {
+    let target = dir.join("points.csv");
+    let done = (|| -> Result<ScanSummary, Error> {
+        if target.exists() {
+            std::fs::remove_file(&target).map_err(|e| Error::io(&target, e))?;
+        }
+        let summary = finish(dir, staged, meta, by)?;
+        std::fs::rename(staged, &target).map_err(|e| Error::io(&target, e))?;
+        super::folder::remove_stale(dir, &summary.files)?;
+        Ok(summary)
+    })();
+    done.inspect_err(|_| {
+        let _ = std::fs::remove_file(staged);
+    })
 }
 
 /// The axes of a scan: `x` and `y` as given on the command line (flags
