@@ -145,6 +145,12 @@ fn reference_summary(meta: &Meta, rows: &[Row]) -> Value {
         "points": rows.len(),
         "outcomes": outcomes,
         "winners": winners,
+        // Winners that are hunted competitors (`auto:` names; none among
+        // the hand-made rows' names, so this is empty).
+        "competitor_wins": winners
+            .iter()
+            .filter(|(w, _)| w.starts_with("auto:"))
+            .collect::<BTreeMap<_, _>>(),
         "target": target,
         // Hand-made rows name no phase (see `write_shard`).
         "phases": [],
