@@ -16,7 +16,14 @@
 //! One flow of the infinite-array demo (`flows/sliding_array.toml`),
 //! including its quadrature check.
 //!
-//! Run: `cargo bench --bench points`.
+//! Issue 15's targets (`target:` benches, read by `benches/ratios.sh`): one
+//! flow of the 32-field array as a periodic ring (q-space), as an open
+//! strip (dense D) and as an infinite array (with its quadrature check),
+//! each also with the per-channel reference right-hand side the matrix
+//! products replaced.
+//!
+//! Run: `cargo bench --bench points` (only the targets: `cargo bench
+//! --bench points -- target`).
 
 use std::path::Path;
 
@@ -154,8 +161,54 @@ fn infinite_flow(c: &mut Criterion) {
     }
 }
 
+/// The benchmark array with its `wires`/`boundary` lines replaced.
+fn array32_as(wires: &str, boundary: &str) -> System {
+    let path = concat!(env!("CARGO_MANIFEST_DIR"), "/benches/models/array32.toml");
+    let text = std::fs::read_to_string(path).expect("bench model");
+    assert!(text.contains("wires = 16\nboundary = \"periodic\"\n"));
+    let text = text.replace(
+        "wires = 16\nboundary = \"periodic\"\n",
+        &format!("wires = {wires}\n{boundary}"),
+    );
+    System::new(Model::parse(&text, path).expect("model")).expect("system")
+}
+
+/// Issue 15's per-flow targets: ring, open strip and infinite array of the
+/// 32-field model, with the matrix-product and the reference right-hand
+/// side.
+fn targets(c: &mut Criterion) {
+    let layouts = [
+        ("ring 16x2", array32_as("16", "boundary = \"periodic\"\n")),
+        (
+            "open strip 16x2 (dense)",
+            array32_as("16", "boundary = \"open\"\n"),
+        ),
+        ("infinite", array32_as("\"infinite\"", "")),
+    ];
+    for (name, sys) in &layouts {
+        let point = sys.model.params.defaults().to_vec();
+        for reference in [false, true] {
+            let opts = FlowOptions {
+                record: false,
+                ..FlowOptions::default()
+            };
+            let mut flow = Flow::new(sys, opts);
+            flow.reference_rhs = reference;
+            let rhs = if reference {
+                "reference rhs"
+            } else {
+                "products"
+            };
+            c.bench_function(&format!("target: flow {name}, {rhs}"), |b| {
+                b.iter(|| flow.run(&point).expect("flow"))
+            });
+        }
+    }
+}
+
 criterion_group!(
     benches,
+    targets,
     dims_point,
     flow_point,
     infinite_against_dense,
