@@ -17,16 +17,21 @@
 //! including its quadrature check.
 //!
 //! Issue 15's targets (`target:` benches, read by `benches/ratios.sh`): one
-//! flow of the 32-field array as a periodic ring (q-space), as an open
-//! strip (dense D) and as an infinite array (with its quadrature check),
-//! each also with the per-channel reference right-hand side the matrix
-//! products replaced.
+//! flow of the 32-field array as a periodic ring (q-space) and as an open
+//! strip (dense D), and of the filling-1/3 demo on a 16-wire ring and as an
+//! infinite array (32 quadrature points, with its check on 16), each also
+//! with the per-channel reference right-hand side the matrix products
+//! replaced. `integrator:` benches compare `ode_solvers`' two methods.
+//! Both measure the thread's CPU time, not wall time (see [`ThreadCpu`]).
 //!
 //! Run: `cargo bench --bench points` (only the targets: `cargo bench
 //! --bench points -- target`).
 
 use std::path::Path;
 
+use std::time::Duration;
+
+use criterion::measurement::{Measurement, ValueFormatter, WallTime};
 use criterion::{criterion_group, criterion_main, Criterion};
 use pinflow::core::system::System;
 use pinflow::edges::{analyse, pins};
@@ -161,6 +166,46 @@ fn infinite_flow(c: &mut Criterion) {
     }
 }
 
+/// Thread CPU time (`CLOCK_THREAD_CPUTIME_ID`) as criterion's measure: on
+/// a machine shared with other jobs wall time measures the load, CPU time
+/// the work. One flow runs on the calling thread only.
+struct ThreadCpu(WallTime);
+
+impl Measurement for ThreadCpu {
+    type Intermediate = Duration;
+    type Value = Duration;
+
+    fn start(&self) -> Duration {
+        thread_cpu()
+    }
+    fn end(&self, start: Duration) -> Duration {
+        thread_cpu().saturating_sub(start)
+    }
+    fn add(&self, a: &Duration, b: &Duration) -> Duration {
+        *a + *b
+    }
+    fn zero(&self) -> Duration {
+        Duration::ZERO
+    }
+    fn to_f64(&self, v: &Duration) -> f64 {
+        v.as_nanos() as f64
+    }
+    fn formatter(&self) -> &dyn ValueFormatter {
+        self.0.formatter()
+    }
+}
+
+fn thread_cpu() -> Duration {
+    let mut ts = libc::timespec {
+        tv_sec: 0,
+        tv_nsec: 0,
+    };
+    // SAFETY: clock_gettime only writes the timespec it is given.
+    let rc = unsafe { libc::clock_gettime(libc::CLOCK_THREAD_CPUTIME_ID, &mut ts) };
+    assert_eq!(rc, 0, "thread CPU clock");
+    Duration::new(ts.tv_sec as u64, ts.tv_nsec as u32)
+}
+
 /// The benchmark array with its `wires`/`boundary` lines replaced.
 fn array32_as(wires: &str, boundary: &str) -> System {
     let path = concat!(env!("CARGO_MANIFEST_DIR"), "/benches/models/array32.toml");
@@ -173,17 +218,17 @@ fn array32_as(wires: &str, boundary: &str) -> System {
     System::new(Model::parse(&text, path).expect("model")).expect("system")
 }
 
-/// Issue 15's per-flow targets: ring, open strip and infinite array of the
-/// 32-field model, with the matrix-product and the reference right-hand
-/// side.
-fn targets(c: &mut Criterion) {
+/// Issue 15's per-flow targets (module docs), with the matrix-product and
+/// the reference right-hand side.
+fn targets(c: &mut Criterion<ThreadCpu>) {
     let layouts = [
         ("ring 16x2", array32_as("16", "boundary = \"periodic\"\n")),
         (
             "open strip 16x2 (dense)",
             array32_as("16", "boundary = \"open\"\n"),
         ),
-        ("infinite", array32_as("\"infinite\"", "")),
+        ("filling 1/3, ring of 16 wires", third("16")),
+        ("filling 1/3, infinite", third("\"infinite\"")),
     ];
     for (name, sys) in &layouts {
         let point = sys.model.params.defaults().to_vec();
@@ -206,13 +251,129 @@ fn targets(c: &mut Criterion) {
     }
 }
 
+/// The listed terms of the 32-field ring flowing alone (no generated
+/// terms), from the bare fixed point: the system the integrators compare on.
+fn ring_rhs<'a>(
+    sys: &System,
+    flow: &'a Flow,
+    point: &[f64],
+) -> (pinflow::flow::rhs::FlowRhs<'a>, nalgebra::DVector<f64>) {
+    use pinflow::flow::background::Background;
+    let listed = flow.plan.listed;
+    let channels: Vec<_> = flow.plan.channels[..listed].iter().collect();
+    let ope: Vec<_> = flow
+        .plan
+        .ope
+        .iter()
+        .filter(|e| e.target < listed && e.a < listed && e.b < listed)
+        .copied()
+        .collect();
+    let fp = sys.q_fixed_point(point, 16).expect("physical point");
+    let bg = Background::Fourier { wires: 16, cell: 2 };
+    let mut rhs = pinflow::flow::rhs::FlowRhs::new(bg, channels, vec![0.0; listed], ope);
+    rhs.record = false;
+    let mut y = nalgebra::DVector::zeros(rhs.state_len());
+    for (c, t) in sys.model.terms.iter().enumerate() {
+        let (re, im) = flow.plan.channels[c].bare_amplitude(t.coupling.eval(point), 0.0);
+        y[2 * c] = re;
+        y[2 * c + 1] = im;
+    }
+    y.as_mut_slice()[2 * listed..].copy_from_slice(&fp.d);
+    (rhs, y)
+}
+
+/// Issue 15 item 2: `ode_solvers`' Dormand-Prince 5(4) against its
+/// DOP853 on the ring's flow equations (listed terms), from ell = 0 to the
+/// first strong coupling, at the default tolerances (rtol 1e-8, atol
+/// 1e-12). Prints the accepted steps of each once.
+fn integrators(c: &mut Criterion<ThreadCpu>) {
+    use ode_solvers::dop_shared::OutputType;
+    let sys = model();
+    let point = sys.model.params.defaults().to_vec();
+    let flow = Flow::new(&sys, FlowOptions::default());
+    for name in ["Dopri5", "Dop853"] {
+        let run = || {
+            let (mut rhs, y) = ring_rhs(&sys, &flow, &point);
+            let args = (
+                1e-8,
+                1e-12,
+                0.9,
+                0.04,
+                0.2,
+                10.0,
+                40.0,
+                0.0,
+                100_000,
+                u32::MAX,
+            );
+            let ok = if name == "Dopri5" {
+                let (rt, at, sf, be, fmin, fmax, hmax, h, n, ns) = args;
+                ode_solvers::Dopri5::from_param(
+                    &mut rhs,
+                    0.0,
+                    40.0,
+                    0.0,
+                    y,
+                    rt,
+                    at,
+                    sf,
+                    be,
+                    fmin,
+                    fmax,
+                    hmax,
+                    h,
+                    n,
+                    ns,
+                    OutputType::Sparse,
+                )
+                .integrate()
+                .is_ok()
+            } else {
+                let (rt, at, sf, _, _, _, hmax, h, n, ns) = args;
+                ode_solvers::Dop853::from_param(
+                    &mut rhs,
+                    0.0,
+                    40.0,
+                    0.0,
+                    y,
+                    rt,
+                    at,
+                    sf,
+                    0.0,
+                    0.333,
+                    6.0,
+                    hmax,
+                    h,
+                    n,
+                    ns,
+                    OutputType::Sparse,
+                )
+                .integrate()
+                .is_ok()
+            };
+            assert!(ok && rhs.stop.is_some(), "{name} reached strong coupling");
+            (rhs.steps, rhs.last_ell)
+        };
+        let (steps, ell) = run();
+        eprintln!("integrator {name}: {steps} accepted steps to ell = {ell:.4}");
+        c.bench_function(
+            &format!("integrator: ring flow to strong coupling, {name}"),
+            |b| b.iter(run),
+        );
+    }
+}
+
 criterion_group!(
     benches,
-    targets,
     dims_point,
     flow_point,
     infinite_against_dense,
     edges_nondiagonal_cell,
     infinite_flow
 );
-criterion_main!(benches);
+criterion_group! {
+    name = cpu;
+    config = Criterion::default().with_measurement(ThreadCpu(WallTime));
+    targets = targets, integrators
+}
+criterion_main!(benches, cpu);

@@ -291,14 +291,14 @@ def main():
     t_plan = time.perf_counter() - t0
     pts = grid(args.n)[: args.points]
     results = []
-    t1 = time.perf_counter()
+    t1, c1 = time.perf_counter(), time.process_time()
     for lam, g in pts:
         params = dict(ring.defaults, **{"lambda": lam, "g": g})
         results.append(flow_point(ring, plan, params, args.method))
-    t_flow = time.perf_counter() - t1
+    t_flow, c_flow = time.perf_counter() - t1, time.process_time() - c1
     print(f"channels {len(plan.channels)}, OPE entries {len(plan.ope)}, plan {t_plan:.2f} s")
     print(f"{len(pts)} points in {t_flow:.2f} s: {t_flow / len(pts) * 1e3:.1f} ms per point "
-          f"({args.method})")
+          f"({args.method}); CPU {c_flow:.2f} s")
     if args.compare:
         compare(args.compare, pts, results)
 

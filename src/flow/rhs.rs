@@ -18,7 +18,9 @@
 //! Per segment (between momentum cut-offs) the set of active channels is
 //! fixed: [`FlowRhs::begin_segment`] lists the live channels and the OPE
 //! entries among them once, so an evaluation never filters. The D feedback
-//! is formed as matrix products ([`Background::evaluate`]);
+//! is formed as matrix products ([`Background::evaluate`]), except for a
+//! dense D with fewer null translates than half its size, where the
+//! rank-one updates are cheaper;
 //! [`FlowRhs::derivative_reference`] keeps the per-channel route as the
 //! reference they are tested against.
 
@@ -99,6 +101,9 @@ pub struct FlowRhs<'a> {
     live_ope: Vec<OpeEntry>,
     /// Channels whose amplitude is kept real.
     real: Vec<usize>,
+    /// Dense D with few translates feeding back: the rank-one updates cost
+    /// less than the products (see [`FlowRhs::new`]).
+    rank_one: bool,
     scratch: RefCell<Scratch>,
 }
 
@@ -135,6 +140,16 @@ impl<'a> FlowRhs<'a> {
             .map(|c| c.null().then(|| bg.outer(c)))
             .collect();
         let real = (0..n).filter(|&c| channels[c].real_only()).collect();
+        // A rank-one update costs ~n^2 per translate, the two products 2 n^3
+        // (at several times the speed per operation): with fewer null
+        // translates than n/2 (explicit models with a few terms) the
+        // per-channel route is the faster one.
+        let translates: usize = channels
+            .iter()
+            .filter(|c| c.null())
+            .map(|c| c.l_sparse.len())
+            .sum();
+        let rank_one = matches!(bg, Background::Dense { n } if 2 * translates < n);
         let mut rhs = FlowRhs {
             bg,
             channels,
@@ -155,6 +170,7 @@ impl<'a> FlowRhs<'a> {
             live: Vec::new(),
             live_ope: Vec::new(),
             real,
+            rank_one,
             scratch,
         };
         rhs.begin_segment();
@@ -242,8 +258,20 @@ impl FlowRhs<'_> {
         }
         let (channels, live, outer) = (&self.channels[..], &self.live[..], &self.outer[..]);
         let (weight, dims) = (&sc.weight[..], &mut sc.dims[..]);
-        self.bg
-            .evaluate(d, channels, live, outer, weight, dims, dd, &mut sc.work);
+        if self.rank_one {
+            for &c in live {
+                dims[c] = self.bg.dimension_and_feedback(
+                    d,
+                    channels[c],
+                    weight[c],
+                    dd,
+                    &mut sc.reference,
+                );
+            }
+        } else {
+            self.bg
+                .evaluate(d, channels, live, outer, weight, dims, dd, &mut sc.work);
+        }
         for &c in &self.live {
             let rate = rg_eigenvalue(sc.dims[c] + self.extra[c]);
             dw[2 * c] += rate * w[2 * c];
