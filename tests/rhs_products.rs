@@ -291,3 +291,55 @@ fn random_models_rhs_and_flows_equal_reference_route() {
         check_flows(&sys, &what);
     }
 }
+
+/// A random explicit model: three spinless wires written out (`[fields]`,
+/// K = diag(1, -1) per wire), V the identity plus a symmetric perturbation
+/// with entries below 0.1 (diagonally dominant, so positive definite), and
+/// four terms on pairs of wires.
+fn random_explicit(rng: &mut Rng) -> String {
+    let n = 6;
+    let mut v = vec![vec![0.0; n]; n];
+    for (i, j) in (0..n).flat_map(|i| (i..n).map(move |j| (i, j))) {
+        let x = if i == j { 1.0 } else { rng.range(-0.1, 0.1) };
+        v[i][j] = x;
+        v[j][i] = x;
+    }
+    let rows: Vec<String> = v
+        .iter()
+        .map(|r| {
+            let cells: Vec<String> = r.iter().map(|x| format!("\"{}\"", num(*x))).collect();
+            format!("[{}]", cells.join(", "))
+        })
+        .collect();
+    let mut s = format!(
+        "name = \"random explicit\"\n[fields]\nK = [[1,0,0,0,0,0],[0,-1,0,0,0,0],[0,0,1,0,0,0],[0,0,0,-1,0,0],[0,0,0,0,1,0],[0,0,0,0,0,-1]]\ncharge = [1, 1, 1, 1, 1, 1]\nV = [{}]\n",
+        rows.join(", ")
+    );
+    let terms: [[i64; 6]; 4] = [
+        [-2, 1, -1, 2, 0, 0],
+        [0, 0, -2, 1, -1, 2],
+        [1, -1, -1, 1, 0, 0],
+        [1, -1, 0, 0, -1, 1],
+    ];
+    for (i, t) in terms.iter().enumerate() {
+        let parts: Vec<String> = t.iter().map(|x| x.to_string()).collect();
+        s += &format!(
+            "[[term]]\nname = \"e{i}\"\nparticles = [{}]\ncoupling = {}\n",
+            parts.join(", "),
+            num(rng.range(0.02, 0.3))
+        );
+    }
+    s
+}
+
+#[test]
+fn random_explicit_models_rhs_and_flows_equal_reference_route() {
+    let mut rng = Rng(0x15_e7b1);
+    for round in 0..4 {
+        let text = random_explicit(&mut rng);
+        let sys = system(&text);
+        let what = format!("random explicit model {round}:\n{text}");
+        check_rhs(&sys, &what);
+        check_flows(&sys, &what);
+    }
+}

@@ -431,6 +431,15 @@ fn block_outer(v: &[Complex64], blocks: usize, cell: usize) -> Vec<f64> {
     out
 }
 
+/// The channels, the live ones among them, their outer products and their
+/// weights |y|^2, as [`Background::evaluate`] receives them.
+type Live<'a, 'c> = (
+    &'a [&'c Channel],
+    &'a [usize],
+    &'a [Option<Outer>],
+    &'a [f64],
+);
+
 /// The shape of the Fourier layout, for the per-block steps.
 struct BlockAt {
     wires: usize,
@@ -447,7 +456,7 @@ impl BlockAt {
         &self,
         k: usize,
         block: &[f64],
-        (channels, live, outer, weight): (&[&Channel], &[usize], &[Option<Outer>], &[f64]),
+        (channels, live, outer, weight): Live<'_, '_>,
         dims: &mut [f64],
         work: &mut Work,
     ) -> bool {
