@@ -287,73 +287,11 @@ fn ring_rhs<'a>(
 /// first strong coupling, at the default tolerances (rtol 1e-8, atol
 /// 1e-12). Prints the accepted steps of each once.
 fn integrators(c: &mut Criterion<ThreadCpu>) {
-    use ode_solvers::dop_shared::OutputType;
     let sys = model();
     let point = sys.model.params.defaults().to_vec();
     let flow = Flow::new(&sys, FlowOptions::default());
     for name in ["Dopri5", "Dop853"] {
-        let run = || {
-            let (mut rhs, y) = ring_rhs(&sys, &flow, &point);
-            let args = (
-                1e-8,
-                1e-12,
-                0.9,
-                0.04,
-                0.2,
-                10.0,
-                40.0,
-                0.0,
-                100_000,
-                u32::MAX,
-            );
-            let ok = if name == "Dopri5" {
-                let (rt, at, sf, be, fmin, fmax, hmax, h, n, ns) = args;
-                ode_solvers::Dopri5::from_param(
-                    &mut rhs,
-                    0.0,
-                    40.0,
-                    0.0,
-                    y,
-                    rt,
-                    at,
-                    sf,
-                    be,
-                    fmin,
-                    fmax,
-                    hmax,
-                    h,
-                    n,
-                    ns,
-                    OutputType::Sparse,
-                )
-                .integrate()
-                .is_ok()
-            } else {
-                let (rt, at, sf, _, _, _, hmax, h, n, ns) = args;
-                ode_solvers::Dop853::from_param(
-                    &mut rhs,
-                    0.0,
-                    40.0,
-                    0.0,
-                    y,
-                    rt,
-                    at,
-                    sf,
-                    0.0,
-                    0.333,
-                    6.0,
-                    hmax,
-                    h,
-                    n,
-                    ns,
-                    OutputType::Sparse,
-                )
-                .integrate()
-                .is_ok()
-            };
-            assert!(ok && rhs.stop.is_some(), "{name} reached strong coupling");
-            (rhs.steps, rhs.last_ell)
-        };
+        let run = || integrate_ring(name, &sys, &flow, &point);
         let (steps, ell) = run();
         eprintln!("integrator {name}: {steps} accepted steps to ell = {ell:.4}");
         c.bench_function(
@@ -361,6 +299,62 @@ fn integrators(c: &mut Criterion<ThreadCpu>) {
             |b| b.iter(run),
         );
     }
+}
+
+/// One integration of the ring's flow with `ode_solvers`' "Dopri5" (the
+/// flow's parameters) or "Dop853" (its default step control: no PI term,
+/// step ratio in [0.333, 6]): (accepted steps, ell of the last step).
+fn integrate_ring(name: &str, sys: &System, flow: &Flow, point: &[f64]) -> (usize, f64) {
+    use ode_solvers::dop_shared::OutputType;
+    let (mut rhs, y) = ring_rhs(sys, flow, point);
+    let (rtol, atol, end, out) = (1e-8, 1e-12, 40.0, OutputType::Sparse);
+    let ok = if name == "Dopri5" {
+        let (beta, fmin, fmax) = (0.04, 0.2, 10.0);
+        ode_solvers::Dopri5::from_param(
+            &mut rhs,
+            0.0,
+            end,
+            0.0,
+            y,
+            rtol,
+            atol,
+            0.9,
+            beta,
+            fmin,
+            fmax,
+            end,
+            0.0,
+            100_000,
+            u32::MAX,
+            out,
+        )
+        .integrate()
+        .is_ok()
+    } else {
+        let (beta, fmin, fmax) = (0.0, 0.333, 6.0);
+        ode_solvers::Dop853::from_param(
+            &mut rhs,
+            0.0,
+            end,
+            0.0,
+            y,
+            rtol,
+            atol,
+            0.9,
+            beta,
+            fmin,
+            fmax,
+            end,
+            0.0,
+            100_000,
+            u32::MAX,
+            out,
+        )
+        .integrate()
+        .is_ok()
+    };
+    assert!(ok && rhs.stop.is_some(), "{name} reached strong coupling");
+    (rhs.steps, rhs.last_ell)
 }
 
 criterion_group!(
