@@ -7,8 +7,8 @@ use clap::{Args, ValueEnum};
 use super::common::{check_outputs, emit, load_point, FormatArg, PointArgs};
 use crate::error::Error;
 use crate::search::{
-    emit_terms, hunt, render, ChargeFilter, HuntOptions, MomentumFilter, SpinFilter, DEFAULT_LIMIT,
-    MAX_LISTED,
+    emit_terms, hunt, render, smallest_coupling, ChargeFilter, HuntOptions, MomentumFilter,
+    SpinFilter, SymmetryChoice, DEFAULT_LIMIT, MAX_LISTED,
 };
 
 /// `pinflow hunt`.
@@ -42,6 +42,16 @@ pub struct HuntArgs {
     /// for the model file, instead of the report.
     #[arg(long, conflicts_with = "format")]
     pub emit_terms: bool,
+    /// Which of the model's [[symmetry]] tables filter the operators: all,
+    /// none, or a comma-separated list of names.
+    #[arg(long, value_name = "all|none|NAME,...", default_value = "all",
+          value_parser = parse_symmetry)]
+    pub symmetry: SymmetryChoice,
+    /// With --emit-terms: the bare coupling written for every term
+    /// [default: the smallest non-zero coupling of the model's terms].
+    #[arg(long, value_name = "Y", allow_hyphen_values = true, requires = "emit_terms",
+          value_parser = parse_coupling)]
+    pub coupling: Option<f64>,
     /// Output format.
     #[arg(long, value_enum, default_value_t = FormatArg::Text)]
     pub format: FormatArg,
@@ -105,6 +115,33 @@ fn parse_charge(s: &str) -> Result<ChargeFilter, String> {
         .map_err(|_| format!("expected an integer charge t.m or `any`, found `{s}`"))
 }
 
+/// Parse `--symmetry`: all, none, or names separated by commas.
+pub(super) fn parse_symmetry(s: &str) -> Result<SymmetryChoice, String> {
+    match s.trim() {
+        "all" => Ok(SymmetryChoice::All),
+        "none" => Ok(SymmetryChoice::None),
+        list => {
+            let names: Vec<String> = list.split(',').map(|n| n.trim().to_string()).collect();
+            if names.iter().any(|n| n.is_empty()) {
+                return Err(format!(
+                    "expected all, none or symmetry names separated by commas, found `{s}`"
+                ));
+            }
+            Ok(SymmetryChoice::Names(names))
+        }
+    }
+}
+
+/// Parse a bare coupling: a finite number.
+pub(super) fn parse_coupling(s: &str) -> Result<f64, String> {
+    match s.trim().parse::<f64>() {
+        Ok(y) if y.is_finite() => Ok(y),
+        _ => Err(format!(
+            "expected a finite number (a bare coupling y), found `{s}`"
+        )),
+    }
+}
+
 fn options(args: &HuntArgs) -> HuntOptions {
     HuntOptions {
         max_dim: args.max_dim,
@@ -121,6 +158,7 @@ fn options(args: &HuntArgs) -> HuntOptions {
         force: args.force,
         limit: DEFAULT_LIMIT,
         max_listed: MAX_LISTED,
+        symmetry: args.symmetry.clone(),
     }
 }
 
@@ -129,7 +167,10 @@ pub(super) fn run(args: HuntArgs) -> Result<(), Error> {
     let (sys, point) = load_point(&args.point)?;
     let report = hunt(&sys, &point, &options(&args))?;
     let text = if args.emit_terms {
-        emit_terms(&report, &sys.model)
+        let y = args
+            .coupling
+            .unwrap_or_else(|| smallest_coupling(&sys, &point));
+        emit_terms(&report, &sys.model, y)
     } else {
         render(&report, args.format.into())?
     };
