@@ -145,6 +145,8 @@ fn reference_summary(meta: &Meta, rows: &[Row]) -> Value {
         "points": rows.len(),
         "outcomes": outcomes,
         "winners": winners,
+        // No hunted competitors (`--competitors`) in these grids.
+        "competitor_wins": {},
         "target": target,
         // Hand-made rows name no phase (see `write_shard`).
         "phases": [],

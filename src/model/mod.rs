@@ -871,6 +871,7 @@ fn read_term(ctx: &Ctx, model: &Model, t: &RawTerm, key: &str) -> Result<TermSpe
 
 /// `particles` or `vector`: how to read them, the parts per wire offset
 /// (entries within [`MAX_ENTRY`], not all zero) and the key they came from.
+#[allow(clippy::type_complexity)] // a triple read once by its one caller
 fn read_parts(
     ctx: &Ctx,
     model: &Model,
