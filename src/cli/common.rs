@@ -9,6 +9,7 @@ use clap::{Args, ValueEnum};
 use crate::core::system::System;
 use crate::error::Error;
 use crate::flow::options::{Closure, FlowOverrides};
+use crate::output::provenance::Provenance;
 use crate::output::{self, Format};
 
 /// Options shared by commands that evaluate a model at one point.
@@ -188,4 +189,94 @@ pub(crate) fn emit(path: Option<&Path>, text: &str) -> Result<(), Error> {
             output::write_atomic(p, text.as_bytes())
         }
     }
+}
+
+/// The arguments recorded in a provenance block: everything after the
+/// program name except what cannot change a result (`--threads N`,
+/// `--quiet`/`-q`, `--resume`), so that outputs stay byte-identical
+/// whatever the thread count.
+fn recorded_arguments() -> Vec<String> {
+    let mut out = Vec::new();
+    let mut skip_value = false;
+    for a in std::env::args().skip(1) {
+        if std::mem::take(&mut skip_value) {
+            continue;
+        }
+        match a.as_str() {
+            "--threads" => skip_value = true,
+            "--quiet" | "-q" | "--resume" => {}
+            _ if a.starts_with("--threads=") => {}
+            _ => out.push(a),
+        }
+    }
+    out
+}
+
+/// The provenance of a command run on a model at a point: version,
+/// arguments, the model file's SHA-256, every parameter value and the
+/// engine's options.
+pub(crate) fn provenance(
+    command: &str,
+    model_path: &Path,
+    sys_names: &[String],
+    point: &[f64],
+    options: serde_json::Value,
+) -> Result<Provenance, Error> {
+    let bytes = std::fs::read(model_path).map_err(|e| Error::io(model_path, e))?;
+    let mut p = Provenance::new(command, recorded_arguments());
+    p.model = Some(model_path.display().to_string());
+    p.model_sha256 = Some(output::provenance::sha256_hex(&bytes));
+    for (name, value) in sys_names.iter().zip(point) {
+        p.parameters
+            .insert(name.clone(), serde_json::Value::from(*value));
+    }
+    p.options = options;
+    Ok(p)
+}
+
+/// A provenance without a model (e.g. `merge`).
+pub(crate) fn bare_provenance(command: &str) -> Provenance {
+    Provenance::new(command, recorded_arguments())
+}
+
+/// Options as a JSON value (serialisation of plain structs cannot fail in
+/// practice; an error is reported, not unwrapped).
+pub(crate) fn options_json<T: serde::Serialize>(t: &T) -> Result<serde_json::Value, Error> {
+    serde_json::to_value(t).map_err(|e| Error::Numerical(format!("cannot record options: {e}")))
+}
+
+/// Print or write a rendered report: JSON gets the `provenance` key; a CSV
+/// written to a file gets `<stem>.run.json` beside it.
+pub(crate) fn emit_report(
+    path: Option<&Path>,
+    text: &str,
+    format: Format,
+    prov: &Provenance,
+) -> Result<(), Error> {
+    let to_file = path.filter(|p| p.as_os_str() != "-");
+    if format == Format::Json {
+        return emit(path, &output::provenance::stamp_json(text, prov)?);
+    }
+    if let (Format::Csv, Some(p)) = (format, to_file) {
+        output::check_output_file(p, "-o")?;
+        let sibling = p.with_extension("run.json");
+        output::write_atomic(&sibling, output::to_json(prov)?.as_bytes())?;
+    }
+    emit(path, text)
+}
+
+/// Write `run.json` into an output directory and add the provenance to
+/// its `summary.json`, when there is one.
+pub(crate) fn stamp_dir(dir: &Path, prov: &Provenance) -> Result<(), Error> {
+    output::write_atomic(&dir.join("run.json"), output::to_json(prov)?.as_bytes())?;
+    for name in ["summary.json", "convergence.json"] {
+        let summary = dir.join(name);
+        if !summary.is_file() {
+            continue;
+        }
+        let text = std::fs::read_to_string(&summary).map_err(|e| Error::io(&summary, e))?;
+        let stamped = output::provenance::stamp_json(&text, prov)?;
+        output::write_atomic(&summary, stamped.as_bytes())?;
+    }
+    Ok(())
 }

@@ -5,7 +5,10 @@ use std::path::PathBuf;
 
 use clap::Args;
 
-use super::common::{check_outputs, emit, load_point, FlowFlags, FormatArg, PointArgs};
+use super::common::{
+    check_outputs, emit_report, load_point, options_json, provenance, stamp_dir, FlowFlags,
+    FormatArg, PointArgs,
+};
 use crate::error::{Error, InputError};
 use crate::flow::report::FlowReport;
 use crate::flow::{Flow, FlowOptions, Outcome};
@@ -34,11 +37,20 @@ pub(super) fn run(args: FlowArgs) -> Result<(), Error> {
     let unphysical = result.outcome == Outcome::Unphysical;
     let failed = result.outcome == Outcome::Failed;
     let names = sys.model.params.names();
+    let prov = provenance(
+        "flow",
+        &args.point.model,
+        names,
+        &point,
+        options_json(&opts)?,
+    )?;
     let report = FlowReport::new(&sys.model.name, names, &point, result, opts);
     if let Some(dir) = &args.out {
         report.write_dir(dir)?;
+        stamp_dir(dir, &prov)?;
     }
-    emit(None, &output::render(&report, args.format.into())?)?;
+    let format = args.format.into();
+    emit_report(None, &output::render(&report, format)?, format, &prov)?;
     let msg = report.result.message.clone().unwrap_or_default();
     if unphysical {
         return Err(Error::Input(InputError::new(&sys.model.file, "", msg)));

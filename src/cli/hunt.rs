@@ -4,7 +4,9 @@ use std::path::PathBuf;
 
 use clap::{Args, ValueEnum};
 
-use super::common::{check_outputs, emit, load_point, FormatArg, PointArgs};
+use super::common::{
+    check_outputs, emit, emit_report, load_point, provenance, FormatArg, PointArgs,
+};
 use crate::error::Error;
 use crate::search::{
     emit_terms, hunt, render, ChargeFilter, HuntOptions, MomentumFilter, SpinFilter, DEFAULT_LIMIT,
@@ -128,10 +130,30 @@ pub(super) fn run(args: HuntArgs) -> Result<(), Error> {
     check_outputs(args.output.as_deref(), None)?;
     let (sys, point) = load_point(&args.point)?;
     let report = hunt(&sys, &point, &options(&args))?;
-    let text = if args.emit_terms {
-        emit_terms(&report, &sys.model)
-    } else {
-        render(&report, args.format.into())?
-    };
-    emit(args.output.as_deref(), &text)
+    if args.emit_terms {
+        return emit(args.output.as_deref(), &emit_terms(&report, &sys.model));
+    }
+    let names = sys.model.params.names();
+    let prov = provenance("hunt", &args.point.model, names, &point, recorded(&args))?;
+    let format = args.format.into();
+    let text = render(&report, format)?;
+    emit_report(args.output.as_deref(), &text, format, &prov)
+}
+
+/// The hunt's options for the provenance block.
+fn recorded(args: &HuntArgs) -> serde_json::Value {
+    serde_json::json!({
+        "max_dim": args.max_dim,
+        "charge": match args.charge {
+            ChargeFilter::Any => serde_json::Value::from("any"),
+            ChargeFilter::Exactly(q) => serde_json::Value::from(q),
+        },
+        "spin": match args.spin { SpinArg::Zero => "0", SpinArg::Any => "any" },
+        "range": args.range,
+        "momentum": args.momentum.map(|m| match m {
+            MomentumArg::Conserved => "conserved",
+            MomentumArg::Any => "any",
+        }),
+        "force": args.force,
+    })
 }

@@ -7,9 +7,13 @@ use std::path::{Path, PathBuf};
 use clap::Args;
 use indicatif::{ProgressBar, ProgressStyle};
 
-use super::common::{emit, load_point, FlowFlags, FormatArg, PointArgs};
+use super::common::{
+    bare_provenance, emit_report, load_point, options_json, provenance, stamp_dir, FlowFlags,
+    FormatArg, PointArgs,
+};
 use crate::error::{Error, InputError};
 use crate::flow::FlowOptions;
+use crate::output::provenance::Provenance;
 use crate::output::{self, Format};
 use crate::scan::figures::ColorBy;
 use crate::scan::run::{check_size, finish, resolve_axes};
@@ -83,6 +87,16 @@ pub enum ColorByArg {
     Winner,
 }
 
+impl ColorByArg {
+    /// The flag's value as typed.
+    fn word(self) -> &'static str {
+        match self {
+            ColorByArg::Phase => "phase",
+            ColorByArg::Winner => "winner",
+        }
+    }
+}
+
 impl From<ColorByArg> for ColorBy {
     fn from(c: ColorByArg) -> ColorBy {
         match c {
@@ -116,6 +130,14 @@ pub(super) fn run_scan(args: ScanArgs) -> Result<(), Error> {
     let (sys, base) = load_point(&args.point)?;
     let axes = resolve_axes(&sys.model, args.x.as_deref(), args.y.as_deref())?;
     let options = FlowOptions::resolve(&sys.model, &args.flow.overrides())?;
+    let mut prov = provenance(
+        "scan",
+        &args.point.model,
+        sys.model.params.names(),
+        &base,
+        options_json(&serde_json::json!({ "flow": options, "color_by": args.color_by.word() }))?,
+    )?;
+    prov.grid = axes.iter().map(|a| a.spec()).collect();
     let spec = ScanSpec {
         axes,
         base,
@@ -149,6 +171,8 @@ pub(super) fn run_scan(args: ScanArgs) -> Result<(), Error> {
         Some((k, n)) => {
             let target = shard_path(&dir, k, n);
             std::fs::rename(&partial, &target).map_err(|e| Error::io(&target, e))?;
+            let run = target.with_extension("run.json");
+            output::write_atomic(&run, output::to_json(&prov)?.as_bytes())?;
             eprintln!(
                 "shard {k}/{n}: {todo} points written to {}; join all shards with `pinflow merge`",
                 target.display()
@@ -158,7 +182,13 @@ pub(super) fn run_scan(args: ScanArgs) -> Result<(), Error> {
         None => {
             let points = dir.join("points.csv");
             store::publish_points(&partial, &scan.meta, &points)?;
-            print_summary(&dir, &scan.meta, args.format.into(), args.color_by.into())?;
+            print_summary(
+                &dir,
+                &scan.meta,
+                args.format.into(),
+                args.color_by.into(),
+                &prov,
+            )?;
             std::fs::remove_file(&partial).map_err(|e| Error::io(&partial, e))
         }
     }
@@ -174,17 +204,46 @@ pub(super) fn run_merge(args: MergeArgs) -> Result<(), Error> {
     output::check_output_dir(&dir, "--out")?;
     std::fs::create_dir_all(&dir).map_err(|e| Error::io(&dir, e))?;
     let meta = store::merge(&args.shards, &dir.join("points.csv"))?;
-    print_summary(&dir, &meta, args.format.into(), args.color_by.into())
+    let prov = shard_provenance(&args.shards[0])?;
+    print_summary(&dir, &meta, args.format.into(), args.color_by.into(), &prov)
+}
+
+/// The provenance of a merged scan: that of its first shard (written
+/// beside it as `<shard>.run.json`), else a record of the merge alone.
+fn shard_provenance(shard: &Path) -> Result<Provenance, Error> {
+    let run = shard.with_extension("run.json");
+    let mut prov = bare_provenance("merge");
+    if let Ok(text) = std::fs::read_to_string(&run) {
+        let v: serde_json::Value = serde_json::from_str(&text).map_err(|e| {
+            InputError::new(run.display().to_string(), "", format!("not JSON: {e}"))
+        })?;
+        let field = |k: &str| v.get(k).cloned().unwrap_or(serde_json::Value::Null);
+        prov.model = field("model").as_str().map(str::to_string);
+        prov.model_sha256 = field("model_sha256").as_str().map(str::to_string);
+        if let serde_json::Value::Object(m) = field("parameters") {
+            prov.parameters = m;
+        }
+        prov.options = field("options");
+        prov.grid = serde_json::from_value(field("grid")).unwrap_or_default();
+    }
+    Ok(prov)
 }
 
 /// Write the summary and figures, then print the summary.
-fn print_summary(dir: &Path, meta: &Meta, format: Format, by: ColorBy) -> Result<(), Error> {
+fn print_summary(
+    dir: &Path,
+    meta: &Meta,
+    format: Format,
+    by: ColorBy,
+    prov: &Provenance,
+) -> Result<(), Error> {
     let summary = finish(dir, meta, by)?;
+    stamp_dir(dir, prov)?;
     let mut text = output::render(&summary, format)?;
     if format == Format::Text {
         text.push_str(&format!("\nwritten to {}\n", dir.display()));
     }
-    emit(None, &text)
+    emit_report(None, &text, format, prov)
 }
 
 fn set_threads(n: usize) -> Result<(), Error> {

@@ -203,7 +203,8 @@ impl FlowReport {
         format!("At {}.", p.join(", "))
     }
 
-    /// Write `summary.json`, `trajectory.csv` and the figures into `dir`.
+    /// Write `summary.json`, `trajectory.csv`, `terms.csv` and the figures
+    /// into `dir`.
     pub fn write_dir(&self, dir: &Path) -> Result<(), Error> {
         std::fs::create_dir_all(dir).map_err(|e| Error::io(dir, e))?;
         output::write_atomic(
@@ -211,15 +212,20 @@ impl FlowReport {
             self.trajectory_csv()?.as_bytes(),
         )?;
         crate::flow::report::figure::write(self, &dir.join("flow"))?;
+        // The terms table also as CSV: summary.json nests it.
+        output::write_atomic(
+            &dir.join("terms.csv"),
+            output::csv::render(&output::Report::csv_table(self))?.as_bytes(),
+        )?;
         output::write_atomic(&dir.join("summary.json"), output::to_json(self)?.as_bytes())
     }
 
-    /// The trajectory as CSV: `ell`, then `y:<name>` and `dimension:<name>`
+    /// The trajectory as CSV: `ell`, then `coupling:<name>` and `dimension:<name>`
     /// for every channel.
     pub fn trajectory_csv(&self) -> Result<String, Error> {
         let names: Vec<&str> = self.result.terms.iter().map(|t| t.name.as_str()).collect();
         let mut headers = vec!["ell".to_string()];
-        headers.extend(names.iter().map(|n| format!("y:{n}")));
+        headers.extend(names.iter().map(|n| format!("coupling:{n}")));
         headers.extend(names.iter().map(|n| format!("dimension:{n}")));
         let mut t = Table::with_headers("trajectory", headers);
         for s in &self.result.samples {
@@ -343,7 +349,16 @@ impl Report for FlowReport {
         let mut t = Table::new(
             "terms (start -> end of the flow)",
             &[
-                "term", "origin", "spin", "y0", "Delta0", "y", "Delta", "k", "ell_k", "winner",
+                "name",
+                "origin",
+                "spin",
+                "coupling0",
+                "dimension0",
+                "coupling",
+                "dimension",
+                "momentum",
+                "ell_k",
+                "winner",
             ],
         );
         for c in &self.result.terms {

@@ -11,6 +11,7 @@
 pub mod csv;
 pub mod latex;
 pub mod markdown;
+pub mod provenance;
 pub mod text;
 
 use std::path::Path;
