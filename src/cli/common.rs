@@ -280,3 +280,24 @@ pub(crate) fn stamp_dir(dir: &Path, prov: &Provenance) -> Result<(), Error> {
     }
     Ok(())
 }
+
+/// `--figure-style`: how the figures look.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum, Default)]
+pub enum FigureStyleArg {
+    /// 1200x900 px, title and caption drawn in (PNG, SVG, PDF).
+    #[default]
+    Screen,
+    /// Single-column width (3.4 in PDF), 8-9 pt text, no title or caption
+    /// drawn: they go to a `.txt` beside each figure.
+    Paper,
+}
+
+impl FigureStyleArg {
+    /// Make this thread's figures use the style (see `plot::style`).
+    pub(crate) fn apply(self) {
+        crate::plot::set_figure_style(match self {
+            FigureStyleArg::Screen => crate::plot::FigureStyle::Screen,
+            FigureStyleArg::Paper => crate::plot::FigureStyle::Paper,
+        });
+    }
+}

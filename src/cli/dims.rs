@@ -6,7 +6,8 @@ use std::path::PathBuf;
 use clap::Args;
 
 use super::common::{
-    check_outputs, emit_report, options_json, provenance, stamp_dir, FormatArg, PointArgs,
+    check_outputs, emit_report, options_json, provenance, stamp_dir, FigureStyleArg, FormatArg,
+    PointArgs,
 };
 use crate::dims::convergence::ConvergenceReport;
 use crate::dims::{DimsOptions, DimsReport};
@@ -42,6 +43,10 @@ pub struct DimsArgs {
         conflicts_with = "wires"
     )]
     pub pin: Vec<String>,
+    /// How figures look: `screen` (default) or `paper` (3.4 in wide PDF,
+    /// 8-9 pt text, title and caption in a `.txt` beside each figure).
+    #[arg(long, value_enum, default_value_t = FigureStyleArg::Screen)]
+    pub figure_style: FigureStyleArg,
 }
 
 /// Parse one entry of `--wires`: a whole number of wires or `infinite`.
@@ -61,6 +66,7 @@ fn parse_wires(s: &str) -> Result<Wires, String> {
 
 pub(super) fn run(args: DimsArgs) -> Result<(), Error> {
     check_outputs(args.output.as_deref(), args.out.as_deref())?;
+    args.figure_style.apply();
     let format = args.format.into();
     if !args.wires.is_empty() {
         let model = Model::load(&args.point.model)?;

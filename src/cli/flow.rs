@@ -6,8 +6,8 @@ use std::path::PathBuf;
 use clap::Args;
 
 use super::common::{
-    check_outputs, emit_report, load_point, options_json, provenance, stamp_dir, FlowFlags,
-    FormatArg, PointArgs,
+    check_outputs, emit_report, load_point, options_json, provenance, stamp_dir, FigureStyleArg,
+    FlowFlags, FormatArg, PointArgs,
 };
 use crate::error::{Error, InputError};
 use crate::flow::report::FlowReport;
@@ -27,10 +27,15 @@ pub struct FlowArgs {
     /// Also write summary.json, trajectory.csv, flow.png and flow.svg into this directory.
     #[arg(long, value_name = "DIR")]
     pub out: Option<PathBuf>,
+    /// How figures look: `screen` (default) or `paper` (3.4 in wide PDF,
+    /// 8-9 pt text, title and caption in a `.txt` beside each figure).
+    #[arg(long, value_enum, default_value_t = FigureStyleArg::Screen)]
+    pub figure_style: FigureStyleArg,
 }
 
 pub(super) fn run(args: FlowArgs) -> Result<(), Error> {
     check_outputs(None, args.out.as_deref())?;
+    args.figure_style.apply();
     let (sys, point) = load_point(&args.point)?;
     let opts = FlowOptions::resolve(&sys.model, &args.flow.overrides())?;
     let result = Flow::new(&sys, opts.clone()).run(&point)?;

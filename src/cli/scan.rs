@@ -8,8 +8,8 @@ use clap::Args;
 use indicatif::{ProgressBar, ProgressStyle};
 
 use super::common::{
-    bare_provenance, emit_report, load_point, options_json, provenance, stamp_dir, FlowFlags,
-    FormatArg, PointArgs,
+    bare_provenance, emit_report, load_point, options_json, provenance, stamp_dir, FigureStyleArg,
+    FlowFlags, FormatArg, PointArgs,
 };
 use crate::error::{Error, InputError};
 use crate::flow::FlowOptions;
@@ -59,6 +59,10 @@ pub struct ScanArgs {
     /// What phase.png/svg is coloured by.
     #[arg(long, value_enum, default_value_t = ColorByArg::Phase)]
     pub color_by: ColorByArg,
+    /// How figures look: `screen` (default) or `paper` (3.4 in wide PDF,
+    /// 8-9 pt text, title and caption in a `.txt` beside each figure).
+    #[arg(long, value_enum, default_value_t = FigureStyleArg::Screen)]
+    pub figure_style: FigureStyleArg,
 }
 
 /// `pinflow merge`.
@@ -76,6 +80,10 @@ pub struct MergeArgs {
     /// What phase.png/svg is coloured by.
     #[arg(long, value_enum, default_value_t = ColorByArg::Phase)]
     pub color_by: ColorByArg,
+    /// How figures look: `screen` (default) or `paper` (3.4 in wide PDF,
+    /// 8-9 pt text, title and caption in a `.txt` beside each figure).
+    #[arg(long, value_enum, default_value_t = FigureStyleArg::Screen)]
+    pub figure_style: FigureStyleArg,
 }
 
 /// What a scan's phase map is coloured by.
@@ -127,6 +135,7 @@ fn parse_shard(s: &str) -> Result<(usize, usize), String> {
 
 /// Run `pinflow scan`.
 pub(super) fn run_scan(args: ScanArgs) -> Result<(), Error> {
+    args.figure_style.apply();
     let (sys, base) = load_point(&args.point)?;
     let axes = resolve_axes(&sys.model, args.x.as_deref(), args.y.as_deref())?;
     let options = FlowOptions::resolve(&sys.model, &args.flow.overrides())?;
@@ -196,6 +205,7 @@ pub(super) fn run_scan(args: ScanArgs) -> Result<(), Error> {
 
 /// Run `pinflow merge`.
 pub(super) fn run_merge(args: MergeArgs) -> Result<(), Error> {
+    args.figure_style.apply();
     let dir = args
         .out
         .clone()

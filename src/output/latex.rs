@@ -272,9 +272,11 @@ fn push_escaped(out: &mut String, ch: char) {
         }
         '~' => out.push_str("\\textasciitilde{}"),
         '^' => out.push_str("\\textasciicircum{}"),
-        '|' => out.push_str("\\textbar{}"),
-        '<' => out.push_str("\\textless{}"),
-        '>' => out.push_str("\\textgreater{}"),
+        // Math mode: OT1 text fonts have no such glyphs (the text commands
+        // would fall back to a bitmap TS1 font).
+        '|' => out.push_str("$|$"),
+        '<' => out.push_str("$<$"),
+        '>' => out.push_str("$>$"),
         _ => out.push(ch),
     }
 }
@@ -288,9 +290,10 @@ pub fn escape(s: &str) -> String {
     out
 }
 
-/// A comment line's text: one line, no line breaks.
+/// A comment line's text: one line, no line breaks, and no `^^` (TeX
+/// reads `^^M` as an end of line even inside a comment).
 fn comment(s: &str) -> String {
-    s.replace(['\n', '\r'], " ")
+    s.replace(['\n', '\r'], " ").replace('^', "^{}")
 }
 
 /// Lowercase ASCII letters and digits, everything else one `-`.

@@ -380,6 +380,10 @@ fn with_legend_column<DB: DrawingBackend>(
 }
 
 impl Figure for FlowFigure {
+    fn words(&self) -> (String, String) {
+        (self.title.clone(), self.caption.clone())
+    }
+
     fn draw<DB: DrawingBackend>(
         &self,
         root: &DrawingArea<DB, Shift>,
@@ -447,6 +451,10 @@ impl LineScanFigure {
 }
 
 impl Figure for LineScanFigure {
+    fn words(&self) -> (String, String) {
+        (self.title.clone(), self.caption.clone())
+    }
+
     fn draw<DB: DrawingBackend>(
         &self,
         root: &DrawingArea<DB, Shift>,
