@@ -193,8 +193,9 @@ pub(crate) fn emit(path: Option<&Path>, text: &str) -> Result<(), Error> {
 
 /// The arguments recorded in a provenance block: everything after the
 /// program name except what cannot change a result (`--threads N`,
-/// `--quiet`/`-q`, `--resume`), so that outputs stay byte-identical
-/// whatever the thread count.
+/// `--quiet`/`-q`, `--resume`, and where the outputs go: `--out DIR`,
+/// `-o FILE`), so that outputs stay byte-identical whatever the thread
+/// count or the output directory.
 fn recorded_arguments() -> Vec<String> {
     let mut out = Vec::new();
     let mut skip_value = false;
@@ -203,9 +204,11 @@ fn recorded_arguments() -> Vec<String> {
             continue;
         }
         match a.as_str() {
-            "--threads" => skip_value = true,
+            "--threads" | "--out" | "-o" | "--output" => skip_value = true,
             "--quiet" | "-q" | "--resume" => {}
-            _ if a.starts_with("--threads=") => {}
+            _ if ["--threads=", "--out=", "--output="]
+                .iter()
+                .any(|p| a.starts_with(p)) => {}
             _ => out.push(a),
         }
     }

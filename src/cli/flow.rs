@@ -10,7 +10,7 @@ use super::common::{
     FlowFlags, FormatArg, PointArgs,
 };
 use crate::error::{Error, InputError};
-use crate::flow::report::FlowReport;
+use crate::flow::report::{FlowReport, PlotTerms};
 use crate::flow::{Flow, FlowOptions, Outcome};
 use crate::output;
 
@@ -31,6 +31,11 @@ pub struct FlowArgs {
     /// 8-9 pt text, title and caption in a `.txt` beside each figure).
     #[arg(long, value_enum, default_value_t = FigureStyleArg::Screen)]
     pub figure_style: FigureStyleArg,
+    /// Terms the flow figure draws: `all`, `listed` (the model's terms and
+    /// the winner), or N: the listed terms plus the N generated terms with
+    /// the largest |y| [default 6]; the caption says how many are left out.
+    #[arg(long, value_name = "all|listed|N", default_value = "6", value_parser = parse_plot_terms)]
+    pub plot_terms: PlotTerms,
 }
 
 pub(super) fn run(args: FlowArgs) -> Result<(), Error> {
@@ -51,7 +56,7 @@ pub(super) fn run(args: FlowArgs) -> Result<(), Error> {
     )?;
     let report = FlowReport::new(&sys.model.name, names, &point, result, opts);
     if let Some(dir) = &args.out {
-        report.write_dir(dir)?;
+        report.write_dir_with(dir, args.plot_terms)?;
         stamp_dir(dir, &prov)?;
     }
     let format = args.format.into();
@@ -69,4 +74,15 @@ pub(super) fn run(args: FlowArgs) -> Result<(), Error> {
         )));
     }
     Ok(())
+}
+
+/// `--plot-terms all|listed|N`.
+fn parse_plot_terms(s: &str) -> Result<PlotTerms, String> {
+    match s.trim() {
+        "all" => Ok(PlotTerms::All),
+        "listed" => Ok(PlotTerms::Listed),
+        n => n.parse::<usize>().map(PlotTerms::Largest).map_err(|_| {
+            format!("expected `all`, `listed` or a number of generated terms, found `{s}`")
+        }),
+    }
 }

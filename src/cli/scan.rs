@@ -219,11 +219,13 @@ pub(super) fn run_merge(args: MergeArgs) -> Result<(), Error> {
 }
 
 /// The provenance of a merged scan: that of its first shard (written
-/// beside it as `<shard>.run.json`), else a record of the merge alone.
+/// beside it as `<shard>.run.json`) without its `--shard K/N`, which is
+/// the provenance of the whole scan; else a record of the merge alone.
 fn shard_provenance(shard: &Path) -> Result<Provenance, Error> {
     let run = shard.with_extension("run.json");
     let mut prov = bare_provenance("merge");
     if let Ok(text) = std::fs::read_to_string(&run) {
+        prov.command = "scan".to_string();
         let v: serde_json::Value = serde_json::from_str(&text).map_err(|e| {
             InputError::new(run.display().to_string(), "", format!("not JSON: {e}"))
         })?;
@@ -235,8 +237,27 @@ fn shard_provenance(shard: &Path) -> Result<Provenance, Error> {
         }
         prov.options = field("options");
         prov.grid = serde_json::from_value(field("grid")).unwrap_or_default();
+        let args: Vec<String> = serde_json::from_value(field("arguments")).unwrap_or_default();
+        prov.arguments = without_shard(args);
     }
     Ok(prov)
+}
+
+/// Arguments without `--shard K/N` (or `--shard=K/N`).
+fn without_shard(args: Vec<String>) -> Vec<String> {
+    let mut out = Vec::new();
+    let mut skip = false;
+    for a in args {
+        if std::mem::take(&mut skip) || a.starts_with("--shard=") {
+            continue;
+        }
+        if a == "--shard" {
+            skip = true;
+        } else {
+            out.push(a);
+        }
+    }
+    out
 }
 
 /// Write the summary and figures, then print the summary.

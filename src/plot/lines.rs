@@ -480,10 +480,24 @@ impl Figure for LineScanFigure {
                     series_dash(i),
                 )?;
             }
+            if self.xs.len() <= MARKED_POINTS {
+                // Few points (e.g. `dims --wires`): each one is a measurement.
+                let points = self.xs.iter().copied().zip(s.dimension.iter().copied());
+                let marks = points
+                    .filter(|(x, y)| x.is_finite() && y.is_finite())
+                    .map(|p| Circle::new(p, MARKER_RADIUS, series_colour(i).filled()));
+                chart.draw_series(marks).map_err(msg)?;
+            }
         }
         layout::draw_legend(&legend, &entries, 12).map(|_| ())
     }
 }
+
+/// A one-parameter figure with at most this many points marks each point.
+const MARKED_POINTS: usize = 24;
+
+/// Radius of a point marker in pixels.
+const MARKER_RADIUS: i32 = 6;
 
 #[cfg(test)]
 mod tests {
