@@ -88,3 +88,46 @@ fn paper_style_is_a_column_wide_with_the_caption_beside_it() {
         "caption drawn in the paper style"
     );
 }
+
+#[test]
+fn plot_terms_limits_the_generated_curves_and_says_so() {
+    let dir = tempfile::tempdir().unwrap();
+    flow(dir.path(), "default", &["--figure-style", "paper"]);
+    flow(
+        dir.path(),
+        "all",
+        &["--figure-style", "paper", "--plot-terms", "all"],
+    );
+    flow(
+        dir.path(),
+        "listed",
+        &["--figure-style", "paper", "--plot-terms", "listed"],
+    );
+    let summary: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(dir.path().join("all/summary.json")).unwrap(),
+    )
+    .unwrap();
+    let terms = summary["terms"].as_array().unwrap();
+    let generated = terms.iter().filter(|t| t["origin"] != "listed").count();
+    let winner_generated = terms
+        .iter()
+        .any(|t| t["name"] == summary["winner"] && t["origin"] != "listed");
+    let txt = |d: &str| std::fs::read_to_string(dir.path().join(d).join("flow.txt")).unwrap();
+    let svg = |d: &str| std::fs::read_to_string(dir.path().join(d).join("flow.svg")).unwrap();
+    // The demo at g = 0.8 generates more than 6 terms; the default draws 6.
+    assert!(generated > 6, "{generated}");
+    let left = generated - 6 - usize::from(winner_generated);
+    assert!(
+        txt("default").contains(&format!(" {left} generated term(s)")),
+        "{}",
+        txt("default")
+    );
+    assert!(!txt("all").contains("not drawn"));
+    let listed_left = generated - usize::from(winner_generated);
+    assert!(txt("listed").contains(&format!(" {listed_left} generated term(s)")));
+    // The generated term with the smallest |y| (hop+pair_hop, y ~ 1.7e-4 at
+    // the end) is only in the `all` figure.
+    assert!(svg("all").contains("hop+pair_hop"));
+    assert!(!svg("default").contains("hop+pair_hop"));
+    assert!(svg("listed").contains("pair_hop") && !svg("listed").contains("2*tunnel"));
+}
