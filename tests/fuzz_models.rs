@@ -947,7 +947,7 @@ fn pipeline(text: &str) -> &'static str {
         for f in FORMATS {
             let _ = search::render(&report, f);
         }
-        let _ = search::emit_terms(&report, &sys.model);
+        let _ = search::emit_terms(&report, &sys.model, 0.1);
     }
     stage
 }

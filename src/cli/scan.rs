@@ -16,8 +16,9 @@ use crate::flow::FlowOptions;
 use crate::output::provenance::Provenance;
 use crate::output::{self, Format};
 use crate::scan::figures::ColorBy;
-use crate::scan::run::{check_size, finish, resolve_axes};
-use crate::scan::store::{self, Meta, RowFile};
+use crate::scan::run::{check_size, finish, publish, resolve_axes};
+use crate::scan::store::{self, RowFile};
+use crate::scan::summary::ScanSummary;
 use crate::scan::{partial_path, shard_path, Scan, ScanSpec};
 
 /// `pinflow scan`.
@@ -34,6 +35,8 @@ pub struct ScanArgs {
     pub y: Option<String>,
     #[command(flatten)]
     pub flow: FlowFlags,
+    #[command(flatten)]
+    pub competitors: super::flow::CompetitorFlags,
     /// Output directory [default: out/<model file stem>].
     #[arg(long, value_name = "DIR")]
     pub out: Option<PathBuf>,
@@ -144,7 +147,11 @@ pub(super) fn run_scan(args: ScanArgs) -> Result<(), Error> {
         &args.point.model,
         sys.model.params.names(),
         &base,
-        options_json(&serde_json::json!({ "flow": options, "color_by": args.color_by.word() }))?,
+        options_json(&serde_json::json!({
+            "flow": options,
+            "competitors": args.competitors.recorded(),
+            "color_by": args.color_by.word(),
+        }))?,
     )?;
     prov.grid = axes.iter().map(|a| a.spec()).collect();
     let spec = ScanSpec {
@@ -152,6 +159,7 @@ pub(super) fn run_scan(args: ScanArgs) -> Result<(), Error> {
         base,
         options,
         shard: args.shard,
+        competitors: args.competitors.resolve(&sys)?,
     };
     let bytes = std::fs::read(&args.point.model).map_err(|e| Error::io(&args.point.model, e))?;
     let scan = Scan::new(&sys, &bytes, spec)?;
@@ -189,16 +197,8 @@ pub(super) fn run_scan(args: ScanArgs) -> Result<(), Error> {
             Ok(())
         }
         None => {
-            let points = dir.join("points.csv");
-            store::publish_points(&partial, &scan.meta, &points)?;
-            print_summary(
-                &dir,
-                &scan.meta,
-                args.format.into(),
-                args.color_by.into(),
-                &prov,
-            )?;
-            std::fs::remove_file(&partial).map_err(|e| Error::io(&partial, e))
+            let summary = publish(&dir, &partial, &scan.meta, args.color_by.into())?;
+            print_summary(&dir, &summary, args.format.into(), &prov)
         }
     }
 }
@@ -214,8 +214,9 @@ pub(super) fn run_merge(args: MergeArgs) -> Result<(), Error> {
     output::check_output_dir(&dir, "--out")?;
     std::fs::create_dir_all(&dir).map_err(|e| Error::io(&dir, e))?;
     let meta = store::merge(&args.shards, &dir.join("points.csv"))?;
+    let summary = finish(&dir, &meta, args.color_by.into())?;
     let prov = shard_provenance(&args.shards[0])?;
-    print_summary(&dir, &meta, args.format.into(), args.color_by.into(), &prov)
+    print_summary(&dir, &summary, args.format.into(), &prov)
 }
 
 /// The provenance of a merged scan: that of its first shard (written
@@ -260,17 +261,16 @@ fn without_shard(args: Vec<String>) -> Vec<String> {
     out
 }
 
-/// Write the summary and figures, then print the summary.
+/// Add the provenance to the written files (`run.json`, `summary.json`),
+/// then print the summary.
 fn print_summary(
     dir: &Path,
-    meta: &Meta,
+    summary: &ScanSummary,
     format: Format,
-    by: ColorBy,
     prov: &Provenance,
 ) -> Result<(), Error> {
-    let summary = finish(dir, meta, by)?;
     stamp_dir(dir, prov)?;
-    let mut text = output::render(&summary, format)?;
+    let mut text = output::render(summary, format)?;
     if format == Format::Text {
         text.push_str(&format!("\nwritten to {}\n", dir.display()));
     }
