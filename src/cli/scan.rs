@@ -11,6 +11,7 @@ use super::common::{
     bare_provenance, emit_report, load_point, options_json, provenance, stamp_dir, FigureStyleArg,
     FlowFlags, FormatArg, PointArgs,
 };
+use crate::core::system::System;
 use crate::error::{Error, InputError};
 use crate::flow::FlowOptions;
 use crate::output::provenance::Provenance;
@@ -142,18 +143,7 @@ pub(super) fn run_scan(args: ScanArgs) -> Result<(), Error> {
     let (sys, base) = load_point(&args.point)?;
     let axes = resolve_axes(&sys.model, args.x.as_deref(), args.y.as_deref())?;
     let options = FlowOptions::resolve(&sys.model, &args.flow.overrides())?;
-    let mut prov = provenance(
-        "scan",
-        &args.point.model,
-        sys.model.params.names(),
-        &base,
-        options_json(&serde_json::json!({
-            "flow": options,
-            "competitors": args.competitors.recorded(),
-            "color_by": args.color_by.word(),
-        }))?,
-    )?;
-    prov.grid = axes.iter().map(|a| a.spec()).collect();
+    let prov = scan_provenance(&args, &sys, &base, &options, &axes)?;
     let spec = ScanSpec {
         axes,
         base,
@@ -201,6 +191,26 @@ pub(super) fn run_scan(args: ScanArgs) -> Result<(), Error> {
             print_summary(&dir, &summary, args.format.into(), &prov)
         }
     }
+}
+
+/// The provenance of a scan: the point off the axes, the grid, the flow
+/// and competitor options and the colouring.
+fn scan_provenance(
+    args: &ScanArgs,
+    sys: &System,
+    base: &[f64],
+    options: &FlowOptions,
+    axes: &[crate::scan::Axis],
+) -> Result<Provenance, Error> {
+    let recorded = options_json(&serde_json::json!({
+        "flow": options,
+        "competitors": args.competitors.recorded(),
+        "color_by": args.color_by.word(),
+    }))?;
+    let names = sys.model.params.names();
+    let mut prov = provenance("scan", &args.point.model, names, base, recorded)?;
+    prov.grid = axes.iter().map(|a| a.spec()).collect();
+    Ok(prov)
 }
 
 /// Run `pinflow merge`.
