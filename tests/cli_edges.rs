@@ -167,7 +167,7 @@ mod edges {
         );
         let csv = ok(&dir, &[m, "--pin", "tunnel", "--format", "csv"]);
         let mut rows = csv.lines();
-        assert!(rows.next().unwrap().starts_with("theory,wires,modes,K"));
+        assert!(rows.next().unwrap().starts_with("end,wires,modes,k_matrix"));
         assert_eq!(rows.count(), 3, "left, right, strip: {csv}");
     }
 

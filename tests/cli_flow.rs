@@ -195,8 +195,8 @@ fn out_dir_has_trajectory_and_summary() {
         .collect();
     for n in &names {
         assert!(
-            header.contains(&format!("y:{n}").as_str()),
-            "y:{n} in {header:?}"
+            header.contains(&format!("coupling:{n}").as_str()),
+            "coupling:{n} in {header:?}"
         );
         assert!(
             header.contains(&format!("dimension:{n}").as_str()),
@@ -216,7 +216,7 @@ fn out_dir_has_trajectory_and_summary() {
     let t = &summary["terms"][0];
     let name = t["name"].as_str().unwrap();
     let y0 = t["coupling0"].as_f64().unwrap().abs();
-    assert!((rows[0][col(format!("y:{name}"))] - y0).abs() < 1e-15);
+    assert!((rows[0][col(format!("coupling:{name}"))] - y0).abs() < 1e-15);
     assert!(
         (rows[0][col(format!("dimension:{name}"))] - t["dimension0"].as_f64().unwrap()).abs()
             < 1e-12
@@ -406,7 +406,7 @@ fn flow_csv_is_machine_readable() {
     let mut lines = csv.lines();
     assert_eq!(
         lines.next().unwrap(),
-        "term,origin,spin,y0,Delta0,y,Delta,k,ell_k,winner"
+        "name,origin,spin,coupling0,dimension0,coupling,dimension,momentum,ell_k,winner"
     );
     let terms = v["terms"].as_array().unwrap();
     let rows: Vec<Vec<String>> = lines

@@ -179,7 +179,10 @@ fn dims_against_array_size() {
         &["dims", &m, "--wires", sizes, "--format", "csv"],
     );
     let mut lines = csv.lines();
-    assert_eq!(lines.next().unwrap(), "wires,cdw,pair_hop,hop");
+    assert_eq!(
+        lines.next().unwrap(),
+        "wires,dimension:cdw,dimension:pair_hop,dimension:hop"
+    );
     let rows: Vec<Vec<String>> = lines
         .map(|l| l.split(',').map(str::to_string).collect())
         .collect();

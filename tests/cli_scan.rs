@@ -49,13 +49,17 @@ fn scan_ok(model: &Path, args: &[&str], out: &Path) {
 }
 
 /// Files every finished two-axis scan writes.
-const OUTPUTS: [&str; 6] = [
+const OUTPUTS: [&str; 10] = [
     "points.csv",
     "summary.json",
+    "phases.csv",
+    "run.json",
     "phase.svg",
     "ell_star.svg",
     "phase.png",
     "ell_star.png",
+    "phase.pdf",
+    "ell_star.pdf",
 ];
 
 /// The files `names` are byte for byte the same in `a` and `b`.
@@ -593,8 +597,9 @@ fn figures_of_one_and_two_axis_scans() {
     );
     assert_figure(&two, "phase", &["lambda", "delta"]);
     assert_figure(&two, "ell_star", &["lambda", "delta"]);
-    // The summary lists what was written.
-    for (out, n) in [(&one, 4), (&two, 6)] {
+    // The summary lists what was written: points.csv, summary.json,
+    // phases.csv and each figure as PNG, SVG and PDF.
+    for (out, n) in [(&one, 6), (&two, 9)] {
         let s: serde_json::Value =
             serde_json::from_str(&std::fs::read_to_string(out.join("summary.json")).unwrap())
                 .unwrap();

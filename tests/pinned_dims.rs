@@ -239,7 +239,12 @@ fn cli_dims_pin_in_every_format() {
         .any(|l| l.starts_with("up_only,") && l.ends_with(",false,,true")));
     for fmt in ["text", "markdown", "latex"] {
         let out = run(&["--pin", "spin_bs", "--format", fmt]);
-        assert!(out.contains("Delta pinned"), "{fmt}");
+        let header = if fmt == "latex" {
+            "$\\Delta$ pinned"
+        } else {
+            "Delta pinned"
+        };
+        assert!(out.contains(header), "{fmt}");
         assert!(out.contains("disordered"), "{fmt}");
     }
     // Without --pin nothing changes: no pinned fields.

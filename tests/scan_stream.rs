@@ -316,6 +316,8 @@ fn streamed_summary_equals_the_summary_of_all_rows() {
         let obj = got.as_object_mut().unwrap();
         let notes = obj.remove("notes").expect("notes");
         assert!(obj.remove("files").is_some());
+        // The run's provenance (docs/columns.md) is not part of the tally.
+        assert!(obj.remove("provenance").is_some());
         // A negative margin (a more relevant competitor lost) is explained.
         let negative = got["target"]["margin"]["min"]
             .as_f64()

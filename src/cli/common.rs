@@ -10,6 +10,7 @@ use crate::core::system::System;
 use crate::error::{Error, InputError};
 use crate::flow::options::{Closure, FlowOverrides};
 use crate::model::Model;
+use crate::output::provenance::Provenance;
 use crate::output::{self, Format};
 
 /// Options shared by commands that evaluate a model at one point.
@@ -166,6 +167,8 @@ pub(crate) const STDIN_NAME: &str = "<stdin>";
 pub(crate) fn load_model(path: &Path) -> Result<(Model, String), Error> {
     let (text, file) = if path.as_os_str() == "-" {
         let text = crate::model::read_text(std::io::stdin().lock(), STDIN_NAME)?;
+        // Standard input can be read once: keep it for the provenance digest.
+        let _ = STDIN_TEXT.set(text.clone());
         (text, STDIN_NAME.to_string())
     } else {
         let file = path.display().to_string();
@@ -219,5 +222,125 @@ pub(crate) fn emit(path: Option<&Path>, text: &str) -> Result<(), Error> {
             output::check_output_file(p, "-o")?;
             output::write_atomic(p, text.as_bytes())
         }
+    }
+}
+
+/// The arguments recorded in a provenance block: everything after the
+/// program name except what cannot change a result (`--threads N`,
+/// `--quiet`/`-q`, `--resume`, and where the outputs go: `--out DIR`,
+/// `-o FILE`), so that outputs stay byte-identical whatever the thread
+/// count or the output directory.
+fn recorded_arguments() -> Vec<String> {
+    let mut out = Vec::new();
+    let mut skip_value = false;
+    for a in std::env::args().skip(1) {
+        if std::mem::take(&mut skip_value) {
+            continue;
+        }
+        match a.as_str() {
+            "--threads" | "--out" | "-o" | "--output" => skip_value = true,
+            "--quiet" | "-q" | "--resume" => {}
+            _ if ["--threads=", "--out=", "--output="]
+                .iter()
+                .any(|p| a.starts_with(p)) => {}
+            _ => out.push(a),
+        }
+    }
+    out
+}
+
+/// The provenance of a command run on a model at a point: version,
+/// arguments, the model file's SHA-256, every parameter value and the
+/// engine's options.
+/// The model text read from standard input (`-`), for [`provenance`].
+static STDIN_TEXT: std::sync::OnceLock<String> = std::sync::OnceLock::new();
+
+pub(crate) fn provenance(
+    command: &str,
+    model_path: &Path,
+    sys_names: &[String],
+    point: &[f64],
+    options: serde_json::Value,
+) -> Result<Provenance, Error> {
+    let bytes = match STDIN_TEXT.get() {
+        Some(text) if model_path.as_os_str() == "-" => text.as_bytes().to_vec(),
+        _ => std::fs::read(model_path).map_err(|e| Error::io(model_path, e))?,
+    };
+    let mut p = Provenance::new(command, recorded_arguments());
+    p.model = Some(model_path.display().to_string());
+    p.model_sha256 = Some(output::provenance::sha256_hex(&bytes));
+    for (name, value) in sys_names.iter().zip(point) {
+        p.parameters
+            .insert(name.clone(), serde_json::Value::from(*value));
+    }
+    p.options = options;
+    Ok(p)
+}
+
+/// A provenance without a model (e.g. `merge`).
+pub(crate) fn bare_provenance(command: &str) -> Provenance {
+    Provenance::new(command, recorded_arguments())
+}
+
+/// Options as a JSON value (serialisation of plain structs cannot fail in
+/// practice; an error is reported, not unwrapped).
+pub(crate) fn options_json<T: serde::Serialize>(t: &T) -> Result<serde_json::Value, Error> {
+    serde_json::to_value(t).map_err(|e| Error::Numerical(format!("cannot record options: {e}")))
+}
+
+/// Print or write a rendered report: JSON gets the `provenance` key; a CSV
+/// written to a file gets `<stem>.run.json` beside it.
+pub(crate) fn emit_report(
+    path: Option<&Path>,
+    text: &str,
+    format: Format,
+    prov: &Provenance,
+) -> Result<(), Error> {
+    let to_file = path.filter(|p| p.as_os_str() != "-");
+    if format == Format::Json {
+        return emit(path, &output::provenance::stamp_json(text, prov)?);
+    }
+    if let (Format::Csv, Some(p)) = (format, to_file) {
+        output::check_output_file(p, "-o")?;
+        let sibling = p.with_extension("run.json");
+        output::write_atomic(&sibling, output::to_json(prov)?.as_bytes())?;
+    }
+    emit(path, text)
+}
+
+/// Write `run.json` into an output directory and add the provenance to
+/// its `summary.json`, when there is one.
+pub(crate) fn stamp_dir(dir: &Path, prov: &Provenance) -> Result<(), Error> {
+    output::write_atomic(&dir.join("run.json"), output::to_json(prov)?.as_bytes())?;
+    for name in ["summary.json", "convergence.json"] {
+        let summary = dir.join(name);
+        if !summary.is_file() {
+            continue;
+        }
+        let text = std::fs::read_to_string(&summary).map_err(|e| Error::io(&summary, e))?;
+        let stamped = output::provenance::stamp_json(&text, prov)?;
+        output::write_atomic(&summary, stamped.as_bytes())?;
+    }
+    Ok(())
+}
+
+/// `--figure-style`: how the figures look.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum, Default)]
+pub enum FigureStyleArg {
+    /// 1200x900 px, title and caption drawn in (PNG, SVG, PDF).
+    #[default]
+    Screen,
+    /// Single-column width (3.4 in PDF), 8-9 pt text, no title or caption
+    /// drawn: they go to a `.txt` beside each figure.
+    Paper,
+}
+
+impl FigureStyleArg {
+    /// Make this thread's figures use the style (see `plot::style`).
+    pub(crate) fn apply(self) {
+        crate::plot::set_figure_style(match self {
+            FigureStyleArg::Screen => crate::plot::FigureStyle::Screen,
+            FigureStyleArg::Paper => crate::plot::FigureStyle::Paper,
+        });
     }
 }

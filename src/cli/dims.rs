@@ -5,7 +5,10 @@ use std::path::PathBuf;
 
 use clap::Args;
 
-use super::common::{check_outputs, emit, FormatArg, PointArgs};
+use super::common::{
+    check_outputs, emit_report, options_json, provenance, stamp_dir, FigureStyleArg, FormatArg,
+    PointArgs,
+};
 use crate::dims::convergence::ConvergenceReport;
 use crate::dims::{DimsOptions, DimsReport};
 use crate::error::Error;
@@ -40,6 +43,10 @@ pub struct DimsArgs {
         conflicts_with = "wires"
     )]
     pub pin: Vec<String>,
+    /// How figures look: `screen` (default) or `paper` (3.4 in wide PDF,
+    /// 8-9 pt text, title and caption in a `.txt` beside each figure).
+    #[arg(long, value_enum, default_value_t = FigureStyleArg::Screen)]
+    pub figure_style: FigureStyleArg,
 }
 
 /// Parse one entry of `--wires`: a whole number of wires or `infinite`.
@@ -63,15 +70,38 @@ pub(super) fn run(args: DimsArgs) -> Result<(), Error> {
         args.output.as_deref(),
         args.out.as_deref(),
     )?;
+    args.figure_style.apply();
     let format = args.format.into();
     if !args.wires.is_empty() {
         let (model, _) = super::common::load_model(&args.point.model)?;
         let point = model.point_with(&args.point.set, "--set")?;
         let report = ConvergenceReport::build(&model, &point, &args.wires, "--wires")?;
+        let wires: Vec<String> = args
+            .wires
+            .iter()
+            .map(|w| match w {
+                Wires::Finite(n) => n.to_string(),
+                Wires::Infinite => "infinite".to_string(),
+            })
+            .collect();
+        let options = serde_json::json!({ "wires": wires });
+        let prov = provenance(
+            "dims",
+            &args.point.model,
+            model.params.names(),
+            &point,
+            options,
+        )?;
         if let Some(dir) = &args.out {
             report.write_dir(dir)?;
+            stamp_dir(dir, &prov)?;
         }
-        return emit(args.output.as_deref(), &output::render(&report, format)?);
+        return emit_report(
+            args.output.as_deref(),
+            &output::render(&report, format)?,
+            format,
+            &prov,
+        );
     }
     let (sys, point) = super::common::load_point(&args.point)?;
     let opts = DimsOptions {
@@ -79,5 +109,13 @@ pub(super) fn run(args: DimsArgs) -> Result<(), Error> {
         ..Default::default()
     };
     let report = DimsReport::build_opts(&sys, &point, &opts)?;
-    emit(args.output.as_deref(), &output::render(&report, format)?)
+    let options = options_json(&serde_json::json!({ "pin": args.pin }))?;
+    let names = sys.model.params.names();
+    let prov = provenance("dims", &args.point.model, names, &point, options)?;
+    emit_report(
+        args.output.as_deref(),
+        &output::render(&report, format)?,
+        format,
+        &prov,
+    )
 }

@@ -4,7 +4,9 @@ use std::path::PathBuf;
 
 use clap::Args;
 
-use super::common::{check_outputs, emit, load_point, FlowFlags, FormatArg, PointArgs};
+use super::common::{
+    check_outputs, emit_report, load_point, provenance, FlowFlags, FormatArg, PointArgs,
+};
 use crate::edges::pins::{self, Selection};
 use crate::edges::{analyse, report::EdgesReport};
 use crate::error::Error;
@@ -40,6 +42,11 @@ pub(super) fn run(args: EdgesArgs) -> Result<(), Error> {
     let (sys, point) = load_point(&args.point)?;
     // Flow options are checked even when --pin makes the flow unnecessary.
     let opts = FlowOptions::resolve(&sys.model, &args.flow.overrides())?;
+    // The flow options matter only when the flow chooses the pinned set.
+    let opts_json = match args.pin.is_empty() {
+        true => super::common::options_json(&opts)?,
+        false => serde_json::Value::Null,
+    };
     let selection: Selection = if args.pin.is_empty() {
         pins::from_flow(&sys, &point, opts)?
     } else {
@@ -47,8 +54,10 @@ pub(super) fn run(args: EdgesArgs) -> Result<(), Error> {
     };
     let analysis = analyse(&sys, &selection.pinned, args.window)?;
     let report = EdgesReport::new(&sys, &point, &selection, &analysis);
-    emit(
-        args.output.as_deref(),
-        &output::render(&report, args.format.into())?,
-    )
+    let options = serde_json::json!({ "pin": args.pin, "window": args.window, "flow": opts_json });
+    let names = sys.model.params.names();
+    let prov = provenance("edges", &args.point.model, names, &point, options)?;
+    let format = args.format.into();
+    let text = output::render(&report, format)?;
+    emit_report(args.output.as_deref(), &text, format, &prov)
 }

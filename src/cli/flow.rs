@@ -5,11 +5,14 @@ use std::path::PathBuf;
 
 use clap::Args;
 
-use super::common::{check_outputs, emit, load_point, FlowFlags, FormatArg, PointArgs};
+use super::common::{
+    check_outputs, emit_report, load_point, options_json, provenance, stamp_dir, FigureStyleArg,
+    FlowFlags, FormatArg, PointArgs,
+};
 use crate::core::system::System;
 use crate::error::{Error, InputError};
 use crate::flow::competitors::{Competing, CompetitorOptions};
-use crate::flow::report::FlowReport;
+use crate::flow::report::{FlowReport, PlotTerms};
 use crate::flow::{Flow, FlowOptions, FlowResult, Outcome};
 use crate::output;
 use crate::search::SymmetryChoice;
@@ -29,6 +32,15 @@ pub struct FlowArgs {
     /// Also write summary.json, trajectory.csv, flow.png and flow.svg into this directory.
     #[arg(long, value_name = "DIR")]
     pub out: Option<PathBuf>,
+    /// How figures look: `screen` (default) or `paper` (3.4 in wide PDF,
+    /// 8-9 pt text, title and caption in a `.txt` beside each figure).
+    #[arg(long, value_enum, default_value_t = FigureStyleArg::Screen)]
+    pub figure_style: FigureStyleArg,
+    /// Terms the flow figure draws: `all`, `listed` (the model's terms and
+    /// the winner), or N: the listed terms plus the N generated terms with
+    /// the largest |y| [default 6]; the caption says how many are left out.
+    #[arg(long, value_name = "all|listed|N", default_value = "6", value_parser = parse_plot_terms)]
+    pub plot_terms: PlotTerms,
 }
 
 /// Hunted competitors in the flow (`flow` and `scan`).
@@ -57,6 +69,16 @@ pub struct CompetitorFlags {
 }
 
 impl CompetitorFlags {
+    /// The flags as given, for the provenance block.
+    pub(crate) fn recorded(&self) -> serde_json::Value {
+        serde_json::json!({
+            "competitors": self.competitors,
+            "competitor_coupling": self.competitor_coupling,
+            "competitor_range": self.competitor_range,
+            "competitor_symmetry": format!("{:?}", self.symmetry),
+        })
+    }
+
     /// The options, over the model's [competitors] table (None: off).
     pub fn resolve(&self, sys: &System) -> Result<Option<CompetitorOptions>, Error> {
         let range = match self.competitor_range {
@@ -98,6 +120,7 @@ fn flow_once(
 
 pub(super) fn run(args: FlowArgs) -> Result<(), Error> {
     check_outputs(&[&args.point.model], None, args.out.as_deref())?;
+    args.figure_style.apply();
     let (sys, point) = load_point(&args.point)?;
     let opts = FlowOptions::resolve(&sys.model, &args.flow.overrides())?;
     let comp = args.competitors.resolve(&sys)?;
@@ -105,11 +128,18 @@ pub(super) fn run(args: FlowArgs) -> Result<(), Error> {
     let unphysical = result.outcome == Outcome::Unphysical;
     let failed = result.outcome == Outcome::Failed;
     let names = sys.model.params.names();
+    let options = options_json(&serde_json::json!({
+        "flow": opts,
+        "competitors": args.competitors.recorded(),
+    }))?;
+    let prov = provenance("flow", &args.point.model, names, &point, options)?;
     let report = FlowReport::new(&sys.model.name, names, &point, result, opts);
     if let Some(dir) = &args.out {
-        report.write_dir(dir)?;
+        report.write_dir_with(dir, args.plot_terms)?;
+        stamp_dir(dir, &prov)?;
     }
-    emit(None, &output::render(&report, args.format.into())?)?;
+    let format = args.format.into();
+    emit_report(None, &output::render(&report, format)?, format, &prov)?;
     let msg = report.result.message.clone().unwrap_or_default();
     if unphysical {
         return Err(Error::Input(InputError::new(&sys.model.file, "", msg)));
@@ -123,4 +153,15 @@ pub(super) fn run(args: FlowArgs) -> Result<(), Error> {
         )));
     }
     Ok(())
+}
+
+/// `--plot-terms all|listed|N`.
+fn parse_plot_terms(s: &str) -> Result<PlotTerms, String> {
+    match s.trim() {
+        "all" => Ok(PlotTerms::All),
+        "listed" => Ok(PlotTerms::Listed),
+        n => n.parse::<usize>().map(PlotTerms::Largest).map_err(|_| {
+            format!("expected `all`, `listed` or a number of generated terms, found `{s}`")
+        }),
+    }
 }

@@ -4,7 +4,9 @@ use std::path::PathBuf;
 
 use clap::{Args, ValueEnum};
 
-use super::common::{check_outputs, emit, load_point, FormatArg, PointArgs};
+use super::common::{
+    check_outputs, emit, emit_report, load_point, provenance, FormatArg, PointArgs,
+};
 use crate::error::Error;
 use crate::search::{
     emit_terms, hunt, render, smallest_coupling, ChargeFilter, HuntOptions, MomentumFilter,
@@ -166,13 +168,34 @@ pub(super) fn run(args: HuntArgs) -> Result<(), Error> {
     check_outputs(&[&args.point.model], args.output.as_deref(), None)?;
     let (sys, point) = load_point(&args.point)?;
     let report = hunt(&sys, &point, &options(&args))?;
-    let text = if args.emit_terms {
+    if args.emit_terms {
         let y = args
             .coupling
             .unwrap_or_else(|| smallest_coupling(&sys, &point));
-        emit_terms(&report, &sys.model, y)
-    } else {
-        render(&report, args.format.into())?
-    };
-    emit(args.output.as_deref(), &text)
+        return emit(args.output.as_deref(), &emit_terms(&report, &sys.model, y));
+    }
+    let names = sys.model.params.names();
+    let prov = provenance("hunt", &args.point.model, names, &point, recorded(&args))?;
+    let format = args.format.into();
+    let text = render(&report, format)?;
+    emit_report(args.output.as_deref(), &text, format, &prov)
+}
+
+/// The hunt's options for the provenance block.
+fn recorded(args: &HuntArgs) -> serde_json::Value {
+    serde_json::json!({
+        "max_dim": args.max_dim,
+        "charge": match args.charge {
+            ChargeFilter::Any => serde_json::Value::from("any"),
+            ChargeFilter::Exactly(q) => serde_json::Value::from(q),
+        },
+        "spin": match args.spin { SpinArg::Zero => "0", SpinArg::Any => "any" },
+        "range": args.range,
+        "momentum": args.momentum.map(|m| match m {
+            MomentumArg::Conserved => "conserved",
+            MomentumArg::Any => "any",
+        }),
+        "symmetry": format!("{:?}", args.symmetry),
+        "force": args.force,
+    })
 }

@@ -27,7 +27,7 @@ pub use scan::{MergeArgs, ScanArgs};
 /// Fixed-point data, RG flows and phase diagrams of coupled-wire and
 /// Luttinger-liquid models.
 #[derive(Debug, Parser)]
-#[command(name = "pinflow", version, about, long_about = None)]
+#[command(name = "pinflow", version = crate::output::provenance::version_text(), about, long_about = None)]
 pub struct Cli {
     /// What to do.
     #[command(subcommand)]

@@ -9,9 +9,14 @@ use std::time::{Duration, Instant};
 use clap::Args;
 use indicatif::{ProgressBar, ProgressStyle};
 
-use super::common::{emit, load_point_text, FlowFlags, FormatArg, PointArgs};
+use super::common::{
+    bare_provenance, emit, emit_report, load_point_text, options_json, provenance, stamp_dir,
+    FigureStyleArg, FlowFlags, FormatArg, PointArgs,
+};
+use crate::core::system::System;
 use crate::error::{Error, InputError};
 use crate::flow::FlowOptions;
+use crate::output::provenance::Provenance;
 use crate::output::{self, Format};
 use crate::scan::figures::ColorBy;
 use crate::scan::folder::{self, FolderLock};
@@ -75,6 +80,10 @@ pub struct ScanArgs {
     /// What phase.png/svg is coloured by.
     #[arg(long, value_enum, default_value_t = ColorByArg::Phase)]
     pub color_by: ColorByArg,
+    /// How figures look: `screen` (default) or `paper` (3.4 in wide PDF,
+    /// 8-9 pt text, title and caption in a `.txt` beside each figure).
+    #[arg(long, value_enum, default_value_t = FigureStyleArg::Screen)]
+    pub figure_style: FigureStyleArg,
 }
 
 /// `pinflow merge`.
@@ -103,6 +112,10 @@ pub struct MergeArgs {
     /// What phase.png/svg is coloured by.
     #[arg(long, value_enum, default_value_t = ColorByArg::Phase)]
     pub color_by: ColorByArg,
+    /// How figures look: `screen` (default) or `paper` (3.4 in wide PDF,
+    /// 8-9 pt text, title and caption in a `.txt` beside each figure).
+    #[arg(long, value_enum, default_value_t = FigureStyleArg::Screen)]
+    pub figure_style: FigureStyleArg,
 }
 
 /// What a scan's phase map is coloured by.
@@ -112,6 +125,16 @@ pub enum ColorByArg {
     Phase,
     /// The first term to reach strong coupling (the map before staging).
     Winner,
+}
+
+impl ColorByArg {
+    /// The flag's value as typed.
+    fn word(self) -> &'static str {
+        match self {
+            ColorByArg::Phase => "phase",
+            ColorByArg::Winner => "winner",
+        }
+    }
 }
 
 impl From<ColorByArg> for ColorBy {
@@ -167,10 +190,12 @@ fn shard_of(args: &ScanArgs) -> Result<Option<(usize, usize)>, Error> {
 
 /// Run `pinflow scan`.
 pub(super) fn run_scan(args: ScanArgs) -> Result<(), Error> {
+    args.figure_style.apply();
     let shard = shard_of(&args)?;
     let (sys, base, text) = load_point_text(&args.point)?;
     let axes = resolve_axes(&sys.model, args.x.as_deref(), args.y.as_deref())?;
     let options = FlowOptions::resolve(&sys.model, &args.flow.overrides())?;
+    let prov = scan_provenance(&args, &sys, &base, &options, &axes)?;
     let spec = ScanSpec {
         axes,
         base,
@@ -207,6 +232,8 @@ pub(super) fn run_scan(args: ScanArgs) -> Result<(), Error> {
         Some((k, n)) => {
             let target = shard_path(&dir, k, n);
             std::fs::rename(&partial, &target).map_err(|e| Error::io(&target, e))?;
+            let run = target.with_extension("run.json");
+            output::write_atomic(&run, output::to_json(&prov)?.as_bytes())?;
             eprintln!(
                 "shard {k}/{n}: {todo} points written to {}; join all shards with `pinflow merge`",
                 target.display()
@@ -215,7 +242,7 @@ pub(super) fn run_scan(args: ScanArgs) -> Result<(), Error> {
         }
         None => {
             let summary = publish(&dir, &partial, &scan.meta, args.color_by.into())?;
-            print_summary(&dir, &summary, args.format.into())
+            print_summary(&dir, &summary, args.format.into(), &prov)
         }
     }
 }
@@ -306,8 +333,29 @@ fn file_name(p: &Path) -> String {
         .unwrap_or_default()
 }
 
+/// The provenance of a scan: the point off the axes, the grid, the flow
+/// and competitor options and the colouring.
+fn scan_provenance(
+    args: &ScanArgs,
+    sys: &System,
+    base: &[f64],
+    options: &FlowOptions,
+    axes: &[crate::scan::Axis],
+) -> Result<Provenance, Error> {
+    let recorded = options_json(&serde_json::json!({
+        "flow": options,
+        "competitors": args.competitors.recorded(),
+        "color_by": args.color_by.word(),
+    }))?;
+    let names = sys.model.params.names();
+    let mut prov = provenance("scan", &args.point.model, names, base, recorded)?;
+    prov.grid = axes.iter().map(|a| a.spec()).collect();
+    Ok(prov)
+}
+
 /// Run `pinflow merge`.
 pub(super) fn run_merge(args: MergeArgs) -> Result<(), Error> {
+    args.figure_style.apply();
     let shards_dir = args.shards[0]
         .parent()
         .filter(|p| !p.as_os_str().is_empty())
@@ -340,7 +388,8 @@ pub(super) fn run_merge(args: MergeArgs) -> Result<(), Error> {
     }
     let (meta, staged) = store::merge(&args.shards, &dir.join("points.csv"))?;
     let summary = publish_staged(&dir, &staged, &meta, args.color_by.into())?;
-    print_summary(&dir, &summary, args.format.into())
+    let prov = shard_provenance(&args.shards[0])?;
+    print_summary(&dir, &summary, args.format.into(), &prov)
 }
 
 /// `merge --partial`: the preview's rows and counts, then the counts on
@@ -376,13 +425,62 @@ fn write_preview(dir: &Path, args: &MergeArgs) -> Result<(), Error> {
     )
 }
 
-/// Print the summary (whose files are written).
-fn print_summary(dir: &Path, summary: &ScanSummary, format: Format) -> Result<(), Error> {
+/// The provenance of a merged scan: that of its first shard (written
+/// beside it as `<shard>.run.json`) without its `--shard K/N`, which is
+/// the provenance of the whole scan; else a record of the merge alone.
+fn shard_provenance(shard: &Path) -> Result<Provenance, Error> {
+    let run = shard.with_extension("run.json");
+    let mut prov = bare_provenance("merge");
+    if let Ok(text) = std::fs::read_to_string(&run) {
+        prov.command = "scan".to_string();
+        let v: serde_json::Value = serde_json::from_str(&text).map_err(|e| {
+            InputError::new(run.display().to_string(), "", format!("not JSON: {e}"))
+        })?;
+        let field = |k: &str| v.get(k).cloned().unwrap_or(serde_json::Value::Null);
+        prov.model = field("model").as_str().map(str::to_string);
+        prov.model_sha256 = field("model_sha256").as_str().map(str::to_string);
+        if let serde_json::Value::Object(m) = field("parameters") {
+            prov.parameters = m;
+        }
+        prov.options = field("options");
+        prov.grid = serde_json::from_value(field("grid")).unwrap_or_default();
+        let args: Vec<String> = serde_json::from_value(field("arguments")).unwrap_or_default();
+        prov.arguments = without_shard(args);
+    }
+    Ok(prov)
+}
+
+/// Arguments without `--shard K/N` (or `--shard=K/N`).
+fn without_shard(args: Vec<String>) -> Vec<String> {
+    let mut out = Vec::new();
+    let mut skip = false;
+    for a in args {
+        if std::mem::take(&mut skip) || a.starts_with("--shard=") {
+            continue;
+        }
+        if a == "--shard" {
+            skip = true;
+        } else {
+            out.push(a);
+        }
+    }
+    out
+}
+
+/// Add the provenance to the written files (`run.json`, `summary.json`),
+/// then print the summary.
+fn print_summary(
+    dir: &Path,
+    summary: &ScanSummary,
+    format: Format,
+    prov: &Provenance,
+) -> Result<(), Error> {
+    stamp_dir(dir, prov)?;
     let mut text = output::render(summary, format)?;
     if format == Format::Text {
         text.push_str(&format!("\nwritten to {}\n", dir.display()));
     }
-    emit(None, &text)
+    emit_report(None, &text, format, prov)
 }
 
 /// Most worker threads per core: more only adds overhead (100000 threads

@@ -180,7 +180,7 @@ impl Report for ConvergenceReport {
 
     fn csv_table(&self) -> Table {
         let mut headers = vec!["wires".to_string()];
-        headers.extend(self.terms.iter().cloned());
+        headers.extend(self.terms.iter().map(|t| format!("dimension:{t}")));
         let mut t = Table::with_headers("dimensions", headers);
         for r in &self.rows {
             let mut row = vec![ConvergenceReport::label(r)];

@@ -734,8 +734,20 @@ impl Report for EdgesReport {
         tables
     }
 
+    /// The summary with the shared column names of `docs/columns.md`
+    /// (`end`, `k_matrix`, `abs_det` as in the JSON).
     fn csv_table(&self) -> Table {
-        self.summary(false)
+        let mut t = self.summary(false);
+        for h in &mut t.headers {
+            *h = match h.as_str() {
+                "theory" => "end",
+                "K" => "k_matrix",
+                "|det K|" => "abs_det",
+                other => other,
+            }
+            .to_string();
+        }
+        t
     }
 
     fn notes(&self) -> Vec<String> {

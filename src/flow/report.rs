@@ -210,23 +210,34 @@ impl FlowReport {
         format!("At {}.", p.join(", "))
     }
 
-    /// Write `summary.json`, `trajectory.csv` and the figures into `dir`.
+    /// Write `summary.json`, `trajectory.csv`, `terms.csv` and the figures
+    /// into `dir` (the figure draws the default terms, see [`PlotTerms`]).
     pub fn write_dir(&self, dir: &Path) -> Result<(), Error> {
+        self.write_dir_with(dir, PlotTerms::default())
+    }
+
+    /// [`FlowReport::write_dir`] with a choice of the terms drawn.
+    pub fn write_dir_with(&self, dir: &Path, plot_terms: PlotTerms) -> Result<(), Error> {
         std::fs::create_dir_all(dir).map_err(|e| Error::io(dir, e))?;
         output::write_atomic(
             &dir.join("trajectory.csv"),
             self.trajectory_csv()?.as_bytes(),
         )?;
-        crate::flow::report::figure::write(self, &dir.join("flow"))?;
+        crate::flow::report::figure::write(self, &dir.join("flow"), plot_terms)?;
+        // The terms table also as CSV: summary.json nests it.
+        output::write_atomic(
+            &dir.join("terms.csv"),
+            output::csv::render(&output::Report::csv_table(self))?.as_bytes(),
+        )?;
         output::write_atomic(&dir.join("summary.json"), output::to_json(self)?.as_bytes())
     }
 
-    /// The trajectory as CSV: `ell`, then `y:<name>` and `dimension:<name>`
+    /// The trajectory as CSV: `ell`, then `coupling:<name>` and `dimension:<name>`
     /// for every channel.
     pub fn trajectory_csv(&self) -> Result<String, Error> {
         let names: Vec<&str> = self.result.terms.iter().map(|t| t.name.as_str()).collect();
         let mut headers = vec!["ell".to_string()];
-        headers.extend(names.iter().map(|n| format!("y:{n}")));
+        headers.extend(names.iter().map(|n| format!("coupling:{n}")));
         headers.extend(names.iter().map(|n| format!("dimension:{n}")));
         let mut t = Table::with_headers("trajectory", headers);
         for s in &self.result.samples {
@@ -350,7 +361,16 @@ impl Report for FlowReport {
         let mut t = Table::new(
             "terms (start -> end of the flow)",
             &[
-                "term", "origin", "spin", "y0", "Delta0", "y", "Delta", "k", "ell_k", "winner",
+                "name",
+                "origin",
+                "spin",
+                "coupling0",
+                "dimension0",
+                "coupling",
+                "dimension",
+                "momentum",
+                "ell_k",
+                "winner",
             ],
         );
         for c in &self.result.terms {
@@ -451,20 +471,67 @@ fn check_note(c: &QuadratureCheck) -> String {
     }
 }
 
+/// Which terms the flow figure draws (`--plot-terms`).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum PlotTerms {
+    /// Every channel.
+    All,
+    /// The model's listed terms (and the winner).
+    Listed,
+    /// The listed terms, the winner, and the N generated terms with the
+    /// largest |y| anywhere on the flow.
+    Largest(usize),
+}
+
+impl Default for PlotTerms {
+    fn default() -> PlotTerms {
+        PlotTerms::Largest(6)
+    }
+}
+
 /// The flow figure: |y| (log axis) and Delta against ell.
 pub mod figure {
-    use super::{FlowReport, METHOD_NOTE};
+    use super::{FlowReport, PlotTerms, METHOD_NOTE};
     use crate::error::Error;
+    use crate::flow::FlowResult;
     use crate::plot::{flow_figure, FlowFigure, FlowSeries};
     use std::path::Path;
 
-    /// Write `<stem>.png` and `<stem>.svg`.
-    pub fn write(report: &FlowReport, stem: &Path) -> Result<(), Error> {
+    /// The channels drawn, in their order: listed terms and the winner
+    /// always, generated ones by their largest |y| on the flow (ties by
+    /// order, so the choice is deterministic).
+    pub fn chosen(r: &FlowResult, which: PlotTerms) -> Vec<usize> {
+        let keep = |i: usize| r.terms[i].origin == "listed" || r.winner_index == Some(i);
+        let n = r.terms.len();
+        let extra = match which {
+            PlotTerms::All => return (0..n).collect(),
+            PlotTerms::Listed => 0,
+            PlotTerms::Largest(k) => k,
+        };
+        let peak = |i: usize| {
+            r.samples
+                .iter()
+                .map(|s| s.couplings[i].abs())
+                .filter(|y| y.is_finite())
+                .fold(0.0, f64::max)
+        };
+        let mut generated: Vec<usize> = (0..n).filter(|&i| !keep(i)).collect();
+        generated.sort_by(|&a, &b| peak(b).total_cmp(&peak(a)).then(a.cmp(&b)));
+        generated.truncate(extra);
+        let mut out: Vec<usize> = (0..n).filter(|&i| keep(i)).collect();
+        out.extend(generated);
+        out.sort_unstable();
+        out
+    }
+
+    /// Write `<stem>.png`, `.svg` and `.pdf`.
+    pub fn write(report: &FlowReport, stem: &Path, which: PlotTerms) -> Result<(), Error> {
         let r = &report.result;
-        let series = r
-            .terms
+        let drawn = chosen(r, which);
+        let left_out = r.terms.len() - drawn.len();
+        let series = drawn
             .iter()
-            .enumerate()
+            .map(|&i| (i, &r.terms[i]))
             .map(|(i, t)| FlowSeries {
                 name: t.name.clone(),
                 coupling: r.samples.iter().map(|s| s.couplings[i]).collect(),
@@ -483,11 +550,28 @@ pub mod figure {
             ),
             ell: r.samples.iter().map(|s| s.ell).collect(),
             series,
-            winner: r.winner_index,
+            winner: r
+                .winner_index
+                .and_then(|w| drawn.iter().position(|&i| i == w)),
             ell_star: r.ell_star,
             stages: r.stages.iter().skip(1).map(|s| s.ell).collect(),
-            caption: format!("{} {}", report.point_text(), METHOD_NOTE),
+            caption: format!(
+                "{} {}{}",
+                report.point_text(),
+                METHOD_NOTE,
+                left_out_note(left_out)
+            ),
         };
         Ok(flow_figure(stem, &data)?)
+    }
+
+    /// " N generated terms with smaller |y| are not drawn (...)" or "".
+    fn left_out_note(n: usize) -> String {
+        match n {
+            0 => String::new(),
+            _ => format!(
+                " {n} generated term(s) with smaller |y| not drawn (--plot-terms all draws every term)."
+            ),
+        }
     }
 }

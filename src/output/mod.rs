@@ -12,6 +12,7 @@ pub mod csv;
 pub mod file;
 pub mod latex;
 pub mod markdown;
+pub mod provenance;
 pub mod text;
 
 use std::path::Path;

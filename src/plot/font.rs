@@ -5,7 +5,7 @@ use std::sync::OnceLock;
 use plotters::style::{register_font, FontStyle, IntoFont, RGBColor, TextStyle};
 
 /// DejaVu Sans, shipped with the crate (licence beside the file in `assets/fonts`).
-static DEJAVU_SANS: &[u8] = include_bytes!("../../assets/fonts/DejaVuSans.ttf");
+pub(crate) static DEJAVU_SANS: &[u8] = include_bytes!("../../assets/fonts/DejaVuSans.ttf");
 
 /// Family name under which the embedded font is registered.
 pub(crate) const FAMILY: &str = "sans-serif";

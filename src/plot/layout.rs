@@ -95,6 +95,10 @@ pub(crate) fn frame<DB: DrawingBackend>(
     caption: &str,
 ) -> Result<DrawingArea<DB, Shift>, String> {
     let page = root.margin(PAGE_MARGIN, PAGE_MARGIN, PAGE_MARGIN, PAGE_MARGIN);
+    if super::style::figure_style() == super::style::FigureStyle::Paper {
+        // A paper has its own caption: neither is drawn (see `style`).
+        return Ok(page);
+    }
     let (w, h) = page.dim_in_pixel();
     let caption_style = font::style(size::CAPTION, CAPTION_INK);
     let mut lines = wrap(&page, caption, &caption_style, w as i32)?;

@@ -380,6 +380,10 @@ fn with_legend_column<DB: DrawingBackend>(
 }
 
 impl Figure for FlowFigure {
+    fn words(&self) -> (String, String) {
+        (self.title.clone(), self.caption.clone())
+    }
+
     fn draw<DB: DrawingBackend>(
         &self,
         root: &DrawingArea<DB, Shift>,
@@ -447,6 +451,10 @@ impl LineScanFigure {
 }
 
 impl Figure for LineScanFigure {
+    fn words(&self) -> (String, String) {
+        (self.title.clone(), self.caption.clone())
+    }
+
     fn draw<DB: DrawingBackend>(
         &self,
         root: &DrawingArea<DB, Shift>,
@@ -472,10 +480,24 @@ impl Figure for LineScanFigure {
                     series_dash(i),
                 )?;
             }
+            if self.xs.len() <= MARKED_POINTS {
+                // Few points (e.g. `dims --wires`): each one is a measurement.
+                let points = self.xs.iter().copied().zip(s.dimension.iter().copied());
+                let marks = points
+                    .filter(|(x, y)| x.is_finite() && y.is_finite())
+                    .map(|p| Circle::new(p, MARKER_RADIUS, series_colour(i).filled()));
+                chart.draw_series(marks).map_err(msg)?;
+            }
         }
         layout::draw_legend(&legend, &entries, 12).map(|_| ())
     }
 }
+
+/// A one-parameter figure with at most this many points marks each point.
+const MARKED_POINTS: usize = 24;
+
+/// Radius of a point marker in pixels.
+const MARKER_RADIUS: i32 = 6;
 
 #[cfg(test)]
 mod tests {

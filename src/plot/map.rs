@@ -23,7 +23,7 @@ use serde::{Deserialize, Serialize};
 pub use super::contour::{contour_lines, ContourTracer};
 use super::font::{self, size};
 use super::layout::{self, Axes, Chart, Dash, LegendEntry, INK};
-use super::output::{self, msg, Figure, Raster, Surface, MARKER, SIZE};
+use super::output::{self, msg, Figure, Raster, Surface, MARKER};
 use super::palette;
 use super::PlotError;
 
@@ -229,9 +229,10 @@ fn draw_raster<DB: DrawingBackend>(
         let (p, q) = (chart.backend_coord(&a), chart.backend_coord(&b));
         ((p.0.min(q.0), p.1.min(q.1)), (p.0.max(q.0), p.1.max(q.1)))
     };
-    let mut page = vec![255u8; (SIZE.0 * SIZE.1 * 3) as usize];
+    let size = super::style::canvas();
+    let mut page = vec![255u8; (size.0 * size.1 * 3) as usize];
     {
-        let mut bitmap = BitMapBackend::with_buffer(&mut page, SIZE);
+        let mut bitmap = BitMapBackend::with_buffer(&mut page, size);
         for r in runs(nx, ny, colour_of) {
             let (ul, br) = pixels((ex[r.start], ey[r.iy]), (ex[r.end], ey[r.iy + 1]));
             bitmap
@@ -251,13 +252,14 @@ fn draw_raster<DB: DrawingBackend>(
 
 /// The pixels `ul..br` (end exclusive, clipped to the page) of an RGB page.
 fn crop(page: &[u8], ul: (i32, i32), br: (i32, i32)) -> Option<Raster> {
+    let size = super::style::canvas();
     let clip = |v: i32, max: u32| v.clamp(0, max as i32) as usize;
-    let (x0, x1) = (clip(ul.0, SIZE.0), clip(br.0, SIZE.0));
-    let (y0, y1) = (clip(ul.1, SIZE.1), clip(br.1, SIZE.1));
+    let (x0, x1) = (clip(ul.0, size.0), clip(br.0, size.0));
+    let (y0, y1) = (clip(ul.1, size.1), clip(br.1, size.1));
     if x0 >= x1 || y0 >= y1 {
         return None;
     }
-    let row = SIZE.0 as usize * 3;
+    let row = size.0 as usize * 3;
     let rgb = (y0..y1)
         .flat_map(|y| &page[y * row + x0 * 3..y * row + x1 * 3])
         .copied()
@@ -344,6 +346,10 @@ impl PhaseMap {
 }
 
 impl Figure for PhaseMap {
+    fn words(&self) -> (String, String) {
+        (self.title.clone(), self.caption.clone())
+    }
+
     fn draw<DB: DrawingBackend>(
         &self,
         root: &DrawingArea<DB, Shift>,
@@ -442,6 +448,10 @@ impl HeatMap {
 }
 
 impl Figure for HeatMap {
+    fn words(&self) -> (String, String) {
+        (self.title.clone(), self.caption.clone())
+    }
+
     fn draw<DB: DrawingBackend>(
         &self,
         root: &DrawingArea<DB, Shift>,

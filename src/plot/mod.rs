@@ -5,9 +5,12 @@
 //! [`PhaseMap`], [`HeatMap`]) and calls one function per figure kind; the
 //! module chooses layout, colours, fonts and file handling.
 //!
-//! * Every figure is written twice, as `<stem>.png` (raster, 1200×900 px,
-//!   text ≥ 20 px so it stays legible when printed at paper width) and as
-//!   `<stem>.svg` (vector, same layout).
+//! * Every figure is written three times, as `<stem>.png` (raster,
+//!   1200×900 px, text ≥ 20 px), `<stem>.svg` and `<stem>.pdf` (vector, the
+//!   embedded font subset into the PDF; see [`pdf`]). `--figure-style
+//!   paper` draws 680×510 px with no title or caption as a 3.4 in wide PDF
+//!   (text 8-9 pt) and writes the title and caption to `<stem>.txt`; see
+//!   [`style`].
 //! * Files appear atomically: each is rendered in memory, written to a hidden
 //!   temporary file in the target directory and renamed into place, so a
 //!   failure never leaves a half-written figure behind.
@@ -27,6 +30,8 @@ pub mod lines;
 pub mod map;
 mod output;
 pub mod palette;
+mod pdf;
+pub mod style;
 
 pub use lines::{
     dimension_line_figure, flow_figure, Band, DimensionSeries, FlowFigure, FlowSeries,
@@ -38,6 +43,7 @@ pub use map::{
 };
 
 pub use crate::error::PlotError;
+pub use style::{figure_style, set_figure_style, FigureStyle};
 
 /// Helpers shared by the figure tests.
 #[cfg(test)]

@@ -1,4 +1,5 @@
-//! Writing a figure as PNG and SVG without ever leaving a partial file.
+//! Writing a figure as PNG, SVG and PDF (and, in the paper style, its
+//! title and caption as `<stem>.txt`) without ever leaving a partial file.
 //!
 //! A figure draws itself on a [`Surface`]. On the SVG surface a map whose
 //! cells would take too many rectangles draws them as one raster image
@@ -16,10 +17,7 @@ use plotters::coord::Shift;
 use plotters::prelude::{BitMapBackend, DrawingArea, DrawingBackend, IntoDrawingArea, SVGBackend};
 use plotters::style::RGBAColor;
 
-use super::{font, PlotError};
-
-/// Pixel size of every figure.
-pub(crate) const SIZE: (u32, u32) = (1200, 900);
+use super::{font, style, PlotError};
 
 /// A figure that can draw itself on any plotters backend.
 pub(crate) trait Figure {
@@ -29,6 +27,11 @@ pub(crate) trait Figure {
         root: &DrawingArea<DB, Shift>,
         surface: &Surface,
     ) -> Result<(), String>;
+
+    /// Title and caption, for the `.txt` of the paper style.
+    fn words(&self) -> (String, String) {
+        (String::new(), String::new())
+    }
 }
 
 /// What a figure is being drawn for.
@@ -74,17 +77,29 @@ pub(crate) fn msg<E: std::fmt::Display>(e: E) -> String {
     e.to_string()
 }
 
-/// Renders `figure` and writes `<stem>.png` and `<stem>.svg`.
+/// Renders `figure` and writes `<stem>.png`, `<stem>.svg` and
+/// `<stem>.pdf`; in the paper style also `<stem>.txt` (title, blank line,
+/// caption), since neither is drawn in.
 pub(crate) fn write_figure(stem: &Path, figure: &impl Figure) -> Result<(), PlotError> {
     font::ensure_registered().map_err(|m| PlotError::new(stem, m))?;
     let png_path = with_suffix(stem, ".png");
     let svg_path = with_suffix(stem, ".svg");
-    // Render both in memory first: drawing errors never touch the disk.
+    let pdf_path = with_suffix(stem, ".pdf");
+    // Render all in memory first: drawing errors never touch the disk.
     let pixels = render_rgb(figure).map_err(|m| PlotError::new(&png_path, m))?;
     let svg = render_svg(figure).map_err(|m| PlotError::new(&svg_path, m))?;
+    let pdf =
+        super::pdf::from_svg(&svg, style::pdf_dpi()).map_err(|m| PlotError::new(&pdf_path, m))?;
     ensure_parent(&png_path)?;
     save_png(&png_path, &pixels)?;
-    save_bytes(&svg_path, svg.as_bytes())
+    save_bytes(&svg_path, svg.as_bytes())?;
+    save_bytes(&pdf_path, &pdf)?;
+    if style::figure_style() == style::FigureStyle::Paper {
+        let (title, caption) = figure.words();
+        let txt = format!("{title}\n\n{caption}\n");
+        save_bytes(&with_suffix(stem, ".txt"), txt.as_bytes())?;
+    }
+    Ok(())
 }
 
 /// Appends `suffix` to the full stem (a stem may itself contain dots).
@@ -95,9 +110,10 @@ fn with_suffix(stem: &Path, suffix: &str) -> PathBuf {
 }
 
 fn render_rgb(figure: &impl Figure) -> Result<Vec<u8>, String> {
-    let mut buffer = vec![255u8; (SIZE.0 * SIZE.1 * 3) as usize];
+    let size = style::canvas();
+    let mut buffer = vec![255u8; (size.0 * size.1 * 3) as usize];
     {
-        let root = BitMapBackend::with_buffer(&mut buffer, SIZE).into_drawing_area();
+        let root = BitMapBackend::with_buffer(&mut buffer, size).into_drawing_area();
         root.fill(&plotters::style::WHITE).map_err(msg)?;
         figure.draw(&root, &Surface::Bitmap)?;
         root.present().map_err(msg)?;
@@ -109,7 +125,7 @@ fn render_svg(figure: &impl Figure) -> Result<String, String> {
     let mut text = String::new();
     let surface = Surface::Svg(RefCell::new(Vec::new()));
     {
-        let root = SVGBackend::with_string(&mut text, SIZE).into_drawing_area();
+        let root = SVGBackend::with_string(&mut text, style::canvas()).into_drawing_area();
         root.fill(&plotters::style::WHITE).map_err(msg)?;
         figure.draw(&root, &surface)?;
         root.present().map_err(msg)?;
@@ -251,10 +267,11 @@ impl Drop for Staged {
 fn save_png(path: &Path, pixels: &[u8]) -> Result<(), PlotError> {
     let staged = Staged::new(path, "png");
     let fail = |e: String| PlotError::new(path, e);
+    let size = style::canvas();
     {
-        let mut backend = BitMapBackend::new(&staged.temp, SIZE);
+        let mut backend = BitMapBackend::new(&staged.temp, size);
         backend
-            .blit_bitmap((0, 0), SIZE, pixels)
+            .blit_bitmap((0, 0), size, pixels)
             .map_err(|e| fail(e.to_string()))?;
         backend.present().map_err(|e| fail(e.to_string()))?;
     }
@@ -262,7 +279,10 @@ fn save_png(path: &Path, pixels: &[u8]) -> Result<(), PlotError> {
 }
 
 fn save_bytes(path: &Path, bytes: &[u8]) -> Result<(), PlotError> {
-    let staged = Staged::new(path, "svg");
+    let ext = path
+        .extension()
+        .map_or("tmp".into(), |e| e.to_string_lossy());
+    let staged = Staged::new(path, &ext);
     fs::write(&staged.temp, bytes).map_err(|e| PlotError::new(path, e.to_string()))?;
     staged.commit()
 }
@@ -353,7 +373,7 @@ mod tests {
             .collect();
         let mut sorted = names.clone();
         sorted.sort();
-        assert_eq!(sorted, vec!["blank.png", "blank.svg"]);
+        assert_eq!(sorted, vec!["blank.pdf", "blank.png", "blank.svg"]);
     }
 
     #[test]

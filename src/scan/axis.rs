@@ -91,6 +91,13 @@ impl Axis {
     }
 
     /// The i-th value (0 <= i < n).
+    ///
+    /// Linear axes whose bounds and step are decimals with at most 12
+    /// digits after the point give the double nearest to the decimal
+    /// min + i*step (0.325, not 0.32499999999999996): the value is computed
+    /// as an integer count of the decimal unit and parsed from its decimal
+    /// text. Other axes use the weighted form (linear) or the exponential
+    /// (log), rounded to 15 significant digits.
     pub fn value(&self, i: usize) -> f64 {
         if i == 0 {
             return self.min;
@@ -100,15 +107,37 @@ impl Axis {
         }
         let t = i as f64 / (self.n - 1) as f64;
         if self.log {
-            (self.min.ln() + t * (self.max.ln() - self.min.ln())).exp()
-        } else {
-            // Weighted form: exact at both ends and closest to the decimal
-            // grid more often than min + t (max - min).
-            let (i, m) = (i as f64, (self.n - 1) as f64);
-            (self.min * (m - i) + self.max * i) / m
+            let x = (self.min.ln() + t * (self.max.ln() - self.min.ln())).exp();
+            return format!("{x:.14e}").parse().unwrap_or(x);
         }
+        if let Some(x) = self.decimal_value(i) {
+            return x;
+        }
+        // Weighted form: exact at both ends.
+        let (i, m) = (i as f64, (self.n - 1) as f64);
+        (self.min * (m - i) + self.max * i) / m
     }
 
+    /// min + i*step as a decimal, when min, max and the step are decimals
+    /// with at most 12 digits after the point (integers of that unit below
+    /// 2^53).
+    fn decimal_value(&self, i: usize) -> Option<f64> {
+        let steps = (self.n - 1) as i128;
+        for digits in 0..=12u32 {
+            let unit = 10f64.powi(digits as i32);
+            let lo = as_integer(self.min * unit)?;
+            let hi = as_integer(self.max * unit)?;
+            let (Some(lo), Some(hi)) = (lo, hi) else {
+                continue;
+            };
+            if (hi - lo) % steps != 0 {
+                continue;
+            }
+            let k = lo + (hi - lo) / steps * i as i128;
+            return decimal_text(k, digits).parse().ok();
+        }
+        None
+    }
     /// All values.
     pub fn values(&self) -> Vec<f64> {
         (0..self.n).map(|i| self.value(i)).collect()
@@ -119,6 +148,29 @@ impl Axis {
         let log = if self.log { ":log" } else { "" };
         format!("{}={}:{}:{}{log}", self.name, self.min, self.max, self.n)
     }
+}
+
+/// `x` as an integer when it is one to within rounding (Some(None) when it
+/// is not; None when it is too large to count exactly).
+fn as_integer(x: f64) -> Option<Option<i128>> {
+    if x.abs() >= 9.0e15 {
+        return None;
+    }
+    let r = x.round();
+    Some(((x - r).abs() <= 1e-9 * r.abs().max(1.0)).then_some(r as i128))
+}
+
+/// The decimal text of k * 10^-digits.
+fn decimal_text(k: i128, digits: u32) -> String {
+    let sign = if k < 0 { "-" } else { "" };
+    let a = k.unsigned_abs();
+    let unit = 10u128.pow(digits);
+    format!(
+        "{sign}{}.{:0width$}",
+        a / unit,
+        a % unit,
+        width = digits as usize
+    )
 }
 
 #[cfg(test)]
@@ -133,6 +185,21 @@ mod tests {
         assert_eq!(v[0], 0.0);
         assert_eq!(v[180], 0.9);
         assert!((v[90] - 0.45).abs() < 1e-15);
+    }
+
+    #[test]
+    fn linear_values_are_the_decimals_typed() {
+        // 0.3 + 0.025 i, as typed in flows/laughlin_third.toml.
+        let a = Axis::parse("lambda=0.3:0.95:27").unwrap();
+        let text: Vec<String> = a.values().iter().map(|v| v.to_string()).collect();
+        assert_eq!(text[1], "0.325");
+        assert_eq!(text[25], "0.925");
+        assert!(text.iter().all(|t| t.len() <= 5), "{text:?}");
+        let b = Axis::parse("g=-1:1:21").unwrap();
+        assert_eq!(b.value(7).to_string(), "-0.3");
+        // A step that is no short decimal keeps the weighted form.
+        let c = Axis::parse("x=0:1:4").unwrap();
+        assert!((c.value(1) - 1.0 / 3.0).abs() < 1e-16);
     }
 
     #[test]

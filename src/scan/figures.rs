@@ -133,15 +133,22 @@ impl Canvas {
         let names: &[&str] = match shape {
             Shape::Line { dims } => {
                 line_figure(dir, meta, dims, &cells, &cats)?;
-                &["phase.png", "phase.svg"]
+                &["phase"]
             }
             Shape::Map { ell, lines } => {
                 phase_figure(dir, meta, cells, lines, &cats, by)?;
                 ell_star_figure(dir, meta, ell)?;
-                &["phase.png", "phase.svg", "ell_star.png", "ell_star.svg"]
+                &["phase", "ell_star"]
             }
         };
-        Ok(names.iter().map(|s| s.to_string()).collect())
+        let mut exts = vec!["png", "svg", "pdf"];
+        if plot::figure_style() == plot::FigureStyle::Paper {
+            exts.push("txt");
+        }
+        Ok(names
+            .iter()
+            .flat_map(|n| exts.iter().map(move |e| format!("{n}.{e}")))
+            .collect())
     }
 }
 
@@ -387,9 +394,13 @@ fn ell_star_figure(dir: &Path, meta: &Meta, values: Vec<f64>) -> Result<(), Erro
         ys: meta.axes[1].values(),
         values,
         value_label: "ℓ* (gap ~ e^-ℓ*)".into(),
-        caption:
-            "Grey: no term reached strong coupling. Second-order RG, single reference velocity."
-                .into(),
+        // Grey is every point without an ell* in points.csv: unphysical
+        // points (V not positive definite, never flowed) as well as flows
+        // that ended gapless, undecided or failed.
+        caption: "Grey: no ℓ* — unphysical points (V not positive definite) and flows \
+             where no term reached strong coupling (gapless, undecided, failed); the phase \
+             map tells them apart. Second-order RG, single reference velocity."
+            .into(),
     };
     Ok(plot::heat_map(&dir.join("ell_star"), &data)?)
 }

@@ -25,13 +25,20 @@ use crate::error::{Error, InputError};
 pub const LOCK: &str = ".pinflow.lock";
 
 /// The files a finished scan or merge writes into its folder.
-pub const OUTPUTS: [&str; 6] = [
+pub const OUTPUTS: [&str; 13] = [
     "points.csv",
     "summary.json",
+    "phases.csv",
+    "run.json",
     "phase.png",
     "phase.svg",
+    "phase.pdf",
+    "phase.txt",
     "ell_star.png",
     "ell_star.svg",
+    "ell_star.pdf",
+    "ell_star.txt",
+    "preview.json",
 ];
 
 /// The held locks of an output folder (released when dropped).

@@ -28,12 +28,33 @@ pub fn finish(dir: &Path, points: &Path, meta: &Meta, by: ColorBy) -> Result<Sca
     })?;
     let mut files = vec!["points.csv".to_string(), "summary.json".to_string()];
     files.extend(canvas.write(dir, meta)?);
+    files.push("phases.csv".to_string());
     let summary = tally.finish(meta, files);
+    output::write_atomic(&dir.join("phases.csv"), phases_csv(&summary)?.as_bytes())?;
     output::write_atomic(
         &dir.join("summary.json"),
         output::to_json(&summary)?.as_bytes(),
     )?;
     Ok(summary)
+}
+
+/// The phases table of `summary.json` as CSV, with the JSON's keys as
+/// columns (`label` is the phase's name, the `phase` column of points.csv).
+fn phases_csv(s: &ScanSummary) -> Result<String, Error> {
+    let mut t = output::Table::new(
+        "phases",
+        &["label", "points", "target", "gapped_pairs", "gapless_modes"],
+    );
+    for r in &s.phases {
+        t.push(vec![
+            r.label.clone(),
+            r.points.to_string(),
+            r.target.to_string(),
+            r.gapped_pairs.to_string(),
+            r.gapless_modes.to_string(),
+        ]);
+    }
+    output::csv::render(&t)
 }
 
 /// A whole scan computed into `dir` (created if missing), without progress

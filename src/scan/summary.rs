@@ -481,7 +481,7 @@ impl Report for ScanSummary {
         for (k, v) in &self.outcomes {
             t.push(vec![k.clone(), v.to_string()]);
         }
-        let mut w = Table::new("winners", &["term", "points"]);
+        let mut w = Table::new("winners", &["name", "points"]);
         for (k, v) in &self.winners {
             w.push(vec![k.clone(), v.to_string()]);
         }
