@@ -965,6 +965,13 @@ static CURRENT: Mutex<Option<(Instant, String)>> = Mutex::new(None);
 static WATCHDOG: Once = Once::new();
 /// The slowest case so far (seconds, document).
 static SLOWEST: Mutex<(f64, String)> = Mutex::new((0.0, String::new()));
+/// A case taking longer than this counts as slow (the goal of issue 19:
+/// none over 2 s on models of at most 100 fields).
+const SLOW_SECONDS: f64 = 2.0;
+/// Cases over [`SLOW_SECONDS`]: their number and the first few documents.
+static SLOW: Mutex<(usize, Vec<(f64, String)>)> = Mutex::new((0, Vec::new()));
+/// Cases run so far in this process (for the progress lines of long runs).
+static DONE: std::sync::atomic::AtomicUsize = std::sync::atomic::AtomicUsize::new(0);
 
 fn start_watchdog() {
     WATCHDOG.call_once(|| {
@@ -996,6 +1003,18 @@ fn check(text: &str, stats: &mut BTreeMap<&'static str, usize>) -> Result<(), Te
         *slowest = (took, text.to_string());
     }
     drop(slowest);
+    if took > SLOW_SECONDS {
+        let mut slow = SLOW.lock().unwrap_or_else(|e| e.into_inner());
+        slow.0 += 1;
+        if slow.1.len() < 5 {
+            slow.1.push((took, text.to_string()));
+        }
+    }
+    let done = DONE.fetch_add(1, std::sync::atomic::Ordering::Relaxed) + 1;
+    if done % 100_000 == 0 && std::env::var_os("PINFLOW_FUZZ_PROGRESS").is_some() {
+        let slow = SLOW.lock().unwrap_or_else(|e| e.into_inner()).0;
+        eprintln!("fuzz progress: {done} cases, {slow} over {SLOW_SECONDS} s");
+    }
     match result {
         Ok(stage) => {
             *stats.entry(stage).or_default() += 1;
@@ -1086,6 +1105,11 @@ fn fuzz_long() {
         start.elapsed().as_secs_f64()
     );
     report_slowest();
+    let slow = SLOW.lock().unwrap_or_else(|e| e.into_inner());
+    for (took, text) in &slow.1 {
+        eprintln!("slow case ({took:.2} s):\n-----\n{text}\n-----");
+    }
+    assert_eq!(slow.0, 0, "{} cases took over {SLOW_SECONDS} s", slow.0);
 }
 
 fn report_slowest() {

@@ -40,6 +40,9 @@ pub struct DimsArgs {
         conflicts_with = "wires"
     )]
     pub pin: Vec<String>,
+    /// Evaluate even above 1024 fields on the dense path (work grows like N^3).
+    #[arg(long)]
+    pub force: bool,
 }
 
 /// Parse one entry of `--wires`: a whole number of wires or `infinite`.
@@ -70,6 +73,7 @@ pub(super) fn run(args: DimsArgs) -> Result<(), Error> {
         return emit(args.output.as_deref(), &output::render(&report, format)?);
     }
     let (sys, point) = super::common::load_point(&args.point)?;
+    crate::dims::check_size(&sys, args.force)?;
     let opts = DimsOptions {
         pins: args.pin.clone(),
         ..Default::default()

@@ -21,6 +21,9 @@ pub struct EdgesArgs {
     /// and with each other].
     #[arg(long = "pin", value_name = "NAME")]
     pub pin: Vec<String>,
+    /// Analyse even above 256 fields (the exact theory's work grows like N^3).
+    #[arg(long)]
+    pub force: bool,
     /// Wires in the window at each end of an open array [default: the
     /// smallest window holding a translate of every pinned term].
     #[arg(long, value_name = "W")]
@@ -38,6 +41,7 @@ pub struct EdgesArgs {
 pub(super) fn run(args: EdgesArgs) -> Result<(), Error> {
     check_outputs(args.output.as_deref(), None)?;
     let (sys, point) = load_point(&args.point)?;
+    crate::edges::check_size(&sys, args.force)?;
     // Flow options are checked even when --pin makes the flow unnecessary.
     let opts = FlowOptions::resolve(&sys.model, &args.flow.overrides())?;
     let selection: Selection = if args.pin.is_empty() {

@@ -683,6 +683,26 @@ fn check_entries(ctx: &Ctx, rows: &[Vec<i64>], key: &str) -> Result<(), InputErr
     Ok(())
 }
 
+/// The lattice vector l = K m of a particle content within [`MAX_ENTRY`]
+/// too (m and K may each be within it while l is not: K m = 2^40 gave
+/// dimensions of 1e17 without a word).
+fn check_lattice_vector(ctx: &Ctx, k: &[Vec<i64>], m: &[i64], key: &str) -> Result<(), InputError> {
+    for (i, row) in k.iter().enumerate() {
+        let l: i128 = row
+            .iter()
+            .zip(m)
+            .map(|(a, b)| *a as i128 * *b as i128)
+            .sum();
+        if l.unsigned_abs() > MAX_ENTRY as u128 {
+            return Err(ctx.err(
+                key,
+                format!("its lattice vector l = K m has entry {l} in place {i}; entries of l must be at most {MAX_ENTRY} in magnitude"),
+            ));
+        }
+    }
+    Ok(())
+}
+
 /// At most [`MAX_FIELDS`] fields in all, checked before anything of that
 /// size is built (`wires = 1000000000` must fail at once, not exhaust
 /// memory); `key` names where the number of wires came from.
@@ -842,6 +862,9 @@ fn read_term(ctx: &Ctx, model: &Model, t: &RawTerm, key: &str) -> Result<TermSpe
             vkey.clone()
         };
         check_entries(ctx, std::slice::from_ref(v), &at)?;
+        if content == Content::Particles {
+            check_lattice_vector(ctx, &model.cell_k, v, &at)?;
+        }
     }
     if parts.iter().all(|(_, v)| v.iter().all(|x| *x == 0)) {
         return Err(ctx.err(&vkey, "the zero vector is not a cosine term"));

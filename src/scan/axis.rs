@@ -61,7 +61,7 @@ impl Axis {
         axis.validate().map(|_| axis)
     }
 
-    /// Check n >= 2, min < max (linear) and positive bounds (log).
+    /// Check n >= 2, min < max and positive bounds (log).
     pub fn validate(&self) -> Result<(), String> {
         if self.name.is_empty() {
             return Err("the axis needs a parameter name".into());
@@ -76,6 +76,12 @@ impl Axis {
             if self.min <= 0.0 || self.max <= 0.0 {
                 return Err(format!(
                     "log spacing needs positive bounds, found {}:{} on axis `{}`",
+                    self.min, self.max, self.name
+                ));
+            }
+            if self.min >= self.max {
+                return Err(format!(
+                    "MIN must be below MAX with log spacing too, found {}:{} on axis `{}`",
                     self.min, self.max, self.name
                 ));
             }
@@ -148,6 +154,13 @@ mod tests {
             .unwrap_err()
             .contains("MIN must be below MAX"));
         assert!(Axis::parse("x=0:1:5:log").unwrap_err().contains("positive"));
+        // Issue 19: log axes skipped MIN < MAX (descending and MIN = MAX).
+        for spec in ["x=1:0.1:5:log", "x=0.5:0.5:5:log"] {
+            let e = Axis::parse(spec).unwrap_err();
+            assert!(e.contains("MIN must be below MAX with log spacing"), "{e}");
+        }
+        let e = Axis::parse("x=0.1:1:5:lgo").unwrap_err();
+        assert!(e.contains("spacing `lgo` must be `lin` or `log`"), "{e}");
         assert!(Axis::parse("x=0:1").is_err());
         assert!(Axis::parse("x=a:1:3").is_err());
     }
