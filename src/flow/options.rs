@@ -181,28 +181,8 @@ impl FlowOptions {
     /// refused with the reason, naming the flag if one set it and the
     /// `[flow]` key otherwise (docs/flow-options.md, "Limits").
     fn check_limits(&self, model: &Model, over: &FlowOverrides) -> Result<(), InputError> {
-        // Where a value came from: 2 a flag, 1 the `[flow]` table, 0 the default.
-        let at = |flag: bool, name: &str| -> (u8, String, String) {
-            let in_table = model
-                .flow_table
-                .as_ref()
-                .is_some_and(|t| t.contains_key(name));
-            match (flag, in_table) {
-                (true, _) => (
-                    2,
-                    "command line".into(),
-                    format!("--{}", name.replace('_', "-")),
-                ),
-                (false, true) => (1, model.file.clone(), format!("flow.{name}")),
-                _ => (0, model.file.clone(), format!("flow.{name}")),
-            }
-        };
-        // Of two values that conflict, name the one the user set (a flag first).
-        let either =
-            |a: (u8, String, String), b: (u8, String, String)| if b.0 > a.0 { b } else { a };
-        let refuse = |(_, file, key): (u8, String, String), msg: String| {
-            Err(InputError::new(file, key, msg))
-        };
+        let at = |flag: bool, name: &str| Origin::of(model, flag, name);
+        let refuse = |o: Origin, msg: String| Err(InputError::new(o.file, o.key, msg));
         if self.ell_max > ELL_MAX_MOST {
             return refuse(at(over.ell_max.is_some(), "ell_max"), format!(
                 "expected at most {ELL_MAX_MOST:e}, found {}: ell = ln(alpha/alpha0) = 1e6 is already a length ratio of e^1000000, and the integrator's steps (fractions of ell_max) cannot start on a wider range",
@@ -217,10 +197,7 @@ impl FlowOptions {
         }
         if self.floor >= self.y_strong {
             return refuse(
-                either(
-                    at(over.floor.is_some(), "floor"),
-                    at(over.y_strong.is_some(), "y_strong"),
-                ),
+                at(over.floor.is_some(), "floor").or(at(over.y_strong.is_some(), "y_strong")),
                 "the decay floor must be below y_strong".to_string(),
             );
         }
@@ -232,10 +209,7 @@ impl FlowOptions {
             ));
         }
         if self.floor <= self.atol {
-            let key = either(
-                at(over.floor.is_some(), "floor"),
-                at(over.atol.is_some(), "atol"),
-            );
+            let key = at(over.floor.is_some(), "floor").or(at(over.atol.is_some(), "atol"));
             return refuse(key, format!(
                 "the decay floor ({}) must be above the absolute tolerance atol ({}): the integrator does not resolve a coupling below atol, so it cannot tell that one fell below the floor",
                 as_typed(self.floor),
@@ -369,6 +343,45 @@ fn check_q_points(model: &Model, n: i64, file: &str, key: &str) -> Result<usize,
 /// tighter tolerance asks the step control for digits a double does not
 /// have, and the integrator could only fail.
 pub const RTOL_MIN: f64 = 1e-14;
+
+/// Where a flow option came from, to name it in a refusal.
+struct Origin {
+    /// 2 a flag, 1 the `[flow]` table, 0 the default.
+    rank: u8,
+    file: String,
+    key: String,
+}
+
+impl Origin {
+    fn of(model: &Model, flag: bool, name: &str) -> Origin {
+        let in_table = model
+            .flow_table
+            .as_ref()
+            .is_some_and(|t| t.contains_key(name));
+        let (rank, file, key) = match (flag, in_table) {
+            (true, _) => (
+                2,
+                "command line".into(),
+                format!("--{}", name.replace('_', "-")),
+            ),
+            (false, _) => (
+                u8::from(in_table),
+                model.file.clone(),
+                format!("flow.{name}"),
+            ),
+        };
+        Origin { rank, file, key }
+    }
+
+    /// Of two values that conflict, the one the user set (a flag first).
+    fn or(self, other: Origin) -> Origin {
+        if other.rank > self.rank {
+            other
+        } else {
+            self
+        }
+    }
+}
 
 /// The largest `ell_max` accepted (see [`FlowOptions::check_limits`]).
 pub const ELL_MAX_MOST: f64 = 1e6;

@@ -683,6 +683,22 @@ fn check_entries(ctx: &Ctx, rows: &[Vec<i64>], key: &str) -> Result<(), InputErr
     Ok(())
 }
 
+/// A term's vector within [`MAX_ENTRY`], and for a particle content its
+/// lattice vector l = K m as well.
+fn check_term_vector(
+    ctx: &Ctx,
+    model: &Model,
+    content: Content,
+    v: &[i64],
+    key: &str,
+) -> Result<(), InputError> {
+    check_entries(ctx, &[v.to_vec()], key)?;
+    match content {
+        Content::Particles => check_lattice_vector(ctx, &model.cell_k, v, key),
+        Content::Vector => Ok(()),
+    }
+}
+
 /// The lattice vector l = K m of a particle content within [`MAX_ENTRY`]
 /// too (m and K may each be within it while l is not: K m = 2^40 gave
 /// dimensions of 1e17 without a word).
@@ -861,10 +877,7 @@ fn read_term(ctx: &Ctx, model: &Model, t: &RawTerm, key: &str) -> Result<TermSpe
         } else {
             vkey.clone()
         };
-        check_entries(ctx, std::slice::from_ref(v), &at)?;
-        if content == Content::Particles {
-            check_lattice_vector(ctx, &model.cell_k, v, &at)?;
-        }
+        check_term_vector(ctx, model, content, v, &at)?;
     }
     if parts.iter().all(|(_, v)| v.iter().all(|x| *x == 0)) {
         return Err(ctx.err(&vkey, "the zero vector is not a cosine term"));
