@@ -15,7 +15,6 @@ pub mod lattice;
 pub mod momentum;
 pub mod phase;
 pub mod pinned;
-pub mod pinned_span;
 pub mod qspace;
 pub mod relevance;
 pub mod system;

@@ -17,7 +17,9 @@ pub mod convergence;
 use serde::Serialize;
 
 use crate::core::fixed_point::DIMENSION_ERROR_LIMIT;
+use crate::core::lattice::Family;
 use crate::core::momentum::MOMENTUM_TOLERANCE;
+use crate::core::phase::{self, Phase};
 use crate::core::qspace::Quadrature;
 use crate::core::relevance::{is_relevant, rg_eigenvalue};
 use crate::core::system::{EvalPath, System};
@@ -263,7 +265,7 @@ pub struct DimsReport {
     /// With `--pin`: the phase of the pinned set (label, invariants, and
     /// whether it is the target phase; see [`crate::core::phase`]).
     #[serde(skip_serializing_if = "Option::is_none")]
-    pub phase: Option<crate::core::phase::Phase>,
+    pub phase: Option<Phase>,
     /// With `--pin` on an infinite array: the quadrature of the pinned
     /// integrals (midpoint rule).
     #[serde(skip_serializing_if = "Option::is_none")]
@@ -540,21 +542,17 @@ fn assemble(
 }
 
 /// The phase a pinned set of model terms spans.
-fn phase_of(sys: &System, set: &crate::core::pinned::set::PinnedSet) -> crate::core::phase::Phase {
-    use crate::core::phase;
-    let fams: Vec<&crate::core::lattice::Family> = set
+fn phase_of(sys: &System, set: &crate::core::pinned::set::PinnedSet) -> Phase {
+    let fams: Vec<&Family> = set
         .indices
         .iter()
         .map(|&i| &sys.lattice.families[i])
         .collect();
-    let lat = phase::PhaseLattice::new(&sys.lattice, &fams);
-    let target = phase::target_lattice(sys);
-    phase::name(
+    phase::name_phase(
         &sys.lattice,
-        &lat,
-        &set.names,
         &phase::listed(sys),
-        target.as_ref(),
+        &fams,
+        &phase::targets(sys),
     )
 }
 

@@ -180,7 +180,7 @@ pub struct FlowResult {
     pub gap: Option<f64>,
     /// The phase of the final pinned set (null for points that could not
     /// flow).
-    pub phase: Option<crate::core::pinned_span::Phase>,
+    pub phase: Option<crate::core::phase::Phase>,
     /// Where the integration ended (its last stage's, when successive
     /// pinning flowed on).
     pub ell_end: f64,
@@ -242,8 +242,7 @@ pub struct Flow<'s> {
     pub opts: FlowOptions,
     layout: Layout,
     /// Phases already named, by sorted plan indices of the pinned set.
-    phases:
-        std::sync::Mutex<std::collections::HashMap<Vec<usize>, crate::core::pinned_span::Phase>>,
+    phases: std::sync::Mutex<std::collections::HashMap<Vec<usize>, crate::core::phase::Phase>>,
 }
 
 /// How D is carried.

@@ -38,7 +38,7 @@ use super::channels::Origin;
 use super::rhs::FlowRhs;
 use super::{integrate, Flow, FlowResult, Integrated, Outcome};
 use crate::core::lattice::Family;
-use crate::core::pinned_span::{name_phase, Candidate, Phase, PinnedLattice};
+use crate::core::phase::{name_phase, Candidate, Phase, PinnedLattice};
 
 /// One stage of a staged flow.
 #[derive(Debug, Clone, PartialEq, Serialize)]
@@ -266,11 +266,7 @@ impl Flow<'_> {
             })
             .collect();
         let fams: Vec<&Family> = pinned.iter().map(|&c| &chans[c].family).collect();
-        let targets: Vec<&Family> = (self.sys.model.terms.iter())
-            .zip(&self.sys.lattice.families)
-            .filter(|(t, _)| t.target)
-            .map(|(_, f)| f)
-            .collect();
+        let targets = crate::core::phase::targets(self.sys);
         let phase = name_phase(&self.sys.lattice, &candidates, &fams, &targets);
         if let Ok(mut m) = self.phases.lock() {
             m.insert(pinned, phase.clone());

@@ -2,7 +2,7 @@
 //! (1968)] on integer matrices: the one elimination behind the exact
 //! determinant, the exact inverse and the exact rank.
 //!
-//! Owns: [`det`], [`det_and_inverse`], [`rank`]. Invariants: big integers
+//! Owns: [`det`], [`det_and_inverse`], [`rank`], [`pivot_columns`]. Invariants: big integers
 //! only, no floats and no overflow; every division is exact, because after
 //! the step on the t-th pivot every remaining entry is a (t+1) x (t+1)
 //! minor of the input built on the pivot rows and columns, and the
@@ -23,6 +23,8 @@ struct Echelon {
     last: BigInt,
     /// True after an odd number of row swaps.
     odd: bool,
+    /// The pivot columns, in order.
+    columns: Vec<usize>,
 }
 
 /// Fraction-free elimination of the first `cols` columns of `m` (every row
@@ -34,6 +36,7 @@ fn eliminate(m: &mut [Vec<BigInt>], cols: usize, full: bool) -> Echelon {
     let mut prev = BigInt::one();
     let mut odd = false;
     let mut r = 0;
+    let mut columns = Vec::new();
     for c in 0..cols {
         if r == m.len() {
             break;
@@ -47,12 +50,14 @@ fn eliminate(m: &mut [Vec<BigInt>], cols: usize, full: bool) -> Echelon {
         }
         clear_column(m, r, c, &prev, full);
         prev = m[r][c].clone();
+        columns.push(c);
         r += 1;
     }
     Echelon {
         pivots: r,
         last: prev,
         odd,
+        columns,
     }
 }
 
@@ -135,6 +140,16 @@ pub fn rank(rows: &[Vec<BigInt>]) -> usize {
     eliminate(&mut m, cols, false).pivots
 }
 
+/// The pivot columns of an integer matrix given by rows: the first-come
+/// maximal set of independent columns (a column has a pivot iff it is not
+/// a rational combination of the columns before it).
+pub fn pivot_columns(rows: &[Vec<BigInt>]) -> Vec<usize> {
+    let cols = rows.first().map_or(0, |r| r.len());
+    debug_assert!(rows.iter().all(|r| r.len() == cols), "rectangular matrix");
+    let mut m = rows.to_vec();
+    eliminate(&mut m, cols, false).columns
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -163,6 +178,37 @@ mod tests {
         assert_eq!(rank(&big_rows(&[&[0, 1, 2], &[0, 3, 7]])), 2);
         assert_eq!(rank(&big_rows(&[&[1, 2, 5], &[2, 4, 7], &[3, 6, 1]])), 2);
         assert_eq!(rank(&[]), 0);
+    }
+
+    #[test]
+    fn pivot_columns_are_the_first_come_independent_columns() {
+        // Second code path: column j is kept iff it raises the rank of the
+        // columns kept before it (rank by elimination of the kept columns).
+        let mut rng = ChaCha8Rng::seed_from_u64(12);
+        for _ in 0..40 {
+            let (m, n) = (rng.gen_range(1..=5), rng.gen_range(1..=7));
+            let a: Vec<Vec<BigInt>> = (0..m)
+                .map(|_| {
+                    (0..n)
+                        .map(|_| BigInt::from(rng.gen_range(-2..=2)))
+                        .collect()
+                })
+                .collect();
+            let cols = |keep: &[usize]| -> Vec<Vec<BigInt>> {
+                a.iter()
+                    .map(|r| keep.iter().map(|&j| r[j].clone()).collect())
+                    .collect()
+            };
+            let mut kept: Vec<usize> = Vec::new();
+            for j in 0..n {
+                let mut with = kept.clone();
+                with.push(j);
+                if rank(&cols(&with)) > kept.len() {
+                    kept = with;
+                }
+            }
+            assert_eq!(pivot_columns(&a), kept);
+        }
     }
 
     #[test]

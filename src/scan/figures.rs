@@ -226,7 +226,7 @@ impl Categories {
             .iter()
             .zip(&term_colour)
             .map(|(k, &t)| match (k.0.as_str(), k.1.as_str()) {
-                (PHASE, crate::core::pinned_span::GAPLESS) => colour("gapless", t),
+                (PHASE, crate::core::phase::GAPLESS) => colour("gapless", t),
                 (o, _) if is_phase(o) => colour("strong", t),
                 (o, _) => colour(o, t),
             })
@@ -273,7 +273,7 @@ fn order(meta: &Meta, (outcome, winner): &(String, String)) -> (usize, usize, St
     match outcome.as_str() {
         TARGET_PHASE => return (0, 0, winner.clone()),
         PHASE => {
-            let last = usize::from(winner == crate::core::pinned_span::GAPLESS);
+            let last = usize::from(winner == crate::core::phase::GAPLESS);
             return (1, last, winner.clone());
         }
         _ => {}
@@ -300,7 +300,7 @@ fn order(meta: &Meta, (outcome, winner): &(String, String)) -> (usize, usize, St
 fn label(outcome: &str, winner: &str) -> String {
     match (outcome, Outcome::from_word(outcome)) {
         (TARGET_PHASE, _) => format!("{winner} (target phase)"),
-        (PHASE, _) if winner == crate::core::pinned_span::GAPLESS => {
+        (PHASE, _) if winner == crate::core::phase::GAPLESS => {
             "gapless phase (nothing pinned)".into()
         }
         (PHASE, _) => winner.to_string(),

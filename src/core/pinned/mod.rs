@@ -68,28 +68,15 @@ pub enum Form {
 /// Indices of a maximal independent subset of the vectors (exact rank over
 /// the rationals, first come first kept).
 pub fn independent(vectors: &[Vec<i64>]) -> Vec<usize> {
-    // Echelon basis kept as (pivot index, row with 1 at the pivot).
-    let mut basis: Vec<(usize, Vec<Rational>)> = Vec::new();
-    let mut keep = Vec::new();
-    for (idx, v) in vectors.iter().enumerate() {
-        let mut r: Vec<Rational> = v.iter().map(|&x| exact::int(x)).collect();
-        for (p, b) in &basis {
-            if r[*p].is_zero() {
-                continue;
-            }
-            let f = r[*p].clone();
-            for (x, y) in r.iter_mut().zip(b) {
-                *x -= &f * y;
-            }
-        }
-        if let Some(p) = r.iter().position(|x| !x.is_zero()) {
-            let f = r[p].clone();
-            let row: Vec<Rational> = r.iter().map(|x| x / &f).collect();
-            basis.push((p, row));
-            keep.push(idx);
-        }
+    // The vectors as columns: the independent ones are the pivot columns.
+    let n = vectors.first().map_or(0, |v| v.len());
+    let rows: Vec<Vec<BigInt>> = (0..n)
+        .map(|i| vectors.iter().map(|v| BigInt::from(v[i])).collect())
+        .collect();
+    if rows.is_empty() {
+        return Vec::new();
     }
-    keep
+    bareiss::pivot_columns(&rows)
 }
 
 /// The exact complement basis B (N x (N - 2r) integer columns): the integer

@@ -1,80 +1,85 @@
 //! Checks of the phase identity. Values are derived (short derivations
-//! beside each) or computed independently (the Smith normal form of
-//! [`crate::math::smith`] for ranks and indices).
+//! beside each) or computed independently (Smith normal form indices).
 
-use num_bigint::BigInt;
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 
 use super::*;
-use crate::core::system::System;
+use crate::core::lattice::Translate;
 use crate::math::smith as normal;
 use crate::math::zmat::ZMat;
 use crate::model::Model;
 
-fn b(v: &[i64]) -> Vec<BigInt> {
-    v.iter().map(|&x| BigInt::from(x)).collect()
+fn family(vs: &[Vec<i64>]) -> Family {
+    Family {
+        translates: vs
+            .iter()
+            .map(|v| Translate {
+                anchor: 0,
+                parts: vec![(0, v.clone())],
+                l: v.clone(),
+            })
+            .collect(),
+        representative: 0,
+    }
 }
 
-/// The HNF is an invariant of the span: random unimodular recombinations
-/// (and added redundant combinations) of the generators give the same
-/// form; its rank is the Smith rank and, for a full-rank lattice, the
-/// product of the pivots is the index |det| (Smith: product of the
-/// invariant factors).
+/// The span is an invariant of its generators: random unimodular
+/// recombinations (and an added redundant combination) span the same
+/// lattice; doubling one generator of a full-rank set changes it (index
+/// doubles), and the rank is the Smith rank of the generators.
 #[test]
-fn hnf_is_an_invariant_of_the_span() {
+fn span_is_an_invariant_of_the_generators() {
     let mut rng = ChaCha8Rng::seed_from_u64(5);
     for _ in 0..20 {
         let n = rng.gen_range(2..6);
         let k = rng.gen_range(1..=n);
-        let gens: Vec<Vec<BigInt>> = (0..k)
-            .map(|_| b(&(0..n).map(|_| rng.gen_range(-4..5)).collect::<Vec<_>>()))
+        let gens: Vec<Vec<i64>> = (0..k)
+            .map(|_| (0..n).map(|_| rng.gen_range(-4..5)).collect())
             .collect();
-        let h = Hnf::of(n, &gens);
+        let a = PinnedLattice::new(n, &[&family(&gens)]);
         let mut mixed = gens.clone();
         for _ in 0..10 {
             let (i, j) = (rng.gen_range(0..k), rng.gen_range(0..k));
             if i != j {
-                let c = BigInt::from(rng.gen_range(-3..4));
+                let c = rng.gen_range(-3..4);
                 let row = mixed[j].clone();
                 for (x, y) in mixed[i].iter_mut().zip(&row) {
-                    *x += &c * y;
+                    *x += c * y;
                 }
             }
         }
         mixed.reverse();
-        let extra: Vec<BigInt> = mixed[0]
-            .iter()
-            .zip(&mixed[k - 1])
+        let extra: Vec<i64> = (mixed[0].iter().zip(&mixed[k - 1]))
             .map(|(x, y)| x * 2 - y)
             .collect();
         mixed.push(extra);
-        assert_eq!(Hnf::of(n, &mixed), h);
-        let z = ZMat::from_rows(&gens, n);
-        let smith = normal::smith(&z);
-        assert_eq!(h.rank(), smith.rank());
-        if h.rank() == n {
-            let pivots: BigInt = (0..n).map(|i| h.rows[i][i].clone()).product();
-            let index: BigInt = smith.diag.iter().product();
-            assert_eq!(pivots, index);
-        }
+        let b = PinnedLattice::new(n, &[&family(&mixed)]);
+        assert!(a.same(&b));
+        let smith = normal::smith(&ZMat::from_i64(&gens, n));
+        assert_eq!(a.rank(), smith.rank());
         for g in &gens {
-            assert!(h.contains(g));
+            assert!(a.contains(g));
+        }
+        if a.rank() == k && gens[0].iter().any(|x| *x != 0) {
+            let mut doubled = gens.clone();
+            doubled[0].iter_mut().for_each(|x| *x *= 2);
+            assert!(!a.same(&PinnedLattice::new(n, &[&family(&doubled)])));
         }
     }
 }
 
 /// Pinning 2l is not pinning l (docs/physics.md section 8).
 #[test]
-fn twice_a_vector_is_another_lattice() {
-    let l = b(&[1, -2, 3]);
-    let two: Vec<BigInt> = l.iter().map(|x| x * 2).collect();
-    let a = Hnf::of(3, std::slice::from_ref(&l));
-    let c = Hnf::of(3, std::slice::from_ref(&two));
-    assert_ne!(a, c);
+fn twice_a_vector_is_another_lattice_in_three_fields() {
+    let l = vec![1, -2, 3];
+    let two: Vec<i64> = l.iter().map(|x| x * 2).collect();
+    let a = PinnedLattice::new(3, &[&family(std::slice::from_ref(&l))]);
+    let c = PinnedLattice::new(3, &[&family(std::slice::from_ref(&two))]);
+    assert!(!a.same(&c));
     assert!(a.contains(&two));
     assert!(!c.contains(&l));
-    assert_eq!(Hnf::of(3, &[l.clone(), two]), a);
+    assert!(PinnedLattice::new(3, &[&family(&[l.clone(), two])]).same(&a));
 }
 
 fn strip(boundary: &str, wires: &str, extra: &str) -> System {
@@ -109,28 +114,17 @@ fn fams<'a>(sys: &'a System, names: &[&str]) -> Vec<&'a Family> {
 /// 1 per wire, 2 gapless. t_up is the model's target.
 #[test]
 fn invariants_of_the_bilayer() {
+    let counts = |sys: &System, names: &[&str]| {
+        let p = name_phase(&sys.lattice, &listed(sys), &fams(sys, names), &targets(sys));
+        (p.gapped_pairs, p.gapless_modes, p.fully_gapped, p.target)
+    };
     let open = strip("boundary = \"open\"\n", "6", "");
-    let both = PhaseLattice::new(&open.lattice, &fams(&open, &["t_up", "t_dn"]));
-    assert_eq!(
-        (both.gapped_pairs, both.gapless_modes, both.fully_gapped()),
-        (10, 4, false)
-    );
+    assert_eq!(counts(&open, &["t_up", "t_dn"]), (10, 4, false, false));
     let ring = strip("boundary = \"periodic\"\n", "6", "");
-    let both = PhaseLattice::new(&ring.lattice, &fams(&ring, &["t_up", "t_dn"]));
-    assert_eq!(
-        (both.gapped_pairs, both.gapless_modes, both.fully_gapped()),
-        (12, 0, true)
-    );
+    assert_eq!(counts(&ring, &["t_up", "t_dn"]), (12, 0, true, false));
     let inf = strip("", "\"infinite\"", "");
-    let both = PhaseLattice::new(&inf.lattice, &fams(&inf, &["t_up", "t_dn"]));
-    assert_eq!(
-        (both.gapped_pairs, both.gapless_modes, both.fully_gapped()),
-        (2, 0, true)
-    );
-    let up = PhaseLattice::new(&inf.lattice, &fams(&inf, &["t_up"]));
-    assert_eq!((up.gapped_pairs, up.gapless_modes), (1, 2));
-    let target = target_lattice(&inf).unwrap();
-    assert!(target.same(&up) && !target.same(&both));
+    assert_eq!(counts(&inf, &["t_up", "t_dn"]), (2, 0, true, false));
+    assert_eq!(counts(&inf, &["t_up"]), (1, 2, false, true));
 }
 
 /// Labels: the fewest terms, listed before generated. {t_up, t_up2} is the
@@ -151,25 +145,21 @@ fn labels_prefer_few_listed_terms() {
         let mut cands = listed(&sys);
         cands.push(Candidate {
             name: "t_up - t_dn",
-            generated: true,
+            listed: false,
             family: &diff,
         });
-        let up_up2 = PhaseLattice::new(lat, &fams(&sys, &["t_up", "t_up2"]));
-        let up = PhaseLattice::new(lat, &fams(&sys, &["t_up"]));
-        let up2 = PhaseLattice::new(lat, &fams(&sys, &["t_up2"]));
-        assert!(up.same(&up_up2));
-        assert!(!up.same(&up2), "{wires}");
-        let names = vec!["t_up".to_string(), "t_up2".to_string()];
-        let p = name(lat, &up_up2, &names, &cands, target_lattice(&sys).as_ref());
+        let span = |names: &[&str]| PinnedLattice::on(lat, &fams(&sys, names));
+        assert!(span(&["t_up"]).same(&span(&["t_up", "t_up2"])));
+        assert!(!span(&["t_up"]).same(&span(&["t_up2"])), "{wires}");
+        let target = targets(&sys);
+        let p = name_phase(lat, &cands, &fams(&sys, &["t_up", "t_up2"]), &target);
         assert_eq!(p.label, "{t_up}");
         assert!(p.target);
-        let mixed = PhaseLattice::new(lat, &[fams(&sys, &["t_up"])[0], &diff]);
-        let p = name(lat, &mixed, &[], &cands, None);
-        assert_eq!(p.label, "{t_up, t_dn}");
-        let alone = PhaseLattice::new(lat, &[&diff]);
-        assert_eq!(name(lat, &alone, &[], &cands, None).label, "{t_up - t_dn}");
-        let none = PhaseLattice::new(lat, &[]);
-        let p = name(lat, &none, &[], &cands, None);
+        let mixed = [fams(&sys, &["t_up"])[0], &diff];
+        assert_eq!(name_phase(lat, &cands, &mixed, &[]).label, "{t_up, t_dn}");
+        let p = name_phase(lat, &cands, &[&diff], &[]);
+        assert_eq!(p.label, "{t_up - t_dn}");
+        let p = name_phase(lat, &cands, &[], &[]);
         assert_eq!((p.label.as_str(), p.gapped_pairs), ("gapless", 0));
     }
 }

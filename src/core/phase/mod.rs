@@ -1,36 +1,29 @@
-//! Naming the phase a pinned set produces [physics reference section 7,
-//! "Naming the phase"; section 6 for the lattice algebra].
+//! Naming the phase a pinned set produces (docs/physics.md section 8,
+//! "Naming the phase"; section 6 for the lattice algebra).
 //!
 //! A pinned set is a list of term families (every translate on the array,
 //! or on the periodic stand-in ring of an infinite array). Its phase is the
-//! integer lattice span_Z of the lattice vectors l of all those translates:
-//! two pinned sets are one phase iff they span the same lattice. Because
-//! K is invertible, comparing the spans of the l's is the same as comparing
-//! the spans of the particle vectors n = K^-1 l. Pinning 2 l is not pinning
-//! l: l is in span_Q but not in span_Z of {2 l}.
-//!
-//! Equality is decided exactly, by mutual membership: v is in the column
-//! span of A iff, with the Smith form P A Q = diag(d_1..d_r, 0..)
-//! ([`crate::math::smith`]), (P v)_i is divisible by d_i for i < r and
-//! vanishes for i >= r (A = P^-1 D Q^-1 and Q is unimodular). Big integers
-//! throughout, no overflow.
+//! integer lattice span_Z of the lattice vectors l of all those translates
+//! ([`lattice::PinnedLattice`]): two pinned sets are one phase iff they
+//! span the same lattice. Pinning 2 l is not pinning l: l is in span_Q but
+//! not in span_Z of {2 l}.
 //!
 //! The label is the smallest set of candidate families (the listed terms
 //! first, then the generated ones) whose span is the lattice, ties broken
 //! by fewer generated terms and then by candidate order, so it is a
 //! function of the lattice alone; `gapless` when nothing is pinned.
 //! Invariants: gapped pairs r = rank (per wire for an infinite array:
-//! rank over Q(z), the certificate of `edges::line`), gapless modes
-//! N - 2 r (n_c - 2 rho per wire), fully gapped when none is left.
+//! rank over Q(z), [`lattice::per_wire_rank`]), gapless modes N - 2 r
+//! (n_c - 2 rho per wire), fully gapped when none is left. dims, flow and
+//! scan all name phases here.
 
-use num_bigint::BigInt;
-use num_integer::Integer;
-use num_traits::Zero;
+pub mod lattice;
+
 use serde::Serialize;
 
 use crate::core::lattice::{Family, Lattice};
-use crate::math::smith::{smith, Smith};
-use crate::math::zmat::{big, ZMat};
+use crate::core::system::System;
+pub use lattice::{per_wire_rank, PinnedLattice};
 
 /// The phase of a pinned set, as every output reports it.
 #[derive(Debug, Clone, PartialEq, Eq, Serialize)]
@@ -53,84 +46,6 @@ pub struct Phase {
 /// Label of the phase with nothing pinned.
 pub const GAPLESS: &str = "gapless";
 
-/// The integer span of the lattice vectors of a set of families.
-#[derive(Debug, Clone)]
-pub struct PinnedLattice {
-    n: usize,
-    smith: Smith,
-}
-
-impl PinnedLattice {
-    /// Span of every translate of `families` (dense vectors of length n).
-    pub fn new(n: usize, families: &[&Family]) -> PinnedLattice {
-        let rows: Vec<Vec<i64>> = families
-            .iter()
-            .flat_map(|f| f.translates.iter().map(|t| t.l.clone()))
-            .collect();
-        let a = ZMat::from_i64(&rows, n).transpose();
-        let a = if rows.is_empty() {
-            ZMat::zeros(n, 0)
-        } else {
-            a
-        };
-        PinnedLattice {
-            n,
-            smith: smith(&a),
-        }
-    }
-
-    /// Rank over the rationals (gapped pairs of a finite array).
-    pub fn rank(&self) -> usize {
-        self.smith.rank()
-    }
-
-    /// v in span_Z (exact; see the module docs).
-    pub fn contains(&self, v: &[i64]) -> bool {
-        debug_assert_eq!(v.len(), self.n);
-        let y = self.smith.p.mul_vec(&big(v));
-        y.iter()
-            .enumerate()
-            .all(|(i, yi)| match self.smith.diag.get(i) {
-                Some(d) => yi.is_multiple_of(d),
-                None => yi.is_zero(),
-            })
-    }
-
-    /// Every translate of the family lies in the span.
-    pub fn contains_family(&self, f: &Family) -> bool {
-        f.translates.iter().all(|t| self.contains(&t.l))
-    }
-
-    /// v in span_Q (the term is locked, though perhaps not pinned, by the
-    /// set: its dimension in the pinned theory is zero).
-    pub fn contains_rationally(&self, v: &[i64]) -> bool {
-        let y = self.smith.p.mul_vec(&big(v));
-        y.iter().skip(self.rank()).all(|yi| yi.is_zero())
-    }
-
-    /// The same lattice as the span of `families` (mutual membership).
-    pub fn spans_same(&self, families: &[&Family]) -> bool {
-        families.iter().all(|f| self.contains_family(f))
-            && PinnedLattice::new(self.n, families).contains_all(self)
-    }
-
-    /// Every generator of `other` lies in this span.
-    fn contains_all(&self, other: &PinnedLattice) -> bool {
-        // Generators of other's span: the columns of P^-1 D (P A Q = D).
-        let s = &other.smith;
-        (0..s.rank()).all(|i| {
-            let col: Vec<BigInt> = s.p_inv.col(i).iter().map(|x| x * &s.diag[i]).collect();
-            let y = self.smith.p.mul_vec(&col);
-            y.iter()
-                .enumerate()
-                .all(|(j, yj)| match self.smith.diag.get(j) {
-                    Some(d) => yj.is_multiple_of(d),
-                    None => yj.is_zero(),
-                })
-        })
-    }
-}
-
 /// One family that may name a phase.
 #[derive(Debug, Clone, Copy)]
 pub struct Candidate<'a> {
@@ -150,18 +65,20 @@ pub fn name_phase(
     pinned: &[&Family],
     targets: &[&Family],
 ) -> Phase {
-    let lattice = PinnedLattice::new(lat.n, pinned);
+    let lattice = PinnedLattice::on(lat, pinned);
     let (gapped_pairs, modes) = if lat.infinite {
         (per_wire_rank(lat, pinned), lat.cell)
     } else {
         (lattice.rank(), lat.n)
     };
     let gapless_modes = modes.saturating_sub(2 * gapped_pairs);
-    let target = !targets.is_empty() && lattice.spans_same(targets);
+    let target = !targets.is_empty() && PinnedLattice::on(lat, targets).same(&lattice);
     let terms = if pinned.is_empty() {
         Vec::new()
     } else {
-        label_terms(&lattice, candidates, pinned.len())
+        label_terms(&lattice, candidates, pinned.len(), &|f: &[&Family]| {
+            PinnedLattice::on(lat, f)
+        })
     };
     let label = if terms.is_empty() {
         GAPLESS.to_string()
@@ -178,6 +95,27 @@ pub fn name_phase(
     }
 }
 
+/// The listed terms of a system as candidates.
+pub fn listed(sys: &System) -> Vec<Candidate<'_>> {
+    (sys.model.terms.iter())
+        .zip(&sys.lattice.families)
+        .map(|(t, f)| Candidate {
+            name: &t.name,
+            listed: true,
+            family: f,
+        })
+        .collect()
+}
+
+/// The families of the terms a model marks as targets.
+pub fn targets(sys: &System) -> Vec<&Family> {
+    (sys.model.terms.iter())
+        .zip(&sys.lattice.families)
+        .filter(|(t, _)| t.target)
+        .map(|(_, f)| f)
+        .collect()
+}
+
 /// Subsets of candidates tried before the label falls back to a greedy
 /// spanning set (written-out models list every translate as a term, and
 /// the number of subsets grows combinatorially).
@@ -190,7 +128,13 @@ pub const LABEL_BUDGET: usize = 4096;
 /// order, each kept when it enlarges the span, then every one that is not
 /// needed dropped) names the phase. Either way the label depends on the
 /// lattice alone.
-fn label_terms(lattice: &PinnedLattice, candidates: &[Candidate], most: usize) -> Vec<String> {
+/// `span_of` builds the span of a subset on the same lattice as `lattice`.
+fn label_terms(
+    lattice: &PinnedLattice,
+    candidates: &[Candidate],
+    most: usize,
+    span_of: &dyn Fn(&[&Family]) -> PinnedLattice,
+) -> Vec<String> {
     let inside: Vec<&Candidate> = candidates
         .iter()
         .filter(|c| !c.family.translates.is_empty() && lattice.contains_family(c.family))
@@ -199,8 +143,8 @@ fn label_terms(lattice: &PinnedLattice, candidates: &[Candidate], most: usize) -
         (0..inside.len()).partition(|&i| inside[i].listed);
     let spans = |combo: &[usize]| {
         let fams: Vec<&Family> = combo.iter().map(|&i| inside[i].family).collect();
-        let sub = PinnedLattice::new(lattice.n, &fams);
-        sub.rank() == lattice.rank() && sub.contains_all(lattice)
+        let sub = span_of(&fams);
+        sub.rank() == lattice.rank() && sub.same(lattice)
     };
     let names = |combo: &[usize]| combo.iter().map(|&i| inside[i].name.to_string()).collect();
     let mut budget = LABEL_BUDGET;
@@ -296,62 +240,8 @@ impl Combination {
     }
 }
 
-/// Right-left pairs gapped per wire of an infinite array: the rank over
-/// Q(z) of the polynomial vectors L_f(z) = sum_j l_j z^j of the pinned
-/// families (cell vectors l_j on wire j of a translate unfolded from the
-/// stand-in ring). Certificate as in `edges::line`: every minor has degree
-/// at most min(n_c, P) D, so the largest rank at B + 1 distinct integer
-/// points is the rank over Q(z). (l_j = K_c n_j: the same rank as the
-/// particle vectors.)
-pub fn per_wire_rank(lat: &Lattice, pinned: &[&Family]) -> usize {
-    let polys: Vec<Vec<Vec<i64>>> = pinned
-        .iter()
-        .filter_map(|f| f.translates.first().map(|t| unfold(lat, &t.l)))
-        .collect();
-    let most = lat.cell.min(polys.len());
-    let degree = polys
-        .iter()
-        .map(|p| p.len().saturating_sub(1))
-        .max()
-        .unwrap_or(0);
-    let mut rank = 0;
-    for z in 2..=(most * degree) as i64 + 2 {
-        if rank == most {
-            break;
-        }
-        let rows: Vec<Vec<BigInt>> = polys.iter().map(|p| evaluate(p, z)).collect();
-        rank = rank.max(crate::math::bareiss::rank(&rows));
-    }
-    rank
-}
-
-/// Cell vectors of a ring vector, from the support wire after the largest
-/// cyclic gap (unique: the stand-in ring is wider than twice every term).
-fn unfold(lat: &Lattice, l: &[i64]) -> Vec<Vec<i64>> {
-    let (c, w) = (lat.cell, lat.wires);
-    let on: Vec<usize> = (0..w)
-        .filter(|&j| l[j * c..(j + 1) * c].iter().any(|x| *x != 0))
-        .collect();
-    let (start, degree) = lat.unfolded_window(&on);
-    let mut coeffs = vec![vec![0i64; c]; degree + 1];
-    for &j in &on {
-        coeffs[(j + w - start) % w] = l[j * c..(j + 1) * c].to_vec();
-    }
-    coeffs
-}
-
-/// sum_j l_j z^j, exactly (Horner).
-fn evaluate(p: &[Vec<i64>], z: i64) -> Vec<BigInt> {
-    let cell = p.first().map_or(0, |c| c.len());
-    let z = BigInt::from(z);
-    let mut v = vec![BigInt::zero(); cell];
-    for c in p.iter().rev() {
-        for (x, a) in v.iter_mut().zip(c) {
-            *x = &*x * &z + a;
-        }
-    }
-    v
-}
+#[cfg(test)]
+mod lattice_tests;
 
 #[cfg(test)]
 mod tests {
@@ -421,9 +311,10 @@ mod tests {
             },
         ];
         let lattice = PinnedLattice::new(4, &[&s, &b]);
-        assert_eq!(label_terms(&lattice, &cands, 2), vec!["a", "b"]);
+        let span = |f: &[&Family]| PinnedLattice::new(4, f);
+        assert_eq!(label_terms(&lattice, &cands, 2, &span), vec!["a", "b"]);
         let only_s = PinnedLattice::new(4, &[&s]);
-        assert_eq!(label_terms(&only_s, &cands, 1), vec!["s"]);
+        assert_eq!(label_terms(&only_s, &cands, 1, &span), vec!["s"]);
     }
 
     #[test]
