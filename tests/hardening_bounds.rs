@@ -238,3 +238,61 @@ fn dims_on_the_dense_path_above_the_limit_is_refused_unless_forced() {
     // A periodic array of the same size goes through q-space: no limit.
     pinflow::dims::check_size(&system(&strip(600, "periodic")), false).expect("q-space");
 }
+
+// ------------------------------------------------------------ pairs closure
+
+/// A periodic array of `wires` wires with `terms` distinct two-wire terms
+/// (an invented demo: every particle content with entries in -2..=2 whose
+/// second wire is not empty, in a fixed order).
+fn many_terms(wires: usize, terms: usize) -> String {
+    let mut text = format!(
+        "[params]\nlambda = 0.3\n[array]\nwires = {wires}\nboundary = \"periodic\"\nK = [[1, 0], [0, -1]]\ncharge = [1, 1]\n[array.V]\n0 = [[\"1\", \"lambda\"], [\"lambda\", \"1\"]]\n1 = [[\"0.1\", \"0\"], [\"0\", \"0.1\"]]\n"
+    );
+    let r = -2i64..=2;
+    let vectors = r.clone().flat_map(|a| {
+        r.clone().flat_map(move |b| {
+            (-2i64..=2).flat_map(move |c| (-2i64..=2).map(move |d| [a, b, c, d]))
+        })
+    });
+    for (i, v) in vectors
+        .filter(|v| v[2] != 0 || v[3] != 0)
+        .take(terms)
+        .enumerate()
+    {
+        text += &format!(
+            "[[term]]\nname = \"t{i}\"\nparticles = {{ 0 = [{}, {}], 1 = [{}, {}] }}\ncoupling = 0.01\n",
+            v[0], v[1], v[2], v[3]
+        );
+    }
+    text
+}
+
+#[test]
+fn a_pairs_closure_too_large_to_build_is_refused_with_its_estimate() {
+    // Found by the hostile-input run: a 200-term 64-wire flow with the
+    // pairs closure ran for over a minute without a word. Estimate
+    // (derived, see flow::channels::closure_work): two-wire terms, default
+    // closure range 3 wires, so 2 * 3 - 1 = 5 shifts; up to
+    // 200 * 201 * 5 generated channels besides the 200 listed, and work
+    // C^2 N with N = 128 fields.
+    let sys = system(&many_terms(64, 200));
+    let channels = 200.0 + 200.0 * 201.0 * 5.0;
+    let work = pinflow::flow::channels::closure_work(&sys, true, None);
+    assert_eq!(work, channels * channels * 128.0);
+    let check = |generate, range, force| {
+        pinflow::flow::channels::check_closure(&sys, generate, range, force)
+    };
+    let e = input_error(check(true, None, false).expect_err("refused"));
+    assert_eq!(e.key, "--closure");
+    assert!(
+        e.message.contains("5.2e12") && e.message.contains("--force"),
+        "{}",
+        e.message
+    );
+    check(true, None, true).expect("forced");
+    // Without the closure: 200^2 * 128 = 5.1e6, far below the limit.
+    check(false, None, false).expect("--closure none");
+    // The demos are far below the limit.
+    let strip = System::load(&demo("laughlin_third_strip.toml")).unwrap();
+    pinflow::flow::channels::check_closure(&strip, true, None, false).expect("demo");
+}

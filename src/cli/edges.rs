@@ -21,7 +21,8 @@ pub struct EdgesArgs {
     /// and with each other].
     #[arg(long = "pin", value_name = "NAME")]
     pub pin: Vec<String>,
-    /// Analyse even above 256 fields (the exact theory's work grows like N^3).
+    /// Analyse even above 256 fields (the exact theory's work grows like
+    /// N^3), and flow with a pairs closure above its work limit.
     #[arg(long)]
     pub force: bool,
     /// Wires in the window at each end of an open array [default: the
@@ -44,6 +45,10 @@ pub(super) fn run(args: EdgesArgs) -> Result<(), Error> {
     crate::edges::check_size(&sys, args.force)?;
     // Flow options are checked even when --pin makes the flow unnecessary.
     let opts = FlowOptions::resolve(&sys.model, &args.flow.overrides())?;
+    if args.pin.is_empty() {
+        let generate = opts.closure == crate::flow::Closure::Pairs;
+        crate::flow::channels::check_closure(&sys, generate, opts.closure_range, args.force)?;
+    }
     let selection: Selection = if args.pin.is_empty() {
         pins::from_flow(&sys, &point, opts)?
     } else {

@@ -24,12 +24,17 @@ pub struct FlowArgs {
     /// Also write summary.json, trajectory.csv, flow.png and flow.svg into this directory.
     #[arg(long, value_name = "DIR")]
     pub out: Option<PathBuf>,
+    /// Build the pairs closure even when its estimated work is above the limit.
+    #[arg(long)]
+    pub force: bool,
 }
 
 pub(super) fn run(args: FlowArgs) -> Result<(), Error> {
     check_outputs(None, args.out.as_deref())?;
     let (sys, point) = load_point(&args.point)?;
     let opts = FlowOptions::resolve(&sys.model, &args.flow.overrides())?;
+    let generate = opts.closure == crate::flow::Closure::Pairs;
+    crate::flow::channels::check_closure(&sys, generate, opts.closure_range, args.force)?;
     let result = Flow::new(&sys, opts.clone()).run(&point)?;
     let unphysical = result.outcome == Outcome::Unphysical;
     let failed = result.outcome == Outcome::Failed;

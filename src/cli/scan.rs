@@ -46,7 +46,8 @@ pub struct ScanArgs {
     /// No progress bar.
     #[arg(long, short = 'q')]
     pub quiet: bool,
-    /// Run grids larger than the safety limit.
+    /// Run grids larger than the safety limit, and a pairs closure above its
+    /// work limit.
     #[arg(long)]
     pub force: bool,
     /// Format of the summary printed at the end.
@@ -116,6 +117,8 @@ pub(super) fn run_scan(args: ScanArgs) -> Result<(), Error> {
     let (sys, base) = load_point(&args.point)?;
     let axes = resolve_axes(&sys.model, args.x.as_deref(), args.y.as_deref())?;
     let options = FlowOptions::resolve(&sys.model, &args.flow.overrides())?;
+    let generate = options.closure == crate::flow::Closure::Pairs;
+    crate::flow::channels::check_closure(&sys, generate, options.closure_range, args.force)?;
     let spec = ScanSpec {
         axes,
         base,
