@@ -1,12 +1,5 @@
-//! The `pinflow` binary: parse the command line and hand over to the library.
-
-use clap::Parser;
+//! The `pinflow` binary: hand the command line over to the library.
 
 fn main() {
-    let cli = pinflow::cli::Cli::parse();
-    if let Err(e) = pinflow::cli::run(cli) {
-        let (message, code) = pinflow::cli::report_error(&e);
-        eprintln!("{message}");
-        std::process::exit(code);
-    }
+    std::process::exit(pinflow::cli::main_with(std::env::args_os()));
 }

@@ -947,7 +947,7 @@ fn pipeline(text: &str) -> &'static str {
         for f in FORMATS {
             let _ = search::render(&report, f);
         }
-        let _ = search::emit_terms(&report, &sys.model);
+        let _ = search::emit_terms(&report, &sys.model, 0.1);
     }
     stage
 }
@@ -1011,7 +1011,7 @@ fn check(text: &str, stats: &mut BTreeMap<&'static str, usize>) -> Result<(), Te
         }
     }
     let done = DONE.fetch_add(1, std::sync::atomic::Ordering::Relaxed) + 1;
-    if done % 100_000 == 0 && std::env::var_os("PINFLOW_FUZZ_PROGRESS").is_some() {
+    if done.is_multiple_of(100_000) && std::env::var_os("PINFLOW_FUZZ_PROGRESS").is_some() {
         let slow = SLOW.lock().unwrap_or_else(|e| e.into_inner()).0;
         eprintln!("fuzz progress: {done} cases, {slow} over {SLOW_SECONDS} s");
     }

@@ -679,7 +679,7 @@ charge = [1, 1]
                 ..opts(2.0)
             },
         );
-        let blocks = emit_terms(&rep, &sys.model);
+        let blocks = emit_terms(&rep, &sys.model, 0.1);
         let new: Vec<_> = rep
             .operators
             .iter()
@@ -704,7 +704,7 @@ charge = [1, 1]
     fn emitted_terms_of_an_explicit_model_carry_their_charge() {
         let sys = system(WIRE);
         let rep = run(&sys, &[], &everything(2.0));
-        let blocks = emit_terms(&rep, &sys.model);
+        let blocks = emit_terms(&rep, &sys.model, 0.1);
         assert!(blocks.contains("already terms of the model (not repeated): backscatter"));
         let merged = format!("{WIRE}\n{blocks}");
         let dims = common::report(&merged);

@@ -177,6 +177,7 @@ fn a_scan_records_a_refused_point_as_failed_and_goes_on() {
         base: defaults(&sys),
         options: opts,
         shard: None,
+        competitors: None,
     };
     let scan = Scan::new(&sys, b"model", spec).expect("scan");
     let refused = scan.row(0);

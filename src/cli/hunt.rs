@@ -9,8 +9,9 @@ use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
 use super::common::{check_outputs, emit, load_point, FormatArg, PointArgs};
 use crate::error::Error;
 use crate::search::{
-    emit_terms, hunt_with_progress, render, ChargeFilter, HuntOptions, MomentumFilter, Progress,
-    SpinFilter, DEFAULT_LIMIT, FORCED_MAX_LISTED, MAX_LISTED,
+    emit_terms, hunt_with_progress, render, smallest_coupling, ChargeFilter, HuntOptions,
+    MomentumFilter, Progress, SpinFilter, SymmetryChoice, DEFAULT_LIMIT, FORCED_MAX_LISTED,
+    MAX_LISTED,
 };
 
 /// `pinflow hunt`.
@@ -46,6 +47,16 @@ pub struct HuntArgs {
     /// for the model file, instead of the report.
     #[arg(long, conflicts_with = "format")]
     pub emit_terms: bool,
+    /// Which of the model's [[symmetry]] tables filter the operators: all,
+    /// none, or a comma-separated list of names.
+    #[arg(long, value_name = "all|none|NAME,...", default_value = "all",
+          value_parser = parse_symmetry)]
+    pub symmetry: SymmetryChoice,
+    /// With --emit-terms: the bare coupling written for every term
+    /// [default: the smallest non-zero coupling of the model's terms].
+    #[arg(long, value_name = "Y", allow_hyphen_values = true, requires = "emit_terms",
+          value_parser = parse_coupling)]
+    pub coupling: Option<f64>,
     /// Output format.
     #[arg(long, value_enum, default_value_t = FormatArg::Text)]
     pub format: FormatArg,
@@ -109,6 +120,33 @@ fn parse_charge(s: &str) -> Result<ChargeFilter, String> {
         .map_err(|_| format!("expected an integer charge t.m or `any`, found `{s}`"))
 }
 
+/// Parse `--symmetry`: all, none, or names separated by commas.
+pub(super) fn parse_symmetry(s: &str) -> Result<SymmetryChoice, String> {
+    match s.trim() {
+        "all" => Ok(SymmetryChoice::All),
+        "none" => Ok(SymmetryChoice::None),
+        list => {
+            let names: Vec<String> = list.split(',').map(|n| n.trim().to_string()).collect();
+            if names.iter().any(|n| n.is_empty()) {
+                return Err(format!(
+                    "expected all, none or symmetry names separated by commas, found `{s}`"
+                ));
+            }
+            Ok(SymmetryChoice::Names(names))
+        }
+    }
+}
+
+/// Parse a bare coupling: a finite number.
+pub(super) fn parse_coupling(s: &str) -> Result<f64, String> {
+    match s.trim().parse::<f64>() {
+        Ok(y) if y.is_finite() => Ok(y),
+        _ => Err(format!(
+            "expected a finite number (a bare coupling y), found `{s}`"
+        )),
+    }
+}
+
 fn options(args: &HuntArgs) -> HuntOptions {
     HuntOptions {
         max_dim: args.max_dim,
@@ -126,6 +164,7 @@ fn options(args: &HuntArgs) -> HuntOptions {
         limit: DEFAULT_LIMIT,
         max_listed: MAX_LISTED,
         forced_max_listed: FORCED_MAX_LISTED,
+        symmetry: args.symmetry.clone(),
     }
 }
 
@@ -150,7 +189,10 @@ pub(super) fn run(args: HuntArgs) -> Result<(), Error> {
     bar.finish_and_clear();
     let report = report?;
     let text = if args.emit_terms {
-        emit_terms(&report, &sys.model)
+        let y = args
+            .coupling
+            .unwrap_or_else(|| smallest_coupling(&sys, &point));
+        emit_terms(&report, &sys.model, y)
     } else {
         render(&report, args.format.into())?
     };

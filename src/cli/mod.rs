@@ -83,6 +83,33 @@ pub fn run(cli: Cli) -> Result<(), Error> {
     })
 }
 
+/// The whole command line: parse `args` (the first is the program name),
+/// run, print any error, and return the exit code (0, 1 or 2; clap's own
+/// code for `--help`, `--version` and bad flags). The `pinflow` binary and
+/// the Python package's `pinflow` command both run this.
+pub fn main_with<I, T>(args: I) -> i32
+where
+    I: IntoIterator<Item = T>,
+    T: Into<std::ffi::OsString> + Clone,
+{
+    let cli = match Cli::try_parse_from(args) {
+        Ok(cli) => cli,
+        Err(e) => {
+            // Help and version go to stdout, usage errors to stderr.
+            let _ = e.print();
+            return e.exit_code();
+        }
+    };
+    match run(cli) {
+        Ok(()) => 0,
+        Err(e) => {
+            let (message, code) = report_error(&e);
+            eprintln!("{message}");
+            code
+        }
+    }
+}
+
 /// Turn an error into a user-facing message and exit code.
 pub fn report_error(e: &Error) -> (String, i32) {
     (format!("error: {e}"), e.exit_code())

@@ -12,8 +12,9 @@ use crate::error::{Error, InputError};
 use crate::flow::FlowOptions;
 use crate::output::{self, Format};
 use crate::scan::figures::ColorBy;
-use crate::scan::run::{check_size, finish, resolve_axes};
-use crate::scan::store::{self, Meta, RowFile};
+use crate::scan::run::{check_size, finish, publish, resolve_axes};
+use crate::scan::store::{self, RowFile};
+use crate::scan::summary::ScanSummary;
 use crate::scan::{partial_path, shard_path, Scan, ScanSpec};
 
 /// `pinflow scan`.
@@ -30,6 +31,8 @@ pub struct ScanArgs {
     pub y: Option<String>,
     #[command(flatten)]
     pub flow: FlowFlags,
+    #[command(flatten)]
+    pub competitors: super::flow::CompetitorFlags,
     /// Output directory [default: out/<model file stem>].
     #[arg(long, value_name = "DIR")]
     pub out: Option<PathBuf>,
@@ -124,6 +127,7 @@ pub(super) fn run_scan(args: ScanArgs) -> Result<(), Error> {
         base,
         options,
         shard: args.shard,
+        competitors: args.competitors.resolve(&sys)?,
     };
     let bytes = std::fs::read(&args.point.model).map_err(|e| Error::io(&args.point.model, e))?;
     let scan = Scan::new(&sys, &bytes, spec)?;
@@ -159,10 +163,8 @@ pub(super) fn run_scan(args: ScanArgs) -> Result<(), Error> {
             Ok(())
         }
         None => {
-            let points = dir.join("points.csv");
-            store::publish_points(&partial, &scan.meta, &points)?;
-            print_summary(&dir, &scan.meta, args.format.into(), args.color_by.into())?;
-            std::fs::remove_file(&partial).map_err(|e| Error::io(&partial, e))
+            let summary = publish(&dir, &partial, &scan.meta, args.color_by.into())?;
+            print_summary(&dir, &summary, args.format.into())
         }
     }
 }
@@ -177,13 +179,13 @@ pub(super) fn run_merge(args: MergeArgs) -> Result<(), Error> {
     output::check_output_dir(&dir, "--out")?;
     std::fs::create_dir_all(&dir).map_err(|e| Error::io(&dir, e))?;
     let meta = store::merge(&args.shards, &dir.join("points.csv"))?;
-    print_summary(&dir, &meta, args.format.into(), args.color_by.into())
+    let summary = finish(&dir, &meta, args.color_by.into())?;
+    print_summary(&dir, &summary, args.format.into())
 }
 
-/// Write the summary and figures, then print the summary.
-fn print_summary(dir: &Path, meta: &Meta, format: Format, by: ColorBy) -> Result<(), Error> {
-    let summary = finish(dir, meta, by)?;
-    let mut text = output::render(&summary, format)?;
+/// Print the summary (whose files are written).
+fn print_summary(dir: &Path, summary: &ScanSummary, format: Format) -> Result<(), Error> {
+    let mut text = output::render(summary, format)?;
     if format == Format::Text {
         text.push_str(&format!("\nwritten to {}\n", dir.display()));
     }

@@ -242,7 +242,14 @@ impl Plan {
             plan.generate_candidates(sys, &mut index, wiring.as_ref().zip(applied));
         }
         let ring = sys.lattice.boundary == Some(Boundary::Periodic) && !split;
-        plan.ope = ope_table(&plan.channels, &index, &sys.invariants.pairing, ring);
+        let wiring = Wiring::of(sys);
+        plan.ope = ope_table(
+            &plan.channels,
+            &index,
+            &sys.invariants.pairing,
+            ring,
+            wiring.as_ref(),
+        );
         plan
     }
 
@@ -282,13 +289,16 @@ impl Plan {
         self.listed = self.channels.len();
     }
 
+    /// The pairs closure: for every pair of listed channels a <= b (no
+    /// extra sectors), every translate of b commuting with rep(a) and both
+    /// signs, rep(a) +- translate joins as a channel unless it is zero,
+    /// known, or wider than the range.
     fn generate_candidates(
         &mut self,
         sys: &System,
         index: &mut VectorIndex,
         range: Option<(&Wiring, usize)>,
     ) {
-        let lat = &sys.lattice;
         let listed = self.listed;
         for a in 0..listed {
             for b in a..listed {
@@ -301,53 +311,67 @@ impl Plan {
                         continue;
                     }
                     for sign in [1i8, -1] {
-                        let v: Vec<i64> = rep_a
-                            .l
-                            .iter()
-                            .zip(&tb.l)
-                            .map(|(x, y)| x + sign as i64 * y)
-                            .collect();
-                        if v.iter().all(|x| *x == 0) || index.find(&v).is_some() {
-                            continue;
-                        }
-                        if range.is_some_and(|(w, r)| w.span(&v) > r) {
-                            continue;
-                        }
-                        let fam = if self.split {
-                            single_of(lat, &v)
-                        } else {
-                            family_of(lat, &v)
-                        };
-                        let Some(fam) = fam else {
-                            continue;
-                        };
-                        let shown = if self.split {
-                            0
-                        } else {
-                            shown_shift(lat, rep_a.anchor, tb.anchor)
-                        };
-                        let name = generated_name(
-                            &self.channels[a].name,
-                            sign,
-                            &self.channels[b].name,
-                            a == b,
-                            shown,
-                        );
-                        let spin = &self.channels[a].spin + &self.channels[b].spin;
-                        let c = self.channels.len();
-                        index.add(c, &fam);
-                        let origin = Origin::Generated {
-                            a,
-                            sign,
-                            b,
-                            shift: shown,
-                        };
-                        self.channels
-                            .push(make_channel(sys, name, origin, fam, spin));
+                        self.add_candidate(sys, index, range, (a, &rep_a), (b, &tb), sign);
                     }
                 }
             }
         }
+    }
+
+    /// One candidate rep(a) + sign * tb (see [`Plan::generate_candidates`]).
+    fn add_candidate(
+        &mut self,
+        sys: &System,
+        index: &mut VectorIndex,
+        range: Option<(&Wiring, usize)>,
+        (a, rep_a): (usize, &Translate),
+        (b, tb): (usize, &Translate),
+        sign: i8,
+    ) {
+        let lat = &sys.lattice;
+        let v: Vec<i64> = rep_a
+            .l
+            .iter()
+            .zip(&tb.l)
+            .map(|(x, y)| x + sign as i64 * y)
+            .collect();
+        if v.iter().all(|x| *x == 0) || index.find(&v).is_some() {
+            return;
+        }
+        if range.is_some_and(|(w, r)| w.span(&v) > r) {
+            return;
+        }
+        let fam = if self.split {
+            single_of(lat, &v)
+        } else {
+            family_of(lat, &v)
+        };
+        let Some(fam) = fam else {
+            return;
+        };
+        let shown = if self.split {
+            0
+        } else {
+            shown_shift(lat, rep_a.anchor, tb.anchor)
+        };
+        let name = generated_name(
+            &self.channels[a].name,
+            sign,
+            &self.channels[b].name,
+            a == b,
+            shown,
+        );
+        let spin = &self.channels[a].spin + &self.channels[b].spin;
+        let c = self.channels.len();
+        index.add(c, &fam);
+        let origin = Origin::Generated {
+            a,
+            sign,
+            b,
+            shift: shown,
+        };
+        self.channels
+            .push(make_channel(sys, name, origin, fam, spin));
     }
 }
 
@@ -485,6 +509,24 @@ impl Wiring {
                 periodic: fw.periodic,
             }),
         }
+    }
+
+    /// The wires a dense vector touches, sorted.
+    fn touched(&self, v: &[i64]) -> Vec<usize> {
+        let mut w: Vec<usize> = v
+            .iter()
+            .enumerate()
+            .filter(|(_, x)| **x != 0)
+            .map(|(f, _)| self.wire_of[f])
+            .collect();
+        w.sort_unstable();
+        w.dedup();
+        w
+    }
+
+    /// Consecutive wires spanned by a sorted list of distinct wires.
+    fn span_of(&self, wires: &[usize]) -> usize {
+        window(wires, self.wires, self.periodic).map_or(0, |(_, width)| width)
     }
 
     /// Consecutive wires (cyclically when periodic) spanned by the support
@@ -681,10 +723,44 @@ fn family_of(lat: &Lattice, v: &[i64]) -> Option<Family> {
     (!fam.translates.is_empty()).then_some(fam)
 }
 
+/// A multiply-rotate hasher for integer vectors (the SipHash default was a
+/// quarter of the time of a plan with a few hundred channels; the keys are
+/// the model's own vectors, so no hash flooding is to be feared).
+#[derive(Debug, Default, Clone, Copy)]
+struct VecHasher(u64);
+
+impl std::hash::Hasher for VecHasher {
+    fn finish(&self) -> u64 {
+        self.0
+    }
+    fn write(&mut self, bytes: &[u8]) {
+        let mut chunks = bytes.chunks_exact(8);
+        for c in &mut chunks {
+            let mut word = [0u8; 8];
+            word.copy_from_slice(c);
+            self.write_u64(u64::from_le_bytes(word));
+        }
+        for b in chunks.remainder() {
+            self.write_u64(*b as u64);
+        }
+    }
+    fn write_u64(&mut self, x: u64) {
+        self.0 = (self.0.rotate_left(5) ^ x).wrapping_mul(0x517c_c1b7_2722_0a95);
+    }
+    fn write_i64(&mut self, x: i64) {
+        self.write_u64(x as u64);
+    }
+    fn write_usize(&mut self, x: usize) {
+        self.write_u64(x as u64);
+    }
+}
+
+type VecMap<V> = HashMap<Vec<i64>, V, std::hash::BuildHasherDefault<VecHasher>>;
+
 /// Maps every translate vector (and its negative) to (channel, sign).
 #[derive(Debug, Default)]
 struct VectorIndex {
-    map: HashMap<Vec<i64>, (usize, bool)>,
+    map: VecMap<(usize, bool)>,
 }
 
 impl VectorIndex {
@@ -702,22 +778,99 @@ impl VectorIndex {
     }
 }
 
+/// The wires each translate of each channel touches (sorted), and the
+/// widest channel: a pair of translates with disjoint supports sums to a
+/// vector whose support is their union, which is no channel when it spans
+/// more wires than the widest channel.
+struct Supports<'w> {
+    wiring: &'w Wiring,
+    wires: Vec<Vec<Vec<usize>>>,
+    widest: usize,
+}
+
+impl<'w> Supports<'w> {
+    fn new(wiring: &'w Wiring, channels: &[Channel]) -> Supports<'w> {
+        let wires = channels
+            .iter()
+            .map(|c| {
+                c.family
+                    .translates
+                    .iter()
+                    .map(|t| wiring.touched(&t.l))
+                    .collect()
+            })
+            .collect();
+        let widest = channels
+            .iter()
+            .map(|c| wiring.span(&c.family.rep().l))
+            .max()
+            .unwrap_or(0);
+        Supports {
+            wiring,
+            wires,
+            widest,
+        }
+    }
+
+    /// Translate `ta` of channel `a` and `tb` of `b` cannot sum to a channel.
+    fn too_far(&self, (a, ta): (usize, usize), (b, tb): (usize, usize)) -> bool {
+        let (x, y) = (&self.wires[a][ta], &self.wires[b][tb]);
+        // Merge the two sorted lists on the stack (supports are a few wires).
+        let mut buf = [0usize; 32];
+        if x.len() + y.len() > buf.len() {
+            return false;
+        }
+        let (mut i, mut j, mut n) = (0, 0, 0);
+        while i < x.len() || j < y.len() {
+            let w = match (x.get(i), y.get(j)) {
+                (Some(p), Some(q)) if p == q => return false,
+                (Some(p), Some(q)) if p < q => {
+                    i += 1;
+                    *p
+                }
+                (Some(p), None) => {
+                    i += 1;
+                    *p
+                }
+                (_, Some(q)) => {
+                    j += 1;
+                    *q
+                }
+                (None, None) => break,
+            };
+            buf[n] = w;
+            n += 1;
+        }
+        self.wiring.span_of(&buf[..n]) > self.widest
+    }
+}
+
+/// The OPE table (see the module docs); pairs of translates too far apart
+/// to sum to a channel are skipped before any vector is formed.
 fn ope_table(
     channels: &[Channel],
     index: &VectorIndex,
     pairing: &Pairing,
     ring: bool,
+    wiring: Option<&Wiring>,
 ) -> Vec<OpeEntry> {
+    let supports = wiring.map(|w| Supports::new(w, channels));
     let mut table = Vec::new();
+    let mut v: Vec<i64> = Vec::new();
     for (a, ca) in channels.iter().enumerate() {
-        let rep = ca.family.rep();
+        let (rep, ra) = (ca.family.rep(), ca.family.representative);
         for (b, cb) in channels.iter().enumerate() {
-            for tb in &cb.family.translates {
-                if !pairing.commute(&rep.l, &tb.l) {
+            for (tbi, tb) in cb.family.translates.iter().enumerate() {
+                if supports
+                    .as_ref()
+                    .is_some_and(|s| s.too_far((a, ra), (b, tbi)))
+                    || !pairing.commute(&rep.l, &tb.l)
+                {
                     continue;
                 }
                 for (sign, b_conj) in [(1i64, false), (-1, true)] {
-                    let v: Vec<i64> = rep.l.iter().zip(&tb.l).map(|(x, y)| x + sign * y).collect();
+                    v.clear();
+                    v.extend(rep.l.iter().zip(&tb.l).map(|(x, y)| x + sign * y));
                     if v.iter().all(|x| *x == 0) {
                         continue;
                     }

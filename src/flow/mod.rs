@@ -35,6 +35,7 @@
 pub mod background;
 pub mod channels;
 pub mod check;
+pub mod competitors;
 pub mod kt;
 pub mod options;
 pub mod report;
@@ -225,6 +226,9 @@ pub struct FlowResult {
     pub listed_rows: Vec<Option<usize>>,
     /// Accepted integration steps.
     pub steps: usize,
+    /// Hunted competitors (`--competitors`) that joined this flow as terms,
+    /// named `auto:<particle content>`; empty without them.
+    pub competitors_added: Vec<String>,
     /// A message for unphysical or failed points.
     pub message: Option<String>,
     /// Trajectory (when recorded).
@@ -274,6 +278,12 @@ impl<'s> Flow<'s> {
     /// Prepare the plan (exact work done once).
     pub fn new(sys: &'s System, opts: FlowOptions) -> Flow<'s> {
         let plan = Plan::build(sys, opts.closure == Closure::Pairs, opts.closure_range);
+        Flow::with_plan(sys, plan, opts)
+    }
+
+    /// With a plan built before for the same system and options (hunted
+    /// competitors keep the plans of the systems they build).
+    pub fn with_plan(sys: &'s System, plan: Plan, opts: FlowOptions) -> Flow<'s> {
         let layout = match sys.eval_path() {
             EvalPath::Infinite => Layout::Infinite,
             // Translates with their own momenta break translation invariance.
@@ -567,6 +577,7 @@ impl<'s> Flow<'s> {
             plan_notes: self.plan_notes(),
             listed_rows: self.listed_rows(included),
             steps: rhs.steps,
+            competitors_added: Vec::new(),
             message: integrated.message,
             samples: rhs.samples.clone(),
         };
@@ -677,6 +688,7 @@ impl FlowResult {
             plan_notes: Vec::new(),
             listed_rows: Vec::new(),
             steps: 0,
+            competitors_added: Vec::new(),
             message: Some(message),
             samples: Vec::new(),
         }

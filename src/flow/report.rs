@@ -83,6 +83,13 @@ impl FlowReport {
             notes.push(crate::dims::period_note(g));
         }
         notes.extend(result.plan_notes.iter().cloned());
+        if !result.competitors_added.is_empty() {
+            notes.push(format!(
+                "hunted competitors added as terms ({}): {}",
+                result.competitors_added.len(),
+                result.competitors_added.join(", ")
+            ));
+        }
         if let Some(k) = &result.kt {
             notes.push(kt_note(k, options.ell_max));
         }

@@ -12,6 +12,7 @@
 
 pub mod expr;
 pub mod raw;
+pub mod symmetry;
 mod values;
 
 use std::collections::BTreeSet;
@@ -20,7 +21,9 @@ use std::path::Path;
 use crate::error::InputError;
 use crate::math::rational::Rational;
 pub use expr::{ParamSet, Scalar};
+use num_traits::Zero;
 use raw::{RawArray, RawFields, RawModel, RawTerm};
+pub use symmetry::{Symmetry, SymmetryKind};
 use values::Ctx;
 
 /// Most fields a model may have in all (wires times fields per wire). Every
@@ -99,6 +102,11 @@ pub struct TermSpec {
     pub target: bool,
     /// Charge the term may carry without being flagged.
     pub allowed_charge: Rational,
+    /// Charges under the model's U(1) symmetries that the term may carry
+    /// (the other keys of an `allowed_charge` table), by symmetry name.
+    pub allowed_charges: Vec<(String, Rational)>,
+    /// The group whose members flow from one bare coupling (None: alone).
+    pub group: Option<String>,
 }
 
 impl TermSpec {
@@ -154,6 +162,22 @@ pub struct Model {
     pub flow_table: Option<toml::Table>,
     /// The `[scan]` table, checked by the scan module.
     pub scan_table: Option<toml::Table>,
+    /// The `[[symmetry]]` tables.
+    pub symmetries: Vec<Symmetry>,
+    /// The `[competitors]` table.
+    pub competitors: CompetitorDefaults,
+}
+
+/// The `[competitors]` table: defaults of `--competitors` and
+/// `--competitor-coupling` (None: not given).
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct CompetitorDefaults {
+    /// `delta`: hunted operators with bare Delta <= delta join the flow.
+    pub delta: Option<f64>,
+    /// `coupling`: their bare coupling.
+    pub coupling: Option<f64>,
+    /// `range`: the hunt's range in wires (arrays).
+    pub range: Option<usize>,
 }
 
 impl Model {
@@ -203,7 +227,9 @@ impl Model {
             }
         };
         model.name = raw.name.unwrap_or_else(|| file.to_string());
+        model.symmetries = symmetry::read_symmetries(&ctx, &raw.symmetry, &model.cell_k)?;
         model.terms = read_terms(&ctx, &model, &raw.term)?;
+        model.competitors = read_competitors(&ctx, raw.competitors.as_ref())?;
         model.flow_table = raw.flow;
         model.scan_table = raw.scan;
         Ok(model)
@@ -481,6 +507,8 @@ fn read_explicit(ctx: &Ctx, f: RawFields, params: ParamSet) -> Result<Model, Inp
         field_wires,
         flow_table: None,
         scan_table: None,
+        symmetries: Vec::new(),
+        competitors: CompetitorDefaults::default(),
     })
 }
 
@@ -623,6 +651,8 @@ fn read_array(ctx: &Ctx, a: RawArray, params: ParamSet) -> Result<Model, InputEr
         field_wires: None,
         flow_table: None,
         scan_table: None,
+        symmetries: Vec::new(),
+        competitors: CompetitorDefaults::default(),
     })
 }
 
@@ -845,10 +875,42 @@ fn read_terms(ctx: &Ctx, model: &Model, raw: &[RawTerm]) -> Result<Vec<TermSpec>
         }
         terms.push(read_term(ctx, model, t, &key)?);
     }
+    tie_groups(ctx, raw, &mut terms)?;
     Ok(terms)
 }
 
 fn read_term(ctx: &Ctx, model: &Model, t: &RawTerm, key: &str) -> Result<TermSpec, InputError> {
+    let (content, parts, vkey) = read_parts(ctx, model, t, key)?;
+    check_term_fits(ctx, model, &parts, &vkey)?;
+    let scalar =
+        |v: &Option<toml::Value>, name: &str, default: f64| -> Result<Scalar, InputError> {
+            match v {
+                None => Ok(Scalar::Const(default)),
+                Some(v) => values::scalar(ctx, v, &format!("{key}.{name}"), &model.params),
+            }
+        };
+    let (allowed_charge, allowed_charges) = read_allowed(ctx, model, t, key)?;
+    Ok(TermSpec {
+        name: t.name.clone(),
+        content,
+        parts,
+        coupling: scalar(&t.coupling, "coupling", 0.1)?,
+        phase: scalar(&t.phase, "phase", 0.0)?,
+        extra_dimension: scalar(&t.extra_dimension, "extra_dimension", 0.0)?,
+        extra_spin: values::rational_opt(ctx, t.extra_spin.as_ref(), &format!("{key}.extra_spin"))?,
+        target: t.target.unwrap_or(false),
+        allowed_charge,
+        allowed_charges,
+        group: read_group(ctx, t, key)?,
+    })
+}
+
+/// How a term's vectors are read, its parts per wire offset, and the key.
+type ReadParts = (Content, Vec<(usize, Vec<i64>)>, String);
+
+/// `particles` or `vector`: how to read them, the parts per wire offset
+/// (entries within [`MAX_ENTRY`], not all zero) and the key they came from.
+fn read_parts(ctx: &Ctx, model: &Model, t: &RawTerm, key: &str) -> Result<ReadParts, InputError> {
     let (content, value, sub) = match (&t.particles, &t.vector) {
         (Some(p), None) => (Content::Particles, p, "particles"),
         (None, Some(v)) => (Content::Vector, v, "vector"),
@@ -882,9 +944,19 @@ fn read_term(ctx: &Ctx, model: &Model, t: &RawTerm, key: &str) -> Result<TermSpe
     if parts.iter().all(|(_, v)| v.iter().all(|x| *x == 0)) {
         return Err(ctx.err(&vkey, "the zero vector is not a cosine term"));
     }
+    Ok((content, parts, vkey))
+}
+
+/// The term's wire offsets fit the array (and an infinite array's limit).
+fn check_term_fits(
+    ctx: &Ctx,
+    model: &Model,
+    parts: &[(usize, Vec<i64>)],
+    vkey: &str,
+) -> Result<(), InputError> {
     let range = parts.iter().map(|p| p.0).max().unwrap_or(0);
     if model.is_infinite() {
-        check_infinite_range(ctx, range, &vkey)?;
+        check_infinite_range(ctx, range, vkey)?;
     }
     if let Structure::Array {
         wires: Wires::Finite(w),
@@ -893,31 +965,124 @@ fn read_term(ctx: &Ctx, model: &Model, t: &RawTerm, key: &str) -> Result<TermSpe
     {
         if w <= range {
             return Err(ctx.err(
-                &vkey,
+                vkey,
                 format!("the term reaches wire offset {range}, which does not fit an array of {w} wires"),
             ));
         }
     }
-    let scalar =
-        |v: &Option<toml::Value>, name: &str, default: f64| -> Result<Scalar, InputError> {
-            match v {
-                None => Ok(Scalar::Const(default)),
-                Some(v) => values::scalar(ctx, v, &format!("{key}.{name}"), &model.params),
+    Ok(())
+}
+
+/// `allowed_charge`: a number (the electric charge) or a table by symmetry
+/// name, `charge` meaning the electric charge and every other key a U(1)
+/// of the model.
+type Allowed = (Rational, Vec<(String, Rational)>);
+
+fn read_allowed(ctx: &Ctx, model: &Model, t: &RawTerm, key: &str) -> Result<Allowed, InputError> {
+    let akey = format!("{key}.allowed_charge");
+    let Some(toml::Value::Table(table)) = &t.allowed_charge else {
+        let electric = values::rational_opt(ctx, t.allowed_charge.as_ref(), &akey)?;
+        return Ok((electric, Vec::new()));
+    };
+    let mut electric = Rational::zero();
+    let mut others = Vec::new();
+    for (name, v) in table {
+        let k = format!("{akey}.{name}");
+        let q = values::rational_opt(ctx, Some(v), &k)?;
+        if name == "charge" {
+            electric = q;
+            continue;
+        }
+        match model.symmetries.iter().find(|s| &s.name == name) {
+            Some(s) if s.is_u1() => others.push((name.clone(), q)),
+            Some(_) => {
+                return Err(ctx.err(&k, format!("`{name}` is a Z_n symmetry, which has no charge; only U(1) symmetries (`charge = [...]`) and `charge` (electric) can be named")))
             }
+            None => {
+                let u1: Vec<&str> = model.symmetries.iter().filter(|s| s.is_u1()).map(|s| s.name.as_str()).collect();
+                return Err(ctx.err(&k, format!("unknown symmetry `{name}`; expected `charge` (electric) or a U(1) of the model ({})", if u1.is_empty() { "none declared".to_string() } else { u1.join(", ") })));
+            }
+        }
+    }
+    Ok((electric, others))
+}
+
+fn read_group(ctx: &Ctx, t: &RawTerm, key: &str) -> Result<Option<String>, InputError> {
+    match &t.group {
+        Some(g) if g.trim().is_empty() => {
+            Err(ctx.err(&format!("{key}.group"), "a group needs a non-empty name"))
+        }
+        g => Ok(g.clone()),
+    }
+}
+
+/// Members of one group flow from one bare coupling: a member that omits
+/// `coupling` takes the group's; one that gives another is refused.
+fn tie_groups(ctx: &Ctx, raw: &[RawTerm], terms: &mut [TermSpec]) -> Result<(), InputError> {
+    let mut given: std::collections::BTreeMap<String, (usize, Scalar)> = Default::default();
+    for (i, (r, t)) in raw.iter().zip(terms.iter()).enumerate() {
+        let (Some(g), Some(_)) = (&t.group, &r.coupling) else {
+            continue;
         };
-    Ok(TermSpec {
-        name: t.name.clone(),
-        content,
-        parts,
-        coupling: scalar(&t.coupling, "coupling", 0.1)?,
-        phase: scalar(&t.phase, "phase", 0.0)?,
-        extra_dimension: scalar(&t.extra_dimension, "extra_dimension", 0.0)?,
-        extra_spin: values::rational_opt(ctx, t.extra_spin.as_ref(), &format!("{key}.extra_spin"))?,
-        target: t.target.unwrap_or(false),
-        allowed_charge: values::rational_opt(
-            ctx,
-            t.allowed_charge.as_ref(),
-            &format!("{key}.allowed_charge"),
-        )?,
-    })
+        match given.get(g) {
+            Some((j, c)) if c.text() != t.coupling.text() => {
+                return Err(ctx.err(
+                    &format!("term \"{}\".coupling", t.name),
+                    format!("differs from the coupling of group \"{g}\" ({} in term \"{}\"); members of a group flow from one coupling: give it once or equally", c.text(), terms[*j].name),
+                ))
+            }
+            Some(_) => {}
+            None => {
+                given.insert(g.clone(), (i, t.coupling.clone()));
+            }
+        }
+    }
+    for (r, t) in raw.iter().zip(terms.iter_mut()) {
+        if let (Some(g), None) = (&t.group, &r.coupling) {
+            if let Some((_, c)) = given.get(g) {
+                t.coupling = c.clone();
+            }
+        }
+    }
+    Ok(())
+}
+
+/// The `[competitors]` table: `delta`, `coupling` (numbers) and `range`
+/// (an integer >= 1).
+fn read_competitors(
+    ctx: &Ctx,
+    table: Option<&toml::Table>,
+) -> Result<CompetitorDefaults, InputError> {
+    let mut out = CompetitorDefaults::default();
+    let Some(table) = table else {
+        return Ok(out);
+    };
+    for (name, v) in table {
+        let key = format!("competitors.{name}");
+        match name.as_str() {
+            "delta" => {
+                let x = values::number(ctx, v, &key)?;
+                if x <= 0.0 {
+                    return Err(
+                        ctx.err(&key, format!("expected a scaling dimension > 0, found {x}"))
+                    );
+                }
+                out.delta = Some(x);
+            }
+            "coupling" => out.coupling = Some(values::number(ctx, v, &key)?),
+            "range" => match v {
+                toml::Value::Integer(r) if *r >= 1 => out.range = Some(*r as usize),
+                other => {
+                    return Err(ctx.err(
+                        &key,
+                        format!(
+                        "expected a number of consecutive wires (an integer >= 1), found {other}"
+                    ),
+                    ))
+                }
+            },
+            _ => return Err(ctx.err(&key, "unknown key; expected `delta`, `coupling` or `range`")),
+        }
+    }
+    Ok(out)
 }

@@ -28,6 +28,27 @@ pub struct RawModel {
     pub flow: Option<Table>,
     /// Defaults for `pinflow scan`.
     pub scan: Option<Table>,
+    /// Symmetries: conserved U(1) charges and Z_n maps of the fields.
+    #[serde(default)]
+    pub symmetry: Vec<RawSymmetry>,
+    /// Defaults of `--competitors` (hunted competitors in the flow).
+    pub competitors: Option<Table>,
+}
+
+/// One `[[symmetry]]`: a U(1) (`charge`) or a Z_n (`map`, `shift`, `order`).
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawSymmetry {
+    /// Unique name.
+    pub name: String,
+    /// U(1): the charge of every (cell) field.
+    pub charge: Option<Value>,
+    /// Z_n: the integer matrix W of phi -> W phi + 2 pi shift / order.
+    pub map: Option<Value>,
+    /// Z_n: the integer shift (default zero).
+    pub shift: Option<Value>,
+    /// Z_n: the order n.
+    pub order: Option<Value>,
 }
 
 /// `[fields]`: the explicit form.
@@ -99,6 +120,10 @@ pub struct RawTerm {
     /// Marks the term the model is meant to realise.
     pub target: Option<bool>,
     /// Charge the term is allowed to carry (default 0), e.g. 2 for pairing
-    /// from a nearby superconductor.
+    /// from a nearby superconductor: a number (the electric charge) or a
+    /// table by symmetry name (`{ charge = 2, Sz = 0 }`).
     pub allowed_charge: Option<Value>,
+    /// Terms with the same group flow from one bare coupling and phase (the
+    /// members of a symmetry orbit).
+    pub group: Option<String>,
 }

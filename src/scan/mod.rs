@@ -53,11 +53,14 @@ pub struct ScanSpec {
     pub options: FlowOptions,
     /// (k, n), 1-based, to compute only every n-th point starting at k-1.
     pub shard: Option<(usize, usize)>,
+    /// Hunted competitors joining every flow (`--competitors`).
+    pub competitors: Option<crate::flow::competitors::CompetitorOptions>,
 }
 
 /// A scan prepared for running.
 pub struct Scan<'s> {
     flow: Flow<'s>,
+    competing: Option<crate::flow::competitors::Competing<'s>>,
     spec: ScanSpec,
     slots: Vec<usize>,
     /// File meta (fingerprint, columns, target).
@@ -109,8 +112,14 @@ impl<'s> Scan<'s> {
         spec.options.record = false;
         let meta = make_meta(sys, model_bytes, &spec);
         let flow = Flow::new(sys, spec.options.clone());
+        let competing = spec
+            .competitors
+            .clone()
+            .map(|c| crate::flow::competitors::Competing::new(sys, spec.options.clone(), c))
+            .transpose()?;
         Ok(Scan {
             flow,
+            competing,
             spec,
             slots,
             meta,
@@ -152,7 +161,11 @@ impl<'s> Scan<'s> {
     /// Flow one grid point and format its CSV row.
     pub fn row(&self, index: usize) -> String {
         let point = self.point(index);
-        let result = match self.flow.run(&point) {
+        let run = match &self.competing {
+            Some(c) => c.run(&point),
+            None => self.flow.run(&point),
+        };
+        let result = match run {
             Ok(r) => r,
             Err(Error::Input(e)) => FlowResult::without_flow(Outcome::Unphysical, e.message),
             Err(e) => FlowResult::without_flow(Outcome::Failed, e.to_string()),
@@ -272,13 +285,18 @@ fn make_meta(sys: &System, model_bytes: &[u8], spec: &ScanSpec) -> Meta {
         shard: None,
         ..meta.clone()
     };
-    let canonical = format!(
+    let mut canonical = format!(
         "{}|{:?}|{}|{}",
         String::from_utf8_lossy(model_bytes),
         spec.base,
         serde_json::to_string(&spec.options).unwrap_or_default(),
         serde_json::to_string(&whole).unwrap_or_default()
     );
+    // Hunted competitors change every row (absent: the fingerprint of a
+    // scan without them is unchanged).
+    if let Some(c) = &spec.competitors {
+        canonical.push_str(&format!("|competitors {c:?}"));
+    }
     meta.fingerprint = format!("{:016x}", fnv1a(canonical.as_bytes()));
     meta
 }

@@ -6,9 +6,9 @@ use std::path::Path;
 
 use super::figures::{Canvas, ColorBy};
 use super::points::for_each_point;
-use super::store::Meta;
+use super::store::{self, Meta, RowFile};
 use super::summary::{ScanSummary, Tally};
-use super::{Axis, MAX_POINTS};
+use super::{Axis, Scan, MAX_POINTS};
 use crate::error::{Error, InputError};
 use crate::model::Model;
 use crate::output;
@@ -31,6 +31,30 @@ pub fn finish(dir: &Path, meta: &Meta, by: ColorBy) -> Result<ScanSummary, Error
         &dir.join("summary.json"),
         output::to_json(&summary)?.as_bytes(),
     )?;
+    Ok(summary)
+}
+
+/// A whole scan computed into `dir` (created if missing), without progress
+/// reporting, resuming or shards: the partial file, then [`publish`]. The
+/// library route to what `pinflow scan` writes (the command adds those
+/// three around the same steps); `flag` names the output directory in
+/// errors.
+pub fn run_to_dir(scan: &Scan, dir: &Path, by: ColorBy, flag: &str) -> Result<ScanSummary, Error> {
+    output::check_output_dir(dir, flag)?;
+    std::fs::create_dir_all(dir).map_err(|e| Error::io(dir, e))?;
+    let partial = super::partial_path(dir, None);
+    let mut file = RowFile::create(&partial, &scan.meta)?;
+    scan.run_into(&mut file, &|_| {})?;
+    drop(file);
+    publish(dir, &partial, &scan.meta, by)
+}
+
+/// The end of a whole scan: `points.csv` from the finished partial file,
+/// then the summary and figures ([`finish`]); the partial file is removed.
+pub fn publish(dir: &Path, partial: &Path, meta: &Meta, by: ColorBy) -> Result<ScanSummary, Error> {
+    store::publish_points(partial, meta, &dir.join("points.csv"))?;
+    let summary = finish(dir, meta, by)?;
+    std::fs::remove_file(partial).map_err(|e| Error::io(partial, e))?;
     Ok(summary)
 }
 

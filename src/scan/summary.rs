@@ -61,6 +61,9 @@ pub struct ScanSummary {
     pub outcomes: BTreeMap<String, usize>,
     /// Count per winning term (strong and spinful outcomes).
     pub winners: BTreeMap<String, usize>,
+    /// Count per hunted competitor (`auto:...`, `--competitors`) among the
+    /// winners (empty without them).
+    pub competitor_wins: BTreeMap<String, usize>,
     /// Where the target wins (when the model marks one).
     pub target: Option<TargetSummary>,
     /// Points per phase of the final pinned set (most points first).
@@ -146,6 +149,7 @@ fn generated_winners_note(meta: &Meta, winners: &BTreeMap<String, usize>) -> Opt
     let generated: Vec<String> = winners
         .iter()
         .filter(|(name, _)| !meta.terms.contains(name) && !is_translate(name, &meta.terms))
+        .filter(|(name, _)| !name.starts_with(crate::flow::competitors::PREFIX))
         .map(|(name, n)| format!("{name} ({n} points)"))
         .collect();
     (!generated.is_empty()).then(|| {
@@ -275,12 +279,30 @@ impl Tally {
                 q.not_converged, q.checked
             ));
         }
+        let competitor_wins: BTreeMap<String, usize> = self
+            .winners
+            .iter()
+            .filter(|(name, _)| name.starts_with(crate::flow::competitors::PREFIX))
+            .map(|(name, n)| (name.clone(), *n))
+            .collect();
+        if !competitor_wins.is_empty() {
+            let total: usize = competitor_wins.values().sum();
+            notes.push(format!(
+                "hunted competitors (--competitors, named auto:<particle content>) won at {total} points: {}",
+                competitor_wins
+                    .iter()
+                    .map(|(n, k)| format!("{n} ({k})"))
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            ));
+        }
         ScanSummary {
             model: meta.model.clone(),
             axes: meta.axes.iter().map(|a| a.spec()).collect(),
             points,
             outcomes: self.outcomes,
             winners: self.winners,
+            competitor_wins,
             target,
             phases,
             target_phase,

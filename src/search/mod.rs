@@ -43,7 +43,9 @@
 //! (dimension rounded to 1e-9, then particle content), whatever the
 //! thread count.
 
+pub mod orbits;
 pub mod report;
+pub mod symmetry;
 pub mod window;
 
 use std::collections::BTreeSet;
@@ -54,7 +56,9 @@ use crate::core::system::{EvalPath, System};
 use crate::error::{Error, InputError};
 use crate::math::ellipsoid::Ellipsoid;
 use crate::math::rational;
+pub use orbits::OrbitReport;
 pub use report::{emit_terms, render, Estimate, HuntReport, Operator};
+pub use symmetry::SymmetryChoice;
 use window::Window;
 
 /// Relative tolerance on the dimension bound.
@@ -125,6 +129,8 @@ pub struct HuntOptions {
     pub max_listed: usize,
     /// Most operators listed with `force` (a hard bound on memory).
     pub forced_max_listed: usize,
+    /// Which of the model's symmetries filter the operators.
+    pub symmetry: SymmetryChoice,
 }
 
 impl Default for HuntOptions {
@@ -139,6 +145,7 @@ impl Default for HuntOptions {
             limit: DEFAULT_LIMIT,
             max_listed: MAX_LISTED,
             forced_max_listed: FORCED_MAX_LISTED,
+            symmetry: SymmetryChoice::All,
         }
     }
 }
@@ -152,10 +159,12 @@ struct Space {
     gram: DMatrix<f64>,
     /// Non-zero entries of each row of K.
     k_rows: Vec<Vec<(usize, i64)>>,
+    /// The model's symmetries in force at the point.
+    sym: symmetry::InUse,
 }
 
 impl Space {
-    fn new(sys: &System, d_full: &DMatrix<f64>, window: Window) -> Space {
+    fn new(sys: &System, d_full: &DMatrix<f64>, window: Window, sym: symmetry::InUse) -> Space {
         let idx = window.field_indices();
         let n = idx.len();
         let k: Vec<Vec<i64>> = idx
@@ -184,6 +193,7 @@ impl Space {
             d,
             gram,
             k_rows,
+            sym,
         }
     }
 
@@ -463,7 +473,7 @@ fn enumerate(
                 return true;
             }
             candidates += 1;
-            if candidates % PROGRESS_EVERY == 0 {
+            if candidates.is_multiple_of(PROGRESS_EVERY) {
                 progress(candidates);
             }
             if !passes(space, opts, m, &nz) {
@@ -522,6 +532,7 @@ fn passes(space: &Space, opts: &HuntOptions, m: &[i64], nz: &[usize]) -> bool {
     };
     charge_ok
         && !(opts.spin == SpinFilter::Zero && space.twice_spin_sparse(m, nz) != 0)
+        && space.sym.passes_u1(m, nz)
         // A canonical placement touches the window's first wire.
         && space.window.touches_first(m)
 }
@@ -532,6 +543,7 @@ fn operator(
     sys: &System,
     space: &Space,
     momenta: &Momenta,
+    terms: &TermIndex,
     canon: &[i64],
     flip: bool,
 ) -> Result<Option<Operator>, Error> {
@@ -566,8 +578,10 @@ fn operator(
         dimension,
         rg_eigenvalue: crate::core::relevance::rg_eigenvalue(dimension),
         momentum: k,
-        model_term: model_term(sys, &space.window, canon),
+        model_term: terms.get(canon).cloned(),
         competitors: competitors(sys, &full),
+        charges: space.sym.charges(&m),
+        orbit: None,
         particles: m,
         vector: l,
     }))
@@ -606,9 +620,11 @@ pub fn hunt_with_progress(
     }
     sys.model.check_point(point)?;
     let window = Window::choose(sys, opts.range)?;
+    let chosen = symmetry::chosen(sys, &opts.symmetry)?;
     let momenta = Momenta::at(sys, point, opts)?;
     let d_full = window_d(sys, point, &window)?;
-    let space = Space::new(sys, &d_full, window);
+    let sym = symmetry::in_use(sys, point, &chosen, &window)?;
+    let space = Space::new(sys, &d_full, window, sym);
     let ell = Ellipsoid::new(&space.gram)
         .map_err(|e| Error::Numerical(format!("operator search: {e}")))?;
     let estimate = estimate(&ell, &space, opts)?;
@@ -616,17 +632,10 @@ pub fn hunt_with_progress(
     let found = enumerate(&ell, &space, opts, &mut |n| {
         progress(Progress::Enumerated(n))
     })?;
-    let flip = matches!(opts.charge, ChargeFilter::Exactly(c) if c < 0);
-    let mut operators = Vec::with_capacity(found.kept.len());
-    for canon in &found.kept {
-        operators.extend(operator(sys, &space, &momenta, canon, flip)?);
-    }
-    operators.sort_by(|a, b| {
-        dim_key(a.dimension)
-            .cmp(&dim_key(b.dimension))
-            .then_with(|| b.particles.cmp(&a.particles))
-    });
-    Ok(HuntReport::new(
+    let terms = term_index(sys, &space.window);
+    let operators = listed_operators(sys, &space, &momenta, opts, &found, &terms)?;
+    let grouped = orbits::group(&space.window, &space.sym, operators, &terms)?;
+    let mut report = HuntReport::new(
         sys,
         point,
         opts,
@@ -636,9 +645,47 @@ pub fn hunt_with_progress(
         found.examined,
         found.candidates,
         ell.reduction.capped,
-        operators,
+        grouped.operators,
         momenta.exact.is_some(),
-    ))
+    );
+    report.set_symmetries(&space.sym, grouped.orbits, grouped.removed);
+    Ok(report)
+}
+
+/// The operators of the kept classes that pass the momentum filter, sorted
+/// by dimension, then particle content (largest first).
+fn listed_operators(
+    sys: &System,
+    space: &Space,
+    momenta: &Momenta,
+    opts: &HuntOptions,
+    found: &Found,
+    terms: &TermIndex,
+) -> Result<Vec<Operator>, Error> {
+    let flip = matches!(opts.charge, ChargeFilter::Exactly(c) if c < 0);
+    let mut operators = Vec::with_capacity(found.kept.len());
+    for canon in &found.kept {
+        operators.extend(operator(sys, space, momenta, terms, canon, flip)?);
+    }
+    operators.sort_by(|a, b| {
+        dim_key(a.dimension)
+            .cmp(&dim_key(b.dimension))
+            .then_with(|| b.particles.cmp(&a.particles))
+    });
+    Ok(operators)
+}
+
+/// The default bare coupling of emitted terms and hunted competitors: the
+/// smallest non-zero |y| among the model's terms at the point (0.1, the
+/// model default, when there is none).
+pub fn smallest_coupling(sys: &System, point: &[f64]) -> f64 {
+    sys.model
+        .terms
+        .iter()
+        .map(|t| t.coupling.eval(point).abs())
+        .filter(|y| y.is_finite() && *y > 0.0)
+        .fold(None, |m: Option<f64>, y| Some(m.map_or(y, |m| m.min(y))))
+        .unwrap_or(0.1)
 }
 
 /// Sort key of a dimension: rounded to 1e-9 so that equal dimensions (up to
@@ -647,21 +694,22 @@ fn dim_key(d: f64) -> i64 {
     (d * 1e9).round() as i64
 }
 
-/// The model term whose family is this operator (same canonical form).
-fn model_term(sys: &System, window: &Window, canon: &[i64]) -> Option<String> {
+/// Canonical forms of the model's terms on the window -> term name,
+/// computed once per search (the particle content of a term is a big
+/// rational solve; terms wider than the window have none). The first term
+/// of a form wins, as in the model's order.
+pub(crate) type TermIndex = std::collections::HashMap<Vec<i64>, String>;
+
+fn term_index(sys: &System, window: &Window) -> TermIndex {
     let inv = &sys.invariants;
-    sys.model
-        .terms
-        .iter()
-        .zip(&sys.lattice.families)
-        .find(|(_, fam)| {
-            let m =
-                crate::core::invariants::particles_of(&sys.lattice, &inv.cell_inverse, fam.rep());
-            rational::to_integers(&m)
-                .and_then(|m| window.canonical_full(&m))
-                .is_some_and(|c| c == canon)
-        })
-        .map(|(spec, _)| spec.name.clone())
+    let mut index = TermIndex::new();
+    for (spec, m) in sys.model.terms.iter().zip(&inv.terms) {
+        let canon = rational::to_integers(&m.particles).and_then(|m| window.canonical_full(&m));
+        if let Some(c) = canon {
+            index.entry(c).or_insert_with(|| spec.name.clone());
+        }
+    }
+    index
 }
 
 /// Model terms with a translate that does not commute with the operator:

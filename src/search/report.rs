@@ -45,6 +45,12 @@ pub struct Operator {
     pub model_term: Option<String>,
     /// Model terms with a translate that does not commute with it.
     pub competitors: Vec<String>,
+    /// Charges under the model's U(1) symmetries in use, by name.
+    #[serde(skip_serializing_if = "BTreeMap::is_empty")]
+    pub charges: BTreeMap<String, i64>,
+    /// 1-based number of its orbit under the Z_n symmetries in use (null
+    /// when none is in use).
+    pub orbit: Option<usize>,
 }
 
 /// Size of the search, estimated before enumerating.
@@ -118,6 +124,13 @@ pub struct HuntReport {
     pub certificate: String,
     /// Limits of the method and warnings.
     pub notes: Vec<String>,
+    /// The model's symmetries that filtered the operators at this point.
+    pub symmetries: Vec<String>,
+    /// Orbits of the operators under the Z_n symmetries in use (empty
+    /// when none is in use).
+    pub orbits: Vec<super::OrbitReport>,
+    /// Operators removed because their symmetrised orbit sum vanishes.
+    pub removed_by_symmetry: usize,
 }
 
 /// "periodic", "open" or "infinite" for arrays, None for explicit models.
@@ -203,10 +216,37 @@ impl HuntReport {
             operators,
             certificate: String::new(),
             notes: Vec::new(),
+            symmetries: Vec::new(),
+            orbits: Vec::new(),
+            removed_by_symmetry: 0,
         };
         r.certificate = r.certificate_line();
         r.notes = r.make_notes(sys, capped);
         r
+    }
+
+    /// Record the symmetries in use, the orbits and what they removed.
+    pub(crate) fn set_symmetries(
+        &mut self,
+        sym: &super::symmetry::InUse,
+        orbits: Vec<super::OrbitReport>,
+        removed: usize,
+    ) {
+        self.symmetries = sym.names.clone();
+        self.orbits = orbits;
+        self.removed_by_symmetry = removed;
+        self.notes.extend(sym.notes.iter().cloned());
+        if !self.symmetries.is_empty() {
+            self.notes.push(format!(
+                "Symmetries used: {}. U(1): operators are neutral unless a term's allowed_charge names the symmetry; Z_n: an operator is kept when the sum over its orbit does not vanish{}.",
+                self.symmetries.join(", "),
+                if removed > 0 { format!(" ({removed} removed whose orbit sum vanishes)") } else { String::new() }
+            ));
+        }
+        if !self.orbits.is_empty() {
+            self.notes.push("Orbits: the symmetric combination sums y cos(l.phi + 2 pi chi) over the members, chi the member's phase (in turns); #k is row k of the operator table, #k* its conjugate.".into());
+        }
+        self.certificate = self.certificate_line();
     }
 
     /// "local, charge-neutral, spin-zero, momentum-conserving".
@@ -222,6 +262,9 @@ impl HuntReport {
         }
         if self.momentum.as_deref() == Some("conserved") {
             q.push("momentum-conserving".into());
+        }
+        if !self.symmetries.is_empty() {
+            q.push(format!("{}-symmetric", self.symmetries.join("/")));
         }
         q.join(", ")
     }
@@ -337,6 +380,10 @@ impl HuntReport {
             headers.push("k");
         }
         headers.extend(["model term", "does not commute with"]);
+        let with_orbit = !self.orbits.is_empty();
+        if with_orbit {
+            headers.push("orbit");
+        }
         let caption = format!(
             "operators with Delta <= {} (local, up to sign{})",
             self.max_dim,
@@ -371,6 +418,9 @@ impl HuntReport {
             } else {
                 op.competitors.join(", ")
             });
+            if with_orbit {
+                row.push(op.orbit.map_or("-".into(), |k| k.to_string()));
+            }
             t.push(row);
         }
         t
@@ -452,10 +502,13 @@ impl Report for HuntReport {
 
     fn tables(&self) -> Vec<Table> {
         if self.operators.is_empty() {
-            Vec::new()
-        } else {
-            vec![self.operator_table()]
+            return Vec::new();
         }
+        let mut tables = vec![self.operator_table()];
+        if !self.orbits.is_empty() {
+            tables.push(self.orbit_table());
+        }
+        tables
     }
 
     fn csv_table(&self) -> Table {
@@ -504,6 +557,40 @@ impl Report for HuntReport {
 
 /// The pieces of the text facts.
 impl HuntReport {
+    /// One line per orbit: size, dimension, members, combination.
+    fn orbit_table(&self) -> Table {
+        let mut t = Table::new(
+            "orbits under the Z_n symmetries (one symmetric combination each)",
+            &["orbit", "size", "Delta", "members", "combination"],
+        );
+        let cell = self.search_fields / self.range.unwrap_or(1).max(1);
+        for (k, o) in self.orbits.iter().enumerate() {
+            let members: Vec<String> = o
+                .members
+                .iter()
+                .map(|m| {
+                    let who = m.operator.map_or_else(
+                        || compact(&m.particles, cell, self.range.is_some()),
+                        |r| format!("#{r}"),
+                    );
+                    if m.phase == "0" {
+                        who
+                    } else {
+                        format!("{who} (chi {})", m.phase)
+                    }
+                })
+                .collect();
+            t.push(vec![
+                (k + 1).to_string(),
+                o.size.to_string(),
+                format!("{:.6}", o.dimension),
+                members.join(", "),
+                o.combination.clone(),
+            ]);
+        }
+        t
+    }
+
     /// "g=0.5, K=2" or "(none)".
     fn parameters_fact(&self) -> String {
         if self.parameters.is_empty() {
@@ -566,6 +653,9 @@ impl HuntReport {
             // commensurate. Say so where the filters are listed.
             _ => "momentum not checked (the model gives no momenta)".into(),
         });
+        if !self.symmetries.is_empty() {
+            filters.push(format!("symmetries {}", self.symmetries.join(", ")));
+        }
         filters.join(", ")
     }
 }
@@ -586,35 +676,96 @@ pub fn render(report: &HuntReport, format: Format) -> Result<String, Error> {
 
 /// The operators that are not yet terms of the model, as `[[term]]` blocks
 /// that can be pasted into the model file (names `hunt_1`, `hunt_2`, ...
-/// avoiding the model's own names).
-pub fn emit_terms(report: &HuntReport, model: &Model) -> String {
+/// avoiding the model's own names), each with bare coupling `coupling`.
+/// With orbits, the members of one orbit share a `group` (one coupling)
+/// and carry the phase of the symmetric combination.
+pub fn emit_terms(report: &HuntReport, model: &Model, coupling: f64) -> String {
     let mut out = emit_header(report);
     let existing: std::collections::BTreeSet<&str> =
         model.terms.iter().map(|t| t.name.as_str()).collect();
     let mut next = 1usize;
-    let mut emitted = 0usize;
-    for op in report.operators.iter().filter(|o| o.model_term.is_none()) {
-        let name = loop {
-            let n = format!("hunt_{next}");
-            next += 1;
-            if !existing.contains(n.as_str()) {
-                break n;
-            }
-        };
-        out.push_str(&format!(
-            "\n[[term]]\nname = \"{name}\"  # Delta = {:.6}, spin {}, charge {}\nparticles = {}\n",
-            op.dimension,
-            op.spin,
-            op.charge,
-            particles_toml(op)
-        ));
-        if op.charge != 0 {
-            out.push_str(&format!("allowed_charge = {}\n", op.charge));
+    let mut fresh = || loop {
+        let n = format!("hunt_{next}");
+        next += 1;
+        if !existing.contains(n.as_str()) {
+            break n;
         }
+    };
+    let mut emitted = 0usize;
+    for (row, op) in report.operators.iter().enumerate() {
+        if op.model_term.is_some() {
+            continue;
+        }
+        let (group, phase) = orbit_of(report, row + 1);
+        out.push_str(&term_block(
+            &fresh(),
+            op,
+            coupling,
+            group.as_deref(),
+            &phase,
+        ));
         emitted += 1;
     }
     if emitted == 0 {
         out.push_str(&format!("# nothing new to add; {}\n", report.certificate));
+    }
+    out
+}
+
+/// The group (orbits with two or more new members) and the phase of row
+/// `row` (1-based) in its orbit's symmetric combination.
+fn orbit_of(report: &HuntReport, row: usize) -> (Option<String>, String) {
+    let Some(k) = report.operators[row - 1].orbit else {
+        return (None, "0".into());
+    };
+    let orbit = &report.orbits[k - 1];
+    let new = orbit
+        .members
+        .iter()
+        .filter(|m| m.operator.is_some() && m.model_term.is_none())
+        .count();
+    let phase = orbit
+        .members
+        .iter()
+        .find(|m| m.operator == Some(row))
+        .map_or("0".into(), |m| m.phase.clone());
+    ((new >= 2).then(|| format!("hunt_orbit_{k}")), phase)
+}
+
+fn term_block(
+    name: &str,
+    op: &Operator,
+    coupling: f64,
+    group: Option<&str>,
+    phase: &str,
+) -> String {
+    let mut out = format!(
+        "\n[[term]]\nname = \"{name}\"  # Delta = {:.6}, spin {}, charge {}\nparticles = {}\ncoupling = {coupling}\n",
+        op.dimension,
+        op.spin,
+        op.charge,
+        particles_toml(op)
+    );
+    if phase != "0" {
+        out.push_str(&format!("phase = \"2*pi*{phase}\"\n"));
+    }
+    if let Some(g) = group {
+        out.push_str(&format!("group = \"{g}\"\n"));
+    }
+    let named: Vec<String> = op
+        .charges
+        .iter()
+        .filter(|(_, q)| **q != 0)
+        .map(|(n, q)| format!("{n} = {q}"))
+        .collect();
+    if !named.is_empty() {
+        out.push_str(&format!(
+            "allowed_charge = {{ charge = {}, {} }}\n",
+            op.charge,
+            named.join(", ")
+        ));
+    } else if op.charge != 0 {
+        out.push_str(&format!("allowed_charge = {}\n", op.charge));
     }
     out
 }

@@ -121,6 +121,12 @@ impl Window {
 
     /// Canonical form of a window vector (see the module docs).
     pub fn canonical(&self, m: &[i64]) -> Vec<i64> {
+        self.canonical_signed(m).0
+    }
+
+    /// Canonical form of a window vector and whether it is minus a
+    /// translate of it (true) or a translate (false).
+    pub fn canonical_signed(&self, m: &[i64]) -> (Vec<i64>, bool) {
         if self.periodic {
             let mut ring = vec![0i64; self.total * self.cell];
             ring[..m.len()].copy_from_slice(m);
@@ -135,11 +141,12 @@ impl Window {
     /// Canonical form of a vector over all fields of the system (a model
     /// term), or `None` when it does not fit in R consecutive wires.
     pub fn canonical_full(&self, m: &[i64]) -> Option<Vec<i64>> {
-        if self.periodic {
+        let c = if self.periodic {
             self.canonical_ring(m)
         } else {
             self.canonical_line(m, self.total)
-        }
+        };
+        c.map(|c| c.0)
     }
 
     /// Number of wires an operator touches (its support length), for a
@@ -173,7 +180,7 @@ impl Window {
     }
 
     /// Linear support: shift the first touched wire to 0, keep R wires.
-    fn canonical_line(&self, v: &[i64], nwires: usize) -> Option<Vec<i64>> {
+    fn canonical_line(&self, v: &[i64], nwires: usize) -> Option<(Vec<i64>, bool)> {
         let touched: Vec<usize> = (0..nwires).filter(|&w| self.touches(v, w)).collect();
         let (&a, &b) = (touched.first()?, touched.last()?);
         if b - a + 1 > self.wires {
@@ -186,7 +193,7 @@ impl Window {
     }
 
     /// Ring support: start after a largest gap; ties by lexicographic order.
-    fn canonical_ring(&self, v: &[i64]) -> Option<Vec<i64>> {
+    fn canonical_ring(&self, v: &[i64]) -> Option<(Vec<i64>, bool)> {
         let w = self.total;
         let touched: Vec<usize> = (0..w).filter(|&x| self.touches(v, x)).collect();
         if touched.is_empty() {
@@ -202,7 +209,7 @@ impl Window {
         if w - widest > self.wires {
             return None;
         }
-        let mut best: Option<Vec<i64>> = None;
+        let mut best: Option<(Vec<i64>, bool)> = None;
         for (i, g) in gaps.iter().enumerate() {
             if *g != widest {
                 continue;
@@ -215,15 +222,16 @@ impl Window {
                     .copy_from_slice(&v[src * self.cell..(src + 1) * self.cell]);
             }
             let out = self.normalise_sign(out);
-            if best.as_ref().is_none_or(|b| out > *b) {
+            if best.as_ref().is_none_or(|b| out.0 > b.0) {
                 best = Some(out);
             }
         }
         best
     }
 
-    /// Positive charge; for neutral vectors a positive first non-zero entry.
-    fn normalise_sign(&self, mut v: Vec<i64>) -> Vec<i64> {
+    /// Positive charge; for neutral vectors a positive first non-zero entry;
+    /// with whether the sign was flipped.
+    fn normalise_sign(&self, mut v: Vec<i64>) -> (Vec<i64>, bool) {
         let charge = self.charge(&v);
         let flip = if charge != 0 {
             charge < 0
@@ -233,7 +241,7 @@ impl Window {
         if flip {
             v.iter_mut().for_each(|x| *x = -*x);
         }
-        v
+        (v, flip)
     }
 
     /// t.m of a vector laid out wire by wire.

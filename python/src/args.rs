@@ -1,0 +1,203 @@
+//! Keyword arguments into the library's plain option structs.
+//!
+//! Only conversion of Python values happens here (a float, an integer, one
+//! of a few words); the ranges and combinations are checked by the library,
+//! as for the command line. Every error names the keyword argument.
+
+use pinflow::flow::options::{Closure, FlowOverrides};
+use pinflow::model::Wires;
+use pinflow::scan::figures::ColorBy;
+use pinflow::search::{ChargeFilter, MomentumFilter, SpinFilter};
+use pyo3::prelude::*;
+use pyo3::types::PyDict;
+
+use crate::errors::input;
+
+/// The keyword arguments that are flow options (the flags of
+/// `pinflow flow`, with `_` for `-`).
+pub const FLOW_OPTIONS: [&str; 11] = [
+    "ell_max",
+    "y_strong",
+    "floor",
+    "closure",
+    "closure_bound",
+    "closure_range",
+    "rtol",
+    "atol",
+    "max_steps",
+    "q_points",
+    "stages",
+];
+
+/// `{name: value}` as `(name, value)` overrides of the model's defaults.
+pub fn point_overrides(point: &Bound<'_, PyDict>) -> PyResult<Vec<(String, f64)>> {
+    let mut out = Vec::with_capacity(point.len());
+    for (k, v) in point.iter() {
+        let name: String = k
+            .extract()
+            .map_err(|_| input("point", "parameter names must be strings"))?;
+        let x: f64 = v.extract().map_err(|_| {
+            input(
+                &name,
+                &format!("expected a number for the parameter `{name}`"),
+            )
+        })?;
+        out.push((name, x));
+    }
+    Ok(out)
+}
+
+fn float(d: &Bound<'_, PyDict>, key: &str) -> PyResult<Option<f64>> {
+    match d.get_item(key)? {
+        None => Ok(None),
+        Some(v) if v.is_none() => Ok(None),
+        Some(v) => v
+            .extract()
+            .map(Some)
+            .map_err(|_| input(key, "expected a number")),
+    }
+}
+
+fn int(d: &Bound<'_, PyDict>, key: &str) -> PyResult<Option<i64>> {
+    match d.get_item(key)? {
+        None => Ok(None),
+        Some(v) if v.is_none() => Ok(None),
+        Some(v) => v
+            .extract()
+            .map(Some)
+            .map_err(|_| input(key, "expected a whole number")),
+    }
+}
+
+/// The flow options among `options` (unknown keys are refused).
+pub fn flow_overrides(options: &Bound<'_, PyDict>) -> PyResult<FlowOverrides> {
+    for k in options.keys() {
+        let k: String = k.extract()?;
+        if !FLOW_OPTIONS.contains(&k.as_str()) {
+            let known = FLOW_OPTIONS.join(", ");
+            return Err(input(
+                &k,
+                &format!("unknown flow option `{k}` (known: {known})"),
+            ));
+        }
+    }
+    let closure = match options.get_item("closure")? {
+        None => None,
+        Some(v) if v.is_none() => None,
+        Some(v) => Some(match v.extract::<String>().ok().as_deref() {
+            Some("pairs") => Closure::Pairs,
+            Some("none") => Closure::None,
+            _ => return Err(input("closure", "expected \"pairs\" or \"none\"")),
+        }),
+    };
+    Ok(FlowOverrides {
+        ell_max: float(options, "ell_max")?,
+        y_strong: float(options, "y_strong")?,
+        floor: float(options, "floor")?,
+        closure,
+        closure_bound: float(options, "closure_bound")?,
+        closure_range: int(options, "closure_range")?,
+        rtol: float(options, "rtol")?,
+        atol: float(options, "atol")?,
+        max_steps: int(options, "max_steps")?,
+        q_points: int(options, "q_points")?,
+        stages: int(options, "stages")?,
+    })
+}
+
+/// What the phase map of a scan is coloured by.
+pub fn color_by(word: &str) -> PyResult<ColorBy> {
+    match word {
+        "phase" => Ok(ColorBy::Phase),
+        "winner" => Ok(ColorBy::Winner),
+        _ => Err(input("color_by", "expected \"phase\" or \"winner\"")),
+    }
+}
+
+/// `wires`: array sizes, each a whole number >= 1 or "infinite".
+pub fn wire_counts(w: Option<Vec<Bound<'_, PyAny>>>) -> PyResult<Option<Vec<Wires>>> {
+    let Some(w) = w else { return Ok(None) };
+    let bad = || {
+        input(
+            "wires",
+            "expected whole numbers of wires (>= 1) or \"infinite\"",
+        )
+    };
+    let one = |v: &Bound<'_, PyAny>| match v.extract::<i64>() {
+        Ok(n) if n >= 1 && !v.is_instance_of::<pyo3::types::PyBool>() => {
+            Ok(Wires::Finite(n as usize))
+        }
+        Ok(_) => Err(bad()),
+        Err(_) if v.extract::<String>().is_ok_and(|s| s == "infinite") => Ok(Wires::Infinite),
+        Err(_) => Err(bad()),
+    };
+    w.iter().map(one).collect::<PyResult<Vec<_>>>().map(Some)
+}
+
+/// A number given as keyword argument `key`.
+pub fn number(v: &Bound<'_, PyAny>, key: &str) -> PyResult<f64> {
+    v.extract().map_err(|_| input(key, "expected a number"))
+}
+
+/// A whole number of wires >= 1 given as keyword argument `key` (None
+/// stays None).
+fn wires(v: Option<Bound<'_, PyAny>>, key: &str) -> PyResult<Option<usize>> {
+    let Some(v) = v.filter(|v| !v.is_none()) else {
+        return Ok(None);
+    };
+    match v.extract::<i64>() {
+        Ok(w) if w >= 1 && !v.is_instance_of::<pyo3::types::PyBool>() => Ok(Some(w as usize)),
+        _ => Err(input(
+            key,
+            "expected a number of consecutive wires (an integer >= 1)",
+        )),
+    }
+}
+
+/// `window`: wires at each end of an open array.
+pub fn window(w: Option<Bound<'_, PyAny>>) -> PyResult<Option<usize>> {
+    wires(w, "window")
+}
+
+/// The filters of `hunt`.
+pub struct HuntFilters {
+    pub charge: ChargeFilter,
+    pub spin: SpinFilter,
+    pub range: Option<usize>,
+    pub momentum: Option<MomentumFilter>,
+}
+
+/// `charge` (an integer or "any"), `spin` (0 or "any"), `range` (>= 1),
+/// `momentum` ("conserved" or "any").
+pub fn hunt_filters(
+    charge: &Bound<'_, PyAny>,
+    spin: &Bound<'_, PyAny>,
+    range: Option<Bound<'_, PyAny>>,
+    momentum: Option<&str>,
+) -> PyResult<HuntFilters> {
+    let is_any = |v: &Bound<'_, PyAny>| v.extract::<String>().is_ok_and(|s| s == "any");
+    let charge = match charge.extract::<i64>() {
+        Ok(q) if !charge.is_instance_of::<pyo3::types::PyBool>() => ChargeFilter::Exactly(q),
+        _ if is_any(charge) => ChargeFilter::Any,
+        _ => return Err(input("charge", "expected an integer charge t.m or \"any\"")),
+    };
+    let spin = match spin.extract::<i64>() {
+        Ok(0) if !spin.is_instance_of::<pyo3::types::PyBool>() => SpinFilter::Zero,
+        _ if is_any(spin) => SpinFilter::Any,
+        _ if spin.extract::<String>().is_ok_and(|s| s == "0") => SpinFilter::Zero,
+        _ => return Err(input("spin", "expected 0 or \"any\"")),
+    };
+    let range = wires(range, "range")?;
+    let momentum = match momentum {
+        None => None,
+        Some("conserved") => Some(MomentumFilter::Conserved),
+        Some("any") => Some(MomentumFilter::Any),
+        Some(_) => return Err(input("momentum", "expected \"conserved\" or \"any\"")),
+    };
+    Ok(HuntFilters {
+        charge,
+        spin,
+        range,
+        momentum,
+    })
+}

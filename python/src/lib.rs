@@ -1,0 +1,346 @@
+//! `pinflow._native`: the Python extension over the pinflow library.
+//!
+//! Owns only the crossing between Python and the library: converting
+//! keyword arguments into the library's plain option structs, releasing
+//! the GIL while an engine runs, and turning library errors into
+//! `pinflow.InputError` / `pinflow.RunError`. Every number comes from the
+//! library's engines and leaves as the library's own serialisation (the
+//! report's JSON, its CSV table, its text), so the Python package shows
+//! exactly what the command line writes. Nothing is computed here.
+//!
+//! Invariant: no function here formats a number or names a column; the
+//! Python layer (`pinflow/__init__.py`) turns JSON into Python objects and
+//! CSV into DataFrames.
+
+mod args;
+mod errors;
+
+use std::path::PathBuf;
+
+use pinflow::core::system::System;
+use pinflow::dims::convergence::ConvergenceReport;
+use pinflow::dims::{DimsOptions, DimsReport};
+use pinflow::edges::pins::{self, Selection};
+use pinflow::edges::{analyse, report::EdgesReport};
+use pinflow::error::{Error, InputError};
+use pinflow::flow::report::FlowReport;
+use pinflow::flow::{Flow, FlowOptions, Outcome};
+use pinflow::output::{self, Format, Report};
+use pinflow::scan::run::{check_size, resolve_axes, run_to_dir};
+use pinflow::scan::{Scan, ScanSpec};
+use pinflow::search::{emit_terms, hunt, HuntOptions};
+use pyo3::prelude::*;
+use pyo3::types::PyDict;
+use serde::Serialize;
+
+use args::{flow_overrides, hunt_filters, point_overrides};
+use errors::{to_py, RunError};
+
+/// A validated model made ready for evaluation (the library's `System`),
+/// with the bytes of its file (a scan's fingerprint hashes them).
+#[pyclass(module = "pinflow._native", frozen)]
+struct Model {
+    sys: System,
+    bytes: Vec<u8>,
+}
+
+/// The renderings of one report: its JSON, its CSV table and its text.
+fn renderings<R: Report + Serialize>(r: &R) -> Result<(String, String, String), Error> {
+    Ok((
+        output::render(r, Format::Json)?,
+        output::render(r, Format::Csv)?,
+        output::render(r, Format::Text)?,
+    ))
+}
+
+#[pymethods]
+impl Model {
+    /// Load a model file (TOML).
+    #[staticmethod]
+    fn load(py: Python<'_>, path: PathBuf) -> PyResult<Model> {
+        let file = path.display().to_string();
+        py.allow_threads(|| {
+            let sys = System::load(&path)?;
+            let bytes = std::fs::read(&path).map_err(|e| Error::io(&path, e))?;
+            Ok(Model { sys, bytes })
+        })
+        .map_err(|e| to_py(e, &file))
+    }
+
+    /// Read a model from TOML text; `file` names it in error messages.
+    #[staticmethod]
+    #[pyo3(signature = (text, file = "<string>"))]
+    fn from_toml(py: Python<'_>, text: String, file: &str) -> PyResult<Model> {
+        py.allow_threads(|| {
+            let model = pinflow::model::Model::parse(&text, file)?;
+            Ok(Model {
+                sys: System::new(model)?,
+                bytes: text.into_bytes(),
+            })
+        })
+        .map_err(|e: Error| to_py(e, file))
+    }
+
+    /// The model's name.
+    #[getter]
+    fn name(&self) -> String {
+        self.sys.model.name.clone()
+    }
+
+    /// The file the model was read from (or the name given to `from_toml`).
+    #[getter]
+    fn file(&self) -> String {
+        self.sys.model.file.clone()
+    }
+
+    /// The model's TOML text, as read (`Model.from_toml(source, file)`
+    /// rebuilds the same model: how a Model travels to a process pool).
+    #[getter]
+    fn source(&self) -> String {
+        String::from_utf8_lossy(&self.bytes).into_owned()
+    }
+
+    /// Parameter names and default values, in the library's order.
+    fn params(&self) -> Vec<(String, f64)> {
+        let p = &self.sys.model.params;
+        p.names()
+            .iter()
+            .cloned()
+            .zip(p.defaults().iter().copied())
+            .collect()
+    }
+
+    /// The names of the model's terms, in order.
+    fn terms(&self) -> Vec<String> {
+        self.sys
+            .model
+            .terms
+            .iter()
+            .map(|t| t.name.clone())
+            .collect()
+    }
+
+    /// `pinflow dims`: (json, csv, text); with `wires`, the convergence
+    /// report of `--wires` instead.
+    #[pyo3(signature = (point, pin, wires = None))]
+    fn dims(
+        &self,
+        py: Python<'_>,
+        point: &Bound<'_, PyDict>,
+        pin: Vec<String>,
+        wires: Option<Vec<Bound<'_, PyAny>>>,
+    ) -> PyResult<(String, String, String)> {
+        let set = point_overrides(point)?;
+        let sizes = args::wire_counts(wires)?;
+        self.run(py, |sys| {
+            let point = sys.model.point_with(&set, "point")?;
+            if let Some(sizes) = &sizes {
+                if !pin.is_empty() {
+                    return Err(InputError::new(
+                        "command line",
+                        "--pin",
+                        "cannot be combined with wires",
+                    )
+                    .into());
+                }
+                return renderings(&ConvergenceReport::build(
+                    &sys.model, &point, sizes, "wires",
+                )?);
+            }
+            let opts = DimsOptions {
+                pins: pin,
+                ..Default::default()
+            };
+            renderings(&DimsReport::build_opts(sys, &point, &opts)?)
+        })
+    }
+
+    /// `pinflow flow`: (json, csv, text, trajectory csv); with `out`, also
+    /// the command's files in that directory.
+    #[pyo3(signature = (point, options, out = None))]
+    fn flow(
+        &self,
+        py: Python<'_>,
+        point: &Bound<'_, PyDict>,
+        options: &Bound<'_, PyDict>,
+        out: Option<PathBuf>,
+    ) -> PyResult<(String, String, String, String)> {
+        let set = point_overrides(point)?;
+        let over = flow_overrides(options)?;
+        self.run(py, |sys| {
+            if let Some(d) = &out {
+                output::check_output_dir(d, "out")?;
+            }
+            let point = sys.model.point_with(&set, "point")?;
+            let opts = FlowOptions::resolve(&sys.model, &over)?;
+            let result = Flow::new(sys, opts.clone()).run(&point)?;
+            let names = sys.model.params.names();
+            let report = FlowReport::new(&sys.model.name, names, &point, result, opts);
+            check_flow(sys, &point, &report)?;
+            if let Some(d) = &out {
+                report.write_dir(d)?;
+            }
+            let (json, csv, text) = renderings(&report)?;
+            Ok((json, csv, text, report.trajectory_csv()?))
+        })
+    }
+
+    /// `pinflow scan` into the directory `out`: returns summary.json's text.
+    #[pyo3(signature = (point, x, y, options, out, threads = None, force = false, color_by = "phase"))]
+    #[allow(clippy::too_many_arguments)]
+    fn scan(
+        &self,
+        py: Python<'_>,
+        point: &Bound<'_, PyDict>,
+        x: Option<String>,
+        y: Option<String>,
+        options: &Bound<'_, PyDict>,
+        out: PathBuf,
+        threads: Option<usize>,
+        force: bool,
+        color_by: &str,
+    ) -> PyResult<String> {
+        let set = point_overrides(point)?;
+        let over = flow_overrides(options)?;
+        let by = args::color_by(color_by)?;
+        let pool = thread_pool(threads)?;
+        self.run(py, |sys| {
+            let base = sys.model.point_with(&set, "point")?;
+            let axes = resolve_axes(&sys.model, x.as_deref(), y.as_deref())?;
+            let options = FlowOptions::resolve(&sys.model, &over)?;
+            let spec = ScanSpec {
+                axes,
+                base,
+                options,
+                shard: None,
+            };
+            let scan = Scan::new(sys, &self.bytes, spec)?;
+            check_size(scan.points(), force)?;
+            let summary = pool.install(|| run_to_dir(&scan, &out, by, "out"))?;
+            output::to_json(&summary)
+        })
+    }
+
+    /// `pinflow hunt`: (json, csv, text, the [[term]] blocks of `--emit-terms`).
+    #[pyo3(signature = (point, max_dim, charge, spin, range, momentum, force))]
+    #[allow(clippy::too_many_arguments)]
+    fn hunt(
+        &self,
+        py: Python<'_>,
+        point: &Bound<'_, PyDict>,
+        max_dim: &Bound<'_, PyAny>,
+        charge: &Bound<'_, PyAny>,
+        spin: &Bound<'_, PyAny>,
+        range: Option<Bound<'_, PyAny>>,
+        momentum: Option<String>,
+        force: bool,
+    ) -> PyResult<(String, String, String, String)> {
+        let set = point_overrides(point)?;
+        let f = hunt_filters(charge, spin, range, momentum.as_deref())?;
+        let opts = HuntOptions {
+            max_dim: args::number(max_dim, "max_dim")?,
+            charge: f.charge,
+            spin: f.spin,
+            range: f.range,
+            momentum: f.momentum,
+            force,
+            ..Default::default()
+        };
+        self.run(py, |sys| {
+            let point = sys.model.point_with(&set, "point")?;
+            let report = hunt(sys, &point, &opts)?;
+            let (json, csv, text) = renderings(&report)?;
+            Ok((json, csv, text, emit_terms(&report, &sys.model)))
+        })
+    }
+
+    /// `pinflow edges`: (json, csv, text).
+    #[pyo3(signature = (point, pin, window, options))]
+    fn edges(
+        &self,
+        py: Python<'_>,
+        point: &Bound<'_, PyDict>,
+        pin: Vec<String>,
+        window: Option<Bound<'_, PyAny>>,
+        options: &Bound<'_, PyDict>,
+    ) -> PyResult<(String, String, String)> {
+        let set = point_overrides(point)?;
+        let over = flow_overrides(options)?;
+        let window = args::window(window)?;
+        self.run(py, |sys| {
+            let point = sys.model.point_with(&set, "point")?;
+            let opts = FlowOptions::resolve(&sys.model, &over)?;
+            let selection: Selection = if pin.is_empty() {
+                pins::from_flow(sys, &point, opts)?
+            } else {
+                pins::from_names(sys, &pin)?
+            };
+            let analysis = analyse(sys, &selection.pinned, window)?;
+            renderings(&EdgesReport::new(sys, &point, &selection, &analysis))
+        })
+    }
+}
+
+impl Model {
+    /// Run `f` on the system with the GIL released; errors become Python
+    /// exceptions (a point where V is not positive definite is an input
+    /// error of the model file, as on the command line).
+    fn run<T: Send>(
+        &self,
+        py: Python<'_>,
+        f: impl FnOnce(&System) -> Result<T, Error> + Send,
+    ) -> PyResult<T> {
+        py.allow_threads(|| f(&self.sys))
+            .map_err(|e| to_py(e, &self.sys.model.file))
+    }
+}
+
+/// What `pinflow flow` turns into a failure after its report: an
+/// unphysical point (input) and a failed integration (run).
+fn check_flow(sys: &System, point: &[f64], report: &FlowReport) -> Result<(), Error> {
+    let msg = report.result.message.clone().unwrap_or_default();
+    match report.result.outcome {
+        Outcome::Unphysical => {
+            Err(pinflow::error::InputError::new(&sys.model.file, "", msg).into())
+        }
+        Outcome::Failed => Err(Error::Numerical(format!(
+            "{}: the flow failed at {}: {msg}",
+            sys.model.file,
+            sys.model.params.describe(point)
+        ))),
+        _ => Ok(()),
+    }
+}
+
+/// A thread pool of `threads` workers (None: rayon's default, all cores).
+fn thread_pool(threads: Option<usize>) -> PyResult<rayon::ThreadPool> {
+    if threads == Some(0) {
+        return Err(errors::input("threads", "must be at least 1"));
+    }
+    let mut b = rayon::ThreadPoolBuilder::new();
+    if let Some(n) = threads {
+        b = b.num_threads(n);
+    }
+    b.build()
+        .map_err(|e| RunError::new_err(format!("cannot start the worker threads: {e}")))
+}
+
+/// Run the `pinflow` command line with these arguments (the first is the
+/// program name); returns the exit code. The GIL is released meanwhile.
+#[pyfunction]
+fn run_cli(py: Python<'_>, argv: Vec<String>) -> i32 {
+    py.allow_threads(|| pinflow::cli::main_with(argv))
+}
+
+/// The module.
+#[pymodule]
+fn _native(m: &Bound<'_, PyModule>) -> PyResult<()> {
+    let py = m.py();
+    m.add_class::<Model>()?;
+    m.add_function(wrap_pyfunction!(run_cli, m)?)?;
+    m.add("InputError", py.get_type::<errors::InputError>())?;
+    m.add("RunError", py.get_type::<RunError>())?;
+    m.add("__version__", env!("CARGO_PKG_VERSION"))?;
+    m.add("FLOW_OPTIONS", args::FLOW_OPTIONS.to_vec())?;
+    Ok(())
+}

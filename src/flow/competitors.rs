@@ -1,0 +1,281 @@
+//! Hunted competitors in the flow (`--competitors DELTA`).
+//!
+//! At each point the operator search ([`crate::search::hunt`], with the
+//! model's symmetries) lists every allowed local operator (charge 0, spin 0,
+//! momentum conserved when the model gives momenta) with bare Delta <= DELTA
+//! within the search range; those that are not already model terms (up to
+//! sign and translation) join the model as terms named
+//! `auto:<particle content>` with bare coupling `coupling` (default: the
+//! smallest non-zero listed coupling at the point), and the phase of their
+//! orbit's symmetric combination. The enlarged model is then flowed like
+//! any model: the pairs closure (with its range rule, docs/physics.md
+//! section 4, and the closure range of the model's own terms), staged
+//! pinning and the phase naming all see them as terms.
+//!
+//! Invariants: the same competitors give the same enlarged system, built
+//! once and shared by every point that finds them (a cache keyed by the
+//! terms added); the model's own terms keep their rows, first, in model
+//! order; a flow without competitors at a point is the plain flow.
+
+use std::collections::HashMap;
+use std::sync::{Arc, Mutex};
+
+use super::channels::Plan;
+use super::{Closure, Flow, FlowOptions, FlowResult};
+use crate::core::system::System;
+use crate::error::{Error, InputError};
+use crate::math::rational::Rational;
+use crate::model::{Content, Model, Scalar, TermSpec};
+use crate::search::{self, ChargeFilter, HuntOptions, HuntReport, Operator, SymmetryChoice};
+
+/// Prefix of the names of hunted competitors.
+pub const PREFIX: &str = "auto:";
+
+/// What to hunt for at each point.
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+pub struct CompetitorOptions {
+    /// Operators with bare Delta <= delta join.
+    pub delta: f64,
+    /// Their bare coupling (None: the smallest non-zero listed coupling).
+    pub coupling: Option<f64>,
+    /// Arrays: the search range in wires (None: the widest model term).
+    pub range: Option<usize>,
+    /// Which symmetries filter them.
+    #[serde(skip)]
+    pub symmetry: SymmetryChoice,
+}
+
+impl CompetitorOptions {
+    /// From the flags (`--competitors`, `--competitor-coupling`,
+    /// `--competitor-range`) over the model's `[competitors]` table; None
+    /// when neither gives a DELTA.
+    pub fn resolve(
+        model: &Model,
+        delta: Option<f64>,
+        coupling: Option<f64>,
+        range: Option<usize>,
+    ) -> Result<Option<CompetitorOptions>, InputError> {
+        let table = &model.competitors;
+        let Some(delta) = delta.or(table.delta) else {
+            if coupling.is_some() || range.is_some() {
+                return Err(InputError::new(
+                    "command line",
+                    "--competitors",
+                    "--competitor-coupling and --competitor-range need --competitors DELTA (or `delta` in the model's [competitors] table)",
+                ));
+            }
+            return Ok(None);
+        };
+        if !(delta.is_finite() && delta > 0.0) {
+            return Err(InputError::new(
+                "command line",
+                "--competitors",
+                format!("expected a scaling dimension > 0, found {delta}"),
+            ));
+        }
+        Ok(Some(CompetitorOptions {
+            delta,
+            coupling: coupling.or(table.coupling),
+            range: range.or(table.range),
+            symmetry: SymmetryChoice::All,
+        }))
+    }
+}
+
+/// Enlarged systems and their flow plans, by the terms added.
+type Cache = Mutex<HashMap<String, Arc<(System, Plan)>>>;
+
+/// Flows with hunted competitors at every point.
+pub struct Competing<'s> {
+    sys: &'s System,
+    plain: Flow<'s>,
+    comp: CompetitorOptions,
+    cache: Cache,
+}
+
+impl<'s> Competing<'s> {
+    /// Prepare; the symmetry names are checked here.
+    pub fn new(sys: &'s System, opts: FlowOptions, comp: CompetitorOptions) -> Result<Self, Error> {
+        search::symmetry::chosen(sys, &comp.symmetry)?;
+        Ok(Competing {
+            sys,
+            plain: Flow::new(sys, opts),
+            comp,
+            cache: Mutex::new(HashMap::new()),
+        })
+    }
+
+    /// The flow options.
+    pub fn options(&self) -> &FlowOptions {
+        &self.plain.opts
+    }
+
+    /// Hunt, enlarge the model, flow.
+    pub fn run(&self, point: &[f64]) -> Result<FlowResult, Error> {
+        let report = match search::hunt(self.sys, point, &self.hunt_options()) {
+            Ok(r) => r,
+            // The plain flow reports the point (unphysical, inaccurate).
+            Err(Error::Unphysical(_)) | Err(Error::Inaccurate(_)) => return self.plain.run(point),
+            Err(e) => return Err(e),
+        };
+        let y = self
+            .comp
+            .coupling
+            .unwrap_or_else(|| search::smallest_coupling(self.sys, point));
+        let terms = auto_terms(&report, y);
+        if terms.is_empty() {
+            return self.plain.run(point);
+        }
+        let names: Vec<String> = terms.iter().map(|t| t.name.clone()).collect();
+        let built = self.enlarged(terms)?;
+        let (sys, plan) = (&built.0, built.1.clone());
+        let mut result = Flow::with_plan(sys, plan, self.enlarged_options()).run(point)?;
+        for t in result
+            .terms
+            .iter_mut()
+            .filter(|t| t.name.starts_with(PREFIX))
+        {
+            t.origin = "hunted".into();
+        }
+        result.competitors_added = names;
+        Ok(result)
+    }
+
+    /// The flow options of the enlarged model: the closure range stays the
+    /// one of the model's own terms (given, or its default, the widest
+    /// listed term plus one wire), so that competitors as wide as the search
+    /// range do not widen it and pairs of far-apart competitors stay out.
+    fn enlarged_options(&self) -> FlowOptions {
+        let mut opts = self.plain.opts.clone();
+        if opts.closure_range.is_none() {
+            opts.closure_range = self.plain.plan.range;
+        }
+        opts
+    }
+
+    fn hunt_options(&self) -> HuntOptions {
+        HuntOptions {
+            max_dim: self.comp.delta,
+            charge: ChargeFilter::Exactly(0),
+            range: self.comp.range,
+            symmetry: self.comp.symmetry.clone(),
+            ..HuntOptions::default()
+        }
+    }
+
+    /// The model with these terms added and its flow plan (cached by the
+    /// terms' content).
+    fn enlarged(&self, terms: Vec<TermSpec>) -> Result<Arc<(System, Plan)>, Error> {
+        let key: String = terms
+            .iter()
+            .map(|t| {
+                format!(
+                    "{}|{}|{}|{:?};",
+                    t.name,
+                    t.coupling.text(),
+                    t.phase.text(),
+                    t.group
+                )
+            })
+            .collect();
+        if let Some(sys) = self.cache.lock().ok().and_then(|c| c.get(&key).cloned()) {
+            return Ok(sys);
+        }
+        let mut model = self.sys.model.clone();
+        model.terms.extend(terms);
+        let sys = System::new(model)?;
+        let opts = self.enlarged_options();
+        let plan = Plan::build(&sys, opts.closure == Closure::Pairs, opts.closure_range);
+        let sys = Arc::new((sys, plan));
+        if let Ok(mut c) = self.cache.lock() {
+            c.entry(key).or_insert_with(|| sys.clone());
+        }
+        Ok(sys)
+    }
+}
+
+/// The operators of a hunt that are not model terms, as terms.
+fn auto_terms(report: &HuntReport, y: f64) -> Vec<TermSpec> {
+    report
+        .operators
+        .iter()
+        .enumerate()
+        .filter(|(_, op)| op.model_term.is_none())
+        .map(|(row, op)| {
+            let (group, phase) = orbit_phase(report, row + 1);
+            TermSpec {
+                name: auto_name(op),
+                content: Content::Particles,
+                parts: parts(op),
+                coupling: Scalar::Const(y),
+                phase: Scalar::Const(phase),
+                extra_dimension: Scalar::Const(0.0),
+                extra_spin: Rational::from_integer(0.into()),
+                target: false,
+                allowed_charge: Rational::from_integer(op.charge.into()),
+                allowed_charges: Vec::new(),
+                group,
+            }
+        })
+        .collect()
+}
+
+/// The orbit group (`auto_orbit_k`, when the orbit has several members)
+/// and the phase chi = 2 pi (turns) of a row in its orbit's combination.
+fn orbit_phase(report: &HuntReport, row: usize) -> (Option<String>, f64) {
+    let Some(k) = report.operators[row - 1].orbit else {
+        return (None, 0.0);
+    };
+    let orbit = &report.orbits[k - 1];
+    let turns = orbit
+        .members
+        .iter()
+        .find(|m| m.operator == Some(row))
+        .map_or(0.0, |m| fraction(&m.phase));
+    let group = (orbit.size > 1).then(|| format!("auto_orbit_{k}"));
+    (group, 2.0 * std::f64::consts::PI * turns)
+}
+
+/// "p/q" or "0" as a number.
+fn fraction(s: &str) -> f64 {
+    match s.split_once('/') {
+        Some((p, q)) => p.parse::<f64>().unwrap_or(0.0) / q.parse::<f64>().unwrap_or(1.0),
+        None => s.parse().unwrap_or(0.0),
+    }
+}
+
+/// (wire offset, particle content) parts of an operator.
+fn parts(op: &Operator) -> Vec<(usize, Vec<i64>)> {
+    match &op.particles_by_wire {
+        Some(by_wire) => {
+            let mut p: Vec<(usize, Vec<i64>)> = by_wire
+                .iter()
+                .filter_map(|(w, v)| w.parse().ok().map(|w| (w, v.clone())))
+                .collect();
+            p.sort_by_key(|x| x.0);
+            p
+        }
+        None => vec![(0, op.particles.clone())],
+    }
+}
+
+/// `auto:(1,-1,-1,1)` for explicit models, `auto:{0:(1,-1),1:(-1,1)}` for
+/// arrays (particle content by wire offset).
+pub fn auto_name(op: &Operator) -> String {
+    let list = |v: &[i64]| {
+        v.iter()
+            .map(|x| x.to_string())
+            .collect::<Vec<_>>()
+            .join(",")
+    };
+    match &op.particles_by_wire {
+        Some(_) => {
+            let body: Vec<String> = parts(op)
+                .iter()
+                .map(|(w, v)| format!("{w}:({})", list(v)))
+                .collect();
+            format!("{PREFIX}{{{}}}", body.join(","))
+        }
+        None => format!("{PREFIX}({})", list(&op.particles)),
+    }
+}
