@@ -145,6 +145,8 @@ fn reference_summary(meta: &Meta, rows: &[Row]) -> Value {
         "points": rows.len(),
         "outcomes": outcomes,
         "winners": winners,
+        // No hand-made row names a hunted competitor (`auto:...`).
+        "competitor_wins": {},
         "target": target,
         // Hand-made rows name no phase (see `write_shard`).
         "phases": [],
