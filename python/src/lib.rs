@@ -28,7 +28,7 @@ use pinflow::flow::{Flow, FlowOptions, Outcome};
 use pinflow::output::{self, Format, Report};
 use pinflow::scan::run::{check_size, resolve_axes, run_to_dir};
 use pinflow::scan::{Scan, ScanSpec};
-use pinflow::search::{emit_terms, hunt, HuntOptions};
+use pinflow::search::{emit_terms, hunt, smallest_coupling, HuntOptions};
 use pyo3::prelude::*;
 use pyo3::types::PyDict;
 use serde::Serialize;
@@ -213,6 +213,7 @@ impl Model {
                 base,
                 options,
                 shard: None,
+                competitors: None,
             };
             let scan = Scan::new(sys, &self.bytes, spec)?;
             check_size(scan.points(), force)?;
@@ -250,7 +251,8 @@ impl Model {
             let point = sys.model.point_with(&set, "point")?;
             let report = hunt(sys, &point, &opts)?;
             let (json, csv, text) = renderings(&report)?;
-            Ok((json, csv, text, emit_terms(&report, &sys.model)))
+            let y = smallest_coupling(sys, &point);
+            Ok((json, csv, text, emit_terms(&report, &sys.model, y)))
         })
     }
 
