@@ -47,6 +47,9 @@ pub struct DimsArgs {
     /// 8-9 pt text, title and caption in a `.txt` beside each figure).
     #[arg(long, value_enum, default_value_t = FigureStyleArg::Screen)]
     pub figure_style: FigureStyleArg,
+    /// Evaluate even above 1024 fields on the dense path (work grows like N^3).
+    #[arg(long)]
+    pub force: bool,
 }
 
 /// Parse one entry of `--wires`: a whole number of wires or `infinite`.
@@ -104,6 +107,7 @@ pub(super) fn run(args: DimsArgs) -> Result<(), Error> {
         );
     }
     let (sys, point) = super::common::load_point(&args.point)?;
+    crate::dims::check_size(&sys, args.force)?;
     let opts = DimsOptions {
         pins: args.pin.clone(),
         ..Default::default()

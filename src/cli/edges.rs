@@ -23,6 +23,10 @@ pub struct EdgesArgs {
     /// and with each other].
     #[arg(long = "pin", value_name = "NAME")]
     pub pin: Vec<String>,
+    /// Analyse even above 256 fields (the exact theory's work grows like
+    /// N^3), and flow with a pairs closure above its work limit.
+    #[arg(long)]
+    pub force: bool,
     /// Wires in the window at each end of an open array [default: the
     /// smallest window holding a translate of every pinned term].
     #[arg(long, value_name = "W")]
@@ -40,8 +44,13 @@ pub struct EdgesArgs {
 pub(super) fn run(args: EdgesArgs) -> Result<(), Error> {
     check_outputs(&[&args.point.model], args.output.as_deref(), None)?;
     let (sys, point) = load_point(&args.point)?;
+    crate::edges::check_size(&sys, args.force)?;
     // Flow options are checked even when --pin makes the flow unnecessary.
     let opts = FlowOptions::resolve(&sys.model, &args.flow.overrides())?;
+    if args.pin.is_empty() {
+        let generate = opts.closure == crate::flow::Closure::Pairs;
+        crate::flow::channels::check_closure(&sys, generate, opts.closure_range, args.force)?;
+    }
     // The flow options matter only when the flow chooses the pinned set.
     let opts_json = match args.pin.is_empty() {
         true => super::common::options_json(&opts)?,

@@ -41,6 +41,9 @@ pub struct FlowArgs {
     /// the largest |y| [default 6]; the caption says how many are left out.
     #[arg(long, value_name = "all|listed|N", default_value = "6", value_parser = parse_plot_terms)]
     pub plot_terms: PlotTerms,
+    /// Build the pairs closure even when its estimated work is above the limit.
+    #[arg(long)]
+    pub force: bool,
 }
 
 /// Hunted competitors in the flow (`flow` and `scan`).
@@ -123,6 +126,8 @@ pub(super) fn run(args: FlowArgs) -> Result<(), Error> {
     args.figure_style.apply();
     let (sys, point) = load_point(&args.point)?;
     let opts = FlowOptions::resolve(&sys.model, &args.flow.overrides())?;
+    let generate = opts.closure == crate::flow::Closure::Pairs;
+    crate::flow::channels::check_closure(&sys, generate, opts.closure_range, args.force)?;
     let comp = args.competitors.resolve(&sys)?;
     let result = flow_once(&sys, &point, &opts, comp)?;
     let unphysical = result.outcome == Outcome::Unphysical;

@@ -1,16 +1,19 @@
 //! `pinflow hunt`: the exhaustive operator search at one point.
 
+use std::io::IsTerminal;
 use std::path::PathBuf;
 
 use clap::{Args, ValueEnum};
+use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
 
 use super::common::{
     check_outputs, emit, emit_report, load_point, provenance, FormatArg, PointArgs,
 };
 use crate::error::Error;
 use crate::search::{
-    emit_terms, hunt, render, smallest_coupling, ChargeFilter, HuntOptions, MomentumFilter,
-    SpinFilter, SymmetryChoice, DEFAULT_LIMIT, MAX_LISTED,
+    emit_terms, hunt_with_progress, render, smallest_coupling, ChargeFilter, HuntOptions,
+    MomentumFilter, Progress, SpinFilter, SymmetryChoice, DEFAULT_LIMIT, FORCED_MAX_LISTED,
+    MAX_LISTED,
 };
 
 /// `pinflow hunt`.
@@ -37,7 +40,9 @@ pub struct HuntArgs {
     /// Momentum conservation, when the model gives momenta [default: conserved].
     #[arg(long, value_enum)]
     pub momentum: Option<MomentumArg>,
-    /// Search even when the estimated number of lattice points is above the limit.
+    /// Search even when the estimated number of lattice points is above the
+    /// limit (at most 4000000 operators are still kept; a bar shows the
+    /// points enumerated on a terminal).
     #[arg(long)]
     pub force: bool,
     /// Print the operators that are not yet model terms as [[term]] blocks
@@ -160,6 +165,7 @@ fn options(args: &HuntArgs) -> HuntOptions {
         force: args.force,
         limit: DEFAULT_LIMIT,
         max_listed: MAX_LISTED,
+        forced_max_listed: FORCED_MAX_LISTED,
         symmetry: args.symmetry.clone(),
     }
 }
@@ -167,7 +173,23 @@ fn options(args: &HuntArgs) -> HuntOptions {
 pub(super) fn run(args: HuntArgs) -> Result<(), Error> {
     check_outputs(&[&args.point.model], args.output.as_deref(), None)?;
     let (sys, point) = load_point(&args.point)?;
-    let report = hunt(&sys, &point, &options(&args))?;
+    let bar = ProgressBar::hidden();
+    let on_terminal = std::io::stderr().is_terminal();
+    let report = hunt_with_progress(&sys, &point, &options(&args), &mut |p| match p {
+        // Only searches of a million points or more show a bar.
+        Progress::Estimated(n) if on_terminal && n >= 1e6 => {
+            bar.set_draw_target(ProgressDrawTarget::stderr());
+            bar.set_length(n.min(u64::MAX as f64) as u64);
+            bar.set_style(
+                ProgressStyle::with_template("{bar:40} {pos}/~{len} points, {per_sec}, eta {eta}")
+                    .unwrap_or_else(|_| ProgressStyle::default_bar()),
+            );
+        }
+        Progress::Estimated(_) => {}
+        Progress::Enumerated(n) => bar.set_position(n),
+    });
+    bar.finish_and_clear();
+    let report = report?;
     if args.emit_terms {
         let y = args
             .coupling

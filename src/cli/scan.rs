@@ -71,7 +71,8 @@ pub struct ScanArgs {
     /// to standard error every SECONDS (0: never).
     #[arg(long, value_name = "SECONDS", default_value_t = 60)]
     pub progress_every: u64,
-    /// Run grids larger than the safety limit.
+    /// Run grids larger than the safety limit, and a pairs closure above its
+    /// work limit.
     #[arg(long)]
     pub force: bool,
     /// Format of the summary printed at the end.
@@ -195,6 +196,8 @@ pub(super) fn run_scan(args: ScanArgs) -> Result<(), Error> {
     let (sys, base, text) = load_point_text(&args.point)?;
     let axes = resolve_axes(&sys.model, args.x.as_deref(), args.y.as_deref())?;
     let options = FlowOptions::resolve(&sys.model, &args.flow.overrides())?;
+    let generate = options.closure == crate::flow::Closure::Pairs;
+    crate::flow::channels::check_closure(&sys, generate, options.closure_range, args.force)?;
     let prov = scan_provenance(&args, &sys, &base, &options, &axes)?;
     let spec = ScanSpec {
         axes,

@@ -145,39 +145,20 @@ impl Pairing {
 impl Invariants {
     /// Compute the exact data; fails when K is singular.
     pub fn compute(model: &Model, lat: &Lattice) -> Result<Invariants, InputError> {
-        let key = match model.structure {
-            crate::model::Structure::Explicit => "fields.K",
-            crate::model::Structure::Array { .. } => "array.K",
-        };
-        let (cell_det, cell_inverse) =
-            bareiss::det_and_inverse(&model.cell_k).ok_or_else(|| {
-                InputError::new(
-                    &model.file,
-                    key,
-                    "K is singular (det K = 0); K must be invertible",
-                )
-            })?;
+        let cell = CellData::of(model)?;
+        let CellData {
+            det: cell_det,
+            inverse: cell_inverse,
+            signature: cell_sig,
+            pairing,
+        } = cell;
         // Totals scale with the wires; an infinite array reports one wire.
         let copies = if lat.infinite { 1 } else { lat.wires };
         let det_k = num_traits::pow(cell_det.clone(), copies);
-        let cell_sig = zmat::signature(&model.cell_k).ok_or_else(|| {
-            InputError::new(
-                &model.file,
-                key,
-                "cannot determine the signature of K reliably",
-            )
-        })?;
         let signature = (cell_sig.0 * copies, cell_sig.1 * copies);
         let t_cell = &model.cell_charge;
         let cell_filling = rational::dot_int(&rational::solve_with(&cell_inverse, t_cell), t_cell);
         let filling = &cell_filling * rational::int(copies as i64);
-        let pairing = Pairing::new(&cell_det, &cell_inverse).ok_or_else(|| {
-            InputError::new(
-                &model.file,
-                key,
-                "K^-1 has entries too large for the commutation tests",
-            )
-        })?;
         // Only the representative's particle content is needed densely;
         // commutation goes through the integer pairing, part by part.
         let reps: Vec<Vec<Rational>> = lat
@@ -192,16 +173,7 @@ impl Invariants {
             .zip(&reps)
             .map(|((spec, fam), m)| term_invariants(lat, &pairing, spec, fam, m))
             .collect();
-        let nf = lat.families.len();
-        let mut commutation = vec![vec![Rational::zero(); nf]; nf];
-        let mut commutes = vec![vec![true; nf]; nf];
-        for a in 0..nf {
-            for b in 0..nf {
-                let fa = &lat.families[a];
-                commutation[a][b] = same_anchor_phase(&reps[a], fa.rep(), &lat.families[b]);
-                commutes[a][b] = families_commute(lat, &pairing, fa, &lat.families[b]);
-            }
-        }
+        let (commutation, commutes) = pair_tables(lat, &pairing, &reps);
         Ok(Invariants {
             pairing,
             det_k,
@@ -215,6 +187,56 @@ impl Invariants {
             commutes,
         })
     }
+}
+
+/// The exact data of one wire's cell (explicit models: of K).
+struct CellData {
+    det: BigInt,
+    inverse: Vec<Vec<Rational>>,
+    signature: (usize, usize),
+    pairing: Pairing,
+}
+
+impl CellData {
+    /// det, inverse, signature and integer pairing of the cell K; errors
+    /// name `fields.K` or `array.K`.
+    fn of(model: &Model) -> Result<CellData, InputError> {
+        let key = match model.structure {
+            crate::model::Structure::Explicit => "fields.K",
+            crate::model::Structure::Array { .. } => "array.K",
+        };
+        let err = |msg: &str| InputError::new(&model.file, key, msg);
+        let (det, inverse) = bareiss::det_and_inverse(&model.cell_k)
+            .ok_or_else(|| err("K is singular (det K = 0); K must be invertible"))?;
+        let signature = zmat::signature(&model.cell_k)
+            .ok_or_else(|| err("cannot determine the signature of K reliably"))?;
+        let pairing = Pairing::new(&det, &inverse)
+            .ok_or_else(|| err("K^-1 has entries too large for the commutation tests"))?;
+        Ok(CellData {
+            det,
+            inverse,
+            signature,
+            pairing,
+        })
+    }
+}
+
+/// The mutual phases at the same anchor and the commutation of every
+/// pair of families.
+type PairTables = (Vec<Vec<Rational>>, Vec<Vec<bool>>);
+
+fn pair_tables(lat: &Lattice, pairing: &Pairing, reps: &[Vec<Rational>]) -> PairTables {
+    let nf = lat.families.len();
+    let mut commutation = vec![vec![Rational::zero(); nf]; nf];
+    let mut commutes = vec![vec![true; nf]; nf];
+    for a in 0..nf {
+        for b in 0..nf {
+            let fa = &lat.families[a];
+            commutation[a][b] = same_anchor_phase(&reps[a], fa.rep(), &lat.families[b]);
+            commutes[a][b] = families_commute(lat, pairing, fa, &lat.families[b]);
+        }
+    }
+    (commutation, commutes)
 }
 
 /// m = K^-1 l of a translate, dense, computed wire by wire.

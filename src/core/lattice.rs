@@ -129,16 +129,7 @@ impl Lattice {
                 ),
             ));
         }
-        let mut k = vec![vec![0i64; n]; n];
-        let mut charge = vec![0i64; n];
-        for w in 0..wires {
-            for a in 0..cell {
-                charge[w * cell + a] = model.cell_charge[a];
-                for b in 0..cell {
-                    k[w * cell + a][w * cell + b] = model.cell_k[a][b];
-                }
-            }
-        }
+        let (k, charge) = block_diagonal(model, wires);
         let mut lat = Lattice {
             cell,
             wires,
@@ -150,19 +141,7 @@ impl Lattice {
             infinite,
         };
         for term in &model.terms {
-            let key = format!("term \"{}\"", term.name);
-            let cell_l: Vec<(usize, Vec<i64>)> = term
-                .parts
-                .iter()
-                .map(|(off, v)| match term.content {
-                    Content::Vector => Ok((*off, v.clone())),
-                    Content::Particles => cell_times(&model.cell_k, v)
-                        .map(|l| (*off, l))
-                        .ok_or_else(|| {
-                            InputError::new(&model.file, &key, "K m overflows 64-bit integers")
-                        }),
-                })
-                .collect::<Result<_, _>>()?;
+            let cell_l = cell_vectors(model, term)?;
             lat.families.push(lat.family(&cell_l));
         }
         Ok(lat)
@@ -338,6 +317,46 @@ fn check_symmetric(model: &Model, v: &DMatrix<f64>) -> Result<(), String> {
         }
     }
     Ok(())
+}
+
+/// The dense K (block diagonal, one cell block per wire) and charge vector
+/// of `wires` wires.
+fn block_diagonal(model: &Model, wires: usize) -> (Vec<Vec<i64>>, Vec<i64>) {
+    let cell = model.cell_fields();
+    let n = cell * wires;
+    let mut k = vec![vec![0i64; n]; n];
+    let mut charge = vec![0i64; n];
+    for w in 0..wires {
+        for a in 0..cell {
+            charge[w * cell + a] = model.cell_charge[a];
+            for b in 0..cell {
+                k[w * cell + a][w * cell + b] = model.cell_k[a][b];
+            }
+        }
+    }
+    (k, charge)
+}
+
+/// A term's cell-level lattice vectors per wire offset (l = K_c m for a
+/// particle content).
+fn cell_vectors(
+    model: &Model,
+    term: &crate::model::TermSpec,
+) -> Result<Vec<(usize, Vec<i64>)>, InputError> {
+    term.parts
+        .iter()
+        .map(|(off, v)| match term.content {
+            Content::Vector => Ok((*off, v.clone())),
+            Content::Particles => {
+                cell_times(&model.cell_k, v)
+                    .map(|l| (*off, l))
+                    .ok_or_else(|| {
+                        let key = format!("term \"{}\"", term.name);
+                        InputError::new(&model.file, key, "K m overflows 64-bit integers")
+                    })
+            }
+        })
+        .collect()
 }
 
 /// K_cell m with overflow checks.

@@ -330,8 +330,22 @@ impl System {
         points: usize,
     ) -> Result<(Vec<[f64; 2]>, bool), Error> {
         let qm = self.q_model()?;
-        let blocks = self.v_blocks(point)?;
         let (c, n) = (qm.k.nrows(), points);
+        let per_q = self.q_embedded_solutions(point, n)?;
+        let extended = per_q.iter().any(|f| f.accuracy.extended);
+        let rows = qm
+            .terms
+            .iter()
+            .map(|t| q_term_error(t, &per_q, c, n))
+            .collect();
+        Ok((rows, extended))
+    }
+
+    /// The dense fixed point of the real form of V(q) at every q of the
+    /// N-point rule (k = 0 .. N/2), for the error bounds.
+    fn q_embedded_solutions(&self, point: &[f64], n: usize) -> Result<Vec<FixedPoint>, Error> {
+        let qm = self.q_model()?;
+        let blocks = self.v_blocks(point)?;
         let mut per_q = Vec::new();
         for k in 0..qspace::half(n) {
             let (ke, ve) = crate::core::fixed_point::hermitian_embedding(
@@ -352,38 +366,7 @@ impl System {
             };
             per_q.push(f);
         }
-        let extended = per_q.iter().any(|f| f.accuracy.extended);
-        let rows = qm
-            .terms
-            .iter()
-            .map(|t| {
-                let lq = qspace::fourier_vector(t, c, n);
-                let (mut delta, mut err, mut sens) = (0.0, 0.0, 0.0);
-                for (k, f) in per_q.iter().enumerate() {
-                    let x: Vec<f64> = (0..2 * c)
-                        .map(|i| {
-                            if i < c {
-                                lq[k * c + i].re
-                            } else {
-                                lq[k * c + i - c].im
-                            }
-                        })
-                        .collect();
-                    let xd = nalgebra::DVector::from_column_slice(&x);
-                    let dk = 0.5 * (&f.d * &xd).dot(&xd);
-                    let w = qspace::weight(k, n);
-                    delta += w * dk;
-                    err += w * dk * f.accuracy.relative_error(&f.d, &x, dk);
-                    sens += w * dk * f.accuracy.input_sensitivity(&x, dk);
-                }
-                if delta > 0.0 {
-                    [err / delta, sens / delta]
-                } else {
-                    [0.0, 0.0]
-                }
-            })
-            .collect();
-        Ok((rows, extended))
+        Ok(per_q)
     }
 
     /// The real-space D restricted to `wires` consecutive wires (fields
@@ -520,6 +503,36 @@ impl System {
                 .map(|t| crate::core::momentum::mismatch(&t.particles, &k, g))
                 .collect(),
         )
+    }
+}
+
+/// (relative error bound, sensitivity) of one term's q-space dimension:
+/// the per-q dense bounds on the real form (Re l(q), Im l(q)), weighted
+/// like the quadrature.
+fn q_term_error(t: &[(usize, Vec<f64>)], per_q: &[FixedPoint], c: usize, n: usize) -> [f64; 2] {
+    let lq = qspace::fourier_vector(t, c, n);
+    let (mut delta, mut err, mut sens) = (0.0, 0.0, 0.0);
+    for (k, f) in per_q.iter().enumerate() {
+        let x: Vec<f64> = (0..2 * c)
+            .map(|i| {
+                if i < c {
+                    lq[k * c + i].re
+                } else {
+                    lq[k * c + i - c].im
+                }
+            })
+            .collect();
+        let xd = nalgebra::DVector::from_column_slice(&x);
+        let dk = 0.5 * (&f.d * &xd).dot(&xd);
+        let w = qspace::weight(k, n);
+        delta += w * dk;
+        err += w * dk * f.accuracy.relative_error(&f.d, &x, dk);
+        sens += w * dk * f.accuracy.input_sensitivity(&x, dk);
+    }
+    if delta > 0.0 {
+        [err / delta, sens / delta]
+    } else {
+        [0.0, 0.0]
     }
 }
 

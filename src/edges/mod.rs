@@ -138,6 +138,31 @@ pub struct Analysis {
     pub notes: Vec<String>,
 }
 
+/// Most fields whose exact residual theory is computed without `--force`:
+/// the big-integer normal forms and reductions of [`theory`] on all N
+/// fields take work growing like N^3 (about 0.3 s of one core at 120
+/// fields, half a minute at 400).
+pub const FIELDS_LIMIT: usize = 256;
+
+/// Refuse, before any work, an analysis above [`FIELDS_LIMIT`] fields
+/// unless `force`, naming the estimate and the flag. Infinite arrays are
+/// counted per wire ([`line`]) and are not limited here.
+pub fn check_size(sys: &System, force: bool) -> Result<(), Error> {
+    let lat = &sys.lattice;
+    if force || lat.infinite || lat.n <= FIELDS_LIMIT {
+        return Ok(());
+    }
+    let factor = (lat.n as f64 / FIELDS_LIMIT as f64).powi(3);
+    Err(Error::Input(InputError::new(
+        "command line",
+        "--force",
+        format!(
+            "the exact theory of all {} fields ({} wire(s) of {}) takes work growing like N^3, about {factor:.0} times that of {FIELDS_LIMIT} fields (the limit, a few seconds); pass --force to run it anyway",
+            lat.n, lat.wires, lat.cell
+        ),
+    )))
+}
+
 /// The gcd of the charges t.n of the pinned vectors (None if all vanish).
 fn charge_modulus(t: &[BigInt], ns: &[Vec<BigInt>]) -> Option<BigInt> {
     use num_integer::Integer;

@@ -8,7 +8,7 @@ use num_bigint::BigInt;
 use num_traits::Zero;
 
 use crate::core::invariants::particles_of;
-use crate::core::lattice::{Family, Lattice};
+use crate::core::lattice::{Family, Lattice, Translate};
 use crate::core::system::System;
 use crate::error::{Error, InputError};
 use crate::flow::{Flow, FlowOptions, Outcome};
@@ -204,40 +204,11 @@ fn prepare(
             lat.wires
         ));
     }
-    let mut translates = Vec::with_capacity(family.translates.len());
-    for t in &family.translates {
-        let m = particles_of(lat, inv, t);
-        let Some(n) = integers(&m) else {
-            return Err(format!(
-                "term \"{name}\" is not local: its particle content K^-1 l = ({}) is not integral, so it is not built from particles and cannot pin",
-                m.iter().map(fmt_rational).collect::<Vec<_>>().join(", ")
-            ));
-        };
-        let l = big(&t.l);
-        let spin2 = dot(&l, &n);
-        if !spin2.is_zero() {
-            let spin = fmt_rational(&Rational::new(spin2, BigInt::from(2)));
-            let extra = if extra_spin.is_zero() {
-                String::new()
-            } else {
-                format!(
-                    " (its extra spin {} does not make the bosonic vector null)",
-                    fmt_rational(extra_spin)
-                )
-            };
-            return Err(format!(
-                "term \"{name}\" is not null: its conformal spin (1/2) l.K^-1 l is {spin}, not 0{extra}; only null terms can pin"
-            ));
-        }
-        let (wires, width) = support(lat, &t.l);
-        translates.push(PinnedTranslate {
-            anchor: t.anchor,
-            wires,
-            width,
-            l,
-            n,
-        });
-    }
+    let translates = family
+        .translates
+        .iter()
+        .map(|t| pinned_translate(lat, inv, name, t, extra_spin))
+        .collect::<Result<Vec<_>, _>>()?;
     let first = &family.translates[0];
     let lo = translates[0].wires.0;
     let cell_l = first
@@ -250,6 +221,47 @@ fn prepare(
         name: name.to_string(),
         translates,
         cell_l,
+    })
+}
+
+/// One translate checked to be local (integral K^-1 l) and null (spin 0).
+fn pinned_translate(
+    lat: &Lattice,
+    inv: &[Vec<Rational>],
+    name: &str,
+    t: &Translate,
+    extra_spin: &Rational,
+) -> Result<PinnedTranslate, String> {
+    let m = particles_of(lat, inv, t);
+    let Some(n) = integers(&m) else {
+        return Err(format!(
+            "term \"{name}\" is not local: its particle content K^-1 l = ({}) is not integral, so it is not built from particles and cannot pin",
+            m.iter().map(fmt_rational).collect::<Vec<_>>().join(", ")
+        ));
+    };
+    let l = big(&t.l);
+    let spin2 = dot(&l, &n);
+    if !spin2.is_zero() {
+        let spin = fmt_rational(&Rational::new(spin2, BigInt::from(2)));
+        let extra = if extra_spin.is_zero() {
+            String::new()
+        } else {
+            format!(
+                " (its extra spin {} does not make the bosonic vector null)",
+                fmt_rational(extra_spin)
+            )
+        };
+        return Err(format!(
+            "term \"{name}\" is not null: its conformal spin (1/2) l.K^-1 l is {spin}, not 0{extra}; only null terms can pin"
+        ));
+    }
+    let (wires, width) = support(lat, &t.l);
+    Ok(PinnedTranslate {
+        anchor: t.anchor,
+        wires,
+        width,
+        l,
+        n,
     })
 }
 

@@ -173,14 +173,50 @@ impl FlowOptions {
         if let Some(n) = over.stages {
             o.stages = Some(check_stages(n, "command line", "--stages")?);
         }
-        if o.floor >= o.y_strong {
-            return Err(InputError::new(
-                "command line",
-                "--floor",
-                "the decay floor must be below y_strong",
+        o.check_limits(model, over)?;
+        Ok(o)
+    }
+
+    /// Values that are each valid but cannot work (alone or together):
+    /// refused with the reason, naming the flag if one set it and the
+    /// `[flow]` key otherwise (docs/flow-options.md, "Limits").
+    fn check_limits(&self, model: &Model, over: &FlowOverrides) -> Result<(), InputError> {
+        let at = |flag: bool, name: &str| Origin::of(model, flag, name);
+        let refuse = |o: Origin, msg: String| Err(InputError::new(o.file, o.key, msg));
+        if self.ell_max > ELL_MAX_MOST {
+            return refuse(at(over.ell_max.is_some(), "ell_max"), format!(
+                "expected at most {ELL_MAX_MOST:e}, found {}: ell = ln(alpha/alpha0) = 1e6 is already a length ratio of e^1000000, and the integrator's steps (fractions of ell_max) cannot start on a wider range",
+                as_typed(self.ell_max)
             ));
         }
-        Ok(o)
+        if self.y_strong > Y_STRONG_MOST {
+            return refuse(at(over.y_strong.is_some(), "y_strong"), format!(
+                "expected at most {Y_STRONG_MOST}, found {}: the second-order equations hold for |y| well below 1, and a growing coupling (dy/dl ~ y^2) blows up at a finite ell, so the integrator fails before reaching a larger threshold",
+                as_typed(self.y_strong)
+            ));
+        }
+        if self.floor >= self.y_strong {
+            return refuse(
+                at(over.floor.is_some(), "floor").or(at(over.y_strong.is_some(), "y_strong")),
+                "the decay floor must be below y_strong".to_string(),
+            );
+        }
+        if self.atol < RTOL_MIN * self.floor {
+            return refuse(at(over.atol.is_some(), "atol"), format!(
+                "expected at least 1e-14 x floor = {}, found {}: below it the step control asks a coupling at the decay floor for digits a double does not have, and the integrator can only fail",
+                as_typed(RTOL_MIN * self.floor),
+                as_typed(self.atol)
+            ));
+        }
+        if self.floor <= self.atol {
+            let key = at(over.floor.is_some(), "floor").or(at(over.atol.is_some(), "atol"));
+            return refuse(key, format!(
+                "the decay floor ({}) must be above the absolute tolerance atol ({}): the integrator does not resolve a coupling below atol, so it cannot tell that one fell below the floor",
+                as_typed(self.floor),
+                as_typed(self.atol)
+            ));
+        }
+        Ok(())
     }
 
     fn read_table(&mut self, model: &Model, t: &toml::Table) -> Result<(), InputError> {
@@ -307,6 +343,52 @@ fn check_q_points(model: &Model, n: i64, file: &str, key: &str) -> Result<usize,
 /// tighter tolerance asks the step control for digits a double does not
 /// have, and the integrator could only fail.
 pub const RTOL_MIN: f64 = 1e-14;
+
+/// Where a flow option came from, to name it in a refusal.
+struct Origin {
+    /// 2 a flag, 1 the `[flow]` table, 0 the default.
+    rank: u8,
+    file: String,
+    key: String,
+}
+
+impl Origin {
+    fn of(model: &Model, flag: bool, name: &str) -> Origin {
+        let in_table = model
+            .flow_table
+            .as_ref()
+            .is_some_and(|t| t.contains_key(name));
+        let (rank, file, key) = match (flag, in_table) {
+            (true, _) => (
+                2,
+                "command line".into(),
+                format!("--{}", name.replace('_', "-")),
+            ),
+            (false, _) => (
+                u8::from(in_table),
+                model.file.clone(),
+                format!("flow.{name}"),
+            ),
+        };
+        Origin { rank, file, key }
+    }
+
+    /// Of two values that conflict, the one the user set (a flag first).
+    fn or(self, other: Origin) -> Origin {
+        if other.rank > self.rank {
+            other
+        } else {
+            self
+        }
+    }
+}
+
+/// The largest `ell_max` accepted (see [`FlowOptions::check_limits`]).
+pub const ELL_MAX_MOST: f64 = 1e6;
+
+/// The largest `y_strong` accepted: second-order RG needs |y| well below 1;
+/// a threshold far above it only waits for the finite-ell blow-up.
+pub const Y_STRONG_MOST: f64 = 1e3;
 
 /// A relative tolerance from [`RTOL_MIN`] up to (not including) 1.
 fn check_rtol(x: f64, file: &str, key: &str) -> Result<f64, InputError> {

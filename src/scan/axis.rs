@@ -217,6 +217,13 @@ mod tests {
             .unwrap_err()
             .contains("MIN must be below MAX"));
         assert!(Axis::parse("x=0:1:5:log").unwrap_err().contains("positive"));
+        // Issue 19: log axes skipped MIN < MAX (descending and MIN = MAX).
+        for spec in ["x=1:0.1:5:log", "x=0.5:0.5:5:log"] {
+            let e = Axis::parse(spec).unwrap_err();
+            assert!(e.contains("MIN must be below MAX with log spacing"), "{e}");
+        }
+        let e = Axis::parse("x=0.1:1:5:lgo").unwrap_err();
+        assert!(e.contains("spacing `lgo` must be `lin` or `log`"), "{e}");
         assert!(Axis::parse("x=0:1").is_err());
         assert!(Axis::parse("x=a:1:3").is_err());
     }

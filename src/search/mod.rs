@@ -31,7 +31,10 @@
 //! Guard rails: before enumerating, the number of points is estimated from
 //! the ellipsoid's volume and from random probes of the search tree; above
 //! [`DEFAULT_LIMIT`] the search is refused (with the estimate and how to
-//! narrow it) unless forced.
+//! narrow it) unless forced. The operators kept are bounded even when
+//! forced ([`FORCED_MAX_LISTED`]: memory stays bounded), and
+//! [`hunt_with_progress`] reports the points enumerated against the
+//! estimate, so that a forced search is never silent.
 //!
 //! Owns: the search options, the search space (window, K, t, D, the form
 //! G = K D K) and the enumeration with its filters; the report and
@@ -69,6 +72,11 @@ pub const DEFAULT_LIMIT: f64 = 5e7;
 /// Most operators listed without `--force` (a memory guard for searches
 /// with few filters).
 pub const MAX_LISTED: usize = 1_000_000;
+/// Most operators kept with `--force`: a forced search must still end in
+/// bounded memory (a few hundred bytes per operator, under 2 GB).
+pub const FORCED_MAX_LISTED: usize = 4_000_000;
+/// Points within the bound between two progress reports.
+const PROGRESS_EVERY: u64 = 1 << 20;
 /// Random probes of the tree estimate (fixed seed).
 const PROBES: usize = 2048;
 const PROBE_SEED: u64 = 0x0070_696e_666c_6f77;
@@ -119,6 +127,8 @@ pub struct HuntOptions {
     pub limit: f64,
     /// Most operators listed without `force`.
     pub max_listed: usize,
+    /// Most operators listed with `force` (a hard bound on memory).
+    pub forced_max_listed: usize,
     /// Which of the model's symmetries filter the operators.
     pub symmetry: SymmetryChoice,
 }
@@ -134,6 +144,7 @@ impl Default for HuntOptions {
             force: false,
             limit: DEFAULT_LIMIT,
             max_listed: MAX_LISTED,
+            forced_max_listed: FORCED_MAX_LISTED,
             symmetry: SymmetryChoice::All,
         }
     }
@@ -443,8 +454,14 @@ struct Found {
 
 /// Enumerate: keep the canonical placement of each class that passes the
 /// exact filters and the bound (recomputed from the window's D).
-fn enumerate(ell: &Ellipsoid, space: &Space, opts: &HuntOptions) -> Result<Found, Error> {
+fn enumerate(
+    ell: &Ellipsoid,
+    space: &Space,
+    opts: &HuntOptions,
+    progress: &mut dyn FnMut(u64),
+) -> Result<Found, Error> {
     let (accept, bound) = bounds(opts);
+    let cap = listing_cap(opts);
     let mut kept: BTreeSet<Vec<i64>> = BTreeSet::new();
     let mut candidates = 0u64;
     let mut nz: Vec<usize> = Vec::with_capacity(space.t.len());
@@ -456,6 +473,9 @@ fn enumerate(ell: &Ellipsoid, space: &Space, opts: &HuntOptions) -> Result<Found
                 return true;
             }
             candidates += 1;
+            if candidates.is_multiple_of(PROGRESS_EVERY) {
+                progress(candidates);
+            }
             if !passes(space, opts, m, &nz) {
                 return true;
             }
@@ -463,20 +483,25 @@ fn enumerate(ell: &Ellipsoid, space: &Space, opts: &HuntOptions) -> Result<Found
             let is_placement = canon.as_slice() == m || canon.iter().zip(m).all(|(a, b)| *a == -b);
             if is_placement {
                 kept.insert(canon);
-                if kept.len() > opts.max_listed && !opts.force {
+                if kept.len() > cap {
                     return false;
                 }
             }
             true
         })
         .map_err(|e| Error::Numerical(format!("operator search: {e}")))?;
-    if kept.len() > opts.max_listed && !opts.force {
+    if kept.len() > cap {
+        let how = if opts.force {
+            " (the bound of a forced search, which keeps its memory bounded)"
+        } else {
+            ""
+        };
         return Err(cmd_error(
             "--max-dim",
             format!(
-                "more than {} operators match; narrow the search with a smaller --max-dim{}, the filters --spin 0 and --charge 0, or pass --force",
-                opts.max_listed,
-                if space.window.array { " or --range" } else { "" }
+                "more than {cap} operators match{how}; narrow the search with a smaller --max-dim{}, the filters --spin 0 and --charge 0{}",
+                if space.window.array { " or --range" } else { "" },
+                if opts.force { "" } else { ", or pass --force" }
             ),
         ));
     }
@@ -485,6 +510,16 @@ fn enumerate(ell: &Ellipsoid, space: &Space, opts: &HuntOptions) -> Result<Found
         candidates,
         examined: visit.examined,
     })
+}
+
+/// Most operators kept: `max_listed`, or with `force` the larger
+/// `forced_max_listed` (never unbounded).
+fn listing_cap(opts: &HuntOptions) -> usize {
+    if opts.force {
+        opts.forced_max_listed.max(opts.max_listed)
+    } else {
+        opts.max_listed
+    }
 }
 
 /// The exact filters on a point m (non-zero entries `nz`): charge, spin,
@@ -554,6 +589,26 @@ fn operator(
 
 /// Run the search at a parameter point.
 pub fn hunt(sys: &System, point: &[f64], opts: &HuntOptions) -> Result<HuntReport, Error> {
+    hunt_with_progress(sys, point, opts, &mut |_| {})
+}
+
+/// What a search reports while it runs.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Progress {
+    /// The estimate of the points to enumerate, before the enumeration.
+    Estimated(f64),
+    /// Points within the bound enumerated so far (every 2^20).
+    Enumerated(u64),
+}
+
+/// [`hunt`], calling `progress` with the estimate and then every 2^20
+/// points enumerated (for a progress bar; it must not print to stdout).
+pub fn hunt_with_progress(
+    sys: &System,
+    point: &[f64],
+    opts: &HuntOptions,
+    progress: &mut dyn FnMut(Progress),
+) -> Result<HuntReport, Error> {
     if !(opts.max_dim.is_finite() && opts.max_dim > 0.0) {
         return Err(cmd_error(
             "--max-dim",
@@ -573,7 +628,10 @@ pub fn hunt(sys: &System, point: &[f64], opts: &HuntOptions) -> Result<HuntRepor
     let ell = Ellipsoid::new(&space.gram)
         .map_err(|e| Error::Numerical(format!("operator search: {e}")))?;
     let estimate = estimate(&ell, &space, opts)?;
-    let found = enumerate(&ell, &space, opts)?;
+    progress(Progress::Estimated(estimate.points()));
+    let found = enumerate(&ell, &space, opts, &mut |n| {
+        progress(Progress::Enumerated(n))
+    })?;
     let terms = term_index(sys, &space.window);
     let operators = listed_operators(sys, &space, &momenta, opts, &found, &terms)?;
     let grouped = orbits::group(&space.window, &space.sym, operators, &terms)?;

@@ -1,0 +1,298 @@
+//! Issue 19, "work that grows without a word" and values that cannot work:
+//! every long computation is estimated first and refused above its limit
+//! with the estimate and the flag that overrides it; flow options that
+//! cannot work are refused with the reason; term vectors and axes are
+//! checked. No test here is timed: they check the refusals, the estimates
+//! and the bounds (work counts), not the clock.
+
+use std::path::{Path, PathBuf};
+
+use assert_cmd::Command;
+use pinflow::core::system::System;
+use pinflow::error::Error;
+use pinflow::flow::options::FlowOverrides;
+use pinflow::flow::FlowOptions;
+use pinflow::model::Model;
+use pinflow::search::{self, ChargeFilter, HuntOptions, MomentumFilter, Progress, SpinFilter};
+
+fn demo(name: &str) -> PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("flows")
+        .join(name)
+}
+
+/// The filling-1/3 strip demo with `wires` wires and the given boundary.
+fn strip(wires: usize, boundary: &str) -> String {
+    let text = std::fs::read_to_string(demo("laughlin_third_strip.toml")).expect("demo model");
+    assert!(text.contains("wires = 8\n") && text.contains("boundary = \"open\""));
+    text.replace("wires = 8\n", &format!("wires = {wires}\n"))
+        .replace("boundary = \"open\"", &format!("boundary = \"{boundary}\""))
+}
+
+fn system(text: &str) -> System {
+    System::new(Model::parse(text, "m.toml").expect("model")).expect("system")
+}
+
+fn input_error(e: Error) -> pinflow::error::InputError {
+    match e {
+        Error::Input(e) => e,
+        other => panic!("expected an input error, got {other}"),
+    }
+}
+
+// ------------------------------------------------------------ flow options
+
+fn resolve(over: FlowOverrides) -> Result<FlowOptions, pinflow::error::InputError> {
+    let model = Model::load(&demo("spinless_wire.toml")).expect("demo model");
+    FlowOptions::resolve(&model, &over)
+}
+
+#[test]
+fn flow_values_that_cannot_work_are_refused_with_the_reason() {
+    // Each was accepted and then failed as "integration failed at ell = 0".
+    let cases: [(FlowOverrides, &str, &str); 5] = [
+        (
+            FlowOverrides {
+                ell_max: Some(1e308),
+                max_steps: Some(1_000_000_000),
+                ..Default::default()
+            },
+            "--ell-max",
+            "at most 1e6",
+        ),
+        (
+            FlowOverrides {
+                y_strong: Some(1e308),
+                ..Default::default()
+            },
+            "--y-strong",
+            "at most 1000",
+        ),
+        (
+            FlowOverrides {
+                atol: Some(1e-300),
+                ..Default::default()
+            },
+            "--atol",
+            "1e-14 x floor",
+        ),
+        (
+            FlowOverrides {
+                floor: Some(1e-13),
+                ..Default::default()
+            },
+            "--floor",
+            "above the absolute tolerance",
+        ),
+        (
+            FlowOverrides {
+                atol: Some(1e-5),
+                ..Default::default()
+            },
+            "--atol",
+            "above the absolute tolerance",
+        ),
+    ];
+    for (over, key, why) in cases {
+        let e = resolve(over).expect_err(key);
+        assert_eq!(e.file, "command line");
+        assert_eq!(e.key, key, "{}", e.message);
+        assert!(e.message.contains(why), "{}", e.message);
+    }
+    // The limits themselves are accepted, and so are the defaults.
+    let edge = resolve(FlowOverrides {
+        ell_max: Some(1e6),
+        y_strong: Some(1000.0),
+        floor: Some(1e-6),
+        atol: Some(1e-20),
+        ..Default::default()
+    })
+    .expect("values at the limits");
+    assert_eq!(edge.ell_max, 1e6);
+    resolve(FlowOverrides::default()).expect("defaults");
+}
+
+#[test]
+fn a_flow_table_value_that_cannot_work_names_the_file_and_key() {
+    let text = std::fs::read_to_string(demo("spinless_wire.toml")).expect("demo");
+    let model = Model::parse(&format!("{text}\n[flow]\natol = 1e-300\n"), "w.toml").unwrap();
+    let e = FlowOptions::resolve(&model, &FlowOverrides::default()).expect_err("refused");
+    assert_eq!((e.file.as_str(), e.key.as_str()), ("w.toml", "flow.atol"));
+}
+
+// ------------------------------------------------------------ term vectors
+
+#[test]
+fn lattice_vectors_above_2_pow_20_are_refused() {
+    // m and K each within 2^20, but l = K m = 2048 * 1024 = 2^21.
+    let model = |m: i64| {
+        format!(
+            "[fields]\nK = [[1024, 0], [0, -1]]\ncharge = [1, 1]\nV = [[1, 0], [0, 1]]\n\n[[term]]\nname = \"big\"\nparticles = [{m}, 0]\n"
+        )
+    };
+    let e = Model::parse(&model(2048), "big.toml").expect_err("l = 2^21");
+    assert_eq!(e.key, "term \"big\".particles");
+    assert!(
+        e.message.contains("l = K m") && e.message.contains("2097152"),
+        "{}",
+        e.message
+    );
+    // l = 2^20 exactly is within the documented limit.
+    Model::parse(&model(1024), "big.toml").expect("l = 2^20");
+}
+
+// ------------------------------------------------------------ scan axes
+
+#[test]
+fn a_descending_log_axis_exits_2_and_writes_nothing() {
+    let dir = tempfile::tempdir().unwrap();
+    for x in ["lambda=0.5:0.1:3:log", "lambda=0.3:0.3:3:log"] {
+        let out = Command::cargo_bin("pinflow")
+            .unwrap()
+            .current_dir(dir.path())
+            .args(["scan", demo("spinless_wire.toml").to_str().unwrap()])
+            .args(["--x", x, "--y", "lambda=0.1:0.2:2", "--out", "o", "--quiet"])
+            .output()
+            .unwrap();
+        assert_eq!(out.status.code(), Some(2), "{x}");
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert!(
+            err.contains("--x") && err.contains("MIN must be below MAX"),
+            "{err}"
+        );
+        assert!(!dir.path().join("o").exists(), "{x} left files");
+    }
+}
+
+// ------------------------------------------------------------ hunt --force
+
+#[test]
+fn a_forced_hunt_keeps_a_bounded_number_of_operators() {
+    // Found by the hostile-input run: past its refusal a forced search
+    // grew memory without bound. Every spin and charge up to Delta = 4 on
+    // the single wire: 11 operators at the default point.
+    let sys = System::load(&demo("spinless_wire.toml")).unwrap();
+    let point = sys.model.params.defaults().to_vec();
+    let opts = HuntOptions {
+        max_dim: 4.0,
+        charge: ChargeFilter::Any,
+        spin: SpinFilter::Any,
+        momentum: Some(MomentumFilter::Any),
+        force: true,
+        max_listed: 2,
+        forced_max_listed: 5,
+        ..HuntOptions::default()
+    };
+    let e = input_error(search::hunt(&sys, &point, &opts).expect_err("bounded"));
+    assert!(
+        e.message.contains("more than 5 operators match") && e.message.contains("forced"),
+        "{}",
+        e.message
+    );
+    // Under the bound it runs, and reports its estimate before enumerating.
+    let mut seen = Vec::new();
+    let roomy = HuntOptions {
+        forced_max_listed: 100_000,
+        ..opts
+    };
+    let report = search::hunt_with_progress(&sys, &point, &roomy, &mut |p| seen.push(p)).unwrap();
+    assert!(report.operators.len() > 5);
+    assert_eq!(
+        seen.first(),
+        Some(&Progress::Estimated(report.estimate.points()))
+    );
+}
+
+// ------------------------------------------------------------ edges and dims
+
+#[test]
+fn edges_on_a_wide_array_is_refused_with_the_estimate_unless_forced() {
+    let wide = system(&strip(200, "open"));
+    let e = input_error(pinflow::edges::check_size(&wide, false).expect_err("400 fields"));
+    assert_eq!(e.key, "--force");
+    assert!(e.message.contains("400 fields"), "{}", e.message);
+    pinflow::edges::check_size(&wide, true).expect("forced");
+    pinflow::edges::check_size(&system(&strip(8, "open")), false).expect("16 fields");
+    // Through the command line: exit 2 before any work.
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("wide.toml");
+    std::fs::write(&path, strip(200, "open")).unwrap();
+    let out = Command::cargo_bin("pinflow")
+        .unwrap()
+        .args(["edges", path.to_str().unwrap(), "--pin", "tunnel"])
+        .timeout(std::time::Duration::from_secs(120))
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("--force"));
+}
+
+#[test]
+fn dims_on_the_dense_path_above_the_limit_is_refused_unless_forced() {
+    // 600 open wires of 2 fields: 1200 fields on the dense path.
+    let open = system(&strip(600, "open"));
+    let e = input_error(pinflow::dims::check_size(&open, false).expect_err("1200 fields"));
+    assert_eq!(e.key, "--force");
+    assert!(e.message.contains("1200 fields"), "{}", e.message);
+    pinflow::dims::check_size(&open, true).expect("forced");
+    // A periodic array of the same size goes through q-space: no limit.
+    pinflow::dims::check_size(&system(&strip(600, "periodic")), false).expect("q-space");
+}
+
+// ------------------------------------------------------------ pairs closure
+
+/// A periodic array of `wires` wires with `terms` distinct two-wire terms
+/// (an invented demo: every particle content with entries in -2..=2 whose
+/// second wire is not empty, in a fixed order).
+fn many_terms(wires: usize, terms: usize) -> String {
+    let mut text = format!(
+        "[params]\nlambda = 0.3\n[array]\nwires = {wires}\nboundary = \"periodic\"\nK = [[1, 0], [0, -1]]\ncharge = [1, 1]\n[array.V]\n0 = [[\"1\", \"lambda\"], [\"lambda\", \"1\"]]\n1 = [[\"0.1\", \"0\"], [\"0\", \"0.1\"]]\n"
+    );
+    let r = -2i64..=2;
+    let vectors = r.clone().flat_map(|a| {
+        r.clone().flat_map(move |b| {
+            (-2i64..=2).flat_map(move |c| (-2i64..=2).map(move |d| [a, b, c, d]))
+        })
+    });
+    for (i, v) in vectors
+        .filter(|v| v[2] != 0 || v[3] != 0)
+        .take(terms)
+        .enumerate()
+    {
+        text += &format!(
+            "[[term]]\nname = \"t{i}\"\nparticles = {{ 0 = [{}, {}], 1 = [{}, {}] }}\ncoupling = 0.01\n",
+            v[0], v[1], v[2], v[3]
+        );
+    }
+    text
+}
+
+#[test]
+fn a_pairs_closure_too_large_to_build_is_refused_with_its_estimate() {
+    // Found by the hostile-input run: a 200-term 64-wire flow with the
+    // pairs closure ran for over a minute without a word. Estimate
+    // (derived, see flow::channels::closure_work): two-wire terms, default
+    // closure range 3 wires, so 2 * 3 - 1 = 5 shifts; up to
+    // 200 * 201 * 5 generated channels besides the 200 listed, and work
+    // C^2 N with N = 128 fields.
+    let sys = system(&many_terms(64, 200));
+    let channels = 200.0 + 200.0 * 201.0 * 5.0;
+    let work = pinflow::flow::channels::closure_work(&sys, true, None);
+    assert_eq!(work, channels * channels * 128.0);
+    let check = |generate, range, force| {
+        pinflow::flow::channels::check_closure(&sys, generate, range, force)
+    };
+    let e = input_error(check(true, None, false).expect_err("refused"));
+    assert_eq!(e.key, "--closure");
+    assert!(
+        e.message.contains("5.2e12") && e.message.contains("--force"),
+        "{}",
+        e.message
+    );
+    check(true, None, true).expect("forced");
+    // Without the closure: 200^2 * 128 = 5.1e6, far below the limit.
+    check(false, None, false).expect("--closure none");
+    // The demos are far below the limit.
+    let strip = System::load(&demo("laughlin_third_strip.toml")).unwrap();
+    pinflow::flow::channels::check_closure(&strip, true, None, false).expect("demo");
+}
