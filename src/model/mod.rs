@@ -869,14 +869,12 @@ fn read_term(ctx: &Ctx, model: &Model, t: &RawTerm, key: &str) -> Result<TermSpe
     })
 }
 
+/// How a term's vectors are read, its parts per wire offset, and the key.
+type Parts = (Content, Vec<(usize, Vec<i64>)>, String);
+
 /// `particles` or `vector`: how to read them, the parts per wire offset
 /// (entries within [`MAX_ENTRY`], not all zero) and the key they came from.
-fn read_parts(
-    ctx: &Ctx,
-    model: &Model,
-    t: &RawTerm,
-    key: &str,
-) -> Result<(Content, Vec<(usize, Vec<i64>)>, String), InputError> {
+fn read_parts(ctx: &Ctx, model: &Model, t: &RawTerm, key: &str) -> Result<Parts, InputError> {
     let (content, value, sub) = match (&t.particles, &t.vector) {
         (Some(p), None) => (Content::Particles, p, "particles"),
         (None, Some(v)) => (Content::Vector, v, "vector"),
