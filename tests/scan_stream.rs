@@ -139,12 +139,18 @@ fn reference_summary(meta: &Meta, rows: &[Row]) -> Value {
         .target
         .as_ref()
         .map(|t| reference_target(meta, rows, t));
+    // Hunted competitors (`--competitors`) are the winners named auto:...
+    let competitor_wins: BTreeMap<&String, &usize> = winners
+        .iter()
+        .filter(|(w, _)| w.starts_with("auto:"))
+        .collect();
     json!({
         "model": meta.model,
         "axes": meta.axes.iter().map(|a| a.spec()).collect::<Vec<_>>(),
         "points": rows.len(),
         "outcomes": outcomes,
         "winners": winners,
+        "competitor_wins": competitor_wins,
         "target": target,
         // Hand-made rows name no phase (see `write_shard`).
         "phases": [],
@@ -325,8 +331,16 @@ fn streamed_summary_equals_the_summary_of_all_rows() {
             .as_object()
             .unwrap()
             .keys()
-            .filter(|w| !terms.contains(&w.as_str()))
+            .filter(|w| !terms.contains(&w.as_str()) && !w.starts_with("auto:"))
             .collect();
+        // Hunted competitors are counted apart, with a note of their own.
+        let hunted = got["competitor_wins"].as_object().unwrap().len();
+        let noted = notes
+            .as_array()
+            .unwrap()
+            .iter()
+            .any(|n| n.as_str().unwrap().starts_with("hunted competitors"));
+        assert_eq!(hunted > 0, noted, "grid {k}");
         let named = notes.as_array().unwrap().iter().find_map(|n| {
             n.as_str()
                 .unwrap()
