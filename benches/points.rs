@@ -16,10 +16,22 @@
 //! One flow of the infinite-array demo (`flows/sliding_array.toml`),
 //! including its quadrature check.
 //!
-//! Run: `cargo bench --bench points`.
+//! Issue 15's targets (`target:` benches, read by `benches/ratios.sh`): one
+//! flow of the 32-field array as a periodic ring (q-space) and as an open
+//! strip (dense D), and of the filling-1/3 demo on a 16-wire ring and as an
+//! infinite array (32 quadrature points, with its check on 16), each also
+//! with the per-channel reference right-hand side the matrix products
+//! replaced. `integrator:` benches compare `ode_solvers`' two methods.
+//! Both measure the thread's CPU time, not wall time (see [`ThreadCpu`]).
+//!
+//! Run: `cargo bench --bench points` (only the targets: `cargo bench
+//! --bench points -- target`).
 
 use std::path::Path;
 
+use std::time::Duration;
+
+use criterion::measurement::{Measurement, ValueFormatter, WallTime};
 use criterion::{criterion_group, criterion_main, Criterion};
 use pinflow::core::system::System;
 use pinflow::edges::{analyse, pins};
@@ -154,6 +166,197 @@ fn infinite_flow(c: &mut Criterion) {
     }
 }
 
+/// Thread CPU time (`CLOCK_THREAD_CPUTIME_ID`) as criterion's measure: on
+/// a machine shared with other jobs wall time measures the load, CPU time
+/// the work. One flow runs on the calling thread only.
+struct ThreadCpu(WallTime);
+
+impl Measurement for ThreadCpu {
+    type Intermediate = Duration;
+    type Value = Duration;
+
+    fn start(&self) -> Duration {
+        thread_cpu()
+    }
+    fn end(&self, start: Duration) -> Duration {
+        thread_cpu().saturating_sub(start)
+    }
+    fn add(&self, a: &Duration, b: &Duration) -> Duration {
+        *a + *b
+    }
+    fn zero(&self) -> Duration {
+        Duration::ZERO
+    }
+    fn to_f64(&self, v: &Duration) -> f64 {
+        v.as_nanos() as f64
+    }
+    fn formatter(&self) -> &dyn ValueFormatter {
+        self.0.formatter()
+    }
+}
+
+fn thread_cpu() -> Duration {
+    let mut ts = libc::timespec {
+        tv_sec: 0,
+        tv_nsec: 0,
+    };
+    // SAFETY: clock_gettime only writes the timespec it is given.
+    let rc = unsafe { libc::clock_gettime(libc::CLOCK_THREAD_CPUTIME_ID, &mut ts) };
+    assert_eq!(rc, 0, "thread CPU clock");
+    Duration::new(ts.tv_sec as u64, ts.tv_nsec as u32)
+}
+
+/// The benchmark array with its `wires`/`boundary` lines replaced.
+fn array32_as(wires: &str, boundary: &str) -> System {
+    let path = concat!(env!("CARGO_MANIFEST_DIR"), "/benches/models/array32.toml");
+    let text = std::fs::read_to_string(path).expect("bench model");
+    assert!(text.contains("wires = 16\nboundary = \"periodic\"\n"));
+    let text = text.replace(
+        "wires = 16\nboundary = \"periodic\"\n",
+        &format!("wires = {wires}\n{boundary}"),
+    );
+    System::new(Model::parse(&text, path).expect("model")).expect("system")
+}
+
+/// Issue 15's per-flow targets (module docs), with the matrix-product and
+/// the reference right-hand side.
+fn targets(c: &mut Criterion<ThreadCpu>) {
+    let layouts = [
+        ("ring 16x2", array32_as("16", "boundary = \"periodic\"\n")),
+        (
+            "open strip 16x2 (dense)",
+            array32_as("16", "boundary = \"open\"\n"),
+        ),
+        ("filling 1/3, ring of 16 wires", third("16")),
+        ("filling 1/3, infinite", third("\"infinite\"")),
+    ];
+    for (name, sys) in &layouts {
+        let point = sys.model.params.defaults().to_vec();
+        for reference in [false, true] {
+            let opts = FlowOptions {
+                record: false,
+                ..FlowOptions::default()
+            };
+            let mut flow = Flow::new(sys, opts);
+            flow.reference_rhs = reference;
+            let rhs = if reference {
+                "reference rhs"
+            } else {
+                "products"
+            };
+            c.bench_function(&format!("target: flow {name}, {rhs}"), |b| {
+                b.iter(|| flow.run(&point).expect("flow"))
+            });
+        }
+    }
+}
+
+/// The listed terms of the 32-field ring flowing alone (no generated
+/// terms), from the bare fixed point: the system the integrators compare on.
+fn ring_rhs<'a>(
+    sys: &System,
+    flow: &'a Flow,
+    point: &[f64],
+) -> (pinflow::flow::rhs::FlowRhs<'a>, nalgebra::DVector<f64>) {
+    use pinflow::flow::background::Background;
+    let listed = flow.plan.listed;
+    let channels: Vec<_> = flow.plan.channels[..listed].iter().collect();
+    let ope: Vec<_> = flow
+        .plan
+        .ope
+        .iter()
+        .filter(|e| e.target < listed && e.a < listed && e.b < listed)
+        .copied()
+        .collect();
+    let fp = sys.q_fixed_point(point, 16).expect("physical point");
+    let bg = Background::Fourier { wires: 16, cell: 2 };
+    let mut rhs = pinflow::flow::rhs::FlowRhs::new(bg, channels, vec![0.0; listed], ope);
+    rhs.record = false;
+    let mut y = nalgebra::DVector::zeros(rhs.state_len());
+    for (c, t) in sys.model.terms.iter().enumerate() {
+        let (re, im) = flow.plan.channels[c].bare_amplitude(t.coupling.eval(point), 0.0);
+        y[2 * c] = re;
+        y[2 * c + 1] = im;
+    }
+    y.as_mut_slice()[2 * listed..].copy_from_slice(&fp.d);
+    (rhs, y)
+}
+
+/// Issue 15 item 2: `ode_solvers`' Dormand-Prince 5(4) against its
+/// DOP853 on the ring's flow equations (listed terms), from ell = 0 to the
+/// first strong coupling, at the default tolerances (rtol 1e-8, atol
+/// 1e-12). Prints the accepted steps of each once.
+fn integrators(c: &mut Criterion<ThreadCpu>) {
+    let sys = model();
+    let point = sys.model.params.defaults().to_vec();
+    let flow = Flow::new(&sys, FlowOptions::default());
+    for name in ["Dopri5", "Dop853"] {
+        let run = || integrate_ring(name, &sys, &flow, &point);
+        let (steps, ell) = run();
+        eprintln!("integrator {name}: {steps} accepted steps to ell = {ell:.4}");
+        c.bench_function(
+            &format!("integrator: ring flow to strong coupling, {name}"),
+            |b| b.iter(run),
+        );
+    }
+}
+
+/// One integration of the ring's flow with `ode_solvers`' "Dopri5" (the
+/// flow's parameters) or "Dop853" (its default step control: no PI term,
+/// step ratio in [0.333, 6]): (accepted steps, ell of the last step).
+fn integrate_ring(name: &str, sys: &System, flow: &Flow, point: &[f64]) -> (usize, f64) {
+    use ode_solvers::dop_shared::OutputType;
+    let (mut rhs, y) = ring_rhs(sys, flow, point);
+    let (rtol, atol, end, out) = (1e-8, 1e-12, 40.0, OutputType::Sparse);
+    let ok = if name == "Dopri5" {
+        let (beta, fmin, fmax) = (0.04, 0.2, 10.0);
+        ode_solvers::Dopri5::from_param(
+            &mut rhs,
+            0.0,
+            end,
+            0.0,
+            y,
+            rtol,
+            atol,
+            0.9,
+            beta,
+            fmin,
+            fmax,
+            end,
+            0.0,
+            100_000,
+            u32::MAX,
+            out,
+        )
+        .integrate()
+        .is_ok()
+    } else {
+        let (beta, fmin, fmax) = (0.0, 0.333, 6.0);
+        ode_solvers::Dop853::from_param(
+            &mut rhs,
+            0.0,
+            end,
+            0.0,
+            y,
+            rtol,
+            atol,
+            0.9,
+            beta,
+            fmin,
+            fmax,
+            end,
+            0.0,
+            100_000,
+            u32::MAX,
+            out,
+        )
+        .integrate()
+        .is_ok()
+    };
+    assert!(ok && rhs.stop.is_some(), "{name} reached strong coupling");
+    (rhs.steps, rhs.last_ell)
+}
+
 criterion_group!(
     benches,
     dims_point,
@@ -162,4 +365,9 @@ criterion_group!(
     edges_nondiagonal_cell,
     infinite_flow
 );
-criterion_main!(benches);
+criterion_group! {
+    name = cpu;
+    config = Criterion::default().with_measurement(ThreadCpu(WallTime));
+    targets = targets, integrators
+}
+criterion_main!(benches, cpu);

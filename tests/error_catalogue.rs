@@ -278,7 +278,7 @@ fn cases() -> Vec<Case> {
             ],
             args: args("scan wire.toml --x lambda=0:0.5:40 --out r --resume --ell-max 10"),
             code: 2,
-            message: "error: r/.points.running.csv: --resume: the partial output was made with a different model, grid, shard or options; run without --resume to start over",
+            message: "error: r/.points.running.csv: --resume: the partial output was made with a different model, grid, shard or options; run with --overwrite instead of --resume to start over",
         },
         // ------------------------------------------------ shard sets
         Case {
@@ -442,6 +442,48 @@ fn cases() -> Vec<Case> {
         // ------------------------------------------------ successive pinning
         case("E102", base(), "flow wire.toml --stages 0", 2,
             "error: command line: --stages: expected a whole number of stages from 1 (stop at the first winner) to 1000000, found 0"),
+        // ------------------------------------------------ files and data (issue 19)
+        case("E120", base(), "dims wire.toml -o ./wire.toml", 2,
+            "error: command line: -o: `./wire.toml` is the model file `wire.toml`; writing there would destroy it: give another output file"),
+        case("E121", wire("name = \"backscatter\"", "name = \"back,scatter\""), "dims wire.toml", 2,
+            "error: wire.toml: term \"back,scatter\": a term name may not contain a comma (names are CSV columns; use letters, digits, spaces and other punctuation)"),
+        case("E122", base(), "dims wire.toml --set lambda=0.1 --set lambda=0.2", 2,
+            "error: command line: --set: `lambda` is given twice (--set lambda=0.1 and --set lambda=0.2); give each parameter once"),
+        case("E123", vec![("wire.toml", with(&with(WIRE, "K = [[1, 0], [0, -1]]", "K = [[2, 0], [0, -2]]"), term, "particles = [1048576, -1048576]\n"))], "dims wire.toml", 2,
+            "error: wire.toml: term \"backscatter\".particles: its lattice vector l = K m has entry l[0] = 2097152; entries must be at most 1048576 in magnitude"),
+        case("E124", base(), "scan wire.toml --x lambda=0.5:0.1:5:log", 2,
+            "error: command line: --x: MIN must be below MAX with log spacing, found 0.5:0.1 on axis `lambda`"),
+        case("E125", base(), "dims /dev/zero", 2,
+            "error: /dev/zero: the model file is larger than 64 MiB (the limit; a model at the largest size, 2048 fields, takes about 30 MB): is it the right file?"),
+        case("E126", wire(term, "particles = [1, -1]\ncoupling = \"0.1*sinc(lambda)\"\n"), "dims wire.toml", 2,
+            "error: wire.toml: term \"backscatter\".coupling: \"0.1*sinc(lambda)\": unknown function `sinc` at position 5 (known functions: abs, acos, acosh, asin, asinh, atan, atanh, cbrt, ceil, cos, cosh, exp, floor, fract, ln, log, log10, log2, round, signum, sin, sinh, sqrt, tan, tanh, trunc)"),
+        case("E127", wire(term, "particles = [1, -1]\ncoupling = \"lambda*1e999\"\n"), "dims wire.toml", 2,
+            "error: wire.toml: term \"backscatter\".coupling: \"lambda*1e999\": cannot parse expression: the exponent of `1e999` is out of range (at most 400 in magnitude)"),
+        Case {
+            id: "E128",
+            files: base(),
+            setup: vec![Step::Run(args("scan wire.toml --x lambda=0:0.5:5 --out r --quiet"))],
+            args: args("scan wire.toml --x lambda=0:0.5:5 --out r --quiet"),
+            code: 2,
+            message: "error: command line: --out: `r` already holds the files of another scan (points.csv, summary.json, phase.png, phase.svg); pass --overwrite to replace them, or choose another --out",
+        },
+        Case {
+            id: "E129",
+            files: base(),
+            // A finished run copied over the partial file, with the row of
+            // lambda = 0.125 moved to 0.15.
+            setup: vec![
+                Step::Run(args("scan wire.toml --x lambda=0:0.5:5 --out r --shard 1/1 --quiet")),
+                Step::Copy("r/shard-1-of-1.csv", "r/.points.running.csv"),
+                Step::Edit("r/.points.running.csv", "\"shard\":[1,1]", "\"shard\":null"),
+                Step::Edit("r/.points.running.csv", "\n0.125,", "\n0.15,"),
+            ],
+            args: args("scan wire.toml --x lambda=0:0.5:5 --out r --resume --quiet"),
+            code: 2,
+            message: "error: r/.points.running.csv: --resume: line 4 of the partial output (data row 2) is wrong: lambda = 0.15, expected 0.125; it does not belong to this scan: run with --overwrite instead of --resume to start over",
+        },
+        case("E130", base(), "scan wire.toml --x lambda=0:0.5:20 --shard 2/2 --shard-base 0", 2,
+            "error: command line: --shard: with --shard-base 0 a shard K/N needs 0 <= K < N, found 2/2"),
     ];
     // By number: E100 comes after E99, not after E10.
     c.sort_by_key(|c| c.id[1..].parse::<u32>().expect("ids are E and a number"));
@@ -677,4 +719,15 @@ entries! {
     e100_dims_pin_not_local => "E100",
     e101_dims_pins_do_not_commute => "E101",
     e102_zero_stages => "E102",
+    e120_output_is_the_model => "E120",
+    e121_term_name_with_a_comma => "E121",
+    e122_set_twice => "E122",
+    e123_lattice_vector_too_large => "E123",
+    e124_log_axis_min_above_max => "E124",
+    e125_model_file_too_large => "E125",
+    e126_unknown_function => "E126",
+    e127_exponent_out_of_range => "E127",
+    e128_folder_with_another_scan => "E128",
+    e129_resume_row_of_another_grid => "E129",
+    e130_zero_based_shard_out_of_range => "E130",
 }

@@ -7,14 +7,15 @@ use std::path::{Path, PathBuf};
 use clap::{Args, ValueEnum};
 
 use crate::core::system::System;
-use crate::error::Error;
+use crate::error::{Error, InputError};
 use crate::flow::options::{Closure, FlowOverrides};
+use crate::model::Model;
 use crate::output::{self, Format};
 
 /// Options shared by commands that evaluate a model at one point.
 #[derive(Debug, Args)]
 pub struct PointArgs {
-    /// The model file (TOML).
+    /// The model file (TOML); `-` reads it from standard input.
     pub model: PathBuf,
     /// Override a parameter, e.g. `--set lambda=0.4` (repeatable).
     #[arg(long = "set", value_name = "NAME=VALUE", value_parser = parse_assignment)]
@@ -156,17 +157,48 @@ pub fn parse_assignment(s: &str) -> Result<(String, f64), String> {
     Ok((name.to_string(), x))
 }
 
-/// The model and the parameter point of a command.
-pub(crate) fn load_point(args: &PointArgs) -> Result<(System, Vec<f64>), Error> {
-    let sys = System::load(&args.model)?;
-    let point = sys.model.point_with(&args.set, "--set")?;
-    Ok((sys, point))
+/// How messages name a model read from standard input (`-`).
+pub(crate) const STDIN_NAME: &str = "<stdin>";
+
+/// Read and validate the model a command was given: a file, or standard
+/// input for `-` (both capped at [`crate::model::MAX_MODEL_BYTES`]).
+/// Returns the model and its text.
+pub(crate) fn load_model(path: &Path) -> Result<(Model, String), Error> {
+    let (text, file) = if path.as_os_str() == "-" {
+        let text = crate::model::read_text(std::io::stdin().lock(), STDIN_NAME)?;
+        (text, STDIN_NAME.to_string())
+    } else {
+        let file = path.display().to_string();
+        let opened = std::fs::File::open(path)
+            .map_err(|e| InputError::new(&file, "", format!("cannot read the model file: {e}")))?;
+        (crate::model::read_text(opened, &file)?, file)
+    };
+    Ok((Model::parse(&text, &file)?, text))
 }
 
-/// Check `-o FILE` and `--out DIR` before any work is done.
-pub(crate) fn check_outputs(file: Option<&Path>, dir: Option<&Path>) -> Result<(), Error> {
+/// The model and the parameter point of a command.
+pub(crate) fn load_point(args: &PointArgs) -> Result<(System, Vec<f64>), Error> {
+    load_point_text(args).map(|(sys, point, _)| (sys, point))
+}
+
+/// As [`load_point`], with the model's text (a scan's fingerprint).
+pub(crate) fn load_point_text(args: &PointArgs) -> Result<(System, Vec<f64>, String), Error> {
+    let (model, text) = load_model(&args.model)?;
+    let sys = System::new(model)?;
+    let point = sys.model.point_with(&args.set, "--set")?;
+    Ok((sys, point, text))
+}
+
+/// Check `-o FILE` and `--out DIR` before any work is done: `-o` may not
+/// be the model file (`inputs`).
+pub(crate) fn check_outputs(
+    inputs: &[&Path],
+    file: Option<&Path>,
+    dir: Option<&Path>,
+) -> Result<(), Error> {
     if let Some(f) = file {
         output::check_output_file(f, "-o")?;
+        output::file::check_not_input(f, inputs, "-o")?;
     }
     if let Some(d) = dir {
         output::check_output_dir(d, "--out")?;

@@ -9,7 +9,7 @@ use super::common::{check_outputs, emit, FormatArg, PointArgs};
 use crate::dims::convergence::ConvergenceReport;
 use crate::dims::{DimsOptions, DimsReport};
 use crate::error::Error;
-use crate::model::{Model, Wires};
+use crate::model::Wires;
 use crate::output;
 
 /// `pinflow dims`.
@@ -58,10 +58,14 @@ fn parse_wires(s: &str) -> Result<Wires, String> {
 }
 
 pub(super) fn run(args: DimsArgs) -> Result<(), Error> {
-    check_outputs(args.output.as_deref(), args.out.as_deref())?;
+    check_outputs(
+        &[&args.point.model],
+        args.output.as_deref(),
+        args.out.as_deref(),
+    )?;
     let format = args.format.into();
     if !args.wires.is_empty() {
-        let model = Model::load(&args.point.model)?;
+        let (model, _) = super::common::load_model(&args.point.model)?;
         let point = model.point_with(&args.point.set, "--set")?;
         let report = ConvergenceReport::build(&model, &point, &args.wires, "--wires")?;
         if let Some(dir) = &args.out {

@@ -36,7 +36,7 @@ pub struct EdgesArgs {
 }
 
 pub(super) fn run(args: EdgesArgs) -> Result<(), Error> {
-    check_outputs(args.output.as_deref(), None)?;
+    check_outputs(&[&args.point.model], args.output.as_deref(), None)?;
     let (sys, point) = load_point(&args.point)?;
     // Flow options are checked even when --pin makes the flow unnecessary.
     let opts = FlowOptions::resolve(&sys.model, &args.flow.overrides())?;

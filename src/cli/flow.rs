@@ -84,7 +84,7 @@ impl CompetitorFlags {
 }
 
 pub(super) fn run(args: FlowArgs) -> Result<(), Error> {
-    check_outputs(None, args.out.as_deref())?;
+    check_outputs(&[&args.point.model], None, args.out.as_deref())?;
     let (sys, point) = load_point(&args.point)?;
     let opts = FlowOptions::resolve(&sys.model, &args.flow.overrides())?;
     let comp = args.competitors.resolve(&sys)?;

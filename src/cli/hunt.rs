@@ -163,7 +163,7 @@ fn options(args: &HuntArgs) -> HuntOptions {
 }
 
 pub(super) fn run(args: HuntArgs) -> Result<(), Error> {
-    check_outputs(args.output.as_deref(), None)?;
+    check_outputs(&[&args.point.model], args.output.as_deref(), None)?;
     let (sys, point) = load_point(&args.point)?;
     let report = hunt(&sys, &point, &options(&args))?;
     let text = if args.emit_terms {

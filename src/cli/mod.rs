@@ -53,6 +53,15 @@ pub enum Command {
     /// What a pinned set of terms leaves: gapped pairs, whether the bulk is
     /// fully gapped, and the K matrix, charges and filling at each end.
     Edges(EdgesArgs),
+    /// Print a shell completion script, e.g.
+    /// `pinflow completions bash > ~/.local/share/bash-completion/completions/pinflow`.
+    Completions {
+        /// The shell.
+        #[arg(value_enum)]
+        shell: clap_complete::Shell,
+    },
+    /// Print the manual page (roff), e.g. `pinflow man | man -l -`.
+    Man,
 }
 
 /// Run a parsed command.
@@ -63,7 +72,7 @@ pub fn run(cli: Cli) -> Result<(), Error> {
         Command::Scan(a) => Some(a.point.model.clone()),
         Command::Hunt(a) => Some(a.point.model.clone()),
         Command::Edges(a) => Some(a.point.model.clone()),
-        Command::Merge(_) => None,
+        Command::Merge(_) | Command::Completions { .. } | Command::Man => None,
     };
     let result = match cli.command {
         Command::Dims(args) => dims::run(args),
@@ -72,6 +81,8 @@ pub fn run(cli: Cli) -> Result<(), Error> {
         Command::Merge(args) => scan::run_merge(args),
         Command::Hunt(args) => hunt::run(args),
         Command::Edges(args) => edges::run(args),
+        Command::Completions { shell } => completions(shell),
+        Command::Man => manual(),
     };
     // A point where V is not positive definite names the model file, like
     // every other input error.
@@ -81,6 +92,34 @@ pub fn run(cli: Cli) -> Result<(), Error> {
         }
         (e, _) => e,
     })
+}
+
+/// `pinflow completions SHELL`: the completion script from the clap
+/// definitions, on standard output.
+fn completions(shell: clap_complete::Shell) -> Result<(), Error> {
+    let mut cmd = <Cli as clap::CommandFactory>::command();
+    let mut bytes = Vec::new();
+    clap_complete::generate(shell, &mut cmd, "pinflow", &mut bytes);
+    common::emit(None, &String::from_utf8_lossy(&bytes))
+}
+
+/// `pinflow man`: the manual page (roff) from the clap definitions, with a
+/// section per subcommand, on standard output.
+fn manual() -> Result<(), Error> {
+    let cmd = <Cli as clap::CommandFactory>::command();
+    let mut bytes = Vec::new();
+    let fail = |e: std::io::Error| Error::io("standard output", e);
+    clap_mangen::Man::new(cmd.clone())
+        .render(&mut bytes)
+        .map_err(fail)?;
+    for sub in cmd.get_subcommands().filter(|c| c.get_name() != "help") {
+        let title = format!("pinflow-{}", sub.get_name());
+        clap_mangen::Man::new(sub.clone())
+            .title(title)
+            .render(&mut bytes)
+            .map_err(fail)?;
+    }
+    common::emit(None, &String::from_utf8_lossy(&bytes))
 }
 
 /// The whole command line: parse `args` (the first is the program name),

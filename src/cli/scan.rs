@@ -1,19 +1,23 @@
 //! `pinflow scan` and `pinflow merge`: file handling, threads, the progress
 //! bar and the summary printed at the end.
 
+use std::cell::Cell;
 use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
+use std::time::{Duration, Instant};
 
 use clap::Args;
 use indicatif::{ProgressBar, ProgressStyle};
 
-use super::common::{emit, load_point, FlowFlags, FormatArg, PointArgs};
+use super::common::{emit, load_point_text, FlowFlags, FormatArg, PointArgs};
 use crate::error::{Error, InputError};
 use crate::flow::FlowOptions;
 use crate::output::{self, Format};
 use crate::scan::figures::ColorBy;
-use crate::scan::run::{check_size, finish, publish, resolve_axes};
-use crate::scan::store::{self, RowFile};
+use crate::scan::folder::{self, FolderLock};
+use crate::scan::preview;
+use crate::scan::run::{check_size, publish, publish_staged, resolve_axes};
+use crate::scan::store::{self, Meta, RowFile};
 use crate::scan::summary::ScanSummary;
 use crate::scan::{partial_path, shard_path, Scan, ScanSpec};
 
@@ -37,18 +41,31 @@ pub struct ScanArgs {
     #[arg(long, value_name = "DIR")]
     pub out: Option<PathBuf>,
     /// Compute only the K-th of N interleaved parts, into DIR/shard-K-of-N.csv
-    /// (join the parts with `pinflow merge`).
+    /// (join the parts with `pinflow merge`); K counts from 1, or from 0
+    /// with `--shard-base 0` (a scheduler's array index:
+    /// `--shard $SLURM_ARRAY_TASK_ID/N --shard-base 0`).
     #[arg(long, value_name = "K/N", value_parser = parse_shard)]
     pub shard: Option<(usize, usize)>,
+    /// Whether the K of --shard counts from 1 (default) or from 0.
+    #[arg(long, value_name = "0|1", default_value_t = 1, value_parser = clap::value_parser!(u8).range(0..=1), requires = "shard")]
+    pub shard_base: u8,
     /// Continue an interrupted scan without recomputing finished points.
     #[arg(long)]
     pub resume: bool,
-    /// Number of worker threads [default: all cores].
+    /// Replace the files of an earlier scan in the output directory
+    /// (without it, a directory holding them is refused).
+    #[arg(long, conflicts_with = "resume")]
+    pub overwrite: bool,
+    /// Number of worker threads [default: all cores; at most 4 per core].
     #[arg(long, value_name = "N")]
     pub threads: Option<usize>,
-    /// No progress bar.
+    /// No progress bar and no progress lines.
     #[arg(long, short = 'q')]
     pub quiet: bool,
+    /// Off a terminal (a batch job's log), print one plain progress line
+    /// to standard error every SECONDS (0: never).
+    #[arg(long, value_name = "SECONDS", default_value_t = 60)]
+    pub progress_every: u64,
     /// Run grids larger than the safety limit.
     #[arg(long)]
     pub force: bool,
@@ -69,6 +86,17 @@ pub struct MergeArgs {
     /// Output directory [default: the directory of the first shard].
     #[arg(long, value_name = "DIR")]
     pub out: Option<PathBuf>,
+    /// Replace the files of an earlier scan or merge in the output
+    /// directory (without it, a directory holding them is refused).
+    #[arg(long)]
+    pub overwrite: bool,
+    /// Preview an unfinished scan: join the rows its shards have finished
+    /// so far (the shard files given, and for the other shards their
+    /// finished or running files beside the first one) into
+    /// `points.csv` and `preview.json` [default --out: DIR/preview]; no
+    /// summary or figures.
+    #[arg(long)]
+    pub partial: bool,
     /// Format of the summary printed at the end.
     #[arg(long, value_enum, default_value_t = FormatArg::Text)]
     pub format: FormatArg,
@@ -95,7 +123,7 @@ impl From<ColorByArg> for ColorBy {
     }
 }
 
-/// Parse `k/n` (1 <= k <= n).
+/// Parse `k/n` (0 <= k <= n; the base is checked in [`shard_of`]).
 fn parse_shard(s: &str) -> Result<(usize, usize), String> {
     let (k, n) = s
         .split_once('/')
@@ -108,48 +136,74 @@ fn parse_shard(s: &str) -> Result<(usize, usize), String> {
         .trim()
         .parse()
         .map_err(|_| format!("expected K/N with whole numbers, found `{s}`"))?;
-    if n == 0 || k == 0 || k > n {
+    if n == 0 || k > n {
         return Err(format!("shard K/N needs 1 <= K <= N, found `{s}`"));
     }
     Ok((k, n))
 }
 
+/// The shard as (k, n) with k counted from 1, from `--shard` and
+/// `--shard-base`.
+fn shard_of(args: &ScanArgs) -> Result<Option<(usize, usize)>, Error> {
+    let Some((k, n)) = args.shard else {
+        return Ok(None);
+    };
+    let base = usize::from(args.shard_base);
+    if k < base || k - base >= n {
+        let range = if base == 0 {
+            "0 <= K < N"
+        } else {
+            "1 <= K <= N"
+        };
+        return Err(InputError::new(
+            "command line",
+            "--shard",
+            format!("with --shard-base {base} a shard K/N needs {range}, found {k}/{n}"),
+        )
+        .into());
+    }
+    Ok(Some((k - base + 1, n)))
+}
+
 /// Run `pinflow scan`.
 pub(super) fn run_scan(args: ScanArgs) -> Result<(), Error> {
-    let (sys, base) = load_point(&args.point)?;
+    let shard = shard_of(&args)?;
+    let (sys, base, text) = load_point_text(&args.point)?;
     let axes = resolve_axes(&sys.model, args.x.as_deref(), args.y.as_deref())?;
     let options = FlowOptions::resolve(&sys.model, &args.flow.overrides())?;
     let spec = ScanSpec {
         axes,
         base,
         options,
-        shard: args.shard,
+        shard,
         competitors: args.competitors.resolve(&sys)?,
     };
-    let bytes = std::fs::read(&args.point.model).map_err(|e| Error::io(&args.point.model, e))?;
-    let scan = Scan::new(&sys, &bytes, spec)?;
+    let scan = Scan::new(&sys, text.as_bytes(), spec)?;
     check_size(scan.points(), args.force)?;
-    if let Some(n) = args.threads {
-        set_threads(n)?;
-    }
+    let threads = args.threads.map(thread_count).transpose()?;
     let dir = args
         .out
         .clone()
         .unwrap_or_else(|| default_dir(&args.point.model));
     output::check_output_dir(&dir, "--out")?;
-    std::fs::create_dir_all(&dir).map_err(|e| Error::io(&dir, e))?;
-    let partial = partial_path(&dir, args.shard);
+    let Some(_lock) = prepare_dir(&dir, &scan.meta, &args)? else {
+        return Ok(());
+    };
+    if let Some(n) = threads {
+        set_threads(n)?;
+    }
+    let partial = partial_path(&dir, shard);
     let mut file = if args.resume && partial.exists() {
         RowFile::resume(&partial, &scan.meta)?
     } else {
         RowFile::create(&partial, &scan.meta)?
     };
     let todo = scan.count();
-    let bar = progress_bar(todo as u64, file.rows as u64, args.quiet);
-    scan.run_into(&mut file, &|n| bar.inc(n as u64))?;
-    bar.finish_and_clear();
+    let progress = Progress::new(todo as u64, file.rows as u64, &args);
+    scan.run_into(&mut file, &|n| progress.add(n as u64))?;
+    progress.finish();
     drop(file);
-    match args.shard {
+    match shard {
         Some((k, n)) => {
             let target = shard_path(&dir, k, n);
             std::fs::rename(&partial, &target).map_err(|e| Error::io(&target, e))?;
@@ -166,18 +220,160 @@ pub(super) fn run_scan(args: ScanArgs) -> Result<(), Error> {
     }
 }
 
+/// Create and lock the output directory and check what it holds (see
+/// `scan::folder`). None: a `--resume`d shard that is already complete
+/// (nothing to do).
+fn prepare_dir(dir: &Path, meta: &Meta, args: &ScanArgs) -> Result<Option<FolderLock>, Error> {
+    let shard = meta.shard;
+    let (lock, created) = lock_dir(dir, shard)?;
+    let partial = partial_path(dir, shard);
+    let checked = match shard {
+        Some((k, n)) => check_shard_dir(dir, meta, (k, n), args),
+        None => check_scan_dir(dir, &partial, args),
+    };
+    match checked {
+        Ok(true) => {
+            if shard.is_none() {
+                folder::remove_temporaries(dir)?;
+            }
+            Ok(Some(lock))
+        }
+        Ok(false) => Ok(None),
+        Err(e) => {
+            drop(lock);
+            if created {
+                let _ = std::fs::remove_file(dir.join(folder::LOCK));
+            }
+            Err(e)
+        }
+    }
+}
+
+/// Create `dir` and take its lock; also says whether the lock file is new
+/// (a refused run removes it, leaving the directory as it was).
+fn lock_dir(dir: &Path, shard: Option<(usize, usize)>) -> Result<(FolderLock, bool), Error> {
+    std::fs::create_dir_all(dir).map_err(|e| Error::io(dir, e))?;
+    let created = !dir.join(folder::LOCK).exists();
+    Ok((folder::lock(dir, shard)?, created))
+}
+
+/// A whole scan: the directory may not hold another scan's files, unless
+/// `--overwrite`, or `--resume` with an interrupted scan to continue.
+fn check_scan_dir(dir: &Path, partial: &Path, args: &ScanArgs) -> Result<bool, Error> {
+    if args.overwrite || (args.resume && partial.exists()) {
+        return Ok(true);
+    }
+    let mut found = folder::present(dir, &folder::OUTPUTS);
+    let mut hint = "";
+    if partial.exists() {
+        found.push(format!("the unfinished {}", file_name(partial)));
+        hint = ", --resume to continue the unfinished scan";
+    }
+    folder::refuse_existing(dir, &found, hint)?;
+    Ok(true)
+}
+
+/// A shard: its finished file is kept unless `--overwrite`; with
+/// `--resume` a finished shard of this very scan is nothing to do.
+fn check_shard_dir(
+    dir: &Path,
+    meta: &Meta,
+    (k, n): (usize, usize),
+    args: &ScanArgs,
+) -> Result<bool, Error> {
+    if args.overwrite {
+        return Ok(true);
+    }
+    let done = shard_path(dir, k, n);
+    if done.exists() {
+        if args.resume && store::read_meta(&done).is_ok_and(|m| m == *meta) {
+            eprintln!("shard {k}/{n} is already complete in {}", done.display());
+            return Ok(false);
+        }
+        folder::refuse_existing(dir, &[file_name(&done)], "")?;
+    }
+    let partial = partial_path(dir, Some((k, n)));
+    if partial.exists() && !args.resume {
+        let found = [format!("the unfinished {}", file_name(&partial))];
+        folder::refuse_existing(dir, &found, ", --resume to continue it")?;
+    }
+    Ok(true)
+}
+
+fn file_name(p: &Path) -> String {
+    p.file_name()
+        .map(|n| n.to_string_lossy().to_string())
+        .unwrap_or_default()
+}
+
 /// Run `pinflow merge`.
 pub(super) fn run_merge(args: MergeArgs) -> Result<(), Error> {
-    let dir = args
-        .out
-        .clone()
-        .or_else(|| args.shards[0].parent().map(Path::to_path_buf))
-        .unwrap_or_else(|| PathBuf::from("."));
+    let shards_dir = args.shards[0]
+        .parent()
+        .filter(|p| !p.as_os_str().is_empty())
+        .map_or_else(|| PathBuf::from("."), Path::to_path_buf);
+    let dir = match (&args.out, args.partial) {
+        (Some(d), _) => d.clone(),
+        (None, false) => shards_dir,
+        (None, true) => shards_dir.join("preview"),
+    };
     output::check_output_dir(&dir, "--out")?;
-    std::fs::create_dir_all(&dir).map_err(|e| Error::io(&dir, e))?;
-    let meta = store::merge(&args.shards, &dir.join("points.csv"))?;
-    let summary = finish(&dir, &meta, args.color_by.into())?;
+    let (lock, created) = lock_dir(&dir, None)?;
+    // A preview replaces an earlier preview without asking.
+    let replaceable = args.overwrite || (args.partial && dir.join(preview::MARK).exists());
+    let found = folder::present(&dir, &folder::OUTPUTS);
+    let checked = if replaceable {
+        Ok(())
+    } else {
+        folder::refuse_existing(&dir, &found, "")
+    };
+    if let Err(e) = checked {
+        drop(lock);
+        if created {
+            let _ = std::fs::remove_file(dir.join(folder::LOCK));
+        }
+        return Err(e);
+    }
+    folder::remove_temporaries(&dir)?;
+    if args.partial {
+        return write_preview(&dir, &args);
+    }
+    let (meta, staged) = store::merge(&args.shards, &dir.join("points.csv"))?;
+    let summary = publish_staged(&dir, &staged, &meta, args.color_by.into())?;
     print_summary(&dir, &summary, args.format.into())
+}
+
+/// `merge --partial`: the preview's rows and counts, then the counts on
+/// standard output (JSON with `--format json`, else one line).
+fn write_preview(dir: &Path, args: &MergeArgs) -> Result<(), Error> {
+    let target = dir.join("points.csv");
+    let (counts, staged) = preview::preview(&args.shards, &target)?;
+    let json = output::to_json(&counts)?;
+    let done = output::write_atomic(&dir.join(preview::MARK), json.as_bytes())
+        .and_then(|_| std::fs::rename(&staged, &target).map_err(|e| Error::io(&target, e)))
+        .and_then(|_| folder::remove_stale(dir, &["points.csv".to_string()]));
+    if let Err(e) = done {
+        let _ = std::fs::remove_file(&staged);
+        return Err(e);
+    }
+    if args.format == FormatArg::Json {
+        return emit(None, &json);
+    }
+    let shards: Vec<String> = counts
+        .shards
+        .iter()
+        .map(|s| format!("{} {}/{}", s.shard, s.finished, s.expected))
+        .collect();
+    emit(
+        None,
+        &format!(
+            "preview: {} of {} points finished (shard rows done/expected: {}); written to {}\n",
+            counts.finished,
+            counts.points,
+            shards.join(", "),
+            target.display()
+        ),
+    )
 }
 
 /// Print the summary (whose files are written).
@@ -189,10 +385,29 @@ fn print_summary(dir: &Path, summary: &ScanSummary, format: Format) -> Result<()
     emit(None, &text)
 }
 
-fn set_threads(n: usize) -> Result<(), Error> {
+/// Most worker threads per core: more only adds overhead (100000 threads
+/// took 30 s to start).
+const THREADS_PER_CORE: usize = 4;
+
+/// The number of worker threads for `--threads n`: at least 1, and capped
+/// at [`THREADS_PER_CORE`] per core with a note.
+fn thread_count(n: usize) -> Result<usize, Error> {
     if n == 0 {
         return Err(InputError::new("command line", "--threads", "must be at least 1").into());
     }
+    let cores = std::thread::available_parallelism().map_or(1, |c| c.get());
+    let cap = THREADS_PER_CORE * cores;
+    if n > cap {
+        eprintln!(
+            "note: --threads {n} is more than {THREADS_PER_CORE} per core; using {cap} ({cores} core{})",
+            if cores == 1 { "" } else { "s" }
+        );
+        return Ok(cap);
+    }
+    Ok(n)
+}
+
+fn set_threads(n: usize) -> Result<(), Error> {
     rayon::ThreadPoolBuilder::new()
         .num_threads(n)
         .build_global()
@@ -200,11 +415,89 @@ fn set_threads(n: usize) -> Result<(), Error> {
 }
 
 fn default_dir(model: &Path) -> PathBuf {
+    if model.as_os_str() == "-" {
+        return PathBuf::from("out").join("stdin");
+    }
     let stem = model
         .file_stem()
         .map(|s| s.to_string_lossy().to_string())
         .unwrap_or_else(|| "scan".into());
     PathBuf::from("out").join(stem)
+}
+
+/// Progress of a scan: a bar on a terminal; off a terminal (a batch job's
+/// log) one plain line every `--progress-every` seconds.
+struct Progress {
+    bar: ProgressBar,
+    plain: Option<Plain>,
+}
+
+/// State of the plain progress lines.
+struct Plain {
+    every: Duration,
+    total: u64,
+    start: Instant,
+    /// Points done at the start (resumed) and now; time of the last line.
+    state: Cell<(u64, u64, Instant)>,
+}
+
+impl Progress {
+    fn new(total: u64, done: u64, args: &ScanArgs) -> Progress {
+        let terminal = std::io::stderr().is_terminal();
+        let plain = (!args.quiet && !terminal && args.progress_every > 0).then(|| Plain {
+            every: Duration::from_secs(args.progress_every),
+            total,
+            start: Instant::now(),
+            state: Cell::new((done, done, Instant::now())),
+        });
+        Progress {
+            bar: progress_bar(total, done, args.quiet),
+            plain,
+        }
+    }
+
+    fn add(&self, n: u64) {
+        self.bar.inc(n);
+        if let Some(p) = &self.plain {
+            p.add(n);
+        }
+    }
+
+    fn finish(&self) {
+        self.bar.finish_and_clear();
+    }
+}
+
+impl Plain {
+    fn add(&self, n: u64) {
+        let (first, done, last) = self.state.get();
+        let done = done + n;
+        let now = Instant::now();
+        if now.duration_since(last) < self.every || done >= self.total {
+            self.state.set((first, done, last));
+            return;
+        }
+        self.state.set((first, done, now));
+        let secs = now.duration_since(self.start).as_secs_f64();
+        let rate = (done - first) as f64 / secs.max(1e-9);
+        let left = (self.total - done) as f64 / rate.max(1e-9);
+        eprintln!(
+            "progress: {done}/{} points ({:.1}%), {rate:.3} points/s, about {} left",
+            self.total,
+            100.0 * done as f64 / self.total.max(1) as f64,
+            human_duration(left)
+        );
+    }
+}
+
+/// A duration in seconds as `1h02m`, `3m05s` or `12s`.
+fn human_duration(secs: f64) -> String {
+    let s = secs.round().min(1e9) as u64;
+    match s {
+        0..60 => format!("{s}s"),
+        60..3600 => format!("{}m{:02}s", s / 60, s % 60),
+        _ => format!("{}h{:02}m", s / 3600, (s % 3600) / 60),
+    }
 }
 
 fn progress_bar(total: u64, done: u64, quiet: bool) -> ProgressBar {

@@ -74,6 +74,19 @@ pub enum EvalPath {
     Infinite,
 }
 
+/// Largest scale of V's entries (and inverse of the smallest) taken as
+/// ordinary: squares and products of entries stay normal doubles.
+const V_RANGE: f64 = 1e100;
+
+/// A condition number of V above which V is named as the cause of an
+/// inaccurate fixed point (double precision keeps about 16 digits; the
+/// fixed point loses about as many as log10 of the condition number).
+const V_CONDITION: f64 = 1e8;
+
+/// Entries of K from which K is named as the cause of an inaccurate fixed
+/// point (D K D: products of three entries of K and D).
+const K_LARGE: f64 = 1e4;
+
 impl System {
     /// Load a model file and prepare it.
     pub fn load(path: &Path) -> Result<System, InputError> {
@@ -194,30 +207,65 @@ impl System {
         } else {
             f64::NAN
         };
-        self.check_accuracy(point, drift, None)
+        self.check_accuracy(point, drift, None, None)
     }
 
     /// The message for a fixed point whose D K D = K^-1 fails by `drift`
     /// (relative), with the condition number of V when it is known.
-    fn check_accuracy(&self, point: &[f64], drift: f64, cond: Option<f64>) -> Result<(), Error> {
+    fn check_accuracy(
+        &self,
+        point: &[f64],
+        drift: f64,
+        v: Option<&DMatrix<f64>>,
+        cond: Option<f64>,
+    ) -> Result<(), Error> {
         if drift <= ACCURACY {
             return Ok(());
         }
         let at = self.model.params.describe(point);
-        let why = match cond {
-            Some(c) => format!("V is badly conditioned there (condition number {c:.1e})"),
-            None => "V is badly conditioned there".to_string(),
+        let why = self.inaccuracy_cause(v, cond);
+        let remedy = if why.starts_with("K ") {
+            "choose a K with smaller entries"
+        } else {
+            "rescale V or choose another point"
         };
         let file = &self.model.file;
         Err(Error::Numerical(if drift.is_finite() {
             format!(
-                "{file}: the fixed point at {at} cannot be computed accurately: {why}, and the computed D satisfies D K D = K^-1 only to {drift:.1e} (relative; {ACCURACY:.0e} is needed); rescale V or choose another point"
+                "{file}: the fixed point at {at} cannot be computed accurately: {why}, and the computed D satisfies D K D = K^-1 only to {drift:.1e} (relative; {ACCURACY:.0e} is needed); {remedy}"
             )
         } else {
             format!(
-                "{file}: the fixed point at {at} cannot be computed: {why}, and D has non-finite entries; rescale V or choose another point"
+                "{file}: the fixed point at {at} cannot be computed: {why}, and D has non-finite entries; {remedy}"
             )
         }))
+    }
+
+    /// Why a fixed point lost its accuracy, for the message: V's entries
+    /// out of the range of doubles (subnormal or huge), V nearly singular,
+    /// or K's large entries (a well-conditioned V is then not the cause).
+    fn inaccuracy_cause(&self, v: Option<&DMatrix<f64>>, cond: Option<f64>) -> String {
+        let vmax = v.map(|v| v.amax());
+        let subnormal =
+            v.is_some_and(|v| v.iter().any(|x| *x != 0.0 && x.abs() < f64::MIN_POSITIVE));
+        let kmax = self.k.amax();
+        match (vmax, cond) {
+            (Some(m), _) if subnormal || m < V_RANGE.recip() => format!(
+                "V's entries are tiny (largest |V_ij| = {m:.1e}{}); dimensions do not depend on the overall scale of V",
+                if subnormal { ", some subnormal" } else { "" }
+            ),
+            (Some(m), _) if m > V_RANGE => format!(
+                "V's entries are huge (largest |V_ij| = {m:.1e}); dimensions do not depend on the overall scale of V"
+            ),
+            (_, Some(c)) if c > V_CONDITION => {
+                format!("V is badly conditioned there (condition number {c:.1e})")
+            }
+            _ if kmax >= K_LARGE => format!(
+                "K has large entries (largest |K_ij| = {kmax:.0}; V is not the cause), which D K D = K^-1 cannot resolve in double precision"
+            ),
+            (_, Some(c)) => format!("V is well conditioned there (condition number {c:.1e}), but the fixed point equation lost precision"),
+            (_, None) => "V(q) is badly conditioned there".to_string(),
+        }
     }
 
     /// The infinite array's fixed point on the refined rule: N doubled until
@@ -433,7 +481,7 @@ impl System {
             return Ok(fp);
         }
         let cond = crate::core::fixed_point::condition_number(&v);
-        self.check_accuracy(point, drift, Some(cond))?;
+        self.check_accuracy(point, drift, Some(&v), Some(cond))?;
         Ok(fp)
     }
 

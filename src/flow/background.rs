@@ -27,9 +27,24 @@
 //!   (dimension, blocks, drift) lives in [`crate::core::qspace`], shared with the
 //!   fixed point.
 //!
-//! Neither layout allocates: callers pass scratch space of `scratch_len()`.
+//! The feedback as matrix products [`Background::evaluate`]: with the
+//! per-channel sums over translates precomputed ([`Outer`]: sum_t l_t l_t^T
+//! and sum_t g_t g_t^T, or L(q) L(q)^H and G(q) G(q)^H per stored q),
+//! M = sum_c c_c sum_t l_t l_t^T and N = sum_c c_c sum_t g_t g_t^T
+//! (c_c = -|y_c|^2/8, times the share on the Fourier layout) give
+//! dD = D M D - N with two matrix products (per q block, or once for the
+//! dense D) instead of one rank-one update per channel and translate. The
+//! per-channel route ([`Background::dimension_and_feedback`]) is kept as the
+//! reference the products are tested against (`tests/rhs_products.rs`).
+//! Invariants: the dense feedback is symmetrised and each block's feedback
+//! is Hermitian with a real diagonal, so D stays symmetric (Hermitian per q)
+//! to rounding of its own entries.
+//!
+//! Neither layout allocates per evaluation: callers pass a [`Work`] from
+//! [`Background::work`] (or scratch space of `scratch_len()` for the
+//! reference route).
 
-use nalgebra::DMatrix;
+use nalgebra::{DMatrix, DMatrixView};
 use num_complex::Complex64;
 
 use super::channels::Channel;
@@ -153,7 +168,8 @@ impl Background {
         }
     }
 
-    /// Bosonic dimension of a channel and, when `weight > 0`, its feedback
+    /// Reference route (one rank-one update per channel and translate):
+    /// bosonic dimension of a channel and, when `weight > 0`, its feedback
     /// ds += -(weight/8) sum_t [ D l_t l_t^T D - g_t g_t^T ] (g = K^-1 l),
     /// sharing the product D l between the two. `scratch` has at least
     /// `scratch_len()` entries.
@@ -236,6 +252,282 @@ fn dense_feedback(n: usize, s: &[f64], ch: &Channel, c: f64, ds: &mut [f64], u: 
             for &(j, gj) in g {
                 ds[i * n + j] -= c * gi * gj;
             }
+        }
+    }
+}
+
+/// The feedback data of one null channel, precomputed per flow: its
+/// translates' outer products summed ([`Background::outer`]).
+#[derive(Debug, Clone)]
+pub enum Outer {
+    /// Sparse (row-major index, value) of sum_t l_t l_t^T and sum_t g_t g_t^T.
+    Dense {
+        /// sum_t l_t l_t^T.
+        ll: Vec<(usize, f64)>,
+        /// sum_t g_t g_t^T.
+        gg: Vec<(usize, f64)>,
+    },
+    /// L(q) L(q)^H and G(q) G(q)^H on every stored q, interleaved (re, im),
+    /// in the layout of the state.
+    Fourier {
+        /// L L^H blocks.
+        ll: Vec<f64>,
+        /// G G^H blocks.
+        gg: Vec<f64>,
+    },
+}
+
+/// Scratch space of [`Background::evaluate`], sized once per flow.
+#[derive(Debug, Clone)]
+pub struct Work {
+    /// M (dense: n x n; Fourier: one block).
+    m: DMatrix<f64>,
+    /// N, same shape as M.
+    n: DMatrix<f64>,
+    /// D M.
+    t: DMatrix<f64>,
+    /// D M D (dense only).
+    r: DMatrix<f64>,
+}
+
+impl Background {
+    /// The precomputed outer products of a channel on this layout.
+    pub fn outer(&self, ch: &Channel) -> Outer {
+        match *self {
+            Background::Dense { n } => Outer::Dense {
+                ll: sparse_sum(n, &ch.l_sparse),
+                gg: sparse_sum(n, &ch.g_sparse),
+            },
+            Background::Fourier { wires, cell } => Outer::Fourier {
+                ll: block_outer(&ch.lq, half(wires), cell),
+                gg: block_outer(&ch.gq, half(wires), cell),
+            },
+        }
+    }
+
+    /// Scratch space for [`Background::evaluate`].
+    pub fn work(&self) -> Work {
+        let (rows, cols) = match *self {
+            Background::Dense { n } => (n, n),
+            Background::Fourier { cell, .. } => (2 * cell, cell),
+        };
+        let z = || DMatrix::zeros(rows, cols);
+        Work {
+            m: z(),
+            n: z(),
+            t: z(),
+            r: z(),
+        }
+    }
+
+    /// Bosonic dimension of every live channel into `dims[c]`, and the
+    /// feedback of D into `ds` (added) as matrix products: `weight[c]` is
+    /// |y_c|^2 (0 for channels that do not feed back), `outer[c]` the
+    /// channel's [`Outer`] (needed where `weight[c] > 0`).
+    #[allow(clippy::too_many_arguments)]
+    pub fn evaluate(
+        &self,
+        s: &[f64],
+        channels: &[&Channel],
+        live: &[usize],
+        outer: &[Option<Outer>],
+        weight: &[f64],
+        dims: &mut [f64],
+        ds: &mut [f64],
+        work: &mut Work,
+    ) {
+        match *self {
+            Background::Dense { n } => {
+                let mut any = false;
+                work.m.fill(0.0);
+                work.n.fill(0.0);
+                for &c in live {
+                    dims[c] = self.dimension(s, channels[c]);
+                    if let (true, Some(Outer::Dense { ll, gg })) = (weight[c] > 0.0, &outer[c]) {
+                        let coef = -weight[c] / 8.0;
+                        add_sparse(work.m.as_mut_slice(), ll, coef);
+                        add_sparse(work.n.as_mut_slice(), gg, coef);
+                        any = true;
+                    }
+                }
+                if any {
+                    dense_products(n, s, ds, work);
+                }
+            }
+            Background::Fourier { wires, cell } => {
+                for &c in live {
+                    dims[c] = 0.0;
+                }
+                let at = BlockAt { wires, cell };
+                for k in 0..half(wires) {
+                    let base = 2 * k * cell * cell;
+                    let block = &s[base..base + 2 * cell * cell];
+                    let any = at.accumulate(k, block, (channels, live, outer, weight), dims, work);
+                    if any {
+                        block_products(cell, block, &mut ds[base..base + 2 * cell * cell], work);
+                    }
+                }
+                for &c in live {
+                    dims[c] /= 2.0 * wires as f64;
+                }
+            }
+        }
+    }
+}
+
+/// sum_t v_t v_t^T of sparse vectors, as sparse (row-major index, value)
+/// in index order.
+fn sparse_sum(n: usize, vs: &[Vec<(usize, f64)>]) -> Vec<(usize, f64)> {
+    let mut acc = std::collections::BTreeMap::new();
+    for v in vs {
+        for &(i, x) in v {
+            for &(j, y) in v {
+                *acc.entry(i * n + j).or_insert(0.0) += x * y;
+            }
+        }
+    }
+    acc.into_iter().filter(|&(_, v)| v != 0.0).collect()
+}
+
+/// a[at] += coef * v over sparse entries. M and N are symmetric, so the
+/// row-major index names the same entry in nalgebra's column-major storage.
+#[inline]
+fn add_sparse(a: &mut [f64], sparse: &[(usize, f64)], coef: f64) {
+    for &(at, v) in sparse {
+        a[at] += coef * v;
+    }
+}
+
+/// ds += (D M D + (D M D)^T)/2 - N for the dense layout (M, N in `work`).
+/// The state holds D row-major; read column-major it is D^T, so the
+/// products give D^T M D^T, which is D M D for the symmetric D.
+fn dense_products(n: usize, s: &[f64], ds: &mut [f64], work: &mut Work) {
+    let d = DMatrixView::from_slice(s, n, n);
+    work.t.gemm(1.0, &d, &work.m, 0.0);
+    work.r.gemm(1.0, &work.t, &d, 0.0);
+    for i in 0..n {
+        for j in 0..n {
+            let sym = 0.5 * (work.r[(i, j)] + work.r[(j, i)]);
+            ds[i * n + j] += sym - work.n[(i, j)];
+        }
+    }
+}
+
+/// V V^H of every stored q block of a Fourier vector (k-major, `cell`
+/// entries per block), interleaved (re, im), row-major per block.
+fn block_outer(v: &[Complex64], blocks: usize, cell: usize) -> Vec<f64> {
+    let mut out = vec![0.0; 2 * blocks * cell * cell];
+    for k in 0..blocks {
+        let vk = &v[k * cell..(k + 1) * cell];
+        for a in 0..cell {
+            for b in 0..cell {
+                let z = vk[a] * vk[b].conj();
+                let at = 2 * ((k * cell + a) * cell + b);
+                out[at] = z.re;
+                out[at + 1] = z.im;
+            }
+        }
+    }
+    out
+}
+
+/// The channels, the live ones among them, their outer products and their
+/// weights |y|^2, as [`Background::evaluate`] receives them.
+type Live<'a, 'c> = (
+    &'a [&'c Channel],
+    &'a [usize],
+    &'a [Option<Outer>],
+    &'a [f64],
+);
+
+/// The shape of the Fourier layout, for the per-block steps.
+struct BlockAt {
+    wires: usize,
+    cell: usize,
+}
+
+impl BlockAt {
+    /// Block k: adds weight(k) L^H D(q) L to `dims[c]` of every live channel
+    /// (the same arithmetic as [`qspace::dimension`] and the reference
+    /// route), and builds M, N of the block in `work` (used as flat
+    /// interleaved row-major blocks, like the state). True when some channel
+    /// feeds back.
+    fn accumulate(
+        &self,
+        k: usize,
+        block: &[f64],
+        (channels, live, outer, weight): Live<'_, '_>,
+        dims: &mut [f64],
+        work: &mut Work,
+    ) -> bool {
+        let cell = self.cell;
+        let size = 2 * cell * cell;
+        let (m, n) = (work.m.as_mut_slice(), work.n.as_mut_slice());
+        m.fill(0.0);
+        n.fill(0.0);
+        let mut any = false;
+        for &c in live {
+            let lq = &channels[c].lq[k * cell..(k + 1) * cell];
+            let mut quad = 0.0;
+            for (a, la) in lq.iter().enumerate() {
+                let row = &block[2 * a * cell..2 * (a + 1) * cell];
+                let mut z = Complex64::new(0.0, 0.0);
+                for (d, l) in row.chunks_exact(2).zip(lq) {
+                    z += Complex64::new(d[0], d[1]) * l;
+                }
+                quad += (la.conj() * z).re;
+            }
+            dims[c] += qspace::weight(k, self.wires) * quad;
+            if let (true, Some(Outer::Fourier { ll, gg })) = (weight[c] > 0.0, &outer[c]) {
+                let coef = -weight[c] * channels[c].share / 8.0;
+                let (ll, gg) = (&ll[k * size..(k + 1) * size], &gg[k * size..(k + 1) * size]);
+                for ((mi, ni), (l, g)) in m.iter_mut().zip(n.iter_mut()).zip(ll.iter().zip(gg)) {
+                    *mi += coef * l;
+                    *ni += coef * g;
+                }
+                any = true;
+            }
+        }
+        any
+    }
+}
+
+/// Entry (a, b) of an interleaved row-major complex block.
+#[inline]
+fn at(x: &[f64], cell: usize, a: usize, b: usize) -> Complex64 {
+    let i = 2 * (a * cell + b);
+    Complex64::new(x[i], x[i + 1])
+}
+
+/// ds += D M D - N for one q block (M, N in `work`, interleaved like the
+/// state). Only the upper triangle of D M D is formed; the lower one is its
+/// conjugate and the diagonal real, so the feedback is exactly Hermitian.
+fn block_products(cell: usize, d: &[f64], ds: &mut [f64], work: &mut Work) {
+    let (m, n, t) = (work.m.as_slice(), work.n.as_slice(), work.t.as_mut_slice());
+    for a in 0..cell {
+        for b in 0..cell {
+            let z: Complex64 = (0..cell)
+                .map(|j| at(d, cell, a, j) * at(m, cell, j, b))
+                .sum();
+            t[2 * (a * cell + b)] = z.re;
+            t[2 * (a * cell + b) + 1] = z.im;
+        }
+    }
+    for a in 0..cell {
+        for b in a..cell {
+            let r: Complex64 = (0..cell)
+                .map(|j| at(t, cell, a, j) * at(d, cell, j, b))
+                .sum();
+            let v = r - at(n, cell, a, b);
+            let i = 2 * (a * cell + b);
+            ds[i] += v.re;
+            if a == b {
+                continue;
+            }
+            ds[i + 1] += v.im;
+            let i = 2 * (b * cell + a);
+            ds[i] += v.re;
+            ds[i + 1] -= v.im;
         }
     }
 }

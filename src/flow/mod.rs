@@ -24,6 +24,18 @@
 //! mean, so their own error may exceed `rtol` by up to
 //! sqrt(state size / couplings); ell* to many digits needs a lower `--rtol`.
 //!
+//! Integrator choice (issue 15, measured with `cargo bench --bench points
+//! -- integrator`, thread CPU time): on the 32-field ring's flow to strong
+//! coupling `ode_solvers`' DOP853 takes 22 accepted steps where its
+//! Dormand-Prince 5(4) takes 92, and 0.65 ms against 1.08 ms. The flow
+//! still uses Dormand-Prince 5(4): ell* is located by bisection on the
+//! dense output of the last step, and only the 5(4) stepper of
+//! `ode_solvers` 0.6 offers one (its DOP853 writes dense output on a fixed
+//! grid only). Both steppers clone their state vectors on every step and
+//! compute the error norm over the whole state internally, so neither the
+//! allocations nor the norm (point 3) can be changed without replacing the
+//! stepper; that is left open.
+//!
 //! Organisation: [`channels`] builds the exact plan (which couplings can
 //! flow, OPE table), [`background`] stores D, [`rhs`] holds the equations
 //! and the stop hook, [`check`] checks (and refines) the quadrature rule of
@@ -244,6 +256,9 @@ pub struct Flow<'s> {
     pub plan: Plan,
     /// Options.
     pub opts: FlowOptions,
+    /// Integrate with the per-channel reference right-hand side
+    /// ([`rhs::FlowRhs::derivative_reference`]); for tests comparing the two.
+    pub reference_rhs: bool,
     layout: Layout,
     /// Phases already named, by sorted plan indices of the pinned set.
     phases: std::sync::Mutex<std::collections::HashMap<Vec<usize>, crate::core::phase::Phase>>,
@@ -294,6 +309,7 @@ impl<'s> Flow<'s> {
             sys,
             plan,
             opts,
+            reference_rhs: false,
             layout,
             phases: Default::default(),
         }
@@ -417,10 +433,44 @@ impl<'s> Flow<'s> {
     /// Flow from a prepared start; `record` keeps the trajectory.
     fn run_from(&self, point: &[f64], start: Start, record: bool) -> Result<FlowResult, Error> {
         let all: &[Channel] = start.channels.as_deref().unwrap_or(&self.plan.channels);
+        let Prepared {
+            mut rhs,
+            included,
+            bare,
+            y0,
+            momenta,
+            ell_k,
+        } = self.prepare(point, all, &start, record)?;
+        let y_start = y0.clone();
+        let mut integrated = integrate(&mut rhs, y0, &ell_k, &self.opts, 0.0);
+        let mut kt_decision = None;
+        if let Some(c) = kt::regime(&rhs, y_start.as_slice(), &ell_k) {
+            (integrated, kt_decision) =
+                kt::decide(&mut rhs, c, y_start.as_slice(), integrated, &self.opts);
+        }
+        let staged = self.stages(&mut rhs, &integrated, &ell_k);
+        let mut result = self.summarise(
+            &rhs, &included, &bare, &y_start, &momenta, &ell_k, integrated,
+        );
+        result.kt = kt_decision;
+        self.attach_stages(&mut result, staged, &included);
+        result.quadrature = start.quadrature;
+        result.momentum_period = self.sys.model.momentum_period_at(point);
+        Ok(result)
+    }
+
+    /// The included channels, the right-hand side and the bare state of a
+    /// flow from `start` (channels `all`: the plan's, or on the rule).
+    fn prepare<'a>(
+        &self,
+        point: &[f64],
+        all: &'a [Channel],
+        start: &Start,
+        record: bool,
+    ) -> Result<Prepared<'a>, Error> {
         let bare = self.bare_couplings(point)?;
         let extra_listed = self.sys.extra_dimensions(point)?;
-        let d0 = &start.d0;
-        let included = self.included(&start.bg, all, d0);
+        let included = self.included(&start.bg, all, &start.d0);
         let channels: Vec<&Channel> = included.iter().map(|&c| &all[c]).collect();
         let extra: Vec<f64> = included
             .iter()
@@ -432,6 +482,28 @@ impl<'s> Flow<'s> {
         rhs.y_strong = self.opts.y_strong;
         rhs.floor = self.opts.floor;
         rhs.record = record;
+        rhs.reference = self.reference_rhs;
+        let y0 = self.bare_state(&mut rhs, &included, &bare, &start.d0);
+        let ell_k = momenta.iter().map(|k| k.and_then(cutoff_scale)).collect();
+        Ok(Prepared {
+            rhs,
+            included,
+            bare,
+            y0,
+            momenta,
+            ell_k,
+        })
+    }
+
+    /// The bare state: amplitudes of the listed channels, then D; channels
+    /// too irrelevant to matter are frozen at zero.
+    fn bare_state(
+        &self,
+        rhs: &mut FlowRhs,
+        included: &[usize],
+        bare: &[(f64, f64)],
+        d0: &[f64],
+    ) -> DVector<f64> {
         let mut y0 = DVector::zeros(rhs.state_len());
         for (i, &c) in included.iter().enumerate() {
             if let Some((y, chi)) = self.plan.term_of(c).map(|t| bare[t]) {
@@ -450,23 +522,32 @@ impl<'s> Flow<'s> {
                 y0[2 * i + 1] = 0.0;
             }
         }
-        let y_start = y0.clone();
-        let ell_k: Vec<Option<f64>> = momenta.iter().map(|k| k.and_then(cutoff_scale)).collect();
-        let mut integrated = integrate(&mut rhs, y0, &ell_k, &self.opts, 0.0);
-        let mut kt_decision = None;
-        if let Some(c) = kt::regime(&rhs, y_start.as_slice(), &ell_k) {
-            (integrated, kt_decision) =
-                kt::decide(&mut rhs, c, y_start.as_slice(), integrated, &self.opts);
+        y0
+    }
+
+    /// The right-hand side at the bare point of `point`'s first flow with
+    /// every included coupling set to a non-zero test amplitude (so every
+    /// null channel feeds back), by the matrix products and by the
+    /// per-channel reference route: (products, reference, number of
+    /// channels; the state holds 2 floats per channel, then D). For the test
+    /// that the two agree (`tests/rhs_products.rs`).
+    pub fn rhs_routes(&self, point: &[f64]) -> Result<(Vec<f64>, Vec<f64>, usize), Error> {
+        let start = self.start(point)?;
+        let all: &[Channel] = start.channels.as_deref().unwrap_or(&self.plan.channels);
+        let prepared = self.prepare(point, all, &start, false)?;
+        let mut y = prepared.y0.as_slice().to_vec();
+        for i in 0..prepared.included.len() {
+            y[2 * i] = 0.05 + 0.01 * (i % 7) as f64;
+            y[2 * i + 1] = if prepared.rhs.channels[i].real_only() {
+                0.0
+            } else {
+                0.02 - 0.005 * (i % 5) as f64
+            };
         }
-        let staged = self.stages(&mut rhs, &integrated, &ell_k);
-        let mut result = self.summarise(
-            &rhs, &included, &bare, &y_start, &momenta, &ell_k, integrated,
-        );
-        result.kt = kt_decision;
-        self.attach_stages(&mut result, staged, &included);
-        result.quadrature = start.quadrature;
-        result.momentum_period = self.sys.model.momentum_period_at(point);
-        Ok(result)
+        let (mut fast, mut reference) = (vec![0.0; y.len()], vec![0.0; y.len()]);
+        prepared.rhs.derivative(&y, &mut fast);
+        prepared.rhs.derivative_reference(&y, &mut reference);
+        Ok((fast, reference, prepared.included.len()))
     }
 
     /// (y, chi) of every listed channel at a point.
@@ -521,6 +602,8 @@ impl<'s> Flow<'s> {
             .collect()
     }
 
+    /// The result of an integration: every channel's start and end, the
+    /// drift of D K D, the winner's runner-up and the terms it suppresses.
     #[allow(clippy::too_many_arguments)]
     fn summarise(
         &self,
@@ -533,59 +616,62 @@ impl<'s> Flow<'s> {
         integrated: Integrated,
     ) -> FlowResult {
         let y_end = integrated.state.as_slice();
-        let nc = included.len();
-        let terms = (0..nc)
+        let terms = (0..included.len())
             .map(|i| {
-                self.channel_result(
-                    rhs,
-                    included,
-                    bare,
-                    y_start,
-                    y_end,
-                    i,
-                    (momenta[i], ell_k[i]),
-                )
+                let cut = (momenta[i], ell_k[i]);
+                self.channel_result(rhs, included, bare, y_start, y_end, i, cut)
             })
             .collect();
-        let drift = match (&rhs.bg, &self.sys.q) {
-            (Background::Fourier { .. }, Some(q)) => rhs.bg.drift(&y_end[2 * nc..], &q.k),
-            _ => rhs.bg.drift(&y_end[2 * nc..], &self.sys.k),
-        };
-        let mut result = FlowResult {
+        let drift = self.end_drift(rhs, y_end);
+        let winner = integrated.winner;
+        let mut result = self.assemble(rhs, included, terms, drift, integrated);
+        if let Some(w) = winner {
+            result.runner_up = runner_up(&result, w, self.opts.y_strong);
+            self.sort_by_winner(&mut result, included, w);
+        }
+        result
+    }
+
+    /// The drift of D K D at the end state (q-space blocks against the cell
+    /// K, or the dense D against K).
+    fn end_drift(&self, rhs: &FlowRhs, y_end: &[f64]) -> f64 {
+        let d = &y_end[2 * rhs.channels.len()..];
+        match (&rhs.bg, &self.sys.q) {
+            (Background::Fourier { .. }, Some(q)) => rhs.bg.drift(d, &q.k),
+            _ => rhs.bg.drift(d, &self.sys.k),
+        }
+    }
+
+    /// The result's fields from the integration, before the winner's
+    /// runner-up and the stages are filled in.
+    fn assemble(
+        &self,
+        rhs: &FlowRhs,
+        included: &[usize],
+        terms: Vec<ChannelResult>,
+        drift: f64,
+        integrated: Integrated,
+    ) -> FlowResult {
+        FlowResult {
             outcome: integrated.outcome,
             winner_index: integrated.winner,
             winner: integrated
                 .winner
                 .map(|w| self.plan.channels[included[w]].name.clone()),
             ell_star: integrated.ell_star,
-            stages: Vec::new(),
-            stages_end: None,
             ell_last: integrated.ell_star,
             gap: integrated.ell_star.map(|l| (-l).exp()),
-            phase: None,
             ell_end: integrated.ell_end,
-            runner_up: None,
             terms,
-            commuting_with_winner: Vec::new(),
-            suppressed: Vec::new(),
             dkd_drift: drift,
-            quadrature: None,
-            flow_quadrature: None,
-            momentum_period: None,
-            kt: None,
             closure_range: self.plan.range,
             plan_notes: self.plan_notes(),
             listed_rows: self.listed_rows(included),
             steps: rhs.steps,
-            competitors_added: Vec::new(),
-            message: integrated.message,
             samples: rhs.samples.clone(),
-        };
-        if let Some(w) = integrated.winner {
-            result.runner_up = runner_up(&result, w, self.opts.y_strong);
-            self.sort_by_winner(&mut result, included, w);
+            ..FlowResult::without_flow(integrated.outcome, String::new())
         }
-        result
+        .with_message(integrated.message)
     }
 
     /// Start and end of channel `i` of a flow (`included[i]` in the plan).
@@ -662,6 +748,11 @@ fn unphysical_result(e: Error) -> Result<FlowResult, Error> {
 }
 
 impl FlowResult {
+    /// The same result with `message`.
+    fn with_message(self, message: Option<String>) -> FlowResult {
+        FlowResult { message, ..self }
+    }
+
     /// A result for a point that could not be flowed.
     pub fn without_flow(outcome: Outcome, message: String) -> FlowResult {
         FlowResult {
@@ -776,6 +867,16 @@ pub const CLOSURE_SLACK: f64 = 1e-9;
 /// (their coupling shrinks by e^-(Delta-2) per unit of ell).
 pub const DECAYED_AT_ONCE: f64 = 40.0;
 
+/// A flow ready to integrate (see `Flow::prepare`).
+struct Prepared<'a> {
+    rhs: FlowRhs<'a>,
+    included: Vec<usize>,
+    bare: Vec<(f64, f64)>,
+    y0: DVector<f64>,
+    momenta: Vec<Option<f64>>,
+    ell_k: Vec<Option<f64>>,
+}
+
 /// What the integration produced.
 struct Integrated {
     outcome: Outcome,
@@ -843,6 +944,7 @@ fn integrate(
         for (c, k) in ell_k.iter().enumerate() {
             rhs.active[c] = !rhs.frozen[c] && k.is_none_or(|l| l > start + 1e-9);
         }
+        rhs.begin_segment();
         record_start(rhs, &y);
         if end <= start {
             continue;

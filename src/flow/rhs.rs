@@ -14,13 +14,22 @@
 //! own translates keeps a real amplitude. Channels past their momentum cut-off ell_k are
 //! inactive: they neither flow nor feed back. Evaluation allocates nothing:
 //! scratch space lives in a `RefCell` sized once.
+//!
+//! Per segment (between momentum cut-offs) the set of active channels is
+//! fixed: [`FlowRhs::begin_segment`] lists the live channels and the OPE
+//! entries among them once, so an evaluation never filters. The D feedback
+//! is formed as matrix products ([`Background::evaluate`]), except for a
+//! dense D with fewer null translates than half its size, where the
+//! rank-one updates are cheaper;
+//! [`FlowRhs::derivative_reference`] keeps the per-channel route as the
+//! reference they are tested against.
 
 use std::cell::RefCell;
 
 use nalgebra::DVector;
 use ode_solvers::System;
 
-use super::background::Background;
+use super::background::{Background, Outer, Work};
 use super::channels::{Channel, OpeEntry};
 use crate::core::relevance::rg_eigenvalue;
 
@@ -82,7 +91,32 @@ pub struct FlowRhs<'a> {
     pub last_ell: f64,
     /// Largest DKD drift seen is measured by the caller; steps counted here.
     pub steps: usize,
-    scratch: RefCell<Vec<f64>>,
+    /// Integrate with [`FlowRhs::derivative_reference`] (tests only).
+    pub reference: bool,
+    /// Precomputed outer products of the null channels.
+    outer: Vec<Option<Outer>>,
+    /// Active channels of the current segment.
+    live: Vec<usize>,
+    /// OPE entries among active channels of the current segment.
+    live_ope: Vec<OpeEntry>,
+    /// Channels whose amplitude is kept real.
+    real: Vec<usize>,
+    /// Dense D with few translates feeding back: the rank-one updates cost
+    /// less than the products (see [`FlowRhs::new`]).
+    rank_one: bool,
+    scratch: RefCell<Scratch>,
+}
+
+/// Scratch space of one evaluation.
+struct Scratch {
+    /// |y_c|^2 of the channels that feed back, else 0.
+    weight: Vec<f64>,
+    /// Bosonic dimensions.
+    dims: Vec<f64>,
+    /// Matrix products.
+    work: Work,
+    /// The reference route's vector.
+    reference: Vec<f64>,
 }
 
 impl<'a> FlowRhs<'a> {
@@ -93,10 +127,30 @@ impl<'a> FlowRhs<'a> {
         extra: Vec<f64>,
         ope: Vec<OpeEntry>,
     ) -> Self {
-        let scratch = RefCell::new(vec![0.0; bg.scratch_len()]);
         let n = channels.len();
-        let null = channels.iter().map(|c| c.null()).collect();
-        FlowRhs {
+        let scratch = RefCell::new(Scratch {
+            weight: vec![0.0; n],
+            dims: vec![0.0; n],
+            work: bg.work(),
+            reference: vec![0.0; bg.scratch_len()],
+        });
+        let null: Vec<bool> = channels.iter().map(|c| c.null()).collect();
+        let outer = channels
+            .iter()
+            .map(|c| c.null().then(|| bg.outer(c)))
+            .collect();
+        let real = (0..n).filter(|&c| channels[c].real_only()).collect();
+        // A rank-one update costs ~n^2 per translate, the two products 2 n^3
+        // (at several times the speed per operation): with fewer null
+        // translates than n/2 (explicit models with a few terms) the
+        // per-channel route is the faster one.
+        let translates: usize = channels
+            .iter()
+            .filter(|c| c.null())
+            .map(|c| c.l_sparse.len())
+            .sum();
+        let rank_one = matches!(bg, Background::Dense { n } if 2 * translates < n);
+        let mut rhs = FlowRhs {
             bg,
             channels,
             extra,
@@ -111,8 +165,29 @@ impl<'a> FlowRhs<'a> {
             stop: None,
             last_ell: 0.0,
             steps: 0,
+            reference: false,
+            outer,
+            live: Vec::new(),
+            live_ope: Vec::new(),
+            real,
+            rank_one,
             scratch,
-        }
+        };
+        rhs.begin_segment();
+        rhs
+    }
+
+    /// List the active channels and the OPE entries among them; call after
+    /// changing `active`, before integrating.
+    pub fn begin_segment(&mut self) {
+        let active = &self.active;
+        self.live = (0..self.channels.len()).filter(|&c| active[c]).collect();
+        self.live_ope = self
+            .ope
+            .iter()
+            .filter(|e| active[e.target] && active[e.a] && active[e.b])
+            .copied()
+            .collect();
     }
 
     /// Length of the state vector.
@@ -163,33 +238,85 @@ impl<'a> FlowRhs<'a> {
     }
 }
 
-impl System<f64, DVector<f64>> for &mut FlowRhs<'_> {
-    fn system(&self, _ell: f64, y: &DVector<f64>, dy: &mut DVector<f64>) {
-        let rhs: &FlowRhs = self;
-        let nc = rhs.channels.len();
-        let (w, d) = y.as_slice().split_at(2 * nc);
-        let (dw, dd) = dy.as_mut_slice().split_at_mut(2 * nc);
+impl FlowRhs<'_> {
+    /// The right-hand side at state `y` into `dy` (the D feedback as matrix
+    /// products).
+    pub fn derivative(&self, y: &[f64], dy: &mut [f64]) {
+        let nc = self.channels.len();
+        let (w, d) = y.split_at(2 * nc);
+        let (dw, dd) = dy.split_at_mut(2 * nc);
         dw.fill(0.0);
         dd.fill(0.0);
-        let mut scratch = rhs.scratch.borrow_mut();
-        for c in (0..nc).filter(|&c| rhs.active[c]) {
-            let weight = if rhs.null[c] {
+        let mut guard = self.scratch.borrow_mut();
+        let sc = &mut *guard;
+        for &c in &self.live {
+            sc.weight[c] = if self.null[c] {
                 4.0 * (w[2 * c] * w[2 * c] + w[2 * c + 1] * w[2 * c + 1])
             } else {
                 0.0
             };
-            let delta = rhs
+        }
+        let (channels, live, outer) = (&self.channels[..], &self.live[..], &self.outer[..]);
+        let (weight, dims) = (&sc.weight[..], &mut sc.dims[..]);
+        if self.rank_one {
+            for &c in live {
+                dims[c] = self.bg.dimension_and_feedback(
+                    d,
+                    channels[c],
+                    weight[c],
+                    dd,
+                    &mut sc.reference,
+                );
+            }
+        } else {
+            self.bg
+                .evaluate(d, channels, live, outer, weight, dims, dd, &mut sc.work);
+        }
+        for &c in &self.live {
+            let rate = rg_eigenvalue(sc.dims[c] + self.extra[c]);
+            dw[2 * c] += rate * w[2 * c];
+            dw[2 * c + 1] += rate * w[2 * c + 1];
+        }
+        self.ope_terms(w, dw, &self.live_ope);
+    }
+
+    /// The right-hand side by the per-channel route (one rank-one update per
+    /// channel and translate, filtering the OPE table on every call): the
+    /// reference [`FlowRhs::derivative`] is tested against.
+    pub fn derivative_reference(&self, y: &[f64], dy: &mut [f64]) {
+        let nc = self.channels.len();
+        let (w, d) = y.split_at(2 * nc);
+        let (dw, dd) = dy.split_at_mut(2 * nc);
+        dw.fill(0.0);
+        dd.fill(0.0);
+        let scratch = &mut self.scratch.borrow_mut().reference;
+        for c in (0..nc).filter(|&c| self.active[c]) {
+            let weight = if self.null[c] {
+                4.0 * (w[2 * c] * w[2 * c] + w[2 * c + 1] * w[2 * c + 1])
+            } else {
+                0.0
+            };
+            let delta = self
                 .bg
-                .dimension_and_feedback(d, rhs.channels[c], weight, dd, &mut scratch)
-                + rhs.extra[c];
+                .dimension_and_feedback(d, self.channels[c], weight, dd, scratch)
+                + self.extra[c];
             let rate = rg_eigenvalue(delta);
             dw[2 * c] += rate * w[2 * c];
             dw[2 * c + 1] += rate * w[2 * c + 1];
         }
-        for e in &rhs.ope {
-            if !(rhs.active[e.target] && rhs.active[e.a] && rhs.active[e.b]) {
-                continue;
-            }
+        let ope: Vec<OpeEntry> = self
+            .ope
+            .iter()
+            .filter(|e| self.active[e.target] && self.active[e.a] && self.active[e.b])
+            .copied()
+            .collect();
+        self.ope_terms(w, dw, &ope);
+    }
+
+    /// The OPE terms of `entries` (all among active channels), then the
+    /// real-only channels' imaginary parts set to zero.
+    fn ope_terms(&self, w: &[f64], dw: &mut [f64], entries: &[OpeEntry]) {
+        for e in entries {
             let (ar, ai) = (w[2 * e.a], w[2 * e.a + 1]);
             let bi = if e.b_conj {
                 -w[2 * e.b + 1]
@@ -202,8 +329,18 @@ impl System<f64, DVector<f64>> for &mut FlowRhs<'_> {
             dw[2 * e.target] -= 0.5 * e.weight * pr;
             dw[2 * e.target + 1] -= 0.5 * e.weight * pi;
         }
-        for c in (0..nc).filter(|&c| rhs.channels[c].real_only()) {
+        for &c in &self.real {
             dw[2 * c + 1] = 0.0;
+        }
+    }
+}
+
+impl System<f64, DVector<f64>> for &mut FlowRhs<'_> {
+    fn system(&self, _ell: f64, y: &DVector<f64>, dy: &mut DVector<f64>) {
+        if self.reference {
+            self.derivative_reference(y.as_slice(), dy.as_mut_slice());
+        } else {
+            self.derivative(y.as_slice(), dy.as_mut_slice());
         }
     }
 

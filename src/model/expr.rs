@@ -80,6 +80,9 @@ pub enum ExprError {
     /// A name that is neither a parameter nor a known constant; with its
     /// byte position in the text.
     UnknownName { name: String, position: usize },
+    /// A name called as a function (`name(...)`) that is not one of
+    /// [`FUNCTIONS`]; with its byte position in the text.
+    UnknownFunction { name: String, position: usize },
 }
 
 impl std::fmt::Display for ExprError {
@@ -90,6 +93,12 @@ impl std::fmt::Display for ExprError {
                 f,
                 "unknown parameter `{name}` at position {} (declare it under [params])",
                 position + 1
+            ),
+            ExprError::UnknownFunction { name, position } => write!(
+                f,
+                "unknown function `{name}` at position {} (known functions: {})",
+                position + 1,
+                FUNCTIONS.join(", ")
             ),
         }
     }
@@ -102,6 +111,13 @@ pub const RESERVED_NAMES: &[&str] = &[
     "pi", "PI", "E", "e", "TAU", "abs", "acos", "acosh", "asin", "asinh", "atan", "atanh", "cbrt",
     "ceil", "cos", "cosh", "exp", "floor", "fract", "ln", "log", "log10", "log2", "round",
     "signum", "sin", "sinh", "sqrt", "tan", "tanh", "trunc",
+];
+
+/// The functions of expressions (the [`RESERVED_NAMES`] that are called).
+pub const FUNCTIONS: &[&str] = &[
+    "abs", "acos", "acosh", "asin", "asinh", "atan", "atanh", "cbrt", "ceil", "cos", "cosh", "exp",
+    "floor", "fract", "ln", "log", "log10", "log2", "round", "signum", "sin", "sinh", "sqrt",
+    "tan", "tanh", "trunc",
 ];
 
 /// Largest number of distinct parameters one expression may use; evaluation
@@ -135,7 +151,9 @@ impl Scalar {
             return Ok(Scalar::Const(x));
         }
         check_characters(trimmed)?;
-        let expr = FlatEx::<f64>::parse(trimmed).map_err(|e| ExprError::Syntax(e.to_string()))?;
+        check_functions(trimmed)?;
+        let plain = expand_exponents(trimmed)?;
+        let expr = FlatEx::<f64>::parse(&plain).map_err(|e| ExprError::Syntax(e.to_string()))?;
         let mut slots = Vec::with_capacity(expr.var_names().len());
         for name in expr.var_names() {
             match params.index(name) {
@@ -212,6 +230,151 @@ fn check_characters(text: &str) -> Result<(), ExprError> {
     }
 }
 
+/// Identifiers of `text` with their byte positions (a run of letters,
+/// digits and `_` that starts with a letter or `_`; digits that start a
+/// run belong to a number).
+fn identifiers(text: &str) -> Vec<(usize, &str)> {
+    let is_ident = |c: char| c.is_alphanumeric() || c == '_';
+    let mut found = Vec::new();
+    let mut chars = text.char_indices().peekable();
+    while let Some((i, c)) = chars.next() {
+        if !is_ident(c) {
+            continue;
+        }
+        let mut end = i + c.len_utf8();
+        while let Some(&(j, d)) = chars.peek() {
+            if !is_ident(d) {
+                break;
+            }
+            end = j + d.len_utf8();
+            chars.next();
+        }
+        if !c.is_ascii_digit() {
+            found.push((i, &text[i..end]));
+        }
+    }
+    found
+}
+
+/// Every name followed by `(` must be one of [`FUNCTIONS`] (the parser's
+/// own message for another one names its internals).
+fn check_functions(text: &str) -> Result<(), ExprError> {
+    for (i, name) in identifiers(text) {
+        let called = text[i + name.len()..].trim_start().starts_with('(');
+        if called && !FUNCTIONS.contains(&name) {
+            return Err(ExprError::UnknownFunction {
+                name: name.to_string(),
+                position: i,
+            });
+        }
+    }
+    Ok(())
+}
+
+/// Largest decimal exponent written out by [`expand_exponents`]; beyond it
+/// every double is 0 or infinite.
+const MAX_EXPONENT: i64 = 400;
+
+/// Rewrite numbers in scientific notation (`6.10352e-05`, `1E3`) as plain
+/// decimals (`0.0000610352`, `1000`), which the expression parser reads:
+/// the decimal text is the same number, so it parses to the same double.
+fn expand_exponents(text: &str) -> Result<String, ExprError> {
+    let b = text.as_bytes();
+    let mut out = String::with_capacity(text.len());
+    let mut i = 0;
+    while i < b.len() {
+        let starts_number = (b[i].is_ascii_digit()
+            || (b[i] == b'.' && b.get(i + 1).is_some_and(u8::is_ascii_digit)))
+            && (i == 0
+                || !(b[i - 1].is_ascii_alphanumeric() || b[i - 1] == b'_' || b[i - 1] == b'.'));
+        if !starts_number {
+            let c = text[i..].chars().next().unwrap_or(' ');
+            out.push(c);
+            i += c.len_utf8();
+            continue;
+        }
+        let (number, end) = read_number(text, i)?;
+        out.push_str(&number);
+        i = end;
+    }
+    Ok(out)
+}
+
+/// The number starting at byte `start`: its text as a plain decimal and the
+/// byte after it.
+fn read_number(text: &str, start: usize) -> Result<(String, usize), ExprError> {
+    let b = text.as_bytes();
+    let digits_from = |mut j: usize| {
+        while j < b.len() && b[j].is_ascii_digit() {
+            j += 1;
+        }
+        j
+    };
+    let int_end = digits_from(start);
+    let frac_end = if b.get(int_end) == Some(&b'.') {
+        digits_from(int_end + 1)
+    } else {
+        int_end
+    };
+    let mantissa_end = frac_end;
+    let mut j = mantissa_end;
+    if !matches!(b.get(j), Some(b'e' | b'E')) {
+        return Ok((text[start..mantissa_end].to_string(), mantissa_end));
+    }
+    j += 1;
+    if matches!(b.get(j), Some(b'+' | b'-')) {
+        j += 1;
+    }
+    let exp_end = digits_from(j);
+    let ident_after = b
+        .get(exp_end)
+        .is_some_and(|c| c.is_ascii_alphanumeric() || *c == b'_');
+    if exp_end == j || ident_after {
+        // Not an exponent (`2e` is 2 times Euler's e): leave it to the parser.
+        return Ok((text[start..mantissa_end].to_string(), mantissa_end));
+    }
+    let exponent: i64 = text[mantissa_end + 1..exp_end]
+        .parse()
+        .ok()
+        .filter(|e: &i64| e.abs() <= MAX_EXPONENT)
+        .ok_or_else(|| {
+            ExprError::Syntax(format!(
+                "the exponent of `{}` is out of range (at most {MAX_EXPONENT} in magnitude)",
+                &text[start..exp_end]
+            ))
+        })?;
+    let int = &text[start..int_end];
+    let frac = if frac_end > int_end {
+        &text[int_end + 1..frac_end]
+    } else {
+        ""
+    };
+    Ok((shift_point(int, frac, exponent), exp_end))
+}
+
+/// The decimal `int.frac` times 10^exponent, written without an exponent.
+fn shift_point(int: &str, frac: &str, exponent: i64) -> String {
+    let digits = format!("{int}{frac}");
+    let point = int.len() as i64 + exponent;
+    let text = if point <= 0 {
+        format!("0.{}{digits}", "0".repeat((-point) as usize))
+    } else if point as usize >= digits.len() {
+        format!("{digits}{}", "0".repeat(point as usize - digits.len()))
+    } else {
+        format!(
+            "{}.{}",
+            &digits[..point as usize],
+            &digits[point as usize..]
+        )
+    };
+    let trimmed = text.trim_start_matches('0');
+    if trimmed.is_empty() || trimmed.starts_with('.') {
+        format!("0{trimmed}")
+    } else {
+        trimmed.to_string()
+    }
+}
+
 /// Byte position of `name` as a whole identifier in `text`.
 fn find_identifier(text: &str, name: &str) -> Option<usize> {
     let is_ident = |c: char| c.is_alphanumeric() || c == '_';
@@ -263,6 +426,50 @@ mod tests {
                 position: 4
             }
         );
+    }
+
+    #[test]
+    fn scientific_notation_is_the_same_number() {
+        let p = params();
+        let point = [0.5, 0.3]; // sorted: g, lambda
+        for (text, want) in [
+            ("g*6.10352e-05", 0.5 * 6.10352e-05),
+            ("g*1E3", 0.5 * 1e3),
+            ("lambda + 2.5e+2", 0.3 + 2.5e2),
+            ("g * .5e1", 0.5 * 5.0),
+            ("g*12e-1", 0.5 * 1.2),
+            ("g*1e-320", 0.5 * 1e-320),
+        ] {
+            let got = Scalar::compile(text, &p).unwrap().eval(&point);
+            assert_eq!(got, want, "{text}");
+        }
+        assert_eq!(shift_point("6", "10352", -5), "0.0000610352");
+        assert_eq!(shift_point("12", "", 3), "12000");
+        assert_eq!(shift_point("0", "5", 1), "5");
+        assert_eq!(shift_point("1", "25", 1), "12.5");
+        // `2e` alone is 2 times Euler's number, as before.
+        let e = Scalar::compile("2e", &p).map(|s| s.eval(&point));
+        assert!(e.map_or(true, |x| (x - 2.0 * std::f64::consts::E).abs() < 1e-12));
+        assert!(Scalar::compile("g*1e999", &p).is_err());
+    }
+
+    #[test]
+    fn unknown_functions_are_named_with_the_known_ones() {
+        let err = Scalar::compile("1 + foo(g)", &params()).unwrap_err();
+        assert_eq!(
+            err,
+            ExprError::UnknownFunction {
+                name: "foo".into(),
+                position: 4
+            }
+        );
+        let text = err.to_string();
+        assert!(
+            text.contains("unknown function `foo` at position 5"),
+            "{text}"
+        );
+        assert!(text.contains("sqrt"), "{text}");
+        assert!(Scalar::compile("sqrt (g) + cos(lambda)", &params()).is_ok());
     }
 
     #[test]

@@ -38,6 +38,43 @@ pub const MAX_FIELDS: usize = 2048;
 /// float (below 2^53), which the flow and the search rely on.
 pub const MAX_ENTRY: i64 = 1 << 20;
 
+/// Largest model file read, in bytes. An explicit model at [`MAX_FIELDS`]
+/// written out in full (K and V, 2048 x 2048 entries each) takes about
+/// 30 MB; an endless stream (`/dev/zero`) is cut off here instead of being
+/// read until memory runs out.
+pub const MAX_MODEL_BYTES: u64 = 64 << 20;
+
+/// The text of a model from any reader (a file, standard input), at most
+/// [`MAX_MODEL_BYTES`] long and UTF-8; `file` names it in messages.
+pub fn read_text(reader: impl std::io::Read, file: &str) -> Result<String, InputError> {
+    use std::io::Read;
+    let mut bytes = Vec::new();
+    reader
+        .take(MAX_MODEL_BYTES + 1)
+        .read_to_end(&mut bytes)
+        .map_err(|e| InputError::new(file, "", format!("cannot read the model file: {e}")))?;
+    if bytes.len() as u64 > MAX_MODEL_BYTES {
+        return Err(InputError::new(
+            file,
+            "",
+            format!(
+                "the model file is larger than {} MiB (the limit; a model at the largest size, {MAX_FIELDS} fields, takes about 30 MB): is it the right file?",
+                MAX_MODEL_BYTES >> 20
+            ),
+        ));
+    }
+    String::from_utf8(bytes).map_err(|e| {
+        InputError::new(
+            file,
+            "",
+            format!(
+                "the model file is not UTF-8 text (invalid byte at offset {})",
+                e.utf8_error().valid_up_to()
+            ),
+        )
+    })
+}
+
 /// How the fields are organised.
 #[derive(Debug, Clone, PartialEq)]
 pub enum Structure {
@@ -192,9 +229,9 @@ impl Model {
     /// Read and validate a model file.
     pub fn load(path: &Path) -> Result<Model, InputError> {
         let file = path.display().to_string();
-        let text = std::fs::read_to_string(path)
+        let opened = std::fs::File::open(path)
             .map_err(|e| InputError::new(&file, "", format!("cannot read the model file: {e}")))?;
-        Model::parse(&text, &file)
+        Model::parse(&read_text(opened, &file)?, &file)
     }
 
     /// Parse and validate model text; `file` names it in messages.
@@ -248,7 +285,14 @@ impl Model {
         origin: &str,
     ) -> Result<Vec<f64>, InputError> {
         let mut point = self.params.defaults().to_vec();
-        for (name, value) in overrides {
+        for (i, (name, value)) in overrides.iter().enumerate() {
+            if let Some((_, first)) = overrides[..i].iter().find(|(n, _)| n == name) {
+                return Err(InputError::new(
+                    "command line",
+                    origin,
+                    format!("`{name}` is given twice ({origin} {name}={first} and {origin} {name}={value}); give each parameter once"),
+                ));
+            }
             let slot = self.params.index(name).ok_or_else(|| {
                 let known = if self.params.is_empty() {
                     "the model has no parameters".to_string()
@@ -366,43 +410,8 @@ impl Model {
                 checks.push((format!("{base}.{name}[{i}]"), s));
             }
         }
-        // The last wire's momentum, base + (W - 1) shift, must stay finite
-        // too (W: the array's wires, or the stand-in ring of an infinite one).
-        if let (Some(base), Some(shift), Structure::Array { wires, .. }) =
-            (&self.momentum, &self.momentum_per_wire, &self.structure)
-        {
-            let w = match wires {
-                Wires::Finite(w) => *w,
-                Wires::Infinite => self.stand_in_wires(),
-            };
-            for (c, (b, s)) in base.iter().zip(shift).enumerate() {
-                let last = b.eval(point) + (w.saturating_sub(1)) as f64 * s.eval(point);
-                if b.eval(point).is_finite() && s.eval(point).is_finite() && !last.is_finite() {
-                    return Err(InputError::new(
-                        &self.file,
-                        format!("array.momentum_per_wire[{c}]"),
-                        format!(
-                            "makes the momentum of wire {} non-finite ({last}) at {}",
-                            w.saturating_sub(1),
-                            self.params.describe(point)
-                        ),
-                    ));
-                }
-            }
-        }
-        if let Some(g) = &self.momentum_period {
-            let x = g.eval(point);
-            if !(x.is_finite() && x > 0.0) {
-                return Err(InputError::new(
-                    &self.file,
-                    format!("{base}.momentum_period"),
-                    format!(
-                        "must be a finite number > 0 (the reciprocal lattice vector G; momenta are conserved modulo G), found {x} at {}",
-                        self.params.describe(point)
-                    ),
-                ));
-            }
-        }
+        self.check_last_momentum(point)?;
+        self.check_period(point, base)?;
         for t in &self.terms {
             checks.push((format!("term \"{}\".coupling", t.name), &t.coupling));
             checks.push((format!("term \"{}\".phase", t.name), &t.phase));
@@ -421,6 +430,55 @@ impl Model {
             }
         }
         Ok(())
+    }
+
+    /// The last wire's momentum, base + (W - 1) shift, must stay finite
+    /// too (W: the array's wires, or the stand-in ring of an infinite one).
+    fn check_last_momentum(&self, point: &[f64]) -> Result<(), InputError> {
+        let (Some(base), Some(shift), Structure::Array { wires, .. }) =
+            (&self.momentum, &self.momentum_per_wire, &self.structure)
+        else {
+            return Ok(());
+        };
+        let w = match wires {
+            Wires::Finite(w) => *w,
+            Wires::Infinite => self.stand_in_wires(),
+        };
+        for (c, (b, s)) in base.iter().zip(shift).enumerate() {
+            let last = b.eval(point) + (w.saturating_sub(1)) as f64 * s.eval(point);
+            if b.eval(point).is_finite() && s.eval(point).is_finite() && !last.is_finite() {
+                return Err(InputError::new(
+                    &self.file,
+                    format!("array.momentum_per_wire[{c}]"),
+                    format!(
+                        "makes the momentum of wire {} non-finite ({last}) at {}",
+                        w.saturating_sub(1),
+                        self.params.describe(point)
+                    ),
+                ));
+            }
+        }
+        Ok(())
+    }
+
+    /// `momentum_period` (of `[fields]` or `[array]`: `base`) must be
+    /// finite and positive at the point.
+    fn check_period(&self, point: &[f64], base: &str) -> Result<(), InputError> {
+        let Some(g) = &self.momentum_period else {
+            return Ok(());
+        };
+        let x = g.eval(point);
+        if x.is_finite() && x > 0.0 {
+            return Ok(());
+        }
+        Err(InputError::new(
+            &self.file,
+            format!("{base}.momentum_period"),
+            format!(
+                "must be a finite number > 0 (the reciprocal lattice vector G; momenta are conserved modulo G), found {x} at {}",
+                self.params.describe(point)
+            ),
+        ))
     }
 
     /// The reciprocal lattice vector G at a point, when the model gives
@@ -577,22 +635,7 @@ fn read_field_wires(
 
 fn read_array(ctx: &Ctx, a: RawArray, params: ParamSet) -> Result<Model, InputError> {
     let wires = read_wires(ctx, &a.wires)?;
-    if wires == Wires::Infinite && a.boundary.as_deref() == Some("open") {
-        return Err(ctx.err(
-            "array.boundary",
-            "an infinite array has no ends: leave out `boundary` (or write \"periodic\")",
-        ));
-    }
-    let boundary = match a.boundary.as_deref() {
-        None | Some("periodic") => Boundary::Periodic,
-        Some("open") => Boundary::Open,
-        Some(other) => {
-            return Err(ctx.err(
-                "array.boundary",
-                format!("expected \"periodic\" or \"open\", found \"{other}\""),
-            ))
-        }
-    };
+    let boundary = read_boundary(ctx, wires, a.boundary.as_deref())?;
     let k = values::int_matrix(ctx, &a.k, "array.K")?;
     values::check_symmetric_int(ctx, &k, "array.K")?;
     check_entries(ctx, &k, "array.K")?;
@@ -606,19 +649,7 @@ fn read_array(ctx: &Ctx, a: RawArray, params: ParamSet) -> Result<Model, InputEr
         "one per field of the wire cell",
     )?;
     let v_blocks = read_blocks(ctx, &a.v, &params, n)?;
-    let vec_opt = |v: &Option<toml::Value>, key: &str| {
-        v.as_ref()
-            .map(|m| values::scalar_vector(ctx, m, key, &params, n))
-            .transpose()
-    };
-    let momentum = vec_opt(&a.momentum, "array.momentum")?;
-    let momentum_per_wire = vec_opt(&a.momentum_per_wire, "array.momentum_per_wire")?;
-    if momentum_per_wire.is_some() && momentum.is_none() {
-        return Err(ctx.err(
-            "array.momentum_per_wire",
-            "needs array.momentum (the momenta of wire 0) too",
-        ));
-    }
+    let (momentum, momentum_per_wire) = read_array_momenta(ctx, &a, &params, n)?;
     let momentum_period = read_period(
         ctx,
         &a.momentum_period,
@@ -654,6 +685,49 @@ fn read_array(ctx: &Ctx, a: RawArray, params: ParamSet) -> Result<Model, InputEr
         symmetries: Vec::new(),
         competitors: CompetitorDefaults::default(),
     })
+}
+
+/// `array.momentum` and `array.momentum_per_wire` (which needs the first).
+#[allow(clippy::type_complexity)]
+fn read_array_momenta(
+    ctx: &Ctx,
+    a: &RawArray,
+    params: &ParamSet,
+    n: usize,
+) -> Result<(Option<Vec<Scalar>>, Option<Vec<Scalar>>), InputError> {
+    let vec_opt = |v: &Option<toml::Value>, key: &str| {
+        v.as_ref()
+            .map(|m| values::scalar_vector(ctx, m, key, params, n))
+            .transpose()
+    };
+    let momentum = vec_opt(&a.momentum, "array.momentum")?;
+    let momentum_per_wire = vec_opt(&a.momentum_per_wire, "array.momentum_per_wire")?;
+    if momentum_per_wire.is_some() && momentum.is_none() {
+        return Err(ctx.err(
+            "array.momentum_per_wire",
+            "needs array.momentum (the momenta of wire 0) too",
+        ));
+    }
+    Ok((momentum, momentum_per_wire))
+}
+
+/// `array.boundary`: periodic (the default) or open; an infinite array
+/// has no ends.
+fn read_boundary(ctx: &Ctx, wires: Wires, text: Option<&str>) -> Result<Boundary, InputError> {
+    if wires == Wires::Infinite && text == Some("open") {
+        return Err(ctx.err(
+            "array.boundary",
+            "an infinite array has no ends: leave out `boundary` (or write \"periodic\")",
+        ));
+    }
+    match text {
+        None | Some("periodic") => Ok(Boundary::Periodic),
+        Some("open") => Ok(Boundary::Open),
+        Some(other) => Err(ctx.err(
+            "array.boundary",
+            format!("expected \"periodic\" or \"open\", found \"{other}\""),
+        )),
+    }
 }
 
 /// `momentum_period` of `[fields]` or `[array]` (`base`): an expression for
@@ -830,10 +904,11 @@ fn read_terms(ctx: &Ctx, model: &Model, raw: &[RawTerm]) -> Result<Vec<TermSpec>
     let mut names = BTreeSet::new();
     let mut terms = Vec::with_capacity(raw.len());
     for t in raw {
-        let key = format!("term \"{}\"", t.name);
+        let key = format!("term \"{}\"", t.name.escape_debug());
         if t.name.trim().is_empty() {
             return Err(ctx.err("term.name", "a term needs a non-empty name"));
         }
+        check_term_name(ctx, &t.name, &key)?;
         if !names.insert(t.name.clone()) {
             return Err(ctx.err(&key, "duplicate term name (names must be unique)"));
         }
@@ -841,6 +916,82 @@ fn read_terms(ctx: &Ctx, model: &Model, raw: &[RawTerm]) -> Result<Vec<TermSpec>
     }
     tie_groups(ctx, raw, &mut terms)?;
     Ok(terms)
+}
+
+/// The entries of a term's parts, and of its lattice vector l = K m when
+/// it is given by particle content m, within [`MAX_ENTRY`] (docs/physics.md
+/// section 1: l = K m); and not all zero.
+fn check_parts(
+    ctx: &Ctx,
+    model: &Model,
+    content: Content,
+    parts: &[(usize, Vec<i64>)],
+    vkey: &str,
+    table: bool,
+) -> Result<(), InputError> {
+    for (off, v) in parts {
+        let at = if table {
+            format!("{vkey}.{off}")
+        } else {
+            vkey.to_string()
+        };
+        check_entries(ctx, std::slice::from_ref(v), &at)?;
+        if content == Content::Particles {
+            check_k_times(ctx, &model.cell_k, v, &at)?;
+        }
+    }
+    if parts.iter().all(|(_, v)| v.iter().all(|x| *x == 0)) {
+        return Err(ctx.err(vkey, "the zero vector is not a cosine term"));
+    }
+    Ok(())
+}
+
+/// Every entry of l = K m within [`MAX_ENTRY`] (K and m are, but their
+/// product can reach 2^40 x fields).
+fn check_k_times(ctx: &Ctx, k: &[Vec<i64>], m: &[i64], key: &str) -> Result<(), InputError> {
+    for (i, row) in k.iter().enumerate() {
+        let l: i128 = row
+            .iter()
+            .zip(m)
+            .map(|(a, b)| *a as i128 * *b as i128)
+            .sum();
+        if l.unsigned_abs() > MAX_ENTRY as u128 {
+            return Err(ctx.err(
+                key,
+                format!(
+                    "its lattice vector l = K m has entry l[{i}] = {l}; entries must be at most {MAX_ENTRY} in magnitude"
+                ),
+            ));
+        }
+    }
+    Ok(())
+}
+
+/// Term names become CSV column names and cells (`points.csv`, shard
+/// files, `--format csv`), read back line by line: they may not hold a
+/// comma, a double quote, a control character (newline, tab) or
+/// surrounding spaces (docs/model-format.md).
+fn check_term_name(ctx: &Ctx, name: &str, key: &str) -> Result<(), InputError> {
+    let bad = name
+        .chars()
+        .find(|c| *c == ',' || *c == '"' || c.is_control());
+    if let Some(c) = bad {
+        return Err(ctx.err(
+            key,
+            format!(
+                "a term name may not contain {} (names are CSV columns; use letters, digits, spaces and other punctuation)",
+                match c {
+                    ',' => "a comma".to_string(),
+                    '"' => "a double quote".to_string(),
+                    c => format!("the control character {:?}", c),
+                }
+            ),
+        ));
+    }
+    if name.trim() != name {
+        return Err(ctx.err(key, "a term name may not start or end with a space"));
+    }
+    Ok(())
 }
 
 fn read_term(ctx: &Ctx, model: &Model, t: &RawTerm, key: &str) -> Result<TermSpec, InputError> {
@@ -873,7 +1024,8 @@ fn read_term(ctx: &Ctx, model: &Model, t: &RawTerm, key: &str) -> Result<TermSpe
 type Parts = (Content, Vec<(usize, Vec<i64>)>, String);
 
 /// `particles` or `vector`: how to read them, the parts per wire offset
-/// (entries within [`MAX_ENTRY`], not all zero) and the key they came from.
+/// (entries within [`MAX_ENTRY`], also those of l = K m; not all zero) and
+/// the key they came from.
 fn read_parts(ctx: &Ctx, model: &Model, t: &RawTerm, key: &str) -> Result<Parts, InputError> {
     let (content, value, sub) = match (&t.particles, &t.vector) {
         (Some(p), None) => (Content::Particles, p, "particles"),
@@ -897,17 +1049,7 @@ fn read_parts(ctx: &Ctx, model: &Model, t: &RawTerm, key: &str) -> Result<Parts,
         )],
         Structure::Array { .. } => values::offset_vectors(ctx, value, &vkey, n)?,
     };
-    for (off, v) in &parts {
-        let at = if value.is_table() {
-            format!("{vkey}.{off}")
-        } else {
-            vkey.clone()
-        };
-        check_entries(ctx, std::slice::from_ref(v), &at)?;
-    }
-    if parts.iter().all(|(_, v)| v.iter().all(|x| *x == 0)) {
-        return Err(ctx.err(&vkey, "the zero vector is not a cosine term"));
-    }
+    check_parts(ctx, model, content, &parts, &vkey, value.is_table())?;
     Ok((content, parts, vkey))
 }
 

@@ -9,6 +9,7 @@
 //! place, so a failure never leaves a half-written output.
 
 pub mod csv;
+pub mod file;
 pub mod latex;
 pub mod markdown;
 pub mod text;
@@ -142,14 +143,10 @@ pub fn to_json<T: Serialize>(value: &T) -> Result<String, Error> {
 }
 
 /// Write bytes to `path` atomically: a temporary file beside it, then a
-/// rename.
+/// rename; links are followed and special files written in place (see
+/// [`file`]).
 pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<(), Error> {
-    let tmp = temp_path(path);
-    std::fs::write(&tmp, bytes).map_err(|e| Error::io(path, e))?;
-    std::fs::rename(&tmp, path).map_err(|e| {
-        let _ = std::fs::remove_file(&tmp);
-        Error::io(path, e)
-    })
+    file::write_output(path, bytes)
 }
 
 /// Check an output file given by a flag before anything is computed: not a
@@ -200,13 +197,15 @@ pub fn check_output_dir(dir: &Path, flag: &str) -> Result<(), crate::error::Inpu
     Ok(())
 }
 
-/// The temporary name used by [`write_atomic`] for `path`.
+/// The temporary name used by [`write_atomic`] for `path`:
+/// `.NAME.PID.partial` beside it (the process id keeps two runs apart; a
+/// scan removes the ones a killed run left in its folder).
 pub fn temp_path(path: &Path) -> std::path::PathBuf {
     let name = path
         .file_name()
         .map(|n| n.to_string_lossy().to_string())
         .unwrap_or_default();
-    path.with_file_name(format!(".{name}.partial"))
+    path.with_file_name(format!(".{name}.{}.partial", std::process::id()))
 }
 
 #[cfg(test)]

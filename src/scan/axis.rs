@@ -61,7 +61,7 @@ impl Axis {
         axis.validate().map(|_| axis)
     }
 
-    /// Check n >= 2, min < max (linear) and positive bounds (log).
+    /// Check n >= 2, min < max and positive bounds (log).
     pub fn validate(&self) -> Result<(), String> {
         if self.name.is_empty() {
             return Err("the axis needs a parameter name".into());
@@ -72,17 +72,19 @@ impl Axis {
                 self.name, self.n
             ));
         }
-        if self.log {
-            if self.min <= 0.0 || self.max <= 0.0 {
-                return Err(format!(
-                    "log spacing needs positive bounds, found {}:{} on axis `{}`",
-                    self.min, self.max, self.name
-                ));
-            }
-        } else if self.min >= self.max {
+        if self.log && (self.min <= 0.0 || self.max <= 0.0) {
             return Err(format!(
-                "MIN must be below MAX with linear spacing, found {}:{} on axis `{}`",
+                "log spacing needs positive bounds, found {}:{} on axis `{}`",
                 self.min, self.max, self.name
+            ));
+        }
+        if self.min >= self.max {
+            return Err(format!(
+                "MIN must be below MAX with {} spacing, found {}:{} on axis `{}`",
+                if self.log { "log" } else { "linear" },
+                self.min,
+                self.max,
+                self.name
             ));
         }
         Ok(())

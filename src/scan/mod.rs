@@ -20,8 +20,10 @@
 
 pub mod axis;
 pub mod figures;
+pub mod folder;
 pub mod phases;
 pub mod points;
+pub mod preview;
 pub mod run;
 pub mod store;
 pub mod summary;

@@ -13,14 +13,16 @@ use crate::error::{Error, InputError};
 use crate::model::Model;
 use crate::output;
 
-/// Summary and figures from the finished points file: one pass feeds
-/// every row to the summary's tally and the figures' canvas, which keep
-/// no rows (see [`super::figures`]). Writes `summary.json` and the figures
-/// into `dir` and returns the summary; the phase map is coloured `by`.
-pub fn finish(dir: &Path, meta: &Meta, by: ColorBy) -> Result<ScanSummary, Error> {
+/// Summary and figures from the finished points file (`points`, the staged
+/// `points.csv` that is renamed into place after this: see
+/// [`super::folder`]): one pass feeds every row to the summary's tally and
+/// the figures' canvas, which keep no rows (see [`super::figures`]). Writes
+/// `summary.json` and the figures into `dir` and returns the summary; the
+/// phase map is coloured `by`.
+pub fn finish(dir: &Path, points: &Path, meta: &Meta, by: ColorBy) -> Result<ScanSummary, Error> {
     let mut tally = Tally::new(meta);
     let mut canvas = Canvas::new(meta, by);
-    for_each_point(&dir.join("points.csv"), meta, |p| {
+    for_each_point(points, meta, |p| {
         tally.add(p);
         canvas.add(p);
     })?;
@@ -49,13 +51,39 @@ pub fn run_to_dir(scan: &Scan, dir: &Path, by: ColorBy, flag: &str) -> Result<Sc
     publish(dir, &partial, &scan.meta, by)
 }
 
-/// The end of a whole scan: `points.csv` from the finished partial file,
-/// then the summary and figures ([`finish`]); the partial file is removed.
+/// The end of a whole scan: `points.csv` staged from the finished partial
+/// file, then [`publish_staged`]; the partial file is removed.
 pub fn publish(dir: &Path, partial: &Path, meta: &Meta, by: ColorBy) -> Result<ScanSummary, Error> {
-    store::publish_points(partial, meta, &dir.join("points.csv"))?;
-    let summary = finish(dir, meta, by)?;
+    let staged = store::stage_points(partial, meta, &dir.join("points.csv"))?;
+    let summary = publish_staged(dir, &staged, meta, by)?;
     std::fs::remove_file(partial).map_err(|e| Error::io(partial, e))?;
     Ok(summary)
+}
+
+/// The summary and figures from staged points ([`finish`]), then the
+/// points moved into place last (a `points.csv` marks a finished scan, see
+/// [`super::folder`]; an earlier one is removed first), then the outputs
+/// of an earlier scan that this one did not write are removed. On failure
+/// the staged file is removed.
+pub fn publish_staged(
+    dir: &Path,
+    staged: &Path,
+    meta: &Meta,
+    by: ColorBy,
+) -> Result<ScanSummary, Error> {
+    let target = dir.join("points.csv");
+    let done = (|| -> Result<ScanSummary, Error> {
+        if target.exists() {
+            std::fs::remove_file(&target).map_err(|e| Error::io(&target, e))?;
+        }
+        let summary = finish(dir, staged, meta, by)?;
+        std::fs::rename(staged, &target).map_err(|e| Error::io(&target, e))?;
+        super::folder::remove_stale(dir, &summary.files)?;
+        Ok(summary)
+    })();
+    done.inspect_err(|_| {
+        let _ = std::fs::remove_file(staged);
+    })
 }
 
 /// The axes of a scan: `x` and `y` as given on the command line (flags

@@ -90,7 +90,7 @@ impl Meta {
     /// the point's axis values, a known outcome. Rows without quotes (all
     /// but those with a quoted term name) are split directly; the others go
     /// through a CSV reader.
-    fn check_row(&self, line: &str, index: usize, width: usize) -> Result<(), String> {
+    pub(super) fn check_row(&self, line: &str, index: usize, width: usize) -> Result<(), String> {
         let quoted;
         let cells: Vec<&str> = if line.contains('"') {
             let mut reader = csv::ReaderBuilder::new()
@@ -121,6 +121,14 @@ impl Meta {
             return Err(format!("unknown outcome `{outcome}`"));
         }
         Ok(())
+    }
+
+    /// The point index of data row `row` (0-based) of this file.
+    pub fn index_of_row(&self, row: usize) -> usize {
+        match self.shard {
+            None => row,
+            Some((k, n)) => (k - 1) + row * n,
+        }
     }
 
     /// Number of points this file must hold when complete.
@@ -216,7 +224,7 @@ impl RowFile {
             return Err(Error::Input(InputError::new(
                 path.display().to_string(),
                 "--resume",
-                "the partial output was made with a different model, grid, shard or options; run without --resume to start over",
+                "the partial output was made with a different model, grid, shard or options; run with --overwrite instead of --resume to start over",
             )));
         }
         let mut file = OpenOptions::new()
@@ -226,16 +234,14 @@ impl RowFile {
             .map_err(|e| Error::io(path, e))?;
         // Read in blocks, not whole: a partial file may hold millions of rows.
         let complete = complete_length(&mut file).map_err(|e| Error::io(path, e))?;
-        let lines = count_lines(&mut file, complete).map_err(|e| Error::io(path, e))?;
-        file.set_len(complete).map_err(|e| Error::io(path, e))?;
-        file.seek(SeekFrom::End(0))
-            .map_err(|e| Error::io(path, e))?;
-        let rows = lines.saturating_sub(2);
-        if lines < 2 {
+        let Some(rows) = verify_rows(path, &mut file, complete, meta)? else {
             // Not even the header made it: start the body afresh.
             drop(file);
             return RowFile::create(path, meta);
-        }
+        };
+        file.set_len(complete).map_err(|e| Error::io(path, e))?;
+        file.seek(SeekFrom::End(0))
+            .map_err(|e| Error::io(path, e))?;
         Ok(RowFile {
             file,
             path: path.to_path_buf(),
@@ -268,7 +274,7 @@ const BLOCK: usize = 1 << 16;
 
 /// Length of the file up to and including its last newline (0 if none),
 /// found by reading blocks backwards from the end.
-fn complete_length(file: &mut File) -> std::io::Result<u64> {
+pub(super) fn complete_length(file: &mut File) -> std::io::Result<u64> {
     let mut end = file.seek(SeekFrom::End(0))?;
     let mut block = vec![0u8; BLOCK];
     while end > 0 {
@@ -284,19 +290,55 @@ fn complete_length(file: &mut File) -> std::io::Result<u64> {
     Ok(0)
 }
 
-/// Number of newlines in the first `len` bytes of the file, read in blocks.
-fn count_lines(file: &mut File, len: u64) -> std::io::Result<usize> {
-    file.seek(SeekFrom::Start(0))?;
-    let mut rest = (&mut *file).take(len);
-    let mut block = vec![0u8; BLOCK];
-    let mut lines = 0;
-    loop {
-        let n = rest.read(&mut block)?;
-        if n == 0 {
-            return Ok(lines);
+/// Check the header (byte for byte) and every complete row of a partial
+/// file (its first `len` bytes) against the scan: row r must be the point
+/// the scan puts there, with the grid's coordinates. Returns the number of
+/// rows, or None when the header is missing (the run was killed before
+/// writing it). Reads line by line: memory does not grow with the rows.
+fn verify_rows(
+    path: &Path,
+    file: &mut File,
+    len: u64,
+    meta: &Meta,
+) -> Result<Option<usize>, Error> {
+    let bad = |line: usize, why: String| -> Error {
+        InputError::new(
+            path.display().to_string(),
+            "--resume",
+            format!("line {line} of the partial output {why}; it does not belong to this scan: run with --overwrite instead of --resume to start over"),
+        )
+        .into()
+    };
+    file.seek(SeekFrom::Start(0))
+        .map_err(|e| Error::io(path, e))?;
+    let mut lines = BufReader::new(file.take(len)).lines().skip(1);
+    let header = csv_line(&meta.header());
+    match lines.next().transpose() {
+        Ok(None) => return Ok(None),
+        Ok(Some(h)) if header.strip_suffix('\n') == Some(h.as_str()) => {}
+        Ok(Some(_)) | Err(_) => {
+            return Err(bad(2, "(the CSV header) is damaged".into()));
         }
-        lines += block[..n].iter().filter(|b| **b == b'\n').count();
     }
+    let width = meta.header().len();
+    let mut rows = 0;
+    for line in lines {
+        let at = rows + 3;
+        let line = line.map_err(|_| bad(at, "is not text".into()))?;
+        if rows >= meta.expected_rows() {
+            return Err(bad(
+                at,
+                format!(
+                    "is one row more than the {} of the scan",
+                    meta.expected_rows()
+                ),
+            ));
+        }
+        meta.check_row(&line, meta.index_of_row(rows), width)
+            .map_err(|why| bad(at, format!("(data row {}) is wrong: {why}", rows + 1)))?;
+        rows += 1;
+    }
+    Ok(Some(rows))
 }
 
 /// One CSV line (with newline) from cells.
@@ -350,11 +392,13 @@ pub fn data_lines(
     Ok(BufReader::new(file).lines().skip(skip))
 }
 
-/// Copy the rows of a complete partial file into `points.csv` (header and
-/// rows, without the meta line), atomically.
-pub fn publish_points(partial: &Path, meta: &Meta, target: &Path) -> Result<(), Error> {
+/// Copy the rows of a complete partial file into a staged `points.csv`
+/// (header and rows, without the meta line) beside `target`; returns the
+/// staged file, which the caller renames into place once the summary and
+/// figures are written (see [`super::folder`]).
+pub fn stage_points(partial: &Path, meta: &Meta, target: &Path) -> Result<PathBuf, Error> {
     let tmp = crate::output::temp_path(target);
-    {
+    let written = (|| -> Result<(), Error> {
         let mut out = std::io::BufWriter::new(File::create(&tmp).map_err(|e| Error::io(&tmp, e))?);
         out.write_all(csv_line(&meta.header()).as_bytes())
             .map_err(|e| Error::io(&tmp, e))?;
@@ -364,14 +408,19 @@ pub fn publish_points(partial: &Path, meta: &Meta, target: &Path) -> Result<(), 
                 .and_then(|_| out.write_all(b"\n"))
                 .map_err(|e| Error::io(&tmp, e))?;
         }
-        out.flush().map_err(|e| Error::io(&tmp, e))?;
+        out.flush().map_err(|e| Error::io(&tmp, e))
+    })();
+    if let Err(e) = written {
+        let _ = std::fs::remove_file(&tmp);
+        return Err(e);
     }
-    std::fs::rename(&tmp, target).map_err(|e| Error::io(target, e))
+    Ok(tmp)
 }
 
-/// Merge complete shard files into `points.csv` in `dir`; returns the meta
-/// of the whole scan.
-pub fn merge(shards: &[PathBuf], target: &Path) -> Result<Meta, Error> {
+/// Merge complete shard files into a staged `points.csv` beside `target`
+/// (renamed into place by the caller, as for [`stage_points`]); returns
+/// the meta of the whole scan and the staged file.
+pub fn merge(shards: &[PathBuf], target: &Path) -> Result<(Meta, PathBuf), Error> {
     let metas: Vec<Meta> = shards
         .iter()
         .map(|p| read_meta(p))
@@ -419,8 +468,7 @@ pub fn merge(shards: &[PathBuf], target: &Path) -> Result<Meta, Error> {
         let _ = std::fs::remove_file(&tmp);
         return Err(e);
     }
-    std::fs::rename(&tmp, target).map_err(|e| Error::io(target, e))?;
-    Ok(whole)
+    Ok((whole, tmp))
 }
 
 fn incomplete(path: &Path) -> Error {

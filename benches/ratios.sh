@@ -1,0 +1,84 @@
+#!/usr/bin/env bash
+# Issue 15's targets, each measured in this one run and printed as a ratio
+# (measured / target, or target / measured for "at least" targets: below 1
+# is met for times, above 1 for speed-ups).
+# Usage (from the repository root): benches/ratios.sh [N]
+# N x N scan grid for the throughput rows (default 24). Run on an otherwise
+# idle machine; the 1 -> 2 thread row needs two idle cores.
+set -euo pipefail
+cd "$(dirname "$0")/.."
+n=${1:-24}
+export OMP_NUM_THREADS=1 OPENBLAS_NUM_THREADS=1 MKL_NUM_THREADS=1
+cargo build --release --quiet
+tmp=$(mktemp -d)
+trap 'rm -rf "$tmp"' EXIT
+bin=./target/release/pinflow
+
+# Criterion: one flow of the 32-field model (ring, dense strip, infinite).
+cargo bench --quiet --bench points -- target > "$tmp/bench.txt" 2>&1
+ms() { # median time of a criterion bench, in ms
+    python3 - "$tmp/bench.txt" "$1" <<'EOF'
+import re, sys
+text = open(sys.argv[1]).read()
+m = re.search(re.escape(sys.argv[2]) + r"\s*\n?\s*time:\s*\[\S+ \S+ (\S+) (\S+)", text)
+unit = {"ns": 1e-6, "µs": 1e-3, "us": 1e-3, "ms": 1.0, "s": 1e3}[m.group(2)]
+print(float(m.group(1)) * unit)
+EOF
+}
+ring=$(ms "target: flow ring 16x2, products")
+ring_ref=$(ms "target: flow ring 16x2, reference rhs")
+dense=$(ms "target: flow open strip 16x2 (dense), products")
+dense_ref=$(ms "target: flow open strip 16x2 (dense), reference rhs")
+l3ring=$(ms "target: flow filling 1/3, ring of 16 wires, products")
+inf=$(ms "target: flow filling 1/3, infinite, products")
+
+# Scan throughput, one stage (the SciPy script flows to the first strong
+# coupling only), 1 and 2 threads; the same grid in SciPy. The per-core
+# ratio uses CPU time (user + system: robust to other load on the machine),
+# the thread speed-up wall time.
+scan() { # prints "wall cpu"
+    python3 -c '
+import os, subprocess, sys, time
+t = time.perf_counter()
+subprocess.run(sys.argv[1:], check=True, stdout=subprocess.DEVNULL)
+wall = time.perf_counter() - t
+r = os.times()
+print(wall, r.children_user + r.children_system)' "$@"
+}
+grid=(--x "lambda=0.6:0.9:$n" --y "g=0.5:0.9:$n" --stages 1 --quiet)
+read -r t1 c1 < <(scan $bin scan benches/models/array32.toml "${grid[@]}" --threads 1 --out "$tmp/t1")
+read -r t2 c2 < <(scan $bin scan benches/models/array32.toml "${grid[@]}" --threads 2 --out "$tmp/t2")
+cmp -s "$tmp/t1/points.csv" "$tmp/t2/points.csv" || { echo "outputs differ between thread counts" >&2; exit 1; }
+python3 benches/scipy_scan.py --n "$n" --compare "$tmp/t1/points.csv" > "$tmp/scipy.txt"
+scipy=$(python3 -c "
+import re; t = open('$tmp/scipy.txt').read()
+print(float(re.search(r'CPU ([0-9.]+) s', t).group(1)))")
+agree=$(grep '^compared' "$tmp/scipy.txt")
+
+# dims on a 512-wire (1024-field) periodic array of the filling-1/3 demo.
+sed 's/^wires = 8$/wires = 512/' flows/laughlin_third.toml > "$tmp/ring512.toml"
+start=$(date +%s.%N)
+$bin dims "$tmp/ring512.toml" > /dev/null
+end=$(date +%s.%N)
+dims=$(python3 -c "print(($end - $start) * 1e3)")
+
+python3 - <<EOF
+rows = [
+    ("32-field flow, periodic ring (ms)", $ring, 1.5, "below"),
+    ("32-field flow, dense open strip (ms)", $dense, 5.0, "below"),
+    ("filling 1/3: infinite / 16-wire ring (flow)", $inf / $l3ring, 1.5, "below"),
+    ("SciPy script / pinflow CPU per point, 1 core", $scipy / $c1, 250.0, "above"),
+    ("1 -> 2 threads speed-up (scan)", $t1 / $t2, 1.85, "above"),
+    ("dims, 512-wire periodic ring (ms)", $dims, 100.0, "below"),
+]
+print(f"{'target':44} {'measured':>10} {'target':>8} {'ratio':>7}")
+for name, got, goal, sense in rows:
+    ratio = got / goal
+    ok = got <= goal if sense == "below" else got >= goal
+    print(f"{name:44} {got:10.3f} {goal:8.2f} {ratio:7.2f} {'met' if ok else 'NOT met'}")
+print()
+print(f"matrix products vs per-channel rhs: ring {$ring_ref / $ring:.2f}x, dense {$dense_ref / $dense:.2f}x faster")
+print(f"scan: CPU {$c1:.2f} s (1 thread); wall {$t1:.2f} s / {$t2:.2f} s (1 / 2 threads); SciPy CPU {$scipy:.2f} s")
+print("SciPy script against the 1-thread scan: $agree")
+print("scan grid: $n x $n points, --stages 1")
+EOF

@@ -1,0 +1,345 @@
+//! Issue 15, "every result equal to today's": the D feedback formed as
+//! matrix products (`src/flow/background.rs`, `Background::evaluate`) against
+//! the per-channel route it replaced (one rank-one update per channel and
+//! translate, kept as `FlowRhs::derivative_reference`).
+//!
+//! Three comparisons, all consistency checks between code paths (no
+//! physics reference values are involved; the random models' cells, V
+//! blocks and couplings are arbitrary inputs from a fixed-seed generator):
+//! - the right-hand side itself, at the bare fixed point with every coupling
+//!   set non-zero (so every null channel feeds back), to 1e-9 relative to
+//!   the largest entry of its part (couplings, D);
+//! - whole flows integrated with either right-hand side, to 1e-9;
+//! - the bundled models' flows against the JSON that `pinflow flow MODEL
+//!   --format json` wrote before the change (`tests/reference/flows/`,
+//!   captured from the binary of commit 6dc5e7e), to 1e-9 on ell*, the gap,
+//!   every term's final coupling, phase and dimension, and the stages.
+//!
+//! Not compared: `ell_end` (the end of the integrator's last step, which
+//! moves with step-size decisions: e.g. 1.8e-6 relative on
+//! `flows/halperin_331_strip.toml`), `steps`, and the rounding measures
+//! `dkd_drift` and the quadrature error estimates.
+
+mod flowcommon;
+
+use std::path::Path;
+
+use flowcommon::{num, system};
+use pinflow::core::system::System;
+use pinflow::flow::{Flow, FlowOptions, FlowResult};
+use serde_json::Value;
+
+/// Relative tolerance of every comparison here.
+const TOL: f64 = 1e-9;
+
+/// Largest |a - b| over a part, relative to the largest |b| of that part.
+fn rel_diff(a: &[f64], b: &[f64]) -> f64 {
+    let scale = b.iter().fold(0.0f64, |m, x| m.max(x.abs()));
+    let diff = a
+        .iter()
+        .zip(b)
+        .fold(0.0f64, |m, (x, y)| m.max((x - y).abs()));
+    if scale == 0.0 {
+        diff
+    } else {
+        diff / scale
+    }
+}
+
+/// The two right-hand sides agree on the couplings' part and on D's part.
+fn check_rhs(sys: &System, what: &str) {
+    let flow = Flow::new(sys, FlowOptions::default());
+    let point = sys.model.params.defaults().to_vec();
+    let (fast, reference, nc) = flow.rhs_routes(&point).expect("rhs at the bare point");
+    let nw = 2 * nc;
+    let dw = rel_diff(&fast[..nw], &reference[..nw]);
+    let dd = rel_diff(&fast[nw..], &reference[nw..]);
+    assert!(dw <= TOL && dd <= TOL, "{what}: couplings {dw:e}, D {dd:e}");
+    let scale = reference[nw..].iter().fold(0.0f64, |m, x| m.max(x.abs()));
+    assert!(
+        scale > 0.0 || !any_null(&flow),
+        "{what}: no feedback to compare"
+    );
+}
+
+fn any_null(flow: &Flow) -> bool {
+    flow.plan.channels.iter().any(|c| c.null())
+}
+
+/// Relative difference with a floor of 1e-6 for tiny values (decayed
+/// couplings).
+fn close(a: f64, b: f64) -> bool {
+    (a - b).abs() <= TOL * a.abs().max(b.abs()).max(1e-6)
+}
+
+fn opt_close(a: Option<f64>, b: Option<f64>) -> bool {
+    match (a, b) {
+        (Some(a), Some(b)) => close(a, b),
+        (None, None) => true,
+        _ => false,
+    }
+}
+
+/// The compared fields of two results agree (see the module docs).
+fn same_result(a: &FlowResult, b: &FlowResult, what: &str) {
+    assert_eq!(a.outcome, b.outcome, "{what}: outcome");
+    assert_eq!(a.winner, b.winner, "{what}: winner");
+    assert!(
+        opt_close(a.ell_star, b.ell_star),
+        "{what}: ell* {:?} {:?}",
+        a.ell_star,
+        b.ell_star
+    );
+    assert!(opt_close(a.ell_last, b.ell_last), "{what}: ell_last");
+    assert_eq!(a.terms.len(), b.terms.len(), "{what}: terms");
+    for (s, t) in a.terms.iter().zip(&b.terms) {
+        assert_eq!(s.name, t.name, "{what}");
+        for (x, y, field) in [
+            (s.coupling, t.coupling, "coupling"),
+            (s.dimension, t.dimension, "dimension"),
+            (s.phase, t.phase, "phase"),
+        ] {
+            assert!(close(x, y), "{what}: {} {field} {x} vs {y}", s.name);
+        }
+    }
+    assert_eq!(a.stages.len(), b.stages.len(), "{what}: stages");
+    for (s, t) in a.stages.iter().zip(&b.stages) {
+        assert!(
+            close(s.ell, t.ell),
+            "{what}: stage at {} vs {}",
+            s.ell,
+            t.ell
+        );
+        assert_eq!(s.pinned, t.pinned, "{what}");
+    }
+}
+
+/// A flow with the products and with the reference right-hand side.
+fn check_flows(sys: &System, what: &str) {
+    let point = sys.model.params.defaults().to_vec();
+    let opts = FlowOptions {
+        record: false,
+        ..FlowOptions::default()
+    };
+    let fast = Flow::new(sys, opts.clone()).run(&point).expect("flow");
+    let mut reference = Flow::new(sys, opts);
+    reference.reference_rhs = true;
+    let reference = reference.run(&point).expect("reference flow");
+    same_result(&fast, &reference, what);
+}
+
+fn root() -> &'static Path {
+    Path::new(env!("CARGO_MANIFEST_DIR"))
+}
+
+/// The bundled models and the benchmark array.
+fn bundled() -> Vec<(String, System)> {
+    let mut paths: Vec<_> = std::fs::read_dir(root().join("flows"))
+        .expect("flows/")
+        .map(|e| e.expect("entry").path())
+        .filter(|p| p.extension().is_some_and(|e| e == "toml"))
+        .collect();
+    paths.sort();
+    paths.push(root().join("benches/models/array32.toml"));
+    paths
+        .into_iter()
+        .map(|p| {
+            let name = p.file_stem().expect("name").to_string_lossy().into_owned();
+            (name, System::load(&p).expect("bundled model"))
+        })
+        .collect()
+}
+
+#[test]
+fn bundled_models_rhs_products_equal_reference_route() {
+    for (name, sys) in bundled() {
+        check_rhs(&sys, &name);
+    }
+}
+
+#[test]
+fn bundled_models_flows_equal_reference_route() {
+    for (name, sys) in bundled() {
+        check_flows(&sys, &name);
+    }
+}
+
+/// The JSON number at a path (null -> None).
+fn number(v: &Value, key: &str) -> Option<f64> {
+    v.get(key).and_then(Value::as_f64)
+}
+
+#[test]
+fn bundled_models_flows_equal_captured_outputs() {
+    for (name, sys) in bundled() {
+        let path = root().join(format!("tests/reference/flows/{name}.json"));
+        let text = std::fs::read_to_string(&path).expect("captured output");
+        let old: Value = serde_json::from_str(&text).expect("json");
+        let point = sys.model.params.defaults().to_vec();
+        let new = Flow::new(&sys, FlowOptions::default())
+            .run(&point)
+            .expect("flow");
+        let new_json = serde_json::to_value(&new).expect("serialise");
+        assert_eq!(old["outcome"], new_json["outcome"], "{name}");
+        assert_eq!(old["winner"], new_json["winner"], "{name}");
+        for key in ["ell_star", "ell_last", "gap"] {
+            let (a, b) = (number(&old, key), new_json.get(key).and_then(Value::as_f64));
+            assert!(opt_close(a, b), "{name}: {key} {a:?} vs {b:?}");
+        }
+        let terms = old["terms"].as_array().expect("terms");
+        assert_eq!(terms.len(), new.terms.len(), "{name}: terms");
+        for (t, n) in terms.iter().zip(&new.terms) {
+            assert_eq!(t["name"].as_str(), Some(n.name.as_str()), "{name}");
+            for (key, x) in [
+                ("coupling", n.coupling),
+                ("dimension", n.dimension),
+                ("phase", n.phase),
+                ("dimension0", n.dimension0),
+            ] {
+                let y = number(t, key).expect("number");
+                assert!(close(x, y), "{name}: {} {key} {x} vs {y}", n.name);
+            }
+        }
+        let stages = old["stages"].as_array().expect("stages");
+        assert_eq!(stages.len(), new.stages.len(), "{name}: stages");
+        for (s, n) in stages.iter().zip(&new.stages) {
+            assert!(
+                close(number(s, "ell").expect("ell"), n.ell),
+                "{name}: stage"
+            );
+        }
+    }
+}
+
+/// A fixed-seed generator (splitmix64), uniform in [0, 1).
+struct Rng(u64);
+
+impl Rng {
+    fn next(&mut self) -> f64 {
+        self.0 = self.0.wrapping_add(0x9E37_79B9_7F4A_7C15);
+        let mut z = self.0;
+        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
+        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
+        ((z ^ (z >> 31)) >> 11) as f64 / (1u64 << 53) as f64
+    }
+
+    fn range(&mut self, lo: f64, hi: f64) -> f64 {
+        lo + (hi - lo) * self.next()
+    }
+
+    fn int(&mut self, lo: i64, hi: i64) -> i64 {
+        lo + ((hi - lo + 1) as f64 * self.next()) as i64
+    }
+}
+
+/// A random array of spinless wires (K = diag(1, -1) per wire): V blocks 0
+/// and 1 with a dominant diagonal (positive definite), three terms over
+/// wire offsets 0..=1 with small odd/even particle contents.
+fn random_array(rng: &mut Rng, wires: &str, boundary: &str) -> String {
+    // |V1| <= 0.2, so V(q) >= 1 - 0.5 - 2 * 0.2 > 0 for every q.
+    let lam = rng.range(-0.5, 0.5);
+    let (a, b, c) = (
+        rng.range(0.0, 0.1),
+        rng.range(-0.1, 0.1),
+        rng.range(0.0, 0.1),
+    );
+    let mut s = format!(
+        "name = \"random\"\n[array]\nwires = {wires}\n{boundary}K = [[1, 0], [0, -1]]\ncharge = [1, 1]\n[array.V]\n0 = [[\"1\", \"{}\"], [\"{}\", \"1\"]]\n1 = [[\"{}\", \"{}\"], [\"{}\", \"{}\"]]\n",
+        num(lam),
+        num(lam),
+        num(a),
+        num(b),
+        num(c),
+        num(a)
+    );
+    let shapes: [[[i64; 2]; 2]; 4] = [
+        [[-2, 1], [-1, 2]],
+        [[1, -1], [-1, 1]],
+        [[-1, 0], [0, 1]],
+        [[1, 1], [-1, -1]],
+    ];
+    for (i, shape) in shapes.iter().enumerate().take(3) {
+        let m = rng.int(0, 1);
+        let coupling = rng.range(0.02, 0.3);
+        s += &format!(
+            "[[term]]\nname = \"t{i}\"\nparticles = {{ 0 = [{}, {}], 1 = [{}, {}] }}\ncoupling = {}\n",
+            shape[0][0] * (1 + m),
+            shape[0][1] * (1 + m),
+            shape[1][0] * (1 + m),
+            shape[1][1] * (1 + m),
+            num(coupling)
+        );
+    }
+    s
+}
+
+#[test]
+fn random_models_rhs_and_flows_equal_reference_route() {
+    let mut rng = Rng(0x15_5eed);
+    let layouts = [
+        ("6", "boundary = \"periodic\"\n"),
+        ("5", "boundary = \"open\"\n"),
+        ("\"infinite\"", ""),
+        ("4", "boundary = \"periodic\"\n"),
+    ];
+    for round in 0..8 {
+        let (wires, boundary) = layouts[round % layouts.len()];
+        let text = random_array(&mut rng, wires, boundary);
+        let sys = system(&text);
+        let what = format!("random model {round}:\n{text}");
+        check_rhs(&sys, &what);
+        check_flows(&sys, &what);
+    }
+}
+
+/// A random explicit model: three spinless wires written out (`[fields]`,
+/// K = diag(1, -1) per wire), V the identity plus a symmetric perturbation
+/// with entries below 0.1 (diagonally dominant, so positive definite), and
+/// four terms on pairs of wires.
+fn random_explicit(rng: &mut Rng) -> String {
+    let n = 6;
+    let mut v = vec![vec![0.0; n]; n];
+    for (i, j) in (0..n).flat_map(|i| (i..n).map(move |j| (i, j))) {
+        let x = if i == j { 1.0 } else { rng.range(-0.1, 0.1) };
+        v[i][j] = x;
+        v[j][i] = x;
+    }
+    let rows: Vec<String> = v
+        .iter()
+        .map(|r| {
+            let cells: Vec<String> = r.iter().map(|x| format!("\"{}\"", num(*x))).collect();
+            format!("[{}]", cells.join(", "))
+        })
+        .collect();
+    let mut s = format!(
+        "name = \"random explicit\"\n[fields]\nK = [[1,0,0,0,0,0],[0,-1,0,0,0,0],[0,0,1,0,0,0],[0,0,0,-1,0,0],[0,0,0,0,1,0],[0,0,0,0,0,-1]]\ncharge = [1, 1, 1, 1, 1, 1]\nV = [{}]\n",
+        rows.join(", ")
+    );
+    let terms: [[i64; 6]; 4] = [
+        [-2, 1, -1, 2, 0, 0],
+        [0, 0, -2, 1, -1, 2],
+        [1, -1, -1, 1, 0, 0],
+        [1, -1, 0, 0, -1, 1],
+    ];
+    for (i, t) in terms.iter().enumerate() {
+        let parts: Vec<String> = t.iter().map(|x| x.to_string()).collect();
+        s += &format!(
+            "[[term]]\nname = \"e{i}\"\nparticles = [{}]\ncoupling = {}\n",
+            parts.join(", "),
+            num(rng.range(0.02, 0.3))
+        );
+    }
+    s
+}
+
+#[test]
+fn random_explicit_models_rhs_and_flows_equal_reference_route() {
+    let mut rng = Rng(0x15_e7b1);
+    for round in 0..4 {
+        let text = random_explicit(&mut rng);
+        let sys = system(&text);
+        let what = format!("random explicit model {round}:\n{text}");
+        check_rhs(&sys, &what);
+        check_flows(&sys, &what);
+    }
+}
