@@ -292,7 +292,10 @@ class Model:
         Keyword arguments are model parameters or flow options (
         ``ell_max``, ``y_strong``, ``floor``, ``closure`` ("pairs" or
         "none"), ``closure_bound``, ``closure_range``, ``rtol``, ``atol``,
-        ``max_steps``, ``q_points``, ``stages``; docs/flow-options.md).
+        ``max_steps``, ``q_points``, ``stages``; hunted competitors:
+        ``competitors`` (the bound DELTA), ``competitor_coupling``,
+        ``competitor_range``, ``competitor_symmetry``;
+        docs/flow-options.md).
         ``out``: also write summary.json, trajectory.csv and the flow
         figure into this directory. Raises InputError at a point where V is
         not positive definite, RunError when the integration fails.
@@ -325,17 +328,20 @@ class Model:
             csv_text = f.read()
         return ScanResult(csv_text, json.loads(summary), d if keep else None)
 
-    def hunt(self, max_dim: float = 2.0, point: Optional[Mapping[str, float]] = None, *, charge: Union[int, str] = 0, spin: Union[int, str] = 0, range: Optional[int] = None, momentum: Optional[str] = None, force: bool = False, **params: float) -> pd.DataFrame:
+    def hunt(self, max_dim: float = 2.0, point: Optional[Mapping[str, float]] = None, *, charge: Union[int, str] = 0, spin: Union[int, str] = 0, range: Optional[int] = None, momentum: Optional[str] = None, symmetry: Union[str, Sequence[str]] = "all", force: bool = False, coupling: Optional[float] = None, **params: float) -> pd.DataFrame:
         """Every local operator with scaling dimension up to ``max_dim``,
         found exhaustively (``pinflow hunt``): a DataFrame with the columns
         of ``pinflow hunt --format csv``. Filters: ``charge`` (an integer
         or "any"), ``spin`` (0 or "any"), ``range`` (arrays: most
-        consecutive wires), ``momentum`` ("conserved" or "any"); ``force``
-        searches above the size limit. ``df.attrs`` holds "report" (JSON),
-        "text" and "terms_toml" (the [[term]] blocks of ``--emit-terms``).
+        consecutive wires), ``momentum`` ("conserved" or "any"),
+        ``symmetry`` (which of the model's [[symmetry]] tables filter:
+        "all", "none" or a list of names); ``force`` searches above the
+        size limit. ``df.attrs`` holds "report" (JSON), "text" and
+        "terms_toml" (the [[term]] blocks of ``--emit-terms``, with bare
+        coupling ``coupling``, default the model's smallest).
         """
         values, _ = self._split(point, params, options=False)
-        j, c, t, toml = self._m.hunt(values, max_dim, charge, spin, range, momentum, force)
+        j, c, t, toml = self._m.hunt(values, max_dim, charge, spin, range, momentum, force, symmetry, coupling)
         df = _frame(c)
         df.attrs.update(report=json.loads(j), text=t, terms_toml=toml)
         return df

@@ -58,6 +58,8 @@ class Model:
         range: Optional[int],
         momentum: Optional[str],
         force: bool,
+        symmetry: Union[str, List[str], None] = None,
+        coupling: Optional[float] = None,
     ) -> Tuple[str, str, str, str]: ...
     def edges(
         self,

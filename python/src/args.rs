@@ -4,18 +4,25 @@
 //! of a few words); the ranges and combinations are checked by the library,
 //! as for the command line. Every error names the keyword argument.
 
+use pinflow::core::system::System;
+use pinflow::flow::competitors::CompetitorOptions;
 use pinflow::flow::options::{Closure, FlowOverrides};
 use pinflow::model::Wires;
 use pinflow::scan::figures::ColorBy;
-use pinflow::search::{ChargeFilter, MomentumFilter, SpinFilter};
+use pinflow::search::{ChargeFilter, MomentumFilter, SpinFilter, SymmetryChoice};
 use pyo3::prelude::*;
 use pyo3::types::PyDict;
 
 use crate::errors::input;
 
 /// The keyword arguments that are flow options (the flags of
-/// `pinflow flow`, with `_` for `-`).
-pub const FLOW_OPTIONS: [&str; 11] = [
+/// `pinflow flow`, with `_` for `-`; `competitor_symmetry` for
+/// `--competitor-symmetry`).
+pub const FLOW_OPTIONS: [&str; 15] = [
+    "competitors",
+    "competitor_coupling",
+    "competitor_range",
+    "competitor_symmetry",
     "ell_max",
     "y_strong",
     "floor",
@@ -67,6 +74,69 @@ fn int(d: &Bound<'_, PyDict>, key: &str) -> PyResult<Option<i64>> {
             .map(Some)
             .map_err(|_| input(key, "expected a whole number")),
     }
+}
+
+/// `symmetry`: "all", "none", or symmetry names (a list, or a string
+/// with commas).
+pub fn symmetry(v: Option<&Bound<'_, PyAny>>, key: &str) -> PyResult<SymmetryChoice> {
+    let Some(v) = v.filter(|v| !v.is_none()) else {
+        return Ok(SymmetryChoice::All);
+    };
+    let names: Vec<String> = match v.extract::<String>() {
+        Ok(s) if s.trim() == "all" => return Ok(SymmetryChoice::All),
+        Ok(s) if s.trim() == "none" => return Ok(SymmetryChoice::None),
+        Ok(s) => s.split(',').map(|n| n.trim().to_string()).collect(),
+        Err(_) => v.extract().map_err(|_| {
+            input(
+                key,
+                "expected \"all\", \"none\" or a list of symmetry names",
+            )
+        })?,
+    };
+    if names.iter().any(|n| n.is_empty()) {
+        return Err(input(
+            key,
+            "expected \"all\", \"none\" or a list of symmetry names",
+        ));
+    }
+    Ok(SymmetryChoice::Names(names))
+}
+
+/// Hunted competitors: the keyword arguments over the model's
+/// [competitors] table (None: off), as `pinflow flow --competitors ...`.
+pub fn competitors(
+    sys: &System,
+    options: &Bound<'_, PyDict>,
+) -> PyResult<Option<CompetitorOptions>> {
+    let delta = float(options, "competitors")?;
+    let coupling = float(options, "competitor_coupling")?;
+    if coupling.is_some_and(|y| !y.is_finite()) {
+        return Err(input(
+            "competitor_coupling",
+            "expected a finite number (a bare coupling y)",
+        ));
+    }
+    let range = wires(options.get_item("competitor_range")?, "competitor_range")?;
+    let sym = symmetry(
+        options.get_item("competitor_symmetry")?.as_ref(),
+        "competitor_symmetry",
+    )?;
+    let opts = CompetitorOptions::resolve(&sys.model, delta, coupling, range)
+        .map_err(|e| crate::errors::to_py(e.into(), &sys.model.file))?;
+    Ok(opts.map(|o| CompetitorOptions { symmetry: sym, ..o }))
+}
+
+/// Refuse the competitor options where the command has none (`edges`).
+pub fn no_competitors(options: &Bound<'_, PyDict>) -> PyResult<()> {
+    for key in FLOW_OPTIONS.iter().filter(|k| k.starts_with("competitor")) {
+        if options.contains(key)? {
+            return Err(input(
+                key,
+                "hunted competitors are not part of edges; pin the terms with pin=[...]",
+            ));
+        }
+    }
+    Ok(())
 }
 
 /// The flow options among `options` (unknown keys are refused).

@@ -23,8 +23,9 @@ use pinflow::dims::{DimsOptions, DimsReport};
 use pinflow::edges::pins::{self, Selection};
 use pinflow::edges::{analyse, report::EdgesReport};
 use pinflow::error::{Error, InputError};
+use pinflow::flow::competitors::flow_once;
 use pinflow::flow::report::FlowReport;
-use pinflow::flow::{Flow, FlowOptions, Outcome};
+use pinflow::flow::{FlowOptions, Outcome};
 use pinflow::output::{self, Format, Report};
 use pinflow::scan::run::{check_size, resolve_axes, run_to_dir};
 use pinflow::scan::{Scan, ScanSpec};
@@ -167,13 +168,14 @@ impl Model {
     ) -> PyResult<(String, String, String, String)> {
         let set = point_overrides(point)?;
         let over = flow_overrides(options)?;
+        let comp = args::competitors(&self.sys, options)?;
         self.run(py, |sys| {
             if let Some(d) = &out {
                 output::check_output_dir(d, "out")?;
             }
             let point = sys.model.point_with(&set, "point")?;
             let opts = FlowOptions::resolve(&sys.model, &over)?;
-            let result = Flow::new(sys, opts.clone()).run(&point)?;
+            let result = flow_once(sys, &point, &opts, comp)?;
             let names = sys.model.params.names();
             let report = FlowReport::new(&sys.model.name, names, &point, result, opts);
             check_flow(sys, &point, &report)?;
@@ -202,6 +204,7 @@ impl Model {
     ) -> PyResult<String> {
         let set = point_overrides(point)?;
         let over = flow_overrides(options)?;
+        let competitors = args::competitors(&self.sys, options)?;
         let by = args::color_by(color_by)?;
         let pool = thread_pool(threads)?;
         self.run(py, |sys| {
@@ -213,7 +216,7 @@ impl Model {
                 base,
                 options,
                 shard: None,
-                competitors: None,
+                competitors,
             };
             let scan = Scan::new(sys, &self.bytes, spec)?;
             check_size(scan.points(), force)?;
@@ -223,7 +226,7 @@ impl Model {
     }
 
     /// `pinflow hunt`: (json, csv, text, the [[term]] blocks of `--emit-terms`).
-    #[pyo3(signature = (point, max_dim, charge, spin, range, momentum, force))]
+    #[pyo3(signature = (point, max_dim, charge, spin, range, momentum, force, symmetry = None, coupling = None))]
     #[allow(clippy::too_many_arguments)]
     fn hunt(
         &self,
@@ -235,9 +238,16 @@ impl Model {
         range: Option<Bound<'_, PyAny>>,
         momentum: Option<String>,
         force: bool,
+        symmetry: Option<Bound<'_, PyAny>>,
+        coupling: Option<Bound<'_, PyAny>>,
     ) -> PyResult<(String, String, String, String)> {
         let set = point_overrides(point)?;
         let f = hunt_filters(charge, spin, range, momentum.as_deref())?;
+        let symmetry = args::symmetry(symmetry.as_ref(), "symmetry")?;
+        let coupling = coupling
+            .filter(|c| !c.is_none())
+            .map(|c| args::number(&c, "coupling"))
+            .transpose()?;
         let opts = HuntOptions {
             max_dim: args::number(max_dim, "max_dim")?,
             charge: f.charge,
@@ -245,13 +255,14 @@ impl Model {
             range: f.range,
             momentum: f.momentum,
             force,
+            symmetry,
             ..Default::default()
         };
         self.run(py, |sys| {
             let point = sys.model.point_with(&set, "point")?;
             let report = hunt(sys, &point, &opts)?;
             let (json, csv, text) = renderings(&report)?;
-            let y = smallest_coupling(sys, &point);
+            let y = coupling.unwrap_or_else(|| smallest_coupling(sys, &point));
             Ok((json, csv, text, emit_terms(&report, &sys.model, y)))
         })
     }
@@ -268,6 +279,7 @@ impl Model {
     ) -> PyResult<(String, String, String)> {
         let set = point_overrides(point)?;
         let over = flow_overrides(options)?;
+        args::no_competitors(options)?;
         let window = args::window(window)?;
         self.run(py, |sys| {
             let point = sys.model.point_with(&set, "point")?;

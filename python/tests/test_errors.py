@@ -149,3 +149,14 @@ def test_library_advice_reads_as_keyword_arguments():
     assert e.value.key == "momentum"
     assert "omit the keyword argument or use `momentum any`" in str(e.value)
     no_flags(str(e.value))
+
+
+def test_competitor_options_name_the_keyword():
+    m = pinflow.Model.load(LAUGHLIN)
+    with pytest.raises(pinflow.InputError) as e:
+        m.flow(competitor_range=3)  # needs competitors=DELTA
+    assert e.value.key == "competitors"
+    no_flags(str(e.value))
+    with pytest.raises(pinflow.InputError) as e:
+        m.edges(competitors=2.0)
+    assert e.value.key == "competitors"

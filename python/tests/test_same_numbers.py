@@ -164,3 +164,17 @@ def test_edges(stem, pins):
     assert r.report == report
     pd.testing.assert_frame_equal(r.table, pinflow._frame(cli_csv("edges", path, *flags)), check_exact=True)
     assert r.text == cli("edges", path, *flags).stdout
+
+
+def test_flow_with_hunted_competitors():
+    """Hunted competitors (--competitors DELTA) join the flow as in the
+    command; a bound of 4 brings operators that the model does not list."""
+    path = pinflow_flows("laughlin_third")
+    m = pinflow.Model.load(path)
+    r = m.flow(competitors=4.0, competitor_symmetry="none")
+    report = cli_json("flow", path, "--competitors", "4", "--competitor-symmetry", "none")
+    assert r.report == report
+    assert any(name.startswith("auto:") for name in r.terms.iloc[:, 0])
+    pd.testing.assert_frame_equal(
+        r.terms, pinflow._frame(cli_csv("flow", path, "--competitors", "4", "--competitor-symmetry", "none")), check_exact=True
+    )

@@ -11,9 +11,9 @@ use super::common::{
 };
 use crate::core::system::System;
 use crate::error::{Error, InputError};
-use crate::flow::competitors::{Competing, CompetitorOptions};
+use crate::flow::competitors::{flow_once, CompetitorOptions};
 use crate::flow::report::{FlowReport, PlotTerms};
-use crate::flow::{Flow, FlowOptions, FlowResult, Outcome};
+use crate::flow::{FlowOptions, Outcome};
 use crate::output;
 use crate::search::SymmetryChoice;
 
@@ -105,19 +105,6 @@ impl CompetitorFlags {
             symmetry: self.symmetry.clone(),
             ..o
         }))
-    }
-}
-
-/// One flow, with hunted competitors when asked for.
-fn flow_once(
-    sys: &System,
-    point: &[f64],
-    opts: &FlowOptions,
-    comp: Option<CompetitorOptions>,
-) -> Result<FlowResult, Error> {
-    match comp {
-        Some(c) => Competing::new(sys, opts.clone(), c)?.run(point),
-        None => Flow::new(sys, opts.clone()).run(point),
     }
 }
 

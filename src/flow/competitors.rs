@@ -279,3 +279,17 @@ pub fn auto_name(op: &Operator) -> String {
         None => format!("{PREFIX}({})", list(&op.particles)),
     }
 }
+
+/// One flow at `point`, with hunted competitors when `comp` asks for them
+/// (`pinflow flow` and the Python package's `Model.flow`).
+pub fn flow_once(
+    sys: &System,
+    point: &[f64],
+    opts: &FlowOptions,
+    comp: Option<CompetitorOptions>,
+) -> Result<FlowResult, Error> {
+    match comp {
+        Some(c) => Competing::new(sys, opts.clone(), c)?.run(point),
+        None => Flow::new(sys, opts.clone()).run(point),
+    }
+}
