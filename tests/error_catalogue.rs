@@ -465,7 +465,7 @@ fn cases() -> Vec<Case> {
             setup: vec![Step::Run(args("scan wire.toml --x lambda=0:0.5:5 --out r --quiet"))],
             args: args("scan wire.toml --x lambda=0:0.5:5 --out r --quiet"),
             code: 2,
-            message: "error: command line: --out: `r` already holds the files of another scan (points.csv, summary.json, phase.png, phase.svg); pass --overwrite to replace them, or choose another --out",
+            message: "error: command line: --out: `r` already holds the files of another scan (points.csv, summary.json, phases.csv, run.json, phase.png, phase.svg, phase.pdf); pass --overwrite to replace them, or choose another --out",
         },
         Case {
             id: "E129",

@@ -221,71 +221,86 @@ impl FlowOptions {
 
     fn read_table(&mut self, model: &Model, t: &toml::Table) -> Result<(), InputError> {
         for (key, value) in t {
-            let full = format!("flow.{key}");
-            let num = || -> Result<f64, InputError> {
-                match value {
-                    toml::Value::Integer(i) => Ok(*i as f64),
-                    toml::Value::Float(x) => Ok(*x),
-                    other => Err(InputError::new(
-                        &model.file,
-                        &full,
-                        format!("expected a number, found {other}"),
-                    )),
-                }
-            };
-            match key.as_str() {
-                "ell_max" => self.ell_max = positive(num()?, &model.file, &full)?,
-                "y_strong" => self.y_strong = positive(num()?, &model.file, &full)?,
-                "floor" => self.floor = positive(num()?, &model.file, &full)?,
-                "rtol" => self.rtol = check_rtol(num()?, &model.file, &full)?,
-                "atol" => self.atol = positive(num()?, &model.file, &full)?,
-                "max_steps" => {
-                    let n = whole(value, &model.file, &full, "a whole number of steps")?;
-                    self.max_steps = check_max_steps(n, &model.file, &full)?;
-                }
-                "stages" => {
-                    let n = whole(value, &model.file, &full, "a whole number of stages")?;
-                    self.stages = Some(check_stages(n, &model.file, &full)?);
-                }
-                "q_points" => {
-                    let n = whole(value, &model.file, &full, "a whole number of points")?;
-                    self.q_points = Some(check_q_points(model, n, &model.file, &full)?);
-                }
-                "closure_range" => {
-                    let r = whole(value, &model.file, &full, "a whole number of wires")?;
-                    self.closure_range = Some(check_closure_range(model, r, &model.file, &full)?);
-                }
-                "closure_bound" => {
-                    let b = num()?;
-                    check_non_negative(b, &model.file, &full)?;
-                    self.closure_bound = b;
-                }
-                "closure" => {
-                    self.closure = match value.as_str() {
-                        Some("pairs") => Closure::Pairs,
-                        Some("none") => Closure::None,
-                        _ => {
-                            return Err(InputError::new(
-                                &model.file,
-                                &full,
-                                format!("expected \"pairs\" or \"none\", found {value}"),
-                            ))
-                        }
-                    }
-                }
-                _ => {
-                    return Err(InputError::new(
-                        &model.file,
-                        &full,
-                        "unknown key (known: ell_max, y_strong, floor, closure, closure_bound, closure_range, rtol, atol, max_steps, q_points, stages)",
-                    ))
-                }
+            self.read_key(model, key, value, &format!("flow.{key}"))?;
+        }
+        Ok(())
+    }
+
+    /// One key of the `[flow]` table (`full` is its name in messages).
+    fn read_key(
+        &mut self,
+        model: &Model,
+        key: &str,
+        value: &toml::Value,
+        full: &str,
+    ) -> Result<(), InputError> {
+        let file = &model.file;
+        let num = || table_number(value, file, full);
+        match key {
+            "ell_max" => self.ell_max = positive(num()?, file, full)?,
+            "y_strong" => self.y_strong = positive(num()?, file, full)?,
+            "floor" => self.floor = positive(num()?, file, full)?,
+            "rtol" => self.rtol = check_rtol(num()?, file, full)?,
+            "atol" => self.atol = positive(num()?, file, full)?,
+            "max_steps" => {
+                let n = whole(value, file, full, "a whole number of steps")?;
+                self.max_steps = check_max_steps(n, file, full)?;
+            }
+            "stages" => {
+                let n = whole(value, file, full, "a whole number of stages")?;
+                self.stages = Some(check_stages(n, file, full)?);
+            }
+            "q_points" => {
+                let n = whole(value, file, full, "a whole number of points")?;
+                self.q_points = Some(check_q_points(model, n, file, full)?);
+            }
+            "closure_range" => {
+                let r = whole(value, file, full, "a whole number of wires")?;
+                self.closure_range = Some(check_closure_range(model, r, file, full)?);
+            }
+            "closure_bound" => {
+                let b = num()?;
+                check_non_negative(b, file, full)?;
+                self.closure_bound = b;
+            }
+            "closure" => self.closure = table_closure(value, file, full)?,
+            _ => {
+                return Err(InputError::new(
+                    file,
+                    full,
+                    "unknown key (known: ell_max, y_strong, floor, closure, closure_bound, closure_range, rtol, atol, max_steps, q_points, stages)",
+                ))
             }
         }
         Ok(())
     }
 }
 
+/// A number of the `[flow]` table (an integer is accepted as a float).
+fn table_number(value: &toml::Value, file: &str, full: &str) -> Result<f64, InputError> {
+    match value {
+        toml::Value::Integer(i) => Ok(*i as f64),
+        toml::Value::Float(x) => Ok(*x),
+        other => Err(InputError::new(
+            file,
+            full,
+            format!("expected a number, found {other}"),
+        )),
+    }
+}
+
+/// `closure = "pairs" | "none"` of the `[flow]` table.
+fn table_closure(value: &toml::Value, file: &str, full: &str) -> Result<Closure, InputError> {
+    match value.as_str() {
+        Some("pairs") => Ok(Closure::Pairs),
+        Some("none") => Ok(Closure::None),
+        _ => Err(InputError::new(
+            file,
+            full,
+            format!("expected \"pairs\" or \"none\", found {value}"),
+        )),
+    }
+}
 /// A closure range: at least 1 wire. An infinite array's exact data lives on
 /// a stand-in ring of W = 4 (R + 2) + 1 wires for terms of range R (see
 /// [`crate::core::lattice::Lattice::stand_in`]); the OPE table on it equals the

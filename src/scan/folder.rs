@@ -25,7 +25,7 @@ use crate::error::{Error, InputError};
 pub const LOCK: &str = ".pinflow.lock";
 
 /// The files a finished scan or merge writes into its folder.
-pub const OUTPUTS: [&str; 13] = [
+pub const OUTPUTS: [&str; 12] = [
     "points.csv",
     "summary.json",
     "phases.csv",
@@ -38,7 +38,6 @@ pub const OUTPUTS: [&str; 13] = [
     "ell_star.svg",
     "ell_star.pdf",
     "ell_star.txt",
-    "preview.json",
 ];
 
 /// The held locks of an output folder (released when dropped).

@@ -162,6 +162,7 @@ fn filter_words(spin: SpinFilter, momentum: Option<MomentumFilter>) -> (String, 
 impl HuntReport {
     /// Assemble the report (called by [`super::hunt`]).
     #[allow(clippy::too_many_arguments)]
+    // Over 60 lines only because it is one struct literal, field by field.
     pub(crate) fn new(
         sys: &System,
         point: &[f64],
