@@ -230,10 +230,26 @@ pub(crate) fn emit(path: Option<&Path>, text: &str) -> Result<(), Error> {
 /// `--quiet`/`-q`, `--resume`, and where the outputs go: `--out DIR`,
 /// `-o FILE`), so that outputs stay byte-identical whatever the thread
 /// count or the output directory.
+/// The arguments of the running command (those given to `main_with`, not
+/// the process's: the Python `pinflow` command runs inside an interpreter).
+static ARGUMENTS: std::sync::Mutex<Vec<String>> = std::sync::Mutex::new(Vec::new());
+
+/// Remember the command's arguments (program name first) for the provenance.
+pub(crate) fn remember_arguments(args: &[std::ffi::OsString]) {
+    if let Ok(mut a) = ARGUMENTS.lock() {
+        *a = args
+            .iter()
+            .skip(1)
+            .map(|s| s.to_string_lossy().into_owned())
+            .collect();
+    }
+}
+
 fn recorded_arguments() -> Vec<String> {
     let mut out = Vec::new();
     let mut skip_value = false;
-    for a in std::env::args().skip(1) {
+    let given = ARGUMENTS.lock().map(|a| a.clone()).unwrap_or_default();
+    for a in given {
         if std::mem::take(&mut skip_value) {
             continue;
         }

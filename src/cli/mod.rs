@@ -131,6 +131,8 @@ where
     I: IntoIterator<Item = T>,
     T: Into<std::ffi::OsString> + Clone,
 {
+    let args: Vec<std::ffi::OsString> = args.into_iter().map(Into::into).collect();
+    common::remember_arguments(&args);
     let cli = match Cli::try_parse_from(args) {
         Ok(cli) => cli,
         Err(e) => {
