@@ -10,7 +10,8 @@ use crate::math::smith as normal;
 use crate::math::zmat::ZMat;
 use crate::model::Model;
 
-fn family(vs: &[Vec<i64>]) -> Family {
+/// A family of the given translates (each on wire 0), for unit tests.
+pub(super) fn family(vs: &[Vec<i64>]) -> Family {
     Family {
         translates: vs
             .iter()

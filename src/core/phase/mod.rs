@@ -245,28 +245,14 @@ mod lattice_tests;
 
 #[cfg(test)]
 mod tests {
+    use super::lattice_tests::family;
     use super::*;
-    use crate::core::lattice::Translate;
-
-    fn family(vs: &[&[i64]]) -> Family {
-        Family {
-            translates: vs
-                .iter()
-                .map(|v| Translate {
-                    anchor: 0,
-                    parts: vec![(0, v.to_vec())],
-                    l: v.to_vec(),
-                })
-                .collect(),
-            representative: 0,
-        }
-    }
 
     #[test]
     fn twice_a_vector_is_another_lattice() {
         // span_Z {2 l} does not contain l (derived: 2 does not divide 1).
-        let l = family(&[&[1, -1, 0, 0]]);
-        let two = family(&[&[2, -2, 0, 0]]);
+        let l = family(&[vec![1, -1, 0, 0]]);
+        let two = family(&[vec![2, -2, 0, 0]]);
         let a = PinnedLattice::new(4, &[&two]);
         assert!(!a.contains(&[1, -1, 0, 0]));
         assert!(a.contains_rationally(&[1, -1, 0, 0]));
@@ -278,10 +264,10 @@ mod tests {
     fn different_generators_same_lattice() {
         // {a, b} and {a + b, b} span the same lattice (a unimodular change,
         // derived); {a + b, a - b} does not (its index is |det| = 2).
-        let a = family(&[&[1, 0, 0, 1]]);
-        let b = family(&[&[0, 1, 1, 0]]);
-        let s = family(&[&[1, 1, 1, 1]]);
-        let d = family(&[&[1, -1, -1, 1]]);
+        let a = family(&[vec![1, 0, 0, 1]]);
+        let b = family(&[vec![0, 1, 1, 0]]);
+        let s = family(&[vec![1, 1, 1, 1]]);
+        let d = family(&[vec![1, -1, -1, 1]]);
         let ab = PinnedLattice::new(4, &[&a, &b]);
         assert!(ab.spans_same(&[&s, &b]));
         assert!(!ab.spans_same(&[&s, &d]));
@@ -290,9 +276,9 @@ mod tests {
 
     #[test]
     fn label_prefers_fewest_then_listed() {
-        let a = family(&[&[1, 0, 0, 1]]);
-        let b = family(&[&[0, 1, 1, 0]]);
-        let s = family(&[&[1, 1, 1, 1]]);
+        let a = family(&[vec![1, 0, 0, 1]]);
+        let b = family(&[vec![0, 1, 1, 0]]);
+        let s = family(&[vec![1, 1, 1, 1]]);
         let cands = [
             Candidate {
                 name: "s",
