@@ -249,6 +249,23 @@ fn targets(c: &mut Criterion<ThreadCpu>) {
             });
         }
     }
+    // The infinite array with its quadrature always checked by a second
+    // flow on half the points (before the in-flow estimate of issue 15
+    // item 4): the estimate's saving, measured in the same run.
+    let sys = &layouts[3].1;
+    let point = sys.model.params.defaults().to_vec();
+    let mut flow = Flow::new(
+        sys,
+        FlowOptions {
+            record: false,
+            ..FlowOptions::default()
+        },
+    );
+    flow.full_check = true;
+    c.bench_function(
+        "target: flow filling 1/3, infinite, second-flow check",
+        |b| b.iter(|| flow.run(&point).expect("flow")),
+    );
 }
 
 /// The listed terms of the 32-field ring flowing alone (no generated

@@ -43,13 +43,21 @@
 //! ([`crate::core::qspace::Quadrature`]) an honest and, the error falling
 //! geometrically, in practice generous bound.
 //!
+//! The first comparison is usually made without the M-point flow: the
+//! N-point flow estimates its difference from it along the way
+//! ([`super::qtrack`]), and that estimate stands for the comparison when it
+//! is [`MARGIN`] times below the tolerance (`method` "estimate"); else the
+//! M-point flow runs as above (`method` "flow"). Refinements always compare
+//! two flows.
+//!
 //! A fixed rule (`q_points` = N) is not refined. It is compared with the
 //! flow on 2N points, and the estimate is twice the difference (a bound on
 //! the N-point error whenever doubling N at least halves it, as in
 //! [`crate::core::qspace::on_rule`]).
 //!
 //! Cost: a flow costs in proportion to its number of points, so a check
-//! that passes at once costs half a flow more (the M-point flow); a fixed
+//! that passes at once costs half a flow more (the M-point flow), or a few
+//! per cent of a flow by the estimate; a fixed
 //! rule costs two flows more (the 2N-point flow). Each further doubling
 //! costs the new flow. Every flow of a scan is checked in the same way, so
 //! a scan's rows are the numbers `flow` reports at the same point.
@@ -248,8 +256,11 @@ impl Flow<'_> {
 
     /// The in-flow estimate as the check's difference, when it is
     /// [`MARGIN`] times below the tolerance (else the full check runs).
+    /// The estimate leaves out the integrator's error, which a second flow
+    /// also shows: with `rtol` not [`MARGIN`] times below the tolerance
+    /// that error may exceed it, and the second flow runs.
     fn estimate_passes(&self, result: &FlowResult) -> Option<Difference> {
-        if self.full_check {
+        if self.full_check || MARGIN * self.opts.rtol > self.opts.q_tolerance {
             return None;
         }
         let diff = Difference::estimated(result.q_estimate?);
