@@ -24,6 +24,12 @@
 //! replaced. `integrator:` benches compare `ode_solvers`' two methods.
 //! Both measure the thread's CPU time, not wall time (see [`ThreadCpu`]).
 //!
+//! The exact inverse of K (`exact inverse:` benches): an explicit model's
+//! K of 1024 fields (512 spinless wires, K = diag(1, -1) per wire) block by
+//! block (`src/math/blockinv.rs`), and 128 fields both ways (the whole
+//! matrix by fraction-free elimination, `src/math/bareiss.rs`, takes about
+//! 4 s at 256 fields and grows as n^3).
+//!
 //! Run: `cargo bench --bench points` (only the targets: `cargo bench
 //! --bench points -- target`).
 
@@ -374,13 +380,39 @@ fn integrate_ring(name: &str, sys: &System, flow: &Flow, point: &[f64]) -> (usiz
     (rhs.steps, rhs.last_ell)
 }
 
+/// K = diag(1, -1) per wire on n fields.
+fn wires_k(n: usize) -> Vec<Vec<i64>> {
+    (0..n)
+        .map(|i| {
+            (0..n)
+                .map(|j| if i == j { 1 - 2 * (i as i64 % 2) } else { 0 })
+                .collect()
+        })
+        .collect()
+}
+
+fn exact_inverse(c: &mut Criterion) {
+    use pinflow::math::{bareiss, blockinv};
+    let (k1024, k128) = (wires_k(1024), wires_k(128));
+    c.bench_function("exact inverse: 1024 fields, block by block", |b| {
+        b.iter(|| blockinv::det_and_inverse(&k1024).expect("invertible"))
+    });
+    c.bench_function("exact inverse: 128 fields, block by block", |b| {
+        b.iter(|| blockinv::det_and_inverse(&k128).expect("invertible"))
+    });
+    c.bench_function("exact inverse: 128 fields, whole matrix", |b| {
+        b.iter(|| bareiss::det_and_inverse(&k128).expect("invertible"))
+    });
+}
+
 criterion_group!(
     benches,
     dims_point,
     flow_point,
     infinite_against_dense,
     edges_nondiagonal_cell,
-    infinite_flow
+    infinite_flow,
+    exact_inverse
 );
 criterion_group! {
     name = cpu;

@@ -192,3 +192,33 @@ fn results_with_the_estimate_equal_the_fully_checked_ones() {
         "the estimate served only {estimated} of the flows"
     );
 }
+
+#[test]
+fn both_rules_are_summed_from_one_state() {
+    // The half rule's sum from the N-point state equals the dimension on
+    // the nested rule's own fixed point (every other point), and the full
+    // sum equals the N-point dimension; any cell vectors serve.
+    use pinflow::core::qspace::{fourier_vector, nested_dimensions};
+    let sys = with_wires("flows/sliding_array.toml", "wires = \"infinite\"\n");
+    let point = sys.model.params.defaults().to_vec();
+    let parts = vec![
+        (0, vec![1.0, -2.0]),
+        (1, vec![-1.0, 2.0]),
+        (3, vec![0.5, 0.0]),
+    ];
+    // The refined rule, and given rules with an even and an odd half.
+    let mut rules = vec![sys.q_converged(&point).expect("physical").0];
+    for n in [10, 12] {
+        rules.push(sys.q_on_rule(&point, n).expect("physical").0);
+    }
+    for fp in rules {
+        let coarse = fp.coarsened().expect("an even rule");
+        let full = fourier_vector(&parts, 2, fp.points);
+        let (n, m) = nested_dimensions(&fp.d, &full, fp.points, 2);
+        let (dn, dm) = (fp.dimension_of(&parts), coarse.dimension_of(&parts));
+        let what = format!("{} points", fp.points);
+        assert!((n - dn).abs() <= 1e-14 * dn, "{what}: {n} vs {dn}");
+        assert!((m - dm).abs() <= 1e-14 * dm, "{what}: {m} vs {dm}");
+        assert!(n != m, "{what}: the two rules differ at all");
+    }
+}
