@@ -179,7 +179,7 @@ impl Tracker {
         let shift = match (outcome, winner, ell_star) {
             (Outcome::Strong | Outcome::Spinful, Some(w), Some(_)) => {
                 let r = rate(w);
-                if !(r > 0.0) || !self.winner_is_clear(rhs, y, w, &rate) {
+                if r.is_nan() || r <= 0.0 || !self.winner_is_clear(rhs, y, w, &rate) {
                     return None;
                 }
                 self.eta / r
