@@ -136,6 +136,27 @@ impl Pairing {
         acc
     }
 
+    /// [`Pairing::scaled`] of two sparse vectors, (field, value) entries in
+    /// field order.
+    pub fn scaled_sparse(&self, l: &[(usize, i64)], lp: &[(usize, i64)]) -> i128 {
+        let c = self.cell;
+        let mut acc: i128 = 0;
+        let mut start = 0;
+        for &(f, x) in l {
+            let wire = f / c;
+            while start < lp.len() && lp[start].0 / c < wire {
+                start += 1;
+            }
+            for &(g, y) in lp[start..].iter().take_while(|(g, _)| g / c == wire) {
+                let t = self.adj[f % c][g % c]
+                    .saturating_mul(x as i128)
+                    .saturating_mul(y as i128);
+                acc = acc.saturating_add(t);
+            }
+        }
+        acc
+    }
+
     /// l and l' commute (l^T K^-1 l' = 0).
     pub fn commute(&self, l: &[i64], lp: &[i64]) -> bool {
         self.scaled(l, lp) == 0
