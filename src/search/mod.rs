@@ -43,6 +43,7 @@
 //! (dimension rounded to 1e-9, then particle content), whatever the
 //! thread count.
 
+pub mod breaks;
 pub mod orbits;
 pub mod report;
 pub mod symmetry;
