@@ -136,25 +136,14 @@ impl Pairing {
         acc
     }
 
-    /// [`Pairing::scaled`] of two sparse vectors, (field, value) entries in
-    /// field order.
-    pub fn scaled_sparse(&self, l: &[(usize, i64)], lp: &[(usize, i64)]) -> i128 {
-        let c = self.cell;
-        let mut acc: i128 = 0;
-        let mut start = 0;
-        for &(f, x) in l {
-            let wire = f / c;
-            while start < lp.len() && lp[start].0 / c < wire {
-                start += 1;
-            }
-            for &(g, y) in lp[start..].iter().take_while(|(g, _)| g / c == wire) {
-                let t = self.adj[f % c][g % c]
-                    .saturating_mul(x as i128)
-                    .saturating_mul(y as i128);
-                acc = acc.saturating_add(t);
-            }
-        }
-        acc
+    /// Fields per cell.
+    pub fn cell(&self) -> usize {
+        self.cell
+    }
+
+    /// det(K_c) (K_c^-1)_{ij}, the pairing of two fields i, j of one cell.
+    pub fn entry(&self, i: usize, j: usize) -> i128 {
+        self.adj[i][j]
     }
 
     /// l and l' commute (l^T K^-1 l' = 0).

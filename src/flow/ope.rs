@@ -26,6 +26,8 @@ use crate::core::invariants::Pairing;
 struct SparseTranslate {
     /// (field, value), in field order, values non-zero.
     l: Vec<(usize, i64)>,
+    /// (wire, field within the cell, value) of the same entries.
+    cells: Vec<(usize, usize, i64)>,
     /// Wires touched, sorted.
     wires: Vec<usize>,
     /// Index of `wires` among the distinct wire sets of the plan.
@@ -38,7 +40,28 @@ type Key = Vec<i64>;
 /// Sparse vector -> (channel, the vector is minus a translate).
 type SparseIndex = super::channels::VecMap<(usize, bool)>;
 
-fn sparse_of(l: &[i64], wire_of: &dyn Fn(usize) -> usize) -> SparseTranslate {
+/// [`Pairing::scaled`] of two sparse translates: the pairing acts within
+/// a wire (cell by cell).
+fn scaled(pairing: &Pairing, x: &SparseTranslate, y: &SparseTranslate) -> i128 {
+    let mut acc: i128 = 0;
+    let mut start = 0;
+    let other = &y.cells;
+    for &(wire, i, a) in &x.cells {
+        while start < other.len() && other[start].0 < wire {
+            start += 1;
+        }
+        for &(_, j, b) in other[start..].iter().take_while(|e| e.0 == wire) {
+            let t = pairing
+                .entry(i, j)
+                .saturating_mul(a as i128)
+                .saturating_mul(b as i128);
+            acc = acc.saturating_add(t);
+        }
+    }
+    acc
+}
+
+fn sparse_of(l: &[i64], cell: usize, wire_of: &dyn Fn(usize) -> usize) -> SparseTranslate {
     let entries: Vec<(usize, i64)> = l
         .iter()
         .enumerate()
@@ -48,8 +71,13 @@ fn sparse_of(l: &[i64], wire_of: &dyn Fn(usize) -> usize) -> SparseTranslate {
     let mut wires: Vec<usize> = entries.iter().map(|(f, _)| wire_of(*f)).collect();
     wires.sort_unstable();
     wires.dedup();
+    let cells = entries
+        .iter()
+        .map(|&(f, x)| (f / cell.max(1), f % cell.max(1), x))
+        .collect();
     SparseTranslate {
         l: entries,
+        cells,
         wires,
         set: 0,
     }
@@ -119,7 +147,11 @@ fn symmetric_difference(out: &mut Vec<usize>, x: &[usize], y: &[usize]) {
 }
 
 /// The sparse translates of every channel, with their wire sets numbered.
-fn sparse_channels(channels: &[Channel], wiring: Option<&Wiring>) -> Vec<Vec<SparseTranslate>> {
+fn sparse_channels(
+    channels: &[Channel],
+    wiring: Option<&Wiring>,
+    cell: usize,
+) -> Vec<Vec<SparseTranslate>> {
     let wire_of = |f: usize| wiring.map_or(0, |w| w.wire(f));
     let mut sets: std::collections::HashMap<Vec<usize>, usize> = Default::default();
     channels
@@ -129,7 +161,7 @@ fn sparse_channels(channels: &[Channel], wiring: Option<&Wiring>) -> Vec<Vec<Spa
                 .translates
                 .iter()
                 .map(|t| {
-                    let mut st = sparse_of(&t.l, &wire_of);
+                    let mut st = sparse_of(&t.l, cell, &wire_of);
                     let next = sets.len();
                     st.set = *sets.entry(st.wires.clone()).or_insert(next);
                     st
@@ -139,14 +171,14 @@ fn sparse_channels(channels: &[Channel], wiring: Option<&Wiring>) -> Vec<Vec<Spa
         .collect()
 }
 
-/// Which pairs of wire sets may sum to a channel: [x][y] is false when the
-/// wires in exactly one of sets x and y span more than the widest channel
-/// (all true without a wiring).
+/// For every wire set x, the wire sets y that may pair with it: those for
+/// which the wires in exactly one of x and y span at most the widest
+/// channel (every set without a wiring).
 fn near_sets(
     sparse: &[Vec<SparseTranslate>],
     channels: &[Channel],
     wiring: Option<&Wiring>,
-) -> Vec<Vec<bool>> {
+) -> Vec<Vec<usize>> {
     let mut sets: Vec<&[usize]> = Vec::new();
     for st in sparse.iter().flatten() {
         if st.set == sets.len() {
@@ -154,7 +186,7 @@ fn near_sets(
         }
     }
     let Some(w) = wiring else {
-        return vec![vec![true; sets.len()]; sets.len()];
+        return vec![(0..sets.len()).collect(); sets.len()];
     };
     let widest = channels
         .iter()
@@ -164,9 +196,9 @@ fn near_sets(
     let mut diff = Vec::new();
     sets.iter()
         .map(|x| {
-            sets.iter()
-                .map(|y| {
-                    symmetric_difference(&mut diff, x, y);
+            (0..sets.len())
+                .filter(|&y| {
+                    symmetric_difference(&mut diff, x, sets[y]);
                     w.span_of(&diff) <= widest
                 })
                 .collect()
@@ -174,7 +206,20 @@ fn near_sets(
         .collect()
 }
 
-/// The OPE table (see the module docs and [`super::channels`]).
+/// The translates (channel, translate) of every wire set.
+fn by_set(sparse: &[Vec<SparseTranslate>], sets: usize) -> Vec<Vec<(usize, usize)>> {
+    let mut out = vec![Vec::new(); sets];
+    for (b, translates) in sparse.iter().enumerate() {
+        for (t, st) in translates.iter().enumerate() {
+            out[st.set].push((b, t));
+        }
+    }
+    out
+}
+
+/// The OPE table (see the module docs and [`super::channels`]). The pairs
+/// are visited by wire set, then the entries are put in the order (a, b,
+/// translate, sign).
 pub(super) fn ope_table(
     channels: &[Channel],
     index: &VectorIndex,
@@ -182,46 +227,46 @@ pub(super) fn ope_table(
     ring: bool,
     wiring: Option<&Wiring>,
 ) -> Vec<OpeEntry> {
-    let sparse = sparse_channels(channels, wiring);
+    let sparse = sparse_channels(channels, wiring, pairing.cell());
     let near = near_sets(&sparse, channels, wiring);
+    let members = by_set(&sparse, near.len());
     let lookup: SparseIndex = index
         .entries()
-        .map(|(v, hit)| (pack(&sparse_of(v, &|_| 0).l), hit))
+        .map(|(v, hit)| (pack(&sparse_of(v, 1, &|_| 0).l), hit))
         .collect();
-    let mut table = Vec::new();
+    let mut table: Vec<((usize, usize, usize, bool), OpeEntry)> = Vec::new();
     let mut key = Key::new();
     for (a, ca) in channels.iter().enumerate() {
         let rep = &sparse[a][ca.family.representative];
-        let near = &near[rep.set];
-        for (b, translates) in sparse.iter().enumerate() {
-            for tb in translates {
-                if !near[tb.set] || pairing.scaled_sparse(&rep.l, &tb.l) != 0 {
+        let pairs = near[rep.set].iter().flat_map(|&y| &members[y]);
+        for &(b, t) in pairs {
+            let tb = &sparse[b][t];
+            if scaled(pairing, rep, tb) != 0 {
+                continue;
+            }
+            for (sign, b_conj) in [(1i64, false), (-1, true)] {
+                sum_into(&mut key, &rep.l, &tb.l, sign);
+                let Some(&(target, conj)) = lookup.get(&key).filter(|_| !key.is_empty()) else {
                     continue;
-                }
-                for (sign, b_conj) in [(1i64, false), (-1, true)] {
-                    sum_into(&mut key, &rep.l, &tb.l, sign);
-                    if key.is_empty() {
-                        continue;
-                    }
-                    if let Some(&(target, conj)) = lookup.get(&key) {
-                        let weight = if ring {
-                            ca.family.translates.len() as f64
-                                / channels[target].family.translates.len() as f64
-                        } else {
-                            1.0
-                        };
-                        table.push(OpeEntry {
-                            target,
-                            conj,
-                            a,
-                            b,
-                            b_conj,
-                            weight,
-                        });
-                    }
-                }
+                };
+                let weight = if ring {
+                    ca.family.translates.len() as f64
+                        / channels[target].family.translates.len() as f64
+                } else {
+                    1.0
+                };
+                let entry = OpeEntry {
+                    target,
+                    conj,
+                    a,
+                    b,
+                    b_conj,
+                    weight,
+                };
+                table.push(((a, b, t, b_conj), entry));
             }
         }
     }
-    table
+    table.sort_unstable_by_key(|(k, _)| *k);
+    table.into_iter().map(|(_, e)| e).collect()
 }

@@ -103,10 +103,14 @@ pub fn broken_symmetries(sys: &System, point: &[f64]) -> Result<Broken, Error> {
 fn u1_breaks(sys: &System, s: &Symmetry, charge: &[i64]) -> Vec<(usize, String)> {
     let cell = charge.len().max(1);
     let mut out = Vec::new();
-    for (i, (spec, inv)) in sys.model.terms.iter().zip(&sys.invariants.terms).enumerate() {
-        let tiled: Vec<i64> = (0..inv.particles.len())
-            .map(|f| charge[f % cell])
-            .collect();
+    for (i, (spec, inv)) in sys
+        .model
+        .terms
+        .iter()
+        .zip(&sys.invariants.terms)
+        .enumerate()
+    {
+        let tiled: Vec<i64> = (0..inv.particles.len()).map(|f| charge[f % cell]).collect();
         let q = rational::dot_int(&inv.particles, &tiled);
         let allowed = spec
             .allowed_charges
