@@ -136,6 +136,16 @@ impl Pairing {
         acc
     }
 
+    /// Fields per cell.
+    pub fn cell(&self) -> usize {
+        self.cell
+    }
+
+    /// det(K_c) (K_c^-1)_{ij}, the pairing of two fields i, j of one cell.
+    pub fn entry(&self, i: usize, j: usize) -> i128 {
+        self.adj[i][j]
+    }
+
     /// l and l' commute (l^T K^-1 l' = 0).
     pub fn commute(&self, l: &[i64], lp: &[i64]) -> bool {
         self.scaled(l, lp) == 0

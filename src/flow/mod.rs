@@ -49,6 +49,7 @@ pub mod channels;
 pub mod check;
 pub mod competitors;
 pub mod kt;
+mod ope;
 pub mod options;
 pub mod qtrack;
 pub mod report;
