@@ -375,7 +375,7 @@ impl DimsReport {
                 q.points,
                 q.error_estimate,
                 q.tolerance,
-                if q.converged { "" } else { "; NOT converged" }
+                q.verdict("; ")
             ));
         }
     }
@@ -688,7 +688,7 @@ impl DimsReport {
                     q.points,
                     q.error_estimate,
                     q.tolerance,
-                    if q.converged { "" } else { ", NOT converged" }
+                    q.verdict(", ")
                 ),
             )
         })
