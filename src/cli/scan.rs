@@ -223,11 +223,7 @@ pub(super) fn run_scan(args: ScanArgs) -> Result<(), Error> {
         RowFile::create(&partial, &scan.meta)?
     };
     let todo = scan.count();
-    let every = if args.quiet { 0 } else { args.progress_every };
-    let progress = Progress::new(todo as u64, file.rows as u64, "points", every);
-    if !args.quiet {
-        progress.show("");
-    }
+    let progress = scan_progress(todo as u64, file.rows as u64, &args);
     scan.run_into(&mut file, &|n| progress.add(n as u64))?;
     progress.finish();
     drop(file);
@@ -248,6 +244,17 @@ pub(super) fn run_scan(args: ScanArgs) -> Result<(), Error> {
             print_summary(&dir, &summary, args.format.into(), &prov)
         }
     }
+}
+
+/// The progress of a scan of `total` points, `done` of them resumed (none
+/// with `--quiet`).
+fn scan_progress(total: u64, done: u64, args: &ScanArgs) -> Progress {
+    let every = if args.quiet { 0 } else { args.progress_every };
+    let progress = Progress::new(total, done, "points", every);
+    if !args.quiet {
+        progress.show("");
+    }
+    progress
 }
 
 /// Create and lock the output directory and check what it holds (see
