@@ -5,21 +5,16 @@
 //! checked. No test here is timed: they check the refusals, the estimates
 //! and the bounds (work counts), not the clock.
 
-use std::path::{Path, PathBuf};
-
 use assert_cmd::Command;
 use pinflow::core::system::System;
-use pinflow::error::Error;
 use pinflow::flow::options::FlowOverrides;
 use pinflow::flow::FlowOptions;
 use pinflow::model::Model;
 use pinflow::search::{self, ChargeFilter, HuntOptions, MomentumFilter, Progress, SpinFilter};
 
-fn demo(name: &str) -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR"))
-        .join("flows")
-        .join(name)
-}
+mod common;
+
+use common::{flow_file as demo, input_error, system};
 
 /// The filling-1/3 strip demo with `wires` wires and the given boundary.
 fn strip(wires: usize, boundary: &str) -> String {
@@ -27,17 +22,6 @@ fn strip(wires: usize, boundary: &str) -> String {
     assert!(text.contains("wires = 8\n") && text.contains("boundary = \"open\""));
     text.replace("wires = 8\n", &format!("wires = {wires}\n"))
         .replace("boundary = \"open\"", &format!("boundary = \"{boundary}\""))
-}
-
-fn system(text: &str) -> System {
-    System::new(Model::parse(text, "m.toml").expect("model")).expect("system")
-}
-
-fn input_error(e: Error) -> pinflow::error::InputError {
-    match e {
-        Error::Input(e) => e,
-        other => panic!("expected an input error, got {other}"),
-    }
 }
 
 // ------------------------------------------------------------ flow options
@@ -295,4 +279,27 @@ fn a_pairs_closure_too_large_to_build_is_refused_with_its_estimate() {
     // The demos are far below the limit.
     let strip = System::load(&demo("laughlin_third_strip.toml")).unwrap();
     pinflow::flow::channels::check_closure(&strip, true, None, false).expect("demo");
+}
+
+#[test]
+fn the_pairs_closure_reports_its_progress_over_the_pairs_of_terms() {
+    // The forced `flow` shows this progress (src/cli/common.rs); here the
+    // library side: 12 listed terms make 12 * 13 / 2 = 78 pairs a <= b, the
+    // counts rise to that total, and the plan is the one built without it.
+    let sys = system(&many_terms(8, 12));
+    let mut seen = Vec::new();
+    let plan =
+        pinflow::flow::channels::Plan::build_with_progress(&sys, true, None, &mut |done, total| {
+            seen.push((done, total))
+        });
+    assert!(seen.iter().all(|&(_, total)| total == 78), "{seen:?}");
+    assert_eq!(seen.first(), Some(&(0, 78)));
+    assert_eq!(seen.last(), Some(&(78, 78)));
+    assert!(seen.windows(2).all(|w| w[0].0 <= w[1].0), "{seen:?}");
+    let plain = pinflow::flow::channels::Plan::build(&sys, true, None);
+    assert_eq!(plan.channels.len(), plain.channels.len());
+    assert!(
+        plan.channels.len() > plan.listed,
+        "the closure generated terms"
+    );
 }

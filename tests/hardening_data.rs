@@ -9,24 +9,12 @@
 use std::fs::File;
 use std::io::Write;
 use std::path::{Path, PathBuf};
-use std::time::Duration;
 
-use assert_cmd::Command;
 use predicates::prelude::*;
 
-const BIN: &str = env!("CARGO_BIN_EXE_pinflow");
+mod common;
 
-fn flow_file(name: &str) -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR"))
-        .join("flows")
-        .join(name)
-}
-
-fn pinflow(dir: &Path) -> Command {
-    let mut cmd = Command::new(BIN);
-    cmd.current_dir(dir).timeout(Duration::from_secs(120));
-    cmd
-}
+use common::{flow_file, pinflow};
 
 const AXIS: &str = "lambda=-0.5:0.5:9";
 

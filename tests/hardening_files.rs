@@ -12,22 +12,11 @@ use std::os::unix::fs::FileTypeExt;
 use std::path::{Path, PathBuf};
 use std::time::Duration;
 
-use assert_cmd::Command;
 use predicates::prelude::*;
 
-const BIN: &str = env!("CARGO_BIN_EXE_pinflow");
+mod common;
 
-fn flow_file(name: &str) -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR"))
-        .join("flows")
-        .join(name)
-}
-
-fn pinflow(dir: &Path) -> Command {
-    let mut cmd = Command::new(BIN);
-    cmd.current_dir(dir).timeout(Duration::from_secs(120));
-    cmd
-}
+use common::{flow_file, pinflow, BIN};
 
 /// Every file of a directory (hidden ones too) with its bytes.
 fn listing(dir: &Path) -> BTreeMap<String, Vec<u8>> {

@@ -6,26 +6,15 @@
 //! binary in temporary directories.
 
 use std::io::Write;
-use std::path::{Path, PathBuf};
+use std::path::Path;
 use std::process::Stdio;
 use std::time::{Duration, Instant};
 
-use assert_cmd::Command;
 use predicates::prelude::*;
 
-const BIN: &str = env!("CARGO_BIN_EXE_pinflow");
+mod common;
 
-fn flow_file(name: &str) -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR"))
-        .join("flows")
-        .join(name)
-}
-
-fn pinflow(dir: &Path) -> Command {
-    let mut cmd = Command::new(BIN);
-    cmd.current_dir(dir).timeout(Duration::from_secs(120));
-    cmd
-}
+use common::{flow_file, pinflow, without_provenance, BIN};
 
 fn stdout_of(dir: &Path, args: &[&str]) -> Vec<u8> {
     let out = pinflow(dir).args(args).output().unwrap();
@@ -370,15 +359,4 @@ fn progress_lines_off_a_terminal() {
     }
     let (quiet, _) = run(true, "b");
     assert!(!quiet.contains("progress: "), "{quiet}");
-}
-
-/// A JSON report without its `provenance` block (which names the model
-/// file and its digest).
-fn without_provenance(json: &[u8]) -> serde_json::Value {
-    let mut v: serde_json::Value = serde_json::from_slice(json).expect("JSON output");
-    v.as_object_mut()
-        .expect("a JSON object")
-        .remove("provenance")
-        .expect("a provenance block");
-    v
 }

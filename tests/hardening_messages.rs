@@ -5,17 +5,11 @@
 //! only have to trigger each cause. (The unknown-function message is
 //! tested in `tests/hardening_gaps.rs` and in `src/model/expr.rs`.)
 
-use std::path::Path;
-use std::time::Duration;
-
-use assert_cmd::Command;
 use predicates::prelude::*;
 
-fn pinflow(dir: &Path) -> Command {
-    let mut cmd = Command::new(env!("CARGO_BIN_EXE_pinflow"));
-    cmd.current_dir(dir).timeout(Duration::from_secs(60));
-    cmd
-}
+mod common;
+
+use common::pinflow;
 
 #[test]
 fn subnormal_v_entries_are_named() {

@@ -269,7 +269,7 @@ class Model:
             values[name] = value
         return values, flow
 
-    def dims(self, point: Optional[Mapping[str, float]] = None, *, pin: Sequence[str] = (), wires: Optional[Sequence[Union[int, str]]] = None, **params: float) -> pd.DataFrame:
+    def dims(self, point: Optional[Mapping[str, float]] = None, *, pin: Sequence[str] = (), wires: Optional[Sequence[Union[int, str]]] = None, force: bool = False, **params: float) -> pd.DataFrame:
         """Exact and fixed-point data of every term at one point
         (``pinflow dims``): a DataFrame with the columns of
         ``pinflow dims --format csv``. ``pin``: terms to pin; every term
@@ -277,16 +277,17 @@ class Model:
         (arrays): every term's dimension against array size instead, e.g.
         ``[4, 8, 16, "infinite"]`` (``pinflow dims --wires``). The full
         JSON report is in ``df.attrs["report"]``, the text in
-        ``df.attrs["text"]``.
+        ``df.attrs["text"]``. ``force``: evaluate above the dense size
+        limit (``--force``; otherwise such a model raises InputError).
         """
         values, _ = self._split(point, params, options=False)
-        j, c, t = self._m.dims(values, list(pin), None if wires is None else list(wires))
+        j, c, t = self._m.dims(values, list(pin), None if wires is None else list(wires), force)
         df = _frame(c)
         df.attrs["report"] = json.loads(j)
         df.attrs["text"] = t
         return df
 
-    def flow(self, point: Optional[Mapping[str, float]] = None, *, out: Optional[str] = None, **kwargs: Any) -> FlowResult:
+    def flow(self, point: Optional[Mapping[str, float]] = None, *, out: Optional[str] = None, force: bool = False, **kwargs: Any) -> FlowResult:
         """The second-order RG flow at one point (``pinflow flow``).
 
         Keyword arguments are model parameters or flow options (
@@ -297,14 +298,16 @@ class Model:
         ``competitor_range``, ``competitor_symmetry``;
         docs/flow-options.md).
         ``out``: also write summary.json, trajectory.csv and the flow
-        figure into this directory. Raises InputError at a point where V is
-        not positive definite, RunError when the integration fails.
+        figure into this directory. ``force``: build the pairs closure
+        above its work limit (``--force``). Raises InputError at a point
+        where V is not positive definite, RunError when the integration
+        fails.
         """
         values, options = self._split(point, kwargs, options=True)
-        j, c, t, traj = self._m.flow(values, options, None if out is None else os.fspath(out))
+        j, c, t, traj = self._m.flow(values, options, None if out is None else os.fspath(out), force)
         return FlowResult(j, c, t, traj)
 
-    def scan(self, x: Optional[Axis] = None, y: Optional[Axis] = None, point: Optional[Mapping[str, float]] = None, *, threads: Optional[int] = None, out: Optional[str] = None, force: bool = False, color_by: str = "phase", **kwargs: Any) -> ScanResult:
+    def scan(self, x: Optional[Axis] = None, y: Optional[Axis] = None, point: Optional[Mapping[str, float]] = None, *, threads: Optional[int] = None, out: Optional[str] = None, force: bool = False, overwrite: bool = False, color_by: str = "phase", **kwargs: Any) -> ScanResult:
         """Flow every point of a line or plane of parameters (``pinflow
         scan``). ``x``, ``y``: (name, min, max, n) or (name, min, max, n,
         "log"), or the command's string "name=min:max:n"; by default the
@@ -312,18 +315,21 @@ class Model:
         flow options as for :meth:`flow`. ``threads``: worker threads
         (default all cores; the result does not depend on it). ``out``: keep
         points.csv, summary.json and the figures in this directory (default:
-        a temporary directory, removed). ``force``: run grids above the
-        size limit. ``color_by``: "phase" or "winner" for phase.png.
+        a temporary directory, removed); it is locked while the scan runs,
+        and a folder holding another scan's files is refused unless
+        ``overwrite`` (``--overwrite``). ``force``: run grids above the size
+        limit and a pairs closure above its work limit. ``color_by``:
+        "phase" or "winner" for phase.png.
         """
         values, options = self._split(point, kwargs, options=True)
         xs, ys = _axis_spec(x, "x"), _axis_spec(y, "y")
         if out is not None:
-            return self._scan_into(os.fspath(out), values, xs, ys, options, threads, force, color_by, keep=True)
+            return self._scan_into(os.fspath(out), values, xs, ys, options, threads, force, color_by, overwrite, keep=True)
         with tempfile.TemporaryDirectory(prefix="pinflow-scan-") as d:
-            return self._scan_into(d, values, xs, ys, options, threads, force, color_by, keep=False)
+            return self._scan_into(d, values, xs, ys, options, threads, force, color_by, overwrite, keep=False)
 
-    def _scan_into(self, d: str, values: Dict[str, float], xs: Optional[str], ys: Optional[str], options: Dict[str, Any], threads: Optional[int], force: bool, color_by: str, keep: bool) -> ScanResult:
-        summary = self._m.scan(values, xs, ys, options, d, threads, force, color_by)
+    def _scan_into(self, d: str, values: Dict[str, float], xs: Optional[str], ys: Optional[str], options: Dict[str, Any], threads: Optional[int], force: bool, color_by: str, overwrite: bool, keep: bool) -> ScanResult:
+        summary = self._m.scan(values, xs, ys, options, d, threads, force, color_by, overwrite)
         with open(os.path.join(d, "points.csv"), encoding="utf-8", newline="") as f:
             csv_text = f.read()
         return ScanResult(csv_text, json.loads(summary), d if keep else None)
@@ -346,17 +352,18 @@ class Model:
         df.attrs.update(report=json.loads(j), text=t, terms_toml=toml)
         return df
 
-    def edges(self, pin: Sequence[str] = (), point: Optional[Mapping[str, float]] = None, *, window: Optional[int] = None, **kwargs: Any) -> EdgesResult:
+    def edges(self, pin: Sequence[str] = (), point: Optional[Mapping[str, float]] = None, *, window: Optional[int] = None, force: bool = False, **kwargs: Any) -> EdgesResult:
         """What a pinned set of terms leaves (``pinflow edges``): gapped
         pairs, and the K matrix, charges and filling at each end. ``pin``:
         the terms to pin (every translate); by default the flow at the
         point picks them (flow options as for :meth:`flow`). ``window``:
-        wires in the window at each end of an open array.
+        wires in the window at each end of an open array. ``force``: run
+        above the size limit and the closure's work limit (``--force``).
         """
         if isinstance(pin, str):
             pin = [pin]
         values, options = self._split(point, kwargs, options=True)
-        j, c, t = self._m.edges(values, list(pin), window, options)
+        j, c, t = self._m.edges(values, list(pin), window, options, force)
         return EdgesResult(j, c, t)
 
 

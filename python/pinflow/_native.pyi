@@ -33,10 +33,18 @@ class Model:
     def params(self) -> List[Tuple[str, float]]: ...
     def terms(self) -> List[str]: ...
     def dims(
-        self, point: Dict[str, float], pin: List[str], wires: Optional[List[Union[int, str]]] = None
+        self,
+        point: Dict[str, float],
+        pin: List[str],
+        wires: Optional[List[Union[int, str]]] = None,
+        force: bool = False,
     ) -> Tuple[str, str, str]: ...
     def flow(
-        self, point: Dict[str, float], options: Dict[str, Any], out: Optional[str] = None
+        self,
+        point: Dict[str, float],
+        options: Dict[str, Any],
+        out: Optional[str] = None,
+        force: bool = False,
     ) -> Tuple[str, str, str, str]: ...
     def scan(
         self,
@@ -48,6 +56,7 @@ class Model:
         threads: Optional[int] = None,
         force: bool = False,
         color_by: str = "phase",
+        overwrite: bool = False,
     ) -> str: ...
     def hunt(
         self,
@@ -67,6 +76,7 @@ class Model:
         pin: List[str],
         window: Optional[int],
         options: Dict[str, Any],
+        force: bool = False,
     ) -> Tuple[str, str, str]: ...
 
 def run_cli(argv: List[str]) -> int: ...

@@ -42,9 +42,13 @@ fn keyword(flag: &str) -> String {
         .join("/")
 }
 
-/// A message with every `--flag` replaced by its keyword argument.
+/// A message with every `--flag` replaced by its keyword argument (the
+/// switches `--force` and `--overwrite` as `force=True`, `overwrite=True`).
 fn reword(message: &str) -> String {
-    let message = message.replace("the flag", "the keyword argument");
+    let message = message
+        .replace("the flag", "the keyword argument")
+        .replace("--force", "force=True")
+        .replace("--overwrite", "overwrite=True");
     let mut out = String::with_capacity(message.len());
     let mut rest = message.as_str();
     while let Some(i) = rest.find("--") {

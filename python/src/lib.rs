@@ -28,7 +28,7 @@ use pinflow::flow::report::FlowReport;
 use pinflow::flow::{FlowOptions, Outcome};
 use pinflow::output::{self, Format, Report};
 use pinflow::scan::run::{check_size, resolve_axes, run_to_dir};
-use pinflow::scan::{Scan, ScanSpec};
+use pinflow::scan::{folder, partial_path, Scan, ScanSpec};
 use pinflow::search::{emit_terms, hunt, smallest_coupling, HuntOptions};
 use pyo3::prelude::*;
 use pyo3::types::PyDict;
@@ -122,14 +122,16 @@ impl Model {
     }
 
     /// `pinflow dims`: (json, csv, text); with `wires`, the convergence
-    /// report of `--wires` instead.
-    #[pyo3(signature = (point, pin, wires = None))]
+    /// report of `--wires` instead. `force`: `--force` (the dense size
+    /// limit).
+    #[pyo3(signature = (point, pin, wires = None, force = false))]
     fn dims(
         &self,
         py: Python<'_>,
         point: &Bound<'_, PyDict>,
         pin: Vec<String>,
         wires: Option<Vec<Bound<'_, PyAny>>>,
+        force: bool,
     ) -> PyResult<(String, String, String)> {
         let set = point_overrides(point)?;
         let sizes = args::wire_counts(wires)?;
@@ -148,6 +150,7 @@ impl Model {
                     &sys.model, &point, sizes, "wires",
                 )?);
             }
+            pinflow::dims::check_size(sys, force)?;
             let opts = DimsOptions {
                 pins: pin,
                 ..Default::default()
@@ -159,14 +162,16 @@ impl Model {
     }
 
     /// `pinflow flow`: (json, csv, text, trajectory csv); with `out`, also
-    /// the command's files in that directory.
-    #[pyo3(signature = (point, options, out = None))]
+    /// the command's files in that directory. `force`: `--force` (the
+    /// closure's work limit).
+    #[pyo3(signature = (point, options, out = None, force = false))]
     fn flow(
         &self,
         py: Python<'_>,
         point: &Bound<'_, PyDict>,
         options: &Bound<'_, PyDict>,
         out: Option<PathBuf>,
+        force: bool,
     ) -> PyResult<(String, String, String, String)> {
         let set = point_overrides(point)?;
         let over = flow_overrides(options)?;
@@ -177,6 +182,7 @@ impl Model {
             }
             let point = sys.model.point_with(&set, "point")?;
             let opts = FlowOptions::resolve(&sys.model, &over)?;
+            check_closure(sys, &opts, force)?;
             let result = flow_once(sys, &point, &opts, comp)?;
             let names = sys.model.params.names();
             let report = FlowReport::new(&sys.model.name, names, &point, result, opts);
@@ -190,7 +196,10 @@ impl Model {
     }
 
     /// `pinflow scan` into the directory `out`: returns summary.json's text.
-    #[pyo3(signature = (point, x, y, options, out, threads = None, force = false, color_by = "phase"))]
+    /// `force`: `--force` (grid size and closure limits); `overwrite`:
+    /// `--overwrite` (a folder holding another scan's files). The folder
+    /// is locked while the scan runs, as by the command.
+    #[pyo3(signature = (point, x, y, options, out, threads = None, force = false, color_by = "phase", overwrite = false))]
     #[allow(clippy::too_many_arguments)]
     fn scan(
         &self,
@@ -203,6 +212,7 @@ impl Model {
         threads: Option<usize>,
         force: bool,
         color_by: &str,
+        overwrite: bool,
     ) -> PyResult<String> {
         let set = point_overrides(point)?;
         let over = flow_overrides(options)?;
@@ -213,6 +223,7 @@ impl Model {
             let base = sys.model.point_with(&set, "point")?;
             let axes = resolve_axes(&sys.model, x.as_deref(), y.as_deref())?;
             let options = FlowOptions::resolve(&sys.model, &over)?;
+            check_closure(sys, &options, force)?;
             let spec = ScanSpec {
                 axes,
                 base,
@@ -222,7 +233,13 @@ impl Model {
             };
             let scan = Scan::new(sys, &self.bytes, spec)?;
             check_size(scan.points(), force)?;
+            output::check_output_dir(&out, "out")?;
+            let partial = partial_path(&out, None);
+            let lock = folder::claim(&out, None, || {
+                folder::check_whole(&out, &partial, overwrite, None)
+            })?;
             let summary = pool.install(|| run_to_dir(&scan, &out, by, "out"))?;
+            drop(lock);
             output::to_json(&summary)
         })
     }
@@ -269,8 +286,9 @@ impl Model {
         })
     }
 
-    /// `pinflow edges`: (json, csv, text).
-    #[pyo3(signature = (point, pin, window, options))]
+    /// `pinflow edges`: (json, csv, text). `force`: `--force` (the size
+    /// limit, and the closure's work limit when the flow picks the pins).
+    #[pyo3(signature = (point, pin, window, options, force = false))]
     fn edges(
         &self,
         py: Python<'_>,
@@ -278,6 +296,7 @@ impl Model {
         pin: Vec<String>,
         window: Option<Bound<'_, PyAny>>,
         options: &Bound<'_, PyDict>,
+        force: bool,
     ) -> PyResult<(String, String, String)> {
         let set = point_overrides(point)?;
         let over = flow_overrides(options)?;
@@ -285,7 +304,11 @@ impl Model {
         let window = args::window(window)?;
         self.run(py, |sys| {
             let point = sys.model.point_with(&set, "point")?;
+            pinflow::edges::check_size(sys, force)?;
             let opts = FlowOptions::resolve(&sys.model, &over)?;
+            if pin.is_empty() {
+                check_closure(sys, &opts, force)?;
+            }
             let selection: Selection = if pin.is_empty() {
                 pins::from_flow(sys, &point, opts)?
             } else {
@@ -326,6 +349,13 @@ fn check_flow(sys: &System, point: &[f64], report: &FlowReport) -> Result<(), Er
         ))),
         _ => Ok(()),
     }
+}
+
+/// The closure's work limit, as the commands apply it
+/// (`pinflow::flow::channels::check_closure`).
+fn check_closure(sys: &System, opts: &FlowOptions, force: bool) -> Result<(), Error> {
+    let generate = opts.closure == pinflow::flow::Closure::Pairs;
+    pinflow::flow::channels::check_closure(sys, generate, opts.closure_range, force)
 }
 
 /// A thread pool of `threads` workers (None: rayon's default, all cores).

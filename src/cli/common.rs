@@ -1,14 +1,19 @@
 //! What several commands share: the model and `--set` arguments, the flow
 //! flags, the output format, and writing to standard output or a file.
 
-use std::io::Write;
+use std::cell::Cell;
+use std::io::{IsTerminal, Write};
 use std::path::{Path, PathBuf};
+use std::time::{Duration, Instant};
 
 use clap::{Args, ValueEnum};
+use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
 
 use crate::core::system::System;
 use crate::error::{Error, InputError};
+use crate::flow::channels::{self, Plan};
 use crate::flow::options::{Closure, FlowOverrides};
+use crate::flow::FlowOptions;
 use crate::model::Model;
 use crate::output::provenance::Provenance;
 use crate::output::{self, Format};
@@ -359,4 +364,145 @@ impl FigureStyleArg {
             FigureStyleArg::Paper => crate::plot::FigureStyle::Paper,
         });
     }
+}
+
+/// Progress of long work: a bar on a terminal (once [`Progress::show`]n);
+/// off a terminal (a batch job's log) one plain line every `every` seconds
+/// (`--progress-every`; 0: none). Only stderr.
+pub(crate) struct Progress {
+    bar: ProgressBar,
+    plain: Option<Plain>,
+}
+
+/// State of the plain progress lines.
+struct Plain {
+    every: Duration,
+    total: u64,
+    unit: &'static str,
+    label: Cell<&'static str>,
+    start: Instant,
+    /// Units done at the start (resumed) and now; time of the last line.
+    state: Cell<(u64, u64, Instant)>,
+}
+
+impl Progress {
+    /// `total` units of work (`unit`, e.g. "points"), `done` of them
+    /// already done (a resumed scan).
+    pub(crate) fn new(total: u64, done: u64, unit: &'static str, every: u64) -> Progress {
+        let plain = (!std::io::stderr().is_terminal() && every > 0).then(|| Plain {
+            every: Duration::from_secs(every),
+            total,
+            unit,
+            label: Cell::new("progress"),
+            start: Instant::now(),
+            state: Cell::new((done, done, Instant::now())),
+        });
+        let bar = ProgressBar::hidden();
+        bar.set_length(total);
+        bar.set_position(done);
+        bar.set_style(
+            ProgressStyle::with_template(&format!(
+                "{{msg}}{{bar:40}} {{pos}}/{{len}} {unit}, {{per_sec}}, eta {{eta}}"
+            ))
+            .unwrap_or_else(|_| ProgressStyle::default_bar()),
+        );
+        Progress { bar, plain }
+    }
+
+    /// Draw the bar on a terminal, after `label` (the plain lines start
+    /// with it instead of "progress").
+    pub(crate) fn show(&self, label: &'static str) {
+        if std::io::stderr().is_terminal() {
+            self.bar.set_draw_target(ProgressDrawTarget::stderr());
+            if !label.is_empty() {
+                self.bar.set_message(format!("{label} "));
+            }
+        }
+        if let (Some(p), false) = (&self.plain, label.is_empty()) {
+            p.label.set(label);
+        }
+    }
+
+    /// `n` more units done.
+    pub(crate) fn add(&self, n: u64) {
+        self.bar.inc(n);
+        if let Some(p) = &self.plain {
+            p.add(n);
+        }
+    }
+
+    /// `done` units done in all.
+    pub(crate) fn set(&self, done: u64) {
+        let now = self.bar.position();
+        self.add(done.saturating_sub(now));
+    }
+
+    pub(crate) fn finish(&self) {
+        self.bar.finish_and_clear();
+    }
+}
+
+impl Plain {
+    fn add(&self, n: u64) {
+        let (first, done, last) = self.state.get();
+        let done = done + n;
+        let now = Instant::now();
+        if now.duration_since(last) < self.every || done >= self.total {
+            self.state.set((first, done, last));
+            return;
+        }
+        self.state.set((first, done, now));
+        let secs = now.duration_since(self.start).as_secs_f64();
+        let rate = (done - first) as f64 / secs.max(1e-9);
+        let left = (self.total - done) as f64 / rate.max(1e-9);
+        eprintln!(
+            "{}: {done}/{} {unit} ({:.1}%), {rate:.3} {unit}/s, about {} left",
+            self.label.get(),
+            self.total,
+            100.0 * done as f64 / self.total.max(1) as f64,
+            human_duration(left),
+            unit = self.unit,
+        );
+    }
+}
+
+/// A duration in seconds as `1h02m`, `3m05s` or `12s`.
+fn human_duration(secs: f64) -> String {
+    let s = secs.round().min(1e9) as u64;
+    match s {
+        0..60 => format!("{s}s"),
+        60..3600 => format!("{}m{:02}s", s / 60, s % 60),
+        _ => format!("{}h{:02}m", s / 3600, (s % 3600) / 60),
+    }
+}
+
+/// The flow's plan ([`Plan::build`]). A pairs closure above its work limit
+/// (run only with `--force`) first says its estimate on stderr, then shows
+/// its progress over the pairs of listed terms ([`Progress`]).
+pub(crate) fn plan_with_progress(sys: &System, opts: &FlowOptions, every: u64) -> Plan {
+    let generate = opts.closure == Closure::Pairs;
+    let range = opts.closure_range;
+    let work = channels::closure_work(sys, generate, range);
+    if !generate || work <= channels::CLOSURE_WORK_LIMIT {
+        return Plan::build(sys, generate, range);
+    }
+    eprintln!(
+        "note: the pairs closure of {} listed terms is forced past its limit: about {work:.1e} units of work (limit {:.0e}, about 10 s)",
+        sys.model.terms.len(),
+        channels::CLOSURE_WORK_LIMIT
+    );
+    let mut progress: Option<Progress> = None;
+    let plan = Plan::build_with_progress(sys, generate, range, &mut |done, total| {
+        progress
+            .get_or_insert_with(|| {
+                let p = Progress::new(total, 0, "pairs", every);
+                p.show("pairs closure");
+                p
+            })
+            .set(done)
+    });
+    if let Some(p) = progress {
+        p.finish();
+    }
+    plan
 }

@@ -13,7 +13,7 @@ use crate::core::system::System;
 use crate::error::{Error, InputError};
 use crate::flow::competitors::{flow_once, CompetitorOptions};
 use crate::flow::report::{FlowReport, PlotTerms};
-use crate::flow::{FlowOptions, Outcome};
+use crate::flow::{Flow, FlowOptions, Outcome};
 use crate::output;
 use crate::search::SymmetryChoice;
 
@@ -44,6 +44,10 @@ pub struct FlowArgs {
     /// Build the pairs closure even when its estimated work is above the limit.
     #[arg(long)]
     pub force: bool,
+    /// Off a terminal (a batch job's log), print one plain progress line of
+    /// a forced pairs closure to standard error every SECONDS (0: never).
+    #[arg(long, value_name = "SECONDS", default_value_t = 60)]
+    pub progress_every: u64,
 }
 
 /// Hunted competitors in the flow (`flow` and `scan`).
@@ -116,7 +120,13 @@ pub(super) fn run(args: FlowArgs) -> Result<(), Error> {
     let generate = opts.closure == crate::flow::Closure::Pairs;
     crate::flow::channels::check_closure(&sys, generate, opts.closure_range, args.force)?;
     let comp = args.competitors.resolve(&sys)?;
-    let result = flow_once(&sys, &point, &opts, comp)?;
+    let result = match comp {
+        None => {
+            let plan = super::common::plan_with_progress(&sys, &opts, args.progress_every);
+            Flow::with_plan(&sys, plan, opts.clone()).run(&point)?
+        }
+        comp => flow_once(&sys, &point, &opts, comp)?,
+    };
     let unphysical = result.outcome == Outcome::Unphysical;
     let failed = result.outcome == Outcome::Failed;
     let names = sys.model.params.names();

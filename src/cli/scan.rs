@@ -1,17 +1,13 @@
 //! `pinflow scan` and `pinflow merge`: file handling, threads, the progress
 //! bar and the summary printed at the end.
 
-use std::cell::Cell;
-use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
-use std::time::{Duration, Instant};
 
 use clap::Args;
-use indicatif::{ProgressBar, ProgressStyle};
 
 use super::common::{
     bare_provenance, emit, emit_report, load_point_text, options_json, provenance, stamp_dir,
-    FigureStyleArg, FlowFlags, FormatArg, PointArgs,
+    FigureStyleArg, FlowFlags, FormatArg, PointArgs, Progress,
 };
 use crate::core::system::System;
 use crate::error::{Error, InputError};
@@ -227,7 +223,7 @@ pub(super) fn run_scan(args: ScanArgs) -> Result<(), Error> {
         RowFile::create(&partial, &scan.meta)?
     };
     let todo = scan.count();
-    let progress = Progress::new(todo as u64, file.rows as u64, &args);
+    let progress = scan_progress(todo as u64, file.rows as u64, &args);
     scan.run_into(&mut file, &|n| progress.add(n as u64))?;
     progress.finish();
     drop(file);
@@ -250,33 +246,29 @@ pub(super) fn run_scan(args: ScanArgs) -> Result<(), Error> {
     }
 }
 
+/// The progress of a scan of `total` points, `done` of them resumed (none
+/// with `--quiet`).
+fn scan_progress(total: u64, done: u64, args: &ScanArgs) -> Progress {
+    let every = if args.quiet { 0 } else { args.progress_every };
+    let progress = Progress::new(total, done, "points", every);
+    if !args.quiet {
+        progress.show("");
+    }
+    progress
+}
+
 /// Create and lock the output directory and check what it holds (see
 /// `scan::folder`). None: a `--resume`d shard that is already complete
 /// (nothing to do).
 fn prepare_dir(dir: &Path, meta: &Meta, args: &ScanArgs) -> Result<Option<FolderLock>, Error> {
     let shard = meta.shard;
-    let (lock, created) = lock_dir(dir, shard)?;
-    let partial = partial_path(dir, shard);
-    let checked = match shard {
+    folder::claim(dir, shard, || match shard {
         Some((k, n)) => check_shard_dir(dir, meta, (k, n), args),
-        None => check_scan_dir(dir, &partial, args),
-    };
-    match checked {
-        Ok(true) => {
-            if shard.is_none() {
-                folder::remove_temporaries(dir)?;
-            }
-            Ok(Some(lock))
+        None => {
+            let partial = partial_path(dir, None);
+            folder::check_whole(dir, &partial, args.overwrite, Some(args.resume))
         }
-        Ok(false) => Ok(None),
-        Err(e) => {
-            drop(lock);
-            if created {
-                let _ = std::fs::remove_file(dir.join(folder::LOCK));
-            }
-            Err(e)
-        }
-    }
+    })
 }
 
 /// Create `dir` and take its lock; also says whether the lock file is new
@@ -285,22 +277,6 @@ fn lock_dir(dir: &Path, shard: Option<(usize, usize)>) -> Result<(FolderLock, bo
     std::fs::create_dir_all(dir).map_err(|e| Error::io(dir, e))?;
     let created = !dir.join(folder::LOCK).exists();
     Ok((folder::lock(dir, shard)?, created))
-}
-
-/// A whole scan: the directory may not hold another scan's files, unless
-/// `--overwrite`, or `--resume` with an interrupted scan to continue.
-fn check_scan_dir(dir: &Path, partial: &Path, args: &ScanArgs) -> Result<bool, Error> {
-    if args.overwrite || (args.resume && partial.exists()) {
-        return Ok(true);
-    }
-    let mut found = folder::present(dir, &folder::OUTPUTS);
-    let mut hint = "";
-    if partial.exists() {
-        found.push(format!("the unfinished {}", file_name(partial)));
-        hint = ", --resume to continue the unfinished scan";
-    }
-    folder::refuse_existing(dir, &found, hint)?;
-    Ok(true)
 }
 
 /// A shard: its finished file is kept unless `--overwrite`; with
@@ -524,92 +500,4 @@ fn default_dir(model: &Path) -> PathBuf {
         .map(|s| s.to_string_lossy().to_string())
         .unwrap_or_else(|| "scan".into());
     PathBuf::from("out").join(stem)
-}
-
-/// Progress of a scan: a bar on a terminal; off a terminal (a batch job's
-/// log) one plain line every `--progress-every` seconds.
-struct Progress {
-    bar: ProgressBar,
-    plain: Option<Plain>,
-}
-
-/// State of the plain progress lines.
-struct Plain {
-    every: Duration,
-    total: u64,
-    start: Instant,
-    /// Points done at the start (resumed) and now; time of the last line.
-    state: Cell<(u64, u64, Instant)>,
-}
-
-impl Progress {
-    fn new(total: u64, done: u64, args: &ScanArgs) -> Progress {
-        let terminal = std::io::stderr().is_terminal();
-        let plain = (!args.quiet && !terminal && args.progress_every > 0).then(|| Plain {
-            every: Duration::from_secs(args.progress_every),
-            total,
-            start: Instant::now(),
-            state: Cell::new((done, done, Instant::now())),
-        });
-        Progress {
-            bar: progress_bar(total, done, args.quiet),
-            plain,
-        }
-    }
-
-    fn add(&self, n: u64) {
-        self.bar.inc(n);
-        if let Some(p) = &self.plain {
-            p.add(n);
-        }
-    }
-
-    fn finish(&self) {
-        self.bar.finish_and_clear();
-    }
-}
-
-impl Plain {
-    fn add(&self, n: u64) {
-        let (first, done, last) = self.state.get();
-        let done = done + n;
-        let now = Instant::now();
-        if now.duration_since(last) < self.every || done >= self.total {
-            self.state.set((first, done, last));
-            return;
-        }
-        self.state.set((first, done, now));
-        let secs = now.duration_since(self.start).as_secs_f64();
-        let rate = (done - first) as f64 / secs.max(1e-9);
-        let left = (self.total - done) as f64 / rate.max(1e-9);
-        eprintln!(
-            "progress: {done}/{} points ({:.1}%), {rate:.3} points/s, about {} left",
-            self.total,
-            100.0 * done as f64 / self.total.max(1) as f64,
-            human_duration(left)
-        );
-    }
-}
-
-/// A duration in seconds as `1h02m`, `3m05s` or `12s`.
-fn human_duration(secs: f64) -> String {
-    let s = secs.round().min(1e9) as u64;
-    match s {
-        0..60 => format!("{s}s"),
-        60..3600 => format!("{}m{:02}s", s / 60, s % 60),
-        _ => format!("{}h{:02}m", s / 3600, (s % 3600) / 60),
-    }
-}
-
-fn progress_bar(total: u64, done: u64, quiet: bool) -> ProgressBar {
-    if quiet || !std::io::stderr().is_terminal() {
-        return ProgressBar::hidden();
-    }
-    let bar = ProgressBar::new(total);
-    bar.set_style(
-        ProgressStyle::with_template("{bar:40} {pos}/{len} points, {per_sec}, eta {eta}")
-            .unwrap_or_else(|_| ProgressStyle::default_bar()),
-    );
-    bar.set_position(done);
-    bar
 }

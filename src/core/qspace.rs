@@ -512,8 +512,24 @@ pub struct Quadrature {
     pub error_estimate: f64,
     /// The tolerance asked for (absolute).
     pub tolerance: f64,
-    /// error_estimate <= tolerance.
+    /// error_estimate <= tolerance, or (for values above 100) below their
+    /// rounding noise ([`ROUNDING`], see [`settled`]).
     pub converged: bool,
+}
+
+impl Quadrature {
+    /// What the reports add after the tolerance: "" when the estimate meets
+    /// it, else whether the rule is not converged or settled at the
+    /// rounding noise of large values ([`settled`]).
+    pub fn verdict(&self, separator: &str) -> String {
+        if !self.converged {
+            format!("{separator}NOT converged")
+        } else if self.error_estimate > self.tolerance {
+            format!("{separator}converged to the rounding noise of values above 100")
+        } else {
+            String::new()
+        }
+    }
 }
 
 /// The quantities the refinement watches: every term's dimension and the
@@ -543,6 +559,23 @@ fn largest_change(a: &[f64], b: &[f64]) -> f64 {
         .fold(0.0, f64::max)
 }
 
+/// Relative size of the rounding noise of an N-point sum (and of the
+/// per-q eigendecompositions behind it): a change below `ROUNDING` times
+/// the value is noise, not quadrature error, and no number of points
+/// removes it. About 4500 ulps; it matters only for values above 100 (the
+/// absolute tolerance 1e-10 is 1e-12 of 100). Without it, a term with a
+/// huge dimension (Delta = 5e11 from entries of 10^6) never meets an
+/// absolute tolerance and the rule grew to [`MAX_POINTS`].
+pub const ROUNDING: f64 = 1e-12;
+
+/// Whether every pair (a_i, b_i) agrees within `tolerance` or, for large
+/// values, within their rounding noise ([`ROUNDING`] times the larger).
+pub fn settled(a: &[f64], b: &[f64], tolerance: f64) -> bool {
+    a.iter()
+        .zip(b)
+        .all(|(x, y)| (x - y).abs() <= tolerance.max(ROUNDING * x.abs().max(y.abs())))
+}
+
 /// The lowest number of points worth starting from: a power of two, at
 /// least [`MIN_POINTS`] and at least 4 (R + 1) for interactions and terms of
 /// range R (so the coarsest rule already resolves the trigonometric
@@ -565,15 +598,15 @@ pub fn refine(
 ) -> Result<(QFixedPoint, Quadrature), NotPositive> {
     let lq = |points: usize| term_vectors(terms, k.nrows(), points);
     let finer = fp.refined(k, blocks)?;
-    let change = largest_change(
-        &watched(&finer, &lq(finer.points)),
-        &watched(fp, &lq(fp.points)),
+    let (a, b) = (
+        watched(&finer, &lq(finer.points)),
+        watched(fp, &lq(fp.points)),
     );
     let quad = Quadrature {
         points: finer.points,
-        error_estimate: change,
+        error_estimate: largest_change(&a, &b),
         tolerance,
-        converged: change <= tolerance,
+        converged: settled(&a, &b, tolerance),
     };
     Ok((finer, quad))
 }
@@ -614,21 +647,19 @@ pub fn on_rule(
     let lq = |points: usize| term_vectors(terms, k.nrows(), points);
     let fp = QFixedPoint::solve(k, blocks, points)?;
     let finer = fp.refined(k, blocks)?;
-    let change = largest_change(
-        &watched(&fp, &lq(points)),
-        &watched(&finer, &lq(2 * points)),
-    );
+    let (a, b) = (watched(&fp, &lq(points)), watched(&finer, &lq(2 * points)));
     certify_positive(blocks, 2 * points)?;
     // |I_N - I| <= |I_N - I_2N| + |I_2N - I| <= 2 |I_N - I_2N| when
     // |I_2N - I| <= |I_N - I| / 2.
-    let estimate = 2.0 * change;
+    let estimate = 2.0 * largest_change(&a, &b);
+    let doubled: Vec<f64> = a.iter().zip(&b).map(|(x, y)| x + 2.0 * (y - x)).collect();
     Ok((
         fp,
         Quadrature {
             points,
             error_estimate: estimate,
             tolerance,
-            converged: estimate <= tolerance,
+            converged: settled(&a, &doubled, tolerance),
         },
     ))
 }

@@ -404,14 +404,15 @@ impl System {
                 .map_err(|e| self.unphysical(point, e))?;
             let next = finer.real_space_window(wires);
             let change = (&next - &window).amax();
+            let converged = qspace::settled(next.as_slice(), window.as_slice(), qspace::TOLERANCE);
             fp = finer;
             window = next;
-            if change <= qspace::TOLERANCE || fp.points >= qspace::MAX_POINTS {
+            if converged || fp.points >= qspace::MAX_POINTS {
                 let quad = Quadrature {
                     points: fp.points,
                     error_estimate: change,
                     tolerance: qspace::TOLERANCE,
-                    converged: change <= qspace::TOLERANCE,
+                    converged,
                 };
                 return Ok((window, Some(quad)));
             }

@@ -380,7 +380,7 @@ impl DimsReport {
                 q.points,
                 q.error_estimate,
                 q.tolerance,
-                if q.converged { "" } else { "; NOT converged" }
+                q.verdict("; ")
             ));
         }
     }
@@ -694,7 +694,7 @@ impl DimsReport {
                     q.points,
                     q.error_estimate,
                     q.tolerance,
-                    if q.converged { "" } else { ", NOT converged" }
+                    q.verdict(", ")
                 ),
             )
         })

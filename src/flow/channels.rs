@@ -215,6 +215,18 @@ impl Plan {
     /// extra sector are skipped, since its fusion is not known) no wider
     /// than `range` wires (None: the default, see the module docs).
     pub fn build(sys: &System, generate: bool, range: Option<usize>) -> Plan {
+        Plan::build_with_progress(sys, generate, range, &mut |_, _| {})
+    }
+
+    /// [`Plan::build`], calling `progress(done, total)` with the pairs of
+    /// listed channels the closure has gone through (after each first
+    /// member of a pair; for a progress bar, it must not print to stdout).
+    pub fn build_with_progress(
+        sys: &System,
+        generate: bool,
+        range: Option<usize>,
+        progress: &mut dyn FnMut(u64, u64),
+    ) -> Plan {
         let per_translate = translate_dependent(sys);
         let split = !per_translate.is_empty() && !sys.is_infinite() && sys.lattice.wires > 1;
         let mut plan = Plan {
@@ -238,7 +250,8 @@ impl Plan {
                 .map(|w| range.unwrap_or_else(|| default_range(w, &plan.channels[..plan.listed])));
             plan.range = applied;
             plan.range_note = Some(range_note(applied, range.is_some()));
-            plan.generate_candidates(sys, &mut index, wiring.as_ref().zip(applied));
+            let range = wiring.as_ref().zip(applied);
+            plan.generate_candidates(sys, &mut index, range, progress);
         }
         let ring = sys.lattice.boundary == Some(Boundary::Periodic) && !split;
         let wiring = Wiring::of(sys);
@@ -297,9 +310,12 @@ impl Plan {
         sys: &System,
         index: &mut VectorIndex,
         range: Option<(&Wiring, usize)>,
+        progress: &mut dyn FnMut(u64, u64),
     ) {
         let listed = self.listed;
+        let pairs = |a: usize| (a * listed - a * a.saturating_sub(1) / 2) as u64;
         for a in 0..listed {
+            progress(pairs(a), pairs(listed));
             for b in a..listed {
                 if has_extra(sys, self.term_of(a)) || has_extra(sys, self.term_of(b)) {
                     continue;
@@ -315,6 +331,7 @@ impl Plan {
                 }
             }
         }
+        progress(pairs(listed), pairs(listed));
     }
 
     /// One candidate rep(a) + sign * tb (see [`Plan::generate_candidates`]).

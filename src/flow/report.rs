@@ -338,7 +338,7 @@ impl Report for FlowReport {
                     q.points,
                     q.error_estimate,
                     q.tolerance,
-                    if q.converged { "" } else { ", NOT converged" }
+                    q.verdict(", ")
                 ),
             ));
         }

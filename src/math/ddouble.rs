@@ -276,13 +276,19 @@ pub fn lower_inverse(l: &DdMat) -> DdMat {
 /// (eigenvalues, eigenvectors as the columns of an orthogonal matrix), in
 /// the order the rotations leave them. A pair (p, q) is rotated while
 /// |a_pq| exceeds 2^-106 sqrt(|a_pp a_qq|) (the relative-accuracy
-/// criterion); at most 60 sweeps.
+/// criterion); at most 60 sweeps. An entry that is not finite (in `s` or
+/// after a sweep) ends the iteration at once: no rotation can repair it,
+/// and the caller sees it in the result (NaN never meets the criterion, so
+/// every sweep would otherwise rotate every pair, 60 times).
 pub fn jacobi_eigen(s: &DdMat) -> (Vec<Dd>, DdMat) {
     let n = s.n;
     let mut a = s.symmetrised();
     let mut u = DdMat::identity(n);
     let tiny = 2f64.powi(-106);
     for _ in 0..60 {
+        if !(0..n).all(|p| (0..n).all(|q| a.at(p, q).hi.is_finite())) {
+            break;
+        }
         let mut rotated = false;
         for p in 0..n {
             for q in p + 1..n {

@@ -134,6 +134,62 @@ fn held(path: &Path, file: &mut File, e: TryLockError, dir: &Path) -> Error {
     .into()
 }
 
+/// Create `dir`, take its lock (see [`lock`]) and run `check` on what it
+/// holds. `Ok(Some(lock))`: go ahead (a whole scan has also removed the
+/// temporaries a killed run left); `Ok(None)`: nothing to do. A refusal
+/// leaves the folder as it was: a lock file made by this call is removed.
+pub fn claim(
+    dir: &Path,
+    shard: Option<(usize, usize)>,
+    check: impl FnOnce() -> Result<bool, Error>,
+) -> Result<Option<FolderLock>, Error> {
+    fs::create_dir_all(dir).map_err(|e| Error::io(dir, e))?;
+    let created = !dir.join(LOCK).exists();
+    let lock = lock(dir, shard)?;
+    match check() {
+        Ok(true) => {
+            if shard.is_none() {
+                remove_temporaries(dir)?;
+            }
+            Ok(Some(lock))
+        }
+        Ok(false) => Ok(None),
+        Err(e) => {
+            drop(lock);
+            if created {
+                let _ = fs::remove_file(dir.join(LOCK));
+            }
+            Err(e)
+        }
+    }
+}
+
+/// A whole scan into `dir`: the folder may not hold another scan's
+/// [`OUTPUTS`] or an unfinished scan (`partial`) unless `overwrite`, or
+/// `resume` is `Some(true)` with that unfinished scan to continue (`None`:
+/// the caller cannot resume, and the message does not offer it).
+pub fn check_whole(
+    dir: &Path,
+    partial: &Path,
+    overwrite: bool,
+    resume: Option<bool>,
+) -> Result<bool, Error> {
+    if overwrite || (resume == Some(true) && partial.exists()) {
+        return Ok(true);
+    }
+    let mut found = present(dir, &OUTPUTS);
+    let mut hint = "";
+    if partial.exists() {
+        let name = partial.file_name().unwrap_or_default().to_string_lossy();
+        found.push(format!("the unfinished {name}"));
+        if resume.is_some() {
+            hint = ", --resume to continue the unfinished scan";
+        }
+    }
+    refuse_existing(dir, &found, hint)?;
+    Ok(true)
+}
+
 /// The files of `names` that exist in `dir`.
 pub fn present(dir: &Path, names: &[&str]) -> Vec<String> {
     names

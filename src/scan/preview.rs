@@ -175,16 +175,7 @@ fn write_rows(
             readers[k] = None;
             continue;
         };
-        meta.check_row(&line, index, width).map_err(|why| {
-            InputError::new(
-                path.display().to_string(),
-                "",
-                format!(
-                    "the row of point {index} (data row {} of the shard) is damaged: {why}",
-                    index / n + 1
-                ),
-            )
-        })?;
+        meta.check_shard_row(&line, index, width, n, path)?;
         counts[k] += 1;
         out.write_all(line.as_bytes())
             .and_then(|_| out.write_all(b"\n"))

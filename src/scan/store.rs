@@ -86,6 +86,31 @@ impl Meta {
             .collect()
     }
 
+    /// Check the row of point `index` read from the shard file `path`, one
+    /// of `n` shards (shard k holds the points k, k + n, ...): a damaged row
+    /// is an input error naming the file, the point and the shard's data
+    /// row (see [`Meta::check_row`]).
+    pub(super) fn check_shard_row(
+        &self,
+        line: &str,
+        index: usize,
+        width: usize,
+        n: usize,
+        path: &Path,
+    ) -> Result<(), Error> {
+        self.check_row(line, index, width).map_err(|why| {
+            InputError::new(
+                path.display().to_string(),
+                "",
+                format!(
+                    "the row of point {index} (data row {} of the shard) is damaged: {why}",
+                    index / n + 1
+                ),
+            )
+            .into()
+        })
+    }
+
     /// Check a data row of point `index`: `width` cells (the header's),
     /// the point's axis values, a known outcome. Rows without quotes (all
     /// but those with a quoted term name) are split directly; the others go
@@ -448,16 +473,7 @@ pub fn merge(shards: &[PathBuf], target: &Path) -> Result<(Meta, PathBuf), Error
                 .map_err(|e| Error::io(path, e))?;
             let line = line.ok_or_else(|| incomplete(path))?;
             // A damaged row must not reach points.csv.
-            whole.check_row(&line, index, width).map_err(|why| {
-                Error::Input(InputError::new(
-                    path.display().to_string(),
-                    "",
-                    format!(
-                        "the row of point {index} (data row {} of the shard) is damaged: {why}",
-                        index / n + 1
-                    ),
-                ))
-            })?;
+            whole.check_shard_row(&line, index, width, n, path)?;
             out.write_all(line.as_bytes())
                 .and_then(|_| out.write_all(b"\n"))
                 .map_err(|e| Error::io(&tmp, e))?;

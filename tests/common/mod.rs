@@ -1,11 +1,52 @@
 //! Helpers shared by the integration tests: build a model from TOML text
 //! through the public API (`Model::parse` -> `System::new` ->
-//! `DimsReport::build`) and look up terms by name.
+//! `DimsReport::build`) and look up terms by name; run the binary on a
+//! bundled model and compare its JSON without the provenance block.
 #![allow(dead_code)]
+
+use std::path::{Path, PathBuf};
+use std::time::Duration;
 
 use pinflow::core::system::System;
 use pinflow::dims::{DimsReport, TermRow};
+use pinflow::error::{Error, InputError};
 use pinflow::model::Model;
+
+/// The pinflow binary built for these tests.
+pub const BIN: &str = env!("CARGO_BIN_EXE_pinflow");
+
+/// A bundled model of `flows/`.
+pub fn flow_file(name: &str) -> PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("flows")
+        .join(name)
+}
+
+/// The command, run in `dir` and given up after 120 s.
+pub fn pinflow(dir: &Path) -> assert_cmd::Command {
+    let mut cmd = assert_cmd::Command::new(BIN);
+    cmd.current_dir(dir).timeout(Duration::from_secs(120));
+    cmd
+}
+
+/// A command's JSON output without its `provenance` block (which it must
+/// have).
+pub fn without_provenance(json: &[u8]) -> serde_json::Value {
+    let mut v: serde_json::Value = serde_json::from_slice(json).expect("JSON output");
+    v.as_object_mut()
+        .expect("a JSON object")
+        .remove("provenance")
+        .expect("a provenance block");
+    v
+}
+
+/// The input error inside `e`; panics naming any other error.
+pub fn input_error(e: Error) -> InputError {
+    match e {
+        Error::Input(e) => e,
+        other => panic!("expected an input error, got {other}"),
+    }
+}
 
 /// Parse model text and prepare the system; panics with the error message.
 pub fn system(toml: &str) -> System {

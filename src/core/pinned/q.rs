@@ -261,12 +261,13 @@ pub fn converge(
             .zip(&prev.dimensions)
             .map(|(a, b)| (a - b).abs())
             .fold(0.0, f64::max);
-        if change <= tolerance || n >= qspace::MAX_POINTS {
+        let converged = qspace::settled(&next.dimensions, &prev.dimensions, tolerance);
+        if converged || n >= qspace::MAX_POINTS {
             let quad = Quadrature {
                 points: n,
                 error_estimate: change,
                 tolerance,
-                converged: change <= tolerance,
+                converged,
             };
             return Ok((next, quad));
         }
