@@ -282,15 +282,15 @@ pub(crate) fn provenance(
         Some(text) if model_path.as_os_str() == "-" => text.as_bytes().to_vec(),
         _ => std::fs::read(model_path).map_err(|e| Error::io(model_path, e))?,
     };
-    let mut p = Provenance::new(command, recorded_arguments());
-    p.model = Some(model_path.display().to_string());
-    p.model_sha256 = Some(output::provenance::sha256_hex(&bytes));
-    for (name, value) in sys_names.iter().zip(point) {
-        p.parameters
-            .insert(name.clone(), serde_json::Value::from(*value));
-    }
-    p.options = options;
-    Ok(p)
+    let model = model_path.display().to_string();
+    let values = sys_names.iter().cloned().zip(point.iter().copied());
+    Ok(Provenance::for_model(
+        command,
+        recorded_arguments(),
+        (&model, &bytes),
+        values,
+        options,
+    ))
 }
 
 /// A provenance without a model (e.g. `merge`).

@@ -125,7 +125,8 @@ pub(super) fn run(args: FlowArgs) -> Result<(), Error> {
         "competitors": args.competitors.recorded(),
     }))?;
     let prov = provenance("flow", &args.point.model, names, &point, options)?;
-    let report = FlowReport::new(&sys.model.name, names, &point, result, opts);
+    let report = FlowReport::new(&sys.model.name, names, &point, result, opts)
+        .with_labels(&sys.model.params);
     if let Some(dir) = &args.out {
         report.write_dir_with(dir, args.plot_terms)?;
         stamp_dir(dir, &prov)?;

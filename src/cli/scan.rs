@@ -10,8 +10,8 @@ use clap::Args;
 use indicatif::{ProgressBar, ProgressStyle};
 
 use super::common::{
-    bare_provenance, emit, emit_report, load_point_text, options_json, provenance, stamp_dir,
-    FigureStyleArg, FlowFlags, FormatArg, PointArgs,
+    bare_provenance, emit, emit_report, load_point_text, options_json, provenance, FigureStyleArg,
+    FlowFlags, FormatArg, PointArgs,
 };
 use crate::core::system::System;
 use crate::error::{Error, InputError};
@@ -244,7 +244,8 @@ pub(super) fn run_scan(args: ScanArgs) -> Result<(), Error> {
             Ok(())
         }
         None => {
-            let summary = publish(&dir, &partial, &scan.meta, args.color_by.into())?;
+            let by = args.color_by.into();
+            let summary = publish(&dir, &partial, &scan.meta, by, Some(&prov))?;
             print_summary(&dir, &summary, args.format.into(), &prov)
         }
     }
@@ -389,9 +390,9 @@ pub(super) fn run_merge(args: MergeArgs) -> Result<(), Error> {
     if args.partial {
         return write_preview(&dir, &args);
     }
-    let (meta, staged) = store::merge(&args.shards, &dir.join("points.csv"))?;
-    let summary = publish_staged(&dir, &staged, &meta, args.color_by.into())?;
     let prov = shard_provenance(&args.shards[0])?;
+    let (meta, staged) = store::merge(&args.shards, &dir.join("points.csv"))?;
+    let summary = publish_staged(&dir, &staged, &meta, args.color_by.into(), Some(&prov))?;
     print_summary(&dir, &summary, args.format.into(), &prov)
 }
 
@@ -470,15 +471,14 @@ fn without_shard(args: Vec<String>) -> Vec<String> {
     out
 }
 
-/// Add the provenance to the written files (`run.json`, `summary.json`),
-/// then print the summary.
+/// Print the summary (`run.json` and the provenance of `summary.json`
+/// were written with it, see `scan::run::finish`).
 fn print_summary(
     dir: &Path,
     summary: &ScanSummary,
     format: Format,
     prov: &Provenance,
 ) -> Result<(), Error> {
-    stamp_dir(dir, prov)?;
     let mut text = output::render(summary, format)?;
     if format == Format::Text {
         text.push_str(&format!("\nwritten to {}\n", dir.display()));

@@ -27,6 +27,7 @@ mod contour;
 mod font;
 mod layout;
 pub mod lines;
+mod logaxis;
 pub mod map;
 mod output;
 pub mod palette;
