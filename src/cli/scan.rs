@@ -214,6 +214,9 @@ pub(super) fn run_scan(args: ScanArgs) -> Result<(), Error> {
         .clone()
         .unwrap_or_else(|| default_dir(&args.point.model));
     output::check_output_dir(&dir, "--out")?;
+    if let Some(r) = args.point.run_json.as_deref() {
+        super::common::check_run_json(r, &[args.point.model.as_path()], None)?;
+    }
     let Some(_lock) = prepare_dir(&dir, &scan.meta, &args)? else {
         return Ok(());
     };
@@ -246,7 +249,8 @@ pub(super) fn run_scan(args: ScanArgs) -> Result<(), Error> {
         None => {
             let by = args.color_by.into();
             let summary = publish(&dir, &partial, &scan.meta, by, Some(&prov))?;
-            print_summary(&dir, &summary, args.format.into(), &prov)
+            let run_json = args.point.run_json.as_deref();
+            print_summary(&dir, &summary, (args.format.into(), run_json), &prov)
         }
     }
 }
@@ -393,7 +397,7 @@ pub(super) fn run_merge(args: MergeArgs) -> Result<(), Error> {
     let prov = shard_provenance(&args.shards[0])?;
     let (meta, staged) = store::merge(&args.shards, &dir.join("points.csv"))?;
     let summary = publish_staged(&dir, &staged, &meta, args.color_by.into(), Some(&prov))?;
-    print_summary(&dir, &summary, args.format.into(), &prov)
+    print_summary(&dir, &summary, (args.format.into(), None), &prov)
 }
 
 /// `merge --partial`: the preview's rows and counts, then the counts on
@@ -476,14 +480,14 @@ fn without_shard(args: Vec<String>) -> Vec<String> {
 fn print_summary(
     dir: &Path,
     summary: &ScanSummary,
-    format: Format,
+    (format, run_json): (Format, Option<&Path>),
     prov: &Provenance,
 ) -> Result<(), Error> {
     let mut text = output::render(summary, format)?;
     if format == Format::Text {
         text.push_str(&format!("\nwritten to {}\n", dir.display()));
     }
-    emit_report(None, &text, format, prov)
+    emit_report(None, run_json, &text, format, prov)
 }
 
 /// Most worker threads per core: more only adds overhead (100000 threads

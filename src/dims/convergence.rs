@@ -162,7 +162,7 @@ impl Report for ConvergenceReport {
         vec![
             (
                 "parameters".to_string(),
-                output::parameters_fact(&self.parameters),
+                output::labelled_parameters_fact(&self.parameters, &self.parameter_labels),
             ),
             ("boundary".to_string(), self.boundary.clone()),
         ]

@@ -304,7 +304,7 @@ impl Report for FlowReport {
         let mut f = vec![
             (
                 "parameters".to_string(),
-                output::parameters_fact(&self.parameters),
+                output::labelled_parameters_fact(&self.parameters, &self.parameter_labels),
             ),
             ("outcome".to_string(), r.outcome.word().to_string()),
             ("summary".to_string(), self.headline()),

@@ -130,6 +130,18 @@ pub fn parameters_fact(parameters: &serde_json::Map<String, serde_json::Value>) 
         .join(", ")
 }
 
+/// [`parameters_fact`] naming the parameters that have a label or unit in
+/// the model by them (`λ=0.8 meV, g=0.5`).
+pub fn labelled_parameters_fact(
+    parameters: &serde_json::Map<String, serde_json::Value>,
+    labels: &serde_json::Map<String, serde_json::Value>,
+) -> String {
+    if labels.is_empty() {
+        return parameters_fact(parameters);
+    }
+    labelled_point(parameters, labels).replace(" = ", "=")
+}
+
 /// A number for people: at most 6 significant digits, trailing zeros
 /// trimmed (machine outputs keep the full round-trip representation).
 pub fn short(x: f64) -> String {
