@@ -232,9 +232,9 @@ impl LegendGeometry {
                 gap: LEGEND_GAP,
             },
             super::style::FigureStyle::Paper => LegendGeometry {
-                row: 26,
-                line: 23,
-                sample: 26,
+                row: 32,
+                line: 29,
+                sample: 30,
                 gap: 6,
             },
         }
@@ -435,7 +435,7 @@ pub(crate) fn chart_scaled<'a, DB: DrawingBackend>(
     log: (bool, bool),
 ) -> Result<Chart<'a, DB>, String> {
     let paper = super::style::figure_style() == super::style::FigureStyle::Paper;
-    let (bottom, left) = if paper { (56, 84) } else { (64, 100) };
+    let (bottom, left) = if paper { (74, 104) } else { (64, 100) };
     ChartBuilder::on(area)
         .margin(if paper { 8 } else { 12 })
         .margin_right(if paper { 16 } else { 24 })
@@ -469,10 +469,18 @@ pub(crate) fn draw_mesh<DB: DrawingBackend>(
     let snap = |v: f64, s: f64| if v.abs() < 1e-9 * s { 0.0 } else { v };
     let spec = chart.as_coord_spec();
     let (x_log, y_log) = (spec.x_spec().log, spec.y_spec().log);
+    // On paper the text is large for the canvas: at most one tick label
+    // per 40 px of height and 90 px of width.
+    let (mut x_labels, mut y_labels) = (8, axes.y_labels);
+    if super::style::figure_style() == super::style::FigureStyle::Paper {
+        let (w, h) = chart.plotting_area().dim_in_pixel();
+        x_labels = x_labels.min(w as usize / 90).max(2);
+        y_labels = y_labels.min(h as usize / 40).max(2);
+    }
     let decades = |r: std::ops::Range<f64>, n| logaxis::all_decades(r.start, r.end, n);
     let (x_dec, y_dec) = (
-        decades(chart.x_range(), 8),
-        decades(chart.y_range(), axes.y_labels),
+        decades(chart.x_range(), x_labels),
+        decades(chart.y_range(), y_labels),
     );
     let x_format = |v: &f64| match x_log {
         true => logaxis::log_label(*v, x_dec),
@@ -487,8 +495,8 @@ pub(crate) fn draw_mesh<DB: DrawingBackend>(
         .configure_mesh()
         .x_desc(axes.x_desc)
         .y_desc(axes.y_desc)
-        .x_labels(8)
-        .y_labels(axes.y_labels)
+        .x_labels(x_labels)
+        .y_labels(y_labels)
         .x_label_formatter(&x_format)
         .y_label_formatter(y_format)
         .label_style(font::style(size::TICK, INK))

@@ -285,8 +285,10 @@ impl FlowFigure {
         // One label per decade while they fit (about 30 px each): more
         // decades are thinned to every k-th (see `logaxis`).
         let (_, h) = area.dim_in_pixel();
+        // On paper the two panels share the ℓ axis title (drawn below).
+        let paper = super::style::figure_style() == super::style::FigureStyle::Paper;
         let axes = Axes {
-            x_desc: ELL_LABEL,
+            x_desc: if paper { "" } else { ELL_LABEL },
             y_desc: "|y|",
             y_labels: (decades + 1).min(10).min(h as usize / 30).max(2),
             y_format: Some(&format),
@@ -354,9 +356,10 @@ impl FlowFigure {
 const ELL_LABEL: &str = "ℓ = ln(α/α₀)";
 
 fn dimension_axes(x_desc: &str) -> Axes<'_> {
+    let paper = super::style::figure_style() == super::style::FigureStyle::Paper;
     Axes {
         x_desc,
-        y_desc: "scaling dimension Δ",
+        y_desc: if paper { "Δ" } else { "scaling dimension Δ" },
         y_labels: 8,
         y_format: None,
         grid: true,

@@ -420,7 +420,7 @@ impl Figure for PhaseMap {
 fn colour_bar_column() -> i32 {
     match super::style::figure_style() {
         super::style::FigureStyle::Screen => 230,
-        super::style::FigureStyle::Paper => 150,
+        super::style::FigureStyle::Paper => 160,
     }
 }
 /// Number of colour steps in the colour bar.
@@ -454,8 +454,8 @@ impl HeatMap {
         let mut bar = ChartBuilder::on(area)
             .margin(if paper { 8 } else { 12 })
             .margin_left(if paper { 10 } else { 20 })
-            .x_label_area_size(if paper { 56 } else { 64 })
-            .right_y_label_area_size(if paper { 88 } else { 110 })
+            .x_label_area_size(if paper { 74 } else { 64 })
+            .right_y_label_area_size(if paper { 100 } else { 110 })
             .build_cartesian_2d(0.0..1.0, lo..hi)
             .map_err(msg)?;
         let step = (hi - lo) / COLOUR_BAR_STEPS as f64;
