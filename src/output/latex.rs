@@ -297,6 +297,36 @@ fn push_escaped(out: &mut String, ch: char) {
 /// input, the default of LaTeX since 2018); any other character, which
 /// pdflatex could not typeset, as its code point in typewriter type.
 fn push_unicode(out: &mut String, ch: char) {
+    let code = ch as u32;
+    let math = match ch {
+        'α'..='ω' | 'Α'..='Ω' => match greek(ch) {
+            Some(tex) if tex.starts_with('\\') => Some(tex),
+            // A capital that looks like a Latin one is that letter.
+            Some(latin) => return out.push_str(&latin),
+            None => None,
+        },
+        'µ' => Some("\\mu".into()),
+        'ℓ' => Some("\\ell".into()),
+        '·' => Some("\\cdot".into()),
+        '×' => Some("\\times".into()),
+        '−' => Some("-".into()),
+        '₀'..='₉' => Some(format!("_{{{}}}", code - '₀' as u32)),
+        _ => None,
+    };
+    match math {
+        Some(m) => {
+            out.push('$');
+            out.push_str(&m);
+            out.push('$');
+        }
+        None if code < 0x100 => out.push(ch),
+        None => out.push_str(&format!("{{\\ttfamily U+{code:04X}}}")),
+    }
+}
+
+/// The TeX of a Greek letter: a math command (`\lambda`, `\Delta`), or the
+/// Latin letter a capital looks like (`A`); None for the unassigned U+03A2.
+fn greek(ch: char) -> Option<String> {
     const LOWER: [&str; 25] = [
         "alpha", "beta", "gamma", "delta", "epsilon", "zeta", "eta", "theta", "iota", "kappa",
         "lambda", "mu", "nu", "xi", "o", "pi", "rho", "varsigma", "sigma", "tau", "upsilon", "phi",
@@ -330,32 +360,14 @@ fn push_unicode(out: &mut String, ch: char) {
         "\\Omega",
     ];
     let code = ch as u32;
-    let math = match ch {
-        'α'..='ω' => Some(match LOWER[(code - 'α' as u32) as usize] {
-            "o" => "o".to_string(),
-            name => format!("\\{name}"),
-        }),
-        'Α'..='Ω' => match UPPER[(code - 'Α' as u32) as usize] {
-            tex if tex.starts_with('\\') => Some(tex.to_string()),
-            // A capital that looks like a Latin one is that letter.
-            latin => return out.push_str(if latin.is_empty() { "?" } else { latin }),
-        },
-        'µ' => Some("\\mu".into()),
-        'ℓ' => Some("\\ell".into()),
-        '·' => Some("\\cdot".into()),
-        '×' => Some("\\times".into()),
-        '−' => Some("-".into()),
-        '₀'..='₉' => Some(format!("_{{{}}}", code - '₀' as u32)),
-        _ => None,
-    };
-    match math {
-        Some(m) => {
-            out.push('$');
-            out.push_str(&m);
-            out.push('$');
+    match ch {
+        // Omicron has no command: it is an o.
+        'ο' => Some("o".into()),
+        'α'..='ω' => Some(format!("\\{}", LOWER[(code - 'α' as u32) as usize])),
+        'Α'..='Ω' => {
+            Some(UPPER[(code - 'Α' as u32) as usize].to_string()).filter(|s| !s.is_empty())
         }
-        None if code < 0x100 => out.push(ch),
-        None => out.push_str(&format!("{{\\ttfamily U+{code:04X}}}")),
+        _ => None,
     }
 }
 
