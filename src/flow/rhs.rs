@@ -93,6 +93,9 @@ pub struct FlowRhs<'a> {
     pub steps: usize,
     /// Integrate with [`FlowRhs::derivative_reference`] (tests only).
     pub reference: bool,
+    /// Infinite arrays: the in-flow quadrature estimate, advanced at every
+    /// accepted step (see [`super::qtrack`]); None otherwise.
+    pub q_track: Option<super::qtrack::Tracker>,
     /// Precomputed outer products of the null channels.
     outer: Vec<Option<Outer>>,
     /// Active channels of the current segment.
@@ -166,6 +169,7 @@ impl<'a> FlowRhs<'a> {
             last_ell: 0.0,
             steps: 0,
             reference: false,
+            q_track: None,
             outer,
             live: Vec::new(),
             live_ope: Vec::new(),
@@ -350,6 +354,10 @@ impl System<f64, DVector<f64>> for &mut FlowRhs<'_> {
         let ys = y.as_slice();
         if rhs.record {
             rhs.record_sample(ell, ys);
+        }
+        if let Some(mut track) = rhs.q_track.take() {
+            track.step(rhs, ell, ys);
+            rhs.q_track = Some(track);
         }
         let before = rhs.last_ell;
         rhs.last_ell = ell;
