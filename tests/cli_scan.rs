@@ -598,8 +598,8 @@ fn figures_of_one_and_two_axis_scans() {
     assert_figure(&two, "phase", &["lambda", "delta"]);
     assert_figure(&two, "ell_star", &["lambda", "delta"]);
     // The summary lists what was written: points.csv, summary.json,
-    // phases.csv and each figure as PNG, SVG and PDF.
-    for (out, n) in [(&one, 6), (&two, 9)] {
+    // phases.csv, run.json and each figure as PNG, SVG and PDF.
+    for (out, n) in [(&one, 7), (&two, 10)] {
         let s: serde_json::Value =
             serde_json::from_str(&std::fs::read_to_string(out.join("summary.json")).unwrap())
                 .unwrap();

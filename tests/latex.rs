@@ -39,6 +39,25 @@ fn hostile_model(dir: &Path) -> PathBuf {
     path
 }
 
+/// The filling-1/3 demo with labels and units on its parameters (Greek,
+/// an underscore, a unit), as `[params]` tables.
+fn labelled_model(dir: &Path) -> PathBuf {
+    let text = std::fs::read_to_string(flows("laughlin_third.toml")).unwrap();
+    let mut out = String::new();
+    for line in text.lines() {
+        let line = match line.split_whitespace().next() {
+            Some("lambda") => r#"lambda = { value = 0.8, label = "λ", unit = "meV" }"#,
+            Some("g") => r#"g = { value = 0.5, label = "Γ_link/v_F" }"#,
+            _ => line,
+        };
+        out.push_str(line);
+        out.push('\n');
+    }
+    let path = dir.join("labelled.toml");
+    std::fs::write(&path, out).unwrap();
+    path
+}
+
 fn latex(dir: &Path, args: &[&str]) -> String {
     let out = Command::cargo_bin("pinflow")
         .unwrap()
@@ -91,6 +110,7 @@ fn have(tool: &str) -> bool {
 fn samples(dir: &Path) -> Vec<(String, String)> {
     let laughlin = flows("laughlin_third.toml");
     let hostile = hostile_model(dir).display().to_string();
+    let labelled = labelled_model(dir).display().to_string();
     let small = ["--x", "lambda=0.3:0.95:4", "--y", "g=0:0.95:3", "--quiet"];
     let mut scan = vec!["scan", laughlin.as_str(), "--out", "scan"];
     scan.extend(small);
@@ -104,6 +124,8 @@ fn samples(dir: &Path) -> Vec<(String, String)> {
         ("edgesflow", vec!["edges", &laughlin]),
         ("scan", scan),
         ("wires", vec!["dims", &laughlin, "--wires", "3,4,infinite"]),
+        ("labelled", vec!["flow", &labelled, "--set", "g=0.8"]),
+        ("labelledwires", vec!["dims", &labelled, "--wires", "3,4"]),
     ];
     cases
         .into_iter()
@@ -162,6 +184,13 @@ fn every_command_compiles_in_revtex_and_article() {
             assert!(text.contains(part), "{class}: {part} not in {text}");
         }
         assert!(text.contains('\u{2212}'), "{class}: no real minus sign");
+        // Parameter labels: Greek typeset as math, the underscore kept.
+        assert!(text.contains("λ=0.8 meV"), "{class}: no λ label in {text}");
+        // (pdftotext reads the escaped underscores as spaces.)
+        assert!(
+            text.contains("Γ link/v F=0.8"),
+            "{class}: no Γ label in {text}"
+        );
         assert!(text.contains("\u{00d7} 10"), "{class}: no x 10^n");
     }
 }

@@ -271,3 +271,26 @@ pub fn hunt_filters(
         momentum,
     })
 }
+
+/// The arguments of a call as `name=value` strings for its provenance
+/// block: the given `named` ones (those that are not None), then the
+/// point's and the options' items in key order (`str()` of each value).
+pub fn recorded(
+    named: &[(&str, &Option<String>)],
+    point: &Bound<'_, PyDict>,
+    options: &Bound<'_, PyDict>,
+) -> PyResult<Vec<String>> {
+    let mut out: Vec<String> = named
+        .iter()
+        .filter_map(|(k, v)| v.as_ref().map(|v| format!("{k}={v}")))
+        .collect();
+    for dict in [point, options] {
+        let mut items = Vec::new();
+        for (k, v) in dict.iter() {
+            items.push(format!("{}={}", k.str()?, v.str()?));
+        }
+        items.sort();
+        out.extend(items);
+    }
+    Ok(out)
+}

@@ -26,6 +26,7 @@ use pinflow::error::{Error, InputError};
 use pinflow::flow::competitors::flow_once;
 use pinflow::flow::report::FlowReport;
 use pinflow::flow::{FlowOptions, Outcome};
+use pinflow::output::provenance::Provenance;
 use pinflow::output::{self, Format, Report};
 use pinflow::scan::run::{check_size, resolve_axes, run_to_dir};
 use pinflow::scan::{folder, partial_path, Scan, ScanSpec};
@@ -185,7 +186,8 @@ impl Model {
             check_closure(sys, &opts, force)?;
             let result = flow_once(sys, &point, &opts, comp)?;
             let names = sys.model.params.names();
-            let report = FlowReport::new(&sys.model.name, names, &point, result, opts);
+            let report = FlowReport::new(&sys.model.name, names, &point, result, opts)
+                .with_labels(&sys.model.params);
             check_flow(sys, &point, &report)?;
             if let Some(d) = &out {
                 report.write_dir(d)?;
@@ -219,11 +221,30 @@ impl Model {
         let competitors = args::competitors(&self.sys, options)?;
         let by = args::color_by(color_by)?;
         let pool = thread_pool(threads)?;
+        let mut arguments = args::recorded(&[("x", &x), ("y", &y)], point, options)?;
+        if force {
+            arguments.push("force=True".to_string());
+        }
+        if overwrite {
+            arguments.push("overwrite=True".to_string());
+        }
+        arguments.push(format!("color_by={color_by}"));
         self.run(py, |sys| {
             let base = sys.model.point_with(&set, "point")?;
             let axes = resolve_axes(&sys.model, x.as_deref(), y.as_deref())?;
             let options = FlowOptions::resolve(&sys.model, &over)?;
             check_closure(sys, &options, force)?;
+            let recorded = serde_json::json!({
+                "flow": options,
+                "competitors": competitors,
+                "color_by": color_by,
+            });
+            let names = sys.model.params.names().iter().cloned();
+            let file = (sys.model.file.as_str(), self.bytes.as_slice());
+            let values = names.zip(base.iter().copied());
+            let mut prov = Provenance::for_model("scan", arguments, file, values, recorded);
+            prov.caller = Some("python".to_string());
+            prov.grid = axes.iter().map(|a| a.spec()).collect();
             let spec = ScanSpec {
                 axes,
                 base,
@@ -238,7 +259,7 @@ impl Model {
             let lock = folder::claim(&out, None, || {
                 folder::check_whole(&out, &partial, overwrite, None)
             })?;
-            let summary = pool.install(|| run_to_dir(&scan, &out, by, "out"))?;
+            let summary = pool.install(|| run_to_dir(&scan, &out, by, "out", Some(&prov)))?;
             drop(lock);
             output::to_json(&summary)
         })

@@ -31,9 +31,19 @@ def test_plane_equals_the_command_byte_for_byte(tmp_path):
     assert (tmp_path / "py" / "points.csv").read_bytes() == want
     assert s.csv.encode() == want
     # the summary equals the command's apart from its provenance block
-    ref_summary = without_provenance(json.loads((ref / "summary.json").read_text()))
-    assert json.loads((tmp_path / "py" / "summary.json").read_text()) == ref_summary
+    ref_full = json.loads((ref / "summary.json").read_text())
+    ref_summary = without_provenance(ref_full)
+    py_full = json.loads((tmp_path / "py" / "summary.json").read_text())
+    assert without_provenance(py_full) == ref_summary
     assert s.summary == ref_summary
+    # which has the same record of the run, made by Python with its arguments
+    prov, ref_prov = py_full["provenance"], ref_full["provenance"]
+    assert prov == json.loads((tmp_path / "py" / "run.json").read_text())
+    assert (prov["caller"], prov["command"]) == ("python", "scan")
+    assert "caller" not in ref_prov
+    for key in ["pinflow", "revision", "model_sha256", "parameters", "grid", "options"]:
+        assert prov[key] == ref_prov[key], key
+    assert prov["arguments"] == ["x=lambda=0.3:0.95:6", "y=g=0.0:0.95:5", "color_by=phase"]
     pd.testing.assert_frame_equal(s.points, pinflow._frame(want.decode()), check_exact=True)
 
 

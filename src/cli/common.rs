@@ -26,6 +26,11 @@ pub struct PointArgs {
     /// Override a parameter, e.g. `--set lambda=0.4` (repeatable).
     #[arg(long = "set", value_name = "NAME=VALUE", value_parser = parse_assignment)]
     pub set: Vec<(String, f64)>,
+    /// Also write this run's provenance (version, model SHA-256, every
+    /// parameter and option) as JSON to FILE: for a CSV or other table on
+    /// standard output, which has no room for it.
+    #[arg(long, value_name = "FILE")]
+    pub run_json: Option<PathBuf>,
 }
 
 /// Output formats of the reporting commands.
@@ -197,16 +202,20 @@ pub(crate) fn load_point_text(args: &PointArgs) -> Result<(System, Vec<f64>, Str
     Ok((sys, point, text))
 }
 
-/// Check `-o FILE` and `--out DIR` before any work is done: `-o` may not
-/// be the model file (`inputs`).
+/// Check `-o FILE`, `--run-json FILE` and `--out DIR` before any work is
+/// done: neither file may be the model file, nor the two the same file.
 pub(crate) fn check_outputs(
-    inputs: &[&Path],
+    point: &PointArgs,
     file: Option<&Path>,
     dir: Option<&Path>,
 ) -> Result<(), Error> {
+    let inputs = [point.model.as_path()];
     if let Some(f) = file {
         output::check_output_file(f, "-o")?;
-        output::file::check_not_input(f, inputs, "-o")?;
+        output::file::check_not_input(f, &inputs, "-o")?;
+    }
+    if let Some(r) = point.run_json.as_deref() {
+        check_run_json(r, &inputs, file)?;
     }
     if let Some(d) = dir {
         output::check_output_dir(d, "--out")?;
@@ -259,9 +268,9 @@ fn recorded_arguments() -> Vec<String> {
             continue;
         }
         match a.as_str() {
-            "--threads" | "--out" | "-o" | "--output" => skip_value = true,
+            "--threads" | "--out" | "-o" | "--output" | "--run-json" => skip_value = true,
             "--quiet" | "-q" | "--resume" => {}
-            _ if ["--threads=", "--out=", "--output="]
+            _ if ["--threads=", "--out=", "--output=", "--run-json="]
                 .iter()
                 .any(|p| a.starts_with(p)) => {}
             _ => out.push(a),
@@ -287,15 +296,15 @@ pub(crate) fn provenance(
         Some(text) if model_path.as_os_str() == "-" => text.as_bytes().to_vec(),
         _ => std::fs::read(model_path).map_err(|e| Error::io(model_path, e))?,
     };
-    let mut p = Provenance::new(command, recorded_arguments());
-    p.model = Some(model_path.display().to_string());
-    p.model_sha256 = Some(output::provenance::sha256_hex(&bytes));
-    for (name, value) in sys_names.iter().zip(point) {
-        p.parameters
-            .insert(name.clone(), serde_json::Value::from(*value));
-    }
-    p.options = options;
-    Ok(p)
+    let model = model_path.display().to_string();
+    let values = sys_names.iter().cloned().zip(point.iter().copied());
+    Ok(Provenance::for_model(
+        command,
+        recorded_arguments(),
+        (&model, &bytes),
+        values,
+        options,
+    ))
 }
 
 /// A provenance without a model (e.g. `merge`).
@@ -309,14 +318,43 @@ pub(crate) fn options_json<T: serde::Serialize>(t: &T) -> Result<serde_json::Val
     serde_json::to_value(t).map_err(|e| Error::Numerical(format!("cannot record options: {e}")))
 }
 
+/// `--run-json FILE`: a file (not `-`: standard output holds the report),
+/// not the model file and not the `-o` file.
+pub(crate) fn check_run_json(
+    run: &Path,
+    inputs: &[&Path],
+    output_file: Option<&Path>,
+) -> Result<(), Error> {
+    let flag = "--run-json";
+    if run.as_os_str() == "-" {
+        let m = "standard output carries the report; give a file for the provenance";
+        return Err(InputError::new("command line", flag, m).into());
+    }
+    output::check_output_file(run, flag)?;
+    output::file::check_not_input(run, inputs, flag)?;
+    if output_file.is_some_and(|o| o == run) {
+        let m = format!(
+            "`{}` is also the -o file; give the provenance its own file",
+            run.display()
+        );
+        return Err(InputError::new("command line", flag, m).into());
+    }
+    Ok(())
+}
+
 /// Print or write a rendered report: JSON gets the `provenance` key; a CSV
-/// written to a file gets `<stem>.run.json` beside it.
+/// written to a file gets `<stem>.run.json` beside it; `run_json`
+/// (`--run-json FILE`) gets the provenance whatever the format.
 pub(crate) fn emit_report(
     path: Option<&Path>,
+    run_json: Option<&Path>,
     text: &str,
     format: Format,
     prov: &Provenance,
 ) -> Result<(), Error> {
+    if let Some(r) = run_json {
+        output::write_atomic(r, output::to_json(prov)?.as_bytes())?;
+    }
     let to_file = path.filter(|p| p.as_os_str() != "-");
     if format == Format::Json {
         return emit(path, &output::provenance::stamp_json(text, prov)?);

@@ -68,11 +68,7 @@ fn parse_wires(s: &str) -> Result<Wires, String> {
 }
 
 pub(super) fn run(args: DimsArgs) -> Result<(), Error> {
-    check_outputs(
-        &[&args.point.model],
-        args.output.as_deref(),
-        args.out.as_deref(),
-    )?;
+    check_outputs(&args.point, args.output.as_deref(), args.out.as_deref())?;
     args.figure_style.apply();
     let format = args.format.into();
     if !args.wires.is_empty() {
@@ -101,6 +97,7 @@ pub(super) fn run(args: DimsArgs) -> Result<(), Error> {
         }
         return emit_report(
             args.output.as_deref(),
+            args.point.run_json.as_deref(),
             &output::render(&report, format)?,
             format,
             &prov,
@@ -119,6 +116,7 @@ pub(super) fn run(args: DimsArgs) -> Result<(), Error> {
     let prov = provenance("dims", &args.point.model, names, &point, options)?;
     emit_report(
         args.output.as_deref(),
+        args.point.run_json.as_deref(),
         &output::render(&report, format)?,
         format,
         &prov,

@@ -42,7 +42,7 @@ pub struct EdgesArgs {
 }
 
 pub(super) fn run(args: EdgesArgs) -> Result<(), Error> {
-    check_outputs(&[&args.point.model], args.output.as_deref(), None)?;
+    check_outputs(&args.point, args.output.as_deref(), None)?;
     let (sys, point) = load_point(&args.point)?;
     crate::edges::check_size(&sys, args.force)?;
     // Flow options are checked even when --pin makes the flow unnecessary.
@@ -68,5 +68,11 @@ pub(super) fn run(args: EdgesArgs) -> Result<(), Error> {
     let prov = provenance("edges", &args.point.model, names, &point, options)?;
     let format = args.format.into();
     let text = output::render(&report, format)?;
-    emit_report(args.output.as_deref(), &text, format, &prov)
+    emit_report(
+        args.output.as_deref(),
+        args.point.run_json.as_deref(),
+        &text,
+        format,
+        &prov,
+    )
 }

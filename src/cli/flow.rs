@@ -113,7 +113,7 @@ impl CompetitorFlags {
 }
 
 pub(super) fn run(args: FlowArgs) -> Result<(), Error> {
-    check_outputs(&[&args.point.model], None, args.out.as_deref())?;
+    check_outputs(&args.point, None, args.out.as_deref())?;
     args.figure_style.apply();
     let (sys, point) = load_point(&args.point)?;
     let opts = FlowOptions::resolve(&sys.model, &args.flow.overrides())?;
@@ -135,13 +135,20 @@ pub(super) fn run(args: FlowArgs) -> Result<(), Error> {
         "competitors": args.competitors.recorded(),
     }))?;
     let prov = provenance("flow", &args.point.model, names, &point, options)?;
-    let report = FlowReport::new(&sys.model.name, names, &point, result, opts);
+    let report = FlowReport::new(&sys.model.name, names, &point, result, opts)
+        .with_labels(&sys.model.params);
     if let Some(dir) = &args.out {
         report.write_dir_with(dir, args.plot_terms)?;
         stamp_dir(dir, &prov)?;
     }
     let format = args.format.into();
-    emit_report(None, &output::render(&report, format)?, format, &prov)?;
+    emit_report(
+        None,
+        args.point.run_json.as_deref(),
+        &output::render(&report, format)?,
+        format,
+        &prov,
+    )?;
     let msg = report.result.message.clone().unwrap_or_default();
     if unphysical {
         return Err(Error::Input(InputError::new(&sys.model.file, "", msg)));

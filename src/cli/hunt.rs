@@ -171,7 +171,7 @@ fn options(args: &HuntArgs) -> HuntOptions {
 }
 
 pub(super) fn run(args: HuntArgs) -> Result<(), Error> {
-    check_outputs(&[&args.point.model], args.output.as_deref(), None)?;
+    check_outputs(&args.point, args.output.as_deref(), None)?;
     let (sys, point) = load_point(&args.point)?;
     let bar = ProgressBar::hidden();
     let on_terminal = std::io::stderr().is_terminal();
@@ -200,7 +200,13 @@ pub(super) fn run(args: HuntArgs) -> Result<(), Error> {
     let prov = provenance("hunt", &args.point.model, names, &point, recorded(&args))?;
     let format = args.format.into();
     let text = render(&report, format)?;
-    emit_report(args.output.as_deref(), &text, format, &prov)
+    emit_report(
+        args.output.as_deref(),
+        args.point.run_json.as_deref(),
+        &text,
+        format,
+        &prov,
+    )
 }
 
 /// The hunt's options for the provenance block.

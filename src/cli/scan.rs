@@ -6,7 +6,7 @@ use std::path::{Path, PathBuf};
 use clap::Args;
 
 use super::common::{
-    bare_provenance, emit, emit_report, load_point_text, options_json, provenance, stamp_dir,
+    bare_provenance, emit, emit_report, load_point_text, options_json, provenance,
     FigureStyleArg, FlowFlags, FormatArg, PointArgs, Progress,
 };
 use crate::core::system::System;
@@ -210,6 +210,9 @@ pub(super) fn run_scan(args: ScanArgs) -> Result<(), Error> {
         .clone()
         .unwrap_or_else(|| default_dir(&args.point.model));
     output::check_output_dir(&dir, "--out")?;
+    if let Some(r) = args.point.run_json.as_deref() {
+        super::common::check_run_json(r, &[args.point.model.as_path()], None)?;
+    }
     let Some(_lock) = prepare_dir(&dir, &scan.meta, &args)? else {
         return Ok(());
     };
@@ -240,8 +243,10 @@ pub(super) fn run_scan(args: ScanArgs) -> Result<(), Error> {
             Ok(())
         }
         None => {
-            let summary = publish(&dir, &partial, &scan.meta, args.color_by.into())?;
-            print_summary(&dir, &summary, args.format.into(), &prov)
+            let by = args.color_by.into();
+            let summary = publish(&dir, &partial, &scan.meta, by, Some(&prov))?;
+            let run_json = args.point.run_json.as_deref();
+            print_summary(&dir, &summary, (args.format.into(), run_json), &prov)
         }
     }
 }
@@ -365,10 +370,10 @@ pub(super) fn run_merge(args: MergeArgs) -> Result<(), Error> {
     if args.partial {
         return write_preview(&dir, &args);
     }
-    let (meta, staged) = store::merge(&args.shards, &dir.join("points.csv"))?;
-    let summary = publish_staged(&dir, &staged, &meta, args.color_by.into())?;
     let prov = shard_provenance(&args.shards[0])?;
-    print_summary(&dir, &summary, args.format.into(), &prov)
+    let (meta, staged) = store::merge(&args.shards, &dir.join("points.csv"))?;
+    let summary = publish_staged(&dir, &staged, &meta, args.color_by.into(), Some(&prov))?;
+    print_summary(&dir, &summary, (args.format.into(), None), &prov)
 }
 
 /// `merge --partial`: the preview's rows and counts, then the counts on
@@ -446,20 +451,19 @@ fn without_shard(args: Vec<String>) -> Vec<String> {
     out
 }
 
-/// Add the provenance to the written files (`run.json`, `summary.json`),
-/// then print the summary.
+/// Print the summary (`run.json` and the provenance of `summary.json`
+/// were written with it, see `scan::run::finish`).
 fn print_summary(
     dir: &Path,
     summary: &ScanSummary,
-    format: Format,
+    (format, run_json): (Format, Option<&Path>),
     prov: &Provenance,
 ) -> Result<(), Error> {
-    stamp_dir(dir, prov)?;
     let mut text = output::render(summary, format)?;
     if format == Format::Text {
         text.push_str(&format!("\nwritten to {}\n", dir.display()));
     }
-    emit_report(None, &text, format, prov)
+    emit_report(None, run_json, &text, format, prov)
 }
 
 /// Most worker threads per core: more only adds overhead (100000 threads

@@ -40,6 +40,10 @@ pub struct ConvergenceReport {
     pub model: String,
     /// Parameter point.
     pub parameters: serde_json::Map<String, serde_json::Value>,
+    /// Labels and units of the parameters that have them in the model
+    /// (absent when none has).
+    #[serde(default, skip_serializing_if = "serde_json::Map::is_empty")]
+    pub parameter_labels: serde_json::Map<String, serde_json::Value>,
     /// "periodic" or "open" (the finite arrays' boundary).
     pub boundary: String,
     /// Term names (columns).
@@ -89,6 +93,7 @@ impl ConvergenceReport {
         Ok(ConvergenceReport {
             model: model.name.clone(),
             parameters: model.params.json_point(point),
+            parameter_labels: model.params.labels_json(),
             boundary: boundary.to_string(),
             terms: model.terms.iter().map(|t| t.name.clone()).collect(),
             rows,
@@ -126,6 +131,7 @@ impl ConvergenceReport {
         let figure = LineScanFigure {
             title: format!("{}: Delta against array size", self.model),
             x_name: "1/W (0 = infinite array)".to_string(),
+            x_log: false,
             xs: order.iter().map(|o| o.0).collect(),
             series: self
                 .terms
@@ -140,11 +146,7 @@ impl ConvergenceReport {
             caption: format!(
                 "Bare scaling dimensions of {} arrays of W wires at {}; Delta = 2 is marginal.",
                 self.boundary,
-                self.parameters
-                    .iter()
-                    .map(|(k, v)| format!("{k} = {v}"))
-                    .collect::<Vec<_>>()
-                    .join(", ")
+                output::labelled_point(&self.parameters, &self.parameter_labels)
             ),
         };
         Ok(dimension_line_figure(&dir.join("convergence"), &figure)?)
@@ -160,7 +162,7 @@ impl Report for ConvergenceReport {
         vec![
             (
                 "parameters".to_string(),
-                output::parameters_fact(&self.parameters),
+                output::labelled_parameters_fact(&self.parameters, &self.parameter_labels),
             ),
             ("boundary".to_string(), self.boundary.clone()),
         ]

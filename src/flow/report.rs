@@ -40,6 +40,10 @@ pub struct FlowReport {
     pub model: String,
     /// Parameter point.
     pub parameters: serde_json::Map<String, serde_json::Value>,
+    /// Labels and units of the parameters that have them in the model
+    /// (absent when none has): how figures name them.
+    #[serde(default, skip_serializing_if = "serde_json::Map::is_empty")]
+    pub parameter_labels: serde_json::Map<String, serde_json::Value>,
     /// The result (flattened: `outcome`, `winner`, `ell_star`, `terms`, ...).
     #[serde(flatten)]
     pub result: FlowResult,
@@ -101,6 +105,7 @@ impl FlowReport {
         FlowReport {
             model: model.to_string(),
             parameters,
+            parameter_labels: serde_json::Map::new(),
             result,
             options,
             notes,
@@ -204,12 +209,17 @@ impl FlowReport {
 
     /// The parameter point as `name = value` pairs.
     pub fn point_text(&self) -> String {
-        let p: Vec<String> = self
-            .parameters
-            .iter()
-            .map(|(k, v)| format!("{k} = {v}"))
-            .collect();
-        format!("At {}.", p.join(", "))
+        format!(
+            "At {}.",
+            crate::output::labelled_point(&self.parameters, &self.parameter_labels)
+        )
+    }
+
+    /// The same report with the labels and units of `params` (figures name
+    /// the parameters by them; the JSON records them).
+    pub fn with_labels(mut self, params: &crate::model::ParamSet) -> Self {
+        self.parameter_labels = params.labels_json();
+        self
     }
 
     /// Write `summary.json`, `trajectory.csv`, `terms.csv` and the figures
@@ -296,7 +306,7 @@ impl Report for FlowReport {
         let mut f = vec![
             (
                 "parameters".to_string(),
-                output::parameters_fact(&self.parameters),
+                output::labelled_parameters_fact(&self.parameters, &self.parameter_labels),
             ),
             ("outcome".to_string(), r.outcome.word().to_string()),
             ("summary".to_string(), self.headline()),

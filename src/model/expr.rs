@@ -14,14 +14,90 @@ use exmex::prelude::*;
 pub struct ParamSet {
     names: Vec<String>,
     defaults: Vec<f64>,
+    /// How figures name each parameter (slot order; both parts optional).
+    labels: Vec<ParamLabel>,
+}
+
+/// How figures name a parameter: `[params] lambda = { value = 0.8,
+/// label = "λ", unit = "meV" }` (docs/model-format.md).
+#[derive(Debug, Clone, Default, PartialEq, Eq, serde::Serialize)]
+pub struct ParamLabel {
+    /// Display name (may be Greek or other Unicode), else the name.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub label: Option<String>,
+    /// Unit, shown in parentheses after the name.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub unit: Option<String>,
+}
+
+impl ParamLabel {
+    /// True when neither a label nor a unit is given.
+    pub fn is_empty(&self) -> bool {
+        self.label.is_none() && self.unit.is_none()
+    }
+
+    /// Axis title of the parameter `name`: `λ (meV)`, `λ`, `lambda (meV)`
+    /// or `lambda`.
+    pub fn title(&self, name: &str) -> String {
+        let shown = self.label.as_deref().unwrap_or(name);
+        match self.unit.as_deref().filter(|u| !u.is_empty()) {
+            Some(u) => format!("{shown} ({u})"),
+            None => shown.to_string(),
+        }
+    }
+
+    /// `λ = 0.8 meV` (the value as given, the unit after it).
+    pub fn assignment(&self, name: &str, value: &str) -> String {
+        let shown = self.label.as_deref().unwrap_or(name);
+        match self.unit.as_deref().filter(|u| !u.is_empty()) {
+            Some(u) => format!("{shown} = {value} {u}"),
+            None => format!("{shown} = {value}"),
+        }
+    }
 }
 
 impl ParamSet {
     /// Build from (name, default) pairs; names are sorted for a stable order.
-    pub fn new(mut pairs: Vec<(String, f64)>) -> Self {
-        pairs.sort_by(|a, b| a.0.cmp(&b.0));
-        let (names, defaults) = pairs.into_iter().unzip();
-        ParamSet { names, defaults }
+    pub fn new(pairs: Vec<(String, f64)>) -> Self {
+        Self::with_labels(
+            pairs
+                .into_iter()
+                .map(|(n, x)| (n, x, ParamLabel::default()))
+                .collect(),
+        )
+    }
+
+    /// Build from (name, default, label) triples, sorted by name.
+    pub fn with_labels(mut triples: Vec<(String, f64, ParamLabel)>) -> Self {
+        triples.sort_by(|a, b| a.0.cmp(&b.0));
+        let mut set = ParamSet {
+            names: Vec::new(),
+            defaults: Vec::new(),
+            labels: Vec::new(),
+        };
+        for (n, x, l) in triples {
+            set.names.push(n);
+            set.defaults.push(x);
+            set.labels.push(l);
+        }
+        set
+    }
+
+    /// The label and unit of a parameter (empty for an unknown name).
+    pub fn label(&self, name: &str) -> ParamLabel {
+        self.index(name)
+            .map(|i| self.labels[i].clone())
+            .unwrap_or_default()
+    }
+
+    /// The labels of the parameters that have one, by name (for JSON).
+    pub fn labels_json(&self) -> serde_json::Map<String, serde_json::Value> {
+        self.names
+            .iter()
+            .zip(&self.labels)
+            .filter(|(_, l)| !l.is_empty())
+            .map(|(n, l)| (n.clone(), serde_json::to_value(l).unwrap_or_default()))
+            .collect()
     }
 
     /// Parameter names in slot order.

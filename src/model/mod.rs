@@ -20,7 +20,7 @@ use std::path::Path;
 
 use crate::error::InputError;
 use crate::math::rational::Rational;
-pub use expr::{ParamSet, Scalar};
+pub use expr::{ParamLabel, ParamSet, Scalar};
 use num_traits::Zero;
 use raw::{RawArray, RawFields, RawModel, RawTerm};
 pub use symmetry::{Symmetry, SymmetryKind};
@@ -518,10 +518,53 @@ fn read_params(ctx: &Ctx, table: &toml::Table) -> Result<ParamSet, InputError> {
                 format!("`{name}` is a built-in name of expressions (a constant or function); choose another parameter name"),
             ));
         }
-        let x = values::number(ctx, value, &key)?;
-        pairs.push((name.clone(), x));
+        pairs.push(read_param(ctx, value, &key).map(|(x, l)| (name.clone(), x, l))?);
     }
-    Ok(ParamSet::new(pairs))
+    Ok(ParamSet::with_labels(pairs))
+}
+
+/// One parameter: a number, or `{ value = 0.8, label = "λ", unit = "meV" }`.
+fn read_param(ctx: &Ctx, value: &toml::Value, key: &str) -> Result<(f64, ParamLabel), InputError> {
+    let Some(table) = value.as_table() else {
+        return Ok((values::number(ctx, value, key)?, ParamLabel::default()));
+    };
+    if let Some(k) = table
+        .keys()
+        .find(|k| !["value", "label", "unit"].contains(&k.as_str()))
+    {
+        return Err(ctx.err(
+            &format!("{key}.{k}"),
+            "unknown key (a parameter table has value, label, unit)",
+        ));
+    }
+    let x = match table.get("value") {
+        Some(v) => values::number(ctx, v, &format!("{key}.value"))?,
+        None => {
+            return Err(ctx.err(
+                key,
+                "a parameter table needs `value` (the default value), e.g. { value = 0.8, label = \"λ\" }",
+            ))
+        }
+    };
+    let text = |field: &str| -> Result<Option<String>, InputError> {
+        match table.get(field) {
+            None => Ok(None),
+            Some(toml::Value::String(s)) if s.chars().any(char::is_control) => Err(ctx.err(
+                &format!("{key}.{field}"),
+                "expected a string on one line (no control characters)",
+            )),
+            Some(toml::Value::String(s)) => Ok(Some(s.clone())),
+            Some(other) => Err(ctx.err(
+                &format!("{key}.{field}"),
+                format!("expected a string, found {}", other.type_str()),
+            )),
+        }
+    };
+    let label = ParamLabel {
+        label: text("label")?,
+        unit: text("unit")?,
+    };
+    Ok((x, label))
 }
 
 fn read_explicit(ctx: &Ctx, f: RawFields, params: ParamSet) -> Result<Model, InputError> {

@@ -35,8 +35,16 @@ pub fn render<R: Report>(r: &R) -> String {
         out.push_str(&format!("% {}: {}\n", comment(&k), comment(&v)));
     }
     let prefix = slug(&r.title());
+    // The parameter point (with the model's labels and units, e.g. λ as
+    // $\lambda$) closes every caption: a table in a paper says where it
+    // was computed.
+    let point = r
+        .facts()
+        .into_iter()
+        .find(|(k, v)| k == "parameters" && v != "(none)")
+        .map(|(_, v)| v);
     for t in r.tables() {
-        out.push_str(&table_labelled(&t, &prefix));
+        out.push_str(&table_labelled(&t, &prefix, point.as_deref()));
     }
     for n in r.notes() {
         out.push_str(&format!("% note: {}\n", comment(&n)));
@@ -46,11 +54,12 @@ pub fn render<R: Report>(r: &R) -> String {
 
 /// One table float, labelled by its caption alone.
 pub fn table(t: &Table) -> String {
-    table_labelled(t, "pinflow")
+    table_labelled(t, "pinflow", None)
 }
 
-/// One table float with the label `tab:<prefix>:<caption>`.
-fn table_labelled(t: &Table, prefix: &str) -> String {
+/// One table float with the label `tab:<prefix>:<caption>`; `point` (the
+/// parameter values) is added to the caption, not to the label.
+fn table_labelled(t: &Table, prefix: &str, point: Option<&str>) -> String {
     let long: Vec<bool> = (0..t.headers.len())
         .map(|j| t.rows.iter().any(|r| r[j].chars().count() > LONG_CELL))
         .collect();
@@ -65,7 +74,8 @@ fn table_labelled(t: &Table, prefix: &str) -> String {
         })
         .collect();
     let mut out = format!("\\begin{{{env}}}[htbp]\n\\centering\n");
-    out.push_str(&format!("\\caption{{{}}}\n", text(&t.caption)));
+    let at = point.map_or(String::new(), |p| format!(" at {}", text(p)));
+    out.push_str(&format!("\\caption{{{}{at}}}\n", text(&t.caption)));
     out.push_str(&format!("\\label{{tab:{prefix}:{}}}\n", slug(&t.caption)));
     out.push_str("\\resizebox{\\ifdim\\width>\\linewidth\\linewidth\\else\\width\\fi}{!}{%\n");
     out.push_str(&format!("\\begin{{tabular}}{{{cols}}}\n\\toprule\n"));
@@ -277,7 +287,87 @@ fn push_escaped(out: &mut String, ch: char) {
         '|' => out.push_str("$|$"),
         '<' => out.push_str("$<$"),
         '>' => out.push_str("$>$"),
-        _ => out.push(ch),
+        _ if ch.is_ascii() => out.push(ch),
+        _ => push_unicode(out, ch),
+    }
+}
+
+/// Greek letters (as in parameter labels, `λ`) in math mode, a few other
+/// symbols of figure labels likewise; Latin-1 letters as they are (utf8
+/// input, the default of LaTeX since 2018); any other character, which
+/// pdflatex could not typeset, as its code point in typewriter type.
+fn push_unicode(out: &mut String, ch: char) {
+    let code = ch as u32;
+    let math = match ch {
+        'α'..='ω' | 'Α'..='Ω' => match greek(ch) {
+            Some(tex) if tex.starts_with('\\') => Some(tex),
+            // A capital that looks like a Latin one is that letter.
+            Some(latin) => return out.push_str(&latin),
+            None => None,
+        },
+        'µ' => Some("\\mu".into()),
+        'ℓ' => Some("\\ell".into()),
+        '·' => Some("\\cdot".into()),
+        '×' => Some("\\times".into()),
+        '−' => Some("-".into()),
+        '₀'..='₉' => Some(format!("_{{{}}}", code - '₀' as u32)),
+        _ => None,
+    };
+    match math {
+        Some(m) => {
+            out.push('$');
+            out.push_str(&m);
+            out.push('$');
+        }
+        None if code < 0x100 => out.push(ch),
+        None => out.push_str(&format!("{{\\ttfamily U+{code:04X}}}")),
+    }
+}
+
+/// The TeX of a Greek letter: a math command (`\lambda`, `\Delta`), or the
+/// Latin letter a capital looks like (`A`); None for the unassigned U+03A2.
+fn greek(ch: char) -> Option<String> {
+    const LOWER: [&str; 25] = [
+        "alpha", "beta", "gamma", "delta", "epsilon", "zeta", "eta", "theta", "iota", "kappa",
+        "lambda", "mu", "nu", "xi", "o", "pi", "rho", "varsigma", "sigma", "tau", "upsilon", "phi",
+        "chi", "psi", "omega",
+    ];
+    const UPPER: [&str; 25] = [
+        "A",
+        "B",
+        "\\Gamma",
+        "\\Delta",
+        "E",
+        "Z",
+        "H",
+        "\\Theta",
+        "I",
+        "K",
+        "\\Lambda",
+        "M",
+        "N",
+        "\\Xi",
+        "O",
+        "\\Pi",
+        "P",
+        "",
+        "\\Sigma",
+        "T",
+        "\\Upsilon",
+        "\\Phi",
+        "X",
+        "\\Psi",
+        "\\Omega",
+    ];
+    let code = ch as u32;
+    match ch {
+        // Omicron has no command: it is an o.
+        'ο' => Some("o".into()),
+        'α'..='ω' => Some(format!("\\{}", LOWER[(code - 'α' as u32) as usize])),
+        'Α'..='Ω' => {
+            Some(UPPER[(code - 'Α' as u32) as usize].to_string()).filter(|s| !s.is_empty())
+        }
+        _ => None,
     }
 }
 
@@ -335,6 +425,16 @@ mod tests {
         assert_eq!(text("(1, -1)"), "(1, $-$1)");
         assert_eq!(text("tunnel-hop@1"), "tunnel-hop@1");
         assert_eq!(header("|det K|"), "$|\\det K|$");
+    }
+
+    #[test]
+    fn greek_and_other_unicode_become_commands_or_code_points() {
+        assert_eq!(text("λ=0.8 meV"), "$\\lambda$=0.8 meV");
+        assert_eq!(text("Δ₀ ΛΑ"), "$\\Delta$$_{0}$ $\\Lambda$A");
+        assert_eq!(escape("ℓ·µ"), "$\\ell$$\\cdot$$\\mu$");
+        assert_eq!(escape("é"), "é");
+        // pdflatex has no glyph for it: its code point, visibly.
+        assert_eq!(escape("☃"), "{\\ttfamily U+2603}");
     }
 
     #[test]

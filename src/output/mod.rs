@@ -37,6 +37,28 @@ pub enum Format {
     Latex,
 }
 
+/// `λ = 0.8 meV, g = 0.3`: a parameter point (name -> value) with the
+/// labels and units of `labels` (name -> `{label, unit}`, both optional;
+/// the model's `[params]` tables) where given, else `name = value`.
+pub fn labelled_point(
+    values: &serde_json::Map<String, serde_json::Value>,
+    labels: &serde_json::Map<String, serde_json::Value>,
+) -> String {
+    let text = |v: Option<&serde_json::Value>| v.and_then(|x| x.as_str()).map(str::to_string);
+    values
+        .iter()
+        .map(|(name, v)| {
+            let l = labels.get(name);
+            let shown = text(l.and_then(|l| l.get("label"))).unwrap_or_else(|| name.clone());
+            match text(l.and_then(|l| l.get("unit"))).filter(|u| !u.is_empty()) {
+                Some(u) => format!("{shown} = {v} {u}"),
+                None => format!("{shown} = {v}"),
+            }
+        })
+        .collect::<Vec<_>>()
+        .join(", ")
+}
+
 /// A table of strings with a caption.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Table {
@@ -106,6 +128,18 @@ pub fn parameters_fact(parameters: &serde_json::Map<String, serde_json::Value>) 
         .map(|(k, v)| format!("{k}={v}"))
         .collect::<Vec<_>>()
         .join(", ")
+}
+
+/// [`parameters_fact`] naming the parameters that have a label or unit in
+/// the model by them (`λ=0.8 meV, g=0.5`).
+pub fn labelled_parameters_fact(
+    parameters: &serde_json::Map<String, serde_json::Value>,
+    labels: &serde_json::Map<String, serde_json::Value>,
+) -> String {
+    if labels.is_empty() {
+        return parameters_fact(parameters);
+    }
+    labelled_point(parameters, labels).replace(" = ", "=")
 }
 
 /// A number for people: at most 6 significant digits, trailing zeros

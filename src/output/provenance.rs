@@ -23,6 +23,10 @@ pub struct Provenance {
     pub revision: Option<String>,
     /// The subcommand (`dims`, `flow`, `scan`, ...).
     pub command: String,
+    /// Who ran it when not the command line: `python` for the Python
+    /// package's calls (absent for the command line).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub caller: Option<String>,
     /// The command-line arguments after the program name, without the
     /// ones that cannot change a result (`--threads N`, `--quiet`, `-q`,
     /// `--resume`).
@@ -46,6 +50,7 @@ impl Provenance {
             pinflow: env!("CARGO_PKG_VERSION").to_string(),
             revision: revision().map(str::to_string),
             command: command.to_string(),
+            caller: None,
             arguments,
             model: None,
             model_sha256: None,
@@ -53,6 +58,28 @@ impl Provenance {
             grid: Vec::new(),
             options: Value::Object(Map::new()),
         }
+    }
+}
+
+impl Provenance {
+    /// A record of a run on a model: `model` names the file, `bytes` are
+    /// its contents (hashed), `parameters` every value used (name, value),
+    /// `options` the engine's options after defaults.
+    pub fn for_model(
+        command: &str,
+        arguments: Vec<String>,
+        (model, bytes): (&str, &[u8]),
+        parameters: impl IntoIterator<Item = (String, f64)>,
+        options: Value,
+    ) -> Provenance {
+        let mut p = Provenance::new(command, arguments);
+        p.model = Some(model.to_string());
+        p.model_sha256 = Some(sha256_hex(bytes));
+        for (name, value) in parameters {
+            p.parameters.insert(name, Value::from(value));
+        }
+        p.options = options;
+        p
     }
 }
 

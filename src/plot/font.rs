@@ -37,13 +37,44 @@ pub(crate) mod size {
 }
 
 /// A text style in the embedded font with the given pixel size and colour.
+/// Paper-style figures scale the sizes up (see [`paper_px`]).
 pub(crate) fn style(px: f64, colour: RGBColor) -> TextStyle<'static> {
+    let px = match super::style::figure_style() {
+        super::style::FigureStyle::Screen => px,
+        super::style::FigureStyle::Paper => paper_px(px),
+    };
     (FAMILY, px).into_font().color(&colour)
+}
+
+/// Pixel size on the paper canvas (200 px per inch). plotters sets the
+/// em at 0.806 of its size (its SVG writes `font-size="17.74"` for 22 px;
+/// pdftotext measures the same in the PDF), so 28.6 px gives an 8.3 pt em
+/// (tick labels, legend) and 31 px a 9.0 pt em (axis titles):
+/// 28.6 × 0.806 / 200 × 72 = 8.3.
+fn paper_px(px: f64) -> f64 {
+    if px == size::AXIS {
+        31.0
+    } else {
+        px * 1.3
+    }
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn paper_text_is_eight_to_nine_points() {
+        // Em in points at 200 px per inch: 0.806 of the line height.
+        let pt = |px: f64| paper_px(px) * 0.806 / 200.0 * 72.0;
+        for role in [size::TICK, size::LEGEND, size::AXIS] {
+            assert!(
+                (8.0..=9.05).contains(&pt(role)),
+                "{role} px: {} pt",
+                pt(role)
+            );
+        }
+    }
 
     #[test]
     fn embedded_font_registers_and_is_a_truetype_file() {

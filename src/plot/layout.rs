@@ -1,17 +1,17 @@
 //! Page furniture shared by all figures: title, caption, legend column,
 //! axes set-up, styled lines and number formatting.
 
-use plotters::coord::types::RangedCoordf64;
 use plotters::coord::Shift;
 use plotters::element::DashedPathElement;
 use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, Pos, VPos};
 
 use super::font::{self, size};
+use super::logaxis::{self, AxisCoord};
 use super::output::msg;
 
-/// A chart with linear f64 axes (log axes are drawn as log10 values).
-pub(crate) type Chart<'a, DB> = ChartContext<'a, DB, Cartesian2d<RangedCoordf64, RangedCoordf64>>;
+/// A chart with f64 axes (a log axis carries log10 values, see [`logaxis`]).
+pub(crate) type Chart<'a, DB> = ChartContext<'a, DB, Cartesian2d<AxisCoord, AxisCoord>>;
 
 /// A page region in pixel coordinates.
 pub(crate) type Area<DB> = DrawingArea<DB, Shift>;
@@ -204,14 +204,165 @@ pub(crate) fn legend_width<DB: DrawingBackend>(
     min: i32,
     max: i32,
 ) -> Result<i32, String> {
+    let g = LegendGeometry::current();
     let style = font::style(size::LEGEND, INK);
     let mut widest = 0;
     for entry in entries {
         widest = widest.max(text_width(area, &entry.label, &style)?);
     }
-    Ok((LEGEND_SAMPLE + LEGEND_GAP + widest + 2 * LEGEND_GAP)
-        .min(max)
-        .max(min))
+    Ok((g.sample + g.gap + widest + 2 * g.gap).min(max).max(min))
+}
+
+/// Sizes of legend rows: large on screen, compact on paper.
+#[derive(Clone, Copy)]
+struct LegendGeometry {
+    row: i32,
+    line: i32,
+    sample: i32,
+    gap: i32,
+}
+
+impl LegendGeometry {
+    fn current() -> LegendGeometry {
+        match super::style::figure_style() {
+            super::style::FigureStyle::Screen => LegendGeometry {
+                row: LEGEND_ROW,
+                line: LEGEND_ROW - 6,
+                sample: LEGEND_SAMPLE,
+                gap: LEGEND_GAP,
+            },
+            super::style::FigureStyle::Paper => LegendGeometry {
+                row: 32,
+                line: 29,
+                sample: 30,
+                gap: 6,
+            },
+        }
+    }
+}
+
+/// Where a figure's legend goes: a column right of the plot (`screen`), or
+/// (`paper`, where a column would take half of a 3.4 in figure) a block of
+/// as many columns as fit under the plot. Returns the plot's area, the
+/// legend's area and the number of legend columns.
+pub(crate) fn split_legend<DB: DrawingBackend>(
+    body: &Area<DB>,
+    entries: &[LegendEntry],
+    min_width: i32,
+) -> Result<(Area<DB>, Area<DB>, usize), String> {
+    let (w, h) = body.dim_in_pixel();
+    if super::style::figure_style() == super::style::FigureStyle::Screen {
+        let legend_w = legend_width(body, entries, min_width, w as i32 * 2 / 5)?;
+        let (plot, legend) = body.split_horizontally(w as i32 - legend_w);
+        return Ok((plot, legend, 1));
+    }
+    let columns = legend_columns(body, entries, w as i32)?;
+    let height = legend_height(body, entries, columns, w as i32)?.min(h as i32 / 2);
+    let (plot, legend) = body.split_vertically(h as i32 - height);
+    Ok((plot, legend, columns))
+}
+
+/// Widths in pixels of the legend columns when `entries` fill `columns`
+/// columns row by row (each column as wide as its widest entry).
+fn column_widths<DB: DrawingBackend>(
+    area: &Area<DB>,
+    entries: &[LegendEntry],
+    columns: usize,
+) -> Result<Vec<i32>, String> {
+    let g = LegendGeometry::current();
+    let style = font::style(size::LEGEND, INK);
+    let mut widths = vec![0; columns.max(1)];
+    for (i, entry) in entries.iter().enumerate() {
+        let w = g.sample + 3 * g.gap + text_width(area, &entry.label, &style)?;
+        widths[i % columns.max(1)] = widths[i % columns.max(1)].max(w);
+    }
+    Ok(widths)
+}
+
+/// The most legend columns (each as wide as its widest entry) that fit
+/// across `width` pixels; 1 when even one entry is wider.
+fn legend_columns<DB: DrawingBackend>(
+    area: &Area<DB>,
+    entries: &[LegendEntry],
+    width: i32,
+) -> Result<usize, String> {
+    for columns in (2..=entries.len()).rev() {
+        if column_widths(area, entries, columns)?.iter().sum::<i32>() <= width {
+            return Ok(columns);
+        }
+    }
+    Ok(1)
+}
+
+/// The wrapped lines of every entry (wrapped only in a single column).
+fn legend_lines<DB: DrawingBackend>(
+    area: &Area<DB>,
+    entries: &[LegendEntry],
+    columns: usize,
+    width: i32,
+) -> Result<Vec<Vec<String>>, String> {
+    let g = LegendGeometry::current();
+    let style = font::style(size::LEGEND, INK);
+    let text_w = match columns {
+        0 | 1 => width - (g.sample + 3 * g.gap),
+        _ => i32::MAX,
+    };
+    entries
+        .iter()
+        .map(|e| wrap(area, &e.label, &style, text_w))
+        .collect()
+}
+
+/// Height in pixels of a legend of `columns` columns, `width` wide.
+fn legend_height<DB: DrawingBackend>(
+    area: &Area<DB>,
+    entries: &[LegendEntry],
+    columns: usize,
+    width: i32,
+) -> Result<i32, String> {
+    let g = LegendGeometry::current();
+    let lines = legend_lines(area, entries, columns, width)?;
+    let rows: i32 = lines
+        .chunks(columns.max(1))
+        .map(|row| row.iter().map(|l| l.len().max(1)).max().unwrap_or(1) as i32)
+        .map(|n| g.row + (n - 1) * g.line)
+        .sum();
+    Ok(rows + 2 * g.gap)
+}
+
+/// Draws `entries` into `area` in `columns` columns, row by row (on
+/// screen a single column is the legend column of [`draw_legend`]).
+pub(crate) fn draw_legend_grid<DB: DrawingBackend>(
+    area: &Area<DB>,
+    entries: &[LegendEntry],
+    columns: usize,
+) -> Result<(), String> {
+    if columns <= 1 && super::style::figure_style() == super::style::FigureStyle::Screen {
+        return draw_legend(area, entries, 12).map(|_| ());
+    }
+    let g = LegendGeometry::current();
+    let (w, _) = area.dim_in_pixel();
+    let columns = columns.max(1);
+    let widths = column_widths(area, entries, columns)?;
+    let lines = legend_lines(area, entries, columns, w as i32)?;
+    let style = font::style(size::LEGEND, INK).pos(Pos::new(HPos::Left, VPos::Center));
+    let mut top = g.gap;
+    for (r, row) in entries.chunks(columns).enumerate() {
+        let (mut x, mut tallest) = (0, 1);
+        for (c, entry) in row.iter().enumerate() {
+            let y = top + g.row / 2;
+            draw_sample_sized(area, entry.sample, (x + g.gap, y), g.sample)?;
+            let text_x = x + 2 * g.gap + g.sample;
+            for (k, line) in lines[r * columns + c].iter().enumerate() {
+                area.draw_text(line, &style, (text_x, y + k as i32 * g.line))
+                    .map_err(msg)?;
+            }
+            tallest = tallest.max(lines[r * columns + c].len());
+            x += widths[c];
+        }
+        top += g.row + (tallest as i32 - 1) * g.line;
+    }
+    Ok(())
 }
 
 /// Draws `entries` as rows from `top` down, inside `area` (labels that are
@@ -221,32 +372,34 @@ pub(crate) fn draw_legend<DB: DrawingBackend>(
     entries: &[LegendEntry],
     top: i32,
 ) -> Result<i32, String> {
+    let g = LegendGeometry::current();
     let (w, _) = area.dim_in_pixel();
     let style = font::style(size::LEGEND, INK).pos(Pos::new(HPos::Left, VPos::Center));
-    let text_x = LEGEND_GAP + LEGEND_SAMPLE + LEGEND_GAP;
-    let mut y = top + LEGEND_ROW / 2;
+    let text_x = g.gap + g.sample + g.gap;
+    let mut y = top + g.row / 2;
     for entry in entries {
-        draw_sample(area, entry.sample, (LEGEND_GAP, y))?;
-        let lines = wrap(area, &entry.label, &style, w as i32 - text_x - LEGEND_GAP)?;
+        draw_sample_sized(area, entry.sample, (g.gap, y), g.sample)?;
+        let lines = wrap(area, &entry.label, &style, w as i32 - text_x - g.gap)?;
         for line in &lines {
             area.draw_text(line, &style, (text_x, y)).map_err(msg)?;
-            y += LEGEND_ROW - 6;
+            y += g.line;
         }
-        y += 6 + if lines.is_empty() { LEGEND_ROW - 6 } else { 0 };
+        y += g.row - g.line + if lines.is_empty() { g.line } else { 0 };
     }
-    Ok(y - LEGEND_ROW / 2)
+    Ok(y - g.row / 2)
 }
 
-/// Draws one legend symbol with its left end at `(x, y)`.
-fn draw_sample<DB: DrawingBackend>(
+/// Draws one legend symbol, `len` pixels long, with its left end at `(x, y)`.
+fn draw_sample_sized<DB: DrawingBackend>(
     area: &DrawingArea<DB, Shift>,
     sample: Sample,
     (x, y): (i32, i32),
+    len: i32,
 ) -> Result<(), String> {
     match sample {
         Sample::Line(colour, width, dash) => {
             let style = colour.stroke_width(width);
-            let points = vec![(x, y), (x + LEGEND_SAMPLE, y)];
+            let points = vec![(x, y), (x + len, y)];
             match dash.pattern() {
                 None => area.draw(&PathElement::new(points, style)),
                 Some((on, off)) => area.draw(&DashedPathElement::new(points, on, off, style)),
@@ -254,7 +407,8 @@ fn draw_sample<DB: DrawingBackend>(
             .map_err(msg)
         }
         Sample::Swatch(colour, alpha) => {
-            let corners = [(x + 4, y - 11), (x + LEGEND_SAMPLE - 4, y + 11)];
+            let (half, inset) = if len >= 40 { (11, 4) } else { (8, 2) };
+            let corners = [(x + inset, y - half), (x + len - inset, y + half)];
             area.draw(&Rectangle::new(corners, colour.mix(alpha).filled()))
                 .map_err(msg)?;
             area.draw(&Rectangle::new(corners, INK.mix(0.6).stroke_width(1)))
@@ -269,12 +423,25 @@ pub(crate) fn chart<'a, DB: DrawingBackend>(
     x: (f64, f64),
     y: (f64, f64),
 ) -> Result<Chart<'a, DB>, String> {
+    chart_scaled(area, x, y, (false, false))
+}
+
+/// [`chart`] with logarithmic axes where `log` says so (the ranges are
+/// then log10 values).
+pub(crate) fn chart_scaled<'a, DB: DrawingBackend>(
+    area: &'a DrawingArea<DB, Shift>,
+    x: (f64, f64),
+    y: (f64, f64),
+    log: (bool, bool),
+) -> Result<Chart<'a, DB>, String> {
+    let paper = super::style::figure_style() == super::style::FigureStyle::Paper;
+    let (bottom, left) = if paper { (74, 104) } else { (64, 100) };
     ChartBuilder::on(area)
-        .margin(12)
-        .margin_right(24)
-        .x_label_area_size(64)
-        .y_label_area_size(100)
-        .build_cartesian_2d(x.0..x.1, y.0..y.1)
+        .margin(if paper { 8 } else { 12 })
+        .margin_right(if paper { 16 } else { 24 })
+        .x_label_area_size(bottom)
+        .y_label_area_size(left)
+        .build_cartesian_2d(AxisCoord::new(x, log.0), AxisCoord::new(y, log.1))
         .map_err(msg)
 }
 
@@ -300,15 +467,36 @@ pub(crate) fn draw_mesh<DB: DrawingBackend>(
     let span = |r: std::ops::Range<f64>| (r.end - r.start).abs();
     let (x_span, y_span) = (span(chart.x_range()), span(chart.y_range()));
     let snap = |v: f64, s: f64| if v.abs() < 1e-9 * s { 0.0 } else { v };
-    let x_format = |v: &f64| format_number(snap(*v, x_span));
-    let y_default = |v: &f64| format_number(snap(*v, y_span));
+    let spec = chart.as_coord_spec();
+    let (x_log, y_log) = (spec.x_spec().log, spec.y_spec().log);
+    // On paper the text is large for the canvas: at most one tick label
+    // per 40 px of height and 90 px of width.
+    let (mut x_labels, mut y_labels) = (8, axes.y_labels);
+    if super::style::figure_style() == super::style::FigureStyle::Paper {
+        let (w, h) = chart.plotting_area().dim_in_pixel();
+        x_labels = x_labels.min(w as usize / 90).max(2);
+        y_labels = y_labels.min(h as usize / 40).max(2);
+    }
+    let decades = |r: std::ops::Range<f64>, n| logaxis::all_decades(r.start, r.end, n);
+    let (x_dec, y_dec) = (
+        decades(chart.x_range(), x_labels),
+        decades(chart.y_range(), y_labels),
+    );
+    let x_format = |v: &f64| match x_log {
+        true => logaxis::log_label(*v, x_dec),
+        false => format_number(snap(*v, x_span)),
+    };
+    let y_default = |v: &f64| match y_log {
+        true => logaxis::log_label(*v, y_dec),
+        false => format_number(snap(*v, y_span)),
+    };
     let y_format: &dyn Fn(&f64) -> String = axes.y_format.unwrap_or(&y_default);
     chart
         .configure_mesh()
         .x_desc(axes.x_desc)
         .y_desc(axes.y_desc)
-        .x_labels(8)
-        .y_labels(axes.y_labels)
+        .x_labels(x_labels)
+        .y_labels(y_labels)
         .x_label_formatter(&x_format)
         .y_label_formatter(y_format)
         .label_style(font::style(size::TICK, INK))

@@ -8,6 +8,7 @@ use plotters::prelude::*;
 use serde::{Deserialize, Serialize};
 
 use super::layout::{self, Area, Axes, Chart, Dash, LegendEntry, REFERENCE};
+use super::logaxis::to_axis;
 use super::output::{self, msg, Figure, Surface};
 use super::palette;
 use super::PlotError;
@@ -81,6 +82,9 @@ pub struct LineScanFigure {
     pub title: String,
     /// Name of the scanned parameter (x-axis label).
     pub x_name: String,
+    /// The x axis is logarithmic (parameter values positive).
+    #[serde(default)]
+    pub x_log: bool,
     /// Parameter values.
     pub xs: Vec<f64>,
     /// One line per term.
@@ -137,6 +141,9 @@ fn check_scan(data: &LineScanFigure) -> Result<(), String> {
     let n = data.xs.len();
     if n == 0 {
         return Err("scan figure needs at least one parameter value".into());
+    }
+    if data.x_log && data.xs.iter().any(|x| *x <= 0.0) {
+        return Err("a logarithmic x axis needs positive parameter values".into());
     }
     if let Some(s) = data.series.iter().find(|s| s.dimension.len() != n) {
         return Err(format!(
@@ -271,13 +278,19 @@ impl FlowFigure {
         let (logs, floor) = log_couplings(&self.series);
         let y = decade_range(&logs, floor);
         let pad = 0.03 * (y.1 - y.0);
-        let mut chart = layout::chart(area, x_range(&self.ell), (y.0 - pad, y.1 + pad))?;
+        let ylim = (y.0 - pad, y.1 + pad);
+        let mut chart = layout::chart_scaled(area, x_range(&self.ell), ylim, (false, true))?;
         let format = |v: &f64| layout::power_of_ten(*v);
         let decades = (y.1 - y.0).round() as usize;
+        // One label per decade while they fit (about 30 px each): more
+        // decades are thinned to every k-th (see `logaxis`).
+        let (_, h) = area.dim_in_pixel();
+        // On paper the two panels share the ℓ axis title (drawn below).
+        let paper = super::style::figure_style() == super::style::FigureStyle::Paper;
         let axes = Axes {
-            x_desc: ELL_LABEL,
+            x_desc: if paper { "" } else { ELL_LABEL },
             y_desc: "|y|",
-            y_labels: (decades + 1).min(10),
+            y_labels: (decades + 1).min(10).min(h as usize / 30).max(2),
             y_format: Some(&format),
             grid: true,
         };
@@ -343,9 +356,10 @@ impl FlowFigure {
 const ELL_LABEL: &str = "ℓ = ln(α/α₀)";
 
 fn dimension_axes(x_desc: &str) -> Axes<'_> {
+    let paper = super::style::figure_style() == super::style::FigureStyle::Paper;
     Axes {
         x_desc,
-        y_desc: "scaling dimension Δ",
+        y_desc: if paper { "Δ" } else { "scaling dimension Δ" },
         y_labels: 8,
         y_format: None,
         grid: true,
@@ -369,14 +383,13 @@ fn draw_marginal<DB: DrawingBackend>(
     )
 }
 
-/// Splits the body into a plotting part and a legend column on the right.
-fn with_legend_column<DB: DrawingBackend>(
+/// Splits the body into a plotting part and the legend (see
+/// [`layout::split_legend`]).
+fn with_legend<DB: DrawingBackend>(
     body: &DrawingArea<DB, Shift>,
     entries: &[LegendEntry],
-) -> Result<(Area<DB>, Area<DB>), String> {
-    let (w, _) = body.dim_in_pixel();
-    let legend_w = layout::legend_width(body, entries, 220, (w as i32) * 2 / 5)?;
-    Ok(body.split_horizontally(w as i32 - legend_w))
+) -> Result<(Area<DB>, Area<DB>, usize), String> {
+    layout::split_legend(body, entries, 220)
 }
 
 impl Figure for FlowFigure {
@@ -391,12 +404,12 @@ impl Figure for FlowFigure {
     ) -> Result<(), String> {
         let body = layout::frame(root, &self.title, &self.caption)?;
         let entries = self.legend();
-        let (plots, legend) = with_legend_column(&body, &entries)?;
+        let (plots, legend, columns) = with_legend(&body, &entries)?;
         let (_, h) = plots.dim_in_pixel();
         let (top, bottom) = plots.split_vertically(h as i32 / 2);
         self.draw_couplings(&top)?;
         self.draw_dimensions(&bottom)?;
-        layout::draw_legend(&legend, &entries, 12).map(|_| ())
+        layout::draw_legend_grid(&legend, &entries, columns)
     }
 }
 
@@ -438,8 +451,9 @@ impl LineScanFigure {
     fn draw_bands<DB: DrawingBackend>(&self, chart: &mut Chart<'_, DB>) -> Result<(), String> {
         let (x, y) = (chart.x_range(), chart.y_range());
         for b in &self.bands {
-            let (lo, hi) = (b.x0.min(b.x1).max(x.start), b.x0.max(b.x1).min(x.end));
-            if lo >= hi {
+            let (x0, x1) = (to_axis(b.x0, self.x_log), to_axis(b.x1, self.x_log));
+            let (lo, hi) = (x0.min(x1).max(x.start), x0.max(x1).min(x.end));
+            if lo.partial_cmp(&hi) != Some(std::cmp::Ordering::Less) {
                 continue;
             }
             let colour = palette::categorical(b.colour_index).mix(BAND_ALPHA);
@@ -462,15 +476,16 @@ impl Figure for LineScanFigure {
     ) -> Result<(), String> {
         let body = layout::frame(root, &self.title, &self.caption)?;
         let entries = self.legend();
-        let (plot, legend) = with_legend_column(&body, &entries)?;
-        let x = x_range(&self.xs);
+        let (plot, legend, columns) = with_legend(&body, &entries)?;
+        let xs: Vec<f64> = self.xs.iter().map(|&v| to_axis(v, self.x_log)).collect();
+        let x = x_range(&xs);
         let y = dimension_range(self.series.iter().map(|s| s.dimension.as_slice()));
-        let mut chart = layout::chart(&plot, x, y)?;
+        let mut chart = layout::chart_scaled(&plot, x, y, (self.x_log, false))?;
         self.draw_bands(&mut chart)?;
         layout::draw_mesh(&mut chart, &dimension_axes(&self.x_name))?;
         draw_marginal(&mut chart, x)?;
         for (i, s) in self.series.iter().enumerate() {
-            let points = self.xs.iter().copied().zip(s.dimension.iter().copied());
+            let points = xs.iter().copied().zip(s.dimension.iter().copied());
             for run in layout::finite_runs(points) {
                 layout::draw_line(
                     &mut chart,
@@ -482,14 +497,14 @@ impl Figure for LineScanFigure {
             }
             if self.xs.len() <= MARKED_POINTS {
                 // Few points (e.g. `dims --wires`): each one is a measurement.
-                let points = self.xs.iter().copied().zip(s.dimension.iter().copied());
+                let points = xs.iter().copied().zip(s.dimension.iter().copied());
                 let marks = points
                     .filter(|(x, y)| x.is_finite() && y.is_finite())
                     .map(|p| Circle::new(p, MARKER_RADIUS, series_colour(i).filled()));
                 chart.draw_series(marks).map_err(msg)?;
             }
         }
-        layout::draw_legend(&legend, &entries, 12).map(|_| ())
+        layout::draw_legend_grid(&legend, &entries, columns)
     }
 }
 
@@ -680,6 +695,7 @@ mod tests {
                 },
             ],
             xs,
+            x_log: false,
             bands: vec![
                 Band {
                     x0: 0.4,

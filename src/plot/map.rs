@@ -23,6 +23,7 @@ use serde::{Deserialize, Serialize};
 pub use super::contour::{contour_lines, ContourTracer};
 use super::font::{self, size};
 use super::layout::{self, Axes, Chart, Dash, LegendEntry, INK};
+use super::logaxis::to_axis;
 use super::output::{self, msg, Figure, Raster, Surface, MARKER};
 use super::palette;
 use super::PlotError;
@@ -45,6 +46,12 @@ pub struct PhaseMap {
     pub x_name: String,
     /// Name of the vertical parameter.
     pub y_name: String,
+    /// The x axis is logarithmic (grid points positive).
+    #[serde(default)]
+    pub x_log: bool,
+    /// The y axis is logarithmic (grid points positive).
+    #[serde(default)]
+    pub y_log: bool,
     /// Grid points along x (strictly increasing).
     pub xs: Vec<f64>,
     /// Grid points along y (strictly increasing).
@@ -70,6 +77,12 @@ pub struct HeatMap {
     pub x_name: String,
     /// Name of the vertical parameter.
     pub y_name: String,
+    /// The x axis is logarithmic (grid points positive).
+    #[serde(default)]
+    pub x_log: bool,
+    /// The y axis is logarithmic (grid points positive).
+    #[serde(default)]
+    pub y_log: bool,
     /// Grid points along x (strictly increasing).
     pub xs: Vec<f64>,
     /// Grid points along y (strictly increasing).
@@ -94,14 +107,25 @@ pub fn phase_diagram(path_stem: &Path, data: &PhaseMap) -> Result<(), PlotError>
 /// Writes `<path_stem>.png` and `<path_stem>.svg`: cells coloured with
 /// viridis, a colour bar with ticks, and missing values in grey.
 pub fn heat_map(path_stem: &Path, data: &HeatMap) -> Result<(), PlotError> {
-    check_grid(&data.xs, &data.ys, data.values.len()).map_err(|m| PlotError::new(path_stem, m))?;
+    check_grid(
+        &data.xs,
+        &data.ys,
+        data.values.len(),
+        (data.x_log, data.y_log),
+    )
+    .map_err(|m| PlotError::new(path_stem, m))?;
     output::write_figure(path_stem, data)
 }
 
-fn check_grid(xs: &[f64], ys: &[f64], cells: usize) -> Result<(), String> {
-    for (axis, v) in [("x", xs), ("y", ys)] {
+fn check_grid(xs: &[f64], ys: &[f64], cells: usize, log: (bool, bool)) -> Result<(), String> {
+    for (axis, v, log) in [("x", xs, log.0), ("y", ys, log.1)] {
         if v.is_empty() {
             return Err(format!("no {axis} grid points"));
+        }
+        if log && v.iter().any(|t| *t <= 0.0) {
+            return Err(format!(
+                "a logarithmic {axis} axis needs positive grid points"
+            ));
         }
         if v.iter().any(|t| !t.is_finite()) || v.windows(2).any(|w| w[1] <= w[0]) {
             return Err(format!(
@@ -121,7 +145,12 @@ fn check_grid(xs: &[f64], ys: &[f64], cells: usize) -> Result<(), String> {
 }
 
 fn check_phase(data: &PhaseMap) -> Result<(), String> {
-    check_grid(&data.xs, &data.ys, data.cells.len())?;
+    check_grid(
+        &data.xs,
+        &data.ys,
+        data.cells.len(),
+        (data.x_log, data.y_log),
+    )?;
     let n = data.categories.len();
     if let Some(c) = data.cells.iter().find(|&&c| c as usize >= n) {
         return Err(format!("category index {c} but only {n} categories"));
@@ -274,14 +303,22 @@ fn crop(page: &[u8], ul: (i32, i32), br: (i32, i32)) -> Option<Raster> {
 }
 
 /// Chart spanning the cells, with axes and labels but no grid lines
-/// (the cells would hide them).
+/// (the cells would hide them). `xs`, `ys` are as placed on the axes
+/// ([`placed`]).
 fn map_chart<'a, DB: DrawingBackend>(
     area: &'a DrawingArea<DB, Shift>,
     xs: &[f64],
     ys: &[f64],
+    log: (bool, bool),
 ) -> Result<Chart<'a, DB>, String> {
     let (ex, ey) = (cell_edges(xs), cell_edges(ys));
-    layout::chart(area, (ex[0], ex[xs.len()]), (ey[0], ey[ys.len()]))
+    layout::chart_scaled(area, (ex[0], ex[xs.len()]), (ey[0], ey[ys.len()]), log)
+}
+
+/// Grid points as placed on an axis: log10 on a logarithmic axis, so a
+/// log-spaced grid gets cells of equal width bounded at geometric means.
+fn placed(v: &[f64], log: bool) -> Vec<f64> {
+    v.iter().map(|&t| to_axis(t, log)).collect()
 }
 
 fn draw_map_axes<DB: DrawingBackend>(
@@ -357,27 +394,35 @@ impl Figure for PhaseMap {
     ) -> Result<(), String> {
         let body = layout::frame(root, &self.title, &self.caption)?;
         let entries = self.legend();
-        let (w, _) = body.dim_in_pixel();
-        let legend_w = layout::legend_width(&body, &entries, 240, w as i32 * 2 / 5)?;
-        let (plot, legend) = body.split_horizontally(w as i32 - legend_w);
-        let mut chart = map_chart(&plot, &self.xs, &self.ys)?;
+        let (plot, legend, columns) = layout::split_legend(&body, &entries, 240)?;
+        let log = (self.x_log, self.y_log);
+        let (xs, ys) = (placed(&self.xs, log.0), placed(&self.ys, log.1));
+        let mut chart = map_chart(&plot, &xs, &ys, log)?;
         let colour_of = |k: usize| self.colour(self.cells[k] as usize);
-        draw_cells(&mut chart, (&self.xs, &self.ys), &colour_of, surface)?;
+        draw_cells(&mut chart, (&xs, &ys), &colour_of, surface)?;
         draw_map_axes(&mut chart, &self.x_name, &self.y_name)?;
         for (i, contour) in self.lines.iter().enumerate() {
             let (colour, dash) = contour_style(i);
             for line in &contour.points {
-                for run in layout::finite_runs(line.iter().copied()) {
+                let line = line
+                    .iter()
+                    .map(|&(x, y)| (to_axis(x, log.0), to_axis(y, log.1)));
+                for run in layout::finite_runs(line) {
                     layout::draw_line(&mut chart, &run, colour, CONTOUR_WIDTH, dash)?;
                 }
             }
         }
-        layout::draw_legend(&legend, &entries, 12).map(|_| ())
+        layout::draw_legend_grid(&legend, &entries, columns)
     }
 }
 
-/// Width of the colour-bar column of a heat map.
-const COLOUR_BAR_COLUMN: i32 = 230;
+/// Width of the colour-bar column of a heat map (narrower on paper).
+fn colour_bar_column() -> i32 {
+    match super::style::figure_style() {
+        super::style::FigureStyle::Screen => 230,
+        super::style::FigureStyle::Paper => 160,
+    }
+}
 /// Number of colour steps in the colour bar.
 const COLOUR_BAR_STEPS: usize = 128;
 
@@ -405,11 +450,12 @@ impl HeatMap {
         area: &DrawingArea<DB, Shift>,
         (lo, hi): (f64, f64),
     ) -> Result<(), String> {
+        let paper = super::style::figure_style() == super::style::FigureStyle::Paper;
         let mut bar = ChartBuilder::on(area)
-            .margin(12)
-            .margin_left(20)
-            .x_label_area_size(64)
-            .right_y_label_area_size(110)
+            .margin(if paper { 8 } else { 12 })
+            .margin_left(if paper { 10 } else { 20 })
+            .x_label_area_size(if paper { 74 } else { 64 })
+            .right_y_label_area_size(if paper { 100 } else { 110 })
             .build_cartesian_2d(0.0..1.0, lo..hi)
             .map_err(msg)?;
         let step = (hi - lo) / COLOUR_BAR_STEPS as f64;
@@ -459,11 +505,13 @@ impl Figure for HeatMap {
     ) -> Result<(), String> {
         let body = layout::frame(root, &self.title, &self.caption)?;
         let (w, _) = body.dim_in_pixel();
-        let (plot, column) = body.split_horizontally(w as i32 - COLOUR_BAR_COLUMN);
+        let (plot, column) = body.split_horizontally(w as i32 - colour_bar_column());
         let range = self.range();
-        let mut chart = map_chart(&plot, &self.xs, &self.ys)?;
+        let log = (self.x_log, self.y_log);
+        let (xs, ys) = (placed(&self.xs, log.0), placed(&self.ys, log.1));
+        let mut chart = map_chart(&plot, &xs, &ys, log)?;
         let colour_of = |k: usize| self.colour(k, range);
-        draw_cells(&mut chart, (&self.xs, &self.ys), &colour_of, surface)?;
+        draw_cells(&mut chart, (&xs, &ys), &colour_of, surface)?;
         draw_map_axes(&mut chart, &self.x_name, &self.y_name)?;
         self.draw_colour_bar(&column, range)?;
         if (0..self.values.len()).any(|k| self.value(k).is_none()) {
@@ -517,6 +565,8 @@ mod tests {
             title: "Phases".into(),
             x_name: "g / v".into(),
             y_name: "K".into(),
+            x_log: false,
+            y_log: false,
             xs,
             ys,
             cells,
@@ -645,6 +695,8 @@ mod tests {
             title: "Gap scale".into(),
             x_name: "g / v".into(),
             y_name: "K".into(),
+            x_log: false,
+            y_log: false,
             xs,
             ys,
             values,

@@ -8,8 +8,8 @@
 //! * Every figure is written three times, as `<stem>.png` (raster,
 //!   1200×900 px, text ≥ 20 px), `<stem>.svg` and `<stem>.pdf` (vector, the
 //!   embedded font subset into the PDF; see [`pdf`]). `--figure-style
-//!   paper` draws 680×510 px with no title or caption as a 3.4 in wide PDF
-//!   (text 8-9 pt) and writes the title and caption to `<stem>.txt`; see
+//!   paper` draws 680×600 px with no title or caption as a 3.4 × 3.0 in
+//!   PDF (text 8-9 pt, legend in columns under the plot) and writes the title and caption to `<stem>.txt`; see
 //!   [`style`].
 //! * Files appear atomically: each is rendered in memory, written to a hidden
 //!   temporary file in the target directory and renamed into place, so a
@@ -27,6 +27,7 @@ mod contour;
 mod font;
 mod layout;
 pub mod lines;
+mod logaxis;
 pub mod map;
 mod output;
 pub mod palette;

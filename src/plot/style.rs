@@ -1,6 +1,7 @@
 //! The figure style: `screen` (1200×900 px, title and caption drawn in)
-//! or `paper` (680×510 px drawn as a 3.4 in wide PDF, so the 22-26 px text
-//! is 8-9 pt; no title and no caption drawn: they go to `<stem>.txt`).
+//! or `paper` (680×600 px drawn as a 3.4 × 3.0 in PDF, with text sizes
+//! scaled to 8-9 pt, see `font`; no title and no caption drawn: they go
+//! to `<stem>.txt`; the legend goes under the plot, see `layout`).
 //!
 //! Invariant: the style is per thread and set by the command line before
 //! any figure is written (figures are drawn on the thread that writes
@@ -37,7 +38,7 @@ pub fn figure_style() -> FigureStyle {
 pub(crate) fn canvas() -> (u32, u32) {
     match figure_style() {
         FigureStyle::Screen => (1200, 900),
-        FigureStyle::Paper => (680, 510),
+        FigureStyle::Paper => (680, 600),
     }
 }
 

@@ -18,6 +18,12 @@ pub struct Axis {
     pub n: usize,
     /// Logarithmic spacing.
     pub log: bool,
+    /// The parameter's display label from the model (figures only).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub label: Option<String>,
+    /// The parameter's unit from the model (figures only).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub unit: Option<String>,
 }
 
 impl Axis {
@@ -57,6 +63,8 @@ impl Axis {
             max,
             n,
             log,
+            label: None,
+            unit: None,
         };
         axis.validate().map(|_| axis)
     }
@@ -141,6 +149,16 @@ impl Axis {
     /// All values.
     pub fn values(&self) -> Vec<f64> {
         (0..self.n).map(|i| self.value(i)).collect()
+    }
+
+    /// The axis title of figures: `λ (meV)` from the model's label and
+    /// unit, else the parameter name.
+    pub fn title(&self) -> String {
+        crate::model::ParamLabel {
+            label: self.label.clone(),
+            unit: self.unit.clone(),
+        }
+        .title(&self.name)
     }
 
     /// The spec string that parses back to this axis.

@@ -258,6 +258,13 @@ impl Categories {
     /// keeps its term's colour (as its line); other outcomes take the last
     /// palette entries (black last, drawn light: grey).
     fn band_colour(&self, c: usize) -> usize {
+        if is_phase(&self.keys[c].0) {
+            // A phase keeps its own palette entry (the gapless phase grey).
+            return match self.keys[c].1 == crate::core::phase::GAPLESS {
+                true => 7,
+                false => self.term_colour[c],
+            };
+        }
         match Outcome::from_word(&self.keys[c].0) {
             Some(Outcome::Strong | Outcome::Spinful) => self.term_colour[c],
             Some(Outcome::Gapless) => 7,
@@ -369,8 +376,10 @@ fn phase_figure(
             ColorBy::Phase => format!("{}: phase after successive pinning", meta.model),
             ColorBy::Winner => format!("{}: which term reaches strong coupling first", meta.model),
         },
-        x_name: meta.axes[0].name.clone(),
-        y_name: meta.axes[1].name.clone(),
+        x_name: meta.axes[0].title(),
+        y_name: meta.axes[1].title(),
+        x_log: meta.axes[0].log,
+        y_log: meta.axes[1].log,
         xs: meta.axes[0].values(),
         ys: meta.axes[1].values(),
         cells,
@@ -388,8 +397,10 @@ fn ell_star_figure(dir: &Path, meta: &Meta, values: Vec<f64>) -> Result<(), Erro
             "{}: scale at which the winner reaches strong coupling",
             meta.model
         ),
-        x_name: meta.axes[0].name.clone(),
-        y_name: meta.axes[1].name.clone(),
+        x_name: meta.axes[0].title(),
+        y_name: meta.axes[1].title(),
+        x_log: meta.axes[0].log,
+        y_log: meta.axes[1].log,
         xs: meta.axes[0].values(),
         ys: meta.axes[1].values(),
         values,
@@ -424,10 +435,11 @@ fn line_figure(
         .collect();
     let data = LineScanFigure {
         title: format!("{}: bare dimensions and outcomes", meta.model),
-        x_name: meta.axes[0].name.clone(),
+        x_name: meta.axes[0].title(),
+        x_log: meta.axes[0].log,
         xs: xs.clone(),
         series,
-        bands: bands(&xs, cells, cats),
+        bands: bands(&xs, cells, cats, meta.axes[0].log),
         caption:
             "Bands: outcome of the second-order flow (single reference velocity). Dashed: Δ = 2."
                 .into(),
@@ -435,20 +447,18 @@ fn line_figure(
     Ok(plot::dimension_line_figure(&dir.join("phase"), &data)?)
 }
 
-/// Runs of equal outcome as bands, split half-way between grid points.
-fn bands(xs: &[f64], cells: &[u32], cats: &Categories) -> Vec<Band> {
+/// Runs of equal outcome as bands, split half-way between grid points
+/// (on a log axis at the geometric mean, half-way as drawn).
+fn bands(xs: &[f64], cells: &[u32], cats: &Categories, log: bool) -> Vec<Band> {
+    let mid = |a: f64, b: f64| if log { (a * b).sqrt() } else { 0.5 * (a + b) };
     let mut out: Vec<Band> = Vec::new();
     for (i, &c) in cells.iter().enumerate() {
         let c = c as usize;
-        let x0 = if i == 0 {
-            xs[0]
-        } else {
-            0.5 * (xs[i - 1] + xs[i])
-        };
+        let x0 = if i == 0 { xs[0] } else { mid(xs[i - 1], xs[i]) };
         let x1 = if i + 1 == xs.len() {
             xs[i]
         } else {
-            0.5 * (xs[i] + xs[i + 1])
+            mid(xs[i], xs[i + 1])
         };
         match out.last_mut() {
             Some(b) if b.label == cats.labels[c] => b.x1 = x1,

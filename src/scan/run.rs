@@ -11,15 +11,22 @@ use super::summary::{ScanSummary, Tally};
 use super::{Axis, Scan, MAX_POINTS};
 use crate::error::{Error, InputError};
 use crate::model::Model;
-use crate::output;
+use crate::output::{self, provenance, provenance::Provenance};
 
 /// Summary and figures from the finished points file (`points`, the staged
 /// `points.csv` that is renamed into place after this: see
 /// [`super::folder`]): one pass feeds every row to the summary's tally and
 /// the figures' canvas, which keep no rows (see [`super::figures`]). Writes
-/// `summary.json` and the figures into `dir` and returns the summary; the
-/// phase map is coloured `by`.
-pub fn finish(dir: &Path, points: &Path, meta: &Meta, by: ColorBy) -> Result<ScanSummary, Error> {
+/// `summary.json` (with its `provenance` key when `prov` is given, which
+/// also goes to `run.json`), `phases.csv` and the figures into `dir` and
+/// returns the summary; the phase map is coloured `by`.
+pub fn finish(
+    dir: &Path,
+    points: &Path,
+    meta: &Meta,
+    by: ColorBy,
+    prov: Option<&Provenance>,
+) -> Result<ScanSummary, Error> {
     let mut tally = Tally::new(meta);
     let mut canvas = Canvas::new(meta, by);
     for_each_point(points, meta, |p| {
@@ -29,12 +36,17 @@ pub fn finish(dir: &Path, points: &Path, meta: &Meta, by: ColorBy) -> Result<Sca
     let mut files = vec!["points.csv".to_string(), "summary.json".to_string()];
     files.extend(canvas.write(dir, meta)?);
     files.push("phases.csv".to_string());
+    if prov.is_some() {
+        files.push("run.json".to_string());
+    }
     let summary = tally.finish(meta, files);
     output::write_atomic(&dir.join("phases.csv"), phases_csv(&summary)?.as_bytes())?;
-    output::write_atomic(
-        &dir.join("summary.json"),
-        output::to_json(&summary)?.as_bytes(),
-    )?;
+    let mut json = output::to_json(&summary)?;
+    if let Some(p) = prov {
+        json = provenance::stamp_json(&json, p)?;
+        output::write_atomic(&dir.join("run.json"), output::to_json(p)?.as_bytes())?;
+    }
+    output::write_atomic(&dir.join("summary.json"), json.as_bytes())?;
     Ok(summary)
 }
 
@@ -61,22 +73,34 @@ fn phases_csv(s: &ScanSummary) -> Result<String, Error> {
 /// reporting, resuming or shards: the partial file, then [`publish`]. The
 /// library route to what `pinflow scan` writes (the command adds those
 /// three around the same steps); `flag` names the output directory in
-/// errors.
-pub fn run_to_dir(scan: &Scan, dir: &Path, by: ColorBy, flag: &str) -> Result<ScanSummary, Error> {
+/// errors, `prov` is the run's provenance (see [`finish`]).
+pub fn run_to_dir(
+    scan: &Scan,
+    dir: &Path,
+    by: ColorBy,
+    flag: &str,
+    prov: Option<&Provenance>,
+) -> Result<ScanSummary, Error> {
     output::check_output_dir(dir, flag)?;
     std::fs::create_dir_all(dir).map_err(|e| Error::io(dir, e))?;
     let partial = super::partial_path(dir, None);
     let mut file = RowFile::create(&partial, &scan.meta)?;
     scan.run_into(&mut file, &|_| {})?;
     drop(file);
-    publish(dir, &partial, &scan.meta, by)
+    publish(dir, &partial, &scan.meta, by, prov)
 }
 
 /// The end of a whole scan: `points.csv` staged from the finished partial
 /// file, then [`publish_staged`]; the partial file is removed.
-pub fn publish(dir: &Path, partial: &Path, meta: &Meta, by: ColorBy) -> Result<ScanSummary, Error> {
+pub fn publish(
+    dir: &Path,
+    partial: &Path,
+    meta: &Meta,
+    by: ColorBy,
+    prov: Option<&Provenance>,
+) -> Result<ScanSummary, Error> {
     let staged = store::stage_points(partial, meta, &dir.join("points.csv"))?;
-    let summary = publish_staged(dir, &staged, meta, by)?;
+    let summary = publish_staged(dir, &staged, meta, by, prov)?;
     std::fs::remove_file(partial).map_err(|e| Error::io(partial, e))?;
     Ok(summary)
 }
@@ -91,13 +115,14 @@ pub fn publish_staged(
     staged: &Path,
     meta: &Meta,
     by: ColorBy,
+    prov: Option<&Provenance>,
 ) -> Result<ScanSummary, Error> {
     let target = dir.join("points.csv");
     let done = (|| -> Result<ScanSummary, Error> {
         if target.exists() {
             std::fs::remove_file(&target).map_err(|e| Error::io(&target, e))?;
         }
-        let summary = finish(dir, staged, meta, by)?;
+        let summary = finish(dir, staged, meta, by, prov)?;
         std::fs::rename(staged, &target).map_err(|e| Error::io(&target, e))?;
         super::folder::remove_stale(dir, &summary.files)?;
         Ok(summary)
@@ -164,7 +189,9 @@ fn check_table_keys(model: &Model) -> Result<(), Error> {
 
 /// Parse one axis; checked here, where it is known which flag or key gave it.
 fn parse_axis(model: &Model, spec: &str, key: &str, file: &str) -> Result<Axis, Error> {
-    let axis = Axis::parse(spec).map_err(|m| Error::Input(InputError::new(file, key, m)))?;
+    let mut axis = Axis::parse(spec).map_err(|m| Error::Input(InputError::new(file, key, m)))?;
+    let label = model.params.label(&axis.name);
+    (axis.label, axis.unit) = (label.label, label.unit);
     if model.params.index(&axis.name).is_none() {
         let known = if model.params.is_empty() {
             "the model has no parameters".to_string()
