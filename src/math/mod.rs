@@ -1,6 +1,7 @@
 //! Algorithms without physics, one file each: exact rational numbers
 //! ([`rational`]), big-integer matrices, inertia and signature ([`zmat`]),
-//! fraction-free elimination for det, inverse and rank ([`bareiss`]), the
+//! fraction-free elimination for det, inverse and rank ([`bareiss`]),
+//! a sparse row echelon for rank and independent subsets ([`echelon`]), the
 //! Smith normal form and the lattice operations built on it ([`smith`]),
 //! LLL reduction, exact and float ([`lll`]), readable bases of integer
 //! forms ([`reduce`]), the enumeration of lattice points in an ellipsoid
@@ -12,6 +13,7 @@
 
 pub mod bareiss;
 pub mod ddouble;
+pub mod echelon;
 pub mod ellipsoid;
 pub mod lll;
 pub mod rational;

@@ -453,8 +453,14 @@ impl ModuloLattice {
             let mut v = rational(b);
             for (w, nw) in star.iter().zip(&star_norm) {
                 let c = rdot(&v, w) / nw;
+                // Sparse vectors are often orthogonal already.
+                if c.is_zero() {
+                    continue;
+                }
                 for (x, y) in v.iter_mut().zip(w) {
-                    *x -= &c * y;
+                    if !y.is_zero() {
+                        *x -= &c * y;
+                    }
                 }
             }
             star_norm.push(rdot(&v, &v));
@@ -517,8 +523,13 @@ impl ModuloLattice {
                 let mut p = rational(v);
                 for (w, nw) in self.star.iter().zip(&self.star_norm) {
                     let k = rdot(&p, w) / nw;
+                    if k.is_zero() {
+                        continue;
+                    }
                     for (x, y) in p.iter_mut().zip(w) {
-                        *x -= &k * y;
+                        if !y.is_zero() {
+                            *x -= &k * y;
+                        }
                     }
                 }
                 p
@@ -596,27 +607,13 @@ fn rational(v: &[BigInt]) -> Vec<Rational> {
         .collect()
 }
 
-/// A maximal linearly independent subset of the vectors (in order), by
-/// exact elimination against an echelon basis of those kept.
+/// A maximal linearly independent subset of the vectors (the first-come
+/// one, in order; [`crate::math::echelon`]).
 fn independent(vs: &[Vec<BigInt>]) -> Vec<Vec<BigInt>> {
-    let mut echelon: Vec<(usize, Vec<Rational>)> = Vec::new();
-    let mut kept = Vec::new();
-    for v in vs {
-        let mut r = rational(v);
-        for (p, e) in &echelon {
-            if !r[*p].is_zero() {
-                let f = &r[*p] / &e[*p];
-                for (x, y) in r.iter_mut().zip(e) {
-                    *x -= &f * y;
-                }
-            }
-        }
-        if let Some(p) = r.iter().position(|x| !x.is_zero()) {
-            echelon.push((p, r));
-            kept.push(v.clone());
-        }
-    }
-    kept
+    crate::math::echelon::independent(vs)
+        .into_iter()
+        .map(|i| vs[i].clone())
+        .collect()
 }
 
 fn rdot(a: &[Rational], b: &[Rational]) -> Rational {
