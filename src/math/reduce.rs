@@ -425,6 +425,8 @@ pub struct ModuloLattice {
     dim: usize,
     basis: Vec<Vec<BigInt>>,
     star: Vec<Vec<Rational>>,
+    /// The non-zero entries of each star vector (sparse lattices).
+    star_on: Vec<Vec<usize>>,
     star_norm: Vec<Rational>,
 }
 
@@ -441,6 +443,7 @@ impl ModuloLattice {
                 dim,
                 basis: Vec::new(),
                 star: Vec::new(),
+                star_on: Vec::new(),
                 star_norm: Vec::new(),
             };
         }
@@ -448,28 +451,21 @@ impl ModuloLattice {
         let u = lll::exact(&sub.gram(&ZMat::identity(dim)));
         let basis = sub.mul(&u).columns();
         let mut star: Vec<Vec<Rational>> = Vec::with_capacity(basis.len());
+        let mut star_on: Vec<Vec<usize>> = Vec::with_capacity(basis.len());
         let mut star_norm: Vec<Rational> = Vec::with_capacity(basis.len());
         for b in &basis {
             let mut v = rational(b);
-            for (w, nw) in star.iter().zip(&star_norm) {
-                let c = rdot(&v, w) / nw;
-                // Sparse vectors are often orthogonal already.
-                if c.is_zero() {
-                    continue;
-                }
-                for (x, y) in v.iter_mut().zip(w) {
-                    if !y.is_zero() {
-                        *x -= &c * y;
-                    }
-                }
-            }
+            project_out(&mut v, &star, &star_on, &star_norm);
+            let on = (0..dim).filter(|&i| !v[i].is_zero()).collect();
             star_norm.push(rdot(&v, &v));
             star.push(v);
+            star_on.push(on);
         }
         ModuloLattice {
             dim,
             basis,
             star,
+            star_on,
             star_norm,
         }
     }
@@ -478,7 +474,14 @@ impl ModuloLattice {
     pub fn reduce(&self, v: &[BigInt]) -> Vec<BigInt> {
         let mut v = v.to_vec();
         for j in (0..self.basis.len()).rev() {
-            let c = round_rational(&(rdot(&rational(&v), &self.star[j]) / &self.star_norm[j]));
+            let on = &self.star_on[j];
+            let dot = on
+                .iter()
+                .filter(|&&i| !v[i].is_zero())
+                .fold(Rational::zero(), |a, &i| {
+                    a + Rational::from_integer(v[i].clone()) * &self.star[j][i]
+                });
+            let c = round_rational(&(dot / &self.star_norm[j]));
             if !c.is_zero() {
                 for (x, y) in v.iter_mut().zip(&self.basis[j]) {
                     *x -= &c * y;
@@ -521,17 +524,7 @@ impl ModuloLattice {
             .iter()
             .map(|v| {
                 let mut p = rational(v);
-                for (w, nw) in self.star.iter().zip(&self.star_norm) {
-                    let k = rdot(&p, w) / nw;
-                    if k.is_zero() {
-                        continue;
-                    }
-                    for (x, y) in p.iter_mut().zip(w) {
-                        if !y.is_zero() {
-                            *x -= &k * y;
-                        }
-                    }
-                }
+                project_out(&mut p, &self.star, &self.star_on, &self.star_norm);
                 p
             })
             .collect();
@@ -614,6 +607,24 @@ fn independent(vs: &[Vec<BigInt>]) -> Vec<Vec<BigInt>> {
         .into_iter()
         .map(|i| vs[i].clone())
         .collect()
+}
+
+/// v -= (v.w / w.w) w for each Gram-Schmidt vector w in turn (`on`: the
+/// non-zero entries of each w; zero coefficients skip the update).
+fn project_out(v: &mut [Rational], star: &[Vec<Rational>], on: &[Vec<usize>], norm: &[Rational]) {
+    for ((w, on), nw) in star.iter().zip(on).zip(norm) {
+        let c = on
+            .iter()
+            .filter(|&&i| !v[i].is_zero())
+            .fold(Rational::zero(), |a, &i| a + &v[i] * &w[i])
+            / nw;
+        if c.is_zero() {
+            continue;
+        }
+        for &i in on {
+            v[i] -= &c * &w[i];
+        }
+    }
 }
 
 fn rdot(a: &[Rational], b: &[Rational]) -> Rational {
