@@ -119,7 +119,10 @@ pub fn det_and_inverse(a: &[Vec<i64>]) -> Option<(BigInt, Vec<Vec<Rational>>)> {
     let mut det = BigInt::one();
     let mut inverse = vec![vec![Rational::zero(); n]; n];
     for b in &blocks {
-        let sub: Vec<Vec<i64>> = b.iter().map(|&i| b.iter().map(|&j| a[i][j]).collect()).collect();
+        let sub: Vec<Vec<i64>> = b
+            .iter()
+            .map(|&i| b.iter().map(|&j| a[i][j]).collect())
+            .collect();
         let (d, inv) = dense_det_and_inverse(&sub)?;
         det *= d;
         for (r, &i) in b.iter().enumerate() {
@@ -258,7 +261,11 @@ mod tests {
         for _ in 0..60 {
             let (m, n) = (rng.gen_range(1..=6), rng.gen_range(1..=8));
             let a: Vec<Vec<BigInt>> = (0..m)
-                .map(|_| (0..n).map(|_| BigInt::from(rng.gen_range(-2..=2))).collect())
+                .map(|_| {
+                    (0..n)
+                        .map(|_| BigInt::from(rng.gen_range(-2..=2)))
+                        .collect()
+                })
                 .collect();
             let dense = eliminate(&mut a.clone(), n, false).columns;
             assert_eq!(pivot_columns(&a), dense);
@@ -405,7 +412,9 @@ mod tests {
         let mut rng = ChaCha8Rng::seed_from_u64(7);
         let mut tried = 0;
         while tried < 30 {
-            let sizes: Vec<usize> = (0..rng.gen_range(2..=4)).map(|_| rng.gen_range(1..=3)).collect();
+            let sizes: Vec<usize> = (0..rng.gen_range(2..=4))
+                .map(|_| rng.gen_range(1..=3))
+                .collect();
             let n: usize = sizes.iter().sum();
             let mut a = vec![vec![0i64; n]; n];
             let mut at = 0;
@@ -421,9 +430,15 @@ mod tests {
             for i in (1..n).rev() {
                 perm.swap(i, rng.gen_range(0..=i));
             }
-            let a: Vec<Vec<i64>> = perm.iter().map(|&i| perm.iter().map(|&j| a[i][j]).collect()).collect();
+            let a: Vec<Vec<i64>> = perm
+                .iter()
+                .map(|&i| perm.iter().map(|&j| a[i][j]).collect())
+                .collect();
             let (Some(fast), Some(dense)) = (det_and_inverse(&a), dense_det_and_inverse(&a)) else {
-                assert_eq!(det_and_inverse(&a).is_none(), dense_det_and_inverse(&a).is_none());
+                assert_eq!(
+                    det_and_inverse(&a).is_none(),
+                    dense_det_and_inverse(&a).is_none()
+                );
                 continue;
             };
             tried += 1;

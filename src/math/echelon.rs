@@ -122,7 +122,11 @@ mod tests {
                 .map(|_| {
                     (0..n)
                         .map(|_| {
-                            let x = if rng.gen_bool(0.6) { 0 } else { rng.gen_range(-4..=4) };
+                            let x = if rng.gen_bool(0.6) {
+                                0
+                            } else {
+                                rng.gen_range(-4..=4)
+                            };
                             BigInt::from(x)
                         })
                         .collect()
@@ -138,7 +142,10 @@ mod tests {
         // (1, 2) and (2, 4) are proportional; (0, 0) is never kept; (1, 0)
         // and (0, 3) are independent (derived by hand).
         let v = |a: &[i64]| a.iter().map(|&x| BigInt::from(x)).collect::<Vec<_>>();
-        assert_eq!(independent(&[v(&[0, 0]), v(&[1, 2]), v(&[2, 4]), v(&[1, 0])]), vec![1, 3]);
+        assert_eq!(
+            independent(&[v(&[0, 0]), v(&[1, 2]), v(&[2, 4]), v(&[1, 0])]),
+            vec![1, 3]
+        );
         assert_eq!(rank(&[v(&[1, 0]), v(&[0, 3])]), 2);
         assert_eq!(rank(&[]), 0);
     }

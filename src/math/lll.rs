@@ -128,7 +128,9 @@ pub(crate) fn gram_schmidt_row(g: &ZMat, mu: &mut [Vec<Rational>], bb: &mut [Rat
     bb[k] = Rational::from_integer(g.at(k, k).clone())
         - (0..k)
             .filter(|&l| !mu[k][l].is_zero())
-            .fold(Rational::zero(), |acc, l| acc + &mu[k][l] * &mu[k][l] * &bb[l]);
+            .fold(Rational::zero(), |acc, l| {
+                acc + &mu[k][l] * &mu[k][l] * &bb[l]
+            });
 }
 
 /// Lovász constant of the float reduction.
