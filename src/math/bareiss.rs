@@ -419,9 +419,9 @@ mod tests {
             let mut a = vec![vec![0i64; n]; n];
             let mut at = 0;
             for s in &sizes {
-                for i in at..at + s {
-                    for j in at..at + s {
-                        a[i][j] = rng.gen_range(-3..=3);
+                for row in a.iter_mut().skip(at).take(*s) {
+                    for x in row.iter_mut().skip(at).take(*s) {
+                        *x = rng.gen_range(-3..=3);
                     }
                 }
                 at += s;
