@@ -26,8 +26,8 @@
 //!
 //! The exact inverse of K (`exact inverse:` benches): an explicit model's
 //! K of 1024 fields (512 spinless wires, K = diag(1, -1) per wire) block by
-//! block (`src/math/blockinv.rs`), and 128 fields both ways (the whole
-//! matrix by fraction-free elimination, `src/math/bareiss.rs`, takes about
+//! block (`bareiss::det_and_inverse`), and 128 fields both ways (the whole
+//! matrix by fraction-free elimination, `bareiss::dense_det_and_inverse`, takes about
 //! 4 s at 256 fields and grows as n^3).
 //!
 //! Run: `cargo bench --bench points` (only the targets: `cargo bench
@@ -392,16 +392,16 @@ fn wires_k(n: usize) -> Vec<Vec<i64>> {
 }
 
 fn exact_inverse(c: &mut Criterion) {
-    use pinflow::math::{bareiss, blockinv};
+    use pinflow::math::bareiss;
     let (k1024, k128) = (wires_k(1024), wires_k(128));
     c.bench_function("exact inverse: 1024 fields, block by block", |b| {
-        b.iter(|| blockinv::det_and_inverse(&k1024).expect("invertible"))
+        b.iter(|| bareiss::det_and_inverse(&k1024).expect("invertible"))
     });
     c.bench_function("exact inverse: 128 fields, block by block", |b| {
-        b.iter(|| blockinv::det_and_inverse(&k128).expect("invertible"))
+        b.iter(|| bareiss::det_and_inverse(&k128).expect("invertible"))
     });
     c.bench_function("exact inverse: 128 fields, whole matrix", |b| {
-        b.iter(|| bareiss::det_and_inverse(&k128).expect("invertible"))
+        b.iter(|| bareiss::dense_det_and_inverse(&k128).expect("invertible"))
     });
 }
 

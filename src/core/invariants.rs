@@ -23,7 +23,7 @@ use num_traits::Zero;
 use crate::core::lattice::{Family, Lattice, Translate};
 use crate::error::InputError;
 use crate::math::rational::{self, Rational};
-use crate::math::{blockinv, zmat};
+use crate::math::{bareiss, zmat};
 use crate::model::Model;
 
 /// Exact data of one term family (computed on its representative translate;
@@ -216,7 +216,7 @@ impl CellData {
             crate::model::Structure::Array { .. } => "array.K",
         };
         let err = |msg: &str| InputError::new(&model.file, key, msg);
-        let (det, inverse) = blockinv::det_and_inverse(&model.cell_k)
+        let (det, inverse) = bareiss::det_and_inverse(&model.cell_k)
             .ok_or_else(|| err("K is singular (det K = 0); K must be invertible"))?;
         let signature = zmat::signature(&model.cell_k)
             .ok_or_else(|| err("cannot determine the signature of K reliably"))?;

@@ -54,7 +54,7 @@ use crate::core::invariants::particles_of;
 use crate::core::lattice::Lattice;
 use crate::core::system::System;
 use crate::error::{Error, InputError};
-use crate::math::zmat::{big, dot, ZMat};
+use crate::math::zmat::{big, ZMat};
 use crate::model::{Boundary, Structure, Wires};
 use pins::Pinned;
 use theory::Residual;
@@ -520,8 +520,14 @@ fn periodic_closure(
         }
     }
     for n in &ns {
+        // Only the fields where n is non-zero contribute to n.l.
+        let on: Vec<usize> = (0..n.len()).filter(|&i| !n[i].is_zero()).collect();
         for l in &ls {
-            if !dot(n, l).is_zero() {
+            let phase = on
+                .iter()
+                .filter(|&&i| !l[i].is_zero())
+                .fold(BigInt::zero(), |acc, &i| acc + &n[i] * &l[i]);
+            if !phase.is_zero() {
                 return Err(format!(
                     "undecided: the pinned terms do not commute on a periodic array of {w} wires"
                 ));

@@ -269,8 +269,14 @@ fn pinned_translate(
 fn check_pair(sys: &System, a: &Pinned, b: &Pinned) -> Result<(), String> {
     let arrays = sys.lattice.boundary.is_some();
     for ta in &a.translates {
+        // The phase only sees the fields where n_a is non-zero (a translate
+        // touches a few wires of the array).
+        let on: Vec<usize> = (0..ta.n.len()).filter(|&i| !ta.n[i].is_zero()).collect();
         for tb in &b.translates {
-            let phase = dot(&ta.n, &tb.l);
+            let phase = on
+                .iter()
+                .filter(|&&i| !tb.l[i].is_zero())
+                .fold(BigInt::zero(), |acc, &i| acc + &ta.n[i] * &tb.l[i]);
             if phase.is_zero() {
                 continue;
             }

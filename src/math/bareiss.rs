@@ -23,7 +23,9 @@ struct Echelon {
     last: BigInt,
     /// True after an odd number of row swaps.
     odd: bool,
-    /// The pivot columns, in order.
+    /// The pivot columns, in order (the dense reference of
+    /// [`pivot_columns`], compared in a test).
+    #[cfg_attr(not(test), allow(dead_code))]
     columns: Vec<usize>,
 }
 
@@ -101,10 +103,71 @@ pub fn det(rows: &[Vec<BigInt>]) -> BigInt {
 }
 
 /// Determinant and inverse of a square integer matrix, or `None` when it is
-/// singular. Gauss-Jordan on [A | 1]: at the end every diagonal entry of
-/// the left block equals the determinant d of the row-permuted matrix and
-/// the right block equals d A^-1.
+/// singular. A matrix that splits into diagonal blocks after a common
+/// permutation of rows and columns (the connected components of the graph
+/// of its non-zero entries; e.g. the K of an array, one block per wire) is
+/// inverted block by block: the determinant is the product of the blocks'
+/// and the inverse has the same blocks, so the result is the same exact
+/// value as one elimination of the whole, at a cost of the blocks' sizes
+/// cubed instead of n^3.
 pub fn det_and_inverse(a: &[Vec<i64>]) -> Option<(BigInt, Vec<Vec<Rational>>)> {
+    let n = a.len();
+    let blocks = components(a);
+    if blocks.len() <= 1 {
+        return dense_det_and_inverse(a);
+    }
+    let mut det = BigInt::one();
+    let mut inverse = vec![vec![Rational::zero(); n]; n];
+    for b in &blocks {
+        let sub: Vec<Vec<i64>> = b
+            .iter()
+            .map(|&i| b.iter().map(|&j| a[i][j]).collect())
+            .collect();
+        let (d, inv) = dense_det_and_inverse(&sub)?;
+        det *= d;
+        for (r, &i) in b.iter().enumerate() {
+            for (c, &j) in b.iter().enumerate() {
+                inverse[i][j] = inv[r][c].clone();
+            }
+        }
+    }
+    Some((det, inverse))
+}
+
+/// The connected components of the graph with an edge i - j wherever
+/// a[i][j] or a[j][i] is non-zero, each sorted, in order of their least
+/// index.
+fn components(a: &[Vec<i64>]) -> Vec<Vec<usize>> {
+    let n = a.len();
+    let mut seen = vec![false; n];
+    let mut out = Vec::new();
+    for s in 0..n {
+        if seen[s] {
+            continue;
+        }
+        seen[s] = true;
+        let mut part = vec![s];
+        let mut k = 0;
+        while k < part.len() {
+            let i = part[k];
+            k += 1;
+            for j in 0..n {
+                if !seen[j] && (a[i][j] != 0 || a[j][i] != 0) {
+                    seen[j] = true;
+                    part.push(j);
+                }
+            }
+        }
+        part.sort_unstable();
+        out.push(part);
+    }
+    out
+}
+
+/// [`det_and_inverse`] by one Gauss-Jordan elimination on [A | 1]: at the
+/// end every diagonal entry of the left block equals the determinant d of
+/// the row-permuted matrix and the right block equals d A^-1.
+pub fn dense_det_and_inverse(a: &[Vec<i64>]) -> Option<(BigInt, Vec<Vec<Rational>>)> {
     let n = a.len();
     let mut m: Vec<Vec<BigInt>> = a
         .iter()
@@ -132,8 +195,16 @@ pub fn det_and_inverse(a: &[Vec<i64>]) -> Option<(BigInt, Vec<Vec<Rational>>)> {
     Some((if e.odd { -d } else { d }, inverse))
 }
 
-/// Rank of an integer matrix given by rows (all of one length).
+/// Rank of an integer matrix given by rows (all of one length), by the
+/// sparse echelon of [`crate::math::echelon`] (the same number as
+/// [`dense_rank`], much faster on long sparse rows).
 pub fn rank(rows: &[Vec<BigInt>]) -> usize {
+    crate::math::echelon::rank(rows)
+}
+
+/// Rank by one dense fraction-free elimination (the reference for
+/// [`rank`]).
+pub fn dense_rank(rows: &[Vec<BigInt>]) -> usize {
     let cols = rows.first().map_or(0, |r| r.len());
     debug_assert!(rows.iter().all(|r| r.len() == cols), "rectangular matrix");
     let mut m = rows.to_vec();
@@ -143,11 +214,15 @@ pub fn rank(rows: &[Vec<BigInt>]) -> usize {
 /// The pivot columns of an integer matrix given by rows: the first-come
 /// maximal set of independent columns (a column has a pivot iff it is not
 /// a rational combination of the columns before it).
+/// Computed on the columns by the sparse echelon of
+/// [`crate::math::echelon`] (the first-come subset is unique).
 pub fn pivot_columns(rows: &[Vec<BigInt>]) -> Vec<usize> {
     let cols = rows.first().map_or(0, |r| r.len());
     debug_assert!(rows.iter().all(|r| r.len() == cols), "rectangular matrix");
-    let mut m = rows.to_vec();
-    eliminate(&mut m, cols, false).columns
+    let columns: Vec<Vec<BigInt>> = (0..cols)
+        .map(|j| rows.iter().map(|r| r[j].clone()).collect())
+        .collect();
+    crate::math::echelon::independent(&columns)
 }
 
 #[cfg(test)]
@@ -181,6 +256,23 @@ mod tests {
     }
 
     #[test]
+    fn sparse_pivot_columns_match_the_dense_elimination() {
+        let mut rng = ChaCha8Rng::seed_from_u64(23);
+        for _ in 0..60 {
+            let (m, n) = (rng.gen_range(1..=6), rng.gen_range(1..=8));
+            let a: Vec<Vec<BigInt>> = (0..m)
+                .map(|_| {
+                    (0..n)
+                        .map(|_| BigInt::from(rng.gen_range(-2..=2)))
+                        .collect()
+                })
+                .collect();
+            let dense = eliminate(&mut a.clone(), n, false).columns;
+            assert_eq!(pivot_columns(&a), dense);
+        }
+    }
+
+    #[test]
     fn pivot_columns_are_the_first_come_independent_columns() {
         // Second code path: column j is kept iff it raises the rank of the
         // columns kept before it (rank by elimination of the kept columns).
@@ -203,7 +295,7 @@ mod tests {
             for j in 0..n {
                 let mut with = kept.clone();
                 with.push(j);
-                if rank(&cols(&with)) > kept.len() {
+                if dense_rank(&cols(&with)) > kept.len() {
                     kept = with;
                 }
             }
@@ -308,6 +400,73 @@ mod tests {
                 .map(|r| r.iter().map(|&x| BigInt::from(x)).collect())
                 .collect();
             assert_eq!(d, det(&rows), "both entry points agree");
+        }
+    }
+
+    #[test]
+    fn one_field_blocks_of_a_wide_diagonal_k() {
+        // K = diag(1, -1) per wire, 512 wires: 1024 blocks of one field,
+        // det = (-1)^512 = 1 and K^-1 = K (derived: each 1 x 1 block is its
+        // own inverse).
+        let n = 1024;
+        let k: Vec<Vec<i64>> = (0..n)
+            .map(|i| {
+                (0..n)
+                    .map(|j| if i == j { 1 - 2 * (i as i64 % 2) } else { 0 })
+                    .collect()
+            })
+            .collect();
+        assert_eq!(components(&k).len(), n);
+        let (d, inv) = det_and_inverse(&k).expect("invertible");
+        assert_eq!(d, BigInt::one());
+        for (i, row) in inv.iter().enumerate() {
+            for (j, x) in row.iter().enumerate() {
+                assert_eq!(*x, Rational::from_integer(BigInt::from(k[i][j])));
+            }
+        }
+    }
+
+    #[test]
+    fn block_diagonal_inverse_matches_one_elimination() {
+        // Random blocks (a wire's K, say), shuffled by a common permutation
+        // of rows and columns: the block-by-block route must give the same
+        // exact det and inverse as the dense elimination and as plain
+        // rational Gauss-Jordan (two independent paths).
+        let mut rng = ChaCha8Rng::seed_from_u64(7);
+        let mut tried = 0;
+        while tried < 30 {
+            let sizes: Vec<usize> = (0..rng.gen_range(2..=4))
+                .map(|_| rng.gen_range(1..=3))
+                .collect();
+            let n: usize = sizes.iter().sum();
+            let mut a = vec![vec![0i64; n]; n];
+            let mut at = 0;
+            for s in &sizes {
+                for row in a.iter_mut().skip(at).take(*s) {
+                    for x in row.iter_mut().skip(at).take(*s) {
+                        *x = rng.gen_range(-3..=3);
+                    }
+                }
+                at += s;
+            }
+            let mut perm: Vec<usize> = (0..n).collect();
+            for i in (1..n).rev() {
+                perm.swap(i, rng.gen_range(0..=i));
+            }
+            let a: Vec<Vec<i64>> = perm
+                .iter()
+                .map(|&i| perm.iter().map(|&j| a[i][j]).collect())
+                .collect();
+            let (Some(fast), Some(dense)) = (det_and_inverse(&a), dense_det_and_inverse(&a)) else {
+                assert_eq!(
+                    det_and_inverse(&a).is_none(),
+                    dense_det_and_inverse(&a).is_none()
+                );
+                continue;
+            };
+            tried += 1;
+            assert_eq!(fast, dense);
+            assert_eq!(fast.1, rational_inverse(&a).unwrap());
         }
     }
 

@@ -105,7 +105,9 @@ fn size_reduce_exact(gm: &mut ZMat, u: &mut ZMat, mu: &mut [Vec<Rational>], k: u
         let qr = Rational::from_integer(q);
         let (lower, upper) = mu.split_at_mut(k);
         for (x, y) in upper[0].iter_mut().zip(&lower[j]).take(j) {
-            *x -= &qr * y;
+            if !y.is_zero() {
+                *x -= &qr * y;
+            }
         }
         upper[0][j] -= &qr;
     }
@@ -115,15 +117,20 @@ fn size_reduce_exact(gm: &mut ZMat, u: &mut ZMat, mu: &mut [Vec<Rational>], k: u
 pub(crate) fn gram_schmidt_row(g: &ZMat, mu: &mut [Vec<Rational>], bb: &mut [Rational], k: usize) {
     for j in 0..k {
         let mut x = Rational::from_integer(g.at(k, j).clone());
+        // Zero coefficients (common for sparse bases) are skipped.
         for l in 0..j {
-            x -= &mu[j][l] * &mu[k][l] * &bb[l];
+            if !mu[j][l].is_zero() && !mu[k][l].is_zero() {
+                x -= &mu[j][l] * &mu[k][l] * &bb[l];
+            }
         }
         mu[k][j] = x / &bb[j];
     }
     bb[k] = Rational::from_integer(g.at(k, k).clone())
-        - (0..k).fold(Rational::zero(), |acc, l| {
-            acc + &mu[k][l] * &mu[k][l] * &bb[l]
-        });
+        - (0..k)
+            .filter(|&l| !mu[k][l].is_zero())
+            .fold(Rational::zero(), |acc, l| {
+                acc + &mu[k][l] * &mu[k][l] * &bb[l]
+            });
 }
 
 /// Lovász constant of the float reduction.

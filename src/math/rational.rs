@@ -96,7 +96,7 @@ pub fn solve_with(inverse: &[Vec<Rational>], l: &[i64]) -> Vec<Rational> {
 pub fn dot_int(m: &[Rational], l: &[i64]) -> Rational {
     m.iter()
         .zip(l)
-        .filter(|(_, &x)| x != 0)
+        .filter(|(r, &x)| x != 0 && !r.is_zero())
         .fold(Rational::zero(), |acc, (r, &x)| acc + r * int(x))
 }
 

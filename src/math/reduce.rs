@@ -424,8 +424,12 @@ fn sort_basis(g: &ZMat, u: &mut ZMat) {
 pub struct ModuloLattice {
     dim: usize,
     basis: Vec<Vec<BigInt>>,
-    star: Vec<Vec<Rational>>,
-    star_norm: Vec<Rational>,
+    /// Integral Gram-Schmidt vectors I_j = d_{j-1} b*_j (see [`integral_gram_schmidt`]).
+    star: Vec<Vec<BigInt>>,
+    /// The non-zero entries of each I_j (sparse lattices).
+    star_on: Vec<Vec<usize>>,
+    /// d_j = det of the Gram matrix of b_1..b_j (d_0 = 1 first, then d_1..d_k).
+    d: Vec<BigInt>,
 }
 
 impl ModuloLattice {
@@ -441,38 +445,42 @@ impl ModuloLattice {
                 dim,
                 basis: Vec::new(),
                 star: Vec::new(),
-                star_norm: Vec::new(),
+                star_on: Vec::new(),
+                d: vec![BigInt::one()],
             };
         }
         let sub = ZMat::from_cols(dim, &cols);
         let u = lll::exact(&sub.gram(&ZMat::identity(dim)));
         let basis = sub.mul(&u).columns();
-        let mut star: Vec<Vec<Rational>> = Vec::with_capacity(basis.len());
-        let mut star_norm: Vec<Rational> = Vec::with_capacity(basis.len());
-        for b in &basis {
-            let mut v = rational(b);
-            for (w, nw) in star.iter().zip(&star_norm) {
-                let c = rdot(&v, w) / nw;
-                for (x, y) in v.iter_mut().zip(w) {
-                    *x -= &c * y;
-                }
-            }
-            star_norm.push(rdot(&v, &v));
-            star.push(v);
-        }
+        let (star, d) = integral_gram_schmidt(&basis);
+        let star_on = star
+            .iter()
+            .map(|w| (0..dim).filter(|&i| !w[i].is_zero()).collect())
+            .collect();
         ModuloLattice {
             dim,
             basis,
             star,
-            star_norm,
+            star_on,
+            d,
         }
+    }
+
+    /// <v, I_j>, over the non-zero entries of I_j.
+    fn dot_star(&self, v: &[BigInt], j: usize) -> BigInt {
+        let w = &self.star[j];
+        self.star_on[j]
+            .iter()
+            .filter(|&&i| !v[i].is_zero())
+            .fold(BigInt::zero(), |a, &i| a + &v[i] * &w[i])
     }
 
     /// A short representative of v + lattice.
     pub fn reduce(&self, v: &[BigInt]) -> Vec<BigInt> {
         let mut v = v.to_vec();
         for j in (0..self.basis.len()).rev() {
-            let c = round_rational(&(rdot(&rational(&v), &self.star[j]) / &self.star_norm[j]));
+            // mu = <v, b*_j> / |b*_j|^2 = <v, I_j> / d_j (exact).
+            let c = round_rational(&Rational::new(self.dot_star(&v, j), self.d[j + 1].clone()));
             if !c.is_zero() {
                 for (x, y) in v.iter_mut().zip(&self.basis[j]) {
                     *x -= &c * y;
@@ -510,22 +518,30 @@ impl ModuloLattice {
         if d < 2 {
             return ZMat::identity(d);
         }
-        let proj: Vec<Vec<Rational>> = c
-            .columns()
+        // <p_a, p_b> for the projections p orthogonal to the lattice:
+        // <v_a, v_b> - sum_j <v_a, I_j> <v_b, I_j> / (d_{j-1} d_j), since
+        // <v, b*_j> = <v, I_j> / d_{j-1} and |b*_j|^2 = d_j / d_{j-1}.
+        let cols = c.columns();
+        let x: Vec<Vec<BigInt>> = cols
             .iter()
-            .map(|v| {
-                let mut p = rational(v);
-                for (w, nw) in self.star.iter().zip(&self.star_norm) {
-                    let k = rdot(&p, w) / nw;
-                    for (x, y) in p.iter_mut().zip(w) {
-                        *x -= &k * y;
-                    }
-                }
-                p
-            })
+            .map(|v| (0..self.star.len()).map(|j| self.dot_star(v, j)).collect())
             .collect();
         let gram: Vec<Vec<Rational>> = (0..d)
-            .map(|i| (0..d).map(|j| rdot(&proj[i], &proj[j])).collect())
+            .map(|a| {
+                (0..d)
+                    .map(|b| {
+                        let whole = Rational::from_integer(zmat::dot(&cols[a], &cols[b]));
+                        (0..self.star.len())
+                            .filter(|&j| !x[a][j].is_zero() && !x[b][j].is_zero())
+                            .fold(whole, |acc, j| {
+                                acc - Rational::new(
+                                    &x[a][j] * &x[b][j],
+                                    &self.d[j] * &self.d[j + 1],
+                                )
+                            })
+                    })
+                    .collect()
+            })
             .collect();
         let den = gram
             .iter()
@@ -590,40 +606,45 @@ fn best_multiple(v: &[BigInt], b: &[BigInt]) -> BigInt {
     }
 }
 
-fn rational(v: &[BigInt]) -> Vec<Rational> {
-    v.iter()
-        .map(|x| Rational::from_integer(x.clone()))
+/// A maximal linearly independent subset of the vectors (the first-come
+/// one, in order; [`crate::math::echelon`]).
+fn independent(vs: &[Vec<BigInt>]) -> Vec<Vec<BigInt>> {
+    crate::math::echelon::independent(vs)
+        .into_iter()
+        .map(|i| vs[i].clone())
         .collect()
 }
 
-/// A maximal linearly independent subset of the vectors (in order), by
-/// exact elimination against an echelon basis of those kept.
-fn independent(vs: &[Vec<BigInt>]) -> Vec<Vec<BigInt>> {
-    let mut echelon: Vec<(usize, Vec<Rational>)> = Vec::new();
-    let mut kept = Vec::new();
-    for v in vs {
-        let mut r = rational(v);
-        for (p, e) in &echelon {
-            if !r[*p].is_zero() {
-                let f = &r[*p] / &e[*p];
-                for (x, y) in r.iter_mut().zip(e) {
-                    *x -= &f * y;
+/// Integral Gram-Schmidt of independent integer vectors b_1..b_k: the
+/// vectors I_j = d_{j-1} b*_j and the numbers d_0 = 1, d_j = det of the
+/// Gram matrix of b_1..b_j (= <b_j, I_j>), all integers. Fraction-free
+/// recurrence (derived as for Bareiss elimination): u = b_j, then for i <
+/// j, u <- (d_i u - <b_j, I_i> I_i) / d_{i-1}, which keeps u = d_i times
+/// the part of b_j orthogonal to b_1..b_i (an integer vector by Cramer's
+/// rule, so the division is exact); the last u is I_j.
+fn integral_gram_schmidt(basis: &[Vec<BigInt>]) -> (Vec<Vec<BigInt>>, Vec<BigInt>) {
+    let mut star: Vec<Vec<BigInt>> = Vec::with_capacity(basis.len());
+    let mut d = vec![BigInt::one()];
+    for b in basis {
+        let mut u = b.clone();
+        for (i, w) in star.iter().enumerate() {
+            let lambda = zmat::dot(b, w);
+            for (x, y) in u.iter_mut().zip(w) {
+                if x.is_zero() && (lambda.is_zero() || y.is_zero()) {
+                    continue;
                 }
+                let mut t = &d[i + 1] * &*x;
+                if !lambda.is_zero() && !y.is_zero() {
+                    t -= &lambda * y;
+                }
+                debug_assert!((&t % &d[i]).is_zero(), "exact division");
+                *x = t / &d[i];
             }
         }
-        if let Some(p) = r.iter().position(|x| !x.is_zero()) {
-            echelon.push((p, r));
-            kept.push(v.clone());
-        }
+        d.push(zmat::dot(b, &u));
+        star.push(u);
     }
-    kept
-}
-
-fn rdot(a: &[Rational], b: &[Rational]) -> Rational {
-    a.iter()
-        .zip(b)
-        .filter(|(x, y)| !x.is_zero() && !y.is_zero())
-        .fold(Rational::zero(), |acc, (x, y)| acc + x * y)
+    (star, d)
 }
 
 /// gcd of a vector's entries (0 for the zero vector).
@@ -636,6 +657,50 @@ pub(crate) mod tests {
     use super::*;
     use rand::{Rng, SeedableRng};
     use rand_chacha::ChaCha8Rng;
+
+    #[test]
+    fn integral_gram_schmidt_matches_rational_gram_schmidt() {
+        // Second code path: textbook Gram-Schmidt in rationals; I_j must be
+        // d_{j-1} b*_j and d_j / d_{j-1} = |b*_j|^2.
+        let mut rng = ChaCha8Rng::seed_from_u64(31);
+        for _ in 0..40 {
+            let (k, n) = (rng.gen_range(1..=5), rng.gen_range(5..=8));
+            let vs: Vec<Vec<BigInt>> = (0..k)
+                .map(|_| {
+                    (0..n)
+                        .map(|_| BigInt::from(rng.gen_range(-3..=3)))
+                        .collect()
+                })
+                .collect();
+            let basis = independent(&vs);
+            let (star, d) = integral_gram_schmidt(&basis);
+            let mut rstar: Vec<Vec<Rational>> = Vec::new();
+            let dotr = |a: &[Rational], b: &[Rational]| -> Rational {
+                a.iter().zip(b).map(|(x, y)| x * y).sum()
+            };
+            for (j, b) in basis.iter().enumerate() {
+                let mut v: Vec<Rational> = b
+                    .iter()
+                    .map(|x| Rational::from_integer(x.clone()))
+                    .collect();
+                for w in &rstar {
+                    let c = dotr(&v, w) / dotr(w, w);
+                    for (x, y) in v.iter_mut().zip(w) {
+                        *x -= &c * y;
+                    }
+                }
+                let dj = Rational::from_integer(d[j].clone());
+                let scaled: Vec<Rational> = v.iter().map(|x| x * &dj).collect();
+                let ij: Vec<Rational> = star[j]
+                    .iter()
+                    .map(|x| Rational::from_integer(x.clone()))
+                    .collect();
+                assert_eq!(scaled, ij);
+                assert_eq!(dotr(&v, &v) * dj, Rational::from_integer(d[j + 1].clone()));
+                rstar.push(v);
+            }
+        }
+    }
 
     /// A random unimodular matrix: a product of elementary moves.
     pub(crate) fn random_unimodular(rng: &mut ChaCha8Rng, n: usize, moves: usize) -> ZMat {

@@ -188,13 +188,18 @@ impl Work {
     fn reduce_by_pivot(&mut self, t: usize) {
         let (m, n) = (self.a.rows, self.a.cols);
         let piv = self.a.at(t, t).clone();
+        // Zero entries give a zero quotient (no operation): skipped.
         for i in t + 1..m {
-            let f = round_div(self.a.at(i, t), &piv);
-            self.row_sub(i, t, &f);
+            if !self.a.at(i, t).is_zero() {
+                let f = round_div(self.a.at(i, t), &piv);
+                self.row_sub(i, t, &f);
+            }
         }
         for j in t + 1..n {
-            let f = round_div(self.a.at(t, j), &piv);
-            self.col_sub(j, t, &f);
+            if !self.a.at(t, j).is_zero() {
+                let f = round_div(self.a.at(t, j), &piv);
+                self.col_sub(j, t, &f);
+            }
         }
     }
 
@@ -205,10 +210,10 @@ impl Work {
         let a = &self.a;
         let rest_col = (t + 1..m)
             .filter(|&i| !a.at(i, t).is_zero())
-            .min_by_key(|&i| a.at(i, t).abs());
+            .min_by_key(|&i| a.at(i, t).magnitude());
         let rest_row = (t + 1..n)
             .filter(|&j| !a.at(t, j).is_zero())
-            .min_by_key(|&j| a.at(t, j).abs());
+            .min_by_key(|&j| a.at(t, j).magnitude());
         match (rest_col, rest_row) {
             (None, None) => return false,
             (Some(i), Some(j)) => {
@@ -230,6 +235,10 @@ impl Work {
     fn restore_divisibility(&mut self, t: usize) -> bool {
         let (m, n) = (self.a.rows, self.a.cols);
         let piv = self.a.at(t, t).clone();
+        if piv.magnitude().is_one() {
+            // A unit pivot divides everything.
+            return false;
+        }
         let bad = (t + 1..m).find(|&i| (t + 1..n).any(|j| !self.a.at(i, j).is_multiple_of(&piv)));
         match bad {
             Some(i) => {
@@ -247,6 +256,8 @@ fn least_entry(
     rows: std::ops::Range<usize>,
     cols: std::ops::Range<usize>,
 ) -> Option<(usize, usize)> {
+    // The first entry (row by row) of least magnitude; a unit cannot be
+    // beaten, so the scan stops at the first one.
     let mut best: Option<(usize, usize)> = None;
     for i in rows {
         for j in cols.clone() {
@@ -254,8 +265,11 @@ fn least_entry(
             if x.is_zero() {
                 continue;
             }
-            if best.is_none_or(|(bi, bj)| x.abs() < a.at(bi, bj).abs()) {
+            if best.is_none_or(|(bi, bj)| x.magnitude() < a.at(bi, bj).magnitude()) {
                 best = Some((i, j));
+                if x.magnitude().is_one() {
+                    return best;
+                }
             }
         }
     }

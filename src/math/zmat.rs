@@ -151,8 +151,16 @@ impl ZMat {
     /// Matrix times vector.
     pub fn mul_vec(&self, v: &[BigInt]) -> Vec<BigInt> {
         assert_eq!(self.cols, v.len(), "matrix-vector shapes");
+        // Only the non-zero entries of v contribute (the vectors of arrays
+        // touch a few wires).
+        let nz: Vec<usize> = (0..v.len()).filter(|&j| !v[j].is_zero()).collect();
         (0..self.rows)
-            .map(|i| dot(&self.a[i * self.cols..(i + 1) * self.cols], v))
+            .map(|i| {
+                let row = &self.a[i * self.cols..(i + 1) * self.cols];
+                nz.iter()
+                    .filter(|&&j| !row[j].is_zero())
+                    .fold(BigInt::zero(), |acc, &j| acc + &row[j] * &v[j])
+            })
             .collect()
     }
 

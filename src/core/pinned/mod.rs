@@ -91,9 +91,10 @@ pub fn complement_basis(k: &[Vec<i64>], p: &[Vec<i64>]) -> Option<ZMat> {
         .collect();
     for v in p {
         // (adj K p)_i = det * sum_j (K^-1)_{ij} p_j, an integer.
+        let on = nonzero(v);
         let row = (0..n)
             .map(|i| {
-                let s: Rational = inv[i].iter().zip(v).map(|(a, &b)| a * exact::int(b)).sum();
+                let s = sparse_dot(&inv[i], v, &on);
                 (s * Rational::from_integer(det.clone())).to_integer()
             })
             .collect();
@@ -103,6 +104,21 @@ pub fn complement_basis(k: &[Vec<i64>], p: &[Vec<i64>]) -> Option<ZMat> {
         return Some(ZMat::identity(n));
     }
     Some(smith::kernel(&ZMat::from_rows(&rows, n)))
+}
+
+/// sum_j a_j b_j over the indices `on` where b is non-zero (K^-1 of an
+/// array is block diagonal and a pinned vector touches a few wires: most
+/// terms vanish).
+fn sparse_dot(a: &[Rational], b: &[i64], on: &[usize]) -> Rational {
+    on.iter()
+        .filter(|&&j| !a[j].is_zero())
+        .map(|&j| &a[j] * exact::int(b[j]))
+        .sum()
+}
+
+/// Indices of the non-zero entries.
+fn nonzero(v: &[i64]) -> Vec<usize> {
+    (0..v.len()).filter(|&j| v[j] != 0).collect()
 }
 
 /// An integer matrix as floats (entries beyond f64 become infinite and are
@@ -147,13 +163,9 @@ impl Split {
         let p_ind: Vec<Vec<i64>> = keep.iter().map(|&i| p[i].clone()).collect();
         let b = complement_basis(k, &p_ind)?;
         let (_, inv) = bareiss::det_and_inverse(k)?;
+        let on: Vec<Vec<usize>> = p_ind.iter().map(|v| nonzero(v)).collect();
         let r = DMatrix::from_fn(n, p_ind.len(), |i, j| {
-            let s: Rational = inv[i]
-                .iter()
-                .zip(&p_ind[j])
-                .map(|(a, &x)| a * exact::int(x))
-                .sum();
-            exact::to_f64(&s)
+            exact::to_f64(&sparse_dot(&inv[i], &p_ind[j], &on[j]))
         });
         Some(Split {
             b: orthonormal(&to_f64(&b)),

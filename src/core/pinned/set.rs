@@ -127,8 +127,14 @@ fn clash(sys: &System, a: usize, b: usize) -> Result<(), String> {
     let (fa, fb) = (&lat.families[a], &lat.families[b]);
     for ta in &fa.translates {
         let m = particles_of(lat, inv, ta);
+        // Only the fields where K^-1 l_a is non-zero contribute.
+        let on: Vec<usize> = (0..m.len()).filter(|&i| !m[i].is_zero()).collect();
         for tb in &fb.translates {
-            let phase = exact::dot_int(&m, &tb.l);
+            let phase: Rational = on
+                .iter()
+                .filter(|&&i| tb.l[i] != 0)
+                .map(|&i| &m[i] * exact::int(tb.l[i]))
+                .sum();
             if phase.is_zero() {
                 continue;
             }
