@@ -6,8 +6,8 @@ use std::path::{Path, PathBuf};
 use clap::Args;
 
 use super::common::{
-    bare_provenance, emit, emit_report, load_point_text, options_json, provenance,
-    FigureStyleArg, FlowFlags, FormatArg, PointArgs, Progress,
+    bare_provenance, emit, emit_report, load_point_text, options_json, provenance, FigureStyleArg,
+    FlowFlags, FormatArg, PointArgs, Progress,
 };
 use crate::core::system::System;
 use crate::error::{Error, InputError};
