@@ -126,6 +126,22 @@ pub fn competitors(
     Ok(opts.map(|o| CompetitorOptions { symmetry: sym, ..o }))
 }
 
+/// The competitor options as the command line records them in its
+/// provenance (the values given, before the model's `[competitors]` table).
+pub fn recorded_competitors(options: &Bound<'_, PyDict>) -> PyResult<serde_json::Value> {
+    let range = wires(options.get_item("competitor_range")?, "competitor_range")?;
+    let sym = symmetry(
+        options.get_item("competitor_symmetry")?.as_ref(),
+        "competitor_symmetry",
+    )?;
+    Ok(serde_json::json!({
+        "competitors": float(options, "competitors")?,
+        "competitor_coupling": float(options, "competitor_coupling")?,
+        "competitor_range": range,
+        "competitor_symmetry": format!("{sym:?}"),
+    }))
+}
+
 /// Refuse the competitor options where the command has none (`edges`).
 pub fn no_competitors(options: &Bound<'_, PyDict>) -> PyResult<()> {
     for key in FLOW_OPTIONS.iter().filter(|k| k.starts_with("competitor")) {

@@ -219,6 +219,7 @@ impl Model {
         let set = point_overrides(point)?;
         let over = flow_overrides(options)?;
         let competitors = args::competitors(&self.sys, options)?;
+        let recorded_competitors = args::recorded_competitors(options)?;
         let by = args::color_by(color_by)?;
         let pool = thread_pool(threads)?;
         let mut arguments = args::recorded(&[("x", &x), ("y", &y)], point, options)?;
@@ -236,7 +237,7 @@ impl Model {
             check_closure(sys, &options, force)?;
             let recorded = serde_json::json!({
                 "flow": options,
-                "competitors": competitors,
+                "competitors": recorded_competitors,
                 "color_by": color_by,
             });
             let names = sys.model.params.names().iter().cloned();
