@@ -26,8 +26,7 @@
 
 use std::cell::RefCell;
 
-use nalgebra::DVector;
-use ode_solvers::System;
+use crate::math::dop853::Derivative;
 
 use super::background::{Background, Outer, Work};
 use super::channels::{Channel, OpeEntry};
@@ -335,35 +334,39 @@ impl FlowRhs<'_> {
     }
 }
 
-impl System<f64, DVector<f64>> for &mut FlowRhs<'_> {
-    fn system(&self, _ell: f64, y: &DVector<f64>, dy: &mut DVector<f64>) {
+impl Derivative for FlowRhs<'_> {
+    fn eval(&self, _ell: f64, y: &[f64], dy: &mut [f64]) {
         if self.reference {
-            self.derivative_reference(y.as_slice(), dy.as_mut_slice());
+            self.derivative_reference(y, dy);
         } else {
-            self.derivative(y.as_slice(), dy.as_mut_slice());
+            self.derivative(y, dy);
         }
     }
+}
 
-    fn solout(&mut self, ell: f64, y: &DVector<f64>, _dy: &DVector<f64>) -> bool {
-        let rhs: &mut FlowRhs = self;
-        rhs.steps += 1;
-        let ys = y.as_slice();
-        if rhs.record {
-            rhs.record_sample(ell, ys);
+impl FlowRhs<'_> {
+    /// The stop hook, after every accepted step at `ell` with state `y`:
+    /// counts and records the step, and returns true (setting `stop`) when
+    /// a coupling reached y_strong or every coupling decayed, or (without
+    /// `stop`) when the state is no longer finite.
+    pub fn after_step(&mut self, ell: f64, y: &[f64]) -> bool {
+        self.steps += 1;
+        if self.record {
+            self.record_sample(ell, y);
         }
-        let before = rhs.last_ell;
-        rhs.last_ell = ell;
-        if rhs.strongest(ys).is_some_and(|(_, g)| g >= rhs.y_strong) {
-            rhs.stop = Some(Stop::Strong {
+        let before = self.last_ell;
+        self.last_ell = ell;
+        if self.strongest(y).is_some_and(|(_, g)| g >= self.y_strong) {
+            self.stop = Some(Stop::Strong {
                 ell_before: before,
                 ell_after: ell,
             });
             return true;
         }
-        if rhs.decayed(ys) {
-            rhs.stop = Some(Stop::Decayed { ell });
+        if self.decayed(y) {
+            self.stop = Some(Stop::Decayed { ell });
             return true;
         }
-        !ys.iter().all(|x| x.is_finite())
+        !y.iter().all(|x| x.is_finite())
     }
 }
