@@ -290,7 +290,9 @@ impl Dop853 {
 
     /// The step's error relative to the tolerance (accept at <= 1): the
     /// DOP853 combination of the 5th- and 3rd-order estimates, per group,
-    /// the largest over the groups.
+    /// the largest over the groups. A new state or an estimate that is not
+    /// finite counts as an infinite error (the step is rejected and
+    /// shrinks).
     fn error(&self) -> f64 {
         let (rtol, atol) = (self.control.rtol, self.control.atol);
         let mut worst = 0.0f64;
@@ -313,7 +315,11 @@ impl Dop853 {
             if deno <= 0.0 {
                 deno = 1.0;
             }
-            worst = worst.max(self.h.abs() * e5 * (1.0 / (deno * (b - a) as f64)).sqrt());
+            let err = self.h.abs() * e5 * (1.0 / (deno * (b - a) as f64)).sqrt();
+            if !err.is_finite() || !self.stage[a..b].iter().all(|x| x.is_finite()) {
+                return f64::INFINITY;
+            }
+            worst = worst.max(err);
         }
         worst
     }
@@ -395,7 +401,10 @@ fn combine_into(out: &mut [f64], y: &[f64], k: &[Vec<f64>], a: &[f64], h: f64) {
 
 impl Dop853 {
     /// Prepare the dense output of the last accepted step (three more
-    /// evaluations of f; nothing when already prepared).
+    /// evaluations of f; nothing when already prepared). When its extra
+    /// stages are not finite (a step far too long for the equations, at a
+    /// loose tolerance) no dense output is available: [`Dop853::dense`]
+    /// then returns false.
     pub fn prepare_dense<F: Derivative>(&mut self, f: &F) {
         if self.dense_ready || self.accepted == 0 || !self.fsal_pending {
             return;
@@ -422,7 +431,7 @@ impl Dop853 {
                 self.cont[3 + r][i] = h * acc;
             }
         }
-        self.dense_ready = true;
+        self.dense_ready = self.cont.iter().all(|c| c.iter().all(|x| x.is_finite()));
     }
 
     /// The dense output at x in [x_old, x] into `out`; false (and `out`
@@ -1013,6 +1022,37 @@ mod tests {
             err(&one),
             err(&two)
         );
+    }
+
+    /// A step whose new state is not finite is rejected, not accepted:
+    /// y' = y^2 from y(0) = 1 blows up at x = 1 (y = 1/(1 - x)); asked to
+    /// go to x = 2 the integrator stops before the pole with a step-size
+    /// error, every accepted state finite and on the solution.
+    #[test]
+    fn a_blow_up_is_never_accepted() {
+        let f = |_x: f64, y: &[f64], dy: &mut [f64]| dy[0] = y[0] * y[0];
+        let mut d = Dop853::new(1);
+        let c = Control {
+            rtol: 1e-6,
+            atol: 1e-9,
+            max_attempts: 100_000,
+        };
+        d.start(&f, 0.0, &[1.0], 2.0, c);
+        let e = loop {
+            match d.step(&f) {
+                Ok(done) => {
+                    assert!(!done, "passed the pole");
+                    assert!(d.y()[0].is_finite() && d.y()[0] > 0.0, "{}", d.y()[0]);
+                    // Near the pole any error is amplified; away from it the
+                    // accepted states follow the solution.
+                    let exact = 1.0 / (1.0 - d.x());
+                    let close = (d.y()[0] - exact).abs() < 1e-5 * exact;
+                    assert!(d.x() > 0.9 || close, "x = {}: {}", d.x(), d.y()[0]);
+                }
+                Err(e) => break e,
+            }
+        };
+        assert!(e.x() < 1.0 && e.x() > 0.9, "{e:?}");
     }
 
     /// Too few attempts: an error naming where it stopped, not a panic.
