@@ -274,6 +274,7 @@ impl Dop853 {
 
     /// The twelve stages of a step of size h from (x, y): k[1..12], the
     /// new state (8th order) in `stage`.
+    #[allow(clippy::needless_range_loop)] // s names the stage in C and A
     fn stages<F: Derivative>(&mut self, f: &F) {
         for s in 1..12 {
             self.combine(s, s);
@@ -325,6 +326,7 @@ impl Dop853 {
     }
 
     /// sum_j b_j k_j[i] (the 8th-order weights, row 12 of A).
+    #[allow(clippy::needless_range_loop)] // j names the stage in A and k
     fn b_sum(&self, i: usize) -> f64 {
         let mut s = 0.0;
         for j in 0..12 {
@@ -459,6 +461,7 @@ impl Dop853 {
 
 /// Nodes c_i of the sixteen stages (12 of the step, 13 its end, 14..16 the
 /// dense output's).
+#[allow(clippy::excessive_precision)]
 const C: [f64; 16] = [
     0.0,
     0.526001519587677318785587544488e-01,
@@ -479,6 +482,7 @@ const C: [f64; 16] = [
 ];
 
 /// Coefficients a_ij (row i: stage i; row 12 holds the 8th-order weights b_j).
+#[allow(clippy::excessive_precision)]
 const A: [[f64; 16]; 16] = [
     [
         0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0,
@@ -756,6 +760,7 @@ const A: [[f64; 16]; 16] = [
 ];
 
 /// Weights of the 5th-order error estimate (b_j - bhat_j).
+#[allow(clippy::excessive_precision)]
 const E5: [f64; 12] = [
     0.1312004499419488073250102996e-1,
     0.0,
@@ -772,6 +777,7 @@ const E5: [f64; 12] = [
 ];
 
 /// The 3rd-order estimate: b minus these weights on stages 1, 9 and 12.
+#[allow(clippy::excessive_precision)]
 const BHH: [f64; 3] = [
     0.244094488188976377952755905512,
     0.733846688281611857341361741547,
@@ -779,6 +785,7 @@ const BHH: [f64; 3] = [
 ];
 
 /// Dense output: the coefficients of its last four terms.
+#[allow(clippy::excessive_precision)]
 const D: [[f64; 16]; 4] = [
     [
         -0.84289382761090128651353491142e+1,
