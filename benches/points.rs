@@ -26,6 +26,12 @@
 //! (`pinflow::math::dop853`) with `ode_solvers`' two methods.
 //! Both measure the thread's CPU time, not wall time (see [`ThreadCpu`]).
 //!
+//! The exact inverse of K (`exact inverse:` benches): an explicit model's
+//! K of 1024 fields (512 spinless wires, K = diag(1, -1) per wire) block by
+//! block (`src/math/blockinv.rs`), and 128 fields both ways (the whole
+//! matrix by fraction-free elimination, `src/math/bareiss.rs`, takes about
+//! 4 s at 256 fields and grows as n^3).
+//!
 //! Run: `cargo bench --bench points` (only the targets: `cargo bench
 //! --bench points -- target`).
 
@@ -251,6 +257,23 @@ fn targets(c: &mut Criterion<ThreadCpu>) {
             });
         }
     }
+    // The infinite array with its quadrature always checked by a second
+    // flow on half the points (before the in-flow estimate of issue 15
+    // item 4): the estimate's saving, measured in the same run.
+    let sys = &layouts[3].1;
+    let point = sys.model.params.defaults().to_vec();
+    let mut flow = Flow::new(
+        sys,
+        FlowOptions {
+            record: false,
+            ..FlowOptions::default()
+        },
+    );
+    flow.full_check = true;
+    c.bench_function(
+        "target: flow filling 1/3, infinite, second-flow check",
+        |b| b.iter(|| flow.run(&point).expect("flow")),
+    );
 }
 
 /// The listed terms of the 32-field ring flowing alone (no generated
@@ -402,13 +425,39 @@ fn own_stepper(
     }
 }
 
+/// K = diag(1, -1) per wire on n fields.
+fn wires_k(n: usize) -> Vec<Vec<i64>> {
+    (0..n)
+        .map(|i| {
+            (0..n)
+                .map(|j| if i == j { 1 - 2 * (i as i64 % 2) } else { 0 })
+                .collect()
+        })
+        .collect()
+}
+
+fn exact_inverse(c: &mut Criterion) {
+    use pinflow::math::{bareiss, blockinv};
+    let (k1024, k128) = (wires_k(1024), wires_k(128));
+    c.bench_function("exact inverse: 1024 fields, block by block", |b| {
+        b.iter(|| blockinv::det_and_inverse(&k1024).expect("invertible"))
+    });
+    c.bench_function("exact inverse: 128 fields, block by block", |b| {
+        b.iter(|| blockinv::det_and_inverse(&k128).expect("invertible"))
+    });
+    c.bench_function("exact inverse: 128 fields, whole matrix", |b| {
+        b.iter(|| bareiss::det_and_inverse(&k128).expect("invertible"))
+    });
+}
+
 criterion_group!(
     benches,
     dims_point,
     flow_point,
     infinite_against_dense,
     edges_nondiagonal_cell,
-    infinite_flow
+    infinite_flow,
+    exact_inverse
 );
 criterion_group! {
     name = cpu;

@@ -152,7 +152,9 @@ impl Model {
                 pins: pin,
                 ..Default::default()
             };
-            renderings(&DimsReport::build_opts(sys, &point, &opts)?)
+            let mut report = DimsReport::build_opts(sys, &point, &opts)?;
+            pinflow::search::breaks::annotate(sys, &point, &mut report)?;
+            renderings(&report)
         })
     }
 

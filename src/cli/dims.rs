@@ -112,7 +112,8 @@ pub(super) fn run(args: DimsArgs) -> Result<(), Error> {
         pins: args.pin.clone(),
         ..Default::default()
     };
-    let report = DimsReport::build_opts(&sys, &point, &opts)?;
+    let mut report = DimsReport::build_opts(&sys, &point, &opts)?;
+    crate::search::breaks::annotate(&sys, &point, &mut report)?;
     let options = options_json(&serde_json::json!({ "pin": args.pin }))?;
     let names = sys.model.params.names();
     let prov = provenance("dims", &args.point.model, names, &point, options)?;

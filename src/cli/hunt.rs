@@ -210,6 +210,7 @@ fn recorded(args: &HuntArgs) -> serde_json::Value {
         "charge": match args.charge {
             ChargeFilter::Any => serde_json::Value::from("any"),
             ChargeFilter::Exactly(q) => serde_json::Value::from(q),
+            ChargeFilter::Model => serde_json::Value::from("model"),
         },
         "spin": match args.spin { SpinArg::Zero => "0", SpinArg::Any => "any" },
         "range": args.range,

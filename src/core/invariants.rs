@@ -23,7 +23,7 @@ use num_traits::Zero;
 use crate::core::lattice::{Family, Lattice, Translate};
 use crate::error::InputError;
 use crate::math::rational::{self, Rational};
-use crate::math::{bareiss, zmat};
+use crate::math::{blockinv, zmat};
 use crate::model::Model;
 
 /// Exact data of one term family (computed on its representative translate;
@@ -136,6 +136,16 @@ impl Pairing {
         acc
     }
 
+    /// Fields per cell.
+    pub fn cell(&self) -> usize {
+        self.cell
+    }
+
+    /// det(K_c) (K_c^-1)_{ij}, the pairing of two fields i, j of one cell.
+    pub fn entry(&self, i: usize, j: usize) -> i128 {
+        self.adj[i][j]
+    }
+
     /// l and l' commute (l^T K^-1 l' = 0).
     pub fn commute(&self, l: &[i64], lp: &[i64]) -> bool {
         self.scaled(l, lp) == 0
@@ -206,7 +216,7 @@ impl CellData {
             crate::model::Structure::Array { .. } => "array.K",
         };
         let err = |msg: &str| InputError::new(&model.file, key, msg);
-        let (det, inverse) = bareiss::det_and_inverse(&model.cell_k)
+        let (det, inverse) = blockinv::det_and_inverse(&model.cell_k)
             .ok_or_else(|| err("K is singular (det K = 0); K must be invertible"))?;
         let signature = zmat::signature(&model.cell_k)
             .ok_or_else(|| err("cannot determine the signature of K reliably"))?;

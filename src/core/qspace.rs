@@ -136,21 +136,48 @@ pub fn times_cell(m: &DMatrix<f64>, lq: &[Complex64]) -> Vec<Complex64> {
 pub fn dimension(d: &[f64], lq: &[Complex64], points: usize, cell: usize) -> f64 {
     let mut acc = 0.0;
     for k in 0..half(points) {
-        let lk = &lq[k * cell..(k + 1) * cell];
-        let base = 2 * k * cell * cell;
-        let mut term = 0.0;
-        for (a, la) in lk.iter().enumerate() {
-            let row = &d[base + 2 * a * cell..base + 2 * (a + 1) * cell];
-            let z: Complex64 = lk
-                .iter()
-                .enumerate()
-                .map(|(b, lb)| Complex64::new(row[2 * b], row[2 * b + 1]) * lb)
-                .sum();
-            term += (la.conj() * z).re;
-        }
-        acc += weight(k, points) * term;
+        acc += weight(k, points) * quadratic_form(d, lq, k, cell);
     }
     acc / (2.0 * points as f64)
+}
+
+/// Re L(q_k)^H D(q_k) L(q_k) at stored point k.
+#[inline]
+fn quadratic_form(d: &[f64], lq: &[Complex64], k: usize, cell: usize) -> f64 {
+    let lk = &lq[k * cell..(k + 1) * cell];
+    let base = 2 * k * cell * cell;
+    let mut term = 0.0;
+    for (a, la) in lk.iter().enumerate() {
+        let row = &d[base + 2 * a * cell..base + 2 * (a + 1) * cell];
+        let z: Complex64 = lk
+            .iter()
+            .enumerate()
+            .map(|(b, lb)| Complex64::new(row[2 * b], row[2 * b + 1]) * lb)
+            .sum();
+        term += (la.conj() * z).re;
+    }
+    term
+}
+
+/// The bosonic dimension of a D(q) state on its N-point rule and on the
+/// nested rule of N/2 points (N even), whose stored points are the even
+/// stored points of the N-point rule (q_k on N/2 points is q_2k on N):
+/// (Delta_N, Delta_N/2), both from the same D(q) in one pass. Used by the
+/// flow's in-flow quadrature estimate ([`crate::flow::check`]).
+pub fn nested_dimensions(d: &[f64], lq: &[Complex64], points: usize, cell: usize) -> (f64, f64) {
+    let coarse = points / 2;
+    let (mut full, mut half_rule) = (0.0, 0.0);
+    for k in 0..half(points) {
+        let f = quadratic_form(d, lq, k, cell);
+        full += weight(k, points) * f;
+        if k % 2 == 0 {
+            half_rule += weight(k / 2, coarse) * f;
+        }
+    }
+    (
+        full / (2.0 * points as f64),
+        half_rule / (2.0 * coarse as f64),
+    )
 }
 
 /// The real-space block D^(n) = (1/N) sum_q D(q) e^{-iqn} of a D(q) state.

@@ -185,6 +185,11 @@ pub struct TermRow {
     pub allowed_charge: String,
     /// Charge equals the allowed charge.
     pub charge_ok: bool,
+    /// Names of the model's declared symmetries (`[[symmetry]]`) the term
+    /// breaks at this point: a U(1) charge it is not allowed, or a Z_n that
+    /// does not map it onto the listed terms with their couplings (see
+    /// [`crate::search::breaks`]); empty when it respects every one.
+    pub breaks_symmetry: Vec<String>,
     /// Built from microscopic particles (m integral).
     pub local: bool,
     /// Spin zero: can pin on its own.
@@ -453,6 +458,7 @@ fn term_row(
         charge: fmt_rational(&ti.charge),
         allowed_charge: fmt_rational(&spec.allowed_charge),
         charge_ok: ti.charge_ok,
+        breaks_symmetry: Vec::new(),
         local: ti.local,
         null: ti.null,
         relevant: is_relevant(dimension),

@@ -47,7 +47,6 @@ use std::collections::HashMap;
 use num_complex::Complex64;
 use num_traits::Zero;
 
-use crate::core::invariants::{particles_of, Pairing};
 use crate::core::lattice::{Family, Lattice, Translate};
 use crate::core::momentum::per_translate;
 use crate::core::qspace;
@@ -243,7 +242,7 @@ impl Plan {
         }
         let ring = sys.lattice.boundary == Some(Boundary::Periodic) && !split;
         let wiring = Wiring::of(sys);
-        plan.ope = ope_table(
+        plan.ope = super::ope::ope_table(
             &plan.channels,
             &index,
             &sys.invariants.pairing,
@@ -511,21 +510,13 @@ impl Wiring {
         }
     }
 
-    /// The wires a dense vector touches, sorted.
-    fn touched(&self, v: &[i64]) -> Vec<usize> {
-        let mut w: Vec<usize> = v
-            .iter()
-            .enumerate()
-            .filter(|(_, x)| **x != 0)
-            .map(|(f, _)| self.wire_of[f])
-            .collect();
-        w.sort_unstable();
-        w.dedup();
-        w
+    /// The wire of a field.
+    pub(super) fn wire(&self, field: usize) -> usize {
+        self.wire_of[field]
     }
 
     /// Consecutive wires spanned by a sorted list of distinct wires.
-    fn span_of(&self, wires: &[usize]) -> usize {
+    pub(super) fn span_of(&self, wires: &[usize]) -> usize {
         window(wires, self.wires, self.periodic).map_or(0, |(_, width)| width)
     }
 
@@ -599,12 +590,13 @@ fn make_channel(
     let (family, copies) = distinct(family);
     let mut l_sparse = Vec::with_capacity(family.translates.len());
     let mut g_sparse = Vec::with_capacity(family.translates.len());
+    let mut solved = CellSolutions::default();
     for t in &family.translates {
         l_sparse.push(sparse(t.l.iter().map(|x| *x as f64)));
-        let m = particles_of(lat, inv, t);
+        let m = solved.particles(lat, inv, &t.l);
         g_sparse.push(sparse(m.iter().map(rational::to_f64)));
     }
-    let particles = particles_of(lat, inv, family.rep());
+    let particles = solved.particles(lat, inv, &family.rep().l);
     let charge = rational::dot_int(&particles, &lat.charge);
     let share = family.translates.len() as f64 / placements.max(1) as f64;
     let mut ch = Channel {
@@ -626,6 +618,29 @@ fn make_channel(
         ch = ch.on_rule(lat, &q.kinv, lat.wires);
     }
     ch
+}
+
+/// m = K^-1 l wire by wire (as [`crate::core::invariants::particles_of`]), solving each distinct
+/// cell vector once: the translates of a family repeat the same few.
+#[derive(Default)]
+struct CellSolutions(HashMap<Vec<i64>, Vec<Rational>>);
+
+impl CellSolutions {
+    fn particles(&mut self, lat: &Lattice, inv: &[Vec<Rational>], l: &[i64]) -> Vec<Rational> {
+        let mut m = vec![Rational::zero(); lat.n];
+        for w in 0..lat.wires {
+            let slice = &l[w * lat.cell..(w + 1) * lat.cell];
+            if slice.iter().all(|x| *x == 0) {
+                continue;
+            }
+            let sol = self
+                .0
+                .entry(slice.to_vec())
+                .or_insert_with(|| rational::solve_with(inv, slice));
+            m[w * lat.cell..(w + 1) * lat.cell].clone_from_slice(sol);
+        }
+        m
+    }
 }
 
 /// The distinct translates of a family (a translate equal to plus or minus
@@ -727,7 +742,7 @@ fn family_of(lat: &Lattice, v: &[i64]) -> Option<Family> {
 /// quarter of the time of a plan with a few hundred channels; the keys are
 /// the model's own vectors, so no hash flooding is to be feared).
 #[derive(Debug, Default, Clone, Copy)]
-struct VecHasher(u64);
+pub(super) struct VecHasher(u64);
 
 impl std::hash::Hasher for VecHasher {
     fn finish(&self) -> u64 {
@@ -755,11 +770,11 @@ impl std::hash::Hasher for VecHasher {
     }
 }
 
-type VecMap<V> = HashMap<Vec<i64>, V, std::hash::BuildHasherDefault<VecHasher>>;
+pub(super) type VecMap<V> = HashMap<Vec<i64>, V, std::hash::BuildHasherDefault<VecHasher>>;
 
 /// Maps every translate vector (and its negative) to (channel, sign).
 #[derive(Debug, Default)]
-struct VectorIndex {
+pub(super) struct VectorIndex {
     map: VecMap<(usize, bool)>,
 }
 
@@ -776,123 +791,9 @@ impl VectorIndex {
     fn find(&self, v: &[i64]) -> Option<(usize, bool)> {
         self.map.get(v).copied()
     }
-}
 
-/// The wires each translate of each channel touches (sorted), and the
-/// widest channel: a pair of translates with disjoint supports sums to a
-/// vector whose support is their union, which is no channel when it spans
-/// more wires than the widest channel.
-struct Supports<'w> {
-    wiring: &'w Wiring,
-    wires: Vec<Vec<Vec<usize>>>,
-    widest: usize,
-}
-
-impl<'w> Supports<'w> {
-    fn new(wiring: &'w Wiring, channels: &[Channel]) -> Supports<'w> {
-        let wires = channels
-            .iter()
-            .map(|c| {
-                c.family
-                    .translates
-                    .iter()
-                    .map(|t| wiring.touched(&t.l))
-                    .collect()
-            })
-            .collect();
-        let widest = channels
-            .iter()
-            .map(|c| wiring.span(&c.family.rep().l))
-            .max()
-            .unwrap_or(0);
-        Supports {
-            wiring,
-            wires,
-            widest,
-        }
+    /// Every vector with its (channel, negated).
+    pub(super) fn entries(&self) -> impl Iterator<Item = (&[i64], (usize, bool))> {
+        self.map.iter().map(|(v, hit)| (v.as_slice(), *hit))
     }
-
-    /// Translate `ta` of channel `a` and `tb` of `b` cannot sum to a channel.
-    fn too_far(&self, (a, ta): (usize, usize), (b, tb): (usize, usize)) -> bool {
-        let (x, y) = (&self.wires[a][ta], &self.wires[b][tb]);
-        // Merge the two sorted lists on the stack (supports are a few wires).
-        let mut buf = [0usize; 32];
-        if x.len() + y.len() > buf.len() {
-            return false;
-        }
-        let (mut i, mut j, mut n) = (0, 0, 0);
-        while i < x.len() || j < y.len() {
-            let w = match (x.get(i), y.get(j)) {
-                (Some(p), Some(q)) if p == q => return false,
-                (Some(p), Some(q)) if p < q => {
-                    i += 1;
-                    *p
-                }
-                (Some(p), None) => {
-                    i += 1;
-                    *p
-                }
-                (_, Some(q)) => {
-                    j += 1;
-                    *q
-                }
-                (None, None) => break,
-            };
-            buf[n] = w;
-            n += 1;
-        }
-        self.wiring.span_of(&buf[..n]) > self.widest
-    }
-}
-
-/// The OPE table (see the module docs); pairs of translates too far apart
-/// to sum to a channel are skipped before any vector is formed.
-fn ope_table(
-    channels: &[Channel],
-    index: &VectorIndex,
-    pairing: &Pairing,
-    ring: bool,
-    wiring: Option<&Wiring>,
-) -> Vec<OpeEntry> {
-    let supports = wiring.map(|w| Supports::new(w, channels));
-    let mut table = Vec::new();
-    let mut v: Vec<i64> = Vec::new();
-    for (a, ca) in channels.iter().enumerate() {
-        let (rep, ra) = (ca.family.rep(), ca.family.representative);
-        for (b, cb) in channels.iter().enumerate() {
-            for (tbi, tb) in cb.family.translates.iter().enumerate() {
-                if supports
-                    .as_ref()
-                    .is_some_and(|s| s.too_far((a, ra), (b, tbi)))
-                    || !pairing.commute(&rep.l, &tb.l)
-                {
-                    continue;
-                }
-                for (sign, b_conj) in [(1i64, false), (-1, true)] {
-                    v.clear();
-                    v.extend(rep.l.iter().zip(&tb.l).map(|(x, y)| x + sign * y));
-                    if v.iter().all(|x| *x == 0) {
-                        continue;
-                    }
-                    if let Some((target, conj)) = index.find(&v) {
-                        let weight = if ring {
-                            ca.family.translates.len() as f64
-                                / channels[target].family.translates.len() as f64
-                        } else {
-                            1.0
-                        };
-                        table.push(OpeEntry {
-                            target,
-                            conj,
-                            a,
-                            b,
-                            b_conj,
-                            weight,
-                        });
-                    }
-                }
-            }
-        }
-    }
-    table
 }

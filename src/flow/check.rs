@@ -43,21 +43,32 @@
 //! ([`crate::core::qspace::Quadrature`]) an honest and, the error falling
 //! geometrically, in practice generous bound.
 //!
+//! The first comparison is usually made without the M-point flow: the
+//! N-point flow estimates its difference from it along the way
+//! ([`super::qtrack`]), and that estimate stands for the comparison when it
+//! is [`MARGIN`] times below the tolerance (`method` "estimate"); else the
+//! M-point flow runs as above (`method` "flow"). Refinements always compare
+//! two flows.
+//!
 //! A fixed rule (`q_points` = N) is not refined. It is compared with the
 //! flow on 2N points, and the estimate is twice the difference (a bound on
 //! the N-point error whenever doubling N at least halves it, as in
 //! [`crate::core::qspace::on_rule`]).
 //!
 //! Cost: a flow costs in proportion to its number of points, so a check
-//! that passes at once costs half a flow more (the M-point flow); a fixed
+//! that passes at once costs half a flow more (the M-point flow), or a few
+//! per cent of a flow by the estimate; a fixed
 //! rule costs two flows more (the 2N-point flow). Each further doubling
 //! costs the new flow. Every flow of a scan is checked in the same way, so
 //! a scan's rows are the numbers `flow` reports at the same point.
 
 use serde::Serialize;
 
-use super::{Flow, FlowResult, Outcome, Start};
-use crate::core::qspace::{QFixedPoint, Quadrature};
+use super::channels::Channel;
+use super::qtrack::{Estimate, Tracker, MARGIN};
+use super::rhs::FlowRhs;
+use super::{Flow, FlowResult, Integrated, Outcome, Start, CLOSURE_SLACK};
+use crate::core::qspace::{nested_dimensions, QFixedPoint, Quadrature};
 use crate::error::Error;
 
 /// Default relative tolerance of the check.
@@ -82,6 +93,17 @@ pub enum StoppedBy {
     /// Doubling the points did not halve the difference (not quadrature
     /// error: usually the integrator's).
     Stalled,
+}
+
+/// How the difference from the other rule was found.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum CheckMethod {
+    /// Estimated along the flow itself ([`super::qtrack`]): the nested
+    /// half rule's sums from the same D(q), propagated to the end.
+    Estimate,
+    /// The same point flowed again on the other rule and compared.
+    Flow,
 }
 
 /// The outcome of the check (the `flow_quadrature` object of a flow).
@@ -112,6 +134,10 @@ pub struct QuadratureCheck {
     /// Why the refinement stopped before converging: "cap" or "stalled";
     /// null otherwise (and for a fixed rule).
     pub stopped: Option<StoppedBy>,
+    /// "estimate": the difference from the half rule estimated along the
+    /// flow, [`MARGIN`] times below the tolerance; "flow": found by
+    /// flowing again on the other rule.
+    pub method: CheckMethod,
 }
 
 impl QuadratureCheck {
@@ -168,6 +194,16 @@ impl Difference {
         }
     }
 
+    /// The in-flow estimate as a difference (the same outcome: the
+    /// estimate exists only when no decision is within its reach).
+    fn estimated(e: Estimate) -> Difference {
+        Difference {
+            dims: e.dims,
+            ell_star: e.ell_star,
+            same: true,
+        }
+    }
+
     /// The larger error; infinite when the flows end differently or an
     /// error is not a number.
     fn worst(&self) -> f64 {
@@ -187,9 +223,10 @@ impl Flow<'_> {
     pub(super) fn run_checked(
         &self,
         point: &[f64],
-        start: Start,
+        mut start: Start,
         fp: QFixedPoint,
     ) -> Result<FlowResult, Error> {
+        start.track = true;
         let mut result = self.run_from(point, start, self.opts.record)?;
         if matches!(result.outcome, Outcome::Failed | Outcome::Unphysical) {
             return Ok(result);
@@ -201,10 +238,70 @@ impl Flow<'_> {
                 let diff = Difference::of(&result, &other).scaled(2.0);
                 self.check(RuleChoice::Fixed, n, finer.points, diff, 0, None)
             }
-            None => self.refine(point, &mut result, fp)?,
+            None => match self.estimate_passes(&result) {
+                Some(diff) => {
+                    let check =
+                        self.check(RuleChoice::Refined, fp.points, fp.points / 2, diff, 0, None);
+                    QuadratureCheck {
+                        method: CheckMethod::Estimate,
+                        ..check
+                    }
+                }
+                None => self.refine(point, &mut result, fp)?,
+            },
         };
         result.flow_quadrature = Some(check);
         Ok(result)
+    }
+
+    /// The in-flow estimate as the check's difference, when it is
+    /// [`MARGIN`] times below the tolerance (else the full check runs).
+    /// The estimate leaves out the integrator's error, which a second flow
+    /// also shows: with `rtol` not [`MARGIN`] times below the tolerance
+    /// that error may exceed it, and the second flow runs.
+    fn estimate_passes(&self, result: &FlowResult) -> Option<Difference> {
+        if self.full_check || MARGIN * self.opts.rtol > self.opts.q_tolerance {
+            return None;
+        }
+        let diff = Difference::estimated(result.q_estimate?);
+        (MARGIN * diff.worst() <= self.opts.q_tolerance).then_some(diff)
+    }
+
+    /// The tracker of a flow from `start` at its bare state `y0`: marked
+    /// fragile when a generated channel's inclusion (its bare dimension
+    /// against the closure bound) could differ on the half rule.
+    pub(super) fn tracker(
+        &self,
+        rhs: &FlowRhs,
+        all: &[Channel],
+        start: &Start,
+        y0: &[f64],
+    ) -> Option<Tracker> {
+        let mut track = Tracker::new(rhs, y0)?;
+        if let super::background::Background::Fourier { wires, cell } = start.bg {
+            let bound = self.opts.closure_bound + CLOSURE_SLACK;
+            let close = all.iter().skip(self.plan.listed).any(|ch| {
+                let (full, half) = nested_dimensions(&start.d0, &ch.lq, wires, cell);
+                (full - bound).abs() <= MARGIN * (half - full).abs()
+            });
+            if close {
+                track.mark_fragile();
+            }
+        }
+        Some(track)
+    }
+
+    /// The tracker's estimate at the end of the first integration (stage 1);
+    /// the tracker is removed so later stages do not advance it.
+    pub(super) fn q_estimate(&self, rhs: &mut FlowRhs, first: &Integrated) -> Option<Estimate> {
+        let track = rhs.q_track.take()?;
+        track.estimate(
+            rhs,
+            first.state.as_slice(),
+            first.outcome,
+            first.winner,
+            first.ell_star,
+        )
     }
 
     /// The refinement loop of a rule that was not given (module docs).
@@ -290,6 +387,7 @@ impl Flow<'_> {
             converged: diff.worst() <= tolerance,
             refinements,
             stopped,
+            method: CheckMethod::Flow,
         }
     }
 }

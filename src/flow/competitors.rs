@@ -1,9 +1,12 @@
 //! Hunted competitors in the flow (`--competitors DELTA`).
 //!
 //! At each point the operator search ([`crate::search::hunt`], with the
-//! model's symmetries) lists every allowed local operator (charge 0, spin 0,
-//! momentum conserved when the model gives momenta) with bare Delta <= DELTA
-//! within the search range; those that are not already model terms (up to
+//! model's symmetries) lists every allowed local operator with bare
+//! Delta <= DELTA within the search range, by the model's own rules: |charge|
+//! 0 or one of the terms' |allowed_charge| ([`ChargeFilter::Model`]), each
+//! declared U(1) likewise, conformal spin 0 or that of one of the model's
+//! local terms ([`SpinFilter::Model`]), momentum conserved when the model
+//! gives momenta; those that are not already model terms (up to
 //! sign and translation) join the model as terms named
 //! `auto:<particle content>` with bare coupling `coupling` (default: the
 //! smallest non-zero listed coupling at the point), and the phase of their
@@ -26,7 +29,9 @@ use crate::core::system::System;
 use crate::error::{Error, InputError};
 use crate::math::rational::Rational;
 use crate::model::{Content, Model, Scalar, TermSpec};
-use crate::search::{self, ChargeFilter, HuntOptions, HuntReport, Operator, SymmetryChoice};
+use crate::search::{
+    self, ChargeFilter, HuntOptions, HuntReport, Operator, SpinFilter, SymmetryChoice,
+};
 
 /// Prefix of the names of hunted competitors.
 pub const PREFIX: &str = "auto:";
@@ -156,7 +161,8 @@ impl<'s> Competing<'s> {
     fn hunt_options(&self) -> HuntOptions {
         HuntOptions {
             max_dim: self.comp.delta,
-            charge: ChargeFilter::Exactly(0),
+            charge: ChargeFilter::Model,
+            spin: SpinFilter::Model,
             range: self.comp.range,
             symmetry: self.comp.symmetry.clone(),
             ..HuntOptions::default()
@@ -213,7 +219,12 @@ fn auto_terms(report: &HuntReport, y: f64) -> Vec<TermSpec> {
                 extra_spin: Rational::from_integer(0.into()),
                 target: false,
                 allowed_charge: Rational::from_integer(op.charge.into()),
-                allowed_charges: Vec::new(),
+                allowed_charges: op
+                    .charges
+                    .iter()
+                    .filter(|(_, q)| **q != 0)
+                    .map(|(name, q)| (name.clone(), Rational::from_integer((*q).into())))
+                    .collect(),
                 group,
             }
         })

@@ -46,7 +46,9 @@ pub mod channels;
 pub mod check;
 pub mod competitors;
 pub mod kt;
+mod ope;
 pub mod options;
+pub mod qtrack;
 pub mod report;
 pub mod rhs;
 pub mod stages;
@@ -61,7 +63,7 @@ use crate::math::dop853::{Control, Dop853};
 use crate::math::rational::fmt_rational;
 use background::Background;
 use channels::{Channel, Origin, Plan};
-pub use check::{QuadratureCheck, RuleChoice, StoppedBy};
+pub use check::{CheckMethod, QuadratureCheck, RuleChoice, StoppedBy};
 pub use options::{Closure, FlowOptions};
 use rhs::{FlowRhs, Sample, Stop};
 pub use stages::{Stage, StagesEnd};
@@ -233,6 +235,11 @@ pub struct FlowResult {
     pub listed_rows: Vec<Option<usize>>,
     /// Accepted integration steps.
     pub steps: usize,
+    /// Infinite arrays: the in-flow estimate of the difference from the
+    /// flow on half the points ([`qtrack`]); None when not tracked or when
+    /// the flow needs the full check.
+    #[serde(skip)]
+    pub q_estimate: Option<qtrack::Estimate>,
     /// Hunted competitors (`--competitors`) that joined this flow as terms,
     /// named `auto:<particle content>`; empty without them.
     pub competitors_added: Vec<String>,
@@ -254,6 +261,10 @@ pub struct Flow<'s> {
     /// Integrate with the per-channel reference right-hand side
     /// ([`rhs::FlowRhs::derivative_reference`]); for tests comparing the two.
     pub reference_rhs: bool,
+    /// Check every infinite array's flow by flowing it again on the half
+    /// rule, even where the in-flow estimate would do (tests comparing the
+    /// estimate, kept in [`FlowResult::q_estimate`], with the difference).
+    pub full_check: bool,
     layout: Layout,
     /// Phases already named, by sorted plan indices of the pinned set.
     phases: std::sync::Mutex<std::collections::HashMap<Vec<usize>, crate::core::phase::Phase>>,
@@ -282,6 +293,8 @@ struct Start {
     channels: Option<Vec<Channel>>,
     quadrature: Option<crate::core::qspace::Quadrature>,
     rule: Option<crate::core::qspace::QFixedPoint>,
+    /// Estimate the quadrature error along the flow ([`qtrack`]).
+    track: bool,
 }
 
 impl<'s> Flow<'s> {
@@ -305,6 +318,7 @@ impl<'s> Flow<'s> {
             plan,
             opts,
             reference_rhs: false,
+            full_check: false,
             layout,
             phases: Default::default(),
         }
@@ -325,6 +339,7 @@ impl<'s> Flow<'s> {
                     channels: None,
                     quadrature: None,
                     rule: None,
+                    track: false,
                 })
             }
             Layout::Ring => {
@@ -338,6 +353,7 @@ impl<'s> Flow<'s> {
                     channels: None,
                     quadrature: None,
                     rule: None,
+                    track: false,
                 })
             }
             Layout::Infinite => {
@@ -406,6 +422,7 @@ impl<'s> Flow<'s> {
             channels: Some(channels),
             quadrature: Some(quad),
             rule: None,
+            track: false,
         })
     }
 
@@ -437,7 +454,11 @@ impl<'s> Flow<'s> {
             ell_k,
         } = self.prepare(point, all, &start, record)?;
         let y_start = y0.clone();
+        if start.track {
+            rhs.q_track = self.tracker(&rhs, all, &start, y0.as_slice());
+        }
         let mut integrated = integrate(&mut rhs, y0, &ell_k, &self.opts, 0.0);
+        let q_estimate = self.q_estimate(&mut rhs, &integrated);
         let mut kt_decision = None;
         if let Some(c) = kt::regime(&rhs, y_start.as_slice(), &ell_k) {
             (integrated, kt_decision) =
@@ -450,6 +471,7 @@ impl<'s> Flow<'s> {
         result.kt = kt_decision;
         self.attach_stages(&mut result, staged, &included);
         result.quadrature = start.quadrature;
+        result.q_estimate = q_estimate;
         result.momentum_period = self.sys.model.momentum_period_at(point);
         Ok(result)
     }
@@ -774,6 +796,7 @@ impl FlowResult {
             plan_notes: Vec::new(),
             listed_rows: Vec::new(),
             steps: 0,
+            q_estimate: None,
             competitors_added: Vec::new(),
             message: Some(message),
             samples: Vec::new(),

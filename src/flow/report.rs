@@ -5,7 +5,9 @@ use std::path::Path;
 
 use serde::Serialize;
 
-use super::{Closure, FlowOptions, FlowResult, Outcome, QuadratureCheck, RuleChoice, StoppedBy};
+use super::{
+    CheckMethod, Closure, FlowOptions, FlowResult, Outcome, QuadratureCheck, RuleChoice, StoppedBy,
+};
 use crate::error::Error;
 use crate::output::{self, Report, Table};
 
@@ -413,6 +415,10 @@ fn check_against(c: &QuadratureCheck) -> String {
     match c.rule {
         RuleChoice::Fixed => format!(
             "twice the difference from the flow on {} points",
+            c.compared_with
+        ),
+        RuleChoice::Refined if c.method == CheckMethod::Estimate => format!(
+            "estimated along the flow against the rule of {} points",
             c.compared_with
         ),
         RuleChoice::Refined => format!("against the flow on {} points", c.compared_with),

@@ -123,6 +123,9 @@ pub struct FlowRhs<'a> {
     pub steps: usize,
     /// Integrate with [`FlowRhs::derivative_reference`] (tests only).
     pub reference: bool,
+    /// Infinite arrays: the in-flow quadrature estimate, advanced at every
+    /// accepted step (see [`super::qtrack`]); None otherwise.
+    pub q_track: Option<super::qtrack::Tracker>,
     /// Precomputed outer products of the null channels (of every channel
     /// when D is carried in q-space).
     outer: Vec<Option<Outer>>,
@@ -200,6 +203,7 @@ impl<'a> FlowRhs<'a> {
             last_ell: 0.0,
             steps: 0,
             reference: false,
+            q_track: None,
             outer,
             live: Vec::new(),
             live_ope: Vec::new(),
@@ -383,6 +387,10 @@ impl FlowRhs<'_> {
         self.steps += 1;
         if self.record {
             self.record_sample(ell, y);
+        }
+        if let Some(mut track) = self.q_track.take() {
+            track.step(self, ell, y);
+            self.q_track = Some(track);
         }
         let before = self.last_ell;
         self.last_ell = ell;

@@ -1,6 +1,7 @@
 //! Algorithms without physics, one file each: exact rational numbers
 //! ([`rational`]), big-integer matrices, inertia and signature ([`zmat`]),
 //! fraction-free elimination for det, inverse and rank ([`bareiss`]), the
+//! exact inverse block by block for large sparse matrices ([`blockinv`]), the
 //! Smith normal form and the lattice operations built on it ([`smith`]),
 //! LLL reduction, exact and float ([`lll`]), readable bases of integer
 //! forms ([`reduce`]), the enumeration of lattice points in an ellipsoid
@@ -13,6 +14,7 @@
 //! outside `math/`.
 
 pub mod bareiss;
+pub mod blockinv;
 pub mod ddouble;
 pub mod dop853;
 pub mod ellipsoid;

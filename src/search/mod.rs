@@ -43,6 +43,7 @@
 //! (dimension rounded to 1e-9, then particle content), whatever the
 //! thread count.
 
+pub mod breaks;
 pub mod orbits;
 pub mod report;
 pub mod symmetry;
@@ -88,6 +89,9 @@ pub enum SpinFilter {
     Zero,
     /// Every spin.
     Any,
+    /// The model's own rule: spin zero, or the conformal spin of one of the
+    /// model's local terms (bosonic part, without extra spin).
+    Model,
 }
 
 /// Momentum conservation (models that give momenta).
@@ -106,6 +110,40 @@ pub enum ChargeFilter {
     Exactly(i64),
     /// Every charge.
     Any,
+    /// The model's own rule: |t.m| zero or the |allowed_charge| of one of
+    /// the model's terms (as the U(1) symmetries read `allowed_charge`).
+    Model,
+}
+
+/// The charges and spins the model's own terms allow
+/// ([`ChargeFilter::Model`], [`SpinFilter::Model`]).
+#[derive(Debug, Clone, Default)]
+struct ModelRules {
+    /// |charge| values.
+    charges: BTreeSet<i128>,
+    /// Twice the conformal spins, m^T K m.
+    twice_spins: BTreeSet<i128>,
+}
+
+impl ModelRules {
+    fn of(sys: &System) -> ModelRules {
+        let mut rules = ModelRules {
+            charges: [0].into(),
+            twice_spins: [0].into(),
+        };
+        for (spec, inv) in sys.model.terms.iter().zip(&sys.invariants.terms) {
+            if spec.allowed_charge.is_integer() {
+                let q: Option<i128> = spec.allowed_charge.to_integer().try_into().ok();
+                rules.charges.extend(q.map(|q| q.abs()));
+            }
+            let twice = (&inv.spin - &spec.extra_spin) * rational::int(2);
+            if inv.local && twice.is_integer() {
+                let t: Option<i128> = twice.to_integer().try_into().ok();
+                rules.twice_spins.extend(t);
+            }
+        }
+        rules
+    }
 }
 
 /// What to search for.
@@ -161,6 +199,8 @@ struct Space {
     k_rows: Vec<Vec<(usize, i64)>>,
     /// The model's symmetries in force at the point.
     sym: symmetry::InUse,
+    /// The charges and spins of the model's own terms.
+    rules: ModelRules,
 }
 
 impl Space {
@@ -194,6 +234,7 @@ impl Space {
             gram,
             k_rows,
             sym,
+            rules: ModelRules::of(sys),
         }
     }
 
@@ -529,9 +570,18 @@ fn passes(space: &Space, opts: &HuntOptions, m: &[i64], nz: &[usize]) -> bool {
     let charge_ok = match opts.charge {
         ChargeFilter::Any => true,
         ChargeFilter::Exactly(c) => q.abs() == (c as i128).abs(),
+        ChargeFilter::Model => space.rules.charges.contains(&q.abs()),
+    };
+    let spin_ok = || match opts.spin {
+        SpinFilter::Any => true,
+        SpinFilter::Zero => space.twice_spin_sparse(m, nz) == 0,
+        SpinFilter::Model => space
+            .rules
+            .twice_spins
+            .contains(&space.twice_spin_sparse(m, nz)),
     };
     charge_ok
-        && !(opts.spin == SpinFilter::Zero && space.twice_spin_sparse(m, nz) != 0)
+        && spin_ok()
         && space.sym.passes_u1(m, nz)
         // A canonical placement touches the window's first wire.
         && space.window.touches_first(m)

@@ -151,6 +151,7 @@ fn filter_words(spin: SpinFilter, momentum: Option<MomentumFilter>) -> (String, 
         match spin {
             SpinFilter::Zero => "0".into(),
             SpinFilter::Any => "any".into(),
+            SpinFilter::Model => "model".into(),
         },
         momentum.map(|m| match m {
             MomentumFilter::Conserved => "conserved".into(),
@@ -202,7 +203,7 @@ impl HuntReport {
             bound_tolerance: BOUND_TOLERANCE,
             charge: match opts.charge {
                 ChargeFilter::Exactly(q) => Some(q),
-                ChargeFilter::Any => None,
+                ChargeFilter::Any | ChargeFilter::Model => None,
             },
             spin: spin_word,
             momentum: momentum_word,

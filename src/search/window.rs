@@ -141,12 +141,17 @@ impl Window {
     /// Canonical form of a vector over all fields of the system (a model
     /// term), or `None` when it does not fit in R consecutive wires.
     pub fn canonical_full(&self, m: &[i64]) -> Option<Vec<i64>> {
-        let c = if self.periodic {
+        self.canonical_full_signed(m).map(|c| c.0)
+    }
+
+    /// [`Window::canonical_full`] and whether the vector is minus a
+    /// translate of it.
+    pub fn canonical_full_signed(&self, m: &[i64]) -> Option<(Vec<i64>, bool)> {
+        if self.periodic {
             self.canonical_ring(m)
         } else {
             self.canonical_line(m, self.total)
-        };
-        c.map(|c| c.0)
+        }
     }
 
     /// Number of wires an operator touches (its support length), for a

@@ -31,6 +31,10 @@ pub struct PinnedLattice {
     smith: Smith,
     /// Infinite arrays: the span of the translates that do not wrap.
     window: Option<Box<PinnedLattice>>,
+    /// P by columns and the invariant factors, when every entry fits in
+    /// i64 (membership is then decided in i128, falling back to big
+    /// integers on overflow).
+    small: Option<(Vec<Vec<i64>>, Vec<i64>)>,
 }
 
 impl PinnedLattice {
@@ -65,10 +69,13 @@ impl PinnedLattice {
         } else {
             ZMat::from_i64(rows, n).transpose()
         };
+        let smith = smith(&a);
+        let small = small_form(&smith);
         PinnedLattice {
             n,
-            smith: smith(&a),
+            smith,
             window: None,
+            small,
         }
     }
 
@@ -80,7 +87,26 @@ impl PinnedLattice {
     /// v in span_Z (exact; see the module docs).
     pub fn contains(&self, v: &[i64]) -> bool {
         debug_assert_eq!(v.len(), self.n);
+        if let Some(found) = self.contains_small(v) {
+            return found;
+        }
         self.contains_big(&big(v))
+    }
+
+    /// [`PinnedLattice::contains`] in i128 over the non-zero entries of v;
+    /// None without the small form or on overflow.
+    fn contains_small(&self, v: &[i64]) -> Option<bool> {
+        let (cols, diag) = self.small.as_ref()?;
+        let mut y = vec![0i128; cols.first().map_or(0, |c| c.len())];
+        for (j, &x) in v.iter().enumerate().filter(|(_, x)| **x != 0) {
+            for (yi, &p) in y.iter_mut().zip(&cols[j]) {
+                *yi = yi.checked_add((p as i128).checked_mul(x as i128)?)?;
+            }
+        }
+        Some(y.iter().enumerate().all(|(i, yi)| match diag.get(i) {
+            Some(d) => yi % (*d as i128) == 0,
+            None => *yi == 0,
+        }))
     }
 
     fn contains_big(&self, v: &[BigInt]) -> bool {
@@ -188,4 +214,19 @@ fn evaluate(p: &[Vec<i64>], z: i64) -> Vec<BigInt> {
         }
     }
     v
+}
+
+/// P by columns and the invariant factors as i64, when they all fit.
+fn small_form(smith: &Smith) -> Option<(Vec<Vec<i64>>, Vec<i64>)> {
+    use num_traits::ToPrimitive;
+    let p = &smith.p;
+    let cols = (0..p.cols)
+        .map(|j| (0..p.rows).map(|i| p.at(i, j).to_i64()).collect())
+        .collect::<Option<Vec<Vec<i64>>>>()?;
+    let diag = smith
+        .diag
+        .iter()
+        .map(|d| d.to_i64().filter(|d| *d != 0))
+        .collect::<Option<Vec<i64>>>()?;
+    Some((cols, diag))
 }
