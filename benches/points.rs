@@ -1,7 +1,8 @@
 //! Per-point costs on a 32-field array with six term families
 //! (`benches/models/array32.toml`): building V and computing every
 //! dimension (what `dims` and every scan point do first), and one full
-//! second-order flow (with and without the pairs closure).
+//! second-order flow without the pairs closure (with it, the default, it
+//! is a `target:` bench below).
 //!
 //! The filling-1/3 demo (`flows/laughlin_third.toml`) as an infinite array
 //! (q-space, refined quadrature) against a periodic array of 64 wires, by
@@ -21,7 +22,8 @@
 //! strip (dense D), and of the filling-1/3 demo on a 16-wire ring and as an
 //! infinite array (32 quadrature points, with its check on 16), each also
 //! with the per-channel reference right-hand side the matrix products
-//! replaced. `integrator:` benches compare `ode_solvers`' two methods.
+//! replaced. `integrator:` benches compare the flow's own DOP853
+//! (`pinflow::math::dop853`) with `ode_solvers`' two methods.
 //! Both measure the thread's CPU time, not wall time (see [`ThreadCpu`]).
 //!
 //! The exact inverse of K (`exact inverse:` benches): an explicit model's
@@ -44,12 +46,19 @@ use pinflow::edges::{analyse, pins};
 use pinflow::flow::{Closure, Flow, FlowOptions};
 use pinflow::model::Model;
 
+/// A bundled model file (path from the repository root) with one line
+/// replaced (`from` must occur in it; pass `from == to` for the file as it
+/// is).
+fn variant(path: &str, from: &str, to: &str) -> System {
+    let path = format!("{}/{path}", env!("CARGO_MANIFEST_DIR"));
+    let text = std::fs::read_to_string(&path).expect("model file");
+    assert!(text.contains(from), "{path}: {from:?}");
+    System::new(Model::parse(&text.replace(from, to), &path).expect("model")).expect("system")
+}
+
+/// The 32-field benchmark array as it is (16-wire periodic ring).
 fn model() -> System {
-    System::load(Path::new(concat!(
-        env!("CARGO_MANIFEST_DIR"),
-        "/benches/models/array32.toml"
-    )))
-    .expect("bench model")
+    array32_as("16", "boundary = \"periodic\"\n")
 }
 
 fn dims_point(c: &mut Criterion) {
@@ -67,28 +76,26 @@ fn dims_point(c: &mut Criterion) {
     });
 }
 
+/// One flow of the benchmark array without the pairs closure (listed terms
+/// only); with it (the default) it is the `target: flow ring 16x2` bench.
 fn flow_point(c: &mut Criterion) {
     let sys = model();
     let point = sys.model.params.defaults().to_vec();
-    for closure in [Closure::None, Closure::Pairs] {
-        let opts = FlowOptions {
-            closure,
-            record: false,
-            ..FlowOptions::default()
-        };
-        let flow = Flow::new(&sys, opts);
-        let name = format!("flow: 32 fields, 6 terms, closure {closure:?}");
-        c.bench_function(&name, |b| b.iter(|| flow.run(&point).expect("flow")));
-    }
+    let opts = FlowOptions {
+        closure: Closure::None,
+        record: false,
+        ..FlowOptions::default()
+    };
+    let flow = Flow::new(&sys, opts);
+    c.bench_function("flow: 32 fields, 6 terms, closure None", |b| {
+        b.iter(|| flow.run(&point).expect("flow"))
+    });
 }
 
 /// The filling-1/3 demo with another number of wires.
 fn third(wires: &str) -> System {
-    let path = concat!(env!("CARGO_MANIFEST_DIR"), "/flows/laughlin_third.toml");
-    let text = std::fs::read_to_string(path).expect("demo model");
-    assert!(text.contains("wires = 8"));
-    let text = text.replace("wires = 8", &format!("wires = {wires}"));
-    System::new(Model::parse(&text, path).expect("model")).expect("system")
+    let to = format!("wires = {wires}");
+    variant("flows/laughlin_third.toml", "wires = 8", &to)
 }
 
 fn infinite_against_dense(c: &mut Criterion) {
@@ -214,14 +221,9 @@ fn thread_cpu() -> Duration {
 
 /// The benchmark array with its `wires`/`boundary` lines replaced.
 fn array32_as(wires: &str, boundary: &str) -> System {
-    let path = concat!(env!("CARGO_MANIFEST_DIR"), "/benches/models/array32.toml");
-    let text = std::fs::read_to_string(path).expect("bench model");
-    assert!(text.contains("wires = 16\nboundary = \"periodic\"\n"));
-    let text = text.replace(
-        "wires = 16\nboundary = \"periodic\"\n",
-        &format!("wires = {wires}\n{boundary}"),
-    );
-    System::new(Model::parse(&text, path).expect("model")).expect("system")
+    let to = format!("wires = {wires}\n{boundary}");
+    let from = "wires = 16\nboundary = \"periodic\"\n";
+    variant("benches/models/array32.toml", from, &to)
 }
 
 /// Issue 15's per-flow targets (module docs), with the matrix-product and
@@ -305,18 +307,20 @@ fn ring_rhs<'a>(
     (rhs, y)
 }
 
-/// Issue 15 item 2: `ode_solvers`' Dormand-Prince 5(4) against its
-/// DOP853 on the ring's flow equations (listed terms), from ell = 0 to the
+/// Issue 15 item 2: the flow's integrator (`pinflow::math::dop853`,
+/// error measured on the couplings and on D separately) against
+/// `ode_solvers`' Dormand-Prince 5(4) (the flow's integrator before) and its
+/// DOP853, on the ring's flow equations (listed terms), from ell = 0 to the
 /// first strong coupling, at the default tolerances (rtol 1e-8, atol
-/// 1e-12). Prints the accepted steps of each once.
+/// 1e-12). Prints the accepted steps and the ell reached of each once.
 fn integrators(c: &mut Criterion<ThreadCpu>) {
     let sys = model();
     let point = sys.model.params.defaults().to_vec();
     let flow = Flow::new(&sys, FlowOptions::default());
-    for name in ["Dopri5", "Dop853"] {
+    for name in ["Dopri5", "Dop853", "pinflow"] {
         let run = || integrate_ring(name, &sys, &flow, &point);
         let (steps, ell) = run();
-        eprintln!("integrator {name}: {steps} accepted steps to ell = {ell:.4}");
+        eprintln!("integrator {name}: {steps} accepted steps to ell = {ell:.10}");
         c.bench_function(
             &format!("integrator: ring flow to strong coupling, {name}"),
             |b| b.iter(run),
@@ -324,17 +328,29 @@ fn integrators(c: &mut Criterion<ThreadCpu>) {
     }
 }
 
+/// `ode_solvers`' view of the flow's equations.
+struct Ode<'a, 'b>(&'a mut pinflow::flow::rhs::FlowRhs<'b>);
+
+impl ode_solvers::System<f64, nalgebra::DVector<f64>> for Ode<'_, '_> {
+    fn system(&self, _x: f64, y: &nalgebra::DVector<f64>, dy: &mut nalgebra::DVector<f64>) {
+        self.0.derivative(y.as_slice(), dy.as_mut_slice());
+    }
+    fn solout(&mut self, x: f64, y: &nalgebra::DVector<f64>, _dy: &nalgebra::DVector<f64>) -> bool {
+        self.0.after_step(x, y.as_slice())
+    }
+}
+
 /// One integration of the ring's flow with `ode_solvers`' "Dopri5" (the
-/// flow's parameters) or "Dop853" (its default step control: no PI term,
-/// step ratio in [0.333, 6]): (accepted steps, ell of the last step).
+/// flow's former parameters), its "Dop853" (Hairer's step control: no PI
+/// term, step ratio in [0.333, 6]) or the flow's own "pinflow" stepper:
+/// (accepted steps, ell of the last step).
 fn integrate_ring(name: &str, sys: &System, flow: &Flow, point: &[f64]) -> (usize, f64) {
     use ode_solvers::dop_shared::OutputType;
     let (mut rhs, y) = ring_rhs(sys, flow, point);
     let (rtol, atol, end, out) = (1e-8, 1e-12, 40.0, OutputType::Sparse);
-    let ok = if name == "Dopri5" {
-        let (beta, fmin, fmax) = (0.04, 0.2, 10.0);
-        ode_solvers::Dopri5::from_param(
-            &mut rhs,
+    let ok = match name {
+        "Dopri5" => ode_solvers::Dopri5::from_param(
+            Ode(&mut rhs),
             0.0,
             end,
             0.0,
@@ -342,9 +358,9 @@ fn integrate_ring(name: &str, sys: &System, flow: &Flow, point: &[f64]) -> (usiz
             rtol,
             atol,
             0.9,
-            beta,
-            fmin,
-            fmax,
+            0.04,
+            0.2,
+            10.0,
             end,
             0.0,
             100_000,
@@ -352,11 +368,9 @@ fn integrate_ring(name: &str, sys: &System, flow: &Flow, point: &[f64]) -> (usiz
             out,
         )
         .integrate()
-        .is_ok()
-    } else {
-        let (beta, fmin, fmax) = (0.0, 0.333, 6.0);
-        ode_solvers::Dop853::from_param(
-            &mut rhs,
+        .is_ok(),
+        "Dop853" => ode_solvers::Dop853::from_param(
+            Ode(&mut rhs),
             0.0,
             end,
             0.0,
@@ -364,9 +378,9 @@ fn integrate_ring(name: &str, sys: &System, flow: &Flow, point: &[f64]) -> (usiz
             rtol,
             atol,
             0.9,
-            beta,
-            fmin,
-            fmax,
+            0.0,
+            0.333,
+            6.0,
             end,
             0.0,
             100_000,
@@ -374,10 +388,41 @@ fn integrate_ring(name: &str, sys: &System, flow: &Flow, point: &[f64]) -> (usiz
             out,
         )
         .integrate()
-        .is_ok()
+        .is_ok(),
+        _ => own_stepper(&mut rhs, y.as_slice(), end, rtol, atol),
     };
     assert!(ok && rhs.stop.is_some(), "{name} reached strong coupling");
     (rhs.steps, rhs.last_ell)
+}
+
+/// The flow's integration loop on one segment (as `src/flow/mod.rs` runs
+/// it): error groups couplings | D.
+fn own_stepper(
+    rhs: &mut pinflow::flow::rhs::FlowRhs,
+    y: &[f64],
+    end: f64,
+    rtol: f64,
+    atol: f64,
+) -> bool {
+    use pinflow::math::dop853::{Control, Dop853};
+    let mut dop = Dop853::new(y.len());
+    dop.set_groups(&[2 * rhs.channels.len(), y.len()]);
+    let control = Control {
+        rtol,
+        atol,
+        max_attempts: 100_000,
+    };
+    dop.start(&*rhs, 0.0, y, end, control);
+    loop {
+        match dop.step(&*rhs) {
+            Err(_) => return false,
+            Ok(done) => {
+                if rhs.after_step(dop.x(), dop.y()) || done {
+                    return true;
+                }
+            }
+        }
+    }
 }
 
 /// K = diag(1, -1) per wire on n fields.

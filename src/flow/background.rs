@@ -33,7 +33,10 @@
 //! M = sum_c c_c sum_t l_t l_t^T and N = sum_c c_c sum_t g_t g_t^T
 //! (c_c = -|y_c|^2/8, times the share on the Fourier layout) give
 //! dD = D M D - N with two matrix products (per q block, or once for the
-//! dense D) instead of one rank-one update per channel and translate. The
+//! dense D) instead of one rank-one update per channel and translate. On
+//! the Fourier layout every channel keeps its L(q) L(q)^H, stored like D,
+//! so its dimension is one dot product with D and M, N of all blocks are
+//! sums of those arrays (contiguous loops). The
 //! per-channel route ([`Background::dimension_and_feedback`]) is kept as the
 //! reference the products are tested against (`tests/rhs_products.rs`).
 //! Invariants: the dense feedback is symmetrised and each block's feedback
@@ -288,6 +291,12 @@ pub struct Work {
     t: DMatrix<f64>,
     /// D M D (dense only).
     r: DMatrix<f64>,
+    /// Fourier: M of every stored block, laid out like the state's D.
+    mq: Vec<f64>,
+    /// Fourier: N of every stored block.
+    nq: Vec<f64>,
+    /// Fourier: D times each block's share of the sum over q.
+    dw: Vec<f64>,
 }
 
 impl Background {
@@ -312,18 +321,26 @@ impl Background {
             Background::Fourier { cell, .. } => (2 * cell, cell),
         };
         let z = || DMatrix::zeros(rows, cols);
+        let q = match *self {
+            Background::Dense { .. } => 0,
+            Background::Fourier { .. } => self.len(),
+        };
         Work {
             m: z(),
             n: z(),
             t: z(),
             r: z(),
+            mq: vec![0.0; q],
+            nq: vec![0.0; q],
+            dw: vec![0.0; q],
         }
     }
 
     /// Bosonic dimension of every live channel into `dims[c]`, and the
     /// feedback of D into `ds` (added) as matrix products: `weight[c]` is
     /// |y_c|^2 (0 for channels that do not feed back), `outer[c]` the
-    /// channel's [`Outer`] (needed where `weight[c] > 0`).
+    /// channel's [`Outer`] (needed where `weight[c] > 0`; on the Fourier
+    /// layout every channel's is used for its dimension when present).
     #[allow(clippy::too_many_arguments)]
     pub fn evaluate(
         &self,
@@ -355,23 +372,95 @@ impl Background {
                 }
             }
             Background::Fourier { wires, cell } => {
-                for &c in live {
-                    dims[c] = 0.0;
-                }
-                let at = BlockAt { wires, cell };
-                for k in 0..half(wires) {
-                    let base = 2 * k * cell * cell;
-                    let block = &s[base..base + 2 * cell * cell];
-                    let any = at.accumulate(k, block, (channels, live, outer, weight), dims, work);
-                    if any {
-                        block_products(cell, block, &mut ds[base..base + 2 * cell * cell], work);
-                    }
-                }
-                for &c in live {
-                    dims[c] /= 2.0 * wires as f64;
-                }
+                let live = (channels, live, outer, weight);
+                fourier_evaluate(wires, cell, s, live, dims, ds, work);
             }
         }
+    }
+}
+
+/// The channels, the live ones among them, their outer products and their
+/// weights |y|^2, as [`Background::evaluate`] receives them.
+type Live<'a, 'c> = (
+    &'a [&'c Channel],
+    &'a [usize],
+    &'a [Option<Outer>],
+    &'a [f64],
+);
+
+/// [`Background::evaluate`] on the Fourier layout. Every stored block at
+/// once: with L L^H of a channel stored like D (interleaved (re, im),
+/// row-major blocks), Re L^H D(q) L is the plain dot product of the two
+/// real arrays, so a channel's dimension is one dot product with D
+/// weighted by each block's share (1/2W, twice for q and -q), and M, N of
+/// all blocks are sums of the channels' arrays: contiguous loops the
+/// compiler vectorises.
+fn fourier_evaluate(
+    wires: usize,
+    cell: usize,
+    s: &[f64],
+    (channels, live, outer, weight): Live<'_, '_>,
+    dims: &mut [f64],
+    ds: &mut [f64],
+    work: &mut Work,
+) {
+    let size = 2 * cell * cell;
+    let blocks = half(wires);
+    for k in 0..blocks {
+        let share = qspace::weight(k, wires) / (2.0 * wires as f64);
+        let range = k * size..(k + 1) * size;
+        for (w, x) in work.dw[range.clone()].iter_mut().zip(&s[range]) {
+            *w = share * x;
+        }
+    }
+    work.mq.fill(0.0);
+    work.nq.fill(0.0);
+    let mut any = false;
+    for &c in live {
+        let Some(Outer::Fourier { ll, gg }) = &outer[c] else {
+            dims[c] = qspace::dimension(s, &channels[c].lq, wires, cell);
+            continue;
+        };
+        dims[c] = dot(&work.dw, ll);
+        if weight[c] > 0.0 {
+            let coef = -weight[c] * channels[c].share / 8.0;
+            axpy(&mut work.mq, ll, coef);
+            axpy(&mut work.nq, gg, coef);
+            any = true;
+        }
+    }
+    if !any {
+        return;
+    }
+    let t = work.t.as_mut_slice();
+    for k in 0..blocks {
+        let r = k * size..(k + 1) * size;
+        let (m, n) = (&work.mq[r.clone()], &work.nq[r.clone()]);
+        block_products(cell, &s[r.clone()], &mut ds[r], m, n, t);
+    }
+}
+
+/// sum_i a_i b_i, in four interleaved partial sums (so it vectorises).
+#[inline]
+fn dot(a: &[f64], b: &[f64]) -> f64 {
+    let mut acc = [0.0; 4];
+    let (ca, cb) = (a.chunks_exact(4), b.chunks_exact(4));
+    let tail: f64 = (ca.remainder().iter().zip(cb.remainder()))
+        .map(|(x, y)| x * y)
+        .sum();
+    for (x, y) in ca.zip(cb) {
+        for i in 0..4 {
+            acc[i] += x[i] * y[i];
+        }
+    }
+    (acc[0] + acc[1]) + (acc[2] + acc[3]) + tail
+}
+
+/// y += c x.
+#[inline]
+fn axpy(y: &mut [f64], x: &[f64], c: f64) {
+    for (u, v) in y.iter_mut().zip(x) {
+        *u += c * v;
     }
 }
 
@@ -431,67 +520,6 @@ fn block_outer(v: &[Complex64], blocks: usize, cell: usize) -> Vec<f64> {
     out
 }
 
-/// The channels, the live ones among them, their outer products and their
-/// weights |y|^2, as [`Background::evaluate`] receives them.
-type Live<'a, 'c> = (
-    &'a [&'c Channel],
-    &'a [usize],
-    &'a [Option<Outer>],
-    &'a [f64],
-);
-
-/// The shape of the Fourier layout, for the per-block steps.
-struct BlockAt {
-    wires: usize,
-    cell: usize,
-}
-
-impl BlockAt {
-    /// Block k: adds weight(k) L^H D(q) L to `dims[c]` of every live channel
-    /// (the same arithmetic as [`qspace::dimension`] and the reference
-    /// route), and builds M, N of the block in `work` (used as flat
-    /// interleaved row-major blocks, like the state). True when some channel
-    /// feeds back.
-    fn accumulate(
-        &self,
-        k: usize,
-        block: &[f64],
-        (channels, live, outer, weight): Live<'_, '_>,
-        dims: &mut [f64],
-        work: &mut Work,
-    ) -> bool {
-        let cell = self.cell;
-        let size = 2 * cell * cell;
-        let (m, n) = (work.m.as_mut_slice(), work.n.as_mut_slice());
-        m.fill(0.0);
-        n.fill(0.0);
-        let mut any = false;
-        for &c in live {
-            let lq = &channels[c].lq[k * cell..(k + 1) * cell];
-            let mut quad = 0.0;
-            for (a, la) in lq.iter().enumerate() {
-                let row = &block[2 * a * cell..2 * (a + 1) * cell];
-                let mut z = Complex64::new(0.0, 0.0);
-                for (d, l) in row.chunks_exact(2).zip(lq) {
-                    z += Complex64::new(d[0], d[1]) * l;
-                }
-                quad += (la.conj() * z).re;
-            }
-            dims[c] += qspace::weight(k, self.wires) * quad;
-            if let (true, Some(Outer::Fourier { ll, gg })) = (weight[c] > 0.0, &outer[c]) {
-                let coef = -weight[c] * channels[c].share / 8.0;
-                let (ll, gg) = (&ll[k * size..(k + 1) * size], &gg[k * size..(k + 1) * size]);
-                for ((mi, ni), (l, g)) in m.iter_mut().zip(n.iter_mut()).zip(ll.iter().zip(gg)) {
-                    *mi += coef * l;
-                    *ni += coef * g;
-                }
-                any = true;
-            }
-        }
-        any
-    }
-}
-
 /// Entry (a, b) of an interleaved row-major complex block.
 #[inline]
 fn at(x: &[f64], cell: usize, a: usize, b: usize) -> Complex64 {
@@ -499,11 +527,11 @@ fn at(x: &[f64], cell: usize, a: usize, b: usize) -> Complex64 {
     Complex64::new(x[i], x[i + 1])
 }
 
-/// ds += D M D - N for one q block (M, N in `work`, interleaved like the
-/// state). Only the upper triangle of D M D is formed; the lower one is its
-/// conjugate and the diagonal real, so the feedback is exactly Hermitian.
-fn block_products(cell: usize, d: &[f64], ds: &mut [f64], work: &mut Work) {
-    let (m, n, t) = (work.m.as_slice(), work.n.as_slice(), work.t.as_mut_slice());
+/// ds += D M D - N for one q block (M, N, and the scratch t for D M,
+/// interleaved like the state). Only the upper triangle of D M D is formed;
+/// the lower one is its conjugate and the diagonal real, so the feedback is
+/// exactly Hermitian.
+fn block_products(cell: usize, d: &[f64], ds: &mut [f64], m: &[f64], n: &[f64], t: &mut [f64]) {
     for a in 0..cell {
         for b in 0..cell {
             let z: Complex64 = (0..cell)

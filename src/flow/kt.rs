@@ -28,7 +28,7 @@
 use serde::Serialize;
 
 use super::rhs::FlowRhs;
-use super::{run_segment, strong_result, FlowOptions, Integrated, Outcome};
+use super::{run_segment, stepper, strong_result, FlowOptions, Integrated, Outcome};
 use crate::flow::background::Background;
 use crate::flow::rhs::Stop;
 
@@ -163,19 +163,20 @@ fn extend(rhs: &mut FlowRhs, integrated: Integrated, opts: &FlowOptions) -> (Int
     rhs.stop = None;
     let mut y = integrated.state.clone();
     let mut start = integrated.ell_end;
+    let mut dop = stepper(rhs);
     while start < ELL_CAP {
         let end = (2.0 * start.max(opts.ell_max)).min(ELL_CAP);
         rhs.last_ell = start;
-        let Ok((state, model)) = run_segment(rhs, y.clone(), start, end, opts) else {
+        if run_segment(rhs, &mut dop, y.as_slice(), start, end, opts).is_err() {
             break;
-        };
-        y = state;
+        }
+        y.as_mut_slice().copy_from_slice(dop.y());
         if let Some(Stop::Strong {
             ell_before,
             ell_after,
         }) = rhs.stop
         {
-            return (strong_result(rhs, &model, y, ell_before, ell_after), end);
+            return (strong_result(rhs, &mut dop, y, ell_before, ell_after), end);
         }
         if !y.iter().all(|x| x.is_finite()) {
             break;

@@ -1,6 +1,6 @@
 //! Second-order ("one-loop") RG flow of competing cosine couplings together
-//! with the renormalised fixed point, integrated with the Dormand-Prince
-//! 5(4) method of `ode_solvers`.
+//! with the renormalised fixed point, integrated with DOP853
+//! ([`crate::math::dop853`]).
 //!
 //! Method and limits [docs/physics.md section 3]: first order (the
 //! tree-level 2 - Delta) is exact for any V; the OPE and D-feedback terms
@@ -18,23 +18,20 @@
 //! D-orthogonal. (2) A term past its momentum cut-off no longer counts: a
 //! flow whose remaining terms have all decayed is "gapless" even if a
 //! cut-off term was still large when it stopped (it averages out).
-//! (3) The step control measures the local error as a root mean square
-//! over the whole state, the couplings and every stored entry of D. With
-//! many fields or quadrature points the couplings are a small share of that
-//! mean, so their own error may exceed `rtol` by up to
-//! sqrt(state size / couplings); ell* to many digits needs a lower `--rtol`.
+//! (3) The step control measures the local error of the couplings and of
+//! D separately (a root mean square over each; the larger counts), so the
+//! couplings meet `rtol` however many entries D has.
 //!
-//! Integrator choice (issue 15, measured with `cargo bench --bench points
-//! -- integrator`, thread CPU time): on the 32-field ring's flow to strong
-//! coupling `ode_solvers`' DOP853 takes 22 accepted steps where its
-//! Dormand-Prince 5(4) takes 92, and 0.65 ms against 1.08 ms. The flow
-//! still uses Dormand-Prince 5(4): ell* is located by bisection on the
-//! dense output of the last step, and only the 5(4) stepper of
-//! `ode_solvers` 0.6 offers one (its DOP853 writes dense output on a fixed
-//! grid only). Both steppers clone their state vectors on every step and
-//! compute the error norm over the whole state internally, so neither the
-//! allocations nor the norm (point 3) can be changed without replacing the
-//! stepper; that is left open.
+//! Integrator (issue 15; `cargo bench --bench points -- integrator`,
+//! benches/README.md): DOP853 of our own ([`crate::math::dop853`]) in place
+//! of `ode_solvers`' Dormand-Prince 5(4), which on the 32-field ring's flow
+//! took 92 accepted steps where DOP853 takes 22-23. The flow's loop
+//! (`run_segment`) allocates nothing per step: the stepper's work space is
+//! sized once per flow, the right-hand side has its own scratch, and the
+//! stop hook ([`rhs::FlowRhs::after_step`]) only records samples when a
+//! trajectory is asked for. ell* is located by bisection on DOP853's 7th
+//! order dense output of the last step, prepared only for that step (three
+//! more evaluations).
 //!
 //! Organisation: [`channels`] builds the exact plan (which couplings can
 //! flow, OPE table), [`background`] stores D, [`rhs`] holds the equations
@@ -58,13 +55,11 @@ pub mod stages;
 mod translates;
 
 use nalgebra::DVector;
-use ode_solvers::continuous_output_model::ContinuousOutputModel;
-use ode_solvers::dop_shared::OutputType;
-use ode_solvers::Dopri5;
 use serde::Serialize;
 
 use crate::core::system::{EvalPath, System};
 use crate::error::{Error, InputError};
+use crate::math::dop853::{Control, Dop853};
 use crate::math::rational::fmt_rational;
 use background::Background;
 use channels::{Channel, Origin, Plan};
@@ -962,6 +957,7 @@ fn integrate(
     opts: &FlowOptions,
     ell0: f64,
 ) -> Integrated {
+    let mut dop = stepper(rhs);
     let mut start = ell0;
     for end in breakpoints(ell_k, ell0, opts.ell_max) {
         for (c, k) in ell_k.iter().enumerate() {
@@ -973,19 +969,16 @@ fn integrate(
             continue;
         }
         rhs.last_ell = start;
-        let (state, model) = match run_segment(rhs, y.clone(), start, end, opts) {
-            Err(ell) => {
-                let message = format!("integration failed at ell = {ell:.6}");
-                return Integrated::ended(Outcome::Failed, ell, y, Some(message));
-            }
-            Ok(done) => done,
-        };
-        y = state;
+        if let Err(ell) = run_segment(rhs, &mut dop, y.as_slice(), start, end, opts) {
+            let message = format!("integration failed at ell = {ell:.6}");
+            return Integrated::ended(Outcome::Failed, ell, y, Some(message));
+        }
+        y.as_mut_slice().copy_from_slice(dop.y());
         match rhs.stop {
             Some(Stop::Strong {
                 ell_before,
                 ell_after,
-            }) => return strong_result(rhs, &model, y, ell_before, ell_after),
+            }) => return strong_result(rhs, &mut dop, y, ell_before, ell_after),
             Some(Stop::Decayed { ell }) => {
                 return Integrated::ended(Outcome::Gapless, ell, y, None)
             }
@@ -1000,67 +993,56 @@ fn integrate(
     Integrated::ended(Outcome::Undecided, opts.ell_max, y, None)
 }
 
-type Dense = ContinuousOutputModel<f64, DVector<f64>>;
+/// The integrator of a flow's equations, its work space sized once: the
+/// error is measured on the couplings and on D separately, the larger
+/// counts (see [`crate::math::dop853`]; docs/physics.md section 3).
+fn stepper(rhs: &FlowRhs) -> Dop853 {
+    let n = rhs.state_len();
+    let mut dop = Dop853::new(n);
+    dop.set_groups(&[2 * rhs.channels.len(), n]);
+    dop
+}
 
-/// One segment; returns the final state and the dense-output model, or the
-/// ell at which the integrator gave up.
+/// One segment from `y` at `start` to `end`, or until the stop hook
+/// ([`FlowRhs::after_step`]) ends it; the state reached is `dop.y()`. Err:
+/// the ell at which the integrator gave up.
 fn run_segment(
     rhs: &mut FlowRhs,
-    y: DVector<f64>,
+    dop: &mut Dop853,
+    y: &[f64],
     start: f64,
     end: f64,
     opts: &FlowOptions,
-) -> Result<(DVector<f64>, Dense), f64> {
-    let mut solver = Dopri5::from_param(
-        rhs,
-        start,
-        end,
-        0.0,
-        y,
-        opts.rtol,
-        opts.atol,
-        0.9,
-        0.04,
-        0.2,
-        10.0,
-        end - start,
-        0.0,
-        opts.max_steps,
-        u32::MAX,
-        OutputType::Continuous,
-    );
-    let mut model = Dense::default();
-    match solver.integrate_with_continuous_output_model(&mut model) {
-        Ok(_) => {
-            let last = solver.y_out().last().cloned().ok_or(start)?;
-            Ok((last, model))
+) -> Result<(), f64> {
+    let control = Control {
+        rtol: opts.rtol,
+        atol: opts.atol,
+        max_attempts: u64::from(opts.max_steps),
+    };
+    dop.start(&*rhs, start, y, end, control);
+    loop {
+        let done = dop.step(&*rhs).map_err(|e| e.x())?;
+        if rhs.after_step(dop.x(), dop.y()) || done {
+            return Ok(());
         }
-        Err(e) => Err(failure_ell(&e, start)),
     }
 }
 
-fn failure_ell(e: &ode_solvers::dop_shared::IntegrationError, start: f64) -> f64 {
-    use ode_solvers::dop_shared::IntegrationError as E;
-    match e {
-        E::MaxNumStepReached { x, .. }
-        | E::StepSizeUnderflow { x }
-        | E::StiffnessDetected { x } => *x,
-        #[allow(unreachable_patterns)]
-        _ => start,
-    }
-}
-
-/// Locate ell* inside the last step by bisection on the dense output.
+/// Locate ell* inside the last step by bisection on its dense output
+/// (DOP853's own, 7th order).
 fn strong_result(
     rhs: &FlowRhs,
-    model: &Dense,
+    dop: &mut Dop853,
     y_end: DVector<f64>,
     lo: f64,
     hi: f64,
 ) -> Integrated {
-    let above = |ell: f64| -> Option<(usize, f64)> {
-        let y = model.evaluate(ell)?;
-        rhs.strongest(y.as_slice())
+    dop.prepare_dense(rhs);
+    let mut at = vec![0.0; y_end.len()];
+    let mut above = |ell: f64| -> Option<(usize, f64)> {
+        dop.dense(ell, &mut at)
+            .then(|| rhs.strongest(&at))
+            .flatten()
     };
     let (mut a, mut b) = (lo, hi);
     for _ in 0..60 {
@@ -1078,7 +1060,11 @@ fn strong_result(
         .or_else(|| rhs.strongest(y_end.as_slice()))
         .map(|(c, _)| c);
     // Report the state at ell*, not at the end of the last step.
-    let y_end = model.evaluate(b).unwrap_or(y_end);
+    let y_end = if dop.dense(b, &mut at) {
+        DVector::from_vec(at)
+    } else {
+        y_end
+    };
     let spinful = winner.is_some_and(|w| !rhs.channels[w].null());
     Integrated {
         outcome: if spinful {

@@ -26,8 +26,7 @@
 
 use std::cell::RefCell;
 
-use nalgebra::DVector;
-use ode_solvers::System;
+use crate::math::dop853::Derivative;
 
 use super::background::{Background, Outer, Work};
 use super::channels::{Channel, OpeEntry};
@@ -48,6 +47,37 @@ pub enum Stop {
         /// Where it was detected.
         ell: f64,
     },
+}
+
+/// An OPE entry as the evaluation uses it (same arithmetic as the
+/// [`OpeEntry`] it comes from, to the bit: the conjugations become factors
+/// +-1 and the weight is halved exactly), so the loop has no branches.
+#[derive(Debug, Clone, Copy)]
+struct LiveOpe {
+    target: u32,
+    a: u32,
+    b: u32,
+    /// -1 when w_b enters conjugated.
+    b_sign: f64,
+    /// -1 when the product is conjugated.
+    p_sign: f64,
+    /// weight / 2.
+    half_weight: f64,
+}
+
+impl LiveOpe {
+    fn of(e: &OpeEntry) -> LiveOpe {
+        let sign = |flip: bool| if flip { -1.0 } else { 1.0 };
+        // Channel indices are far below 2^32 (the plan is bounded).
+        LiveOpe {
+            target: e.target as u32,
+            a: e.a as u32,
+            b: e.b as u32,
+            b_sign: sign(e.b_conj),
+            p_sign: sign(e.conj),
+            half_weight: 0.5 * e.weight,
+        }
+    }
 }
 
 /// One recorded point of the trajectory.
@@ -96,12 +126,13 @@ pub struct FlowRhs<'a> {
     /// Infinite arrays: the in-flow quadrature estimate, advanced at every
     /// accepted step (see [`super::qtrack`]); None otherwise.
     pub q_track: Option<super::qtrack::Tracker>,
-    /// Precomputed outer products of the null channels.
+    /// Precomputed outer products of the null channels (of every channel
+    /// when D is carried in q-space).
     outer: Vec<Option<Outer>>,
     /// Active channels of the current segment.
     live: Vec<usize>,
     /// OPE entries among active channels of the current segment.
-    live_ope: Vec<OpeEntry>,
+    live_ope: Vec<LiveOpe>,
     /// Channels whose amplitude is kept real.
     real: Vec<usize>,
     /// Dense D with few translates feeding back: the rank-one updates cost
@@ -138,9 +169,12 @@ impl<'a> FlowRhs<'a> {
             reference: vec![0.0; bg.scratch_len()],
         });
         let null: Vec<bool> = channels.iter().map(|c| c.null()).collect();
+        // On the Fourier layout every channel's L L^H gives its dimension
+        // (see `Background::evaluate`); elsewhere only null channels need one.
+        let fourier = matches!(bg, Background::Fourier { .. });
         let outer = channels
             .iter()
-            .map(|c| c.null().then(|| bg.outer(c)))
+            .map(|c| (c.null() || fourier).then(|| bg.outer(c)))
             .collect();
         let real = (0..n).filter(|&c| channels[c].real_only()).collect();
         // A rank-one update costs ~n^2 per translate, the two products 2 n^3
@@ -190,7 +224,7 @@ impl<'a> FlowRhs<'a> {
             .ope
             .iter()
             .filter(|e| active[e.target] && active[e.a] && active[e.b])
-            .copied()
+            .map(LiveOpe::of)
             .collect();
     }
 
@@ -308,30 +342,25 @@ impl FlowRhs<'_> {
             dw[2 * c] += rate * w[2 * c];
             dw[2 * c + 1] += rate * w[2 * c + 1];
         }
-        let ope: Vec<OpeEntry> = self
+        let ope: Vec<LiveOpe> = self
             .ope
             .iter()
             .filter(|e| self.active[e.target] && self.active[e.a] && self.active[e.b])
-            .copied()
+            .map(LiveOpe::of)
             .collect();
         self.ope_terms(w, dw, &ope);
     }
 
     /// The OPE terms of `entries` (all among active channels), then the
     /// real-only channels' imaginary parts set to zero.
-    fn ope_terms(&self, w: &[f64], dw: &mut [f64], entries: &[OpeEntry]) {
+    fn ope_terms(&self, w: &[f64], dw: &mut [f64], entries: &[LiveOpe]) {
         for e in entries {
-            let (ar, ai) = (w[2 * e.a], w[2 * e.a + 1]);
-            let bi = if e.b_conj {
-                -w[2 * e.b + 1]
-            } else {
-                w[2 * e.b + 1]
-            };
-            let br = w[2 * e.b];
-            let (pr, pi) = (ar * br - ai * bi, ar * bi + ai * br);
-            let pi = if e.conj { -pi } else { pi };
-            dw[2 * e.target] -= 0.5 * e.weight * pr;
-            dw[2 * e.target + 1] -= 0.5 * e.weight * pi;
+            let (a, b, t) = (e.a as usize, e.b as usize, e.target as usize);
+            let (ar, ai) = (w[2 * a], w[2 * a + 1]);
+            let (br, bi) = (w[2 * b], e.b_sign * w[2 * b + 1]);
+            let (pr, pi) = (ar * br - ai * bi, e.p_sign * (ar * bi + ai * br));
+            dw[2 * t] -= e.half_weight * pr;
+            dw[2 * t + 1] -= e.half_weight * pi;
         }
         for &c in &self.real {
             dw[2 * c + 1] = 0.0;
@@ -339,39 +368,43 @@ impl FlowRhs<'_> {
     }
 }
 
-impl System<f64, DVector<f64>> for &mut FlowRhs<'_> {
-    fn system(&self, _ell: f64, y: &DVector<f64>, dy: &mut DVector<f64>) {
+impl Derivative for FlowRhs<'_> {
+    fn eval(&self, _ell: f64, y: &[f64], dy: &mut [f64]) {
         if self.reference {
-            self.derivative_reference(y.as_slice(), dy.as_mut_slice());
+            self.derivative_reference(y, dy);
         } else {
-            self.derivative(y.as_slice(), dy.as_mut_slice());
+            self.derivative(y, dy);
         }
     }
+}
 
-    fn solout(&mut self, ell: f64, y: &DVector<f64>, _dy: &DVector<f64>) -> bool {
-        let rhs: &mut FlowRhs = self;
-        rhs.steps += 1;
-        let ys = y.as_slice();
-        if rhs.record {
-            rhs.record_sample(ell, ys);
+impl FlowRhs<'_> {
+    /// The stop hook, after every accepted step at `ell` with state `y`:
+    /// counts and records the step, and returns true (setting `stop`) when
+    /// a coupling reached y_strong or every coupling decayed, or (without
+    /// `stop`) when the state is no longer finite.
+    pub fn after_step(&mut self, ell: f64, y: &[f64]) -> bool {
+        self.steps += 1;
+        if self.record {
+            self.record_sample(ell, y);
         }
-        if let Some(mut track) = rhs.q_track.take() {
-            track.step(rhs, ell, ys);
-            rhs.q_track = Some(track);
+        if let Some(mut track) = self.q_track.take() {
+            track.step(self, ell, y);
+            self.q_track = Some(track);
         }
-        let before = rhs.last_ell;
-        rhs.last_ell = ell;
-        if rhs.strongest(ys).is_some_and(|(_, g)| g >= rhs.y_strong) {
-            rhs.stop = Some(Stop::Strong {
+        let before = self.last_ell;
+        self.last_ell = ell;
+        if self.strongest(y).is_some_and(|(_, g)| g >= self.y_strong) {
+            self.stop = Some(Stop::Strong {
                 ell_before: before,
                 ell_after: ell,
             });
             return true;
         }
-        if rhs.decayed(ys) {
-            rhs.stop = Some(Stop::Decayed { ell });
+        if self.decayed(y) {
+            self.stop = Some(Stop::Decayed { ell });
             return true;
         }
-        !ys.iter().all(|x| x.is_finite())
+        !y.iter().all(|x| x.is_finite())
     }
 }

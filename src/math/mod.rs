@@ -7,12 +7,15 @@
 //! forms ([`reduce`]), the enumeration of lattice points in an ellipsoid
 //! ([`ellipsoid`]), and double-double arithmetic with the few dense
 //! symmetric-matrix routines the accurate fixed-point route needs
-//! ([`ddouble`]: Cholesky, triangular inverse, Jacobi eigen-solver).
+//! ([`ddouble`]: Cholesky, triangular inverse, Jacobi eigen-solver), and
+//! the DOP853 Runge-Kutta integrator with grouped error norm and dense
+//! output ([`dop853`]).
 //! Nothing here knows about models or fields; nothing here imports from
 //! outside `math/`.
 
 pub mod bareiss;
 pub mod ddouble;
+pub mod dop853;
 pub mod echelon;
 pub mod ellipsoid;
 pub mod lll;
