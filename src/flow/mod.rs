@@ -1020,10 +1020,39 @@ fn run_segment(
         max_attempts: u64::from(opts.max_steps),
     };
     dop.start(&*rhs, start, y, end, control);
+    // Only a recorded trajectory needs samples inside the steps.
+    let mut within = Vec::new();
     loop {
         let done = dop.step(&*rhs).map_err(|e| e.x())?;
+        if rhs.record {
+            record_within_step(rhs, dop, &mut within);
+        }
         if rhs.after_step(dop.x(), dop.y()) || done {
             return Ok(());
+        }
+    }
+}
+
+/// Largest spacing in ell of a recorded trajectory's samples.
+const SAMPLE_SPACING: f64 = 0.1;
+
+/// Samples inside the last accepted step from its dense output, so that a
+/// recorded trajectory (figures, JSON `trajectory`) follows the flow
+/// smoothly although DOP853 takes long steps: at most [`SAMPLE_SPACING`]
+/// apart. The step's end point is recorded by the stop hook.
+fn record_within_step(rhs: &mut FlowRhs, dop: &mut Dop853, at: &mut Vec<f64>) {
+    let (a, b) = (dop.x_old(), dop.x());
+    let pieces = ((b - a) / SAMPLE_SPACING).ceil();
+    if !(pieces > 1.0 && pieces < 1e4) {
+        return;
+    }
+    dop.prepare_dense(&*rhs);
+    at.resize(dop.y().len(), 0.0);
+    let n = pieces as usize;
+    for j in 1..n {
+        let ell = a + (b - a) * j as f64 / n as f64;
+        if dop.dense(ell, at) {
+            rhs.record_sample(ell, at);
         }
     }
 }

@@ -264,7 +264,7 @@ impl<'a> FlowRhs<'a> {
             })
     }
 
-    fn record_sample(&mut self, ell: f64, y: &[f64]) {
+    pub(super) fn record_sample(&mut self, ell: f64, y: &[f64]) {
         let n = self.channels.len();
         let couplings = (0..n).map(|c| self.coupling(y, c)).collect();
         let dimensions = (0..n).map(|c| self.dimension(y, c)).collect();
