@@ -1472,3 +1472,31 @@ fn regression_non_finite_s_ends_the_jacobi_iteration_at_once() {
     assert!(search::hunt(&sys, &[], &hunt).is_err());
     assert!(start.elapsed() < Duration::from_secs(1), "refused slowly");
 }
+
+/// Found by the fuzz run (seed 5103, kind b, case 188238): with V =
+/// diag(1e-12, 1e12, 1e-12) the hunt ellipsoid is about 1e6 long in one
+/// direction, the volume and probe estimates stayed below the limit 2e4,
+/// and the search enumerated 2.9 million points (35 s); the tree estimate
+/// itself then took as long (it weighed a 1e6-wide interval on every
+/// probe). The estimate now returns such a width at once as a lower bound,
+/// so the search is refused within a fraction of a second (and an unforced
+/// search also stops at 4 times its limit in points visited).
+#[test]
+fn regression_a_needle_shaped_hunt_ellipsoid_stops_at_its_limit() {
+    let text = "[fields]\nK = [[-1, 0, 1], [0, -1, 1], [1, 1, -1]]\ncharge = [3, 2, 2]\n\
+                V = [[1e-12, 0.0, 0.0], [0.0, 1e12, 0.0], [0.0, 0.0, 1e-12]]\n";
+    let sys = System::new(Model::parse(text, "fuzz.toml").expect("model")).expect("system");
+    let start = Instant::now();
+    let hunt = HuntOptions {
+        max_dim: 1.0,
+        charge: ChargeFilter::Any,
+        spin: SpinFilter::Any,
+        limit: 2e4,
+        ..HuntOptions::default()
+    };
+    let msg = search::hunt(&sys, &[], &hunt)
+        .expect_err("refused")
+        .to_string();
+    assert!(msg.contains("above the limit 2e4"), "{msg}");
+    assert!(start.elapsed() < Duration::from_secs(2), "refused slowly");
+}

@@ -78,6 +78,12 @@ pub const MAX_LISTED: usize = 1_000_000;
 pub const FORCED_MAX_LISTED: usize = 4_000_000;
 /// Points within the bound between two progress reports.
 const PROGRESS_EVERY: u64 = 1 << 20;
+
+/// An unforced search stops once it has visited this many times the limit
+/// in lattice points: the estimate can miss ellipsoids that are very long
+/// in a few directions (a nearly null V), and the limit bounds the work,
+/// not only its estimate.
+const LIMIT_OVERRUN: f64 = 4.0;
 /// Random probes of the tree estimate (fixed seed).
 const PROBES: usize = 2048;
 const PROBE_SEED: u64 = 0x0070_696e_666c_6f77;
@@ -506,8 +512,19 @@ fn enumerate(
     let mut kept: BTreeSet<Vec<i64>> = BTreeSet::new();
     let mut candidates = 0u64;
     let mut nz: Vec<usize> = Vec::with_capacity(space.t.len());
+    let (mut visited, mut overran) = (0u64, false);
+    let stop_at = if opts.force {
+        f64::INFINITY
+    } else {
+        LIMIT_OVERRUN * opts.limit
+    };
     let visit = ell
         .for_each(bound, |m, _| {
+            visited += 1;
+            if visited as f64 > stop_at {
+                overran = true;
+                return false;
+            }
             nz.clear();
             nz.extend((0..m.len()).filter(|&i| m[i] != 0));
             if space.half_form(m, &nz) > accept {
@@ -531,6 +548,9 @@ fn enumerate(
             true
         })
         .map_err(|e| Error::Numerical(format!("operator search: {e}")))?;
+    if overran {
+        return Err(overrun_error(space, opts, visited));
+    }
     if kept.len() > cap {
         let how = if opts.force {
             " (the bound of a forced search, which keeps its memory bounded)"
@@ -551,6 +571,19 @@ fn enumerate(
         candidates,
         examined: visit.examined,
     })
+}
+
+/// The refusal of an unforced search that visited more than
+/// [`LIMIT_OVERRUN`] times its limit although its estimate was below it.
+fn overrun_error(space: &Space, opts: &HuntOptions, visited: u64) -> Error {
+    cmd_error(
+        "--max-dim",
+        format!(
+            "the search passed {visited} lattice points, more than {LIMIT_OVERRUN} times the limit {:.0e} its estimate stayed below (the ellipsoid is very long in some direction: V is nearly singular at this point); narrow it with a smaller --max-dim{}, or pass --force to run it anyway",
+            opts.limit,
+            if space.window.array { " or --range" } else { "" }
+        ),
+    )
 }
 
 /// Most operators kept: `max_listed`, or with `force` the larger
