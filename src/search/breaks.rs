@@ -117,11 +117,9 @@ impl BreakCount {
     }
 }
 
-/// Points checked between two folds of [`tally`] (memory stays bounded).
-const TALLY_CHUNK: usize = 4096;
-
 /// The broken symmetries over `count` points (`point(i)` gives the i-th),
-/// checked in parallel a chunk at a time and counted in index order: terms
+/// checked one after the other (a scan prepares this before its thread
+/// pool exists) and counted in index order: terms
 /// in model order, each with its symmetries in model order, then the Z_n
 /// that V breaks. Without a Z_n only the first point is checked (the U(1)
 /// checks do not depend on it). Points where V is not valid are skipped
@@ -129,31 +127,21 @@ const TALLY_CHUNK: usize = 4096;
 pub fn tally(
     sys: &System,
     count: usize,
-    point: &(dyn Fn(usize) -> Vec<f64> + Sync),
+    point: &dyn Fn(usize) -> Vec<f64>,
 ) -> Result<Vec<BreakCount>, Error> {
-    use rayon::prelude::*;
     let has_zn = sys.model.symmetries.iter().any(|s| !s.is_u1());
     if sys.model.symmetries.is_empty() || count == 0 {
         return Ok(Vec::new());
     }
     let mut counts: Vec<BreakCount> = Vec::new();
     let checked = if has_zn { count } else { 1 };
-    let mut start = 0;
-    while start < checked {
-        let end = (start + TALLY_CHUNK).min(checked);
-        let found = (start..end)
-            .into_par_iter()
-            .map(|i| match broken_symmetries(sys, &point(i)) {
-                Ok(b) => Ok(Some((i, b))),
-                // Unphysical points (their flows say so) are not checked.
-                Err(Error::Input(_) | Error::Unphysical(_)) => Ok(None),
-                Err(e) => Err(e),
-            })
-            .collect::<Result<Vec<_>, Error>>()?;
-        for (i, b) in found.into_iter().flatten() {
-            add_point(&mut counts, sys, i, b);
+    for i in 0..checked {
+        match broken_symmetries(sys, &point(i)) {
+            Ok(b) => add_point(&mut counts, sys, i, b),
+            // Unphysical points (their flows say so) are not checked.
+            Err(Error::Input(_) | Error::Unphysical(_)) => {}
+            Err(e) => return Err(e),
         }
-        start = end;
     }
     if !has_zn {
         counts.iter_mut().for_each(|c| c.points = count);
