@@ -266,7 +266,10 @@ coupling = "y2"
     assert_eq!(notes.len(), 2, "{notes:#?}");
     assert!(notes[0].contains("\"bs_up\"") && notes[1].contains("\"bs_dn\""));
     for n in &notes {
-        assert!(n.contains("spin_flip") && n.contains("at 2 of the 3 points"), "{n}");
+        assert!(
+            n.contains("spin_flip") && n.contains("at 2 of the 3 points"),
+            "{n}"
+        );
         assert!(n.contains("y2=0.05"), "{n}");
     }
 }
