@@ -288,7 +288,7 @@ static STDIN_TEXT: std::sync::OnceLock<String> = std::sync::OnceLock::new();
 pub(crate) fn provenance(
     command: &str,
     model_path: &Path,
-    sys_names: &[String],
+    params: &crate::model::ParamSet,
     point: &[f64],
     options: serde_json::Value,
 ) -> Result<Provenance, Error> {
@@ -297,14 +297,16 @@ pub(crate) fn provenance(
         _ => std::fs::read(model_path).map_err(|e| Error::io(model_path, e))?,
     };
     let model = model_path.display().to_string();
-    let values = sys_names.iter().cloned().zip(point.iter().copied());
-    Ok(Provenance::for_model(
+    let values = params.names().iter().cloned().zip(point.iter().copied());
+    let mut p = Provenance::for_model(
         command,
         recorded_arguments(),
         (&model, &bytes),
         values,
         options,
-    ))
+    );
+    p.parameter_labels = params.labels_json();
+    Ok(p)
 }
 
 /// A provenance without a model (e.g. `merge`).
@@ -368,19 +370,9 @@ pub(crate) fn emit_report(
 }
 
 /// Write `run.json` into an output directory and add the provenance to
-/// its `summary.json`, when there is one.
+/// its `summary.json` (see [`output::provenance::stamp_dir`]).
 pub(crate) fn stamp_dir(dir: &Path, prov: &Provenance) -> Result<(), Error> {
-    output::write_atomic(&dir.join("run.json"), output::to_json(prov)?.as_bytes())?;
-    for name in ["summary.json", "convergence.json"] {
-        let summary = dir.join(name);
-        if !summary.is_file() {
-            continue;
-        }
-        let text = std::fs::read_to_string(&summary).map_err(|e| Error::io(&summary, e))?;
-        let stamped = output::provenance::stamp_json(&text, prov)?;
-        output::write_atomic(&summary, stamped.as_bytes())?;
-    }
-    Ok(())
+    output::provenance::stamp_dir(dir, prov)
 }
 
 /// `--figure-style`: how the figures look.
