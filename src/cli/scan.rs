@@ -211,7 +211,7 @@ pub(super) fn run_scan(args: ScanArgs) -> Result<(), Error> {
         .unwrap_or_else(|| default_dir(&args.point.model));
     output::check_output_dir(&dir, "--out")?;
     if let Some(r) = args.point.run_json.as_deref() {
-        super::common::check_run_json(r, &[args.point.model.as_path()], None)?;
+        super::common::check_run_json(r, &[args.point.model.as_path()], None, Some(&dir))?;
     }
     let Some(_lock) = prepare_dir(&dir, &scan.meta, &args)? else {
         return Ok(());
