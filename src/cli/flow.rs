@@ -134,7 +134,13 @@ pub(super) fn run(args: FlowArgs) -> Result<(), Error> {
         "flow": opts,
         "competitors": args.competitors.recorded(),
     }))?;
-    let prov = provenance("flow", &args.point.model, names, &point, options)?;
+    let prov = provenance(
+        "flow",
+        &args.point.model,
+        &sys.model.params,
+        &point,
+        options,
+    )?;
     let report = FlowReport::new(&sys.model.name, names, &point, result, opts)
         .with_labels(&sys.model.params)
         .with_symmetry_notes(&sys, &point)?;
