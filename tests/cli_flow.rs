@@ -369,8 +369,9 @@ fn generated_terms_on_an_open_array_name_signed_shifts() {
             let s: i64 = s.parse().unwrap();
             assert!(s.abs() <= 6, "{name}: shift past the open strip");
             let parents = t["parents"].as_str().unwrap();
+            let unit = if s.abs() == 1 { "wire" } else { "wires" };
             assert!(
-                parents.ends_with(&format!("shifted by {s} wires")),
+                parents.ends_with(&format!("shifted by {s} {unit}")),
                 "{name}: {parents}"
             );
             shifts.push(s);

@@ -129,7 +129,7 @@ impl ConvergenceReport {
             .collect();
         order.sort_by(|a, b| a.0.total_cmp(&b.0));
         let figure = LineScanFigure {
-            title: format!("{}: Delta against array size", self.model),
+            title: format!("{}: Δ against array size", self.model),
             x_name: "1/W (0 = infinite array)".to_string(),
             x_log: false,
             xs: order.iter().map(|o| o.0).collect(),
@@ -144,7 +144,7 @@ impl ConvergenceReport {
                 .collect(),
             bands: Vec::new(),
             caption: format!(
-                "Bare scaling dimensions of {} arrays of W wires at {}; Delta = 2 is marginal.",
+                "Bare scaling dimensions of {} arrays of W wires at {}; Δ = 2 is marginal.",
                 self.boundary,
                 output::labelled_point(&self.parameters, &self.parameter_labels)
             ),

@@ -839,7 +839,10 @@ fn parents_of(plan: &Plan, ch: &Channel) -> Option<String> {
             Some(if shift == 0 {
                 format!("{na} {op} {nb}")
             } else {
-                format!("{na} {op} {nb} shifted by {shift} wires")
+                {
+                    let unit = if shift.abs() == 1 { "wire" } else { "wires" };
+                    format!("{na} {op} {nb} shifted by {shift} {unit}")
+                }
             })
         }
     }
