@@ -187,6 +187,55 @@ fn a_forced_hunt_keeps_a_bounded_number_of_operators() {
     );
 }
 
+#[test]
+fn an_unforced_hunt_stops_at_four_times_its_limit_when_the_estimate_misses() {
+    // The ellipsoid of a nearly singular V (entries 1e-6 and 1e6; invented
+    // demo values on the K of fuzz seed 5103) is long in one direction and
+    // a few points wide in another: at max_dim 32 its work estimate is
+    // about 1.3e4 points (probes of the search tree, fixed seed) while
+    // about 8.3e4 lie inside. With the limit 1.4e4 the estimate passes, and
+    // the search must stop at LIMIT_OVERRUN = 4 times the limit
+    // (src/search/mod.rs) with the refusal that names --max-dim and --force.
+    let text = "[fields]\nK = [[-1, 0, 1], [0, -1, 1], [1, 1, -1]]\ncharge = [3, 2, 2]\n\
+                V = [[1e-6, 0.0, 0.0], [0.0, 1e6, 0.0], [0.0, 0.0, 1e-6]]\n";
+    let sys = system(text);
+    let opts = HuntOptions {
+        max_dim: 32.0,
+        charge: ChargeFilter::Any,
+        spin: SpinFilter::Any,
+        momentum: Some(MomentumFilter::Any),
+        limit: 1.4e4,
+        forced_max_listed: 1_000_000,
+        ..HuntOptions::default()
+    };
+    let forced = search::hunt(
+        &sys,
+        &[],
+        &HuntOptions {
+            force: true,
+            ..opts.clone()
+        },
+    )
+    .expect("a forced search runs");
+    assert!(
+        forced.estimate.points() < opts.limit,
+        "{:?}",
+        forced.estimate
+    );
+    assert!(
+        forced.candidates as f64 > 4.0 * opts.limit,
+        "{}",
+        forced.candidates
+    );
+    let e = input_error(search::hunt(&sys, &[], &opts).expect_err("stopped"));
+    assert_eq!(e.key, "--max-dim");
+    assert!(
+        e.message.contains("more than 4 times the limit 1e4") && e.message.contains("--force"),
+        "{}",
+        e.message
+    );
+}
+
 // ------------------------------------------------------------ edges and dims
 
 #[test]
