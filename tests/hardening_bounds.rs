@@ -352,3 +352,80 @@ fn the_pairs_closure_reports_its_progress_over_the_pairs_of_terms() {
         "the closure generated terms"
     );
 }
+
+// ------------------------------------------------------------ flow progress
+
+#[test]
+fn a_flow_reports_its_progress_over_ell_and_ends_the_same() {
+    // The 8-wire strip demo: with the hook called after every accepted step
+    // (interval zero), it sees ell rising up to at most ell_max, at most
+    // once per step, and the result is bit for bit the one without it.
+    let sys = System::load(&demo("laughlin_third_strip.toml")).unwrap();
+    let point = sys.model.params.defaults().to_vec();
+    let opts = FlowOptions::resolve(&sys.model, &FlowOverrides::default()).unwrap();
+    let flow = pinflow::flow::Flow::new(&sys, opts);
+    let plain = flow.run(&point).unwrap();
+    let seen = std::rc::Rc::new(std::cell::RefCell::new(Vec::new()));
+    let inside = std::rc::Rc::clone(&seen);
+    let hook = Box::new(move |ell: f64, max: f64| inside.borrow_mut().push((ell, max)));
+    let watched = flow
+        .run_with_progress(&point, std::time::Duration::ZERO, hook)
+        .unwrap();
+    assert_eq!(
+        serde_json::to_string(&plain).unwrap(),
+        serde_json::to_string(&watched).unwrap()
+    );
+    let seen = seen.borrow();
+    assert!(
+        !seen.is_empty() && seen.len() <= watched.steps,
+        "{}",
+        seen.len()
+    );
+    assert!(seen
+        .iter()
+        .all(|&(ell, max)| ell > 0.0 && ell <= max && max == 40.0));
+    assert!(seen.windows(2).all(|w| w[0].0 <= w[1].0), "{seen:?}");
+    // Outside run_with_progress no hook is left behind.
+    assert_eq!(
+        serde_json::to_string(&flow.run(&point).unwrap()).unwrap(),
+        serde_json::to_string(&plain).unwrap()
+    );
+}
+
+#[test]
+fn a_flow_off_a_terminal_prints_plain_progress_lines() {
+    // The 32-wire strip (64 fields: about 0.1 s) with --progress-every
+    // 0.002 and stderr piped: plain lines "flow: N/4000 ell/100 (...)";
+    // none with 0; standard output identical either way.
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join("s.toml"), strip(32, "open")).unwrap();
+    let run = |every: &str| {
+        let o = Command::cargo_bin("pinflow")
+            .unwrap()
+            .current_dir(dir.path())
+            .args([
+                "flow",
+                "s.toml",
+                "--format",
+                "json",
+                "--progress-every",
+                every,
+            ])
+            .output()
+            .unwrap();
+        assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+        (
+            common::without_provenance(&o.stdout),
+            String::from_utf8_lossy(&o.stderr).to_string(),
+        )
+    };
+    let (with, text) = run("0.002");
+    let lines: Vec<&str> = text.lines().filter(|l| l.starts_with("flow: ")).collect();
+    assert!(!lines.is_empty(), "{text}");
+    for l in &lines {
+        assert!(l.contains("/4000 ell/100 (") && l.contains(" left"), "{l}");
+    }
+    let (without, quiet) = run("0");
+    assert!(!quiet.contains("flow: "), "{quiet}");
+    assert_eq!(with, without);
+}
