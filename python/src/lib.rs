@@ -187,7 +187,8 @@ impl Model {
             let result = flow_once(sys, &point, &opts, comp)?;
             let names = sys.model.params.names();
             let report = FlowReport::new(&sys.model.name, names, &point, result, opts)
-                .with_labels(&sys.model.params);
+                .with_labels(&sys.model.params)
+                .with_symmetry_notes(sys, &point)?;
             check_flow(sys, &point, &report)?;
             if let Some(d) = &out {
                 report.write_dir(d)?;
