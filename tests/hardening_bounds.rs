@@ -187,6 +187,55 @@ fn a_forced_hunt_keeps_a_bounded_number_of_operators() {
     );
 }
 
+#[test]
+fn an_unforced_hunt_stops_at_four_times_its_limit_when_the_estimate_misses() {
+    // The ellipsoid of a nearly singular V (entries 1e-6 and 1e6; invented
+    // demo values on the K of fuzz seed 5103) is long in one direction and
+    // a few points wide in another: at max_dim 32 its work estimate is
+    // about 1.3e4 points (probes of the search tree, fixed seed) while
+    // about 8.3e4 lie inside. With the limit 1.4e4 the estimate passes, and
+    // the search must stop at LIMIT_OVERRUN = 4 times the limit
+    // (src/search/mod.rs) with the refusal that names --max-dim and --force.
+    let text = "[fields]\nK = [[-1, 0, 1], [0, -1, 1], [1, 1, -1]]\ncharge = [3, 2, 2]\n\
+                V = [[1e-6, 0.0, 0.0], [0.0, 1e6, 0.0], [0.0, 0.0, 1e-6]]\n";
+    let sys = system(text);
+    let opts = HuntOptions {
+        max_dim: 32.0,
+        charge: ChargeFilter::Any,
+        spin: SpinFilter::Any,
+        momentum: Some(MomentumFilter::Any),
+        limit: 1.4e4,
+        forced_max_listed: 1_000_000,
+        ..HuntOptions::default()
+    };
+    let forced = search::hunt(
+        &sys,
+        &[],
+        &HuntOptions {
+            force: true,
+            ..opts.clone()
+        },
+    )
+    .expect("a forced search runs");
+    assert!(
+        forced.estimate.points() < opts.limit,
+        "{:?}",
+        forced.estimate
+    );
+    assert!(
+        forced.candidates as f64 > 4.0 * opts.limit,
+        "{}",
+        forced.candidates
+    );
+    let e = input_error(search::hunt(&sys, &[], &opts).expect_err("stopped"));
+    assert_eq!(e.key, "--max-dim");
+    assert!(
+        e.message.contains("more than 4 times the limit 1e4") && e.message.contains("--force"),
+        "{}",
+        e.message
+    );
+}
+
 // ------------------------------------------------------------ edges and dims
 
 #[test]
@@ -302,4 +351,81 @@ fn the_pairs_closure_reports_its_progress_over_the_pairs_of_terms() {
         plan.channels.len() > plan.listed,
         "the closure generated terms"
     );
+}
+
+// ------------------------------------------------------------ flow progress
+
+#[test]
+fn a_flow_reports_its_progress_over_ell_and_ends_the_same() {
+    // The 8-wire strip demo: with the hook called after every accepted step
+    // (interval zero), it sees ell rising up to at most ell_max, at most
+    // once per step, and the result is bit for bit the one without it.
+    let sys = System::load(&demo("laughlin_third_strip.toml")).unwrap();
+    let point = sys.model.params.defaults().to_vec();
+    let opts = FlowOptions::resolve(&sys.model, &FlowOverrides::default()).unwrap();
+    let flow = pinflow::flow::Flow::new(&sys, opts);
+    let plain = flow.run(&point).unwrap();
+    let seen = std::rc::Rc::new(std::cell::RefCell::new(Vec::new()));
+    let inside = std::rc::Rc::clone(&seen);
+    let hook = Box::new(move |ell: f64, max: f64| inside.borrow_mut().push((ell, max)));
+    let watched = flow
+        .run_with_progress(&point, std::time::Duration::ZERO, hook)
+        .unwrap();
+    assert_eq!(
+        serde_json::to_string(&plain).unwrap(),
+        serde_json::to_string(&watched).unwrap()
+    );
+    let seen = seen.borrow();
+    assert!(
+        !seen.is_empty() && seen.len() <= watched.steps,
+        "{}",
+        seen.len()
+    );
+    assert!(seen
+        .iter()
+        .all(|&(ell, max)| ell > 0.0 && ell <= max && max == 40.0));
+    assert!(seen.windows(2).all(|w| w[0].0 <= w[1].0), "{seen:?}");
+    // Outside run_with_progress no hook is left behind.
+    assert_eq!(
+        serde_json::to_string(&flow.run(&point).unwrap()).unwrap(),
+        serde_json::to_string(&plain).unwrap()
+    );
+}
+
+#[test]
+fn a_flow_off_a_terminal_prints_plain_progress_lines() {
+    // The 32-wire strip (64 fields: about 0.1 s) with --progress-every
+    // 0.002 and stderr piped: plain lines "flow: N/4000 ell/100 (...)";
+    // none with 0; standard output identical either way.
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join("s.toml"), strip(32, "open")).unwrap();
+    let run = |every: &str| {
+        let o = Command::cargo_bin("pinflow")
+            .unwrap()
+            .current_dir(dir.path())
+            .args([
+                "flow",
+                "s.toml",
+                "--format",
+                "json",
+                "--progress-every",
+                every,
+            ])
+            .output()
+            .unwrap();
+        assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+        (
+            common::without_provenance(&o.stdout),
+            String::from_utf8_lossy(&o.stderr).to_string(),
+        )
+    };
+    let (with, text) = run("0.002");
+    let lines: Vec<&str> = text.lines().filter(|l| l.starts_with("flow: ")).collect();
+    assert!(!lines.is_empty(), "{text}");
+    for l in &lines {
+        assert!(l.contains("/4000 ell/100 (") && l.contains(" left"), "{l}");
+    }
+    let (without, quiet) = run("0");
+    assert!(!quiet.contains("flow: "), "{quiet}");
+    assert_eq!(with, without);
 }

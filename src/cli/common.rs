@@ -1,9 +1,10 @@
 //! What several commands share: the model and `--set` arguments, the flow
 //! flags, the output format, and writing to standard output or a file.
 
-use std::cell::Cell;
+use std::cell::{Cell, RefCell};
 use std::io::{IsTerminal, Write};
 use std::path::{Path, PathBuf};
+use std::rc::Rc;
 use std::time::{Duration, Instant};
 
 use clap::{Args, ValueEnum};
@@ -13,7 +14,7 @@ use crate::core::system::System;
 use crate::error::{Error, InputError};
 use crate::flow::channels::{self, Plan};
 use crate::flow::options::{Closure, FlowOverrides};
-use crate::flow::FlowOptions;
+use crate::flow::{Flow, FlowOptions, FlowResult};
 use crate::model::Model;
 use crate::output::provenance::Provenance;
 use crate::output::{self, Format};
@@ -446,9 +447,9 @@ struct Plain {
 impl Progress {
     /// `total` units of work (`unit`, e.g. "points"), `done` of them
     /// already done (a resumed scan).
-    pub(crate) fn new(total: u64, done: u64, unit: &'static str, every: u64) -> Progress {
-        let plain = (!std::io::stderr().is_terminal() && every > 0).then(|| Plain {
-            every: Duration::from_secs(every),
+    pub(crate) fn new(total: u64, done: u64, unit: &'static str, every: Duration) -> Progress {
+        let plain = (!std::io::stderr().is_terminal() && !every.is_zero()).then(|| Plain {
+            every,
             total,
             unit,
             label: Cell::new("progress"),
@@ -537,7 +538,7 @@ fn human_duration(secs: f64) -> String {
 /// The flow's plan ([`Plan::build`]). A pairs closure above its work limit
 /// (run only with `--force`) first says its estimate on stderr, then shows
 /// its progress over the pairs of listed terms ([`Progress`]).
-pub(crate) fn plan_with_progress(sys: &System, opts: &FlowOptions, every: u64) -> Plan {
+pub(crate) fn plan_with_progress(sys: &System, opts: &FlowOptions, every: Duration) -> Plan {
     let generate = opts.closure == Closure::Pairs;
     let range = opts.closure_range;
     let work = channels::closure_work(sys, generate, range);
@@ -563,4 +564,38 @@ pub(crate) fn plan_with_progress(sys: &System, opts: &FlowOptions, every: u64) -
         p.finish();
     }
     plan
+}
+
+/// Hundredths of ell: the unit of a flow's progress.
+const FLOW_UNITS: f64 = 100.0;
+
+/// Run one flow with its progress over ell ([`Flow::run_with_progress`]):
+/// a bar on a terminal once the flow has taken 0.2 s, or off a terminal a
+/// plain line every `every` (0: none).
+pub(crate) fn flow_with_progress(
+    flow: &Flow,
+    point: &[f64],
+    every: Duration,
+) -> Result<FlowResult, Error> {
+    if every.is_zero() && !std::io::stderr().is_terminal() {
+        return flow.run(point);
+    }
+    let total = (flow.opts.ell_max * FLOW_UNITS).ceil().clamp(1.0, 1e12) as u64;
+    let shared: Rc<RefCell<Option<Progress>>> = Rc::default();
+    let inside = Rc::clone(&shared);
+    let hook = Box::new(move |ell: f64, _ell_max: f64| {
+        let mut slot = inside.borrow_mut();
+        let p = slot.get_or_insert_with(|| {
+            let p = Progress::new(total, 0, "ell/100", every);
+            p.show("flow");
+            p
+        });
+        p.set(((ell * FLOW_UNITS).max(0.0) as u64).min(total));
+    });
+    let tick = every.min(Duration::from_millis(200));
+    let result = flow.run_with_progress(point, tick, hook);
+    if let Some(p) = shared.borrow_mut().take() {
+        p.finish();
+    }
+    result
 }

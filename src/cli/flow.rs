@@ -2,6 +2,7 @@
 //! its files.
 
 use std::path::PathBuf;
+use std::time::Duration;
 
 use clap::Args;
 
@@ -45,9 +46,11 @@ pub struct FlowArgs {
     #[arg(long)]
     pub force: bool,
     /// Off a terminal (a batch job's log), print one plain progress line of
-    /// a forced pairs closure to standard error every SECONDS (0: never).
-    #[arg(long, value_name = "SECONDS", default_value_t = 60)]
-    pub progress_every: u64,
+    /// a forced pairs closure and of the flow's integration (ell reached of
+    /// ell_max) to standard error every SECONDS (decimals allowed; 0: never).
+    /// On a terminal a long flow shows a bar instead.
+    #[arg(long, value_name = "SECONDS", default_value_t = 60.0, value_parser = parse_seconds)]
+    pub progress_every: f64,
 }
 
 /// Hunted competitors in the flow (`flow` and `scan`).
@@ -122,8 +125,10 @@ pub(super) fn run(args: FlowArgs) -> Result<(), Error> {
     let comp = args.competitors.resolve(&sys)?;
     let result = match comp {
         None => {
-            let plan = super::common::plan_with_progress(&sys, &opts, args.progress_every);
-            Flow::with_plan(&sys, plan, opts.clone()).run(&point)?
+            let every = Duration::from_secs_f64(args.progress_every);
+            let plan = super::common::plan_with_progress(&sys, &opts, every);
+            let flow = Flow::with_plan(&sys, plan, opts.clone());
+            super::common::flow_with_progress(&flow, &point, every)?
         }
         comp => flow_once(&sys, &point, &opts, comp)?,
     };
@@ -179,5 +184,15 @@ fn parse_plot_terms(s: &str) -> Result<PlotTerms, String> {
         n => n.parse::<usize>().map(PlotTerms::Largest).map_err(|_| {
             format!("expected `all`, `listed` or a number of generated terms, found `{s}`")
         }),
+    }
+}
+
+/// `--progress-every SECONDS`: a finite number >= 0 (decimals allowed).
+fn parse_seconds(s: &str) -> Result<f64, String> {
+    match s.trim().parse::<f64>() {
+        Ok(x) if x.is_finite() && (0.0..=1e9).contains(&x) => Ok(x),
+        _ => Err(format!(
+            "expected a number of seconds from 0 to 1e9 (decimals allowed), found `{s}`"
+        )),
     }
 }

@@ -2,6 +2,7 @@
 //! bar and the summary printed at the end.
 
 use std::path::{Path, PathBuf};
+use std::time::Duration;
 
 use clap::Args;
 
@@ -255,7 +256,7 @@ pub(super) fn run_scan(args: ScanArgs) -> Result<(), Error> {
 /// with `--quiet`).
 fn scan_progress(total: u64, done: u64, args: &ScanArgs) -> Progress {
     let every = if args.quiet { 0 } else { args.progress_every };
-    let progress = Progress::new(total, done, "points", every);
+    let progress = Progress::new(total, done, "points", Duration::from_secs(every));
     if !args.quiet {
         progress.show("");
     }

@@ -37,7 +37,8 @@
 //! flow, OPE table), [`background`] stores D, [`rhs`] holds the equations
 //! and the stop hook, [`check`] checks (and refines) the quadrature rule of
 //! an infinite array's flow, [`report`] turns a [`FlowResult`] into
-//! outputs. A term with momentum mismatch k flows only up to
+//! outputs, [`progress`] reports ell reached to a hook
+//! ([`Flow::run_with_progress`]). A term with momentum mismatch k flows only up to
 //! ell_k = ln(1/|k|); the integration restarts at each such breakpoint so
 //! the right-hand side is smooth within each segment.
 
@@ -48,6 +49,7 @@ pub mod competitors;
 pub mod kt;
 mod ope;
 pub mod options;
+pub mod progress;
 pub mod qtrack;
 pub mod report;
 pub mod rhs;
@@ -440,6 +442,18 @@ impl<'s> Flow<'s> {
             Some(fp) => self.run_checked(point, start, fp),
             None => self.run_from(point, start, self.opts.record),
         }
+    }
+
+    /// [`Flow::run`], calling `hook(ell reached, ell_max)` after accepted
+    /// integration steps, at most once per `every` (for a progress bar or
+    /// log lines; it must not print to stdout). The result is the same.
+    pub fn run_with_progress(
+        &self,
+        point: &[f64],
+        every: std::time::Duration,
+        hook: progress::Hook,
+    ) -> Result<FlowResult, Error> {
+        progress::with_hook(every, hook, || self.run(point))
     }
 
     /// Flow from a prepared start; `record` keeps the trajectory.
@@ -1033,6 +1047,7 @@ fn run_segment(
         if rhs.after_step(dop.x(), dop.y()) || done {
             return Ok(());
         }
+        progress::tick(dop.x(), opts.ell_max);
     }
 }
 

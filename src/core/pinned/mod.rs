@@ -37,7 +37,11 @@
 //! kernel comes from the Smith normal form ([`crate::math::smith`]); the
 //! numerics then use an orthonormal basis of the same span (thin QR), which
 //! the result does not depend on but which keeps the products well
-//! conditioned. R is restricted to independent columns (exact rank).
+//! conditioned. R is restricted to independent columns (exact rank). The
+//! integer kernel of an open strip can grow geometrically along it (entries
+//! 2^511 on the 512-wire filling-1/3 strip with its tunnelling term
+//! pinned), so each huge column is scaled by a power of two before it
+//! becomes floats ([`to_f64_scaled`]); the span, all that matters, is kept.
 //!
 //! Per q (periodic and infinite arrays) the same algebra holds block by
 //! block with Hermitian conjugates, see [`q`]. The pinned set itself (names,
@@ -129,6 +133,58 @@ pub fn to_f64(m: &ZMat) -> DMatrix<f64> {
     })
 }
 
+/// Columns with an entry of more bits than this are scaled by a power of
+/// two in [`to_f64_scaled`]: below it, the sum of squares of 2^20 entries
+/// (a column's norm) stays finite.
+pub const SCALE_ABOVE_BITS: u64 = 500;
+
+/// An integer matrix as floats, each column whose largest entry has more
+/// than [`SCALE_ABOVE_BITS`] bits divided by a power of two so that its
+/// largest entry lies in [1, 2) (entries below 2^-1074 of it become 0).
+/// Only the span of the columns matters to the callers, and a power of two
+/// changes no bit of the others. Why: the complement basis of a pinned open
+/// strip can grow geometrically along it (the 512-wire filling-1/3 strip
+/// with its tunnelling term pinned has entries 2^511, whose squares
+/// overflow), while its span is perfectly well conditioned.
+pub fn to_f64_scaled(m: &ZMat) -> DMatrix<f64> {
+    let shift: Vec<i64> = (0..m.cols)
+        .map(|j| {
+            let bits = (0..m.rows).map(|i| m.at(i, j).bits()).max().unwrap_or(0);
+            if bits > SCALE_ABOVE_BITS {
+                bits as i64 - 1
+            } else {
+                0
+            }
+        })
+        .collect();
+    DMatrix::from_fn(m.rows, m.cols, |i, j| scaled(m.at(i, j), shift[j]))
+}
+
+/// x 2^-s, rounded (relative error below 2^-62; 0 below the subnormals).
+pub fn scaled(x: &BigInt, s: i64) -> f64 {
+    if s == 0 {
+        return x.to_f64().unwrap_or(f64::INFINITY);
+    }
+    let cut = x.bits().saturating_sub(64);
+    // |top| < 2^64, exact as a BigInt, rounded once to f64.
+    let top = (x >> cut).to_f64().unwrap_or(0.0);
+    let e = cut as i64 - s;
+    // Two factors, each a normal power of two for |e| up to 2 x 1022.
+    let half = e / 2;
+    top * pow2(half) * pow2(e - half)
+}
+
+/// 2^e as a float for |e| <= 1022 (0 or infinity beyond).
+fn pow2(e: i64) -> f64 {
+    if e < -1022 {
+        0.0
+    } else if e > 1023 {
+        f64::INFINITY
+    } else {
+        f64::from_bits(((e + 1023) as u64) << 52)
+    }
+}
+
 /// Columns as a matrix (N x len).
 pub fn columns(n: usize, vectors: &[&[i64]]) -> DMatrix<f64> {
     DMatrix::from_fn(n, vectors.len(), |i, j| vectors[j][i] as f64)
@@ -168,7 +224,7 @@ impl Split {
             exact::to_f64(&sparse_dot(&inv[i], &p_ind[j], &on[j]))
         });
         Some(Split {
-            b: orthonormal(&to_f64(&b)),
+            b: orthonormal(&to_f64_scaled(&b)),
             r: orthonormal(&r),
             rank: p_ind.len(),
         })

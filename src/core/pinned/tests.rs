@@ -246,3 +246,80 @@ fn per_q_forms_match_dense_on_one_cell() {
     assert!((r_q.map(|z| z.re) - &r_dense).amax() < 1e-12);
     let _ = ops;
 }
+
+/// Issue 19 (the 512-wire filling-1/3 strip with "tunnel" pinned failed with
+/// "smallest eigenvalue inf"): the integer complement basis of an open
+/// strip grows geometrically along it, and its squares overflowed. A steep
+/// family reproduces it on 30 wires: K = diag(1, -1) per wire, pinned
+/// l_j = (p, q | r, s) = (-2^19, 1 | -1, 2^19) on wires j, j + 1 (null:
+/// p^2 - q^2 + r^2 - s^2 = 0; translates commute: r p - s q = 0).
+///
+/// Derived value: the residual fields are w with l_j.w = 0 and
+/// (K^-1 l_j).w = 0, i.e. p a_j + r a_{j+1} = 0 and q b_j + s b_{j+1} = 0
+/// for the R amplitudes a and L amplitudes b: a_j ∝ (-r/p)^(W-1-j) (an R
+/// mode at the right end) and b_j ∝ (-q/s)^j (an L mode at the left end),
+/// entries up to 2^(19 x 29) in integers. Each is chiral with K_P = +-1, and
+/// V couples them only through overlaps of order 2^-(19 x 29), so D(K_P,
+/// V_P) = 1 and D_P = a a^T + b b^T (normalised): the projector onto the
+/// two edge modes, whatever lambda. A NumPy computation by another route
+/// (the complement from an SVD of [P, K^-1 P]) gives the same within 1e-15.
+#[test]
+fn steep_open_strip_leaves_its_two_chiral_edge_modes() {
+    let w = 30;
+    let n = 2 * w;
+    let k: Vec<Vec<i64>> = (0..n)
+        .map(|i| (0..n).map(|j| i64::from(i == j) * [1, -1][i % 2]).collect())
+        .collect();
+    let (p, q, r, s) = (-(1i64 << 19), 1i64, -1i64, 1i64 << 19);
+    let pins: Vec<Vec<i64>> = (0..w - 1)
+        .map(|j| {
+            let mut l = vec![0; n];
+            l[2 * j..2 * j + 4].copy_from_slice(&[p, q, r, s]);
+            l
+        })
+        .collect();
+    let lam = 0.3;
+    let v = DMatrix::from_fn(n, n, |i, j| match (i / 2 == j / 2, i == j) {
+        (_, true) => 1.0,
+        (true, false) => lam,
+        _ => 0.0,
+    });
+    let split = Split::new(&k, &pins).unwrap();
+    let d_p = exact(&kf(&k), &v, &split).expect("a positive residual theory");
+    let mut a = DMatrix::zeros(n, 1);
+    let mut b = DMatrix::zeros(n, 1);
+    for j in 0..w {
+        a[(2 * j, 0)] = (-(r as f64) / p as f64).powi((w - 1 - j) as i32);
+        b[(2 * j + 1, 0)] = (-(q as f64) / s as f64).powi(j as i32);
+    }
+    let (a, b) = (&a / a.norm(), &b / b.norm());
+    let projector = &a * a.transpose() + &b * b.transpose();
+    let err = (&d_p - &projector).amax();
+    assert!(err < 1e-9, "D_P differs from the edge projector by {err:e}");
+}
+
+/// Derived: x 2^-s for integers beyond f64 (3 2^600 + 1 scaled by 2^600 is
+/// 3 to within 2^-598; a negative one; 1 scaled by 2^1100 underflows to 0),
+/// and a column of more than [`SCALE_ABOVE_BITS`] bits is scaled so that
+/// its largest entry lies in [1, 2) while a small column is unchanged.
+#[test]
+fn big_integers_scale_into_floats() {
+    use num_bigint::BigInt;
+    let big = (BigInt::from(3) << 600u32) + 1;
+    assert_eq!(scaled(&big, 600), 3.0);
+    assert_eq!(scaled(&-big.clone(), 599), -6.0);
+    assert_eq!(scaled(&BigInt::from(1), 1100), 0.0);
+    assert_eq!(scaled(&BigInt::from(5), 0), 5.0);
+    let m = ZMat::from_rows(
+        &[
+            vec![big.clone(), BigInt::from(7)],
+            vec![BigInt::from(1) << 599u32, BigInt::from(-2)],
+        ],
+        2,
+    );
+    let f = to_f64_scaled(&m);
+    // 3 2^600 has 602 bits: scaled by 2^-601 it is 1.5, and 2^599 is 0.25.
+    assert_eq!((f[(0, 0)], f[(1, 0)]), (1.5, 0.25));
+    assert_eq!((f[(0, 1)], f[(1, 1)]), (7.0, -2.0));
+    assert!(to_f64(&m)[(0, 0)] > 1e180);
+}
