@@ -463,7 +463,7 @@ fn cases() -> Vec<Case> {
             id: "E128",
             files: base(),
             setup: vec![Step::Run(args("scan wire.toml --x lambda=0:0.5:5 --out r --quiet"))],
-            args: args("scan wire.toml --x lambda=0:0.5:5 --out r --quiet"),
+            args: args("scan wire.toml --x lambda=0:0.5:6 --out r --quiet"),
             code: 2,
             message: "error: command line: --out: `r` already holds the files of another scan (points.csv, summary.json, phases.csv, run.json, phase.png, phase.svg, phase.pdf); pass --overwrite to replace them, or choose another --out",
         },

@@ -237,6 +237,31 @@ fn a_scan_keeps_a_users_files_unless_overwrite() {
 }
 
 #[test]
+fn the_same_scan_runs_again_in_its_own_folder() {
+    // run.json records the whole run; the same run rewrites the same bytes
+    // (--threads changes no byte), anything else is another scan.
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("out");
+    scan(dir.path(), &out, &[]).success();
+    let first = std::fs::read(out.join("points.csv")).unwrap();
+    let before = listing(&out);
+    scan(dir.path(), &out, &["--threads", "2"]).success();
+    assert_eq!(std::fs::read(out.join("points.csv")).unwrap(), first);
+    assert_eq!(listing(&out), before);
+    for other in [&PLANE[..], &["--set", "delta=0.1"], &["--ell-max", "20"]] {
+        scan(dir.path(), &out, other)
+            .code(2)
+            .stderr(predicate::str::contains("another scan"));
+        assert_eq!(listing(&out), before, "the folder is left as it was");
+    }
+    // The model file changed since (its SHA-256 in run.json differs).
+    let run = std::fs::read_to_string(out.join("run.json")).unwrap();
+    let sha = run.split("\"model_sha256\": \"").nth(1).unwrap();
+    std::fs::write(out.join("run.json"), run.replacen(&sha[..8], "00000000", 1)).unwrap();
+    scan(dir.path(), &out, &[]).code(2);
+}
+
+#[test]
 fn a_merge_keeps_earlier_outputs_unless_overwrite() {
     let dir = tempfile::tempdir().unwrap();
     let out = dir.path().join("out");

@@ -258,7 +258,7 @@ impl Model {
             output::check_output_dir(&out, "out")?;
             let partial = partial_path(&out, None);
             let lock = folder::claim(&out, None, || {
-                folder::check_whole(&out, &partial, overwrite, None)
+                folder::check_whole(&out, &partial, overwrite, (None, Some(&prov)))
             })?;
             let summary = pool.install(|| run_to_dir(&scan, &out, by, "out", Some(&prov)))?;
             drop(lock);

@@ -123,9 +123,12 @@ def test_a_scan_into_a_folder_with_another_scans_files_needs_overwrite(tmp_path)
     s = m.scan(out=out, overwrite=True, **SMALL_SCAN)
     assert len(s.points) == 3
     assert (out / "points.csv").read_text() == s.csv
-    # a finished scan is itself another scan's files for the next one
+    # the very same scan again rewrites the same bytes (run.json records it)
+    again = m.scan(out=out, **SMALL_SCAN)
+    assert again.csv == s.csv
+    # a finished scan is another scan's files for a scan over another grid
     with pytest.raises(pinflow.InputError):
-        m.scan(out=out, **SMALL_SCAN)
+        m.scan(out=out, **dict(SMALL_SCAN, x=("lambda", 0.3, 0.9, 4)))
 
 
 def test_a_scan_folder_locked_by_another_run_is_refused(tmp_path):

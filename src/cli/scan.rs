@@ -213,7 +213,7 @@ pub(super) fn run_scan(args: ScanArgs) -> Result<(), Error> {
     if let Some(r) = args.point.run_json.as_deref() {
         super::common::check_run_json(r, &[args.point.model.as_path()], None)?;
     }
-    let Some(_lock) = prepare_dir(&dir, &scan.meta, &args)? else {
+    let Some(_lock) = prepare_dir(&dir, &scan.meta, &args, &prov)? else {
         return Ok(());
     };
     if let Some(n) = threads {
@@ -265,13 +265,23 @@ fn scan_progress(total: u64, done: u64, args: &ScanArgs) -> Progress {
 /// Create and lock the output directory and check what it holds (see
 /// `scan::folder`). None: a `--resume`d shard that is already complete
 /// (nothing to do).
-fn prepare_dir(dir: &Path, meta: &Meta, args: &ScanArgs) -> Result<Option<FolderLock>, Error> {
+fn prepare_dir(
+    dir: &Path,
+    meta: &Meta,
+    args: &ScanArgs,
+    prov: &Provenance,
+) -> Result<Option<FolderLock>, Error> {
     let shard = meta.shard;
     folder::claim(dir, shard, || match shard {
         Some((k, n)) => check_shard_dir(dir, meta, (k, n), args),
         None => {
             let partial = partial_path(dir, None);
-            folder::check_whole(dir, &partial, args.overwrite, Some(args.resume))
+            folder::check_whole(
+                dir,
+                &partial,
+                args.overwrite,
+                (Some(args.resume), Some(prov)),
+            )
         }
     })
 }

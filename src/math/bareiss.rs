@@ -255,18 +255,23 @@ mod tests {
         assert_eq!(rank(&[]), 0);
     }
 
+    /// An m x n matrix of random entries in -2..=2.
+    fn small_random_rows(rng: &mut ChaCha8Rng, m: usize, n: usize) -> Vec<Vec<BigInt>> {
+        (0..m)
+            .map(|_| {
+                (0..n)
+                    .map(|_| BigInt::from(rng.gen_range(-2..=2)))
+                    .collect()
+            })
+            .collect()
+    }
+
     #[test]
     fn sparse_pivot_columns_match_the_dense_elimination() {
         let mut rng = ChaCha8Rng::seed_from_u64(23);
         for _ in 0..60 {
             let (m, n) = (rng.gen_range(1..=6), rng.gen_range(1..=8));
-            let a: Vec<Vec<BigInt>> = (0..m)
-                .map(|_| {
-                    (0..n)
-                        .map(|_| BigInt::from(rng.gen_range(-2..=2)))
-                        .collect()
-                })
-                .collect();
+            let a = small_random_rows(&mut rng, m, n);
             let dense = eliminate(&mut a.clone(), n, false).columns;
             assert_eq!(pivot_columns(&a), dense);
         }
@@ -279,13 +284,7 @@ mod tests {
         let mut rng = ChaCha8Rng::seed_from_u64(12);
         for _ in 0..40 {
             let (m, n) = (rng.gen_range(1..=5), rng.gen_range(1..=7));
-            let a: Vec<Vec<BigInt>> = (0..m)
-                .map(|_| {
-                    (0..n)
-                        .map(|_| BigInt::from(rng.gen_range(-2..=2)))
-                        .collect()
-                })
-                .collect();
+            let a = small_random_rows(&mut rng, m, n);
             let cols = |keep: &[usize]| -> Vec<Vec<BigInt>> {
                 a.iter()
                     .map(|r| keep.iter().map(|&j| r[j].clone()).collect())

@@ -19,7 +19,10 @@ use std::fs::{self, File, OpenOptions, TryLockError};
 use std::io::{Read, Seek, SeekFrom, Write};
 use std::path::{Path, PathBuf};
 
+use serde_json::Value;
+
 use crate::error::{Error, InputError};
+use crate::output::provenance::Provenance;
 
 /// Name of the folder lock file.
 pub const LOCK: &str = ".pinflow.lock";
@@ -168,13 +171,21 @@ pub fn claim(
 /// [`OUTPUTS`] or an unfinished scan (`partial`) unless `overwrite`, or
 /// `resume` is `Some(true)` with that unfinished scan to continue (`None`:
 /// the caller cannot resume, and the message does not offer it).
+///
+/// A finished scan whose `run.json` records this very run (`rerun`: the
+/// same model bytes, parameters, grid, options and pinflow revision; see
+/// [`same_run`]) is not another scan's: running it again rewrites the
+/// same bytes, so it goes ahead.
 pub fn check_whole(
     dir: &Path,
     partial: &Path,
     overwrite: bool,
-    resume: Option<bool>,
+    (resume, rerun): (Option<bool>, Option<&Provenance>),
 ) -> Result<bool, Error> {
     if overwrite || (resume == Some(true) && partial.exists()) {
+        return Ok(true);
+    }
+    if !partial.exists() && rerun.is_some_and(|p| same_run(dir, p)) {
         return Ok(true);
     }
     let mut found = present(dir, &OUTPUTS);
@@ -188,6 +199,32 @@ pub fn check_whole(
     }
     refuse_existing(dir, &found, hint)?;
     Ok(true)
+}
+
+/// Whether `dir` holds a finished scan (`points.csv` and `run.json`) whose
+/// `run.json` records the run `p`: every field equal except how it was
+/// called (`arguments`, `caller`), which changes no output byte.
+pub fn same_run(dir: &Path, p: &Provenance) -> bool {
+    let Ok(text) = fs::read_to_string(dir.join("run.json")) else {
+        return false;
+    };
+    // Both sides parsed from text, so that equal text gives equal values.
+    let Ok(written) = crate::output::to_json(p) else {
+        return false;
+    };
+    let (Ok(mut old), Ok(mut new)) = (
+        serde_json::from_str::<Value>(&text),
+        serde_json::from_str::<Value>(&written),
+    ) else {
+        return false;
+    };
+    for v in [&mut old, &mut new] {
+        if let Some(map) = v.as_object_mut() {
+            map.remove("arguments");
+            map.remove("caller");
+        }
+    }
+    dir.join("points.csv").is_file() && old == new
 }
 
 /// The files of `names` that exist in `dir`.
