@@ -484,6 +484,28 @@ fn cases() -> Vec<Case> {
         },
         case("E130", base(), "scan wire.toml --x lambda=0:0.5:20 --shard 2/2 --shard-base 0", 2,
             "error: command line: --shard: with --shard-base 0 a shard K/N needs 0 <= K < N, found 2/2"),
+        // ------------------------------------------------ parameter labels
+        case("E131", wire("lambda = 0.3", "lambda = { value = 0.3, lable = \"λ\" }"), "dims wire.toml", 2,
+            "error: wire.toml: params.lambda.lable: unknown key (a parameter table has value, label, unit)"),
+        case("E132", wire("lambda = 0.3", "lambda = { label = \"λ\" }"), "dims wire.toml", 2,
+            "error: wire.toml: params.lambda: a parameter table needs `value` (the default value), e.g. { value = 0.8, label = \"λ\" }"),
+        case("E133", wire("lambda = 0.3", "lambda = { value = 0.3, unit = 3 }"), "dims wire.toml", 2,
+            "error: wire.toml: params.lambda.unit: expected a string, found integer"),
+        case("E134", wire("lambda = 0.3", "lambda = { value = \"0.3\" }"), "dims wire.toml", 2,
+            "error: wire.toml: params.lambda.value: expected a number, found the string \"0.3\""),
+        case("E135", wire("lambda = 0.3", "lambda = { value = 0.3, label = \"a\\nb\" }"), "dims wire.toml", 2,
+            "error: wire.toml: params.lambda.label: expected a string on one line (no control characters)"),
+        // ------------------------------------------------ --run-json
+        case("E136", base(), "dims wire.toml --format csv --run-json -", 2,
+            "error: command line: --run-json: standard output carries the report; give a file for the provenance"),
+        case("E137", base(), "dims wire.toml --run-json wire.toml", 2,
+            "error: command line: --run-json: `wire.toml` is the model file `wire.toml`; writing there would destroy it: give another output file"),
+        case("E138", base(), "dims wire.toml --format csv --run-json missing/run.json", 2,
+            "error: command line: --run-json: cannot write `missing/run.json`: the directory `missing` does not exist"),
+        case("E139", base(), "dims wire.toml --format csv -o t.csv --run-json t.csv", 2,
+            "error: command line: --run-json: `t.csv` is also the -o file; give the provenance its own file"),
+        case("E140", base(), "flow wire.toml --out . --run-json run.json", 2,
+            "error: command line: --run-json: `run.json` is in the --out directory `.`, which gets the run's files and its own run.json; give a file outside it"),
     ];
     // By number: E100 comes after E99, not after E10.
     c.sort_by_key(|c| c.id[1..].parse::<u32>().expect("ids are E and a number"));
@@ -730,4 +752,14 @@ entries! {
     e128_folder_with_another_scan => "E128",
     e129_resume_row_of_another_grid => "E129",
     e130_zero_based_shard_out_of_range => "E130",
+    e131_unknown_key_in_a_parameter_table => "E131",
+    e132_parameter_table_without_value => "E132",
+    e133_unit_not_a_string => "E133",
+    e134_parameter_value_not_a_number => "E134",
+    e135_label_on_two_lines => "E135",
+    e136_run_json_to_standard_output => "E136",
+    e137_run_json_is_the_model => "E137",
+    e138_run_json_in_a_missing_directory => "E138",
+    e139_run_json_is_the_output_file => "E139",
+    e140_run_json_inside_the_out_directory => "E140",
 }

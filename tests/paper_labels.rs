@@ -308,3 +308,49 @@ fn the_library_scan_writes_run_json_and_stamps_the_summary_itself() {
     assert!(!plain.join("run.json").exists());
     assert!(!summary.files.contains(&"run.json".to_string()));
 }
+
+#[test]
+fn scan_and_flow_provenance_record_the_parameter_labels_and_units() {
+    let dir = tempfile::tempdir().unwrap();
+    let model = labelled(dir.path());
+    let m = model.to_str().unwrap();
+    pinflow(dir.path())
+        .args([
+            "scan",
+            m,
+            "--x",
+            "lambda=0.3:0.9:3",
+            "--out",
+            "s",
+            "--quiet",
+        ])
+        .assert()
+        .success();
+    let read = |p: &str| -> serde_json::Value {
+        serde_json::from_str(&std::fs::read_to_string(dir.path().join(p)).unwrap()).unwrap()
+    };
+    let want = serde_json::json!({
+        "g": {"label": "γ"},
+        "lambda": {"label": "λ", "unit": "meV"},
+    });
+    assert_eq!(read("s/run.json")["parameter_labels"], want);
+    assert_eq!(
+        read("s/summary.json")["provenance"]["parameter_labels"],
+        want
+    );
+    // Every command's provenance has them (here flow's JSON on stdout).
+    let out = pinflow(dir.path())
+        .args(["flow", m, "--format", "json"])
+        .output()
+        .unwrap();
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(v["provenance"]["parameter_labels"], want);
+    // A model without labels records none (the key is absent).
+    let spinless = Path::new(env!("CARGO_MANIFEST_DIR")).join("flows/spinless_wire.toml");
+    let plain = pinflow(dir.path())
+        .args(["flow", spinless.to_str().unwrap(), "--format", "json"])
+        .output()
+        .unwrap();
+    let v: serde_json::Value = serde_json::from_slice(&plain.stdout).unwrap();
+    assert!(v["provenance"].get("parameter_labels").is_none(), "{v}");
+}

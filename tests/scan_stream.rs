@@ -62,6 +62,7 @@ fn meta(axes: &[&str], terms: &[&str], target: Option<&str>, competitors: &[&str
         competitors: competitors.iter().map(|t| t.to_string()).collect(),
         shard: Some((1, 1)),
         infinite: false,
+        symmetry_breaks: vec![],
     }
 }
 

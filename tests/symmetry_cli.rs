@@ -170,8 +170,31 @@ fn a_name_used_twice_or_unknown() {
             "--competitor-symmetry",
             "nope",
         ],
-        "command line: --symmetry:",
+        "command line: --competitor-symmetry:",
         "unknown symmetry `nope`",
+    );
+    refused(
+        SPINFUL,
+        &["hunt", "m.toml", "--symmetry", "Sz,flip,Sz"],
+        "command line: --symmetry:",
+        "symmetry `Sz` is named twice",
+    );
+    refused(
+        SPINFUL,
+        &[
+            "scan",
+            "m.toml",
+            "--x",
+            "a=0.1:0.2:2",
+            "--out",
+            "out",
+            "--competitors",
+            "2",
+            "--competitor-symmetry",
+            "flip,flip",
+        ],
+        "command line: --competitor-symmetry:",
+        "symmetry `flip` is named twice",
     );
 }
 

@@ -174,3 +174,102 @@ coupling = 0.1
         r.notes
     );
 }
+
+/// The spinful wire written to a temporary folder, with these terms.
+fn model_file(terms: &str) -> (tempfile::TempDir, std::path::PathBuf) {
+    let dir = tempfile::tempdir().expect("temporary directory");
+    let path = dir.path().join("spinful.toml");
+    std::fs::write(&path, spinful(terms)).expect("write the model");
+    (dir, path)
+}
+
+#[test]
+fn flow_notes_the_listed_term_that_breaks_a_declared_u1() {
+    // Giamarchi (2004), ch. 7: the spin-flip pair m = (1, 1, -1, -1)
+    // carries S_z charge 1 + 1 + 1 + 1 = 4 (in units of 1/2) against the
+    // declared charge (1, 1, -1, -1); g1 (m = (1, -1, -1, 1)) carries 0.
+    let (dir, path) = model_file(
+        r#"
+[[term]]
+name = "g1"
+particles = [1, -1, -1, 1]
+coupling = 0.1
+[[term]]
+name = "spin_flip_pair"
+particles = [1, 1, -1, -1]
+coupling = 0.1
+"#,
+    );
+    let out = common::pinflow(dir.path())
+        .args(["flow", path.to_str().unwrap(), "--format", "json"])
+        .assert()
+        .success();
+    let json = common::without_provenance(&out.get_output().stdout);
+    let notes: Vec<&str> = json["notes"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter_map(|n| n.as_str())
+        .filter(|n| n.contains("breaks the declared symmetry"))
+        .collect();
+    assert_eq!(notes.len(), 1, "{notes:#?}");
+    assert!(
+        notes[0].contains("\"spin_flip_pair\"") && notes[0].contains("Sz charge 4"),
+        "{notes:#?}"
+    );
+    let text = common::pinflow(dir.path())
+        .args(["flow", path.to_str().unwrap()])
+        .assert()
+        .success();
+    let text = String::from_utf8_lossy(&text.get_output().stdout).to_string();
+    assert!(
+        text.contains("term \"spin_flip_pair\" breaks the declared symmetry Sz"),
+        "{text}"
+    );
+}
+
+#[test]
+fn scan_counts_the_points_where_a_term_breaks_the_spin_flip() {
+    // Derived: bs_up (1, -1, 0, 0) maps under the flip to bs_dn (0, 0, 1,
+    // -1); with couplings 0.1 and y2 both are invariant only where y2 =
+    // 0.1. On y2 = 0.05, 0.1, 0.15 each breaks the flip at 2 of 3 points:
+    // one note per term and symmetry, not one per point.
+    let (dir, path) = model_file(
+        r#"
+[[term]]
+name = "bs_up"
+particles = [1, -1, 0, 0]
+coupling = 0.1
+[[term]]
+name = "bs_dn"
+particles = [0, 0, 1, -1]
+coupling = "y2"
+"#,
+    );
+    let out = dir.path().join("scan");
+    common::pinflow(dir.path())
+        .args(["scan", path.to_str().unwrap(), "--x", "y2=0.05:0.15:3"])
+        .arg("--out")
+        .arg(&out)
+        .args(["--quiet", "--threads", "1"])
+        .assert()
+        .success();
+    let summary: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(out.join("summary.json")).unwrap()).unwrap();
+    let notes: Vec<&str> = summary["notes"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter_map(|n| n.as_str())
+        .filter(|n| n.contains("breaks the declared symmetry"))
+        .collect();
+    assert_eq!(notes.len(), 2, "{notes:#?}");
+    assert!(notes[0].contains("\"bs_up\"") && notes[1].contains("\"bs_dn\""));
+    for n in &notes {
+        assert!(
+            n.contains("spin_flip") && n.contains("at 2 of the 3 points"),
+            "{n}"
+        );
+        assert!(n.contains("y2=0.05"), "{n}");
+    }
+}

@@ -26,7 +26,7 @@ use pinflow::error::{Error, InputError};
 use pinflow::flow::competitors::flow_once;
 use pinflow::flow::report::FlowReport;
 use pinflow::flow::{FlowOptions, Outcome};
-use pinflow::output::provenance::Provenance;
+use pinflow::output::provenance::{self, Provenance};
 use pinflow::output::{self, Format, Report};
 use pinflow::scan::run::{check_size, resolve_axes, run_to_dir};
 use pinflow::scan::{folder, partial_path, Scan, ScanSpec};
@@ -53,6 +53,27 @@ fn renderings<R: Report + Serialize>(r: &R) -> Result<(String, String, String), 
         output::render(r, Format::Csv)?,
         output::render(r, Format::Text)?,
     ))
+}
+
+impl Model {
+    /// The provenance of a run on this model at `point`, made by the
+    /// Python package (caller "python"; `arguments` the keyword arguments
+    /// as given, `options` as the command records them).
+    fn provenance(
+        &self,
+        command: &str,
+        arguments: Vec<String>,
+        point: &[f64],
+        options: serde_json::Value,
+    ) -> Provenance {
+        let names = self.sys.model.params.names().iter().cloned();
+        let file = (self.sys.model.file.as_str(), self.bytes.as_slice());
+        let values = names.zip(point.iter().copied());
+        let mut prov = Provenance::for_model(command, arguments, file, values, options);
+        prov.caller = Some("python".to_string());
+        prov.parameter_labels = self.sys.model.params.labels_json();
+        prov
+    }
 }
 
 #[pymethods]
@@ -177,6 +198,11 @@ impl Model {
         let set = point_overrides(point)?;
         let over = flow_overrides(options)?;
         let comp = args::competitors(&self.sys, options)?;
+        let recorded_competitors = args::recorded_competitors(options)?;
+        let mut arguments = args::recorded(&[], point, options)?;
+        if force {
+            arguments.push("force=True".to_string());
+        }
         self.run(py, |sys| {
             if let Some(d) = &out {
                 output::check_output_dir(d, "out")?;
@@ -184,13 +210,19 @@ impl Model {
             let point = sys.model.point_with(&set, "point")?;
             let opts = FlowOptions::resolve(&sys.model, &over)?;
             check_closure(sys, &opts, force)?;
+            // As `pinflow flow` records them: the options after defaults,
+            // the competitor options as given.
+            let recorded = serde_json::json!({"flow": opts, "competitors": recorded_competitors});
+            let prov = self.provenance("flow", arguments, &point, recorded);
             let result = flow_once(sys, &point, &opts, comp)?;
             let names = sys.model.params.names();
             let report = FlowReport::new(&sys.model.name, names, &point, result, opts)
-                .with_labels(&sys.model.params);
+                .with_labels(&sys.model.params)
+                .with_symmetry_notes(sys, &point)?;
             check_flow(sys, &point, &report)?;
             if let Some(d) = &out {
                 report.write_dir(d)?;
+                provenance::stamp_dir(d, &prov)?;
             }
             let (json, csv, text) = renderings(&report)?;
             Ok((json, csv, text, report.trajectory_csv()?))
@@ -240,11 +272,7 @@ impl Model {
                 "competitors": recorded_competitors,
                 "color_by": color_by,
             });
-            let names = sys.model.params.names().iter().cloned();
-            let file = (sys.model.file.as_str(), self.bytes.as_slice());
-            let values = names.zip(base.iter().copied());
-            let mut prov = Provenance::for_model("scan", arguments, file, values, recorded);
-            prov.caller = Some("python".to_string());
+            let mut prov = self.provenance("scan", arguments, &base, recorded);
             prov.grid = axes.iter().map(|a| a.spec()).collect();
             let spec = ScanSpec {
                 axes,

@@ -121,13 +121,25 @@ def test_flow(model_path, moved, tmp_path):
     cli_traj = (tmp_path / "cli" / "trajectory.csv").read_text()
     pd.testing.assert_frame_equal(r.trajectory, pinflow._frame(cli_traj).set_index("ell"), check_exact=True)
     assert r.trajectory.index.name == "ell"
-    # the files written by out= are the command's: the CSV byte for byte,
-    # the summary apart from the command's provenance block
-    name = "trajectory.csv"
-    assert (tmp_path / "py" / name).read_bytes() == (tmp_path / "cli" / name).read_bytes(), name
+    # the files written by out= are the command's: the CSVs byte for byte,
+    # the summary apart from its provenance block
+    for name in ["trajectory.csv", "terms.csv"]:
+        assert (tmp_path / "py" / name).read_bytes() == (tmp_path / "cli" / name).read_bytes(), name
     py_summary = json.loads((tmp_path / "py" / "summary.json").read_text())
     cli_summary = json.loads((tmp_path / "cli" / "summary.json").read_text())
-    assert py_summary == without_provenance(cli_summary)
+    assert without_provenance(py_summary) == without_provenance(cli_summary)
+    # and the same record of the run, in summary.json and run.json, made by
+    # Python with its own arguments (the point as keyword arguments)
+    prov, cli_prov = py_summary["provenance"], cli_summary["provenance"]
+    assert prov == json.loads((tmp_path / "py" / "run.json").read_text())
+    assert cli_prov == json.loads((tmp_path / "cli" / "run.json").read_text())
+    assert (prov["caller"], prov["command"]) == ("python", "flow")
+    assert "caller" not in cli_prov
+    assert set(prov) == set(cli_prov) | {"caller"}
+    for key in ["pinflow", "revision", "model_sha256", "parameters", "grid", "options"]:
+        assert prov[key] == cli_prov[key], key
+    assert prov.get("parameter_labels") == cli_prov.get("parameter_labels")
+    assert prov["arguments"] == sorted(f"{k}={v}" for k, v in point.items())
 
 
 def test_flow_options_reach_the_library():

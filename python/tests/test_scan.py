@@ -41,8 +41,10 @@ def test_plane_equals_the_command_byte_for_byte(tmp_path):
     assert prov == json.loads((tmp_path / "py" / "run.json").read_text())
     assert (prov["caller"], prov["command"]) == ("python", "scan")
     assert "caller" not in ref_prov
-    for key in ["pinflow", "revision", "model_sha256", "parameters", "grid", "options"]:
+    for key in ["pinflow", "revision", "model_sha256", "parameters", "parameter_labels", "grid", "options"]:
         assert prov[key] == ref_prov[key], key
+    # the model labels lambda as λ (docs/columns.md: parameter_labels)
+    assert prov["parameter_labels"] == {"lambda": {"label": "λ"}}
     assert prov["arguments"] == ["x=lambda=0.3:0.95:6", "y=g=0.0:0.95:5", "color_by=phase"]
     pd.testing.assert_frame_equal(s.points, pinflow._frame(want.decode()), check_exact=True)
 

@@ -215,7 +215,7 @@ pub(crate) fn check_outputs(
         output::file::check_not_input(f, &inputs, "-o")?;
     }
     if let Some(r) = point.run_json.as_deref() {
-        check_run_json(r, &inputs, file)?;
+        check_run_json(r, &inputs, file, dir)?;
     }
     if let Some(d) = dir {
         output::check_output_dir(d, "--out")?;
@@ -288,7 +288,7 @@ static STDIN_TEXT: std::sync::OnceLock<String> = std::sync::OnceLock::new();
 pub(crate) fn provenance(
     command: &str,
     model_path: &Path,
-    sys_names: &[String],
+    params: &crate::model::ParamSet,
     point: &[f64],
     options: serde_json::Value,
 ) -> Result<Provenance, Error> {
@@ -297,14 +297,16 @@ pub(crate) fn provenance(
         _ => std::fs::read(model_path).map_err(|e| Error::io(model_path, e))?,
     };
     let model = model_path.display().to_string();
-    let values = sys_names.iter().cloned().zip(point.iter().copied());
-    Ok(Provenance::for_model(
+    let values = params.names().iter().cloned().zip(point.iter().copied());
+    let mut p = Provenance::for_model(
         command,
         recorded_arguments(),
         (&model, &bytes),
         values,
         options,
-    ))
+    );
+    p.parameter_labels = params.labels_json();
+    Ok(p)
 }
 
 /// A provenance without a model (e.g. `merge`).
@@ -319,11 +321,13 @@ pub(crate) fn options_json<T: serde::Serialize>(t: &T) -> Result<serde_json::Val
 }
 
 /// `--run-json FILE`: a file (not `-`: standard output holds the report),
-/// not the model file and not the `-o` file.
+/// not the model file, not the `-o` file and not in the `--out` directory
+/// (whose files the command writes, `run.json` among them).
 pub(crate) fn check_run_json(
     run: &Path,
     inputs: &[&Path],
     output_file: Option<&Path>,
+    out_dir: Option<&Path>,
 ) -> Result<(), Error> {
     let flag = "--run-json";
     if run.as_os_str() == "-" {
@@ -339,7 +343,33 @@ pub(crate) fn check_run_json(
         );
         return Err(InputError::new("command line", flag, m).into());
     }
+    if let Some(d) = out_dir.filter(|d| same_dir(run.parent(), d)) {
+        let m = format!(
+            "`{}` is in the --out directory `{}`, which gets the run's files and its own run.json; give a file outside it",
+            run.display(),
+            d.display()
+        );
+        return Err(InputError::new("command line", flag, m).into());
+    }
     Ok(())
+}
+
+/// `parent` (of a file; empty or None: the working directory) and `dir`
+/// are one directory: the same canonical path when both exist, else the
+/// same path with `.` components left out.
+fn same_dir(parent: Option<&Path>, dir: &Path) -> bool {
+    let parent = parent.filter(|p| !p.as_os_str().is_empty());
+    let parent = parent.unwrap_or(Path::new("."));
+    if let (Ok(a), Ok(b)) = (parent.canonicalize(), dir.canonicalize()) {
+        return a == b;
+    }
+    let plain = |p: &Path| -> Vec<std::ffi::OsString> {
+        p.components()
+            .filter(|c| *c != std::path::Component::CurDir)
+            .map(|c| c.as_os_str().to_os_string())
+            .collect()
+    };
+    plain(parent) == plain(dir)
 }
 
 /// Print or write a rendered report: JSON gets the `provenance` key; a CSV
@@ -368,19 +398,9 @@ pub(crate) fn emit_report(
 }
 
 /// Write `run.json` into an output directory and add the provenance to
-/// its `summary.json`, when there is one.
+/// its `summary.json` (see [`output::provenance::stamp_dir`]).
 pub(crate) fn stamp_dir(dir: &Path, prov: &Provenance) -> Result<(), Error> {
-    output::write_atomic(&dir.join("run.json"), output::to_json(prov)?.as_bytes())?;
-    for name in ["summary.json", "convergence.json"] {
-        let summary = dir.join(name);
-        if !summary.is_file() {
-            continue;
-        }
-        let text = std::fs::read_to_string(&summary).map_err(|e| Error::io(&summary, e))?;
-        let stamped = output::provenance::stamp_json(&text, prov)?;
-        output::write_atomic(&summary, stamped.as_bytes())?;
-    }
-    Ok(())
+    output::provenance::stamp_dir(dir, prov)
 }
 
 /// `--figure-style`: how the figures look.

@@ -84,13 +84,7 @@ pub(super) fn run(args: DimsArgs) -> Result<(), Error> {
             })
             .collect();
         let options = serde_json::json!({ "wires": wires });
-        let prov = provenance(
-            "dims",
-            &args.point.model,
-            model.params.names(),
-            &point,
-            options,
-        )?;
+        let prov = provenance("dims", &args.point.model, &model.params, &point, options)?;
         if let Some(dir) = &args.out {
             report.write_dir(dir)?;
             stamp_dir(dir, &prov)?;
@@ -112,8 +106,13 @@ pub(super) fn run(args: DimsArgs) -> Result<(), Error> {
     let mut report = DimsReport::build_opts(&sys, &point, &opts)?;
     crate::search::breaks::annotate(&sys, &point, &mut report)?;
     let options = options_json(&serde_json::json!({ "pin": args.pin }))?;
-    let names = sys.model.params.names();
-    let prov = provenance("dims", &args.point.model, names, &point, options)?;
+    let prov = provenance(
+        "dims",
+        &args.point.model,
+        &sys.model.params,
+        &point,
+        options,
+    )?;
     emit_report(
         args.output.as_deref(),
         args.point.run_json.as_deref(),

@@ -64,8 +64,13 @@ pub(super) fn run(args: EdgesArgs) -> Result<(), Error> {
     let analysis = analyse(&sys, &selection.pinned, args.window)?;
     let report = EdgesReport::new(&sys, &point, &selection, &analysis);
     let options = serde_json::json!({ "pin": args.pin, "window": args.window, "flow": opts_json });
-    let names = sys.model.params.names();
-    let prov = provenance("edges", &args.point.model, names, &point, options)?;
+    let prov = provenance(
+        "edges",
+        &args.point.model,
+        &sys.model.params,
+        &point,
+        options,
+    )?;
     let format = args.format.into();
     let text = output::render(&report, format)?;
     emit_report(

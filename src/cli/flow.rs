@@ -134,9 +134,16 @@ pub(super) fn run(args: FlowArgs) -> Result<(), Error> {
         "flow": opts,
         "competitors": args.competitors.recorded(),
     }))?;
-    let prov = provenance("flow", &args.point.model, names, &point, options)?;
+    let prov = provenance(
+        "flow",
+        &args.point.model,
+        &sys.model.params,
+        &point,
+        options,
+    )?;
     let report = FlowReport::new(&sys.model.name, names, &point, result, opts)
-        .with_labels(&sys.model.params);
+        .with_labels(&sys.model.params)
+        .with_symmetry_notes(&sys, &point)?;
     if let Some(dir) = &args.out {
         report.write_dir_with(dir, args.plot_terms)?;
         stamp_dir(dir, &prov)?;

@@ -196,8 +196,13 @@ pub(super) fn run(args: HuntArgs) -> Result<(), Error> {
             .unwrap_or_else(|| smallest_coupling(&sys, &point));
         return emit(args.output.as_deref(), &emit_terms(&report, &sys.model, y));
     }
-    let names = sys.model.params.names();
-    let prov = provenance("hunt", &args.point.model, names, &point, recorded(&args))?;
+    let prov = provenance(
+        "hunt",
+        &args.point.model,
+        &sys.model.params,
+        &point,
+        recorded(&args),
+    )?;
     let format = args.format.into();
     let text = render(&report, format)?;
     emit_report(

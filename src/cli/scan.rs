@@ -211,7 +211,7 @@ pub(super) fn run_scan(args: ScanArgs) -> Result<(), Error> {
         .unwrap_or_else(|| default_dir(&args.point.model));
     output::check_output_dir(&dir, "--out")?;
     if let Some(r) = args.point.run_json.as_deref() {
-        super::common::check_run_json(r, &[args.point.model.as_path()], None)?;
+        super::common::check_run_json(r, &[args.point.model.as_path()], None, Some(&dir))?;
     }
     let Some(_lock) = prepare_dir(&dir, &scan.meta, &args, &prov)? else {
         return Ok(());
@@ -341,8 +341,7 @@ fn scan_provenance(
         "competitors": args.competitors.recorded(),
         "color_by": args.color_by.word(),
     }))?;
-    let names = sys.model.params.names();
-    let mut prov = provenance("scan", &args.point.model, names, base, recorded)?;
+    let mut prov = provenance("scan", &args.point.model, &sys.model.params, base, recorded)?;
     prov.grid = axes.iter().map(|a| a.spec()).collect();
     Ok(prov)
 }
@@ -435,6 +434,9 @@ fn shard_provenance(shard: &Path) -> Result<Provenance, Error> {
         prov.model_sha256 = field("model_sha256").as_str().map(str::to_string);
         if let serde_json::Value::Object(m) = field("parameters") {
             prov.parameters = m;
+        }
+        if let serde_json::Value::Object(m) = field("parameter_labels") {
+            prov.parameter_labels = m;
         }
         prov.options = field("options");
         prov.grid = serde_json::from_value(field("grid")).unwrap_or_default();

@@ -207,6 +207,9 @@ pub struct Plan {
     pub range: Option<usize>,
     /// What the closure range did, for the report (None without closure).
     pub range_note: Option<String>,
+    /// K^-1 of the cell vectors met while building (shared by all
+    /// channels: they repeat the same few); emptied when the plan is built.
+    solved: CellSolutions,
 }
 
 impl Plan {
@@ -237,6 +240,7 @@ impl Plan {
             split,
             range: None,
             range_note: None,
+            solved: CellSolutions::default(),
         };
         plan.add_listed(sys);
         let mut index = VectorIndex::default();
@@ -253,6 +257,7 @@ impl Plan {
             let range = wiring.as_ref().zip(applied);
             plan.generate_candidates(sys, &mut index, range, progress);
         }
+        plan.solved = CellSolutions::default();
         let ring = sys.lattice.boundary == Some(Boundary::Periodic) && !split;
         let wiring = Wiring::of(sys);
         plan.ope = super::ope::ope_table(
@@ -284,7 +289,14 @@ impl Plan {
         {
             let spin = sys.invariants.terms[i].spin.clone();
             if !self.split {
-                let ch = make_channel(sys, spec.name.clone(), Origin::Listed(i), fam.clone(), spin);
+                let ch = make_channel(
+                    sys,
+                    spec.name.clone(),
+                    Origin::Listed(i),
+                    fam.clone(),
+                    spin,
+                    &mut self.solved,
+                );
                 self.channels.push(ch);
                 continue;
             }
@@ -294,7 +306,14 @@ impl Plan {
                     representative: 0,
                 };
                 let name = format!("{}@{}", spec.name, t.anchor);
-                let ch = make_channel(sys, name, Origin::Listed(i), single, spin.clone());
+                let ch = make_channel(
+                    sys,
+                    name,
+                    Origin::Listed(i),
+                    single,
+                    spin.clone(),
+                    &mut self.solved,
+                );
                 self.channels.push(ch);
             }
         }
@@ -386,8 +405,8 @@ impl Plan {
             b,
             shift: shown,
         };
-        self.channels
-            .push(make_channel(sys, name, origin, fam, spin));
+        let ch = make_channel(sys, name, origin, fam, spin, &mut self.solved);
+        self.channels.push(ch);
     }
 }
 
@@ -600,6 +619,7 @@ fn make_channel(
     origin: Origin,
     family: Family,
     spin: Rational,
+    solved: &mut CellSolutions,
 ) -> Channel {
     let lat = &sys.lattice;
     let inv = &sys.invariants.cell_inverse;
@@ -607,7 +627,6 @@ fn make_channel(
     let (family, copies) = distinct(family);
     let mut l_sparse = Vec::with_capacity(family.translates.len());
     let mut g_sparse = Vec::with_capacity(family.translates.len());
-    let mut solved = CellSolutions::default();
     for t in &family.translates {
         l_sparse.push(sparse(t.l.iter().map(|x| *x as f64)));
         let m = solved.particles(lat, inv, &t.l);
@@ -638,8 +657,9 @@ fn make_channel(
 }
 
 /// m = K^-1 l wire by wire (as [`crate::core::invariants::particles_of`]), solving each distinct
-/// cell vector once: the translates of a family repeat the same few.
-#[derive(Default)]
+/// cell vector once: the translates of a family, and the channels of a
+/// plan, repeat the same few.
+#[derive(Debug, Clone, Default)]
 struct CellSolutions(HashMap<Vec<i64>, Vec<Rational>>);
 
 impl CellSolutions {

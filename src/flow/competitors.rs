@@ -101,7 +101,14 @@ pub struct Competing<'s> {
 impl<'s> Competing<'s> {
     /// Prepare; the symmetry names are checked here.
     pub fn new(sys: &'s System, opts: FlowOptions, comp: CompetitorOptions) -> Result<Self, Error> {
-        search::symmetry::chosen(sys, &comp.symmetry)?;
+        // The same check as `hunt --symmetry`, under this command's flag.
+        search::symmetry::chosen(sys, &comp.symmetry).map_err(|e| match e {
+            Error::Input(mut e) if e.key == "--symmetry" => {
+                e.key = "--competitor-symmetry".to_string();
+                Error::Input(e)
+            }
+            e => e,
+        })?;
         Ok(Competing {
             sys,
             plain: Flow::new(sys, opts),

@@ -222,6 +222,22 @@ impl FlowReport {
         self
     }
 
+    /// The same report with a note per listed term and declared symmetry
+    /// it breaks at the point, and per Z_n that V breaks there (the notes
+    /// of `dims`, [`crate::search::breaks`]). An unphysical point gets
+    /// none: the symmetries cannot be checked where V is not valid.
+    pub fn with_symmetry_notes(
+        mut self,
+        sys: &crate::core::system::System,
+        point: &[f64],
+    ) -> Result<Self, Error> {
+        if self.result.outcome != Outcome::Unphysical {
+            let notes = crate::search::breaks::notes_at(sys, point)?;
+            self.notes.extend(notes);
+        }
+        Ok(self)
+    }
+
     /// Write `summary.json`, `trajectory.csv`, `terms.csv` and the figures
     /// into `dir` (the figure draws the default terms, see [`PlotTerms`]).
     pub fn write_dir(&self, dir: &Path) -> Result<(), Error> {

@@ -8,6 +8,8 @@
 //! `docs/columns.md`. Invariant: the same run gives the same bytes (no
 //! clock time, no host name, no thread count).
 
+use std::path::Path;
+
 use serde::Serialize;
 use serde_json::{Map, Value};
 use sha2::{Digest, Sha256};
@@ -37,6 +39,11 @@ pub struct Provenance {
     pub model_sha256: Option<String>,
     /// Every parameter value used: the model's defaults with `--set` applied.
     pub parameters: Map<String, Value>,
+    /// The label and unit of every parameter that has one in the model's
+    /// `[params]` table, by name: `{"lambda": {"label": "λ", "unit": null}}`
+    /// (absent when no parameter has one, as the model then has none).
+    #[serde(skip_serializing_if = "Map::is_empty")]
+    pub parameter_labels: Map<String, Value>,
     /// The scan axes (`name=min:max:n[:log]`), empty for a single point.
     pub grid: Vec<String>,
     /// Every option of the engine after defaults were filled in.
@@ -55,6 +62,7 @@ impl Provenance {
             model: None,
             model_sha256: None,
             parameters: Map::new(),
+            parameter_labels: Map::new(),
             grid: Vec::new(),
             options: Value::Object(Map::new()),
         }
@@ -116,6 +124,23 @@ pub fn stamp_json(text: &str, p: &Provenance) -> Result<String, Error> {
         .map_err(|e| Error::Numerical(format!("cannot write provenance: {e}")))?;
     map.insert("provenance".to_string(), pv);
     super::to_json(&v)
+}
+
+/// Write `run.json` into an output directory and add the provenance to
+/// its `summary.json` or `convergence.json`, when there is one (`flow`,
+/// `dims --wires`; the command line and the Python package alike).
+pub fn stamp_dir(dir: &Path, prov: &Provenance) -> Result<(), Error> {
+    super::write_atomic(&dir.join("run.json"), super::to_json(prov)?.as_bytes())?;
+    for name in ["summary.json", "convergence.json"] {
+        let summary = dir.join(name);
+        if !summary.is_file() {
+            continue;
+        }
+        let text = std::fs::read_to_string(&summary).map_err(|e| Error::io(&summary, e))?;
+        let stamped = stamp_json(&text, prov)?;
+        super::write_atomic(&summary, stamped.as_bytes())?;
+    }
+    Ok(())
 }
 
 #[cfg(test)]

@@ -71,8 +71,9 @@ pub struct Band {
     pub x1: f64,
     /// Outcome name (one legend entry per distinct label).
     pub label: String,
-    /// Index into the categorical palette.
-    pub colour_index: usize,
+    /// Fill colour, drawn opaque behind the lines and the grid (choose a
+    /// light one); bands with the same label share their first colour.
+    pub colour: (u8, u8, u8),
 }
 
 /// Data of a one-parameter scan: every term's Δ against the parameter.
@@ -415,16 +416,13 @@ impl Figure for FlowFigure {
 
 /// Line width of the terms in a scan.
 const SCAN_WIDTH: u32 = 3;
-/// Opacity of band fills.
-const BAND_ALPHA: f64 = 0.22;
-
 impl LineScanFigure {
-    /// Distinct band labels in first-seen order, with their palette index.
-    fn band_kinds(&self) -> Vec<(&str, usize)> {
-        let mut kinds: Vec<(&str, usize)> = Vec::new();
+    /// Distinct band labels in first-seen order, with their colour.
+    fn band_kinds(&self) -> Vec<(&str, RGBColor)> {
+        let mut kinds: Vec<(&str, RGBColor)> = Vec::new();
         for b in &self.bands {
             if !kinds.iter().any(|(l, _)| *l == b.label) {
-                kinds.push((&b.label, b.colour_index));
+                kinds.push((&b.label, rgb(b.colour)));
             }
         }
         kinds
@@ -439,24 +437,23 @@ impl LineScanFigure {
             .collect();
         entries.push(marginal_entry());
         for (label, c) in self.band_kinds() {
-            entries.push(LegendEntry::swatch(
-                label,
-                palette::categorical(c),
-                BAND_ALPHA,
-            ));
+            entries.push(LegendEntry::swatch(label, c, 1.0));
         }
         entries
     }
 
     fn draw_bands<DB: DrawingBackend>(&self, chart: &mut Chart<'_, DB>) -> Result<(), String> {
         let (x, y) = (chart.x_range(), chart.y_range());
+        let kinds = self.band_kinds();
         for b in &self.bands {
             let (x0, x1) = (to_axis(b.x0, self.x_log), to_axis(b.x1, self.x_log));
             let (lo, hi) = (x0.min(x1).max(x.start), x0.max(x1).min(x.end));
             if lo.partial_cmp(&hi) != Some(std::cmp::Ordering::Less) {
                 continue;
             }
-            let colour = palette::categorical(b.colour_index).mix(BAND_ALPHA);
+            // The legend's colour of the label, so one label is one colour.
+            let colour = kinds.iter().find(|(l, _)| *l == b.label).map(|k| k.1);
+            let colour = colour.unwrap_or(rgb(b.colour));
             let rect = Rectangle::new([(lo, y.start), (hi, y.end)], colour.filled());
             chart.draw_series(std::iter::once(rect)).map_err(msg)?;
         }
@@ -506,6 +503,10 @@ impl Figure for LineScanFigure {
         }
         layout::draw_legend_grid(&legend, &entries, columns)
     }
+}
+
+fn rgb((r, g, b): (u8, u8, u8)) -> RGBColor {
+    RGBColor(r, g, b)
 }
 
 /// A one-parameter figure with at most this many points marks each point.
@@ -701,25 +702,25 @@ mod tests {
                     x0: 0.4,
                     x1: 1.0,
                     label: "pairing relevant".into(),
-                    colour_index: 1,
+                    colour: (250, 200, 170),
                 },
                 Band {
                     x0: 1.0,
                     x1: 1.5,
                     label: "tunnelling relevant".into(),
-                    colour_index: 0,
+                    colour: (190, 215, 240),
                 },
                 Band {
                     x0: 1.9,
                     x1: 1.5, // reversed limits are accepted
                     label: "pairing relevant".into(),
-                    colour_index: 1,
+                    colour: (250, 200, 170),
                 },
                 Band {
                     x0: 5.0,
                     x1: 6.0, // outside the scan: not drawn
                     label: "never seen".into(),
-                    colour_index: 2,
+                    colour: (200, 235, 210),
                 },
             ],
             caption: "Tree level.".into(),
@@ -743,10 +744,16 @@ mod tests {
         ] {
             assert_eq!(count_text(&svg, label), 1, "label '{label}'");
         }
-        // Three bands inside the range plus three legend swatches, all
-        // translucent; the band outside the range is skipped.
-        let translucent = format!("opacity=\"{BAND_ALPHA}\"");
-        assert_eq!(svg.matches(&translucent).count(), 6);
+        // Three bands inside the range plus three legend swatches; the band
+        // outside the range is skipped.
+        let fills = |c| svg.matches(&format!("fill=\"{}\"", hex(c))).count();
+        assert_eq!(
+            fills(RGBColor(250, 200, 170)),
+            3,
+            "pairing: two bands, one swatch"
+        );
+        assert_eq!(fills(RGBColor(190, 215, 240)), 2);
+        assert_eq!(fills(RGBColor(200, 235, 210)), 1, "only the legend swatch");
     }
 
     #[test]

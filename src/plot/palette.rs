@@ -54,6 +54,16 @@ pub fn categorical(index: usize) -> RGBColor {
     }
 }
 
+/// Colour of the `index`-th filled category (phase-map cells, scan bands):
+/// the [`categorical`] sequence without black. A black cell would hide the
+/// black line drawn on top of it, and a lightened black is a grey, which
+/// the neutral outcomes (no value, gapless, ...) use. Never a grey: every
+/// entry has distinct red, green and blue values or is a saturated hue.
+pub fn fill(index: usize) -> RGBColor {
+    let black = CATEGORICAL.len() - 1;
+    categorical(if index >= black { index + 1 } else { index })
+}
+
 /// Mixes `colour` with black: `amount = 0` keeps it, `amount = 1` gives black.
 pub fn darken(colour: RGBColor, amount: f64) -> RGBColor {
     let a = 1.0 - amount.clamp(0.0, 1.0);
@@ -179,6 +189,18 @@ mod tests {
             assert!(seen.insert((c.0, c.1, c.2)), "index {i} repeats {c:?}");
         }
         assert_eq!(categorical(3), CATEGORICAL[3]);
+    }
+
+    #[test]
+    fn fill_colours_skip_black_and_are_never_grey() {
+        assert_eq!(fill(6), CATEGORICAL[6]);
+        assert_eq!(fill(7), categorical(8));
+        let all: Vec<RGBColor> = (0..1000).map(fill).collect();
+        let mut seen = std::collections::HashSet::new();
+        for (i, c) in all.iter().enumerate() {
+            assert!(seen.insert((c.0, c.1, c.2)), "fill {i} repeats {c:?}");
+            assert!(!(c.0 == c.1 && c.1 == c.2), "fill {i} is a grey: {c:?}");
+        }
     }
 
     #[test]

@@ -199,9 +199,6 @@ impl Keys {
 struct Categories {
     labels: Vec<String>,
     colours: Vec<(u8, u8, u8)>,
-    keys: Vec<(String, String)>,
-    /// Palette index of each category's term (meaningful for winners).
-    term_colour: Vec<usize>,
     /// Display index of each first-appearance number.
     display: Vec<u32>,
 }
@@ -248,8 +245,6 @@ impl Categories {
         Categories {
             labels,
             colours,
-            keys,
-            term_colour,
             display,
         }
     }
@@ -261,23 +256,11 @@ impl Categories {
         }
     }
 
-    /// Palette index of a category's band in a one-axis scan: a winner
-    /// keeps its term's colour (as its line); other outcomes take the last
-    /// palette entries (black last, drawn light: grey).
-    fn band_colour(&self, c: usize) -> usize {
-        if is_phase(&self.keys[c].0) {
-            // A phase keeps its own palette entry (the gapless phase grey).
-            return match self.keys[c].1 == crate::core::phase::GAPLESS {
-                true => 7,
-                false => self.term_colour[c],
-            };
-        }
-        match Outcome::from_word(&self.keys[c].0) {
-            Some(Outcome::Strong | Outcome::Spinful) => self.term_colour[c],
-            Some(Outcome::Gapless) => 7,
-            Some(Outcome::Undecided) => 6,
-            _ => 5,
-        }
+    /// Fill of a category's band in a one-axis scan: the phase map's
+    /// colour, lightened for the coloured (winner, phase) categories so
+    /// that the lines on top stay legible; the greys as in the map.
+    fn band_colour(&self, c: usize) -> (u8, u8, u8) {
+        band_shade(self.colours[c])
     }
 }
 
@@ -334,18 +317,38 @@ fn label(outcome: &str, winner: &str) -> String {
     }
 }
 
-/// Colour of a category: winners take their term's palette colour
-/// (listed terms by model order, generated winners after them).
+/// Fills of the outcomes without a winner: four greys, well apart, and
+/// never a winner's colour ([`palette::fill`] has no greys). Unphysical
+/// points take the grey that the ℓ* map uses for "no value".
+const GAPLESS_GREY: (u8, u8, u8) = (232, 232, 232);
+const UNPHYSICAL_GREY: (u8, u8, u8) = (palette::MISSING.0, palette::MISSING.1, palette::MISSING.2);
+const UNDECIDED_GREY: (u8, u8, u8) = (140, 140, 140);
+const FAILED_GREY: (u8, u8, u8) = (95, 95, 95);
+
+/// Colour of a category: winners take their term's fill colour (listed
+/// terms by model order, generated winners after them), the outcomes
+/// without a winner a grey.
 fn colour(outcome: &str, term: usize) -> (u8, u8, u8) {
     let rgb = |c: plotters::style::RGBColor| (c.0, c.1, c.2);
     match Outcome::from_word(outcome) {
-        Some(Outcome::Strong) => rgb(palette::categorical(term)),
-        Some(Outcome::Spinful) => rgb(palette::lighten(palette::categorical(term), 0.55)),
-        Some(Outcome::Gapless) => (232, 232, 232),
-        Some(Outcome::Undecided) => (170, 170, 170),
-        Some(Outcome::Unphysical) => (255, 255, 255),
-        _ => (60, 60, 60),
+        Some(Outcome::Strong) => rgb(palette::fill(term)),
+        Some(Outcome::Spinful) => rgb(palette::lighten(palette::fill(term), 0.55)),
+        Some(Outcome::Gapless) => GAPLESS_GREY,
+        Some(Outcome::Undecided) => UNDECIDED_GREY,
+        Some(Outcome::Unphysical) => UNPHYSICAL_GREY,
+        _ => FAILED_GREY,
     }
+}
+
+/// A map colour as a band: greys unchanged, other colours mixed 75 % with
+/// white (a winner's band stays distinct from its spinful band, which is
+/// already 55 % white in the map).
+fn band_shade(c: (u8, u8, u8)) -> (u8, u8, u8) {
+    if c.0 == c.1 && c.1 == c.2 {
+        return c;
+    }
+    let l = palette::lighten(plotters::style::RGBColor(c.0, c.1, c.2), 0.75);
+    (l.0, l.1, l.2)
 }
 
 /// Terms whose Delta0 = 2 line is drawn: the target and its competitors.
@@ -473,9 +476,113 @@ fn bands(xs: &[f64], cells: &[u32], cats: &Categories, log: bool) -> Vec<Band> {
                 x0,
                 x1,
                 label: cats.labels[c].clone(),
-                colour_index: cats.band_colour(c),
+                colour: cats.band_colour(c),
             }),
         }
     }
     out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::scan::axis::Axis;
+
+    fn meta(terms: usize) -> Meta {
+        let axis = |name: &str| Axis {
+            name: name.into(),
+            min: 0.0,
+            max: 1.0,
+            n: 2,
+            log: false,
+            label: None,
+            unit: None,
+        };
+        Meta {
+            fingerprint: String::new(),
+            model: "m".into(),
+            axes: vec![axis("x"), axis("y")],
+            terms: (0..terms).map(|t| format!("t{t}")).collect(),
+            target: None,
+            competitors: Vec::new(),
+            shard: None,
+            points: 4,
+            infinite: false,
+        }
+    }
+
+    fn key(outcome: &str, winner: &str) -> (String, String) {
+        (outcome.to_string(), winner.to_string())
+    }
+
+    /// Every outcome without a winner, as a scan meets them.
+    fn neutral() -> Vec<(String, String)> {
+        ["undecided", "unphysical", "failed"]
+            .iter()
+            .map(|o| key(o, ""))
+            .collect()
+    }
+
+    /// Asserts that no two categories share a map colour or a band colour,
+    /// and that unphysical points are the ℓ* map's "no value" grey.
+    fn assert_distinct(cats: &Categories) {
+        let n = cats.labels.len();
+        let bands: Vec<_> = (0..n).map(|c| cats.band_colour(c)).collect();
+        for (what, colours) in [("map", &cats.colours), ("band", &bands)] {
+            for i in 0..n {
+                for j in 0..i {
+                    assert_ne!(
+                        colours[i], colours[j],
+                        "{what}: '{}' and '{}' share a colour",
+                        cats.labels[i], cats.labels[j]
+                    );
+                }
+            }
+        }
+        let unphysical = (cats.labels.iter()).position(|l| l.starts_with("unphysical"));
+        let grey = (palette::MISSING.0, palette::MISSING.1, palette::MISSING.2);
+        assert_eq!(cats.colours[unphysical.unwrap()], grey);
+        assert_eq!(bands[unphysical.unwrap()], grey);
+    }
+
+    #[test]
+    fn winner_categories_never_share_a_colour() {
+        // Up to 20 listed terms, each winning and each spinful, generated
+        // winners after them, and every outcome without a winner.
+        for terms in [1, 4, 7, 8, 9, 20] {
+            let m = meta(terms);
+            let mut found = neutral();
+            found.push(key("gapless", ""));
+            for t in &m.terms {
+                found.push(key("strong", t));
+                found.push(key("spinful", t));
+            }
+            found.extend((0..5).map(|g| key("strong", &format!("g{g}+g{g}"))));
+            assert_distinct(&Categories::new(&m, found));
+        }
+    }
+
+    #[test]
+    fn phase_categories_never_share_a_colour() {
+        for phases in [1, 7, 8, 15] {
+            let mut found = neutral();
+            found.push(key(TARGET_PHASE, "{t0}"));
+            found.push(key(PHASE, crate::core::phase::GAPLESS));
+            found.extend((1..phases).map(|p| key(PHASE, &format!("{{t{p}}}"))));
+            assert_distinct(&Categories::new(&meta(phases), found));
+        }
+    }
+
+    #[test]
+    fn one_axis_unphysical_band_is_grey_with_the_map_wording() {
+        let cats = Categories::new(&meta(2), vec![key("strong", "t1"), key("unphysical", "")]);
+        let band = bands(&[0.0, 1.0, 2.0], &[0, 1, 1], &cats, false);
+        assert_eq!(band.len(), 2);
+        assert_eq!(band[1].label, "unphysical (V not positive definite)");
+        assert_eq!(band[1].colour, UNPHYSICAL_GREY);
+        assert_eq!((band[1].x0, band[1].x1), (0.5, 2.0));
+        // The winner's band is its term's fill colour, lightened.
+        let t1 = palette::lighten(palette::fill(1), 0.75);
+        assert_eq!(band[0].colour, (t1.0, t1.1, t1.2));
+    }
 }

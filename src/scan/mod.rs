@@ -112,7 +112,8 @@ impl<'s> Scan<'s> {
             .into());
         }
         spec.options.record = false;
-        let meta = make_meta(sys, model_bytes, &spec);
+        let mut meta = make_meta(sys, model_bytes, &spec);
+        meta.symmetry_breaks = symmetry_breaks(sys, &spec, &slots)?;
         let flow = Flow::new(sys, spec.options.clone());
         let competing = spec
             .competitors
@@ -151,13 +152,7 @@ impl<'s> Scan<'s> {
 
     /// The parameter point of a grid index.
     pub fn point(&self, index: usize) -> Vec<f64> {
-        let mut p = self.spec.base.clone();
-        let mut rest = index;
-        for (axis, &slot) in self.spec.axes.iter().zip(&self.slots) {
-            p[slot] = axis.value(rest % axis.n);
-            rest /= axis.n;
-        }
-        p
+        grid_point(&self.spec, &self.slots, index)
     }
 
     /// Flow one grid point and format its CSV row.
@@ -257,6 +252,29 @@ pub fn phase_cells(r: &FlowResult) -> Vec<String> {
     }
 }
 
+/// The declared symmetries the listed terms break over the whole grid (all
+/// shards: every shard's meta is the same).
+fn symmetry_breaks(
+    sys: &System,
+    spec: &ScanSpec,
+    slots: &[usize],
+) -> Result<Vec<crate::search::breaks::BreakCount>, Error> {
+    let count = spec.axes.iter().map(|a| a.n).product();
+    let point = |index: usize| grid_point(spec, slots, index);
+    crate::search::breaks::tally(sys, count, &point)
+}
+
+/// The parameter point of a grid index (x fastest).
+fn grid_point(spec: &ScanSpec, slots: &[usize], index: usize) -> Vec<f64> {
+    let mut p = spec.base.clone();
+    let mut rest = index;
+    for (axis, &slot) in spec.axes.iter().zip(slots) {
+        p[slot] = axis.value(rest % axis.n);
+        rest /= axis.n;
+    }
+    p
+}
+
 fn make_meta(sys: &System, model_bytes: &[u8], spec: &ScanSpec) -> Meta {
     let terms: Vec<String> = sys.model.terms.iter().map(|t| t.name.clone()).collect();
     let target = sys.model.target();
@@ -278,6 +296,7 @@ fn make_meta(sys: &System, model_bytes: &[u8], spec: &ScanSpec) -> Meta {
         shard: spec.shard,
         points: spec.axes.iter().map(|a| a.n).product(),
         infinite: sys.is_infinite(),
+        symmetry_breaks: Vec::new(),
     };
     // The fingerprint identifies the whole scan, so it leaves out the shard:
     // every shard of one scan (and the unsharded scan) carries the same

@@ -44,6 +44,12 @@ pub struct Meta {
     /// when false, so the files of other models are as before.
     #[serde(default, skip_serializing_if = "std::ops::Not::not")]
     pub infinite: bool,
+    /// The declared symmetries the listed terms break over the whole grid
+    /// (and the Z_n that V breaks), counted when the scan starts
+    /// ([`crate::search::breaks::tally`]); every shard holds the same.
+    /// Left out of the meta line when empty.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub symmetry_breaks: Vec<crate::search::breaks::BreakCount>,
 }
 
 impl Meta {
@@ -70,6 +76,16 @@ impl Meta {
             return Err(format!("{} points do not match the axes", self.points));
         }
         Ok(())
+    }
+
+    /// `x=0.1, y=2`: the axis values of point `index`.
+    pub fn describe(&self, index: usize) -> String {
+        let names = self.axes.iter().map(|a| a.name.as_str());
+        names
+            .zip(self.coords_of(index))
+            .map(|(n, v)| format!("{n}={v}"))
+            .collect::<Vec<_>>()
+            .join(", ")
     }
 
     /// The cells a row of point `index` starts with (its axis values, as
@@ -562,6 +578,7 @@ mod tests {
             shard: None,
             points: 3,
             infinite: false,
+            symmetry_breaks: vec![],
         }
     }
 

@@ -273,6 +273,11 @@ impl Tally {
             notes.extend(margin_note(t));
         }
         notes.extend(generated_winners_note(meta, &self.winners));
+        notes.extend(
+            meta.symmetry_breaks
+                .iter()
+                .map(|b| b.note(meta.points, &meta.describe(b.first))),
+        );
         if let Some(q) = flow_quadrature.as_ref().filter(|q| q.not_converged > 0) {
             notes.push(format!(
                 "at {} of the {} points the infinite array's flow is not converged in q (q_converged = false in points.csv, with q_points and q_error); `pinflow flow` at such a point says why",

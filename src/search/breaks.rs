@@ -18,6 +18,11 @@
 //! not a listed term, or one listed with another coupling or phase.
 //! Amplitudes agree to a relative 1e-12.
 //!
+//! Over many points (a scan, [`tally`]): one [`BreakCount`] per term and
+//! symmetry it breaks somewhere, with how many points and the reason at the
+//! first of them, and one per Z_n that V breaks somewhere. The U(1) checks
+//! do not depend on the point, so a model without Z_n is checked once.
+//!
 //! Invariants: only the Z_n used at the point are checked (where V breaks
 //! one, the note of [`super::symmetry::in_use`] says so and no term is
 //! flagged for it); a non-local term (K^-1 l not integral) is checked
@@ -46,6 +51,147 @@ pub struct Broken {
     pub terms: Vec<Vec<(String, String)>>,
     /// Symmetries not checked at this point (V breaks them), as notes.
     pub notes: Vec<String>,
+    /// The names of those symmetries, in model order.
+    pub unchecked: Vec<String>,
+}
+
+impl Broken {
+    /// The notes `dims` gives: one per Z_n that V breaks at the point, then
+    /// one per term and symmetry it breaks.
+    pub fn all_notes(&self, sys: &System) -> Vec<String> {
+        let mut out = self.notes.clone();
+        for (spec, found) in sys.model.terms.iter().zip(&self.terms) {
+            out.extend(found.iter().map(|(s, why)| term_note(&spec.name, s, why)));
+        }
+        out
+    }
+}
+
+/// "term \"t\" breaks the declared symmetry S: why".
+fn term_note(term: &str, symmetry: &str, why: &str) -> String {
+    format!("term \"{term}\" breaks the declared symmetry {symmetry}: {why}")
+}
+
+/// The notes of [`Broken::all_notes`] at one point (`flow`).
+pub fn notes_at(sys: &System, point: &[f64]) -> Result<Vec<String>, Error> {
+    Ok(broken_symmetries(sys, point)?.all_notes(sys))
+}
+
+/// How often a listed term breaks a declared symmetry over a set of points
+/// (a scan's meta line, its summary's notes).
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct BreakCount {
+    /// The listed term; absent: V breaks the Z_n `symmetry` at these
+    /// points, so it is not checked there.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub term: Option<String>,
+    /// The declared symmetry.
+    pub symmetry: String,
+    /// Points where it is broken.
+    pub points: usize,
+    /// Index (in the order given) of the first of them.
+    pub first: usize,
+    /// Why, at the first of them.
+    pub reason: String,
+}
+
+impl BreakCount {
+    /// The note of a scan of `total` points (`at` describes a point).
+    pub fn note(&self, total: usize, at: &str) -> String {
+        let why = term_note(
+            self.term.as_deref().unwrap_or(""),
+            &self.symmetry,
+            &self.reason,
+        );
+        match &self.term {
+            Some(_) if self.points == total => format!("{why} (at all {total} points)"),
+            Some(_) => format!(
+                "{why} (at {} of the {total} points; the reason is the one at the first, {at})",
+                self.points
+            ),
+            None => format!(
+                "symmetry {}: V breaks it (W^T V W != V) at {} of the {total} points (the first: {at}), so it is not used there",
+                self.symmetry, self.points
+            ),
+        }
+    }
+}
+
+/// The broken symmetries over `count` points (`point(i)` gives the i-th),
+/// checked one after the other (a scan prepares this before its thread
+/// pool exists) and counted in index order: terms
+/// in model order, each with its symmetries in model order, then the Z_n
+/// that V breaks. Without a Z_n only the first point is checked (the U(1)
+/// checks do not depend on it). Points where V is not valid are skipped
+/// (the flow reports them as unphysical).
+pub fn tally(
+    sys: &System,
+    count: usize,
+    point: &dyn Fn(usize) -> Vec<f64>,
+) -> Result<Vec<BreakCount>, Error> {
+    let has_zn = sys.model.symmetries.iter().any(|s| !s.is_u1());
+    if sys.model.symmetries.is_empty() || count == 0 {
+        return Ok(Vec::new());
+    }
+    let mut counts: Vec<BreakCount> = Vec::new();
+    let checked = if has_zn { count } else { 1 };
+    for i in 0..checked {
+        match broken_symmetries(sys, &point(i)) {
+            Ok(b) => add_point(&mut counts, sys, i, b),
+            // Unphysical points (their flows say so) are not checked.
+            Err(Error::Input(_) | Error::Unphysical(_)) => {}
+            Err(e) => return Err(e),
+        }
+    }
+    if !has_zn {
+        counts.iter_mut().for_each(|c| c.points = count);
+    }
+    counts.sort_by_key(|c| order_key(sys, c));
+    Ok(counts)
+}
+
+/// Count the broken symmetries of point `i`.
+fn add_point(counts: &mut Vec<BreakCount>, sys: &System, i: usize, b: Broken) {
+    let terms = sys.model.terms.iter().zip(b.terms);
+    let found = terms.flat_map(|(spec, found)| {
+        found
+            .into_iter()
+            .map(move |(s, why)| (Some(spec.name.clone()), s, why))
+    });
+    let unchecked = b.unchecked.into_iter().zip(b.notes);
+    let found = found.chain(unchecked.map(|(s, note)| (None, s, note)));
+    for (term, symmetry, reason) in found {
+        match counts
+            .iter_mut()
+            .find(|c| c.term == term && c.symmetry == symmetry)
+        {
+            Some(c) => c.points += 1,
+            None => counts.push(BreakCount {
+                term,
+                symmetry,
+                points: 1,
+                first: i,
+                reason,
+            }),
+        }
+    }
+}
+
+/// Terms in model order (each with its symmetries in model order), then
+/// the Z_n that V breaks.
+fn order_key(sys: &System, c: &BreakCount) -> (usize, usize) {
+    let terms = &sys.model.terms;
+    let t = c
+        .term
+        .as_ref()
+        .and_then(|t| terms.iter().position(|s| &s.name == t))
+        .unwrap_or(terms.len());
+    let s = sys
+        .model
+        .symmetries
+        .iter()
+        .position(|s| s.name == c.symmetry);
+    (t, s.unwrap_or(usize::MAX))
 }
 
 /// Add the broken symmetries to a `dims` report: every row's
@@ -56,10 +202,7 @@ pub fn annotate(sys: &System, point: &[f64], report: &mut DimsReport) -> Result<
     report.notes.extend(broken.notes);
     for (row, found) in report.terms.iter_mut().zip(broken.terms) {
         for (name, reason) in found {
-            report.notes.push(format!(
-                "term \"{}\" breaks the declared symmetry {name}: {reason}",
-                row.name
-            ));
+            report.notes.push(term_note(&row.name, &name, &reason));
             row.breaks_symmetry.push(name);
         }
     }
@@ -71,6 +214,7 @@ pub fn broken_symmetries(sys: &System, point: &[f64]) -> Result<Broken, Error> {
     let mut out = Broken {
         terms: vec![Vec::new(); sys.model.terms.len()],
         notes: Vec::new(),
+        unchecked: Vec::new(),
     };
     if sys.model.symmetries.is_empty() {
         return Ok(out);
@@ -88,6 +232,7 @@ pub fn broken_symmetries(sys: &System, point: &[f64]) -> Result<Broken, Error> {
                 let used = in_use(sys, point, &[s], &window)?;
                 if used.names.is_empty() {
                     out.notes.extend(used.notes);
+                    out.unchecked.push(s.name.clone());
                     continue;
                 }
                 for (i, reason) in zn_breaks(sys, &used, &window, &classes)? {

@@ -44,13 +44,31 @@ pub enum SymmetryChoice {
     Names(Vec<String>),
 }
 
-/// The symmetries chosen, checked against the model's names.
+/// The symmetries chosen, checked against the model's names (each named
+/// once).
 pub fn chosen<'m>(sys: &'m System, choice: &SymmetryChoice) -> Result<Vec<&'m Symmetry>, Error> {
     let all = &sys.model.symmetries;
     match choice {
         SymmetryChoice::All => Ok(all.iter().collect()),
         SymmetryChoice::None => Ok(Vec::new()),
-        SymmetryChoice::Names(names) => names
+        SymmetryChoice::Names(names) => {
+            let repeated = (1..names.len()).find(|&i| names[..i].contains(&names[i]));
+            if let Some(n) = repeated.map(|i| &names[i]) {
+                return Err(Error::Input(InputError::new(
+                    "command line",
+                    "--symmetry",
+                    format!("symmetry `{n}` is named twice; expected all, none or a comma-separated list of distinct names"),
+                )));
+            }
+            by_name(sys, names)
+        }
+    }
+}
+
+/// The named symmetries of the model, in the order named.
+fn by_name<'m>(sys: &'m System, names: &[String]) -> Result<Vec<&'m Symmetry>, Error> {
+    let all = &sys.model.symmetries;
+    names
             .iter()
             .map(|n| {
                 all.iter().find(|s| &s.name == n).ok_or_else(|| {
@@ -67,8 +85,7 @@ pub fn chosen<'m>(sys: &'m System, choice: &SymmetryChoice) -> Result<Vec<&'m Sy
                     ))
                 })
             })
-            .collect(),
-    }
+            .collect()
 }
 
 /// A U(1) on the search window.
