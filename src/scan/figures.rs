@@ -508,6 +508,7 @@ mod tests {
             shard: None,
             points: 4,
             infinite: false,
+            symmetry_breaks: Vec::new(),
         }
     }
 
