@@ -480,7 +480,11 @@ fn a_loose_integrator_does_not_fake_a_quadrature_error() {
         c["dimension_error"].as_f64().unwrap(),
         d["dimension_error"].as_f64().unwrap(),
     );
-    assert!(e < 1e-9 && e < 10.0 * e0, "{e} vs {e0}");
+    // The default flow's check is the in-flow estimate of the rule's own
+    // error (src/flow/qtrack.rs), far below a two-flow difference: only the
+    // loose flow's own bound is compared.
+    assert_eq!(d["method"], "estimate");
+    assert!(e < 1e-9 && e0 < 1e-9, "{e} vs {e0}");
     assert_eq!(quadrature_note(&loose), None);
 }
 

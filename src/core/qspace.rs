@@ -141,9 +141,10 @@ pub fn dimension(d: &[f64], lq: &[Complex64], points: usize, cell: usize) -> f64
     acc / (2.0 * points as f64)
 }
 
-/// Re L(q_k)^H D(q_k) L(q_k) at stored point k.
+/// Re L(q_k)^H D(q_k) L(q_k) at stored point k (the integrand of a
+/// dimension; the flow's quadrature estimate samples it, `flow::qtrack`).
 #[inline]
-fn quadratic_form(d: &[f64], lq: &[Complex64], k: usize, cell: usize) -> f64 {
+pub fn quadratic_form(d: &[f64], lq: &[Complex64], k: usize, cell: usize) -> f64 {
     let lk = &lq[k * cell..(k + 1) * cell];
     let base = 2 * k * cell * cell;
     let mut term = 0.0;

@@ -43,10 +43,14 @@
 //! ([`crate::core::qspace::Quadrature`]) an honest and, the error falling
 //! geometrically, in practice generous bound.
 //!
-//! The first comparison is usually made without the M-point flow: the
-//! N-point flow estimates its difference from it along the way
-//! ([`super::qtrack`]), and that estimate stands for the comparison when it
-//! is [`MARGIN`] times below the tolerance (`method` "estimate"); else the
+//! The first comparison is usually made without a second flow: the
+//! N-point flow estimates its own distance from the exact flow along the
+//! way ([`super::qtrack`]: the rule's error extrapolated from the
+//! integrand's cosine coefficients, which fall geometrically), and that
+//! estimate stands for the comparison when it is [`MARGIN`] times below the
+//! tolerance (`method` "estimate"). When the estimate exists but is larger,
+//! the M-point flow is skipped (it could only fail too) and the loop
+//! starts by doubling; when there is none (a decision within its reach) the
 //! M-point flow runs as above (`method` "flow"). Refinements always compare
 //! two flows.
 //!
@@ -57,7 +61,8 @@
 //!
 //! Cost: a flow costs in proportion to its number of points, so a check
 //! that passes at once costs half a flow more (the M-point flow), or a few
-//! per cent of a flow by the estimate; a fixed
+//! per cent of a flow by the estimate (which also accepts the N-point rule
+//! where the M-point one is coarse); a fixed
 //! rule costs two flows more (the 2N-point flow). Each further doubling
 //! costs the new flow. Every flow of a scan is checked in the same way, so
 //! a scan's rows are the numbers `flow` reports at the same point.
@@ -65,10 +70,10 @@
 use serde::Serialize;
 
 use super::channels::Channel;
-use super::qtrack::{Estimate, Tracker, MARGIN};
+use super::qtrack::{Estimate, Tail, Tracker, MARGIN};
 use super::rhs::FlowRhs;
 use super::{Flow, FlowResult, Integrated, Outcome, Start, CLOSURE_SLACK};
-use crate::core::qspace::{nested_dimensions, QFixedPoint, Quadrature};
+use crate::core::qspace::{QFixedPoint, Quadrature};
 use crate::error::Error;
 
 /// Default relative tolerance of the check.
@@ -99,8 +104,9 @@ pub enum StoppedBy {
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
 #[serde(rename_all = "lowercase")]
 pub enum CheckMethod {
-    /// Estimated along the flow itself ([`super::qtrack`]): the nested
-    /// half rule's sums from the same D(q), propagated to the end.
+    /// Estimated along the flow itself ([`super::qtrack`]): the rule's own
+    /// error from the integrand's cosine coefficients on it, propagated to
+    /// the end.
     Estimate,
     /// The same point flowed again on the other rule and compared.
     Flow,
@@ -114,11 +120,13 @@ pub struct QuadratureCheck {
     /// Points of the rule of the reported flow (also `quadrature.points`).
     pub points: usize,
     /// Points of the rule it was compared with (half, or twice for a fixed
-    /// rule).
+    /// rule); for `method` "estimate" half as well: the coefficients the
+    /// estimate extrapolates are the ones that rule misses.
     pub compared_with: usize,
     /// Estimated relative error of the final dimensions: the largest
     /// |Delta_N - Delta_M| / Delta_N over the flowing terms (twice that for
-    /// a fixed rule).
+    /// a fixed rule; for "estimate", the estimated |Delta_N - Delta| /
+    /// Delta_N).
     pub dimension_error: f64,
     /// Estimated error of ell*, relative to max(ell*, 1); null when one of
     /// the two flows has no ell*.
@@ -134,9 +142,9 @@ pub struct QuadratureCheck {
     /// Why the refinement stopped before converging: "cap" or "stalled";
     /// null otherwise (and for a fixed rule).
     pub stopped: Option<StoppedBy>,
-    /// "estimate": the difference from the half rule estimated along the
-    /// flow, [`MARGIN`] times below the tolerance; "flow": found by
-    /// flowing again on the other rule.
+    /// "estimate": the rule's own error estimated along the flow,
+    /// [`MARGIN`] times below the tolerance; "flow": found by flowing again
+    /// on the other rule.
     pub method: CheckMethod,
 }
 
@@ -247,7 +255,13 @@ impl Flow<'_> {
                         ..check
                     }
                 }
-                None => self.refine(point, &mut result, fp)?,
+                None => {
+                    // An estimate of the rule's own error above the margin:
+                    // the half rule's flow could only fail too, so the rule
+                    // is doubled at once.
+                    let skip_half = self.estimate_usable() && result.q_estimate.is_some();
+                    self.refine(point, &mut result, fp, skip_half)?
+                }
             },
         };
         result.flow_quadrature = Some(check);
@@ -260,11 +274,17 @@ impl Flow<'_> {
     /// also shows: with `rtol` not [`MARGIN`] times below the tolerance
     /// that error may exceed it, and the second flow runs.
     fn estimate_passes(&self, result: &FlowResult) -> Option<Difference> {
-        if self.full_check || MARGIN * self.opts.rtol > self.opts.q_tolerance {
+        if !self.estimate_usable() {
             return None;
         }
         let diff = Difference::estimated(result.q_estimate?);
         (MARGIN * diff.worst() <= self.opts.q_tolerance).then_some(diff)
+    }
+
+    /// The in-flow estimate may decide: no full check asked for, and `rtol`
+    /// [`MARGIN`] times below the tolerance.
+    fn estimate_usable(&self) -> bool {
+        !self.full_check && MARGIN * self.opts.rtol <= self.opts.q_tolerance
     }
 
     /// The tracker of a flow from `start` at its bare state `y0`: marked
@@ -280,9 +300,10 @@ impl Flow<'_> {
         let mut track = Tracker::new(rhs, y0)?;
         if let super::background::Background::Fourier { wires, cell } = start.bg {
             let bound = self.opts.closure_bound + CLOSURE_SLACK;
+            let mut tail = Tail::new(wires);
             let close = all.iter().skip(self.plan.listed).any(|ch| {
-                let (full, half) = nested_dimensions(&start.d0, &ch.lq, wires, cell);
-                (full - bound).abs() <= MARGIN * (half - full).abs()
+                let (full, err) = tail.error(&start.d0, &ch.lq, cell);
+                (full - bound).abs() <= MARGIN * err
             });
             if close {
                 track.mark_fragile();
@@ -310,6 +331,7 @@ impl Flow<'_> {
         point: &[f64],
         result: &mut FlowResult,
         mut fp: QFixedPoint,
+        skip_half: bool,
     ) -> Result<QuadratureCheck, Error> {
         let tol = self.opts.q_tolerance;
         let mut compared_with = 0;
@@ -319,8 +341,10 @@ impl Flow<'_> {
             same: false,
         };
         // The nested rule of half the points; the bare refinement always
-        // ends on an even N, and without one the loop starts by doubling.
-        if let (Some(coarse), Some(quad)) = (fp.coarsened(), result.quadrature) {
+        // ends on an even N, and without one (or when the in-flow estimate
+        // already found the rule too coarse) the loop starts by doubling.
+        let coarse = fp.coarsened().filter(|_| !skip_half);
+        if let (Some(coarse), Some(quad)) = (coarse, result.quadrature) {
             let other = self.flow_on(point, &coarse, quad, false)?;
             diff = Difference::of(&other, result);
             compared_with = coarse.points;

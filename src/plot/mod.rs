@@ -44,7 +44,7 @@ pub use map::{
 };
 
 pub use crate::error::PlotError;
-pub use style::{figure_style, set_figure_style, FigureStyle};
+pub use style::{figure_style, set_figure_style, styled, FigureStyle};
 
 /// Helpers shared by the figure tests.
 #[cfg(test)]

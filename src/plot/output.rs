@@ -80,16 +80,28 @@ pub(crate) fn msg<E: std::fmt::Display>(e: E) -> String {
 /// Renders `figure` and writes `<stem>.png`, `<stem>.svg` and
 /// `<stem>.pdf`; in the paper style also `<stem>.txt` (title, blank line,
 /// caption), since neither is drawn in.
-pub(crate) fn write_figure(stem: &Path, figure: &impl Figure) -> Result<(), PlotError> {
+pub(crate) fn write_figure(stem: &Path, figure: &(impl Figure + Sync)) -> Result<(), PlotError> {
     font::ensure_registered().map_err(|m| PlotError::new(stem, m))?;
     let png_path = with_suffix(stem, ".png");
     let svg_path = with_suffix(stem, ".svg");
     let pdf_path = with_suffix(stem, ".pdf");
-    // Render all in memory first: drawing errors never touch the disk.
-    let pixels = render_rgb(figure).map_err(|m| PlotError::new(&png_path, m))?;
-    let svg = render_svg(figure).map_err(|m| PlotError::new(&svg_path, m))?;
-    let pdf =
-        super::pdf::from_svg(&svg, style::pdf_dpi()).map_err(|m| PlotError::new(&pdf_path, m))?;
+    // Render all in memory first: drawing errors never touch the disk. The
+    // raster and the vector formats at once (each thread with the caller's
+    // thread-local style); the bytes do not depend on the thread.
+    let look = style::figure_style();
+    let (pixels, vector) = rayon::join(
+        || style::styled(look, || render_rgb(figure)),
+        || {
+            style::styled(look, || {
+                let svg = render_svg(figure).map_err(|m| PlotError::new(&svg_path, m))?;
+                let pdf = super::pdf::from_svg(&svg, style::pdf_dpi())
+                    .map_err(|m| PlotError::new(&pdf_path, m))?;
+                Ok::<_, PlotError>((svg, pdf))
+            })
+        },
+    );
+    let pixels = pixels.map_err(|m| PlotError::new(&png_path, m))?;
+    let (svg, pdf) = vector?;
     ensure_parent(&png_path)?;
     save_png(&png_path, &pixels)?;
     save_bytes(&svg_path, svg.as_bytes())?;

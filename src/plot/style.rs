@@ -34,6 +34,16 @@ pub fn figure_style() -> FigureStyle {
     STYLE.with(|s| s.get())
 }
 
+/// `f` run with `style` set on this thread, the thread's own style restored
+/// afterwards (figures drawn on rayon's threads take the caller's style).
+pub fn styled<R>(style: FigureStyle, f: impl FnOnce() -> R) -> R {
+    let before = figure_style();
+    set_figure_style(style);
+    let out = f();
+    set_figure_style(before);
+    out
+}
+
 /// Canvas size in pixels.
 pub(crate) fn canvas() -> (u32, u32) {
     match figure_style() {

@@ -136,8 +136,15 @@ impl Canvas {
                 &["phase"]
             }
             Shape::Map { ell, lines } => {
-                phase_figure(dir, meta, cells, lines, &cats, by)?;
-                ell_star_figure(dir, meta, ell)?;
+                // Two independent figures, drawn at once (each thread with
+                // the caller's figure style: it is per thread).
+                let style = plot::figure_style();
+                let (phase, ell_star) = rayon::join(
+                    || plot::styled(style, || phase_figure(dir, meta, cells, lines, &cats, by)),
+                    || plot::styled(style, || ell_star_figure(dir, meta, ell)),
+                );
+                phase?;
+                ell_star?;
                 &["phase", "ell_star"]
             }
         };
@@ -501,6 +508,7 @@ mod tests {
             shard: None,
             points: 4,
             infinite: false,
+            symmetry_breaks: Vec::new(),
         }
     }
 
