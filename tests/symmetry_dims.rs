@@ -53,6 +53,18 @@ fn annotated(sys: &System, set: &[(&str, f64)]) -> DimsReport {
     r
 }
 
+/// g1 backscattering and the spin-flip pair of the spinful wire.
+const G1_AND_SPIN_FLIP_PAIR: &str = r#"
+[[term]]
+name = "g1"
+particles = [1, -1, -1, 1]
+coupling = 0.1
+[[term]]
+name = "spin_flip_pair"
+particles = [1, 1, -1, -1]
+coupling = 0.1
+"#;
+
 fn breaks(r: &DimsReport, name: &str) -> Vec<String> {
     common::term(r, name).breaks_symmetry.clone()
 }
@@ -63,18 +75,7 @@ fn spin_flip_pair_breaks_sz_and_g1_breaks_nothing() {
     // (1, 1, -1, -1): 1 + 1 + 1 + 1 = 4 (S_z = 2 in units of 1/2). Both
     // map to minus themselves under the flip (W^-1 m = -m), which a real
     // cosine (chi = 0) is invariant under.
-    let sys = system(&spinful(
-        r#"
-[[term]]
-name = "g1"
-particles = [1, -1, -1, 1]
-coupling = 0.1
-[[term]]
-name = "spin_flip_pair"
-particles = [1, 1, -1, -1]
-coupling = 0.1
-"#,
-    ));
+    let sys = system(&spinful(G1_AND_SPIN_FLIP_PAIR));
     let r = annotated(&sys, &[]);
     assert!(breaks(&r, "g1").is_empty(), "{:?}", breaks(&r, "g1"));
     assert_eq!(breaks(&r, "spin_flip_pair"), vec!["Sz".to_string()]);
@@ -188,18 +189,7 @@ fn flow_notes_the_listed_term_that_breaks_a_declared_u1() {
     // Giamarchi (2004), ch. 7: the spin-flip pair m = (1, 1, -1, -1)
     // carries S_z charge 1 + 1 + 1 + 1 = 4 (in units of 1/2) against the
     // declared charge (1, 1, -1, -1); g1 (m = (1, -1, -1, 1)) carries 0.
-    let (dir, path) = model_file(
-        r#"
-[[term]]
-name = "g1"
-particles = [1, -1, -1, 1]
-coupling = 0.1
-[[term]]
-name = "spin_flip_pair"
-particles = [1, 1, -1, -1]
-coupling = 0.1
-"#,
-    );
+    let (dir, path) = model_file(G1_AND_SPIN_FLIP_PAIR);
     let out = common::pinflow(dir.path())
         .args(["flow", path.to_str().unwrap(), "--format", "json"])
         .assert()
