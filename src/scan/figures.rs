@@ -199,6 +199,8 @@ impl Keys {
 struct Categories {
     labels: Vec<String>,
     colours: Vec<(u8, u8, u8)>,
+    /// Fill of each category's band in a one-axis scan ([`band_colours`]).
+    bands: Vec<(u8, u8, u8)>,
     /// Display index of each first-appearance number.
     display: Vec<u32>,
 }
@@ -233,7 +235,7 @@ impl Categories {
                 None => phases + meta.terms.len() + extra.iter().position(|x| *x == w).unwrap_or(0),
             })
             .collect();
-        let colours = keys
+        let colours: Vec<(u8, u8, u8)> = keys
             .iter()
             .zip(&term_colour)
             .map(|(k, &t)| match (k.0.as_str(), k.1.as_str()) {
@@ -242,9 +244,11 @@ impl Categories {
                 (o, _) => colour(o, t),
             })
             .collect();
+        let bands = band_colours(meta, &keys, &colours);
         Categories {
             labels,
             colours,
+            bands,
             display,
         }
     }
@@ -256,12 +260,42 @@ impl Categories {
         }
     }
 
-    /// Fill of a category's band in a one-axis scan: the phase map's
-    /// colour, lightened for the coloured (winner, phase) categories so
-    /// that the lines on top stay legible; the greys as in the map.
+    /// Fill of a category's band in a one-axis scan.
     fn band_colour(&self, c: usize) -> (u8, u8, u8) {
-        band_shade(self.colours[c])
+        self.bands[c]
     }
+}
+
+/// Band fills of a one-axis scan, drawn under one line per listed term in
+/// that term's colour: the map's colours lightened (the lines on top stay
+/// legible), the greys as in the map. A winner's band takes its term's
+/// colour already; so does a phase that pins one listed term alone, and
+/// every other phase takes a colour after all listed terms', so that no
+/// band shares its hue with the line of a term it is not about.
+fn band_colours(
+    meta: &Meta,
+    keys: &[(String, String)],
+    colours: &[(u8, u8, u8)],
+) -> Vec<(u8, u8, u8)> {
+    let mut others = 0;
+    let mut phase_colour = |set: &str| {
+        let single = set.strip_prefix('{').and_then(|s| s.strip_suffix('}'));
+        match single.and_then(|t| meta.terms.iter().position(|x| x == t)) {
+            Some(t) => colour("strong", t),
+            None => {
+                others += 1;
+                colour("strong", meta.terms.len() + others - 1)
+            }
+        }
+    };
+    keys.iter()
+        .zip(colours)
+        .map(|((o, w), &c)| match (o.as_str(), w.as_str()) {
+            (PHASE, crate::core::phase::GAPLESS) => band_shade(c),
+            (o, set) if is_phase(o) => band_shade(phase_colour(set)),
+            _ => band_shade(c),
+        })
+        .collect()
 }
 
 /// Category kinds of the phase map coloured by phase.
@@ -585,5 +619,30 @@ mod tests {
         // The winner's band is its term's fill colour, lightened.
         let t1 = palette::lighten(palette::fill(1), 0.75);
         assert_eq!(band[0].colour, (t1.0, t1.1, t1.2));
+    }
+
+    #[test]
+    fn phase_bands_take_no_other_terms_line_colour() {
+        // Terms t0..t3 draw lines in fill colours 0..3. The phase {t2}
+        // takes t2's; {t0, t1} and {g} (a generated term) take 4 and 5
+        // (in display order).
+        let m = meta(4);
+        let mut found = neutral();
+        for set in ["{t0, t1}", "{t2}", "{g}"] {
+            found.push(key(PHASE, set));
+        }
+        let cats = Categories::new(&m, found);
+        let band_of = |set: &str| {
+            let c = (cats.labels.iter()).position(|l| l.starts_with(set));
+            cats.band_colour(c.unwrap())
+        };
+        let shade = |i: usize| band_shade(colour("strong", i));
+        assert_eq!(band_of("{t2}"), shade(2));
+        let mut others = [band_of("{t0, t1}"), band_of("{g}")];
+        others.sort();
+        let mut want = [shade(4), shade(5)];
+        want.sort();
+        assert_eq!(others, want);
+        assert_distinct(&cats);
     }
 }
