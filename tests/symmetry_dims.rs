@@ -65,6 +65,17 @@ particles = [1, 1, -1, -1]
 coupling = 0.1
 "#;
 
+/// The notes of a JSON output that say a term breaks a declared symmetry.
+fn broken_symmetry_notes(v: &serde_json::Value) -> Vec<&str> {
+    v["notes"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter_map(|n| n.as_str())
+        .filter(|n| n.contains("breaks the declared symmetry"))
+        .collect()
+}
+
 fn breaks(r: &DimsReport, name: &str) -> Vec<String> {
     common::term(r, name).breaks_symmetry.clone()
 }
@@ -195,13 +206,7 @@ fn flow_notes_the_listed_term_that_breaks_a_declared_u1() {
         .assert()
         .success();
     let json = common::without_provenance(&out.get_output().stdout);
-    let notes: Vec<&str> = json["notes"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .filter_map(|n| n.as_str())
-        .filter(|n| n.contains("breaks the declared symmetry"))
-        .collect();
+    let notes = broken_symmetry_notes(&json);
     assert_eq!(notes.len(), 1, "{notes:#?}");
     assert!(
         notes[0].contains("\"spin_flip_pair\"") && notes[0].contains("Sz charge 4"),
@@ -246,13 +251,7 @@ coupling = "y2"
         .success();
     let summary: serde_json::Value =
         serde_json::from_slice(&std::fs::read(out.join("summary.json")).unwrap()).unwrap();
-    let notes: Vec<&str> = summary["notes"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .filter_map(|n| n.as_str())
-        .filter(|n| n.contains("breaks the declared symmetry"))
-        .collect();
+    let notes = broken_symmetry_notes(&summary);
     assert_eq!(notes.len(), 2, "{notes:#?}");
     assert!(notes[0].contains("\"bs_up\"") && notes[1].contains("\"bs_dn\""));
     for n in &notes {
