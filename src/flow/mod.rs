@@ -758,7 +758,7 @@ impl<'s> Flow<'s> {
                 .family
                 .translates
                 .iter()
-                .all(|t| pairing.commute(&win.family.rep().l, &t.l));
+                .all(|t| pairing.scaled_parts(&win.family.rep().parts, &t.parts) == 0);
             let list = if commutes {
                 &mut result.commuting_with_winner
             } else {
