@@ -687,7 +687,7 @@ impl CellSolutions {
         lat: &Lattice,
         inv: &[Vec<Rational>],
         t: &Translate,
-    ) -> (Vec<(usize, f64)>, Vec<(usize, f64)>) {
+    ) -> (SparseVector, SparseVector) {
         let mut on_wires: BTreeMap<usize, Vec<i64>> = BTreeMap::new();
         for (wire, v) in &t.parts {
             let sum = on_wires.entry(*wire).or_insert_with(|| vec![0; lat.cell]);
@@ -709,6 +709,9 @@ impl CellSolutions {
         (l, g)
     }
 }
+
+/// (field, value) of the nonzero entries, in field order.
+type SparseVector = Vec<(usize, f64)>;
 
 /// (base + i, x) for the nonzero x of a cell's values.
 fn nonzero(base: usize, values: impl Iterator<Item = f64>) -> impl Iterator<Item = (usize, f64)> {
