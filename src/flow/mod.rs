@@ -47,6 +47,7 @@ pub mod channels;
 pub mod check;
 pub mod competitors;
 pub mod kt;
+pub mod limits;
 mod ope;
 pub mod options;
 pub mod progress;
