@@ -719,6 +719,7 @@ pub fn hunt_with_progress(
     let window = Window::choose(sys, opts.range)?;
     let chosen = symmetry::chosen(sys, &opts.symmetry)?;
     let momenta = Momenta::at(sys, point, opts)?;
+    sys.check_dense_size(opts.force)?;
     let d_full = window_d(sys, point, &window)?;
     let sym = symmetry::in_use(sys, point, &chosen, &window)?;
     let space = Space::new(sys, &d_full, window, sym);
