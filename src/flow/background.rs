@@ -52,6 +52,7 @@ use num_complex::Complex64;
 
 use super::channels::Channel;
 use crate::core::qspace;
+use crate::math::banded;
 
 /// Storage of D inside the ODE state.
 #[derive(Debug, Clone)]
@@ -263,12 +264,18 @@ fn dense_feedback(n: usize, s: &[f64], ch: &Channel, c: f64, ds: &mut [f64], u: 
 /// translates' outer products summed ([`Background::outer`]).
 #[derive(Debug, Clone)]
 pub enum Outer {
-    /// Sparse (row-major index, value) of sum_t l_t l_t^T and sum_t g_t g_t^T.
+    /// The upper triangles (i <= j) of sum_t l_t l_t^T and sum_t g_t g_t^T
+    /// on the union of their entries, as parallel arrays (so one index
+    /// serves both sums).
     Dense {
-        /// sum_t l_t l_t^T.
-        ll: Vec<(usize, f64)>,
-        /// sum_t g_t g_t^T.
-        gg: Vec<(usize, f64)>,
+        /// Row-major index i n + j of each entry, i <= j, ascending.
+        at: Vec<usize>,
+        /// sum_t l_t l_t^T at `at`.
+        ll: Vec<f64>,
+        /// sum_t g_t g_t^T at `at`.
+        gg: Vec<f64>,
+        /// The largest j - i among the entries (half-bandwidth).
+        band: usize,
     },
     /// L(q) L(q)^H and G(q) G(q)^H on every stored q, interleaved (re, im),
     /// in the layout of the state.
@@ -297,16 +304,41 @@ pub struct Work {
     nq: Vec<f64>,
     /// Fourier: D times each block's share of the sum over q.
     dw: Vec<f64>,
+    /// Dense: how D M D is formed.
+    pub route: DenseRoute,
+    /// Dense: half-bandwidth of M and N on the last evaluation.
+    bm: usize,
 }
+
+/// How the dense layout forms D M D ([`Background::evaluate`]).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum DenseRoute {
+    /// The banded product where it costs less than the dense one, decided
+    /// on every evaluation from D's bandwidth (the default).
+    Auto,
+    /// Always the dense product (gemm).
+    Full,
+    /// Always the banded product (tests).
+    Banded,
+}
+
+/// Entries of D below this fraction of D's largest entry count as zero in
+/// the banded product (docs/flow-options.md, "Dense D: the banded
+/// product"): a few units of rounding of D's largest entry, the accuracy
+/// to which D is known at all (the far entries of the bare D of an open
+/// 200-wire strip are rounding noise up to 3.5 units).
+pub const BAND_TOL: f64 = 8.0 * f64::EPSILON;
+
+/// How many times faster per multiply-add the dense product (gemm) runs
+/// than the banded loops (measured, benches/README.md): the banded route is
+/// taken when its count of multiply-adds times this is below 2 n^3.
+const GEMM_ADVANTAGE: f64 = 3.0;
 
 impl Background {
     /// The precomputed outer products of a channel on this layout.
     pub fn outer(&self, ch: &Channel) -> Outer {
         match *self {
-            Background::Dense { n } => Outer::Dense {
-                ll: sparse_sum(n, &ch.l_sparse),
-                gg: sparse_sum(n, &ch.g_sparse),
-            },
+            Background::Dense { n } => dense_outer(n, ch),
             Background::Fourier { wires, cell } => Outer::Fourier {
                 ll: block_outer(&ch.lq, half(wires), cell),
                 gg: block_outer(&ch.gq, half(wires), cell),
@@ -333,6 +365,8 @@ impl Background {
             mq: vec![0.0; q],
             nq: vec![0.0; q],
             dw: vec![0.0; q],
+            route: DenseRoute::Auto,
+            bm: 0,
         }
     }
 
@@ -355,19 +389,8 @@ impl Background {
     ) {
         match *self {
             Background::Dense { n } => {
-                let mut any = false;
-                work.m.fill(0.0);
-                work.n.fill(0.0);
-                for &c in live {
-                    dims[c] = self.dimension(s, channels[c]);
-                    if let (true, Some(Outer::Dense { ll, gg })) = (weight[c] > 0.0, &outer[c]) {
-                        let coef = -weight[c] / 8.0;
-                        add_sparse(work.m.as_mut_slice(), ll, coef);
-                        add_sparse(work.n.as_mut_slice(), gg, coef);
-                        any = true;
-                    }
-                }
-                if any {
+                let live = (channels, live, outer, weight);
+                if dense_sums(self, n, s, live, dims, work) {
                     dense_products(n, s, ds, work);
                 }
             }
@@ -464,33 +487,118 @@ fn axpy(y: &mut [f64], x: &[f64], c: f64) {
     }
 }
 
-/// sum_t v_t v_t^T of sparse vectors, as sparse (row-major index, value)
-/// in index order.
-fn sparse_sum(n: usize, vs: &[Vec<(usize, f64)>]) -> Vec<(usize, f64)> {
+/// The channel's [`Outer::Dense`]: sum_t v_t v_t^T of its l and its g,
+/// upper triangle, on the union of the two sums' entries.
+fn dense_outer(n: usize, ch: &Channel) -> Outer {
     let mut acc = std::collections::BTreeMap::new();
-    for v in vs {
-        for &(i, x) in v {
-            for &(j, y) in v {
-                *acc.entry(i * n + j).or_insert(0.0) += x * y;
+    for (which, vs) in [(0, &ch.l_sparse), (1, &ch.g_sparse)] {
+        for v in vs {
+            for &(i, x) in v {
+                for &(j, y) in v.iter().filter(|&&(j, _)| j >= i) {
+                    acc.entry(i * n + j).or_insert([0.0; 2])[which] += x * y;
+                }
             }
         }
     }
-    acc.into_iter().filter(|&(_, v)| v != 0.0).collect()
-}
-
-/// a[at] += coef * v over sparse entries. M and N are symmetric, so the
-/// row-major index names the same entry in nalgebra's column-major storage.
-#[inline]
-fn add_sparse(a: &mut [f64], sparse: &[(usize, f64)], coef: f64) {
-    for &(at, v) in sparse {
-        a[at] += coef * v;
+    acc.retain(|_, v| v[0] != 0.0 || v[1] != 0.0);
+    let band = acc.keys().map(|&p| p % n - p / n).max().unwrap_or(0);
+    Outer::Dense {
+        at: acc.keys().copied().collect(),
+        ll: acc.values().map(|v| v[0]).collect(),
+        gg: acc.values().map(|v| v[1]).collect(),
+        band,
     }
 }
 
-/// ds += (D M D + (D M D)^T)/2 - N for the dense layout (M, N in `work`).
-/// The state holds D row-major; read column-major it is D^T, so the
-/// products give D^T M D^T, which is D M D for the symmetric D.
+/// Half-bandwidth of M and N: the widest [`Outer::Dense`] of any channel
+/// (live or not, so the band zeroed on every evaluation covers every entry
+/// ever written).
+fn outer_band(outer: &[Option<Outer>]) -> usize {
+    (outer.iter())
+        .map(|o| match o {
+            Some(Outer::Dense { band, .. }) => *band,
+            _ => 0,
+        })
+        .max()
+        .unwrap_or(0)
+}
+
+/// The dense layout's dimensions into `dims`, and M, N (both triangles,
+/// within their band `work.bm`) into `work`; false when no channel feeds
+/// back.
+fn dense_sums(
+    bg: &Background,
+    n: usize,
+    s: &[f64],
+    (channels, live, outer, weight): Live<'_, '_>,
+    dims: &mut [f64],
+    work: &mut Work,
+) -> bool {
+    let bm = outer_band(outer);
+    work.bm = bm;
+    let (m, nn) = (work.m.as_mut_slice(), work.n.as_mut_slice());
+    for i in 0..n {
+        let r = i * n + i..i * n + (i + bm + 1).min(n);
+        m[r.clone()].fill(0.0);
+        nn[r].fill(0.0);
+    }
+    let mut any = false;
+    for &c in live {
+        dims[c] = bg.dimension(s, channels[c]);
+        if let (true, Some(Outer::Dense { at, ll, gg, .. })) = (weight[c] > 0.0, &outer[c]) {
+            let coef = -weight[c] / 8.0;
+            for ((&p, x), y) in at.iter().zip(ll).zip(gg) {
+                m[p] += coef * x;
+                nn[p] += coef * y;
+            }
+            any = true;
+        }
+    }
+    for i in 0..n {
+        for j in i + 1..(i + bm + 1).min(n) {
+            m[j * n + i] = m[i * n + j];
+            nn[j * n + i] = nn[i * n + j];
+        }
+    }
+    any
+}
+
+/// ds += (D M D + (D M D)^T)/2 - N for the dense layout (M, N in `work`),
+/// by the banded or the dense product as `work.route` says.
 fn dense_products(n: usize, s: &[f64], ds: &mut [f64], work: &mut Work) {
+    let bm = work.bm;
+    let b = match work.route {
+        DenseRoute::Full => None,
+        route => {
+            let b = banded::bandwidth(s, n, BAND_TOL * banded::max_abs(s));
+            let dense = 2.0 * (n as f64).powi(3);
+            let cheap = banded::triple_cost(n, b, bm) * GEMM_ADVANTAGE < dense;
+            (route == DenseRoute::Banded || cheap).then_some(b)
+        }
+    };
+    let Some(b) = b else {
+        return gemm_products(n, s, ds, work);
+    };
+    let (t, r) = (work.t.as_mut_slice(), work.r.as_mut_slice());
+    banded::sym_triple(n, s, b, work.m.as_slice(), bm, t, r);
+    let nn = work.n.as_slice();
+    for i in 0..n {
+        let row = i * n..(i + 1) * n;
+        let (dsi, ri, ni) = (&mut ds[row.clone()], &r[row.clone()], &nn[row]);
+        let w = 2 * b + bm;
+        for j in i.saturating_sub(w)..(i + w + 1).min(n) {
+            dsi[j] += ri[j];
+        }
+        for j in i.saturating_sub(bm)..(i + bm + 1).min(n) {
+            dsi[j] -= ni[j];
+        }
+    }
+}
+
+/// The dense product of [`dense_products`]. The state holds D row-major;
+/// read column-major it is D^T, so the products give D^T M D^T, which is
+/// D M D for the symmetric D.
+fn gemm_products(n: usize, s: &[f64], ds: &mut [f64], work: &mut Work) {
     let d = DMatrixView::from_slice(s, n, n);
     work.t.gemm(1.0, &d, &work.m, 0.0);
     work.r.gemm(1.0, &work.t, &d, 0.0);
