@@ -266,7 +266,9 @@ fn dense_feedback(n: usize, s: &[f64], ch: &Channel, c: f64, ds: &mut [f64], u: 
 pub enum Outer {
     /// The upper triangles (i <= j) of sum_t l_t l_t^T and sum_t g_t g_t^T
     /// on the union of their entries, as parallel arrays (so one index
-    /// serves both sums).
+    /// serves both sums). After [`Background::merge_outer`], `ll` and `gg`
+    /// run over the positions `start..` of the union of every channel's
+    /// entries ([`Work`]), with zeros where the channel has none.
     Dense {
         /// Row-major index i n + j of each entry, i <= j, ascending.
         at: Vec<usize>,
@@ -276,6 +278,8 @@ pub enum Outer {
         gg: Vec<f64>,
         /// The largest j - i among the entries (half-bandwidth).
         band: usize,
+        /// Position of `at[0]` in the union (set by the merge).
+        start: usize,
     },
     /// L(q) L(q)^H and G(q) G(q)^H on every stored q, interleaved (re, im),
     /// in the layout of the state.
@@ -298,15 +302,21 @@ pub struct Work {
     t: DMatrix<f64>,
     /// D M D (dense only).
     r: DMatrix<f64>,
-    /// Fourier: M of every stored block, laid out like the state's D.
+    /// Fourier: M of every stored block, laid out like the state's D;
+    /// dense: M on the union `u`.
     mq: Vec<f64>,
-    /// Fourier: N of every stored block.
+    /// Fourier: N of every stored block; dense: N on the union `u`.
     nq: Vec<f64>,
+    /// Dense: the union of every channel's entries of M and N (row-major
+    /// positions, upper triangle, ascending; [`Background::merge_outer`]).
+    u: Vec<usize>,
+    /// Dense: the transposed positions of `u`.
+    ut: Vec<usize>,
     /// Fourier: D times each block's share of the sum over q.
     dw: Vec<f64>,
     /// Dense: how D M D is formed.
     pub route: DenseRoute,
-    /// Dense: half-bandwidth of M and N on the last evaluation.
+    /// Dense: half-bandwidth of M and N (every channel's entries).
     bm: usize,
 }
 
@@ -330,9 +340,12 @@ pub enum DenseRoute {
 pub const BAND_TOL: f64 = 8.0 * f64::EPSILON;
 
 /// How many times faster per multiply-add the dense product (gemm) runs
-/// than the banded loops (measured, benches/README.md): the banded route is
-/// taken when its count of multiply-adds times this is below 2 n^3.
-const GEMM_ADVANTAGE: f64 = 3.0;
+/// than the banded loops: the banded route is taken when its count of
+/// multiply-adds times this is below 2 n^3. Measured (benches/README.md):
+/// on the 32-field strip (b about 8, 4.7x fewer operations) the banded
+/// route took 1.8x longer than gemm, so about 8x per operation; on the
+/// 400-field strip it has 30-100x fewer operations and wins.
+const GEMM_ADVANTAGE: f64 = 10.0;
 
 impl Background {
     /// The precomputed outer products of a channel on this layout.
@@ -367,6 +380,8 @@ impl Background {
             dw: vec![0.0; q],
             route: DenseRoute::Auto,
             bm: 0,
+            u: Vec::new(),
+            ut: Vec::new(),
         }
     }
 
@@ -390,7 +405,7 @@ impl Background {
         match *self {
             Background::Dense { n } => {
                 let live = (channels, live, outer, weight);
-                if dense_sums(self, n, s, live, dims, work) {
+                if dense_sums(self, s, live, dims, work) {
                     dense_products(n, s, ds, work);
                 }
             }
@@ -507,58 +522,83 @@ fn dense_outer(n: usize, ch: &Channel) -> Outer {
         ll: acc.values().map(|v| v[0]).collect(),
         gg: acc.values().map(|v| v[1]).collect(),
         band,
+        start: 0,
     }
 }
 
-/// Half-bandwidth of M and N: the widest [`Outer::Dense`] of any channel
-/// (live or not, so the band zeroed on every evaluation covers every entry
-/// ever written).
-fn outer_band(outer: &[Option<Outer>]) -> usize {
-    (outer.iter())
-        .map(|o| match o {
-            Some(Outer::Dense { band, .. }) => *band,
-            _ => 0,
-        })
-        .max()
-        .unwrap_or(0)
+impl Background {
+    /// Dense layout: merge the channels' [`Outer::Dense`] into one list of
+    /// positions (the union, kept in `work`) and re-express each channel's
+    /// sums as a contiguous stretch of it, so that M and N on the union are
+    /// sums of contiguous arrays ([`dense_sums`]). Call once per flow, after
+    /// [`Background::outer`] and [`Background::work`]; nothing on the
+    /// Fourier layout.
+    pub fn merge_outer(&self, outer: &mut [Option<Outer>], work: &mut Work) {
+        let Background::Dense { n } = *self else {
+            return;
+        };
+        let mut union = std::collections::BTreeSet::new();
+        for o in outer.iter() {
+            if let Some(Outer::Dense { at, .. }) = o {
+                union.extend(at.iter().copied());
+            }
+        }
+        work.u = union.into_iter().collect();
+        work.ut = work.u.iter().map(|&p| (p % n) * n + p / n).collect();
+        work.mq = vec![0.0; work.u.len()];
+        work.nq = vec![0.0; work.u.len()];
+        work.bm = 0;
+        for o in outer.iter_mut() {
+            if let Some(Outer::Dense {
+                at,
+                ll,
+                gg,
+                band,
+                start,
+            }) = o
+            {
+                work.bm = work.bm.max(*band);
+                let Some((&first, &last)) = at.first().zip(at.last()) else {
+                    continue;
+                };
+                let pos = |p: usize| work.u.binary_search(&p).expect("in the union");
+                let (lo, hi) = (pos(first), pos(last) + 1);
+                let (mut l, mut g) = (vec![0.0; hi - lo], vec![0.0; hi - lo]);
+                for (k, &p) in at.iter().enumerate() {
+                    (l[pos(p) - lo], g[pos(p) - lo]) = (ll[k], gg[k]);
+                }
+                (*ll, *gg, *start) = (l, g, lo);
+            }
+        }
+    }
 }
 
-/// The dense layout's dimensions into `dims`, and M, N (both triangles,
-/// within their band `work.bm`) into `work`; false when no channel feeds
-/// back.
+/// The dense layout's dimensions into `dims`, and M, N (both triangles:
+/// the union's positions, the rest stays zero) into `work`; false when no
+/// channel feeds back. Needs [`Background::merge_outer`].
 fn dense_sums(
     bg: &Background,
-    n: usize,
     s: &[f64],
     (channels, live, outer, weight): Live<'_, '_>,
     dims: &mut [f64],
     work: &mut Work,
 ) -> bool {
-    let bm = outer_band(outer);
-    work.bm = bm;
-    let (m, nn) = (work.m.as_mut_slice(), work.n.as_mut_slice());
-    for i in 0..n {
-        let r = i * n + i..i * n + (i + bm + 1).min(n);
-        m[r.clone()].fill(0.0);
-        nn[r].fill(0.0);
-    }
+    work.mq.fill(0.0);
+    work.nq.fill(0.0);
     let mut any = false;
     for &c in live {
         dims[c] = bg.dimension(s, channels[c]);
-        if let (true, Some(Outer::Dense { at, ll, gg, .. })) = (weight[c] > 0.0, &outer[c]) {
+        if let (true, Some(Outer::Dense { ll, gg, start, .. })) = (weight[c] > 0.0, &outer[c]) {
             let coef = -weight[c] / 8.0;
-            for ((&p, x), y) in at.iter().zip(ll).zip(gg) {
-                m[p] += coef * x;
-                nn[p] += coef * y;
-            }
+            axpy(&mut work.mq[*start..*start + ll.len()], ll, coef);
+            axpy(&mut work.nq[*start..*start + gg.len()], gg, coef);
             any = true;
         }
     }
-    for i in 0..n {
-        for j in i + 1..(i + bm + 1).min(n) {
-            m[j * n + i] = m[i * n + j];
-            nn[j * n + i] = nn[i * n + j];
-        }
+    let (m, nn) = (work.m.as_mut_slice(), work.n.as_mut_slice());
+    for (k, (&p, &pt)) in work.u.iter().zip(&work.ut).enumerate() {
+        (m[p], m[pt]) = (work.mq[k], work.mq[k]);
+        (nn[p], nn[pt]) = (work.nq[k], work.nq[k]);
     }
     any
 }

@@ -167,20 +167,22 @@ impl<'a> FlowRhs<'a> {
         ope: Vec<OpeEntry>,
     ) -> Self {
         let n = channels.len();
-        let scratch = RefCell::new(Scratch {
-            weight: vec![0.0; n],
-            dims: vec![0.0; n],
-            work: bg.work(),
-            reference: vec![0.0; bg.scratch_len()],
-        });
         let null: Vec<bool> = channels.iter().map(|c| c.null()).collect();
         // On the Fourier layout every channel's L L^H gives its dimension
         // (see `Background::evaluate`); elsewhere only null channels need one.
         let fourier = matches!(bg, Background::Fourier { .. });
-        let outer = channels
+        let mut outer: Vec<_> = channels
             .iter()
             .map(|c| (c.null() || fourier).then(|| bg.outer(c)))
             .collect();
+        let mut work = bg.work();
+        bg.merge_outer(&mut outer, &mut work);
+        let scratch = RefCell::new(Scratch {
+            weight: vec![0.0; n],
+            dims: vec![0.0; n],
+            work,
+            reference: vec![0.0; bg.scratch_len()],
+        });
         let real = (0..n).filter(|&c| channels[c].real_only()).collect();
         // A rank-one update costs ~n^2 per translate, the two products 2 n^3
         // (at several times the speed per operation): with fewer null
