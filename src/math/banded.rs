@@ -154,7 +154,7 @@ mod tests {
         a[8 * n + 3] = 1e-3;
         assert_eq!(bandwidth(&a, n, 0.0), 5);
         assert_eq!(bandwidth(&a, n, 0.01), 2);
-        a[1 * n + 7] = 0.5;
+        a[n + 7] = 0.5;
         assert_eq!(bandwidth(&a, n, 0.01), 6);
         assert_eq!(bandwidth(&vec![0.0; n * n], n, 0.0), 0);
     }
