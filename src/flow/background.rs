@@ -505,22 +505,40 @@ fn axpy(y: &mut [f64], x: &[f64], c: f64) {
 /// The channel's [`Outer::Dense`]: sum_t v_t v_t^T of its l and its g,
 /// upper triangle, on the union of the two sums' entries.
 fn dense_outer(n: usize, ch: &Channel) -> Outer {
-    let mut acc = std::collections::BTreeMap::new();
+    // Every product, then a stable sort by position: each position's
+    // products are summed in the order they were made.
+    let mut terms = Vec::new();
     for (which, vs) in [(0, &ch.l_sparse), (1, &ch.g_sparse)] {
         for v in vs {
             for &(i, x) in v {
                 for &(j, y) in v.iter().filter(|&&(j, _)| j >= i) {
-                    acc.entry(i * n + j).or_insert([0.0; 2])[which] += x * y;
+                    terms.push((i * n + j, which, x * y));
                 }
             }
         }
     }
-    acc.retain(|_, v| v[0] != 0.0 || v[1] != 0.0);
-    let band = acc.keys().map(|&p| p % n - p / n).max().unwrap_or(0);
+    terms.sort_by_key(|&(p, which, _)| (p, which));
+    let (mut at, mut ll, mut gg) = (Vec::new(), Vec::new(), Vec::new());
+    for &(p, which, v) in &terms {
+        if at.last() != Some(&p) {
+            at.push(p);
+            ll.push(0.0);
+            gg.push(0.0);
+        }
+        let sums = [&mut ll, &mut gg];
+        *sums[which].last_mut().expect("pushed") += v;
+    }
+    let kept: Vec<usize> = (0..at.len())
+        .filter(|&k| ll[k] != 0.0 || gg[k] != 0.0)
+        .collect();
+    let at: Vec<usize> = kept.iter().map(|&k| at[k]).collect();
+    let ll: Vec<f64> = kept.iter().map(|&k| ll[k]).collect();
+    let gg: Vec<f64> = kept.iter().map(|&k| gg[k]).collect();
+    let band = at.iter().map(|&p| p % n - p / n).max().unwrap_or(0);
     Outer::Dense {
-        at: acc.keys().copied().collect(),
-        ll: acc.values().map(|v| v[0]).collect(),
-        gg: acc.values().map(|v| v[1]).collect(),
+        at,
+        ll,
+        gg,
         band,
         start: 0,
     }
