@@ -43,9 +43,15 @@
 //! is Hermitian with a real diagonal, so D stays symmetric (Hermitian per q)
 //! to rounding of its own entries.
 //!
-//! Neither layout allocates per evaluation: callers pass a [`Work`] from
-//! [`Background::work`] (or scratch space of `scratch_len()` for the
-//! reference route).
+//! Dense layout: every channel's sums lie on one merged list of positions
+//! ([`Background::merge_outer`]), and D M D is formed either by gemm or,
+//! where D's band above [`BAND_TOL`] of its largest entry makes it much
+//! cheaper, on the band ([`crate::math::banded`]; the choice is made per
+//! evaluation from the actual D, docs/flow-options.md "Large open strips").
+//!
+//! Neither layout allocates per evaluation (except gemm's packing buffer):
+//! callers pass a [`Work`] from [`Background::work`] (or scratch space of
+//! `scratch_len()` for the reference route).
 
 use nalgebra::{DMatrix, DMatrixView};
 use num_complex::Complex64;
