@@ -43,6 +43,7 @@ use criterion::measurement::{Measurement, ValueFormatter, WallTime};
 use criterion::{criterion_group, criterion_main, Criterion};
 use pinflow::core::system::System;
 use pinflow::edges::{analyse, pins};
+use pinflow::flow::background::DenseRoute;
 use pinflow::flow::{Closure, Flow, FlowOptions};
 use pinflow::model::Model;
 
@@ -256,6 +257,22 @@ fn targets(c: &mut Criterion<ThreadCpu>) {
                 b.iter(|| flow.run(&point).expect("flow"))
             });
         }
+    }
+    // The dense strip's D M D by either route (`Auto` above picks one per
+    // evaluation; benches/README.md).
+    let sys = &layouts[1].1;
+    let point = sys.model.params.defaults().to_vec();
+    for (route, label) in [(DenseRoute::Full, "gemm"), (DenseRoute::Banded, "banded")] {
+        let opts = FlowOptions {
+            record: false,
+            ..FlowOptions::default()
+        };
+        let mut flow = Flow::new(sys, opts);
+        flow.dense_route = route;
+        c.bench_function(
+            &format!("target: flow open strip 16x2 (dense), {label} route"),
+            |b| b.iter(|| flow.run(&point).expect("flow")),
+        );
     }
     // The infinite array with its quadrature always checked by a second
     // flow on half the points (before the in-flow estimate of issue 15

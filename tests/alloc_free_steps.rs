@@ -5,18 +5,20 @@
 //! (`src/flow/rhs.rs`) with its stop hook, as `src/flow/mod.rs` drives
 //! them for a scan point (no trajectory recorded), on the 32-field
 //! benchmark array as a periodic ring (D in q-space blocks): none at all.
-//! As an open strip (dense D) the two matrix products of each evaluation go
-//! through `nalgebra`'s gemm, whose `matrixmultiply` kernel allocates its
-//! packing buffer on every call (and is about 4x faster at 32 x 32 than a
-//! plain loop, measured): at most those two per evaluation. A consistency
-//! check of the code, no physics values.
+//! As an open strip (dense D) with D M D formed by the banded product
+//! (`src/math/banded.rs`, the route of large strips): none at all either.
+//! By the dense product (the route where D's band is wide, e.g. this
+//! 32-field strip) the two products go through `nalgebra`'s gemm, whose
+//! `matrixmultiply` kernel allocates its packing buffer on every call: at
+//! most those two per evaluation. A consistency check of the code, no
+//! physics values.
 
 use std::alloc::{GlobalAlloc, Layout, System as Heap};
 use std::cell::Cell;
 use std::path::Path;
 
 use pinflow::core::system::System;
-use pinflow::flow::background::Background;
+use pinflow::flow::background::{Background, DenseRoute};
 use pinflow::flow::rhs::FlowRhs;
 use pinflow::flow::{Flow, FlowOptions};
 use pinflow::math::dop853::{Control, Dop853};
@@ -103,10 +105,11 @@ fn listed_rhs<'a>(sys: &System, flow: &'a Flow, periodic: bool) -> (FlowRhs<'a>,
 /// Allocations during the accepted steps after the first (which sizes
 /// nothing either, but starts the count cleanly), the steps and the
 /// evaluations of the right-hand side in that span.
-fn allocations_per_flow(boundary: &str) -> (u64, u64, u64) {
+fn allocations_per_flow(boundary: &str, route: DenseRoute) -> (u64, u64, u64) {
     let sys = array32(boundary);
     let flow = Flow::new(&sys, FlowOptions::default());
     let (mut rhs, y) = listed_rhs(&sys, &flow, boundary == "periodic");
+    rhs.set_dense_route(route);
     let mut dop = Dop853::new(y.len());
     dop.set_groups(&[2 * rhs.channels.len(), y.len()]);
     let control = Control {
@@ -133,14 +136,20 @@ fn allocations_per_flow(boundary: &str) -> (u64, u64, u64) {
 
 #[test]
 fn integration_steps_allocate_nothing() {
-    let (count, steps, _) = allocations_per_flow("periodic");
+    let (count, steps, _) = allocations_per_flow("periodic", DenseRoute::Auto);
     assert!(steps >= 5, "ring: only {steps} steps");
     assert_eq!(count, 0, "ring: {count} allocations in {steps} steps");
-    let (count, steps, evals) = allocations_per_flow("open");
+    let (count, steps, _) = allocations_per_flow("open", DenseRoute::Banded);
+    assert!(steps >= 5, "strip, banded: only {steps} steps");
+    assert_eq!(
+        count, 0,
+        "strip, banded: {count} allocations in {steps} steps"
+    );
+    let (count, steps, evals) = allocations_per_flow("open", DenseRoute::Full);
     assert!(steps >= 5, "strip: only {steps} steps");
     assert!(
         count <= 2 * evals,
-        "strip: {count} allocations in {steps} steps ({evals} evaluations)"
+        "strip, gemm: {count} allocations in {steps} steps ({evals} evaluations)"
     );
 }
 

@@ -43,15 +43,22 @@
 //! is Hermitian with a real diagonal, so D stays symmetric (Hermitian per q)
 //! to rounding of its own entries.
 //!
-//! Neither layout allocates per evaluation: callers pass a [`Work`] from
-//! [`Background::work`] (or scratch space of `scratch_len()` for the
-//! reference route).
+//! Dense layout: every channel's sums lie on one merged list of positions
+//! ([`Background::merge_outer`]), and D M D is formed either by gemm or,
+//! where D's band above [`BAND_TOL`] of its largest entry makes it much
+//! cheaper, on the band ([`crate::math::banded`]; the choice is made per
+//! evaluation from the actual D, docs/flow-options.md "Large open strips").
+//!
+//! Neither layout allocates per evaluation (except gemm's packing buffer):
+//! callers pass a [`Work`] from [`Background::work`] (or scratch space of
+//! `scratch_len()` for the reference route).
 
 use nalgebra::{DMatrix, DMatrixView};
 use num_complex::Complex64;
 
 use super::channels::Channel;
 use crate::core::qspace;
+use crate::math::banded;
 
 /// Storage of D inside the ODE state.
 #[derive(Debug, Clone)]
@@ -263,12 +270,22 @@ fn dense_feedback(n: usize, s: &[f64], ch: &Channel, c: f64, ds: &mut [f64], u: 
 /// translates' outer products summed ([`Background::outer`]).
 #[derive(Debug, Clone)]
 pub enum Outer {
-    /// Sparse (row-major index, value) of sum_t l_t l_t^T and sum_t g_t g_t^T.
+    /// The upper triangles (i <= j) of sum_t l_t l_t^T and sum_t g_t g_t^T
+    /// on the union of their entries, as parallel arrays (so one index
+    /// serves both sums). After [`Background::merge_outer`], `ll` and `gg`
+    /// run over the positions `start..` of the union of every channel's
+    /// entries ([`Work`]), with zeros where the channel has none.
     Dense {
-        /// sum_t l_t l_t^T.
-        ll: Vec<(usize, f64)>,
-        /// sum_t g_t g_t^T.
-        gg: Vec<(usize, f64)>,
+        /// Row-major index i n + j of each entry, i <= j, ascending.
+        at: Vec<usize>,
+        /// sum_t l_t l_t^T at `at`.
+        ll: Vec<f64>,
+        /// sum_t g_t g_t^T at `at`.
+        gg: Vec<f64>,
+        /// The largest j - i among the entries (half-bandwidth).
+        band: usize,
+        /// Position of `at[0]` in the union (set by the merge).
+        start: usize,
     },
     /// L(q) L(q)^H and G(q) G(q)^H on every stored q, interleaved (re, im),
     /// in the layout of the state.
@@ -291,22 +308,56 @@ pub struct Work {
     t: DMatrix<f64>,
     /// D M D (dense only).
     r: DMatrix<f64>,
-    /// Fourier: M of every stored block, laid out like the state's D.
+    /// Fourier: M of every stored block, laid out like the state's D;
+    /// dense: M on the union `u`.
     mq: Vec<f64>,
-    /// Fourier: N of every stored block.
+    /// Fourier: N of every stored block; dense: N on the union `u`.
     nq: Vec<f64>,
+    /// Dense: the union of every channel's entries of M and N (row-major
+    /// positions, upper triangle, ascending; [`Background::merge_outer`]).
+    u: Vec<usize>,
+    /// Dense: the transposed positions of `u`.
+    ut: Vec<usize>,
     /// Fourier: D times each block's share of the sum over q.
     dw: Vec<f64>,
+    /// Dense: how D M D is formed.
+    pub route: DenseRoute,
+    /// Dense: half-bandwidth of M and N (every channel's entries).
+    bm: usize,
 }
+
+/// How the dense layout forms D M D ([`Background::evaluate`]).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum DenseRoute {
+    /// The banded product where it costs less than the dense one, decided
+    /// on every evaluation from D's bandwidth (the default).
+    Auto,
+    /// Always the dense product (gemm).
+    Full,
+    /// Always the banded product (tests).
+    Banded,
+}
+
+/// Entries of D below this fraction of D's largest entry count as zero in
+/// the banded product (docs/flow-options.md, "Dense D: the banded
+/// product"): a few units of rounding of D's largest entry, the accuracy
+/// to which D is known at all (the far entries of the bare D of an open
+/// 200-wire strip are rounding noise up to 3.5 units).
+pub const BAND_TOL: f64 = 8.0 * f64::EPSILON;
+
+/// How many times faster per multiply-add the dense product (gemm) runs
+/// than the banded loops: the banded route is taken when its count of
+/// multiply-adds times this is below 2 n^3. Measured (benches/README.md):
+/// on the 32-field strip (b about 8, 4.7x fewer operations) the banded
+/// route took 1.8x longer than gemm, so about 8x per operation; on the
+/// 400-field strip it has 30-100x fewer operations and wins.
+const GEMM_ADVANTAGE: f64 = 10.0;
 
 impl Background {
     /// The precomputed outer products of a channel on this layout.
     pub fn outer(&self, ch: &Channel) -> Outer {
         match *self {
-            Background::Dense { n } => Outer::Dense {
-                ll: sparse_sum(n, &ch.l_sparse),
-                gg: sparse_sum(n, &ch.g_sparse),
-            },
+            Background::Dense { n } => dense_outer(n, ch),
             Background::Fourier { wires, cell } => Outer::Fourier {
                 ll: block_outer(&ch.lq, half(wires), cell),
                 gg: block_outer(&ch.gq, half(wires), cell),
@@ -333,6 +384,10 @@ impl Background {
             mq: vec![0.0; q],
             nq: vec![0.0; q],
             dw: vec![0.0; q],
+            route: DenseRoute::Auto,
+            bm: 0,
+            u: Vec::new(),
+            ut: Vec::new(),
         }
     }
 
@@ -355,19 +410,8 @@ impl Background {
     ) {
         match *self {
             Background::Dense { n } => {
-                let mut any = false;
-                work.m.fill(0.0);
-                work.n.fill(0.0);
-                for &c in live {
-                    dims[c] = self.dimension(s, channels[c]);
-                    if let (true, Some(Outer::Dense { ll, gg })) = (weight[c] > 0.0, &outer[c]) {
-                        let coef = -weight[c] / 8.0;
-                        add_sparse(work.m.as_mut_slice(), ll, coef);
-                        add_sparse(work.n.as_mut_slice(), gg, coef);
-                        any = true;
-                    }
-                }
-                if any {
+                let live = (channels, live, outer, weight);
+                if dense_sums(self, s, live, dims, work) {
                     dense_products(n, s, ds, work);
                 }
             }
@@ -464,33 +508,161 @@ fn axpy(y: &mut [f64], x: &[f64], c: f64) {
     }
 }
 
-/// sum_t v_t v_t^T of sparse vectors, as sparse (row-major index, value)
-/// in index order.
-fn sparse_sum(n: usize, vs: &[Vec<(usize, f64)>]) -> Vec<(usize, f64)> {
-    let mut acc = std::collections::BTreeMap::new();
-    for v in vs {
-        for &(i, x) in v {
-            for &(j, y) in v {
-                *acc.entry(i * n + j).or_insert(0.0) += x * y;
+/// The channel's [`Outer::Dense`]: sum_t v_t v_t^T of its l and its g,
+/// upper triangle, on the union of the two sums' entries.
+fn dense_outer(n: usize, ch: &Channel) -> Outer {
+    // Every product, then a stable sort by position: each position's
+    // products are summed in the order they were made.
+    let mut terms = Vec::new();
+    for (which, vs) in [(0, &ch.l_sparse), (1, &ch.g_sparse)] {
+        for v in vs {
+            for &(i, x) in v {
+                for &(j, y) in v.iter().filter(|&&(j, _)| j >= i) {
+                    terms.push((i * n + j, which, x * y));
+                }
             }
         }
     }
-    acc.into_iter().filter(|&(_, v)| v != 0.0).collect()
-}
-
-/// a[at] += coef * v over sparse entries. M and N are symmetric, so the
-/// row-major index names the same entry in nalgebra's column-major storage.
-#[inline]
-fn add_sparse(a: &mut [f64], sparse: &[(usize, f64)], coef: f64) {
-    for &(at, v) in sparse {
-        a[at] += coef * v;
+    terms.sort_by_key(|&(p, which, _)| (p, which));
+    let (mut at, mut ll, mut gg) = (Vec::new(), Vec::new(), Vec::new());
+    for &(p, which, v) in &terms {
+        if at.last() != Some(&p) {
+            at.push(p);
+            ll.push(0.0);
+            gg.push(0.0);
+        }
+        let sums = [&mut ll, &mut gg];
+        *sums[which].last_mut().expect("pushed") += v;
+    }
+    let kept: Vec<usize> = (0..at.len())
+        .filter(|&k| ll[k] != 0.0 || gg[k] != 0.0)
+        .collect();
+    let at: Vec<usize> = kept.iter().map(|&k| at[k]).collect();
+    let ll: Vec<f64> = kept.iter().map(|&k| ll[k]).collect();
+    let gg: Vec<f64> = kept.iter().map(|&k| gg[k]).collect();
+    let band = at.iter().map(|&p| p % n - p / n).max().unwrap_or(0);
+    Outer::Dense {
+        at,
+        ll,
+        gg,
+        band,
+        start: 0,
     }
 }
 
-/// ds += (D M D + (D M D)^T)/2 - N for the dense layout (M, N in `work`).
-/// The state holds D row-major; read column-major it is D^T, so the
-/// products give D^T M D^T, which is D M D for the symmetric D.
+impl Background {
+    /// Dense layout: merge the channels' [`Outer::Dense`] into one list of
+    /// positions (the union, kept in `work`) and re-express each channel's
+    /// sums as a contiguous stretch of it, so that M and N on the union are
+    /// sums of contiguous arrays ([`dense_sums`]). Call once per flow, after
+    /// [`Background::outer`] and [`Background::work`]; nothing on the
+    /// Fourier layout.
+    pub fn merge_outer(&self, outer: &mut [Option<Outer>], work: &mut Work) {
+        let Background::Dense { n } = *self else {
+            return;
+        };
+        let mut union = std::collections::BTreeSet::new();
+        for o in outer.iter() {
+            if let Some(Outer::Dense { at, .. }) = o {
+                union.extend(at.iter().copied());
+            }
+        }
+        work.u = union.into_iter().collect();
+        work.ut = work.u.iter().map(|&p| (p % n) * n + p / n).collect();
+        work.mq = vec![0.0; work.u.len()];
+        work.nq = vec![0.0; work.u.len()];
+        work.bm = 0;
+        for o in outer.iter_mut() {
+            if let Some(Outer::Dense {
+                at,
+                ll,
+                gg,
+                band,
+                start,
+            }) = o
+            {
+                work.bm = work.bm.max(*band);
+                let Some((&first, &last)) = at.first().zip(at.last()) else {
+                    continue;
+                };
+                let pos = |p: usize| work.u.binary_search(&p).expect("in the union");
+                let (lo, hi) = (pos(first), pos(last) + 1);
+                let (mut l, mut g) = (vec![0.0; hi - lo], vec![0.0; hi - lo]);
+                for (k, &p) in at.iter().enumerate() {
+                    (l[pos(p) - lo], g[pos(p) - lo]) = (ll[k], gg[k]);
+                }
+                (*ll, *gg, *start) = (l, g, lo);
+            }
+        }
+    }
+}
+
+/// The dense layout's dimensions into `dims`, and M, N (both triangles:
+/// the union's positions, the rest stays zero) into `work`; false when no
+/// channel feeds back. Needs [`Background::merge_outer`].
+fn dense_sums(
+    bg: &Background,
+    s: &[f64],
+    (channels, live, outer, weight): Live<'_, '_>,
+    dims: &mut [f64],
+    work: &mut Work,
+) -> bool {
+    work.mq.fill(0.0);
+    work.nq.fill(0.0);
+    let mut any = false;
+    for &c in live {
+        dims[c] = bg.dimension(s, channels[c]);
+        if let (true, Some(Outer::Dense { ll, gg, start, .. })) = (weight[c] > 0.0, &outer[c]) {
+            let coef = -weight[c] / 8.0;
+            axpy(&mut work.mq[*start..*start + ll.len()], ll, coef);
+            axpy(&mut work.nq[*start..*start + gg.len()], gg, coef);
+            any = true;
+        }
+    }
+    let (m, nn) = (work.m.as_mut_slice(), work.n.as_mut_slice());
+    for (k, (&p, &pt)) in work.u.iter().zip(&work.ut).enumerate() {
+        (m[p], m[pt]) = (work.mq[k], work.mq[k]);
+        (nn[p], nn[pt]) = (work.nq[k], work.nq[k]);
+    }
+    any
+}
+
+/// ds += (D M D + (D M D)^T)/2 - N for the dense layout (M, N in `work`),
+/// by the banded or the dense product as `work.route` says.
 fn dense_products(n: usize, s: &[f64], ds: &mut [f64], work: &mut Work) {
+    let bm = work.bm;
+    let b = match work.route {
+        DenseRoute::Full => None,
+        route => {
+            let b = banded::bandwidth(s, n, BAND_TOL * banded::max_abs(s));
+            let dense = 2.0 * (n as f64).powi(3);
+            let cheap = banded::triple_cost(n, b, bm) * GEMM_ADVANTAGE < dense;
+            (route == DenseRoute::Banded || cheap).then_some(b)
+        }
+    };
+    let Some(b) = b else {
+        return gemm_products(n, s, ds, work);
+    };
+    let (t, r) = (work.t.as_mut_slice(), work.r.as_mut_slice());
+    banded::sym_triple(n, s, b, work.m.as_slice(), bm, t, r);
+    let nn = work.n.as_slice();
+    for i in 0..n {
+        let row = i * n..(i + 1) * n;
+        let (dsi, ri, ni) = (&mut ds[row.clone()], &r[row.clone()], &nn[row]);
+        let w = 2 * b + bm;
+        for j in i.saturating_sub(w)..(i + w + 1).min(n) {
+            dsi[j] += ri[j];
+        }
+        for j in i.saturating_sub(bm)..(i + bm + 1).min(n) {
+            dsi[j] -= ni[j];
+        }
+    }
+}
+
+/// The dense product of [`dense_products`]. The state holds D row-major;
+/// read column-major it is D^T, so the products give D^T M D^T, which is
+/// D M D for the symmetric D.
+fn gemm_products(n: usize, s: &[f64], ds: &mut [f64], work: &mut Work) {
     let d = DMatrixView::from_slice(s, n, n);
     work.t.gemm(1.0, &d, &work.m, 0.0);
     work.r.gemm(1.0, &work.t, &d, 0.0);

@@ -264,6 +264,9 @@ pub struct Flow<'s> {
     /// Integrate with the per-channel reference right-hand side
     /// ([`rhs::FlowRhs::derivative_reference`]); for tests comparing the two.
     pub reference_rhs: bool,
+    /// How a dense D's feedback is formed (tests comparing the banded and
+    /// the dense product; [`background::DenseRoute::Auto`] otherwise).
+    pub dense_route: background::DenseRoute,
     /// Check every infinite array's flow by flowing it again on the half
     /// rule, even where the in-flow estimate would do (tests comparing the
     /// estimate, kept in [`FlowResult::q_estimate`], with the difference).
@@ -321,6 +324,7 @@ impl<'s> Flow<'s> {
             plan,
             opts,
             reference_rhs: false,
+            dense_route: background::DenseRoute::Auto,
             full_check: false,
             layout,
             phases: Default::default(),
@@ -515,6 +519,7 @@ impl<'s> Flow<'s> {
         rhs.floor = self.opts.floor;
         rhs.record = record;
         rhs.reference = self.reference_rhs;
+        rhs.set_dense_route(self.dense_route);
         let y0 = self.bare_state(&mut rhs, &included, &bare, &start.d0);
         let ell_k = momenta.iter().map(|k| k.and_then(cutoff_scale)).collect();
         Ok(Prepared {
@@ -564,9 +569,41 @@ impl<'s> Flow<'s> {
     /// channels; the state holds 2 floats per channel, then D). For the test
     /// that the two agree (`tests/rhs_products.rs`).
     pub fn rhs_routes(&self, point: &[f64]) -> Result<(Vec<f64>, Vec<f64>, usize), Error> {
+        self.at_test_state(point, |rhs, y| {
+            let (mut fast, mut reference) = (vec![0.0; y.len()], vec![0.0; y.len()]);
+            rhs.derivative(y, &mut fast);
+            rhs.derivative_reference(y, &mut reference);
+            (fast, reference)
+        })
+    }
+
+    /// The right-hand side at the state of [`Flow::rhs_routes`] with a dense
+    /// D's feedback formed by the banded and by the dense product
+    /// (`tests/rhs_products.rs`): (banded, dense, number of channels).
+    pub fn rhs_dense_routes(&self, point: &[f64]) -> Result<(Vec<f64>, Vec<f64>, usize), Error> {
+        self.at_test_state(point, |rhs, y| {
+            let mut out = [vec![0.0; y.len()], vec![0.0; y.len()]];
+            let routes = [background::DenseRoute::Banded, background::DenseRoute::Full];
+            for (route, o) in routes.into_iter().zip(&mut out) {
+                rhs.set_dense_route(route);
+                rhs.derivative(y, o);
+            }
+            let [banded, dense] = out;
+            (banded, dense)
+        })
+    }
+
+    /// `f` on the prepared first flow of `point` at a state with every
+    /// included coupling set to a non-zero test amplitude, and the number
+    /// of included channels.
+    fn at_test_state<R>(
+        &self,
+        point: &[f64],
+        f: impl FnOnce(&mut FlowRhs, &[f64]) -> (R, R),
+    ) -> Result<(R, R, usize), Error> {
         let start = self.start(point)?;
         let all: &[Channel] = start.channels.as_deref().unwrap_or(&self.plan.channels);
-        let prepared = self.prepare(point, all, &start, false)?;
+        let mut prepared = self.prepare(point, all, &start, false)?;
         let mut y = prepared.y0.as_slice().to_vec();
         for i in 0..prepared.included.len() {
             y[2 * i] = 0.05 + 0.01 * (i % 7) as f64;
@@ -576,10 +613,8 @@ impl<'s> Flow<'s> {
                 0.02 - 0.005 * (i % 5) as f64
             };
         }
-        let (mut fast, mut reference) = (vec![0.0; y.len()], vec![0.0; y.len()]);
-        prepared.rhs.derivative(&y, &mut fast);
-        prepared.rhs.derivative_reference(&y, &mut reference);
-        Ok((fast, reference, prepared.included.len()))
+        let (a, b) = f(&mut prepared.rhs, &y);
+        Ok((a, b, prepared.included.len()))
     }
 
     /// (y, chi) of every listed channel at a point.
@@ -1087,10 +1122,12 @@ fn strong_result(
 ) -> Integrated {
     dop.prepare_dense(rhs);
     let mut at = vec![0.0; y_end.len()];
+    // The bisection needs the couplings only: the dense output of the
+    // first 2 C entries (the same numbers as of the whole state).
+    let couplings = 2 * rhs.channels.len();
     let mut above = |ell: f64| -> Option<(usize, f64)> {
-        dop.dense(ell, &mut at)
-            .then(|| rhs.strongest(&at))
-            .flatten()
+        let w = &mut at[..couplings];
+        dop.dense(ell, w).then(|| rhs.strongest(w)).flatten()
     };
     let (mut a, mut b) = (lo, hi);
     for _ in 0..60 {

@@ -28,9 +28,14 @@ use std::cell::RefCell;
 
 use crate::math::dop853::Derivative;
 
-use super::background::{Background, Outer, Work};
+use super::background::{Background, DenseRoute, Outer, Work};
 use super::channels::{Channel, OpeEntry};
 use crate::core::relevance::rg_eigenvalue;
+
+/// Relative distance below which two couplings count as equal in
+/// [`FlowRhs::strongest`]: far below the flow's accuracy (rtol 1e-8), far
+/// above the rounding by which routes of the same sums differ (1e-12).
+pub const TIE: f64 = 1e-10;
 
 /// Why the integration stopped early.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -162,20 +167,22 @@ impl<'a> FlowRhs<'a> {
         ope: Vec<OpeEntry>,
     ) -> Self {
         let n = channels.len();
-        let scratch = RefCell::new(Scratch {
-            weight: vec![0.0; n],
-            dims: vec![0.0; n],
-            work: bg.work(),
-            reference: vec![0.0; bg.scratch_len()],
-        });
         let null: Vec<bool> = channels.iter().map(|c| c.null()).collect();
         // On the Fourier layout every channel's L L^H gives its dimension
         // (see `Background::evaluate`); elsewhere only null channels need one.
         let fourier = matches!(bg, Background::Fourier { .. });
-        let outer = channels
+        let mut outer: Vec<_> = channels
             .iter()
             .map(|c| (c.null() || fourier).then(|| bg.outer(c)))
             .collect();
+        let mut work = bg.work();
+        bg.merge_outer(&mut outer, &mut work);
+        let scratch = RefCell::new(Scratch {
+            weight: vec![0.0; n],
+            dims: vec![0.0; n],
+            work,
+            reference: vec![0.0; bg.scratch_len()],
+        });
         let real = (0..n).filter(|&c| channels[c].real_only()).collect();
         // A rank-one update costs ~n^2 per translate, the two products 2 n^3
         // (at several times the speed per operation): with fewer null
@@ -215,6 +222,11 @@ impl<'a> FlowRhs<'a> {
         rhs
     }
 
+    /// How a dense D's feedback is formed (default [`DenseRoute::Auto`]).
+    pub fn set_dense_route(&mut self, route: DenseRoute) {
+        self.scratch.get_mut().work.route = route;
+    }
+
     /// List the active channels and the OPE entries among them; call after
     /// changing `active`, before integrating.
     pub fn begin_segment(&mut self) {
@@ -247,12 +259,18 @@ impl<'a> FlowRhs<'a> {
         2.0 * y[2 * c].hypot(y[2 * c + 1])
     }
 
-    /// Largest |y| among active channels, with its channel.
+    /// Largest |y| among active channels, with its channel. Couplings within
+    /// [`TIE`] (relative) of the largest count as equal and the first such
+    /// channel (plan order: listed terms in the model's order first) is
+    /// named, so that the order of a sum's rounding never decides between
+    /// couplings that a symmetry makes equal (e.g. mirror images on a strip).
     pub fn strongest(&self, y: &[f64]) -> Option<(usize, f64)> {
-        (0..self.channels.len())
-            .filter(|&c| self.active[c])
-            .map(|c| (c, self.coupling(y, c)))
-            .max_by(|a, b| a.1.total_cmp(&b.1))
+        let live = || (0..self.channels.len()).filter(|&c| self.active[c]);
+        let top = live()
+            .map(|c| self.coupling(y, c))
+            .max_by(|a, b| a.total_cmp(b))?;
+        let c = live().find(|&c| self.coupling(y, c) >= top * (1.0 - TIE))?;
+        Some((c, top))
     }
 
     fn decayed(&self, y: &[f64]) -> bool {

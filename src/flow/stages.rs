@@ -480,8 +480,10 @@ fn dkd_blocks(bg: &Background, s: &[f64], k: &DMatrix<f64>) -> Vec<DMatrix<Compl
     let kc = k.map(|x| Complex64::new(x, 0.0));
     match *bg {
         Background::Dense { .. } => {
-            let d = bg.dense(s).map(|x| Complex64::new(x, 0.0));
-            vec![&d * &kc * &d]
+            // Real products (gemm): a complex product of real matrices
+            // costs several times more for the same numbers.
+            let d = bg.dense(s);
+            vec![(&d * (k * &d)).map(|x| Complex64::new(x, 0.0))]
         }
         Background::Fourier { wires, cell } => (0..crate::core::qspace::half(wires))
             .map(|q| {

@@ -9,10 +9,12 @@
 //! symmetric-matrix routines the accurate fixed-point route needs
 //! ([`ddouble`]: Cholesky, triangular inverse, Jacobi eigen-solver), and
 //! the DOP853 Runge-Kutta integrator with grouped error norm and dense
-//! output ([`dop853`]).
+//! output ([`dop853`]), and products of symmetric banded matrices with
+//! the bandwidth of a matrix above a threshold ([`banded`]).
 //! Nothing here knows about models or fields; nothing here imports from
 //! outside `math/`.
 
+pub mod banded;
 pub mod bareiss;
 pub mod ddouble;
 pub mod dop853;
