@@ -25,6 +25,7 @@
 use num_bigint::BigInt;
 use num_traits::{One, Zero};
 
+use super::rational::Rational;
 use super::zmat::ZMat;
 
 /// The integral Gram-Schmidt numbers of a basis, in envelope form.
@@ -66,6 +67,28 @@ impl EnvelopeGs {
             gs.lambda.push(row);
         }
         gs
+    }
+
+    /// From Gram-Schmidt data kept by an LLL reduction (mu_jl for l < j in
+    /// row j, B_j): d_{j+1} = B_0 ... B_j and lambda_{j,l} = d_{l+1} mu_jl,
+    /// integers (debug-checked); the envelope is that of the non-zero mu.
+    pub fn from_gs(mu: &[Vec<Rational>], bb: &[Rational]) -> EnvelopeGs {
+        let k = bb.len();
+        let mut d = vec![BigInt::one()];
+        for (j, b) in bb.iter().enumerate() {
+            d.push(to_integer(&(b * Rational::from_integer(d[j].clone()))));
+        }
+        let first: Vec<usize> = (0..k)
+            .map(|j| (0..j).find(|&l| !mu[j][l].is_zero()).unwrap_or(j))
+            .collect();
+        let lambda = (0..k)
+            .map(|j| {
+                (first[j]..j)
+                    .map(|l| to_integer(&(&mu[j][l] * Rational::from_integer(d[l + 1].clone()))))
+                    .collect()
+            })
+            .collect();
+        EnvelopeGs { first, lambda, d }
     }
 
     /// The recurrence for one entry: start from G_jl d_m, then steps
@@ -133,6 +156,12 @@ impl EnvelopeGs {
         }
         x
     }
+}
+
+/// A rational known to be an integer.
+fn to_integer(x: &Rational) -> BigInt {
+    debug_assert!(x.is_integer(), "integral Gram-Schmidt number");
+    x.to_integer()
 }
 
 /// One step of the recurrence: (d_next u - a b) / d, an exact division.

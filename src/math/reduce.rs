@@ -441,21 +441,21 @@ impl ModuloLattice {
     pub fn new(s: &ZMat) -> ModuloLattice {
         let cols = independent(&s.columns());
         let dim = s.rows;
-        let (basis, gram) = if cols.is_empty() {
-            (Vec::new(), ZMat::zeros(0, 0))
-        } else {
-            let sub = ZMat::from_cols(dim, &cols);
-            let u = lll::exact(&sparse_gram(&cols));
-            let basis = sub.mul(&u).columns();
-            let gram = sparse_gram(&basis);
-            (basis, gram)
+        let sub = ZMat::from_cols(dim, &cols);
+        let (u, data) = lll::exact_with_gs(&sparse_gram(&cols));
+        let basis = sub.mul(&u).columns();
+        // The reduction's own Gram-Schmidt data when it has them (the
+        // reduced basis of local vectors is seldom local: dense envelope).
+        let gs = match data {
+            Some((mu, bb)) => EnvelopeGs::from_gs(&mu, &bb),
+            None => EnvelopeGs::from_gram(&sparse_gram(&basis)),
         };
         let basis_on = basis.iter().map(|b| support(b)).collect();
         ModuloLattice {
             dim,
             basis,
             basis_on,
-            gs: EnvelopeGs::from_gram(&gram),
+            gs,
         }
     }
 
@@ -728,6 +728,9 @@ pub(crate) mod tests {
         let mut rng = ChaCha8Rng::seed_from_u64(33);
         for case in 0..80 {
             let basis = random_basis(&mut rng, case % 2 == 0);
+            if basis.is_empty() {
+                continue;
+            }
             let (star, d) = integral_gram_schmidt(&basis);
             let gs = EnvelopeGs::from_gram(&sparse_gram(&basis));
             for (j, dj) in d.iter().enumerate() {
@@ -750,6 +753,43 @@ pub(crate) mod tests {
             let dots: Vec<BigInt> = basis.iter().map(|b| zmat::dot(&v, b)).collect();
             let want: Vec<BigInt> = star.iter().map(|w| zmat::dot(&v, w)).collect();
             assert_eq!(gs.coords(&dots), want, "case {case}");
+        }
+    }
+
+    /// d_j and every lambda_{j,l} (zero outside the envelope), densely.
+    fn dense_numbers(gs: &EnvelopeGs) -> (Vec<BigInt>, Vec<Vec<BigInt>>) {
+        let k = gs.len();
+        let d = (0..=k).map(|j| gs.d(j).clone()).collect();
+        let lam = (0..k)
+            .map(|j| {
+                let mut row = vec![BigInt::zero(); j];
+                for (l, x) in gs.row(j) {
+                    row[l] = x.clone();
+                }
+                row
+            })
+            .collect();
+        (d, lam)
+    }
+
+    #[test]
+    fn lll_gram_schmidt_data_match_the_recomputed_numbers() {
+        // The numbers taken from the exact LLL's own mu and B_j (what
+        // ModuloLattice uses) against the recurrence on the Gram matrix of
+        // the reduced basis (second code path).
+        let mut rng = ChaCha8Rng::seed_from_u64(34);
+        for case in 0..60 {
+            let basis = random_basis(&mut rng, case % 2 == 0);
+            if basis.is_empty() {
+                continue;
+            }
+            let n = basis[0].len();
+            let (u, data) = lll::exact_with_gs(&sparse_gram(&basis));
+            let (mu, bb) = data.expect("within the step cap");
+            let reduced = ZMat::from_cols(n, &basis).mul(&u).columns();
+            let want = EnvelopeGs::from_gram(&sparse_gram(&reduced));
+            let got = EnvelopeGs::from_gs(&mu, &bb);
+            assert_eq!(dense_numbers(&got), dense_numbers(&want), "case {case}");
         }
     }
 
