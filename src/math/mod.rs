@@ -24,4 +24,5 @@ pub mod lll;
 pub mod rational;
 pub mod reduce;
 pub mod smith;
+pub mod zbasis;
 pub mod zmat;
