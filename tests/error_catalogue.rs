@@ -506,6 +506,9 @@ fn cases() -> Vec<Case> {
             "error: command line: --run-json: `t.csv` is also the -o file; give the provenance its own file"),
         case("E140", base(), "flow wire.toml --out . --run-json run.json", 2,
             "error: command line: --run-json: `run.json` is in the --out directory `.`, which gets the run's files and its own run.json; give a file outside it"),
+        // ------------------------------------------------ size limits
+        case("E141", ring("wires = 8", "wires = 300\nboundary = \"open\""), "flow ring.toml", 2,
+            "error: command line: --force: the flow of all 600 fields runs on dense matrices (an open array or an explicit model): every step multiplies 600 x 600 matrices, work growing like N^3, about 1.6 times that of 512 fields (the limit, several seconds per flow); pass --force to run it anyway, or use a periodic array (computed per momentum q)"),
     ];
     // By number: E100 comes after E99, not after E10.
     c.sort_by_key(|c| c.id[1..].parse::<u32>().expect("ids are E and a number"));
@@ -762,4 +765,5 @@ entries! {
     e138_run_json_in_a_missing_directory => "E138",
     e139_run_json_is_the_output_file => "E139",
     e140_run_json_inside_the_out_directory => "E140",
+    e141_dense_flow_above_the_limit => "E141",
 }

@@ -272,6 +272,53 @@ fn dims_on_the_dense_path_above_the_limit_is_refused_unless_forced() {
     pinflow::dims::check_size(&system(&strip(600, "periodic")), false).expect("q-space");
 }
 
+#[test]
+fn a_dense_flow_above_the_limit_is_refused_unless_forced() {
+    // 300 open wires of 2 fields: 600 fields, every step multiplies dense
+    // 600 x 600 matrices.
+    let open = system(&strip(300, "open"));
+    let e = input_error(pinflow::flow::limits::check_dense_size(&open, false).expect_err("600"));
+    assert_eq!(e.key, "--force");
+    assert!(e.message.contains("600 fields"), "{}", e.message);
+    pinflow::flow::limits::check_dense_size(&open, true).expect("forced");
+    // At the limit it runs; a ring of the same size flows per q: no limit.
+    let at = system(&strip(
+        pinflow::flow::limits::DENSE_FLOW_FIELDS_LIMIT / 2,
+        "open",
+    ));
+    pinflow::flow::limits::check_dense_size(&at, false).expect("at the limit");
+    pinflow::flow::limits::check_dense_size(&system(&strip(300, "periodic")), false)
+        .expect("q-space");
+}
+
+#[test]
+fn flow_and_scan_refuse_a_dense_flow_above_the_limit_before_any_work() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("wide.toml");
+    std::fs::write(&path, strip(300, "open")).unwrap();
+    for cmd in ["flow", "scan"] {
+        let out_dir = dir.path().join("out");
+        let out = Command::cargo_bin("pinflow")
+            .unwrap()
+            .args([
+                cmd,
+                path.to_str().unwrap(),
+                "--out",
+                out_dir.to_str().unwrap(),
+            ])
+            .timeout(std::time::Duration::from_secs(60))
+            .output()
+            .unwrap();
+        assert_eq!(out.status.code(), Some(2), "{cmd}");
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert!(
+            err.contains("--force") && err.contains("600 fields"),
+            "{cmd}: {err}"
+        );
+        assert!(!out_dir.exists(), "{cmd} wrote files before refusing");
+    }
+}
+
 // ------------------------------------------------------------ pairs closure
 
 /// A periodic array of `wires` wires with `terms` distinct two-wire terms

@@ -299,7 +299,8 @@ class Model:
         docs/flow-options.md).
         ``out``: also write summary.json, trajectory.csv and the flow
         figure into this directory. ``force``: build the pairs closure
-        above its work limit (``--force``). Raises InputError at a point
+        above its work limit, or flow a dense model above 512 fields
+        (``--force``). Raises InputError at a point
         where V is not positive definite, RunError when the integration
         fails.
         """
@@ -318,7 +319,8 @@ class Model:
         a temporary directory, removed); it is locked while the scan runs,
         and a folder holding another scan's files is refused unless
         ``overwrite`` (``--overwrite``). ``force``: run grids above the size
-        limit and a pairs closure above its work limit. ``color_by``:
+        limit, a pairs closure above its work limit and dense models above
+        512 fields. ``color_by``:
         "phase" or "winner" for phase.png.
         """
         values, options = self._split(point, kwargs, options=True)

@@ -185,7 +185,7 @@ impl Model {
 
     /// `pinflow flow`: (json, csv, text, trajectory csv); with `out`, also
     /// the command's files in that directory. `force`: `--force` (the
-    /// closure's work limit).
+    /// closure's work limit and the dense size limit).
     #[pyo3(signature = (point, options, out = None, force = false))]
     fn flow(
         &self,
@@ -209,7 +209,7 @@ impl Model {
             }
             let point = sys.model.point_with(&set, "point")?;
             let opts = FlowOptions::resolve(&sys.model, &over)?;
-            check_closure(sys, &opts, force)?;
+            check_flow_work(sys, &opts, force)?;
             // As `pinflow flow` records them: the options after defaults,
             // the competitor options as given.
             let recorded = serde_json::json!({"flow": opts, "competitors": recorded_competitors});
@@ -230,7 +230,7 @@ impl Model {
     }
 
     /// `pinflow scan` into the directory `out`: returns summary.json's text.
-    /// `force`: `--force` (grid size and closure limits); `overwrite`:
+    /// `force`: `--force` (grid size, closure and dense size limits); `overwrite`:
     /// `--overwrite` (a folder holding another scan's files). The folder
     /// is locked while the scan runs, as by the command.
     #[pyo3(signature = (point, x, y, options, out, threads = None, force = false, color_by = "phase", overwrite = false))]
@@ -266,7 +266,7 @@ impl Model {
             let base = sys.model.point_with(&set, "point")?;
             let axes = resolve_axes(&sys.model, x.as_deref(), y.as_deref())?;
             let options = FlowOptions::resolve(&sys.model, &over)?;
-            check_closure(sys, &options, force)?;
+            check_flow_work(sys, &options, force)?;
             let recorded = serde_json::json!({
                 "flow": options,
                 "competitors": recorded_competitors,
@@ -357,7 +357,7 @@ impl Model {
             pinflow::edges::check_size(sys, force)?;
             let opts = FlowOptions::resolve(&sys.model, &over)?;
             if pin.is_empty() {
-                check_closure(sys, &opts, force)?;
+                check_flow_work(sys, &opts, force)?;
             }
             let selection: Selection = if pin.is_empty() {
                 pins::from_flow(sys, &point, opts)?
@@ -401,11 +401,10 @@ fn check_flow(sys: &System, point: &[f64], report: &FlowReport) -> Result<(), Er
     }
 }
 
-/// The closure's work limit, as the commands apply it
-/// (`pinflow::flow::channels::check_closure`).
-fn check_closure(sys: &System, opts: &FlowOptions, force: bool) -> Result<(), Error> {
-    let generate = opts.closure == pinflow::flow::Closure::Pairs;
-    pinflow::flow::channels::check_closure(sys, generate, opts.closure_range, force)
+/// The closure's work limit and the dense size limit, as the commands
+/// apply them (`pinflow::flow::limits::check_work`).
+fn check_flow_work(sys: &System, opts: &FlowOptions, force: bool) -> Result<(), Error> {
+    pinflow::flow::limits::check_work(sys, opts, force)
 }
 
 /// A thread pool of `threads` workers (None: rayon's default, all cores).

@@ -120,8 +120,7 @@ pub(super) fn run(args: FlowArgs) -> Result<(), Error> {
     args.figure_style.apply();
     let (sys, point) = load_point(&args.point)?;
     let opts = FlowOptions::resolve(&sys.model, &args.flow.overrides())?;
-    let generate = opts.closure == crate::flow::Closure::Pairs;
-    crate::flow::channels::check_closure(&sys, generate, opts.closure_range, args.force)?;
+    crate::flow::limits::check_work(&sys, &opts, args.force)?;
     let comp = args.competitors.resolve(&sys)?;
     let result = match comp {
         None => {

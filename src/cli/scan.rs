@@ -193,8 +193,7 @@ pub(super) fn run_scan(args: ScanArgs) -> Result<(), Error> {
     let (sys, base, text) = load_point_text(&args.point)?;
     let axes = resolve_axes(&sys.model, args.x.as_deref(), args.y.as_deref())?;
     let options = FlowOptions::resolve(&sys.model, &args.flow.overrides())?;
-    let generate = options.closure == crate::flow::Closure::Pairs;
-    crate::flow::channels::check_closure(&sys, generate, options.closure_range, args.force)?;
+    crate::flow::limits::check_work(&sys, &options, args.force)?;
     let prov = scan_provenance(&args, &sys, &base, &options, &axes)?;
     let spec = ScanSpec {
         axes,

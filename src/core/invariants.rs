@@ -305,7 +305,7 @@ fn same_anchor_phase(m_a: &[Rational], ta: &Translate, fb: &Family) -> Rational 
 /// representative of `fa` against every translate of `fb`; on an open
 /// array, whose anchors are consecutive, one pair for each offset between
 /// the two anchor ranges. Cost O(W) pairs instead of O(W^2).
-fn families_commute(lat: &Lattice, pairing: &Pairing, fa: &Family, fb: &Family) -> bool {
+pub fn families_commute(lat: &Lattice, pairing: &Pairing, fa: &Family, fb: &Family) -> bool {
     let pair = |ta: &Translate, tb: &Translate| pairing.scaled_parts(&ta.parts, &tb.parts) == 0;
     if lat.boundary == Some(crate::model::Boundary::Periodic) {
         return fb.translates.iter().all(|tb| pair(fa.rep(), tb));

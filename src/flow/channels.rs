@@ -42,7 +42,7 @@
 //! does), each with its own momentum and cut-off; generated terms get the
 //! sum of their parents' momenta, taken on the line.
 
-use std::collections::HashMap;
+use std::collections::{BTreeMap, HashMap, HashSet};
 
 use num_complex::Complex64;
 use num_traits::Zero;
@@ -341,7 +341,7 @@ impl Plan {
                 }
                 let rep_a = self.channels[a].family.rep().clone();
                 for tb in self.channels[b].family.translates.clone() {
-                    if !sys.invariants.pairing.commute(&rep_a.l, &tb.l) {
+                    if sys.invariants.pairing.scaled_parts(&rep_a.parts, &tb.parts) != 0 {
                         continue;
                     }
                     for sign in [1i8, -1] {
@@ -628,9 +628,9 @@ fn make_channel(
     let mut l_sparse = Vec::with_capacity(family.translates.len());
     let mut g_sparse = Vec::with_capacity(family.translates.len());
     for t in &family.translates {
-        l_sparse.push(sparse(t.l.iter().map(|x| *x as f64)));
-        let m = solved.particles(lat, inv, &t.l);
-        g_sparse.push(sparse(m.iter().map(rational::to_f64)));
+        let (l, g) = solved.sparse_pair(lat, inv, t);
+        l_sparse.push(l);
+        g_sparse.push(g);
     }
     let particles = solved.particles(lat, inv, &family.rep().l);
     let charge = rational::dot_int(&particles, &lat.charge);
@@ -678,6 +678,47 @@ impl CellSolutions {
         }
         m
     }
+
+    /// The nonzero entries of l and of m = K^-1 l of one translate, in
+    /// field order, from its parts (cost of its support, not of all fields):
+    /// the same lists as filtering the dense vectors.
+    fn sparse_pair(
+        &mut self,
+        lat: &Lattice,
+        inv: &[Vec<Rational>],
+        t: &Translate,
+    ) -> (SparseVector, SparseVector) {
+        let mut on_wires: BTreeMap<usize, Vec<i64>> = BTreeMap::new();
+        for (wire, v) in &t.parts {
+            let sum = on_wires.entry(*wire).or_insert_with(|| vec![0; lat.cell]);
+            sum.iter_mut().zip(v).for_each(|(s, x)| *s += x);
+        }
+        let (mut l, mut g) = (Vec::new(), Vec::new());
+        for (wire, slice) in on_wires {
+            if slice.iter().all(|x| *x == 0) {
+                continue;
+            }
+            let base = wire * lat.cell;
+            let sol = self
+                .0
+                .entry(slice.clone())
+                .or_insert_with(|| rational::solve_with(inv, &slice));
+            l.extend(nonzero(base, slice.iter().map(|x| *x as f64)));
+            g.extend(nonzero(base, sol.iter().map(rational::to_f64)));
+        }
+        (l, g)
+    }
+}
+
+/// (field, value) of the nonzero entries, in field order.
+type SparseVector = Vec<(usize, f64)>;
+
+/// (base + i, x) for the nonzero x of a cell's values.
+fn nonzero(base: usize, values: impl Iterator<Item = f64>) -> impl Iterator<Item = (usize, f64)> {
+    values
+        .enumerate()
+        .filter(|(_, x)| *x != 0.0)
+        .map(move |(i, x)| (base + i, x))
 }
 
 /// The distinct translates of a family (a translate equal to plus or minus
@@ -691,12 +732,14 @@ fn distinct(family: Family) -> (Family, (usize, usize)) {
         family.translates.iter().filter(|t| t.l == neg).count(),
     );
     let mut kept: Vec<Translate> = Vec::with_capacity(family.translates.len());
+    let mut seen: HashSet<Vec<i64>> = HashSet::new();
     let mut representative = 0;
     for (i, t) in family.translates.into_iter().enumerate() {
         let negated: Vec<i64> = t.l.iter().map(|x| -x).collect();
-        if kept.iter().any(|k| k.l == t.l || k.l == negated) {
+        if seen.contains(&t.l) || seen.contains(&negated) {
             continue;
         }
+        seen.insert(t.l.clone());
         if i == family.representative {
             representative = kept.len();
         }
@@ -707,10 +750,6 @@ fn distinct(family: Family) -> (Family, (usize, usize)) {
         representative,
     };
     (fam, copies)
-}
-
-fn sparse(values: impl Iterator<Item = f64>) -> Vec<(usize, f64)> {
-    values.enumerate().filter(|(_, x)| *x != 0.0).collect()
 }
 
 /// (start wire, width) of the smallest window of a ring or line of `total`

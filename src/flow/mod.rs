@@ -47,6 +47,7 @@ pub mod channels;
 pub mod check;
 pub mod competitors;
 pub mod kt;
+pub mod limits;
 mod ope;
 pub mod options;
 pub mod progress;
@@ -758,7 +759,7 @@ impl<'s> Flow<'s> {
                 .family
                 .translates
                 .iter()
-                .all(|t| pairing.commute(&win.family.rep().l, &t.l));
+                .all(|t| pairing.scaled_parts(&win.family.rep().parts, &t.parts) == 0);
             let list = if commutes {
                 &mut result.commuting_with_winner
             } else {

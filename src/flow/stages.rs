@@ -37,7 +37,8 @@ use super::background::Background;
 use super::channels::Origin;
 use super::rhs::FlowRhs;
 use super::{integrate, Flow, FlowResult, Integrated, Outcome};
-use crate::core::lattice::Family;
+use crate::core::invariants::{families_commute, Pairing};
+use crate::core::lattice::{Family, Lattice};
 use crate::core::phase::{name_phase, Candidate, Phase, PinnedLattice};
 
 /// One stage of a staged flow.
@@ -106,8 +107,7 @@ pub(super) fn run(
     ell_k: &[Option<f64>],
     opts: &super::FlowOptions,
     k: &DMatrix<f64>,
-    pairing: &crate::core::invariants::Pairing,
-    n: usize,
+    lattice: Exact,
 ) -> Staged {
     let st = Staged {
         stages: Vec::new(),
@@ -134,8 +134,7 @@ pub(super) fn run(
         ell_k,
         opts,
         k,
-        pairing,
-        n,
+        lattice,
     );
     hide_left(rhs, &left_at);
     st
@@ -152,8 +151,7 @@ fn stage_loop(
     ell_k: &[Option<f64>],
     opts: &super::FlowOptions,
     k: &DMatrix<f64>,
-    pairing: &crate::core::invariants::Pairing,
-    n: usize,
+    lattice: Exact,
 ) -> Staged {
     loop {
         if !crate::math::rational::is_integral(&rhs.channels[w].particles) {
@@ -161,7 +159,7 @@ fn stage_loop(
             return st;
         }
         let (before, y_at_pin) = (rhs.frozen.clone(), y.clone());
-        let alive = pin(rhs, y, w, &mut st, ell, pairing, n);
+        let alive = pin(rhs, y, w, &mut st, ell, lattice);
         if alive == 0 {
             st.end = StagesEnd::Pinned;
             return st;
@@ -213,16 +211,8 @@ impl Flow<'_> {
             (Background::Fourier { .. }, Some(q)) => q.k.clone(),
             _ => self.sys.k.clone(),
         };
-        let pairing = &self.sys.invariants.pairing;
-        run(
-            rhs,
-            first,
-            ell_k,
-            &self.opts,
-            &k,
-            pairing,
-            self.sys.lattice.n,
-        )
+        let lattice = (&self.sys.lattice, &self.sys.invariants.pairing);
+        run(rhs, first, ell_k, &self.opts, &k, lattice)
     }
 
     /// Put the stages and the phase into a result (`included` maps flowing
@@ -363,6 +353,10 @@ fn hide_left(rhs: &mut FlowRhs, left_at: &[Option<f64>]) {
     }
 }
 
+/// The exact data the pinning step needs: the lattice of all fields and
+/// the commutation pairing.
+type Exact<'a> = (&'a Lattice, &'a Pairing);
+
 fn end_of(o: Outcome) -> StagesEnd {
     match o {
         Outcome::Strong => StagesEnd::Pinned,
@@ -382,23 +376,17 @@ fn pin(
     w: usize,
     st: &mut Staged,
     ell: f64,
-    pairing: &crate::core::invariants::Pairing,
-    n: usize,
+    (lat, pairing): Exact,
 ) -> usize {
     st.pinned.push(w);
     let fams: Vec<&Family> = st.pinned.iter().map(|&c| &rhs.channels[c].family).collect();
-    let lattice = PinnedLattice::new(n, &fams);
+    let lattice = PinnedLattice::new(lat.n, &fams);
     let win = &rhs.channels[w].family;
     let mut disordered = Vec::new();
     let mut leave = vec![w];
     for c in (0..rhs.channels.len()).filter(|&c| c != w && !rhs.frozen[c]) {
         let ch = rhs.channels[c];
-        let commutes = win.translates.iter().all(|p| {
-            ch.family
-                .translates
-                .iter()
-                .all(|t| pairing.commute(&p.l, &t.l))
-        });
+        let commutes = families_commute(lat, pairing, win, &ch.family);
         if !commutes {
             disordered.push(ch.name.clone());
             leave.push(c);
