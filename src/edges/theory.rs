@@ -88,9 +88,13 @@ pub fn residual(
     let (basis, extra_radical) = divide_radical(m_basis.mul(&comp), &k_f, &mut s_cols)?;
     // The pinned vectors inside are short: list them first, so that the
     // independent subset used takes them before the (long) saturation basis.
+    // The lattice has rank s_cols.len() (a basis of S and the radical
+    // divided out; the vectors inside lie in S), so the search for an
+    // independent subset stops there.
+    let rank = s_cols.len();
     let mut modulo_cols = inside_f;
     modulo_cols.extend(s_cols);
-    let modulo = ModuloLattice::new(&ZMat::from_cols(f, &modulo_cols));
+    let modulo = ModuloLattice::with_rank(&ZMat::from_cols(f, &modulo_cols), rank);
     let gens = readable(&basis, &k_f, &t_f, &modulo);
     let gram = ZMat::from_cols(f, &gens).gram(&k_f);
     let charge: Vec<BigInt> = gens.iter().map(|g| dot(&t_f, g)).collect();

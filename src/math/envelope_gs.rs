@@ -144,11 +144,10 @@ impl EnvelopeGs {
     /// with a as an extra vector; entries outside the envelope of b_j
     /// vanish as above).
     pub fn coords(&self, dots: &[BigInt]) -> Vec<BigInt> {
-        let k = self.len();
-        let mut x: Vec<BigInt> = Vec::with_capacity(k);
-        for j in 0..k {
+        let mut x: Vec<BigInt> = Vec::with_capacity(self.len());
+        for (j, dot) in dots.iter().enumerate().take(self.len()) {
             let f = self.first[j];
-            let mut u = &dots[j] * &self.d[f];
+            let mut u = dot * &self.d[f];
             for (i, lam) in self.row(j) {
                 u = step(u, &self.d[i + 1], &self.d[i], &x[i], lam);
             }

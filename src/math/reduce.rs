@@ -439,7 +439,14 @@ impl ModuloLattice {
     /// spans a sublattice of finite index: representatives stay in the
     /// same class modulo the full lattice).
     pub fn new(s: &ZMat) -> ModuloLattice {
-        let cols = independent(&s.columns());
+        ModuloLattice::with_rank(s, usize::MAX)
+    }
+
+    /// [`ModuloLattice::new`] when the columns of S are known to span a
+    /// lattice of rank at most `rank` (the search for an independent subset
+    /// stops there; the same subset, see [`crate::math::echelon`]).
+    pub fn with_rank(s: &ZMat, rank: usize) -> ModuloLattice {
+        let cols = independent(&s.columns(), rank);
         let dim = s.rows;
         let sub = ZMat::from_cols(dim, &cols);
         let (u, data) = lll::exact_with_gs(&sparse_gram(&cols));
@@ -619,9 +626,9 @@ fn best_multiple(v: &[BigInt], b: &[BigInt]) -> BigInt {
 }
 
 /// A maximal linearly independent subset of the vectors (the first-come
-/// one, in order; [`crate::math::echelon`]).
-fn independent(vs: &[Vec<BigInt>]) -> Vec<Vec<BigInt>> {
-    crate::math::echelon::independent(vs)
+/// one, in order; [`crate::math::echelon`]), stopping at `rank` vectors.
+fn independent(vs: &[Vec<BigInt>], rank: usize) -> Vec<Vec<BigInt>> {
+    crate::math::echelon::independent_up_to(vs, rank)
         .into_iter()
         .map(|i| vs[i].clone())
         .collect()
@@ -717,7 +724,7 @@ pub(crate) mod tests {
                     .collect()
             })
             .collect();
-        independent(&vs)
+        independent(&vs, usize::MAX)
     }
 
     #[test]
@@ -807,7 +814,7 @@ pub(crate) mod tests {
                         .collect()
                 })
                 .collect();
-            let basis = independent(&vs);
+            let basis = independent(&vs, usize::MAX);
             let (star, d) = integral_gram_schmidt(&basis);
             let mut rstar: Vec<Vec<Rational>> = Vec::new();
             let dotr = |a: &[Rational], b: &[Rational]| -> Rational {
