@@ -44,6 +44,7 @@ fn added(sys: &System, delta: f64) -> BTreeSet<String> {
         coupling: None,
         range: None,
         symmetry: SymmetryChoice::All,
+        force: false,
     };
     let opts = FlowOptions::resolve(&sys.model, &Default::default()).unwrap();
     let r = Competing::new(sys, opts, comp)

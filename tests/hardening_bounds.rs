@@ -14,7 +14,7 @@ use pinflow::search::{self, ChargeFilter, HuntOptions, MomentumFilter, Progress,
 
 mod common;
 
-use common::{flow_file as demo, input_error, system};
+use common::{explicit_array, flow_file as demo, input_error, system};
 
 /// The filling-1/3 strip demo with `wires` wires and the given boundary.
 fn strip(wires: usize, boundary: &str) -> String {
@@ -477,4 +477,75 @@ fn a_flow_off_a_terminal_prints_plain_progress_lines() {
     let (without, quiet) = run("0");
     assert!(!quiet.contains("flow: "), "{quiet}");
     assert_eq!(with, without);
+}
+
+// ------------------------------------------------------- hunted competitors
+
+fn pinflow_in(dir: &std::path::Path, args: &[&str]) -> std::process::Output {
+    Command::cargo_bin("pinflow")
+        .unwrap()
+        .current_dir(dir)
+        .args(args)
+        .timeout(std::time::Duration::from_secs(60))
+        .output()
+        .unwrap()
+}
+
+#[test]
+fn too_many_hunted_competitors_are_refused_before_the_enlarged_flow() {
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join("m.toml"), explicit_array(8)).unwrap();
+    let out = pinflow_in(dir.path(), &["flow", "m.toml", "--competitors", "2"]);
+    assert_eq!(out.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        err.contains("--competitors:") && err.contains("2797 competitors"),
+        "{err}"
+    );
+    assert!(err.contains("pass --force"), "{err}");
+    // In a scan the point is recorded as failed (refused work), not as
+    // unphysical, and the scan goes on.
+    let out = pinflow_in(
+        dir.path(),
+        &[
+            "scan",
+            "m.toml",
+            "--competitors",
+            "2",
+            "--x",
+            "lambda=0.8:0.81:2",
+            "--out",
+            "s",
+            "--quiet",
+        ],
+    );
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let points = std::fs::read_to_string(dir.path().join("s/points.csv")).unwrap();
+    assert!(
+        points.lines().nth(1).unwrap().starts_with("0.8,failed,"),
+        "{points}"
+    );
+}
+
+#[test]
+fn even_force_stops_at_the_competitor_ceiling() {
+    // 12 wires: 24057 competitors, (22 + 24057)^2 x 24 = 1.4e10 units of
+    // work, above 100 times the limit.
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join("m.toml"), explicit_array(12)).unwrap();
+    let out = pinflow_in(
+        dir.path(),
+        &["flow", "m.toml", "--competitors", "2", "--force"],
+    );
+    assert_eq!(out.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        err.contains("24057 competitors") && err.contains("even --force"),
+        "{err}"
+    );
 }

@@ -347,6 +347,7 @@ fn competitors_on_the_third_array_find_the_hunted_next_nearest_cdw() {
         coupling: None,
         range: Some(3),
         symmetry: SymmetryChoice::All,
+        force: false,
     };
     let opts = FlowOptions::resolve(&sys.model, &Default::default()).unwrap();
     let r = Competing::new(&sys, opts, comp)

@@ -197,7 +197,7 @@ impl Model {
     ) -> PyResult<(String, String, String, String)> {
         let set = point_overrides(point)?;
         let over = flow_overrides(options)?;
-        let comp = args::competitors(&self.sys, options)?;
+        let comp = args::competitors(&self.sys, options)?.map(|c| c.forced(force));
         let recorded_competitors = args::recorded_competitors(options)?;
         let mut arguments = args::recorded(&[], point, options)?;
         if force {
@@ -250,7 +250,7 @@ impl Model {
     ) -> PyResult<String> {
         let set = point_overrides(point)?;
         let over = flow_overrides(options)?;
-        let competitors = args::competitors(&self.sys, options)?;
+        let competitors = args::competitors(&self.sys, options)?.map(|c| c.forced(force));
         let recorded_competitors = args::recorded_competitors(options)?;
         let by = args::color_by(color_by)?;
         let pool = thread_pool(threads)?;

@@ -121,7 +121,10 @@ pub(super) fn run(args: FlowArgs) -> Result<(), Error> {
     let (sys, point) = load_point(&args.point)?;
     let opts = FlowOptions::resolve(&sys.model, &args.flow.overrides())?;
     crate::flow::limits::check_work(&sys, &opts, args.force)?;
-    let comp = args.competitors.resolve(&sys)?;
+    let comp = args
+        .competitors
+        .resolve(&sys)?
+        .map(|c| c.forced(args.force));
     let result = match comp {
         None => {
             let every = Duration::from_secs_f64(args.progress_every);

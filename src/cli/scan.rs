@@ -200,7 +200,10 @@ pub(super) fn run_scan(args: ScanArgs) -> Result<(), Error> {
         base,
         options,
         shard,
-        competitors: args.competitors.resolve(&sys)?,
+        competitors: args
+            .competitors
+            .resolve(&sys)?
+            .map(|c| c.forced(args.force)),
     };
     let scan = Scan::new(&sys, text.as_bytes(), spec)?;
     check_size(scan.points(), args.force)?;

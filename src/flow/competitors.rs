@@ -48,7 +48,25 @@ pub struct CompetitorOptions {
     /// Which symmetries filter them.
     #[serde(skip)]
     pub symmetry: SymmetryChoice,
+    /// `--force`: flow an enlarged model above [`COMPETITOR_WORK_LIMIT`]
+    /// (never above [`FORCED_WORK_CEILING`]).
+    #[serde(skip)]
+    pub force: bool,
 }
+
+/// Most work (channels^2 x fields, the channels counted without any the
+/// closure adds) of a flow with hunted competitors run without `--force`.
+/// Measured on explicit 12- and 16-field cuts of
+/// `benches/models/explicit40.toml`: 758 channels on 12 fields (6.9e6) flow
+/// in 1.1 s, 2811 on 16 fields (1.3e8) in 22 s with `--closure none` and
+/// 25 s with the closure: about 6e6 units per second of one core, so the
+/// limit is about 15 s.
+pub const COMPETITOR_WORK_LIMIT: f64 = 1e8;
+
+/// Most work even `--force` runs: 100 times the limit (a quarter of an
+/// hour, memory growing with the square of the channels). A 40-field
+/// explicit model has 391,607 operators with Delta <= 2.
+pub const FORCED_WORK_CEILING: f64 = 100.0 * COMPETITOR_WORK_LIMIT;
 
 impl CompetitorOptions {
     /// From the flags (`--competitors`, `--competitor-coupling`,
@@ -83,7 +101,15 @@ impl CompetitorOptions {
             coupling: coupling.or(table.coupling),
             range: range.or(table.range),
             symmetry: SymmetryChoice::All,
+            force: false,
         }))
+    }
+}
+
+impl CompetitorOptions {
+    /// These options with `--force` set as given.
+    pub fn forced(self, force: bool) -> Self {
+        CompetitorOptions { force, ..self }
     }
 }
 
@@ -138,6 +164,7 @@ impl<'s> Competing<'s> {
         if terms.is_empty() {
             return self.plain.run(point);
         }
+        self.check_work(terms.len(), point)?;
         let names: Vec<String> = terms.iter().map(|t| t.name.clone()).collect();
         let built = self.enlarged(terms)?;
         let (sys, plan) = (&built.0, built.1.clone());
@@ -151,6 +178,43 @@ impl<'s> Competing<'s> {
         }
         result.competitors_added = names;
         Ok(result)
+    }
+
+    /// Refuse, before the enlarged model is built, a flow whose work with
+    /// `added` competitors is above [`COMPETITOR_WORK_LIMIT`] (unless
+    /// forced) or above [`FORCED_WORK_CEILING`] (always), naming the count
+    /// and the ways out. The work counts the plain flow's channels and the
+    /// competitors' (a translate each when the plan splits families), not
+    /// those the closure would add: a lower bound.
+    fn check_work(&self, added: usize, point: &[f64]) -> Result<(), Error> {
+        let lat = &self.sys.lattice;
+        let per = if self.plain.plan.split {
+            lat.families
+                .iter()
+                .map(|f| f.translates.len())
+                .max()
+                .unwrap_or(1)
+        } else {
+            1
+        };
+        let channels = (self.plain.plan.channels.len() + added * per) as f64;
+        let work = channels * channels * lat.n as f64;
+        let forced = self.comp.force && work <= FORCED_WORK_CEILING;
+        if work <= COMPETITOR_WORK_LIMIT || forced {
+            return Ok(());
+        }
+        let found = format!(
+            "at {} the hunt finds {added} competitors with bare Delta <= {}; their flow would take at least {work:.1e} units of work (channels^2 x fields, before the closure adds any; limit {COMPETITOR_WORK_LIMIT:.0e}, about 15 s)",
+            self.sys.model.params.describe(point),
+            self.comp.delta,
+        );
+        let how = if self.comp.force {
+            format!("even --force stops at {FORCED_WORK_CEILING:.0e} (memory and time grow with the square of the channels): lower --competitors DELTA or narrow --competitor-range")
+        } else {
+            "lower --competitors DELTA, narrow --competitor-range, or pass --force to run it anyway"
+                .to_string()
+        };
+        Err(InputError::new("command line", "--competitors", format!("{found}; {how}")).into())
     }
 
     /// The flow options of the enlarged model: the closure range stays the
