@@ -442,3 +442,48 @@ fn the_generated_explicit_model_has_every_translate() {
     let arr = report_at(&array_text(&two_channel(), 5, Bc::Periodic), &[]);
     assert!(!term(&arr, "frac").local);
 }
+
+/// The distinct scaling dimensions (rounded to 1e-9) of every operator a
+/// hunt lists with Delta <= `bound`, any charge and spin, within `range`
+/// wires (None: an explicit model, all of its fields).
+fn hunted_dimensions(toml: &str, bound: f64, range: Option<usize>) -> Vec<i64> {
+    use pinflow::search::{hunt, ChargeFilter, HuntOptions, SpinFilter};
+    let sys = common::system(toml);
+    let point = sys.model.point_with(&[], "test").unwrap();
+    let opts = HuntOptions {
+        max_dim: bound,
+        charge: ChargeFilter::Any,
+        spin: SpinFilter::Any,
+        range,
+        ..HuntOptions::default()
+    };
+    let report = hunt(&sys, &point, &opts).expect("hunt");
+    let mut dims: Vec<i64> = report
+        .operators
+        .iter()
+        .map(|op| (op.dimension * 1e9).round() as i64)
+        .collect();
+    dims.sort_unstable();
+    dims.dedup();
+    dims
+}
+
+#[test]
+fn a_periodic_array_hunts_the_dimensions_of_its_explicit_form() {
+    // The ring's hunt takes D of its window from D(q) on the W momenta
+    // (per-q cell problems); the explicit model's, from the dense fixed
+    // point of all fields: two routes to the same numbers. An explicit
+    // model has no translations, so its hunt lists every placement of an
+    // operator; the distinct dimensions must agree.
+    let spec = spinless();
+    let wires = 6;
+    let ring = hunted_dimensions(&array_text(&spec, wires, Bc::Periodic), 2.5, Some(2));
+    let explicit = hunted_dimensions(&explicit_text(&spec, wires, Bc::Periodic), 2.5, None);
+    assert!(ring.len() > 3, "{ring:?}");
+    for d in &ring {
+        assert!(
+            explicit.contains(d),
+            "ring dimension {d}e-9 not among {explicit:?}"
+        );
+    }
+}

@@ -275,6 +275,20 @@ fn dims_on_the_dense_path_above_the_limit_is_refused_unless_forced() {
 }
 
 #[test]
+fn hunt_on_the_dense_path_above_the_limit_is_refused_unless_forced() {
+    // 600 open wires: 1200 fields on the dense path, as for dims.
+    let open = system(&strip(600, "open"));
+    let point = open.model.point_with(&[], "test").unwrap();
+    let e = search::hunt(&open, &point, &HuntOptions::default()).expect_err("1200 fields");
+    let e = input_error(e);
+    assert_eq!(e.key, "--force");
+    assert!(e.message.contains("1200 fields"), "{}", e.message);
+    // A ring of the same size takes D(q) per momentum: no limit, and fast.
+    let ring = system(&strip(600, "periodic"));
+    search::hunt(&ring, &point, &HuntOptions::default()).expect("ring");
+}
+
+#[test]
 fn a_dense_flow_above_the_limit_is_refused_unless_forced() {
     // 300 open wires of 2 fields: 600 fields, every step multiplies dense
     // 600 x 600 matrices.

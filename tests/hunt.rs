@@ -860,4 +860,31 @@ charge = [1, 1]
             "--momentum",
         );
     }
+
+    #[test]
+    fn a_long_ring_is_hunted_through_its_momenta() {
+        // A 256-wire ring of the filling-1/3 demo (512 fields): the dense
+        // fixed point's first-order error bound grows with the number of
+        // fields and refused this well-conditioned point ("cannot be done
+        // accurately"); the window's D now comes from D(q) on the ring's
+        // momenta. Its operators are the 128-wire ring's (a translation-
+        // invariant V of range one: D differs between the two rings only
+        // by corrections exponentially small in W).
+        let text = std::fs::read_to_string(common::flow_file("laughlin_third.toml")).unwrap();
+        assert!(text.contains("wires = 8\n"));
+        let found = |wires: usize| {
+            let sys = system(&text.replace("wires = 8\n", &format!("wires = {wires}\n")));
+            let point = sys.model.point_with(&[], "test").unwrap();
+            hunt(&sys, &point, &HuntOptions::default())
+                .expect("hunt")
+                .operators
+        };
+        let (long, short) = (found(256), found(128));
+        assert_eq!(long.len(), short.len());
+        assert!(!long.is_empty());
+        for (a, b) in long.iter().zip(&short) {
+            assert_eq!(a.particles_by_wire, b.particles_by_wire);
+            assert_close("dimension", a.dimension, b.dimension, 1e-12);
+        }
+    }
 }

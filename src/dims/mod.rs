@@ -23,7 +23,7 @@ use crate::core::phase::{self, Phase};
 use crate::core::qspace::Quadrature;
 use crate::core::relevance::{is_relevant, rg_eigenvalue};
 use crate::core::system::{EvalPath, System};
-use crate::error::{Error, InputError};
+use crate::error::Error;
 use crate::math::rational::{self, fmt_rational};
 use crate::output::{Report, Table};
 
@@ -285,28 +285,13 @@ pub struct DimsReport {
     pub notes: Vec<String>,
 }
 
-/// Most fields evaluated on the dense path without `--force`: its
-/// eigendecompositions take work growing like N^3 (about 0.2 s of one core
-/// at 400 fields, half a minute at 2000). Periodic and infinite arrays go
-/// through q-space and are not limited.
-pub const DENSE_FIELDS_LIMIT: usize = 1024;
+pub use crate::core::system::DENSE_FIELDS_LIMIT;
 
 /// Refuse, before any work, a dense evaluation above
 /// [`DENSE_FIELDS_LIMIT`] fields unless `force`, naming the estimate and the
-/// flag.
+/// flag ([`System::check_dense_size`]).
 pub fn check_size(sys: &System, force: bool) -> Result<(), Error> {
-    let n = sys.lattice.n;
-    if force || sys.eval_path() != EvalPath::Dense || n <= DENSE_FIELDS_LIMIT {
-        return Ok(());
-    }
-    let factor = (n as f64 / DENSE_FIELDS_LIMIT as f64).powi(3);
-    Err(Error::Input(InputError::new(
-        "command line",
-        "--force",
-        format!(
-            "the fixed point of all {n} fields is computed with dense matrices (an open array or an explicit model), work growing like N^3, about {factor:.1} times that of {DENSE_FIELDS_LIMIT} fields (the limit, a few seconds); pass --force to run it anyway, or use a periodic array (computed per momentum q)"
-        ),
-    )))
+    Ok(sys.check_dense_size(force)?)
 }
 
 /// Options of the `dims` report.

@@ -334,26 +334,40 @@ fn check_carried(
 }
 
 /// D on the fields of the lattice, exact on the window: the dense fixed
-/// point for finite models; for an infinite array, the real-space window
-/// D_{j,j'} = int dq/2pi e^{+iq(j-j')} D(q) of the converged q-space fixed
-/// point, placed on the window's fields of the stand-in ring (the rest is
-/// never read).
+/// point for open arrays and explicit models; for a periodic array, the
+/// real-space window D_{j,j'} = (1/W) sum_q e^{+iq(j-j')} D(q), exact on
+/// its W momenta (per-q cell problems: no N^3 work, and no error bound
+/// growing with the number of fields); for an infinite array, the same
+/// integral on the converged q-space rule. The window is placed on the
+/// window's fields (the rest is never read).
 fn window_d(sys: &System, point: &[f64], window: &Window) -> Result<DMatrix<f64>, Error> {
-    if sys.eval_path() != EvalPath::Infinite {
-        let fp = sys.fixed_point(point)?;
-        check_carried(sys, point, &fp)?;
-        return Ok(fp.d);
-    }
-    let (dw, _) = sys.real_space_window(point, window.wires)?;
+    let from_q = match sys.eval_path() {
+        EvalPath::Dense => return dense_d(sys, point),
+        EvalPath::Ring => match sys.real_space_window(point, window.wires) {
+            // D(q) in doubles not accurate enough (V(q) ill-conditioned):
+            // the dense route, with its extended precision and its bound.
+            Err(Error::Numerical(_)) => return dense_d(sys, point),
+            r => r?.0,
+        },
+        EvalPath::Infinite => sys.real_space_window(point, window.wires)?.0,
+    };
     let idx = window.field_indices();
     let n = sys.lattice.n;
     let mut d = DMatrix::zeros(n, n);
     for (a, &i) in idx.iter().enumerate() {
         for (b, &j) in idx.iter().enumerate() {
-            d[(i, j)] = dw[(a, b)];
+            d[(i, j)] = from_q[(a, b)];
         }
     }
     Ok(d)
+}
+
+/// The dense fixed point's D, refused where carrying it in doubles would
+/// make a field's dimension inaccurate.
+fn dense_d(sys: &System, point: &[f64]) -> Result<DMatrix<f64>, Error> {
+    let fp = sys.fixed_point(point)?;
+    check_carried(sys, point, &fp)?;
+    Ok(fp.d)
 }
 
 /// Momenta recognised as rationals at a point, with the momentum period
@@ -705,6 +719,7 @@ pub fn hunt_with_progress(
     let window = Window::choose(sys, opts.range)?;
     let chosen = symmetry::chosen(sys, &opts.symmetry)?;
     let momenta = Momenta::at(sys, point, opts)?;
+    sys.check_dense_size(opts.force)?;
     let d_full = window_d(sys, point, &window)?;
     let sym = symmetry::in_use(sys, point, &chosen, &window)?;
     let space = Space::new(sys, &d_full, window, sym);
