@@ -73,3 +73,85 @@ fn the_512_wire_laughlin_strip_pins_its_tunnelling_term() {
     assert_eq!(v["phase"]["gapped_pairs"], 511);
     assert_eq!(v["phase"]["gapless_modes"], 2);
 }
+
+/// Was 10 s (the Smith form of the phase's lattice with dense transforms of
+/// all 1024 fields); now the sparse echelon basis of `math/zbasis.rs`.
+/// Derived: on a ring every wire's pair is gapped by the tunnelling term
+/// (r = N / 2 = 512 of 1024 fields, docs/physics.md section 7), and the
+/// pinned set is the model's target.
+#[test]
+fn the_512_wire_laughlin_ring_pins_every_pair() {
+    let text = std::fs::read_to_string(demo("laughlin_third.toml")).expect("demo");
+    let dir = tempfile::tempdir().expect("temp dir");
+    std::fs::write(
+        dir.path().join("ring.toml"),
+        text.replace("wires = 8\n", "wires = 512\n"),
+    )
+    .expect("write");
+    let v = dims_json(dir.path(), "ring.toml", &["--pin", "tunnel"]);
+    assert_eq!(v["fields"], 1024);
+    assert_eq!(v["phase"]["label"], "{tunnel}");
+    assert_eq!(v["phase"]["gapped_pairs"], 512);
+    assert_eq!(v["phase"]["fully_gapped"], true);
+    assert_eq!(v["phase"]["target"], true);
+}
+
+/// `edges --pin tunnel` on a 200-wire open strip (400 fields, was 9.8 s
+/// before the round-two changes, 0.27 s after them, 0.14 s now): each end
+/// is the Laughlin 1/3 edge, K = (-3) at the left end (Wen, Adv. Phys. 44,
+/// 405 (1995), from memory), and both ends equal those of a 12-wire strip
+/// (derived: the window theory sees only the window's wires and the
+/// translates touching it, the same on both strips), while the whole strip
+/// keeps one non-chiral wire's worth, K = diag(1, -1).
+#[test]
+fn the_ends_of_a_200_wire_strip_are_those_of_a_short_one() {
+    let text = std::fs::read_to_string(demo("laughlin_third_strip.toml")).expect("demo");
+    let dir = tempfile::tempdir().expect("temp dir");
+    let ends = |wires: usize| {
+        let file = format!("strip{wires}.toml");
+        std::fs::write(
+            dir.path().join(&file),
+            text.replace("wires = 8\n", &format!("wires = {wires}\n")),
+        )
+        .expect("write");
+        let out = pinflow(dir.path())
+            .args([
+                "edges", &file, "--format", "json", "--pin", "tunnel", "--force",
+            ])
+            .output()
+            .expect("run");
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        without_provenance(&out.stdout)
+    };
+    let (long, short) = (ends(200), ends(12));
+    assert_eq!(long["fields"], 400);
+    let keys = [
+        "end",
+        "k_matrix",
+        "charge",
+        "filling",
+        "group",
+        "quasiparticles",
+    ];
+    for (a, b) in long["edges"]
+        .as_array()
+        .expect("edges")
+        .iter()
+        .zip(short["edges"].as_array().expect("edges"))
+    {
+        for k in keys {
+            assert_eq!(a[k], b[k], "{k}");
+        }
+    }
+    assert_eq!(long["edges"][0]["k_matrix"], serde_json::json!([[-3]]));
+    assert_eq!(long["edges"][0]["filling"], "-1/3");
+    assert_eq!(
+        long["whole"]["k_matrix"],
+        serde_json::json!([[1, 0], [0, -1]])
+    );
+    assert_eq!(long["gapped_pairs"], 199);
+}

@@ -240,16 +240,18 @@ fn an_unforced_hunt_stops_at_four_times_its_limit_when_the_estimate_misses() {
 
 #[test]
 fn edges_on_a_wide_array_is_refused_with_the_estimate_unless_forced() {
-    let wide = system(&strip(200, "open"));
-    let e = input_error(pinflow::edges::check_size(&wide, false).expect_err("400 fields"));
+    let wide = system(&strip(300, "open"));
+    let e = input_error(pinflow::edges::check_size(&wide, false).expect_err("600 fields"));
     assert_eq!(e.key, "--force");
-    assert!(e.message.contains("400 fields"), "{}", e.message);
+    assert!(e.message.contains("600 fields"), "{}", e.message);
+    // The limit itself (512 fields) runs.
+    pinflow::edges::check_size(&system(&strip(256, "open")), false).expect("512 fields");
     pinflow::edges::check_size(&wide, true).expect("forced");
     pinflow::edges::check_size(&system(&strip(8, "open")), false).expect("16 fields");
     // Through the command line: exit 2 before any work.
     let dir = tempfile::tempdir().unwrap();
     let path = dir.path().join("wide.toml");
-    std::fs::write(&path, strip(200, "open")).unwrap();
+    std::fs::write(&path, strip(300, "open")).unwrap();
     let out = Command::cargo_bin("pinflow")
         .unwrap()
         .args(["edges", path.to_str().unwrap(), "--pin", "tunnel"])

@@ -81,11 +81,11 @@ def test_dims_above_the_dense_limit_is_refused_unless_forced(tmp_path):
 
 
 def test_edges_above_the_size_limit_is_refused_unless_forced(tmp_path):
-    path = write(tmp_path, "wide.toml", strip(200))
+    path = write(tmp_path, "wide.toml", strip(300))
     m = pinflow.Model.load(path)
     with pytest.raises(pinflow.InputError) as e:
         m.edges(pin=["tunnel"])
-    assert e.value.key == "force" and "400 fields" in e.value.message
+    assert e.value.key == "force" and "600 fields" in e.value.message
     assert e.value.message == py_words(cli_refusal("edges", path, "--pin", "tunnel"))
     with pytest.raises(pinflow.InputError) as e:
         m.edges(pin=["nothing"], force=True)

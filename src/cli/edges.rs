@@ -23,7 +23,7 @@ pub struct EdgesArgs {
     /// and with each other].
     #[arg(long = "pin", value_name = "NAME")]
     pub pin: Vec<String>,
-    /// Analyse even above 256 fields (the exact theory's work grows like
+    /// Analyse even above 512 fields (the exact theory's work grows like
     /// N^3), and flow with a pairs closure above its work limit.
     #[arg(long)]
     pub force: bool,

@@ -140,9 +140,11 @@ pub struct Analysis {
 
 /// Most fields whose exact residual theory is computed without `--force`:
 /// the big-integer normal forms and reductions of [`theory`] on all N
-/// fields take work growing like N^3 (about 0.3 s of one core at 120
-/// fields, half a minute at 400).
-pub const FIELDS_LIMIT: usize = 256;
+/// fields take work growing like N^2.5 to N^3 (benches/README.md, issue 19:
+/// with `--pin`, 0.1-0.3 s of one core at 512 fields, 0.8-1.5 s at 1024).
+/// Without `--pin`, an open array's flow (the dense path, limited at the
+/// same 512 fields in `flow::limits`) takes a few seconds at the limit.
+pub const FIELDS_LIMIT: usize = 512;
 
 /// Refuse, before any work, an analysis above [`FIELDS_LIMIT`] fields
 /// unless `force`, naming the estimate and the flag. Infinite arrays are

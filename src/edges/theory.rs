@@ -86,11 +86,7 @@ pub fn residual(
     let mut s_cols: Vec<Vec<BigInt>> = m_basis.mul(&sat).columns();
     // 3. Residual basis and its Gram matrix.
     let (basis, extra_radical) = divide_radical(m_basis.mul(&comp), &k_f, &mut s_cols)?;
-    // The pinned vectors inside are short: list them first, so that the
-    // independent subset used takes them before the (long) saturation basis.
-    let mut modulo_cols = inside_f;
-    modulo_cols.extend(s_cols);
-    let modulo = ModuloLattice::new(&ZMat::from_cols(f, &modulo_cols));
+    let modulo = pinned_modulo(f, inside_f, s_cols);
     let gens = readable(&basis, &k_f, &t_f, &modulo);
     let gram = ZMat::from_cols(f, &gens).gram(&k_f);
     let charge: Vec<BigInt> = gens.iter().map(|g| dot(&t_f, g)).collect();
@@ -112,6 +108,18 @@ pub fn residual(
         pinned_rank,
         extra_radical,
     })
+}
+
+/// The lattice generators are reduced modulo: the pinned vectors inside
+/// (short: listed first, so that the independent subset used takes them
+/// before the long saturation basis), then `s_cols`, a basis of S and of
+/// the radical divided out. The vectors inside lie in S, so the rank is
+/// `s_cols.len()` and the search for an independent subset stops there.
+fn pinned_modulo(f: usize, inside_f: Vec<Vec<BigInt>>, s_cols: Vec<Vec<BigInt>>) -> ModuloLattice {
+    let rank = s_cols.len();
+    let mut cols = inside_f;
+    cols.extend(s_cols);
+    ModuloLattice::with_rank(&ZMat::from_cols(f, &cols), rank)
 }
 
 /// Step 2: the saturation S of the pinned vectors inside (restricted to the

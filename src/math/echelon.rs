@@ -11,7 +11,8 @@
 //! only entries at or after it. A vector that reaches zero depends on
 //! those before it; otherwise it is kept with its new leading index.
 //!
-//! Owns: [`independent`] and [`rank`]. Invariants: exact big-integer
+//! Owns: [`independent`] (and [`independent_up_to`], which stops at a
+//! known rank) and [`rank`]. Invariants: exact big-integer
 //! arithmetic; the subset returned is the unique first-come maximal
 //! independent subset over the rationals (vector i is kept iff it is not a
 //! rational combination of vectors 0..i), whatever the elimination order,
@@ -28,9 +29,19 @@ type Sparse = Vec<(usize, BigInt)>;
 
 /// Indices of the first-come maximal independent subset of the vectors.
 pub fn independent(vectors: &[Vec<BigInt>]) -> Vec<usize> {
+    independent_up_to(vectors, usize::MAX)
+}
+
+/// [`independent`] when the rank of all the vectors is known to be at most
+/// `rank`: it stops once that many are kept (every later vector depends on
+/// them then, so the answer is the same without reducing the rest).
+pub fn independent_up_to(vectors: &[Vec<BigInt>], rank: usize) -> Vec<usize> {
     let mut rows: BTreeMap<usize, Sparse> = BTreeMap::new();
     let mut kept = Vec::new();
     for (i, v) in vectors.iter().enumerate() {
+        if kept.len() >= rank {
+            break;
+        }
         let mut s: Sparse = v
             .iter()
             .enumerate()
@@ -133,6 +144,8 @@ mod tests {
                 })
                 .collect();
             assert_eq!(independent(&vs), first_come(&vs), "{vs:?}");
+            let r = crate::math::bareiss::dense_rank(&vs);
+            assert_eq!(independent_up_to(&vs, r), first_come(&vs), "{vs:?}");
             assert_eq!(rank(&vs), crate::math::bareiss::dense_rank(&vs));
         }
     }

@@ -57,22 +57,37 @@ pub fn exact_definite(g: &ZMat, sign: i32) -> ZMat {
 /// Exact LLL reduction (delta = 99/100) of a positive definite Gram
 /// matrix: returns unimodular U with U^T G U reduced.
 pub fn exact(g: &ZMat) -> ZMat {
+    exact_with_gs(g).0
+}
+
+/// Gram-Schmidt data of a basis: mu_kj (j < k, row k) and B_k = |b*_k|^2.
+pub type GsData = (Vec<Vec<Rational>>, Vec<Rational>);
+
+/// [`exact`], also returning the Gram-Schmidt data of the reduced basis
+/// that the reduction keeps anyway (None if it stopped at its step cap,
+/// where the last rows may be stale). At the end every row k was last
+/// computed from the final form after every swap below it, and size
+/// reduction updates it exactly, so the data are exact.
+pub fn exact_with_gs(g: &ZMat) -> (ZMat, Option<GsData>) {
     let n = g.rows;
     let mut u = ZMat::identity(n);
+    let mut mu = vec![vec![Rational::zero(); n]; n];
+    let mut bb = vec![Rational::zero(); n];
+    if n == 0 {
+        return (u, Some((mu, bb)));
+    }
+    bb[0] = Rational::from_integer(g.at(0, 0).clone());
     if n < 2 {
-        return u;
+        return (u, Some((mu, bb)));
     }
     let delta = Rational::new(BigInt::from(99), BigInt::from(100));
     let mut gm = g.clone();
-    let mut mu = vec![vec![Rational::zero(); n]; n];
-    let mut bb = vec![Rational::zero(); n];
-    bb[0] = Rational::from_integer(gm.at(0, 0).clone());
     let mut k = 1;
     let mut guard = 0usize;
     while k < n {
         guard += 1;
         if guard > MAX_EXACT_STEPS {
-            break;
+            return (u, None);
         }
         if k == 1 {
             bb[0] = Rational::from_integer(gm.at(0, 0).clone());
@@ -90,7 +105,7 @@ pub fn exact(g: &ZMat) -> ZMat {
             k = (k - 1).max(1);
         }
     }
-    u
+    (u, Some((mu, bb)))
 }
 
 /// b_k -= round(mu_kj) b_j for j = k-1, ..., 0, updating row k of mu.

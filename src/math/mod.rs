@@ -3,7 +3,8 @@
 //! fraction-free elimination for det, inverse (block by block where the
 //! matrix splits) and rank ([`bareiss`]), a sparse row echelon for rank and independent subsets ([`echelon`]), the
 //! Smith normal form and the lattice operations built on it ([`smith`]),
-//! LLL reduction, exact and float ([`lll`]), readable bases of integer
+//! LLL reduction, exact and float ([`lll`]), integral Gram-Schmidt numbers
+//! in envelope form ([`envelope_gs`]), readable bases of integer
 //! forms ([`reduce`]), the enumeration of lattice points in an ellipsoid
 //! ([`ellipsoid`]), and double-double arithmetic with the few dense
 //! symmetric-matrix routines the accurate fixed-point route needs
@@ -20,8 +21,10 @@ pub mod ddouble;
 pub mod dop853;
 pub mod echelon;
 pub mod ellipsoid;
+pub mod envelope_gs;
 pub mod lll;
 pub mod rational;
 pub mod reduce;
 pub mod smith;
+pub mod zbasis;
 pub mod zmat;

@@ -26,6 +26,7 @@ use num_bigint::BigInt;
 use num_integer::Integer;
 use num_traits::{One, Signed, ToPrimitive, Zero};
 
+use super::envelope_gs::EnvelopeGs;
 use super::lll::{self, round_rational};
 use super::zmat::{self, ZMat};
 use crate::math::rational::Rational;
@@ -424,12 +425,12 @@ fn sort_basis(g: &ZMat, u: &mut ZMat) {
 pub struct ModuloLattice {
     dim: usize,
     basis: Vec<Vec<BigInt>>,
-    /// Integral Gram-Schmidt vectors I_j = d_{j-1} b*_j (see [`integral_gram_schmidt`]).
-    star: Vec<Vec<BigInt>>,
-    /// The non-zero entries of each I_j (sparse lattices).
-    star_on: Vec<Vec<usize>>,
-    /// d_j = det of the Gram matrix of b_1..b_j (d_0 = 1 first, then d_1..d_k).
-    d: Vec<BigInt>,
+    /// The non-zero entries of each basis vector (sparse lattices).
+    basis_on: Vec<Vec<usize>>,
+    /// Integral Gram-Schmidt numbers of the basis: d_j and
+    /// lambda_{j,l} = <b_j, I_l>, I_l = d_l b*_l, in envelope form
+    /// ([`crate::math::envelope_gs`]; the vectors I_l are never formed).
+    gs: EnvelopeGs,
 }
 
 impl ModuloLattice {
@@ -438,75 +439,96 @@ impl ModuloLattice {
     /// spans a sublattice of finite index: representatives stay in the
     /// same class modulo the full lattice).
     pub fn new(s: &ZMat) -> ModuloLattice {
-        let cols = independent(&s.columns());
+        ModuloLattice::with_rank(s, usize::MAX)
+    }
+
+    /// [`ModuloLattice::new`] when the columns of S are known to span a
+    /// lattice of rank at most `rank` (the search for an independent subset
+    /// stops there; the same subset, see [`crate::math::echelon`]).
+    pub fn with_rank(s: &ZMat, rank: usize) -> ModuloLattice {
+        let cols = independent(&s.columns(), rank);
         let dim = s.rows;
-        if cols.is_empty() {
-            return ModuloLattice {
-                dim,
-                basis: Vec::new(),
-                star: Vec::new(),
-                star_on: Vec::new(),
-                d: vec![BigInt::one()],
-            };
-        }
         let sub = ZMat::from_cols(dim, &cols);
-        let u = lll::exact(&sub.gram(&ZMat::identity(dim)));
+        let (u, data) = lll::exact_with_gs(&sparse_gram(&cols));
         let basis = sub.mul(&u).columns();
-        let (star, d) = integral_gram_schmidt(&basis);
-        let star_on = star
-            .iter()
-            .map(|w| (0..dim).filter(|&i| !w[i].is_zero()).collect())
-            .collect();
+        // The reduction's own Gram-Schmidt data when it has them (the
+        // reduced basis of local vectors is seldom local: dense envelope).
+        let gs = match data {
+            Some((mu, bb)) => EnvelopeGs::from_gs(&mu, &bb),
+            None => EnvelopeGs::from_gram(&sparse_gram(&basis)),
+        };
+        let basis_on = basis.iter().map(|b| support(b)).collect();
         ModuloLattice {
             dim,
             basis,
-            star,
-            star_on,
-            d,
+            basis_on,
+            gs,
         }
     }
 
-    /// <v, I_j>, over the non-zero entries of I_j.
-    fn dot_star(&self, v: &[BigInt], j: usize) -> BigInt {
-        let w = &self.star[j];
-        self.star_on[j]
+    /// <v, I_j> for every j (exact; see [`EnvelopeGs::coords`]).
+    fn coords(&self, v: &[BigInt]) -> Vec<BigInt> {
+        let dots: Vec<BigInt> = self
+            .basis_on
             .iter()
-            .filter(|&&i| !v[i].is_zero())
-            .fold(BigInt::zero(), |a, &i| a + &v[i] * &w[i])
+            .zip(&self.basis)
+            .map(|(on, b)| sparse_dot(v, b, on))
+            .collect();
+        self.gs.coords(&dots)
     }
 
     /// A short representative of v + lattice.
     pub fn reduce(&self, v: &[BigInt]) -> Vec<BigInt> {
         let mut v = v.to_vec();
+        // Nearest planes: c_j = round(<v', b*_j> / |b*_j|^2) for the current
+        // v' = v - sum_{i>j} c_i b_i, and <v', I_j> = <v, I_j> - sum_{i>j}
+        // c_i lambda_{i,j}, |b*_j|^2 = d_{j+1} / d_j (exact).
+        let mut x = self.coords(&v);
         for j in (0..self.basis.len()).rev() {
-            // mu = <v, b*_j> / |b*_j|^2 = <v, I_j> / d_j (exact).
-            let c = round_rational(&Rational::new(self.dot_star(&v, j), self.d[j + 1].clone()));
+            let c = round_rational(&Rational::new(x[j].clone(), self.gs.d(j + 1).clone()));
             if !c.is_zero() {
-                for (x, y) in v.iter_mut().zip(&self.basis[j]) {
-                    *x -= &c * y;
+                for &i in &self.basis_on[j] {
+                    v[i] -= &c * &self.basis[j][i];
+                }
+                for (l, lam) in self.gs.row(j) {
+                    x[l] -= &c * lam;
                 }
             }
         }
+        self.descend_l1(&mut v);
+        v
+    }
+
+    /// 1-norm descent: the best of v +- b and v + c b (c the best multiple)
+    /// over the basis, while the sum of |entries| drops. Only the entries
+    /// where b is non-zero change, so costs are updated on those (the
+    /// same numbers as summing all entries; first-come on ties).
+    fn descend_l1(&self, v: &mut [BigInt]) {
         for _ in 0..MAX_MOVES {
-            let mut best = (l1(&v), None);
-            for b in &self.basis {
-                let line = best_multiple(&v, b);
+            let total = l1(v);
+            let mut best: (BigInt, Option<(usize, BigInt)>) = (total.clone(), None);
+            for (j, (b, on)) in self.basis.iter().zip(&self.basis_on).enumerate() {
+                let vs: Vec<BigInt> = on.iter().map(|&i| v[i].clone()).collect();
+                let bs: Vec<BigInt> = on.iter().map(|&i| b[i].clone()).collect();
+                let line = best_multiple(&vs, &bs);
+                let rest = &total - l1(&vs);
                 let steps = [BigInt::one(), -BigInt::one()];
                 let extra = (line.abs() > BigInt::one()).then_some(line);
                 for s in steps.iter().chain(extra.as_ref()) {
-                    let w: Vec<BigInt> = v.iter().zip(b).map(|(x, y)| x + y * s).collect();
-                    let c = l1(&w);
+                    let c = vs
+                        .iter()
+                        .zip(&bs)
+                        .fold(rest.clone(), |a, (x, y)| a + (x + y * s).abs());
                     if c < best.0 {
-                        best = (c, Some(w));
+                        best = (c, Some((j, s.clone())));
                     }
                 }
             }
-            match best.1 {
-                Some(w) => v = w,
-                None => break,
+            let Some((j, s)) = best.1 else { break };
+            for &i in &self.basis_on[j] {
+                v[i] += &self.basis[j][i] * &s;
             }
         }
-        v
     }
 
     /// A unimodular U making the columns of C short modulo the lattice:
@@ -522,21 +544,18 @@ impl ModuloLattice {
         // <v_a, v_b> - sum_j <v_a, I_j> <v_b, I_j> / (d_{j-1} d_j), since
         // <v, b*_j> = <v, I_j> / d_{j-1} and |b*_j|^2 = d_j / d_{j-1}.
         let cols = c.columns();
-        let x: Vec<Vec<BigInt>> = cols
-            .iter()
-            .map(|v| (0..self.star.len()).map(|j| self.dot_star(v, j)).collect())
-            .collect();
+        let x: Vec<Vec<BigInt>> = cols.iter().map(|v| self.coords(v)).collect();
         let gram: Vec<Vec<Rational>> = (0..d)
             .map(|a| {
                 (0..d)
                     .map(|b| {
                         let whole = Rational::from_integer(zmat::dot(&cols[a], &cols[b]));
-                        (0..self.star.len())
+                        (0..self.gs.len())
                             .filter(|&j| !x[a][j].is_zero() && !x[b][j].is_zero())
                             .fold(whole, |acc, j| {
                                 acc - Rational::new(
                                     &x[a][j] * &x[b][j],
-                                    &self.d[j] * &self.d[j + 1],
+                                    self.gs.d(j) * self.gs.d(j + 1),
                                 )
                             })
                     })
@@ -607,44 +626,39 @@ fn best_multiple(v: &[BigInt], b: &[BigInt]) -> BigInt {
 }
 
 /// A maximal linearly independent subset of the vectors (the first-come
-/// one, in order; [`crate::math::echelon`]).
-fn independent(vs: &[Vec<BigInt>]) -> Vec<Vec<BigInt>> {
-    crate::math::echelon::independent(vs)
+/// one, in order; [`crate::math::echelon`]), stopping at `rank` vectors.
+fn independent(vs: &[Vec<BigInt>], rank: usize) -> Vec<Vec<BigInt>> {
+    crate::math::echelon::independent_up_to(vs, rank)
         .into_iter()
         .map(|i| vs[i].clone())
         .collect()
 }
 
-/// Integral Gram-Schmidt of independent integer vectors b_1..b_k: the
-/// vectors I_j = d_{j-1} b*_j and the numbers d_0 = 1, d_j = det of the
-/// Gram matrix of b_1..b_j (= <b_j, I_j>), all integers. Fraction-free
-/// recurrence (derived as for Bareiss elimination): u = b_j, then for i <
-/// j, u <- (d_i u - <b_j, I_i> I_i) / d_{i-1}, which keeps u = d_i times
-/// the part of b_j orthogonal to b_1..b_i (an integer vector by Cramer's
-/// rule, so the division is exact); the last u is I_j.
-fn integral_gram_schmidt(basis: &[Vec<BigInt>]) -> (Vec<Vec<BigInt>>, Vec<BigInt>) {
-    let mut star: Vec<Vec<BigInt>> = Vec::with_capacity(basis.len());
-    let mut d = vec![BigInt::one()];
-    for b in basis {
-        let mut u = b.clone();
-        for (i, w) in star.iter().enumerate() {
-            let lambda = zmat::dot(b, w);
-            for (x, y) in u.iter_mut().zip(w) {
-                if x.is_zero() && (lambda.is_zero() || y.is_zero()) {
-                    continue;
-                }
-                let mut t = &d[i + 1] * &*x;
-                if !lambda.is_zero() && !y.is_zero() {
-                    t -= &lambda * y;
-                }
-                debug_assert!((&t % &d[i]).is_zero(), "exact division");
-                *x = t / &d[i];
-            }
+/// The non-zero entries of a vector.
+fn support(v: &[BigInt]) -> Vec<usize> {
+    (0..v.len()).filter(|&i| !v[i].is_zero()).collect()
+}
+
+/// <v, b> over the non-zero entries `on` of b.
+fn sparse_dot(v: &[BigInt], b: &[BigInt], on: &[usize]) -> BigInt {
+    on.iter()
+        .filter(|&&i| !v[i].is_zero())
+        .fold(BigInt::zero(), |a, &i| a + &v[i] * &b[i])
+}
+
+/// The Gram matrix (Euclidean) of vectors, by sparse dots.
+fn sparse_gram(vs: &[Vec<BigInt>]) -> ZMat {
+    let k = vs.len();
+    let on: Vec<Vec<usize>> = vs.iter().map(|v| support(v)).collect();
+    let mut g = ZMat::zeros(k, k);
+    for i in 0..k {
+        for j in 0..=i {
+            let x = sparse_dot(&vs[i], &vs[j], &on[j]);
+            *g.at_mut(j, i) = x.clone();
+            *g.at_mut(i, j) = x;
         }
-        d.push(zmat::dot(b, &u));
-        star.push(u);
     }
-    (star, d)
+    g
 }
 
 /// gcd of a vector's entries (0 for the zero vector).
@@ -657,6 +671,134 @@ pub(crate) mod tests {
     use super::*;
     use rand::{Rng, SeedableRng};
     use rand_chacha::ChaCha8Rng;
+
+    /// Integral Gram-Schmidt of independent integer vectors b_1..b_k: the
+    /// vectors I_j = d_{j-1} b*_j and the numbers d_0 = 1, d_j = det of the
+    /// Gram matrix of b_1..b_j (= <b_j, I_j>), all integers. Fraction-free
+    /// recurrence (derived as for Bareiss elimination): u = b_j, then for i <
+    /// j, u <- (d_i u - <b_j, I_i> I_i) / d_{i-1}, which keeps u = d_i times
+    /// the part of b_j orthogonal to b_1..b_i (an integer vector by Cramer's
+    /// rule, so the division is exact); the last u is I_j.
+    fn integral_gram_schmidt(basis: &[Vec<BigInt>]) -> (Vec<Vec<BigInt>>, Vec<BigInt>) {
+        let mut star: Vec<Vec<BigInt>> = Vec::with_capacity(basis.len());
+        let mut d = vec![BigInt::one()];
+        for b in basis {
+            let mut u = b.clone();
+            for (i, w) in star.iter().enumerate() {
+                let lambda = zmat::dot(b, w);
+                for (x, y) in u.iter_mut().zip(w) {
+                    if x.is_zero() && (lambda.is_zero() || y.is_zero()) {
+                        continue;
+                    }
+                    let mut t = &d[i + 1] * &*x;
+                    if !lambda.is_zero() && !y.is_zero() {
+                        t -= &lambda * y;
+                    }
+                    debug_assert!((&t % &d[i]).is_zero(), "exact division");
+                    *x = t / &d[i];
+                }
+            }
+            d.push(zmat::dot(b, &u));
+            star.push(u);
+        }
+        (star, d)
+    }
+
+    /// Random independent vectors: local ones along a chain (banded Gram
+    /// matrix, as for the translates of a pinned term) or dense ones.
+    fn random_basis(rng: &mut ChaCha8Rng, banded: bool) -> Vec<Vec<BigInt>> {
+        let n = rng.gen_range(4..=12);
+        let k = rng.gen_range(1..=n);
+        let vs: Vec<Vec<BigInt>> = (0..k)
+            .map(|j| {
+                (0..n)
+                    .map(|i| {
+                        let near = i >= j && i <= j + 2;
+                        let x = if !banded || near {
+                            rng.gen_range(-3..=3)
+                        } else {
+                            0
+                        };
+                        BigInt::from(x)
+                    })
+                    .collect()
+            })
+            .collect();
+        independent(&vs, usize::MAX)
+    }
+
+    #[test]
+    fn envelope_gram_schmidt_matches_the_dense_vectors() {
+        // Second code path: the dense integral Gram-Schmidt above. The
+        // envelope form must give the same d_j, lambda_{j,l} = <b_j, I_l>
+        // and <v, I_j> for any v, on banded and dense bases.
+        let mut rng = ChaCha8Rng::seed_from_u64(33);
+        for case in 0..80 {
+            let basis = random_basis(&mut rng, case % 2 == 0);
+            if basis.is_empty() {
+                continue;
+            }
+            let (star, d) = integral_gram_schmidt(&basis);
+            let gs = EnvelopeGs::from_gram(&sparse_gram(&basis));
+            for (j, dj) in d.iter().enumerate() {
+                assert_eq!(gs.d(j), dj, "d_{j}, case {case}");
+            }
+            for (j, b) in basis.iter().enumerate() {
+                let stored: Vec<(usize, BigInt)> = gs.row(j).map(|(l, x)| (l, x.clone())).collect();
+                for (l, w) in star.iter().enumerate().take(j) {
+                    let want = zmat::dot(b, w);
+                    match stored.iter().find(|(m, _)| *m == l) {
+                        Some((_, x)) => assert_eq!(x, &want, "case {case}"),
+                        None => assert!(want.is_zero(), "outside the envelope"),
+                    }
+                }
+            }
+            let n = basis[0].len();
+            let v: Vec<BigInt> = (0..n)
+                .map(|_| BigInt::from(rng.gen_range(-9..=9)))
+                .collect();
+            let dots: Vec<BigInt> = basis.iter().map(|b| zmat::dot(&v, b)).collect();
+            let want: Vec<BigInt> = star.iter().map(|w| zmat::dot(&v, w)).collect();
+            assert_eq!(gs.coords(&dots), want, "case {case}");
+        }
+    }
+
+    /// d_j and every lambda_{j,l} (zero outside the envelope), densely.
+    fn dense_numbers(gs: &EnvelopeGs) -> (Vec<BigInt>, Vec<Vec<BigInt>>) {
+        let k = gs.len();
+        let d = (0..=k).map(|j| gs.d(j).clone()).collect();
+        let lam = (0..k)
+            .map(|j| {
+                let mut row = vec![BigInt::zero(); j];
+                for (l, x) in gs.row(j) {
+                    row[l] = x.clone();
+                }
+                row
+            })
+            .collect();
+        (d, lam)
+    }
+
+    #[test]
+    fn lll_gram_schmidt_data_match_the_recomputed_numbers() {
+        // The numbers taken from the exact LLL's own mu and B_j (what
+        // ModuloLattice uses) against the recurrence on the Gram matrix of
+        // the reduced basis (second code path).
+        let mut rng = ChaCha8Rng::seed_from_u64(34);
+        for case in 0..60 {
+            let basis = random_basis(&mut rng, case % 2 == 0);
+            if basis.is_empty() {
+                continue;
+            }
+            let n = basis[0].len();
+            let (u, data) = lll::exact_with_gs(&sparse_gram(&basis));
+            let (mu, bb) = data.expect("within the step cap");
+            let reduced = ZMat::from_cols(n, &basis).mul(&u).columns();
+            let want = EnvelopeGs::from_gram(&sparse_gram(&reduced));
+            let got = EnvelopeGs::from_gs(&mu, &bb);
+            assert_eq!(dense_numbers(&got), dense_numbers(&want), "case {case}");
+        }
+    }
 
     #[test]
     fn integral_gram_schmidt_matches_rational_gram_schmidt() {
@@ -672,7 +814,7 @@ pub(crate) mod tests {
                         .collect()
                 })
                 .collect();
-            let basis = independent(&vs);
+            let basis = independent(&vs, usize::MAX);
             let (star, d) = integral_gram_schmidt(&basis);
             let mut rstar: Vec<Vec<Rational>> = Vec::new();
             let dotr = |a: &[Rational], b: &[Rational]| -> Rational {

@@ -1,12 +1,15 @@
 //! The integer lattice a pinned set spans (docs/physics.md section 8):
 //! span_Z of the lattice vectors l of every translate, decided exactly.
 //!
-//! Membership by the Smith form ([`crate::math::smith`]): with P A Q =
-//! diag(d_1..d_r, 0..), v lies in the column span of A iff (P v)_i is
-//! divisible by d_i for i < r and vanishes for i >= r (Q is unimodular).
-//! Two spans are equal iff each contains the other's generators. Because K
-//! is invertible, comparing spans of the l is comparing spans of the
-//! particle vectors n = K^-1 l. Big integers throughout.
+//! Membership by an echelon Z-basis of the span ([`crate::math::zbasis`]:
+//! sparse rows keyed by their leading index, built by unimodular row
+//! moves): v lies in span_Z iff it reduces to zero against the rows with
+//! exact divisions, in span_Q iff its fraction-free reduction does. Two
+//! spans are equal iff each contains the other's basis rows. Because K is
+//! invertible, comparing spans of the l is comparing spans of the particle
+//! vectors n = K^-1 l. Big integers throughout; the translates touch a few
+//! wires each, so the work stays near linear in the number of wires (the
+//! Smith form used before needed dense transforms of all fields).
 //!
 //! Infinite arrays: the families are translation invariant; a span is
 //! compared on the periodic stand-in ring (W = 4 (R + 2) + 1 wires) and on
@@ -16,25 +19,20 @@
 //! of the cell polynomials, see [`per_wire_rank`].
 
 use num_bigint::BigInt;
-use num_integer::Integer;
 use num_traits::Zero;
 
 use crate::core::lattice::{Family, Lattice};
-use crate::math::smith::{smith, Smith};
-use crate::math::zmat::{big, ZMat};
+use crate::math::zbasis::ZBasis;
+use crate::math::zmat::big;
 
 /// The integer span of the lattice vectors of a set of families, with the
 /// open-window span of an infinite array.
 #[derive(Debug, Clone)]
 pub struct PinnedLattice {
     n: usize,
-    smith: Smith,
+    basis: ZBasis,
     /// Infinite arrays: the span of the translates that do not wrap.
     window: Option<Box<PinnedLattice>>,
-    /// P by columns and the invariant factors, when every entry fits in
-    /// i64 (membership is then decided in i128, falling back to big
-    /// integers on overflow).
-    small: Option<(Vec<Vec<i64>>, Vec<i64>)>,
 }
 
 impl PinnedLattice {
@@ -64,59 +62,22 @@ impl PinnedLattice {
     }
 
     fn of_rows(n: usize, rows: &[Vec<i64>]) -> PinnedLattice {
-        let a = if rows.is_empty() {
-            ZMat::zeros(n, 0)
-        } else {
-            ZMat::from_i64(rows, n).transpose()
-        };
-        let smith = smith(&a);
-        let small = small_form(&smith);
         PinnedLattice {
             n,
-            smith,
+            basis: ZBasis::of_i64(rows),
             window: None,
-            small,
         }
     }
 
     /// Rank over the rationals (gapped pairs of a finite array).
     pub fn rank(&self) -> usize {
-        self.smith.rank()
+        self.basis.rank()
     }
 
     /// v in span_Z (exact; see the module docs).
     pub fn contains(&self, v: &[i64]) -> bool {
         debug_assert_eq!(v.len(), self.n);
-        if let Some(found) = self.contains_small(v) {
-            return found;
-        }
-        self.contains_big(&big(v))
-    }
-
-    /// [`PinnedLattice::contains`] in i128 over the non-zero entries of v;
-    /// None without the small form or on overflow.
-    fn contains_small(&self, v: &[i64]) -> Option<bool> {
-        let (cols, diag) = self.small.as_ref()?;
-        let mut y = vec![0i128; cols.first().map_or(0, |c| c.len())];
-        for (j, &x) in v.iter().enumerate().filter(|(_, x)| **x != 0) {
-            for (yi, &p) in y.iter_mut().zip(&cols[j]) {
-                *yi = yi.checked_add((p as i128).checked_mul(x as i128)?)?;
-            }
-        }
-        Some(y.iter().enumerate().all(|(i, yi)| match diag.get(i) {
-            Some(d) => yi % (*d as i128) == 0,
-            None => *yi == 0,
-        }))
-    }
-
-    fn contains_big(&self, v: &[BigInt]) -> bool {
-        let y = self.smith.p.mul_vec(v);
-        y.iter()
-            .enumerate()
-            .all(|(i, yi)| match self.smith.diag.get(i) {
-                Some(d) => yi.is_multiple_of(d),
-                None => yi.is_zero(),
-            })
+        self.basis.contains_i64(v)
     }
 
     /// Every translate of the family lies in the span.
@@ -127,8 +88,7 @@ impl PinnedLattice {
     /// v in span_Q (the term is locked, though perhaps not pinned, by the
     /// set: its dimension in the pinned theory is zero).
     pub fn contains_rationally(&self, v: &[i64]) -> bool {
-        let y = self.smith.p.mul_vec(&big(v));
-        y.iter().skip(self.rank()).all(|yi| yi.is_zero())
+        self.basis.contains_rationally(&big(v))
     }
 
     /// The same lattice as the span of `families` (mutual membership).
@@ -148,14 +108,13 @@ impl PinnedLattice {
         windows && self.contains_all(other) && other.contains_all(self)
     }
 
-    /// Every generator of `other` lies in this span.
+    /// Every generator of `other` (its basis rows) lies in this span.
     fn contains_all(&self, other: &PinnedLattice) -> bool {
-        // Generators of other's span: the columns of P^-1 D (P A Q = D).
-        let s = &other.smith;
-        (0..s.rank()).all(|i| {
-            let col: Vec<BigInt> = s.p_inv.col(i).iter().map(|x| x * &s.diag[i]).collect();
-            self.contains_big(&col)
-        })
+        other
+            .basis
+            .rows_dense(other.n)
+            .iter()
+            .all(|r| self.basis.contains(r))
     }
 }
 
@@ -214,19 +173,4 @@ fn evaluate(p: &[Vec<i64>], z: i64) -> Vec<BigInt> {
         }
     }
     v
-}
-
-/// P by columns and the invariant factors as i64, when they all fit.
-fn small_form(smith: &Smith) -> Option<(Vec<Vec<i64>>, Vec<i64>)> {
-    use num_traits::ToPrimitive;
-    let p = &smith.p;
-    let cols = (0..p.cols)
-        .map(|j| (0..p.rows).map(|i| p.at(i, j).to_i64()).collect())
-        .collect::<Option<Vec<Vec<i64>>>>()?;
-    let diag = smith
-        .diag
-        .iter()
-        .map(|d| d.to_i64().filter(|d| *d != 0))
-        .collect::<Option<Vec<i64>>>()?;
-    Some((cols, diag))
 }
