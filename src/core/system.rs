@@ -98,11 +98,9 @@ impl System {
     /// [`DENSE_FIELDS_LIMIT`] fields unless `force`, naming the estimate and
     /// the flag.
     pub fn check_dense_size(&self, force: bool) -> Result<(), InputError> {
-        let n = self.lattice.n;
-        if force || self.eval_path() != EvalPath::Dense || n <= DENSE_FIELDS_LIMIT {
+        let Some((n, factor)) = self.dense_above(DENSE_FIELDS_LIMIT, force) else {
             return Ok(());
-        }
-        let factor = (n as f64 / DENSE_FIELDS_LIMIT as f64).powi(3);
+        };
         Err(InputError::new(
             "command line",
             "--force",
@@ -110,6 +108,15 @@ impl System {
                 "the fixed point of all {n} fields is computed with dense matrices (an open array or an explicit model), work growing like N^3, about {factor:.1} times that of {DENSE_FIELDS_LIMIT} fields (the limit, a few seconds); pass --force to run it anyway, or use a periodic array (computed per momentum q)"
             ),
         ))
+    }
+
+    /// For a refusal of dense work: the number of fields and (N / limit)^3
+    /// when this system takes the dense path with more than `limit` fields
+    /// and `force` is not given; None otherwise.
+    pub fn dense_above(&self, limit: usize, force: bool) -> Option<(usize, f64)> {
+        let n = self.lattice.n;
+        let refused = !force && self.eval_path() == EvalPath::Dense && n > limit;
+        refused.then(|| (n, (n as f64 / limit as f64).powi(3)))
     }
 
     /// Load a model file and prepare it.

@@ -4,7 +4,7 @@
 //! channel limit lives with the closure ([`super::channels::check_closure`]).
 
 use super::options::{Closure, FlowOptions};
-use crate::core::system::{EvalPath, System};
+use crate::core::system::System;
 use crate::error::{Error, InputError};
 
 /// Most fields a flow on the dense path (open arrays, explicit models)
@@ -24,11 +24,9 @@ pub fn check_work(sys: &System, opts: &FlowOptions, force: bool) -> Result<(), E
 /// Refuse a dense flow above [`DENSE_FLOW_FIELDS_LIMIT`] fields unless
 /// `force`.
 pub fn check_dense_size(sys: &System, force: bool) -> Result<(), Error> {
-    let n = sys.lattice.n;
-    if force || sys.eval_path() != EvalPath::Dense || n <= DENSE_FLOW_FIELDS_LIMIT {
+    let Some((n, factor)) = sys.dense_above(DENSE_FLOW_FIELDS_LIMIT, force) else {
         return Ok(());
-    }
-    let factor = (n as f64 / DENSE_FLOW_FIELDS_LIMIT as f64).powi(3);
+    };
     Err(InputError::new(
         "command line",
         "--force",
