@@ -42,7 +42,9 @@ pub struct FlowArgs {
     /// the largest |y| [default 6]; the caption says how many are left out.
     #[arg(long, value_name = "all|listed|N", default_value = "6", value_parser = parse_plot_terms)]
     pub plot_terms: PlotTerms,
-    /// Build the pairs closure even when its estimated work is above the limit.
+    /// Run work above its limits: a pairs closure above its estimated work,
+    /// a dense flow above 512 fields, hunted competitors above theirs
+    /// (docs/flow-options.md).
     #[arg(long)]
     pub force: bool,
     /// Off a terminal (a batch job's log), print one plain progress line of

@@ -42,7 +42,8 @@ pub struct HuntArgs {
     pub momentum: Option<MomentumArg>,
     /// Search even when the estimated number of lattice points is above the
     /// limit (at most 4000000 operators are still kept; a bar shows the
-    /// points enumerated on a terminal).
+    /// points enumerated on a terminal), and on the dense path above 1024
+    /// fields.
     #[arg(long)]
     pub force: bool,
     /// Print the operators that are not yet model terms as [[term]] blocks

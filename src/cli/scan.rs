@@ -68,8 +68,9 @@ pub struct ScanArgs {
     /// to standard error every SECONDS (0: never).
     #[arg(long, value_name = "SECONDS", default_value_t = 60)]
     pub progress_every: u64,
-    /// Run grids larger than the safety limit, and a pairs closure above its
-    /// work limit.
+    /// Run grids larger than the safety limit, a pairs closure above its
+    /// work limit, dense flows above 512 fields and hunted competitors above
+    /// their limit.
     #[arg(long)]
     pub force: bool,
     /// Format of the summary printed at the end.
