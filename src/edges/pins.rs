@@ -116,6 +116,12 @@ pub fn from_names(sys: &System, names: &[String]) -> Result<Selection, InputErro
 /// Flow at the point and pin the final pinned set of its stages (the
 /// winner alone with `--stages 1`).
 pub fn from_flow(sys: &System, point: &[f64], opts: FlowOptions) -> Result<Selection, Error> {
+    // Only the outcome and the pinned set are read: no trajectory (its
+    // samples cost three more evaluations of the flow per step).
+    let opts = FlowOptions {
+        record: false,
+        ..opts
+    };
     let flow = Flow::new(sys, opts);
     let res = flow.run(point)?;
     let file = &sys.model.file;
