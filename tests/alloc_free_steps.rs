@@ -112,6 +112,9 @@ fn allocations_per_flow(boundary: &str, route: DenseRoute) -> (u64, u64, u64) {
     rhs.set_dense_route(route);
     let mut dop = Dop853::new(y.len());
     dop.set_groups(&[2 * rhs.channels.len(), y.len()]);
+    if let Some(n) = rhs.bg.packed_symmetric() {
+        dop.set_packed_symmetric(2 * rhs.channels.len(), n);
+    }
     let control = Control {
         rtol: 1e-8,
         atol: 1e-12,

@@ -476,3 +476,90 @@ fn banded_product_equals_the_dense_one_on_a_40_wire_strip() {
         same_result_to(&b, &d, &what, 1e-12, 1e-10);
     }
 }
+
+/// Issue 15 (packed dense D): the dense layout stores D's upper triangle
+/// (`src/flow/background.rs`, `Background::Dense`). Its right-hand side by
+/// every route (matrix products by gemm and by the banded product, and the
+/// per-channel reference) against the feedback computed here in full from
+/// the fixed point's full D with plain `nalgebra` products:
+/// dD = -(1/8) sum_null |y|^2 sum_t [D l_t l_t^T D - g_t g_t^T]
+/// (docs/physics.md section 3), and every channel's dimension against
+/// (1/2) l^T D l. A consistency check between code paths (no physics
+/// values), to 1e-12 of the largest entry. Also: writing the full D and
+/// reading it back is exact.
+#[test]
+fn packed_dense_rhs_equals_a_full_matrix_computation() {
+    use pinflow::flow::background::{packed_at, Background};
+    use pinflow::flow::rhs::FlowRhs;
+    let array = std::fs::read_to_string(root().join("benches/models/array32.toml"))
+        .expect("bench model")
+        .replace("boundary = \"periodic\"", "boundary = \"open\"");
+    for (what, sys) in [
+        ("40-wire strip", strip40(0.8, 0.5)),
+        ("array32, open", system(&array)),
+    ] {
+        let point = sys.model.params.defaults().to_vec();
+        let flow = Flow::new(&sys, FlowOptions::default());
+        let listed = flow.plan.listed;
+        let channels: Vec<_> = flow.plan.channels[..listed].iter().collect();
+        let d = sys.fixed_point(&point).expect("fixed point").d;
+        let n = d.nrows();
+        let bg = Background::Dense { n };
+        assert_eq!(bg.len(), n * (n + 1) / 2);
+        let mut y: Vec<f64> = (0..2 * listed)
+            .map(|i| 0.04 + 0.01 * (i % 5) as f64)
+            .collect();
+        y.resize(2 * listed + bg.len(), 0.0);
+        bg.write(&d, &mut y[2 * listed..]);
+        let sym = (&d + d.transpose()) * 0.5;
+        assert_eq!(
+            bg.dense(&y[2 * listed..]).upper_triangle(),
+            d.upper_triangle()
+        );
+        // The reference, in full.
+        let mut want = nalgebra::DMatrix::<f64>::zeros(n, n);
+        let vec_of = |v: &[(usize, f64)]| {
+            let mut x = nalgebra::DVector::zeros(n);
+            v.iter().for_each(|&(i, a)| x[i] = a);
+            x
+        };
+        for (c, ch) in channels.iter().enumerate().filter(|(_, ch)| ch.null()) {
+            let w2 = 4.0 * (y[2 * c].powi(2) + y[2 * c + 1].powi(2));
+            for (l, g) in ch.l_sparse.iter().zip(&ch.g_sparse) {
+                let (u, g) = (&sym * vec_of(l), vec_of(g));
+                want -= (&u * u.transpose() - &g * g.transpose()) * (w2 / 8.0);
+            }
+        }
+        let scale = want.amax();
+        assert!(scale > 0.0, "{what}: no feedback");
+        let mut rhs = FlowRhs::new(bg.clone(), channels.clone(), vec![0.0; listed], vec![]);
+        for route in [DenseRoute::Full, DenseRoute::Banded, DenseRoute::Auto] {
+            rhs.set_dense_route(route);
+            let mut got = vec![f64::NAN; y.len()];
+            rhs.derivative(&y, &mut got);
+            let mut reference = vec![f64::NAN; y.len()];
+            rhs.derivative_reference(&y, &mut reference);
+            for (name, out) in [("products", &got), ("per channel", &reference)] {
+                let ds = &out[2 * listed..];
+                for i in 0..n {
+                    for j in i..n {
+                        let (a, b) = (ds[packed_at(n, i, j)], want[(i, j)]);
+                        assert!(
+                            (a - b).abs() <= 1e-12 * scale,
+                            "{what}, {route:?}, {name}: ({i}, {j}) {a:e} vs {b:e}"
+                        );
+                    }
+                }
+            }
+        }
+        for (c, ch) in channels.iter().enumerate() {
+            let l = vec_of(&ch.l_sparse[ch.family.representative]);
+            let want = 0.5 * l.dot(&(&sym * &l));
+            let got = rhs.dimension(&y, c);
+            assert!(
+                (got - want).abs() <= 1e-12 * want.abs().max(1.0),
+                "{what}: {c}"
+            );
+        }
+    }
+}

@@ -6,8 +6,11 @@
 //! It keeps D K D = K^-1 exactly (the two terms of d(DKD) cancel when
 //! DKD = K^-1); the drift of a numerical flow is measured by the caller.
 //!
-//! - [`Background::Dense`]: the full N x N matrix (explicit models, open
-//!   arrays): each translate costs N^2.
+//! - [`Background::Dense`]: the symmetric N x N matrix as its upper
+//!   triangle, row by row (row i holds columns i..N, [`packed_at`]; N(N+1)/2
+//!   entries, half of the integrator's work on the full matrix; explicit
+//!   models, open arrays): each translate costs N^2. The integrator measures
+//!   its error as over the full matrix ([`Background::packed_symmetric`]).
 //! - [`Background::Fourier`]: periodic arrays of W wires. D is block-
 //!   circulant, D_{j,j'} = D^(j'-j), and is stored as its W Fourier blocks
 //!   D(q) = sum_n D^(n) e^{i q n}, q = 2 pi k / W (each n_c x n_c,
@@ -53,7 +56,7 @@
 //! callers pass a [`Work`] from [`Background::work`] (or scratch space of
 //! `scratch_len()` for the reference route).
 
-use nalgebra::{DMatrix, DMatrixView};
+use nalgebra::DMatrix;
 use num_complex::Complex64;
 
 use super::channels::Channel;
@@ -63,7 +66,8 @@ use crate::math::banded;
 /// Storage of D inside the ODE state.
 #[derive(Debug, Clone)]
 pub enum Background {
-    /// Full matrix, row-major, n x n.
+    /// Upper triangle of the symmetric n x n matrix, row by row
+    /// ([`packed_at`]).
     Dense {
         /// Number of fields.
         n: usize,
@@ -84,7 +88,7 @@ impl Background {
     /// Number of state entries.
     pub fn len(&self) -> usize {
         match *self {
-            Background::Dense { n } => n * n,
+            Background::Dense { n } => n * (n + 1) / 2,
             Background::Fourier { wires, cell } => 2 * half(wires) * cell * cell,
         }
     }
@@ -102,13 +106,26 @@ impl Background {
         }
     }
 
-    /// Write the state of a dense D (for Fourier, D must be block-circulant).
+    /// Size of the symmetric matrix whose upper triangle the state packs
+    /// (the integrator's [`crate::math::dop853::Dop853::set_packed_symmetric`]),
+    /// None on the Fourier layout.
+    pub fn packed_symmetric(&self) -> Option<usize> {
+        match *self {
+            Background::Dense { n } => Some(n),
+            Background::Fourier { .. } => None,
+        }
+    }
+
+    /// Write the state of a dense D (for Fourier, D must be block-circulant;
+    /// for Dense, D is symmetric and its upper triangle is stored).
     pub fn write(&self, d: &DMatrix<f64>, out: &mut [f64]) {
         match *self {
             Background::Dense { n } => {
+                let mut p = 0;
                 for i in 0..n {
-                    for j in 0..n {
-                        out[i * n + j] = d[(i, j)];
+                    for j in i..n {
+                        out[p] = d[(i, j)];
+                        p += 1;
                     }
                 }
             }
@@ -132,7 +149,7 @@ impl Background {
     /// The dense D of a state.
     pub fn dense(&self, s: &[f64]) -> DMatrix<f64> {
         match *self {
-            Background::Dense { n } => DMatrix::from_fn(n, n, |i, j| s[i * n + j]),
+            Background::Dense { n } => DMatrix::from_fn(n, n, |i, j| s[sym_at(n, i, j)]),
             Background::Fourier { wires, cell } => {
                 let blocks: Vec<DMatrix<f64>> = (0..wires)
                     .map(|sep| qspace::block(s, wires, cell, sep as i64))
@@ -169,7 +186,7 @@ impl Background {
                 let mut acc = 0.0;
                 for &(i, x) in l {
                     for &(j, y) in l {
-                        acc += x * y * s[i * n + j];
+                        acc += x * y * s[sym_at(n, i, j)];
                     }
                 }
                 0.5 * acc
@@ -246,21 +263,43 @@ fn outer_update(u: &[f64], g: &[Complex64], c: f64, ds: &mut [f64]) {
 
 pub use crate::core::qspace::{half, phase, weight};
 
+/// Position of entry (i, j), i <= j, in the packed upper triangle of an
+/// n x n matrix stored row by row (row i holds columns i..n).
+#[inline]
+pub fn packed_at(n: usize, i: usize, j: usize) -> usize {
+    debug_assert!(i <= j && j < n);
+    i * (2 * n - i + 1) / 2 + (j - i)
+}
+
+/// Position of entry (i, j) or (j, i) of a packed symmetric matrix.
+#[inline]
+fn sym_at(n: usize, i: usize, j: usize) -> usize {
+    if i <= j {
+        packed_at(n, i, j)
+    } else {
+        packed_at(n, j, i)
+    }
+}
+
+/// The reference route's ds += c sum_t (u_t u_t^T - g_t g_t^T), u = D l_t,
+/// on the packed upper triangle.
 fn dense_feedback(n: usize, s: &[f64], ch: &Channel, c: f64, ds: &mut [f64], u: &mut [f64]) {
     for (l, g) in ch.l_sparse.iter().zip(&ch.g_sparse) {
         for (i, ui) in u.iter_mut().enumerate() {
-            *ui = l.iter().map(|&(j, x)| s[i * n + j] * x).sum();
+            *ui = l.iter().map(|&(j, x)| s[sym_at(n, i, j)] * x).sum();
         }
+        let mut p = 0;
         for i in 0..n {
-            let row = &mut ds[i * n..(i + 1) * n];
+            let row = &mut ds[p..p + n - i];
+            p += n - i;
             let cu = c * u[i];
-            for (r, uj) in row.iter_mut().zip(u.iter()) {
+            for (r, uj) in row.iter_mut().zip(&u[i..]) {
                 *r += cu * uj;
             }
         }
         for &(i, gi) in g {
-            for &(j, gj) in g {
-                ds[i * n + j] -= c * gi * gj;
+            for &(j, gj) in g.iter().filter(|&&(j, _)| j >= i) {
+                ds[packed_at(n, i, j)] -= c * gi * gj;
             }
         }
     }
@@ -308,6 +347,9 @@ pub struct Work {
     t: DMatrix<f64>,
     /// D M D (dense only).
     r: DMatrix<f64>,
+    /// Dense: D unpacked from the state (in full for gemm; only its band
+    /// for the banded product, the rest unused).
+    d: DMatrix<f64>,
     /// Fourier: M of every stored block, laid out like the state's D;
     /// dense: M on the union `u`.
     mq: Vec<f64>,
@@ -372,15 +414,16 @@ impl Background {
             Background::Fourier { cell, .. } => (2 * cell, cell),
         };
         let z = || DMatrix::zeros(rows, cols);
-        let q = match *self {
-            Background::Dense { .. } => 0,
-            Background::Fourier { .. } => self.len(),
+        let (q, dn) = match *self {
+            Background::Dense { n } => (0, n),
+            Background::Fourier { .. } => (self.len(), 0),
         };
         Work {
             m: z(),
             n: z(),
             t: z(),
             r: z(),
+            d: DMatrix::zeros(dn, dn),
             mq: vec![0.0; q],
             nq: vec![0.0; q],
             dw: vec![0.0; q],
@@ -627,14 +670,15 @@ fn dense_sums(
     any
 }
 
-/// ds += (D M D + (D M D)^T)/2 - N for the dense layout (M, N in `work`),
-/// by the banded or the dense product as `work.route` says.
+/// ds += (D M D + (D M D)^T)/2 - N for the dense layout (M, N in `work`;
+/// D and ds packed), by the banded or the dense product as `work.route`
+/// says.
 fn dense_products(n: usize, s: &[f64], ds: &mut [f64], work: &mut Work) {
     let bm = work.bm;
     let b = match work.route {
         DenseRoute::Full => None,
         route => {
-            let b = banded::bandwidth(s, n, BAND_TOL * banded::max_abs(s));
+            let b = banded::packed_bandwidth(s, n, BAND_TOL * banded::max_abs(s));
             let dense = 2.0 * (n as f64).powi(3);
             let cheap = banded::triple_cost(n, b, bm) * GEMM_ADVANTAGE < dense;
             (route == DenseRoute::Banded || cheap).then_some(b)
@@ -643,33 +687,36 @@ fn dense_products(n: usize, s: &[f64], ds: &mut [f64], work: &mut Work) {
     let Some(b) = b else {
         return gemm_products(n, s, ds, work);
     };
+    banded::unpack_band(n, s, b, work.d.as_mut_slice());
     let (t, r) = (work.t.as_mut_slice(), work.r.as_mut_slice());
-    banded::sym_triple(n, s, b, work.m.as_slice(), bm, t, r);
+    banded::sym_triple(n, work.d.as_slice(), b, work.m.as_slice(), bm, t, r);
     let nn = work.n.as_slice();
+    let (w, mut p) = (2 * b + bm, 0);
     for i in 0..n {
-        let row = i * n..(i + 1) * n;
-        let (dsi, ri, ni) = (&mut ds[row.clone()], &r[row.clone()], &nn[row]);
-        let w = 2 * b + bm;
-        for j in i.saturating_sub(w)..(i + w + 1).min(n) {
-            dsi[j] += ri[j];
+        let dsi = &mut ds[p..p + n - i];
+        p += n - i;
+        let (ri, ni) = (&r[i * n + i..(i + 1) * n], &nn[i * n + i..(i + 1) * n]);
+        for (x, y) in dsi.iter_mut().zip(ri).take(w + 1) {
+            *x += y;
         }
-        for j in i.saturating_sub(bm)..(i + bm + 1).min(n) {
-            dsi[j] -= ni[j];
+        for (x, y) in dsi.iter_mut().zip(ni).take(bm + 1) {
+            *x -= y;
         }
     }
 }
 
-/// The dense product of [`dense_products`]. The state holds D row-major;
-/// read column-major it is D^T, so the products give D^T M D^T, which is
-/// D M D for the symmetric D.
+/// The dense product of [`dense_products`]: D unpacked in full, D M D by
+/// gemm, symmetrised into the packed ds.
 fn gemm_products(n: usize, s: &[f64], ds: &mut [f64], work: &mut Work) {
-    let d = DMatrixView::from_slice(s, n, n);
-    work.t.gemm(1.0, &d, &work.m, 0.0);
-    work.r.gemm(1.0, &work.t, &d, 0.0);
+    banded::unpack_band(n, s, n.saturating_sub(1), work.d.as_mut_slice());
+    work.t.gemm(1.0, &work.d, &work.m, 0.0);
+    work.r.gemm(1.0, &work.t, &work.d, 0.0);
+    let mut p = 0;
     for i in 0..n {
-        for j in 0..n {
+        for j in i..n {
             let sym = 0.5 * (work.r[(i, j)] + work.r[(j, i)]);
-            ds[i * n + j] += sym - work.n[(i, j)];
+            ds[p] += sym - work.n[(i, j)];
+            p += 1;
         }
     }
 }

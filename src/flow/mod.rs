@@ -1053,6 +1053,9 @@ fn stepper(rhs: &FlowRhs) -> Dop853 {
     let n = rhs.state_len();
     let mut dop = Dop853::new(n);
     dop.set_groups(&[2 * rhs.channels.len(), n]);
+    if let Some(size) = rhs.bg.packed_symmetric() {
+        dop.set_packed_symmetric(2 * rhs.channels.len(), size);
+    }
     dop
 }
 

@@ -38,6 +38,40 @@ pub fn bandwidth(a: &[f64], n: usize, thr: f64) -> usize {
     b
 }
 
+/// The half-bandwidth above `thr` of a symmetric n x n matrix given as its
+/// packed upper triangle (row i holds columns i..n): the largest j - i with
+/// |a_ij| > thr. Scans each row from its far end down to the band found so
+/// far.
+pub fn packed_bandwidth(a: &[f64], n: usize, thr: f64) -> usize {
+    let (mut b, mut p) = (0, 0);
+    for i in 0..n {
+        let row = &a[p..p + n - i];
+        p += n - i;
+        if b + 1 < row.len() {
+            if let Some(j) = row[b + 1..].iter().rposition(|x| x.abs() > thr) {
+                b += j + 1;
+            }
+        }
+    }
+    b
+}
+
+/// Write the entries within `b` of the diagonal of the symmetric matrix
+/// whose packed upper triangle is `a` (as in [`packed_bandwidth`]) into the
+/// n x n row-major `out`, both triangles; the entries farther out are left
+/// as they were ([`sym_triple`] does not read them).
+pub fn unpack_band(n: usize, a: &[f64], b: usize, out: &mut [f64]) {
+    let mut p = 0;
+    for i in 0..n {
+        let row = &a[p..p + (b + 1).min(n - i)];
+        p += n - i;
+        out[i * n + i..i * n + i + row.len()].copy_from_slice(row);
+        for (k, &x) in row.iter().enumerate().skip(1) {
+            out[(i + k) * n + i] = x;
+        }
+    }
+}
+
 /// Range of indices within `w` of `i` in 0..n.
 #[inline]
 fn around(i: usize, w: usize, n: usize) -> std::ops::Range<usize> {

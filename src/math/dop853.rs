@@ -19,7 +19,18 @@
 //! split into ranges (e.g. couplings, then a background matrix), each
 //! range gets the DOP853 error norm of its own (root mean square over the
 //! range), and the step's error is the largest, so a small group is held to
-//! `rtol` however large the others are.
+//! `rtol` however large the others are. A group may hold the upper triangle
+//! of a symmetric matrix, row by row ([`Dop853::set_packed_symmetric`]): its
+//! norm is then the root mean square over the full matrix (an off-diagonal
+//! entry counts twice, the divisor is n^2), the same number as for the
+//! matrix stored in full, so packing it leaves the step sequence unchanged
+//! up to rounding.
+//!
+//! The per-step arithmetic over the state (stage combinations, error sums)
+//! runs in blocks of [`LANES`] components with the stages as the inner loop,
+//! so the compiler vectorises it; each component's combination is summed in
+//! stage order as in a plain loop (the same bits), only the error norm's sum
+//! over components is split into [`LANES`] partial sums.
 //!
 //! Invariants: integration runs forward (`x_end > x`); after every accepted
 //! step `y()` is the state at `x()` and `k[12]` holds the derivative there
@@ -83,10 +94,23 @@ const SAFE: f64 = 0.9;
 const FAC_MIN: f64 = 0.333;
 const FAC_MAX: f64 = 6.0;
 
+/// Components per block of the vectorised loops.
+const LANES: usize = 8;
+
+/// A range of the state measured by one error norm.
+#[derive(Debug, Clone, Copy, PartialEq)]
+struct Group {
+    from: usize,
+    to: usize,
+    /// 0: plain root mean square over the range; n > 0: the range is the
+    /// packed upper triangle of a symmetric n x n matrix (module docs).
+    sym: usize,
+}
+
 /// An integrator with all its work space.
 pub struct Dop853 {
     n: usize,
-    groups: Vec<(usize, usize)>,
+    groups: Vec<Group>,
     control: Control,
     x: f64,
     x_old: f64,
@@ -118,7 +142,11 @@ impl Dop853 {
     pub fn new(n: usize) -> Dop853 {
         Dop853 {
             n,
-            groups: vec![(0, n)],
+            groups: vec![Group {
+                from: 0,
+                to: n,
+                sym: 0,
+            }],
             control: Control {
                 rtol: 1e-8,
                 atol: 1e-12,
@@ -156,10 +184,37 @@ impl Dop853 {
         let mut from = 0;
         for &to in bounds {
             if to > from {
-                self.groups.push((from, to));
+                self.groups.push(Group { from, to, sym: 0 });
             }
             from = to;
         }
+    }
+
+    /// Declare the group that starts at `from` (see [`Dop853::set_groups`])
+    /// the upper triangle of a symmetric n x n matrix stored row by row
+    /// (row i holds columns i..n): its error norm becomes the root mean
+    /// square over the full matrix (module docs). Panics when no group of
+    /// n(n+1)/2 components starts at `from` (a caller's bug).
+    pub fn set_packed_symmetric(&mut self, from: usize, n: usize) {
+        let g = self.groups.iter_mut().find(|g| g.from == from);
+        let g = g.expect("a group starts there");
+        assert_eq!(g.to - g.from, n * (n + 1) / 2, "packed triangle size");
+        g.sym = n;
+    }
+
+    /// A group's sum of t(i) from its plain sum `all`, counted as over the
+    /// full matrix for a packed symmetric group (2 all - diagonal), and the
+    /// divisor of its mean: (sum, count).
+    fn group_sum(g: &Group, all: f64, t: impl Fn(usize) -> f64) -> (f64, f64) {
+        if g.sym == 0 {
+            return (all, (g.to - g.from) as f64);
+        }
+        let (mut diag, mut p) = (0.0, g.from);
+        for i in 0..g.sym {
+            diag += t(p);
+            p += g.sym - i;
+        }
+        (2.0 * all - diag, (g.sym * g.sym) as f64)
     }
 
     /// Current position.
@@ -202,13 +257,13 @@ impl Dop853 {
     /// over the groups), with sk_i = atol + rtol |y_i|.
     fn norm_at_start(&self, v: &[f64]) -> f64 {
         let (rtol, atol) = (self.control.rtol, self.control.atol);
+        let t = |i: usize| (v[i] / (atol + rtol * self.y[i].abs())).powi(2);
         self.groups
             .iter()
-            .map(|&(a, b)| {
-                let s: f64 = (a..b)
-                    .map(|i| (v[i] / (atol + rtol * self.y[i].abs())).powi(2))
-                    .sum();
-                (s / (b - a) as f64).sqrt()
+            .map(|g| {
+                let all: f64 = (g.from..g.to).map(t).sum();
+                let (s, count) = Self::group_sum(g, all, t);
+                (s / count).sqrt()
             })
             .fold(0.0, f64::max)
     }
@@ -253,8 +308,9 @@ impl Dop853 {
                 return Err(StepError::StepSizeUnderflow { x: self.x });
             }
             if self.fsal_pending {
-                let (first, rest) = self.k.split_at_mut(1);
-                first[0].copy_from_slice(&rest[11]);
+                // k[12] (f at the new point) becomes k[0]; the old k[0] is
+                // not needed any more and k[12] is rewritten on acceptance.
+                self.k.swap(0, 12);
                 self.fsal_pending = false;
             }
             let last = self.x + 1.01 * self.h > self.x_end;
@@ -295,29 +351,17 @@ impl Dop853 {
     /// finite counts as an infinite error (the step is rejected and
     /// shrinks).
     fn error(&self) -> f64 {
-        let (rtol, atol) = (self.control.rtol, self.control.atol);
         let mut worst = 0.0f64;
-        for &(a, b) in &self.groups {
-            let (mut e5, mut e3) = (0.0, 0.0);
-            for i in a..b {
-                let sk = atol + rtol * self.y[i].abs().max(self.stage[i].abs());
-                let mut d5 = 0.0;
-                for (j, e) in E5.iter().enumerate() {
-                    if *e != 0.0 {
-                        d5 += e * self.k[j][i];
-                    }
-                }
-                let bhh = BHH[0] * self.k[0][i] + BHH[1] * self.k[8][i] + BHH[2] * self.k[11][i];
-                let d3 = self.b_sum(i) - bhh;
-                e5 += (d5 / sk).powi(2);
-                e3 += (d3 / sk).powi(2);
-            }
+        for g in &self.groups {
+            let (e5, e3, finite) = self.error_sums(g.from, g.to);
+            let (e5, count) = Self::group_sum(g, e5, |i| self.error_terms(i).0);
+            let (e3, _) = Self::group_sum(g, e3, |i| self.error_terms(i).1);
             let mut deno = e5 + 0.01 * e3;
             if deno <= 0.0 {
                 deno = 1.0;
             }
-            let err = self.h.abs() * e5 * (1.0 / (deno * (b - a) as f64)).sqrt();
-            if !err.is_finite() || !self.stage[a..b].iter().all(|x| x.is_finite()) {
+            let err = self.h.abs() * e5 * (1.0 / (deno * count)).sqrt();
+            if !err.is_finite() || !finite {
                 return f64::INFINITY;
             }
             worst = worst.max(err);
@@ -325,16 +369,52 @@ impl Dop853 {
         worst
     }
 
-    /// sum_j b_j k_j[i] (the 8th-order weights, row 12 of A).
-    #[allow(clippy::needless_range_loop)] // j names the stage in A and k
-    fn b_sum(&self, i: usize) -> f64 {
-        let mut s = 0.0;
-        for j in 0..12 {
-            if A[12][j] != 0.0 {
-                s += A[12][j] * self.k[j][i];
+    /// Component i's squared scaled error estimates ((d5/sk)^2, (d3/sk)^2),
+    /// d5 the 5th-order estimate, d3 = b - bhh the 3rd-order one.
+    fn error_terms(&self, i: usize) -> (f64, f64) {
+        let (rtol, atol) = (self.control.rtol, self.control.atol);
+        let sk = atol + rtol * self.y[i].abs().max(self.stage[i].abs());
+        let (e5, b) = (live(&E5), live(&A[12][..12]));
+        let d5 = e5.iter().fold(0.0, |a, &(j, c)| a + c * self.k[j][i]);
+        let bs = b.iter().fold(0.0, |a, &(j, c)| a + c * self.k[j][i]);
+        let bhh = BHH[0] * self.k[0][i] + BHH[1] * self.k[8][i] + BHH[2] * self.k[11][i];
+        ((d5 / sk).powi(2), ((bs - bhh) / sk).powi(2))
+    }
+
+    /// Sums of [`Dop853::error_terms`] over a..b in blocks of [`LANES`]
+    /// (one partial sum per lane), and whether every new state entry there
+    /// is finite.
+    fn error_sums(&self, a: usize, b: usize) -> (f64, f64, bool) {
+        let (rtol, atol) = (self.control.rtol, self.control.atol);
+        let (e5w, bw) = (live(&E5), live(&A[12][..12]));
+        let (mut acc5, mut acc3, mut fin) = ([0.0; LANES], [0.0; LANES], [0.0; LANES]);
+        let blocks = (b - a) / LANES;
+        for blk in 0..blocks {
+            let r = a + blk * LANES..a + (blk + 1) * LANES;
+            let (d5, bs) = (lanes_sum(&self.k, &e5w, &r), lanes_sum(&self.k, &bw, &r));
+            let (k0, k8, k11) = (
+                block(&self.k[0], &r),
+                block(&self.k[8], &r),
+                block(&self.k[11], &r),
+            );
+            let (y, st) = (block(&self.y, &r), block(&self.stage, &r));
+            for l in 0..LANES {
+                let sk = atol + rtol * y[l].abs().max(st[l].abs());
+                let bhh = BHH[0] * k0[l] + BHH[1] * k8[l] + BHH[2] * k11[l];
+                acc5[l] += (d5[l] / sk).powi(2);
+                acc3[l] += ((bs[l] - bhh) / sk).powi(2);
+                // x - x is 0 for finite x, NaN otherwise.
+                fin[l] += st[l] - st[l];
             }
         }
-        s
+        let (mut e5, mut e3) = (lanes_total(&acc5), lanes_total(&acc3));
+        let mut finite = lanes_total(&fin) == 0.0;
+        for i in a + blocks * LANES..b {
+            let (t5, t3) = self.error_terms(i);
+            (e5, e3) = (e5 + t5, e3 + t3);
+            finite &= self.stage[i].is_finite();
+        }
+        (e5, e3, finite)
     }
 
     /// Step control (Hairer's, beta = 0): Some(next step size) when the
@@ -371,8 +451,9 @@ impl Dop853 {
         f.eval(x_new, &self.stage, &mut self.k[12]);
         self.evaluations += 1;
         self.accepted += 1;
+        // y_old <- y, y <- stage (the stage buffer is scratch): no copies.
         std::mem::swap(&mut self.y_old, &mut self.y);
-        self.y.copy_from_slice(&self.stage);
+        std::mem::swap(&mut self.y, &mut self.stage);
         self.x_old = self.x;
         self.x = x_new;
         self.dense_ready = false;
@@ -380,24 +461,79 @@ impl Dop853 {
     }
 }
 
-/// out = y + h sum_j a[j] k[j] (zero coefficients skipped), summed per
-/// component in stage order.
-fn combine_into(out: &mut [f64], y: &[f64], k: &[Vec<f64>], a: &[f64], h: f64) {
-    let mut live = [(0usize, 0.0f64); 16];
-    let mut m = 0;
+/// The non-zero coefficients of a row of weights, as (stage, weight).
+#[derive(Clone, Copy)]
+struct Live {
+    terms: [(usize, f64); 16],
+    m: usize,
+}
+
+impl std::ops::Deref for Live {
+    type Target = [(usize, f64)];
+    fn deref(&self) -> &[(usize, f64)] {
+        &self.terms[..self.m]
+    }
+}
+
+/// The non-zero entries of `a` (at most 16).
+fn live(a: &[f64]) -> Live {
+    let mut out = Live {
+        terms: [(0, 0.0); 16],
+        m: 0,
+    };
     for (j, &c) in a.iter().enumerate() {
         if c != 0.0 {
-            live[m] = (j, c);
-            m += 1;
+            out.terms[out.m] = (j, c);
+            out.m += 1;
         }
     }
-    let live = &live[..m];
-    for (i, o) in out.iter_mut().enumerate() {
-        let mut acc = 0.0;
-        for &(j, c) in live {
-            acc += c * k[j][i];
+    out
+}
+
+/// The [`LANES`] entries of `v` in `r` (r.len() == LANES).
+#[inline(always)]
+fn block<'v>(v: &'v [f64], r: &std::ops::Range<usize>) -> &'v [f64; LANES] {
+    v[r.clone()].try_into().expect("a block of LANES")
+}
+
+/// sum_j c_j k_j over the block `r`, per lane, summed in stage order.
+#[inline(always)]
+fn lanes_sum(k: &[Vec<f64>], w: &[(usize, f64)], r: &std::ops::Range<usize>) -> [f64; LANES] {
+    let mut acc = [0.0; LANES];
+    for &(j, c) in w {
+        let kj = block(&k[j], r);
+        for l in 0..LANES {
+            acc[l] += c * kj[l];
         }
-        *o = y[i] + h * acc;
+    }
+    acc
+}
+
+/// The sum of the lanes' partial sums (pairwise, fixed order).
+#[inline]
+fn lanes_total(a: &[f64; LANES]) -> f64 {
+    ((a[0] + a[1]) + (a[2] + a[3])) + ((a[4] + a[5]) + (a[6] + a[7]))
+}
+
+/// out = y + h sum_j a[j] k[j] (zero coefficients skipped), summed per
+/// component in stage order (blocks of [`LANES`] components, the stages
+/// inside, so the loop vectorises and reads each array once).
+fn combine_into(out: &mut [f64], y: &[f64], k: &[Vec<f64>], a: &[f64], h: f64) {
+    let w = live(a);
+    let n = out.len();
+    let blocks = n / LANES;
+    for blk in 0..blocks {
+        let r = blk * LANES..(blk + 1) * LANES;
+        let acc = lanes_sum(k, &w, &r);
+        let yb = block(y, &r);
+        let o: &mut [f64; LANES] = (&mut out[r]).try_into().expect("block");
+        for l in 0..LANES {
+            o[l] = yb[l] + h * acc[l];
+        }
+    }
+    for i in blocks * LANES..n {
+        let acc = w.iter().fold(0.0, |s, &(j, c)| s + c * k[j][i]);
+        out[i] = y[i] + h * acc;
     }
 }
 
@@ -1063,6 +1199,148 @@ mod tests {
         // It stops at the pole, to within the last steps' size (9e-8 past
         // it, measured: there y is finite but meaningless).
         assert!(e.x() > 0.9 && e.x() < 1.0 + 1e-6, "{e:?}");
+    }
+
+    /// Deterministic invented numbers in [-1/2, 1/2) (test inputs only).
+    fn invented(seed: &mut u64) -> f64 {
+        *seed = seed
+            .wrapping_mul(6364136223846793005)
+            .wrapping_add(1442695040888963407);
+        (*seed >> 11) as f64 / (1u64 << 53) as f64 - 0.5
+    }
+
+    /// A state of `lead` plain components then a symmetric n x n matrix,
+    /// in full (row-major) and packed (upper triangle row by row).
+    fn full_and_packed(lead: &[f64], m: &[f64], n: usize) -> (Vec<f64>, Vec<f64>) {
+        let (mut full, mut packed) = (lead.to_vec(), lead.to_vec());
+        full.extend_from_slice(m);
+        for i in 0..n {
+            packed.extend_from_slice(&m[i * n + i..(i + 1) * n]);
+        }
+        (full, packed)
+    }
+
+    /// A random symmetric n x n matrix, row-major, its entries spread over
+    /// 2 `spread` + 1 decades.
+    fn symmetric(n: usize, seed: &mut u64, spread: i32) -> Vec<f64> {
+        let mut m = vec![0.0; n * n];
+        for i in 0..n {
+            for j in i..n {
+                let x = invented(seed) * 10f64.powi((i + j) as i32 % (2 * spread + 1) - spread);
+                (m[i * n + j], m[j * n + i]) = (x, x);
+            }
+        }
+        m
+    }
+
+    /// The error norm of a packed symmetric group equals that of the full
+    /// matrix (off-diagonal entries counted twice, divisor n^2) on random
+    /// stages and states, for the step's error and for the starting step's
+    /// norm, to rounding (derived: the same sum, split differently).
+    #[test]
+    fn packed_symmetric_norm_equals_the_full_norm() {
+        let mut seed = 7;
+        for n in [1, 3, 5, 9] {
+            let lead = [0.3, -0.2];
+            let m = 2 + n * n;
+            let p = 2 + n * (n + 1) / 2;
+            let (mut full, mut packed) = (Dop853::new(m), Dop853::new(p));
+            full.set_groups(&[2, m]);
+            packed.set_groups(&[2, p]);
+            packed.set_packed_symmetric(2, n);
+            for d in [&mut full, &mut packed] {
+                d.control = Control {
+                    rtol: 1e-7,
+                    atol: 1e-10,
+                    max_attempts: 10,
+                };
+                d.h = 0.3;
+            }
+            let mut fill = |which: &mut dyn FnMut(&mut Dop853) -> &mut Vec<f64>| {
+                let (a, b) = full_and_packed(&lead, &symmetric(n, &mut seed, 2), n);
+                which(&mut full).copy_from_slice(&a);
+                which(&mut packed).copy_from_slice(&b);
+            };
+            fill(&mut |d| &mut d.y);
+            fill(&mut |d| &mut d.stage);
+            for j in 0..13 {
+                fill(&mut |d| &mut d.k[j]);
+            }
+            let (a, b) = (full.error(), packed.error());
+            assert!(a > 0.0 && (a - b).abs() <= 1e-13 * a, "n = {n}: {a} vs {b}");
+            let (a, b) = (
+                full.norm_at_start(&full.k[3]),
+                packed.norm_at_start(&packed.k[3]),
+            );
+            assert!(a > 0.0 && (a - b).abs() <= 1e-13 * a, "n = {n}: {a} vs {b}");
+        }
+    }
+
+    /// A symmetric matrix Riccati equation dD/dx = B - D A D (A, B
+    /// symmetric positive definite; invented numbers) integrated with D stored in full and
+    /// packed: the same steps, the same result to rounding.
+    #[test]
+    fn packed_matrix_ode_takes_the_same_steps() {
+        let n = 6;
+        let mut seed = 11;
+        // c I + S/2 (S random symmetric, entries below 1/2): positive
+        // definite for c >= n/4, so D flows to the positive solution of
+        // D A D = B without blowing up.
+        let mut sym = |c: f64| {
+            let mut m = symmetric(n, &mut seed, 0);
+            m.iter_mut().for_each(|x| *x *= 0.5);
+            (0..n).for_each(|i| m[i * n + i] += c);
+            m
+        };
+        let (a, b, d0) = (sym(2.0), sym(3.0), sym(2.0));
+        let rhs = move |d: &[f64], out: &mut [f64]| {
+            for i in 0..n {
+                for j in 0..n {
+                    let mut s = b[i * n + j];
+                    for k in 0..n {
+                        for l in 0..n {
+                            s -= d[i * n + k] * a[k * n + l] * d[l * n + j];
+                        }
+                    }
+                    out[i * n + j] = s;
+                }
+            }
+        };
+        let f_full = |_x: f64, y: &[f64], dy: &mut [f64]| rhs(y, dy);
+        let unpack = move |y: &[f64]| {
+            let mut m = vec![0.0; n * n];
+            let mut p = 0;
+            for i in 0..n {
+                for j in i..n {
+                    (m[i * n + j], m[j * n + i]) = (y[p], y[p]);
+                    p += 1;
+                }
+            }
+            m
+        };
+        let f_packed = |_x: f64, y: &[f64], dy: &mut [f64]| {
+            let mut out = vec![0.0; n * n];
+            rhs(&unpack(y), &mut out);
+            dy.copy_from_slice(&full_and_packed(&[], &out, n).1);
+        };
+        let (y_full, y_packed) = full_and_packed(&[], &d0, n);
+        let full = run(&f_full, &y_full, 4.0, 1e-9, &[n * n]);
+        let mut packed = Dop853::new(y_packed.len());
+        packed.set_packed_symmetric(0, n);
+        let c = Control {
+            rtol: 1e-9,
+            atol: 1e-13,
+            max_attempts: 100_000,
+        };
+        packed.start(&f_packed, 0.0, &y_packed, 4.0, c);
+        while !packed.step(&f_packed).expect("integrates") {}
+        assert!(full.accepted > 10, "{} steps", full.accepted);
+        assert_eq!(full.accepted, packed.accepted);
+        assert_eq!(full.evaluations, packed.evaluations);
+        let end = unpack(packed.y());
+        for (x, y) in full.y().iter().zip(&end) {
+            assert!((x - y).abs() <= 1e-12 * x.abs().max(1.0), "{x} vs {y}");
+        }
     }
 
     /// Too few attempts: an error naming where it stopped, not a panic.
