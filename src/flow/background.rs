@@ -281,12 +281,28 @@ fn sym_at(n: usize, i: usize, j: usize) -> usize {
     }
 }
 
+/// u += x D e_j for the packed symmetric D: column j is row i's entry
+/// j - i for i <= j (a stride that shrinks by one per row), then the rest
+/// of row j.
+#[inline]
+fn column_axpy(n: usize, s: &[f64], j: usize, x: f64, u: &mut [f64]) {
+    let mut p = j;
+    for (i, ui) in u[..j].iter_mut().enumerate() {
+        *ui += s[p] * x;
+        p += n - i - 1;
+    }
+    for (ui, d) in u[j..].iter_mut().zip(&s[p..p + n - j]) {
+        *ui += d * x;
+    }
+}
+
 /// The reference route's ds += c sum_t (u_t u_t^T - g_t g_t^T), u = D l_t,
 /// on the packed upper triangle.
 fn dense_feedback(n: usize, s: &[f64], ch: &Channel, c: f64, ds: &mut [f64], u: &mut [f64]) {
     for (l, g) in ch.l_sparse.iter().zip(&ch.g_sparse) {
-        for (i, ui) in u.iter_mut().enumerate() {
-            *ui = l.iter().map(|&(j, x)| s[sym_at(n, i, j)] * x).sum();
+        u.fill(0.0);
+        for &(j, x) in l {
+            column_axpy(n, s, j, x, u);
         }
         let mut p = 0;
         for i in 0..n {

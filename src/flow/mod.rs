@@ -856,14 +856,18 @@ impl FlowResult {
 
 /// The largest |y| at ell* among the channels other than the winner `w`
 /// that still flow there (a term past its cut-off ell_k < ell* is not
-/// competing).
+/// competing). Couplings within [`rhs::TIE`] of the largest count as equal
+/// and the first such term is named (as for the winner, so that rounding
+/// never picks among couplings a symmetry makes equal).
 fn runner_up(r: &FlowResult, w: usize, y_strong: f64) -> Option<RunnerUp> {
     let ell = r.ell_star?;
-    r.terms
-        .iter()
-        .enumerate()
-        .filter(|(i, t)| *i != w && t.ell_k.is_none_or(|k| k > ell))
-        .max_by(|a, b| a.1.coupling.total_cmp(&b.1.coupling))
+    let competing =
+        || (r.terms.iter().enumerate()).filter(|(i, t)| *i != w && t.ell_k.is_none_or(|k| k > ell));
+    let top = competing()
+        .map(|(_, t)| t.coupling)
+        .max_by(|a, b| a.total_cmp(b))?;
+    competing()
+        .find(|(_, t)| t.coupling >= top * (1.0 - rhs::TIE))
         .map(|(_, t)| RunnerUp {
             name: t.name.clone(),
             coupling: t.coupling,
