@@ -487,7 +487,7 @@ fn estimate(ell: &Ellipsoid, space: &Space, opts: &HuntOptions) -> Result<Estima
         limit: opts.limit,
     };
     if estimate.points() > opts.limit && !opts.force {
-        return Err(cmd_error(
+        return Err(Error::refused(
             "--max-dim",
             format!(
                 "the search would examine about {:.2e} lattice points in {} dimensions (ellipsoid volume {:.2e}, search-tree estimate {:.2e}), above the limit {:.0e}; narrow it with a smaller --max-dim{}, or pass --force to run it anyway",
@@ -571,7 +571,7 @@ fn enumerate(
         } else {
             ""
         };
-        return Err(cmd_error(
+        return Err(Error::refused(
             "--max-dim",
             format!(
                 "more than {cap} operators match{how}; narrow the search with a smaller --max-dim{}, the filters --spin 0 and --charge 0{}",
@@ -590,7 +590,7 @@ fn enumerate(
 /// The refusal of an unforced search that visited more than
 /// [`LIMIT_OVERRUN`] times its limit although its estimate was below it.
 fn overrun_error(space: &Space, opts: &HuntOptions, visited: u64) -> Error {
-    cmd_error(
+    Error::refused(
         "--max-dim",
         format!(
             "the search passed {visited} lattice points, more than {LIMIT_OVERRUN} times the limit {:.0e} its estimate stayed below (the ellipsoid is very long in some direction: V is nearly singular at this point); narrow it with a smaller --max-dim{}, or pass --force to run it anyway",
