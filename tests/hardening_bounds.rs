@@ -14,7 +14,7 @@ use pinflow::search::{self, ChargeFilter, HuntOptions, MomentumFilter, Progress,
 
 mod common;
 
-use common::{explicit_array, flow_file as demo, input_error, system};
+use common::{explicit_array, flow_file as demo, refusal, system};
 
 /// The filling-1/3 strip demo with `wires` wires and the given boundary.
 fn strip(wires: usize, boundary: &str) -> String {
@@ -167,7 +167,7 @@ fn a_forced_hunt_keeps_a_bounded_number_of_operators() {
         forced_max_listed: 5,
         ..HuntOptions::default()
     };
-    let e = input_error(search::hunt(&sys, &point, &opts).expect_err("bounded"));
+    let e = refusal(search::hunt(&sys, &point, &opts).expect_err("bounded"));
     assert!(
         e.message.contains("more than 5 operators match") && e.message.contains("forced"),
         "{}",
@@ -227,7 +227,7 @@ fn an_unforced_hunt_stops_at_four_times_its_limit_when_the_estimate_misses() {
         "{}",
         forced.candidates
     );
-    let e = input_error(search::hunt(&sys, &[], &opts).expect_err("stopped"));
+    let e = refusal(search::hunt(&sys, &[], &opts).expect_err("stopped"));
     assert_eq!(e.key, "--max-dim");
     assert!(
         e.message.contains("more than 4 times the limit 1e4") && e.message.contains("--force"),
@@ -241,7 +241,7 @@ fn an_unforced_hunt_stops_at_four_times_its_limit_when_the_estimate_misses() {
 #[test]
 fn edges_on_a_wide_array_is_refused_with_the_estimate_unless_forced() {
     let wide = system(&strip(300, "open"));
-    let e = input_error(pinflow::edges::check_size(&wide, false).expect_err("600 fields"));
+    let e = refusal(pinflow::edges::check_size(&wide, false).expect_err("600 fields"));
     assert_eq!(e.key, "--force");
     assert!(e.message.contains("600 fields"), "{}", e.message);
     // The limit itself (512 fields) runs.
@@ -266,7 +266,7 @@ fn edges_on_a_wide_array_is_refused_with_the_estimate_unless_forced() {
 fn dims_on_the_dense_path_above_the_limit_is_refused_unless_forced() {
     // 600 open wires of 2 fields: 1200 fields on the dense path.
     let open = system(&strip(600, "open"));
-    let e = input_error(pinflow::dims::check_size(&open, false).expect_err("1200 fields"));
+    let e = refusal(pinflow::dims::check_size(&open, false).expect_err("1200 fields"));
     assert_eq!(e.key, "--force");
     assert!(e.message.contains("1200 fields"), "{}", e.message);
     pinflow::dims::check_size(&open, true).expect("forced");
@@ -280,7 +280,7 @@ fn hunt_on_the_dense_path_above_the_limit_is_refused_unless_forced() {
     let open = system(&strip(600, "open"));
     let point = open.model.point_with(&[], "test").unwrap();
     let e = search::hunt(&open, &point, &HuntOptions::default()).expect_err("1200 fields");
-    let e = input_error(e);
+    let e = refusal(e);
     assert_eq!(e.key, "--force");
     assert!(e.message.contains("1200 fields"), "{}", e.message);
     // A ring of the same size takes D(q) per momentum: no limit, and fast.
@@ -293,7 +293,7 @@ fn a_dense_flow_above_the_limit_is_refused_unless_forced() {
     // 300 open wires of 2 fields: 600 fields, every step multiplies dense
     // 600 x 600 matrices.
     let open = system(&strip(300, "open"));
-    let e = input_error(pinflow::flow::limits::check_dense_size(&open, false).expect_err("600"));
+    let e = refusal(pinflow::flow::limits::check_dense_size(&open, false).expect_err("600"));
     assert_eq!(e.key, "--force");
     assert!(e.message.contains("600 fields"), "{}", e.message);
     pinflow::flow::limits::check_dense_size(&open, true).expect("forced");
@@ -378,7 +378,7 @@ fn a_pairs_closure_too_large_to_build_is_refused_with_its_estimate() {
     let check = |generate, range, force| {
         pinflow::flow::channels::check_closure(&sys, generate, range, force)
     };
-    let e = input_error(check(true, None, false).expect_err("refused"));
+    let e = refusal(check(true, None, false).expect_err("refused"));
     assert_eq!(e.key, "--closure");
     assert!(
         e.message.contains("5.2e12") && e.message.contains("--force"),
@@ -561,5 +561,48 @@ fn even_force_stops_at_the_competitor_ceiling() {
     assert!(
         err.contains("24057 competitors") && err.contains("even --force"),
         "{err}"
+    );
+}
+
+#[test]
+fn a_refused_hunt_for_competitors_names_this_commands_flags() {
+    // 40 explicit fields: the hunt at bare Delta <= 3 would examine about
+    // 3e8 lattice points, above the hunt's limit 5e7. `flow` has no
+    // --max-dim or --range: the refusal speaks of --competitors and
+    // --competitor-range, and a scan records the point as failed (refused
+    // work), not unphysical.
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join("m.toml"), explicit_array(20)).unwrap();
+    let out = pinflow_in(dir.path(), &["flow", "m.toml", "--competitors", "3"]);
+    assert_eq!(out.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        err.contains("--competitors: at ") && err.contains("the hunt for competitors"),
+        "{err}"
+    );
+    assert!(err.contains("above the limit"), "{err}");
+    assert!(
+        !err.contains("--max-dim") && !err.contains(" --range"),
+        "{err}"
+    );
+    let out = pinflow_in(
+        dir.path(),
+        &[
+            "scan",
+            "m.toml",
+            "--competitors",
+            "3",
+            "--x",
+            "lambda=0.8:0.81:2",
+            "--out",
+            "s",
+            "--quiet",
+        ],
+    );
+    assert_eq!(out.status.code(), Some(0));
+    let points = std::fs::read_to_string(dir.path().join("s/points.csv")).unwrap();
+    assert!(
+        points.lines().nth(1).unwrap().starts_with("0.8,failed,"),
+        "{points}"
     );
 }

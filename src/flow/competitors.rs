@@ -154,6 +154,7 @@ impl<'s> Competing<'s> {
             Ok(r) => r,
             // The plain flow reports the point (unphysical, inaccurate).
             Err(Error::Unphysical(_)) | Err(Error::Inaccurate(_)) => return self.plain.run(point),
+            Err(Error::Refused(e)) => return Err(self.hunt_refused(e, point)),
             Err(e) => return Err(e),
         };
         let y = self
@@ -214,7 +215,27 @@ impl<'s> Competing<'s> {
             "lower --competitors DELTA, narrow --competitor-range, or pass --force to run it anyway"
                 .to_string()
         };
-        Err(InputError::new("command line", "--competitors", format!("{found}; {how}")).into())
+        Err(Error::refused("--competitors", format!("{found}; {how}")))
+    }
+
+    /// A refusal of the hunt at `point`, in this command's flags: the
+    /// hunt's `--max-dim` and `--range` are `--competitors` and
+    /// `--competitor-range` here, and its charge and spin filters are the
+    /// model's (no flag).
+    fn hunt_refused(&self, e: InputError, point: &[f64]) -> Error {
+        let message = e
+            .message
+            .replace(", the filters --spin 0 and --charge 0", "")
+            .replace("--max-dim", "--competitors DELTA")
+            .replace("--range", "--competitor-range");
+        Error::refused(
+            "--competitors",
+            format!(
+                "at {} the hunt for competitors with bare Delta <= {} is refused: {message}",
+                self.sys.model.params.describe(point),
+                self.comp.delta
+            ),
+        )
     }
 
     /// The flow options of the enlarged model: the closure range stays the
@@ -236,6 +257,7 @@ impl<'s> Competing<'s> {
             spin: SpinFilter::Model,
             range: self.comp.range,
             symmetry: self.comp.symmetry.clone(),
+            force: self.comp.force,
             ..HuntOptions::default()
         }
     }

@@ -210,7 +210,8 @@ struct Space {
 }
 
 impl Space {
-    fn new(sys: &System, d_full: &DMatrix<f64>, window: Window, sym: symmetry::InUse) -> Space {
+    /// The space on `window`, whose D is `d` (window fields only).
+    fn new(sys: &System, d: DMatrix<f64>, window: Window, sym: symmetry::InUse) -> Space {
         let idx = window.field_indices();
         let n = idx.len();
         let k: Vec<Vec<i64>> = idx
@@ -218,7 +219,6 @@ impl Space {
             .map(|&i| idx.iter().map(|&j| sys.lattice.k[i][j]).collect())
             .collect();
         let t: Vec<i64> = idx.iter().map(|&i| sys.lattice.charge[i]).collect();
-        let d = DMatrix::from_fn(n, n, |a, b| d_full[(idx[a], idx[b])]);
         let kf = DMatrix::from_fn(n, n, |a, b| k[a][b] as f64);
         let gram = &kf * &d * &kf;
         let gram = (&gram + gram.transpose()) * 0.5;
@@ -333,33 +333,28 @@ fn check_carried(
     Ok(())
 }
 
-/// D on the fields of the lattice, exact on the window: the dense fixed
-/// point for open arrays and explicit models; for a periodic array, the
-/// real-space window D_{j,j'} = (1/W) sum_q e^{+iq(j-j')} D(q), exact on
-/// its W momenta (per-q cell problems: no N^3 work, and no error bound
-/// growing with the number of fields); for an infinite array, the same
-/// integral on the converged q-space rule. The window is placed on the
-/// window's fields (the rest is never read).
+/// D on the window's fields (in `Window::field_indices` order), exact: the
+/// block of the dense fixed point for open arrays and explicit models; for
+/// a periodic array, the real-space window D_{j,j'} = (1/W) sum_q
+/// e^{+iq(j-j')} D(q), exact on its W momenta (per-q cell problems: no N^3
+/// work, no error bound growing with the number of fields, and nothing of
+/// size N^2); for an infinite array, the same integral on the converged
+/// q-space rule.
 fn window_d(sys: &System, point: &[f64], window: &Window) -> Result<DMatrix<f64>, Error> {
-    let from_q = match sys.eval_path() {
-        EvalPath::Dense => return dense_d(sys, point),
+    let block = |d: DMatrix<f64>| {
+        let idx = window.field_indices();
+        DMatrix::from_fn(idx.len(), idx.len(), |a, b| d[(idx[a], idx[b])])
+    };
+    match sys.eval_path() {
+        EvalPath::Dense => dense_d(sys, point).map(block),
         EvalPath::Ring => match sys.real_space_window(point, window.wires) {
             // D(q) in doubles not accurate enough (V(q) ill-conditioned):
             // the dense route, with its extended precision and its bound.
-            Err(Error::Numerical(_)) => return dense_d(sys, point),
-            r => r?.0,
+            Err(Error::Numerical(_)) => dense_d(sys, point).map(block),
+            r => Ok(r?.0),
         },
-        EvalPath::Infinite => sys.real_space_window(point, window.wires)?.0,
-    };
-    let idx = window.field_indices();
-    let n = sys.lattice.n;
-    let mut d = DMatrix::zeros(n, n);
-    for (a, &i) in idx.iter().enumerate() {
-        for (b, &j) in idx.iter().enumerate() {
-            d[(i, j)] = from_q[(a, b)];
-        }
+        EvalPath::Infinite => Ok(sys.real_space_window(point, window.wires)?.0),
     }
-    Ok(d)
 }
 
 /// The dense fixed point's D, refused where carrying it in doubles would
@@ -487,7 +482,7 @@ fn estimate(ell: &Ellipsoid, space: &Space, opts: &HuntOptions) -> Result<Estima
         limit: opts.limit,
     };
     if estimate.points() > opts.limit && !opts.force {
-        return Err(cmd_error(
+        return Err(Error::refused(
             "--max-dim",
             format!(
                 "the search would examine about {:.2e} lattice points in {} dimensions (ellipsoid volume {:.2e}, search-tree estimate {:.2e}), above the limit {:.0e}; narrow it with a smaller --max-dim{}, or pass --force to run it anyway",
@@ -571,7 +566,7 @@ fn enumerate(
         } else {
             ""
         };
-        return Err(cmd_error(
+        return Err(Error::refused(
             "--max-dim",
             format!(
                 "more than {cap} operators match{how}; narrow the search with a smaller --max-dim{}, the filters --spin 0 and --charge 0{}",
@@ -590,7 +585,7 @@ fn enumerate(
 /// The refusal of an unforced search that visited more than
 /// [`LIMIT_OVERRUN`] times its limit although its estimate was below it.
 fn overrun_error(space: &Space, opts: &HuntOptions, visited: u64) -> Error {
-    cmd_error(
+    Error::refused(
         "--max-dim",
         format!(
             "the search passed {visited} lattice points, more than {LIMIT_OVERRUN} times the limit {:.0e} its estimate stayed below (the ellipsoid is very long in some direction: V is nearly singular at this point); narrow it with a smaller --max-dim{}, or pass --force to run it anyway",
@@ -720,9 +715,9 @@ pub fn hunt_with_progress(
     let chosen = symmetry::chosen(sys, &opts.symmetry)?;
     let momenta = Momenta::at(sys, point, opts)?;
     sys.check_dense_size(opts.force)?;
-    let d_full = window_d(sys, point, &window)?;
+    let d = window_d(sys, point, &window)?;
     let sym = symmetry::in_use(sys, point, &chosen, &window)?;
-    let space = Space::new(sys, &d_full, window, sym);
+    let space = Space::new(sys, d, window, sym);
     let ell = Ellipsoid::new(&space.gram)
         .map_err(|e| Error::Numerical(format!("operator search: {e}")))?;
     let estimate = estimate(&ell, &space, opts)?;
