@@ -29,8 +29,9 @@
 //! The per-step arithmetic over the state (stage combinations, error sums)
 //! runs in blocks of [`LANES`] components with the stages as the inner loop,
 //! so the compiler vectorises it; each component's combination is summed in
-//! stage order as in a plain loop (the same bits), only the error norm's sum
-//! over components is split into [`LANES`] partial sums.
+//! stage order and the error norm's terms in component order, as in plain
+//! loops (the same bits: only a packed symmetric group's norm is summed
+//! differently, as 2 x all entries - the diagonal).
 //!
 //! Invariants: integration runs forward (`x_end > x`); after every accepted
 //! step `y()` is the state at `x()` and `k[12]` holds the derivative there
@@ -381,13 +382,14 @@ impl Dop853 {
         ((d5 / sk).powi(2), ((bs - bhh) / sk).powi(2))
     }
 
-    /// Sums of [`Dop853::error_terms`] over a..b in blocks of [`LANES`]
-    /// (one partial sum per lane), and whether every new state entry there
-    /// is finite.
+    /// Sums of [`Dop853::error_terms`] over a..b (terms formed in blocks of
+    /// [`LANES`], summed in component order), and whether every new state
+    /// entry there is finite.
     fn error_sums(&self, a: usize, b: usize) -> (f64, f64, bool) {
         let (rtol, atol) = (self.control.rtol, self.control.atol);
         let (e5w, bw) = (live(&E5), live(&A[12][..12]));
-        let (mut acc5, mut acc3, mut fin) = ([0.0; LANES], [0.0; LANES], [0.0; LANES]);
+        let (mut e5, mut e3, mut fin) = (0.0, 0.0, [0.0; LANES]);
+        let (mut t5, mut t3) = ([0.0; LANES], [0.0; LANES]);
         let blocks = (b - a) / LANES;
         for blk in 0..blocks {
             let r = a + blk * LANES..a + (blk + 1) * LANES;
@@ -401,13 +403,15 @@ impl Dop853 {
             for l in 0..LANES {
                 let sk = atol + rtol * y[l].abs().max(st[l].abs());
                 let bhh = BHH[0] * k0[l] + BHH[1] * k8[l] + BHH[2] * k11[l];
-                acc5[l] += (d5[l] / sk).powi(2);
-                acc3[l] += ((bs[l] - bhh) / sk).powi(2);
+                t5[l] = (d5[l] / sk).powi(2);
+                t3[l] = ((bs[l] - bhh) / sk).powi(2);
                 // x - x is 0 for finite x, NaN otherwise.
                 fin[l] += st[l] - st[l];
             }
+            for l in 0..LANES {
+                (e5, e3) = (e5 + t5[l], e3 + t3[l]);
+            }
         }
-        let (mut e5, mut e3) = (lanes_total(&acc5), lanes_total(&acc3));
         let mut finite = lanes_total(&fin) == 0.0;
         for i in a + blocks * LANES..b {
             let (t5, t3) = self.error_terms(i);
