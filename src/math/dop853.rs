@@ -385,6 +385,7 @@ impl Dop853 {
     /// Sums of [`Dop853::error_terms`] over a..b (terms formed in blocks of
     /// [`LANES`], summed in component order), and whether every new state
     /// entry there is finite.
+    #[allow(clippy::eq_op)] // x - x tests finiteness (below)
     fn error_sums(&self, a: usize, b: usize) -> (f64, f64, bool) {
         let (rtol, atol) = (self.control.rtol, self.control.atol);
         let (e5w, bw) = (live(&E5), live(&A[12][..12]));
