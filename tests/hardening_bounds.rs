@@ -513,7 +513,7 @@ fn too_many_hunted_competitors_are_refused_before_the_enlarged_flow() {
     assert_eq!(out.status.code(), Some(2));
     let err = String::from_utf8_lossy(&out.stderr);
     assert!(
-        err.contains("--competitors:") && err.contains("2797 competitors"),
+        err.contains("--competitors:") && err.contains("more than 2448 competitors"),
         "{err}"
     );
     assert!(err.contains("pass --force"), "{err}");
@@ -548,8 +548,10 @@ fn too_many_hunted_competitors_are_refused_before_the_enlarged_flow() {
 
 #[test]
 fn even_force_stops_at_the_competitor_ceiling() {
-    // 12 wires: 24057 competitors, (22 + 24057)^2 x 24 = 1.4e10 units of
-    // work, above 100 times the limit.
+    // 12 wires: 24057 competitors; with the plain flow's 84 channels (22
+    // terms and their pairs closure), (84 + 24057)^2 x 24 = 1.4e10 units of
+    // work, above 100 times the limit. The hunt stops past the most that
+    // fit: (84 + 20328)^2 x 24 <= 1e10 < (84 + 20329)^2 x 24.
     let dir = tempfile::tempdir().unwrap();
     std::fs::write(dir.path().join("m.toml"), explicit_array(12)).unwrap();
     let out = pinflow_in(
@@ -559,7 +561,7 @@ fn even_force_stops_at_the_competitor_ceiling() {
     assert_eq!(out.status.code(), Some(2));
     let err = String::from_utf8_lossy(&out.stderr);
     assert!(
-        err.contains("24057 competitors") && err.contains("even --force"),
+        err.contains("more than 20328 competitors") && err.contains("even --force"),
         "{err}"
     );
 }
@@ -604,5 +606,38 @@ fn a_refused_hunt_for_competitors_names_this_commands_flags() {
     assert!(
         points.lines().nth(1).unwrap().starts_with("0.8,failed,"),
         "{points}"
+    );
+}
+
+#[test]
+fn the_competitor_hunt_stops_early_only_when_the_refusal_is_certain() {
+    // The refusal's "more than N" must be a true lower bound: the full
+    // listing of `hunt` (same bound; the model's charge and spin are 0, as
+    // hunt's defaults) has more than N operators that are not model terms.
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join("m.toml"), explicit_array(8)).unwrap();
+    let out = pinflow_in(dir.path(), &["flow", "m.toml", "--competitors", "2"]);
+    let err = String::from_utf8_lossy(&out.stderr);
+    let n: usize = err
+        .split("more than ")
+        .nth(1)
+        .and_then(|s| s.split(' ').next())
+        .and_then(|s| s.parse().ok())
+        .unwrap_or_else(|| panic!("no count in {err}"));
+    let out = pinflow_in(
+        dir.path(),
+        &["hunt", "m.toml", "--max-dim", "2", "--format", "json"],
+    );
+    assert_eq!(out.status.code(), Some(0));
+    let report: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    let competitors = report["operators"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|op| op["model_term"].is_null())
+        .count();
+    assert!(
+        competitors > n,
+        "{competitors} competitors, refusal said more than {n}"
     );
 }

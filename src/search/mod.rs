@@ -175,6 +175,13 @@ pub struct HuntOptions {
     pub forced_max_listed: usize,
     /// Which of the model's symmetries filter the operators.
     pub symmetry: SymmetryChoice,
+    /// Stop as soon as more than this many operators are certain to be
+    /// listed, and return a report with no operators marked
+    /// [`HuntReport::truncated`]: for callers that only need to know that
+    /// the count passes a bound (hunted competitors). Certain means past
+    /// every filter: it applies only when no Z_n map is in use (orbit sums
+    /// that vanish remove operators after the enumeration).
+    pub stop_above: Option<usize>,
 }
 
 impl Default for HuntOptions {
@@ -190,6 +197,7 @@ impl Default for HuntOptions {
             max_listed: MAX_LISTED,
             forced_max_listed: FORCED_MAX_LISTED,
             symmetry: SymmetryChoice::All,
+            stop_above: None,
         }
     }
 }
@@ -450,6 +458,12 @@ impl Momenta {
         };
         (k, conserved)
     }
+
+    /// Whether an operator with particle content `full` passes the
+    /// momentum filter (as in [`operator`]).
+    fn listed(&self, full: &[i64]) -> bool {
+        self.filter != Some(MomentumFilter::Conserved) || self.of(full).1
+    }
 }
 
 /// Momenta that are all small rationals at this point are compared
@@ -506,6 +520,8 @@ struct Found {
     candidates: u64,
     /// Nodes of the search tree visited.
     examined: u64,
+    /// Stopped at [`HuntOptions::stop_above`].
+    truncated: bool,
 }
 
 /// Enumerate: keep the canonical placement of each class that passes the
@@ -514,10 +530,15 @@ fn enumerate(
     ell: &Ellipsoid,
     space: &Space,
     opts: &HuntOptions,
+    momenta: &Momenta,
     progress: &mut dyn FnMut(u64),
 ) -> Result<Found, Error> {
     let (accept, bound) = bounds(opts);
     let cap = listing_cap(opts);
+    // Listed for certain: kept and past the momentum filter (counted only
+    // when stopping early is asked for and no Z_n map can remove any).
+    let stop_above = opts.stop_above.filter(|_| !space.sym.has_maps());
+    let (mut certain, mut truncated) = (0usize, false);
     let mut kept: BTreeSet<Vec<i64>> = BTreeSet::new();
     let mut candidates = 0u64;
     let mut nz: Vec<usize> = Vec::with_capacity(space.t.len());
@@ -549,6 +570,15 @@ fn enumerate(
             let canon = space.window.canonical(m);
             let is_placement = canon.as_slice() == m || canon.iter().zip(m).all(|(a, b)| *a == -b);
             if is_placement {
+                if let Some(s) = stop_above {
+                    if !kept.contains(&canon) && momenta.listed(&space.window.place(&canon)) {
+                        certain += 1;
+                        if certain > s {
+                            truncated = true;
+                            return false;
+                        }
+                    }
+                }
                 kept.insert(canon);
                 if kept.len() > cap {
                     return false;
@@ -579,6 +609,7 @@ fn enumerate(
         kept,
         candidates,
         examined: visit.examined,
+        truncated,
     })
 }
 
@@ -722,11 +753,14 @@ pub fn hunt_with_progress(
         .map_err(|e| Error::Numerical(format!("operator search: {e}")))?;
     let estimate = estimate(&ell, &space, opts)?;
     progress(Progress::Estimated(estimate.points()));
-    let found = enumerate(&ell, &space, opts, &mut |n| {
+    let found = enumerate(&ell, &space, opts, &momenta, &mut |n| {
         progress(Progress::Enumerated(n))
     })?;
     let terms = term_index(sys, &space.window);
-    let operators = listed_operators(sys, &space, &momenta, opts, &found, &terms)?;
+    let operators = match found.truncated {
+        true => Vec::new(),
+        false => listed_operators(sys, &space, &momenta, opts, &found, &terms)?,
+    };
     let grouped = orbits::group(&space.window, &space.sym, operators, &terms)?;
     let mut report = HuntReport::new(
         sys,
@@ -742,6 +776,7 @@ pub fn hunt_with_progress(
         momenta.exact.is_some(),
     );
     report.set_symmetries(&space.sym, grouped.orbits, grouped.removed);
+    report.truncated = found.truncated;
     Ok(report)
 }
 
