@@ -1238,6 +1238,19 @@ mod tests {
         m
     }
 
+    /// The full n x n matrix of a packed upper triangle.
+    fn unpack(y: &[f64], n: usize) -> Vec<f64> {
+        let mut m = vec![0.0; n * n];
+        let mut p = 0;
+        for i in 0..n {
+            for j in i..n {
+                (m[i * n + j], m[j * n + i]) = (y[p], y[p]);
+                p += 1;
+            }
+        }
+        m
+    }
+
     /// The error norm of a packed symmetric group equals that of the full
     /// matrix (off-diagonal entries counted twice, divisor n^2) on random
     /// stages and states, for the step's error and for the starting step's
@@ -1312,17 +1325,7 @@ mod tests {
             }
         };
         let f_full = |_x: f64, y: &[f64], dy: &mut [f64]| rhs(y, dy);
-        let unpack = move |y: &[f64]| {
-            let mut m = vec![0.0; n * n];
-            let mut p = 0;
-            for i in 0..n {
-                for j in i..n {
-                    (m[i * n + j], m[j * n + i]) = (y[p], y[p]);
-                    p += 1;
-                }
-            }
-            m
-        };
+        let unpack = |y: &[f64]| unpack(y, n);
         let f_packed = |_x: f64, y: &[f64], dy: &mut [f64]| {
             let mut out = vec![0.0; n * n];
             rhs(&unpack(y), &mut out);
