@@ -382,6 +382,11 @@ pub struct Work {
     pub route: DenseRoute,
     /// Dense: half-bandwidth of M and N (every channel's entries).
     bm: usize,
+    /// Dense: per channel, the terms (position in the packed D, x_i x_j)
+    /// of its representative's quadratic form in the order of
+    /// [`Background::dimension`] ([`Background::prepare_dimensions`]);
+    /// empty: not prepared.
+    quad: Vec<Vec<(usize, f64)>>,
 }
 
 /// How the dense layout forms D M D ([`Background::evaluate`]).
@@ -447,6 +452,7 @@ impl Background {
             bm: 0,
             u: Vec::new(),
             ut: Vec::new(),
+            quad: Vec::new(),
         }
     }
 
@@ -577,14 +583,16 @@ fn dense_outer(n: usize, ch: &Channel) -> Outer {
         for v in vs {
             for &(i, x) in v {
                 for &(j, y) in v.iter().filter(|&&(j, _)| j >= i) {
-                    terms.push((i * n + j, which, x * y));
+                    terms.push((i * n + j, which, terms.len(), x * y));
                 }
             }
         }
     }
-    terms.sort_by_key(|&(p, which, _)| (p, which));
+    // The running index makes every key distinct: an unstable sort gives
+    // the stable order, without the stable sort's buffer.
+    terms.sort_unstable_by_key(|&(p, which, k, _)| (p, which, k));
     let (mut at, mut ll, mut gg) = (Vec::new(), Vec::new(), Vec::new());
-    for &(p, which, v) in &terms {
+    for &(p, which, _, v) in &terms {
         if at.last() != Some(&p) {
             at.push(p);
             ll.push(0.0);
@@ -656,6 +664,28 @@ impl Background {
     }
 }
 
+impl Background {
+    /// Dense layout: the channels' quadratic forms for their dimensions
+    /// (the same products, summed in the same order as
+    /// [`Background::dimension`], without its index arithmetic). Call once
+    /// per flow; nothing on the Fourier layout.
+    pub fn prepare_dimensions(&self, channels: &[&Channel], work: &mut Work) {
+        let Background::Dense { n } = *self else {
+            return;
+        };
+        work.quad = channels
+            .iter()
+            .map(|ch| {
+                let l = &ch.l_sparse[ch.family.representative];
+                let pairs = l
+                    .iter()
+                    .flat_map(|&(i, x)| l.iter().map(move |&(j, y)| (i, x, j, y)));
+                pairs.map(|(i, x, j, y)| (sym_at(n, i, j), x * y)).collect()
+            })
+            .collect();
+    }
+}
+
 /// The dense layout's dimensions into `dims`, and M, N (both triangles:
 /// the union's positions, the rest stays zero) into `work`; false when no
 /// channel feeds back. Needs [`Background::merge_outer`].
@@ -670,7 +700,10 @@ fn dense_sums(
     work.nq.fill(0.0);
     let mut any = false;
     for &c in live {
-        dims[c] = bg.dimension(s, channels[c]);
+        dims[c] = match work.quad.get(c) {
+            Some(q) => 0.5 * q.iter().fold(0.0, |acc, &(p, xy)| acc + xy * s[p]),
+            None => bg.dimension(s, channels[c]),
+        };
         if let (true, Some(Outer::Dense { ll, gg, start, .. })) = (weight[c] > 0.0, &outer[c]) {
             let coef = -weight[c] / 8.0;
             axpy(&mut work.mq[*start..*start + ll.len()], ll, coef);

@@ -177,6 +177,7 @@ impl<'a> FlowRhs<'a> {
             .collect();
         let mut work = bg.work();
         bg.merge_outer(&mut outer, &mut work);
+        bg.prepare_dimensions(&channels, &mut work);
         let scratch = RefCell::new(Scratch {
             weight: vec![0.0; n],
             dims: vec![0.0; n],
