@@ -49,6 +49,7 @@ pub mod competitors;
 pub mod kt;
 pub mod limits;
 mod ope;
+mod ope_terms;
 pub mod options;
 pub mod progress;
 pub mod qtrack;
@@ -520,6 +521,9 @@ impl<'s> Flow<'s> {
         rhs.record = record;
         rhs.reference = self.reference_rhs;
         rhs.set_dense_route(self.dense_route);
+        if let Some(q) = &self.sys.q {
+            rhs.set_cell_kinv(&q.kinv);
+        }
         let y0 = self.bare_state(&mut rhs, &included, &bare, &start.d0);
         let ell_k = momenta.iter().map(|k| k.and_then(cutoff_scale)).collect();
         Ok(Prepared {
