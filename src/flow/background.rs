@@ -558,6 +558,9 @@ fn kinv_sandwich(cell: usize, kinv: &[f64], m: &[f64], n: &mut [f64], r: &mut [f
     }
 }
 
+#[cfg(test)]
+mod fourier_tests;
+
 /// sum_i a_i b_i, in four interleaved partial sums (so it vectorises).
 #[inline]
 fn dot(a: &[f64], b: &[f64]) -> f64 {

@@ -863,12 +863,17 @@ impl FlowResult {
 /// competing).
 fn runner_up(r: &FlowResult, w: usize, y_strong: f64) -> Option<RunnerUp> {
     let ell = r.ell_star?;
-    r.terms
-        .iter()
-        .enumerate()
-        .filter(|(i, t)| *i != w && t.ell_k.is_none_or(|k| k > ell))
-        .max_by(|a, b| a.1.coupling.total_cmp(&b.1.coupling))
-        .map(|(_, t)| RunnerUp {
+    let others = || {
+        (r.terms.iter().enumerate())
+            .filter(|(i, t)| *i != w && t.ell_k.is_none_or(|k| k > ell))
+            .map(|(_, t)| t)
+    };
+    let top = others().map(|t| t.coupling).max_by(|a, b| a.total_cmp(b))?;
+    // As `FlowRhs::strongest`: among couplings equal to rhs::TIE (mirror
+    // images), the first in plan order, not the one rounding favours.
+    others()
+        .find(|t| t.coupling >= top * (1.0 - rhs::TIE))
+        .map(|t| RunnerUp {
             name: t.name.clone(),
             coupling: t.coupling,
             near_tie: t.coupling >= (1.0 - NEAR_TIE) * y_strong,

@@ -164,3 +164,105 @@ impl GroupedOpe {
         }
     }
 }
+
+#[cfg(test)]
+mod tests {
+    //! The grouped sum against the entry-by-entry reference on random
+    //! tables (a consistency check of two code paths; the amplitudes and
+    //! weights are arbitrary numbers from a fixed-seed generator).
+    use super::*;
+
+    /// A fixed-seed linear congruential generator (Knuth's MMIX constants).
+    struct Lcg(u64);
+
+    impl Lcg {
+        fn next(&mut self, n: usize) -> usize {
+            self.0 = self
+                .0
+                .wrapping_mul(6364136223846793005)
+                .wrapping_add(1442695040888963407);
+            ((self.0 >> 33) % n as u64) as usize
+        }
+    }
+
+    fn entry(rng: &mut Lcg, channels: usize) -> OpeEntry {
+        OpeEntry {
+            target: rng.next(channels),
+            conj: rng.next(2) == 1,
+            a: rng.next(channels),
+            b: rng.next(channels),
+            b_conj: rng.next(2) == 1,
+            weight: [1.0, 0.5, 2.0, 1.0 / 3.0][rng.next(4)],
+        }
+    }
+
+    #[test]
+    fn grouped_terms_equal_the_reference() {
+        let mut rng = Lcg(15);
+        for round in 0..20 {
+            let channels = 1 + rng.next(9);
+            let mut entries: Vec<LiveOpe> = (0..rng.next(120))
+                .map(|_| LiveOpe::of(&entry(&mut rng, channels)))
+                .collect();
+            // Every entry once more with its factors swapped: the same
+            // product (or its conjugate) reached from the other side.
+            let swapped: Vec<LiveOpe> = (entries.iter())
+                .map(|e| LiveOpe {
+                    a: e.b,
+                    b: e.a,
+                    ..*e
+                })
+                .collect();
+            entries.extend(swapped);
+            let w: Vec<f64> = (0..2 * channels)
+                .map(|_| rng.next(2001) as f64 / 1000.0 - 1.0)
+                .collect();
+            let start: Vec<f64> = (0..2 * channels).map(|i| 0.25 * i as f64).collect();
+            let (mut reference, mut grouped) = (start.clone(), start);
+            reference_terms(&w, &mut reference, &entries);
+            let table = GroupedOpe::new(&entries);
+            let mut p = vec![0.0; table.scratch_len()];
+            table.terms(&w, &mut grouped, &mut p);
+            let scale: f64 = entries.iter().map(|e| e.half_weight).sum::<f64>() + 4.0;
+            for (x, y) in reference.iter().zip(&grouped) {
+                assert!((x - y).abs() <= 1e-14 * scale, "round {round}: {x} vs {y}");
+            }
+            assert!(table.a.len() <= entries.len().max(1));
+        }
+    }
+
+    #[test]
+    fn swapped_factors_share_one_product() {
+        // w_0 w_1 and w_1 w_0 are one product; w_0 conj(w_1) and
+        // w_1 conj(w_0) another (conjugates of each other): two products
+        // for four entries, and the sums as the reference's.
+        let e = |a, b, b_conj| OpeEntry {
+            target: 2,
+            conj: false,
+            a,
+            b,
+            b_conj,
+            weight: 1.0,
+        };
+        let entries: Vec<LiveOpe> = [e(0, 1, false), e(1, 0, false), e(0, 1, true), e(1, 0, true)]
+            .iter()
+            .map(LiveOpe::of)
+            .collect();
+        let table = GroupedOpe::new(&entries);
+        assert_eq!(table.scratch_len(), 4);
+        let w = [0.3, -0.7, 1.1, 0.2, 0.0, 0.0];
+        let (mut reference, mut grouped) = ([0.0; 6], [0.0; 6]);
+        reference_terms(&w, &mut reference, &entries);
+        table.terms(&w, &mut grouped, &mut [0.0; 4]);
+        // w_0 w_1 + w_1 w_0 + w_0 conj(w_1) + w_1 conj(w_0)
+        // = 2 w_0 w_1 + 2 Re(w_0 conj(w_1)), times -1/2, by hand:
+        // w_0 w_1 = (0.33 + 0.14) + i (0.06 - 0.77) = 0.47 - 0.71 i,
+        // Re(w_0 conj(w_1)) = 0.33 - 0.14 = 0.19: -0.66 + 0.71 i.
+        for (got, want) in [(grouped[4], -0.66), (grouped[5], 0.71)] {
+            assert!((got - want).abs() < 1e-15, "{grouped:?}");
+        }
+        for (x, y) in reference.iter().zip(&grouped) {
+            assert!((x - y).abs() < 1e-15, "{reference:?} vs {grouped:?}");
+        }
+    }
+}
