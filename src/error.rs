@@ -117,6 +117,12 @@ pub enum Error {
     /// bound exceeds 1e-8): the message names the point (exit code 2).
     #[error("{0}")]
     Inaccurate(String),
+    /// Work above a safety limit, refused before it is done (exit code 2):
+    /// the message gives the estimate and the way out (usually `--force`).
+    /// Not bad input and not an undefined theory: a scan records such a
+    /// point as `failed`, never `unphysical`.
+    #[error("{0}")]
+    Refused(InputError),
     /// A numerical failure (exit code 1).
     #[error("{0}")]
     Numerical(String),
@@ -137,9 +143,14 @@ impl Error {
     /// The process exit code for this error: 2 for bad input, 1 otherwise.
     pub fn exit_code(&self) -> i32 {
         match self {
-            Error::Input(_) | Error::Unphysical(_) | Error::Inaccurate(_) => 2,
+            Error::Input(_) | Error::Refused(_) | Error::Unphysical(_) | Error::Inaccurate(_) => 2,
             _ => 1,
         }
+    }
+
+    /// A refusal of work above a limit, about the command-line flag `key`.
+    pub fn refused(key: &str, message: impl Into<String>) -> Self {
+        Error::Refused(InputError::new("command line", key, message))
     }
 
     /// Wrap an I/O error with the path it concerns.

@@ -512,7 +512,9 @@ fn cases() -> Vec<Case> {
         case("E141", ring("wires = 8", "wires = 300\nboundary = \"open\""), "flow ring.toml", 2,
             "error: command line: --force: the flow of all 600 fields runs on dense matrices (an open array or an explicit model): every step multiplies 600 x 600 matrices, work growing like N^3, about 1.6 times that of 512 fields (the limit, several seconds per flow); pass --force to run it anyway, or use a periodic array (computed per momentum q)"),
         case("E142", vec![("array.toml", common::explicit_array(8))], "flow array.toml --competitors 2", 2,
-            "error: command line: --competitors: at g=0.5, lambda=0.8 the hunt finds 2797 competitors with bare Delta <= 2; their flow would take at least 1.3e8 units of work (channels^2 x fields, before the closure adds any; limit 1e8, about 15 s); lower --competitors DELTA, narrow --competitor-range, or pass --force to run it anyway"),
+            "error: command line: --competitors: at g=0.5, lambda=0.8 the hunt finds more than 2448 competitors with bare Delta <= 2; their flow would take more than 1e8 units of work (channels^2 x fields, before the closure adds any; limit 1e8, about 15 s); lower --competitors DELTA, narrow --competitor-range, or pass --force to run it anyway"),
+        case("E143", vec![("array40.toml", common::explicit_array(20))], "flow array40.toml --competitors 3", 2,
+            "error: command line: --competitors: at g=0.5, lambda=0.8 the hunt for competitors with bare Delta <= 3 is refused: the search would examine about 2.97e8 lattice points in 40 dimensions (ellipsoid volume 1.32e7, search-tree estimate 2.97e8), above the limit 5e7; narrow it with a smaller --competitors DELTA, or pass --force to run it anyway"),
     ];
     // By number: E100 comes after E99, not after E10.
     c.sort_by_key(|c| c.id[1..].parse::<u32>().expect("ids are E and a number"));
@@ -771,4 +773,5 @@ entries! {
     e140_run_json_inside_the_out_directory => "E140",
     e141_dense_flow_above_the_limit => "E141",
     e142_too_many_hunted_competitors => "E142",
+    e143_hunt_for_competitors_above_its_limit => "E143",
 }

@@ -14,7 +14,7 @@ use pinflow::search::{self, ChargeFilter, HuntOptions, MomentumFilter, Progress,
 
 mod common;
 
-use common::{explicit_array, flow_file as demo, input_error, system};
+use common::{explicit_array, flow_file as demo, refusal, system};
 
 /// The filling-1/3 strip demo with `wires` wires and the given boundary.
 fn strip(wires: usize, boundary: &str) -> String {
@@ -167,7 +167,7 @@ fn a_forced_hunt_keeps_a_bounded_number_of_operators() {
         forced_max_listed: 5,
         ..HuntOptions::default()
     };
-    let e = input_error(search::hunt(&sys, &point, &opts).expect_err("bounded"));
+    let e = refusal(search::hunt(&sys, &point, &opts).expect_err("bounded"));
     assert!(
         e.message.contains("more than 5 operators match") && e.message.contains("forced"),
         "{}",
@@ -227,7 +227,7 @@ fn an_unforced_hunt_stops_at_four_times_its_limit_when_the_estimate_misses() {
         "{}",
         forced.candidates
     );
-    let e = input_error(search::hunt(&sys, &[], &opts).expect_err("stopped"));
+    let e = refusal(search::hunt(&sys, &[], &opts).expect_err("stopped"));
     assert_eq!(e.key, "--max-dim");
     assert!(
         e.message.contains("more than 4 times the limit 1e4") && e.message.contains("--force"),
@@ -241,7 +241,7 @@ fn an_unforced_hunt_stops_at_four_times_its_limit_when_the_estimate_misses() {
 #[test]
 fn edges_on_a_wide_array_is_refused_with_the_estimate_unless_forced() {
     let wide = system(&strip(300, "open"));
-    let e = input_error(pinflow::edges::check_size(&wide, false).expect_err("600 fields"));
+    let e = refusal(pinflow::edges::check_size(&wide, false).expect_err("600 fields"));
     assert_eq!(e.key, "--force");
     assert!(e.message.contains("600 fields"), "{}", e.message);
     // The limit itself (512 fields) runs.
@@ -266,7 +266,7 @@ fn edges_on_a_wide_array_is_refused_with_the_estimate_unless_forced() {
 fn dims_on_the_dense_path_above_the_limit_is_refused_unless_forced() {
     // 600 open wires of 2 fields: 1200 fields on the dense path.
     let open = system(&strip(600, "open"));
-    let e = input_error(pinflow::dims::check_size(&open, false).expect_err("1200 fields"));
+    let e = refusal(pinflow::dims::check_size(&open, false).expect_err("1200 fields"));
     assert_eq!(e.key, "--force");
     assert!(e.message.contains("1200 fields"), "{}", e.message);
     pinflow::dims::check_size(&open, true).expect("forced");
@@ -280,7 +280,7 @@ fn hunt_on_the_dense_path_above_the_limit_is_refused_unless_forced() {
     let open = system(&strip(600, "open"));
     let point = open.model.point_with(&[], "test").unwrap();
     let e = search::hunt(&open, &point, &HuntOptions::default()).expect_err("1200 fields");
-    let e = input_error(e);
+    let e = refusal(e);
     assert_eq!(e.key, "--force");
     assert!(e.message.contains("1200 fields"), "{}", e.message);
     // A ring of the same size takes D(q) per momentum: no limit, and fast.
@@ -293,7 +293,7 @@ fn a_dense_flow_above_the_limit_is_refused_unless_forced() {
     // 300 open wires of 2 fields: 600 fields, every step multiplies dense
     // 600 x 600 matrices.
     let open = system(&strip(300, "open"));
-    let e = input_error(pinflow::flow::limits::check_dense_size(&open, false).expect_err("600"));
+    let e = refusal(pinflow::flow::limits::check_dense_size(&open, false).expect_err("600"));
     assert_eq!(e.key, "--force");
     assert!(e.message.contains("600 fields"), "{}", e.message);
     pinflow::flow::limits::check_dense_size(&open, true).expect("forced");
@@ -378,7 +378,7 @@ fn a_pairs_closure_too_large_to_build_is_refused_with_its_estimate() {
     let check = |generate, range, force| {
         pinflow::flow::channels::check_closure(&sys, generate, range, force)
     };
-    let e = input_error(check(true, None, false).expect_err("refused"));
+    let e = refusal(check(true, None, false).expect_err("refused"));
     assert_eq!(e.key, "--closure");
     assert!(
         e.message.contains("5.2e12") && e.message.contains("--force"),
@@ -513,7 +513,7 @@ fn too_many_hunted_competitors_are_refused_before_the_enlarged_flow() {
     assert_eq!(out.status.code(), Some(2));
     let err = String::from_utf8_lossy(&out.stderr);
     assert!(
-        err.contains("--competitors:") && err.contains("2797 competitors"),
+        err.contains("--competitors:") && err.contains("more than 2448 competitors"),
         "{err}"
     );
     assert!(err.contains("pass --force"), "{err}");
@@ -548,8 +548,10 @@ fn too_many_hunted_competitors_are_refused_before_the_enlarged_flow() {
 
 #[test]
 fn even_force_stops_at_the_competitor_ceiling() {
-    // 12 wires: 24057 competitors, (22 + 24057)^2 x 24 = 1.4e10 units of
-    // work, above 100 times the limit.
+    // 12 wires: 24057 competitors; with the plain flow's 84 channels (22
+    // terms and their pairs closure), (84 + 24057)^2 x 24 = 1.4e10 units of
+    // work, above 100 times the limit. The hunt stops past the most that
+    // fit: (84 + 20328)^2 x 24 <= 1e10 < (84 + 20329)^2 x 24.
     let dir = tempfile::tempdir().unwrap();
     std::fs::write(dir.path().join("m.toml"), explicit_array(12)).unwrap();
     let out = pinflow_in(
@@ -559,7 +561,83 @@ fn even_force_stops_at_the_competitor_ceiling() {
     assert_eq!(out.status.code(), Some(2));
     let err = String::from_utf8_lossy(&out.stderr);
     assert!(
-        err.contains("24057 competitors") && err.contains("even --force"),
+        err.contains("more than 20328 competitors") && err.contains("even --force"),
         "{err}"
+    );
+}
+
+#[test]
+fn a_refused_hunt_for_competitors_names_this_commands_flags() {
+    // 40 explicit fields: the hunt at bare Delta <= 3 would examine about
+    // 3e8 lattice points, above the hunt's limit 5e7. `flow` has no
+    // --max-dim or --range: the refusal speaks of --competitors and
+    // --competitor-range, and a scan records the point as failed (refused
+    // work), not unphysical.
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join("m.toml"), explicit_array(20)).unwrap();
+    let out = pinflow_in(dir.path(), &["flow", "m.toml", "--competitors", "3"]);
+    assert_eq!(out.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        err.contains("--competitors: at ") && err.contains("the hunt for competitors"),
+        "{err}"
+    );
+    assert!(err.contains("above the limit"), "{err}");
+    assert!(
+        !err.contains("--max-dim") && !err.contains(" --range"),
+        "{err}"
+    );
+    let out = pinflow_in(
+        dir.path(),
+        &[
+            "scan",
+            "m.toml",
+            "--competitors",
+            "3",
+            "--x",
+            "lambda=0.8:0.81:2",
+            "--out",
+            "s",
+            "--quiet",
+        ],
+    );
+    assert_eq!(out.status.code(), Some(0));
+    let points = std::fs::read_to_string(dir.path().join("s/points.csv")).unwrap();
+    assert!(
+        points.lines().nth(1).unwrap().starts_with("0.8,failed,"),
+        "{points}"
+    );
+}
+
+#[test]
+fn the_competitor_hunt_stops_early_only_when_the_refusal_is_certain() {
+    // The refusal's "more than N" must be a true lower bound: the full
+    // listing of `hunt` (same bound; the model's charge and spin are 0, as
+    // hunt's defaults) has more than N operators that are not model terms.
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join("m.toml"), explicit_array(8)).unwrap();
+    let out = pinflow_in(dir.path(), &["flow", "m.toml", "--competitors", "2"]);
+    let err = String::from_utf8_lossy(&out.stderr);
+    let n: usize = err
+        .split("more than ")
+        .nth(1)
+        .and_then(|s| s.split(' ').next())
+        .and_then(|s| s.parse().ok())
+        .unwrap_or_else(|| panic!("no count in {err}"));
+    let out = pinflow_in(
+        dir.path(),
+        &["hunt", "m.toml", "--max-dim", "2", "--format", "json"],
+    );
+    assert_eq!(out.status.code(), Some(0));
+    let report: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    let competitors = report["operators"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|op| op["model_term"].is_null())
+        .count();
+    assert!(
+        competitors > n,
+        "{competitors} competitors, refusal said more than {n}"
     );
 }

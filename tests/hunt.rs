@@ -728,7 +728,7 @@ charge = [1, 1]
             ..everything(20.0)
         };
         match hunt(&sys, &[0.3], &small) {
-            Err(Error::Input(e)) => {
+            Err(Error::Refused(e)) => {
                 assert_eq!(e.key, "--max-dim");
                 assert!(e.message.contains("above the limit"), "{}", e.message);
                 assert!(e.message.contains("--force"), "{}", e.message);
@@ -756,7 +756,7 @@ charge = [1, 1]
             ..everything(4.0)
         };
         match hunt(&sys, &[0.3], &few) {
-            Err(Error::Input(e)) => {
+            Err(Error::Refused(e)) => {
                 assert!(
                     e.message.contains("more than 5 operators match"),
                     "{}",

@@ -96,10 +96,10 @@ pub fn input(key: &str, message: &str) -> PyErr {
 /// errors about a parameter point.
 pub fn to_py(e: Error, model_file: &str) -> PyErr {
     match e {
-        Error::Input(i) if i.file == COMMAND_LINE => {
+        Error::Input(i) | Error::Refused(i) if i.file == COMMAND_LINE => {
             input_error(ARGUMENTS, &keyword(&i.key), &reword(&i.message))
         }
-        Error::Input(i) => input_error(&i.file, &i.key, &reword(&i.message)),
+        Error::Input(i) | Error::Refused(i) => input_error(&i.file, &i.key, &reword(&i.message)),
         Error::Unphysical(u) => input_error(model_file, "", &u.to_string()),
         Error::Inaccurate(m) => input_error(model_file, "", &m),
         e => RunError::new_err(reword(&e.to_string())),

@@ -168,6 +168,7 @@ fn options(args: &HuntArgs) -> HuntOptions {
         max_listed: MAX_LISTED,
         forced_max_listed: FORCED_MAX_LISTED,
         symmetry: args.symmetry.clone(),
+        stop_above: None,
     }
 }
 

@@ -429,7 +429,8 @@ pub fn identity_drift(k: &DMatrix<f64>, d: &DMatrix<f64>) -> f64 {
 /// not positive).
 pub fn condition_number(v: &DMatrix<f64>) -> f64 {
     let sym = (v + v.transpose()) * 0.5;
-    let eig = SymmetricEigen::new(sym).eigenvalues;
+    // Eigenvalues only: the same QR iterations without the eigenvectors.
+    let eig = sym.symmetric_eigenvalues();
     let lo = eig.iter().cloned().fold(f64::INFINITY, f64::min);
     let hi = eig.iter().cloned().fold(f64::NEG_INFINITY, f64::max);
     if lo > 0.0 {
@@ -443,8 +444,7 @@ pub fn condition_number(v: &DMatrix<f64>) -> f64 {
 /// definite" message).
 pub fn smallest_eigenvalue(v: &DMatrix<f64>) -> f64 {
     let sym = (v + v.transpose()) * 0.5;
-    SymmetricEigen::new(sym)
-        .eigenvalues
+    sym.symmetric_eigenvalues()
         .iter()
         .cloned()
         .fold(f64::INFINITY, f64::min)

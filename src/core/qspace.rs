@@ -305,8 +305,7 @@ pub fn cholesky(v: &DMatrix<Complex64>) -> Option<DMatrix<Complex64>> {
 /// Smallest eigenvalue of a Hermitian matrix.
 pub fn smallest_eigenvalue(v: &DMatrix<Complex64>) -> f64 {
     let sym = (v + v.adjoint()) * Complex64::new(0.5, 0.0);
-    SymmetricEigen::new(sym)
-        .eigenvalues
+    sym.symmetric_eigenvalues()
         .iter()
         .cloned()
         .fold(f64::INFINITY, f64::min)

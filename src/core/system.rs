@@ -97,12 +97,11 @@ impl System {
     /// Refuse, before any work, a dense fixed point above
     /// [`DENSE_FIELDS_LIMIT`] fields unless `force`, naming the estimate and
     /// the flag.
-    pub fn check_dense_size(&self, force: bool) -> Result<(), InputError> {
+    pub fn check_dense_size(&self, force: bool) -> Result<(), Error> {
         let Some((n, factor)) = self.dense_above(DENSE_FIELDS_LIMIT, force) else {
             return Ok(());
         };
-        Err(InputError::new(
-            "command line",
+        Err(Error::refused(
             "--force",
             format!(
                 "the fixed point of all {n} fields is computed with dense matrices (an open array or an explicit model), work growing like N^3, about {factor:.1} times that of {DENSE_FIELDS_LIMIT} fields (the limit, a few seconds); pass --force to run it anyway, or use a periodic array (computed per momentum q)"

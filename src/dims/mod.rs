@@ -291,7 +291,7 @@ pub use crate::core::system::DENSE_FIELDS_LIMIT;
 /// [`DENSE_FIELDS_LIMIT`] fields unless `force`, naming the estimate and the
 /// flag ([`System::check_dense_size`]).
 pub fn check_size(sys: &System, force: bool) -> Result<(), Error> {
-    Ok(sys.check_dense_size(force)?)
+    sys.check_dense_size(force)
 }
 
 /// Options of the `dims` report.

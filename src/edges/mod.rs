@@ -155,14 +155,13 @@ pub fn check_size(sys: &System, force: bool) -> Result<(), Error> {
         return Ok(());
     }
     let factor = (lat.n as f64 / FIELDS_LIMIT as f64).powi(3);
-    Err(Error::Input(InputError::new(
-        "command line",
+    Err(Error::refused(
         "--force",
         format!(
             "the exact theory of all {} fields ({} wire(s) of {}) takes work growing like N^3, about {factor:.0} times that of {FIELDS_LIMIT} fields (the limit, a few seconds); pass --force to run it anyway",
             lat.n, lat.wires, lat.cell
         ),
-    )))
+    ))
 }
 
 /// The gcd of the charges t.n of the pinned vectors (None if all vanish).

@@ -467,16 +467,14 @@ pub fn check_closure(
     } else {
         "pass --force to run it anyway"
     };
-    Err(crate::error::InputError::new(
-        "command line",
+    Err(crate::error::Error::refused(
         "--closure",
         format!(
             "the flow of {} listed terms on {} fields would take about {work:.1e} units of work (channels^2 x fields, up to 2 channels per pair of terms and shift with the pairs closure; limit {CLOSURE_WORK_LIMIT:.0e}, about 10 s); {how}",
             sys.model.terms.len(),
             sys.lattice.n
         ),
-    )
-    .into())
+    ))
 }
 
 /// Listed terms whose momentum may depend on the translate: arrays with

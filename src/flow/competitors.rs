@@ -154,8 +154,14 @@ impl<'s> Competing<'s> {
             Ok(r) => r,
             // The plain flow reports the point (unphysical, inaccurate).
             Err(Error::Unphysical(_)) | Err(Error::Inaccurate(_)) => return self.plain.run(point),
+            Err(Error::Refused(e)) => return Err(self.hunt_refused(e, point)),
             Err(e) => return Err(e),
         };
+        if report.truncated {
+            // More operators match than the limit allows competitors (with
+            // every model term among them): refused without listing them.
+            return Err(self.too_many(self.most_added(), true, point));
+        }
         let y = self
             .comp
             .coupling
@@ -181,30 +187,89 @@ impl<'s> Competing<'s> {
     }
 
     /// Refuse, before the enlarged model is built, a flow whose work with
-    /// `added` competitors is above [`COMPETITOR_WORK_LIMIT`] (unless
-    /// forced) or above [`FORCED_WORK_CEILING`] (always), naming the count
-    /// and the ways out. The work counts the plain flow's channels and the
-    /// competitors' (a translate each when the plan splits families), not
-    /// those the closure would add: a lower bound.
+    /// `added` competitors is above the limit in force ([`Self::work_limit`]).
     fn check_work(&self, added: usize, point: &[f64]) -> Result<(), Error> {
+        match self.work(added) <= self.work_limit() {
+            true => Ok(()),
+            false => Err(self.too_many(added, false, point)),
+        }
+    }
+
+    /// The most work run: [`COMPETITOR_WORK_LIMIT`], or with `--force`
+    /// [`FORCED_WORK_CEILING`].
+    fn work_limit(&self) -> f64 {
+        match self.comp.force {
+            true => FORCED_WORK_CEILING,
+            false => COMPETITOR_WORK_LIMIT,
+        }
+    }
+
+    /// Channels^2 x fields of the flow with `added` competitors: the plain
+    /// flow's channels and the competitors' (a translate each when the plan
+    /// splits families), not those the closure would add: a lower bound.
+    fn work(&self, added: usize) -> f64 {
         let lat = &self.sys.lattice;
-        let per = if self.plain.plan.split {
-            lat.families
+        let per = match self.plain.plan.split {
+            true => lat
+                .families
                 .iter()
                 .map(|f| f.translates.len())
                 .max()
-                .unwrap_or(1)
-        } else {
-            1
+                .unwrap_or(1),
+            false => 1,
         };
         let channels = (self.plain.plan.channels.len() + added * per) as f64;
-        let work = channels * channels * lat.n as f64;
-        let forced = self.comp.force && work <= FORCED_WORK_CEILING;
-        if work <= COMPETITOR_WORK_LIMIT || forced {
-            return Ok(());
+        channels * channels * lat.n as f64
+    }
+
+    /// The most competitors within [`Self::work_limit`].
+    fn most_added(&self) -> usize {
+        let (mut lo, mut hi) = (0usize, 1usize);
+        while self.work(hi) <= self.work_limit() {
+            (lo, hi) = (hi, 2 * hi);
         }
+        // work(lo) <= limit < work(hi), or lo = 0 when even 1 is too many.
+        while hi - lo > 1 {
+            let mid = lo + (hi - lo) / 2;
+            match self.work(mid) <= self.work_limit() {
+                true => lo = mid,
+                false => hi = mid,
+            }
+        }
+        lo
+    }
+
+    /// The hunt may stop once more operators match than
+    /// [`Self::most_added`] competitors and every translate of the model's
+    /// terms (the model terms among them) could be: the flow would be
+    /// refused whatever the rest of the listing.
+    fn stop_above(&self) -> usize {
+        let translates: usize = self
+            .sys
+            .lattice
+            .families
+            .iter()
+            .map(|f| f.translates.len())
+            .sum();
+        self.most_added() + translates
+    }
+
+    /// The refusal of a flow with `added` competitors (`more`: more than
+    /// that many, the most within the limit; the hunt stopped there),
+    /// naming the count and the ways out.
+    fn too_many(&self, added: usize, more: bool, point: &[f64]) -> Error {
+        let (count, work) = match more {
+            true => (
+                format!("more than {added}"),
+                format!("more than {:.0e}", self.work_limit()),
+            ),
+            false => (
+                added.to_string(),
+                format!("at least {:.1e}", self.work(added)),
+            ),
+        };
         let found = format!(
-            "at {} the hunt finds {added} competitors with bare Delta <= {}; their flow would take at least {work:.1e} units of work (channels^2 x fields, before the closure adds any; limit {COMPETITOR_WORK_LIMIT:.0e}, about 15 s)",
+            "at {} the hunt finds {count} competitors with bare Delta <= {}; their flow would take {work} units of work (channels^2 x fields, before the closure adds any; limit {COMPETITOR_WORK_LIMIT:.0e}, about 15 s)",
             self.sys.model.params.describe(point),
             self.comp.delta,
         );
@@ -214,7 +279,27 @@ impl<'s> Competing<'s> {
             "lower --competitors DELTA, narrow --competitor-range, or pass --force to run it anyway"
                 .to_string()
         };
-        Err(InputError::new("command line", "--competitors", format!("{found}; {how}")).into())
+        Error::refused("--competitors", format!("{found}; {how}"))
+    }
+
+    /// A refusal of the hunt at `point`, in this command's flags: the
+    /// hunt's `--max-dim` and `--range` are `--competitors` and
+    /// `--competitor-range` here, and its charge and spin filters are the
+    /// model's (no flag).
+    fn hunt_refused(&self, e: InputError, point: &[f64]) -> Error {
+        let message = e
+            .message
+            .replace(", the filters --spin 0 and --charge 0", "")
+            .replace("--max-dim", "--competitors DELTA")
+            .replace("--range", "--competitor-range");
+        Error::refused(
+            "--competitors",
+            format!(
+                "at {} the hunt for competitors with bare Delta <= {} is refused: {message}",
+                self.sys.model.params.describe(point),
+                self.comp.delta
+            ),
+        )
     }
 
     /// The flow options of the enlarged model: the closure range stays the
@@ -236,6 +321,8 @@ impl<'s> Competing<'s> {
             spin: SpinFilter::Model,
             range: self.comp.range,
             symmetry: self.comp.symmetry.clone(),
+            force: self.comp.force,
+            stop_above: Some(self.stop_above()),
             ..HuntOptions::default()
         }
     }

@@ -5,7 +5,7 @@
 
 use super::options::{Closure, FlowOptions};
 use crate::core::system::System;
-use crate::error::{Error, InputError};
+use crate::error::Error;
 
 /// Most fields a flow on the dense path (open arrays, explicit models)
 /// integrates without `--force`: every right-hand side multiplies N x N
@@ -27,12 +27,10 @@ pub fn check_dense_size(sys: &System, force: bool) -> Result<(), Error> {
     let Some((n, factor)) = sys.dense_above(DENSE_FLOW_FIELDS_LIMIT, force) else {
         return Ok(());
     };
-    Err(InputError::new(
-        "command line",
+    Err(Error::refused(
         "--force",
         format!(
             "the flow of all {n} fields runs on dense matrices (an open array or an explicit model): every step multiplies {n} x {n} matrices, work growing like N^3, about {factor:.1} times that of {DENSE_FLOW_FIELDS_LIMIT} fields (the limit, several seconds per flow); pass --force to run it anyway, or use a periodic array (computed per momentum q)"
         ),
-    )
-    .into())
+    ))
 }

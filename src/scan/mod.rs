@@ -164,11 +164,9 @@ impl<'s> Scan<'s> {
         };
         let result = match run {
             Ok(r) => r,
-            // A point whose hunted competitors are too many to flow is
-            // refused work, not an undefined theory.
-            Err(Error::Input(e)) if e.key == "--competitors" => {
-                FlowResult::without_flow(Outcome::Failed, e.message)
-            }
+            // Work refused at this point (too many hunted competitors, a
+            // hunt above its limit) is not an undefined theory.
+            Err(Error::Refused(e)) => FlowResult::without_flow(Outcome::Failed, e.message),
             Err(Error::Input(e)) => FlowResult::without_flow(Outcome::Unphysical, e.message),
             Err(e) => FlowResult::without_flow(Outcome::Failed, e.to_string()),
         };

@@ -211,15 +211,13 @@ fn parse_axis(model: &Model, spec: &str, key: &str, file: &str) -> Result<Axis, 
 pub fn check_size(points: usize, force: bool) -> Result<(), Error> {
     if points > MAX_POINTS && !force {
         let bytes = points as f64 * 120.0;
-        return Err(InputError::new(
-            "command line",
+        return Err(Error::refused(
             "--x/--y",
             format!(
                 "the grid has {points} points (about {:.1} GB of output and as many flows); narrow the axes or pass --force",
                 bytes / 1e9
             ),
-        )
-        .into());
+        ));
     }
     Ok(())
 }

@@ -175,6 +175,13 @@ pub struct HuntOptions {
     pub forced_max_listed: usize,
     /// Which of the model's symmetries filter the operators.
     pub symmetry: SymmetryChoice,
+    /// Stop as soon as more than this many operators are certain to be
+    /// listed, and return a report with no operators marked
+    /// [`HuntReport::truncated`]: for callers that only need to know that
+    /// the count passes a bound (hunted competitors). Certain means past
+    /// every filter: it applies only when no Z_n map is in use (orbit sums
+    /// that vanish remove operators after the enumeration).
+    pub stop_above: Option<usize>,
 }
 
 impl Default for HuntOptions {
@@ -190,6 +197,7 @@ impl Default for HuntOptions {
             max_listed: MAX_LISTED,
             forced_max_listed: FORCED_MAX_LISTED,
             symmetry: SymmetryChoice::All,
+            stop_above: None,
         }
     }
 }
@@ -210,7 +218,8 @@ struct Space {
 }
 
 impl Space {
-    fn new(sys: &System, d_full: &DMatrix<f64>, window: Window, sym: symmetry::InUse) -> Space {
+    /// The space on `window`, whose D is `d` (window fields only).
+    fn new(sys: &System, d: DMatrix<f64>, window: Window, sym: symmetry::InUse) -> Space {
         let idx = window.field_indices();
         let n = idx.len();
         let k: Vec<Vec<i64>> = idx
@@ -218,7 +227,6 @@ impl Space {
             .map(|&i| idx.iter().map(|&j| sys.lattice.k[i][j]).collect())
             .collect();
         let t: Vec<i64> = idx.iter().map(|&i| sys.lattice.charge[i]).collect();
-        let d = DMatrix::from_fn(n, n, |a, b| d_full[(idx[a], idx[b])]);
         let kf = DMatrix::from_fn(n, n, |a, b| k[a][b] as f64);
         let gram = &kf * &d * &kf;
         let gram = (&gram + gram.transpose()) * 0.5;
@@ -333,33 +341,28 @@ fn check_carried(
     Ok(())
 }
 
-/// D on the fields of the lattice, exact on the window: the dense fixed
-/// point for open arrays and explicit models; for a periodic array, the
-/// real-space window D_{j,j'} = (1/W) sum_q e^{+iq(j-j')} D(q), exact on
-/// its W momenta (per-q cell problems: no N^3 work, and no error bound
-/// growing with the number of fields); for an infinite array, the same
-/// integral on the converged q-space rule. The window is placed on the
-/// window's fields (the rest is never read).
+/// D on the window's fields (in `Window::field_indices` order), exact: the
+/// block of the dense fixed point for open arrays and explicit models; for
+/// a periodic array, the real-space window D_{j,j'} = (1/W) sum_q
+/// e^{+iq(j-j')} D(q), exact on its W momenta (per-q cell problems: no N^3
+/// work, no error bound growing with the number of fields, and nothing of
+/// size N^2); for an infinite array, the same integral on the converged
+/// q-space rule.
 fn window_d(sys: &System, point: &[f64], window: &Window) -> Result<DMatrix<f64>, Error> {
-    let from_q = match sys.eval_path() {
-        EvalPath::Dense => return dense_d(sys, point),
+    let block = |d: DMatrix<f64>| {
+        let idx = window.field_indices();
+        DMatrix::from_fn(idx.len(), idx.len(), |a, b| d[(idx[a], idx[b])])
+    };
+    match sys.eval_path() {
+        EvalPath::Dense => dense_d(sys, point).map(block),
         EvalPath::Ring => match sys.real_space_window(point, window.wires) {
             // D(q) in doubles not accurate enough (V(q) ill-conditioned):
             // the dense route, with its extended precision and its bound.
-            Err(Error::Numerical(_)) => return dense_d(sys, point),
-            r => r?.0,
+            Err(Error::Numerical(_)) => dense_d(sys, point).map(block),
+            r => Ok(r?.0),
         },
-        EvalPath::Infinite => sys.real_space_window(point, window.wires)?.0,
-    };
-    let idx = window.field_indices();
-    let n = sys.lattice.n;
-    let mut d = DMatrix::zeros(n, n);
-    for (a, &i) in idx.iter().enumerate() {
-        for (b, &j) in idx.iter().enumerate() {
-            d[(i, j)] = from_q[(a, b)];
-        }
+        EvalPath::Infinite => Ok(sys.real_space_window(point, window.wires)?.0),
     }
-    Ok(d)
 }
 
 /// The dense fixed point's D, refused where carrying it in doubles would
@@ -455,6 +458,12 @@ impl Momenta {
         };
         (k, conserved)
     }
+
+    /// Whether an operator with particle content `full` passes the
+    /// momentum filter (as in [`operator`]).
+    fn listed(&self, full: &[i64]) -> bool {
+        self.filter != Some(MomentumFilter::Conserved) || self.of(full).1
+    }
 }
 
 /// Momenta that are all small rationals at this point are compared
@@ -487,7 +496,7 @@ fn estimate(ell: &Ellipsoid, space: &Space, opts: &HuntOptions) -> Result<Estima
         limit: opts.limit,
     };
     if estimate.points() > opts.limit && !opts.force {
-        return Err(cmd_error(
+        return Err(Error::refused(
             "--max-dim",
             format!(
                 "the search would examine about {:.2e} lattice points in {} dimensions (ellipsoid volume {:.2e}, search-tree estimate {:.2e}), above the limit {:.0e}; narrow it with a smaller --max-dim{}, or pass --force to run it anyway",
@@ -511,6 +520,8 @@ struct Found {
     candidates: u64,
     /// Nodes of the search tree visited.
     examined: u64,
+    /// Stopped at [`HuntOptions::stop_above`].
+    truncated: bool,
 }
 
 /// Enumerate: keep the canonical placement of each class that passes the
@@ -519,10 +530,15 @@ fn enumerate(
     ell: &Ellipsoid,
     space: &Space,
     opts: &HuntOptions,
+    momenta: &Momenta,
     progress: &mut dyn FnMut(u64),
 ) -> Result<Found, Error> {
     let (accept, bound) = bounds(opts);
     let cap = listing_cap(opts);
+    // Listed for certain: kept and past the momentum filter (counted only
+    // when stopping early is asked for and no Z_n map can remove any).
+    let stop_above = opts.stop_above.filter(|_| !space.sym.has_maps());
+    let (mut certain, mut truncated) = (0usize, false);
     let mut kept: BTreeSet<Vec<i64>> = BTreeSet::new();
     let mut candidates = 0u64;
     let mut nz: Vec<usize> = Vec::with_capacity(space.t.len());
@@ -554,6 +570,15 @@ fn enumerate(
             let canon = space.window.canonical(m);
             let is_placement = canon.as_slice() == m || canon.iter().zip(m).all(|(a, b)| *a == -b);
             if is_placement {
+                if let Some(s) = stop_above {
+                    if !kept.contains(&canon) && momenta.listed(&space.window.place(&canon)) {
+                        certain += 1;
+                        if certain > s {
+                            truncated = true;
+                            return false;
+                        }
+                    }
+                }
                 kept.insert(canon);
                 if kept.len() > cap {
                     return false;
@@ -571,7 +596,7 @@ fn enumerate(
         } else {
             ""
         };
-        return Err(cmd_error(
+        return Err(Error::refused(
             "--max-dim",
             format!(
                 "more than {cap} operators match{how}; narrow the search with a smaller --max-dim{}, the filters --spin 0 and --charge 0{}",
@@ -584,13 +609,14 @@ fn enumerate(
         kept,
         candidates,
         examined: visit.examined,
+        truncated,
     })
 }
 
 /// The refusal of an unforced search that visited more than
 /// [`LIMIT_OVERRUN`] times its limit although its estimate was below it.
 fn overrun_error(space: &Space, opts: &HuntOptions, visited: u64) -> Error {
-    cmd_error(
+    Error::refused(
         "--max-dim",
         format!(
             "the search passed {visited} lattice points, more than {LIMIT_OVERRUN} times the limit {:.0e} its estimate stayed below (the ellipsoid is very long in some direction: V is nearly singular at this point); narrow it with a smaller --max-dim{}, or pass --force to run it anyway",
@@ -720,18 +746,21 @@ pub fn hunt_with_progress(
     let chosen = symmetry::chosen(sys, &opts.symmetry)?;
     let momenta = Momenta::at(sys, point, opts)?;
     sys.check_dense_size(opts.force)?;
-    let d_full = window_d(sys, point, &window)?;
+    let d = window_d(sys, point, &window)?;
     let sym = symmetry::in_use(sys, point, &chosen, &window)?;
-    let space = Space::new(sys, &d_full, window, sym);
+    let space = Space::new(sys, d, window, sym);
     let ell = Ellipsoid::new(&space.gram)
         .map_err(|e| Error::Numerical(format!("operator search: {e}")))?;
     let estimate = estimate(&ell, &space, opts)?;
     progress(Progress::Estimated(estimate.points()));
-    let found = enumerate(&ell, &space, opts, &mut |n| {
+    let found = enumerate(&ell, &space, opts, &momenta, &mut |n| {
         progress(Progress::Enumerated(n))
     })?;
     let terms = term_index(sys, &space.window);
-    let operators = listed_operators(sys, &space, &momenta, opts, &found, &terms)?;
+    let operators = match found.truncated {
+        true => Vec::new(),
+        false => listed_operators(sys, &space, &momenta, opts, &found, &terms)?,
+    };
     let grouped = orbits::group(&space.window, &space.sym, operators, &terms)?;
     let mut report = HuntReport::new(
         sys,
@@ -747,6 +776,7 @@ pub fn hunt_with_progress(
         momenta.exact.is_some(),
     );
     report.set_symmetries(&space.sym, grouped.orbits, grouped.removed);
+    report.truncated = found.truncated;
     Ok(report)
 }
 

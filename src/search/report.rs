@@ -131,6 +131,10 @@ pub struct HuntReport {
     pub orbits: Vec<super::OrbitReport>,
     /// Operators removed because their symmetrised orbit sum vanishes.
     pub removed_by_symmetry: usize,
+    /// The search stopped at [`super::HuntOptions::stop_above`]: more
+    /// operators than that match, and none are listed.
+    #[serde(skip)]
+    pub truncated: bool,
 }
 
 /// "periodic", "open" or "infinite" for arrays, None for explicit models.
@@ -221,6 +225,7 @@ impl HuntReport {
             symmetries: Vec::new(),
             orbits: Vec::new(),
             removed_by_symmetry: 0,
+            truncated: false,
         };
         r.certificate = r.certificate_line();
         r.notes = r.make_notes(sys, capped);

@@ -40,6 +40,15 @@ pub fn without_provenance(json: &[u8]) -> serde_json::Value {
     v
 }
 
+/// The refusal (work above a limit) inside `e`; panics naming any other
+/// error.
+pub fn refusal(e: Error) -> InputError {
+    match e {
+        Error::Refused(e) => e,
+        other => panic!("expected a refusal of work above a limit, got {other}"),
+    }
+}
+
 /// The input error inside `e`; panics naming any other error.
 pub fn input_error(e: Error) -> InputError {
     match e {
