@@ -132,6 +132,19 @@ struct Scratch {
     products: Vec<f64>,
 }
 
+impl Scratch {
+    /// For `n` channels (the OPE products are sized per segment).
+    fn new(n: usize, work: Work, reference: usize) -> Scratch {
+        Scratch {
+            weight: vec![0.0; n],
+            dims: vec![0.0; n],
+            work,
+            reference: vec![0.0; reference],
+            products: Vec::new(),
+        }
+    }
+}
+
 impl<'a> FlowRhs<'a> {
     /// Build the system; scratch is sized once here.
     pub fn new(
@@ -151,13 +164,7 @@ impl<'a> FlowRhs<'a> {
             .collect();
         let mut work = bg.work();
         bg.merge_outer(&mut outer, &mut work);
-        let scratch = RefCell::new(Scratch {
-            weight: vec![0.0; n],
-            dims: vec![0.0; n],
-            work,
-            reference: vec![0.0; bg.scratch_len()],
-            products: Vec::new(),
-        });
+        let scratch = RefCell::new(Scratch::new(n, work, bg.scratch_len()));
         let real = (0..n).filter(|&c| channels[c].real_only()).collect();
         // A rank-one update costs ~n^2 per translate, the two products 2 n^3
         // (at several times the speed per operation): with fewer null
