@@ -313,6 +313,9 @@ fn ring_rhs<'a>(
     let fp = sys.q_fixed_point(point, 16).expect("physical point");
     let bg = Background::Fourier { wires: 16, cell: 2 };
     let mut rhs = pinflow::flow::rhs::FlowRhs::new(bg, channels, vec![0.0; listed], ope);
+    if let Some(q) = &sys.q {
+        rhs.set_cell_kinv(&q.kinv);
+    }
     rhs.record = false;
     let mut y = nalgebra::DVector::zeros(rhs.state_len());
     for (c, t) in sys.model.terms.iter().enumerate() {

@@ -91,6 +91,10 @@ fn listed_rhs<'a>(sys: &System, flow: &'a Flow, periodic: bool) -> (FlowRhs<'a>,
         (bg, d)
     };
     let mut rhs = FlowRhs::new(bg, channels, vec![0.0; listed], ope);
+    // As `Flow` does: N(q) from M(q) with the cell's K^-1.
+    if let Some(q) = &sys.q {
+        rhs.set_cell_kinv(&q.kinv);
+    }
     rhs.record = false;
     let mut y = vec![0.0; 2 * listed];
     for (c, t) in sys.model.terms.iter().enumerate() {

@@ -304,3 +304,32 @@ fn a_flow_left_with_only_mismatched_terms_is_gapless() {
         r.ell_end
     );
 }
+
+#[test]
+fn runner_up_among_mirror_images_is_the_first_listed() {
+    // flows/two_targets.toml: t_up and t_dn are mirror images (spin up and
+    // down), so their couplings are equal at every ell and differ only by
+    // the rounding of the sums (1e-15 relative, either sign). The
+    // runner-up among them is the first listed (as the winner,
+    // `FlowRhs::strongest`), not the one rounding favours: before this
+    // rule it flipped between t_up and t_dn with the number of wires and
+    // the order of the OPE sums. A consistency check, no physics values.
+    let path = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("flows/two_targets.toml");
+    let text = std::fs::read_to_string(path).expect("bundled model");
+    let mut layouts = vec!["wires = \"infinite\"\n".to_string()];
+    for wires in [6, 13, 24] {
+        for boundary in ["open", "periodic"] {
+            layouts.push(format!("wires = {wires}\nboundary = \"{boundary}\"\n"));
+        }
+    }
+    for layout in layouts {
+        let model = text
+            .replace("boundary = \"periodic\"\n", "")
+            .replace("wires = 4\n", &layout);
+        let sys = system(&model);
+        let r = run(&sys, FlowOptions::default());
+        assert_eq!(r.winner.as_deref(), Some("t_diff"), "{layout}");
+        let up = r.runner_up.as_ref().expect("runner-up");
+        assert_eq!(up.name, "t_up", "{layout}");
+    }
+}

@@ -37,9 +37,11 @@
 //! (c_c = -|y_c|^2/8, times the share on the Fourier layout) give
 //! dD = D M D - N with two matrix products (per q block, or once for the
 //! dense D) instead of one rank-one update per channel and translate. On
-//! the Fourier layout every channel keeps its L(q) L(q)^H, stored like D,
-//! so its dimension is one dot product with D and M, N of all blocks are
-//! sums of those arrays (contiguous loops). The
+//! the Fourier layout every channel keeps its L(q) L(q)^H in the packed
+//! Hermitian form ([`pack_block`]: per block the real diagonal and the
+//! upper triangle, cell^2 reals instead of 2 cell^2), so its dimension is
+//! one dot product with the packed D and M, N of all blocks are sums of
+//! those arrays (contiguous loops, half the length of full blocks). The
 //! per-channel route ([`Background::dimension_and_feedback`]) is kept as the
 //! reference the products are tested against (`tests/rhs_products.rs`).
 //! Invariants: the dense feedback is symmetrised and each block's feedback
@@ -342,13 +344,13 @@ pub enum Outer {
         /// Position of `at[0]` in the union (set by the merge).
         start: usize,
     },
-    /// L(q) L(q)^H and G(q) G(q)^H on every stored q, interleaved (re, im),
-    /// in the layout of the state.
+    /// L(q) L(q)^H and then G(q) G(q)^H on every stored q, each block in
+    /// the packed Hermitian form of [`pack_block`] with the off-diagonal
+    /// entries doubled (exact), so that the dot product with a packed D is
+    /// Re sum_ab over the whole block.
     Fourier {
-        /// L L^H blocks.
-        ll: Vec<f64>,
-        /// G G^H blocks.
-        gg: Vec<f64>,
+        /// The packed L L^H blocks, then the packed G G^H blocks.
+        packed: Vec<f64>,
     },
 }
 
@@ -366,18 +368,26 @@ pub struct Work {
     /// Dense: D unpacked from the state (in full for gemm; only its band
     /// for the banded product, the rest unused).
     d: DMatrix<f64>,
-    /// Fourier: M of every stored block, laid out like the state's D;
-    /// dense: M on the union `u`.
+    /// Fourier: M of every stored block, then N of every stored block,
+    /// packed like [`Outer::Fourier`]; dense: M on the union `u`.
     mq: Vec<f64>,
-    /// Fourier: N of every stored block; dense: N on the union `u`.
+    /// Dense: N on the union `u` (Fourier: unused).
     nq: Vec<f64>,
     /// Dense: the union of every channel's entries of M and N (row-major
     /// positions, upper triangle, ascending; [`Background::merge_outer`]).
     u: Vec<usize>,
     /// Dense: the transposed positions of `u`.
     ut: Vec<usize>,
-    /// Fourier: D times each block's share of the sum over q.
+    /// Fourier: D times each block's share of the sum over q, packed.
     dw: Vec<f64>,
+    /// Fourier: the state position of each entry of `dw` ([`pack_block`]'s
+    /// order).
+    pack: Vec<usize>,
+    /// Fourier: the share of `pack`'s entries.
+    pack_share: Vec<f64>,
+    /// Fourier: each entry of a full block as (position in its packed
+    /// block, factor) ([`unpack_block`]).
+    unpack: Vec<(usize, f64)>,
     /// Dense: how D M D is formed.
     pub route: DenseRoute,
     /// Dense: half-bandwidth of M and N (every channel's entries).
@@ -387,6 +397,19 @@ pub struct Work {
     /// [`Background::dimension`] ([`Background::prepare_dimensions`]);
     /// empty: not prepared.
     quad: Vec<Vec<(usize, f64)>>,
+    /// Fourier: the cell's K^-1, row-major ([`Work::set_cell_kinv`]); when
+    /// empty, N is summed from every channel's G G^H like M.
+    kinv: Vec<f64>,
+}
+
+impl Work {
+    /// Fourier layout: form N(q) = K_c^-1 M(q) K_c^-1 per block instead of
+    /// summing every channel's G(q) G(q)^H (G = K_c^-1 L, so the two agree
+    /// up to rounding): one sum over the channels instead of two.
+    pub fn set_cell_kinv(&mut self, kinv: &DMatrix<f64>) {
+        let c = kinv.nrows();
+        self.kinv = (0..c * c).map(|i| kinv[(i / c, i % c)]).collect();
+    }
 }
 
 /// How the dense layout forms D M D ([`Background::evaluate`]).
@@ -421,10 +444,14 @@ impl Background {
     pub fn outer(&self, ch: &Channel) -> Outer {
         match *self {
             Background::Dense { n } => dense_outer(n, ch),
-            Background::Fourier { wires, cell } => Outer::Fourier {
-                ll: block_outer(&ch.lq, half(wires), cell),
-                gg: block_outer(&ch.gq, half(wires), cell),
-            },
+            Background::Fourier { wires, cell } => {
+                let p = half(wires) * cell * cell;
+                let mut packed = vec![0.0; 2 * p];
+                let (ll, gg) = packed.split_at_mut(p);
+                block_outer(&ch.lq, cell, ll);
+                block_outer(&ch.gq, cell, gg);
+                Outer::Fourier { packed }
+            }
         }
     }
 
@@ -435,9 +462,19 @@ impl Background {
             Background::Fourier { cell, .. } => (2 * cell, cell),
         };
         let z = || DMatrix::zeros(rows, cols);
+        let mut work = self.work_matrices(z);
+        if let Background::Fourier { wires, cell } = *self {
+            (work.pack, work.pack_share) = packing(wires, cell);
+            work.unpack = unpacking(cell);
+        }
+        work
+    }
+
+    fn work_matrices(&self, z: impl Fn() -> DMatrix<f64>) -> Work {
+        // Fourier: the packed length of all stored blocks; dense: D's size.
         let (q, dn) = match *self {
             Background::Dense { n } => (0, n),
-            Background::Fourier { .. } => (self.len(), 0),
+            Background::Fourier { wires, cell } => (half(wires) * cell * cell, 0),
         };
         Work {
             m: z(),
@@ -445,11 +482,15 @@ impl Background {
             t: z(),
             r: z(),
             d: DMatrix::zeros(dn, dn),
-            mq: vec![0.0; q],
-            nq: vec![0.0; q],
+            mq: vec![0.0; 2 * q],
+            nq: Vec::new(),
             dw: vec![0.0; q],
             route: DenseRoute::Auto,
             bm: 0,
+            kinv: Vec::new(),
+            pack: Vec::new(),
+            pack_share: Vec::new(),
+            unpack: Vec::new(),
             u: Vec::new(),
             ut: Vec::new(),
             quad: Vec::new(),
@@ -498,12 +539,12 @@ type Live<'a, 'c> = (
 );
 
 /// [`Background::evaluate`] on the Fourier layout. Every stored block at
-/// once: with L L^H of a channel stored like D (interleaved (re, im),
-/// row-major blocks), Re L^H D(q) L is the plain dot product of the two
-/// real arrays, so a channel's dimension is one dot product with D
-/// weighted by each block's share (1/2W, twice for q and -q), and M, N of
-/// all blocks are sums of the channels' arrays: contiguous loops the
-/// compiler vectorises.
+/// once: with L L^H of a channel packed like D ([`Outer::Fourier`]), Re
+/// sum_ab D(q)_ab conj(L L^H)_ab = Re L^H D(q) L is the plain dot product
+/// of the two real arrays, so a channel's dimension is one dot product
+/// with D weighted by each block's share (1/2W, twice for q and -q), and
+/// M, N of all blocks are sums of the channels' arrays: contiguous loops
+/// the compiler vectorises.
 fn fourier_evaluate(
     wires: usize,
     cell: usize,
@@ -513,41 +554,77 @@ fn fourier_evaluate(
     ds: &mut [f64],
     work: &mut Work,
 ) {
-    let size = 2 * cell * cell;
-    let blocks = half(wires);
-    for k in 0..blocks {
-        let share = qspace::weight(k, wires) / (2.0 * wires as f64);
-        let range = k * size..(k + 1) * size;
-        for (w, x) in work.dw[range.clone()].iter_mut().zip(&s[range]) {
-            *w = share * x;
-        }
+    let (size, p, blocks) = (2 * cell * cell, cell * cell, half(wires));
+    let packing = work.pack.iter().zip(&work.pack_share);
+    for (w, (&at, &share)) in work.dw.iter_mut().zip(packing) {
+        *w = share * s[at];
     }
     work.mq.fill(0.0);
-    work.nq.fill(0.0);
     let mut any = false;
     for &c in live {
-        let Some(Outer::Fourier { ll, gg }) = &outer[c] else {
+        let Some(Outer::Fourier { packed }) = &outer[c] else {
             dims[c] = qspace::dimension(s, &channels[c].lq, wires, cell);
             continue;
         };
-        dims[c] = dot(&work.dw, ll);
+        dims[c] = dot(&work.dw, &packed[..blocks * p]);
         if weight[c] > 0.0 {
+            // With K_c^-1 known, N follows from M per block.
+            let used = if work.kinv.is_empty() { 2 } else { 1 } * blocks * p;
             let coef = -weight[c] * channels[c].share / 8.0;
-            axpy(&mut work.mq, ll, coef);
-            axpy(&mut work.nq, gg, coef);
+            axpy(&mut work.mq[..used], &packed[..used], coef);
             any = true;
         }
     }
     if !any {
         return;
     }
-    let t = work.t.as_mut_slice();
+    let (mp, np) = work.mq.split_at(blocks * p);
+    let (m, n) = (work.m.as_mut_slice(), work.n.as_mut_slice());
+    let (t, r) = (work.t.as_mut_slice(), work.r.as_mut_slice());
     for k in 0..blocks {
-        let r = k * size..(k + 1) * size;
-        let (m, n) = (&work.mq[r.clone()], &work.nq[r.clone()]);
-        block_products(cell, &s[r.clone()], &mut ds[r], m, n, t);
+        let (range, rp) = (k * size..(k + 1) * size, k * p..(k + 1) * p);
+        unpack_block(&mp[rp.clone()], &work.unpack, m);
+        if work.kinv.is_empty() {
+            unpack_block(&np[rp], &work.unpack, n);
+        } else {
+            kinv_sandwich(cell, &work.kinv, m, n, r);
+        }
+        block_products(cell, &s[range.clone()], &mut ds[range], m, n, t);
     }
 }
+
+/// n = K_c^-1 m K_c^-1 for one block, upper triangle (m, n interleaved
+/// complex, m Hermitian; `kinv` the real symmetric cell K^-1, row-major;
+/// `r` scratch for K_c^-1 m): N(q) of the channels' G(q) = K_c^-1 L(q)
+/// from M(q), exact up to rounding. Every sum runs along two rows (column
+/// b of a Hermitian m is the conjugate of its row b, of kinv its row b).
+#[inline]
+fn kinv_sandwich(cell: usize, kinv: &[f64], m: &[f64], n: &mut [f64], r: &mut [f64]) {
+    for (ka, ra) in kinv.chunks_exact(cell).zip(r.chunks_exact_mut(2 * cell)) {
+        for (mb, rab) in m.chunks_exact(2 * cell).zip(ra.chunks_exact_mut(2)) {
+            let (mut re, mut im) = (0.0, 0.0);
+            for (&x, z) in ka.iter().zip(mb.chunks_exact(2)) {
+                re += x * z[0];
+                im -= x * z[1];
+            }
+            (rab[0], rab[1]) = (re, im);
+        }
+    }
+    for a in 0..cell {
+        let ra = &r[2 * a * cell..2 * (a + 1) * cell];
+        for b in a..cell {
+            let (mut re, mut im) = (0.0, 0.0);
+            for (x, &y) in ra.chunks_exact(2).zip(&kinv[b * cell..(b + 1) * cell]) {
+                re += x[0] * y;
+                im += x[1] * y;
+            }
+            (n[2 * (a * cell + b)], n[2 * (a * cell + b) + 1]) = (re, im);
+        }
+    }
+}
+
+#[cfg(test)]
+mod fourier_tests;
 
 /// sum_i a_i b_i, in four interleaved partial sums (so it vectorises).
 #[inline]
@@ -771,59 +848,140 @@ fn gemm_products(n: usize, s: &[f64], ds: &mut [f64], work: &mut Work) {
 }
 
 /// V V^H of every stored q block of a Fourier vector (k-major, `cell`
-/// entries per block), interleaved (re, im), row-major per block.
-fn block_outer(v: &[Complex64], blocks: usize, cell: usize) -> Vec<f64> {
-    let mut out = vec![0.0; 2 * blocks * cell * cell];
-    for k in 0..blocks {
-        let vk = &v[k * cell..(k + 1) * cell];
+/// entries per block) into `out`, packed ([`pack_block`]) with the
+/// off-diagonal entries doubled.
+fn block_outer(v: &[Complex64], cell: usize, out: &mut [f64]) {
+    let mut full = vec![0.0; 2 * cell * cell];
+    for (vk, out) in v.chunks_exact(cell).zip(out.chunks_exact_mut(cell * cell)) {
         for a in 0..cell {
             for b in 0..cell {
                 let z = vk[a] * vk[b].conj();
-                let at = 2 * ((k * cell + a) * cell + b);
-                out[at] = z.re;
-                out[at + 1] = z.im;
+                full[2 * (a * cell + b)] = z.re;
+                full[2 * (a * cell + b) + 1] = z.im;
             }
+        }
+        pack_block(&full, cell, 1.0, 2.0, out);
+    }
+}
+
+/// The packed Hermitian form of a block `x` (interleaved (re, im),
+/// row-major, cell x cell) into `out` (cell^2 reals): row by row, the real
+/// part of the diagonal entry times `diag`, then (re, im) of each entry
+/// right of the diagonal times `off`. The lower triangle and the diagonal's
+/// imaginary parts are not read (a Hermitian block's are implied).
+#[inline]
+fn pack_block(x: &[f64], cell: usize, diag: f64, off: f64, out: &mut [f64]) {
+    let mut i = 0;
+    for a in 0..cell {
+        let row = &x[2 * (a * cell + a)..2 * (a + 1) * cell];
+        out[i] = diag * row[0];
+        for (o, v) in out[i + 1..i + row.len() - 1].iter_mut().zip(&row[2..]) {
+            *o = off * v;
+        }
+        i += row.len() - 1;
+    }
+}
+
+/// The state positions of the packed entries of every stored block
+/// ([`pack_block`]'s order) and each one's share of the sum over q (1/2W,
+/// twice for q and -q).
+fn packing(wires: usize, cell: usize) -> (Vec<usize>, Vec<f64>) {
+    let (mut at, mut share) = (Vec::new(), Vec::new());
+    for k in 0..half(wires) {
+        let w = qspace::weight(k, wires) / (2.0 * wires as f64);
+        let base = 2 * k * cell * cell;
+        for a in 0..cell {
+            at.push(base + 2 * (a * cell + a));
+            for b in a + 1..cell {
+                at.extend([base + 2 * (a * cell + b), base + 2 * (a * cell + b) + 1]);
+            }
+        }
+        share.resize(at.len(), w);
+    }
+    (at, share)
+}
+
+/// For each entry of a full block (interleaved, row-major), its position
+/// in the packed block and the factor that recovers it from a packed
+/// block with doubled off-diagonal entries ([`Outer::Fourier`]): 1 on the
+/// diagonal, 1/2 above it, -1/2 for the imaginary parts below it (the
+/// conjugate), 0 for the diagonal's imaginary parts.
+fn unpacking(cell: usize) -> Vec<(usize, f64)> {
+    let mut pos = vec![0; cell * cell];
+    let mut i = 0;
+    for a in 0..cell {
+        pos[a * cell + a] = i;
+        i += 1;
+        for b in a + 1..cell {
+            pos[a * cell + b] = i;
+            i += 2;
+        }
+    }
+    let mut out = Vec::with_capacity(2 * cell * cell);
+    for a in 0..cell {
+        for b in 0..cell {
+            out.extend(match a.cmp(&b) {
+                std::cmp::Ordering::Equal => [(pos[a * cell + a], 1.0), (0, 0.0)],
+                std::cmp::Ordering::Less => {
+                    [(pos[a * cell + b], 0.5), (pos[a * cell + b] + 1, 0.5)]
+                }
+                std::cmp::Ordering::Greater => {
+                    [(pos[b * cell + a], 0.5), (pos[b * cell + a] + 1, -0.5)]
+                }
+            });
         }
     }
     out
 }
 
-/// Entry (a, b) of an interleaved row-major complex block.
+/// The full Hermitian block `x` (interleaved, row-major) of a packed one
+/// `p` with doubled off-diagonal entries, by the map of [`unpacking`]
+/// (exact: the factors are powers of two).
 #[inline]
-fn at(x: &[f64], cell: usize, a: usize, b: usize) -> Complex64 {
-    let i = 2 * (a * cell + b);
-    Complex64::new(x[i], x[i + 1])
+fn unpack_block(p: &[f64], map: &[(usize, f64)], x: &mut [f64]) {
+    for (x, &(i, f)) in x.iter_mut().zip(map) {
+        *x = f * p[i];
+    }
 }
 
-/// ds += D M D - N for one q block (M, N, and the scratch t for D M,
-/// interleaved like the state). Only the upper triangle of D M D is formed;
-/// the lower one is its conjugate and the diagonal real, so the feedback is
-/// exactly Hermitian.
+/// ds += D M D - N for one q block: D and ds interleaved like the state,
+/// M full (Hermitian), N's upper triangle, `t` scratch for D M. Real
+/// arithmetic on (re, im) pairs; every sum runs along two rows (column b
+/// of a Hermitian matrix is the conjugate of its row b). Only the upper
+/// triangle of D M D is formed; the lower one is its conjugate and the
+/// diagonal real, so the feedback is exactly Hermitian.
+#[inline]
 fn block_products(cell: usize, d: &[f64], ds: &mut [f64], m: &[f64], n: &[f64], t: &mut [f64]) {
-    for a in 0..cell {
-        for b in 0..cell {
-            let z: Complex64 = (0..cell)
-                .map(|j| at(d, cell, a, j) * at(m, cell, j, b))
-                .sum();
-            t[2 * (a * cell + b)] = z.re;
-            t[2 * (a * cell + b) + 1] = z.im;
+    let row = 2 * cell;
+    for (da, ta) in d.chunks_exact(row).zip(t.chunks_exact_mut(row)) {
+        for (mb, tab) in m.chunks_exact(row).zip(ta.chunks_exact_mut(2)) {
+            (tab[0], tab[1]) = times_conj(da, mb);
         }
     }
     for a in 0..cell {
+        let ta = &t[a * row..(a + 1) * row];
         for b in a..cell {
-            let r: Complex64 = (0..cell)
-                .map(|j| at(t, cell, a, j) * at(d, cell, j, b))
-                .sum();
-            let v = r - at(n, cell, a, b);
-            let i = 2 * (a * cell + b);
-            ds[i] += v.re;
+            let (re, im) = times_conj(ta, &d[b * row..(b + 1) * row]);
+            let at = 2 * (a * cell + b);
             if a == b {
+                ds[at] += re - n[at];
                 continue;
             }
-            ds[i + 1] += v.im;
-            let i = 2 * (b * cell + a);
-            ds[i] += v.re;
-            ds[i + 1] -= v.im;
+            let (vr, vi) = (re - n[at], im - n[at + 1]);
+            (ds[at], ds[at + 1]) = (ds[at] + vr, ds[at + 1] + vi);
+            let at = 2 * (b * cell + a);
+            (ds[at], ds[at + 1]) = (ds[at] + vr, ds[at + 1] - vi);
         }
     }
+}
+
+/// sum_j x_j conj(y_j) of two interleaved complex rows.
+#[inline]
+fn times_conj(x: &[f64], y: &[f64]) -> (f64, f64) {
+    let (mut re, mut im) = (0.0, 0.0);
+    for (x, y) in x.chunks_exact(2).zip(y.chunks_exact(2)) {
+        re += x[0] * y[0] + x[1] * y[1];
+        im += x[1] * y[0] - x[0] * y[1];
+    }
+    (re, im)
 }

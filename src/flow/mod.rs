@@ -49,6 +49,7 @@ pub mod competitors;
 pub mod kt;
 pub mod limits;
 mod ope;
+mod ope_terms;
 pub mod options;
 pub mod progress;
 pub mod qtrack;
@@ -520,6 +521,9 @@ impl<'s> Flow<'s> {
         rhs.record = record;
         rhs.reference = self.reference_rhs;
         rhs.set_dense_route(self.dense_route);
+        if let Some(q) = &self.sys.q {
+            rhs.set_cell_kinv(&q.kinv);
+        }
         let y0 = self.bare_state(&mut rhs, &included, &bare, &start.d0);
         let ell_k = momenta.iter().map(|k| k.and_then(cutoff_scale)).collect();
         Ok(Prepared {
@@ -861,14 +865,17 @@ impl FlowResult {
 /// never picks among couplings a symmetry makes equal).
 fn runner_up(r: &FlowResult, w: usize, y_strong: f64) -> Option<RunnerUp> {
     let ell = r.ell_star?;
-    let competing =
-        || (r.terms.iter().enumerate()).filter(|(i, t)| *i != w && t.ell_k.is_none_or(|k| k > ell));
-    let top = competing()
-        .map(|(_, t)| t.coupling)
-        .max_by(|a, b| a.total_cmp(b))?;
-    competing()
-        .find(|(_, t)| t.coupling >= top * (1.0 - rhs::TIE))
-        .map(|(_, t)| RunnerUp {
+    let others = || {
+        (r.terms.iter().enumerate())
+            .filter(|(i, t)| *i != w && t.ell_k.is_none_or(|k| k > ell))
+            .map(|(_, t)| t)
+    };
+    let top = others().map(|t| t.coupling).max_by(|a, b| a.total_cmp(b))?;
+    // As `FlowRhs::strongest`: among couplings equal to rhs::TIE (mirror
+    // images), the first in plan order, not the one rounding favours.
+    others()
+        .find(|t| t.coupling >= top * (1.0 - rhs::TIE))
+        .map(|t| RunnerUp {
             name: t.name.clone(),
             coupling: t.coupling,
             near_tie: t.coupling >= (1.0 - NEAR_TIE) * y_strong,

@@ -17,7 +17,8 @@
 //!
 //! Per segment (between momentum cut-offs) the set of active channels is
 //! fixed: [`FlowRhs::begin_segment`] lists the live channels and the OPE
-//! entries among them once, so an evaluation never filters. The D feedback
+//! entries among them once, grouped by product and target
+//! ([`super::ope_terms`]), so an evaluation never filters. The D feedback
 //! is formed as matrix products ([`Background::evaluate`]), except for a
 //! dense D with fewer null translates than half its size, where the
 //! rank-one updates are cheaper;
@@ -30,6 +31,7 @@ use crate::math::dop853::Derivative;
 
 use super::background::{Background, DenseRoute, Outer, Work};
 use super::channels::{Channel, OpeEntry};
+use super::ope_terms::{reference_terms, GroupedOpe, LiveOpe};
 use crate::core::relevance::rg_eigenvalue;
 
 /// Relative distance below which two couplings count as equal in
@@ -52,37 +54,6 @@ pub enum Stop {
         /// Where it was detected.
         ell: f64,
     },
-}
-
-/// An OPE entry as the evaluation uses it (same arithmetic as the
-/// [`OpeEntry`] it comes from, to the bit: the conjugations become factors
-/// +-1 and the weight is halved exactly), so the loop has no branches.
-#[derive(Debug, Clone, Copy)]
-struct LiveOpe {
-    target: u32,
-    a: u32,
-    b: u32,
-    /// -1 when w_b enters conjugated.
-    b_sign: f64,
-    /// -1 when the product is conjugated.
-    p_sign: f64,
-    /// weight / 2.
-    half_weight: f64,
-}
-
-impl LiveOpe {
-    fn of(e: &OpeEntry) -> LiveOpe {
-        let sign = |flip: bool| if flip { -1.0 } else { 1.0 };
-        // Channel indices are far below 2^32 (the plan is bounded).
-        LiveOpe {
-            target: e.target as u32,
-            a: e.a as u32,
-            b: e.b as u32,
-            b_sign: sign(e.b_conj),
-            p_sign: sign(e.conj),
-            half_weight: 0.5 * e.weight,
-        }
-    }
 }
 
 /// One recorded point of the trajectory.
@@ -136,8 +107,9 @@ pub struct FlowRhs<'a> {
     outer: Vec<Option<Outer>>,
     /// Active channels of the current segment.
     live: Vec<usize>,
-    /// OPE entries among active channels of the current segment.
-    live_ope: Vec<LiveOpe>,
+    /// OPE entries among active channels of the current segment, grouped
+    /// for the evaluation.
+    live_ope: GroupedOpe,
     /// Channels whose amplitude is kept real.
     real: Vec<usize>,
     /// Dense D with few translates feeding back: the rank-one updates cost
@@ -156,6 +128,21 @@ struct Scratch {
     work: Work,
     /// The reference route's vector.
     reference: Vec<f64>,
+    /// The OPE products of an evaluation (sized per segment).
+    products: Vec<f64>,
+}
+
+impl Scratch {
+    /// For `n` channels (the OPE products are sized per segment).
+    fn new(n: usize, work: Work, reference: usize) -> Scratch {
+        Scratch {
+            weight: vec![0.0; n],
+            dims: vec![0.0; n],
+            work,
+            reference: vec![0.0; reference],
+            products: Vec::new(),
+        }
+    }
 }
 
 impl<'a> FlowRhs<'a> {
@@ -178,12 +165,7 @@ impl<'a> FlowRhs<'a> {
         let mut work = bg.work();
         bg.merge_outer(&mut outer, &mut work);
         bg.prepare_dimensions(&channels, &mut work);
-        let scratch = RefCell::new(Scratch {
-            weight: vec![0.0; n],
-            dims: vec![0.0; n],
-            work,
-            reference: vec![0.0; bg.scratch_len()],
-        });
+        let scratch = RefCell::new(Scratch::new(n, work, bg.scratch_len()));
         let real = (0..n).filter(|&c| channels[c].real_only()).collect();
         // A rank-one update costs ~n^2 per translate, the two products 2 n^3
         // (at several times the speed per operation): with fewer null
@@ -214,7 +196,7 @@ impl<'a> FlowRhs<'a> {
             q_track: None,
             outer,
             live: Vec::new(),
-            live_ope: Vec::new(),
+            live_ope: GroupedOpe::default(),
             real,
             rank_one,
             scratch,
@@ -228,17 +210,28 @@ impl<'a> FlowRhs<'a> {
         self.scratch.get_mut().work.route = route;
     }
 
+    /// Fourier layout: the cell's K^-1, so that N(q) is formed from M(q)
+    /// ([`Work::set_cell_kinv`]); ignored on the dense layout.
+    pub fn set_cell_kinv(&mut self, kinv: &nalgebra::DMatrix<f64>) {
+        if matches!(self.bg, Background::Fourier { .. }) {
+            self.scratch.get_mut().work.set_cell_kinv(kinv);
+        }
+    }
+
     /// List the active channels and the OPE entries among them; call after
     /// changing `active`, before integrating.
     pub fn begin_segment(&mut self) {
         let active = &self.active;
         self.live = (0..self.channels.len()).filter(|&c| active[c]).collect();
-        self.live_ope = self
+        let entries: Vec<LiveOpe> = self
             .ope
             .iter()
             .filter(|e| active[e.target] && active[e.a] && active[e.b])
             .map(LiveOpe::of)
             .collect();
+        self.live_ope = GroupedOpe::new(&entries);
+        let products = &mut self.scratch.get_mut().products;
+        products.resize(self.live_ope.scratch_len(), 0.0);
     }
 
     /// Length of the state vector.
@@ -334,7 +327,8 @@ impl FlowRhs<'_> {
             dw[2 * c] += rate * w[2 * c];
             dw[2 * c + 1] += rate * w[2 * c + 1];
         }
-        self.ope_terms(w, dw, &self.live_ope);
+        self.live_ope.terms(w, dw, &mut sc.products);
+        self.zero_real(dw);
     }
 
     /// The right-hand side by the per-channel route (one rank-one update per
@@ -367,20 +361,12 @@ impl FlowRhs<'_> {
             .filter(|e| self.active[e.target] && self.active[e.a] && self.active[e.b])
             .map(LiveOpe::of)
             .collect();
-        self.ope_terms(w, dw, &ope);
+        reference_terms(w, dw, &ope);
+        self.zero_real(dw);
     }
 
-    /// The OPE terms of `entries` (all among active channels), then the
-    /// real-only channels' imaginary parts set to zero.
-    fn ope_terms(&self, w: &[f64], dw: &mut [f64], entries: &[LiveOpe]) {
-        for e in entries {
-            let (a, b, t) = (e.a as usize, e.b as usize, e.target as usize);
-            let (ar, ai) = (w[2 * a], w[2 * a + 1]);
-            let (br, bi) = (w[2 * b], e.b_sign * w[2 * b + 1]);
-            let (pr, pi) = (ar * br - ai * bi, e.p_sign * (ar * bi + ai * br));
-            dw[2 * t] -= e.half_weight * pr;
-            dw[2 * t + 1] -= e.half_weight * pi;
-        }
+    /// The real-only channels' imaginary parts set to zero.
+    fn zero_real(&self, dw: &mut [f64]) {
         for &c in &self.real {
             dw[2 * c + 1] = 0.0;
         }
