@@ -441,7 +441,10 @@ fn bare_bandwidth(sys: &System) -> (usize, usize) {
 /// up to rounding noise) and at two points where D decays geometrically
 /// along the strip. A consistency check between two code paths (no physics
 /// values): the right-hand side to 1e-12 of its part's largest entry; whole
-/// flows to 1e-12 in ell*, the stages and every dimension, and the final
+/// flows to 3e-12 in ell*, the stages and every dimension (largest measured
+/// 1.15e-12, a dimension at lambda = 0.6, g = 0.7, once D was stored as its
+/// upper triangle and merged with main's regrouped sums; each such change
+/// of rounding moves it), and the final
 /// couplings (exponentials of the flow, which magnify rounding: reordering
 /// the sums alone, with nothing dropped, moves a coupling of the 200-wire
 /// strip by 2.6e-12, benches/README.md) to 1e-10.
@@ -473,7 +476,7 @@ fn banded_product_equals_the_dense_one_on_a_40_wire_strip() {
         };
         let (b, d) = (run(DenseRoute::Banded), run(DenseRoute::Full));
         assert!(d.ell_star.is_some(), "{what}: a coupling grows strong");
-        same_result_to(&b, &d, &what, 1e-12, 1e-10);
+        same_result_to(&b, &d, &what, 3e-12, 1e-10);
     }
 }
 
