@@ -275,6 +275,9 @@ pub struct Flow<'s> {
     layout: Layout,
     /// Phases already named, by sorted plan indices of the pinned set.
     phases: std::sync::Mutex<std::collections::HashMap<Vec<usize>, crate::core::phase::Phase>>,
+    /// The plan's channels on an infinite array's N-point rules, by N:
+    /// independent of the parameter point, so built once per rule.
+    rules: std::sync::Mutex<std::collections::HashMap<usize, std::sync::Arc<Vec<Channel>>>>,
 }
 
 /// How D is carried.
@@ -297,7 +300,7 @@ enum Layout {
 struct Start {
     bg: Background,
     d0: Vec<f64>,
-    channels: Option<Vec<Channel>>,
+    channels: Option<std::sync::Arc<Vec<Channel>>>,
     quadrature: Option<crate::core::qspace::Quadrature>,
     rule: Option<crate::core::qspace::QFixedPoint>,
     /// Estimate the quadrature error along the flow ([`qtrack`]).
@@ -329,6 +332,7 @@ impl<'s> Flow<'s> {
             full_check: false,
             layout,
             phases: Default::default(),
+            rules: Default::default(),
         }
     }
 
@@ -415,12 +419,14 @@ impl<'s> Flow<'s> {
             .as_ref()
             .ok_or_else(|| Error::Numerical("an infinite array without q-space data".into()))?
             .kinv;
-        let channels = self
-            .plan
-            .channels
-            .iter()
-            .map(|c| c.on_rule(lat, kinv, fp.points))
-            .collect();
+        let built = || {
+            let on_rule = self.plan.channels.iter();
+            std::sync::Arc::new(on_rule.map(|c| c.on_rule(lat, kinv, fp.points)).collect())
+        };
+        let channels = match self.rules.lock() {
+            Ok(mut rules) => rules.entry(fp.points).or_insert_with(built).clone(),
+            Err(_) => built(),
+        };
         Ok(Start {
             bg: Background::Fourier {
                 wires: fp.points,
