@@ -36,19 +36,26 @@ inf_flow=$(ms "target: flow filling 1/3, infinite, second-flow check")
 # Scan throughput, one stage (the SciPy script flows to the first strong
 # coupling only), 1 and 2 threads; the same grid in SciPy. The per-core
 # ratio uses CPU time (user + system: robust to other load on the machine),
-# the thread speed-up wall time.
-scan() { # prints "wall cpu"
+# the thread speed-up wall time; each the best of three runs (the spread
+# between single runs on the 2-core machine is larger than the changes).
+scan() { # OUT_DIR then the command; prints "wall cpu", each the best of 3 runs
     python3 -c '
-import os, subprocess, sys, time
-t = time.perf_counter()
-subprocess.run(sys.argv[1:], check=True, stdout=subprocess.DEVNULL)
-wall = time.perf_counter() - t
-r = os.times()
-print(wall, r.children_user + r.children_system)' "$@"
+import os, shutil, subprocess, sys, time
+out, cmd = sys.argv[1], sys.argv[2:]
+walls, cpus = [], []
+for _ in range(3):
+    shutil.rmtree(out, ignore_errors=True)
+    r0 = os.times()
+    t = time.perf_counter()
+    subprocess.run(cmd + ["--out", out], check=True, stdout=subprocess.DEVNULL)
+    walls.append(time.perf_counter() - t)
+    r = os.times()
+    cpus.append(r.children_user + r.children_system - r0.children_user - r0.children_system)
+print(min(walls), min(cpus))' "$@"
 }
 grid=(--x "lambda=0.6:0.9:$n" --y "g=0.5:0.9:$n" --stages 1 --quiet)
-read -r t1 c1 < <(scan $bin scan benches/models/array32.toml "${grid[@]}" --threads 1 --out "$tmp/t1")
-read -r t2 c2 < <(scan $bin scan benches/models/array32.toml "${grid[@]}" --threads 2 --out "$tmp/t2")
+read -r t1 c1 < <(scan "$tmp/t1" $bin scan benches/models/array32.toml "${grid[@]}" --threads 1)
+read -r t2 c2 < <(scan "$tmp/t2" $bin scan benches/models/array32.toml "${grid[@]}" --threads 2)
 cmp -s "$tmp/t1/points.csv" "$tmp/t2/points.csv" || { echo "outputs differ between thread counts" >&2; exit 1; }
 python3 benches/scipy_scan.py --n "$n" --compare "$tmp/t1/points.csv" > "$tmp/scipy.txt"
 scipy=$(python3 -c "
