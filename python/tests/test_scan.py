@@ -119,7 +119,7 @@ def test_the_gil_is_released_during_a_scan():
     def work():
         started.set()
         t0 = time.perf_counter()
-        result["s"] = m.scan(x=("lambda", 0.3, 0.95, 20), y=("g", 0.0, 0.95, 20), threads=1)
+        result["s"] = m.scan(x=("lambda", 0.3, 0.95, 40), y=("g", 0.0, 0.95, 40), threads=1)
         result["seconds"] = time.perf_counter() - t0
 
     t = threading.Thread(target=work)
@@ -130,8 +130,9 @@ def test_the_gil_is_released_during_a_scan():
         ticks += 1
         time.sleep(0.001)
     t.join()
-    assert result["s"].summary["points"] == 400
-    # 400 flows take well over 0.1 s; the main thread ticks about once a
-    # millisecond meanwhile (at least 10 even on a loaded machine).
+    assert result["s"].summary["points"] == 1600
+    # 1600 flows take well over 0.1 s (about 0.4 s; 400 took 0.1 s once the
+    # flows got faster); the main thread ticks about once a millisecond
+    # meanwhile (at least 10 even on a loaded machine).
     assert result["seconds"] > 0.1, result
     assert ticks >= 10, (ticks, result["seconds"])
