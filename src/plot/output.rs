@@ -275,18 +275,24 @@ impl Drop for Staged {
     }
 }
 
-/// Encodes the RGB buffer as PNG via a temporary file.
+/// Encodes the RGB buffer as PNG via a temporary file (fixed settings:
+/// the same pixels give the same bytes; fast deflate, as the figure's flat
+/// colours compress well anyway).
 fn save_png(path: &Path, pixels: &[u8]) -> Result<(), PlotError> {
     let staged = Staged::new(path, "png");
     let fail = |e: String| PlotError::new(path, e);
-    let size = style::canvas();
-    {
-        let mut backend = BitMapBackend::new(&staged.temp, size);
-        backend
-            .blit_bitmap((0, 0), size, pixels)
-            .map_err(|e| fail(e.to_string()))?;
-        backend.present().map_err(|e| fail(e.to_string()))?;
-    }
+    let (width, height) = style::canvas();
+    let file = fs::File::create(&staged.temp).map_err(|e| fail(e.to_string()))?;
+    let mut encoder = png::Encoder::new(std::io::BufWriter::new(file), width, height);
+    encoder.set_color(png::ColorType::Rgb);
+    encoder.set_depth(png::BitDepth::Eight);
+    encoder.set_compression(png::Compression::Fast);
+    encoder.set_adaptive_filter(png::AdaptiveFilterType::Adaptive);
+    let mut writer = encoder.write_header().map_err(|e| fail(e.to_string()))?;
+    writer
+        .write_image_data(pixels)
+        .map_err(|e| fail(e.to_string()))?;
+    writer.finish().map_err(|e| fail(e.to_string()))?;
     staged.commit()
 }
 
