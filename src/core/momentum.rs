@@ -121,12 +121,27 @@ pub mod per_translate {
         k: &[f64],
         period: Option<f64>,
     ) -> f64 {
-        let mut sum: f64 = m.iter().zip(k).map(|(m, p)| exact::to_f64(m) * p).sum();
+        let m: Vec<f64> = m.iter().map(exact::to_f64).collect();
+        line_mismatch_f64(lat, &m, anchor, k, period)
+    }
+
+    /// [`line_mismatch`] from the particle content already rounded to
+    /// doubles (entry by entry, as [`line_mismatch`] rounds it): the same
+    /// number, for callers that convert m once and evaluate it at many
+    /// parameter points (a scan's channels).
+    pub fn line_mismatch_f64(
+        lat: &Lattice,
+        m: &[f64],
+        anchor: usize,
+        k: &[f64],
+        period: Option<f64>,
+    ) -> f64 {
+        let mut sum: f64 = m.iter().zip(k).map(|(m, p)| m * p).sum();
         if lat.boundary == Some(crate::model::Boundary::Periodic) && lat.wires > 1 {
             for w in 0..anchor.min(lat.wires) {
                 for c in 0..lat.cell {
                     let b = k[lat.cell + c] - k[c];
-                    sum += exact::to_f64(&m[w * lat.cell + c]) * (lat.wires as f64) * b;
+                    sum += m[w * lat.cell + c] * (lat.wires as f64) * b;
                 }
             }
         }

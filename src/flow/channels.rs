@@ -90,6 +90,14 @@ pub struct Channel {
     pub charge: Rational,
     /// m = K^-1 l of the representative.
     pub particles: Vec<Rational>,
+    /// `particles` rounded to doubles (converted once: the momentum
+    /// mismatch is evaluated at every parameter point).
+    pub particles_f64: Vec<f64>,
+    /// `spin` and `charge` as printed ([`rational::fmt_rational`]), formed
+    /// once for every flow's result.
+    pub spin_text: String,
+    /// See `spin_text`.
+    pub charge_text: String,
     /// Sparse l of every translate: (field, value).
     pub l_sparse: Vec<Vec<(usize, f64)>>,
     /// Sparse K^-1 l of every translate.
@@ -132,9 +140,9 @@ impl Channel {
     /// of every field.
     pub fn mismatch(&self, lat: &Lattice, k: &[f64], period: Option<f64>) -> f64 {
         let rep = self.family.rep();
-        crate::core::momentum::per_translate::line_mismatch(
+        crate::core::momentum::per_translate::line_mismatch_f64(
             lat,
-            &self.particles,
+            &self.particles_f64,
             rep.anchor,
             k,
             period,
@@ -200,6 +208,9 @@ pub struct Plan {
     /// Listed terms whose momentum may depend on the translate (flux
     /// arrays, charged terms); see the module docs.
     pub per_translate: Vec<usize>,
+    /// N_c of each term in `per_translate` (the same order;
+    /// [`per_translate::net_particles`]), formed once for every point.
+    pub per_translate_net: Vec<Vec<Rational>>,
     /// Every listed family is split into single translates (a finite array
     /// with a term in `per_translate`): D must be carried dense.
     pub split: bool,
@@ -232,11 +243,17 @@ impl Plan {
     ) -> Plan {
         let per_translate = translate_dependent(sys);
         let split = !per_translate.is_empty() && !sys.is_infinite() && sys.lattice.wires > 1;
+        let per_translate_net = (per_translate.iter())
+            .map(|&i| {
+                per_translate::net_particles(&sys.lattice, &sys.invariants.terms[i].particles)
+            })
+            .collect();
         let mut plan = Plan {
             channels: Vec::new(),
             ope: Vec::new(),
             listed: 0,
             per_translate,
+            per_translate_net,
             split,
             range: None,
             range_note: None,
@@ -637,8 +654,11 @@ fn make_channel(
         name,
         origin,
         family,
+        spin_text: rational::fmt_rational(&spin),
+        charge_text: rational::fmt_rational(&charge),
         spin,
         charge,
+        particles_f64: particles.iter().map(rational::to_f64).collect(),
         particles,
         l_sparse,
         g_sparse,

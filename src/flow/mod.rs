@@ -64,7 +64,6 @@ use serde::Serialize;
 use crate::core::system::{EvalPath, System};
 use crate::error::{Error, InputError};
 use crate::math::dop853::{Control, Dop853};
-use crate::math::rational::fmt_rational;
 use background::Background;
 use channels::{Channel, Origin, Plan};
 pub use check::{CheckMethod, QuadratureCheck, RuleChoice, StoppedBy};
@@ -278,7 +277,21 @@ pub struct Flow<'s> {
     /// The plan's channels on an infinite array's N-point rules, by N:
     /// independent of the parameter point, so built once per rule.
     rules: std::sync::Mutex<std::collections::HashMap<usize, std::sync::Arc<Vec<Channel>>>>,
+    /// The segments' grouped OPE tables, shared by the flows (see
+    /// [`rhs::OpeTables`]).
+    ope_tables: rhs::OpeTables,
+    /// The channels' outer products, shared by the flows.
+    outers: rhs::OuterCache,
+    /// What pinning does to a channel, shared by the flows (see
+    /// [`stages::Fates`]).
+    fates: stages::Fates,
+    /// Whether the representative of plan channel a commutes with every
+    /// translate of plan channel b, by (a, b): exact, decided once.
+    commutes: std::sync::Mutex<std::collections::HashMap<(usize, usize), bool>>,
 }
+
+/// Pairs kept at most in [`Flow`]'s commutation cache.
+const MAX_COMMUTES: usize = 1 << 16;
 
 /// How D is carried.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -333,6 +346,10 @@ impl<'s> Flow<'s> {
             layout,
             phases: Default::default(),
             rules: Default::default(),
+            ope_tables: Default::default(),
+            outers: Default::default(),
+            fates: Default::default(),
+            commutes: Default::default(),
         }
     }
 
@@ -476,6 +493,7 @@ impl<'s> Flow<'s> {
             included,
             bare,
             y0,
+            dims0,
             momenta,
             ell_k,
         } = self.prepare(point, all, &start, record)?;
@@ -490,10 +508,9 @@ impl<'s> Flow<'s> {
             (integrated, kt_decision) =
                 kt::decide(&mut rhs, c, y_start.as_slice(), integrated, &self.opts);
         }
-        let staged = self.stages(&mut rhs, &integrated, &ell_k);
-        let mut result = self.summarise(
-            &rhs, &included, &bare, &y_start, &momenta, &ell_k, integrated,
-        );
+        let staged = self.stages(&mut rhs, &integrated, &ell_k, &included);
+        let mut result =
+            self.summarise(&rhs, &included, &bare, &dims0, &momenta, &ell_k, integrated);
         result.kt = kt_decision;
         self.attach_stages(&mut result, staged, &included);
         result.quadrature = start.quadrature;
@@ -505,7 +522,7 @@ impl<'s> Flow<'s> {
     /// The included channels, the right-hand side and the bare state of a
     /// flow from `start` (channels `all`: the plan's, or on the rule).
     fn prepare<'a>(
-        &self,
+        &'a self,
         point: &[f64],
         all: &'a [Channel],
         start: &Start,
@@ -513,15 +530,23 @@ impl<'s> Flow<'s> {
     ) -> Result<Prepared<'a>, Error> {
         let bare = self.bare_couplings(point)?;
         let extra_listed = self.sys.extra_dimensions(point)?;
-        let included = self.included(&start.bg, all, &start.d0);
+        let (included, bosonic) = self.included(&start.bg, all, &start.d0);
         let channels: Vec<&Channel> = included.iter().map(|&c| &all[c]).collect();
         let extra: Vec<f64> = included
             .iter()
             .map(|&c| extra_of(&self.plan.channels[c], &extra_listed))
             .collect();
+        // The bare total dimensions, as `FlowRhs::dimension` gives them at
+        // the bare state (whose D is d0): the same sum of the same numbers.
+        let dims0: Vec<f64> = bosonic.iter().zip(&extra).map(|(b, x)| b + x).collect();
         let ope = remap_ope(&self.plan, &included);
         let momenta = self.momenta(point, &included);
-        let mut rhs = FlowRhs::new(start.bg.clone(), channels, extra, ope);
+        let shared = Some(rhs::Shared {
+            tables: &self.ope_tables,
+            outers: &self.outers,
+            plan: included.iter().map(|&c| c as u32).collect(),
+        });
+        let mut rhs = FlowRhs::with_tables(start.bg.clone(), channels, extra, ope, shared);
         rhs.y_strong = self.opts.y_strong;
         rhs.floor = self.opts.floor;
         rhs.record = record;
@@ -530,26 +555,29 @@ impl<'s> Flow<'s> {
         if let Some(q) = &self.sys.q {
             rhs.set_cell_kinv(&q.kinv);
         }
-        let y0 = self.bare_state(&mut rhs, &included, &bare, &start.d0);
+        let y0 = self.bare_state(&mut rhs, &included, &bare, &start.d0, &dims0);
         let ell_k = momenta.iter().map(|k| k.and_then(cutoff_scale)).collect();
         Ok(Prepared {
             rhs,
             included,
             bare,
             y0,
+            dims0,
             momenta,
             ell_k,
         })
     }
 
     /// The bare state: amplitudes of the listed channels, then D; channels
-    /// too irrelevant to matter are frozen at zero.
+    /// too irrelevant to matter (bare total dimension `dims0`) are frozen at
+    /// zero.
     fn bare_state(
         &self,
         rhs: &mut FlowRhs,
         included: &[usize],
         bare: &[(f64, f64)],
         d0: &[f64],
+        dims0: &[f64],
     ) -> DVector<f64> {
         let mut y0 = DVector::zeros(rhs.state_len());
         for (i, &c) in included.iter().enumerate() {
@@ -563,7 +591,7 @@ impl<'s> Flow<'s> {
         for i in 0..included.len() {
             // So irrelevant that the coupling vanishes within ell ~ 1/DECAYED_AT_ONCE:
             // treating it as zero keeps the flow from becoming needlessly stiff.
-            if rhs.dimension(y0.as_slice(), i) > DECAYED_AT_ONCE {
+            if dims0[i] > DECAYED_AT_ONCE {
                 rhs.frozen[i] = true;
                 y0[2 * i] = 0.0;
                 y0[2 * i + 1] = 0.0;
@@ -656,12 +684,19 @@ impl<'s> Flow<'s> {
     /// dimension equal to the bound in exact arithmetic (e.g. 2 l of a term
     /// with Delta = 1 against the bound 4) must not be decided by rounding,
     /// which differs between the dense and the q-space paths: values within
-    /// [`CLOSURE_SLACK`] of the bound count as below it.
-    fn included(&self, bg: &Background, all: &[Channel], d0: &[f64]) -> Vec<usize> {
+    /// [`CLOSURE_SLACK`] of the bound count as below it. With each
+    /// included channel's bosonic dimension at `d0`.
+    fn included(&self, bg: &Background, all: &[Channel], d0: &[f64]) -> (Vec<usize>, Vec<f64>) {
         let bound = self.opts.closure_bound + CLOSURE_SLACK;
-        (0..all.len())
-            .filter(|&c| c < self.plan.listed || bg.dimension(d0, &all[c]) < bound)
-            .collect()
+        let (mut included, mut dims) = (Vec::new(), Vec::new());
+        for (c, ch) in all.iter().enumerate() {
+            let delta = bg.dimension(d0, ch);
+            if c < self.plan.listed || delta < bound {
+                included.push(c);
+                dims.push(delta);
+            }
+        }
+        (included, dims)
     }
 
     fn momenta(&self, point: &[f64], included: &[usize]) -> Vec<Option<f64>> {
@@ -687,7 +722,7 @@ impl<'s> Flow<'s> {
         rhs: &FlowRhs,
         included: &[usize],
         bare: &[(f64, f64)],
-        y_start: &DVector<f64>,
+        dims0: &[f64],
         momenta: &[Option<f64>],
         ell_k: &[Option<f64>],
         integrated: Integrated,
@@ -696,7 +731,7 @@ impl<'s> Flow<'s> {
         let terms = (0..included.len())
             .map(|i| {
                 let cut = (momenta[i], ell_k[i]);
-                self.channel_result(rhs, included, bare, y_start, y_end, i, cut)
+                self.channel_result(rhs, included, bare, dims0, y_end, i, cut)
             })
             .collect();
         let drift = self.end_drift(rhs, y_end);
@@ -758,7 +793,7 @@ impl<'s> Flow<'s> {
         rhs: &FlowRhs,
         included: &[usize],
         bare: &[(f64, f64)],
-        y_start: &DVector<f64>,
+        dims0: &[f64],
         y_end: &[f64],
         i: usize,
         (momentum, ell_k): (Option<f64>, Option<f64>),
@@ -779,12 +814,12 @@ impl<'s> Flow<'s> {
             parents: parents_of(&self.plan, ch),
             coupling0: y0,
             phase0: chi0,
-            dimension0: rhs.dimension(y_start.as_slice(), i),
+            dimension0: dims0[i],
             coupling: rhs.coupling(y_end, i),
             phase: y_end[2 * i + 1].atan2(y_end[2 * i]),
             dimension: rhs.dimension(y_end, i),
-            spin: fmt_rational(&ch.spin),
-            charge: fmt_rational(&ch.charge),
+            spin: ch.spin_text.clone(),
+            charge: ch.charge_text.clone(),
             momentum,
             ell_k,
         }
@@ -800,11 +835,18 @@ impl<'s> Flow<'s> {
                 continue;
             }
             let other = &self.plan.channels[c];
-            let commutes = other
-                .family
-                .translates
-                .iter()
-                .all(|t| pairing.scaled_parts(&win.family.rep().parts, &t.parts) == 0);
+            let key = (included[w], c);
+            let known = self.commutes.lock().ok().and_then(|m| m.get(&key).copied());
+            let commutes = known.unwrap_or_else(|| {
+                let commutes = (other.family.translates.iter())
+                    .all(|t| pairing.scaled_parts(&win.family.rep().parts, &t.parts) == 0);
+                if let Ok(mut m) = self.commutes.lock() {
+                    if m.len() < MAX_COMMUTES {
+                        m.insert(key, commutes);
+                    }
+                }
+                commutes
+            });
             let list = if commutes {
                 &mut result.commuting_with_winner
             } else {
@@ -961,6 +1003,8 @@ struct Prepared<'a> {
     included: Vec<usize>,
     bare: Vec<(f64, f64)>,
     y0: DVector<f64>,
+    /// Bare total dimension of each included channel.
+    dims0: Vec<f64>,
     momenta: Vec<Option<f64>>,
     ell_k: Vec<Option<f64>>,
 }

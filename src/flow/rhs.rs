@@ -26,6 +26,8 @@
 //! reference they are tested against.
 
 use std::cell::RefCell;
+use std::collections::HashMap;
+use std::sync::Arc;
 
 use crate::math::dop853::Derivative;
 
@@ -109,7 +111,10 @@ pub struct FlowRhs<'a> {
     live: Vec<usize>,
     /// OPE entries among active channels of the current segment, grouped
     /// for the evaluation.
-    live_ope: GroupedOpe,
+    live_ope: Arc<GroupedOpe>,
+    /// What earlier flows of the same plan formed (see [`Shared`]); None:
+    /// formed for this flow alone.
+    shared: Option<Shared<'a>>,
     /// Channels whose amplitude is kept real.
     real: Vec<usize>,
     /// Dense D with few translates feeding back: the rank-one updates cost
@@ -145,6 +150,61 @@ impl Scratch {
     }
 }
 
+/// The grouped OPE tables of a plan's segments, shared by its flows (a
+/// scan meets the same sets of flowing channels at point after point):
+/// keyed by the plan index of every flowing channel times two, plus one
+/// where it is active. A table is a function of its key alone (the plan's
+/// OPE entries among the included channels, in the plan's order, filtered
+/// by `active`), so a flow's numbers do not depend on which flow built it.
+pub(super) type OpeTables = std::sync::Mutex<HashMap<Vec<u32>, Arc<GroupedOpe>>>;
+
+/// The channels' outer products ([`Background::outer`]) of a plan's
+/// flows, keyed by the layout ([`layout_key`]) and the plan index: exact
+/// functions of the key (they do not depend on the parameter point).
+pub(super) type OuterCache = std::sync::Mutex<HashMap<(usize, usize, usize), Outer>>;
+
+/// Entries kept at most in one [`OpeTables`] or [`OuterCache`] (beyond:
+/// formed per flow).
+const MAX_TABLES: usize = 4096;
+
+/// The per-plan data a flow shares with the other flows of its plan (a
+/// scan's points): its OPE tables, its outer products, and the plan index
+/// of each flowing channel.
+pub(super) struct Shared<'a> {
+    /// Grouped OPE tables.
+    pub tables: &'a OpeTables,
+    /// Outer products.
+    pub outers: &'a OuterCache,
+    /// Plan index of each of the flow's channels.
+    pub plan: Vec<u32>,
+}
+
+/// The layout part of an [`OuterCache`] key.
+fn layout_key(bg: &Background) -> (usize, usize) {
+    match *bg {
+        Background::Dense { n } => (0, n),
+        Background::Fourier { wires, cell } => (wires, cell),
+    }
+}
+
+impl Shared<'_> {
+    /// The outer products of channel `i` (plan index `plan[i]`) on `bg`.
+    fn outer(&self, bg: &Background, i: usize, ch: &Channel) -> Outer {
+        let (a, b) = layout_key(bg);
+        let key = (a, b, self.plan[i] as usize);
+        if let Some(o) = self.outers.lock().ok().and_then(|m| m.get(&key).cloned()) {
+            return o;
+        }
+        let o = bg.outer(ch);
+        if let Ok(mut m) = self.outers.lock() {
+            if m.len() < MAX_TABLES {
+                m.insert(key, o.clone());
+            }
+        }
+        o
+    }
+}
+
 impl<'a> FlowRhs<'a> {
     /// Build the system; scratch is sized once here.
     pub fn new(
@@ -153,14 +213,30 @@ impl<'a> FlowRhs<'a> {
         extra: Vec<f64>,
         ope: Vec<OpeEntry>,
     ) -> Self {
+        FlowRhs::with_tables(bg, channels, extra, ope, None)
+    }
+
+    /// [`FlowRhs::new`] taking the segments' grouped OPE tables and the
+    /// channels' outer products from `shared` (`ope` must be the plan's
+    /// entries among `channels`, as `Flow::prepare` forms them).
+    pub(super) fn with_tables(
+        bg: Background,
+        channels: Vec<&'a Channel>,
+        extra: Vec<f64>,
+        ope: Vec<OpeEntry>,
+        shared: Option<Shared<'a>>,
+    ) -> Self {
         let n = channels.len();
         let null: Vec<bool> = channels.iter().map(|c| c.null()).collect();
         // On the Fourier layout every channel's L L^H gives its dimension
         // (see `Background::evaluate`); elsewhere only null channels need one.
         let fourier = matches!(bg, Background::Fourier { .. });
-        let mut outer: Vec<_> = channels
-            .iter()
-            .map(|c| (c.null() || fourier).then(|| bg.outer(c)))
+        let outer_of = |i: usize, c: &Channel| match &shared {
+            Some(s) => s.outer(&bg, i, c),
+            None => bg.outer(c),
+        };
+        let mut outer: Vec<_> = (channels.iter().enumerate())
+            .map(|(i, c)| (c.null() || fourier).then(|| outer_of(i, c)))
             .collect();
         let mut work = bg.work();
         bg.merge_outer(&mut outer, &mut work);
@@ -196,7 +272,8 @@ impl<'a> FlowRhs<'a> {
             q_track: None,
             outer,
             live: Vec::new(),
-            live_ope: GroupedOpe::default(),
+            live_ope: Arc::default(),
+            shared,
             real,
             rank_one,
             scratch,
@@ -222,14 +299,27 @@ impl<'a> FlowRhs<'a> {
     /// changing `active`, before integrating.
     pub fn begin_segment(&mut self) {
         let active = &self.active;
-        self.live = (0..self.channels.len()).filter(|&c| active[c]).collect();
-        let entries: Vec<LiveOpe> = self
-            .ope
-            .iter()
-            .filter(|e| active[e.target] && active[e.a] && active[e.b])
-            .map(LiveOpe::of)
-            .collect();
-        self.live_ope = GroupedOpe::new(&entries);
+        self.live.clear();
+        self.live
+            .extend((0..self.channels.len()).filter(|&c| active[c]));
+        let group = || Arc::new(group_live(&self.ope, active));
+        self.live_ope = match &self.shared {
+            None => group(),
+            Some(Shared { tables, plan, .. }) => {
+                let key = plan.iter().zip(active).map(|(&c, &a)| c << 1 | a as u32);
+                let key: Vec<u32> = key.collect();
+                let found = tables.lock().ok().and_then(|t| t.get(&key).cloned());
+                found.unwrap_or_else(|| {
+                    let table = group();
+                    if let Ok(mut t) = tables.lock() {
+                        if t.len() < MAX_TABLES {
+                            t.insert(key, table.clone());
+                        }
+                    }
+                    table
+                })
+            }
+        };
         let products = &mut self.scratch.get_mut().products;
         products.resize(self.live_ope.scratch_len(), 0.0);
     }
@@ -286,6 +376,16 @@ impl<'a> FlowRhs<'a> {
             dimensions,
         });
     }
+}
+
+/// The OPE entries among the `active` channels, grouped ([`GroupedOpe`]).
+fn group_live(ope: &[OpeEntry], active: &[bool]) -> GroupedOpe {
+    let entries: Vec<LiveOpe> = ope
+        .iter()
+        .filter(|e| active[e.target] && active[e.a] && active[e.b])
+        .map(LiveOpe::of)
+        .collect();
+    GroupedOpe::new(&entries)
 }
 
 impl FlowRhs<'_> {

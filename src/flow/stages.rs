@@ -29,6 +29,8 @@
 //! at ell_max, when a spinful or non-local channel wins a stage (no pinning:
 //! the flow stops as today), or after `stages` stages.
 
+use std::collections::HashMap;
+
 use nalgebra::{DMatrix, DVector};
 use num_complex::Complex64;
 use serde::Serialize;
@@ -206,12 +208,18 @@ impl Flow<'_> {
         rhs: &mut FlowRhs,
         first: &Integrated,
         ell_k: &[Option<f64>],
+        included: &[usize],
     ) -> Staged {
         let k = match (&rhs.bg, &self.sys.q) {
             (Background::Fourier { .. }, Some(q)) => q.k.clone(),
             _ => self.sys.k.clone(),
         };
-        let lattice = (&self.sys.lattice, &self.sys.invariants.pairing);
+        let lattice = Exact {
+            lat: &self.sys.lattice,
+            pairing: &self.sys.invariants.pairing,
+            included,
+            fates: &self.fates,
+        };
         run(rhs, first, ell_k, &self.opts, &k, lattice)
     }
 
@@ -353,9 +361,76 @@ fn hide_left(rhs: &mut FlowRhs, left_at: &[Option<f64>]) {
     }
 }
 
-/// The exact data the pinning step needs: the lattice of all fields and
-/// the commutation pairing.
-type Exact<'a> = (&'a Lattice, &'a Pairing);
+/// The exact data the pinning step needs: the lattice of all fields, the
+/// commutation pairing, the plan index of each flowing channel and the
+/// fates already decided.
+#[derive(Clone, Copy)]
+pub(super) struct Exact<'a> {
+    lat: &'a Lattice,
+    pairing: &'a Pairing,
+    included: &'a [usize],
+    fates: &'a Fates,
+}
+
+/// What pinning a set of families does to one more flowing channel.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(super) enum Fate {
+    /// It commutes with the set and is not in its rational span: it flows on.
+    Flows,
+    /// It fails to commute with the family pinned last: it leaves.
+    Disordered,
+    /// It lies in the rational span of the pinned vectors: it leaves.
+    Locked,
+}
+
+/// Fates decided by earlier flows of the same plan (a scan pins the same
+/// sets again and again), keyed by the plan indices of the pinned channels
+/// in the order they pinned and the plan index of the channel. Exact and
+/// independent of the parameter point, so a flow's result does not depend
+/// on which flow decided a fate first.
+pub(super) type Fates = std::sync::Mutex<HashMap<(Vec<usize>, usize), Fate>>;
+
+/// Fates kept at most in one [`Fates`] (beyond: decided per flow).
+const MAX_FATES: usize = 1 << 16;
+
+impl Exact<'_> {
+    /// The fate of flowing channel `c` when `pinned` (flowing indices, in
+    /// order; the last is the family pinned now) are pinned; `lattice`
+    /// holds their pinned lattice once built.
+    fn fate(
+        &self,
+        rhs: &FlowRhs,
+        pinned: &[usize],
+        c: usize,
+        lattice: &mut Option<PinnedLattice>,
+    ) -> Fate {
+        let key: Vec<usize> = pinned.iter().map(|&p| self.included[p]).collect();
+        let key = (key, self.included[c]);
+        if let Some(f) = self.fates.lock().ok().and_then(|m| m.get(&key).copied()) {
+            return f;
+        }
+        let win = &rhs.channels[pinned[pinned.len() - 1]].family;
+        let ch = rhs.channels[c];
+        let fate = if !families_commute(self.lat, self.pairing, win, &ch.family) {
+            Fate::Disordered
+        } else {
+            let lattice = lattice.get_or_insert_with(|| {
+                let fams: Vec<&Family> = pinned.iter().map(|&p| &rhs.channels[p].family).collect();
+                PinnedLattice::new(self.lat.n, &fams)
+            });
+            match lattice.contains_rationally(&ch.family.rep().l) {
+                true => Fate::Locked,
+                false => Fate::Flows,
+            }
+        };
+        if let Ok(mut m) = self.fates.lock() {
+            if m.len() < MAX_FATES {
+                m.insert(key, fate);
+            }
+        }
+        fate
+    }
+}
 
 fn end_of(o: Outcome) -> StagesEnd {
     match o {
@@ -376,22 +451,20 @@ fn pin(
     w: usize,
     st: &mut Staged,
     ell: f64,
-    (lat, pairing): Exact,
+    exact: Exact,
 ) -> usize {
     st.pinned.push(w);
-    let fams: Vec<&Family> = st.pinned.iter().map(|&c| &rhs.channels[c].family).collect();
-    let lattice = PinnedLattice::new(lat.n, &fams);
-    let win = &rhs.channels[w].family;
+    let mut lattice = None;
     let mut disordered = Vec::new();
     let mut leave = vec![w];
     for c in (0..rhs.channels.len()).filter(|&c| c != w && !rhs.frozen[c]) {
-        let ch = rhs.channels[c];
-        let commutes = families_commute(lat, pairing, win, &ch.family);
-        if !commutes {
-            disordered.push(ch.name.clone());
-            leave.push(c);
-        } else if lattice.contains_rationally(&ch.family.rep().l) {
-            leave.push(c);
+        match exact.fate(rhs, &st.pinned, c, &mut lattice) {
+            Fate::Disordered => {
+                disordered.push(rhs.channels[c].name.clone());
+                leave.push(c);
+            }
+            Fate::Locked => leave.push(c),
+            Fate::Flows => {}
         }
     }
     for c in leave {

@@ -24,9 +24,13 @@ impl Flow<'_> {
         let sys = self.sys;
         let lat = &sys.lattice;
         let g = sys.model.momentum_period_at(point);
-        for &i in &self.plan.per_translate {
-            let net = per_translate::net_particles(lat, &sys.invariants.terms[i].particles);
-            let Some(dk) = per_translate::shift(&sys.model, &net, point) else {
+        let nets = self
+            .plan
+            .per_translate
+            .iter()
+            .zip(&self.plan.per_translate_net);
+        for (&i, net) in nets {
+            let Some(dk) = per_translate::shift(&sys.model, net, point) else {
                 continue;
             };
             if reduce_momentum(dk, g) == 0.0 || lat.wires == 1 && !sys.is_infinite() {
@@ -34,11 +38,11 @@ impl Flow<'_> {
             }
             let name = &sys.model.terms[i].name;
             let why = if sys.is_infinite() {
-                format!("its momentum changes by {dk} from one translate to the next (momentum_per_wire acting on a term with net particle number {}), so its translates have different cut-offs ell_k; an infinite array flows translation-invariant families only: use a finite array (its translates flow one by one) or a momentum_per_wire that leaves the term's momentum unchanged", fmt_net(&net))
+                format!("its momentum changes by {dk} from one translate to the next (momentum_per_wire acting on a term with net particle number {}), so its translates have different cut-offs ell_k; an infinite array flows translation-invariant families only: use a finite array (its translates flow one by one) or a momentum_per_wire that leaves the term's momentum unchanged", fmt_net(net))
             } else if lat.boundary == Some(Boundary::Periodic)
                 && reduce_momentum(lat.wires as f64 * dk, g) != 0.0
             {
-                format!("its momentum changes by {dk} from one translate to the next (momentum_per_wire acting on a term with net particle number {}), and on a periodic ring of {} wires {} times that, {}, is not a multiple of the momentum period{}: the translates' momenta do not close around the ring; use an open array, or momenta for which {} dk is a multiple of momentum_period", fmt_net(&net), lat.wires, lat.wires, lat.wires as f64 * dk, g.map_or(" (the model gives none)".to_string(), |g| format!(" G = {g}")), lat.wires)
+                format!("its momentum changes by {dk} from one translate to the next (momentum_per_wire acting on a term with net particle number {}), and on a periodic ring of {} wires {} times that, {}, is not a multiple of the momentum period{}: the translates' momenta do not close around the ring; use an open array, or momenta for which {} dk is a multiple of momentum_period", fmt_net(net), lat.wires, lat.wires, lat.wires as f64 * dk, g.map_or(" (the model gives none)".to_string(), |g| format!(" G = {g}")), lat.wires)
             } else {
                 continue;
             };
