@@ -38,7 +38,16 @@
 //! and the stop hook, [`check`] checks (and refines) the quadrature rule of
 //! an infinite array's flow, [`report`] turns a [`FlowResult`] into
 //! outputs, [`progress`] reports ell reached to a hook
-//! ([`Flow::run_with_progress`]). A term with momentum mismatch k flows only up to
+//! ([`Flow::run_with_progress`]).
+//!
+//! Per-point work (issue 15): a [`Flow`] is built once per scan and keeps
+//! what does not depend on the parameter point, formed on first use and
+//! shared by every point's flow: the plan's OPE table grouped
+//! ([`rhs::Shared`]), the channels' outer products per layout, which
+//! channels commute, and what pinning a set does to a channel
+//! ([`stages::Fates`]). Each is an exact function of its key (plan
+//! indices), so a point's result does not depend on which point (or
+//! thread) formed it first. A term with momentum mismatch k flows only up to
 //! ell_k = ln(1/|k|); the integration restarts at each such breakpoint so
 //! the right-hand side is smooth within each segment.
 
@@ -277,9 +286,8 @@ pub struct Flow<'s> {
     /// The plan's channels on an infinite array's N-point rules, by N:
     /// independent of the parameter point, so built once per rule.
     rules: std::sync::Mutex<std::collections::HashMap<usize, std::sync::Arc<Vec<Channel>>>>,
-    /// The segments' grouped OPE tables, shared by the flows (see
-    /// [`rhs::OpeTables`]).
-    ope_tables: rhs::OpeTables,
+    /// The plan's OPE table grouped once (see [`rhs::Shared`]).
+    plan_ope: std::sync::OnceLock<ope_terms::GroupedOpe>,
     /// The channels' outer products, shared by the flows.
     outers: rhs::OuterCache,
     /// What pinning does to a channel, shared by the flows (see
@@ -346,7 +354,7 @@ impl<'s> Flow<'s> {
             layout,
             phases: Default::default(),
             rules: Default::default(),
-            ope_tables: Default::default(),
+            plan_ope: Default::default(),
             outers: Default::default(),
             fates: Default::default(),
             commutes: Default::default(),
@@ -542,7 +550,10 @@ impl<'s> Flow<'s> {
         let ope = remap_ope(&self.plan, &included);
         let momenta = self.momenta(point, &included);
         let shared = Some(rhs::Shared {
-            tables: &self.ope_tables,
+            plan_ope: self
+                .plan_ope
+                .get_or_init(|| ope_terms::GroupedOpe::of_table(&self.plan.ope)),
+            plan_channels: self.plan.channels.len(),
             outers: &self.outers,
             plan: included.iter().map(|&c| c as u32).collect(),
         });
@@ -642,6 +653,7 @@ impl<'s> Flow<'s> {
         let start = self.start(point)?;
         let all: &[Channel] = start.channels.as_deref().unwrap_or(&self.plan.channels);
         let mut prepared = self.prepare(point, all, &start, false)?;
+        prepared.rhs.begin_segment();
         let mut y = prepared.y0.as_slice().to_vec();
         for i in 0..prepared.included.len() {
             y[2 * i] = 0.05 + 0.01 * (i % 7) as f64;

@@ -70,7 +70,7 @@ pub(super) fn reference_terms(w: &[f64], dw: &mut [f64], entries: &[LiveOpe]) {
 
 /// The live OPE entries of a segment grouped by product and by target
 /// (module docs), as parallel arrays.
-#[derive(Debug, Clone, Default)]
+#[derive(Debug, Clone, Default, PartialEq)]
 pub(super) struct GroupedOpe {
     /// First factor of each distinct product.
     a: Vec<u32>,
@@ -92,6 +92,12 @@ pub(super) struct GroupedOpe {
 }
 
 impl GroupedOpe {
+    /// A whole OPE table grouped (every entry live).
+    pub(super) fn of_table(table: &[OpeEntry]) -> GroupedOpe {
+        let entries: Vec<LiveOpe> = table.iter().map(LiveOpe::of).collect();
+        GroupedOpe::new(&entries)
+    }
+
     /// Group `entries` (the live OPE entries of a segment).
     pub(super) fn new(entries: &[LiveOpe]) -> GroupedOpe {
         let mut g = GroupedOpe::default();
@@ -122,14 +128,57 @@ impl GroupedOpe {
     }
 
     fn push_entry(&mut self, target: u32, product: u32, half_weight: f64, sign: f64) {
+        self.push_factors(target, product, half_weight, sign * half_weight);
+    }
+
+    /// An entry with the factors of its product's real and imaginary parts.
+    fn push_factors(&mut self, target: u32, product: u32, re: f64, im: f64) {
         if self.targets.last() != Some(&target) {
             self.targets.push(target);
             self.ends.push(self.product.len() as u32);
         }
         self.product.push(product);
-        self.re.push(half_weight);
-        self.im.push(sign * half_weight);
+        self.re.push(re);
+        self.im.push(im);
         *self.ends.last_mut().expect("pushed") += 1;
+    }
+
+    /// The table of the entries among a subset of the channels, renumbered:
+    /// `pos[c]` is the new index of channel c, `u32::MAX` for channels
+    /// left out; the new indices must increase with the old ones. Equal,
+    /// field by field, to [`GroupedOpe::new`] of the entries this table
+    /// was built from, kept where target and both factors are in the
+    /// subset and renumbered (a stable sort commutes with the filter, an
+    /// increasing renumbering keeps every comparison, and products are
+    /// numbered by first use in both), in one pass without sorting or
+    /// hashing: a plan's table grouped once serves every segment of every
+    /// flow.
+    pub(super) fn restricted(&self, pos: &[u32]) -> GroupedOpe {
+        let mut g = GroupedOpe::default();
+        let mut renamed = vec![u32::MAX; self.a.len()];
+        let mut start = 0;
+        for (&t, &end) in self.targets.iter().zip(&self.ends) {
+            let (t, range) = (pos[t as usize], start..end as usize);
+            start = end as usize;
+            if t == u32::MAX {
+                continue;
+            }
+            for k in range {
+                let p = self.product[k] as usize;
+                let (a, b) = (pos[self.a[p] as usize], pos[self.b[p] as usize]);
+                if a == u32::MAX || b == u32::MAX {
+                    continue;
+                }
+                if renamed[p] == u32::MAX {
+                    renamed[p] = g.a.len() as u32;
+                    g.a.push(a);
+                    g.b.push(b);
+                    g.b_sign.push(self.b_sign[p]);
+                }
+                g.push_factors(t, renamed[p], self.re[k], self.im[k]);
+            }
+        }
+        g
     }
 
     /// Scratch floats an evaluation needs (two per distinct product).
@@ -228,6 +277,41 @@ mod tests {
                 assert!((x - y).abs() <= 1e-14 * scale, "round {round}: {x} vs {y}");
             }
             assert!(table.a.len() <= entries.len().max(1));
+        }
+    }
+
+    #[test]
+    fn a_restricted_table_is_the_table_of_the_kept_entries() {
+        // Random tables and random subsets of the channels: cutting the
+        // whole table's grouping down must give, field by field, the
+        // grouping of the entries among the subset, renumbered (two code
+        // paths of the same table; the entries are arbitrary).
+        let mut rng = Lcg(9);
+        for round in 0..40 {
+            let channels = 1 + rng.next(12);
+            let table: Vec<OpeEntry> = (0..rng.next(150))
+                .map(|_| entry(&mut rng, channels))
+                .collect();
+            let keep: Vec<bool> = (0..channels).map(|_| rng.next(3) > 0).collect();
+            let mut pos = vec![u32::MAX; channels];
+            let mut next = 0;
+            for c in (0..channels).filter(|&c| keep[c]) {
+                pos[c] = next;
+                next += 1;
+            }
+            let kept: Vec<LiveOpe> = (table.iter())
+                .filter(|e| keep[e.target] && keep[e.a] && keep[e.b])
+                .map(|e| OpeEntry {
+                    target: pos[e.target] as usize,
+                    a: pos[e.a] as usize,
+                    b: pos[e.b] as usize,
+                    ..*e
+                })
+                .map(|e| LiveOpe::of(&e))
+                .collect();
+            let direct = GroupedOpe::new(&kept);
+            let cut = GroupedOpe::of_table(&table).restricted(&pos);
+            assert_eq!(cut, direct, "round {round}");
         }
     }
 

@@ -18,7 +18,9 @@
 //! Per segment (between momentum cut-offs) the set of active channels is
 //! fixed: [`FlowRhs::begin_segment`] lists the live channels and the OPE
 //! entries among them once, grouped by product and target
-//! ([`super::ope_terms`]), so an evaluation never filters. The D feedback
+//! ([`super::ope_terms`]), so an evaluation never filters; the flows of one
+//! plan (a scan's points) cut it from the plan's table grouped once and
+//! share the channels' outer products ([`Shared`]). The D feedback
 //! is formed as matrix products ([`Background::evaluate`]), except for a
 //! dense D with fewer null translates than half its size, where the
 //! rank-one updates are cheaper;
@@ -27,7 +29,6 @@
 
 use std::cell::RefCell;
 use std::collections::HashMap;
-use std::sync::Arc;
 
 use crate::math::dop853::Derivative;
 
@@ -111,7 +112,7 @@ pub struct FlowRhs<'a> {
     live: Vec<usize>,
     /// OPE entries among active channels of the current segment, grouped
     /// for the evaluation.
-    live_ope: Arc<GroupedOpe>,
+    live_ope: GroupedOpe,
     /// What earlier flows of the same plan formed (see [`Shared`]); None:
     /// formed for this flow alone.
     shared: Option<Shared<'a>>,
@@ -150,29 +151,23 @@ impl Scratch {
     }
 }
 
-/// The grouped OPE tables of a plan's segments, shared by its flows (a
-/// scan meets the same sets of flowing channels at point after point):
-/// keyed by the plan index of every flowing channel times two, plus one
-/// where it is active. A table is a function of its key alone (the plan's
-/// OPE entries among the included channels, in the plan's order, filtered
-/// by `active`), so a flow's numbers do not depend on which flow built it.
-pub(super) type OpeTables = std::sync::Mutex<HashMap<Vec<u32>, Arc<GroupedOpe>>>;
-
 /// The channels' outer products ([`Background::outer`]) of a plan's
 /// flows, keyed by the layout ([`layout_key`]) and the plan index: exact
 /// functions of the key (they do not depend on the parameter point).
 pub(super) type OuterCache = std::sync::Mutex<HashMap<(usize, usize, usize), Outer>>;
 
-/// Entries kept at most in one [`OpeTables`] or [`OuterCache`] (beyond:
-/// formed per flow).
-const MAX_TABLES: usize = 4096;
+/// Entries kept at most in one [`OuterCache`] (beyond: formed per flow).
+const MAX_OUTERS: usize = 4096;
 
 /// The per-plan data a flow shares with the other flows of its plan (a
-/// scan's points): its OPE tables, its outer products, and the plan index
-/// of each flowing channel.
+/// scan's points): the plan's whole OPE table grouped once, the outer
+/// products, and the plan index of each flowing channel.
 pub(super) struct Shared<'a> {
-    /// Grouped OPE tables.
-    pub tables: &'a OpeTables,
+    /// The plan's OPE table (plan indices), grouped ([`GroupedOpe`]); each
+    /// segment's table is cut from it ([`GroupedOpe::restricted`]).
+    pub plan_ope: &'a GroupedOpe,
+    /// Number of channels in the plan.
+    pub plan_channels: usize,
     /// Outer products.
     pub outers: &'a OuterCache,
     /// Plan index of each of the flow's channels.
@@ -197,7 +192,7 @@ impl Shared<'_> {
         }
         let o = bg.outer(ch);
         if let Ok(mut m) = self.outers.lock() {
-            if m.len() < MAX_TABLES {
+            if m.len() < MAX_OUTERS {
                 m.insert(key, o.clone());
             }
         }
@@ -218,7 +213,8 @@ impl<'a> FlowRhs<'a> {
 
     /// [`FlowRhs::new`] taking the segments' grouped OPE tables and the
     /// channels' outer products from `shared` (`ope` must be the plan's
-    /// entries among `channels`, as `Flow::prepare` forms them).
+    /// entries among `channels`, as `Flow::prepare` forms them). With
+    /// `shared`, call [`FlowRhs::begin_segment`] before evaluating.
     pub(super) fn with_tables(
         bg: Background,
         channels: Vec<&'a Channel>,
@@ -272,13 +268,18 @@ impl<'a> FlowRhs<'a> {
             q_track: None,
             outer,
             live: Vec::new(),
-            live_ope: Arc::default(),
+            live_ope: GroupedOpe::default(),
             shared,
             real,
             rank_one,
             scratch,
         };
-        rhs.begin_segment();
+        // A shared plan's flows list their first segment when they start
+        // integrating (`integrate` sets `active` first): grouping every
+        // included channel here would be work thrown away.
+        if rhs.shared.is_none() {
+            rhs.begin_segment();
+        }
         rhs
     }
 
@@ -302,22 +303,17 @@ impl<'a> FlowRhs<'a> {
         self.live.clear();
         self.live
             .extend((0..self.channels.len()).filter(|&c| active[c]));
-        let group = || Arc::new(group_live(&self.ope, active));
         self.live_ope = match &self.shared {
-            None => group(),
-            Some(Shared { tables, plan, .. }) => {
-                let key = plan.iter().zip(active).map(|(&c, &a)| c << 1 | a as u32);
-                let key: Vec<u32> = key.collect();
-                let found = tables.lock().ok().and_then(|t| t.get(&key).cloned());
-                found.unwrap_or_else(|| {
-                    let table = group();
-                    if let Ok(mut t) = tables.lock() {
-                        if t.len() < MAX_TABLES {
-                            t.insert(key, table.clone());
-                        }
+            None => group_live(&self.ope, active),
+            Some(sh) => {
+                // Plan index -> flow index of the active channels.
+                let mut pos = vec![u32::MAX; sh.plan_channels];
+                for (i, &c) in sh.plan.iter().enumerate() {
+                    if active[i] {
+                        pos[c as usize] = i as u32;
                     }
-                    table
-                })
+                }
+                sh.plan_ope.restricted(&pos)
             }
         };
         let products = &mut self.scratch.get_mut().products;
