@@ -294,10 +294,8 @@ mod tests {
                 .collect();
             let keep: Vec<bool> = (0..channels).map(|_| rng.next(3) > 0).collect();
             let mut pos = vec![u32::MAX; channels];
-            let mut next = 0;
-            for c in (0..channels).filter(|&c| keep[c]) {
-                pos[c] = next;
-                next += 1;
+            for (next, c) in (0..channels).filter(|&c| keep[c]).enumerate() {
+                pos[c] = next as u32;
             }
             let kept: Vec<LiveOpe> = (table.iter())
                 .filter(|e| keep[e.target] && keep[e.a] && keep[e.b])

@@ -224,19 +224,7 @@ impl<'a> FlowRhs<'a> {
     ) -> Self {
         let n = channels.len();
         let null: Vec<bool> = channels.iter().map(|c| c.null()).collect();
-        // On the Fourier layout every channel's L L^H gives its dimension
-        // (see `Background::evaluate`); elsewhere only null channels need one.
-        let fourier = matches!(bg, Background::Fourier { .. });
-        let outer_of = |i: usize, c: &Channel| match &shared {
-            Some(s) => s.outer(&bg, i, c),
-            None => bg.outer(c),
-        };
-        let mut outer: Vec<_> = (channels.iter().enumerate())
-            .map(|(i, c)| (c.null() || fourier).then(|| outer_of(i, c)))
-            .collect();
-        let mut work = bg.work();
-        bg.merge_outer(&mut outer, &mut work);
-        bg.prepare_dimensions(&channels, &mut work);
+        let (outer, work) = feedback_data(&bg, &channels, shared.as_ref());
         let scratch = RefCell::new(Scratch::new(n, work, bg.scratch_len()));
         let real = (0..n).filter(|&c| channels[c].real_only()).collect();
         // A rank-one update costs ~n^2 per translate, the two products 2 n^3
@@ -372,6 +360,29 @@ impl<'a> FlowRhs<'a> {
             dimensions,
         });
     }
+}
+
+/// The channels' outer products and the evaluation's work space (see
+/// [`Background::evaluate`]), the outer products from `shared` when given.
+fn feedback_data(
+    bg: &Background,
+    channels: &[&Channel],
+    shared: Option<&Shared>,
+) -> (Vec<Option<Outer>>, Work) {
+    // On the Fourier layout every channel's L L^H gives its dimension
+    // (see `Background::evaluate`); elsewhere only null channels need one.
+    let fourier = matches!(bg, Background::Fourier { .. });
+    let outer_of = |i: usize, c: &Channel| match shared {
+        Some(s) => s.outer(bg, i, c),
+        None => bg.outer(c),
+    };
+    let mut outer: Vec<_> = (channels.iter().enumerate())
+        .map(|(i, c)| (c.null() || fourier).then(|| outer_of(i, c)))
+        .collect();
+    let mut work = bg.work();
+    bg.merge_outer(&mut outer, &mut work);
+    bg.prepare_dimensions(channels, &mut work);
+    (outer, work)
 }
 
 /// The OPE entries among the `active` channels, grouped ([`GroupedOpe`]).
