@@ -93,18 +93,58 @@ const K_LARGE: f64 = 1e4;
 /// arrays go through q-space and are not limited.
 pub const DENSE_FIELDS_LIMIT: usize = 1024;
 
+/// Work on the dense path, as a refusal of it describes it
+/// ([`System::refuse_dense`]): "{task} of all N fields {verb} dense
+/// matrices ...".
+#[derive(Debug, Clone, Copy)]
+pub struct DenseWork {
+    /// What is computed: "the fixed point", "the flow".
+    pub task: &'static str,
+    /// How it uses the dense matrices: "is computed with", "runs on".
+    pub verb: &'static str,
+    /// Repeated at every step of an integration: the message says that
+    /// each step multiplies N x N matrices.
+    pub per_step: bool,
+    /// How long the work takes at the limit: "a few seconds".
+    pub at_limit: &'static str,
+}
+
 impl System {
     /// Refuse, before any work, a dense fixed point above
     /// [`DENSE_FIELDS_LIMIT`] fields unless `force`, naming the estimate and
     /// the flag.
     pub fn check_dense_size(&self, force: bool) -> Result<(), Error> {
-        let Some((n, factor)) = self.dense_above(DENSE_FIELDS_LIMIT, force) else {
+        const FIXED_POINT: DenseWork = DenseWork {
+            task: "the fixed point",
+            verb: "is computed with",
+            per_step: false,
+            at_limit: "a few seconds",
+        };
+        self.refuse_dense(DENSE_FIELDS_LIMIT, force, &FIXED_POINT)
+    }
+
+    /// Refuse `work` on the dense path above `limit` fields unless `force`
+    /// ([`Self::dense_above`]): the one wording of every such refusal (E141
+    /// in docs/errors.md), with the estimate, `--force` and the periodic
+    /// array as the ways out.
+    pub fn refuse_dense(&self, limit: usize, force: bool, work: &DenseWork) -> Result<(), Error> {
+        let Some((n, factor)) = self.dense_above(limit, force) else {
             return Ok(());
+        };
+        let DenseWork {
+            task,
+            verb,
+            per_step,
+            at_limit,
+        } = *work;
+        let step = match per_step {
+            true => format!(": every step multiplies {n} x {n} matrices"),
+            false => String::new(),
         };
         Err(Error::refused(
             "--force",
             format!(
-                "the fixed point of all {n} fields is computed with dense matrices (an open array or an explicit model), work growing like N^3, about {factor:.1} times that of {DENSE_FIELDS_LIMIT} fields (the limit, a few seconds); pass --force to run it anyway, or use a periodic array (computed per momentum q)"
+                "{task} of all {n} fields {verb} dense matrices (an open array or an explicit model){step}, work growing like N^3, about {factor:.1} times that of {limit} fields (the limit, {at_limit}); pass --force to run it anyway, or use a periodic array (computed per momentum q)"
             ),
         ))
     }
