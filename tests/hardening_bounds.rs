@@ -13,11 +13,11 @@ use pinflow::error::Error;
 use pinflow::flow::options::FlowOverrides;
 use pinflow::flow::FlowOptions;
 use pinflow::model::Model;
-use pinflow::search::{self, ChargeFilter, HuntOptions, MomentumFilter, Progress, SpinFilter};
+use pinflow::search::{self, HuntOptions, Progress};
 
 mod common;
 
-use common::{explicit_array, flow_file as demo, refusal, system};
+use common::{every_operator, explicit_array, flow_file as demo, refusal, system};
 
 /// The filling-1/3 strip demo with `wires` wires and the given boundary.
 fn strip(wires: usize, boundary: &str) -> String {
@@ -69,17 +69,6 @@ fn assert_size_refusal<T: std::fmt::Debug>(r: Result<T, Error>, fields: usize) -
 /// The model's default parameter point.
 fn point_of(sys: &System) -> Vec<f64> {
     sys.model.params.defaults().to_vec()
-}
-
-/// Search options that keep every charge, spin and momentum.
-fn every_operator(max_dim: f64) -> HuntOptions {
-    HuntOptions {
-        max_dim,
-        charge: ChargeFilter::Any,
-        spin: SpinFilter::Any,
-        momentum: Some(MomentumFilter::Any),
-        ..HuntOptions::default()
-    }
 }
 
 // ------------------------------------------------------------ flow options
@@ -569,6 +558,21 @@ fn a_flow_off_a_terminal_prints_plain_progress_lines() {
 
 // ------------------------------------------------------- hunted competitors
 
+/// A temporary folder holding `m.toml`, the explicit model of `wires`
+/// wires ([`explicit_array`]).
+fn explicit_folder(wires: usize) -> tempfile::TempDir {
+    folder_with("m.toml", &explicit_array(wires))
+}
+
+/// The standard error of `flow m.toml --competitors DELTA ARGS` in `dir`,
+/// which must be refused (exit 2).
+#[track_caller]
+fn refused_competitor_flow(dir: &Path, delta: &str, args: &[&str]) -> String {
+    let flow = ["flow", "m.toml", "--competitors", delta];
+    let out = pinflow_in(dir, &[&flow[..], args].concat());
+    refused_stderr(&out, &format!("flow --competitors {delta} {args:?}"))
+}
+
 /// A scan of `m.toml` in `dir` with `--competitors DELTA` over two points
 /// of lambda: it goes on (exit 0) and records its first point as failed
 /// (refused work), not unphysical.
@@ -603,9 +607,8 @@ fn assert_scan_records_a_failed_point(dir: &Path, delta: &str) {
 
 #[test]
 fn too_many_hunted_competitors_are_refused_before_the_enlarged_flow() {
-    let dir = folder_with("m.toml", &explicit_array(8));
-    let out = pinflow_in(dir.path(), &["flow", "m.toml", "--competitors", "2"]);
-    let err = refused_stderr(&out, "flow");
+    let dir = explicit_folder(8);
+    let err = refused_competitor_flow(dir.path(), "2", &[]);
     assert!(
         err.contains("--competitors:") && err.contains("more than 2448 competitors"),
         "{err}"
@@ -622,12 +625,8 @@ fn even_force_stops_at_the_competitor_ceiling() {
     // terms and their pairs closure), (84 + 24057)^2 x 24 = 1.4e10 units of
     // work, above 100 times the limit. The hunt stops past the most that
     // fit: (84 + 20328)^2 x 24 <= 1e10 < (84 + 20329)^2 x 24.
-    let dir = folder_with("m.toml", &explicit_array(12));
-    let out = pinflow_in(
-        dir.path(),
-        &["flow", "m.toml", "--competitors", "2", "--force"],
-    );
-    let err = refused_stderr(&out, "forced flow");
+    let dir = explicit_folder(12);
+    let err = refused_competitor_flow(dir.path(), "2", &["--force"]);
     assert!(
         err.contains("more than 20328 competitors") && err.contains("even --force"),
         "{err}"
@@ -641,9 +640,8 @@ fn a_refused_hunt_for_competitors_names_this_commands_flags() {
     // --max-dim or --range: the refusal speaks of --competitors and
     // --competitor-range, and a scan records the point as failed (refused
     // work), not unphysical.
-    let dir = folder_with("m.toml", &explicit_array(20));
-    let out = pinflow_in(dir.path(), &["flow", "m.toml", "--competitors", "3"]);
-    let err = refused_stderr(&out, "flow");
+    let dir = explicit_folder(20);
+    let err = refused_competitor_flow(dir.path(), "3", &[]);
     assert!(
         err.contains("--competitors: at ") && err.contains("the hunt for competitors"),
         "{err}"
@@ -654,15 +652,7 @@ fn a_refused_hunt_for_competitors_names_this_commands_flags() {
         "{err}"
     );
     // The hunt's check of its window names this command's flag too (E72).
-    let args = [
-        "flow",
-        "m.toml",
-        "--competitors",
-        "3",
-        "--competitor-range",
-        "2",
-    ];
-    let err = refused_stderr(&pinflow_in(dir.path(), &args), "range");
+    let err = refused_competitor_flow(dir.path(), "3", &["--competitor-range", "2"]);
     assert!(
         err.contains("--competitor-range: applies to arrays of wires only"),
         "{err}"
@@ -675,9 +665,8 @@ fn the_competitor_hunt_stops_early_only_when_the_refusal_is_certain() {
     // The refusal's "more than N" must be a true lower bound: the full
     // listing of `hunt` (same bound; the model's charge and spin are 0, as
     // hunt's defaults) has more than N operators that are not model terms.
-    let dir = folder_with("m.toml", &explicit_array(8));
-    let out = pinflow_in(dir.path(), &["flow", "m.toml", "--competitors", "2"]);
-    let err = refused_stderr(&out, "flow");
+    let dir = explicit_folder(8);
+    let err = refused_competitor_flow(dir.path(), "2", &[]);
     let n: usize = err
         .split("more than ")
         .nth(1)

@@ -93,20 +93,16 @@ const K_LARGE: f64 = 1e4;
 /// arrays go through q-space and are not limited.
 pub const DENSE_FIELDS_LIMIT: usize = 1024;
 
-/// Work on the dense path, as a refusal of it describes it
-/// ([`System::refuse_dense`]): "{task} of all N fields {verb} dense
-/// matrices ...".
-#[derive(Debug, Clone, Copy)]
-pub struct DenseWork {
-    /// What is computed: "the fixed point", "the flow".
-    pub task: &'static str,
-    /// How it uses the dense matrices: "is computed with", "runs on".
-    pub verb: &'static str,
-    /// Repeated at every step of an integration: the message says that
-    /// each step multiplies N x N matrices.
-    pub per_step: bool,
-    /// How long the work takes at the limit: "a few seconds".
-    pub at_limit: &'static str,
+/// The work on the dense path that a refusal names
+/// ([`System::refuse_dense`], which owns the wording of both).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum DenseWork {
+    /// The fixed point at a point (`dims`, `hunt`; limit
+    /// [`DENSE_FIELDS_LIMIT`]).
+    FixedPoint,
+    /// A flow (`flow`, `scan`; its limit lives in `flow::limits`): every
+    /// step of the integration multiplies N x N matrices.
+    Flow,
 }
 
 impl System {
@@ -114,32 +110,30 @@ impl System {
     /// [`DENSE_FIELDS_LIMIT`] fields unless `force`, naming the estimate and
     /// the flag.
     pub fn check_dense_size(&self, force: bool) -> Result<(), Error> {
-        const FIXED_POINT: DenseWork = DenseWork {
-            task: "the fixed point",
-            verb: "is computed with",
-            per_step: false,
-            at_limit: "a few seconds",
-        };
-        self.refuse_dense(DENSE_FIELDS_LIMIT, force, &FIXED_POINT)
+        self.refuse_dense(DENSE_FIELDS_LIMIT, force, DenseWork::FixedPoint)
     }
 
     /// Refuse `work` on the dense path above `limit` fields unless `force`
     /// ([`Self::dense_above`]): the one wording of every such refusal (E141
     /// in docs/errors.md), with the estimate, `--force` and the periodic
     /// array as the ways out.
-    pub fn refuse_dense(&self, limit: usize, force: bool, work: &DenseWork) -> Result<(), Error> {
+    pub fn refuse_dense(&self, limit: usize, force: bool, work: DenseWork) -> Result<(), Error> {
         let Some((n, factor)) = self.dense_above(limit, force) else {
             return Ok(());
         };
-        let DenseWork {
-            task,
-            verb,
-            per_step,
-            at_limit,
-        } = *work;
-        let step = match per_step {
-            true => format!(": every step multiplies {n} x {n} matrices"),
-            false => String::new(),
+        let (task, verb, step, at_limit) = match work {
+            DenseWork::FixedPoint => (
+                "the fixed point",
+                "is computed with",
+                String::new(),
+                "a few seconds",
+            ),
+            DenseWork::Flow => (
+                "the flow",
+                "runs on",
+                format!(": every step multiplies {n} x {n} matrices"),
+                "several seconds per flow",
+            ),
         };
         Err(Error::refused(
             "--force",

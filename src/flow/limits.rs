@@ -24,11 +24,5 @@ pub fn check_work(sys: &System, opts: &FlowOptions, force: bool) -> Result<(), E
 /// Refuse a dense flow above [`DENSE_FLOW_FIELDS_LIMIT`] fields unless
 /// `force` (E141 in docs/errors.md).
 pub fn check_dense_size(sys: &System, force: bool) -> Result<(), Error> {
-    const FLOW: DenseWork = DenseWork {
-        task: "the flow",
-        verb: "runs on",
-        per_step: true,
-        at_limit: "several seconds per flow",
-    };
-    sys.refuse_dense(DENSE_FLOW_FIELDS_LIMIT, force, &FLOW)
+    sys.refuse_dense(DENSE_FLOW_FIELDS_LIMIT, force, DenseWork::Flow)
 }
