@@ -171,10 +171,13 @@ fn complete_rows(path: &Path) -> Option<usize> {
     )
 }
 
-/// The 16 x 16 grid used for interruptions: 256 points, about a second on
-/// one thread, so a kill lands mid-run.
+/// The grid used for interruptions: 24 x 24 points, about 0.25 s of flows
+/// on one thread (a kill waits for at most 140 rows and 40 ms more; rows
+/// reach the file 64 at a time), so a kill lands mid-run.
+const RESUME_GRID: usize = 24;
+
 fn resume_args() -> Vec<String> {
-    array_axes(16)
+    array_axes(RESUME_GRID)
 }
 
 /// Start a scan on one thread, wait until its partial file holds at least
@@ -329,7 +332,7 @@ fn resume_keeps_finished_rows() {
     let points = std::fs::read_to_string(out.join("points.csv")).unwrap();
     let row0 = points.lines().nth(1).unwrap();
     assert!(row0.contains(",marked,"), "row 0 was recomputed: {row0}");
-    assert_eq!(points.lines().count(), 257);
+    assert_eq!(points.lines().count(), RESUME_GRID * RESUME_GRID + 1);
 }
 
 #[test]
@@ -342,7 +345,7 @@ fn resume_refuses_a_partial_file_of_other_settings() {
     interrupted_scan(&model, &args, &out, 1, Duration::ZERO);
     let running = out.join(".points.running.csv");
     let before = std::fs::read(&running).unwrap();
-    let other_grid = array_axes(15);
+    let other_grid = array_axes(RESUME_GRID - 1);
     let mut other_options = strs(&axes);
     other_options.extend(["--ell-max", "30"]);
     let mut other_point = strs(&axes);

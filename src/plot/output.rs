@@ -85,12 +85,16 @@ pub(crate) fn write_figure(stem: &Path, figure: &(impl Figure + Sync)) -> Result
     let png_path = with_suffix(stem, ".png");
     let svg_path = with_suffix(stem, ".svg");
     let pdf_path = with_suffix(stem, ".pdf");
-    // Render all in memory first: drawing errors never touch the disk. The
-    // raster and the vector formats at once (each thread with the caller's
-    // thread-local style); the bytes do not depend on the thread.
+    // Render and encode all in memory first: drawing errors never touch the
+    // disk. The raster and the vector formats at once (each thread with the
+    // caller's thread-local style); the bytes do not depend on the thread.
     let look = style::figure_style();
-    let (pixels, vector) = rayon::join(
-        || style::styled(look, || render_rgb(figure)),
+    let (png, vector) = rayon::join(
+        || {
+            style::styled(look, || {
+                render_rgb(figure).and_then(|p| encode_canvas_png(&p))
+            })
+        },
         || {
             style::styled(look, || {
                 let svg = render_svg(figure).map_err(|m| PlotError::new(&svg_path, m))?;
@@ -100,10 +104,10 @@ pub(crate) fn write_figure(stem: &Path, figure: &(impl Figure + Sync)) -> Result
             })
         },
     );
-    let pixels = pixels.map_err(|m| PlotError::new(&png_path, m))?;
+    let png = png.map_err(|m| PlotError::new(&png_path, m))?;
     let (svg, pdf) = vector?;
     ensure_parent(&png_path)?;
-    save_png(&png_path, &pixels)?;
+    save_bytes(&png_path, &png)?;
     save_bytes(&svg_path, svg.as_bytes())?;
     save_bytes(&pdf_path, &pdf)?;
     if style::figure_style() == style::FigureStyle::Paper {
@@ -185,17 +189,29 @@ fn image_element(r: &Raster) -> Result<String, String> {
     ))
 }
 
-/// PNG bytes of a raster (fixed settings: the same pixels give the same bytes).
+/// PNG bytes of a raster embedded in an SVG (smallest file).
 fn encode_png(r: &Raster) -> Result<Vec<u8>, String> {
+    png_bytes(&r.rgb, (r.width, r.height), png::Compression::Best)
+}
+
+/// PNG bytes of the whole canvas (`pixels`: RGB rows of the figure style's
+/// canvas size; fast compression, the file is written once per figure).
+fn encode_canvas_png(pixels: &[u8]) -> Result<Vec<u8>, String> {
+    png_bytes(pixels, style::canvas(), png::Compression::Fast)
+}
+
+/// PNG bytes of RGB rows of `size` (fixed settings: the same pixels give
+/// the same bytes).
+fn png_bytes(rgb: &[u8], size: (u32, u32), level: png::Compression) -> Result<Vec<u8>, String> {
     let mut bytes = Vec::new();
     {
-        let mut encoder = png::Encoder::new(&mut bytes, r.width, r.height);
+        let mut encoder = png::Encoder::new(&mut bytes, size.0, size.1);
         encoder.set_color(png::ColorType::Rgb);
         encoder.set_depth(png::BitDepth::Eight);
-        encoder.set_compression(png::Compression::Best);
+        encoder.set_compression(level);
         encoder.set_adaptive_filter(png::AdaptiveFilterType::Adaptive);
         let mut writer = encoder.write_header().map_err(msg)?;
-        writer.write_image_data(&r.rgb).map_err(msg)?;
+        writer.write_image_data(rgb).map_err(msg)?;
         writer.finish().map_err(msg)?;
     }
     Ok(bytes)
@@ -239,8 +255,8 @@ struct Staged {
 }
 
 impl Staged {
-    /// Picks a hidden, unique temporary name in the target's directory.
-    /// The name ends in `extension` because the PNG encoder infers the format from it.
+    /// Picks a hidden, unique temporary name in the target's directory,
+    /// ending in `extension`.
     fn new(target: &Path, extension: &str) -> Self {
         static COUNTER: AtomicU64 = AtomicU64::new(0);
         let n = COUNTER.fetch_add(1, Ordering::Relaxed);
@@ -278,24 +294,6 @@ impl Drop for Staged {
 /// Encodes the RGB buffer as PNG via a temporary file (fixed settings:
 /// the same pixels give the same bytes; fast deflate, as the figure's flat
 /// colours compress well anyway).
-fn save_png(path: &Path, pixels: &[u8]) -> Result<(), PlotError> {
-    let staged = Staged::new(path, "png");
-    let fail = |e: String| PlotError::new(path, e);
-    let (width, height) = style::canvas();
-    let file = fs::File::create(&staged.temp).map_err(|e| fail(e.to_string()))?;
-    let mut encoder = png::Encoder::new(std::io::BufWriter::new(file), width, height);
-    encoder.set_color(png::ColorType::Rgb);
-    encoder.set_depth(png::BitDepth::Eight);
-    encoder.set_compression(png::Compression::Fast);
-    encoder.set_adaptive_filter(png::AdaptiveFilterType::Adaptive);
-    let mut writer = encoder.write_header().map_err(|e| fail(e.to_string()))?;
-    writer
-        .write_image_data(pixels)
-        .map_err(|e| fail(e.to_string()))?;
-    writer.finish().map_err(|e| fail(e.to_string()))?;
-    staged.commit()
-}
-
 fn save_bytes(path: &Path, bytes: &[u8]) -> Result<(), PlotError> {
     let ext = path
         .extension()

@@ -3,17 +3,17 @@
 //! Every grid point is one flow ([`crate::flow::Flow::run`], the same code
 //! as `pinflow flow`; for an infinite array with its quadrature check,
 //! [`crate::flow::check`], whose result ends the row). Points are computed
-//! in parallel (rayon) a chunk at a time and appended to the partial file
-//! in index order, so the output bytes do not depend on the number of
-//! threads, an interrupted scan can be resumed, and shards of a scan can be
-//! merged. The summary and figures are built from the finished `points.csv`
-//! alone (see [`summary`]), which is why `merge` needs no model.
+//! in parallel (rayon) and appended to the partial file in index order as
+//! they are ready ([`ordered`]), so the output bytes do not depend on the
+//! number of threads, an interrupted scan can be resumed, and shards of a
+//! scan can be merged. The summary and figures are built from the finished
+//! `points.csv` alone (see [`summary`]), which is why `merge` needs no model.
 //!
-//! Memory does not grow with the rows: computing holds one chunk of rows,
-//! resuming reads the partial file in blocks, and the finishing step
-//! ([`run::finish`]) reads `points.csv` once, row by row ([`points`]), into the
-//! summary's tally and the figures' canvas ([`figures`]), which keep a few
-//! bytes per point (12 for a plane) instead of the rows.
+//! Memory does not grow with the rows: computing holds a bounded window of
+//! rows, resuming reads the partial file in blocks, and the finishing step
+//! ([`run::finish`]) reads `points.csv` once, row by row ([`points`]), into
+//! the summary's tally and the figures' canvas ([`figures`]), which keep a
+//! few bytes per point (12 for a plane) instead of the rows.
 //!
 //! Index order: x varies fastest; point i has x index i % nx and y index
 //! i / nx.
@@ -21,6 +21,7 @@
 pub mod axis;
 pub mod figures;
 pub mod folder;
+mod ordered;
 pub mod phases;
 pub mod points;
 pub mod preview;
@@ -30,16 +31,11 @@ pub mod summary;
 
 use std::path::{Path, PathBuf};
 
-use rayon::prelude::*;
-
 use crate::core::system::System;
 use crate::error::{Error, InputError};
 use crate::flow::{Flow, FlowOptions, FlowResult, Outcome};
 pub use axis::Axis;
 use store::{csv_line, Meta, RowFile};
-
-/// Points computed between two appends.
-const CHUNK: usize = 64;
 
 /// Largest grid run without `--force`.
 pub const MAX_POINTS: usize = 20_000_000;
@@ -179,21 +175,17 @@ impl<'s> Scan<'s> {
         csv_line(&cells)
     }
 
-    /// Compute every remaining point of `file`, appending chunk by chunk.
+    /// Compute every remaining point of `file`, appending the rows in
+    /// index order as they are ready (see [`ordered`]).
     pub fn run_into(&self, file: &mut RowFile, progress: &dyn Fn(usize)) -> Result<(), Error> {
-        // Indices are computed chunk by chunk, never held all at once.
         let count = self.count();
-        let mut start = file.rows.min(count);
-        while start < count {
-            let end = (start + CHUNK).min(count);
-            let rows: Vec<String> = (start..end)
-                .into_par_iter()
-                .map(|j| self.row(self.index_at(j)))
-                .collect();
+        let start = file.rows.min(count);
+        let row = |j: usize| self.row(self.index_at(j));
+        ordered::compute_in_order(start..count, row, &mut |rows| {
             file.append(&rows)?;
             progress(rows.len());
-            start = end;
-        }
+            Ok(())
+        })?;
         file.sync()
     }
 }
