@@ -9,6 +9,9 @@
 //! numbers up to rounding) and the infinite array (a refined quadrature,
 //! [`System::q_converged`]). An infinite array has no dense path: its
 //! `lattice` is the periodic stand-in ring used for exact data.
+//!
+//! Also owns the wording of every refusal of dense work above its limit
+//! ([`System::refuse_dense`], [`DenseWork`]); each caller keeps its limit.
 
 use std::path::Path;
 
