@@ -225,12 +225,17 @@ impl<F: Fn(usize) -> String + Sync> Work<F> {
     }
 }
 
-/// Counts a spawned worker out when it ends (also by a panic), so that the
-/// writer never waits for it.
+/// Counts a spawned worker (`.1`) out when it ends, so that the writer
+/// never waits for it; a worker ended by a panic also halts the others (its
+/// row never comes, and a worker waiting for room would wait for ever), and
+/// the panic reaches the caller at the end of the scope.
 struct Finished<'a, F: Fn(usize) -> String + Sync>(&'a Work<F>, bool);
 
 impl<F: Fn(usize) -> String + Sync> Drop for Finished<'_, F> {
     fn drop(&mut self) {
+        if std::thread::panicking() {
+            self.0.halt();
+        }
         if self.1 {
             let mut q = self.0.lock();
             q.running -= 1;
@@ -300,6 +305,21 @@ mod tests {
         let e = compute_in_order(0..50_000, row, &mut sink).unwrap_err();
         assert!(e.to_string().contains("disk full"), "{e}");
         assert!(computed.load(Ordering::SeqCst) < 50_000);
+    }
+
+    #[test]
+    fn a_panicking_row_reaches_the_caller_instead_of_a_hang() {
+        // Row 3 never comes; without the halt the others would wait for
+        // room behind it for ever (the range is far wider than the window).
+        let row = |j: usize| {
+            assert!(j != 3, "row 3 fails");
+            format!("{j}\n")
+        };
+        let run = std::panic::catch_unwind(|| {
+            let mut sink = |_rows: Vec<String>| Ok(());
+            compute_in_order(0..4 * WINDOW, row, &mut sink)
+        });
+        assert!(run.is_err());
     }
 
     #[test]
