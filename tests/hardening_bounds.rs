@@ -661,6 +661,34 @@ fn a_refused_hunt_for_competitors_names_this_commands_flags() {
 }
 
 #[test]
+fn a_competitor_range_from_the_model_file_names_the_file_and_key() {
+    // The same checks as for --competitor-range, made when the file is read.
+    let wide = format!(
+        "{}\n[competitors]\ndelta = 2\nrange = 9\n",
+        strip(8, "open")
+    );
+    let dir = folder_with("m.toml", &wide);
+    let err = refused_stderr(&pinflow_in(dir.path(), &["flow", "m.toml"]), "range 9 of 8");
+    assert!(
+        err.contains("m.toml: competitors.range: expected at most 8 (the number of wires of the array), found 9"),
+        "{err}"
+    );
+    let explicit = format!(
+        "{}\n[competitors]\ndelta = 2\nrange = 1\n",
+        explicit_array(2)
+    );
+    let dir = folder_with("m.toml", &explicit);
+    let err = refused_stderr(
+        &pinflow_in(dir.path(), &["dims", "m.toml"]),
+        "explicit range",
+    );
+    assert!(
+        err.contains("m.toml: competitors.range: applies to arrays of wires only"),
+        "{err}"
+    );
+}
+
+#[test]
 fn the_competitor_hunt_stops_early_only_when_the_refusal_is_certain() {
     // The refusal's "more than N" must be a true lower bound: the full
     // listing of `hunt` (same bound; the model's charge and spin are 0, as
