@@ -5,16 +5,19 @@
 //! checked. No test here is timed: they check the refusals, the estimates
 //! and the bounds (work counts), not the clock.
 
-use assert_cmd::Command;
+use std::path::Path;
+use std::process::Output;
+
 use pinflow::core::system::System;
+use pinflow::error::Error;
 use pinflow::flow::options::FlowOverrides;
 use pinflow::flow::FlowOptions;
 use pinflow::model::Model;
-use pinflow::search::{self, ChargeFilter, HuntOptions, MomentumFilter, Progress, SpinFilter};
+use pinflow::search::{self, HuntOptions, Progress};
 
 mod common;
 
-use common::{explicit_array, flow_file as demo, refusal, system};
+use common::{every_operator, explicit_array, flow_file as demo, refusal, system};
 
 /// The filling-1/3 strip demo with `wires` wires and the given boundary.
 fn strip(wires: usize, boundary: &str) -> String {
@@ -22,6 +25,50 @@ fn strip(wires: usize, boundary: &str) -> String {
     assert!(text.contains("wires = 8\n") && text.contains("boundary = \"open\""));
     text.replace("wires = 8\n", &format!("wires = {wires}\n"))
         .replace("boundary = \"open\"", &format!("boundary = \"{boundary}\""))
+}
+
+/// [`strip`] made ready.
+fn strip_system(wires: usize, boundary: &str) -> System {
+    system(&strip(wires, boundary))
+}
+
+/// A temporary folder holding the file `name` with `text`.
+fn folder_with(name: &str, text: &str) -> tempfile::TempDir {
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join(name), text).unwrap();
+    dir
+}
+
+/// `pinflow ARGS` run in `dir` (given up after 120 s).
+fn pinflow_in(dir: &Path, args: &[&str]) -> Output {
+    common::pinflow(dir).args(args).output().unwrap()
+}
+
+/// The standard error of a run that must exit with code 2.
+#[track_caller]
+fn refused_stderr(out: &Output, what: &str) -> String {
+    let err = String::from_utf8_lossy(&out.stderr).to_string();
+    assert_eq!(out.status.code(), Some(2), "{what}: {err}");
+    err
+}
+
+/// A refusal of work on `fields` fields: an error, a refusal (not another
+/// error), keyed `--force` and naming the number of fields.
+#[track_caller]
+fn assert_size_refusal<T: std::fmt::Debug>(r: Result<T, Error>, fields: usize) -> String {
+    let e = refusal(r.expect_err(&format!("{fields} fields refused")));
+    assert_eq!(e.key, "--force");
+    assert!(
+        e.message.contains(&format!("{fields} fields")),
+        "{}",
+        e.message
+    );
+    e.message
+}
+
+/// The model's default parameter point.
+fn point_of(sys: &System) -> Vec<f64> {
+    sys.model.params.defaults().to_vec()
 }
 
 // ------------------------------------------------------------ flow options
@@ -130,16 +177,12 @@ fn lattice_vectors_above_2_pow_20_are_refused() {
 #[test]
 fn a_descending_log_axis_exits_2_and_writes_nothing() {
     let dir = tempfile::tempdir().unwrap();
+    let model = demo("spinless_wire.toml");
     for x in ["lambda=0.5:0.1:3:log", "lambda=0.3:0.3:3:log"] {
-        let out = Command::cargo_bin("pinflow")
-            .unwrap()
-            .current_dir(dir.path())
-            .args(["scan", demo("spinless_wire.toml").to_str().unwrap()])
-            .args(["--x", x, "--y", "lambda=0.1:0.2:2", "--out", "o", "--quiet"])
-            .output()
-            .unwrap();
-        assert_eq!(out.status.code(), Some(2), "{x}");
-        let err = String::from_utf8_lossy(&out.stderr);
+        let args = ["scan", model.to_str().unwrap(), "--x", x];
+        let rest = ["--y", "lambda=0.1:0.2:2", "--out", "o", "--quiet"];
+        let out = pinflow_in(dir.path(), &[&args[..], &rest].concat());
+        let err = refused_stderr(&out, x);
         assert!(
             err.contains("--x") && err.contains("MIN must be below MAX"),
             "{err}"
@@ -156,16 +199,12 @@ fn a_forced_hunt_keeps_a_bounded_number_of_operators() {
     // grew memory without bound. Every spin and charge up to Delta = 4 on
     // the single wire: 11 operators at the default point.
     let sys = System::load(&demo("spinless_wire.toml")).unwrap();
-    let point = sys.model.params.defaults().to_vec();
+    let point = point_of(&sys);
     let opts = HuntOptions {
-        max_dim: 4.0,
-        charge: ChargeFilter::Any,
-        spin: SpinFilter::Any,
-        momentum: Some(MomentumFilter::Any),
         force: true,
         max_listed: 2,
         forced_max_listed: 5,
-        ..HuntOptions::default()
+        ..every_operator(4.0)
     };
     let e = refusal(search::hunt(&sys, &point, &opts).expect_err("bounded"));
     assert!(
@@ -200,13 +239,9 @@ fn an_unforced_hunt_stops_at_four_times_its_limit_when_the_estimate_misses() {
                 V = [[1e-6, 0.0, 0.0], [0.0, 1e6, 0.0], [0.0, 0.0, 1e-6]]\n";
     let sys = system(text);
     let opts = HuntOptions {
-        max_dim: 32.0,
-        charge: ChargeFilter::Any,
-        spin: SpinFilter::Any,
-        momentum: Some(MomentumFilter::Any),
         limit: 1.4e4,
         forced_max_listed: 1_000_000,
-        ..HuntOptions::default()
+        ..every_operator(32.0)
     };
     let forced = search::hunt(
         &sys,
@@ -236,55 +271,113 @@ fn an_unforced_hunt_stops_at_four_times_its_limit_when_the_estimate_misses() {
     );
 }
 
+#[test]
+fn a_hunt_refusal_names_the_flags_that_set_the_search() {
+    // The same refusals under `hunt`'s flags (the default) and under those
+    // of `flow --competitors` (COMPETITOR_FLAGS), each worded at the source.
+    use pinflow::flow::competitors::COMPETITOR_FLAGS;
+    // The 8-wire strip, every operator with Delta <= 4, and a limit of 10
+    // points (an invented bound, far below any window's estimate).
+    let sys = strip_system(8, "open");
+    let point = point_of(&sys);
+    let small = HuntOptions {
+        limit: 10.0,
+        ..every_operator(4.0)
+    };
+    let hunt_e = refusal(search::hunt(&sys, &point, &small).expect_err("estimate"));
+    assert_eq!(hunt_e.key, "--max-dim");
+    let tail = "narrow it with a smaller --max-dim or --range, or pass --force to run it anyway";
+    assert!(hunt_e.message.ends_with(tail), "{}", hunt_e.message);
+    let flow = HuntOptions {
+        flags: COMPETITOR_FLAGS,
+        ..small
+    };
+    let flow_e = refusal(search::hunt(&sys, &point, &flow).expect_err("estimate"));
+    assert_eq!(flow_e.key, "--competitors");
+    assert_eq!(
+        flow_e.message,
+        hunt_e.message.replace(
+            tail,
+            "narrow it with a smaller --competitors DELTA or --competitor-range, or pass --force to run it anyway"
+        )
+    );
+    // Too many operators listed, on the single wire (no window to narrow):
+    // `flow` has no --spin or --charge to suggest.
+    let wire = System::load(&demo("spinless_wire.toml")).unwrap();
+    let point = point_of(&wire);
+    let few = HuntOptions {
+        max_listed: 2,
+        ..every_operator(4.0)
+    };
+    let hunt_e = refusal(search::hunt(&wire, &point, &few).expect_err("listed"));
+    assert_eq!(
+        hunt_e.message,
+        "more than 2 operators match; narrow the search with a smaller --max-dim, the filters --spin 0 and --charge 0, or pass --force"
+    );
+    let flow = HuntOptions {
+        flags: COMPETITOR_FLAGS,
+        ..few
+    };
+    let flow_e = refusal(search::hunt(&wire, &point, &flow).expect_err("listed"));
+    assert_eq!(
+        (flow_e.key.as_str(), flow_e.message.as_str()),
+        (
+            "--competitors",
+            "more than 2 operators match; narrow the search with a smaller --competitors DELTA, or pass --force"
+        )
+    );
+    // A window that cannot be: the flag that set it.
+    let zero = HuntOptions {
+        range: Some(0),
+        flags: COMPETITOR_FLAGS,
+        ..HuntOptions::default()
+    };
+    match search::hunt(&sys, &point_of(&sys), &zero) {
+        Err(Error::Input(e)) => assert_eq!(e.key, "--competitor-range", "{}", e.message),
+        other => panic!("expected an input error, got {other:?}"),
+    }
+}
+
 // ------------------------------------------------------------ edges and dims
 
 #[test]
 fn edges_on_a_wide_array_is_refused_with_the_estimate_unless_forced() {
-    let wide = system(&strip(300, "open"));
-    let e = refusal(pinflow::edges::check_size(&wide, false).expect_err("600 fields"));
-    assert_eq!(e.key, "--force");
-    assert!(e.message.contains("600 fields"), "{}", e.message);
+    let wide = strip_system(300, "open");
+    assert_size_refusal(pinflow::edges::check_size(&wide, false), 600);
     // The limit itself (512 fields) runs.
-    pinflow::edges::check_size(&system(&strip(256, "open")), false).expect("512 fields");
+    pinflow::edges::check_size(&strip_system(256, "open"), false).expect("512 fields");
     pinflow::edges::check_size(&wide, true).expect("forced");
-    pinflow::edges::check_size(&system(&strip(8, "open")), false).expect("16 fields");
+    pinflow::edges::check_size(&strip_system(8, "open"), false).expect("16 fields");
     // Through the command line: exit 2 before any work.
-    let dir = tempfile::tempdir().unwrap();
-    let path = dir.path().join("wide.toml");
-    std::fs::write(&path, strip(300, "open")).unwrap();
-    let out = Command::cargo_bin("pinflow")
-        .unwrap()
-        .args(["edges", path.to_str().unwrap(), "--pin", "tunnel"])
-        .timeout(std::time::Duration::from_secs(120))
-        .output()
-        .unwrap();
-    assert_eq!(out.status.code(), Some(2));
-    assert!(String::from_utf8_lossy(&out.stderr).contains("--force"));
+    let dir = folder_with("wide.toml", &strip(300, "open"));
+    let out = pinflow_in(dir.path(), &["edges", "wide.toml", "--pin", "tunnel"]);
+    assert!(refused_stderr(&out, "edges").contains("--force"));
 }
 
 #[test]
 fn dims_on_the_dense_path_above_the_limit_is_refused_unless_forced() {
     // 600 open wires of 2 fields: 1200 fields on the dense path.
-    let open = system(&strip(600, "open"));
-    let e = refusal(pinflow::dims::check_size(&open, false).expect_err("1200 fields"));
-    assert_eq!(e.key, "--force");
-    assert!(e.message.contains("1200 fields"), "{}", e.message);
+    let open = strip_system(600, "open");
+    let message = assert_size_refusal(pinflow::dims::check_size(&open, false), 1200);
+    // The whole wording (shared with E141's, src/core/system.rs); derived:
+    // (1200 / 1024)^3 = 1.609.
+    assert_eq!(
+        message,
+        "the fixed point of all 1200 fields is computed with dense matrices (an open array or an explicit model), work growing like N^3, about 1.6 times that of 1024 fields (the limit, a few seconds); pass --force to run it anyway, or use a periodic array (computed per momentum q)"
+    );
     pinflow::dims::check_size(&open, true).expect("forced");
     // A periodic array of the same size goes through q-space: no limit.
-    pinflow::dims::check_size(&system(&strip(600, "periodic")), false).expect("q-space");
+    pinflow::dims::check_size(&strip_system(600, "periodic"), false).expect("q-space");
 }
 
 #[test]
 fn hunt_on_the_dense_path_above_the_limit_is_refused_unless_forced() {
     // 600 open wires: 1200 fields on the dense path, as for dims.
-    let open = system(&strip(600, "open"));
+    let open = strip_system(600, "open");
     let point = open.model.point_with(&[], "test").unwrap();
-    let e = search::hunt(&open, &point, &HuntOptions::default()).expect_err("1200 fields");
-    let e = refusal(e);
-    assert_eq!(e.key, "--force");
-    assert!(e.message.contains("1200 fields"), "{}", e.message);
+    assert_size_refusal(search::hunt(&open, &point, &HuntOptions::default()), 1200);
     // A ring of the same size takes D(q) per momentum: no limit, and fast.
-    let ring = system(&strip(600, "periodic"));
+    let ring = strip_system(600, "periodic");
     search::hunt(&ring, &point, &HuntOptions::default()).expect("ring");
 }
 
@@ -292,45 +385,27 @@ fn hunt_on_the_dense_path_above_the_limit_is_refused_unless_forced() {
 fn a_dense_flow_above_the_limit_is_refused_unless_forced() {
     // 300 open wires of 2 fields: 600 fields, every step multiplies dense
     // 600 x 600 matrices.
-    let open = system(&strip(300, "open"));
-    let e = refusal(pinflow::flow::limits::check_dense_size(&open, false).expect_err("600"));
-    assert_eq!(e.key, "--force");
-    assert!(e.message.contains("600 fields"), "{}", e.message);
-    pinflow::flow::limits::check_dense_size(&open, true).expect("forced");
+    use pinflow::flow::limits::{check_dense_size, DENSE_FLOW_FIELDS_LIMIT};
+    let open = strip_system(300, "open");
+    assert_size_refusal(check_dense_size(&open, false), 600);
+    check_dense_size(&open, true).expect("forced");
     // At the limit it runs; a ring of the same size flows per q: no limit.
-    let at = system(&strip(
-        pinflow::flow::limits::DENSE_FLOW_FIELDS_LIMIT / 2,
-        "open",
-    ));
-    pinflow::flow::limits::check_dense_size(&at, false).expect("at the limit");
-    pinflow::flow::limits::check_dense_size(&system(&strip(300, "periodic")), false)
-        .expect("q-space");
+    let at = strip_system(DENSE_FLOW_FIELDS_LIMIT / 2, "open");
+    check_dense_size(&at, false).expect("at the limit");
+    check_dense_size(&strip_system(300, "periodic"), false).expect("q-space");
 }
 
 #[test]
 fn flow_and_scan_refuse_a_dense_flow_above_the_limit_before_any_work() {
-    let dir = tempfile::tempdir().unwrap();
-    let path = dir.path().join("wide.toml");
-    std::fs::write(&path, strip(300, "open")).unwrap();
+    let dir = folder_with("wide.toml", &strip(300, "open"));
     for cmd in ["flow", "scan"] {
-        let out_dir = dir.path().join("out");
-        let out = Command::cargo_bin("pinflow")
-            .unwrap()
-            .args([
-                cmd,
-                path.to_str().unwrap(),
-                "--out",
-                out_dir.to_str().unwrap(),
-            ])
-            .timeout(std::time::Duration::from_secs(60))
-            .output()
-            .unwrap();
-        assert_eq!(out.status.code(), Some(2), "{cmd}");
-        let err = String::from_utf8_lossy(&out.stderr);
+        let out = pinflow_in(dir.path(), &[cmd, "wide.toml", "--out", "out"]);
+        let err = refused_stderr(&out, cmd);
         assert!(
             err.contains("--force") && err.contains("600 fields"),
             "{cmd}: {err}"
         );
+        let out_dir = dir.path().join("out");
         assert!(!out_dir.exists(), "{cmd} wrote files before refusing");
     }
 }
@@ -424,7 +499,7 @@ fn a_flow_reports_its_progress_over_ell_and_ends_the_same() {
     // (interval zero), it sees ell rising up to at most ell_max, at most
     // once per step, and the result is bit for bit the one without it.
     let sys = System::load(&demo("laughlin_third_strip.toml")).unwrap();
-    let point = sys.model.params.defaults().to_vec();
+    let point = point_of(&sys);
     let opts = FlowOptions::resolve(&sys.model, &FlowOverrides::default()).unwrap();
     let flow = pinflow::flow::Flow::new(&sys, opts);
     let plain = flow.run(&point).unwrap();
@@ -460,22 +535,10 @@ fn a_flow_off_a_terminal_prints_plain_progress_lines() {
     // The 32-wire strip (64 fields: about 0.1 s) with --progress-every
     // 0.002 and stderr piped: plain lines "flow: N/4000 ell/100 (...)";
     // none with 0; standard output identical either way.
-    let dir = tempfile::tempdir().unwrap();
-    std::fs::write(dir.path().join("s.toml"), strip(32, "open")).unwrap();
+    let dir = folder_with("s.toml", &strip(32, "open"));
     let run = |every: &str| {
-        let o = Command::cargo_bin("pinflow")
-            .unwrap()
-            .current_dir(dir.path())
-            .args([
-                "flow",
-                "s.toml",
-                "--format",
-                "json",
-                "--progress-every",
-                every,
-            ])
-            .output()
-            .unwrap();
+        let args = ["flow", "s.toml", "--format", "json", "--progress-every"];
+        let o = pinflow_in(dir.path(), &[&args[..], &[every]].concat());
         assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
         (
             common::without_provenance(&o.stdout),
@@ -495,37 +558,33 @@ fn a_flow_off_a_terminal_prints_plain_progress_lines() {
 
 // ------------------------------------------------------- hunted competitors
 
-fn pinflow_in(dir: &std::path::Path, args: &[&str]) -> std::process::Output {
-    Command::cargo_bin("pinflow")
-        .unwrap()
-        .current_dir(dir)
-        .args(args)
-        .timeout(std::time::Duration::from_secs(60))
-        .output()
-        .unwrap()
+/// A temporary folder holding `m.toml`, the explicit model of `wires`
+/// wires ([`explicit_array`]).
+fn explicit_folder(wires: usize) -> tempfile::TempDir {
+    folder_with("m.toml", &explicit_array(wires))
 }
 
-#[test]
-fn too_many_hunted_competitors_are_refused_before_the_enlarged_flow() {
-    let dir = tempfile::tempdir().unwrap();
-    std::fs::write(dir.path().join("m.toml"), explicit_array(8)).unwrap();
-    let out = pinflow_in(dir.path(), &["flow", "m.toml", "--competitors", "2"]);
-    assert_eq!(out.status.code(), Some(2));
-    let err = String::from_utf8_lossy(&out.stderr);
-    assert!(
-        err.contains("--competitors:") && err.contains("more than 2448 competitors"),
-        "{err}"
-    );
-    assert!(err.contains("pass --force"), "{err}");
-    // In a scan the point is recorded as failed (refused work), not as
-    // unphysical, and the scan goes on.
+/// The standard error of `flow m.toml --competitors DELTA ARGS` in `dir`,
+/// which must be refused (exit 2).
+#[track_caller]
+fn refused_competitor_flow(dir: &Path, delta: &str, args: &[&str]) -> String {
+    let flow = ["flow", "m.toml", "--competitors", delta];
+    let out = pinflow_in(dir, &[&flow[..], args].concat());
+    refused_stderr(&out, &format!("flow --competitors {delta} {args:?}"))
+}
+
+/// A scan of `m.toml` in `dir` with `--competitors DELTA` over two points
+/// of lambda: it goes on (exit 0) and records its first point as failed
+/// (refused work), not unphysical.
+#[track_caller]
+fn assert_scan_records_a_failed_point(dir: &Path, delta: &str) {
     let out = pinflow_in(
-        dir.path(),
+        dir,
         &[
             "scan",
             "m.toml",
             "--competitors",
-            "2",
+            delta,
             "--x",
             "lambda=0.8:0.81:2",
             "--out",
@@ -539,11 +598,25 @@ fn too_many_hunted_competitors_are_refused_before_the_enlarged_flow() {
         "{}",
         String::from_utf8_lossy(&out.stderr)
     );
-    let points = std::fs::read_to_string(dir.path().join("s/points.csv")).unwrap();
+    let points = std::fs::read_to_string(dir.join("s/points.csv")).unwrap();
     assert!(
         points.lines().nth(1).unwrap().starts_with("0.8,failed,"),
         "{points}"
     );
+}
+
+#[test]
+fn too_many_hunted_competitors_are_refused_before_the_enlarged_flow() {
+    let dir = explicit_folder(8);
+    let err = refused_competitor_flow(dir.path(), "2", &[]);
+    assert!(
+        err.contains("--competitors:") && err.contains("more than 2448 competitors"),
+        "{err}"
+    );
+    assert!(err.contains("pass --force"), "{err}");
+    // In a scan the point is recorded as failed (refused work), not as
+    // unphysical, and the scan goes on.
+    assert_scan_records_a_failed_point(dir.path(), "2");
 }
 
 #[test]
@@ -552,14 +625,8 @@ fn even_force_stops_at_the_competitor_ceiling() {
     // terms and their pairs closure), (84 + 24057)^2 x 24 = 1.4e10 units of
     // work, above 100 times the limit. The hunt stops past the most that
     // fit: (84 + 20328)^2 x 24 <= 1e10 < (84 + 20329)^2 x 24.
-    let dir = tempfile::tempdir().unwrap();
-    std::fs::write(dir.path().join("m.toml"), explicit_array(12)).unwrap();
-    let out = pinflow_in(
-        dir.path(),
-        &["flow", "m.toml", "--competitors", "2", "--force"],
-    );
-    assert_eq!(out.status.code(), Some(2));
-    let err = String::from_utf8_lossy(&out.stderr);
+    let dir = explicit_folder(12);
+    let err = refused_competitor_flow(dir.path(), "2", &["--force"]);
     assert!(
         err.contains("more than 20328 competitors") && err.contains("even --force"),
         "{err}"
@@ -573,11 +640,8 @@ fn a_refused_hunt_for_competitors_names_this_commands_flags() {
     // --max-dim or --range: the refusal speaks of --competitors and
     // --competitor-range, and a scan records the point as failed (refused
     // work), not unphysical.
-    let dir = tempfile::tempdir().unwrap();
-    std::fs::write(dir.path().join("m.toml"), explicit_array(20)).unwrap();
-    let out = pinflow_in(dir.path(), &["flow", "m.toml", "--competitors", "3"]);
-    assert_eq!(out.status.code(), Some(2));
-    let err = String::from_utf8_lossy(&out.stderr);
+    let dir = explicit_folder(20);
+    let err = refused_competitor_flow(dir.path(), "3", &[]);
     assert!(
         err.contains("--competitors: at ") && err.contains("the hunt for competitors"),
         "{err}"
@@ -587,25 +651,40 @@ fn a_refused_hunt_for_competitors_names_this_commands_flags() {
         !err.contains("--max-dim") && !err.contains(" --range"),
         "{err}"
     );
-    let out = pinflow_in(
-        dir.path(),
-        &[
-            "scan",
-            "m.toml",
-            "--competitors",
-            "3",
-            "--x",
-            "lambda=0.8:0.81:2",
-            "--out",
-            "s",
-            "--quiet",
-        ],
-    );
-    assert_eq!(out.status.code(), Some(0));
-    let points = std::fs::read_to_string(dir.path().join("s/points.csv")).unwrap();
+    // The hunt's check of its window names this command's flag too (E72).
+    let err = refused_competitor_flow(dir.path(), "3", &["--competitor-range", "2"]);
     assert!(
-        points.lines().nth(1).unwrap().starts_with("0.8,failed,"),
-        "{points}"
+        err.contains("--competitor-range: applies to arrays of wires only"),
+        "{err}"
+    );
+    assert_scan_records_a_failed_point(dir.path(), "3");
+}
+
+#[test]
+fn a_competitor_range_from_the_model_file_names_the_file_and_key() {
+    // The same checks as for --competitor-range, made when the file is read.
+    let wide = format!(
+        "{}\n[competitors]\ndelta = 2\nrange = 9\n",
+        strip(8, "open")
+    );
+    let dir = folder_with("m.toml", &wide);
+    let err = refused_stderr(&pinflow_in(dir.path(), &["flow", "m.toml"]), "range 9 of 8");
+    assert!(
+        err.contains("m.toml: competitors.range: expected at most 8 (the number of wires of the array), found 9"),
+        "{err}"
+    );
+    let explicit = format!(
+        "{}\n[competitors]\ndelta = 2\nrange = 1\n",
+        explicit_array(2)
+    );
+    let dir = folder_with("m.toml", &explicit);
+    let err = refused_stderr(
+        &pinflow_in(dir.path(), &["dims", "m.toml"]),
+        "explicit range",
+    );
+    assert!(
+        err.contains("m.toml: competitors.range: applies to arrays of wires only"),
+        "{err}"
     );
 }
 
@@ -614,10 +693,8 @@ fn the_competitor_hunt_stops_early_only_when_the_refusal_is_certain() {
     // The refusal's "more than N" must be a true lower bound: the full
     // listing of `hunt` (same bound; the model's charge and spin are 0, as
     // hunt's defaults) has more than N operators that are not model terms.
-    let dir = tempfile::tempdir().unwrap();
-    std::fs::write(dir.path().join("m.toml"), explicit_array(8)).unwrap();
-    let out = pinflow_in(dir.path(), &["flow", "m.toml", "--competitors", "2"]);
-    let err = String::from_utf8_lossy(&out.stderr);
+    let dir = explicit_folder(8);
+    let err = refused_competitor_flow(dir.path(), "2", &[]);
     let n: usize = err
         .split("more than ")
         .nth(1)

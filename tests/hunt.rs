@@ -21,7 +21,7 @@ mod search {
     use pinflow::math::{bareiss, zmat};
     use pinflow::model::Model;
     use pinflow::search::{
-        emit_terms, hunt, ChargeFilter, HuntOptions, HuntReport, MomentumFilter, SpinFilter,
+        emit_terms, hunt, ChargeFilter, HuntOptions, HuntReport, MomentumFilter,
     };
     use rand::{Rng, SeedableRng};
     use rand_chacha::ChaCha8Rng;
@@ -43,15 +43,7 @@ mod search {
         }
     }
 
-    fn everything(max_dim: f64) -> HuntOptions {
-        HuntOptions {
-            max_dim,
-            charge: ChargeFilter::Any,
-            spin: SpinFilter::Any,
-            momentum: Some(MomentumFilter::Any),
-            ..HuntOptions::default()
-        }
-    }
+    use common::every_operator as everything;
 
     // ------------------------------------------------------------ brute force
 

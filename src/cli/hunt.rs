@@ -11,9 +11,9 @@ use super::common::{
 };
 use crate::error::Error;
 use crate::search::{
-    emit_terms, hunt_with_progress, render, smallest_coupling, ChargeFilter, HuntOptions,
-    MomentumFilter, Progress, SpinFilter, SymmetryChoice, DEFAULT_LIMIT, FORCED_MAX_LISTED,
-    MAX_LISTED,
+    emit_terms, hunt_with_progress, render, smallest_coupling, ChargeFilter, HuntFlags,
+    HuntOptions, MomentumFilter, Progress, SpinFilter, SymmetryChoice, DEFAULT_LIMIT,
+    FORCED_MAX_LISTED, MAX_LISTED,
 };
 
 /// `pinflow hunt`.
@@ -169,6 +169,7 @@ fn options(args: &HuntArgs) -> HuntOptions {
         forced_max_listed: FORCED_MAX_LISTED,
         symmetry: args.symmetry.clone(),
         stop_above: None,
+        flags: HuntFlags::HUNT,
     }
 }
 

@@ -9,6 +9,9 @@
 //! numbers up to rounding) and the infinite array (a refined quadrature,
 //! [`System::q_converged`]). An infinite array has no dense path: its
 //! `lattice` is the periodic stand-in ring used for exact data.
+//!
+//! Also owns the wording of every refusal of dense work above its limit
+//! ([`System::refuse_dense`], [`DenseWork`]); each caller keeps its limit.
 
 use std::path::Path;
 
@@ -93,18 +96,52 @@ const K_LARGE: f64 = 1e4;
 /// arrays go through q-space and are not limited.
 pub const DENSE_FIELDS_LIMIT: usize = 1024;
 
+/// The work on the dense path that a refusal names
+/// ([`System::refuse_dense`], which owns the wording of both).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum DenseWork {
+    /// The fixed point at a point (`dims`, `hunt`; limit
+    /// [`DENSE_FIELDS_LIMIT`]).
+    FixedPoint,
+    /// A flow (`flow`, `scan`; its limit lives in `flow::limits`): every
+    /// step of the integration multiplies N x N matrices.
+    Flow,
+}
+
 impl System {
     /// Refuse, before any work, a dense fixed point above
     /// [`DENSE_FIELDS_LIMIT`] fields unless `force`, naming the estimate and
     /// the flag.
     pub fn check_dense_size(&self, force: bool) -> Result<(), Error> {
-        let Some((n, factor)) = self.dense_above(DENSE_FIELDS_LIMIT, force) else {
+        self.refuse_dense(DENSE_FIELDS_LIMIT, force, DenseWork::FixedPoint)
+    }
+
+    /// Refuse `work` on the dense path above `limit` fields unless `force`
+    /// ([`Self::dense_above`]): the one wording of every such refusal (E141
+    /// in docs/errors.md), with the estimate, `--force` and the periodic
+    /// array as the ways out.
+    pub fn refuse_dense(&self, limit: usize, force: bool, work: DenseWork) -> Result<(), Error> {
+        let Some((n, factor)) = self.dense_above(limit, force) else {
             return Ok(());
+        };
+        let (task, verb, step, at_limit) = match work {
+            DenseWork::FixedPoint => (
+                "the fixed point",
+                "is computed with",
+                String::new(),
+                "a few seconds",
+            ),
+            DenseWork::Flow => (
+                "the flow",
+                "runs on",
+                format!(": every step multiplies {n} x {n} matrices"),
+                "several seconds per flow",
+            ),
         };
         Err(Error::refused(
             "--force",
             format!(
-                "the fixed point of all {n} fields is computed with dense matrices (an open array or an explicit model), work growing like N^3, about {factor:.1} times that of {DENSE_FIELDS_LIMIT} fields (the limit, a few seconds); pass --force to run it anyway, or use a periodic array (computed per momentum q)"
+                "{task} of all {n} fields {verb} dense matrices (an open array or an explicit model){step}, work growing like N^3, about {factor:.1} times that of {limit} fields (the limit, {at_limit}); pass --force to run it anyway, or use a periodic array (computed per momentum q)"
             ),
         ))
     }

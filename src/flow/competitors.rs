@@ -30,11 +30,21 @@ use crate::error::{Error, InputError};
 use crate::math::rational::Rational;
 use crate::model::{Content, Model, Scalar, TermSpec};
 use crate::search::{
-    self, ChargeFilter, HuntOptions, HuntReport, Operator, SpinFilter, SymmetryChoice,
+    self, ChargeFilter, HuntFlags, HuntOptions, HuntReport, Operator, SpinFilter, SymmetryChoice,
 };
 
 /// Prefix of the names of hunted competitors.
 pub const PREFIX: &str = "auto:";
+
+/// The flags that set the hunt's bound and window here, named by its
+/// errors and refusals (E143 in docs/errors.md); its charge and spin
+/// filters are the model's (no flag).
+pub const COMPETITOR_FLAGS: HuntFlags = HuntFlags {
+    max_dim: "--competitors",
+    max_dim_value: "--competitors DELTA",
+    range: "--competitor-range",
+    filters: None,
+};
 
 /// What to hunt for at each point.
 #[derive(Debug, Clone, PartialEq, serde::Serialize)]
@@ -282,22 +292,16 @@ impl<'s> Competing<'s> {
         Error::refused("--competitors", format!("{found}; {how}"))
     }
 
-    /// A refusal of the hunt at `point`, in this command's flags: the
-    /// hunt's `--max-dim` and `--range` are `--competitors` and
-    /// `--competitor-range` here, and its charge and spin filters are the
-    /// model's (no flag).
+    /// A refusal of the hunt at `point` (worded in this command's flags,
+    /// [`COMPETITOR_FLAGS`]), with the point and the bound.
     fn hunt_refused(&self, e: InputError, point: &[f64]) -> Error {
-        let message = e
-            .message
-            .replace(", the filters --spin 0 and --charge 0", "")
-            .replace("--max-dim", "--competitors DELTA")
-            .replace("--range", "--competitor-range");
         Error::refused(
             "--competitors",
             format!(
-                "at {} the hunt for competitors with bare Delta <= {} is refused: {message}",
+                "at {} the hunt for competitors with bare Delta <= {} is refused: {}",
                 self.sys.model.params.describe(point),
-                self.comp.delta
+                self.comp.delta,
+                e.message
             ),
         )
     }
@@ -323,6 +327,7 @@ impl<'s> Competing<'s> {
             symmetry: self.comp.symmetry.clone(),
             force: self.comp.force,
             stop_above: Some(self.stop_above()),
+            flags: COMPETITOR_FLAGS,
             ..HuntOptions::default()
         }
     }

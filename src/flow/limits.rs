@@ -4,7 +4,7 @@
 //! channel limit lives with the closure ([`super::channels::check_closure`]).
 
 use super::options::{Closure, FlowOptions};
-use crate::core::system::System;
+use crate::core::system::{DenseWork, System};
 use crate::error::Error;
 
 /// Most fields a flow on the dense path (open arrays, explicit models)
@@ -22,15 +22,7 @@ pub fn check_work(sys: &System, opts: &FlowOptions, force: bool) -> Result<(), E
 }
 
 /// Refuse a dense flow above [`DENSE_FLOW_FIELDS_LIMIT`] fields unless
-/// `force`.
+/// `force` (E141 in docs/errors.md).
 pub fn check_dense_size(sys: &System, force: bool) -> Result<(), Error> {
-    let Some((n, factor)) = sys.dense_above(DENSE_FLOW_FIELDS_LIMIT, force) else {
-        return Ok(());
-    };
-    Err(Error::refused(
-        "--force",
-        format!(
-            "the flow of all {n} fields runs on dense matrices (an open array or an explicit model): every step multiplies {n} x {n} matrices, work growing like N^3, about {factor:.1} times that of {DENSE_FLOW_FIELDS_LIMIT} fields (the limit, several seconds per flow); pass --force to run it anyway, or use a periodic array (computed per momentum q)"
-        ),
-    ))
+    sys.refuse_dense(DENSE_FLOW_FIELDS_LIMIT, force, DenseWork::Flow)
 }

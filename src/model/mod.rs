@@ -267,6 +267,7 @@ impl Model {
         model.symmetries = symmetry::read_symmetries(&ctx, &raw.symmetry, &model.cell_k)?;
         model.terms = read_terms(&ctx, &model, &raw.term)?;
         model.competitors = read_competitors(&ctx, raw.competitors.as_ref())?;
+        check_competitor_range(&ctx, &model)?;
         model.flow_table = raw.flow;
         model.scan_table = raw.scan;
         Ok(model)
@@ -1194,6 +1195,30 @@ fn tie_groups(ctx: &Ctx, raw: &[RawTerm], terms: &mut [TermSpec]) -> Result<(), 
         }
     }
     Ok(())
+}
+
+/// `[competitors] range` against the model's layout, so that an error names
+/// the file and key (as `--competitor-range` is checked when the hunt's
+/// window is chosen): arrays only, and at most the wires of a finite array.
+fn check_competitor_range(ctx: &Ctx, model: &Model) -> Result<(), InputError> {
+    let Some(r) = model.competitors.range else {
+        return Ok(());
+    };
+    let key = "competitors.range";
+    match model.structure {
+        Structure::Explicit => Err(ctx.err(
+            key,
+            "applies to arrays of wires only; this model gives [fields], and all of its fields are searched",
+        )),
+        Structure::Array {
+            wires: Wires::Finite(w),
+            ..
+        } if r > w => Err(ctx.err(
+            key,
+            format!("expected at most {w} (the number of wires of the array), found {r}"),
+        )),
+        Structure::Array { .. } => Ok(()),
+    }
 }
 
 /// The `[competitors]` table: `delta`, `coupling` (numbers) and `range`

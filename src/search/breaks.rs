@@ -35,6 +35,7 @@ use num_traits::{Signed, Zero};
 
 use super::symmetry::{in_use, InUse};
 use super::window::Window;
+use super::HuntFlags;
 use crate::core::system::System;
 use crate::dims::DimsReport;
 use crate::error::Error;
@@ -219,7 +220,8 @@ pub fn broken_symmetries(sys: &System, point: &[f64]) -> Result<Broken, Error> {
     if sys.model.symmetries.is_empty() {
         return Ok(out);
     }
-    let window = Window::choose(sys, None)?;
+    // No range is given, so no error names the flag.
+    let window = Window::choose(sys, None, HuntFlags::HUNT.range)?;
     let classes = Classes::of(sys, point, &window);
     for s in &sys.model.symmetries {
         match &s.kind {

@@ -182,6 +182,42 @@ pub struct HuntOptions {
     /// every filter: it applies only when no Z_n map is in use (orbit sums
     /// that vanish remove operators after the enumeration).
     pub stop_above: Option<usize>,
+    /// The names of the flags that set these options, for the errors and
+    /// refusals that name them.
+    pub flags: HuntFlags,
+}
+
+/// The names under which a command sets the search's bound and window:
+/// its errors and refusals name them at the source, so that a command that
+/// runs the search under flags of its own (`flow --competitors`) needs no
+/// rewording.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct HuntFlags {
+    /// Sets [`HuntOptions::max_dim`]; the key of the search's refusals.
+    pub max_dim: &'static str,
+    /// The same with its value, as a refusal asks for a smaller one.
+    pub max_dim_value: &'static str,
+    /// Sets [`HuntOptions::range`].
+    pub range: &'static str,
+    /// The filters a refusal of too many operators suggests (None: the
+    /// command has no such flags).
+    pub filters: Option<&'static str>,
+}
+
+impl HuntFlags {
+    /// Those of `hunt` itself.
+    pub const HUNT: HuntFlags = HuntFlags {
+        max_dim: "--max-dim",
+        max_dim_value: "--max-dim",
+        range: "--range",
+        filters: Some("--spin 0 and --charge 0"),
+    };
+}
+
+impl Default for HuntFlags {
+    fn default() -> Self {
+        HuntFlags::HUNT
+    }
 }
 
 impl Default for HuntOptions {
@@ -198,6 +234,7 @@ impl Default for HuntOptions {
             forced_max_listed: FORCED_MAX_LISTED,
             symmetry: SymmetryChoice::All,
             stop_above: None,
+            flags: HuntFlags::HUNT,
         }
     }
 }
@@ -497,15 +534,15 @@ fn estimate(ell: &Ellipsoid, space: &Space, opts: &HuntOptions) -> Result<Estima
     };
     if estimate.points() > opts.limit && !opts.force {
         return Err(Error::refused(
-            "--max-dim",
+            opts.flags.max_dim,
             format!(
-                "the search would examine about {:.2e} lattice points in {} dimensions (ellipsoid volume {:.2e}, search-tree estimate {:.2e}), above the limit {:.0e}; narrow it with a smaller --max-dim{}, or pass --force to run it anyway",
+                "the search would examine about {:.2e} lattice points in {} dimensions (ellipsoid volume {:.2e}, search-tree estimate {:.2e}), above the limit {:.0e}; narrow it with {}, or pass --force to run it anyway",
                 estimate.points(),
                 ell.dim(),
                 estimate.volume,
                 estimate.tree,
                 opts.limit,
-                if space.window.array { " or --range" } else { "" }
+                narrower(space, opts)
             ),
         ));
     }
@@ -596,11 +633,15 @@ fn enumerate(
         } else {
             ""
         };
+        let filters = match opts.flags.filters {
+            Some(f) => format!(", the filters {f}"),
+            None => String::new(),
+        };
         return Err(Error::refused(
-            "--max-dim",
+            opts.flags.max_dim,
             format!(
-                "more than {cap} operators match{how}; narrow the search with a smaller --max-dim{}, the filters --spin 0 and --charge 0{}",
-                if space.window.array { " or --range" } else { "" },
+                "more than {cap} operators match{how}; narrow the search with {}{filters}{}",
+                narrower(space, opts),
                 if opts.force { "" } else { ", or pass --force" }
             ),
         ));
@@ -617,13 +658,24 @@ fn enumerate(
 /// [`LIMIT_OVERRUN`] times its limit although its estimate was below it.
 fn overrun_error(space: &Space, opts: &HuntOptions, visited: u64) -> Error {
     Error::refused(
-        "--max-dim",
+        opts.flags.max_dim,
         format!(
-            "the search passed {visited} lattice points, more than {LIMIT_OVERRUN} times the limit {:.0e} its estimate stayed below (the ellipsoid is very long in some direction: V is nearly singular at this point); narrow it with a smaller --max-dim{}, or pass --force to run it anyway",
+            "the search passed {visited} lattice points, more than {LIMIT_OVERRUN} times the limit {:.0e} its estimate stayed below (the ellipsoid is very long in some direction: V is nearly singular at this point); narrow it with {}, or pass --force to run it anyway",
             opts.limit,
-            if space.window.array { " or --range" } else { "" }
+            narrower(space, opts)
         ),
     )
+}
+
+/// How a refusal asks for a smaller search, in the caller's flags
+/// ([`HuntOptions::flags`]): "a smaller --max-dim", and "or --range" on
+/// arrays (whose window can narrow).
+fn narrower(space: &Space, opts: &HuntOptions) -> String {
+    let flags = &opts.flags;
+    match space.window.array {
+        true => format!("a smaller {} or {}", flags.max_dim_value, flags.range),
+        false => format!("a smaller {}", flags.max_dim_value),
+    }
 }
 
 /// Most operators kept: `max_listed`, or with `force` the larger
@@ -734,7 +786,7 @@ pub fn hunt_with_progress(
 ) -> Result<HuntReport, Error> {
     if !(opts.max_dim.is_finite() && opts.max_dim > 0.0) {
         return Err(cmd_error(
-            "--max-dim",
+            opts.flags.max_dim,
             format!(
                 "expected a finite number > 0 (a scaling dimension), found {}",
                 opts.max_dim
@@ -742,7 +794,7 @@ pub fn hunt_with_progress(
         ));
     }
     sys.model.check_point(point)?;
-    let window = Window::choose(sys, opts.range)?;
+    let window = Window::choose(sys, opts.range, opts.flags.range)?;
     let chosen = symmetry::chosen(sys, &opts.symmetry)?;
     let momenta = Momenta::at(sys, point, opts)?;
     sys.check_dense_size(opts.force)?;

@@ -42,11 +42,12 @@ pub struct Window {
 
 impl Window {
     /// The window for a model and an optional `--range` (R; by default
-    /// [`default_range`]). Errors name `--range`: 0, more wires than the
-    /// array has, or any value for an explicit model.
-    pub fn choose(sys: &System, range: Option<usize>) -> Result<Window, InputError> {
+    /// [`default_range`]). Errors name `flag` (the one that set R, e.g.
+    /// `--range`): 0, more wires than the array has, or any value for an
+    /// explicit model.
+    pub fn choose(sys: &System, range: Option<usize>, flag: &str) -> Result<Window, InputError> {
         let lat = &sys.lattice;
-        let cmd = |m: String| InputError::new("command line", "--range", m);
+        let cmd = |m: String| InputError::new("command line", flag, m);
         match sys.model.structure {
             Structure::Explicit => {
                 if range.is_some() {

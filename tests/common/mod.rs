@@ -11,6 +11,7 @@ use pinflow::core::system::System;
 use pinflow::dims::{DimsReport, TermRow};
 use pinflow::error::{Error, InputError};
 use pinflow::model::Model;
+use pinflow::search::{ChargeFilter, HuntOptions, MomentumFilter, SpinFilter};
 
 /// The pinflow binary built for these tests.
 pub const BIN: &str = env!("CARGO_BIN_EXE_pinflow");
@@ -54,6 +55,18 @@ pub fn input_error(e: Error) -> InputError {
     match e {
         Error::Input(e) => e,
         other => panic!("expected an input error, got {other}"),
+    }
+}
+
+/// Search options that keep every charge, spin and momentum up to
+/// `max_dim`.
+pub fn every_operator(max_dim: f64) -> HuntOptions {
+    HuntOptions {
+        max_dim,
+        charge: ChargeFilter::Any,
+        spin: SpinFilter::Any,
+        momentum: Some(MomentumFilter::Any),
+        ..HuntOptions::default()
     }
 }
 
