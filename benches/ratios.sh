@@ -68,12 +68,19 @@ import re; t = open('$tmp/scipy.txt').read()
 print(float(re.search(r'CPU ([0-9.]+) s', t).group(1)))")
 agree=$(grep '^compared' "$tmp/scipy.txt")
 
-# dims on a 512-wire (1024-field) periodic array of the filling-1/3 demo.
+# dims on a 512-wire (1024-field) periodic array of the filling-1/3 demo,
+# wall time, best of 5 (single runs on this machine now and then spend
+# 50-300 ms in the kernel, whatever the program).
 sed 's/^wires = 8$/wires = 512/' flows/laughlin_third.toml > "$tmp/ring512.toml"
-start=$(date +%s.%N)
-$bin dims "$tmp/ring512.toml" > /dev/null
-end=$(date +%s.%N)
-dims=$(python3 -c "print(($end - $start) * 1e3)")
+dims=$(python3 -c '
+import subprocess, sys, time
+best = None
+for _ in range(5):
+    t = time.perf_counter()
+    subprocess.run(sys.argv[1:], check=True, stdout=subprocess.DEVNULL)
+    t = time.perf_counter() - t
+    best = t if best is None else min(best, t)
+print(best * 1e3)' $bin dims "$tmp/ring512.toml")
 
 # One flow with 18 hunted competitors on the 10-wire bilayer array (40
 # fields), CPU time including start-up, best of 5 (issue 16: under 0.2 s).
