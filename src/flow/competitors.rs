@@ -43,6 +43,7 @@ pub const COMPETITOR_FLAGS: HuntFlags = HuntFlags {
     max_dim: "--competitors",
     max_dim_value: "--competitors DELTA",
     range: "--competitor-range",
+    symmetry: "--competitor-symmetry",
     filters: None,
 };
 
@@ -138,13 +139,7 @@ impl<'s> Competing<'s> {
     /// Prepare; the symmetry names are checked here.
     pub fn new(sys: &'s System, opts: FlowOptions, comp: CompetitorOptions) -> Result<Self, Error> {
         // The same check as `hunt --symmetry`, under this command's flag.
-        search::symmetry::chosen(sys, &comp.symmetry).map_err(|e| match e {
-            Error::Input(mut e) if e.key == "--symmetry" => {
-                e.key = "--competitor-symmetry".to_string();
-                Error::Input(e)
-            }
-            e => e,
-        })?;
+        search::symmetry::chosen(sys, &comp.symmetry, COMPETITOR_FLAGS.symmetry)?;
         Ok(Competing {
             sys,
             plain: Flow::new(sys, opts),

@@ -199,6 +199,8 @@ pub struct HuntFlags {
     pub max_dim_value: &'static str,
     /// Sets [`HuntOptions::range`].
     pub range: &'static str,
+    /// Sets [`HuntOptions::symmetry`].
+    pub symmetry: &'static str,
     /// The filters a refusal of too many operators suggests (None: the
     /// command has no such flags).
     pub filters: Option<&'static str>,
@@ -210,6 +212,7 @@ impl HuntFlags {
         max_dim: "--max-dim",
         max_dim_value: "--max-dim",
         range: "--range",
+        symmetry: "--symmetry",
         filters: Some("--spin 0 and --charge 0"),
     };
 }
@@ -795,7 +798,7 @@ pub fn hunt_with_progress(
     }
     sys.model.check_point(point)?;
     let window = Window::choose(sys, opts.range, opts.flags.range)?;
-    let chosen = symmetry::chosen(sys, &opts.symmetry)?;
+    let chosen = symmetry::chosen(sys, &opts.symmetry, opts.flags.symmetry)?;
     let momenta = Momenta::at(sys, point, opts)?;
     sys.check_dense_size(opts.force)?;
     let d = window_d(sys, point, &window)?;

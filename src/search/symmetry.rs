@@ -45,8 +45,12 @@ pub enum SymmetryChoice {
 }
 
 /// The symmetries chosen, checked against the model's names (each named
-/// once).
-pub fn chosen<'m>(sys: &'m System, choice: &SymmetryChoice) -> Result<Vec<&'m Symmetry>, Error> {
+/// once); errors name `flag`, the flag that made the choice.
+pub fn chosen<'m>(
+    sys: &'m System,
+    choice: &SymmetryChoice,
+    flag: &str,
+) -> Result<Vec<&'m Symmetry>, Error> {
     let all = &sys.model.symmetries;
     match choice {
         SymmetryChoice::All => Ok(all.iter().collect()),
@@ -56,17 +60,17 @@ pub fn chosen<'m>(sys: &'m System, choice: &SymmetryChoice) -> Result<Vec<&'m Sy
             if let Some(n) = repeated.map(|i| &names[i]) {
                 return Err(Error::Input(InputError::new(
                     "command line",
-                    "--symmetry",
+                    flag,
                     format!("symmetry `{n}` is named twice; expected all, none or a comma-separated list of distinct names"),
                 )));
             }
-            by_name(sys, names)
+            by_name(sys, names, flag)
         }
     }
 }
 
 /// The named symmetries of the model, in the order named.
-fn by_name<'m>(sys: &'m System, names: &[String]) -> Result<Vec<&'m Symmetry>, Error> {
+fn by_name<'m>(sys: &'m System, names: &[String], flag: &str) -> Result<Vec<&'m Symmetry>, Error> {
     let all = &sys.model.symmetries;
     names
             .iter()
@@ -80,7 +84,7 @@ fn by_name<'m>(sys: &'m System, names: &[String]) -> Result<Vec<&'m Symmetry>, E
                     };
                     Error::Input(InputError::new(
                         "command line",
-                        "--symmetry",
+                        flag,
                         format!("unknown symmetry `{n}` ({known}); expected all, none or a comma-separated list of names"),
                     ))
                 })
