@@ -107,14 +107,29 @@ pub fn phase_diagram(path_stem: &Path, data: &PhaseMap) -> Result<(), PlotError>
 /// Writes `<path_stem>.png` and `<path_stem>.svg`: cells coloured with
 /// viridis, a colour bar with ticks, and missing values in grey.
 pub fn heat_map(path_stem: &Path, data: &HeatMap) -> Result<(), PlotError> {
+    check_heat(path_stem, data)?;
+    output::write_figure(path_stem, data)
+}
+
+/// [`phase_diagram`] and [`heat_map`] at once (their formats drawn as
+/// tasks shared by the pool's threads): the same files.
+pub fn phase_diagram_and_heat_map(
+    phase: (&Path, &PhaseMap),
+    heat: (&Path, &HeatMap),
+) -> Result<(), PlotError> {
+    check_phase(phase.1).map_err(|m| PlotError::new(phase.0, m))?;
+    check_heat(heat.0, heat.1)?;
+    super::pair::write_pair(phase, heat)
+}
+
+fn check_heat(path_stem: &Path, data: &HeatMap) -> Result<(), PlotError> {
     check_grid(
         &data.xs,
         &data.ys,
         data.values.len(),
         (data.x_log, data.y_log),
     )
-    .map_err(|m| PlotError::new(path_stem, m))?;
-    output::write_figure(path_stem, data)
+    .map_err(|m| PlotError::new(path_stem, m))
 }
 
 fn check_grid(xs: &[f64], ys: &[f64], cells: usize, log: (bool, bool)) -> Result<(), String> {
@@ -679,6 +694,42 @@ mod tests {
         bad.category_colours = Some(vec![(0, 0, 0)]);
         assert!(phase_diagram(&stem, &bad).is_err());
         assert!(!sibling(&stem, "png").exists() && !sibling(&stem, "svg").exists());
+    }
+
+    #[test]
+    fn the_pair_writes_the_bytes_each_figure_writes_alone() {
+        // Both styles: the paper style also writes the .txt files.
+        for look in [
+            crate::plot::FigureStyle::Screen,
+            crate::plot::FigureStyle::Paper,
+        ] {
+            crate::plot::styled(look, || {
+                let dir = tempfile::tempdir().unwrap();
+                let (phase, heat) = (sample_phase(), sample_heat(true));
+                let alone = dir.path().join("alone");
+                let pair = dir.path().join("pair");
+                phase_diagram(&alone.join("phase"), &phase).unwrap();
+                heat_map(&alone.join("heat"), &heat).unwrap();
+                phase_diagram_and_heat_map(
+                    (&pair.join("phase"), &phase),
+                    (&pair.join("heat"), &heat),
+                )
+                .unwrap();
+                let names = |d: &Path| {
+                    let mut v: Vec<_> = std::fs::read_dir(d)
+                        .unwrap()
+                        .map(|e| e.unwrap().file_name())
+                        .collect();
+                    v.sort();
+                    v
+                };
+                assert_eq!(names(&alone), names(&pair));
+                for name in names(&alone) {
+                    let a = std::fs::read(alone.join(&name)).unwrap();
+                    assert_eq!(a, std::fs::read(pair.join(&name)).unwrap(), "{name:?}");
+                }
+            });
+        }
     }
 
     fn sample_heat(with_missing: bool) -> HeatMap {

@@ -30,6 +30,7 @@ pub mod lines;
 mod logaxis;
 pub mod map;
 mod output;
+mod pair;
 pub mod palette;
 mod pdf;
 pub mod style;
@@ -39,8 +40,8 @@ pub use lines::{
     LineScanFigure,
 };
 pub use map::{
-    contour_lines, heat_map, phase_diagram, Contour, ContourTracer, HeatMap, PhaseMap,
-    MAX_SVG_RECTS,
+    contour_lines, heat_map, phase_diagram, phase_diagram_and_heat_map, Contour, ContourTracer,
+    HeatMap, PhaseMap, MAX_SVG_RECTS,
 };
 
 pub use crate::error::PlotError;

@@ -82,34 +82,59 @@ pub(crate) fn msg<E: std::fmt::Display>(e: E) -> String {
 /// caption), since neither is drawn in.
 pub(crate) fn write_figure(stem: &Path, figure: &(impl Figure + Sync)) -> Result<(), PlotError> {
     font::ensure_registered().map_err(|m| PlotError::new(stem, m))?;
-    let png_path = with_suffix(stem, ".png");
-    let svg_path = with_suffix(stem, ".svg");
-    let pdf_path = with_suffix(stem, ".pdf");
     // Render and encode all in memory first: drawing errors never touch the
     // disk. The raster and the vector formats at once (each thread with the
     // caller's thread-local style); the bytes do not depend on the thread.
     let look = style::figure_style();
     let (png, vector) = rayon::join(
-        || {
-            style::styled(look, || {
-                render_rgb(figure).and_then(|p| encode_canvas_png(&p))
-            })
-        },
-        || {
-            style::styled(look, || {
-                let svg = render_svg(figure).map_err(|m| PlotError::new(&svg_path, m))?;
-                let pdf = super::pdf::from_svg(&svg, style::pdf_dpi())
-                    .map_err(|m| PlotError::new(&pdf_path, m))?;
-                Ok::<_, PlotError>((svg, pdf))
-            })
-        },
+        || style::styled(look, || raster_png(stem, figure)),
+        || style::styled(look, || vector_formats(stem, figure)),
     );
-    let png = png.map_err(|m| PlotError::new(&png_path, m))?;
-    let (svg, pdf) = vector?;
+    save_figure(stem, figure, png?, vector?)
+}
+
+/// The PNG bytes of `figure` (the file `<stem>.png` names its errors).
+pub(crate) fn raster_png(stem: &Path, figure: &impl Figure) -> Result<Vec<u8>, PlotError> {
+    render_rgb(figure)
+        .and_then(|p| encode_canvas_png(&p))
+        .map_err(|m| PlotError::new(&with_suffix(stem, ".png"), m))
+}
+
+/// The pixels of `figure`, for [`encode_canvas`] (two steps, so that the
+/// encoding can run on another thread).
+pub(crate) fn raster_pixels(stem: &Path, figure: &impl Figure) -> Result<Vec<u8>, PlotError> {
+    render_rgb(figure).map_err(|m| PlotError::new(&with_suffix(stem, ".png"), m))
+}
+
+/// The PNG bytes of pixels from [`raster_pixels`].
+pub(crate) fn encode_canvas(stem: &Path, pixels: &[u8]) -> Result<Vec<u8>, PlotError> {
+    encode_canvas_png(pixels).map_err(|m| PlotError::new(&with_suffix(stem, ".png"), m))
+}
+
+/// The SVG text and PDF bytes of `figure`.
+pub(crate) fn vector_formats(
+    stem: &Path,
+    figure: &impl Figure,
+) -> Result<(String, Vec<u8>), PlotError> {
+    let svg = render_svg(figure).map_err(|m| PlotError::new(&with_suffix(stem, ".svg"), m))?;
+    let pdf = super::pdf::from_svg(&svg, style::pdf_dpi())
+        .map_err(|m| PlotError::new(&with_suffix(stem, ".pdf"), m))?;
+    Ok((svg, pdf))
+}
+
+/// Writes the rendered formats of `figure`, and in the paper style its
+/// `<stem>.txt`.
+pub(crate) fn save_figure(
+    stem: &Path,
+    figure: &impl Figure,
+    png: Vec<u8>,
+    (svg, pdf): (String, Vec<u8>),
+) -> Result<(), PlotError> {
+    let png_path = with_suffix(stem, ".png");
     ensure_parent(&png_path)?;
     save_bytes(&png_path, &png)?;
-    save_bytes(&svg_path, svg.as_bytes())?;
-    save_bytes(&pdf_path, &pdf)?;
+    save_bytes(&with_suffix(stem, ".svg"), svg.as_bytes())?;
+    save_bytes(&with_suffix(stem, ".pdf"), &pdf)?;
     if style::figure_style() == style::FigureStyle::Paper {
         let (title, caption) = figure.words();
         let txt = format!("{title}\n\n{caption}\n");

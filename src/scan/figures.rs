@@ -136,15 +136,13 @@ impl Canvas {
                 &["phase"]
             }
             Shape::Map { ell, lines } => {
-                // Two independent figures, drawn at once (each thread with
-                // the caller's figure style: it is per thread).
-                let style = plot::figure_style();
-                let (phase, ell_star) = rayon::join(
-                    || plot::styled(style, || phase_figure(dir, meta, cells, lines, &cats, by)),
-                    || plot::styled(style, || ell_star_figure(dir, meta, ell)),
-                );
-                phase?;
-                ell_star?;
+                // Two independent figures, drawn at once.
+                let phase = phase_data(meta, cells, lines, &cats, by);
+                let ell_star = ell_star_data(meta, ell);
+                plot::phase_diagram_and_heat_map(
+                    (&dir.join("phase"), &phase),
+                    (&dir.join("ell_star"), &ell_star),
+                )?;
                 &["phase", "ell_star"]
             }
         };
@@ -399,14 +397,13 @@ fn line_terms(meta: &Meta) -> Vec<usize> {
         .collect()
 }
 
-fn phase_figure(
-    dir: &Path,
+fn phase_data(
     meta: &Meta,
     cells: Vec<u32>,
     lines: Vec<(usize, ContourTracer)>,
     cats: &Categories,
     by: ColorBy,
-) -> Result<(), Error> {
+) -> PhaseMap {
     let lines = lines
         .into_iter()
         .map(|(t, tracer)| Contour {
@@ -415,7 +412,7 @@ fn phase_figure(
         })
         .filter(|c| !c.points.is_empty())
         .collect();
-    let data = PhaseMap {
+    PhaseMap {
         title: match by {
             ColorBy::Phase => format!("{}: phase after successive pinning", meta.model),
             ColorBy::Winner => format!("{}: which term reaches strong coupling first", meta.model),
@@ -431,12 +428,11 @@ fn phase_figure(
         category_colours: Some(cats.colours.clone()),
         lines,
         caption: CAPTION.into(),
-    };
-    Ok(plot::phase_diagram(&dir.join("phase"), &data)?)
+    }
 }
 
-fn ell_star_figure(dir: &Path, meta: &Meta, values: Vec<f64>) -> Result<(), Error> {
-    let data = HeatMap {
+fn ell_star_data(meta: &Meta, values: Vec<f64>) -> HeatMap {
+    HeatMap {
         title: format!(
             "{}: scale at which the winner reaches strong coupling",
             meta.model
@@ -456,8 +452,7 @@ fn ell_star_figure(dir: &Path, meta: &Meta, values: Vec<f64>) -> Result<(), Erro
              where no term reached strong coupling (gapless, undecided, failed); the phase \
              map tells them apart. Second-order RG, single reference velocity."
             .into(),
-    };
-    Ok(plot::heat_map(&dir.join("ell_star"), &data)?)
+    }
 }
 
 fn line_figure(

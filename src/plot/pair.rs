@@ -1,0 +1,101 @@
+//! Two figures written at once, their formats drawn as tasks taken in a
+//! fixed order of priority by every thread of the pool: first both vector
+//! formats (SVG then PDF, the longest tasks: the PDF of a 1000-cell map
+//! takes about 10 ms), then both rasters, then the PNG encoding of each
+//! raster, queued when its pixels are ready. On two threads one thread
+//! takes the longer PDF while the other draws the rest, and the encodings
+//! fill in behind. The bytes of every file do not depend on which thread
+//! drew it.
+
+use std::collections::VecDeque;
+use std::path::Path;
+use std::sync::Mutex;
+
+use super::output::{self, Figure};
+use super::{font, style, PlotError};
+
+/// One task: the formats of figure 0 or 1.
+enum Task {
+    Vector(usize),
+    Raster(usize),
+    Encode(usize, Vec<u8>),
+}
+
+/// What the tasks produced for one figure.
+#[derive(Default)]
+struct Parts {
+    png: Option<Result<Vec<u8>, PlotError>>,
+    vector: Option<Result<(String, Vec<u8>), PlotError>>,
+}
+
+/// Writes figure `a` then figure `b` (each as [`output::write_figure`]
+/// would), their formats drawn at once.
+pub(crate) fn write_pair(
+    a: (&Path, &(impl Figure + Sync)),
+    b: (&Path, &(impl Figure + Sync)),
+) -> Result<(), PlotError> {
+    font::ensure_registered().map_err(|m| PlotError::new(a.0, m))?;
+    let stems = [a.0, b.0];
+    let queue = Mutex::new(VecDeque::from([
+        Task::Vector(1),
+        Task::Vector(0),
+        Task::Raster(0),
+        Task::Raster(1),
+    ]));
+    let parts = [Mutex::new(Parts::default()), Mutex::new(Parts::default())];
+    let look = style::figure_style();
+    let run = |task: Task| match task {
+        Task::Vector(i) => {
+            let v = if i == 0 {
+                output::vector_formats(a.0, a.1)
+            } else {
+                output::vector_formats(b.0, b.1)
+            };
+            lock(&parts[i]).vector = Some(v);
+        }
+        Task::Raster(i) => {
+            let pixels = if i == 0 {
+                output::raster_pixels(a.0, a.1)
+            } else {
+                output::raster_pixels(b.0, b.1)
+            };
+            match pixels {
+                Ok(p) => lock(&queue).push_back(Task::Encode(i, p)),
+                Err(e) => lock(&parts[i]).png = Some(Err(e)),
+            }
+        }
+        Task::Encode(i, pixels) => {
+            lock(&parts[i]).png = Some(output::encode_canvas(stems[i], &pixels));
+        }
+    };
+    let work = || {
+        style::styled(look, || {
+            while let Some(t) = next(&queue) {
+                run(t)
+            }
+        })
+    };
+    let threads = rayon::current_num_threads().clamp(1, 4);
+    rayon::scope(|s| {
+        for _ in 0..threads {
+            s.spawn(|_| work());
+        }
+    });
+    let [pa, pb] = parts.map(|p| p.into_inner().unwrap_or_else(|e| e.into_inner()));
+    output::save_figure(a.0, a.1, finished(a.0, pa.png)?, finished(a.0, pa.vector)?)?;
+    output::save_figure(b.0, b.1, finished(b.0, pb.png)?, finished(b.0, pb.vector)?)
+}
+
+/// The next task, if any is left.
+fn next(queue: &Mutex<VecDeque<Task>>) -> Option<Task> {
+    lock(queue).pop_front()
+}
+
+fn lock<T>(m: &Mutex<T>) -> std::sync::MutexGuard<'_, T> {
+    m.lock().unwrap_or_else(|e| e.into_inner())
+}
+
+/// A task's result (every task runs, so each part is there).
+fn finished<T>(stem: &Path, part: Option<Result<T, PlotError>>) -> Result<T, PlotError> {
+    part.unwrap_or_else(|| Err(PlotError::new(stem, "a format of the figure was not drawn")))
+}
