@@ -94,10 +94,8 @@ pub(crate) fn write_figure(stem: &Path, figure: &(impl Figure + Sync)) -> Result
 }
 
 /// The PNG bytes of `figure` (the file `<stem>.png` names its errors).
-pub(crate) fn raster_png(stem: &Path, figure: &impl Figure) -> Result<Vec<u8>, PlotError> {
-    render_rgb(figure)
-        .and_then(|p| encode_canvas_png(&p))
-        .map_err(|m| PlotError::new(&with_suffix(stem, ".png"), m))
+fn raster_png(stem: &Path, figure: &impl Figure) -> Result<Vec<u8>, PlotError> {
+    encode_canvas(stem, &raster_pixels(stem, figure)?)
 }
 
 /// The pixels of `figure`, for [`encode_canvas`] (two steps, so that the
