@@ -34,6 +34,49 @@ fn check_pdf(bytes: &[u8]) {
     assert!(text.contains("DejaVuSans"), "not the embedded font");
     let pages = text.matches("/Type /Page").count() - text.matches("/Type /Pages").count();
     assert_eq!(pages, 1, "one page");
+    // Every stream deflated (our own pass after svg2pdf, src/plot/pdf_streams.rs).
+    let streams = bytes.windows(9).filter(|w| w == b">>\nstream").count();
+    assert_eq!(
+        text.matches("/Filter /FlateDecode").count(),
+        streams,
+        "a stream left uncompressed"
+    );
+    check_cross_references(bytes);
+}
+
+/// `startxref` points at the table, and every object in use at `N 0 obj`
+/// (entries of 20 bytes: offset, generation, n or f, CR LF).
+fn check_cross_references(bytes: &[u8]) {
+    let text = String::from_utf8_lossy(bytes);
+    let tail = &text[text.rfind("startxref\n").expect("no startxref") + 10..];
+    let at: usize = tail.lines().next().unwrap().parse().unwrap();
+    let table = &bytes[at..];
+    let head_end = table.iter().position(|&b| b == b'\n').unwrap();
+    let body_at = head_end
+        + 1
+        + table[head_end + 1..]
+            .iter()
+            .position(|&b| b == b'\n')
+            .unwrap()
+        + 1;
+    let size = String::from_utf8_lossy(&table[head_end + 1..body_at - 1]).to_string();
+    assert_eq!(
+        &table[..head_end],
+        b"xref",
+        "startxref does not point at the table"
+    );
+    let count: usize = size.split(' ').nth(1).unwrap().parse().unwrap();
+    for (i, entry) in table[body_at..].chunks(20).take(count).enumerate() {
+        let entry = String::from_utf8_lossy(entry).to_string();
+        if entry.as_bytes()[17] == b'n' {
+            let offset: usize = entry[..10].parse().unwrap();
+            let obj = format!("{i} 0 obj\n");
+            assert!(
+                bytes[offset..].starts_with(obj.as_bytes()),
+                "object {i} not at {offset}"
+            );
+        }
+    }
 }
 
 /// Page size in points as pdfinfo reports it, when poppler is installed.
@@ -61,6 +104,24 @@ fn every_figure_has_a_pdf_with_its_font() {
         None => eprintln!("note: pdfinfo not installed; the PDF was checked by its structure only"),
     }
     assert!(!dir.path().join("screen/flow.txt").exists());
+    // The two maps of a scan (a map's cells are the largest streams).
+    Command::cargo_bin("pinflow")
+        .unwrap()
+        .current_dir(dir.path())
+        .args([
+            "scan",
+            &demo(),
+            "--x",
+            "lambda=0.5:0.9:6",
+            "--y",
+            "g=0.6:0.9:5",
+        ])
+        .args(["--out", "map", "--quiet"])
+        .assert()
+        .success();
+    for name in ["phase.pdf", "ell_star.pdf"] {
+        check_pdf(&std::fs::read(dir.path().join("map").join(name)).unwrap());
+    }
 }
 
 #[test]

@@ -33,6 +33,7 @@ mod output;
 mod pair;
 pub mod palette;
 mod pdf;
+mod pdf_streams;
 pub mod style;
 
 pub use lines::{

