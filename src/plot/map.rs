@@ -732,6 +732,24 @@ mod tests {
         }
     }
 
+    #[test]
+    fn a_pair_with_a_figure_that_cannot_be_drawn_is_an_error_naming_it() {
+        let dir = tempfile::tempdir().unwrap();
+        let mut bad = sample_phase();
+        bad.xs.swap(3, 4);
+        let (phase, heat) = (dir.path().join("phase"), dir.path().join("heat"));
+        let err = phase_diagram_and_heat_map((&phase, &bad), (&heat, &sample_heat(true)))
+            .unwrap_err()
+            .to_string();
+        assert!(err.contains("phase"), "{err}");
+        for ext in ["png", "svg", "pdf"] {
+            assert!(
+                !sibling(&phase, ext).exists(),
+                "{ext} of a failed figure written"
+            );
+        }
+    }
+
     fn sample_heat(with_missing: bool) -> HeatMap {
         let (xs, ys) = (grid(24, 0.0, 1.0), grid(16, 0.5, 1.5));
         let values = ys

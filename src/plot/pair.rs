@@ -6,7 +6,9 @@
 //! queued when its pixels are ready. On two threads one thread takes the
 //! heat map's PDF while the other draws the rasters and the phase map's
 //! PDF, and the first thread encodes the rasters when it is free. The
-//! bytes of every file do not depend on which thread drew it.
+//! files of a figure are written as soon as its last format is drawn (that
+//! task goes to the head of the queue). The bytes of every file do not
+//! depend on which thread drew it.
 
 use std::collections::VecDeque;
 use std::path::Path;
@@ -15,11 +17,12 @@ use std::sync::Mutex;
 use super::output::{self, Figure};
 use super::{font, style, PlotError};
 
-/// One task: the formats of figure 0 or 1.
+/// One task: the formats of figure 0 or 1, or writing its files.
 enum Task {
     Vector(usize),
     Raster(usize),
     Encode(usize, Vec<u8>),
+    Save(usize),
 }
 
 /// What the tasks produced for one figure.
@@ -27,10 +30,14 @@ enum Task {
 struct Parts {
     png: Option<Result<Vec<u8>, PlotError>>,
     vector: Option<Result<(String, Vec<u8>), PlotError>>,
+    /// Its files written (or why not).
+    saved: Option<Result<(), PlotError>>,
 }
 
-/// Writes figure `a` then figure `b` (each as [`output::write_figure`]
-/// would), their formats drawn at once.
+/// Writes figure `a` and figure `b` (each as [`output::write_figure`]
+/// would), their formats drawn at once; each figure's files are written
+/// as soon as all its formats are drawn. On failure, the first error of
+/// `a`, else of `b`.
 pub(crate) fn write_pair(
     a: (&Path, &(impl Figure + Sync)),
     b: (&Path, &(impl Figure + Sync)),
@@ -52,7 +59,7 @@ pub(crate) fn write_pair(
             } else {
                 output::vector_formats(b.0, b.1)
             };
-            lock(&parts[i]).vector = Some(v);
+            store(&parts[i], &queue, i, Part::Vector(v));
         }
         Task::Raster(i) => {
             let pixels = if i == 0 {
@@ -62,11 +69,27 @@ pub(crate) fn write_pair(
             };
             match pixels {
                 Ok(p) => lock(&queue).push_back(Task::Encode(i, p)),
-                Err(e) => lock(&parts[i]).png = Some(Err(e)),
+                Err(e) => store(&parts[i], &queue, i, Part::Png(Err(e))),
             }
         }
         Task::Encode(i, pixels) => {
-            lock(&parts[i]).png = Some(output::encode_canvas(stems[i], &pixels));
+            let png = output::encode_canvas(stems[i], &pixels);
+            store(&parts[i], &queue, i, Part::Png(png));
+        }
+        Task::Save(i) => {
+            let (png, vector) = {
+                let mut p = lock(&parts[i]);
+                (p.png.take(), p.vector.take())
+            };
+            let saved = (|| {
+                let (png, vector) = (finished(stems[i], png)?, finished(stems[i], vector)?);
+                if i == 0 {
+                    output::save_figure(a.0, a.1, png, vector)
+                } else {
+                    output::save_figure(b.0, b.1, png, vector)
+                }
+            })();
+            lock(&parts[i]).saved = Some(saved);
         }
     };
     let work = || {
@@ -83,8 +106,27 @@ pub(crate) fn write_pair(
         }
     });
     let [pa, pb] = parts.map(|p| p.into_inner().unwrap_or_else(|e| e.into_inner()));
-    output::save_figure(a.0, a.1, finished(a.0, pa.png)?, finished(a.0, pa.vector)?)?;
-    output::save_figure(b.0, b.1, finished(b.0, pb.png)?, finished(b.0, pb.vector)?)
+    finished(a.0, pa.saved)?;
+    finished(b.0, pb.saved)
+}
+
+/// A drawn format of one figure.
+enum Part {
+    Png(Result<Vec<u8>, PlotError>),
+    Vector(Result<(String, Vec<u8>), PlotError>),
+}
+
+/// Stores a part of figure `i`; the part that completes the figure queues
+/// the writing of its files first.
+fn store(parts: &Mutex<Parts>, queue: &Mutex<VecDeque<Task>>, i: usize, part: Part) {
+    let mut p = lock(parts);
+    match part {
+        Part::Png(png) => p.png = Some(png),
+        Part::Vector(v) => p.vector = Some(v),
+    }
+    if p.png.is_some() && p.vector.is_some() {
+        lock(queue).push_front(Task::Save(i));
+    }
 }
 
 /// The next task, if any is left.

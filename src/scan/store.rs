@@ -233,6 +233,10 @@ pub struct RowFile {
 
 impl RowFile {
     /// Create (truncating) a partial file with its meta line and header.
+    /// Not synced to disk here: a file that a crash leaves empty or cut
+    /// before its first row is started afresh by [`RowFile::resume`], and
+    /// the rows are made durable at the end of the run ([`RowFile::sync`]);
+    /// a sync here would hold up every scan before its first point.
     pub fn create(path: &Path, meta: &Meta) -> Result<RowFile, Error> {
         let mut file = File::create(path).map_err(|e| Error::io(path, e))?;
         let json = serde_json::to_string(meta).map_err(|e| Error::Numerical(e.to_string()))?;
@@ -240,7 +244,6 @@ impl RowFile {
         head.push_str(&csv_line(&meta.header()));
         file.write_all(head.as_bytes())
             .map_err(|e| Error::io(path, e))?;
-        file.sync_data().map_err(|e| Error::io(path, e))?;
         Ok(RowFile {
             file,
             path: path.to_path_buf(),
