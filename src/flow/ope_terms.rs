@@ -84,11 +84,11 @@ pub(super) struct GroupedOpe {
     ends: Vec<u32>,
     /// Product of each entry.
     product: Vec<u32>,
-    /// weight / 2 (the factor of the product's real part).
-    re: Vec<f64>,
-    /// weight / 2 times -1 when the entry conjugates the product (the
-    /// factor of its imaginary part).
-    im: Vec<f64>,
+    /// The factors of each entry's product: of its real part weight / 2,
+    /// of its imaginary part weight / 2 times -1 when the entry conjugates
+    /// the product (a pair, so one entry's two sums are one vector
+    /// operation).
+    factors: Vec<[f64; 2]>,
 }
 
 impl GroupedOpe {
@@ -138,8 +138,7 @@ impl GroupedOpe {
             self.ends.push(self.product.len() as u32);
         }
         self.product.push(product);
-        self.re.push(re);
-        self.im.push(im);
+        self.factors.push([re, im]);
         *self.ends.last_mut().expect("pushed") += 1;
     }
 
@@ -175,7 +174,8 @@ impl GroupedOpe {
                     g.b.push(b);
                     g.b_sign.push(self.b_sign[p]);
                 }
-                g.push_factors(t, renamed[p], self.re[k], self.im[k]);
+                let [re, im] = self.factors[k];
+                g.push_factors(t, renamed[p], re, im);
             }
         }
         g
@@ -189,26 +189,28 @@ impl GroupedOpe {
     /// dw -= sum of the entries' weighted products; `p` has
     /// [`GroupedOpe::scratch_len`] entries.
     pub(super) fn terms(&self, w: &[f64], dw: &mut [f64], p: &mut [f64]) {
+        // Complex numbers as (re, im) pairs: one bounds check per access,
+        // and each pair's two sums run side by side in one register.
+        let (w, _) = w.as_chunks::<2>();
+        let (dw, _) = dw.as_chunks_mut::<2>();
+        let (p, _) = p.as_chunks_mut::<2>();
         let factors = self.a.iter().zip(&self.b).zip(&self.b_sign);
-        for (((&a, &b), &b_sign), p) in factors.zip(p.chunks_exact_mut(2)) {
-            let (a, b) = (a as usize, b as usize);
-            let (ar, ai) = (w[2 * a], w[2 * a + 1]);
-            let (br, bi) = (w[2 * b], b_sign * w[2 * b + 1]);
-            p[0] = ar * br - ai * bi;
-            p[1] = ar * bi + ai * br;
+        for (((&a, &b), &b_sign), p) in factors.zip(p.iter_mut()) {
+            let ([ar, ai], [br, bi]) = (w[a as usize], w[b as usize]);
+            let bi = b_sign * bi;
+            *p = [ar * br - ai * bi, ar * bi + ai * br];
         }
         let mut start = 0;
         for (&t, &end) in self.targets.iter().zip(&self.ends) {
             let range = start..end as usize;
-            let (mut re, mut im) = (0.0, 0.0);
-            let entries = self.product[range.clone()].iter();
-            for ((&k, &cr), &ci) in entries.zip(&self.re[range.clone()]).zip(&self.im[range]) {
-                let k = 2 * k as usize;
-                re += cr * p[k];
-                im += ci * p[k + 1];
+            let mut acc = [0.0; 2];
+            for (&k, c) in self.product[range.clone()].iter().zip(&self.factors[range]) {
+                let pk = p[k as usize];
+                acc[0] += c[0] * pk[0];
+                acc[1] += c[1] * pk[1];
             }
-            dw[2 * t as usize] -= re;
-            dw[2 * t as usize + 1] -= im;
+            let d = &mut dw[t as usize];
+            (d[0], d[1]) = (d[0] - acc[0], d[1] - acc[1]);
             start = end as usize;
         }
     }
