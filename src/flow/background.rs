@@ -554,7 +554,7 @@ fn fourier_evaluate(
     ds: &mut [f64],
     work: &mut Work,
 ) {
-    let (size, p, blocks) = (2 * cell * cell, cell * cell, half(wires));
+    let (p, blocks) = (cell * cell, half(wires));
     let packing = work.pack.iter().zip(&work.pack_share);
     for (w, (&at, &share)) in work.dw.iter_mut().zip(packing) {
         *w = share * s[at];
@@ -582,18 +582,46 @@ fn fourier_evaluate(
     if !any {
         return;
     }
+    // Cells of one and two fields (most models) with the cell a constant:
+    // the per-block loops unroll and lose their bounds checks, the
+    // arithmetic is the same.
+    match cell {
+        1 => block_steps::<1>(cell, blocks, s, ds, work),
+        2 => block_steps::<2>(cell, blocks, s, ds, work),
+        _ => block_steps::<0>(cell, blocks, s, ds, work),
+    }
+}
+
+/// ds += D M D - N on every stored block ([`fourier_evaluate`], M and N
+/// summed in `work.mq`); the cell is `C`, or `cell` when `C` is 0.
+#[inline(always)]
+fn block_steps<const C: usize>(
+    cell: usize,
+    blocks: usize,
+    s: &[f64],
+    ds: &mut [f64],
+    work: &mut Work,
+) {
+    let cell = if C == 0 { cell } else { C };
+    let (size, p) = (2 * cell * cell, cell * cell);
     let (mp, np) = work.mq.split_at(blocks * p);
     let (m, n) = (work.m.as_mut_slice(), work.n.as_mut_slice());
     let (t, r) = (work.t.as_mut_slice(), work.r.as_mut_slice());
+    let (m, n, t, r) = (
+        &mut m[..size],
+        &mut n[..size],
+        &mut t[..size],
+        &mut r[..size],
+    );
     for k in 0..blocks {
         let (range, rp) = (k * size..(k + 1) * size, k * p..(k + 1) * p);
-        unpack_block(&mp[rp.clone()], &work.unpack, m);
+        unpack_block(&mp[rp.clone()], &work.unpack[..size], m);
         if work.kinv.is_empty() {
-            unpack_block(&np[rp], &work.unpack, n);
+            unpack_block(&np[rp], &work.unpack[..size], n);
         } else {
-            kinv_sandwich(cell, &work.kinv, m, n, r);
+            kinv_sandwich::<C>(cell, &work.kinv[..p], m, n, r);
         }
-        block_products(cell, &s[range.clone()], &mut ds[range], m, n, t);
+        block_products::<C>(cell, &s[range.clone()], &mut ds[range], m, n, t);
     }
 }
 
@@ -602,8 +630,16 @@ fn fourier_evaluate(
 /// `r` scratch for K_c^-1 m): N(q) of the channels' G(q) = K_c^-1 L(q)
 /// from M(q), exact up to rounding. Every sum runs along two rows (column
 /// b of a Hermitian m is the conjugate of its row b, of kinv its row b).
-#[inline]
-fn kinv_sandwich(cell: usize, kinv: &[f64], m: &[f64], n: &mut [f64], r: &mut [f64]) {
+/// The cell is `C`, or `cell` when `C` is 0 (as in [`block_steps`]).
+#[inline(always)]
+fn kinv_sandwich<const C: usize>(
+    cell: usize,
+    kinv: &[f64],
+    m: &[f64],
+    n: &mut [f64],
+    r: &mut [f64],
+) {
+    let cell = if C == 0 { cell } else { C };
     for (ka, ra) in kinv.chunks_exact(cell).zip(r.chunks_exact_mut(2 * cell)) {
         for (mb, rab) in m.chunks_exact(2 * cell).zip(ra.chunks_exact_mut(2)) {
             let (mut re, mut im) = (0.0, 0.0);
@@ -962,8 +998,17 @@ fn unpack_block(p: &[f64], map: &[(usize, f64)], x: &mut [f64]) {
 /// of a Hermitian matrix is the conjugate of its row b). Only the upper
 /// triangle of D M D is formed; the lower one is its conjugate and the
 /// diagonal real, so the feedback is exactly Hermitian.
-#[inline]
-fn block_products(cell: usize, d: &[f64], ds: &mut [f64], m: &[f64], n: &[f64], t: &mut [f64]) {
+/// The cell is `C`, or `cell` when `C` is 0 (as in [`block_steps`]).
+#[inline(always)]
+fn block_products<const C: usize>(
+    cell: usize,
+    d: &[f64],
+    ds: &mut [f64],
+    m: &[f64],
+    n: &[f64],
+    t: &mut [f64],
+) {
+    let cell = if C == 0 { cell } else { C };
     let row = 2 * cell;
     for (da, ta) in d.chunks_exact(row).zip(t.chunks_exact_mut(row)) {
         for (mb, tab) in m.chunks_exact(row).zip(ta.chunks_exact_mut(2)) {
@@ -988,7 +1033,7 @@ fn block_products(cell: usize, d: &[f64], ds: &mut [f64], m: &[f64], n: &[f64], 
 }
 
 /// sum_j x_j conj(y_j) of two interleaved complex rows.
-#[inline]
+#[inline(always)]
 fn times_conj(x: &[f64], y: &[f64]) -> (f64, f64) {
     let (mut re, mut im) = (0.0, 0.0);
     for (x, y) in x.chunks_exact(2).zip(y.chunks_exact(2)) {
