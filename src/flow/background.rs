@@ -41,7 +41,10 @@
 //! Hermitian form ([`pack_block`]: per block the real diagonal and the
 //! upper triangle, cell^2 reals instead of 2 cell^2), so its dimension is
 //! one dot product with the packed D and M, N of all blocks are sums of
-//! those arrays (contiguous loops, half the length of full blocks). The
+//! those arrays (contiguous loops, half the length of full blocks); the
+//! per-block products run with the cell size a compile-time constant for
+//! cells of one and two fields ([`block_steps`]: the same arithmetic,
+//! unrolled, without bounds checks). The
 //! per-channel route ([`Background::dimension_and_feedback`]) is kept as the
 //! reference the products are tested against (`tests/rhs_products.rs`).
 //! Invariants: the dense feedback is symmetrised and each block's feedback
