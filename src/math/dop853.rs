@@ -334,16 +334,16 @@ impl Dop853 {
     #[allow(clippy::needless_range_loop)] // s names the stage in C and A
     fn stages<F: Derivative>(&mut self, f: &F) {
         for s in 1..12 {
-            self.combine(s, s);
+            self.combine(s);
             f.eval(self.x + C[s] * self.h, &self.stage, &mut self.k[s]);
         }
         self.evaluations += 11;
-        self.combine(12, 12);
+        self.combine(12);
     }
 
-    /// stage = y + h sum_{j < upto} A[row][j] k[j].
-    fn combine(&mut self, row: usize, upto: usize) {
-        combine_into(&mut self.stage, &self.y, &self.k, &A[row][..upto], self.h);
+    /// stage = y + h sum_{j < row} A[row][j] k[j].
+    fn combine(&mut self, row: usize) {
+        combine_into(&mut self.stage, &self.y, &self.k, &LIVE_A[row], self.h);
     }
 
     /// The step's error relative to the tolerance (accept at <= 1): the
@@ -375,7 +375,7 @@ impl Dop853 {
     fn error_terms(&self, i: usize) -> (f64, f64) {
         let (rtol, atol) = (self.control.rtol, self.control.atol);
         let sk = atol + rtol * self.y[i].abs().max(self.stage[i].abs());
-        let (e5, b) = (live(&E5), live(&A[12][..12]));
+        let (e5, b): (&[_], &[_]) = (&LIVE_E5, &LIVE_A[12]);
         let d5 = e5.iter().fold(0.0, |a, &(j, c)| a + c * self.k[j][i]);
         let bs = b.iter().fold(0.0, |a, &(j, c)| a + c * self.k[j][i]);
         let bhh = BHH[0] * self.k[0][i] + BHH[1] * self.k[8][i] + BHH[2] * self.k[11][i];
@@ -388,13 +388,13 @@ impl Dop853 {
     #[allow(clippy::eq_op)] // x - x tests finiteness (below)
     fn error_sums(&self, a: usize, b: usize) -> (f64, f64, bool) {
         let (rtol, atol) = (self.control.rtol, self.control.atol);
-        let (e5w, bw) = (live(&E5), live(&A[12][..12]));
+        let (e5w, bw): (&[_], &[_]) = (&LIVE_E5, &LIVE_A[12]);
         let (mut e5, mut e3, mut fin) = (0.0, 0.0, [0.0; LANES]);
         let (mut t5, mut t3) = ([0.0; LANES], [0.0; LANES]);
         let blocks = (b - a) / LANES;
         for blk in 0..blocks {
             let r = a + blk * LANES..a + (blk + 1) * LANES;
-            let (d5, bs) = (lanes_sum(&self.k, &e5w, &r), lanes_sum(&self.k, &bw, &r));
+            let (d5, bs) = (lanes_sum(&self.k, e5w, &r), lanes_sum(&self.k, bw, &r));
             let (k0, k8, k11) = (
                 block(&self.k[0], &r),
                 block(&self.k[8], &r),
@@ -480,20 +480,40 @@ impl std::ops::Deref for Live {
     }
 }
 
-/// The non-zero entries of `a` (at most 16).
-fn live(a: &[f64]) -> Live {
+/// The non-zero entries among the first `upto` of `a`, in order.
+const fn live(a: &[f64], upto: usize) -> Live {
     let mut out = Live {
         terms: [(0, 0.0); 16],
         m: 0,
     };
-    for (j, &c) in a.iter().enumerate() {
-        if c != 0.0 {
-            out.terms[out.m] = (j, c);
+    let mut j = 0;
+    while j < upto {
+        if a[j] != 0.0 {
+            out.terms[out.m] = (j, a[j]);
             out.m += 1;
         }
+        j += 1;
     }
     out
 }
+
+/// Row s of [`A`] restricted to its first s stages (the coefficients of
+/// stage s), live entries only, for every s; built at compile time.
+static LIVE_A: [Live; 16] = {
+    let mut rows = [Live {
+        terms: [(0, 0.0); 16],
+        m: 0,
+    }; 16];
+    let mut s = 0;
+    while s < 16 {
+        rows[s] = live(&A[s], s);
+        s += 1;
+    }
+    rows
+};
+
+/// The live entries of [`E5`].
+static LIVE_E5: Live = live(&E5, 12);
 
 /// The [`LANES`] entries of `v` in `r` (r.len() == LANES).
 #[inline(always)]
@@ -520,25 +540,50 @@ fn lanes_total(a: &[f64; LANES]) -> f64 {
     ((a[0] + a[1]) + (a[2] + a[3])) + ((a[4] + a[5]) + (a[6] + a[7]))
 }
 
-/// out = y + h sum_j a[j] k[j] (zero coefficients skipped), summed per
-/// component in stage order (blocks of [`LANES`] components, the stages
-/// inside, so the loop vectorises and reads each array once).
-fn combine_into(out: &mut [f64], y: &[f64], k: &[Vec<f64>], a: &[f64], h: f64) {
-    let w = live(a);
+/// out = y + h sum_j c_j k_j over the live coefficients `w`, summed per
+/// component in stage order (blocks of 2 [`LANES`] components, then one of
+/// [`LANES`], the stages inside, so the loop vectorises, reads each array
+/// once and spends its stage lookups on twice the lanes).
+fn combine_into(out: &mut [f64], y: &[f64], k: &[Vec<f64>], w: &[(usize, f64)], h: f64) {
     let n = out.len();
-    let blocks = n / LANES;
-    for blk in 0..blocks {
-        let r = blk * LANES..(blk + 1) * LANES;
-        let acc = lanes_sum(k, &w, &r);
-        let yb = block(y, &r);
-        let o: &mut [f64; LANES] = (&mut out[r]).try_into().expect("block");
-        for l in 0..LANES {
-            o[l] = yb[l] + h * acc[l];
-        }
+    let wide = n / (2 * LANES);
+    for blk in 0..wide {
+        let r = blk * 2 * LANES..(blk + 1) * 2 * LANES;
+        combine_block::<{ 2 * LANES }>(out, y, k, w, h, r);
     }
-    for i in blocks * LANES..n {
+    let mut from = wide * 2 * LANES;
+    if n - from >= LANES {
+        combine_block::<LANES>(out, y, k, w, h, from..from + LANES);
+        from += LANES;
+    }
+    for i in from..n {
         let acc = w.iter().fold(0.0, |s, &(j, c)| s + c * k[j][i]);
         out[i] = y[i] + h * acc;
+    }
+}
+
+/// [`combine_into`] on the `L` components in `r` (r.len() == L); each
+/// lane's sum starts at 0 and adds the stages in order, as the scalar tail.
+#[inline(always)]
+fn combine_block<const L: usize>(
+    out: &mut [f64],
+    y: &[f64],
+    k: &[Vec<f64>],
+    w: &[(usize, f64)],
+    h: f64,
+    r: std::ops::Range<usize>,
+) {
+    let mut acc = [0.0; L];
+    for &(j, c) in w {
+        let kj: &[f64; L] = k[j][r.clone()].try_into().expect("a block");
+        for l in 0..L {
+            acc[l] += c * kj[l];
+        }
+    }
+    let yb: &[f64; L] = y[r.clone()].try_into().expect("a block");
+    let o: &mut [f64; L] = (&mut out[r]).try_into().expect("a block");
+    for l in 0..L {
+        o[l] = yb[l] + h * acc[l];
     }
 }
 
@@ -554,7 +599,7 @@ impl Dop853 {
         }
         let h = self.x - self.x_old;
         for s in 13..16 {
-            combine_into(&mut self.stage, &self.y_old, &self.k, &A[s][..s], h);
+            combine_into(&mut self.stage, &self.y_old, &self.k, &LIVE_A[s], h);
             f.eval(self.x_old + C[s] * h, &self.stage, &mut self.k[s]);
         }
         self.evaluations += 3;
