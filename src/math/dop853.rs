@@ -383,43 +383,60 @@ impl Dop853 {
     }
 
     /// Sums of [`Dop853::error_terms`] over a..b (terms formed in blocks of
-    /// [`LANES`], summed in component order), and whether every new state
-    /// entry there is finite.
-    #[allow(clippy::eq_op)] // x - x tests finiteness (below)
+    /// 2 [`LANES`], then one of [`LANES`], summed in component order), and
+    /// whether every new state entry there is finite.
     fn error_sums(&self, a: usize, b: usize) -> (f64, f64, bool) {
-        let (rtol, atol) = (self.control.rtol, self.control.atol);
-        let (e5w, bw): (&[_], &[_]) = (&LIVE_E5, &LIVE_A[12]);
-        let (mut e5, mut e3, mut fin) = (0.0, 0.0, [0.0; LANES]);
-        let (mut t5, mut t3) = ([0.0; LANES], [0.0; LANES]);
-        let blocks = (b - a) / LANES;
-        for blk in 0..blocks {
-            let r = a + blk * LANES..a + (blk + 1) * LANES;
-            let (d5, bs) = (lanes_sum(&self.k, e5w, &r), lanes_sum(&self.k, bw, &r));
-            let (k0, k8, k11) = (
-                block(&self.k[0], &r),
-                block(&self.k[8], &r),
-                block(&self.k[11], &r),
-            );
-            let (y, st) = (block(&self.y, &r), block(&self.stage, &r));
-            for l in 0..LANES {
-                let sk = atol + rtol * y[l].abs().max(st[l].abs());
-                let bhh = BHH[0] * k0[l] + BHH[1] * k8[l] + BHH[2] * k11[l];
-                t5[l] = (d5[l] / sk).powi(2);
-                t3[l] = ((bs[l] - bhh) / sk).powi(2);
-                // x - x is 0 for finite x, NaN otherwise.
-                fin[l] += st[l] - st[l];
-            }
-            for l in 0..LANES {
-                (e5, e3) = (e5 + t5[l], e3 + t3[l]);
-            }
+        let (mut sums, mut fin) = ((0.0, 0.0), [0.0; LANES]);
+        let mut from = a;
+        while b - from >= 2 * LANES {
+            self.error_block::<{ 2 * LANES }>(from, &mut sums, &mut fin);
+            from += 2 * LANES;
         }
+        if b - from >= LANES {
+            self.error_block::<LANES>(from, &mut sums, &mut fin);
+            from += LANES;
+        }
+        let (mut e5, mut e3) = sums;
         let mut finite = lanes_total(&fin) == 0.0;
-        for i in a + blocks * LANES..b {
+        for i in from..b {
             let (t5, t3) = self.error_terms(i);
             (e5, e3) = (e5 + t5, e3 + t3);
             finite &= self.stage[i].is_finite();
         }
         (e5, e3, finite)
+    }
+
+    /// [`Dop853::error_sums`] on the `L` components from `from`: the terms
+    /// added to `sums` in component order; `fin` gathers x - x of the new
+    /// state (0 for finite x, NaN otherwise) in [`LANES`] partial sums.
+    #[allow(clippy::eq_op)] // x - x tests finiteness
+    #[inline(always)]
+    fn error_block<const L: usize>(
+        &self,
+        from: usize,
+        sums: &mut (f64, f64),
+        fin: &mut [f64; LANES],
+    ) {
+        let (rtol, atol) = (self.control.rtol, self.control.atol);
+        let r = from..from + L;
+        let at = |v: &[f64]| -> [f64; L] { v[r.clone()].try_into().expect("a block") };
+        let (d5, bs) = (
+            stage_sum::<L>(&self.k, &LIVE_E5, &r),
+            stage_sum::<L>(&self.k, &LIVE_A[12], &r),
+        );
+        let (k0, k8, k11) = (at(&self.k[0]), at(&self.k[8]), at(&self.k[11]));
+        let (y, st) = (at(&self.y), at(&self.stage));
+        let (mut t5, mut t3) = ([0.0; L], [0.0; L]);
+        for l in 0..L {
+            let sk = atol + rtol * y[l].abs().max(st[l].abs());
+            let bhh = BHH[0] * k0[l] + BHH[1] * k8[l] + BHH[2] * k11[l];
+            t5[l] = (d5[l] / sk).powi(2);
+            t3[l] = ((bs[l] - bhh) / sk).powi(2);
+            fin[l % LANES] += st[l] - st[l];
+        }
+        for l in 0..L {
+            *sums = (sums.0 + t5[l], sums.1 + t3[l]);
+        }
     }
 
     /// Step control (Hairer's, beta = 0): Some(next step size) when the
@@ -515,19 +532,18 @@ static LIVE_A: [Live; 16] = {
 /// The live entries of [`E5`].
 static LIVE_E5: Live = live(&E5, 12);
 
-/// The [`LANES`] entries of `v` in `r` (r.len() == LANES).
+/// sum_j c_j k_j over the `L` components in `r` (r.len() == L), per lane;
+/// each lane starts at 0 and adds the stages in order.
 #[inline(always)]
-fn block<'v>(v: &'v [f64], r: &std::ops::Range<usize>) -> &'v [f64; LANES] {
-    v[r.clone()].try_into().expect("a block of LANES")
-}
-
-/// sum_j c_j k_j over the block `r`, per lane, summed in stage order.
-#[inline(always)]
-fn lanes_sum(k: &[Vec<f64>], w: &[(usize, f64)], r: &std::ops::Range<usize>) -> [f64; LANES] {
-    let mut acc = [0.0; LANES];
+fn stage_sum<const L: usize>(
+    k: &[Vec<f64>],
+    w: &[(usize, f64)],
+    r: &std::ops::Range<usize>,
+) -> [f64; L] {
+    let mut acc = [0.0; L];
     for &(j, c) in w {
-        let kj = block(&k[j], r);
-        for l in 0..LANES {
+        let kj: &[f64; L] = k[j][r.clone()].try_into().expect("a block");
+        for l in 0..L {
             acc[l] += c * kj[l];
         }
     }
@@ -573,13 +589,7 @@ fn combine_block<const L: usize>(
     h: f64,
     r: std::ops::Range<usize>,
 ) {
-    let mut acc = [0.0; L];
-    for &(j, c) in w {
-        let kj: &[f64; L] = k[j][r.clone()].try_into().expect("a block");
-        for l in 0..L {
-            acc[l] += c * kj[l];
-        }
-    }
+    let acc = stage_sum::<L>(k, w, &r);
     let yb: &[f64; L] = y[r.clone()].try_into().expect("a block");
     let o: &mut [f64; L] = (&mut out[r]).try_into().expect("a block");
     for l in 0..L {
