@@ -27,11 +27,13 @@
 //! up to rounding.
 //!
 //! The per-step arithmetic over the state (stage combinations, error sums)
-//! runs in blocks of [`LANES`] components with the stages as the inner loop,
-//! so the compiler vectorises it; each component's combination is summed in
-//! stage order and the error norm's terms in component order, as in plain
-//! loops (the same bits: only a packed symmetric group's norm is summed
-//! differently, as 2 x all entries - the diagonal).
+//! runs in blocks of 2 [`LANES`] components (then one of [`LANES`], then
+//! one by one) with the stages as the inner loop, so the compiler vectorises
+//! it and looks each stage up once per block; the nonzero coefficients of
+//! every row are tables built at compile time. Each component's combination
+//! is summed in stage order and the error norm's terms in component order,
+//! as in plain loops (the same bits: only a packed symmetric group's norm is
+//! summed differently, as 2 x all entries - the diagonal).
 //!
 //! Invariants: integration runs forward (`x_end > x`); after every accepted
 //! step `y()` is the state at `x()` and `k[12]` holds the derivative there
@@ -95,7 +97,7 @@ const SAFE: f64 = 0.9;
 const FAC_MIN: f64 = 0.333;
 const FAC_MAX: f64 = 6.0;
 
-/// Components per block of the vectorised loops.
+/// Components per block of the vectorised loops (the wide blocks hold two).
 const LANES: usize = 8;
 
 /// A range of the state measured by one error norm.
