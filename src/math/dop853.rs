@@ -1428,4 +1428,55 @@ mod tests {
         };
         assert!(matches!(e, StepError::TooManySteps { .. }) && e.x() > 0.0 && e.x() < 10.0);
     }
+
+    /// The blocked loops (16, then 8 components, then one by one) against
+    /// plain per-component loops over the full coefficient rows, to the bit,
+    /// for every length from 0 to 40 (a consistency check of two code paths
+    /// on invented numbers): every stage combination, the error sums, and
+    /// the finiteness test with one entry made infinite.
+    #[test]
+    fn blocked_sums_equal_plain_loops() {
+        let mut seed = 3;
+        for n in 0..=40 {
+            let mut d = Dop853::new(n);
+            d.control = Control {
+                rtol: 1e-7,
+                atol: 1e-10,
+                max_attempts: 10,
+            };
+            for v in [&mut d.y, &mut d.stage].into_iter().chain(d.k.iter_mut()) {
+                v.iter_mut().for_each(|x| *x = invented(&mut seed));
+            }
+            let h = 0.37;
+            for s in 1..16 {
+                let mut out = vec![0.0; n];
+                combine_into(&mut out, &d.y, &d.k, &LIVE_A[s], h);
+                for (i, &o) in out.iter().enumerate() {
+                    let terms = (0..s).filter(|&j| A[s][j] != 0.0);
+                    let acc = terms.fold(0.0, |a, j| a + A[s][j] * d.k[j][i]);
+                    assert_eq!(
+                        o.to_bits(),
+                        (d.y[i] + h * acc).to_bits(),
+                        "n {n} s {s} i {i}"
+                    );
+                }
+            }
+            let plain = (0..n).fold((0.0, 0.0), |(a, b), i| {
+                let (t5, t3) = d.error_terms(i);
+                (a + t5, b + t3)
+            });
+            let (e5, e3, finite) = d.error_sums(0, n);
+            assert_eq!(
+                (e5.to_bits(), e3.to_bits()),
+                (plain.0.to_bits(), plain.1.to_bits())
+            );
+            assert!(finite, "n {n}");
+            for i in 0..n {
+                let keep = d.stage[i];
+                d.stage[i] = f64::INFINITY;
+                assert!(!d.error_sums(0, n).2, "n {n} i {i}");
+                d.stage[i] = keep;
+            }
+        }
+    }
 }
