@@ -36,14 +36,14 @@ inf_flow=$(ms "target: flow filling 1/3, infinite, second-flow check")
 # Scan throughput, one stage (the SciPy script flows to the first strong
 # coupling only), 1 and 2 threads; the same grid in SciPy. The per-core
 # ratio uses CPU time (user + system: robust to other load on the machine),
-# the thread speed-up wall time; each the best of three runs (the spread
+# the thread speed-up wall time; each the best of five runs (the spread
 # between single runs on the 2-core machine is larger than the changes).
-scan() { # OUT_DIR then the command; prints "wall cpu", each the best of 3 runs
+scan() { # OUT_DIR then the command; prints "wall cpu", each the best of 5 runs
     python3 -c '
 import os, shutil, subprocess, sys, time
 out, cmd = sys.argv[1], sys.argv[2:]
 walls, cpus = [], []
-for _ in range(3):
+for _ in range(5):
     shutil.rmtree(out, ignore_errors=True)
     r0 = os.times()
     t = time.perf_counter()
