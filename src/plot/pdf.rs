@@ -38,7 +38,9 @@ pub(crate) fn from_svg(svg: &str, dpi: f32) -> Result<Vec<u8>, String> {
         ..Default::default()
     };
     let pdf = svg2pdf::to_pdf(&tree, plain, page).map_err(|e| format!("PDF: {e}"))?;
-    Ok(super::pdf_streams::deflate_streams(sorted_references(pdf)))
+    // Sorted once deflated: the content streams are then a few binary
+    // lines instead of one line per drawing operation.
+    Ok(sorted_references(super::pdf_streams::deflate_streams(pdf)))
 }
 
 /// svg2pdf writes the entries of a resource dictionary (`/xo0 8 0 R`, one
